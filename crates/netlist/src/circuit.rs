@@ -1,0 +1,456 @@
+//! The circuit as a whole: elements, gates and optional run settings, with
+//! JSON read/write and a builder that reads like a converter schematic.
+
+use schemars::JsonSchema;
+use serde::{Deserialize, Serialize};
+
+use crate::element::*;
+use crate::error::{NetlistError, Problem};
+use crate::gate::{Gate, SignalShape};
+use crate::value::{self, SiValue};
+use crate::waveform::Waveform;
+
+/// The name of the ground node. `"0"` is accepted as an alias.
+pub const GROUND: &str = "gnd";
+
+/// True if `node` names ground (`gnd` or `0`).
+pub fn is_ground(node: &str) -> bool {
+    node == GROUND || node == "0"
+}
+
+/// A circuit: named elements on named nodes, plus the gate signals that
+/// drive its switches. Values are SI units.
+#[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Circuit {
+    /// Free text describing the circuit (optional).
+    #[serde(default, skip_serializing_if = "String::is_empty")]
+    pub description: String,
+    /// The elements.
+    pub elements: Vec<Element>,
+    /// The gate signals.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub gates: Vec<Gate>,
+    /// Default settings for a transient run (optional).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub run: Option<RunSettings>,
+}
+
+/// Default settings for a transient run, overridable from the command line.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct RunSettings {
+    /// Stop time in seconds.
+    #[serde(deserialize_with = "value::de", serialize_with = "value::ser")]
+    #[schemars(with = "SiValue")]
+    pub stop_time: f64,
+    /// Start of the recorded window in seconds (default: the whole run).
+    #[serde(
+        default,
+        deserialize_with = "value::de_opt",
+        skip_serializing_if = "Option::is_none"
+    )]
+    #[schemars(with = "Option<SiValue>")]
+    pub record_from: Option<f64>,
+    /// Outputs to record and plot: a node name for its voltage, or
+    /// `ELEMENT.current` / `ELEMENT.voltage` (a winding: `ELEMENT.WINDING.current`).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub outputs: Vec<String>,
+}
+
+impl Circuit {
+    /// Reads a circuit from JSON text and validates it.
+    ///
+    /// # Errors
+    ///
+    /// [`NetlistError::Json`] naming the path of a malformed field (e.g.
+    /// `elements[1].inductance`), or [`NetlistError::Invalid`] listing every
+    /// rule the circuit breaks.
+    ///
+    /// # Example
+    ///
+    /// ```
+    /// let c = fluxstep_netlist::Circuit::from_json(r#"{"elements": [
+    ///   {"kind": "voltage_source", "name": "V1", "nodes": ["in", "gnd"],
+    ///    "waveform": {"kind": "constant", "value": "12"}},
+    ///   {"kind": "resistor", "name": "R1", "nodes": ["in", "gnd"], "resistance": "1k"}
+    /// ]}"#).unwrap();
+    /// assert_eq!(c.elements.len(), 2);
+    /// ```
+    pub fn from_json(text: &str) -> Result<Circuit, NetlistError> {
+        let c = Self::from_json_unchecked(text)?;
+        c.validate()?;
+        Ok(c)
+    }
+
+    /// Reads a circuit from JSON text without the circuit rules (format only).
+    ///
+    /// # Errors
+    ///
+    /// [`NetlistError::Json`] naming the path of the malformed field.
+    pub fn from_json_unchecked(text: &str) -> Result<Circuit, NetlistError> {
+        let de = &mut serde_json::Deserializer::from_str(text);
+        serde_path_to_error::deserialize(de).map_err(|e| {
+            let path = e.path().to_string();
+            let inner = e.into_inner();
+            let path = if path == "." || path.is_empty() {
+                format!("line {} column {}", inner.line(), inner.column())
+            } else {
+                path
+            };
+            NetlistError::Json {
+                path,
+                message: inner.to_string(),
+            }
+        })
+    }
+
+    /// Reads and validates a circuit from a JSON file.
+    ///
+    /// # Errors
+    ///
+    /// As [`Circuit::from_json`], plus [`NetlistError::Io`].
+    pub fn from_file(path: impl AsRef<std::path::Path>) -> Result<Circuit, NetlistError> {
+        let p = path.as_ref();
+        let text = std::fs::read_to_string(p).map_err(|source| NetlistError::Io {
+            path: p.display().to_string(),
+            source,
+        })?;
+        Self::from_json(&text)
+    }
+
+    /// The circuit as pretty JSON; reading it back gives an identical circuit.
+    pub fn to_json(&self) -> String {
+        serde_json::to_string_pretty(self).expect("a circuit always serializes")
+    }
+
+    /// Checks every rule and returns all problems at once.
+    ///
+    /// # Errors
+    ///
+    /// [`NetlistError::Invalid`] with one [`Problem`] per broken rule.
+    pub fn validate(&self) -> Result<(), NetlistError> {
+        let problems = crate::validate::problems(self);
+        if problems.is_empty() {
+            Ok(())
+        } else {
+            Err(NetlistError::Invalid(problems))
+        }
+    }
+
+    /// The element with this name.
+    pub fn element(&self, name: &str) -> Option<&Element> {
+        self.elements.iter().find(|e| e.name() == name)
+    }
+
+    /// Every gate signal by name with its shape.
+    pub fn signals(&self) -> Vec<(String, SignalShape)> {
+        self.gates.iter().flat_map(|g| g.signals()).collect()
+    }
+
+    /// Every node name, ground first (as `gnd`), then in order of first use.
+    pub fn nodes(&self) -> Vec<String> {
+        let mut out = vec![GROUND.to_string()];
+        for e in &self.elements {
+            for (_, n) in e.terminals() {
+                let n = if is_ground(n) { GROUND } else { n };
+                if !out.iter().any(|x| x == n) {
+                    out.push(n.to_string());
+                }
+            }
+        }
+        out
+    }
+
+    /// Starts a builder.
+    ///
+    /// # Example
+    ///
+    /// ```
+    /// use fluxstep_netlist::Circuit;
+    /// // An asynchronous buck: 12 V in, 100 kHz, 40 % duty.
+    /// let buck = Circuit::builder()
+    ///     .voltage_source("Vin", "in", "gnd", 12.0)
+    ///     .switch("S1", "in", "sw", "drive")
+    ///     .diode("D1", "gnd", "sw")
+    ///     .inductor("L1", "sw", "out", 22e-6)
+    ///     .capacitor("C1", "out", "gnd", 100e-6)
+    ///     .resistor("Rload", "out", "gnd", 2.0)
+    ///     .pwm("drive", 100e3, 0.4)
+    ///     .build()
+    ///     .unwrap();
+    /// assert_eq!(buck.elements.len(), 6);
+    /// ```
+    pub fn builder() -> CircuitBuilder {
+        CircuitBuilder::default()
+    }
+}
+
+/// Builds a [`Circuit`] element by element; [`CircuitBuilder::build`] validates.
+#[derive(Clone, Debug, Default)]
+pub struct CircuitBuilder {
+    circuit: Circuit,
+}
+
+fn nodes(a: &str, b: &str) -> [String; 2] {
+    [a.to_string(), b.to_string()]
+}
+
+impl CircuitBuilder {
+    /// Adds any element.
+    pub fn element(mut self, e: Element) -> Self {
+        self.circuit.elements.push(e);
+        self
+    }
+
+    /// Adds any gate.
+    pub fn gate(mut self, g: Gate) -> Self {
+        self.circuit.gates.push(g);
+        self
+    }
+
+    /// Sets the description.
+    pub fn description(mut self, text: &str) -> Self {
+        self.circuit.description = text.to_string();
+        self
+    }
+
+    /// Adds a resistor `a`–`b` of `ohms`.
+    pub fn resistor(self, name: &str, a: &str, b: &str, ohms: f64) -> Self {
+        self.element(Element::Resistor(Resistor {
+            name: name.into(),
+            nodes: nodes(a, b),
+            resistance: ohms,
+        }))
+    }
+
+    /// Adds an inductor `a`→`b` of `henries`, starting at zero current.
+    pub fn inductor(self, name: &str, a: &str, b: &str, henries: f64) -> Self {
+        self.element(Element::Inductor(Inductor {
+            name: name.into(),
+            nodes: nodes(a, b),
+            inductance: henries,
+            initial_current: None,
+        }))
+    }
+
+    /// Adds an inductor carrying `amps` (a → b) at t = 0.
+    pub fn inductor_with_current(
+        self,
+        name: &str,
+        a: &str,
+        b: &str,
+        henries: f64,
+        amps: f64,
+    ) -> Self {
+        self.element(Element::Inductor(Inductor {
+            name: name.into(),
+            nodes: nodes(a, b),
+            inductance: henries,
+            initial_current: Some(amps),
+        }))
+    }
+
+    /// Adds a capacitor `a`–`b` of `farads`, starting discharged.
+    pub fn capacitor(self, name: &str, a: &str, b: &str, farads: f64) -> Self {
+        self.element(Element::Capacitor(Capacitor {
+            name: name.into(),
+            nodes: nodes(a, b),
+            capacitance: farads,
+            initial_voltage: None,
+        }))
+    }
+
+    /// Adds a capacitor charged to `volts` (v(a) − v(b)) at t = 0.
+    pub fn capacitor_with_voltage(
+        self,
+        name: &str,
+        a: &str,
+        b: &str,
+        farads: f64,
+        volts: f64,
+    ) -> Self {
+        self.element(Element::Capacitor(Capacitor {
+            name: name.into(),
+            nodes: nodes(a, b),
+            capacitance: farads,
+            initial_voltage: Some(volts),
+        }))
+    }
+
+    /// Adds a constant voltage source, `plus` − `minus` = `volts`.
+    pub fn voltage_source(self, name: &str, plus: &str, minus: &str, volts: f64) -> Self {
+        self.voltage_waveform(name, plus, minus, Waveform::constant(volts))
+    }
+
+    /// Adds a voltage source following `waveform`.
+    pub fn voltage_waveform(self, name: &str, plus: &str, minus: &str, waveform: Waveform) -> Self {
+        self.element(Element::VoltageSource(VoltageSource {
+            name: name.into(),
+            nodes: nodes(plus, minus),
+            waveform,
+        }))
+    }
+
+    /// Adds a current source pushing `waveform` from `from` through itself to `to`.
+    pub fn current_source(self, name: &str, from: &str, to: &str, waveform: Waveform) -> Self {
+        self.element(Element::CurrentSource(CurrentSource {
+            name: name.into(),
+            nodes: nodes(from, to),
+            waveform,
+        }))
+    }
+
+    /// Adds an ideal switch `a`–`b` driven by gate signal `gate`.
+    pub fn switch(self, name: &str, a: &str, b: &str, gate: &str) -> Self {
+        self.element(Element::Switch(Switch {
+            name: name.into(),
+            nodes: nodes(a, b),
+            gate: gate.into(),
+            on_resistance: None,
+            body_diode: None,
+        }))
+    }
+
+    /// Adds a switch with an anti-parallel body diode (a transistor), drain
+    /// `a`, source `b`; the body diode conducts from `b` to `a`.
+    pub fn transistor(
+        self,
+        name: &str,
+        a: &str,
+        b: &str,
+        gate: &str,
+        on_resistance: f64,
+        body: DiodeModel,
+    ) -> Self {
+        self.element(Element::Switch(Switch {
+            name: name.into(),
+            nodes: nodes(a, b),
+            gate: gate.into(),
+            on_resistance: (on_resistance != 0.0).then_some(on_resistance),
+            body_diode: Some(body),
+        }))
+    }
+
+    /// Adds an ideal diode, `anode` → `cathode`.
+    pub fn diode(self, name: &str, anode: &str, cathode: &str) -> Self {
+        self.element(Element::Diode(Diode {
+            name: name.into(),
+            nodes: nodes(anode, cathode),
+            model: DiodeModel::default(),
+        }))
+    }
+
+    /// Adds a diode with a forward voltage and on-resistance.
+    pub fn diode_model(self, name: &str, anode: &str, cathode: &str, model: DiodeModel) -> Self {
+        self.element(Element::Diode(Diode {
+            name: name.into(),
+            nodes: nodes(anode, cathode),
+            model,
+        }))
+    }
+
+    /// Adds fixed-frequency PWM gate `name` (rising at k·T, duty in [0, 1]).
+    pub fn pwm(self, name: &str, frequency: f64, duty: f64) -> Self {
+        self.gate(Gate::Pwm {
+            name: name.into(),
+            frequency,
+            duty,
+            delay: 0.0,
+            start: None,
+            stop: None,
+        })
+    }
+
+    /// Adds a complementary pair `name.high` / `name.low` with dead times.
+    pub fn complementary_pwm(
+        self,
+        name: &str,
+        frequency: f64,
+        duty: f64,
+        dead_time_high: f64,
+        dead_time_low: f64,
+    ) -> Self {
+        self.gate(Gate::ComplementaryPwm {
+            name: name.into(),
+            frequency,
+            duty,
+            delay: 0.0,
+            dead_time_high,
+            dead_time_low,
+            start: None,
+            stop: None,
+        })
+    }
+
+    /// Sets the default run settings.
+    pub fn run(mut self, stop_time: f64, outputs: &[&str]) -> Self {
+        self.circuit.run = Some(RunSettings {
+            stop_time,
+            record_from: None,
+            outputs: outputs.iter().map(|s| s.to_string()).collect(),
+        });
+        self
+    }
+
+    /// Validates and returns the circuit.
+    ///
+    /// # Errors
+    ///
+    /// [`NetlistError::Invalid`] listing every problem.
+    pub fn build(self) -> Result<Circuit, NetlistError> {
+        self.circuit.validate()?;
+        Ok(self.circuit)
+    }
+
+    /// Returns the circuit without validating it (for tests of validation).
+    pub fn build_unchecked(self) -> Circuit {
+        self.circuit
+    }
+}
+
+/// An output that can be recorded: a node voltage or an element's current
+/// or voltage.
+#[derive(Clone, Debug, PartialEq, Eq, Hash)]
+pub enum OutputName {
+    /// Voltage of a node with respect to ground.
+    Node(String),
+    /// Current of an element (for windings and body diodes: `ELEMENT.PART`).
+    Current(String),
+    /// Voltage of an element (for windings and body diodes: `ELEMENT.PART`).
+    Voltage(String),
+}
+
+impl OutputName {
+    /// Parses `NODE`, `ELEMENT.current`, `ELEMENT.voltage`,
+    /// `ELEMENT.PART.current` or `ELEMENT.PART.voltage`.
+    ///
+    /// # Errors
+    ///
+    /// A [`Problem`] naming the field `outputs` when the suffix is unknown.
+    pub fn parse(text: &str) -> Result<OutputName, Problem> {
+        match text.rsplit_once('.') {
+            None if !text.is_empty() => Ok(OutputName::Node(if is_ground(text) { GROUND.into() } else { text.into() })),
+            Some((e, "current")) if !e.is_empty() => Ok(OutputName::Current(e.into())),
+            Some((e, "voltage")) if !e.is_empty() => Ok(OutputName::Voltage(e.into())),
+            _ => Err(Problem {
+                element: None,
+                field: Some("outputs".into()),
+                node: None,
+                message: format!(
+                    "unknown output {text:?}: expected a node name, ELEMENT.current or ELEMENT.voltage"
+                ),
+            }),
+        }
+    }
+}
+
+impl std::fmt::Display for OutputName {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            OutputName::Node(n) => write!(f, "{n}"),
+            OutputName::Current(e) => write!(f, "{e}.current"),
+            OutputName::Voltage(e) => write!(f, "{e}.voltage"),
+        }
+    }
+}

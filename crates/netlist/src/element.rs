@@ -1,0 +1,352 @@
+//! Circuit elements: each has a unique name and named terminals.
+//!
+//! Sign convention (used everywhere in fluxstep): an element's voltage is
+//! v(first terminal) − v(second terminal), and its current flows from the
+//! first terminal through the element to the second.
+
+use schemars::JsonSchema;
+use serde::{Deserialize, Serialize};
+
+use crate::value::{self, SiValue};
+use crate::waveform::Waveform;
+
+/// One element of a circuit, tagged by `kind` in JSON.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(tag = "kind", rename_all = "snake_case")]
+pub enum Element {
+    /// A linear resistor.
+    Resistor(Resistor),
+    /// A linear inductor.
+    Inductor(Inductor),
+    /// A linear capacitor.
+    Capacitor(Capacitor),
+    /// Two or more magnetically coupled windings.
+    CoupledInductors(CoupledInductors),
+    /// An ideal two-winding transformer (no magnetising inductance).
+    IdealTransformer(IdealTransformer),
+    /// An independent voltage source.
+    VoltageSource(VoltageSource),
+    /// An independent current source.
+    CurrentSource(CurrentSource),
+    /// An ideal switch driven by a gate signal.
+    Switch(Switch),
+    /// A diode (ideal, or piecewise linear with forward voltage and on-resistance).
+    Diode(Diode),
+}
+
+/// A linear resistor between two nodes.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Resistor {
+    /// Unique element name.
+    pub name: String,
+    /// Terminals `[a, b]`.
+    pub nodes: [String; 2],
+    /// Resistance in ohms; must be positive.
+    #[serde(deserialize_with = "value::de", serialize_with = "value::ser")]
+    #[schemars(with = "SiValue")]
+    pub resistance: f64,
+}
+
+/// A linear inductor; its current (a → b) is a state of the circuit.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Inductor {
+    /// Unique element name.
+    pub name: String,
+    /// Terminals `[a, b]`.
+    pub nodes: [String; 2],
+    /// Inductance in henries; must be positive.
+    #[serde(deserialize_with = "value::de", serialize_with = "value::ser")]
+    #[schemars(with = "SiValue")]
+    pub inductance: f64,
+    /// Current at t = 0 in amperes, flowing a → b (default 0).
+    #[serde(
+        default,
+        deserialize_with = "value::de_opt",
+        skip_serializing_if = "Option::is_none"
+    )]
+    #[schemars(with = "Option<SiValue>")]
+    pub initial_current: Option<f64>,
+}
+
+/// A linear capacitor; its voltage v(a) − v(b) is a state of the circuit.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Capacitor {
+    /// Unique element name.
+    pub name: String,
+    /// Terminals `[a, b]`.
+    pub nodes: [String; 2],
+    /// Capacitance in farads; must be positive.
+    #[serde(deserialize_with = "value::de", serialize_with = "value::ser")]
+    #[schemars(with = "SiValue")]
+    pub capacitance: f64,
+    /// Voltage v(a) − v(b) at t = 0 in volts (default 0).
+    #[serde(
+        default,
+        deserialize_with = "value::de_opt",
+        skip_serializing_if = "Option::is_none"
+    )]
+    #[schemars(with = "Option<SiValue>")]
+    pub initial_voltage: Option<f64>,
+}
+
+/// One winding of a set of coupled inductors.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Winding {
+    /// Winding name, unique within its element (outputs name it `ELEMENT.WINDING`).
+    pub name: String,
+    /// Terminals `[dotted, undotted]`: current entering the dotted end of
+    /// every winding produces flux in the same direction.
+    pub nodes: [String; 2],
+    /// Self inductance in henries; must be positive.
+    #[serde(deserialize_with = "value::de", serialize_with = "value::ser")]
+    #[schemars(with = "SiValue")]
+    pub inductance: f64,
+    /// Current at t = 0 in amperes, dotted → undotted (default 0).
+    #[serde(
+        default,
+        deserialize_with = "value::de_opt",
+        skip_serializing_if = "Option::is_none"
+    )]
+    #[schemars(with = "Option<SiValue>")]
+    pub initial_current: Option<f64>,
+}
+
+/// Coupling between two windings, given either way.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Coupling {
+    /// The two winding names.
+    pub windings: [String; 2],
+    /// Coupling coefficient k in [-1, 1]: M = k·√(L1·L2). Give this or `mutual`.
+    #[serde(
+        default,
+        deserialize_with = "value::de_opt",
+        skip_serializing_if = "Option::is_none"
+    )]
+    #[schemars(with = "Option<SiValue>")]
+    pub k: Option<f64>,
+    /// Mutual inductance M in henries. Give this or `k`.
+    #[serde(
+        default,
+        deserialize_with = "value::de_opt",
+        skip_serializing_if = "Option::is_none"
+    )]
+    #[schemars(with = "Option<SiValue>")]
+    pub mutual: Option<f64>,
+}
+
+/// Magnetically coupled windings: v = L·di/dt with a full inductance matrix.
+///
+/// Pairs not listed in `couplings` have no mutual inductance. The inductance
+/// matrix must be positive definite (|k| < 1 for two windings); leakage is
+/// what k < 1 leaves.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct CoupledInductors {
+    /// Unique element name.
+    pub name: String,
+    /// Two or more windings.
+    pub windings: Vec<Winding>,
+    /// Pairwise couplings, by coefficient or mutual inductance.
+    #[serde(default)]
+    pub couplings: Vec<Coupling>,
+}
+
+impl CoupledInductors {
+    /// The inductance matrix (henries), row and column order of `windings`.
+    ///
+    /// Unknown winding names in `couplings` are skipped here; validation
+    /// reports them.
+    pub fn inductance_matrix(&self) -> Vec<Vec<f64>> {
+        let n = self.windings.len();
+        let mut m = vec![vec![0.0; n]; n];
+        for (i, w) in self.windings.iter().enumerate() {
+            m[i][i] = w.inductance;
+        }
+        for c in &self.couplings {
+            let pos = |name: &str| self.windings.iter().position(|w| w.name == name);
+            if let (Some(i), Some(j)) = (pos(&c.windings[0]), pos(&c.windings[1])) {
+                let mutual = match (c.k, c.mutual) {
+                    (Some(k), _) => k * (m[i][i] * m[j][j]).sqrt(),
+                    (None, Some(mu)) => mu,
+                    (None, None) => 0.0,
+                };
+                m[i][j] = mutual;
+                m[j][i] = mutual;
+            }
+        }
+        m
+    }
+}
+
+/// An ideal transformer: v_primary = n·v_secondary, i_secondary = −n·i_primary
+/// (with both currents flowing first → second terminal of their winding,
+/// dotted ends first), n = `turns_ratio` = Np/Ns.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct IdealTransformer {
+    /// Unique element name.
+    pub name: String,
+    /// Primary terminals `[dotted, undotted]`.
+    pub primary: [String; 2],
+    /// Secondary terminals `[dotted, undotted]`.
+    pub secondary: [String; 2],
+    /// Turns ratio Np/Ns; must be positive.
+    #[serde(deserialize_with = "value::de", serialize_with = "value::ser")]
+    #[schemars(with = "SiValue")]
+    pub turns_ratio: f64,
+}
+
+/// An independent voltage source: v(plus) − v(minus) = waveform(t).
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct VoltageSource {
+    /// Unique element name.
+    pub name: String,
+    /// Terminals `[plus, minus]`.
+    pub nodes: [String; 2],
+    /// The source voltage over time.
+    pub waveform: Waveform,
+}
+
+/// An independent current source: waveform(t) flows from the first terminal
+/// through the source to the second (so it is pushed out of the second
+/// terminal into the rest of the circuit).
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct CurrentSource {
+    /// Unique element name.
+    pub name: String,
+    /// Terminals `[from, to]`.
+    pub nodes: [String; 2],
+    /// The source current over time.
+    pub waveform: Waveform,
+}
+
+/// A piecewise-linear diode model: blocks when v < Vf, conducts with
+/// v = Vf + Ron·i when i > 0. The defaults (0 V, 0 Ω) give an ideal diode.
+#[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct DiodeModel {
+    /// Forward voltage in volts (default 0); must not be negative.
+    #[serde(
+        default,
+        deserialize_with = "value::de_opt",
+        skip_serializing_if = "Option::is_none"
+    )]
+    #[schemars(with = "Option<SiValue>")]
+    pub forward_voltage: Option<f64>,
+    /// On-resistance in ohms (default 0); must not be negative.
+    #[serde(
+        default,
+        deserialize_with = "value::de_opt",
+        skip_serializing_if = "Option::is_none"
+    )]
+    #[schemars(with = "Option<SiValue>")]
+    pub on_resistance: Option<f64>,
+}
+
+/// An ideal switch: a short (or `on_resistance`) while its gate is on, open
+/// while it is off.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Switch {
+    /// Unique element name.
+    pub name: String,
+    /// Terminals `[a, b]` (for a transistor: drain/collector first).
+    pub nodes: [String; 2],
+    /// Name of the gate signal that drives it.
+    pub gate: String,
+    /// Resistance while on, in ohms (default 0: a short); must not be negative.
+    #[serde(
+        default,
+        deserialize_with = "value::de_opt",
+        skip_serializing_if = "Option::is_none"
+    )]
+    #[schemars(with = "Option<SiValue>")]
+    pub on_resistance: Option<f64>,
+    /// An anti-parallel diode (a transistor's body diode): anode at the
+    /// second terminal, cathode at the first. Its outputs are named
+    /// `SWITCH.body_diode`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub body_diode: Option<DiodeModel>,
+}
+
+/// A diode from anode (first terminal) to cathode (second).
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Diode {
+    /// Unique element name.
+    pub name: String,
+    /// Terminals `[anode, cathode]`.
+    pub nodes: [String; 2],
+    /// Forward voltage and on-resistance (both default to 0: ideal).
+    #[serde(flatten)]
+    pub model: DiodeModel,
+}
+
+impl Element {
+    /// The element's unique name.
+    pub fn name(&self) -> &str {
+        match self {
+            Element::Resistor(e) => &e.name,
+            Element::Inductor(e) => &e.name,
+            Element::Capacitor(e) => &e.name,
+            Element::CoupledInductors(e) => &e.name,
+            Element::IdealTransformer(e) => &e.name,
+            Element::VoltageSource(e) => &e.name,
+            Element::CurrentSource(e) => &e.name,
+            Element::Switch(e) => &e.name,
+            Element::Diode(e) => &e.name,
+        }
+    }
+
+    /// The element kind as written in JSON (`"resistor"`, `"coupled_inductors"`…).
+    pub fn kind_name(&self) -> &'static str {
+        match self {
+            Element::Resistor(_) => "resistor",
+            Element::Inductor(_) => "inductor",
+            Element::Capacitor(_) => "capacitor",
+            Element::CoupledInductors(_) => "coupled_inductors",
+            Element::IdealTransformer(_) => "ideal_transformer",
+            Element::VoltageSource(_) => "voltage_source",
+            Element::CurrentSource(_) => "current_source",
+            Element::Switch(_) => "switch",
+            Element::Diode(_) => "diode",
+        }
+    }
+
+    /// Every terminal as (field name, node name), in order.
+    pub fn terminals(&self) -> Vec<(String, &str)> {
+        fn pair<'a>(field: &str, n: &'a [String; 2]) -> Vec<(String, &'a str)> {
+            vec![
+                (format!("{field}[0]"), n[0].as_str()),
+                (format!("{field}[1]"), n[1].as_str()),
+            ]
+        }
+        match self {
+            Element::Resistor(e) => pair("nodes", &e.nodes),
+            Element::Inductor(e) => pair("nodes", &e.nodes),
+            Element::Capacitor(e) => pair("nodes", &e.nodes),
+            Element::VoltageSource(e) => pair("nodes", &e.nodes),
+            Element::CurrentSource(e) => pair("nodes", &e.nodes),
+            Element::Switch(e) => pair("nodes", &e.nodes),
+            Element::Diode(e) => pair("nodes", &e.nodes),
+            Element::IdealTransformer(e) => {
+                let mut v = pair("primary", &e.primary);
+                v.extend(pair("secondary", &e.secondary));
+                v
+            }
+            Element::CoupledInductors(e) => e
+                .windings
+                .iter()
+                .enumerate()
+                .flat_map(|(i, w)| pair(&format!("windings[{i}].nodes"), &w.nodes))
+                .collect(),
+        }
+    }
+}

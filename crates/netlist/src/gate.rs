@@ -1,0 +1,484 @@
+//! Gate signals that drive switches: fixed-frequency PWM, a complementary
+//! half-bridge pair with dead times, and explicit transition lists.
+//!
+//! Every edge time of a periodic signal is computed as `k·period + phase`
+//! from the cycle number `k` and a phase that is the same `f64` in every
+//! cycle — never by accumulating periods — so edge times do not drift and
+//! the interval between two given edges has the same bits in every cycle.
+
+use schemars::JsonSchema;
+use serde::{Deserialize, Serialize};
+
+use crate::value::{self, SiValue};
+
+/// One (time, on/off) transition of an explicit gate signal.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Transition {
+    /// Time in seconds.
+    #[serde(deserialize_with = "value::de", serialize_with = "value::ser")]
+    #[schemars(with = "SiValue")]
+    pub time: f64,
+    /// State from this time on.
+    pub on: bool,
+}
+
+/// A gate definition, tagged by `kind` in JSON.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(tag = "kind", rename_all = "snake_case", deny_unknown_fields)]
+pub enum Gate {
+    /// Fixed-frequency PWM: on over [k·T + delay, k·T + delay + duty·T).
+    Pwm {
+        /// Signal name that switches refer to.
+        name: String,
+        /// Switching frequency in hertz; must be positive.
+        #[serde(deserialize_with = "value::de", serialize_with = "value::ser")]
+        #[schemars(with = "SiValue")]
+        frequency: f64,
+        /// Duty cycle in [0, 1].
+        #[serde(deserialize_with = "value::de", serialize_with = "value::ser")]
+        #[schemars(with = "SiValue")]
+        duty: f64,
+        /// Delay of the first rising edge in seconds (default 0).
+        #[serde(default, deserialize_with = "value::de", serialize_with = "value::ser")]
+        #[schemars(with = "SiValue")]
+        delay: f64,
+        /// The signal is held off before this time (optional).
+        #[serde(
+            default,
+            deserialize_with = "value::de_opt",
+            skip_serializing_if = "Option::is_none"
+        )]
+        #[schemars(with = "Option<SiValue>")]
+        start: Option<f64>,
+        /// The signal is held off from this time on (optional).
+        #[serde(
+            default,
+            deserialize_with = "value::de_opt",
+            skip_serializing_if = "Option::is_none"
+        )]
+        #[schemars(with = "Option<SiValue>")]
+        stop: Option<f64>,
+    },
+    /// A complementary pair for a half-bridge, signals `NAME.high` and
+    /// `NAME.low`. The reference PWM (frequency, duty, delay) rises at
+    /// k·T + delay and falls at k·T + delay + duty·T. The high side turns on
+    /// `dead_time_high` after the reference rises and off when it falls; the
+    /// low side turns on `dead_time_low` after the reference falls and off
+    /// when the next period begins. Each dead time must fit in its part of
+    /// the period.
+    ComplementaryPwm {
+        /// Pair name; switches refer to `NAME.high` and `NAME.low`.
+        name: String,
+        /// Switching frequency in hertz; must be positive.
+        #[serde(deserialize_with = "value::de", serialize_with = "value::ser")]
+        #[schemars(with = "SiValue")]
+        frequency: f64,
+        /// Duty cycle of the reference PWM in [0, 1].
+        #[serde(deserialize_with = "value::de", serialize_with = "value::ser")]
+        #[schemars(with = "SiValue")]
+        duty: f64,
+        /// Delay of the reference rising edge in seconds (default 0).
+        #[serde(default, deserialize_with = "value::de", serialize_with = "value::ser")]
+        #[schemars(with = "SiValue")]
+        delay: f64,
+        /// Dead time before each high-side rising edge, in seconds.
+        #[serde(deserialize_with = "value::de", serialize_with = "value::ser")]
+        #[schemars(with = "SiValue")]
+        dead_time_high: f64,
+        /// Dead time before each low-side rising edge, in seconds.
+        #[serde(deserialize_with = "value::de", serialize_with = "value::ser")]
+        #[schemars(with = "SiValue")]
+        dead_time_low: f64,
+        /// Both signals are held off before this time (optional).
+        #[serde(
+            default,
+            deserialize_with = "value::de_opt",
+            skip_serializing_if = "Option::is_none"
+        )]
+        #[schemars(with = "Option<SiValue>")]
+        start: Option<f64>,
+        /// Both signals are held off from this time on (optional).
+        #[serde(
+            default,
+            deserialize_with = "value::de_opt",
+            skip_serializing_if = "Option::is_none"
+        )]
+        #[schemars(with = "Option<SiValue>")]
+        stop: Option<f64>,
+    },
+    /// An explicit list of transitions (times strictly increasing). With
+    /// `period`, the list describes [0, period) and repeats; all times must
+    /// then lie in [0, period).
+    Transitions {
+        /// Signal name that switches refer to.
+        name: String,
+        /// State before the first transition (default off).
+        #[serde(default)]
+        initial: bool,
+        /// The transitions.
+        transitions: Vec<Transition>,
+        /// Repeat period in seconds (optional).
+        #[serde(
+            default,
+            deserialize_with = "value::de_opt",
+            skip_serializing_if = "Option::is_none"
+        )]
+        #[schemars(with = "Option<SiValue>")]
+        period: Option<f64>,
+    },
+}
+
+/// A gate edge at an exact time.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Edge {
+    /// Absolute time (s), equal to `cycle as f64 * period + phase` for a
+    /// periodic edge.
+    pub time: f64,
+    /// New state from this time on.
+    pub on: bool,
+    /// Cycle number `k` of a periodic edge (0 for an aperiodic one).
+    pub cycle: i64,
+    /// Phase within the cycle (s); the same bits for the same edge of every cycle.
+    pub phase: f64,
+    /// The signal's period, if it is periodic.
+    pub period: Option<f64>,
+}
+
+/// The shape of one gate signal, independent of how it was described.
+#[derive(Clone, Debug, PartialEq)]
+pub struct SignalShape {
+    /// Repeat period, if any.
+    pub period: Option<f64>,
+    /// State before the first transition (aperiodic) or when there are none.
+    pub initial: bool,
+    /// Transitions as (phase, on), phases increasing. For a periodic shape the
+    /// transitions of cycle k happen at `k·period + phase`.
+    pub transitions: Vec<(f64, bool)>,
+    /// Held off before this time.
+    pub start: Option<f64>,
+    /// Held off from this time on.
+    pub stop: Option<f64>,
+}
+
+impl Gate {
+    /// The gate's own name (a complementary pair's signals add `.high`/`.low`).
+    pub fn name(&self) -> &str {
+        match self {
+            Gate::Pwm { name, .. }
+            | Gate::ComplementaryPwm { name, .. }
+            | Gate::Transitions { name, .. } => name,
+        }
+    }
+
+    /// Names of the signals this gate provides, with their shapes.
+    pub fn signals(&self) -> Vec<(String, SignalShape)> {
+        match self {
+            Gate::Pwm {
+                name,
+                frequency,
+                duty,
+                delay,
+                start,
+                stop,
+            } => {
+                let t = 1.0 / frequency;
+                let d0 = delay.rem_euclid(t);
+                let transitions = if *duty <= 0.0 || *duty >= 1.0 {
+                    vec![]
+                } else {
+                    vec![(d0, true), (d0 + duty * t, false)]
+                };
+                vec![(
+                    name.clone(),
+                    SignalShape {
+                        period: Some(t),
+                        initial: *duty >= 1.0,
+                        transitions,
+                        start: *start,
+                        stop: *stop,
+                    },
+                )]
+            }
+            Gate::ComplementaryPwm {
+                name,
+                frequency,
+                duty,
+                delay,
+                dead_time_high,
+                dead_time_low,
+                start,
+                stop,
+            } => {
+                let t = 1.0 / frequency;
+                let d0 = delay.rem_euclid(t);
+                let fall = d0 + duty * t;
+                let hi_on = d0 + dead_time_high;
+                let lo_on = fall + dead_time_low;
+                let hi = if hi_on < fall {
+                    vec![(hi_on, true), (fall, false)]
+                } else {
+                    vec![]
+                };
+                let lo = if lo_on < d0 + t {
+                    vec![(lo_on, true), (d0 + t, false)]
+                } else {
+                    vec![]
+                };
+                let shape = |transitions| SignalShape {
+                    period: Some(t),
+                    initial: false,
+                    transitions,
+                    start: *start,
+                    stop: *stop,
+                };
+                vec![
+                    (format!("{name}.high"), shape(hi)),
+                    (format!("{name}.low"), shape(lo)),
+                ]
+            }
+            Gate::Transitions {
+                name,
+                initial,
+                transitions,
+                period,
+            } => {
+                let tr: Vec<(f64, bool)> = transitions.iter().map(|t| (t.time, t.on)).collect();
+                let initial = if period.is_some() {
+                    tr.last().map(|x| x.1).unwrap_or(*initial)
+                } else {
+                    *initial
+                };
+                vec![(
+                    name.clone(),
+                    SignalShape {
+                        period: *period,
+                        initial,
+                        transitions: tr,
+                        start: None,
+                        stop: None,
+                    },
+                )]
+            }
+        }
+    }
+}
+
+impl SignalShape {
+    /// Raw (unwindowed) state just after time `t`.
+    fn raw_at(&self, t: f64, strictly_before: bool) -> bool {
+        let hit = |x: f64| if strictly_before { x < t } else { x <= t };
+        match self.period {
+            Some(p) if !self.transitions.is_empty() => {
+                let k = (t / p).floor() as i64;
+                // Look at this cycle and the two before; phases lie in [0, 2p).
+                let mut best: Option<(f64, bool)> = None;
+                for c in [k - 2, k - 1, k, k + 1] {
+                    for &(ph, on) in &self.transitions {
+                        let time = c as f64 * p + ph;
+                        if hit(time) && best.is_none_or(|(b, _)| time >= b) {
+                            best = Some((time, on));
+                        }
+                    }
+                }
+                best.map(|b| b.1)
+                    .unwrap_or(self.transitions.last().map(|x| x.1).unwrap_or(self.initial))
+            }
+            _ => self
+                .transitions
+                .iter()
+                .rev()
+                .find(|(time, _)| hit(*time))
+                .map(|x| x.1)
+                .unwrap_or(self.initial),
+        }
+    }
+
+    fn in_window(&self, t: f64, strictly_before: bool) -> bool {
+        // Every signal is off before t = 0, where a run starts.
+        let s = self.start.unwrap_or(0.0).max(0.0);
+        let after_start = if strictly_before { t > s } else { t >= s };
+        let before_stop = match self.stop {
+            Some(s) => {
+                if strictly_before {
+                    t <= s
+                } else {
+                    t < s
+                }
+            }
+            None => true,
+        };
+        after_start && before_stop
+    }
+
+    /// State at time `t` (a signal takes its new value at the edge instant).
+    pub fn is_on(&self, t: f64) -> bool {
+        self.in_window(t, false) && self.raw_at(t, false)
+    }
+
+    /// State just before time `t`.
+    pub fn was_on_before(&self, t: f64) -> bool {
+        self.in_window(t, true) && self.raw_at(t, true)
+    }
+
+    /// Every edge with `t0 <= time < t1`, in time order.
+    pub fn edges(&self, t0: f64, t1: f64) -> Vec<Edge> {
+        let mut cand: Vec<Edge> = Vec::new();
+        let plain = |time: f64| Edge {
+            time,
+            on: false,
+            cycle: 0,
+            phase: time,
+            period: None,
+        };
+        match self.period {
+            Some(p) if !self.transitions.is_empty() => {
+                let k0 = (t0 / p).floor() as i64 - 2;
+                let k1 = (t1 / p).ceil() as i64 + 1;
+                for k in k0..=k1 {
+                    for &(ph, _) in &self.transitions {
+                        let time = k as f64 * p + ph;
+                        if time >= t0 && time < t1 {
+                            cand.push(Edge {
+                                time,
+                                on: false,
+                                cycle: k,
+                                phase: ph,
+                                period: Some(p),
+                            });
+                        }
+                    }
+                }
+            }
+            _ => {
+                for &(time, _) in &self.transitions {
+                    if time >= t0 && time < t1 {
+                        cand.push(plain(time));
+                    }
+                }
+            }
+        }
+        for w in [Some(self.start.unwrap_or(0.0).max(0.0)), self.stop]
+            .into_iter()
+            .flatten()
+        {
+            if w >= t0 && w < t1 {
+                cand.push(plain(w));
+            }
+        }
+        cand.sort_by(|a, b| {
+            a.time
+                .total_cmp(&b.time)
+                .then(b.period.is_some().cmp(&a.period.is_some()))
+        });
+        cand.dedup_by(|b, a| a.time == b.time);
+        cand.into_iter()
+            .filter_map(|mut e| {
+                let after = self.is_on(e.time);
+                (after != self.was_on_before(e.time)).then(|| {
+                    e.on = after;
+                    e
+                })
+            })
+            .collect()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn pwm(duty: f64) -> Gate {
+        Gate::Pwm {
+            name: "g".into(),
+            frequency: 100e3,
+            duty,
+            delay: 0.0,
+            start: None,
+            stop: None,
+        }
+    }
+
+    #[test]
+    fn pwm_edges_are_k_times_period_plus_phase() {
+        let (_, s) = pwm(0.25).signals().remove(0);
+        let e = s.edges(0.0, 30e-6);
+        assert_eq!(e.len(), 6);
+        assert!(e[0].on && !e[1].on);
+        assert_eq!(e[1].time, 0.25 * 10e-6);
+        assert_eq!(e[4].time, 2.0 * 10e-6);
+        // Same phase bits every cycle.
+        assert_eq!(e[3].phase.to_bits(), e[1].phase.to_bits());
+        assert!(s.is_on(10e-6) && !s.was_on_before(10e-6));
+    }
+
+    #[test]
+    fn complementary_pair_has_dead_times() {
+        let g = Gate::ComplementaryPwm {
+            name: "hb".into(),
+            frequency: 100e3,
+            duty: 0.5,
+            delay: 0.0,
+            dead_time_high: 100e-9,
+            dead_time_low: 50e-9,
+            start: None,
+            stop: None,
+        };
+        let s = g.signals();
+        assert_eq!(s[0].0, "hb.high");
+        let hi = s[0].1.edges(0.0, 10e-6);
+        let lo = s[1].1.edges(0.0, 10e-6);
+        assert_eq!(hi[0].time, 100e-9);
+        assert_eq!(hi[1].time, 5e-6);
+        assert_eq!(lo[0].time, 5e-6 + 50e-9);
+        assert!(!lo[0].on || lo[0].time > hi[1].time);
+    }
+
+    #[test]
+    fn start_and_stop_window() {
+        let g = Gate::Pwm {
+            name: "g".into(),
+            frequency: 1.0,
+            duty: 0.5,
+            delay: 0.0,
+            start: Some(0.25),
+            stop: Some(2.25),
+        };
+        let (_, s) = g.signals().remove(0);
+        let e: Vec<(f64, bool)> = s.edges(0.0, 5.0).iter().map(|e| (e.time, e.on)).collect();
+        assert_eq!(
+            e,
+            vec![
+                (0.25, true),
+                (0.5, false),
+                (1.0, true),
+                (1.5, false),
+                (2.0, true),
+                (2.25, false)
+            ]
+        );
+    }
+
+    #[test]
+    fn explicit_transitions_repeat() {
+        let g = Gate::Transitions {
+            name: "t".into(),
+            initial: false,
+            transitions: vec![
+                Transition {
+                    time: 0.1,
+                    on: true,
+                },
+                Transition {
+                    time: 0.3,
+                    on: false,
+                },
+            ],
+            period: Some(1.0),
+        };
+        let (_, s) = g.signals().remove(0);
+        assert!(s.is_on(2.2));
+        assert!(!s.is_on(2.5));
+        assert_eq!(s.edges(0.0, 2.0).len(), 4);
+    }
+}
