@@ -93,15 +93,13 @@ impl Circuit {
         serde_path_to_error::deserialize(de).map_err(|e| {
             let path = e.path().to_string();
             let inner = e.into_inner();
+            let message = inner.to_string();
             let path = if path == "." || path.is_empty() {
                 format!("line {} column {}", inner.line(), inner.column())
             } else {
-                path
+                narrow_path(text, path, &message)
             };
-            NetlistError::Json {
-                path,
-                message: inner.to_string(),
-            }
+            NetlistError::Json { path, message }
         })
     }
 
@@ -184,6 +182,144 @@ impl Circuit {
     pub fn builder() -> CircuitBuilder {
         CircuitBuilder::default()
     }
+}
+
+/// One step of a JSON error path: a member name or a list index.
+#[derive(Clone, Debug, PartialEq)]
+enum Step {
+    Key(String),
+    Index(usize),
+}
+
+/// Reads a path as `serde_path_to_error` writes it (`elements[2].waveform`).
+fn parse_path(path: &str) -> Option<Vec<Step>> {
+    let mut steps = Vec::new();
+    for part in path.split('.') {
+        let (key, mut rest) = part.split_at(part.find('[').unwrap_or(part.len()));
+        if !key.is_empty() {
+            steps.push(Step::Key(key.to_string()));
+        }
+        while let Some(r) = rest.strip_prefix('[') {
+            let end = r.find(']')?;
+            steps.push(Step::Index(r[..end].parse().ok()?));
+            rest = &r[end + 1..];
+        }
+        if !rest.is_empty() {
+            return None;
+        }
+    }
+    Some(steps)
+}
+
+fn value_at<'v>(v: &'v mut serde_json::Value, steps: &[Step]) -> Option<&'v mut serde_json::Value> {
+    steps.iter().try_fold(v, |v, s| match s {
+        Step::Key(k) => v.get_mut(k.as_str()),
+        Step::Index(i) => v.get_mut(*i),
+    })
+}
+
+/// Narrows the path of a JSON error below an internally tagged object.
+///
+/// serde buffers an element, waveform or gate (each tagged by `"kind"`)
+/// before it reads the fields, so `serde_path_to_error` can name only the
+/// object (`elements[2]`), not the field (`elements[2].inductance`). The
+/// field is found by reproducing the same error on reduced copies of the
+/// document: the object cut down to one member (plus `kind`), a list cut
+/// down to one item. Narrowing stops where the emptied object fails the
+/// same way (a missing field is the object's own fault) or no member
+/// reproduces the error. A flattened member (a diode's model) is found by
+/// removing members instead. This runs only after a failure, so good input
+/// pays nothing for it.
+fn narrow_path(text: &str, path: String, message: &str) -> String {
+    use serde_json::Value;
+
+    let error = |doc: &Value| Circuit::deserialize(doc).err().map(|e| e.to_string());
+    let (Ok(mut doc), Some(mut shown)) = (serde_json::from_str::<Value>(text), parse_path(&path))
+    else {
+        return path;
+    };
+    // The document read as a value must fail exactly as the text did (the
+    // text's message adds "at line L column C"), or the search would chase
+    // a different error.
+    let Some(baseline) = error(&doc).filter(|b| message.starts_with(b.as_str())) else {
+        return path;
+    };
+    // Where the object is in the reduced document (list indices become 0).
+    let mut nav = shown.clone();
+    // A copy of `doc` with the value at `nav` reduced to `keep` alone.
+    let reduced = |doc: &Value, nav: &[Step], keep: Option<&Step>| {
+        let mut trial = doc.clone();
+        match value_at(&mut trial, nav) {
+            Some(Value::Object(m)) => {
+                m.retain(|k, _| k == "kind" || Some(&Step::Key(k.clone())) == keep)
+            }
+            Some(Value::Array(items)) => {
+                *items = match keep {
+                    Some(Step::Index(i)) => vec![items[*i].clone()],
+                    _ => Vec::new(),
+                }
+            }
+            _ => {}
+        }
+        trial
+    };
+    loop {
+        let candidates: Vec<Step> = match value_at(&mut doc, &nav) {
+            Some(Value::Object(m)) => m
+                .keys()
+                .filter(|k| *k != "kind")
+                .map(|k| Step::Key(k.clone()))
+                .collect(),
+            // A wrong length is the list's own fault, not an item's.
+            Some(Value::Array(items)) if !baseline.starts_with("invalid length") => {
+                (0..items.len()).map(Step::Index).collect()
+            }
+            _ => break,
+        };
+        if error(&reduced(&doc, &nav, None)).as_ref() == Some(&baseline) {
+            break;
+        }
+        let found = candidates.iter().find_map(|step| {
+            let trial = reduced(&doc, &nav, Some(step));
+            (error(&trial).as_ref() == Some(&baseline)).then(|| (step.clone(), trial))
+        });
+        if let Some((step, trial)) = found {
+            doc = trial;
+            shown.push(step.clone());
+            nav.push(match step {
+                Step::Index(_) => Step::Index(0),
+                key => key,
+            });
+            continue;
+        }
+        // Flattened members are read after the others, so cutting the
+        // object down reports a missing field first; removing the culprit
+        // instead makes the error go away (or become another one).
+        let removed = candidates.iter().find(|step| {
+            let Step::Key(k) = step else { return false };
+            let mut trial = doc.clone();
+            if let Some(Value::Object(m)) = value_at(&mut trial, &nav) {
+                m.remove(k.as_str());
+            }
+            let e = error(&trial);
+            e.as_ref() != Some(&baseline) && e != Some(format!("missing field `{k}`"))
+        });
+        if let Some(step) = removed {
+            shown.push(step.clone());
+        }
+        break;
+    }
+    shown.iter().fold(String::new(), |mut out, s| {
+        match s {
+            Step::Key(k) if out.is_empty() => out.push_str(k),
+            Step::Key(k) => {
+                out.push('.');
+                out.push_str(k);
+            }
+            Step::Index(i) => out.push_str(&format!("[{i}]")),
+        }
+        out
+    })
 }
 
 /// Builds a [`Circuit`] element by element; [`CircuitBuilder::build`] validates.

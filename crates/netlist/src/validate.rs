@@ -1,10 +1,1153 @@
 //! Circuit rules: every problem is collected, none stops the search.
+//!
+//! The checks run in a fixed order (names, values, gates, gate references,
+//! topology, run settings) so the list of problems is deterministic and
+//! reads in the order of the file. Each [`Problem`] names the element (or
+//! gate) by its name — or by its position, `elements[3]`, when the name
+//! itself is unusable — the field as written in JSON, and the node where a
+//! node is involved.
+//!
+//! # Topology
+//!
+//! The element graph has the nodes as vertices and, as edges, every pair of
+//! terminals that an element joins electrically: the two terminals of a
+//! two-terminal element, each winding of a set of coupled inductors, and
+//! the primary and the secondary of an ideal transformer **separately**.
+//! Magnetic coupling carries no direct current and fixes no potential
+//! between windings, so a winding's side of the circuit with no galvanic
+//! path to ground has undetermined node voltages (its nodal equations are
+//! singular). Each side of a transformer or of coupled inductors therefore
+//! needs its own path to ground. To model an isolated secondary, tie its
+//! return to `gnd` directly (the usual choice in simulation: with a single
+//! return point no current flows through the tie) or through a large
+//! resistor.
+//!
+//! On that graph:
+//!
+//! - a node reached by only one terminal is dangling;
+//! - every connected component must contain ground;
+//! - voltage sources alone must not close a loop (union-find over the
+//!   voltage-source edges in element order: the source that closes a cycle
+//!   is named, with the sources already joining its nodes);
+//! - current sources alone must not form a cut: in the graph without the
+//!   current-source edges, a component without ground that current sources
+//!   join to ground is a set of nodes whose voltages no element fixes.
+//!
+//! Loops of capacitors and voltage sources, and cuts of inductors and
+//! current sources, are allowed: the solver reduces them (see DESIGN.md).
 
-use crate::circuit::Circuit;
+use std::collections::{HashMap, HashSet, VecDeque};
+
+use crate::circuit::{is_ground, Circuit, OutputName, GROUND};
+use crate::element::*;
 use crate::error::Problem;
+use crate::gate::Gate;
+use crate::waveform::Waveform;
 
 /// Every rule the circuit breaks, each naming its element and field.
-pub fn problems(_circuit: &Circuit) -> Vec<Problem> {
-    // Filled in by the validation work of issue 2 (in progress).
+pub fn problems(circuit: &Circuit) -> Vec<Problem> {
+    let mut c = Checker {
+        circuit,
+        labels: circuit
+            .elements
+            .iter()
+            .enumerate()
+            .map(|(i, e)| label(e.name(), "elements", i))
+            .collect(),
+        out: Vec::new(),
+    };
+    c.element_names();
+    c.node_names();
+    for i in 0..circuit.elements.len() {
+        c.element_values(i);
+    }
+    c.gates();
+    c.gate_references();
+    c.topology();
+    c.run_settings();
+    c.out
+}
+
+/// How an element is named in problems: its name, or its position when the
+/// name is empty.
+fn label(name: &str, list: &str, index: usize) -> String {
+    if name.is_empty() {
+        format!("{list}[{index}]")
+    } else {
+        name.to_string()
+    }
+}
+
+/// Why a name (element, gate, winding or node) cannot be used, if it cannot.
+fn name_rule(name: &str) -> Option<&'static str> {
+    if name.is_empty() {
+        Some("is empty")
+    } else if name.contains('.') {
+        // Outputs and gate signals use '.' to name a part: `L1.current`,
+        // `X1.primary.current`, `hb.high`.
+        Some("must not contain '.'")
+    } else if name.chars().any(char::is_whitespace) {
+        Some("must not contain whitespace")
+    } else {
+        None
+    }
+}
+
+/// A value as it appears in messages: plain for everyday magnitudes,
+/// scientific otherwise (`1e-5` reads better than `0.00001`).
+fn num(v: f64) -> String {
+    let a = v.abs();
+    if v == 0.0 || !v.is_finite() || (1e-3..1e6).contains(&a) {
+        format!("{v}")
+    } else {
+        format!("{v:e}")
+    }
+}
+
+/// The node name every other check uses: `0` becomes `gnd`.
+fn canonical(node: &str) -> &str {
+    if is_ground(node) {
+        GROUND
+    } else {
+        node
+    }
+}
+
+fn quoted(names: &[&str]) -> String {
+    names
+        .iter()
+        .map(|n| format!("'{n}'"))
+        .collect::<Vec<_>>()
+        .join(", ")
+}
+
+/// Whether a symmetric matrix is positive definite, by Cholesky
+/// factorisation.
+///
+/// A pivot below 1e-12 of its diagonal entry counts as zero: it is rounding
+/// noise (k = 1 exactly leaves a pivot of a few ulps), and a matrix that
+/// close to singular would make the solver's state equations meaningless.
+fn positive_definite(m: &[Vec<f64>]) -> bool {
+    let n = m.len();
+    let mut l = vec![vec![0.0; n]; n];
+    for j in 0..n {
+        let d = m[j][j] - (0..j).map(|k| l[j][k] * l[j][k]).sum::<f64>();
+        // Written as a negated `>` so that NaN fails too.
+        if !(d > 1e-12 * m[j][j]) {
+            return false;
+        }
+        let d = d.sqrt();
+        l[j][j] = d;
+        for i in j + 1..n {
+            l[i][j] = (m[i][j] - (0..j).map(|k| l[i][k] * l[j][k]).sum::<f64>()) / d;
+        }
+    }
+    true
+}
+
+/// Union-find over node indices (path halving, union by index so that the
+/// result does not depend on hashing).
+struct Sets(Vec<usize>);
+
+impl Sets {
+    fn new(n: usize) -> Self {
+        Sets((0..n).collect())
+    }
+
+    fn find(&mut self, mut x: usize) -> usize {
+        while self.0[x] != x {
+            self.0[x] = self.0[self.0[x]];
+            x = self.0[x];
+        }
+        x
+    }
+
+    /// Joins the sets of `a` and `b`; false if they were already one.
+    fn union(&mut self, a: usize, b: usize) -> bool {
+        let (ra, rb) = (self.find(a), self.find(b));
+        if ra == rb {
+            return false;
+        }
+        let (lo, hi) = if ra < rb { (ra, rb) } else { (rb, ra) };
+        self.0[hi] = lo;
+        true
+    }
+}
+
+/// The terminal pairs an element joins electrically, as (field, how
+/// messages call it, the two nodes, whether it is a magnetic winding).
+fn pairs<'c>(e: &'c Element, label: &str) -> Vec<(String, String, &'c [String; 2], bool)> {
+    match e {
+        Element::IdealTransformer(t) => vec![
+            ("primary".into(), format!("{label}.primary"), &t.primary, true),
+            ("secondary".into(), format!("{label}.secondary"), &t.secondary, true),
+        ],
+        Element::CoupledInductors(c) => c
+            .windings
+            .iter()
+            .enumerate()
+            .map(|(k, w)| {
+                (
+                    format!("windings[{k}].nodes"),
+                    format!("{label}.{}", w.name),
+                    &w.nodes,
+                    true,
+                )
+            })
+            .collect(),
+        Element::Resistor(Resistor { nodes, .. })
+        | Element::Inductor(Inductor { nodes, .. })
+        | Element::Capacitor(Capacitor { nodes, .. })
+        | Element::VoltageSource(VoltageSource { nodes, .. })
+        | Element::CurrentSource(CurrentSource { nodes, .. })
+        | Element::Switch(Switch { nodes, .. })
+        | Element::Diode(Diode { nodes, .. }) => {
+            vec![("nodes".into(), label.to_string(), nodes, false)]
+        }
+    }
+}
+
+/// Node names numbered in order of first use, ground under its canonical name.
+#[derive(Default)]
+struct NodeIndex<'c> {
+    index: HashMap<&'c str, usize>,
+    names: Vec<&'c str>,
+}
+
+impl<'c> NodeIndex<'c> {
+    fn get(&mut self, node: &'c str) -> usize {
+        let node = canonical(node);
+        if let Some(&i) = self.index.get(node) {
+            return i;
+        }
+        self.names.push(node);
+        self.index.insert(node, self.names.len() - 1);
+        self.names.len() - 1
+    }
+}
+
+/// An electrical connection made by an element between two nodes.
+struct Branch {
+    element: usize,
+    /// The field that holds the two terminals: `nodes`, `primary`,
+    /// `secondary` or `windings[i].nodes`.
+    field: String,
+    /// What messages call this branch: the element, or `X1.primary`.
+    part: String,
+    a: usize,
+    b: usize,
+    /// A transformer side or a coupled winding: magnetically linked to
+    /// other branches but not galvanically.
+    magnetic: bool,
+}
+
+struct Checker<'a> {
+    circuit: &'a Circuit,
+    labels: Vec<String>,
+    out: Vec<Problem>,
+}
+
+impl Checker<'_> {
+    fn field(&mut self, element: &str, field: &str, message: String) {
+        self.out.push(Problem::field(element, field, message));
+    }
+
+    /// Reports a non-finite value; true if the value is finite.
+    fn finite(&mut self, element: &str, field: &str, v: f64) -> bool {
+        if v.is_finite() {
+            true
+        } else {
+            self.field(element, field, format!("must be a finite number, got {v}"));
+            false
+        }
+    }
+
+    /// Reports a value that is not finite and positive; true if it is.
+    fn positive(&mut self, element: &str, field: &str, v: f64) -> bool {
+        if !self.finite(element, field, v) {
+            return false;
+        }
+        if v <= 0.0 {
+            self.field(element, field, format!("must be positive, got {}", num(v)));
+            return false;
+        }
+        true
+    }
+
+    /// Reports a value that is not finite or is negative; true if it is fine.
+    fn non_negative(&mut self, element: &str, field: &str, v: f64) -> bool {
+        if !self.finite(element, field, v) {
+            return false;
+        }
+        if v < 0.0 {
+            self.field(element, field, format!("must not be negative, got {}", num(v)));
+            return false;
+        }
+        true
+    }
+
+    fn optional_finite(&mut self, element: &str, field: &str, v: Option<f64>) {
+        if let Some(v) = v {
+            self.finite(element, field, v);
+        }
+    }
+
+    fn optional_non_negative(&mut self, element: &str, field: &str, v: Option<f64>) {
+        if let Some(v) = v {
+            self.non_negative(element, field, v);
+        }
+    }
+
+    // ----- names -----------------------------------------------------------
+
+    fn element_names(&mut self) {
+        let mut first: HashMap<&str, usize> = HashMap::new();
+        for (i, e) in self.circuit.elements.iter().enumerate() {
+            let name = e.name();
+            if let Some(why) = name_rule(name) {
+                let label = self.labels[i].clone();
+                self.field(&label, "name", format!("element name {name:?} {why}"));
+            }
+            if name.is_empty() {
+                continue;
+            }
+            match first.get(name) {
+                Some(&j) => self.field(
+                    name,
+                    "name",
+                    format!(
+                        "duplicate element name '{name}': elements[{j}] and elements[{i}] both use it"
+                    ),
+                ),
+                None => {
+                    first.insert(name, i);
+                }
+            }
+            if let Element::CoupledInductors(c) = e {
+                let mut seen: HashMap<&str, usize> = HashMap::new();
+                for (k, w) in c.windings.iter().enumerate() {
+                    let field = format!("windings[{k}].name");
+                    if let Some(why) = name_rule(&w.name) {
+                        self.field(name, &field, format!("winding name {:?} {why}", w.name));
+                    } else if let Some(&j) = seen.get(w.name.as_str()) {
+                        self.field(
+                            name,
+                            &field,
+                            format!(
+                                "duplicate winding name '{}': windings[{j}] and windings[{k}] both use it",
+                                w.name
+                            ),
+                        );
+                    } else {
+                        seen.insert(&w.name, k);
+                    }
+                }
+            }
+        }
+    }
+
+    /// Node names follow the element-name rules ('.' would make an output
+    /// such as `a.b` ambiguous); each bad name is reported once, where it is
+    /// first used.
+    fn node_names(&mut self) {
+        let mut reported: HashSet<&str> = HashSet::new();
+        for (i, e) in self.circuit.elements.iter().enumerate() {
+            for (field, node) in e.terminals() {
+                if let Some(why) = name_rule(node) {
+                    if reported.insert(node) {
+                        let p = Problem::field(
+                            &self.labels[i],
+                            &field,
+                            format!("node name {node:?} {why}"),
+                        )
+                        .at_node(node);
+                        self.out.push(p);
+                    }
+                }
+            }
+        }
+    }
+
+    // ----- values ----------------------------------------------------------
+
+    fn element_values(&mut self, i: usize) {
+        let label = self.labels[i].clone();
+        let l = label.as_str();
+        match &self.circuit.elements[i] {
+            Element::Resistor(r) => {
+                self.positive(l, "resistance", r.resistance);
+            }
+            Element::Inductor(x) => {
+                self.positive(l, "inductance", x.inductance);
+                self.optional_finite(l, "initial_current", x.initial_current);
+            }
+            Element::Capacitor(x) => {
+                self.positive(l, "capacitance", x.capacitance);
+                self.optional_finite(l, "initial_voltage", x.initial_voltage);
+            }
+            Element::CoupledInductors(x) => self.coupled(l, x),
+            Element::IdealTransformer(x) => {
+                self.positive(l, "turns_ratio", x.turns_ratio);
+            }
+            Element::VoltageSource(x) => self.waveform(l, &x.waveform),
+            Element::CurrentSource(x) => self.waveform(l, &x.waveform),
+            Element::Switch(x) => {
+                self.optional_non_negative(l, "on_resistance", x.on_resistance);
+                if let Some(d) = &x.body_diode {
+                    self.optional_non_negative(
+                        l,
+                        "body_diode.forward_voltage",
+                        d.forward_voltage,
+                    );
+                    self.optional_non_negative(l, "body_diode.on_resistance", d.on_resistance);
+                }
+            }
+            Element::Diode(x) => {
+                self.optional_non_negative(l, "forward_voltage", x.model.forward_voltage);
+                self.optional_non_negative(l, "on_resistance", x.model.on_resistance);
+            }
+        }
+    }
+
+    fn coupled(&mut self, l: &str, x: &CoupledInductors) {
+        let mut ok = true;
+        if x.windings.len() < 2 {
+            self.field(
+                l,
+                "windings",
+                format!(
+                    "coupled inductors need at least two windings, got {} (use an inductor for one)",
+                    x.windings.len()
+                ),
+            );
+            ok = false;
+        }
+        for (k, w) in x.windings.iter().enumerate() {
+            ok &= self.positive(l, &format!("windings[{k}].inductance"), w.inductance);
+            self.optional_finite(l, &format!("windings[{k}].initial_current"), w.initial_current);
+        }
+        let names: Vec<&str> = x.windings.iter().map(|w| w.name.as_str()).collect();
+        let mut pairs: HashMap<(usize, usize), usize> = HashMap::new();
+        for (j, c) in x.couplings.iter().enumerate() {
+            let f = format!("couplings[{j}]");
+            let mut idx = [None, None];
+            for (m, wname) in c.windings.iter().enumerate() {
+                idx[m] = names.iter().position(|n| n == wname);
+                if idx[m].is_none() {
+                    self.field(
+                        l,
+                        &format!("{f}.windings[{m}]"),
+                        format!("unknown winding '{wname}' (windings: {})", quoted(&names)),
+                    );
+                    ok = false;
+                }
+            }
+            if let [Some(a), Some(b)] = idx {
+                if a == b {
+                    self.field(
+                        l,
+                        &format!("{f}.windings"),
+                        format!("couples winding '{}' with itself", names[a]),
+                    );
+                    ok = false;
+                } else if let Some(prev) = pairs.insert((a.min(b), a.max(b)), j) {
+                    self.field(
+                        l,
+                        &format!("{f}.windings"),
+                        format!(
+                            "windings '{}' and '{}' are already coupled by couplings[{prev}]",
+                            names[a], names[b]
+                        ),
+                    );
+                    ok = false;
+                }
+            }
+            match (c.k, c.mutual) {
+                (Some(_), Some(_)) => {
+                    self.field(l, &f, "give either k or mutual, not both".into());
+                    ok = false;
+                }
+                (None, None) => {
+                    self.field(l, &f, "give the coupling as k or as mutual".into());
+                    ok = false;
+                }
+                (Some(k), None) => {
+                    let kf = format!("{f}.k");
+                    if !self.finite(l, &kf, k) {
+                        ok = false;
+                    } else if k.abs() > 1.0 {
+                        self.field(
+                            l,
+                            &kf,
+                            format!("coupling coefficient must lie in [-1, 1], got {}", num(k)),
+                        );
+                        ok = false;
+                    }
+                }
+                (None, Some(m)) => ok &= self.finite(l, &format!("{f}.mutual"), m),
+            }
+        }
+        // The matrix test only means something once every entry is sound;
+        // otherwise it would repeat the problems above in other words.
+        if ok && !positive_definite(&x.inductance_matrix()) {
+            self.field(
+                l,
+                "couplings",
+                "inductance matrix is not positive definite: the couplings are too strong \
+                 (|k| must stay below 1, and |M| below the square root of the two self \
+                 inductances; leakage is what k < 1 leaves)"
+                    .into(),
+            );
+        }
+    }
+
+    fn waveform(&mut self, l: &str, w: &Waveform) {
+        match w {
+            Waveform::Constant { value } => {
+                self.finite(l, "waveform.value", *value);
+            }
+            Waveform::PiecewiseLinear { points, period } => {
+                if points.is_empty() {
+                    self.field(
+                        l,
+                        "waveform.points",
+                        "a piecewise-linear waveform needs at least one point".into(),
+                    );
+                }
+                let mut times_ok = true;
+                for (i, p) in points.iter().enumerate() {
+                    times_ok &= self.finite(l, &format!("waveform.points[{i}].time"), p.time);
+                    self.finite(l, &format!("waveform.points[{i}].value"), p.value);
+                }
+                if times_ok {
+                    for i in 1..points.len() {
+                        let (a, b) = (points[i - 1].time, points[i].time);
+                        if b <= a {
+                            self.field(
+                                l,
+                                &format!("waveform.points[{i}].time"),
+                                format!(
+                                    "point times must be strictly increasing: {} follows {}",
+                                    num(b),
+                                    num(a)
+                                ),
+                            );
+                        }
+                    }
+                }
+                if let Some(p) = *period {
+                    if self.positive(l, "waveform.period", p) && times_ok {
+                        for (i, pt) in points.iter().enumerate() {
+                            if !(0.0..=p).contains(&pt.time) {
+                                self.field(
+                                    l,
+                                    &format!("waveform.points[{i}].time"),
+                                    format!(
+                                        "time {} lies outside one period [0, {}] of a repeating waveform",
+                                        num(pt.time),
+                                        num(p)
+                                    ),
+                                );
+                            }
+                        }
+                    }
+                }
+            }
+            Waveform::Sine {
+                offset,
+                amplitude,
+                frequency,
+                phase,
+            } => {
+                self.finite(l, "waveform.offset", *offset);
+                self.finite(l, "waveform.amplitude", *amplitude);
+                self.positive(l, "waveform.frequency", *frequency);
+                self.finite(l, "waveform.phase", *phase);
+            }
+        }
+    }
+
+    // ----- gates -----------------------------------------------------------
+
+    fn gates(&mut self) {
+        let mut first: HashMap<&str, usize> = HashMap::new();
+        for (i, g) in self.circuit.gates.iter().enumerate() {
+            let name = g.name();
+            let l = label(name, "gates", i);
+            if let Some(why) = name_rule(name) {
+                self.field(&l, "name", format!("gate name {name:?} {why}"));
+            }
+            // Signal names derive from gate names (`NAME`, or `NAME.high` and
+            // `NAME.low`), and gate names cannot contain '.', so unique gate
+            // names give unique signal names.
+            if !name.is_empty() {
+                match first.get(name) {
+                    Some(&j) => self.field(
+                        name,
+                        "name",
+                        format!("duplicate gate name '{name}': gates[{j}] and gates[{i}] both use it"),
+                    ),
+                    None => {
+                        first.insert(name, i);
+                    }
+                }
+            }
+            self.gate_values(&l, g);
+        }
+    }
+
+    fn gate_values(&mut self, l: &str, g: &Gate) {
+        match g {
+            Gate::Pwm {
+                frequency,
+                duty,
+                delay,
+                start,
+                stop,
+                ..
+            } => {
+                self.pwm_timing(l, *frequency, *duty, *delay);
+                self.window(l, *start, *stop);
+            }
+            Gate::ComplementaryPwm {
+                frequency,
+                duty,
+                delay,
+                dead_time_high,
+                dead_time_low,
+                start,
+                stop,
+                ..
+            } => {
+                let period = self.pwm_timing(l, *frequency, *duty, *delay);
+                let hi_ok = self.non_negative(l, "dead_time_high", *dead_time_high);
+                let lo_ok = self.non_negative(l, "dead_time_low", *dead_time_low);
+                if let Some((t, duty)) = period {
+                    let on = duty * t;
+                    let off = t - on;
+                    if hi_ok && *dead_time_high > on {
+                        self.field(
+                            l,
+                            "dead_time_high",
+                            format!(
+                                "dead time {} s does not fit in the high part of the period, duty·T = {} s",
+                                num(*dead_time_high),
+                                num(on)
+                            ),
+                        );
+                    }
+                    if lo_ok && *dead_time_low > off {
+                        self.field(
+                            l,
+                            "dead_time_low",
+                            format!(
+                                "dead time {} s does not fit in the low part of the period, (1 − duty)·T = {} s",
+                                num(*dead_time_low),
+                                num(off)
+                            ),
+                        );
+                    }
+                }
+                self.window(l, *start, *stop);
+            }
+            Gate::Transitions {
+                transitions,
+                period,
+                ..
+            } => {
+                let mut times_ok = true;
+                for (i, t) in transitions.iter().enumerate() {
+                    times_ok &= self.finite(l, &format!("transitions[{i}].time"), t.time);
+                }
+                if times_ok {
+                    for i in 1..transitions.len() {
+                        let (a, b) = (transitions[i - 1].time, transitions[i].time);
+                        if b <= a {
+                            self.field(
+                                l,
+                                &format!("transitions[{i}].time"),
+                                format!(
+                                    "transition times must be strictly increasing: {} follows {}",
+                                    num(b),
+                                    num(a)
+                                ),
+                            );
+                        }
+                    }
+                }
+                if let Some(p) = *period {
+                    if self.positive(l, "period", p) && times_ok {
+                        for (i, t) in transitions.iter().enumerate() {
+                            if !(0.0..p).contains(&t.time) {
+                                self.field(
+                                    l,
+                                    &format!("transitions[{i}].time"),
+                                    format!(
+                                        "time {} lies outside one period [0, {}) of a repeating signal",
+                                        num(t.time),
+                                        num(p)
+                                    ),
+                                );
+                            }
+                        }
+                    }
+                }
+            }
+        }
+    }
+
+    /// Checks frequency, duty and delay of a PWM; returns (period, duty)
+    /// when both are usable for further checks.
+    fn pwm_timing(&mut self, l: &str, frequency: f64, duty: f64, delay: f64) -> Option<(f64, f64)> {
+        let f_ok = self.positive(l, "frequency", frequency);
+        let mut d_ok = self.finite(l, "duty", duty);
+        if d_ok && !(0.0..=1.0).contains(&duty) {
+            self.field(l, "duty", format!("duty cycle must lie in [0, 1], got {}", num(duty)));
+            d_ok = false;
+        }
+        if self.finite(l, "delay", delay) && f_ok {
+            let t = 1.0 / frequency;
+            // Edges are placed at k·T + (delay mod T) for every k ≥ 0, so a
+            // delay of a period or more would not postpone the first edge as
+            // its name promises; `start` holds a signal off for longer.
+            if !(0.0..t).contains(&delay) {
+                self.field(
+                    l,
+                    "delay",
+                    format!(
+                        "delay must lie in [0, period) = [0, {}) s, got {} s (use start to hold the signal off longer)",
+                        num(t),
+                        num(delay)
+                    ),
+                );
+            }
+        }
+        (f_ok && d_ok).then(|| (1.0 / frequency, duty))
+    }
+
+    fn window(&mut self, l: &str, start: Option<f64>, stop: Option<f64>) {
+        let start_ok = start.is_none_or(|s| self.finite(l, "start", s));
+        let stop_ok = stop.is_none_or(|s| self.finite(l, "stop", s));
+        if let (Some(a), Some(b), true, true) = (start, stop, start_ok, stop_ok) {
+            if a >= b {
+                self.field(
+                    l,
+                    "stop",
+                    format!("stop time {} s must come after start time {} s", num(b), num(a)),
+                );
+            }
+        }
+    }
+
+    fn gate_references(&mut self) {
+        let signals: Vec<String> = self
+            .circuit
+            .gates
+            .iter()
+            .flat_map(|g| match g {
+                Gate::ComplementaryPwm { name, .. } => {
+                    vec![format!("{name}.high"), format!("{name}.low")]
+                }
+                _ => vec![g.name().to_string()],
+            })
+            .collect();
+        for (i, e) in self.circuit.elements.iter().enumerate() {
+            let Element::Switch(s) = e else { continue };
+            if signals.iter().any(|x| *x == s.gate) {
+                continue;
+            }
+            let pair = self.circuit.gates.iter().any(|g| {
+                matches!(g, Gate::ComplementaryPwm { name, .. } if *name == s.gate)
+            });
+            let hint = if pair {
+                format!(
+                    " (the complementary pair '{0}' provides '{0}.high' and '{0}.low')",
+                    s.gate
+                )
+            } else if signals.is_empty() {
+                " (no gates are defined)".to_string()
+            } else {
+                let names: Vec<&str> = signals.iter().map(String::as_str).collect();
+                format!(" (gate signals: {})", quoted(&names))
+            };
+            let label = self.labels[i].clone();
+            self.field(
+                &label,
+                "gate",
+                format!("unknown gate signal '{}'{hint}", s.gate),
+            );
+        }
+    }
+
+    // ----- topology --------------------------------------------------------
+
+    fn topology(&mut self) {
+        let circuit = self.circuit;
+        if circuit.elements.is_empty() {
+            self.out.push(Problem {
+                element: None,
+                field: Some("elements".into()),
+                node: None,
+                message: "the circuit has no elements".into(),
+            });
+            return;
+        }
+
+        // Nodes in order of first use.
+        let mut index = NodeIndex::default();
+        // Terminals as (element, field, node) and branches.
+        let mut terminals: Vec<(usize, String, usize)> = Vec::new();
+        let mut branches: Vec<Branch> = Vec::new();
+        for (i, e) in circuit.elements.iter().enumerate() {
+            for (field, n) in e.terminals() {
+                terminals.push((i, field, index.get(n)));
+            }
+            for (field, part, pair, magnetic) in pairs(e, &self.labels[i]) {
+                branches.push(Branch {
+                    element: i,
+                    field,
+                    part,
+                    a: index.get(&pair[0]),
+                    b: index.get(&pair[1]),
+                    magnetic,
+                });
+            }
+        }
+        let ground = index.index.get(GROUND).copied();
+        let names = index.names;
+        let n = names.len();
+
+        // An element whose terminals are one node.
+        for b in &branches {
+            if b.a == b.b {
+                let p = Problem::field(
+                    &self.labels[b.element],
+                    &b.field,
+                    format!("both terminals are node '{}'", names[b.a]),
+                )
+                .at_node(names[b.a]);
+                self.out.push(p);
+            }
+        }
+
+        // Dangling nodes.
+        let mut count = vec![0usize; n];
+        for t in &terminals {
+            count[t.2] += 1;
+        }
+        for (i, field, nd) in &terminals {
+            if count[*nd] == 1 {
+                let p = Problem::field(
+                    &self.labels[*i],
+                    field,
+                    format!(
+                        "node '{}' is reached by only this terminal (a dangling node: connect it or remove it)",
+                        names[*nd]
+                    ),
+                )
+                .at_node(names[*nd]);
+                self.out.push(p);
+            }
+        }
+
+        // Loops made only of voltage sources.
+        self.voltage_source_loops(&branches, &names);
+
+        let Some(ground) = ground else {
+            self.out.push(Problem::circuit(
+                "no element touches ground: connect the reference node 'gnd' (or its alias '0')",
+            ));
+            // Without ground every part is "floating"; saying so again for
+            // each part would bury the one problem that matters.
+            return;
+        };
+
+        // Parts with no connection to ground.
+        let mut all = Sets::new(n);
+        for b in &branches {
+            all.union(b.a, b.b);
+        }
+        let root_g = all.find(ground);
+        let mut reported: HashSet<usize> = HashSet::new();
+        for v in 0..n {
+            let r = all.find(v);
+            if r == root_g || !reported.insert(r) {
+                continue;
+            }
+            let nodes: Vec<&str> = (0..n)
+                .filter(|&u| all.find(u) == r)
+                .map(|u| names[u])
+                .collect();
+            let part: Vec<&Branch> = branches.iter().filter(|b| all.find(b.a) == r).collect();
+            let parts: Vec<&str> = part.iter().map(|b| b.part.as_str()).collect();
+            let first = part[0];
+            let mut message = format!(
+                "part of the circuit with node(s) {} has no connection to ground (it holds {})",
+                quoted(&nodes),
+                parts.join(", ")
+            );
+            if part.iter().any(|b| b.magnetic) {
+                message.push_str(
+                    "; a transformer or coupled winding does not connect its windings \
+                     electrically, so give each side its own path to ground",
+                );
+            }
+            let p = Problem::field(&self.labels[first.element], &first.field, message)
+                .at_node(nodes[0]);
+            self.out.push(p);
+        }
+
+        self.current_source_cuts(&branches, &names, ground, &mut all);
+    }
+
+    fn voltage_source_loops(&mut self, branches: &[Branch], names: &[&str]) {
+        let n = names.len();
+        let mut sets = Sets::new(n);
+        // The forest of accepted sources, to name the loop a source closes.
+        let mut adjacent: Vec<Vec<(usize, usize)>> = vec![Vec::new(); n];
+        for b in branches {
+            let is_vs = matches!(self.circuit.elements[b.element], Element::VoltageSource(_));
+            if !is_vs || b.a == b.b {
+                continue;
+            }
+            if sets.union(b.a, b.b) {
+                adjacent[b.a].push((b.b, b.element));
+                adjacent[b.b].push((b.a, b.element));
+                continue;
+            }
+            let others: Vec<&str> = forest_path(&adjacent, b.a, b.b)
+                .into_iter()
+                .map(|e| self.labels[e].as_str())
+                .collect();
+            let p = Problem::field(
+                &self.labels[b.element],
+                &b.field,
+                format!(
+                    "voltage source between nodes '{}' and '{}' closes a loop made only of voltage sources (with {})",
+                    names[b.a],
+                    names[b.b],
+                    others.join(", ")
+                ),
+            )
+            .at_node(names[b.a]);
+            self.out.push(p);
+        }
+    }
+
+    fn current_source_cuts(
+        &mut self,
+        branches: &[Branch],
+        names: &[&str],
+        ground: usize,
+        all: &mut Sets,
+    ) {
+        let n = names.len();
+        let circuit = self.circuit;
+        let is_cs = |b: &Branch| matches!(circuit.elements[b.element], Element::CurrentSource(_));
+        let mut rest = Sets::new(n);
+        for b in branches.iter().filter(|b| !is_cs(b)) {
+            rest.union(b.a, b.b);
+        }
+        let root_g = rest.find(ground);
+        let root_all = all.find(ground);
+        let mut reported: HashSet<usize> = HashSet::new();
+        for v in 0..n {
+            let r = rest.find(v);
+            // Parts that are not joined to ground at all were reported as
+            // floating above.
+            if r == root_g || all.find(v) != root_all || !reported.insert(r) {
+                continue;
+            }
+            let nodes: Vec<&str> = (0..n)
+                .filter(|&u| rest.find(u) == r)
+                .map(|u| names[u])
+                .collect();
+            // The sources that cross the cut: one terminal inside, one outside.
+            let sources: Vec<usize> = branches
+                .iter()
+                .filter(|b| is_cs(b) && ((rest.find(b.a) == r) != (rest.find(b.b) == r)))
+                .map(|b| b.element)
+                .collect();
+            let source_names: Vec<&str> = sources.iter().map(|&e| self.labels[e].as_str()).collect();
+            let p = Problem::field(
+                &self.labels[sources[0]],
+                "nodes",
+                format!(
+                    "node(s) {} connect to the rest of the circuit only through current source(s) {} \
+                     (a cut made only of current sources leaves their voltages undetermined)",
+                    quoted(&nodes),
+                    source_names.join(", ")
+                ),
+            )
+            .at_node(nodes[0]);
+            self.out.push(p);
+        }
+    }
+
+    // ----- run settings ----------------------------------------------------
+
+    fn run_problem(&mut self, field: &str, message: String) {
+        self.out.push(Problem {
+            element: None,
+            field: Some(field.into()),
+            node: None,
+            message,
+        });
+    }
+
+    fn run_settings(&mut self) {
+        let Some(run) = &self.circuit.run else { return };
+        let stop = run.stop_time;
+        let stop_ok = if !stop.is_finite() {
+            self.run_problem("run.stop_time", format!("must be a finite number, got {stop}"));
+            false
+        } else if stop <= 0.0 {
+            self.run_problem("run.stop_time", format!("must be positive, got {}", num(stop)));
+            false
+        } else {
+            true
+        };
+        if let Some(r) = run.record_from {
+            if !r.is_finite() {
+                self.run_problem("run.record_from", format!("must be a finite number, got {r}"));
+            } else if stop_ok && !(0.0..stop).contains(&r) {
+                self.run_problem(
+                    "run.record_from",
+                    format!(
+                        "must lie in [0, stop_time) = [0, {}) s, got {} s",
+                        num(stop),
+                        num(r)
+                    ),
+                );
+            }
+        }
+        let nodes = self.circuit.nodes();
+        for (i, text) in run.outputs.iter().enumerate() {
+            let field = format!("run.outputs[{i}]");
+            let message = match OutputName::parse(text) {
+                Err(p) => Some(p.message),
+                Ok(OutputName::Node(n)) => (!nodes.contains(&n))
+                    .then(|| format!("output {text:?} names no node of the circuit")),
+                Ok(OutputName::Current(e)) | Ok(OutputName::Voltage(e)) => {
+                    self.output_target(&e).err().map(|why| format!("output {text:?}: {why}"))
+                }
+            };
+            if let Some(m) = message {
+                let mut p = Problem {
+                    element: None,
+                    field: Some(field),
+                    node: None,
+                    message: m,
+                };
+                if let Ok(OutputName::Node(n)) = OutputName::parse(text) {
+                    p = p.at_node(&n);
+                }
+                self.out.push(p);
+            }
+        }
+    }
+
+    /// Whether `target` (the part before `.current` / `.voltage`) names
+    /// something with a current and a voltage.
+    fn output_target(&self, target: &str) -> Result<(), String> {
+        let (name, part) = match target.split_once('.') {
+            Some((e, p)) => (e, Some(p)),
+            None => (target, None),
+        };
+        let Some(e) = self.circuit.element(name) else {
+            return Err(format!("no element is named '{name}'"));
+        };
+        match (e, part) {
+            (Element::CoupledInductors(c), Some(w)) => {
+                if c.windings.iter().any(|x| x.name == w) {
+                    Ok(())
+                } else {
+                    Err(format!("coupled inductors '{name}' have no winding '{w}'"))
+                }
+            }
+            (Element::CoupledInductors(c), None) => {
+                let w = c.windings.first().map(|w| w.name.as_str()).unwrap_or("WINDING");
+                Err(format!(
+                    "coupled inductors have one current per winding: name one, e.g. '{name}.{w}.current'"
+                ))
+            }
+            (Element::IdealTransformer(_), Some("primary" | "secondary")) => Ok(()),
+            (Element::IdealTransformer(_), _) => Err(format!(
+                "an ideal transformer has a primary and a secondary: use '{name}.primary.current' or '{name}.secondary.current'"
+            )),
+            (Element::Switch(s), Some("body_diode")) => {
+                if s.body_diode.is_some() {
+                    Ok(())
+                } else {
+                    Err(format!("switch '{name}' has no body_diode"))
+                }
+            }
+            (_, None) => Ok(()),
+            (_, Some(p)) => Err(format!(
+                "{} '{name}' has no part '{p}'",
+                e.kind_name().replace('_', " ")
+            )),
+        }
+    }
+}
+
+/// The elements on the path from `from` to `to` in a forest given as
+/// adjacency lists of (node, element); empty if there is none.
+fn forest_path(adjacent: &[Vec<(usize, usize)>], from: usize, to: usize) -> Vec<usize> {
+    let mut came: Vec<Option<(usize, usize)>> = vec![None; adjacent.len()];
+    let mut seen = vec![false; adjacent.len()];
+    let mut queue = VecDeque::from([from]);
+    seen[from] = true;
+    while let Some(v) = queue.pop_front() {
+        if v == to {
+            let mut path = Vec::new();
+            let mut x = to;
+            while let Some((prev, e)) = came[x] {
+                path.push(e);
+                x = prev;
+            }
+            path.reverse();
+            return path;
+        }
+        for &(w, e) in &adjacent[v] {
+            if !seen[w] {
+                seen[w] = true;
+                came[w] = Some((v, e));
+                queue.push_back(w);
+            }
+        }
+    }
     Vec::new()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn cholesky_accepts_leakage_and_rejects_perfect_coupling() {
+        let m = |k: f64| vec![vec![1e-3, k * 1e-3 * 2.0], vec![k * 1e-3 * 2.0, 4e-3]];
+        assert!(positive_definite(&m(0.99)));
+        assert!(positive_definite(&m(-0.5)));
+        assert!(!positive_definite(&m(1.0)));
+        assert!(!positive_definite(&m(-1.0)));
+        assert!(!positive_definite(&[vec![f64::NAN]]));
+    }
+
+    #[test]
+    fn three_windings_each_below_one_can_still_be_unrealisable() {
+        // k12 = k13 = 0.9 force windings 2 and 3 to be strongly alike;
+        // k23 = −0.9 says they are opposite: no real core does both.
+        let k = [[1.0, 0.9, 0.9], [0.9, 1.0, -0.9], [0.9, -0.9, 1.0]];
+        let m: Vec<Vec<f64>> = k.iter().map(|r| r.iter().map(|x| x * 1e-3).collect()).collect();
+        assert!(!positive_definite(&m));
+    }
+
+    #[test]
+    fn forest_path_names_the_sources_between_two_nodes() {
+        // 0 -a- 1 -b- 2, 3 alone.
+        let adj = vec![vec![(1, 10)], vec![(0, 10), (2, 11)], vec![(1, 11)], vec![]];
+        assert_eq!(forest_path(&adj, 0, 2), vec![10, 11]);
+        assert!(forest_path(&adj, 0, 3).is_empty());
+    }
 }

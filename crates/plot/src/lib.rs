@@ -1,1 +1,78 @@
-//! placeholder
+//! SVG figures of switching waveforms: the last stage of the fluxstep
+//! pipeline, netlist → solver → analysis → **plot**.
+//!
+//! The solver produces exact waveforms and the analysis stage measures
+//! them; this crate only draws what it is given. A [`Figure`] stacks
+//! [`Panel`]s that share one time axis (by default inductor current on
+//! top, switch-node voltage below); each panel holds [`Trace`]s of one unit
+//! and optional [`Annotation`]s (ripple band, average line, event markers)
+//! whose numbers the caller has measured. [`render_svg`] lays the figure
+//! out and draws it with plotters' SVG backend, which writes text as
+//! `<text>` elements, so no font is needed to build or render.
+//!
+//! # Brief overview
+//!
+//! - [`Trace`]: `(time, value)` vertices in time order. The caller samples
+//!   the exact solution so that every event instant is a vertex and a step
+//!   is two vertices at the same time; the figure joins vertices with
+//!   straight lines, so corners stay sharp and steps stay vertical.
+//! - [`Panel`], [`Figure`]: layout. Only the bottom panel carries time
+//!   labels; a legend appears where a panel holds more than one trace.
+//! - [`render_svg`], [`write_svg`]: output. Every trace is exactly one
+//!   `<polyline>` element, in panel then trace order, and nothing else is
+//!   a polyline (grid, ticks, dashes and markers are thin `<rect>`s), so a
+//!   test can count traces in the file.
+//! - [`si_scale`], [`nice_ticks`], [`format_si`]: the number formatting the
+//!   axes use (SI prefixes, 1-2-5 tick steps), public for other reports.
+//! - [`PlotError`]: every failure, naming the panel, trace or time at fault.
+//!
+//! Dense traces are thinned for display only when they hold more than
+//! about four vertices per pixel column: each column keeps its first,
+//! lowest, highest and last vertex, so every peak, valley and step is
+//! still drawn. A [`Figure::window`] cuts traces at its edges, so a window
+//! of a long run draws only what is visible.
+//!
+//! # Example
+//!
+//! ```
+//! use fluxstep_plot::{render_svg, Annotation, Figure, Panel, Trace};
+//!
+//! // A triangular current and the switch-node voltage that drives it,
+//! // as a solver would hand them over: vertices at every switching instant.
+//! let period = 5e-6;
+//! let mut current = Vec::new();
+//! let mut node = Vec::new();
+//! for k in 0..4 {
+//!     let t = k as f64 * period;
+//!     current.extend([(t, 1.8), (t + 0.5 * period, 2.2)]);
+//!     node.extend([(t, 0.0), (t, 12.0), (t + 0.5 * period, 12.0), (t + 0.5 * period, 0.0)]);
+//! }
+//! current.push((4.0 * period, 1.8));
+//! node.push((4.0 * period, 0.0));
+//!
+//! let figure = Figure::new("buck converter, 200 kHz")
+//!     .with_panel(
+//!         Panel::new("inductor current")
+//!             .with_trace(Trace::new("inductor current", "A", current))
+//!             .with_annotation(Annotation::Ripple { trace_index: 0, min: 1.8, max: 2.2 }),
+//!     )
+//!     .with_panel(Panel::new("switch node").with_trace(Trace::new("switch node", "V", node)));
+//! let svg = render_svg(&figure)?;
+//! assert_eq!(svg.matches("<polyline").count(), 2);
+//! assert!(svg.contains("time (µs)"));
+//! # Ok::<(), fluxstep_plot::PlotError>(())
+//! ```
+
+// Every public item is part of the figure contract other crates build on.
+#![deny(missing_docs)]
+
+mod error;
+mod model;
+mod reduce;
+mod render;
+mod scale;
+
+pub use error::PlotError;
+pub use model::{Annotation, Figure, Panel, Trace};
+pub use render::{render_svg, write_svg};
+pub use scale::{format_si, nice_ticks, si_scale, Ticks};

@@ -1,0 +1,11 @@
+//! Integration tests of fluxstep-plot, built as one binary.
+
+/// Synthetic waveforms shared by the other modules (no solver involved).
+mod common;
+/// Failures are errors that name the trace, panel or time; nothing panics.
+mod errors;
+/// The buck-like figure rasterised with resvg, written to
+/// `target/plot-check/buck_like.png` for a person to look at.
+mod png_check;
+/// The SVG is well-formed XML with one polyline per trace and sane labels.
+mod svg_structure;

@@ -1,0 +1,380 @@
+//! Compile: a validated `Circuit` becomes numbered nodes, branches and an
+//! extended state vector.
+//!
+//! The extended state is `z = [x; u; u']`: `x` holds inductor (winding)
+//! currents, capacitor voltages and the two states of each sine source's
+//! oscillator; `u` holds the value of every piecewise-linear or constant
+//! source plus a constant `1` (index 0 of `u`, used for diode forward
+//! voltages); `u'` holds their slopes. Between events `z' = M z` exactly, so
+//! one matrix exponential advances everything, inputs included (this is Van
+//! Loan's augmented matrix written as a state).
+
+use nalgebra::DMatrix;
+
+use fluxstep_netlist::{is_ground, Circuit, Element, OutputName, SignalShape, Waveform};
+
+use crate::error::SolverError;
+
+/// What a source's value is, as a linear function of the extended state.
+#[derive(Clone, Debug)]
+pub(crate) struct SourceRef {
+    pub name: String,
+    /// (z index, coefficient) terms.
+    pub terms: Vec<(usize, f64)>,
+    /// The waveform (for breakpoints), `None` for a sine (an oscillator state).
+    pub waveform: Option<Waveform>,
+    /// Input index k (u_k at z[n_x + k]) for piecewise-linear sources.
+    pub input: Option<usize>,
+}
+
+#[derive(Clone, Debug)]
+pub(crate) enum BranchKind {
+    Resistor { g: f64 },
+    Winding { state: usize },
+    Capacitor { state: usize, c: f64 },
+    VSource { src: usize },
+    ISource { src: usize },
+    Switch { sw: usize },
+    Diode { d: usize },
+    /// Primary branch of an ideal transformer; the secondary nodes are given.
+    Transformer { n: f64, sec: (usize, usize) },
+}
+
+#[derive(Clone, Debug)]
+pub(crate) struct Branch {
+    pub name: String,
+    pub a: usize,
+    pub b: usize,
+    pub kind: BranchKind,
+}
+
+#[derive(Clone, Debug)]
+pub(crate) struct SwitchInfo {
+    pub name: String,
+    pub branch: usize,
+    pub r_on: f64,
+    pub signal: usize,
+}
+
+#[derive(Clone, Debug)]
+pub(crate) struct DiodeInfo {
+    pub name: String,
+    pub branch: usize,
+    pub vf: f64,
+    pub r_on: f64,
+}
+
+/// A set of coupled windings (a lone inductor is a set of one).
+#[derive(Clone, Debug)]
+pub(crate) struct InductorGroup {
+    pub states: Vec<usize>,
+    pub l: DMatrix<f64>,
+    pub l_inv: DMatrix<f64>,
+}
+
+/// What an output reads.
+#[derive(Clone, Debug)]
+pub(crate) enum OutputDef {
+    Node(usize),
+    BranchVoltage(usize),
+    BranchCurrent(usize),
+    /// Secondary winding of an ideal transformer (branch index).
+    SecondaryVoltage(usize),
+    SecondaryCurrent(usize),
+}
+
+/// The compiled circuit: everything the solver needs, numbered.
+#[derive(Clone, Debug)]
+pub(crate) struct Compiled {
+    pub nodes: Vec<String>,
+    pub branches: Vec<Branch>,
+    pub n_x: usize,
+    pub n_u: usize,
+    pub state_names: Vec<String>,
+    /// Energy weights: (state index, group) handled via groups and caps.
+    pub groups: Vec<InductorGroup>,
+    pub caps: Vec<(usize, f64)>,
+    pub sources: Vec<SourceRef>,
+    pub switches: Vec<SwitchInfo>,
+    pub diodes: Vec<DiodeInfo>,
+    pub signals: Vec<(String, SignalShape)>,
+    /// Oscillators: (sin state, cos state, ω).
+    pub oscillators: Vec<(usize, usize, f64)>,
+    pub x0: Vec<f64>,
+    /// Scale of each x state for norms (√L for currents, √C for voltages, 1 else).
+    pub x_scale: Vec<f64>,
+    pub outputs: Vec<(String, OutputDef)>,
+}
+
+impl Compiled {
+    /// Length of the extended state `[x; u; u']`.
+    pub fn n_z(&self) -> usize {
+        self.n_x + 2 * self.n_u
+    }
+
+    pub fn compile(circuit: &Circuit) -> Result<Compiled, SolverError> {
+        circuit.validate()?;
+        let mut nodes: Vec<String> = vec!["gnd".into()];
+        let mut node = |n: &str| -> usize {
+            if is_ground(n) {
+                return 0;
+            }
+            match nodes.iter().position(|x| x == n) {
+                Some(i) => i,
+                None => {
+                    nodes.push(n.to_string());
+                    nodes.len() - 1
+                }
+            }
+        };
+        let signals = circuit.signals();
+        let mut c = Compiled {
+            nodes: vec![],
+            branches: vec![],
+            n_x: 0,
+            n_u: 1,
+            state_names: vec![],
+            groups: vec![],
+            caps: vec![],
+            sources: vec![],
+            switches: vec![],
+            diodes: vec![],
+            signals: signals.clone(),
+            oscillators: vec![],
+            x0: vec![],
+            x_scale: vec![],
+            outputs: vec![],
+        };
+        // Pass 1: states (x) and inputs (u); z indices of u are fixed after.
+        let mut x_names = vec![];
+        let mut x0 = vec![];
+        let mut x_scale = vec![];
+        let mut pending_src: Vec<(String, Waveform)> = vec![];
+        for e in &circuit.elements {
+            match e {
+                Element::Inductor(l) => {
+                    x_names.push(format!("{}.current", l.name));
+                    x0.push(l.initial_current.unwrap_or(0.0));
+                    x_scale.push(l.inductance.sqrt());
+                }
+                Element::CoupledInductors(k) => {
+                    for w in &k.windings {
+                        x_names.push(format!("{}.{}.current", k.name, w.name));
+                        x0.push(w.initial_current.unwrap_or(0.0));
+                        x_scale.push(w.inductance.sqrt());
+                    }
+                }
+                Element::Capacitor(cap) => {
+                    x_names.push(format!("{}.voltage", cap.name));
+                    x0.push(cap.initial_voltage.unwrap_or(0.0));
+                    x_scale.push(cap.capacitance.sqrt());
+                }
+                Element::VoltageSource(s) => pending_src.push((s.name.clone(), s.waveform.clone())),
+                Element::CurrentSource(s) => pending_src.push((s.name.clone(), s.waveform.clone())),
+                _ => {}
+            }
+        }
+        for (name, w) in &pending_src {
+            if let Waveform::Sine { phase, .. } = w {
+                x_names.push(format!("{name}.oscillator_sin"));
+                x_names.push(format!("{name}.oscillator_cos"));
+                x0.push(phase.sin());
+                x0.push(phase.cos());
+                x_scale.push(1.0);
+                x_scale.push(1.0);
+            }
+        }
+        let n_x = x_names.len();
+        c.n_x = n_x;
+        let mut n_u = 1; // u_0 = 1
+        let mut osc_next = n_x - 2 * pending_src.iter().filter(|(_, w)| matches!(w, Waveform::Sine { .. })).count();
+        for (name, w) in &pending_src {
+            match w {
+                Waveform::Sine { offset, amplitude, frequency, .. } => {
+                    let (s, co) = (osc_next, osc_next + 1);
+                    osc_next += 2;
+                    c.oscillators.push((s, co, 2.0 * std::f64::consts::PI * frequency));
+                    // offset·1 + amplitude·sin: the constant input sits at z[n_x].
+                    c.sources.push(SourceRef {
+                        name: name.clone(),
+                        terms: vec![(n_x, *offset), (s, *amplitude)],
+                        waveform: None,
+                        input: None,
+                    });
+                }
+                _ => {
+                    c.sources.push(SourceRef {
+                        name: name.clone(),
+                        terms: vec![(n_x + n_u, 1.0)],
+                        waveform: Some(w.clone()),
+                        input: Some(n_u),
+                    });
+                    n_u += 1;
+                }
+            }
+        }
+        c.n_u = n_u;
+        c.state_names = x_names;
+        c.x0 = x0;
+        c.x_scale = x_scale;
+
+        // Pass 2: branches.
+        let mut state = 0usize;
+        let mut src = 0usize;
+        let sig_index = |g: &str| signals.iter().position(|(n, _)| n == g).expect("validated gate reference");
+        for e in &circuit.elements {
+            match e {
+                Element::Resistor(r) => c.branches.push(Branch {
+                    name: r.name.clone(),
+                    a: node(&r.nodes[0]),
+                    b: node(&r.nodes[1]),
+                    kind: BranchKind::Resistor { g: 1.0 / r.resistance },
+                }),
+                Element::Inductor(l) => {
+                    c.branches.push(Branch {
+                        name: l.name.clone(),
+                        a: node(&l.nodes[0]),
+                        b: node(&l.nodes[1]),
+                        kind: BranchKind::Winding { state },
+                    });
+                    let m = DMatrix::from_element(1, 1, l.inductance);
+                    c.groups.push(InductorGroup { states: vec![state], l_inv: DMatrix::from_element(1, 1, 1.0 / l.inductance), l: m });
+                    state += 1;
+                }
+                Element::CoupledInductors(k) => {
+                    let lm = k.inductance_matrix();
+                    let n = lm.len();
+                    let l = DMatrix::from_fn(n, n, |i, j| lm[i][j]);
+                    let l_inv = l.clone().try_inverse().expect("validated positive definite");
+                    let mut states = vec![];
+                    for w in &k.windings {
+                        c.branches.push(Branch {
+                            name: format!("{}.{}", k.name, w.name),
+                            a: node(&w.nodes[0]),
+                            b: node(&w.nodes[1]),
+                            kind: BranchKind::Winding { state },
+                        });
+                        states.push(state);
+                        state += 1;
+                    }
+                    c.groups.push(InductorGroup { states, l, l_inv });
+                }
+                Element::Capacitor(cap) => {
+                    c.branches.push(Branch {
+                        name: cap.name.clone(),
+                        a: node(&cap.nodes[0]),
+                        b: node(&cap.nodes[1]),
+                        kind: BranchKind::Capacitor { state, c: cap.capacitance },
+                    });
+                    c.caps.push((state, cap.capacitance));
+                    state += 1;
+                }
+                Element::VoltageSource(s) => {
+                    c.branches.push(Branch {
+                        name: s.name.clone(),
+                        a: node(&s.nodes[0]),
+                        b: node(&s.nodes[1]),
+                        kind: BranchKind::VSource { src },
+                    });
+                    src += 1;
+                }
+                Element::CurrentSource(s) => {
+                    c.branches.push(Branch {
+                        name: s.name.clone(),
+                        a: node(&s.nodes[0]),
+                        b: node(&s.nodes[1]),
+                        kind: BranchKind::ISource { src },
+                    });
+                    src += 1;
+                }
+                Element::Switch(s) => {
+                    let (a, b) = (node(&s.nodes[0]), node(&s.nodes[1]));
+                    c.switches.push(SwitchInfo {
+                        name: s.name.clone(),
+                        branch: c.branches.len(),
+                        r_on: s.on_resistance.unwrap_or(0.0),
+                        signal: sig_index(&s.gate),
+                    });
+                    c.branches.push(Branch { name: s.name.clone(), a, b, kind: BranchKind::Switch { sw: c.switches.len() - 1 } });
+                    if let Some(m) = &s.body_diode {
+                        let name = format!("{}.body_diode", s.name);
+                        c.diodes.push(DiodeInfo {
+                            name: name.clone(),
+                            branch: c.branches.len(),
+                            vf: m.forward_voltage.unwrap_or(0.0),
+                            r_on: m.on_resistance.unwrap_or(0.0),
+                        });
+                        c.branches.push(Branch { name, a: b, b: a, kind: BranchKind::Diode { d: c.diodes.len() - 1 } });
+                    }
+                }
+                Element::Diode(d) => {
+                    c.diodes.push(DiodeInfo {
+                        name: d.name.clone(),
+                        branch: c.branches.len(),
+                        vf: d.model.forward_voltage.unwrap_or(0.0),
+                        r_on: d.model.on_resistance.unwrap_or(0.0),
+                    });
+                    c.branches.push(Branch {
+                        name: d.name.clone(),
+                        a: node(&d.nodes[0]),
+                        b: node(&d.nodes[1]),
+                        kind: BranchKind::Diode { d: c.diodes.len() - 1 },
+                    });
+                }
+                Element::IdealTransformer(t) => {
+                    let sec = (node(&t.secondary[0]), node(&t.secondary[1]));
+                    c.branches.push(Branch {
+                        name: t.name.clone(),
+                        a: node(&t.primary[0]),
+                        b: node(&t.primary[1]),
+                        kind: BranchKind::Transformer { n: t.turns_ratio, sec },
+                    });
+                }
+            }
+        }
+        c.nodes = nodes;
+        // Outputs: every node voltage, every branch current and voltage.
+        for (i, n) in c.nodes.iter().enumerate() {
+            c.outputs.push((n.clone(), OutputDef::Node(i)));
+        }
+        for (i, b) in c.branches.iter().enumerate() {
+            if let BranchKind::Transformer { .. } = b.kind {
+                c.outputs.push((format!("{}.primary.current", b.name), OutputDef::BranchCurrent(i)));
+                c.outputs.push((format!("{}.primary.voltage", b.name), OutputDef::BranchVoltage(i)));
+                c.outputs.push((format!("{}.secondary.current", b.name), OutputDef::SecondaryCurrent(i)));
+                c.outputs.push((format!("{}.secondary.voltage", b.name), OutputDef::SecondaryVoltage(i)));
+            } else {
+                c.outputs.push((format!("{}.current", b.name), OutputDef::BranchCurrent(i)));
+                c.outputs.push((format!("{}.voltage", b.name), OutputDef::BranchVoltage(i)));
+            }
+        }
+        Ok(c)
+    }
+
+    /// Index of an output by its name (`NODE`, `ELEMENT.current`, …).
+    pub fn output_index(&self, name: &str) -> Result<usize, SolverError> {
+        let parsed = OutputName::parse(name)
+            .map_err(|p| SolverError::UnknownOutput { name: name.into(), reason: p.message })?;
+        let key = parsed.to_string();
+        self.outputs.iter().position(|(n, _)| *n == key).ok_or_else(|| SolverError::UnknownOutput {
+            name: name.into(),
+            reason: "no node or element of that name".into(),
+        })
+    }
+
+    /// Stored energy ½·iᵀL i + ½·C v² of the state part of `z`.
+    pub fn stored_energy(&self, z: &[f64]) -> f64 {
+        let mut e = 0.0;
+        for g in &self.groups {
+            for (i, &si) in g.states.iter().enumerate() {
+                for (j, &sj) in g.states.iter().enumerate() {
+                    e += 0.5 * g.l[(i, j)] * z[si] * z[sj];
+                }
+            }
+        }
+        for &(s, cap) in &self.caps {
+            e += 0.5 * cap * z[s] * z[s];
+        }
+        e
+    }
+}

@@ -1,0 +1,131 @@
+//! The solver's error type: every variant names the element, node and time
+//! it concerns.
+
+use fluxstep_netlist::NetlistError;
+
+/// Everything that can stop compiling or running a circuit.
+#[derive(Debug, thiserror::Error)]
+pub enum SolverError {
+    /// The circuit itself is invalid.
+    #[error(transparent)]
+    Netlist(#[from] NetlistError),
+    /// An output name does not name a node or element of the circuit.
+    #[error("unknown output {name:?}: {reason}")]
+    UnknownOutput {
+        /// The output as written.
+        name: String,
+        /// Why it was rejected.
+        reason: String,
+    },
+    /// A switch or diode opened while inductors carried current with no path
+    /// left for it: physically an unbounded voltage spike (an arc across a
+    /// contact, the avalanche that destroys a transistor).
+    #[error(
+        "t = {time:e} s: inductor current interrupted{}: {} carried {current:.6e} A with no path left; \
+         stored energy {energy:.6e} J would be released as a voltage spike. \
+         add a freewheeling path (e.g. a diode), or allow the flux-conserving jump",
+        cause.as_ref().map(|c| format!(" by {c}")).unwrap_or_default(),
+        inductors.join(", ")
+    )]
+    InductorInterrupted {
+        /// Time of the interruption (s).
+        time: f64,
+        /// The switching action that caused it (e.g. `switch S1 opened`), if known.
+        cause: Option<String>,
+        /// The inductor (winding) names left without a path.
+        inductors: Vec<String>,
+        /// The largest magnitude of the interrupted currents (A).
+        current: f64,
+        /// Energy that the flux-conserving jump would dissipate, ½·L·I² for
+        /// a single inductor (J).
+        energy: f64,
+    },
+    /// Closed switches and conducting diodes short a voltage source or a
+    /// charged capacitor (e.g. both switches of a half-bridge on at once).
+    #[error(
+        "t = {time:e} s: short circuit (shoot-through){}: {} form a zero-resistance loop across {}",
+        cause.as_ref().map(|c| format!(" after {c}")).unwrap_or_default(),
+        switches.join(", "),
+        shorted.join(", ")
+    )]
+    ShortCircuit {
+        /// Time of the short (s).
+        time: f64,
+        /// The switching action that caused it, if known.
+        cause: Option<String>,
+        /// Switches and diodes in the loop.
+        switches: Vec<String>,
+        /// The voltage sources and capacitors shorted.
+        shorted: Vec<String>,
+    },
+    /// A current source was left with no path for its current.
+    #[error("t = {time:e} s: current source(s) {} left with no path (node {node})", sources.join(", "))]
+    CurrentSourceOpen {
+        /// Time (s).
+        time: f64,
+        /// The current sources.
+        sources: Vec<String>,
+        /// A node of the isolated part.
+        node: String,
+    },
+    /// No conduction pattern of the diodes is consistent with the state.
+    #[error("t = {time:e} s: no consistent conduction pattern for diodes {}: {reason}", diodes.join(", "))]
+    NoConsistentPattern {
+        /// Time (s).
+        time: f64,
+        /// The diodes.
+        diodes: Vec<String>,
+        /// What went wrong with the closest candidate.
+        reason: String,
+    },
+    /// A conduction pattern whose equations have no unique solution that the
+    /// solver does not (yet) reduce.
+    #[error("t = {time:e} s: unsupported circuit structure in the mode with {pattern}: {reason}")]
+    Unsupported {
+        /// Time (s).
+        time: f64,
+        /// The conduction pattern, as text.
+        pattern: String,
+        /// What is not supported.
+        reason: String,
+    },
+    /// Too many events in a tiny window: ideal elements chattering.
+    #[error(
+        "t = {time:e} s: chatter: {count} events within {window:e} s involving {}",
+        elements.join(", ")
+    )]
+    Chatter {
+        /// Time (s).
+        time: f64,
+        /// Events counted in the window.
+        count: usize,
+        /// The window length (s).
+        window: f64,
+        /// Elements that switched in the window.
+        elements: Vec<String>,
+    },
+    /// The run exceeded its event limit.
+    #[error("t = {time:e} s: event limit of {limit} reached")]
+    EventLimit {
+        /// Time (s).
+        time: f64,
+        /// The limit.
+        limit: usize,
+    },
+    /// A value became NaN or infinite.
+    #[error("t = {time:e} s: {what} is not finite")]
+    NonFinite {
+        /// Time (s).
+        time: f64,
+        /// The state or output concerned.
+        what: String,
+    },
+    /// A time argument is invalid (before the present time, not finite…).
+    #[error("invalid time {time:e} s: {reason}")]
+    BadTime {
+        /// The time given (s).
+        time: f64,
+        /// Why it is invalid.
+        reason: String,
+    },
+}

@@ -1,0 +1,710 @@
+//! Mode: one conduction pattern of all switches and diodes, turned into the
+//! exact linear system `z' = M z`, the outputs `y = C z`, the diode guards
+//! and the jump map that enforces conservation of charge and flux linkage.
+//!
+//! Method (modified nodal analysis with constraint multipliers):
+//! capacitors act as voltage sources of their voltage and windings as
+//! current sources of their current; the resistive network that remains is
+//! solved for every node voltage and every voltage-branch current as a
+//! linear function of `z`. Two structures make that network singular and are
+//! handled on purpose, as in the normal-tree formulation of L. O. Chua &
+//! P.-M. Lin, *Computer-Aided Analysis of Electronic Circuits* (1975):
+//!
+//! - **Inductor cutsets.** A group of nodes with no resistive or voltage path
+//!   to ground but reached by windings (the switch node of a buck in its idle
+//!   interval, the secondary of a flyback while its diode blocks) gets a
+//!   *gauge*: a zero-ohm branch to ground whose voltage λ is a multiplier.
+//!   Kirchhoff's current law on the group (the gauge current) is a constraint
+//!   on the winding currents; λ is chosen so that the constraint's time
+//!   derivative is zero. For a lone inductor with zero current this gives
+//!   v_L = 0 (the switch node follows the output); for coupled windings it
+//!   gives the reflected voltage.
+//! - **Capacitor loops.** A capacitor that closes a loop of capacitors and
+//!   voltage sources is replaced by an injected current ψ (a multiplier);
+//!   its voltage must stay equal to the loop's, which fixes ψ.
+//!
+//! If the state violates a constraint when the mode is entered, the jump
+//! `z⁺ = (I − D_λ S⁻¹ H) z⁻` is the impulsive multiplier that restores it:
+//! charge is conserved across a capacitor loop and flux linkage across an
+//! inductor cutset. Groups of nodes reached by nothing that fixes their
+//! potential (the source side of a diode bridge with all diodes blocking)
+//! get a free gauge; outputs that depend on it read as undetermined.
+
+use nalgebra::{DMatrix, DVector};
+
+use crate::compile::{BranchKind, Compiled, OutputDef};
+use crate::error::SolverError;
+
+/// A conduction pattern: bit i of `switches` is switch i on, bit j of
+/// `diodes` is diode j conducting.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, PartialOrd, Ord)]
+pub struct ModeKey {
+    /// Bit i set: switch i is on.
+    pub switches: u64,
+    /// Bit j set: diode j conducts.
+    pub diodes: u64,
+}
+
+/// What a guard watches.
+#[derive(Clone, Debug, PartialEq)]
+pub(crate) enum GuardKind {
+    /// A conducting diode's current must stay ≥ 0.
+    DiodeCurrent(usize),
+    /// A blocking diode's voltage must stay ≤ Vf (guard = Vf − v ≥ 0).
+    DiodeVoltage(usize),
+    /// Two blocking diodes in a loop through floating nodes: the loop
+    /// voltage must stay below their forward voltages.
+    DiodePair(usize, usize),
+}
+
+/// A linear function of `z` that must stay ≥ 0 while the mode holds.
+#[derive(Clone, Debug)]
+pub(crate) struct Guard {
+    pub kind: GuardKind,
+    pub row: Vec<f64>,
+}
+
+/// What a multiplier constraint is about.
+#[derive(Clone, Debug)]
+pub(crate) enum ConstraintKind {
+    /// Kirchhoff's current law on a floating group reached by windings.
+    Cutset { windings: Vec<usize>, node: usize },
+    /// A capacitor voltage tied to a loop of capacitors and sources.
+    Loop { caps: Vec<usize> },
+}
+
+/// A problem that makes the mode impossible to enter (reported only if no
+/// other pattern is consistent).
+#[derive(Clone, Debug)]
+pub(crate) enum ModeProblem {
+    Short { switches: Vec<String>, shorted: Vec<String> },
+    Unsupported(String),
+}
+
+/// A compiled mode.
+#[derive(Clone, Debug)]
+pub(crate) struct Mode {
+    pub key: ModeKey,
+    pub problem: Option<ModeProblem>,
+    /// z' = M z.
+    pub m: DMatrix<f64>,
+    /// Outputs y = C z, one row per compiled output.
+    pub c: DMatrix<f64>,
+    /// Output rows that depend on a free gauge.
+    pub undetermined: Vec<bool>,
+    pub guards: Vec<Guard>,
+    /// Constraint rows H (restricted to z) and their kinds.
+    pub h: DMatrix<f64>,
+    pub constraints: Vec<ConstraintKind>,
+    /// Jump map z⁺ = P z⁻ restoring the constraints.
+    pub p: DMatrix<f64>,
+    /// Gauge currents of free groups (must be zero): row, node, current sources.
+    pub free_checks: Vec<(Vec<f64>, usize, Vec<String>)>,
+    /// Rate bound (1/s) of the fastest dynamics, for sub-step sizes.
+    pub rate: f64,
+}
+
+struct Dsu(Vec<usize>);
+impl Dsu {
+    fn new(n: usize) -> Self {
+        Dsu((0..n).collect())
+    }
+    fn find(&mut self, i: usize) -> usize {
+        let mut r = i;
+        while self.0[r] != r {
+            r = self.0[r];
+        }
+        let mut k = i;
+        while self.0[k] != r {
+            let nx = self.0[k];
+            self.0[k] = r;
+            k = nx;
+        }
+        r
+    }
+    fn union(&mut self, a: usize, b: usize) -> bool {
+        let (ra, rb) = (self.find(a), self.find(b));
+        if ra == rb {
+            return false;
+        }
+        self.0[ra.max(rb)] = ra.min(rb);
+        true
+    }
+}
+
+/// Path of branch indices between nodes `a` and `b` in a forest given as edges.
+fn forest_path(edges: &[(usize, usize, usize)], a: usize, b: usize, n_nodes: usize) -> Vec<usize> {
+    let mut prev: Vec<Option<(usize, usize)>> = vec![None; n_nodes];
+    let mut seen = vec![false; n_nodes];
+    let mut queue = std::collections::VecDeque::from([a]);
+    seen[a] = true;
+    while let Some(n) = queue.pop_front() {
+        if n == b {
+            break;
+        }
+        for &(x, y, br) in edges {
+            let other = if x == n { y } else if y == n { x } else { continue };
+            if !seen[other] {
+                seen[other] = true;
+                prev[other] = Some((n, br));
+                queue.push_back(other);
+            }
+        }
+    }
+    let mut path = vec![];
+    let mut cur = b;
+    while let Some((p, br)) = prev[cur] {
+        path.push(br);
+        cur = p;
+    }
+    path
+}
+
+impl Mode {
+    /// Derives the mode's matrices. Structural problems (a short, parallel
+    /// ideal switches) are recorded in `problem`, not returned as errors,
+    /// so that the diode pattern search can try other patterns.
+    pub(crate) fn build(cc: &Compiled, key: ModeKey) -> Result<Mode, SolverError> {
+        let nn = cc.nodes.len();
+        let nz = cc.n_z();
+        let nx = cc.n_x;
+        let one = nx; // z index of the constant input 1
+        let sw_on = |i: usize| key.switches >> i & 1 == 1;
+        let d_on = |i: usize| key.diodes >> i & 1 == 1;
+        let present_voltage = |k: &BranchKind| -> bool {
+            match k {
+                BranchKind::Resistor { .. } | BranchKind::VSource { .. } | BranchKind::Capacitor { .. } => true,
+                BranchKind::Transformer { .. } => true,
+                BranchKind::Switch { sw } => sw_on(*sw),
+                BranchKind::Diode { d } => d_on(*d),
+                BranchKind::Winding { .. } | BranchKind::ISource { .. } => false,
+            }
+        };
+        let mut problem: Option<ModeProblem> = None;
+
+        // 1. Groups of nodes held together by resistive or voltage branches.
+        let mut dsu = Dsu::new(nn);
+        for b in &cc.branches {
+            if present_voltage(&b.kind) {
+                dsu.union(b.a, b.b);
+                if let BranchKind::Transformer { sec, .. } = b.kind {
+                    dsu.union(sec.0, sec.1);
+                }
+            }
+        }
+        let ground_root = dsu.find(0);
+        let mut comps: Vec<usize> = vec![]; // root of each floating group
+        let mut comp_of = vec![usize::MAX; nn];
+        for n in 1..nn {
+            let r = dsu.find(n);
+            if r != ground_root {
+                let ci = match comps.iter().position(|&x| x == r) {
+                    Some(i) => i,
+                    None => {
+                        comps.push(r);
+                        comps.len() - 1
+                    }
+                };
+                comp_of[n] = ci;
+            }
+        }
+        // Classify floating groups: reached by a winding → cutset multiplier.
+        let mut comp_windings: Vec<Vec<usize>> = vec![vec![]; comps.len()];
+        let mut comp_sources: Vec<Vec<String>> = vec![vec![]; comps.len()];
+        for (bi, b) in cc.branches.iter().enumerate() {
+            let ca = comp_of[b.a];
+            let cb = comp_of[b.b];
+            if ca == cb {
+                continue;
+            }
+            for c in [ca, cb] {
+                if c == usize::MAX {
+                    continue;
+                }
+                match b.kind {
+                    BranchKind::Winding { .. } => comp_windings[c].push(bi),
+                    BranchKind::ISource { .. } => comp_sources[c].push(b.name.clone()),
+                    _ => {}
+                }
+            }
+        }
+        let rep = |c: usize| (1..nn).find(|&n| comp_of[n] == c).expect("a group has a node");
+
+        // 2. Loops of zero-resistance voltage branches; capacitors last.
+        let mut dsu2 = Dsu::new(nn);
+        let mut forest: Vec<(usize, usize, usize)> = vec![];
+        let mut loop_caps: Vec<(usize, Vec<usize>)> = vec![]; // (cap branch, other caps in loop)
+        let zero_r = |k: &BranchKind| -> Option<u8> {
+            match k {
+                BranchKind::VSource { .. } => Some(0),
+                BranchKind::Switch { sw } if sw_on(*sw) && cc.switches[*sw].r_on == 0.0 => Some(1),
+                BranchKind::Diode { d } if d_on(*d) && cc.diodes[*d].r_on == 0.0 => Some(1),
+                BranchKind::Capacitor { .. } => Some(2),
+                _ => None,
+            }
+        };
+        for pass in 0..3u8 {
+            for (bi, b) in cc.branches.iter().enumerate() {
+                if zero_r(&b.kind) != Some(pass) {
+                    continue;
+                }
+                if dsu2.union(b.a, b.b) {
+                    forest.push((b.a, b.b, bi));
+                    continue;
+                }
+                let path = forest_path(&forest, b.a, b.b, nn);
+                let caps: Vec<usize> = path
+                    .iter()
+                    .copied()
+                    .filter(|&p| matches!(cc.branches[p].kind, BranchKind::Capacitor { .. }))
+                    .collect();
+                let has_source = path.iter().any(|&p| matches!(cc.branches[p].kind, BranchKind::VSource { .. }))
+                    || matches!(b.kind, BranchKind::VSource { .. });
+                let is_cap = matches!(b.kind, BranchKind::Capacitor { .. });
+                if is_cap && (!caps.is_empty() || has_source) {
+                    loop_caps.push((bi, caps));
+                } else if problem.is_none() {
+                    let mut all = path.clone();
+                    all.push(bi);
+                    let switches: Vec<String> = all
+                        .iter()
+                        .filter(|&&p| matches!(cc.branches[p].kind, BranchKind::Switch { .. } | BranchKind::Diode { .. }))
+                        .map(|&p| cc.branches[p].name.clone())
+                        .collect();
+                    let shorted: Vec<String> = all
+                        .iter()
+                        .filter(|&&p| matches!(cc.branches[p].kind, BranchKind::VSource { .. } | BranchKind::Capacitor { .. }))
+                        .map(|&p| cc.branches[p].name.clone())
+                        .collect();
+                    problem = Some(if shorted.is_empty() {
+                        ModeProblem::Unsupported(format!(
+                            "{} conduct in parallel with zero resistance, so their current split is undetermined; give one an on-resistance",
+                            switches.join(", ")
+                        ))
+                    } else {
+                        ModeProblem::Short { switches, shorted }
+                    });
+                }
+            }
+        }
+        let is_loop_cap = |bi: usize| loop_caps.iter().any(|(c, _)| *c == bi);
+
+        // 3. Unknowns: node voltages 1..nn, then voltage-branch currents, then gauge currents.
+        let mut cur_of = vec![usize::MAX; cc.branches.len()];
+        let mut n_unk = nn - 1;
+        for (bi, b) in cc.branches.iter().enumerate() {
+            let needs = match &b.kind {
+                BranchKind::VSource { .. } | BranchKind::Transformer { .. } => true,
+                BranchKind::Capacitor { .. } => !is_loop_cap(bi),
+                BranchKind::Switch { sw } => sw_on(*sw) && cc.switches[*sw].r_on == 0.0,
+                BranchKind::Diode { d } => d_on(*d),
+                _ => false,
+            };
+            if needs {
+                cur_of[bi] = n_unk;
+                n_unk += 1;
+            }
+        }
+        let cut_comps: Vec<usize> = (0..comps.len()).filter(|&c| !comp_windings[c].is_empty()).collect();
+        let free_comps: Vec<usize> = (0..comps.len()).filter(|&c| comp_windings[c].is_empty()).collect();
+        let n_lam = cut_comps.len() + loop_caps.len();
+        let n_free = free_comps.len();
+        let ncol = nz + n_lam + n_free;
+        let mut gauge_unk = vec![usize::MAX; comps.len()];
+        for &c in cut_comps.iter().chain(free_comps.iter()) {
+            gauge_unk[c] = n_unk;
+            n_unk += 1;
+        }
+        let mut g = DMatrix::<f64>::zeros(n_unk, n_unk);
+        let mut rhs = DMatrix::<f64>::zeros(n_unk, ncol);
+        let nidx = |n: usize| if n == 0 { None } else { Some(n - 1) };
+        // Row r of the branch equation of unknown k is k itself.
+        let stamp_g = |g: &mut DMatrix<f64>, a: usize, b: usize, cond: f64| {
+            if let Some(i) = nidx(a) {
+                g[(i, i)] += cond;
+            }
+            if let Some(j) = nidx(b) {
+                g[(j, j)] += cond;
+            }
+            if let (Some(i), Some(j)) = (nidx(a), nidx(b)) {
+                g[(i, j)] -= cond;
+                g[(j, i)] -= cond;
+            }
+        };
+        // Current `k` (an unknown) leaves node a, enters node b, with factor f.
+        let stamp_cur = |g: &mut DMatrix<f64>, a: usize, b: usize, k: usize, f: f64| {
+            if let Some(i) = nidx(a) {
+                g[(i, k)] += f;
+            }
+            if let Some(j) = nidx(b) {
+                g[(j, k)] -= f;
+            }
+        };
+        // Branch row k: v_a − v_b (times f) on the left.
+        let stamp_v = |g: &mut DMatrix<f64>, k: usize, a: usize, b: usize, f: f64| {
+            if let Some(i) = nidx(a) {
+                g[(k, i)] += f;
+            }
+            if let Some(j) = nidx(b) {
+                g[(k, j)] -= f;
+            }
+        };
+        // Known current (a column combination) leaving a, entering b.
+        let inject = |rhs: &mut DMatrix<f64>, a: usize, b: usize, col: usize, f: f64| {
+            if let Some(i) = nidx(a) {
+                rhs[(i, col)] -= f;
+            }
+            if let Some(j) = nidx(b) {
+                rhs[(j, col)] += f;
+            }
+        };
+        for (bi, b) in cc.branches.iter().enumerate() {
+            let (a, bn) = (b.a, b.b);
+            match &b.kind {
+                BranchKind::Resistor { g: cond } => stamp_g(&mut g, a, bn, *cond),
+                BranchKind::Winding { state } => inject(&mut rhs, a, bn, *state, 1.0),
+                BranchKind::ISource { src } => {
+                    for &(col, f) in &cc.sources[*src].terms {
+                        inject(&mut rhs, a, bn, col, f);
+                    }
+                }
+                BranchKind::Capacitor { state, .. } => {
+                    if let Some(li) = loop_caps.iter().position(|(c, _)| *c == bi) {
+                        inject(&mut rhs, a, bn, nz + cut_comps.len() + li, 1.0);
+                    } else {
+                        let k = cur_of[bi];
+                        stamp_cur(&mut g, a, bn, k, 1.0);
+                        stamp_v(&mut g, k, a, bn, 1.0);
+                        rhs[(k, *state)] = 1.0;
+                    }
+                }
+                BranchKind::VSource { src } => {
+                    let k = cur_of[bi];
+                    stamp_cur(&mut g, a, bn, k, 1.0);
+                    stamp_v(&mut g, k, a, bn, 1.0);
+                    for &(col, f) in &cc.sources[*src].terms {
+                        rhs[(k, col)] += f;
+                    }
+                }
+                BranchKind::Switch { sw } => {
+                    if sw_on(*sw) {
+                        let r = cc.switches[*sw].r_on;
+                        if r > 0.0 {
+                            stamp_g(&mut g, a, bn, 1.0 / r);
+                        } else {
+                            let k = cur_of[bi];
+                            stamp_cur(&mut g, a, bn, k, 1.0);
+                            stamp_v(&mut g, k, a, bn, 1.0);
+                        }
+                    }
+                }
+                BranchKind::Diode { d } => {
+                    if d_on(*d) {
+                        let k = cur_of[bi];
+                        let di = &cc.diodes[*d];
+                        stamp_cur(&mut g, a, bn, k, 1.0);
+                        stamp_v(&mut g, k, a, bn, 1.0);
+                        g[(k, k)] -= di.r_on;
+                        rhs[(k, one)] += di.vf;
+                    }
+                }
+                BranchKind::Transformer { n, sec } => {
+                    let k = cur_of[bi];
+                    stamp_cur(&mut g, a, bn, k, 1.0);
+                    stamp_cur(&mut g, sec.0, sec.1, k, -n);
+                    stamp_v(&mut g, k, a, bn, 1.0);
+                    stamp_v(&mut g, k, sec.0, sec.1, -n);
+                }
+            }
+        }
+        for (ci, &c) in cut_comps.iter().enumerate() {
+            let k = gauge_unk[c];
+            let r = rep(c);
+            stamp_cur(&mut g, r, 0, k, 1.0);
+            stamp_v(&mut g, k, r, 0, 1.0);
+            rhs[(k, nz + ci)] = 1.0;
+        }
+        for (fi, &c) in free_comps.iter().enumerate() {
+            let k = gauge_unk[c];
+            let r = rep(c);
+            stamp_cur(&mut g, r, 0, k, 1.0);
+            stamp_v(&mut g, k, r, 0, 1.0);
+            rhs[(k, nz + n_lam + fi)] = 1.0;
+        }
+
+        // 4. Solve the network.
+        let pattern = ();
+        let lu = g.clone().full_piv_lu();
+        let u = lu.u();
+        let pmax = (0..u.nrows().min(u.ncols())).map(|i| u[(i, i)].abs()).fold(0.0, f64::max);
+        let pmin = (0..u.nrows().min(u.ncols())).map(|i| u[(i, i)].abs()).fold(f64::INFINITY, f64::min);
+        if n_unk > 0 && !(pmin > 1e-13 * pmax) {
+            let reason = "the network equations are singular".to_string();
+            return Ok(Mode::invalid(cc, key, problem.unwrap_or(ModeProblem::Unsupported(reason))));
+        }
+        let y = if n_unk > 0 { lu.solve(&rhs).expect("checked invertible") } else { DMatrix::zeros(0, ncol) };
+        let vrow = |n: usize| -> DVector<f64> {
+            match nidx(n) {
+                Some(i) => y.row(i).transpose(),
+                None => DVector::zeros(ncol),
+            }
+        };
+
+        // 5. State derivatives as functions of [z; λ; free].
+        let mut d = DMatrix::<f64>::zeros(nz, ncol);
+        for grp in &cc.groups {
+            let vs: Vec<DVector<f64>> = grp
+                .states
+                .iter()
+                .map(|&s| {
+                    let br = cc.branches.iter().find(|b| matches!(b.kind, BranchKind::Winding { state } if state == s)).expect("winding");
+                    vrow(br.a) - vrow(br.b)
+                })
+                .collect();
+            for (i, &s) in grp.states.iter().enumerate() {
+                let mut row = DVector::zeros(ncol);
+                for (j, v) in vs.iter().enumerate() {
+                    row += v * grp.l_inv[(i, j)];
+                }
+                d.set_row(s, &row.transpose());
+            }
+        }
+        for (bi, b) in cc.branches.iter().enumerate() {
+            if let BranchKind::Capacitor { state, c } = b.kind {
+                if let Some(li) = loop_caps.iter().position(|(x, _)| *x == bi) {
+                    d[(state, nz + cut_comps.len() + li)] = 1.0 / c;
+                } else {
+                    let row = y.row(cur_of[bi]) / c;
+                    d.set_row(state, &row);
+                }
+            }
+        }
+        for &(s, co, w) in &cc.oscillators {
+            d[(s, co)] = w;
+            d[(co, s)] = -w;
+        }
+        for k in 0..cc.n_u {
+            d[(nx + k, nx + cc.n_u + k)] = 1.0;
+        }
+
+        // 6. Constraints and multipliers.
+        let mut h = DMatrix::<f64>::zeros(n_lam, ncol);
+        let mut constraints = vec![];
+        for (ci, &c) in cut_comps.iter().enumerate() {
+            h.set_row(ci, &y.row(gauge_unk[c]));
+            constraints.push(ConstraintKind::Cutset { windings: comp_windings[c].clone(), node: rep(c) });
+        }
+        for (li, (bi, caps)) in loop_caps.iter().enumerate() {
+            let b = &cc.branches[*bi];
+            let BranchKind::Capacitor { state, .. } = b.kind else { unreachable!("loop_caps holds capacitors") };
+            let mut row = -(vrow(b.a) - vrow(b.b));
+            row[state] += 1.0;
+            h.set_row(cut_comps.len() + li, &row.transpose());
+            let mut all = caps.clone();
+            all.insert(0, *bi);
+            constraints.push(ConstraintKind::Loop { caps: all });
+        }
+        let hz = h.columns(0, nz).into_owned();
+        let dz = d.columns(0, nz).into_owned();
+        let dl = d.columns(nz, n_lam).into_owned();
+        let (lam, p) = if n_lam > 0 {
+            let s = &hz * &dl;
+            let slu = s.clone().full_piv_lu();
+            let su = slu.u();
+            let smax = (0..n_lam).map(|i| su[(i, i)].abs()).fold(0.0, f64::max);
+            let smin = (0..n_lam).map(|i| su[(i, i)].abs()).fold(f64::INFINITY, f64::min);
+            if !(smin > 1e-12 * smax) {
+                let reason = "a set of windings or capacitors whose constraint cannot be resolved".to_string();
+                return Ok(Mode::invalid(cc, key, problem.unwrap_or(ModeProblem::Unsupported(reason))));
+            }
+            let lam = -slu.solve(&(&hz * &dz)).expect("checked invertible");
+            let p = DMatrix::identity(nz, nz) - &dl * slu.solve(&hz).expect("checked invertible");
+            (lam, p)
+        } else {
+            (DMatrix::zeros(0, nz), DMatrix::identity(nz, nz))
+        };
+        let yz = y.columns(0, nz).into_owned() + y.columns(nz, n_lam) * &lam;
+        let yf = y.columns(nz + n_lam, n_free).into_owned();
+        let m = &dz + &dl * &lam;
+
+        // 7. Outputs.
+        let n_out = cc.outputs.len();
+        let mut cm = DMatrix::<f64>::zeros(n_out, nz);
+        let mut undetermined = vec![false; n_out];
+        let vz = |n: usize| -> (DVector<f64>, DVector<f64>) {
+            match nidx(n) {
+                Some(i) => (yz.row(i).transpose(), yf.row(i).transpose()),
+                None => (DVector::zeros(nz), DVector::zeros(n_free)),
+            }
+        };
+        let curz = |bi: usize| -> (DVector<f64>, DVector<f64>) {
+            (yz.row(cur_of[bi]).transpose(), yf.row(cur_of[bi]).transpose())
+        };
+        for (oi, (_, def)) in cc.outputs.iter().enumerate() {
+            let (row, free): (DVector<f64>, DVector<f64>) = match def {
+                OutputDef::Node(n) => vz(*n),
+                OutputDef::BranchVoltage(bi) => {
+                    let b = &cc.branches[*bi];
+                    let (a1, a2) = vz(b.a);
+                    let (b1, b2) = vz(b.b);
+                    (a1 - b1, a2 - b2)
+                }
+                OutputDef::SecondaryVoltage(bi) => {
+                    let BranchKind::Transformer { sec, .. } = cc.branches[*bi].kind else { unreachable!() };
+                    let (a1, a2) = vz(sec.0);
+                    let (b1, b2) = vz(sec.1);
+                    (a1 - b1, a2 - b2)
+                }
+                OutputDef::SecondaryCurrent(bi) => {
+                    let BranchKind::Transformer { n, .. } = cc.branches[*bi].kind else { unreachable!() };
+                    let (r, f) = curz(*bi);
+                    (r * -n, f * -n)
+                }
+                OutputDef::BranchCurrent(bi) => {
+                    let b = &cc.branches[*bi];
+                    let zero = (DVector::zeros(nz), DVector::zeros(n_free));
+                    match &b.kind {
+                        BranchKind::Resistor { g: cond } => {
+                            let (a1, a2) = vz(b.a);
+                            let (b1, b2) = vz(b.b);
+                            ((a1 - b1) * *cond, (a2 - b2) * *cond)
+                        }
+                        BranchKind::Winding { state } => {
+                            let mut r = DVector::zeros(nz);
+                            r[*state] = 1.0;
+                            (r, DVector::zeros(n_free))
+                        }
+                        BranchKind::Capacitor { state, c } => (m.row(*state).transpose() * *c, DVector::zeros(n_free)),
+                        BranchKind::ISource { src } => {
+                            let mut r = DVector::zeros(nz);
+                            for &(col, f) in &cc.sources[*src].terms {
+                                r[col] += f;
+                            }
+                            (r, DVector::zeros(n_free))
+                        }
+                        BranchKind::VSource { .. } | BranchKind::Transformer { .. } => curz(*bi),
+                        BranchKind::Switch { sw } => {
+                            if !sw_on(*sw) {
+                                zero
+                            } else if cc.switches[*sw].r_on > 0.0 {
+                                let gsw = 1.0 / cc.switches[*sw].r_on;
+                                let (a1, a2) = vz(b.a);
+                                let (b1, b2) = vz(b.b);
+                                ((a1 - b1) * gsw, (a2 - b2) * gsw)
+                            } else {
+                                curz(*bi)
+                            }
+                        }
+                        BranchKind::Diode { d } => {
+                            if d_on(*d) {
+                                curz(*bi)
+                            } else {
+                                zero
+                            }
+                        }
+                    }
+                }
+            };
+            cm.set_row(oi, &row.transpose());
+            undetermined[oi] = free.iter().any(|v| v.abs() > 1e-9);
+        }
+
+        // 8. Guards.
+        let mut guards = vec![];
+        let mut free_dep: Vec<(usize, Vec<f64>, DVector<f64>)> = vec![];
+        for (di, dinfo) in cc.diodes.iter().enumerate() {
+            let b = &cc.branches[dinfo.branch];
+            if d_on(di) {
+                let (r, _) = curz(dinfo.branch);
+                guards.push(Guard { kind: GuardKind::DiodeCurrent(di), row: r.iter().copied().collect() });
+            } else {
+                let (a1, a2) = vz(b.a);
+                let (b1, b2) = vz(b.b);
+                let mut row = -(a1 - b1);
+                row[one] += dinfo.vf;
+                let dep = -(a2 - b2);
+                if dep.iter().all(|v| v.abs() < 1e-9) {
+                    guards.push(Guard { kind: GuardKind::DiodeVoltage(di), row: row.iter().copied().collect() });
+                } else {
+                    free_dep.push((di, row.iter().copied().collect(), dep));
+                }
+            }
+        }
+        // Pair diodes whose voltages move oppositely with the same free gauge
+        // (Fourier–Motzkin elimination of that gauge).
+        for i in 0..free_dep.len() {
+            for j in i + 1..free_dep.len() {
+                let (di, ri, ei) = &free_dep[i];
+                let (dj, rj, ej) = &free_dep[j];
+                let sum = ei + ej;
+                if sum.iter().all(|v| v.abs() < 1e-9) {
+                    let row: Vec<f64> = ri.iter().zip(rj).map(|(a, b)| a + b).collect();
+                    guards.push(Guard { kind: GuardKind::DiodePair(*di, *dj), row });
+                }
+            }
+        }
+        // 9. Free groups with current sources must balance.
+        let mut free_checks = vec![];
+        for &c in &free_comps {
+            if !comp_sources[c].is_empty() {
+                free_checks.push((y.row(gauge_unk[c]).columns(0, nz).iter().copied().collect(), rep(c), comp_sources[c].clone()));
+            }
+        }
+        // 10. Rate: ∞-norm of the state block in energy-scaled coordinates.
+        let mut rate: f64 = 0.0;
+        for i in 0..nx {
+            let mut s = 0.0;
+            for j in 0..nx {
+                s += (m[(i, j)] * cc.x_scale[i] / cc.x_scale[j]).abs();
+            }
+            rate = rate.max(s);
+        }
+        let _ = pattern;
+        Ok(Mode {
+            key,
+            problem,
+            m,
+            c: cm,
+            undetermined,
+            guards,
+            h: hz,
+            constraints,
+            p,
+            free_checks,
+            rate,
+        })
+    }
+
+    fn invalid(cc: &Compiled, key: ModeKey, problem: ModeProblem) -> Mode {
+        let nz = cc.n_z();
+        Mode {
+            key,
+            problem: Some(problem),
+            m: DMatrix::zeros(nz, nz),
+            c: DMatrix::zeros(cc.outputs.len(), nz),
+            undetermined: vec![true; cc.outputs.len()],
+            guards: vec![],
+            h: DMatrix::zeros(0, nz),
+            constraints: vec![],
+            p: DMatrix::identity(nz, nz),
+            free_checks: vec![],
+            rate: 0.0,
+        }
+    }
+}
+
+/// The pattern as text: `S1 on, D1 blocking`.
+pub(crate) fn pattern_text(cc: &Compiled, key: ModeKey) -> String {
+    let mut parts = vec![];
+    for (i, s) in cc.switches.iter().enumerate() {
+        parts.push(format!("{} {}", s.name, if key.switches >> i & 1 == 1 { "on" } else { "off" }));
+    }
+    for (i, d) in cc.diodes.iter().enumerate() {
+        parts.push(format!("{} {}", d.name, if key.diodes >> i & 1 == 1 { "conducting" } else { "blocking" }));
+    }
+    if parts.is_empty() {
+        "no switches or diodes".into()
+    } else {
+        parts.join(", ")
+    }
+}

@@ -1,0 +1,60 @@
+//! Run options: one plain struct; every field's doc starts with its default.
+
+/// What to do when a mode leaves inductor current with no path.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub enum OnInterruption {
+    /// Default. Stop the run with [`crate::SolverError::InductorInterrupted`].
+    #[default]
+    Stop,
+    /// Continue with the flux-conserving jump (inductors left in series
+    /// share current by conservation of flux linkage) and record the energy
+    /// dumped as a [`crate::EventKind::FluxJump`] event.
+    ConserveFlux,
+}
+
+/// Which part of the run to keep.
+#[derive(Clone, Copy, Debug, Default, PartialEq)]
+pub enum Record {
+    /// Default. Keep every segment and event.
+    #[default]
+    All,
+    /// Keep segments and events that overlap [from, to] only; memory stays
+    /// bounded however long the run.
+    Window {
+        /// Start (s).
+        from: f64,
+        /// End (s).
+        to: f64,
+    },
+    /// Keep nothing (a sink, if set, still sees every segment).
+    Nothing,
+}
+
+/// Options of a transient run.
+#[derive(Clone, Debug)]
+pub struct Options {
+    /// Default `Record::All`. What to keep in the waveform and event log.
+    pub record: Record,
+    /// Default `Stop`. Stop or conserve flux when an inductor current is interrupted.
+    pub on_interruption: OnInterruption,
+    /// Default 1e9. The run stops with an error after this many events.
+    pub max_events: usize,
+    /// Default 200. More events than this within `chatter_window` stop the
+    /// run with a chatter diagnostic instead of hanging.
+    pub chatter_events: usize,
+    /// Default 1e-12 s. Window for `chatter_events`; lower it for circuits
+    /// that switch faster than a few nanoseconds.
+    pub chatter_window: f64,
+}
+
+impl Default for Options {
+    fn default() -> Self {
+        Options {
+            record: Record::All,
+            on_interruption: OnInterruption::Stop,
+            max_events: 1_000_000_000,
+            chatter_events: 200,
+            chatter_window: 1e-12,
+        }
+    }
+}
