@@ -94,10 +94,21 @@ impl Circuit {
             let path = e.path().to_string();
             let inner = e.into_inner();
             let message = inner.to_string();
-            let path = if path == "." || path.is_empty() {
-                format!("line {} column {}", inner.line(), inner.column())
+            let syntax = matches!(
+                inner.classify(),
+                serde_json::error::Category::Syntax | serde_json::error::Category::Eof
+            );
+            let (path, message) = if syntax || path == "." || path.is_empty() {
+                // Not JSON at all, or not an object: the position is the
+                // only place there is to name.
+                let at = format!("line {} column {}", inner.line(), inner.column());
+                let message = message
+                    .strip_suffix(&format!(" at {at}"))
+                    .map(str::to_string)
+                    .unwrap_or(message);
+                (at, message)
             } else {
-                narrow_path(text, path, &message)
+                (narrow_path(text, path, &message), message)
             };
             NetlistError::Json { path, message }
         })
@@ -223,13 +234,22 @@ fn value_at<'v>(v: &'v mut serde_json::Value, steps: &[Step]) -> Option<&'v mut 
 /// serde buffers an element, waveform or gate (each tagged by `"kind"`)
 /// before it reads the fields, so `serde_path_to_error` can name only the
 /// object (`elements[2]`), not the field (`elements[2].inductance`). The
-/// field is found by reproducing the same error on reduced copies of the
-/// document: the object cut down to one member (plus `kind`), a list cut
-/// down to one item. Narrowing stops where the emptied object fails the
-/// same way (a missing field is the object's own fault) or no member
-/// reproduces the error. A flattened member (a diode's model) is found by
-/// removing members instead. This runs only after a failure, so good input
-/// pays nothing for it.
+/// member at fault is found by reproducing the error on changed copies of
+/// the document, one level at a time:
+///
+/// - a bad or unknown member: the object cut down to that member (plus
+///   `kind`), or a list cut down to that item, fails the same way (serde
+///   reports the first bad member before it checks for missing ones);
+/// - a missing field `f`: narrowing stops at the object where supplying
+///   `f` changes the error (into anything but "unknown field"); above it,
+///   the member holding that object is the one whose removal changes the
+///   error;
+/// - a flattened member (a diode's model) is read after the others, so the
+///   cut-down object reports a missing field first; there the member whose
+///   removal changes the error (to anything but its own absence) is taken.
+///
+/// Narrowing stops where no member reproduces the error. This runs only
+/// after a failure, so good input pays nothing for it.
 fn narrow_path(text: &str, path: String, message: &str) -> String {
     use serde_json::Value;
 
@@ -244,10 +264,14 @@ fn narrow_path(text: &str, path: String, message: &str) -> String {
     let Some(baseline) = error(&doc).filter(|b| message.starts_with(b.as_str())) else {
         return path;
     };
-    // Where the object is in the reduced document (list indices become 0).
+    let missing = baseline
+        .strip_prefix("missing field `")
+        .and_then(|r| r.strip_suffix('`'))
+        .map(str::to_string);
+    // Where the object is in the (possibly cut-down) document.
     let mut nav = shown.clone();
-    // A copy of `doc` with the value at `nav` reduced to `keep` alone.
-    let reduced = |doc: &Value, nav: &[Step], keep: Option<&Step>| {
+    // A copy of `doc` with the value at `nav` cut down to `keep` alone.
+    let cut = |doc: &Value, nav: &[Step], keep: Option<&Step>| {
         let mut trial = doc.clone();
         match value_at(&mut trial, nav) {
             Some(Value::Object(m)) => {
@@ -263,12 +287,26 @@ fn narrow_path(text: &str, path: String, message: &str) -> String {
         }
         trial
     };
+    // The error of a copy of `doc` without the member `step` at `nav`.
+    let without = |doc: &Value, nav: &[Step], step: &Step| {
+        let mut trial = doc.clone();
+        match (value_at(&mut trial, nav), step) {
+            (Some(Value::Object(m)), Step::Key(k)) => {
+                m.remove(k.as_str());
+            }
+            (Some(Value::Array(items)), Step::Index(i)) => {
+                items.remove(*i);
+            }
+            _ => {}
+        }
+        error(&trial)
+    };
     loop {
         let candidates: Vec<Step> = match value_at(&mut doc, &nav) {
             Some(Value::Object(m)) => m
-                .keys()
-                .filter(|k| *k != "kind")
-                .map(|k| Step::Key(k.clone()))
+                .iter()
+                .filter(|(k, v)| *k != "kind" && (missing.is_none() || v.is_object() || v.is_array()))
+                .map(|(k, _)| Step::Key(k.clone()))
                 .collect(),
             // A wrong length is the list's own fault, not an item's.
             Some(Value::Array(items)) if !baseline.starts_with("invalid length") => {
@@ -276,11 +314,38 @@ fn narrow_path(text: &str, path: String, message: &str) -> String {
             }
             _ => break,
         };
-        if error(&reduced(&doc, &nav, None)).as_ref() == Some(&baseline) {
+        if let Some(f) = &missing {
+            // This object is the one missing `f` if supplying `f` changes
+            // the error into anything but "unknown field `f`".
+            let mut trial = doc.clone();
+            if let Some(Value::Object(m)) = value_at(&mut trial, &nav) {
+                if !m.contains_key(f) {
+                    m.insert(f.clone(), Value::from(0));
+                    let e = error(&trial);
+                    let unknown = format!("unknown field `{f}`");
+                    if e.as_ref() != Some(&baseline) && !e.is_some_and(|e| e.starts_with(&unknown)) {
+                        break;
+                    }
+                }
+            }
+            match candidates
+                .into_iter()
+                .find(|step| without(&doc, &nav, step).as_ref() != Some(&baseline))
+            {
+                Some(step) => {
+                    shown.push(step.clone());
+                    nav.push(step);
+                    continue;
+                }
+                None => break,
+            }
+        }
+        if error(&cut(&doc, &nav, None)).as_ref() == Some(&baseline) {
+            // The emptied object fails the same way: the fault is its own.
             break;
         }
         let found = candidates.iter().find_map(|step| {
-            let trial = reduced(&doc, &nav, Some(step));
+            let trial = cut(&doc, &nav, Some(step));
             (error(&trial).as_ref() == Some(&baseline)).then(|| (step.clone(), trial))
         });
         if let Some((step, trial)) = found {
@@ -292,21 +357,12 @@ fn narrow_path(text: &str, path: String, message: &str) -> String {
             });
             continue;
         }
-        // Flattened members are read after the others, so cutting the
-        // object down reports a missing field first; removing the culprit
-        // instead makes the error go away (or become another one).
-        let removed = candidates.iter().find(|step| {
+        let removed = candidates.into_iter().find(|step| {
             let Step::Key(k) = step else { return false };
-            let mut trial = doc.clone();
-            if let Some(Value::Object(m)) = value_at(&mut trial, &nav) {
-                m.remove(k.as_str());
-            }
-            let e = error(&trial);
+            let e = without(&doc, &nav, step);
             e.as_ref() != Some(&baseline) && e != Some(format!("missing field `{k}`"))
         });
-        if let Some(step) = removed {
-            shown.push(step.clone());
-        }
+        shown.extend(removed);
         break;
     }
     shown.iter().fold(String::new(), |mut out, s| {

@@ -174,3 +174,93 @@ fn awkward_but_valid_data_renders() {
         assert_eq!(svg.matches("<polyline").count(), 1, "{pts:?}");
     }
 }
+
+/// Small deterministic generator so the sweep below is reproducible.
+struct Rng(u64);
+
+impl Rng {
+    fn next(&mut self) -> u64 {
+        self.0 ^= self.0 << 13;
+        self.0 ^= self.0 >> 7;
+        self.0 ^= self.0 << 17;
+        self.0
+    }
+    fn unit(&mut self) -> f64 {
+        (self.next() >> 11) as f64 / (1u64 << 53) as f64
+    }
+    fn below(&mut self, n: u64) -> u64 {
+        self.next() % n
+    }
+}
+
+#[test]
+fn random_figures_never_panic_and_keep_one_polyline_per_trace() {
+    let mut rng = Rng(0x9e37_79b9_7f4a_7c15);
+    let mut rendered = 0;
+    let specials = [f64::NAN, f64::INFINITY, 0.0, -0.0, 1e308, -1e308, 5e-324];
+    for case in 0..400 {
+        let mut fig = Figure::new(format!("case {case}"))
+            .with_size(40 + rng.below(1500) as u32, 40 + rng.below(1200) as u32);
+        let panels = if rng.below(20) == 0 {
+            0
+        } else {
+            1 + rng.below(3)
+        };
+        for p in 0..panels {
+            let mut panel = Panel::new(format!("p{p}"));
+            let unit = ["A", "V", "W", ""][rng.below(4) as usize];
+            let traces = if rng.below(20) == 0 {
+                0
+            } else {
+                1 + rng.below(2)
+            };
+            for t in 0..traces {
+                let n = rng.below(60) as usize;
+                let scale = 10f64.powi(rng.below(60) as i32 - 30);
+                let mut time = rng.unit() * scale - 0.5 * scale;
+                let mut pts = Vec::with_capacity(n);
+                for _ in 0..n {
+                    if rng.below(5) > 0 {
+                        time += rng.unit() * scale;
+                    }
+                    if rng.below(500) == 0 {
+                        time -= scale;
+                    }
+                    let mut v = (rng.unit() - 0.5) * 10f64.powi(rng.below(40) as i32 - 20);
+                    if rng.below(400) == 0 {
+                        v = specials[rng.below(specials.len() as u64) as usize];
+                    }
+                    pts.push((time, v));
+                }
+                panel = panel.with_trace(Trace::new(format!("t{t}"), unit, pts));
+            }
+            if rng.below(3) == 0 {
+                let a = rng.unit();
+                panel = panel.with_annotation(Annotation::Ripple {
+                    trace_index: rng.below(3) as usize,
+                    min: a,
+                    max: a + rng.unit(),
+                });
+            }
+            if rng.below(3) == 0 {
+                let times = (0..rng.below(30))
+                    .map(|k| (rng.unit() * 1e-5, format!("k{}", k % 3)))
+                    .collect();
+                panel = panel.with_annotation(Annotation::EventMarkers { times });
+            }
+            fig = fig.with_panel(panel);
+        }
+        if rng.below(3) == 0 {
+            let a = (rng.unit() - 0.5) * 1e-4;
+            fig = fig.with_window(a, a + rng.unit() * 1e-4);
+        }
+        let traces: usize = fig.panels.iter().map(|p| p.traces.len()).sum();
+        if let Ok(svg) = render_svg(&fig) {
+            roxmltree::Document::parse(&svg).unwrap_or_else(|e| panic!("case {case}: {e}"));
+            assert_eq!(svg.matches("<polyline").count(), traces, "case {case}");
+            rendered += 1;
+        }
+    }
+    // The sweep is only worth its time if a good share of cases get drawn.
+    assert!(rendered > 100, "only {rendered} of 400 cases rendered");
+}

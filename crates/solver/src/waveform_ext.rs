@@ -1,0 +1,91 @@
+//! Crate-internal access to the exact local form of an output: on each short
+//! sub-interval of a segment the output is a polynomial in normalised time,
+//! which extreme searches and root finders can use directly.
+
+use crate::propagate;
+use crate::waveform::{OutputId, Waveform};
+
+/// One sub-interval `[t_start, t_end]` of a segment on which the output is
+/// exactly `y(t_start + delta·σ) = Σ coef[k]·σᵏ` for σ ∈ [0, 1] (up to
+/// rounding: the Taylor series is cut where its terms fall below 10⁻¹⁸ of
+/// the state, see [`propagate::taylor_terms`]).
+pub(crate) struct Piece<'a> {
+    /// Start of the sub-interval (s).
+    pub t_start: f64,
+    /// End of the sub-interval (s); exactly the clipped segment end for the
+    /// last piece, so that callers report event instants without rounding.
+    pub t_end: f64,
+    /// Length used for the normalisation (s).
+    pub delta: f64,
+    /// Polynomial coefficients in σ.
+    pub coef: &'a [f64],
+}
+
+impl Waveform {
+    /// Whether `id` names an output of this waveform (ids of another
+    /// circuit's waveform could index past the output table).
+    pub(crate) fn has_output(&self, id: OutputId) -> bool {
+        id.0 < self.output_names.len()
+    }
+
+    /// The output's name, for error messages.
+    pub(crate) fn output_name(&self, id: OutputId) -> &str {
+        self.output_names
+            .get(id.0)
+            .map(String::as_str)
+            .unwrap_or("<unknown output>")
+    }
+
+    /// Whether output `id` is undetermined (depends on a free gauge, e.g. a
+    /// floating node) throughout segment `i`.
+    pub(crate) fn undetermined_in(&self, i: usize, id: OutputId) -> bool {
+        let m = &self.modes[self.segments[i].mode as usize];
+        m.undetermined.get(id.0).copied().unwrap_or(true)
+    }
+
+    /// Whether output `id` is identically zero throughout segment `i` (its
+    /// output row is all zeros, e.g. the current of an open switch).
+    pub(crate) fn identically_zero_in(&self, i: usize, id: OutputId) -> bool {
+        let m = &self.modes[self.segments[i].mode as usize];
+        !m.undetermined.get(id.0).copied().unwrap_or(true)
+            && id.0 < m.c.nrows()
+            && m.c.row(id.0).iter().all(|&v| v == 0.0)
+    }
+
+    /// Calls `f` with the polynomial pieces of output `id` over
+    /// `[a, b] ⊆ [t0, t1]` of segment `i`. The sub-interval length follows
+    /// the mode's rate bound (ρ·δ ≤ 1/2), the same split as
+    /// [`Waveform::integrate`], so each polynomial converges fast and is
+    /// well conditioned on [0, 1].
+    pub(crate) fn output_pieces(
+        &self,
+        i: usize,
+        id: OutputId,
+        a: f64,
+        b: f64,
+        mut f: impl FnMut(&Piece<'_>),
+    ) {
+        let s = &self.segments[i];
+        let m = &self.modes[s.mode as usize];
+        if b <= a || id.0 >= m.c.nrows() {
+            return;
+        }
+        let row = m.c.row(id.0);
+        let n = propagate::substeps(m.rate, b - a);
+        let delta = (b - a) / n as f64;
+        let mut z = propagate::advance(&m.m, m.rate, &s.z0, a - s.t0);
+        let mut terms = Vec::new();
+        let mut coef = Vec::new();
+        for k in 0..n {
+            propagate::taylor_terms(&m.m, &z, delta, &mut terms);
+            coef.clear();
+            coef.extend(terms.iter().map(|w| row.iter().zip(w.iter()).map(|(p, q)| p * q).sum::<f64>()));
+            let t_start = a + delta * k as f64;
+            let t_end = if k + 1 == n { b } else { a + delta * (k + 1) as f64 };
+            f(&Piece { t_start, t_end, delta, coef: &coef });
+            if k + 1 < n {
+                z = propagate::taylor(&m.m, &z, delta);
+            }
+        }
+    }
+}

@@ -1,0 +1,5 @@
+mod converters;
+mod crosscheck;
+mod exact;
+mod structure;
+pub mod util;

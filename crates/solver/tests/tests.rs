@@ -1,0 +1,11 @@
+//! Integration tests of the exact solver, one binary.
+//!
+//! - `physics::util`: helpers (circuits, energy balance, closed forms).
+//! - `physics::exact`: elementary circuits against closed-form solutions.
+//! - `physics::converters`: buck (continuous and discontinuous conduction),
+//!   boost and rectifier against textbook relations.
+//! - `physics::crosscheck`: the buck against an adaptive Runge–Kutta solver.
+//! - `physics::structure`: jumps, interruption, shoot-through, chatter,
+//!   floating nodes, magnetics and dead time.
+
+mod physics;
