@@ -94,13 +94,10 @@ impl Circuit {
             let path = e.path().to_string();
             let inner = e.into_inner();
             let message = inner.to_string();
-            let syntax = matches!(
-                inner.classify(),
-                serde_json::error::Category::Syntax | serde_json::error::Category::Eof
-            );
-            let (path, message) = if syntax || path == "." || path.is_empty() {
-                // Not JSON at all, or not an object: the position is the
-                // only place there is to name.
+            let eof = inner.classify() == serde_json::error::Category::Eof;
+            let (path, message) = if eof || path == "." || path.is_empty() || path.contains('?') {
+                // Cut short, not an object, or not JSON where the path ends
+                // (`?`): the position is the only place there is to name.
                 let at = format!("line {} column {}", inner.line(), inner.column());
                 let message = message
                     .strip_suffix(&format!(" at {at}"))
@@ -305,7 +302,9 @@ fn narrow_path(text: &str, path: String, message: &str) -> String {
         let candidates: Vec<Step> = match value_at(&mut doc, &nav) {
             Some(Value::Object(m)) => m
                 .iter()
-                .filter(|(k, v)| *k != "kind" && (missing.is_none() || v.is_object() || v.is_array()))
+                .filter(|(k, v)| {
+                    *k != "kind" && (missing.is_none() || v.is_object() || v.is_array())
+                })
                 .map(|(k, _)| Step::Key(k.clone()))
                 .collect(),
             // A wrong length is the list's own fault, not an item's.
@@ -323,7 +322,8 @@ fn narrow_path(text: &str, path: String, message: &str) -> String {
                     m.insert(f.clone(), Value::from(0));
                     let e = error(&trial);
                     let unknown = format!("unknown field `{f}`");
-                    if e.as_ref() != Some(&baseline) && !e.is_some_and(|e| e.starts_with(&unknown)) {
+                    if e.as_ref() != Some(&baseline) && !e.is_some_and(|e| e.starts_with(&unknown))
+                    {
                         break;
                     }
                 }

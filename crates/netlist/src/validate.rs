@@ -179,8 +179,18 @@ impl Sets {
 fn pairs<'c>(e: &'c Element, label: &str) -> Vec<(String, String, &'c [String; 2], bool)> {
     match e {
         Element::IdealTransformer(t) => vec![
-            ("primary".into(), format!("{label}.primary"), &t.primary, true),
-            ("secondary".into(), format!("{label}.secondary"), &t.secondary, true),
+            (
+                "primary".into(),
+                format!("{label}.primary"),
+                &t.primary,
+                true,
+            ),
+            (
+                "secondary".into(),
+                format!("{label}.secondary"),
+                &t.secondary,
+                true,
+            ),
         ],
         Element::CoupledInductors(c) => c
             .windings
@@ -280,7 +290,11 @@ impl Checker<'_> {
             return false;
         }
         if v < 0.0 {
-            self.field(element, field, format!("must not be negative, got {}", num(v)));
+            self.field(
+                element,
+                field,
+                format!("must not be negative, got {}", num(v)),
+            );
             return false;
         }
         true
@@ -394,11 +408,7 @@ impl Checker<'_> {
             Element::Switch(x) => {
                 self.optional_non_negative(l, "on_resistance", x.on_resistance);
                 if let Some(d) = &x.body_diode {
-                    self.optional_non_negative(
-                        l,
-                        "body_diode.forward_voltage",
-                        d.forward_voltage,
-                    );
+                    self.optional_non_negative(l, "body_diode.forward_voltage", d.forward_voltage);
                     self.optional_non_negative(l, "body_diode.on_resistance", d.on_resistance);
                 }
             }
@@ -424,7 +434,11 @@ impl Checker<'_> {
         }
         for (k, w) in x.windings.iter().enumerate() {
             ok &= self.positive(l, &format!("windings[{k}].inductance"), w.inductance);
-            self.optional_finite(l, &format!("windings[{k}].initial_current"), w.initial_current);
+            self.optional_finite(
+                l,
+                &format!("windings[{k}].initial_current"),
+                w.initial_current,
+            );
         }
         let names: Vec<&str> = x.windings.iter().map(|w| w.name.as_str()).collect();
         let mut pairs: HashMap<(usize, usize), usize> = HashMap::new();
@@ -585,7 +599,9 @@ impl Checker<'_> {
                     Some(&j) => self.field(
                         name,
                         "name",
-                        format!("duplicate gate name '{name}': gates[{j}] and gates[{i}] both use it"),
+                        format!(
+                            "duplicate gate name '{name}': gates[{j}] and gates[{i}] both use it"
+                        ),
                     ),
                     None => {
                         first.insert(name, i);
@@ -702,7 +718,11 @@ impl Checker<'_> {
         let f_ok = self.positive(l, "frequency", frequency);
         let mut d_ok = self.finite(l, "duty", duty);
         if d_ok && !(0.0..=1.0).contains(&duty) {
-            self.field(l, "duty", format!("duty cycle must lie in [0, 1], got {}", num(duty)));
+            self.field(
+                l,
+                "duty",
+                format!("duty cycle must lie in [0, 1], got {}", num(duty)),
+            );
             d_ok = false;
         }
         if self.finite(l, "delay", delay) && f_ok {
@@ -733,7 +753,11 @@ impl Checker<'_> {
                 self.field(
                     l,
                     "stop",
-                    format!("stop time {} s must come after start time {} s", num(b), num(a)),
+                    format!(
+                        "stop time {} s must come after start time {} s",
+                        num(b),
+                        num(a)
+                    ),
                 );
             }
         }
@@ -756,9 +780,11 @@ impl Checker<'_> {
             if signals.iter().any(|x| *x == s.gate) {
                 continue;
             }
-            let pair = self.circuit.gates.iter().any(|g| {
-                matches!(g, Gate::ComplementaryPwm { name, .. } if *name == s.gate)
-            });
+            let pair = self
+                .circuit
+                .gates
+                .iter()
+                .any(|g| matches!(g, Gate::ComplementaryPwm { name, .. } if *name == s.gate));
             let hint = if pair {
                 format!(
                     " (the complementary pair '{0}' provides '{0}.high' and '{0}.low')",
@@ -968,7 +994,8 @@ impl Checker<'_> {
                 .filter(|b| is_cs(b) && ((rest.find(b.a) == r) != (rest.find(b.b) == r)))
                 .map(|b| b.element)
                 .collect();
-            let source_names: Vec<&str> = sources.iter().map(|&e| self.labels[e].as_str()).collect();
+            let source_names: Vec<&str> =
+                sources.iter().map(|&e| self.labels[e].as_str()).collect();
             let p = Problem::field(
                 &self.labels[sources[0]],
                 "nodes",
@@ -999,17 +1026,26 @@ impl Checker<'_> {
         let Some(run) = &self.circuit.run else { return };
         let stop = run.stop_time;
         let stop_ok = if !stop.is_finite() {
-            self.run_problem("run.stop_time", format!("must be a finite number, got {stop}"));
+            self.run_problem(
+                "run.stop_time",
+                format!("must be a finite number, got {stop}"),
+            );
             false
         } else if stop <= 0.0 {
-            self.run_problem("run.stop_time", format!("must be positive, got {}", num(stop)));
+            self.run_problem(
+                "run.stop_time",
+                format!("must be positive, got {}", num(stop)),
+            );
             false
         } else {
             true
         };
         if let Some(r) = run.record_from {
             if !r.is_finite() {
-                self.run_problem("run.record_from", format!("must be a finite number, got {r}"));
+                self.run_problem(
+                    "run.record_from",
+                    format!("must be a finite number, got {r}"),
+                );
             } else if stop_ok && !(0.0..stop).contains(&r) {
                 self.run_problem(
                     "run.record_from",
@@ -1028,9 +1064,10 @@ impl Checker<'_> {
                 Err(p) => Some(p.message),
                 Ok(OutputName::Node(n)) => (!nodes.contains(&n))
                     .then(|| format!("output {text:?} names no node of the circuit")),
-                Ok(OutputName::Current(e)) | Ok(OutputName::Voltage(e)) => {
-                    self.output_target(&e).err().map(|why| format!("output {text:?}: {why}"))
-                }
+                Ok(OutputName::Current(e)) | Ok(OutputName::Voltage(e)) => self
+                    .output_target(&e)
+                    .err()
+                    .map(|why| format!("output {text:?}: {why}")),
             };
             if let Some(m) = message {
                 let mut p = Problem {
@@ -1139,7 +1176,10 @@ mod tests {
         // k12 = k13 = 0.9 force windings 2 and 3 to be strongly alike;
         // k23 = −0.9 says they are opposite: no real core does both.
         let k = [[1.0, 0.9, 0.9], [0.9, 1.0, -0.9], [0.9, -0.9, 1.0]];
-        let m: Vec<Vec<f64>> = k.iter().map(|r| r.iter().map(|x| x * 1e-3).collect()).collect();
+        let m: Vec<Vec<f64>> = k
+            .iter()
+            .map(|r| r.iter().map(|x| x * 1e-3).collect())
+            .collect();
         assert!(!positive_definite(&m));
     }
 

@@ -29,15 +29,33 @@ pub(crate) struct SourceRef {
 
 #[derive(Clone, Debug)]
 pub(crate) enum BranchKind {
-    Resistor { g: f64 },
-    Winding { state: usize },
-    Capacitor { state: usize, c: f64 },
-    VSource { src: usize },
-    ISource { src: usize },
-    Switch { sw: usize },
-    Diode { d: usize },
+    Resistor {
+        g: f64,
+    },
+    Winding {
+        state: usize,
+    },
+    Capacitor {
+        state: usize,
+        c: f64,
+    },
+    VSource {
+        src: usize,
+    },
+    ISource {
+        src: usize,
+    },
+    Switch {
+        sw: usize,
+    },
+    Diode {
+        d: usize,
+    },
     /// Primary branch of an ideal transformer; the secondary nodes are given.
-    Transformer { n: f64, sec: (usize, usize) },
+    Transformer {
+        n: f64,
+        sec: (usize, usize),
+    },
 }
 
 #[derive(Clone, Debug)]
@@ -187,13 +205,23 @@ impl Compiled {
         let n_x = x_names.len();
         c.n_x = n_x;
         let mut n_u = 1; // u_0 = 1
-        let mut osc_next = n_x - 2 * pending_src.iter().filter(|(_, w)| matches!(w, Waveform::Sine { .. })).count();
+        let mut osc_next = n_x
+            - 2 * pending_src
+                .iter()
+                .filter(|(_, w)| matches!(w, Waveform::Sine { .. }))
+                .count();
         for (name, w) in &pending_src {
             match w {
-                Waveform::Sine { offset, amplitude, frequency, .. } => {
+                Waveform::Sine {
+                    offset,
+                    amplitude,
+                    frequency,
+                    ..
+                } => {
                     let (s, co) = (osc_next, osc_next + 1);
                     osc_next += 2;
-                    c.oscillators.push((s, co, 2.0 * std::f64::consts::PI * frequency));
+                    c.oscillators
+                        .push((s, co, 2.0 * std::f64::consts::PI * frequency));
                     // offset·1 + amplitude·sin: the constant input sits at z[n_x].
                     c.sources.push(SourceRef {
                         name: name.clone(),
@@ -221,14 +249,21 @@ impl Compiled {
         // Pass 2: branches.
         let mut state = 0usize;
         let mut src = 0usize;
-        let sig_index = |g: &str| signals.iter().position(|(n, _)| n == g).expect("validated gate reference");
+        let sig_index = |g: &str| {
+            signals
+                .iter()
+                .position(|(n, _)| n == g)
+                .expect("validated gate reference")
+        };
         for e in &circuit.elements {
             match e {
                 Element::Resistor(r) => c.branches.push(Branch {
                     name: r.name.clone(),
                     a: node(&r.nodes[0]),
                     b: node(&r.nodes[1]),
-                    kind: BranchKind::Resistor { g: 1.0 / r.resistance },
+                    kind: BranchKind::Resistor {
+                        g: 1.0 / r.resistance,
+                    },
                 }),
                 Element::Inductor(l) => {
                     c.branches.push(Branch {
@@ -238,14 +273,21 @@ impl Compiled {
                         kind: BranchKind::Winding { state },
                     });
                     let m = DMatrix::from_element(1, 1, l.inductance);
-                    c.groups.push(InductorGroup { states: vec![state], l_inv: DMatrix::from_element(1, 1, 1.0 / l.inductance), l: m });
+                    c.groups.push(InductorGroup {
+                        states: vec![state],
+                        l_inv: DMatrix::from_element(1, 1, 1.0 / l.inductance),
+                        l: m,
+                    });
                     state += 1;
                 }
                 Element::CoupledInductors(k) => {
                     let lm = k.inductance_matrix();
                     let n = lm.len();
                     let l = DMatrix::from_fn(n, n, |i, j| lm[i][j]);
-                    let l_inv = l.clone().try_inverse().expect("validated positive definite");
+                    let l_inv = l
+                        .clone()
+                        .try_inverse()
+                        .expect("validated positive definite");
                     let mut states = vec![];
                     for w in &k.windings {
                         c.branches.push(Branch {
@@ -264,7 +306,10 @@ impl Compiled {
                         name: cap.name.clone(),
                         a: node(&cap.nodes[0]),
                         b: node(&cap.nodes[1]),
-                        kind: BranchKind::Capacitor { state, c: cap.capacitance },
+                        kind: BranchKind::Capacitor {
+                            state,
+                            c: cap.capacitance,
+                        },
                     });
                     c.caps.push((state, cap.capacitance));
                     state += 1;
@@ -295,7 +340,14 @@ impl Compiled {
                         r_on: s.on_resistance.unwrap_or(0.0),
                         signal: sig_index(&s.gate),
                     });
-                    c.branches.push(Branch { name: s.name.clone(), a, b, kind: BranchKind::Switch { sw: c.switches.len() - 1 } });
+                    c.branches.push(Branch {
+                        name: s.name.clone(),
+                        a,
+                        b,
+                        kind: BranchKind::Switch {
+                            sw: c.switches.len() - 1,
+                        },
+                    });
                     if let Some(m) = &s.body_diode {
                         let name = format!("{}.body_diode", s.name);
                         c.diodes.push(DiodeInfo {
@@ -304,7 +356,14 @@ impl Compiled {
                             vf: m.forward_voltage.unwrap_or(0.0),
                             r_on: m.on_resistance.unwrap_or(0.0),
                         });
-                        c.branches.push(Branch { name, a: b, b: a, kind: BranchKind::Diode { d: c.diodes.len() - 1 } });
+                        c.branches.push(Branch {
+                            name,
+                            a: b,
+                            b: a,
+                            kind: BranchKind::Diode {
+                                d: c.diodes.len() - 1,
+                            },
+                        });
                     }
                 }
                 Element::Diode(d) => {
@@ -318,7 +377,9 @@ impl Compiled {
                         name: d.name.clone(),
                         a: node(&d.nodes[0]),
                         b: node(&d.nodes[1]),
-                        kind: BranchKind::Diode { d: c.diodes.len() - 1 },
+                        kind: BranchKind::Diode {
+                            d: c.diodes.len() - 1,
+                        },
                     });
                 }
                 Element::IdealTransformer(t) => {
@@ -327,7 +388,10 @@ impl Compiled {
                         name: t.name.clone(),
                         a: node(&t.primary[0]),
                         b: node(&t.primary[1]),
-                        kind: BranchKind::Transformer { n: t.turns_ratio, sec },
+                        kind: BranchKind::Transformer {
+                            n: t.turns_ratio,
+                            sec,
+                        },
                     });
                 }
             }
@@ -339,13 +403,27 @@ impl Compiled {
         }
         for (i, b) in c.branches.iter().enumerate() {
             if let BranchKind::Transformer { .. } = b.kind {
-                c.outputs.push((format!("{}.primary.current", b.name), OutputDef::BranchCurrent(i)));
-                c.outputs.push((format!("{}.primary.voltage", b.name), OutputDef::BranchVoltage(i)));
-                c.outputs.push((format!("{}.secondary.current", b.name), OutputDef::SecondaryCurrent(i)));
-                c.outputs.push((format!("{}.secondary.voltage", b.name), OutputDef::SecondaryVoltage(i)));
+                c.outputs.push((
+                    format!("{}.primary.current", b.name),
+                    OutputDef::BranchCurrent(i),
+                ));
+                c.outputs.push((
+                    format!("{}.primary.voltage", b.name),
+                    OutputDef::BranchVoltage(i),
+                ));
+                c.outputs.push((
+                    format!("{}.secondary.current", b.name),
+                    OutputDef::SecondaryCurrent(i),
+                ));
+                c.outputs.push((
+                    format!("{}.secondary.voltage", b.name),
+                    OutputDef::SecondaryVoltage(i),
+                ));
             } else {
-                c.outputs.push((format!("{}.current", b.name), OutputDef::BranchCurrent(i)));
-                c.outputs.push((format!("{}.voltage", b.name), OutputDef::BranchVoltage(i)));
+                c.outputs
+                    .push((format!("{}.current", b.name), OutputDef::BranchCurrent(i)));
+                c.outputs
+                    .push((format!("{}.voltage", b.name), OutputDef::BranchVoltage(i)));
             }
         }
         Ok(c)
@@ -353,13 +431,18 @@ impl Compiled {
 
     /// Index of an output by its name (`NODE`, `ELEMENT.current`, …).
     pub fn output_index(&self, name: &str) -> Result<usize, SolverError> {
-        let parsed = OutputName::parse(name)
-            .map_err(|p| SolverError::UnknownOutput { name: name.into(), reason: p.message })?;
-        let key = parsed.to_string();
-        self.outputs.iter().position(|(n, _)| *n == key).ok_or_else(|| SolverError::UnknownOutput {
+        let parsed = OutputName::parse(name).map_err(|p| SolverError::UnknownOutput {
             name: name.into(),
-            reason: "no node or element of that name".into(),
-        })
+            reason: p.message,
+        })?;
+        let key = parsed.to_string();
+        self.outputs
+            .iter()
+            .position(|(n, _)| *n == key)
+            .ok_or_else(|| SolverError::UnknownOutput {
+                name: name.into(),
+                reason: "no node or element of that name".into(),
+            })
     }
 
     /// Stored energy ½·iᵀL i + ½·C v² of the state part of `z`.

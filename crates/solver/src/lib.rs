@@ -49,11 +49,13 @@
 mod compile;
 mod error;
 mod events;
+pub mod measure;
 mod mode;
 mod options;
 mod propagate;
 mod run;
 mod waveform;
+mod waveform_ext;
 
 pub use error::SolverError;
 pub use events::{Event, EventKind, EventLog};

@@ -77,7 +77,10 @@ pub(crate) enum ConstraintKind {
 /// other pattern is consistent).
 #[derive(Clone, Debug)]
 pub(crate) enum ModeProblem {
-    Short { switches: Vec<String>, shorted: Vec<String> },
+    Short {
+        switches: Vec<String>,
+        shorted: Vec<String>,
+    },
     Unsupported(String),
 }
 
@@ -143,7 +146,13 @@ fn forest_path(edges: &[(usize, usize, usize)], a: usize, b: usize, n_nodes: usi
             break;
         }
         for &(x, y, br) in edges {
-            let other = if x == n { y } else if y == n { x } else { continue };
+            let other = if x == n {
+                y
+            } else if y == n {
+                x
+            } else {
+                continue;
+            };
             if !seen[other] {
                 seen[other] = true;
                 prev[other] = Some((n, br));
@@ -173,7 +182,9 @@ impl Mode {
         let d_on = |i: usize| key.diodes >> i & 1 == 1;
         let present_voltage = |k: &BranchKind| -> bool {
             match k {
-                BranchKind::Resistor { .. } | BranchKind::VSource { .. } | BranchKind::Capacitor { .. } => true,
+                BranchKind::Resistor { .. }
+                | BranchKind::VSource { .. }
+                | BranchKind::Capacitor { .. } => true,
                 BranchKind::Transformer { .. } => true,
                 BranchKind::Switch { sw } => sw_on(*sw),
                 BranchKind::Diode { d } => d_on(*d),
@@ -228,7 +239,11 @@ impl Mode {
                 }
             }
         }
-        let rep = |c: usize| (1..nn).find(|&n| comp_of[n] == c).expect("a group has a node");
+        let rep = |c: usize| {
+            (1..nn)
+                .find(|&n| comp_of[n] == c)
+                .expect("a group has a node")
+        };
 
         // 2. Loops of zero-resistance voltage branches; capacitors last.
         let mut dsu2 = Dsu::new(nn);
@@ -258,7 +273,9 @@ impl Mode {
                     .copied()
                     .filter(|&p| matches!(cc.branches[p].kind, BranchKind::Capacitor { .. }))
                     .collect();
-                let has_source = path.iter().any(|&p| matches!(cc.branches[p].kind, BranchKind::VSource { .. }))
+                let has_source = path
+                    .iter()
+                    .any(|&p| matches!(cc.branches[p].kind, BranchKind::VSource { .. }))
                     || matches!(b.kind, BranchKind::VSource { .. });
                 let is_cap = matches!(b.kind, BranchKind::Capacitor { .. });
                 if is_cap && (!caps.is_empty() || has_source) {
@@ -268,12 +285,22 @@ impl Mode {
                     all.push(bi);
                     let switches: Vec<String> = all
                         .iter()
-                        .filter(|&&p| matches!(cc.branches[p].kind, BranchKind::Switch { .. } | BranchKind::Diode { .. }))
+                        .filter(|&&p| {
+                            matches!(
+                                cc.branches[p].kind,
+                                BranchKind::Switch { .. } | BranchKind::Diode { .. }
+                            )
+                        })
                         .map(|&p| cc.branches[p].name.clone())
                         .collect();
                     let shorted: Vec<String> = all
                         .iter()
-                        .filter(|&&p| matches!(cc.branches[p].kind, BranchKind::VSource { .. } | BranchKind::Capacitor { .. }))
+                        .filter(|&&p| {
+                            matches!(
+                                cc.branches[p].kind,
+                                BranchKind::VSource { .. } | BranchKind::Capacitor { .. }
+                            )
+                        })
                         .map(|&p| cc.branches[p].name.clone())
                         .collect();
                     problem = Some(if shorted.is_empty() {
@@ -305,8 +332,12 @@ impl Mode {
                 n_unk += 1;
             }
         }
-        let cut_comps: Vec<usize> = (0..comps.len()).filter(|&c| !comp_windings[c].is_empty()).collect();
-        let free_comps: Vec<usize> = (0..comps.len()).filter(|&c| comp_windings[c].is_empty()).collect();
+        let cut_comps: Vec<usize> = (0..comps.len())
+            .filter(|&c| !comp_windings[c].is_empty())
+            .collect();
+        let free_comps: Vec<usize> = (0..comps.len())
+            .filter(|&c| comp_windings[c].is_empty())
+            .collect();
         let n_lam = cut_comps.len() + loop_caps.len();
         let n_free = free_comps.len();
         let ncol = nz + n_lam + n_free;
@@ -436,13 +467,25 @@ impl Mode {
         let pattern = ();
         let lu = g.clone().full_piv_lu();
         let u = lu.u();
-        let pmax = (0..u.nrows().min(u.ncols())).map(|i| u[(i, i)].abs()).fold(0.0, f64::max);
-        let pmin = (0..u.nrows().min(u.ncols())).map(|i| u[(i, i)].abs()).fold(f64::INFINITY, f64::min);
+        let pmax = (0..u.nrows().min(u.ncols()))
+            .map(|i| u[(i, i)].abs())
+            .fold(0.0, f64::max);
+        let pmin = (0..u.nrows().min(u.ncols()))
+            .map(|i| u[(i, i)].abs())
+            .fold(f64::INFINITY, f64::min);
         if n_unk > 0 && !(pmin > 1e-13 * pmax) {
             let reason = "the network equations are singular".to_string();
-            return Ok(Mode::invalid(cc, key, problem.unwrap_or(ModeProblem::Unsupported(reason))));
+            return Ok(Mode::invalid(
+                cc,
+                key,
+                problem.unwrap_or(ModeProblem::Unsupported(reason)),
+            ));
         }
-        let y = if n_unk > 0 { lu.solve(&rhs).expect("checked invertible") } else { DMatrix::zeros(0, ncol) };
+        let y = if n_unk > 0 {
+            lu.solve(&rhs).expect("checked invertible")
+        } else {
+            DMatrix::zeros(0, ncol)
+        };
         let vrow = |n: usize| -> DVector<f64> {
             match nidx(n) {
                 Some(i) => y.row(i).transpose(),
@@ -457,7 +500,11 @@ impl Mode {
                 .states
                 .iter()
                 .map(|&s| {
-                    let br = cc.branches.iter().find(|b| matches!(b.kind, BranchKind::Winding { state } if state == s)).expect("winding");
+                    let br = cc
+                        .branches
+                        .iter()
+                        .find(|b| matches!(b.kind, BranchKind::Winding { state } if state == s))
+                        .expect("winding");
                     vrow(br.a) - vrow(br.b)
                 })
                 .collect();
@@ -492,11 +539,16 @@ impl Mode {
         let mut constraints = vec![];
         for (ci, &c) in cut_comps.iter().enumerate() {
             h.set_row(ci, &y.row(gauge_unk[c]));
-            constraints.push(ConstraintKind::Cutset { windings: comp_windings[c].clone(), node: rep(c) });
+            constraints.push(ConstraintKind::Cutset {
+                windings: comp_windings[c].clone(),
+                node: rep(c),
+            });
         }
         for (li, (bi, caps)) in loop_caps.iter().enumerate() {
             let b = &cc.branches[*bi];
-            let BranchKind::Capacitor { state, .. } = b.kind else { unreachable!("loop_caps holds capacitors") };
+            let BranchKind::Capacitor { state, .. } = b.kind else {
+                unreachable!("loop_caps holds capacitors")
+            };
             let mut row = -(vrow(b.a) - vrow(b.b));
             row[state] += 1.0;
             h.set_row(cut_comps.len() + li, &row.transpose());
@@ -512,10 +564,17 @@ impl Mode {
             let slu = s.clone().full_piv_lu();
             let su = slu.u();
             let smax = (0..n_lam).map(|i| su[(i, i)].abs()).fold(0.0, f64::max);
-            let smin = (0..n_lam).map(|i| su[(i, i)].abs()).fold(f64::INFINITY, f64::min);
+            let smin = (0..n_lam)
+                .map(|i| su[(i, i)].abs())
+                .fold(f64::INFINITY, f64::min);
             if !(smin > 1e-12 * smax) {
-                let reason = "a set of windings or capacitors whose constraint cannot be resolved".to_string();
-                return Ok(Mode::invalid(cc, key, problem.unwrap_or(ModeProblem::Unsupported(reason))));
+                let reason = "a set of windings or capacitors whose constraint cannot be resolved"
+                    .to_string();
+                return Ok(Mode::invalid(
+                    cc,
+                    key,
+                    problem.unwrap_or(ModeProblem::Unsupported(reason)),
+                ));
             }
             let lam = -slu.solve(&(&hz * &dz)).expect("checked invertible");
             let p = DMatrix::identity(nz, nz) - &dl * slu.solve(&hz).expect("checked invertible");
@@ -538,7 +597,10 @@ impl Mode {
             }
         };
         let curz = |bi: usize| -> (DVector<f64>, DVector<f64>) {
-            (yz.row(cur_of[bi]).transpose(), yf.row(cur_of[bi]).transpose())
+            (
+                yz.row(cur_of[bi]).transpose(),
+                yf.row(cur_of[bi]).transpose(),
+            )
         };
         for (oi, (_, def)) in cc.outputs.iter().enumerate() {
             let (row, free): (DVector<f64>, DVector<f64>) = match def {
@@ -550,13 +612,17 @@ impl Mode {
                     (a1 - b1, a2 - b2)
                 }
                 OutputDef::SecondaryVoltage(bi) => {
-                    let BranchKind::Transformer { sec, .. } = cc.branches[*bi].kind else { unreachable!() };
+                    let BranchKind::Transformer { sec, .. } = cc.branches[*bi].kind else {
+                        unreachable!()
+                    };
                     let (a1, a2) = vz(sec.0);
                     let (b1, b2) = vz(sec.1);
                     (a1 - b1, a2 - b2)
                 }
                 OutputDef::SecondaryCurrent(bi) => {
-                    let BranchKind::Transformer { n, .. } = cc.branches[*bi].kind else { unreachable!() };
+                    let BranchKind::Transformer { n, .. } = cc.branches[*bi].kind else {
+                        unreachable!()
+                    };
                     let (r, f) = curz(*bi);
                     (r * -n, f * -n)
                 }
@@ -574,7 +640,9 @@ impl Mode {
                             r[*state] = 1.0;
                             (r, DVector::zeros(n_free))
                         }
-                        BranchKind::Capacitor { state, c } => (m.row(*state).transpose() * *c, DVector::zeros(n_free)),
+                        BranchKind::Capacitor { state, c } => {
+                            (m.row(*state).transpose() * *c, DVector::zeros(n_free))
+                        }
                         BranchKind::ISource { src } => {
                             let mut r = DVector::zeros(nz);
                             for &(col, f) in &cc.sources[*src].terms {
@@ -616,7 +684,10 @@ impl Mode {
             let b = &cc.branches[dinfo.branch];
             if d_on(di) {
                 let (r, _) = curz(dinfo.branch);
-                guards.push(Guard { kind: GuardKind::DiodeCurrent(di), row: r.iter().copied().collect() });
+                guards.push(Guard {
+                    kind: GuardKind::DiodeCurrent(di),
+                    row: r.iter().copied().collect(),
+                });
             } else {
                 let (a1, a2) = vz(b.a);
                 let (b1, b2) = vz(b.b);
@@ -624,7 +695,10 @@ impl Mode {
                 row[one] += dinfo.vf;
                 let dep = -(a2 - b2);
                 if dep.iter().all(|v| v.abs() < 1e-9) {
-                    guards.push(Guard { kind: GuardKind::DiodeVoltage(di), row: row.iter().copied().collect() });
+                    guards.push(Guard {
+                        kind: GuardKind::DiodeVoltage(di),
+                        row: row.iter().copied().collect(),
+                    });
                 } else {
                     free_dep.push((di, row.iter().copied().collect(), dep));
                 }
@@ -639,7 +713,10 @@ impl Mode {
                 let sum = ei + ej;
                 if sum.iter().all(|v| v.abs() < 1e-9) {
                     let row: Vec<f64> = ri.iter().zip(rj).map(|(a, b)| a + b).collect();
-                    guards.push(Guard { kind: GuardKind::DiodePair(*di, *dj), row });
+                    guards.push(Guard {
+                        kind: GuardKind::DiodePair(*di, *dj),
+                        row,
+                    });
                 }
             }
         }
@@ -647,7 +724,11 @@ impl Mode {
         let mut free_checks = vec![];
         for &c in &free_comps {
             if !comp_sources[c].is_empty() {
-                free_checks.push((y.row(gauge_unk[c]).columns(0, nz).iter().copied().collect(), rep(c), comp_sources[c].clone()));
+                free_checks.push((
+                    y.row(gauge_unk[c]).columns(0, nz).iter().copied().collect(),
+                    rep(c),
+                    comp_sources[c].clone(),
+                ));
             }
         }
         // 10. Rate: ∞-norm of the state block in energy-scaled coordinates.
@@ -697,10 +778,26 @@ impl Mode {
 pub(crate) fn pattern_text(cc: &Compiled, key: ModeKey) -> String {
     let mut parts = vec![];
     for (i, s) in cc.switches.iter().enumerate() {
-        parts.push(format!("{} {}", s.name, if key.switches >> i & 1 == 1 { "on" } else { "off" }));
+        parts.push(format!(
+            "{} {}",
+            s.name,
+            if key.switches >> i & 1 == 1 {
+                "on"
+            } else {
+                "off"
+            }
+        ));
     }
     for (i, d) in cc.diodes.iter().enumerate() {
-        parts.push(format!("{} {}", d.name, if key.diodes >> i & 1 == 1 { "conducting" } else { "blocking" }));
+        parts.push(format!(
+            "{} {}",
+            d.name,
+            if key.diodes >> i & 1 == 1 {
+                "conducting"
+            } else {
+                "blocking"
+            }
+        ));
     }
     if parts.is_empty() {
         "no switches or diodes".into()

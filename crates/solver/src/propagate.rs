@@ -60,7 +60,12 @@ pub(crate) fn advance(m: &DMatrix<f64>, rate: f64, z: &DVector<f64>, tau: f64) -
 /// Taylor terms wₖ = (Mδ)ᵏ z / k! over one sub-interval of length δ (with
 /// ρ·δ ≤ [`TAYLOR_REACH`]), so that e^{Mδσ} z = Σ wₖ σᵏ for σ ∈ [0, 1].
 /// A guard r·z(σ) is then the polynomial Σ (r·wₖ) σᵏ.
-pub(crate) fn taylor_terms(m: &DMatrix<f64>, z: &DVector<f64>, delta: f64, out: &mut Vec<DVector<f64>>) {
+pub(crate) fn taylor_terms(
+    m: &DMatrix<f64>,
+    z: &DVector<f64>,
+    delta: f64,
+    out: &mut Vec<DVector<f64>>,
+) {
     out.clear();
     out.push(z.clone());
     let scale = z.amax();

@@ -67,8 +67,21 @@ impl SegmentView<'_> {
         if self.mode.undetermined[id.0] {
             return None;
         }
-        let z = propagate::advance(&self.mode.m, self.mode.rate, self.z0, (t - self.t0).max(0.0));
-        Some(self.mode.c.row(id.0).iter().zip(z.iter()).map(|(a, b)| a * b).sum())
+        let z = propagate::advance(
+            &self.mode.m,
+            self.mode.rate,
+            self.z0,
+            (t - self.t0).max(0.0),
+        );
+        Some(
+            self.mode
+                .c
+                .row(id.0)
+                .iter()
+                .zip(z.iter())
+                .map(|(a, b)| a * b)
+                .sum(),
+        )
     }
 }
 
@@ -124,6 +137,7 @@ pub struct Simulator {
     recent: VecDeque<(f64, String)>,
     stats: Stats,
     terms: Vec<DVector<f64>>,
+    seen: (f64, f64),
 }
 
 impl Simulator {
@@ -166,7 +180,10 @@ impl Simulator {
             output_names: cc.outputs.iter().map(|(n, _)| n.clone()).collect(),
             n_x: cc.n_x,
         };
-        let log = EventLog { state_names: cc.state_names.clone(), events: vec![] };
+        let log = EventLog {
+            state_names: cc.state_names.clone(),
+            events: vec![],
+        };
         let mut sim = Simulator {
             cc,
             opts,
@@ -177,7 +194,10 @@ impl Simulator {
             tkey: None,
             z,
             mode: 0,
-            key: ModeKey { switches: 0, diodes: 0 },
+            key: ModeKey {
+                switches: 0,
+                diodes: 0,
+            },
             signals,
             wave,
             log,
@@ -185,6 +205,7 @@ impl Simulator {
             recent: VecDeque::new(),
             stats: Stats::default(),
             terms: vec![],
+            seen: (0.0, 0.0),
         };
         sim.set_inputs(0.0);
         let mut sw = 0u64;
@@ -245,7 +266,13 @@ impl Simulator {
         if m.undetermined[i] {
             return Ok(None);
         }
-        Ok(Some(m.c.row(i).iter().zip(self.z.iter()).map(|(a, b)| a * b).sum()))
+        Ok(Some(
+            m.c.row(i)
+                .iter()
+                .zip(self.z.iter())
+                .map(|(a, b)| a * b)
+                .sum(),
+        ))
     }
 
     /// Stored energy in inductors and capacitors now (J).
@@ -279,7 +306,11 @@ impl Simulator {
     /// Ends the run and hands over what was recorded.
     pub fn finish(self) -> RunResult {
         let stats = self.stats();
-        RunResult { waveform: self.wave, events: self.log, stats }
+        RunResult {
+            waveform: self.wave,
+            events: self.log,
+            stats,
+        }
     }
 
     /// Advances by `n` whole periods of the first periodic gate signal.
@@ -295,7 +326,11 @@ impl Simulator {
         })?;
         // k·T computed from the cycle number, never accumulated.
         let k = (self.t / p).round();
-        let target = if (k * p - self.t).abs() <= 1e-9 * p { (k + n as f64) * p } else { self.t + n as f64 * p };
+        let target = if (k * p - self.t).abs() <= 1e-9 * p {
+            (k + n as f64) * p
+        } else {
+            self.t + n as f64 * p
+        };
         self.advance_to(target)
     }
 
@@ -309,7 +344,13 @@ impl Simulator {
     /// instant of the problem.
     pub fn advance_to(&mut self, t_end: f64) -> Result<(), SolverError> {
         if !t_end.is_finite() || t_end < self.t {
-            return Err(SolverError::BadTime { time: t_end, reason: format!("must be finite and not before the present time {:e} s", self.t) });
+            return Err(SolverError::BadTime {
+                time: t_end,
+                reason: format!(
+                    "must be finite and not before the present time {:e} s",
+                    self.t
+                ),
+            });
         }
         while self.t < t_end {
             let (t_next, key_next) = self.next_scheduled(t_end);
@@ -322,7 +363,12 @@ impl Simulator {
             let h = if h > 0.0 { h } else { t_next - self.t };
             if let Some((tau, fired)) = self.locate(h) {
                 if tau < h {
-                    let z_e = propagate::advance(&self.modes[self.mode as usize].m, self.modes[self.mode as usize].rate, &self.z, tau);
+                    let z_e = propagate::advance(
+                        &self.modes[self.mode as usize].m,
+                        self.modes[self.mode as usize].rate,
+                        &self.z,
+                        tau,
+                    );
                     let t_e = self.t + tau;
                     self.record(t_e, &z_e);
                     self.t = t_e;
@@ -349,7 +395,11 @@ impl Simulator {
 
     fn check_finite(&self) -> Result<(), SolverError> {
         if let Some(i) = self.z.iter().position(|v| !v.is_finite()) {
-            let what = if i < self.cc.n_x { self.cc.state_names[i].clone() } else { "a source value".into() };
+            let what = if i < self.cc.n_x {
+                self.cc.state_names[i].clone()
+            } else {
+                "a source value".into()
+            };
             return Err(SolverError::NonFinite { time: self.t, what });
         }
         Ok(())
@@ -375,7 +425,11 @@ impl Simulator {
             }
             if let Some(e) = self.signals[i].edges.front() {
                 if e.time < best.0 || (e.time == best.0 && best.1.is_none()) {
-                    let key = e.period.map(|period| TimeKey { cycle: e.cycle, phase: e.phase, period });
+                    let key = e.period.map(|period| TimeKey {
+                        cycle: e.cycle,
+                        phase: e.phase,
+                        period,
+                    });
                     best = (e.time, key);
                 }
             }
@@ -393,9 +447,14 @@ impl Simulator {
     }
 
     fn has_scheduled_at(&self, t: f64) -> bool {
-        self.signals.iter().any(|b| b.edges.front().is_some_and(|e| e.time <= t))
+        self.signals
+            .iter()
+            .any(|b| b.edges.front().is_some_and(|e| e.time <= t))
             || self.cc.sources.iter().any(|s| {
-                s.waveform.as_ref().and_then(|w| w.piece_at(t)).is_some_and(|p| p.start == t)
+                s.waveform
+                    .as_ref()
+                    .and_then(|w| w.piece_at(t))
+                    .is_some_and(|p| p.start == t)
             })
     }
 
@@ -424,7 +483,14 @@ impl Simulator {
         let before = self.state().to_vec();
         let corners = self.set_inputs(t);
         for name in corners {
-            self.push_event(Event { time: t, kind: EventKind::SourceBreakpoint, element: name, energy: None, before: before.clone(), after: before.clone() })?;
+            self.push_event(Event {
+                time: t,
+                kind: EventKind::SourceBreakpoint,
+                element: name,
+                energy: None,
+                before: before.clone(),
+                after: before.clone(),
+            })?;
         }
         let mut changed = false;
         let mut cause = None;
@@ -446,10 +512,17 @@ impl Simulator {
                 if diff >> i & 1 == 1 {
                     let on = sw >> i & 1 == 1;
                     let name = self.cc.switches[i].name.clone();
-                    cause = Some(format!("switch {name} {}", if on { "closing" } else { "opening" }));
+                    cause = Some(format!(
+                        "switch {name} {}",
+                        if on { "closing" } else { "opening" }
+                    ));
                     self.push_event(Event {
                         time: t,
-                        kind: if on { EventKind::SwitchOn } else { EventKind::SwitchOff },
+                        kind: if on {
+                            EventKind::SwitchOn
+                        } else {
+                            EventKind::SwitchOff
+                        },
                         element: name,
                         energy: None,
                         before: before.clone(),
@@ -464,17 +537,29 @@ impl Simulator {
 
     fn push_event(&mut self, e: Event) -> Result<(), SolverError> {
         if self.log.events.len() + self.stats.state_events >= self.opts.max_events {
-            return Err(SolverError::EventLimit { time: e.time, limit: self.opts.max_events });
+            return Err(SolverError::EventLimit {
+                time: e.time,
+                limit: self.opts.max_events,
+            });
         }
         self.recent.push_back((e.time, e.element.clone()));
-        while self.recent.front().is_some_and(|(t, _)| *t < e.time - self.opts.chatter_window) {
+        while self
+            .recent
+            .front()
+            .is_some_and(|(t, _)| *t < e.time - self.opts.chatter_window)
+        {
             self.recent.pop_front();
         }
         if self.recent.len() > self.opts.chatter_events {
             let mut elements: Vec<String> = self.recent.iter().map(|(_, n)| n.clone()).collect();
             elements.sort();
             elements.dedup();
-            return Err(SolverError::Chatter { time: e.time, count: self.recent.len(), window: self.opts.chatter_window, elements });
+            return Err(SolverError::Chatter {
+                time: e.time,
+                count: self.recent.len(),
+                window: self.opts.chatter_window,
+                elements,
+            });
         }
         let keep = match self.opts.record {
             Record::All => true,
@@ -526,7 +611,12 @@ impl Simulator {
             return;
         }
         if let Some(sink) = self.sink.as_mut() {
-            let view = SegmentView { t0, t1, mode: &self.modes[self.mode as usize], z0: &self.z };
+            let view = SegmentView {
+                t0,
+                t1,
+                mode: &self.modes[self.mode as usize],
+                z0: &self.z,
+            };
             sink(&view);
         }
         let keep = match self.opts.record {
@@ -535,7 +625,12 @@ impl Simulator {
             Record::Nothing => false,
         };
         if keep {
-            self.wave.segments.push(Segment { t0, t1, mode: self.mode, z0: self.z.clone() });
+            self.wave.segments.push(Segment {
+                t0,
+                t1,
+                mode: self.mode,
+                z0: self.z.clone(),
+            });
         }
     }
 
@@ -551,12 +646,22 @@ impl Simulator {
         let mut za = self.z.clone();
         let mut terms = std::mem::take(&mut self.terms);
         let mut found: Option<(f64, u64)> = None;
+        let scales = self.scales();
         for i in 0..n {
             propagate::taylor_terms(&mode.m, &za, d, &mut terms);
             for g in &mode.guards {
                 let coef: Vec<f64> = terms.iter().map(|w| dot(&g.row, w)).collect();
-                let scale: f64 = terms.iter().map(|w| g.row.iter().zip(w.iter()).map(|(a, b)| (a * b).abs()).sum::<f64>()).sum();
-                let tol = ZERO_REL * scale + f64::MIN_POSITIVE;
+                let scale: f64 = terms
+                    .iter()
+                    .map(|w| {
+                        g.row
+                            .iter()
+                            .zip(w.iter())
+                            .map(|(a, b)| (a * b).abs())
+                            .sum::<f64>()
+                    })
+                    .sum();
+                let tol = ZERO_REL * scale + guard_floor(&g.kind, scales);
                 let (gb, db) = propagate::poly(&coef, 1.0);
                 let da = coef.get(1).copied().unwrap_or(0.0);
                 let root = if gb < -tol {
@@ -576,7 +681,9 @@ impl Simulator {
                         GuardKind::DiodePair(a, b) => (1u64 << a) | (1u64 << b),
                     };
                     found = match found {
-                        Some((t, bits)) if (t - tau).abs() <= 1e-13 * h => Some((t.min(tau), bits | bit)),
+                        Some((t, bits)) if (t - tau).abs() <= 1e-13 * h => {
+                            Some((t.min(tau), bits | bit))
+                        }
                         Some((t, bits)) if t < tau => Some((t, bits)),
                         _ => Some((tau, bit)),
                     };
@@ -598,17 +705,29 @@ impl Simulator {
 
     /// Finds the conduction pattern consistent with the present state, with
     /// the diodes in `flips` toggled first; applies any jump and logs.
-    fn resolve(&mut self, flips: u64, cause: Option<String>, initial: bool) -> Result<(), SolverError> {
+    fn resolve(
+        &mut self,
+        flips: u64,
+        cause: Option<String>,
+        initial: bool,
+    ) -> Result<(), SolverError> {
         let nd = self.cc.diodes.len();
         let first = self.key.diodes ^ flips;
         let mut cands: Vec<u64> = (0..1u64 << nd).collect();
         cands.sort_by_key(|&c| ((c ^ first).count_ones(), c));
         let mut interruption: Option<SolverError> = None;
         let mut other: Option<SolverError> = None;
-        let passes: &[bool] = if self.opts.on_interruption == OnInterruption::ConserveFlux { &[false, true] } else { &[false] };
+        let passes: &[bool] = if self.opts.on_interruption == OnInterruption::ConserveFlux {
+            &[false, true]
+        } else {
+            &[false]
+        };
         for &allow_cut in passes {
             for &c in &cands {
-                let key = ModeKey { switches: self.key.switches, diodes: c };
+                let key = ModeKey {
+                    switches: self.key.switches,
+                    diodes: c,
+                };
                 let mi = self.mode_id(key)?;
                 let mode = self.modes[mi as usize].clone();
                 if let Some(p) = &mode.problem {
@@ -617,38 +736,56 @@ impl Simulator {
                     }
                     continue;
                 }
-                // Constraint residuals. A violation counts only if restoring
-                // it changes the stored energy by more than rounding would:
-                // a located zero crossing leaves ~1e-17 A behind, which the
-                // projection below removes silently.
-                let z1 = if mode.constraints.is_empty() { self.z.clone() } else { &mode.p * &self.z };
-                let e_now = self.cc.stored_energy(self.z.as_slice());
-                let significant = (e_now - self.cc.stored_energy(z1.as_slice())).abs() > 1e-20 * e_now.max(1e-300);
+                // Constraint residuals, measured against the largest inductor
+                // current (cutsets) or capacitor/source voltage (loops) in the
+                // circuit: a located zero crossing leaves ~1e-17 of that
+                // behind, which the projection removes silently; anything
+                // above 1e-11 of it is a real jump.
+                let z1 = if mode.constraints.is_empty() {
+                    self.z.clone()
+                } else {
+                    &mode.p * &self.z
+                };
+                let (i_scale, v_scale) = self.scales();
                 let mut cut_violated = vec![];
                 let mut loop_violated = false;
                 for (r, kind) in mode.constraints.iter().enumerate() {
                     let row = mode.h.row(r);
                     let v: f64 = row.iter().zip(self.z.iter()).map(|(a, b)| a * b).sum();
-                    let s: f64 = row.iter().zip(self.z.iter()).map(|(a, b)| (a * b).abs()).sum();
-                    if significant && v.abs() > 1e-9 * s + 1e-300 {
-                        match kind {
-                            ConstraintKind::Cutset { windings, .. } => cut_violated.extend(windings.iter().copied()),
-                            ConstraintKind::Loop { .. } => loop_violated = true,
+                    match kind {
+                        ConstraintKind::Cutset { windings, .. } if v.abs() > 1e-11 * i_scale => {
+                            cut_violated.extend(windings.iter().copied())
                         }
+                        ConstraintKind::Loop { .. } if v.abs() > 1e-11 * v_scale => {
+                            loop_violated = true
+                        }
+                        _ => {}
                     }
                 }
                 if !cut_violated.is_empty() && !allow_cut {
                     if interruption.is_none() {
-                        let names: Vec<String> = cut_violated.iter().map(|&b| self.cc.branches[b].name.clone()).collect();
+                        let names: Vec<String> = cut_violated
+                            .iter()
+                            .map(|&b| self.cc.branches[b].name.clone())
+                            .collect();
                         let current = cut_violated
                             .iter()
                             .filter_map(|&b| match self.cc.branches[b].kind {
-                                crate::compile::BranchKind::Winding { state } => Some(self.z[state].abs()),
+                                crate::compile::BranchKind::Winding { state } => {
+                                    Some(self.z[state].abs())
+                                }
                                 _ => None,
                             })
                             .fold(0.0, f64::max);
-                        let energy = self.cc.stored_energy(self.z.as_slice()) - self.cc.stored_energy(z1.as_slice());
-                        interruption = Some(SolverError::InductorInterrupted { time: self.t, cause: cause.clone(), inductors: names, current, energy });
+                        let energy = self.cc.stored_energy(self.z.as_slice())
+                            - self.cc.stored_energy(z1.as_slice());
+                        interruption = Some(SolverError::InductorInterrupted {
+                            time: self.t,
+                            cause: cause.clone(),
+                            inductors: names,
+                            current,
+                            energy,
+                        });
                     }
                     continue;
                 }
@@ -659,11 +796,15 @@ impl Simulator {
                 }) {
                     let _ = row;
                     if other.is_none() {
-                        other = Some(SolverError::CurrentSourceOpen { time: self.t, sources: srcs.clone(), node: self.cc.nodes[*node].clone() });
+                        other = Some(SolverError::CurrentSourceOpen {
+                            time: self.t,
+                            sources: srcs.clone(),
+                            node: self.cc.nodes[*node].clone(),
+                        });
                     }
                     continue;
                 }
-                if !guards_hold(&mode, &z1) {
+                if !guards_hold(&mode, &z1, self.scales()) {
                     continue;
                 }
                 // Commit.
@@ -679,13 +820,20 @@ impl Simulator {
                     let mut names: Vec<String> = vec![];
                     for kind in &mode.constraints {
                         match kind {
-                            ConstraintKind::Cutset { windings, .. } => names.extend(windings.iter().map(|&b| self.cc.branches[b].name.clone())),
-                            ConstraintKind::Loop { caps } => names.extend(caps.iter().map(|&b| self.cc.branches[b].name.clone())),
+                            ConstraintKind::Cutset { windings, .. } => names
+                                .extend(windings.iter().map(|&b| self.cc.branches[b].name.clone())),
+                            ConstraintKind::Loop { caps } => {
+                                names.extend(caps.iter().map(|&b| self.cc.branches[b].name.clone()))
+                            }
                         }
                     }
                     self.push_event(Event {
                         time: self.t,
-                        kind: if cut_violated.is_empty() { EventKind::ChargeJump } else { EventKind::FluxJump },
+                        kind: if cut_violated.is_empty() {
+                            EventKind::ChargeJump
+                        } else {
+                            EventKind::FluxJump
+                        },
                         element: names.join(","),
                         energy: Some(e0 - e1),
                         before: before.clone(),
@@ -698,7 +846,11 @@ impl Simulator {
                             let on = c >> k & 1 == 1;
                             self.push_event(Event {
                                 time: self.t,
-                                kind: if on { EventKind::DiodeOn } else { EventKind::DiodeOff },
+                                kind: if on {
+                                    EventKind::DiodeOn
+                                } else {
+                                    EventKind::DiodeOff
+                                },
                                 element: self.cc.diodes[k].name.clone(),
                                 energy: None,
                                 before: before.clone(),
@@ -710,11 +862,41 @@ impl Simulator {
                 return Ok(());
             }
         }
-        Err(interruption.or(other).unwrap_or_else(|| SolverError::NoConsistentPattern {
-            time: self.t,
-            diodes: self.cc.diodes.iter().map(|d| d.name.clone()).collect(),
-            reason: "every pattern violates a diode condition".into(),
-        }))
+        Err(interruption
+            .or(other)
+            .unwrap_or_else(|| SolverError::NoConsistentPattern {
+                time: self.t,
+                diodes: self.cc.diodes.iter().map(|d| d.name.clone()).collect(),
+                reason: "every pattern violates a diode condition".into(),
+            }))
+    }
+
+    /// Largest inductor current and largest capacitor or source voltage seen
+    /// so far in the run (never the present value alone: at a located zero
+    /// crossing the only inductor current is itself ~1e-17 A).
+    fn scales(&mut self) -> (f64, f64) {
+        let (i_now, v_now) = self.scales_now();
+        self.seen.0 = self.seen.0.max(i_now);
+        self.seen.1 = self.seen.1.max(v_now);
+        self.seen
+    }
+
+    fn scales_now(&self) -> (f64, f64) {
+        let mut i_s: f64 = 0.0;
+        for g in &self.cc.groups {
+            for &s in &g.states {
+                i_s = i_s.max(self.z[s].abs());
+            }
+        }
+        let mut v_s: f64 = 0.0;
+        for &(s, _) in &self.cc.caps {
+            v_s = v_s.max(self.z[s].abs());
+        }
+        for src in &self.cc.sources {
+            let v: f64 = src.terms.iter().map(|&(k, f)| f * self.z[k]).sum();
+            v_s = v_s.max(v.abs());
+        }
+        (i_s, v_s)
     }
 
     fn problem_error(&self, p: &ModeProblem, key: ModeKey, cause: &Option<String>) -> SolverError {
@@ -725,7 +907,11 @@ impl Simulator {
                 switches: switches.clone(),
                 shorted: shorted.clone(),
             },
-            ModeProblem::Unsupported(reason) => SolverError::Unsupported { time: self.t, pattern: pattern_text(&self.cc, key), reason: reason.clone() },
+            ModeProblem::Unsupported(reason) => SolverError::Unsupported {
+                time: self.t,
+                pattern: pattern_text(&self.cc, key),
+                reason: reason.clone(),
+            },
         }
     }
 }
@@ -737,16 +923,17 @@ fn dot(a: &[f64], b: &DVector<f64>) -> f64 {
 /// True if every guard is ≥ 0 at z and, where it is zero, its first
 /// non-zero derivative (up to the third) is positive: the mode can be
 /// entered and held for some positive time.
-fn guards_hold(mode: &Mode, z: &DVector<f64>) -> bool {
+fn guards_hold(mode: &Mode, z: &DVector<f64>, scales: (f64, f64)) -> bool {
     let mut ders = vec![z.clone()];
     for k in 1..4 {
         ders.push(&mode.m * &ders[k - 1]);
     }
     mode.guards.iter().all(|g| {
-        for d in &ders {
+        let floor = guard_floor(&g.kind, scales);
+        for (k, d) in ders.iter().enumerate() {
             let v = dot(&g.row, d);
             let s: f64 = g.row.iter().zip(d.iter()).map(|(a, b)| (a * b).abs()).sum();
-            let tol = ZERO_REL * s;
+            let tol = ZERO_REL * s + floor * mode.rate.powi(k as i32);
             if v > tol {
                 return true;
             }
@@ -756,6 +943,18 @@ fn guards_hold(mode: &Mode, z: &DVector<f64>) -> bool {
         }
         true
     })
+}
+
+/// Absolute floor under which a guard counts as zero: 1e-13 of the largest
+/// inductor current (current guards) or capacitor/source voltage (voltage
+/// guards). Without it a current left at 1e-33 A by a located zero crossing
+/// would be judged by its own size and look negative.
+fn guard_floor(kind: &GuardKind, (i_scale, v_scale): (f64, f64)) -> f64 {
+    let s = match kind {
+        GuardKind::DiodeCurrent(_) => i_scale,
+        GuardKind::DiodeVoltage(_) | GuardKind::DiodePair(..) => v_scale,
+    };
+    1e-13 * s + f64::MIN_POSITIVE
 }
 
 /// Root of the polynomial in [lo, hi] where p(lo) ≥ −tol > … and p(hi) < 0:
@@ -778,7 +977,11 @@ fn root_in(c: &[f64], lo: f64, hi: f64, _tol: f64) -> f64 {
             break;
         }
         let newton = s - v / dv;
-        s = if dv != 0.0 && newton > a && newton < b { newton } else { 0.5 * (a + b) };
+        s = if dv != 0.0 && newton > a && newton < b {
+            newton
+        } else {
+            0.5 * (a + b)
+        };
         if s == a || s == b {
             s = 0.5 * (a + b);
             if s == a || s == b {
@@ -792,7 +995,12 @@ fn root_in(c: &[f64], lo: f64, hi: f64, _tol: f64) -> f64 {
 /// Where the polynomial's derivative crosses zero upward inside [0, 1]
 /// (the caller has checked p'(0) < 0 < p'(1)).
 fn stationary(c: &[f64]) -> f64 {
-    let dc: Vec<f64> = c.iter().enumerate().skip(1).map(|(k, a)| k as f64 * a).collect();
+    let dc: Vec<f64> = c
+        .iter()
+        .enumerate()
+        .skip(1)
+        .map(|(k, a)| k as f64 * a)
+        .collect();
     let (mut a, mut b) = (0.0, 1.0);
     for _ in 0..200 {
         let m = 0.5 * (a + b);
@@ -814,7 +1022,11 @@ fn stationary(c: &[f64]) -> f64 {
 /// # Errors
 ///
 /// As [`Simulator::new`] and [`Simulator::advance_to`].
-pub fn simulate(circuit: &Circuit, stop_time: f64, opts: Options) -> Result<RunResult, SolverError> {
+pub fn simulate(
+    circuit: &Circuit,
+    stop_time: f64,
+    opts: Options,
+) -> Result<RunResult, SolverError> {
     let mut sim = Simulator::new(circuit, opts)?;
     sim.advance_to(stop_time)?;
     Ok(sim.finish())

@@ -54,7 +54,10 @@ impl Waveform {
     /// `SWITCH.body_diode.current`).
     pub fn output(&self, name: &str) -> Option<OutputId> {
         let key = fluxstep_netlist::OutputName::parse(name).ok()?.to_string();
-        self.output_names.iter().position(|n| *n == key).map(OutputId)
+        self.output_names
+            .iter()
+            .position(|n| *n == key)
+            .map(OutputId)
     }
 
     /// All output names, in id order.
@@ -126,7 +129,12 @@ impl Waveform {
 
     /// Event instants (segment boundaries) inside [t0, t1].
     pub fn event_times(&self, t0: f64, t1: f64) -> Vec<f64> {
-        let mut v: Vec<f64> = self.segments.iter().map(|s| s.t0).filter(|&t| t >= t0 && t <= t1).collect();
+        let mut v: Vec<f64> = self
+            .segments
+            .iter()
+            .map(|s| s.t0)
+            .filter(|&t| t >= t0 && t <= t1)
+            .collect();
         v.dedup();
         v
     }
@@ -168,7 +176,11 @@ impl Waveform {
     pub fn sample(&self, id: OutputId, t0: f64, t1: f64, n: usize) -> Vec<(f64, Option<f64>)> {
         let mut times = self.event_times(t0, t1);
         for k in 0..n {
-            let t = if n == 1 { t0 } else { t0 + (t1 - t0) * k as f64 / (n - 1) as f64 };
+            let t = if n == 1 {
+                t0
+            } else {
+                t0 + (t1 - t0) * k as f64 / (n - 1) as f64
+            };
             times.push(t);
         }
         times.sort_by(f64::total_cmp);
@@ -201,7 +213,12 @@ impl Waveform {
                 for &(x, w) in &GL8 {
                     let zz = propagate::taylor(&m.m, &z, 0.5 * d * (x + 1.0));
                     for (k, id) in ids.iter().enumerate() {
-                        vals[k] = m.c.row(id.0).iter().zip(zz.iter()).map(|(p, q)| p * q).sum();
+                        vals[k] =
+                            m.c.row(id.0)
+                                .iter()
+                                .zip(zz.iter())
+                                .map(|(p, q)| p * q)
+                                .sum();
                     }
                     part += w * f(&vals);
                 }

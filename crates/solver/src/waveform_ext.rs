@@ -79,10 +79,23 @@ impl Waveform {
         for k in 0..n {
             propagate::taylor_terms(&m.m, &z, delta, &mut terms);
             coef.clear();
-            coef.extend(terms.iter().map(|w| row.iter().zip(w.iter()).map(|(p, q)| p * q).sum::<f64>()));
+            coef.extend(
+                terms
+                    .iter()
+                    .map(|w| row.iter().zip(w.iter()).map(|(p, q)| p * q).sum::<f64>()),
+            );
             let t_start = a + delta * k as f64;
-            let t_end = if k + 1 == n { b } else { a + delta * (k + 1) as f64 };
-            f(&Piece { t_start, t_end, delta, coef: &coef });
+            let t_end = if k + 1 == n {
+                b
+            } else {
+                a + delta * (k + 1) as f64
+            };
+            f(&Piece {
+                t_start,
+                t_end,
+                delta,
+                coef: &coef,
+            });
             if k + 1 < n {
                 z = propagate::taylor(&m.m, &z, delta);
             }

@@ -49,8 +49,17 @@ fn buck_continuous_conduction() {
     assert!(rel(ripple, expect) < 5e-3, "ripple {ripple} vs {expect}");
     // Continuous conduction: the diode only stops when the switch takes
     // its current over, never by its current reaching zero.
-    let switch_on: Vec<f64> = run.events.of_kind(EventKind::SwitchOn).map(|e| e.time).collect();
-    let late_off: Vec<f64> = run.events.of_kind(EventKind::DiodeOff).map(|e| e.time).filter(|&t| t > t0).collect();
+    let switch_on: Vec<f64> = run
+        .events
+        .of_kind(EventKind::SwitchOn)
+        .map(|e| e.time)
+        .collect();
+    let late_off: Vec<f64> = run
+        .events
+        .of_kind(EventKind::DiodeOff)
+        .map(|e| e.time)
+        .filter(|&t| t > t0)
+        .collect();
     assert_eq!(late_off.len(), 10);
     assert!(late_off.iter().all(|t| switch_on.contains(t)));
     let (dl, s) = energy_balance(&circ, &run);
@@ -97,8 +106,13 @@ fn freewheel(l: f64, c: f64, r: f64, x0: [f64; 2], t: f64) -> [f64; 2] {
         ((w * t).cosh(), (w * t).sinh() / w)
     };
     let e = (p * t).exp();
-    let m = |i: usize, j: usize| e * (if i == j { f0 } else { 0.0 } + (a[i][j] - if i == j { p } else { 0.0 }) * f1);
-    [m(0, 0) * x0[0] + m(0, 1) * x0[1], m(1, 0) * x0[0] + m(1, 1) * x0[1]]
+    let m = |i: usize, j: usize| {
+        e * (if i == j { f0 } else { 0.0 } + (a[i][j] - if i == j { p } else { 0.0 }) * f1)
+    };
+    [
+        m(0, 0) * x0[0] + m(0, 1) * x0[1],
+        m(1, 0) * x0[0] + m(1, 1) * x0[1],
+    ]
 }
 
 /// Buck in discontinuous conduction: the diode turns off where the inductor
@@ -121,8 +135,20 @@ fn buck_discontinuous_conduction() {
     let m = 2.0 / (1.0 + (1.0 + 4.0 * k / (d * d)).sqrt());
     assert!(rel(vout / vin, m) < 5e-3, "M {} vs {m}", vout / vin);
 
-    let off = run.events.of("D1").filter(|e| e.kind == EventKind::DiodeOff).last().unwrap().time;
-    let s_off = run.events.of("S1").filter(|e| e.kind == EventKind::SwitchOff && e.time < off).last().unwrap().time;
+    let off = run
+        .events
+        .of("D1")
+        .filter(|e| e.kind == EventKind::DiodeOff)
+        .last()
+        .unwrap()
+        .time;
+    let s_off = run
+        .events
+        .of("S1")
+        .filter(|e| e.kind == EventKind::SwitchOff && e.time < off)
+        .last()
+        .unwrap()
+        .time;
     let x = w.state(s_off).unwrap();
     // Bisection on the independent closed form.
     let (mut a, mut b) = (0.0, off - s_off + 0.5 * t_per * (1.0 - d));
@@ -136,14 +162,22 @@ fn buck_discontinuous_conduction() {
         }
     }
     let t_indep = s_off + 0.5 * (a + b);
-    assert!((off - t_indep).abs() < 1e-12 * t_per, "diode off at {off}, independent {t_indep}");
+    assert!(
+        (off - t_indep).abs() < 1e-12 * t_per,
+        "diode off at {off}, independent {t_indep}"
+    );
 
     let sw = w.output("sw").unwrap();
     let next_on = (off * f).ceil() / f;
     let mid_idle = 0.5 * (off + next_on);
     let il = w.output("L1.current").unwrap();
     assert!(w.value(il, mid_idle).unwrap().abs() < 1e-15);
-    assert!(rel(w.value(sw, mid_idle).unwrap(), w.value(out, mid_idle).unwrap()) < 1e-12);
+    assert!(
+        rel(
+            w.value(sw, mid_idle).unwrap(),
+            w.value(out, mid_idle).unwrap()
+        ) < 1e-12
+    );
     let (dl, s) = energy_balance(&circ, &run);
     assert!(rel(s, dl) < 1e-9, "energy {dl} vs {s}");
 }
@@ -169,8 +203,16 @@ fn boost_continuous_conduction() {
     let (t0, t1) = last_period(&run, 10.0 / f);
     let vout = w.average(w.output("out").unwrap(), t0, t1);
     assert!(rel(vout, vin / (1.0 - d)) < 5e-3, "vout {vout}");
-    let switch_on: Vec<f64> = run.events.of_kind(EventKind::SwitchOn).map(|e| e.time).collect();
-    assert!(run.events.of_kind(EventKind::DiodeOff).filter(|e| e.time > t0).all(|e| switch_on.contains(&e.time)));
+    let switch_on: Vec<f64> = run
+        .events
+        .of_kind(EventKind::SwitchOn)
+        .map(|e| e.time)
+        .collect();
+    assert!(run
+        .events
+        .of_kind(EventKind::DiodeOff)
+        .filter(|e| e.time > t0)
+        .all(|e| switch_on.contains(&e.time)));
     let (dl, s) = energy_balance(&circ, &run);
     assert!(rel(s, dl) < 1e-9, "energy {dl} vs {s}");
 }
@@ -195,13 +237,29 @@ fn full_bridge_rectifier_charges_to_peak() {
     let run = simulate(&circ, 5e-3, Options::default()).unwrap();
     let w = &run.waveform;
     let vc = w.output("C1.voltage").unwrap();
-    assert!(rel(w.value(vc, 0.25e-3).unwrap(), vp) < 1e-9, "peak {}", w.value(vc, 0.25e-3).unwrap());
+    assert!(
+        rel(w.value(vc, 0.25e-3).unwrap(), vp) < 1e-9,
+        "peak {}",
+        w.value(vc, 0.25e-3).unwrap()
+    );
     // Each later peak recharges it to vp again.
     assert!(rel(w.value(vc, 4.25e-3).unwrap(), vp) < 1e-9);
     assert!(rel(w.value(vc, 3.75e-3).unwrap(), vp) < 1e-9);
     // Pairs: every DiodeOn of D1 coincides with one of D4, and D2 with D3.
-    let on = |n: &str| -> Vec<f64> { run.events.of(n).filter(|e| e.kind == EventKind::DiodeOn).map(|e| e.time).collect() };
-    let on_off = |n: &str| -> Vec<f64> { run.events.of(n).filter(|e| e.kind == EventKind::DiodeOff).map(|e| e.time).collect() };
+    let on = |n: &str| -> Vec<f64> {
+        run.events
+            .of(n)
+            .filter(|e| e.kind == EventKind::DiodeOn)
+            .map(|e| e.time)
+            .collect()
+    };
+    let on_off = |n: &str| -> Vec<f64> {
+        run.events
+            .of(n)
+            .filter(|e| e.kind == EventKind::DiodeOff)
+            .map(|e| e.time)
+            .collect()
+    };
     assert!(!on("D2").is_empty());
     assert_eq!(on("D2"), on("D3"));
     assert_eq!(on_off("D1"), on_off("D4"));

@@ -6,7 +6,12 @@ use fluxstep_solver::{simulate, EventKind, Options};
 use super::util::{energy_balance, rel};
 
 fn step_gate(name: &str, at: f64, on: bool) -> Gate {
-    Gate::Transitions { name: name.into(), initial: !on, transitions: vec![Transition { time: at, on }], period: None }
+    Gate::Transitions {
+        name: name.into(),
+        initial: !on,
+        transitions: vec![Transition { time: at, on }],
+        period: None,
+    }
 }
 
 /// RL step: i(t) = (V/R)(1 − e^{−tR/L}) after an ideal switch closes, and the
@@ -31,7 +36,11 @@ fn rl_step_matches_closed_form() {
     for k in [0.1, 0.5, 1.0, 2.0, 3.0, 4.5] {
         let t = t_on + k * l / r;
         let exact = v / r * (1.0 - (-(t - t_on) * r / l).exp());
-        assert!(rel(w.value(il, t).unwrap(), exact) < 1e-12, "t = {t}: {} vs {exact}", w.value(il, t).unwrap());
+        assert!(
+            rel(w.value(il, t).unwrap(), exact) < 1e-12,
+            "t = {t}: {} vs {exact}",
+            w.value(il, t).unwrap()
+        );
     }
     assert_eq!(w.value_before(vl, t_on).unwrap(), 0.0);
     assert!(rel(w.value(vl, t_on).unwrap(), v) < 1e-12);
@@ -66,14 +75,20 @@ fn commutation_into_a_resistive_loop() {
     assert!(rel(w.value(il, t1).unwrap(), 1.0) < 1e-12);
     assert!(w.value_before(vl, t1).unwrap().abs() < 1e-12);
     let v_after = w.value(vl, t1).unwrap();
-    assert!(rel(v_after, -3.0) < 1e-12, "inductor voltage after commutation {v_after}");
+    assert!(
+        rel(v_after, -3.0) < 1e-12,
+        "inductor voltage after commutation {v_after}"
+    );
     for k in [0.5, 1.0, 2.0] {
         let t = t1 + k * l / 3.0;
         assert!(rel(w.value(il, t).unwrap(), (-k).exp()) < 1e-12);
     }
     let (d, s) = energy_balance(&c, &run);
     // The source delivers nothing after t1; before it, 1 W into R1 only.
-    assert!((d - s).abs() < 1e-9 * (d.abs() + 0.5 * l), "energy {d} vs {s}");
+    assert!(
+        (d - s).abs() < 1e-9 * (d.abs() + 0.5 * l),
+        "energy {d} vs {s}"
+    );
 }
 
 /// Series RLC step, underdamped: v_C(t) = V[1 − e^{−αt}(cos ω_d t + (α/ω_d) sin ω_d t)],
@@ -100,8 +115,14 @@ fn series_rlc_underdamped_step() {
         let e = (-alpha * t).exp();
         let vc_exact = v * (1.0 - e * ((wd * t).cos() + alpha / wd * (wd * t).sin()));
         let i_exact = v / (wd * l) * e * (wd * t).sin();
-        assert!((w.value(vc, t).unwrap() - vc_exact).abs() < 1e-10 * v, "vc at {t}");
-        assert!((w.value(il, t).unwrap() - i_exact).abs() < 1e-10 * v / (wd * l), "i at {t}");
+        assert!(
+            (w.value(vc, t).unwrap() - vc_exact).abs() < 1e-10 * v,
+            "vc at {t}"
+        );
+        assert!(
+            (w.value(il, t).unwrap() - i_exact).abs() < 1e-10 * v / (wd * l),
+            "i at {t}"
+        );
     }
     let (d, s) = energy_balance(&c, &run);
     assert!(rel(s, d) < 1e-9);
@@ -112,7 +133,12 @@ fn series_rlc_underdamped_step() {
 #[test]
 fn di_dt_spike_across_wiring_inductance() {
     let c = Circuit::builder()
-        .current_source("I1", "gnd", "a", Waveform::pwl(&[(0.0, 10.0), (100e-9, 10.0), (110e-9, 0.0)]))
+        .current_source(
+            "I1",
+            "gnd",
+            "a",
+            Waveform::pwl(&[(0.0, 10.0), (100e-9, 10.0), (110e-9, 0.0)]),
+        )
         .inductor_with_current("Lw", "a", "gnd", 10e-9, 10.0)
         .build()
         .unwrap();
@@ -121,7 +147,11 @@ fn di_dt_spike_across_wiring_inductance() {
     let vl = w.output("Lw.voltage").unwrap();
     let il = w.output("Lw.current").unwrap();
     for t in [101e-9, 105e-9, 109.9e-9] {
-        assert!(rel(w.value(vl, t).unwrap(), -10.0) < 1e-12, "v_L at {t}: {}", w.value(vl, t).unwrap());
+        assert!(
+            rel(w.value(vl, t).unwrap(), -10.0) < 1e-12,
+            "v_L at {t}: {}",
+            w.value(vl, t).unwrap()
+        );
     }
     assert!(w.value(vl, 50e-9).unwrap().abs() < 1e-12);
     assert!(w.value(vl, 150e-9).unwrap().abs() < 1e-12);

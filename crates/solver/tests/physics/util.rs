@@ -54,7 +54,12 @@ pub fn energy_balance(c: &Circuit, run: &RunResult) -> (f64, f64) {
     }
     let mut stored = 0.0;
     for (n, v, is_l) in &stored_names {
-        let q = w.output(&format!("{n}.{}", if *is_l { "current" } else { "voltage" })).unwrap();
+        let q = w
+            .output(&format!(
+                "{n}.{}",
+                if *is_l { "current" } else { "voltage" }
+            ))
+            .unwrap();
         let a = w.value(q, t0).unwrap();
         let b = w.value_before(q, t1).unwrap();
         stored += 0.5 * v * (b * b - a * a);

@@ -1,0 +1,276 @@
+//! Generated circuits survive to_json → from_json unchanged, and
+//! validation never panics on them, however wrong they are.
+//!
+//! The generator covers every element kind, waveform and gate with any
+//! finite f64 (subnormals, −0.0 and extremes included) and any names, so
+//! most generated circuits are invalid; the round trip does not care
+//! (`from_json_unchecked`), and validation must still only return problems.
+
+use fluxstep_netlist::*;
+use proptest::collection::vec;
+use proptest::num::f64 as pf64;
+use proptest::option;
+use proptest::prelude::*;
+
+/// Any finite f64.
+fn value() -> impl Strategy<Value = f64> {
+    pf64::POSITIVE | pf64::NEGATIVE | pf64::NORMAL | pf64::SUBNORMAL | pf64::ZERO
+}
+
+/// Names: mostly plausible, sometimes anything (quotes, unicode, empty).
+fn name() -> impl Strategy<Value = String> {
+    prop_oneof![
+        4 => "[A-Za-z][A-Za-z0-9_]{0,5}",
+        1 => "\\PC{0,8}",
+    ]
+}
+
+/// A few node names so that generated circuits share nodes.
+fn node() -> impl Strategy<Value = String> {
+    prop_oneof![
+        Just("gnd".to_string()),
+        Just("0".to_string()),
+        "n[0-4]",
+        "\\PC{0,4}"
+    ]
+}
+
+fn nodes() -> impl Strategy<Value = [String; 2]> {
+    (node(), node()).prop_map(|(a, b)| [a, b])
+}
+
+fn waveform() -> impl Strategy<Value = Waveform> {
+    prop_oneof![
+        value().prop_map(Waveform::constant),
+        (
+            vec(
+                (value(), value()).prop_map(|(time, value)| Point { time, value }),
+                0..5
+            ),
+            option::of(value())
+        )
+            .prop_map(|(points, period)| Waveform::PiecewiseLinear { points, period }),
+        (value(), value(), value(), value()).prop_map(|(o, a, f, p)| Waveform::sine(o, a, f, p)),
+    ]
+}
+
+fn diode_model() -> impl Strategy<Value = DiodeModel> {
+    (option::of(value()), option::of(value())).prop_map(|(forward_voltage, on_resistance)| {
+        DiodeModel {
+            forward_voltage,
+            on_resistance,
+        }
+    })
+}
+
+fn winding() -> impl Strategy<Value = Winding> {
+    (name(), nodes(), value(), option::of(value())).prop_map(
+        |(name, nodes, inductance, initial_current)| Winding {
+            name,
+            nodes,
+            inductance,
+            initial_current,
+        },
+    )
+}
+
+fn coupling() -> impl Strategy<Value = Coupling> {
+    (name(), name(), option::of(value()), option::of(value())).prop_map(|(a, b, k, mutual)| {
+        Coupling {
+            windings: [a, b],
+            k,
+            mutual,
+        }
+    })
+}
+
+fn element() -> impl Strategy<Value = Element> {
+    prop_oneof![
+        (name(), nodes(), value()).prop_map(|(name, nodes, resistance)| {
+            Element::Resistor(Resistor {
+                name,
+                nodes,
+                resistance,
+            })
+        }),
+        (name(), nodes(), value(), option::of(value())).prop_map(
+            |(name, nodes, inductance, initial_current)| Element::Inductor(Inductor {
+                name,
+                nodes,
+                inductance,
+                initial_current,
+            })
+        ),
+        (name(), nodes(), value(), option::of(value())).prop_map(
+            |(name, nodes, capacitance, initial_voltage)| Element::Capacitor(Capacitor {
+                name,
+                nodes,
+                capacitance,
+                initial_voltage,
+            })
+        ),
+        (name(), vec(winding(), 0..4), vec(coupling(), 0..3)).prop_map(
+            |(name, windings, couplings)| Element::CoupledInductors(CoupledInductors {
+                name,
+                windings,
+                couplings,
+            })
+        ),
+        (name(), nodes(), nodes(), value()).prop_map(|(name, primary, secondary, turns_ratio)| {
+            Element::IdealTransformer(IdealTransformer {
+                name,
+                primary,
+                secondary,
+                turns_ratio,
+            })
+        }),
+        (name(), nodes(), waveform()).prop_map(|(name, nodes, waveform)| {
+            Element::VoltageSource(VoltageSource {
+                name,
+                nodes,
+                waveform,
+            })
+        }),
+        (name(), nodes(), waveform()).prop_map(|(name, nodes, waveform)| {
+            Element::CurrentSource(CurrentSource {
+                name,
+                nodes,
+                waveform,
+            })
+        }),
+        (
+            name(),
+            nodes(),
+            name(),
+            option::of(value()),
+            option::of(diode_model())
+        )
+            .prop_map(|(name, nodes, gate, on_resistance, body_diode)| {
+                Element::Switch(Switch {
+                    name,
+                    nodes,
+                    gate,
+                    on_resistance,
+                    body_diode,
+                })
+            }),
+        (name(), nodes(), diode_model()).prop_map(|(name, nodes, model)| Element::Diode(Diode {
+            name,
+            nodes,
+            model
+        })),
+    ]
+}
+
+fn gate() -> impl Strategy<Value = Gate> {
+    prop_oneof![
+        (
+            name(),
+            value(),
+            value(),
+            value(),
+            option::of(value()),
+            option::of(value())
+        )
+            .prop_map(|(name, frequency, duty, delay, start, stop)| Gate::Pwm {
+                name,
+                frequency,
+                duty,
+                delay,
+                start,
+                stop,
+            }),
+        (
+            name(),
+            (value(), value(), value()),
+            (value(), value()),
+            (option::of(value()), option::of(value()))
+        )
+            .prop_map(
+                |(
+                    name,
+                    (frequency, duty, delay),
+                    (dead_time_high, dead_time_low),
+                    (start, stop),
+                )| {
+                    Gate::ComplementaryPwm {
+                        name,
+                        frequency,
+                        duty,
+                        delay,
+                        dead_time_high,
+                        dead_time_low,
+                        start,
+                        stop,
+                    }
+                }
+            ),
+        (
+            name(),
+            any::<bool>(),
+            vec(
+                (value(), any::<bool>()).prop_map(|(time, on)| Transition { time, on }),
+                0..4
+            ),
+            option::of(value())
+        )
+            .prop_map(|(name, initial, transitions, period)| Gate::Transitions {
+                name,
+                initial,
+                transitions,
+                period,
+            }),
+    ]
+}
+
+fn run() -> impl Strategy<Value = RunSettings> {
+    (value(), option::of(value()), vec("\\PC{0,12}", 0..4)).prop_map(
+        |(stop_time, record_from, outputs)| RunSettings {
+            stop_time,
+            record_from,
+            outputs,
+        },
+    )
+}
+
+fn circuit() -> impl Strategy<Value = Circuit> {
+    (
+        "\\PC{0,20}",
+        vec(element(), 0..8),
+        vec(gate(), 0..3),
+        option::of(run()),
+    )
+        .prop_map(|(description, elements, gates, run)| Circuit {
+            description,
+            elements,
+            gates,
+            run,
+        })
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig::with_cases(256))]
+
+    #[test]
+    fn generated_circuits_round_trip(c in circuit()) {
+        let text = c.to_json();
+        let back = Circuit::from_json_unchecked(&text)
+            .map_err(|e| TestCaseError::fail(format!("{e}\n{text}")))?;
+        prop_assert_eq!(&back, &c);
+        // Equal text: every f64 kept its bits, −0.0 included.
+        prop_assert_eq!(back.to_json(), text);
+    }
+
+    #[test]
+    fn validation_never_panics(c in circuit()) {
+        let problems = match c.validate() {
+            Ok(()) => Vec::new(),
+            Err(NetlistError::Invalid(p)) => p,
+            Err(e) => return Err(TestCaseError::fail(format!("unexpected error {e}"))),
+        };
+        for p in problems {
+            prop_assert!(!p.message.is_empty());
+            prop_assert!(!p.message.starts_with(char::is_uppercase), "{}", p.message);
+        }
+    }
+}

@@ -1,0 +1,988 @@
+//! One bad circuit per validation rule. Each test breaks one rule of an
+//! otherwise valid circuit and checks that the problem names the element
+//! (or gate), the field and, where one is involved, the node.
+
+use fluxstep_netlist::*;
+
+use crate::common::{buck, expect, problems, valid};
+
+fn winding(name: &str, a: &str, b: &str, inductance: f64) -> Winding {
+    Winding {
+        name: name.into(),
+        nodes: [a.into(), b.into()],
+        inductance,
+        initial_current: None,
+    }
+}
+
+fn by_k(a: &str, b: &str, k: f64) -> Coupling {
+    Coupling {
+        windings: [a.into(), b.into()],
+        k: Some(k),
+        mutual: None,
+    }
+}
+
+fn coupled(windings: Vec<Winding>, couplings: Vec<Coupling>) -> Element {
+    Element::CoupledInductors(CoupledInductors {
+        name: "T1".into(),
+        windings,
+        couplings,
+    })
+}
+
+/// A flyback (48 V in, 100 kHz): primary `in`→`sw`, secondary dotted at
+/// ground, output diode, filter and load; no clamp (not needed for validity).
+fn flyback_with(magnetics: Element) -> CircuitBuilder {
+    Circuit::builder()
+        .voltage_source("Vin", "in", "gnd", 48.0)
+        .element(magnetics)
+        .switch("S1", "sw", "gnd", "drive")
+        .diode("D1", "sec", "out")
+        .capacitor("C1", "out", "gnd", 100e-6)
+        .resistor("Rload", "out", "gnd", 6.0)
+        .pwm("drive", 100e3, 0.5)
+}
+
+fn flyback_magnetics() -> Element {
+    coupled(
+        vec![
+            winding("pri", "in", "sw", 200e-6),
+            winding("sec", "gnd", "sec", 12.5e-6),
+        ],
+        vec![by_k("pri", "sec", 0.99)],
+    )
+}
+
+fn transformer(primary: [&str; 2], secondary: [&str; 2], n: f64) -> Element {
+    Element::IdealTransformer(IdealTransformer {
+        name: "X1".into(),
+        primary: primary.map(String::from),
+        secondary: secondary.map(String::from),
+        turns_ratio: n,
+    })
+}
+
+fn pwl(points: &[(f64, f64)], period: Option<f64>) -> Waveform {
+    Waveform::PiecewiseLinear {
+        points: points
+            .iter()
+            .map(|&(time, value)| Point { time, value })
+            .collect(),
+        period,
+    }
+}
+
+fn complementary(duty: f64, dead_time_high: f64, dead_time_low: f64) -> Gate {
+    Gate::ComplementaryPwm {
+        name: "hb".into(),
+        frequency: 100e3,
+        duty,
+        delay: 0.0,
+        dead_time_high,
+        dead_time_low,
+        start: None,
+        stop: None,
+    }
+}
+
+/// A synchronous buck driven by a complementary pair `hb`.
+fn sync_buck(gate: Gate) -> Circuit {
+    let body = DiodeModel {
+        forward_voltage: Some(0.7),
+        on_resistance: None,
+    };
+    Circuit::builder()
+        .voltage_source("Vin", "in", "gnd", 24.0)
+        .transistor("Q1", "in", "sw", "hb.high", 0.01, body.clone())
+        .transistor("Q2", "sw", "gnd", "hb.low", 0.01, body)
+        .inductor("L1", "sw", "out", 22e-6)
+        .capacitor("C1", "out", "gnd", 47e-6)
+        .resistor("Rload", "out", "gnd", 6.0)
+        .gate(gate)
+        .build_unchecked()
+}
+
+fn pwm_gate(duty: f64, delay: f64, start: Option<f64>, stop: Option<f64>) -> Gate {
+    Gate::Pwm {
+        name: "drive".into(),
+        frequency: 200e3,
+        duty,
+        delay,
+        start,
+        stop,
+    }
+}
+
+/// The buck with its gate replaced.
+fn buck_gate(g: Gate) -> Circuit {
+    let mut c = buck().build_unchecked();
+    c.gates = vec![g];
+    c
+}
+
+fn transitions(times: &[f64], period: Option<f64>) -> Gate {
+    Gate::Transitions {
+        name: "drive".into(),
+        initial: false,
+        transitions: times
+            .iter()
+            .enumerate()
+            .map(|(i, &time)| Transition {
+                time,
+                on: i % 2 == 0,
+            })
+            .collect(),
+        period,
+    }
+}
+
+// ----- valid circuits ------------------------------------------------------
+
+#[test]
+fn valid_circuits_have_no_problems() {
+    valid(&buck().build_unchecked());
+    valid(&flyback_with(flyback_magnetics()).build_unchecked());
+    valid(&sync_buck(complementary(0.5, 50e-9, 50e-9)));
+    // A forward-style transformer whose secondary return is grounded.
+    valid(
+        &Circuit::builder()
+            .voltage_source("Vin", "in", "gnd", 12.0)
+            .element(transformer(["in", "gnd"], ["s", "gnd"], 2.0))
+            .resistor("R1", "s", "gnd", 10.0)
+            .build_unchecked(),
+    );
+    // `0` is ground too.
+    valid(
+        &Circuit::builder()
+            .voltage_source("V1", "in", "0", 5.0)
+            .resistor("R1", "in", "gnd", 1e3)
+            .build_unchecked(),
+    );
+    // An inductor in series with a current source is a cut of inductors and
+    // current sources, which the solver handles: not a current-source cut.
+    valid(
+        &buck()
+            .current_source("I1", "gnd", "x", Waveform::constant(1.0))
+            .inductor("L2", "x", "out", 1e-6)
+            .build_unchecked(),
+    );
+    // Dead times that exactly fill their part of the period are allowed.
+    valid(&sync_buck(complementary(0.25, 2.5e-6, 7.5e-6)));
+}
+
+#[test]
+fn all_problems_are_reported_at_once() {
+    let c = Circuit::builder()
+        .voltage_source("Vin", "in", "gnd", 24.0)
+        .switch("S1", "in", "sw", "drv")
+        .diode("D1", "gnd", "sw")
+        .inductor("L1", "sw", "out", -22e-6)
+        .capacitor("C1", "out", "gnd", 47e-6)
+        .resistor("Rload", "out", "loose", 6.0)
+        .pwm("drive", 200e3, 1.5)
+        .build_unchecked();
+    expect(&c, Some("L1"), Some("inductance"), "must be positive");
+    expect(&c, Some("Rload"), Some("nodes[1]"), "node 'loose'");
+    expect(&c, Some("S1"), Some("gate"), "unknown gate signal 'drv'");
+    expect(&c, Some("drive"), Some("duty"), "[0, 1]");
+    match Circuit::from_json(&c.to_json()) {
+        Err(NetlistError::Invalid(p)) => assert!(p.len() >= 4, "{p:?}"),
+        other => panic!("expected Invalid, got {other:?}"),
+    }
+    let shown = problems(&c)
+        .iter()
+        .find(|p| p.field.as_deref() == Some("inductance"))
+        .unwrap()
+        .to_string();
+    assert_eq!(shown, "L1.inductance: must be positive, got -2.2e-5");
+}
+
+#[test]
+fn empty_circuit() {
+    expect(&Circuit::default(), None, Some("elements"), "no elements");
+}
+
+// ----- names ---------------------------------------------------------------
+
+#[test]
+fn duplicate_element_name() {
+    let c = buck().resistor("L1", "out", "gnd", 1.0).build_unchecked();
+    let p = expect(&c, Some("L1"), Some("name"), "duplicate element name 'L1'");
+    assert!(p.message.contains("elements[3]") && p.message.contains("elements[6]"));
+}
+
+#[test]
+fn duplicate_gate_name() {
+    let c = buck().pwm("drive", 100e3, 0.3).build_unchecked();
+    expect(
+        &c,
+        Some("drive"),
+        Some("name"),
+        "duplicate gate name 'drive'",
+    );
+}
+
+#[test]
+fn duplicate_winding_name() {
+    let m = coupled(
+        vec![
+            winding("p", "in", "sw", 200e-6),
+            winding("p", "gnd", "sec", 12.5e-6),
+        ],
+        vec![],
+    );
+    let c = flyback_with(m).build_unchecked();
+    expect(
+        &c,
+        Some("T1"),
+        Some("windings[1].name"),
+        "duplicate winding name 'p'",
+    );
+}
+
+#[test]
+fn unusable_names() {
+    let c = buck().resistor("R 2", "out", "gnd", 1.0).build_unchecked();
+    expect(&c, Some("R 2"), Some("name"), "whitespace");
+    let c = buck().resistor("R.2", "out", "gnd", 1.0).build_unchecked();
+    expect(&c, Some("R.2"), Some("name"), "must not contain '.'");
+    let c = buck().resistor("", "out", "gnd", 1.0).build_unchecked();
+    expect(&c, Some("elements[6]"), Some("name"), "is empty");
+    let c = buck()
+        .resistor("R2", "out", "a.b", 1.0)
+        .resistor("R3", "a.b", "gnd", 1.0)
+        .build_unchecked();
+    let p = expect(&c, Some("R2"), Some("nodes[1]"), "node name \"a.b\"");
+    assert_eq!(p.node.as_deref(), Some("a.b"));
+    // Reported once, where the node is first used.
+    assert_eq!(
+        problems(&c)
+            .iter()
+            .filter(|p| p.message.contains("node name"))
+            .count(),
+        1
+    );
+    let c = buck().pwm("g x", 1e3, 0.5).build_unchecked();
+    expect(&c, Some("g x"), Some("name"), "gate name");
+    let m = coupled(
+        vec![
+            winding("pri", "in", "sw", 200e-6),
+            winding("", "gnd", "sec", 12.5e-6),
+        ],
+        vec![],
+    );
+    expect(
+        &flyback_with(m).build_unchecked(),
+        Some("T1"),
+        Some("windings[1].name"),
+        "winding name \"\" is empty",
+    );
+}
+
+#[test]
+fn unknown_gate_reference() {
+    let c = Circuit::builder()
+        .voltage_source("Vin", "in", "gnd", 24.0)
+        .switch("S1", "in", "sw", "drv")
+        .diode("D1", "gnd", "sw")
+        .inductor("L1", "sw", "out", 22e-6)
+        .capacitor("C1", "out", "gnd", 47e-6)
+        .resistor("Rload", "out", "gnd", 6.0)
+        .pwm("drive", 200e3, 0.5)
+        .build_unchecked();
+    let p = expect(&c, Some("S1"), Some("gate"), "unknown gate signal 'drv'");
+    assert!(p.message.contains("'drive'"), "lists the known signals");
+    // A complementary pair is referred to by its signals, not its name.
+    let mut c = sync_buck(complementary(0.5, 50e-9, 50e-9));
+    if let Element::Switch(s) = &mut c.elements[1] {
+        s.gate = "hb".into();
+    }
+    let p = expect(&c, Some("Q1"), Some("gate"), "unknown gate signal 'hb'");
+    assert!(p.message.contains("'hb.high'"));
+}
+
+// ----- topology ------------------------------------------------------------
+
+#[test]
+fn dangling_node() {
+    let c = buck()
+        .resistor("R2", "out", "nowhere", 1.0)
+        .build_unchecked();
+    let p = expect(
+        &c,
+        Some("R2"),
+        Some("nodes[1]"),
+        "node 'nowhere' is reached by only this terminal",
+    );
+    assert_eq!(p.node.as_deref(), Some("nowhere"));
+}
+
+#[test]
+fn missing_ground() {
+    let c = Circuit::builder()
+        .voltage_source("V1", "a", "b", 5.0)
+        .resistor("R1", "a", "b", 1.0)
+        .build_unchecked();
+    expect(&c, None, None, "no element touches ground");
+    // Only that: every part floats, and saying so again adds nothing.
+    assert_eq!(problems(&c).len(), 1);
+}
+
+#[test]
+fn terminals_on_the_same_node() {
+    let c = buck().resistor("R2", "out", "out", 1.0).build_unchecked();
+    let p = expect(
+        &c,
+        Some("R2"),
+        Some("nodes"),
+        "both terminals are node 'out'",
+    );
+    assert_eq!(p.node.as_deref(), Some("out"));
+    // `0` and `gnd` are the same node.
+    let c = buck().capacitor("C2", "0", "gnd", 1e-6).build_unchecked();
+    expect(
+        &c,
+        Some("C2"),
+        Some("nodes"),
+        "both terminals are node 'gnd'",
+    );
+    // A transformer winding shorted on itself.
+    let c = Circuit::builder()
+        .voltage_source("Vin", "in", "gnd", 12.0)
+        .resistor("R1", "in", "gnd", 1.0)
+        .element(transformer(["in", "gnd"], ["s", "s"], 2.0))
+        .build_unchecked();
+    expect(
+        &c,
+        Some("X1"),
+        Some("secondary"),
+        "both terminals are node 's'",
+    );
+}
+
+#[test]
+fn part_without_ground() {
+    let c = buck()
+        .voltage_source("V2", "a", "b", 5.0)
+        .resistor("R2", "a", "b", 1.0)
+        .build_unchecked();
+    let p = expect(&c, Some("V2"), Some("nodes"), "no connection to ground");
+    assert!(p.message.contains("'a', 'b'") && p.message.contains("R2"));
+    assert_eq!(p.node.as_deref(), Some("a"));
+}
+
+#[test]
+fn transformer_sides_need_their_own_ground() {
+    let c = Circuit::builder()
+        .voltage_source("Vin", "in", "gnd", 12.0)
+        .element(transformer(["in", "gnd"], ["s1", "s2"], 2.0))
+        .resistor("R1", "s1", "s2", 10.0)
+        .build_unchecked();
+    let p = expect(&c, Some("X1"), Some("secondary"), "no connection to ground");
+    assert!(p.message.contains("X1.secondary") && p.message.contains("own path to ground"));
+}
+
+#[test]
+fn coupled_windings_need_their_own_ground() {
+    let m = coupled(
+        vec![
+            winding("pri", "in", "sw", 200e-6),
+            winding("sec", "ret", "sec", 12.5e-6),
+        ],
+        vec![by_k("pri", "sec", 0.99)],
+    );
+    let c = Circuit::builder()
+        .voltage_source("Vin", "in", "gnd", 48.0)
+        .element(m)
+        .switch("S1", "sw", "gnd", "drive")
+        .diode("D1", "sec", "out")
+        .capacitor("C1", "out", "ret", 100e-6)
+        .resistor("Rload", "out", "ret", 6.0)
+        .pwm("drive", 100e3, 0.5)
+        .build_unchecked();
+    let p = expect(
+        &c,
+        Some("T1"),
+        Some("windings[1].nodes"),
+        "no connection to ground",
+    );
+    assert!(p.message.contains("T1.sec"));
+}
+
+#[test]
+fn loop_of_voltage_sources() {
+    let c = buck()
+        .voltage_source("V2", "in", "gnd", 5.0)
+        .build_unchecked();
+    let p = expect(
+        &c,
+        Some("V2"),
+        Some("nodes"),
+        "closes a loop made only of voltage sources",
+    );
+    assert!(p.message.contains("'in'") && p.message.contains("Vin"));
+    // Around three sources the last one is named, with the other two.
+    let c = Circuit::builder()
+        .voltage_source("V1", "a", "gnd", 1.0)
+        .voltage_source("V2", "b", "a", 1.0)
+        .voltage_source("V3", "b", "gnd", 2.0)
+        .resistor("R1", "b", "gnd", 1.0)
+        .build_unchecked();
+    let p = expect(
+        &c,
+        Some("V3"),
+        Some("nodes"),
+        "only of voltage sources (with V2, V1)",
+    );
+    assert_eq!(p.node.as_deref(), Some("b"));
+}
+
+#[test]
+fn cut_of_current_sources() {
+    // One node fed and drained only by current sources.
+    let c = buck()
+        .current_source("I1", "gnd", "x", Waveform::constant(1.0))
+        .current_source("I2", "x", "out", Waveform::constant(1.0))
+        .build_unchecked();
+    let p = expect(
+        &c,
+        Some("I1"),
+        Some("nodes"),
+        "only through current source(s) I1, I2",
+    );
+    assert_eq!(p.node.as_deref(), Some("x"));
+    // A set of nodes joined to the rest only through one current source.
+    let c = buck()
+        .current_source("I1", "out", "a", Waveform::constant(1.0))
+        .resistor("R2", "a", "b", 1.0)
+        .capacitor("C2", "a", "b", 1e-6)
+        .build_unchecked();
+    // Node b has two terminals (R2, C2), node a three: nothing dangles.
+    let p = expect(&c, Some("I1"), Some("nodes"), "node(s) 'a', 'b'");
+    assert!(p.message.contains("current source(s) I1"));
+}
+
+// ----- values --------------------------------------------------------------
+
+#[test]
+fn non_finite_values() {
+    let c = buck()
+        .resistor("R2", "out", "gnd", f64::NAN)
+        .build_unchecked();
+    expect(&c, Some("R2"), Some("resistance"), "finite");
+    let c = buck()
+        .inductor_with_current("L2", "out", "gnd", 1e-6, f64::INFINITY)
+        .build_unchecked();
+    expect(&c, Some("L2"), Some("initial_current"), "finite");
+    let c = buck()
+        .capacitor_with_voltage("C2", "out", "gnd", 1e-6, f64::NAN)
+        .build_unchecked();
+    expect(&c, Some("C2"), Some("initial_voltage"), "finite");
+    let c = buck()
+        .voltage_waveform("V2", "x", "gnd", Waveform::constant(f64::NAN))
+        .resistor("R2", "x", "gnd", 1.0)
+        .build_unchecked();
+    expect(&c, Some("V2"), Some("waveform.value"), "finite");
+    let c = buck()
+        .voltage_waveform("V2", "x", "gnd", pwl(&[(0.0, 1.0), (f64::NAN, 2.0)], None))
+        .resistor("R2", "x", "gnd", 1.0)
+        .build_unchecked();
+    expect(&c, Some("V2"), Some("waveform.points[1].time"), "finite");
+    let c = buck_gate(pwm_gate(f64::NAN, 0.0, None, None));
+    expect(&c, Some("drive"), Some("duty"), "finite");
+}
+
+#[test]
+fn values_that_must_be_positive() {
+    let cases: Vec<(Circuit, &str, &str)> = vec![
+        (
+            buck().resistor("R2", "out", "gnd", 0.0).build_unchecked(),
+            "R2",
+            "resistance",
+        ),
+        (
+            buck().inductor("L2", "out", "gnd", -1e-6).build_unchecked(),
+            "L2",
+            "inductance",
+        ),
+        (
+            buck().capacitor("C2", "out", "gnd", 0.0).build_unchecked(),
+            "C2",
+            "capacitance",
+        ),
+        (
+            Circuit::builder()
+                .voltage_source("Vin", "in", "gnd", 12.0)
+                .element(transformer(["in", "gnd"], ["s", "gnd"], -2.0))
+                .resistor("R1", "s", "gnd", 10.0)
+                .build_unchecked(),
+            "X1",
+            "turns_ratio",
+        ),
+        (
+            buck()
+                .voltage_waveform("V2", "x", "gnd", Waveform::sine(0.0, 1.0, 0.0, 0.0))
+                .resistor("R2", "x", "gnd", 1.0)
+                .build_unchecked(),
+            "V2",
+            "waveform.frequency",
+        ),
+        (
+            buck()
+                .voltage_waveform("V2", "x", "gnd", Waveform::sine(0.0, 1.0, -50.0, 0.0))
+                .resistor("R2", "x", "gnd", 1.0)
+                .build_unchecked(),
+            "V2",
+            "waveform.frequency",
+        ),
+        (
+            buck_gate(Gate::Pwm {
+                name: "drive".into(),
+                frequency: 0.0,
+                duty: 0.5,
+                delay: 0.0,
+                start: None,
+                stop: None,
+            }),
+            "drive",
+            "frequency",
+        ),
+        (
+            flyback_with(coupled(
+                vec![
+                    winding("pri", "in", "sw", 200e-6),
+                    winding("sec", "gnd", "sec", 0.0),
+                ],
+                vec![by_k("pri", "sec", 0.99)],
+            ))
+            .build_unchecked(),
+            "T1",
+            "windings[1].inductance",
+        ),
+    ];
+    for (c, element, field) in cases {
+        expect(&c, Some(element), Some(field), "must be positive");
+    }
+}
+
+#[test]
+fn diode_and_switch_values_must_not_be_negative() {
+    let model = |vf: Option<f64>, r: Option<f64>| DiodeModel {
+        forward_voltage: vf,
+        on_resistance: r,
+    };
+    let c = buck()
+        .diode_model("D2", "gnd", "out", model(Some(-0.7), None))
+        .build_unchecked();
+    expect(
+        &c,
+        Some("D2"),
+        Some("forward_voltage"),
+        "must not be negative",
+    );
+    let c = buck()
+        .diode_model("D2", "gnd", "out", model(None, Some(-0.1)))
+        .build_unchecked();
+    expect(
+        &c,
+        Some("D2"),
+        Some("on_resistance"),
+        "must not be negative",
+    );
+    let c = buck()
+        .transistor("Q2", "out", "gnd", "drive", -0.01, model(None, None))
+        .build_unchecked();
+    expect(
+        &c,
+        Some("Q2"),
+        Some("on_resistance"),
+        "must not be negative",
+    );
+    let c = buck()
+        .transistor("Q2", "out", "gnd", "drive", 0.01, model(Some(-1.0), None))
+        .build_unchecked();
+    expect(
+        &c,
+        Some("Q2"),
+        Some("body_diode.forward_voltage"),
+        "must not be negative",
+    );
+    let c = buck()
+        .transistor("Q2", "out", "gnd", "drive", 0.01, model(None, Some(-1.0)))
+        .build_unchecked();
+    expect(
+        &c,
+        Some("Q2"),
+        Some("body_diode.on_resistance"),
+        "must not be negative",
+    );
+}
+
+// ----- coupled inductors ---------------------------------------------------
+
+fn flyback_couplings(couplings: Vec<Coupling>) -> Circuit {
+    flyback_with(coupled(
+        vec![
+            winding("pri", "in", "sw", 200e-6),
+            winding("sec", "gnd", "sec", 12.5e-6),
+        ],
+        couplings,
+    ))
+    .build_unchecked()
+}
+
+#[test]
+fn coupling_names_an_unknown_winding() {
+    let c = flyback_couplings(vec![by_k("pri", "second", 0.99)]);
+    let p = expect(
+        &c,
+        Some("T1"),
+        Some("couplings[0].windings[1]"),
+        "unknown winding 'second'",
+    );
+    assert!(p.message.contains("'pri', 'sec'"));
+}
+
+#[test]
+fn coupling_gives_both_or_neither() {
+    let mut both = by_k("pri", "sec", 0.99);
+    both.mutual = Some(40e-6);
+    expect(
+        &flyback_couplings(vec![both]),
+        Some("T1"),
+        Some("couplings[0]"),
+        "either k or mutual, not both",
+    );
+    let neither = Coupling {
+        windings: ["pri".into(), "sec".into()],
+        k: None,
+        mutual: None,
+    };
+    expect(
+        &flyback_couplings(vec![neither]),
+        Some("T1"),
+        Some("couplings[0]"),
+        "give the coupling as k or as mutual",
+    );
+}
+
+#[test]
+fn coupling_coefficient_above_one() {
+    let c = flyback_couplings(vec![by_k("pri", "sec", 1.2)]);
+    expect(
+        &c,
+        Some("T1"),
+        Some("couplings[0].k"),
+        "must lie in [-1, 1]",
+    );
+    let c = flyback_couplings(vec![by_k("pri", "sec", -1.01)]);
+    expect(
+        &c,
+        Some("T1"),
+        Some("couplings[0].k"),
+        "must lie in [-1, 1]",
+    );
+}
+
+#[test]
+fn inductance_matrix_not_positive_definite() {
+    // k = 1: no leakage at all, a singular matrix.
+    let c = flyback_couplings(vec![by_k("pri", "sec", 1.0)]);
+    expect(&c, Some("T1"), Some("couplings"), "not positive definite");
+    // A mutual inductance above √(L1·L2) = 50 µH.
+    let m = Coupling {
+        windings: ["pri".into(), "sec".into()],
+        k: None,
+        mutual: Some(60e-6),
+    };
+    expect(
+        &flyback_couplings(vec![m]),
+        Some("T1"),
+        Some("couplings"),
+        "not positive definite",
+    );
+    // Three windings, each pair below 1, together impossible.
+    let c = flyback_with(coupled(
+        vec![
+            winding("pri", "in", "sw", 200e-6),
+            winding("sec", "gnd", "sec", 12.5e-6),
+            winding("aux", "gnd", "aux", 12.5e-6),
+        ],
+        vec![
+            by_k("pri", "sec", 0.9),
+            by_k("pri", "aux", 0.9),
+            by_k("sec", "aux", -0.9),
+        ],
+    ))
+    .resistor("Raux", "aux", "gnd", 1e3)
+    .build_unchecked();
+    expect(&c, Some("T1"), Some("couplings"), "not positive definite");
+}
+
+#[test]
+fn coupled_inductors_need_two_windings() {
+    let c = Circuit::builder()
+        .voltage_source("Vin", "in", "gnd", 12.0)
+        .resistor("R1", "in", "a", 1.0)
+        .element(coupled(vec![winding("only", "a", "gnd", 1e-3)], vec![]))
+        .build_unchecked();
+    expect(&c, Some("T1"), Some("windings"), "at least two windings");
+}
+
+#[test]
+fn coupling_of_a_winding_with_itself_or_twice() {
+    let c = flyback_couplings(vec![by_k("pri", "pri", 0.5)]);
+    expect(&c, Some("T1"), Some("couplings[0].windings"), "with itself");
+    let c = flyback_couplings(vec![by_k("pri", "sec", 0.9), by_k("sec", "pri", 0.9)]);
+    expect(
+        &c,
+        Some("T1"),
+        Some("couplings[1].windings"),
+        "already coupled by couplings[0]",
+    );
+}
+
+// ----- waveforms -----------------------------------------------------------
+
+fn with_source(w: Waveform) -> Circuit {
+    buck()
+        .voltage_waveform("V2", "x", "gnd", w)
+        .resistor("R2", "x", "gnd", 1.0)
+        .build_unchecked()
+}
+
+#[test]
+fn pwl_times_not_strictly_increasing() {
+    let c = with_source(pwl(&[(0.0, 0.0), (1e-6, 1.0), (0.5e-6, 2.0)], None));
+    expect(
+        &c,
+        Some("V2"),
+        Some("waveform.points[2].time"),
+        "strictly increasing",
+    );
+    let c = with_source(pwl(&[(0.0, 0.0), (1e-6, 1.0), (1e-6, 2.0)], None));
+    expect(
+        &c,
+        Some("V2"),
+        Some("waveform.points[2].time"),
+        "strictly increasing",
+    );
+}
+
+#[test]
+fn pwl_without_points() {
+    let c = with_source(pwl(&[], None));
+    expect(
+        &c,
+        Some("V2"),
+        Some("waveform.points"),
+        "at least one point",
+    );
+}
+
+#[test]
+fn repeating_pwl_points_outside_the_period() {
+    let c = with_source(pwl(&[(0.0, 0.0), (2e-6, 1.0)], Some(1e-6)));
+    expect(
+        &c,
+        Some("V2"),
+        Some("waveform.points[1].time"),
+        "outside one period",
+    );
+    let c = with_source(pwl(&[(-1e-7, 0.0), (1e-6, 1.0)], Some(1e-6)));
+    expect(
+        &c,
+        Some("V2"),
+        Some("waveform.points[0].time"),
+        "outside one period",
+    );
+    // A point at exactly one period closes the pattern: allowed.
+    valid(&with_source(pwl(&[(0.0, 0.0), (1e-6, 1.0)], Some(1e-6))));
+    let c = with_source(pwl(&[(0.0, 0.0)], Some(0.0)));
+    expect(&c, Some("V2"), Some("waveform.period"), "must be positive");
+}
+
+// ----- gates ---------------------------------------------------------------
+
+#[test]
+fn duty_outside_zero_to_one() {
+    for duty in [-0.1, 1.2] {
+        let c = buck_gate(pwm_gate(duty, 0.0, None, None));
+        expect(&c, Some("drive"), Some("duty"), "must lie in [0, 1]");
+    }
+    valid(&buck_gate(pwm_gate(0.0, 0.0, None, None)));
+    valid(&buck_gate(pwm_gate(1.0, 0.0, None, None)));
+    let c = sync_buck(complementary(1.5, 0.0, 0.0));
+    expect(&c, Some("hb"), Some("duty"), "must lie in [0, 1]");
+}
+
+#[test]
+fn delay_outside_one_period() {
+    // T = 5 µs.
+    let c = buck_gate(pwm_gate(0.5, 5e-6, None, None));
+    expect(&c, Some("drive"), Some("delay"), "must lie in [0, period)");
+    let c = buck_gate(pwm_gate(0.5, -1e-6, None, None));
+    expect(&c, Some("drive"), Some("delay"), "must lie in [0, period)");
+    valid(&buck_gate(pwm_gate(0.5, 4.9e-6, None, None)));
+}
+
+#[test]
+fn start_not_before_stop() {
+    let c = buck_gate(pwm_gate(0.5, 0.0, Some(1e-3), Some(1e-3)));
+    expect(&c, Some("drive"), Some("stop"), "must come after start");
+    valid(&buck_gate(pwm_gate(0.5, 0.0, Some(1e-3), Some(2e-3))));
+}
+
+#[test]
+fn dead_times() {
+    let c = sync_buck(complementary(0.5, -1e-9, 50e-9));
+    expect(
+        &c,
+        Some("hb"),
+        Some("dead_time_high"),
+        "must not be negative",
+    );
+    let c = sync_buck(complementary(0.5, 50e-9, -1e-9));
+    expect(
+        &c,
+        Some("hb"),
+        Some("dead_time_low"),
+        "must not be negative",
+    );
+    // 100 kHz, 10 % duty: the high part of the period is 1 µs.
+    let c = sync_buck(complementary(0.1, 2e-6, 50e-9));
+    expect(&c, Some("hb"), Some("dead_time_high"), "does not fit");
+    // 95 % duty: the low part is 0.5 µs.
+    let c = sync_buck(complementary(0.95, 50e-9, 1e-6));
+    expect(&c, Some("hb"), Some("dead_time_low"), "does not fit");
+}
+
+#[test]
+fn transition_times() {
+    let c = buck_gate(transitions(&[1e-6, 1e-6], None));
+    expect(
+        &c,
+        Some("drive"),
+        Some("transitions[1].time"),
+        "strictly increasing",
+    );
+    let c = buck_gate(transitions(&[2e-6, 1e-6], None));
+    expect(
+        &c,
+        Some("drive"),
+        Some("transitions[1].time"),
+        "strictly increasing",
+    );
+    // Repeating: times lie in [0, period); the period's end is the next start.
+    let c = buck_gate(transitions(&[0.0, 5e-6], Some(5e-6)));
+    expect(
+        &c,
+        Some("drive"),
+        Some("transitions[1].time"),
+        "outside one period",
+    );
+    valid(&buck_gate(transitions(&[0.0, 2.5e-6], Some(5e-6))));
+    let c = buck_gate(transitions(&[0.0, 2.5e-6], Some(-5e-6)));
+    expect(&c, Some("drive"), Some("period"), "must be positive");
+}
+
+// ----- run settings --------------------------------------------------------
+
+fn with_run(stop_time: f64, record_from: Option<f64>, outputs: &[&str]) -> Circuit {
+    let mut c = buck().run(stop_time, outputs).build_unchecked();
+    c.run.as_mut().unwrap().record_from = record_from;
+    c
+}
+
+#[test]
+fn run_stop_time_and_window() {
+    expect(
+        &with_run(0.0, None, &[]),
+        None,
+        Some("run.stop_time"),
+        "must be positive",
+    );
+    expect(
+        &with_run(1e-3, Some(1e-3), &[]),
+        None,
+        Some("run.record_from"),
+        "[0, stop_time)",
+    );
+    expect(
+        &with_run(1e-3, Some(-1e-6), &[]),
+        None,
+        Some("run.record_from"),
+        "[0, stop_time)",
+    );
+    valid(&with_run(
+        1e-3,
+        Some(0.9e-3),
+        &["L1.current", "sw", "out", "0", "gnd"],
+    ));
+}
+
+#[test]
+fn run_outputs() {
+    let c = with_run(1e-3, None, &["out", "nowhere"]);
+    let p = expect(&c, None, Some("run.outputs[1]"), "names no node");
+    assert_eq!(p.node.as_deref(), Some("nowhere"));
+    let c = with_run(1e-3, None, &["L9.current"]);
+    expect(&c, None, Some("run.outputs[0]"), "no element is named 'L9'");
+    let c = with_run(1e-3, None, &["L1.flux"]);
+    expect(&c, None, Some("run.outputs[0]"), "unknown output");
+    let c = with_run(1e-3, None, &["S1.body_diode.current"]);
+    expect(&c, None, Some("run.outputs[0]"), "has no body_diode");
+    let c = with_run(1e-3, None, &["L1.winding.current"]);
+    expect(
+        &c,
+        None,
+        Some("run.outputs[0]"),
+        "inductor 'L1' has no part 'winding'",
+    );
+
+    // Windings of coupled inductors are named ELEMENT.WINDING.
+    let fly = |outputs: &[&str]| {
+        flyback_with(flyback_magnetics())
+            .run(1e-3, outputs)
+            .build_unchecked()
+    };
+    valid(&fly(&["T1.pri.current", "T1.sec.voltage", "sw"]));
+    expect(
+        &fly(&["T1.current"]),
+        None,
+        Some("run.outputs[0]"),
+        "one current per winding",
+    );
+    expect(
+        &fly(&["T1.tertiary.current"]),
+        None,
+        Some("run.outputs[0]"),
+        "no winding 'tertiary'",
+    );
+
+    // Body diodes are SWITCH.body_diode; an ideal transformer has a primary
+    // and a secondary.
+    let mut c = sync_buck(complementary(0.5, 50e-9, 50e-9));
+    c.run = Some(RunSettings {
+        stop_time: 1e-3,
+        record_from: None,
+        outputs: vec!["Q2.body_diode.current".into(), "Q2.current".into()],
+    });
+    valid(&c);
+    let x = |outputs: &[&str]| {
+        Circuit::builder()
+            .voltage_source("Vin", "in", "gnd", 12.0)
+            .element(transformer(["in", "gnd"], ["s", "gnd"], 2.0))
+            .resistor("R1", "s", "gnd", 10.0)
+            .run(1e-3, outputs)
+            .build_unchecked()
+    };
+    valid(&x(&["X1.primary.current", "X1.secondary.voltage"]));
+    expect(
+        &x(&["X1.current"]),
+        None,
+        Some("run.outputs[0]"),
+        "a primary and a secondary",
+    );
+}

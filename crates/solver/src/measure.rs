@@ -1,0 +1,587 @@
+//! Measurements on the exact piecewise solution: average, RMS, extremes and
+//! their times of any output, and the power and energy of any element, over
+//! a time window (by default the last few switching periods).
+//!
+//! Nothing here samples on a grid. Integrals use [`Waveform::integrate`]
+//! (Gauss–Legendre on sub-intervals where the output is a rapidly converging
+//! sum of exponentials, exact up to rounding). Extremes are taken among the
+//! values at every event instant (left and right limits both) and at every
+//! interior stationary point, located as a sign change of the exact time
+//! derivative and refined by bisection to machine precision.
+//!
+//! # Window convention
+//!
+//! A window `[t0, t1]` sees the output on the open interval `(t0, t1)` plus
+//! its one-sided limits at the ends: the value just after `t0` and the value
+//! just before `t1`. An event exactly at `t0` therefore contributes only its
+//! after-value, one exactly at `t1` only its before-value, which makes
+//! windows of whole periods tile without counting an edge twice.
+//! Zero-length segments (momentary modes at an event instant) are skipped,
+//! as [`Waveform::value`] and [`Waveform::value_before`] skip them.
+
+use serde::{Deserialize, Serialize};
+
+use crate::propagate;
+use crate::waveform::{OutputId, Waveform};
+use crate::waveform_ext::Piece;
+
+/// Samples of the derivative per sub-interval when bracketing stationary
+/// points. A sub-interval spans at most half a radian of the fastest
+/// dynamics (ρ·δ ≤ 1/2), so the derivative turns at most a few times
+/// there; eight samples separate distinct stationary points unless two lie
+/// within δ/8 of each other, and such a pair differs in value by far less
+/// than the swing between them (it is a shallow wiggle, not a peak).
+const DERIVATIVE_SAMPLES: usize = 8;
+
+/// Measurements of one output over a time window.
+///
+/// All values are in the output's SI unit (V or A); times in seconds.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct Measurement {
+    /// The output's name (`NODE`, `ELEMENT.current`, `ELEMENT.voltage`).
+    pub output: String,
+    /// Start of the window (s).
+    pub t0: f64,
+    /// End of the window (s).
+    pub t1: f64,
+    /// Time average over the window.
+    pub average: f64,
+    /// Root mean square over the window.
+    pub rms: f64,
+    /// Smallest value in the window.
+    pub min: f64,
+    /// Largest value in the window.
+    pub max: f64,
+    /// `max − min`: the ripple when the window holds whole periods.
+    pub peak_to_peak: f64,
+    /// First instant at which `min` is reached (s).
+    pub time_of_min: f64,
+    /// First instant at which `max` is reached (s).
+    pub time_of_max: f64,
+}
+
+/// Why a measurement could not be taken. Each variant names the output or
+/// element (`subject`) and the times concerned.
+#[derive(Clone, Debug, PartialEq, thiserror::Error)]
+pub enum MeasureError {
+    /// The window is empty, reversed or not finite.
+    #[error("{subject}: window [{t0:e}, {t1:e}] s is empty or not finite (need t0 < t1)")]
+    InvalidWindow {
+        /// Output or element name.
+        subject: String,
+        /// Requested start (s).
+        t0: f64,
+        /// Requested end (s).
+        t1: f64,
+    },
+    /// The run recorded nothing (e.g. `Record::Nothing`).
+    #[error("{subject}: nothing was recorded")]
+    NothingRecorded {
+        /// Output or element name.
+        subject: String,
+    },
+    /// The window reaches outside the recorded span.
+    #[error(
+        "{subject}: window [{t0:e}, {t1:e}] s is not inside the recorded span [{start:e}, {end:e}] s"
+    )]
+    OutsideRecord {
+        /// Output or element name.
+        subject: String,
+        /// Requested start (s).
+        t0: f64,
+        /// Requested end (s).
+        t1: f64,
+        /// Start of the recorded span (s).
+        start: f64,
+        /// End of the recorded span (s).
+        end: f64,
+    },
+    /// The output has no defined value over part of the window (a floating
+    /// node, or the voltage of an open element across one).
+    #[error("{subject} is undetermined (floating) from t = {time:e} s, inside the window")]
+    Undetermined {
+        /// Output or element name.
+        subject: String,
+        /// Start of the undetermined stretch (s), clipped to the window.
+        time: f64,
+    },
+    /// The solution holds an infinite or NaN value.
+    #[error("{subject} is not finite at t = {time:e} s")]
+    NonFinite {
+        /// Output or element name.
+        subject: String,
+        /// Where the value was found (s).
+        time: f64,
+    },
+    /// The output id belongs to another waveform.
+    #[error("output id {index} does not belong to this waveform")]
+    ForeignOutput {
+        /// The id's index.
+        index: usize,
+    },
+    /// No element of that name has a recorded current and voltage.
+    #[error("no element {element:?} with a recorded current and voltage")]
+    UnknownElement {
+        /// The name as given.
+        element: String,
+    },
+    /// A period-based window needs a positive finite period and at least one period.
+    #[error("{subject}: need a positive period and at least one period, got period {period:e} s, count {count}")]
+    InvalidPeriods {
+        /// Output name.
+        subject: String,
+        /// Period as given (s).
+        period: f64,
+        /// Number of periods as given.
+        count: usize,
+    },
+}
+
+/// Measures output `id` over `[t0, t1]` on the exact solution.
+///
+/// Average and RMS are exact integrals; extremes are the largest and
+/// smallest of the values at event instants (both one-sided limits) and at
+/// interior stationary points, all within rounding of the exact solution.
+/// See the module notes for which end values a window sees.
+///
+/// # Errors
+///
+/// - [`MeasureError::InvalidWindow`] unless `t0 < t1`, both finite;
+/// - [`MeasureError::NothingRecorded`], [`MeasureError::OutsideRecord`] when
+///   the window is not inside the recorded span;
+/// - [`MeasureError::Undetermined`] when the output floats somewhere in the window;
+/// - [`MeasureError::NonFinite`] when the solution is not finite;
+/// - [`MeasureError::ForeignOutput`] for an id of another waveform.
+///
+/// # Example
+///
+/// ```
+/// use fluxstep_netlist::Circuit;
+/// use fluxstep_solver::measure::measure;
+/// use fluxstep_solver::{simulate, Options};
+///
+/// // A 1 µF capacitor charged to 10 V discharging into 1 kΩ (τ = 1 ms).
+/// let rc = Circuit::builder()
+///     .capacitor_with_voltage("C1", "top", "gnd", 1e-6, 10.0)
+///     .resistor("R1", "top", "gnd", 1e3)
+///     .build()
+///     .unwrap();
+/// let run = simulate(&rc, 2e-3, Options::default()).unwrap();
+/// let top = run.waveform.output("top").unwrap();
+/// let m = measure(&run.waveform, top, 0.0, 1e-3).unwrap();
+/// assert!((m.max - 10.0).abs() < 1e-9);
+/// assert!((m.min - 10.0 * (-1.0f64).exp()).abs() < 1e-9);
+/// assert_eq!(m.time_of_max, 0.0);
+/// ```
+pub fn measure(
+    waveform: &Waveform,
+    id: OutputId,
+    t0: f64,
+    t1: f64,
+) -> Result<Measurement, MeasureError> {
+    if !waveform.has_output(id) {
+        return Err(MeasureError::ForeignOutput { index: id.0 });
+    }
+    let name = waveform.output_name(id).to_string();
+    check_window(waveform, &name, t0, t1)?;
+    let ext = extremes(waveform, id, &name, t0, t1)?;
+    let len = t1 - t0;
+    let average = waveform.integrate(&[id], t0, t1, |v| v[0]) / len;
+    let mean_square = waveform.integrate(&[id], t0, t1, |v| v[0] * v[0]) / len;
+    // Rounding can leave a mean square a hair below zero for an output that
+    // is zero throughout.
+    let rms = mean_square.max(0.0).sqrt();
+    if !average.is_finite() || !rms.is_finite() {
+        return Err(MeasureError::NonFinite {
+            subject: name,
+            time: t0,
+        });
+    }
+    Ok(Measurement {
+        output: name,
+        t0,
+        t1,
+        average,
+        rms,
+        min: ext.min,
+        max: ext.max,
+        peak_to_peak: ext.max - ext.min,
+        time_of_min: ext.time_of_min,
+        time_of_max: ext.time_of_max,
+    })
+}
+
+/// Measures output `id` over the last `count` periods of the recorded span:
+/// the default window for a converter, where one period is the switching
+/// period (e.g. [`crate::Simulator::period`]).
+///
+/// When the window start falls before the recorded start by no more than
+/// rounding (a run of exactly `count` periods), it is moved onto the
+/// recorded start.
+///
+/// # Errors
+///
+/// [`MeasureError::InvalidPeriods`] unless `period` is positive and finite
+/// and `count ≥ 1`; [`MeasureError::OutsideRecord`] when fewer than `count`
+/// periods were recorded; otherwise as [`measure`].
+///
+/// # Example
+///
+/// ```
+/// use fluxstep_netlist::Circuit;
+/// use fluxstep_solver::measure::measure_last_periods;
+/// use fluxstep_solver::{simulate, Options};
+///
+/// let buck = Circuit::builder()
+///     .voltage_source("Vin", "in", "gnd", 12.0)
+///     .switch("S1", "in", "sw", "drive")
+///     .diode("D1", "gnd", "sw")
+///     .inductor("L1", "sw", "out", 100e-6)
+///     .capacitor("C1", "out", "gnd", 100e-6)
+///     .resistor("Rload", "out", "gnd", 5.0)
+///     .pwm("drive", 100e3, 0.5)
+///     .build()
+///     .unwrap();
+/// let run = simulate(&buck, 2e-3, Options::default()).unwrap();
+/// let il = run.waveform.output("L1.current").unwrap();
+/// let m = measure_last_periods(&run.waveform, il, 1e-5, 5).unwrap();
+/// // Ripple ΔI = (Vin − Vout)·D·T / L ≈ 6 V · 5 µs / 100 µH = 0.3 A.
+/// assert!((m.peak_to_peak - 0.3).abs() < 0.03);
+/// ```
+pub fn measure_last_periods(
+    waveform: &Waveform,
+    id: OutputId,
+    period: f64,
+    count: usize,
+) -> Result<Measurement, MeasureError> {
+    if !waveform.has_output(id) {
+        return Err(MeasureError::ForeignOutput { index: id.0 });
+    }
+    let name = waveform.output_name(id);
+    let (t0, t1) = last_periods_window(waveform, name, period, count)?;
+    measure(waveform, id, t0, t1)
+}
+
+/// The window `[end − count·period, end]` of the recorded span, snapped onto
+/// the recorded start when it misses it by rounding only.
+fn last_periods_window(
+    waveform: &Waveform,
+    subject: &str,
+    period: f64,
+    count: usize,
+) -> Result<(f64, f64), MeasureError> {
+    if !(period.is_finite() && period > 0.0) || count == 0 {
+        return Err(MeasureError::InvalidPeriods {
+            subject: subject.into(),
+            period,
+            count,
+        });
+    }
+    let (start, end) = waveform
+        .span()
+        .ok_or_else(|| MeasureError::NothingRecorded {
+            subject: subject.into(),
+        })?;
+    let t0 = end - period * count as f64;
+    // A run of exactly `count` periods ends at count·T computed by the
+    // scheduler, which can differ from end − count·T by a few ulps.
+    let slack = 8.0 * f64::EPSILON * end.abs().max(period * count as f64);
+    let t0 = if t0 < start && start - t0 <= slack {
+        start
+    } else {
+        t0
+    };
+    Ok((t0, end))
+}
+
+/// Average power absorbed by an element over `[t0, t1]` (W): the time
+/// average of v·i with the element's own sign convention, voltage
+/// v(first node) − v(second node) and current from the first node through
+/// the element to the second, so a resistor absorbs positive power and a
+/// source delivering energy absorbs negative power.
+///
+/// An element made of several recorded parts (coupled windings
+/// `ELEMENT.WINDING`, a switch's `SWITCH.body_diode`) absorbs the sum over
+/// its parts. Where a part's voltage floats but its current is identically
+/// zero (an open switch next to a floating node) the part absorbs nothing.
+///
+/// # Errors
+///
+/// [`MeasureError::UnknownElement`] when no recorded current/voltage pair
+/// belongs to `element`; otherwise as [`measure`], naming the element.
+///
+/// # Example
+///
+/// ```
+/// use fluxstep_netlist::Circuit;
+/// use fluxstep_solver::measure::element_power;
+/// use fluxstep_solver::{simulate, Options};
+///
+/// let divider = Circuit::builder()
+///     .voltage_source("V1", "a", "gnd", 10.0)
+///     .resistor("R1", "a", "gnd", 100.0)
+///     .build()
+///     .unwrap();
+/// let run = simulate(&divider, 1e-3, Options::default()).unwrap();
+/// let p = element_power(&run.waveform, "R1", 0.0, 1e-3).unwrap();
+/// assert!((p - 1.0).abs() < 1e-12); // V²/R = 100 / 100 W
+/// ```
+pub fn element_power(
+    waveform: &Waveform,
+    element: &str,
+    t0: f64,
+    t1: f64,
+) -> Result<f64, MeasureError> {
+    Ok(element_energy(waveform, element, t0, t1)? / (t1 - t0))
+}
+
+/// Energy absorbed by an element over `[t0, t1]` (J): ∫ v·i dt with the
+/// sign convention of [`element_power`].
+///
+/// # Errors
+///
+/// As [`element_power`].
+///
+/// # Example
+///
+/// ```
+/// use fluxstep_netlist::Circuit;
+/// use fluxstep_solver::measure::element_energy;
+/// use fluxstep_solver::{simulate, Options};
+///
+/// // The capacitor's 50 µJ (½·C·V²) ends up almost entirely in the resistor.
+/// let rc = Circuit::builder()
+///     .capacitor_with_voltage("C1", "top", "gnd", 1e-6, 10.0)
+///     .resistor("R1", "top", "gnd", 1e3)
+///     .build()
+///     .unwrap();
+/// let run = simulate(&rc, 20e-3, Options::default()).unwrap();
+/// let e = element_energy(&run.waveform, "R1", 0.0, 20e-3).unwrap();
+/// assert!((e - 50e-6).abs() < 1e-12);
+/// ```
+pub fn element_energy(
+    waveform: &Waveform,
+    element: &str,
+    t0: f64,
+    t1: f64,
+) -> Result<f64, MeasureError> {
+    let parts = element_parts(waveform, element);
+    if parts.is_empty() {
+        return Err(MeasureError::UnknownElement {
+            element: element.into(),
+        });
+    }
+    check_window(waveform, element, t0, t1)?;
+    for &(v, i) in &parts {
+        for (k, seg) in window_segments(waveform, t0, t1) {
+            let floating = waveform.undetermined_in(k, v) || waveform.undetermined_in(k, i);
+            if floating
+                && !(waveform.identically_zero_in(k, i) || waveform.identically_zero_in(k, v))
+            {
+                return Err(MeasureError::Undetermined {
+                    subject: element.into(),
+                    time: seg.0,
+                });
+            }
+        }
+    }
+    // `integrate` counts a stretch where either output is undetermined as
+    // zero, which the check above has shown to be exact.
+    let energy: f64 = parts
+        .iter()
+        .map(|&(v, i)| waveform.integrate(&[v, i], t0, t1, |x| x[0] * x[1]))
+        .sum();
+    if !energy.is_finite() {
+        return Err(MeasureError::NonFinite {
+            subject: element.into(),
+            time: t0,
+        });
+    }
+    Ok(energy)
+}
+
+/// The (voltage, current) output pairs that make up `element`: the element
+/// itself, or its parts named `ELEMENT.PART`.
+fn element_parts(waveform: &Waveform, element: &str) -> Vec<(OutputId, OutputId)> {
+    let prefix = format!("{element}.");
+    waveform
+        .output_names()
+        .iter()
+        .filter_map(|n| n.strip_suffix(".current"))
+        .filter(|part| *part == element || part.starts_with(&prefix))
+        .filter_map(|part| {
+            let v = waveform.output(&format!("{part}.voltage"))?;
+            let i = waveform.output(&format!("{part}.current"))?;
+            Some((v, i))
+        })
+        .collect()
+}
+
+fn check_window(waveform: &Waveform, subject: &str, t0: f64, t1: f64) -> Result<(), MeasureError> {
+    if !(t0.is_finite() && t1.is_finite() && t0 < t1) {
+        return Err(MeasureError::InvalidWindow {
+            subject: subject.into(),
+            t0,
+            t1,
+        });
+    }
+    let (start, end) = waveform
+        .span()
+        .ok_or_else(|| MeasureError::NothingRecorded {
+            subject: subject.into(),
+        })?;
+    if t0 < start || t1 > end {
+        return Err(MeasureError::OutsideRecord {
+            subject: subject.into(),
+            t0,
+            t1,
+            start,
+            end,
+        });
+    }
+    Ok(())
+}
+
+/// Segments with a non-empty overlap `(a, b)` with the window, as
+/// (segment index, (a, b)).
+fn window_segments(
+    waveform: &Waveform,
+    t0: f64,
+    t1: f64,
+) -> impl Iterator<Item = (usize, (f64, f64))> + '_ {
+    let segs = waveform.segments();
+    // Segments are in time order: skip the run before the window without
+    // walking it (measurements usually look at the end of a long run).
+    let first = segs.partition_point(|s| s.t1 <= t0);
+    segs[first..]
+        .iter()
+        .enumerate()
+        .take_while(move |(_, s)| s.t0 < t1)
+        .filter_map(move |(k, s)| {
+            let a = s.t0.max(t0);
+            let b = s.t1.min(t1);
+            (b > a).then_some((first + k, (a, b)))
+        })
+}
+
+struct Extremes {
+    min: f64,
+    max: f64,
+    time_of_min: f64,
+    time_of_max: f64,
+}
+
+impl Extremes {
+    fn offer(&mut self, t: f64, y: f64) {
+        // Strict comparisons keep the first instant of a tie; candidates
+        // arrive in time order except for a refined root, which lies
+        // between two samples already offered, so ties there are genuine.
+        if y > self.max || (y == self.max && t < self.time_of_max) {
+            self.max = y;
+            self.time_of_max = t;
+        }
+        if y < self.min || (y == self.min && t < self.time_of_min) {
+            self.min = y;
+            self.time_of_min = t;
+        }
+    }
+}
+
+fn extremes(
+    waveform: &Waveform,
+    id: OutputId,
+    name: &str,
+    t0: f64,
+    t1: f64,
+) -> Result<Extremes, MeasureError> {
+    let mut ext = Extremes {
+        min: f64::INFINITY,
+        max: f64::NEG_INFINITY,
+        time_of_min: t0,
+        time_of_max: t0,
+    };
+    let mut bad = None;
+    for (k, (a, b)) in window_segments(waveform, t0, t1) {
+        if waveform.undetermined_in(k, id) {
+            return Err(MeasureError::Undetermined {
+                subject: name.into(),
+                time: a,
+            });
+        }
+        waveform.output_pieces(k, id, a, b, |piece| {
+            if bad.is_none() {
+                bad = scan_piece(piece, &mut ext);
+            }
+        });
+        if let Some(time) = bad {
+            return Err(MeasureError::NonFinite {
+                subject: name.into(),
+                time,
+            });
+        }
+    }
+    if !ext.max.is_finite() || !ext.min.is_finite() {
+        // Unreachable after check_window (the window overlaps at least one
+        // segment of positive length), but a value, not a panic, if not.
+        return Err(MeasureError::NothingRecorded {
+            subject: name.into(),
+        });
+    }
+    Ok(ext)
+}
+
+/// Offers the values at equally spaced samples of one piece and at every
+/// sign change of its derivative; returns the time of a non-finite value.
+fn scan_piece(piece: &Piece<'_>, ext: &mut Extremes) -> Option<f64> {
+    let time = |s: f64| {
+        if s >= 1.0 {
+            piece.t_end
+        } else {
+            piece.t_start + piece.delta * s
+        }
+    };
+    let n = DERIVATIVE_SAMPLES;
+    let mut prev: Option<(f64, f64)> = None;
+    for j in 0..=n {
+        let s = j as f64 / n as f64;
+        let (y, dy) = propagate::poly(piece.coef, s);
+        if !y.is_finite() || !dy.is_finite() {
+            return Some(time(s));
+        }
+        if let Some((s_prev, d_prev)) = prev {
+            if (d_prev < 0.0 && dy > 0.0) || (d_prev > 0.0 && dy < 0.0) {
+                let (lo, hi) = bisect_derivative(piece.coef, s_prev, s, d_prev);
+                for r in [lo, hi] {
+                    ext.offer(time(r), propagate::poly(piece.coef, r).0);
+                }
+            }
+        }
+        ext.offer(time(s), y);
+        prev = Some((s, dy));
+    }
+    None
+}
+
+/// Narrows a bracket `[lo, hi]` of a sign change of the derivative (sign of
+/// `d_lo` at `lo`) until the two ends are adjacent floats or the derivative
+/// vanishes; returns the final bracket. Bisection rather than Newton: it
+/// cannot leave the bracket, and 60 halvings of [0, 1] already reach the
+/// float spacing, so the extra evaluations cost nothing that matters.
+fn bisect_derivative(coef: &[f64], mut lo: f64, mut hi: f64, d_lo: f64) -> (f64, f64) {
+    for _ in 0..200 {
+        let mid = 0.5 * (lo + hi);
+        if mid <= lo || mid >= hi {
+            break;
+        }
+        let d = propagate::poly(coef, mid).1;
+        if d == 0.0 {
+            return (mid, mid);
+        }
+        if (d < 0.0) == (d_lo < 0.0) {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+    }
+    (lo, hi)
+}
