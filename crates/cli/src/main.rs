@@ -1,1 +1,117 @@
-fn main() {}
+//! `fluxstep`: the command-line front end of the fluxstep pipeline
+//! (JSON circuit → netlist → solver → analysis → plot).
+//!
+//! The binary only wires the library crates together: each subcommand
+//! lives in its own module with a clap `Args` struct and a `run` function,
+//! and this file maps their results to exit codes. Library errors are
+//! typed; only here are they turned into text (with `anyhow`).
+//!
+//! Exit status: 0 on success; 2 when the input cannot be used (a usage
+//! error, an unreadable file, text that is not a circuit in JSON, or a
+//! circuit that breaks the rules — every problem is then listed on stderr,
+//! one per line).
+
+use std::process::ExitCode;
+
+use clap::{Parser, Subcommand};
+use fluxstep_netlist::NetlistError;
+
+mod check;
+mod input;
+mod si;
+
+/// Exit status for input that cannot be used. clap uses the same status for
+/// usage errors, so every "your input is wrong" case shares one code.
+const EXIT_BAD_INPUT: u8 = 2;
+
+/// Exact simulation of switching power converters.
+#[derive(Debug, Parser)]
+#[command(name = "fluxstep", version, about, long_about = None)]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+/// The subcommands. Each variant's `Args` lives in the module of the same
+/// name, which also holds its `run`.
+#[derive(Debug, Subcommand)]
+enum Command {
+    /// Read and validate a circuit file and print a short summary.
+    Check(check::Args),
+}
+
+fn main() -> ExitCode {
+    let cli = Cli::parse();
+    let result = match &cli.command {
+        Command::Check(args) => check::run(args),
+    };
+    match result {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(err) => {
+            eprint!("{}", report(&err));
+            ExitCode::from(EXIT_BAD_INPUT)
+        }
+    }
+}
+
+/// The text printed on stderr for an error: one line, or for a circuit
+/// that breaks rules, a heading and then one line per problem.
+fn report(err: &anyhow::Error) -> String {
+    match err.downcast_ref::<NetlistError>() {
+        Some(NetlistError::Invalid(problems)) => {
+            let count = match problems.len() {
+                1 => "1 problem".to_string(),
+                n => format!("{n} problems"),
+            };
+            let mut text = format!("error: {err}: invalid circuit, {count}:\n");
+            for p in problems {
+                text.push_str(&format!("  {p}\n"));
+            }
+            text
+        }
+        _ => format!("error: {err:#}\n"),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use anyhow::Context;
+    use fluxstep_netlist::Problem;
+
+    #[test]
+    fn invalid_circuits_list_one_problem_per_line() {
+        let err = Err::<(), _>(NetlistError::Invalid(vec![
+            Problem::field("L1", "inductance", "must be positive, got -1e-5"),
+            Problem::field("R1", "nodes[1]", "node 'x' is dangling").at_node("x"),
+        ]))
+        .context("bad.json")
+        .unwrap_err();
+        assert_eq!(
+            report(&err),
+            "error: bad.json: invalid circuit, 2 problems:\n\
+             \x20 L1.inductance: must be positive, got -1e-5\n\
+             \x20 R1.nodes[1]: node 'x' is dangling\n"
+        );
+    }
+
+    #[test]
+    fn other_errors_are_one_line_with_their_cause() {
+        let err = Err::<(), _>(NetlistError::Json {
+            path: "elements[2].inductance".into(),
+            message: "invalid value \"5x\"".into(),
+        })
+        .context("bad.json")
+        .unwrap_err();
+        assert_eq!(
+            report(&err),
+            "error: bad.json: elements[2].inductance: invalid value \"5x\"\n"
+        );
+    }
+
+    #[test]
+    fn the_command_line_is_well_formed() {
+        use clap::CommandFactory;
+        Cli::command().debug_assert();
+    }
+}

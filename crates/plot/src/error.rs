@@ -47,6 +47,12 @@ pub enum PlotError {
         /// Index of the point in the trace.
         index: usize,
     },
+    /// An output named for a figure is not an output of the circuit.
+    #[error("unknown output {name:?}: expected a node name, ELEMENT.current or ELEMENT.voltage")]
+    UnknownOutput {
+        /// The name as given.
+        name: String,
+    },
     /// Times must not decrease along a trace (equal times are a vertical step).
     #[error("trace '{trace}' goes back in time at t = {time:e} s (point {index})")]
     TimeNotIncreasing {

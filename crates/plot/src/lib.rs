@@ -70,9 +70,11 @@ mod error;
 mod model;
 mod reduce;
 mod render;
+mod review;
 mod scale;
 
 pub use error::PlotError;
 pub use model::{Annotation, Figure, Panel, Trace};
 pub use render::{render_svg, write_svg};
+pub use review::{output_trace, review_figure, ReviewOptions};
 pub use scale::{format_si, nice_ticks, si_scale, Ticks};

@@ -215,3 +215,38 @@ fn narrow_figure_wraps_its_legend_and_keeps_its_plots() {
     assert_eq!(frames(&svg).len(), 2);
     assert!(pixmap.pixels().iter().any(|p| p.red() != 255));
 }
+
+/// The review figure of a real solver run (the buck of
+/// examples/circuits/buck.json, last five periods): three panels, each with
+/// trace ink, written to `target/plot-check/review_buck.png` for a person.
+#[test]
+fn review_figure_of_a_simulated_buck_renders() {
+    use fluxstep_plot::{review_figure, ReviewOptions};
+    let path = concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/../../examples/circuits/buck.json"
+    );
+    let circuit = fluxstep_netlist::Circuit::from_file(path).unwrap();
+    let run =
+        fluxstep_solver::simulate(&circuit, 1e-3, fluxstep_solver::Options::default()).unwrap();
+    let t1 = 1e-3;
+    let opts = ReviewOptions {
+        outputs: vec!["L1.current".into(), "sw".into(), "out".into()],
+        window: Some((t1 - 25e-6, t1)),
+        event_markers: true,
+        ..ReviewOptions::default()
+    };
+    let fig = review_figure("asynchronous buck", &run.waveform, Some(&run.events), &opts).unwrap();
+    let svg = render_svg(&fig).unwrap();
+    std::fs::write(out_dir().join("review_buck.svg"), &svg).unwrap();
+    let pixmap = rasterise(&svg, fig.width, fig.height, 1.0, "review_buck.png");
+    assert_eq!(frames(&svg).len(), 3);
+    assert_eq!(pixmap.width(), fig.width);
+    let doc = roxmltree::Document::parse(&svg).unwrap();
+    assert_eq!(
+        doc.descendants()
+            .filter(|n| n.has_tag_name("polyline"))
+            .count(),
+        3
+    );
+}

@@ -69,7 +69,6 @@ pub(crate) struct Branch {
 #[derive(Clone, Debug)]
 pub(crate) struct SwitchInfo {
     pub name: String,
-    pub branch: usize,
     pub r_on: f64,
     pub signal: usize,
 }
@@ -336,7 +335,6 @@ impl Compiled {
                     let (a, b) = (node(&s.nodes[0]), node(&s.nodes[1]));
                     c.switches.push(SwitchInfo {
                         name: s.name.clone(),
-                        branch: c.branches.len(),
                         r_on: s.on_resistance.unwrap_or(0.0),
                         signal: sig_index(&s.gate),
                     });

@@ -68,7 +68,11 @@ pub(crate) struct Guard {
 #[derive(Clone, Debug)]
 pub(crate) enum ConstraintKind {
     /// Kirchhoff's current law on a floating group reached by windings.
-    Cutset { windings: Vec<usize>, node: usize },
+    Cutset {
+        windings: Vec<usize>,
+        #[allow(dead_code)] // the node is named in future diagnostics
+        node: usize,
+    },
     /// A capacitor voltage tied to a loop of capacitors and sources.
     Loop { caps: Vec<usize> },
 }
@@ -87,6 +91,7 @@ pub(crate) enum ModeProblem {
 /// A compiled mode.
 #[derive(Clone, Debug)]
 pub(crate) struct Mode {
+    #[allow(dead_code)] // kept for debugging output of a mode
     pub key: ModeKey,
     pub problem: Option<ModeProblem>,
     /// z' = M z.

@@ -195,7 +195,7 @@ impl Waveform {
     pub fn integrate(&self, ids: &[OutputId], t0: f64, t1: f64, f: impl Fn(&[f64]) -> f64) -> f64 {
         let mut total = 0.0;
         let mut vals = vec![0.0; ids.len()];
-        for (i, s) in self.segments.iter().enumerate() {
+        for s in self.segments.iter() {
             let a = s.t0.max(t0);
             let b = s.t1.min(t1);
             if b <= a {

@@ -368,7 +368,9 @@ fn underdamped_rlc_overshoot_is_interior() {
     let half = std::f64::consts::PI / wd;
     let r = run(&circuit, 3.0 * half);
     let vc = r.waveform.output("c").unwrap();
-    let m = measure(&r.waveform, vc, 0.5 * half, 2.5 * half).unwrap();
+    // Irregular window ends, so that no sample of the search grid falls on
+    // an extreme by symmetry and the refinement is really exercised.
+    let m = measure(&r.waveform, vc, 0.37 * half, 2.61 * half).unwrap();
     let overshoot = v * (1.0 + (-alpha * half).exp());
     let undershoot = v * (1.0 - (-2.0 * alpha * half).exp());
     close(m.max, overshoot, REL, "overshoot");
@@ -376,7 +378,7 @@ fn underdamped_rlc_overshoot_is_interior() {
     close(m.min, undershoot, REL, "undershoot");
     close(m.time_of_min, 2.0 * half, 1e-7, "time of undershoot");
     // The extremes are not at the window ends.
-    assert!(m.time_of_max > 0.6 * half && m.time_of_max < 2.4 * half);
+    assert!(m.time_of_max > 0.5 * half && m.time_of_max < 2.5 * half);
     println!("{m:?}");
 }
 
@@ -441,27 +443,4 @@ fn measurement_round_trips_through_json() {
     assert!(text.contains("\"peak_to_peak\""), "{text}");
     let back: Measurement = serde_json::from_str(&text).unwrap();
     assert_eq!(back, m);
-}
-
-#[test]
-fn tmp_probe_buck_2ms() {
-    let buck = Circuit::builder()
-        .voltage_source("Vin", "in", "gnd", 12.0)
-        .switch("S1", "in", "sw", "drive")
-        .diode("D1", "gnd", "sw")
-        .inductor("L1", "sw", "out", 100e-6)
-        .capacitor("C1", "out", "gnd", 100e-6)
-        .resistor("Rload", "out", "gnd", 5.0)
-        .pwm("drive", 100e3, 0.5)
-        .build()
-        .unwrap();
-    for stop in [2e-3, 8e-3, 1e-3, 0.5e-3] {
-        match simulate(&buck, stop, Options::default()) {
-            Ok(r) => println!(
-                "stop {stop:e}: ok, {} segments",
-                r.waveform.segments().len()
-            ),
-            Err(e) => println!("stop {stop:e}: {e}"),
-        }
-    }
 }

@@ -1,0 +1,263 @@
+//! `fluxstep check FILE`: read and validate a circuit and print a summary.
+
+use std::fmt::Write as _;
+use std::path::{Path, PathBuf};
+
+use fluxstep_netlist::{Circuit, Element, Gate, Waveform};
+
+use crate::si::si;
+
+/// Arguments of `fluxstep check`.
+#[derive(Debug, clap::Args)]
+pub struct Args {
+    /// The circuit file (JSON, see docs/netlist.md).
+    pub file: PathBuf,
+}
+
+/// Validates the file and prints its summary on stdout.
+///
+/// # Errors
+///
+/// As [`crate::input::read_circuit`]: unreadable file, not a JSON circuit,
+/// or a circuit that breaks rules.
+pub fn run(args: &Args) -> anyhow::Result<()> {
+    let circuit = crate::input::read_circuit(&args.file)?;
+    print!("{}", summary(&args.file, &circuit));
+    Ok(())
+}
+
+/// The element kinds in the order the summary lists them, with their
+/// names for one and for several.
+const KINDS: [(&str, &str, &str); 9] = [
+    ("voltage_source", "voltage source", "voltage sources"),
+    ("current_source", "current source", "current sources"),
+    ("resistor", "resistor", "resistors"),
+    ("inductor", "inductor", "inductors"),
+    ("capacitor", "capacitor", "capacitors"),
+    (
+        "coupled_inductors",
+        "set of coupled inductors",
+        "sets of coupled inductors",
+    ),
+    (
+        "ideal_transformer",
+        "ideal transformer",
+        "ideal transformers",
+    ),
+    ("switch", "switch", "switches"),
+    ("diode", "diode", "diodes"),
+];
+
+/// How many state variables the circuit has before the solver removes
+/// dependent ones: one per inductor and per coupled winding (a current),
+/// one per capacitor (a voltage), two per sine source (the oscillator that
+/// makes a sine exact).
+#[derive(Debug, Default, PartialEq)]
+pub struct States {
+    /// Inductor currents, including coupled windings.
+    pub currents: usize,
+    /// Capacitor voltages.
+    pub voltages: usize,
+    /// Sine sources (two states each).
+    pub sines: usize,
+}
+
+impl States {
+    /// Counts the states of a circuit.
+    pub fn of(circuit: &Circuit) -> States {
+        let mut s = States::default();
+        for e in &circuit.elements {
+            match e {
+                Element::Inductor(_) => s.currents += 1,
+                Element::CoupledInductors(c) => s.currents += c.windings.len(),
+                Element::Capacitor(_) => s.voltages += 1,
+                Element::VoltageSource(v) if matches!(v.waveform, Waveform::Sine { .. }) => {
+                    s.sines += 1
+                }
+                Element::CurrentSource(i) if matches!(i.waveform, Waveform::Sine { .. }) => {
+                    s.sines += 1
+                }
+                _ => {}
+            }
+        }
+        s
+    }
+
+    /// The total number of states.
+    pub fn total(&self) -> usize {
+        self.currents + self.voltages + 2 * self.sines
+    }
+}
+
+fn plural(n: usize, one: &str, many: &str) -> String {
+    format!("{n} {}", if n == 1 { one } else { many })
+}
+
+fn describe_gate(g: &Gate) -> String {
+    match g {
+        Gate::Pwm {
+            name,
+            frequency,
+            duty,
+            ..
+        } => format!("{name} (pwm, {}, duty {duty})", si(*frequency, "Hz")),
+        Gate::ComplementaryPwm {
+            name,
+            frequency,
+            duty,
+            dead_time_high,
+            dead_time_low,
+            ..
+        } => format!(
+            "{name} (complementary pwm, {}, duty {duty}, dead times {} high / {} low)",
+            si(*frequency, "Hz"),
+            si(*dead_time_high, "s"),
+            si(*dead_time_low, "s"),
+        ),
+        Gate::Transitions {
+            name,
+            transitions,
+            period,
+            ..
+        } => {
+            let repeat = match period {
+                Some(p) => format!(", repeating every {}", si(*p, "s")),
+                None => String::new(),
+            };
+            format!(
+                "{name} ({}{repeat})",
+                plural(transitions.len(), "transition", "transitions")
+            )
+        }
+    }
+}
+
+/// The summary printed by `check`.
+pub fn summary(path: &Path, circuit: &Circuit) -> String {
+    let mut out = String::new();
+    let nodes = circuit.nodes();
+    // Writing to a String cannot fail.
+    let mut line = |label: &str, text: String| {
+        writeln!(out, "  {label:<9} {text}").expect("writing to a String");
+    };
+    line("nodes:", format!("{} ({})", nodes.len(), nodes.join(", ")));
+
+    let by_kind: Vec<String> = KINDS
+        .iter()
+        .filter_map(|(kind, one, many)| {
+            let n = circuit
+                .elements
+                .iter()
+                .filter(|e| e.kind_name() == *kind)
+                .count();
+            (n > 0).then(|| plural(n, one, many))
+        })
+        .collect();
+    line(
+        "elements:",
+        format!("{} ({})", circuit.elements.len(), by_kind.join(", ")),
+    );
+
+    let gates: Vec<String> = circuit.gates.iter().map(describe_gate).collect();
+    let signals: Vec<String> = circuit
+        .signals()
+        .into_iter()
+        .map(|(name, _)| name)
+        .collect();
+    if gates.is_empty() {
+        line("gates:", "none".to_string());
+    } else {
+        line("gates:", gates.join("; "));
+        line("signals:", signals.join(", "));
+    }
+
+    let s = States::of(circuit);
+    let mut parts = Vec::new();
+    if s.currents > 0 {
+        parts.push(plural(s.currents, "inductor current", "inductor currents"));
+    }
+    if s.voltages > 0 {
+        parts.push(plural(
+            s.voltages,
+            "capacitor voltage",
+            "capacitor voltages",
+        ));
+    }
+    if s.sines > 0 {
+        parts.push(format!(
+            "{} for {}",
+            2 * s.sines,
+            plural(s.sines, "sine source", "sine sources")
+        ));
+    }
+    let detail = if parts.is_empty() {
+        String::new()
+    } else {
+        format!(" ({})", parts.join(", "))
+    };
+    line("states:", format!("{}{detail}", s.total()));
+
+    if let Some(run) = &circuit.run {
+        let from = match run.record_from {
+            Some(t) => format!(", recording from {}", si(t, "s")),
+            None => String::new(),
+        };
+        let outputs = if run.outputs.is_empty() {
+            String::new()
+        } else {
+            format!("; outputs {}", run.outputs.join(", "))
+        };
+        line(
+            "run:",
+            format!("until {}{from}{outputs}", si(run.stop_time, "s")),
+        );
+    }
+    format!("{}: valid circuit\n{out}", path.display())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn buck() -> Circuit {
+        Circuit::builder()
+            .voltage_source("Vin", "in", "gnd", 24.0)
+            .switch("S1", "in", "sw", "drive")
+            .diode("D1", "gnd", "sw")
+            .inductor("L1", "sw", "out", 22e-6)
+            .capacitor("C1", "out", "gnd", 47e-6)
+            .resistor("Rload", "out", "gnd", 6.0)
+            .pwm("drive", 200e3, 0.5)
+            .run(1e-3, &["L1.current", "out"])
+            .build()
+            .unwrap()
+    }
+
+    #[test]
+    fn states_count_inductors_capacitors_and_sines() {
+        assert_eq!(States::of(&buck()).total(), 2);
+        let c = Circuit::builder()
+            .voltage_waveform("V1", "a", "gnd", Waveform::sine(0.0, 1.0, 50.0, 0.0))
+            .resistor("R1", "a", "b", 1.0)
+            .capacitor("C1", "b", "gnd", 1e-6)
+            .build()
+            .unwrap();
+        let s = States::of(&c);
+        assert_eq!((s.currents, s.voltages, s.sines, s.total()), (0, 1, 1, 3));
+    }
+
+    #[test]
+    fn buck_summary() {
+        let text = summary(Path::new("buck.json"), &buck());
+        assert_eq!(
+            text,
+            "buck.json: valid circuit\n\
+             \x20 nodes:    4 (gnd, in, sw, out)\n\
+             \x20 elements: 6 (1 voltage source, 1 resistor, 1 inductor, 1 capacitor, 1 switch, 1 diode)\n\
+             \x20 gates:    drive (pwm, 200 kHz, duty 0.5)\n\
+             \x20 signals:  drive\n\
+             \x20 states:   2 (1 inductor current, 1 capacitor voltage)\n\
+             \x20 run:      until 1 ms; outputs L1.current, out\n"
+        );
+    }
+}
