@@ -132,8 +132,7 @@ fn positive_definite(m: &[Vec<f64>]) -> bool {
     let mut l = vec![vec![0.0; n]; n];
     for j in 0..n {
         let d = m[j][j] - (0..j).map(|k| l[j][k] * l[j][k]).sum::<f64>();
-        // Written as a negated `>` so that NaN fails too.
-        if !(d > 1e-12 * m[j][j]) {
+        if d.is_nan() || d <= 1e-12 * m[j][j] {
             return false;
         }
         let d = d.sqrt();
@@ -746,8 +745,8 @@ impl Checker<'_> {
     }
 
     fn window(&mut self, l: &str, start: Option<f64>, stop: Option<f64>) {
-        let start_ok = start.is_none_or(|s| self.finite(l, "start", s));
-        let stop_ok = stop.is_none_or(|s| self.finite(l, "stop", s));
+        let start_ok = start.map_or(true, |s| self.finite(l, "start", s));
+        let stop_ok = stop.map_or(true, |s| self.finite(l, "stop", s));
         if let (Some(a), Some(b), true, true) = (start, stop, start_ok, stop_ok) {
             if a >= b {
                 self.field(
@@ -777,7 +776,7 @@ impl Checker<'_> {
             .collect();
         for (i, e) in self.circuit.elements.iter().enumerate() {
             let Element::Switch(s) = e else { continue };
-            if signals.iter().any(|x| *x == s.gate) {
+            if signals.contains(&s.gate) {
                 continue;
             }
             let pair = self
