@@ -13,7 +13,12 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
     // The load current is forced by a current source: 10 A, falling to 0
     // between 100 ns and 110 ns, through 10 nH of wiring.
     let c = Circuit::builder()
-        .current_source("Iload", "gnd", "a", Waveform::pwl(&[(0.0, 10.0), (100e-9, 10.0), (110e-9, 0.0)]))
+        .current_source(
+            "Iload",
+            "gnd",
+            "a",
+            Waveform::pwl(&[(0.0, 10.0), (100e-9, 10.0), (110e-9, 0.0)]),
+        )
         .inductor_with_current("Lwire", "a", "gnd", 10e-9, 10.0)
         .build()?;
     let run = simulate(&c, 200e-9, Options::default())?;
@@ -29,7 +34,11 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
             w.value(v, t).unwrap_or(f64::NAN)
         );
     }
-    let opts = ReviewOptions { outputs: vec!["Lwire.current".into(), "Lwire.voltage".into()], ripple: false, ..ReviewOptions::default() };
+    let opts = ReviewOptions {
+        outputs: vec!["Lwire.current".into(), "Lwire.voltage".into()],
+        ripple: false,
+        ..ReviewOptions::default()
+    };
     let fig = review_figure("di/dt across 10 nH of wiring", w, Some(&run.events), &opts)?;
     std::fs::create_dir_all("out")?;
     write_svg(&fig, "out/di_dt_spike.svg")?;

@@ -11,7 +11,10 @@ use fluxstep::plot::{review_figure, write_svg, ReviewOptions};
 use fluxstep::solver::{simulate, Options};
 
 fn main() -> Result<(), Box<dyn std::error::Error>> {
-    let path = concat!(env!("CARGO_MANIFEST_DIR"), "/examples/circuits/interrupted_inductor.json");
+    let path = concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/examples/circuits/interrupted_inductor.json"
+    );
     let circuit = Circuit::from_file(path)?;
     let stop = circuit.run.as_ref().map(|r| r.stop_time).unwrap_or(1e-3);
     match simulate(&circuit, stop, Options::default()) {
@@ -44,10 +47,26 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
         .ok_or("the switch never opened")?;
     println!("with a freewheeling diode Dfw the run goes on:");
     println!("  the switch opens at {:.3} µs", t_open * 1e6);
-    println!("  diode current just after: {:.6} A", w.value(id, t_open).unwrap_or(f64::NAN));
-    let outputs: Vec<String> = circuit.run.as_ref().map(|r| r.outputs.clone()).unwrap_or_default();
-    let opts = ReviewOptions { outputs, event_markers: true, ..ReviewOptions::default() };
-    let fig = review_figure("interrupted inductor, fixed with a freewheeling diode", w, Some(&run.events), &opts)?;
+    println!(
+        "  diode current just after: {:.6} A",
+        w.value(id, t_open).unwrap_or(f64::NAN)
+    );
+    let outputs: Vec<String> = circuit
+        .run
+        .as_ref()
+        .map(|r| r.outputs.clone())
+        .unwrap_or_default();
+    let opts = ReviewOptions {
+        outputs,
+        event_markers: true,
+        ..ReviewOptions::default()
+    };
+    let fig = review_figure(
+        "interrupted inductor, fixed with a freewheeling diode",
+        w,
+        Some(&run.events),
+        &opts,
+    )?;
     std::fs::create_dir_all("out")?;
     write_svg(&fig, "out/interrupted_inductor.svg")?;
     println!("  figure written to out/interrupted_inductor.svg");

@@ -8,7 +8,8 @@ mod common;
 use fluxstep::solver::EventKind;
 
 fn main() -> Result<(), Box<dyn std::error::Error>> {
-    let (circuit, run) = common::run_and_report("sync_buck", "synchronous buck with dead time", 3.0)?;
+    let (circuit, run) =
+        common::run_and_report("sync_buck", "synchronous buck with dead time", 3.0)?;
     let w = &run.waveform;
     let (_, end) = w.span().ok_or("nothing recorded")?;
     // The high-side switch is the one whose first terminal is the input.
@@ -16,7 +17,9 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
         .elements
         .iter()
         .find_map(|e| match e {
-            fluxstep::netlist::Element::Switch(s) if s.gate.ends_with(".high") => Some(s.name.clone()),
+            fluxstep::netlist::Element::Switch(s) if s.gate.ends_with(".high") => {
+                Some(s.name.clone())
+            }
             _ => None,
         })
         .ok_or("no switch driven by a .high signal")?;
@@ -28,8 +31,16 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
         .find(|e| e.kind == EventKind::SwitchOff && e.time < end * 0.999 && e.element == high)
         .ok_or("no high-side turn-off found")?
         .time;
-    println!("  events around the dead time after {:.4} µs:", last_off * 1e6);
-    for e in run.events.events.iter().filter(|e| e.time >= last_off && e.time < last_off + 200e-9) {
+    println!(
+        "  events around the dead time after {:.4} µs:",
+        last_off * 1e6
+    );
+    for e in run
+        .events
+        .events
+        .iter()
+        .filter(|e| e.time >= last_off && e.time < last_off + 200e-9)
+    {
         println!("    {:>12.4} µs  {:?} {}", e.time * 1e6, e.kind, e.element);
     }
     let sw = w.output("sw").ok_or("no sw node")?;

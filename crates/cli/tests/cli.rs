@@ -115,7 +115,7 @@ fn malformed_json() {
     );
     let (_, stderr) = check(&path, 2);
     assert!(
-        stderr.contains("malformed.json: line 3 column 1"),
+        stderr.contains("malformed.json") && stderr.contains("trailing comma at line 3 column 1"),
         "{stderr}"
     );
     assert_eq!(stderr.lines().count(), 1, "{stderr}");

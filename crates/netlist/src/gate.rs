@@ -276,7 +276,7 @@ impl SignalShape {
                 for c in [k - 2, k - 1, k, k + 1] {
                     for &(ph, on) in &self.transitions {
                         let time = c as f64 * p + ph;
-                        if hit(time) && best.map_or(true, |(b, _)| time >= b) {
+                        if hit(time) && best.is_none_or(|(b, _)| time >= b) {
                             best = Some((time, on));
                         }
                     }

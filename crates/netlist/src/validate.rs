@@ -745,8 +745,8 @@ impl Checker<'_> {
     }
 
     fn window(&mut self, l: &str, start: Option<f64>, stop: Option<f64>) {
-        let start_ok = start.map_or(true, |s| self.finite(l, "start", s));
-        let stop_ok = stop.map_or(true, |s| self.finite(l, "stop", s));
+        let start_ok = start.is_none_or(|s| self.finite(l, "start", s));
+        let stop_ok = stop.is_none_or(|s| self.finite(l, "stop", s));
         if let (Some(a), Some(b), true, true) = (start, stop, start_ok, stop_ok) {
             if a >= b {
                 self.field(

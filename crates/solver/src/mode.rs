@@ -47,6 +47,7 @@ pub struct ModeKey {
 
 /// What a guard watches.
 #[derive(Clone, Debug, PartialEq)]
+#[allow(clippy::enum_variant_names)] // every guard watches a diode; the prefix is the point
 pub(crate) enum GuardKind {
     /// A conducting diode's current must stay ≥ 0.
     DiodeCurrent(usize),
@@ -211,6 +212,7 @@ impl Mode {
         let ground_root = dsu.find(0);
         let mut comps: Vec<usize> = vec![]; // root of each floating group
         let mut comp_of = vec![usize::MAX; nn];
+        #[allow(clippy::needless_range_loop)] // n is a node number, not just an index
         for n in 1..nn {
             let r = dsu.find(n);
             if r != ground_root {
@@ -469,7 +471,6 @@ impl Mode {
         }
 
         // 4. Solve the network.
-        let pattern = ();
         let lu = g.clone().full_piv_lu();
         let u = lu.u();
         let pmax = (0..u.nrows().min(u.ncols()))
@@ -478,7 +479,8 @@ impl Mode {
         let pmin = (0..u.nrows().min(u.ncols()))
             .map(|i| u[(i, i)].abs())
             .fold(f64::INFINITY, f64::min);
-        if n_unk > 0 && !(pmin > 1e-13 * pmax) {
+        // NaN pivots count as singular too, hence the negated comparison.
+        if n_unk > 0 && (pmin.is_nan() || pmin <= 1e-13 * pmax) {
             let reason = "the network equations are singular".to_string();
             return Ok(Mode::invalid(
                 cc,
@@ -572,7 +574,7 @@ impl Mode {
             let smin = (0..n_lam)
                 .map(|i| su[(i, i)].abs())
                 .fold(f64::INFINITY, f64::min);
-            if !(smin > 1e-12 * smax) {
+            if smin.is_nan() || smin <= 1e-12 * smax {
                 let reason = "a set of windings or capacitors whose constraint cannot be resolved"
                     .to_string();
                 return Ok(Mode::invalid(
@@ -745,7 +747,6 @@ impl Mode {
             }
             rate = rate.max(s);
         }
-        let _ = pattern;
         Ok(Mode {
             key,
             problem,

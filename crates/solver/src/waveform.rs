@@ -37,6 +37,7 @@ pub struct Waveform {
 /// with ρ·δ ≤ 1/2 the integrand (a product of two outputs, a sum of
 /// exponentials) has derivatives that shrink like (ρδ)ᵏ, so the rule's error
 /// term, of order (ρδ)¹⁶/16!, is far below rounding.
+#[allow(clippy::excessive_precision)] // tabulated to more digits than f64 holds
 const GL8: [(f64, f64); 8] = [
     (-0.960_289_856_497_536_2, 0.101_228_536_290_376_26),
     (-0.796_666_477_413_626_7, 0.222_381_034_453_374_47),

@@ -49,7 +49,6 @@ pub fn energy_balance(c: &Circuit, run: &RunResult) -> (f64, f64) {
             }
             Element::Inductor(l) => stored_names.push((l.name.clone(), l.inductance, true)),
             Element::Capacitor(k) => stored_names.push((k.name.clone(), k.capacitance, false)),
-            _ => {}
         }
     }
     let mut stored = 0.0;
