@@ -6,7 +6,8 @@
 //! and this file maps their results to exit codes. Library errors are
 //! typed; only here are they turned into text (with `anyhow`).
 //!
-//! Exit status: 0 on success; 2 when the input cannot be used (a usage
+//! Exit status: 0 on success; 1 when a simulation stopped on a diagnostic;
+//! 2 when the input cannot be used (a usage
 //! error, an unreadable file, text that is not a circuit in JSON, or a
 //! circuit that breaks the rules — every problem is then listed on stderr,
 //! one per line).
@@ -18,11 +19,16 @@ use fluxstep_netlist::NetlistError;
 
 mod check;
 mod input;
+mod run;
 mod si;
 
 /// Exit status for input that cannot be used. clap uses the same status for
 /// usage errors, so every "your input is wrong" case shares one code.
 const EXIT_BAD_INPUT: u8 = 2;
+
+/// Exit status when a simulation stopped on a diagnostic (an interrupted
+/// inductor current, a shoot-through, chatter…).
+const EXIT_STOPPED: u8 = 1;
 
 /// Exact simulation of switching power converters.
 #[derive(Debug, Parser)]
@@ -38,15 +44,23 @@ struct Cli {
 enum Command {
     /// Read and validate a circuit file and print a short summary.
     Check(check::Args),
+    /// Run the transient a circuit file describes; write waveform CSV,
+    /// event log, measurement summary and figure into a folder.
+    Run(run::Args),
 }
 
 fn main() -> ExitCode {
     let cli = Cli::parse();
     let result = match &cli.command {
         Command::Check(args) => check::run(args),
+        Command::Run(args) => run::run(args),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,
+        Err(err) if err.downcast_ref::<run::Stopped>().is_some() => {
+            eprintln!("error: {err}");
+            ExitCode::from(EXIT_STOPPED)
+        }
         Err(err) => {
             eprint!("{}", report(&err));
             ExitCode::from(EXIT_BAD_INPUT)
