@@ -36,3 +36,8 @@
 pub use fluxstep_netlist as netlist;
 pub use fluxstep_plot as plot;
 pub use fluxstep_solver as solver;
+
+/// The README's Rust examples, compiled and run as doctests.
+#[doc = include_str!("../README.md")]
+#[cfg(doctest)]
+pub struct ReadmeDoctests;

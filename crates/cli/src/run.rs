@@ -65,7 +65,7 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
         (None, Some(c)) => c.stop_time,
         (None, None) => anyhow::bail!("no stop time: give --stop or a run.stop_time in the file"),
     };
-    if !(stop > 0.0) {
+    if stop.is_nan() || stop <= 0.0 {
         anyhow::bail!("--stop must be positive, got {stop}");
     }
     let mut outputs: Vec<String> = if args.outputs.is_empty() {
@@ -79,28 +79,43 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
         (None, Some(f)) => f,
         (None, None) => period.map(|p| (stop - 5.0 * p).max(0.0)).unwrap_or(0.0),
     };
-    if !(from >= 0.0 && from < stop) {
-        anyhow::bail!("the recorded window must start in [0, stop): --from {from} with stop {stop}");
+    if from.is_nan() || from < 0.0 || from >= stop {
+        anyhow::bail!(
+            "the recorded window must start in [0, stop): --from {from} with stop {stop}"
+        );
     }
-    let opts = Options { record: Record::Window { from, to: stop }, ..Options::default() };
+    let opts = Options {
+        record: Record::Window { from, to: stop },
+        ..Options::default()
+    };
     let mut sim = Simulator::new(&circuit, opts).map_err(|e| anyhow::Error::new(Stopped(e)))?;
     if outputs.is_empty() {
         outputs = default_outputs(&circuit);
     }
     for o in &outputs {
         if sim.waveform().output(o).is_none() {
-            anyhow::bail!("unknown output {o:?}: expected a node name, ELEMENT.current or ELEMENT.voltage");
+            anyhow::bail!(
+                "unknown output {o:?}: expected a node name, ELEMENT.current or ELEMENT.voltage"
+            );
         }
     }
     // Advance in slices so that a long run can show progress on a terminal.
     let bar = std::io::stderr().is_terminal().then(|| {
         let b = indicatif::ProgressBar::new(100);
-        b.set_style(indicatif::ProgressStyle::with_template("{bar:40} {percent:>3}% simulated").expect("valid template"));
+        b.set_style(
+            indicatif::ProgressStyle::with_template("{bar:40} {percent:>3}% simulated")
+                .expect("valid template"),
+        );
         b
     });
     for k in 1..=100u32 {
-        let t = if k == 100 { stop } else { stop * f64::from(k) / 100.0 };
-        sim.advance_to(t).map_err(|e| anyhow::Error::new(Stopped(e)))?;
+        let t = if k == 100 {
+            stop
+        } else {
+            stop * f64::from(k) / 100.0
+        };
+        sim.advance_to(t)
+            .map_err(|e| anyhow::Error::new(Stopped(e)))?;
         if let Some(b) = &bar {
             b.set_position(u64::from(k));
         }
@@ -111,11 +126,18 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
     let result = sim.finish();
     let w = &result.waveform;
     let dir = args.out.clone().unwrap_or_else(|| {
-        let stem = args.file.file_stem().map(|s| s.to_string_lossy().into_owned()).unwrap_or_else(|| "run".into());
+        let stem = args
+            .file
+            .file_stem()
+            .map(|s| s.to_string_lossy().into_owned())
+            .unwrap_or_else(|| "run".into());
         PathBuf::from("out").join(stem)
     });
     std::fs::create_dir_all(&dir).with_context(|| format!("cannot create {}", dir.display()))?;
-    let ids: Vec<_> = outputs.iter().map(|o| w.output(o).expect("checked above")).collect();
+    let ids: Vec<_> = outputs
+        .iter()
+        .map(|o| w.output(o).expect("checked above"))
+        .collect();
 
     // Waveform CSV: event instants plus a uniform grid.
     let (a, b) = w.span().context("nothing was recorded")?;
@@ -140,7 +162,8 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
         csv.push('\n');
     }
     std::fs::write(dir.join("waveform.csv"), csv).context("cannot write waveform.csv")?;
-    std::fs::write(dir.join("events.json"), result.events.to_json()).context("cannot write events.json")?;
+    std::fs::write(dir.join("events.json"), result.events.to_json())
+        .context("cannot write events.json")?;
 
     // Summary: exact measurements over the recorded window.
     let mut measurements: Vec<Measurement> = vec![];
@@ -157,16 +180,45 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
         "modes": result.stats.modes,
         "measurements": measurements,
     });
-    std::fs::write(dir.join("summary.json"), serde_json::to_string_pretty(&summary)? + "\n").context("cannot write summary.json")?;
+    std::fs::write(
+        dir.join("summary.json"),
+        serde_json::to_string_pretty(&summary)? + "\n",
+    )
+    .context("cannot write summary.json")?;
 
-    let title = args.file.file_stem().map(|s| s.to_string_lossy().into_owned()).unwrap_or_default();
-    let fig = review_figure(&title, w, Some(&result.events), &ReviewOptions { outputs: outputs.clone(), ..ReviewOptions::default() })?;
+    let title = args
+        .file
+        .file_stem()
+        .map(|s| s.to_string_lossy().into_owned())
+        .unwrap_or_default();
+    let fig = review_figure(
+        &title,
+        w,
+        Some(&result.events),
+        &ReviewOptions {
+            outputs: outputs.clone(),
+            ..ReviewOptions::default()
+        },
+    )?;
     write_svg(&fig, dir.join("figure.svg"))?;
 
-    println!("{}: {:.4e} s simulated, window {:.4e} … {:.4e} s, {} events", title, stop, a, b, result.events.events.len());
-    println!("  {:<26} {:>12} {:>12} {:>12} {:>12} {:>12}", "output", "average", "rms", "min", "max", "peak-peak");
+    println!(
+        "{}: {:.4e} s simulated, window {:.4e} … {:.4e} s, {} events",
+        title,
+        stop,
+        a,
+        b,
+        result.events.events.len()
+    );
+    println!(
+        "  {:<26} {:>12} {:>12} {:>12} {:>12} {:>12}",
+        "output", "average", "rms", "min", "max", "peak-peak"
+    );
     for (o, id) in outputs.iter().zip(&ids) {
-        match measurements.iter().find(|m| m.output == *o || w.output(&m.output) == Some(*id)) {
+        match measurements
+            .iter()
+            .find(|m| m.output == *o || w.output(&m.output) == Some(*id))
+        {
             Some(m) => println!(
                 "  {:<26} {:>12.5e} {:>12.5e} {:>12.5e} {:>12.5e} {:>12.5e}",
                 o, m.average, m.rms, m.min, m.max, m.peak_to_peak
@@ -174,7 +226,10 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
             None => println!("  {o:<26} (undetermined in part of the window)"),
         }
     }
-    println!("  written: {}/{{waveform.csv, events.json, summary.json, figure.svg}}", dir.display());
+    println!(
+        "  written: {}/{{waveform.csv, events.json, summary.json, figure.svg}}",
+        dir.display()
+    );
     Ok(())
 }
 
@@ -182,7 +237,11 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
 /// where they exist.
 fn default_outputs(c: &fluxstep_netlist::Circuit) -> Vec<String> {
     let mut v = vec![];
-    if let Some(l) = c.elements.iter().find(|e| matches!(e, fluxstep_netlist::Element::Inductor(_))) {
+    if let Some(l) = c
+        .elements
+        .iter()
+        .find(|e| matches!(e, fluxstep_netlist::Element::Inductor(_)))
+    {
         v.push(format!("{}.current", l.name()));
     }
     for n in ["sw", "out"] {

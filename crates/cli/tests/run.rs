@@ -9,7 +9,11 @@ fn root() -> PathBuf {
 }
 
 fn fluxstep(args: &[&str]) -> std::process::Output {
-    Command::new(env!("CARGO_BIN_EXE_fluxstep")).args(args).current_dir(root()).output().unwrap()
+    Command::new(env!("CARGO_BIN_EXE_fluxstep"))
+        .args(args)
+        .current_dir(root())
+        .output()
+        .unwrap()
 }
 
 #[test]
@@ -22,8 +26,19 @@ fn every_example_circuit_runs_and_writes_its_files() {
             continue;
         }
         let out = dir.join(&name);
-        let o = fluxstep(&["run", path.to_str().unwrap(), "--out", out.to_str().unwrap(), "--grid", "200"]);
-        assert!(o.status.success(), "{name}: {}", String::from_utf8_lossy(&o.stderr));
+        let o = fluxstep(&[
+            "run",
+            path.to_str().unwrap(),
+            "--out",
+            out.to_str().unwrap(),
+            "--grid",
+            "200",
+        ]);
+        assert!(
+            o.status.success(),
+            "{name}: {}",
+            String::from_utf8_lossy(&o.stderr)
+        );
         let csv = std::fs::read_to_string(out.join("waveform.csv")).unwrap();
         let header: Vec<&str> = csv.lines().next().unwrap().split(',').collect();
         let circuit = fluxstep_netlist_outputs(&path);
@@ -33,11 +48,18 @@ fn every_example_circuit_runs_and_writes_its_files() {
             assert_eq!(cells.len(), header.len());
             assert!(cells[0].parse::<f64>().is_ok());
             for c in &cells[1..] {
-                assert!(c.is_empty() || c.parse::<f64>().map(f64::is_finite).unwrap_or(false), "{name}: cell {c:?}");
+                assert!(
+                    c.is_empty() || c.parse::<f64>().map(f64::is_finite).unwrap_or(false),
+                    "{name}: cell {c:?}"
+                );
             }
         }
         let svg = std::fs::read_to_string(out.join("figure.svg")).unwrap();
-        assert_eq!(svg.matches("<polyline").count(), header.len() - 1, "{name}: one line per trace");
+        assert_eq!(
+            svg.matches("<polyline").count(),
+            header.len() - 1,
+            "{name}: one line per trace"
+        );
         let events = std::fs::read_to_string(out.join("events.json")).unwrap();
         assert!(events.contains("state_names"));
         let summary = std::fs::read_to_string(out.join("summary.json")).unwrap();
@@ -48,17 +70,31 @@ fn every_example_circuit_runs_and_writes_its_files() {
 
 /// The output names a circuit file asks for (its run.outputs), read as text.
 fn fluxstep_netlist_outputs(path: &Path) -> Vec<String> {
-    let v: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(path).unwrap()).unwrap();
-    v["run"]["outputs"].as_array().unwrap().iter().map(|x| x.as_str().unwrap().to_string()).collect()
+    let v: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(path).unwrap()).unwrap();
+    v["run"]["outputs"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|x| x.as_str().unwrap().to_string())
+        .collect()
 }
 
 #[test]
 fn interrupted_inductor_exits_1_with_the_diagnostic() {
     let dir = std::env::temp_dir().join(format!("fluxstep-int-{}", std::process::id()));
-    let o = fluxstep(&["run", "examples/circuits/interrupted_inductor.json", "--out", dir.to_str().unwrap()]);
+    let o = fluxstep(&[
+        "run",
+        "examples/circuits/interrupted_inductor.json",
+        "--out",
+        dir.to_str().unwrap(),
+    ]);
     assert_eq!(o.status.code(), Some(1));
     let err = String::from_utf8_lossy(&o.stderr);
-    assert!(err.contains("inductor current interrupted") && err.contains("S1") && err.contains("L1"), "{err}");
+    assert!(
+        err.contains("inductor current interrupted") && err.contains("S1") && err.contains("L1"),
+        "{err}"
+    );
     let _ = std::fs::remove_dir_all(dir);
 }
 
@@ -70,7 +106,14 @@ fn malformed_input_exits_2() {
     std::fs::write(&bad, "{ this is not json").unwrap();
     let o = fluxstep(&["run", bad.to_str().unwrap()]);
     assert_eq!(o.status.code(), Some(2));
-    let o = fluxstep(&["run", "examples/circuits/buck.json", "--outputs", "nosuch.current", "--out", dir.to_str().unwrap()]);
+    let o = fluxstep(&[
+        "run",
+        "examples/circuits/buck.json",
+        "--outputs",
+        "nosuch.current",
+        "--out",
+        dir.to_str().unwrap(),
+    ]);
     assert_eq!(o.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&o.stderr).contains("nosuch.current"));
     let _ = std::fs::remove_dir_all(dir);

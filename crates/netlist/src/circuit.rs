@@ -231,12 +231,17 @@ fn value_at<'v>(v: &'v mut serde_json::Value, steps: &[Step]) -> Option<&'v mut 
 /// serde buffers an element, waveform or gate (each tagged by `"kind"`)
 /// before it reads the fields, so `serde_path_to_error` can name only the
 /// object (`elements[2]`), not the field (`elements[2].inductance`). The
-/// member at fault is found by reproducing the error on changed copies of
+/// member at fault is found by reproducing the same error — same message,
+/// and the same object as far as tracking reaches, so an identical mistake
+/// elsewhere in the file cannot be mistaken for it — on changed copies of
 /// the document, one level at a time:
 ///
-/// - a bad or unknown member: the object cut down to that member (plus
-///   `kind`), or a list cut down to that item, fails the same way (serde
-///   reports the first bad member before it checks for missing ones);
+/// - in a list, the culprit is the first item: the shortest prefix of the
+///   list that still fails the same way ends with it (found by bisection,
+///   so long piecewise-linear tables stay cheap);
+/// - a bad or unknown member of an object: the object cut down to that
+///   member (plus `kind`) fails the same way, since serde reports the first
+///   bad member before it checks for missing ones;
 /// - a missing field `f`: narrowing stops at the object where supplying
 ///   `f` changes the error (into anything but "unknown field"); above it,
 ///   the member holding that object is the one whose removal changes the
@@ -250,7 +255,12 @@ fn value_at<'v>(v: &'v mut serde_json::Value, steps: &[Step]) -> Option<&'v mut 
 fn narrow_path(text: &str, path: String, message: &str) -> String {
     use serde_json::Value;
 
-    let error = |doc: &Value| Circuit::deserialize(doc).err().map(|e| e.to_string());
+    // The error of a document as (tracked path, message).
+    let error = |doc: &Value| -> Option<(String, String)> {
+        serde_path_to_error::deserialize::<_, Circuit>(doc)
+            .err()
+            .map(|e| (e.path().to_string(), e.into_inner().to_string()))
+    };
     let (Ok(mut doc), Some(mut shown)) = (serde_json::from_str::<Value>(text), parse_path(&path))
     else {
         return path;
@@ -258,112 +268,115 @@ fn narrow_path(text: &str, path: String, message: &str) -> String {
     // The document read as a value must fail exactly as the text did (the
     // text's message adds "at line L column C"), or the search would chase
     // a different error.
-    let Some(baseline) = error(&doc).filter(|b| message.starts_with(b.as_str())) else {
+    let Some(baseline) = error(&doc).filter(|(p, m)| *p == path && message.starts_with(m.as_str()))
+    else {
         return path;
     };
+    let same = |e: Option<(String, String)>| e.as_ref() == Some(&baseline);
     let missing = baseline
+        .1
         .strip_prefix("missing field `")
         .and_then(|r| r.strip_suffix('`'))
         .map(str::to_string);
-    // Where the object is in the (possibly cut-down) document.
-    let mut nav = shown.clone();
-    // A copy of `doc` with the value at `nav` cut down to `keep` alone.
-    let cut = |doc: &Value, nav: &[Step], keep: Option<&Step>| {
+    // A copy of `doc` with the value at `nav` changed by `f`.
+    let changed = |doc: &Value, nav: &[Step], f: &dyn Fn(&mut Value)| {
         let mut trial = doc.clone();
-        match value_at(&mut trial, nav) {
-            Some(Value::Object(m)) => {
-                m.retain(|k, _| k == "kind" || Some(&Step::Key(k.clone())) == keep)
-            }
-            Some(Value::Array(items)) => {
-                *items = match keep {
-                    Some(Step::Index(i)) => vec![items[*i].clone()],
-                    _ => Vec::new(),
-                }
-            }
-            _ => {}
+        if let Some(v) = value_at(&mut trial, nav) {
+            f(v);
         }
         trial
     };
-    // The error of a copy of `doc` without the member `step` at `nav`.
-    let without = |doc: &Value, nav: &[Step], step: &Step| {
-        let mut trial = doc.clone();
-        match (value_at(&mut trial, nav), step) {
-            (Some(Value::Object(m)), Step::Key(k)) => {
-                m.remove(k.as_str());
+    let without = |doc: &Value, nav: &[Step], key: &str| {
+        error(&changed(doc, nav, &|v| {
+            if let Value::Object(m) = v {
+                m.remove(key);
             }
-            (Some(Value::Array(items)), Step::Index(i)) => {
-                items.remove(*i);
-            }
-            _ => {}
-        }
-        error(&trial)
+        }))
     };
     loop {
-        let candidates: Vec<Step> = match value_at(&mut doc, &nav) {
-            Some(Value::Object(m)) => m
-                .iter()
-                .filter(|(k, v)| {
-                    *k != "kind" && (missing.is_none() || v.is_object() || v.is_array())
-                })
-                .map(|(k, _)| Step::Key(k.clone()))
-                .collect(),
-            // A wrong length is the list's own fault, not an item's.
-            Some(Value::Array(items)) if !baseline.starts_with("invalid length") => {
-                (0..items.len()).map(Step::Index).collect()
-            }
-            _ => break,
-        };
-        if let Some(f) = &missing {
-            // This object is the one missing `f` if supplying `f` changes
-            // the error into anything but "unknown field `f`".
-            let mut trial = doc.clone();
-            if let Some(Value::Object(m)) = value_at(&mut trial, &nav) {
-                if !m.contains_key(f) {
-                    m.insert(f.clone(), Value::from(0));
-                    let e = error(&trial);
-                    let unknown = format!("unknown field `{f}`");
-                    if e.as_ref() != Some(&baseline) && !e.is_some_and(|e| e.starts_with(&unknown))
-                    {
-                        break;
+        let here = value_at(&mut doc, &shown).cloned();
+        match here {
+            Some(Value::Array(items)) if !baseline.1.starts_with("invalid length") => {
+                // A wrong length is the list's own fault, not an item's.
+                let prefix = |len: usize| {
+                    changed(&doc, &shown, &|v| {
+                        if let Value::Array(a) = v {
+                            a.truncate(len);
+                        }
+                    })
+                };
+                if items.is_empty() || same(error(&prefix(0))) {
+                    // The emptied list fails the same way: the fault is its own.
+                    break;
+                }
+                // The shortest failing prefix: fails at `hi`, not below `lo`.
+                let (mut lo, mut hi) = (1, items.len());
+                while lo < hi {
+                    let mid = lo + (hi - lo) / 2;
+                    if same(error(&prefix(mid))) {
+                        hi = mid;
+                    } else {
+                        lo = mid + 1;
                     }
                 }
+                doc = prefix(hi);
+                shown.push(Step::Index(hi - 1));
             }
-            match candidates
-                .into_iter()
-                .find(|step| without(&doc, &nav, step).as_ref() != Some(&baseline))
-            {
-                Some(step) => {
-                    shown.push(step.clone());
-                    nav.push(step);
+            Some(Value::Object(m)) => {
+                let keys: Vec<String> = m.keys().filter(|k| *k != "kind").cloned().collect();
+                if let Some(f) = &missing {
+                    // This object is the one missing `f` if supplying `f`
+                    // changes the error into anything but "unknown field".
+                    if !m.contains_key(f) {
+                        let e = error(&changed(&doc, &shown, &|v| {
+                            if let Value::Object(m) = v {
+                                m.insert(f.clone(), Value::from(0));
+                            }
+                        }));
+                        let unknown = format!("unknown field `{f}`");
+                        if !same(e.clone()) && !e.is_some_and(|(_, m)| m.starts_with(&unknown)) {
+                            break;
+                        }
+                    }
+                    // Only a list or an object can hold the missing field.
+                    let holder = keys.into_iter().find(|k| {
+                        (m[k].is_object() || m[k].is_array()) && !same(without(&doc, &shown, k))
+                    });
+                    match holder {
+                        Some(k) => shown.push(Step::Key(k)),
+                        None => break,
+                    }
                     continue;
                 }
-                None => break,
+                let cut = |keep: Option<&str>| {
+                    changed(&doc, &shown, &|v| {
+                        if let Value::Object(m) = v {
+                            m.retain(|k, _| k == "kind" || Some(k.as_str()) == keep);
+                        }
+                    })
+                };
+                if same(error(&cut(None))) {
+                    // The emptied object fails the same way: the fault is its own.
+                    break;
+                }
+                if let Some(k) = keys.iter().find(|k| same(error(&cut(Some(k))))) {
+                    doc = cut(Some(k));
+                    shown.push(Step::Key(k.clone()));
+                    continue;
+                }
+                // Flattened members are read after the others, so cutting
+                // the object down reports a missing field first; removing
+                // the culprit instead makes the error go away (or become
+                // another one).
+                let removed = keys.into_iter().find(|k| {
+                    let e = without(&doc, &shown, k);
+                    !same(e.clone()) && e.map(|(_, m)| m) != Some(format!("missing field `{k}`"))
+                });
+                shown.extend(removed.map(Step::Key));
+                break;
             }
+            _ => break,
         }
-        if error(&cut(&doc, &nav, None)).as_ref() == Some(&baseline) {
-            // The emptied object fails the same way: the fault is its own.
-            break;
-        }
-        let found = candidates.iter().find_map(|step| {
-            let trial = cut(&doc, &nav, Some(step));
-            (error(&trial).as_ref() == Some(&baseline)).then(|| (step.clone(), trial))
-        });
-        if let Some((step, trial)) = found {
-            doc = trial;
-            shown.push(step.clone());
-            nav.push(match step {
-                Step::Index(_) => Step::Index(0),
-                key => key,
-            });
-            continue;
-        }
-        let removed = candidates.into_iter().find(|step| {
-            let Step::Key(k) = step else { return false };
-            let e = without(&doc, &nav, step);
-            e.as_ref() != Some(&baseline) && e != Some(format!("missing field `{k}`"))
-        });
-        shown.extend(removed);
-        break;
     }
     shown.iter().fold(String::new(), |mut out, s| {
         match s {

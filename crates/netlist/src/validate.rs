@@ -321,22 +321,23 @@ impl Checker<'_> {
                 let label = self.labels[i].clone();
                 self.field(&label, "name", format!("element name {name:?} {why}"));
             }
-            if name.is_empty() {
-                continue;
-            }
-            match first.get(name) {
-                Some(&j) => self.field(
-                    name,
-                    "name",
-                    format!(
-                        "duplicate element name '{name}': elements[{j}] and elements[{i}] both use it"
+            if !name.is_empty() {
+                match first.get(name) {
+                    Some(&j) => self.field(
+                        name,
+                        "name",
+                        format!(
+                            "duplicate element name '{name}': elements[{j}] and elements[{i}] both use it"
+                        ),
                     ),
-                ),
-                None => {
-                    first.insert(name, i);
+                    None => {
+                        first.insert(name, i);
+                    }
                 }
             }
             if let Element::CoupledInductors(c) = e {
+                let name = self.labels[i].clone();
+                let name = name.as_str();
                 let mut seen: HashMap<&str, usize> = HashMap::new();
                 for (k, w) in c.windings.iter().enumerate() {
                     let field = format!("windings[{k}].name");
@@ -905,7 +906,9 @@ impl Checker<'_> {
                 .collect();
             let part: Vec<&Branch> = branches.iter().filter(|b| all.find(b.a) == r).collect();
             let parts: Vec<&str> = part.iter().map(|b| b.part.as_str()).collect();
-            let first = part[0];
+            let first = part
+                .first()
+                .expect("every node is a terminal of some branch");
             let mut message = format!(
                 "part of the circuit with node(s) {} has no connection to ground (it holds {})",
                 quoted(&nodes),
@@ -996,7 +999,9 @@ impl Checker<'_> {
             let source_names: Vec<&str> =
                 sources.iter().map(|&e| self.labels[e].as_str()).collect();
             let p = Problem::field(
-                &self.labels[sources[0]],
+                &self.labels[*sources.first().expect(
+                    "a part joined to ground only through current sources is crossed by one",
+                )],
                 "nodes",
                 format!(
                     "node(s) {} connect to the rest of the circuit only through current source(s) {} \

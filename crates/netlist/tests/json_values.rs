@@ -234,3 +234,38 @@ fn text_that_is_not_json_names_the_position() {
         }
     }
 }
+
+#[test]
+fn the_first_of_two_identical_mistakes_is_named() {
+    // serde buffers tagged objects, so the path is found by reproducing the
+    // error on cut-down copies; the same mistake in a later element must not
+    // be taken for it.
+    let source = |name: &str, points: &str| {
+        format!(
+            r#"{{"kind": "voltage_source", "name": "{name}", "nodes": ["a", "gnd"],
+               "waveform": {{"kind": "piecewise_linear", "points": [{points}]}}}}"#
+        )
+    };
+    let text = format!(
+        r#"{{"elements": [{}, {}]}}"#,
+        source(
+            "V1",
+            r#"{"time": 0, "value": 1}, {"time": "1uu", "value": 2}, {"time": 3, "value": 3}"#
+        ),
+        source("V2", r#"{"time": "1uu", "value": 2}"#),
+    );
+    match Circuit::from_json_unchecked(&text) {
+        Err(NetlistError::Json { path, .. }) => {
+            assert_eq!(path, "elements[0].waveform.points[1].time")
+        }
+        other => panic!("expected a JSON error, got {other:?}"),
+    }
+    let text = text.replacen(r#"{"time": "1uu", "value": 2}"#, r#"{"value": 2}"#, 1);
+    match Circuit::from_json_unchecked(&text) {
+        Err(NetlistError::Json { path, message }) => {
+            assert_eq!(path, "elements[0].waveform.points[1]");
+            assert!(message.contains("missing field `time`"), "{message}");
+        }
+        other => panic!("expected a JSON error, got {other:?}"),
+    }
+}
