@@ -60,3 +60,27 @@ fn converters_name_their_switch_node_and_output() {
         }
     }
 }
+
+#[test]
+fn the_complete_example_in_the_format_reference_is_valid() {
+    let path = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../../docs/netlist.md");
+    let doc = std::fs::read_to_string(&path).expect("docs/netlist.md exists");
+    let section = doc
+        .split("## A complete example")
+        .nth(1)
+        .expect("docs/netlist.md has a complete example");
+    let json = section
+        .split("```json\n")
+        .nth(1)
+        .and_then(|rest| rest.split("```").next())
+        .expect("the example is a json block");
+    let c = Circuit::from_json(json).unwrap_or_else(|e| panic!("docs/netlist.md example: {e}"));
+    let file = examples()
+        .into_iter()
+        .find(|(n, _)| n == "buck.json")
+        .expect("buck.json")
+        .1;
+    assert_eq!(c.elements, file.elements, "the example is buck.json");
+    assert_eq!(c.gates, file.gates);
+    assert_eq!(c.run, file.run);
+}
