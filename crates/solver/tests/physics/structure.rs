@@ -318,6 +318,23 @@ fn sync_buck_dead_time_sequence() {
     assert!(w.value(sw, lo_on + 100e-9).unwrap().abs() < 1e-12);
     let (d, s) = energy_balance(&c, &run);
     assert!(rel(s, d) < 1e-9, "energy {d} vs {s}");
+    // Timing checks a user would lock down: the dead times as configured
+    // (60 ns before the high side turns on, 40 ns before the low side).
+    let dead = run.events.shortest_dead_time("Shi", "Slo").unwrap();
+    assert!((dead - 40e-9).abs() < 1e-15, "dead time {dead:e}");
+    assert_eq!(run.events.edges_within("Shi", 0.0, 10e-6).len(), 4);
+    let body = run.events.conduction_intervals("Slo.body_diode");
+    assert!(body.len() > 4);
+    let closed: Vec<_> = body
+        .iter()
+        .filter(|(a, b)| a.is_finite() && b.is_finite())
+        .collect();
+    assert!(closed.len() > 4);
+    assert!(
+        closed.iter().all(|(a, b)| b - a <= 60e-9 + 1e-15),
+        "{body:?}"
+    );
+    assert!(run.events.jumps().is_empty());
 }
 
 /// Golden event log of the synchronous buck over 5 periods: same input, same
