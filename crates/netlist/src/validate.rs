@@ -261,6 +261,31 @@ impl Checker<'_> {
         self.out.push(Problem::field(element, field, message));
     }
 
+    /// Reports every time in `times` that does not follow its predecessor
+    /// (`what`: "point" or "transition"; `field` names entry i).
+    fn strictly_increasing(
+        &mut self,
+        element: &str,
+        times: &[f64],
+        what: &str,
+        field: impl Fn(usize) -> String,
+    ) {
+        for i in 1..times.len() {
+            let (a, b) = (times[i - 1], times[i]);
+            if b <= a {
+                self.field(
+                    element,
+                    &field(i),
+                    format!(
+                        "{what} times must be strictly increasing: {} follows {}",
+                        num(b),
+                        num(a)
+                    ),
+                );
+            }
+        }
+    }
+
     /// Reports a non-finite value; true if the value is finite.
     fn finite(&mut self, element: &str, field: &str, v: f64) -> bool {
         if v.is_finite() {
@@ -534,20 +559,10 @@ impl Checker<'_> {
                     self.finite(l, &format!("waveform.points[{i}].value"), p.value);
                 }
                 if times_ok {
-                    for i in 1..points.len() {
-                        let (a, b) = (points[i - 1].time, points[i].time);
-                        if b <= a {
-                            self.field(
-                                l,
-                                &format!("waveform.points[{i}].time"),
-                                format!(
-                                    "point times must be strictly increasing: {} follows {}",
-                                    num(b),
-                                    num(a)
-                                ),
-                            );
-                        }
-                    }
+                    let times: Vec<f64> = points.iter().map(|p| p.time).collect();
+                    self.strictly_increasing(l, &times, "point", |i| {
+                        format!("waveform.points[{i}].time")
+                    });
                 }
                 if let Some(p) = *period {
                     if self.positive(l, "waveform.period", p) && times_ok {
@@ -676,20 +691,10 @@ impl Checker<'_> {
                     times_ok &= self.finite(l, &format!("transitions[{i}].time"), t.time);
                 }
                 if times_ok {
-                    for i in 1..transitions.len() {
-                        let (a, b) = (transitions[i - 1].time, transitions[i].time);
-                        if b <= a {
-                            self.field(
-                                l,
-                                &format!("transitions[{i}].time"),
-                                format!(
-                                    "transition times must be strictly increasing: {} follows {}",
-                                    num(b),
-                                    num(a)
-                                ),
-                            );
-                        }
-                    }
+                    let times: Vec<f64> = transitions.iter().map(|t| t.time).collect();
+                    self.strictly_increasing(l, &times, "transition", |i| {
+                        format!("transitions[{i}].time")
+                    });
                 }
                 if let Some(p) = *period {
                     if self.positive(l, "period", p) && times_ok {
