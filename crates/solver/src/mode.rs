@@ -63,6 +63,8 @@ pub(crate) enum GuardKind {
 pub(crate) struct Guard {
     pub kind: GuardKind,
     pub row: Vec<f64>,
+    /// The guard's time derivative as a row: `row·M`.
+    pub drow: Vec<f64>,
 }
 
 /// What a multiplier constraint is about.
@@ -694,6 +696,7 @@ impl Mode {
                 guards.push(Guard {
                     kind: GuardKind::DiodeCurrent(di),
                     row: r.iter().copied().collect(),
+                    drow: vec![],
                 });
             } else {
                 let (a1, a2) = vz(b.a);
@@ -705,6 +708,7 @@ impl Mode {
                     guards.push(Guard {
                         kind: GuardKind::DiodeVoltage(di),
                         row: row.iter().copied().collect(),
+                        drow: vec![],
                     });
                 } else {
                     free_dep.push((di, row.iter().copied().collect(), dep));
@@ -723,9 +727,14 @@ impl Mode {
                     guards.push(Guard {
                         kind: GuardKind::DiodePair(*di, *dj),
                         row,
+                        drow: vec![],
                     });
                 }
             }
+        }
+        for g in &mut guards {
+            let r = DVector::from_column_slice(&g.row);
+            g.drow = (m.transpose() * r).iter().copied().collect();
         }
         // 9. Free groups with current sources must balance.
         let mut free_checks = vec![];

@@ -95,3 +95,69 @@ pub(crate) fn poly(c: &[f64], s: f64) -> (f64, f64) {
 pub(crate) fn expm(m: &DMatrix<f64>, h: f64) -> DMatrix<f64> {
     (m * h).exp()
 }
+
+/// y = M x for a dense column-major matrix, into `y`, without allocating.
+/// For the 4–12 states of a converter this plain loop beats a general
+/// matrix-vector product, whose set-up cost dominates at that size.
+pub(crate) fn matvec(m: &DMatrix<f64>, x: &[f64], y: &mut [f64]) {
+    let n = m.nrows();
+    let data = m.as_slice();
+    y.fill(0.0);
+    for (j, &xj) in x.iter().enumerate() {
+        if xj != 0.0 {
+            let col = &data[j * n..(j + 1) * n];
+            for (yi, &mij) in y.iter_mut().zip(col) {
+                *yi += mij * xj;
+            }
+        }
+    }
+}
+
+/// Scratch vectors for [`advance_into`].
+#[derive(Clone, Debug, Default)]
+pub(crate) struct Scratch {
+    term: Vec<f64>,
+    next: Vec<f64>,
+    x: Vec<f64>,
+}
+
+/// e^{Mτ} z into `out`, as [`advance`] does, without allocating.
+pub(crate) fn advance_into(
+    m: &DMatrix<f64>,
+    rate: f64,
+    z: &[f64],
+    tau: f64,
+    out: &mut [f64],
+    s: &mut Scratch,
+) {
+    let nz = z.len();
+    s.term.resize(nz, 0.0);
+    s.next.resize(nz, 0.0);
+    s.x.resize(nz, 0.0);
+    s.x.copy_from_slice(z);
+    if tau > 0.0 {
+        let n = substeps(rate, tau);
+        let d = tau / n as f64;
+        for _ in 0..n {
+            s.term.copy_from_slice(&s.x);
+            for k in 1..60 {
+                matvec(m, &s.term, &mut s.next);
+                let f = d / k as f64;
+                let mut tn: f64 = 0.0;
+                for (t, &v) in s.term.iter_mut().zip(&s.next) {
+                    *t = v * f;
+                    tn = tn.max(t.abs());
+                }
+                let mut sn: f64 = 0.0;
+                for (x, &t) in s.x.iter_mut().zip(&s.term) {
+                    *x += t;
+                    sn = sn.max(x.abs());
+                }
+                if tn == 0.0 || (k >= 3 && tn <= sn * 1e-18) {
+                    break;
+                }
+            }
+        }
+    }
+    out.copy_from_slice(&s.x);
+}

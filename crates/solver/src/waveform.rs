@@ -17,7 +17,8 @@ pub struct Segment {
     /// End time (s).
     pub t1: f64,
     pub(crate) mode: u32,
-    pub(crate) z0: DVector<f64>,
+    /// Offset of the start state in [`Waveform::states`].
+    pub(crate) at: usize,
 }
 
 /// Identifies an output of a circuit (a node voltage, an element current or voltage).
@@ -28,6 +29,10 @@ pub struct OutputId(pub(crate) usize);
 #[derive(Clone, Debug, Default)]
 pub struct Waveform {
     pub(crate) segments: Vec<Segment>,
+    /// Start states of all segments, one after another (one allocation for
+    /// the whole run instead of one per segment).
+    pub(crate) states: Vec<f64>,
+    pub(crate) n_z: usize,
     pub(crate) modes: Vec<Arc<Mode>>,
     pub(crate) output_names: Vec<String>,
     pub(crate) n_x: usize,
@@ -91,10 +96,15 @@ impl Waveform {
         Some(i.min(self.segments.len() - 1))
     }
 
+    /// The start state of a segment.
+    pub(crate) fn z0(&self, s: &Segment) -> DVector<f64> {
+        DVector::from_column_slice(&self.states[s.at..s.at + self.n_z])
+    }
+
     fn state_in(&self, i: usize, t: f64) -> DVector<f64> {
         let s = &self.segments[i];
         let m = &self.modes[s.mode as usize];
-        propagate::advance(&m.m, m.rate, &s.z0, (t - s.t0).max(0.0))
+        propagate::advance(&m.m, m.rate, &self.z0(s), (t - s.t0).max(0.0))
     }
 
     fn out_in(&self, i: usize, id: OutputId, z: &DVector<f64>) -> Option<f64> {
@@ -208,7 +218,7 @@ impl Waveform {
             }
             let n = propagate::substeps(m.rate, b - a);
             let d = (b - a) / n as f64;
-            let mut z = propagate::advance(&m.m, m.rate, &s.z0, a - s.t0);
+            let mut z = propagate::advance(&m.m, m.rate, &self.z0(s), a - s.t0);
             for _ in 0..n {
                 let mut part = 0.0;
                 for &(x, w) in &GL8 {

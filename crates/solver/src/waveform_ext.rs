@@ -73,7 +73,7 @@ impl Waveform {
         let row = m.c.row(id.0);
         let n = propagate::substeps(m.rate, b - a);
         let delta = (b - a) / n as f64;
-        let mut z = propagate::advance(&m.m, m.rate, &s.z0, a - s.t0);
+        let mut z = propagate::advance(&m.m, m.rate, &self.z0(s), a - s.t0);
         let mut terms = Vec::new();
         let mut coef = Vec::new();
         for k in 0..n {

@@ -1,0 +1,187 @@
+//! Stage 2: locate the earliest state event inside an interval, on the
+//! exact solution.
+//!
+//! The interval is split into sub-intervals with ρ·δ ≤ 1/2 (ρ bounds the
+//! fastest dynamics of the mode, so δ is a small fraction of its fastest
+//! oscillation period). On each, a guard g(τ) = r·e^{Mτ}z is checked at both
+//! ends with its exact derivative: a crossing shows as g < 0 at the end, a
+//! dip below zero and back as g′ < 0 at the start and g′ > 0 at the end.
+//! Only then is the guard expanded as a Taylor polynomial and its root (or
+//! its minimum, for a grazing touch) refined to machine precision. A
+//! touch that does not go below the tolerance is not an event — on
+//! purpose, so a current that just reaches zero and turns back keeps its
+//! conduction state.
+
+use nalgebra::DVector;
+
+use super::{dot, Simulator};
+use crate::mode::{Guard, GuardKind};
+use crate::propagate;
+
+/// Relative tolerance for "this linear function of the state is zero",
+/// measured against the sum of the magnitudes of its terms (so it scales
+/// with the circuit and ignores cancellation noise).
+pub(super) const ZERO_REL: f64 = 1e-10;
+
+/// Absolute floor under which a guard counts as zero: 1e-13 of the largest
+/// inductor current (current guards) or capacitor/source voltage (voltage
+/// guards) seen in the run. Without it a current left at 1e-33 A by a
+/// located zero crossing would be judged by its own size and look negative.
+pub(super) fn guard_floor(kind: &GuardKind, (i_scale, v_scale): (f64, f64)) -> f64 {
+    let s = match kind {
+        GuardKind::DiodeCurrent(_) => i_scale,
+        GuardKind::DiodeVoltage(_) | GuardKind::DiodePair(..) => v_scale,
+    };
+    1e-13 * s + f64::MIN_POSITIVE
+}
+
+fn abs_dot(a: &[f64], b: &[f64]) -> f64 {
+    a.iter().zip(b).map(|(x, y)| (x * y).abs()).sum()
+}
+
+fn bits(g: &Guard) -> u64 {
+    match g.kind {
+        GuardKind::DiodeCurrent(k) | GuardKind::DiodeVoltage(k) => 1u64 << k,
+        GuardKind::DiodePair(a, b) => (1u64 << a) | (1u64 << b),
+    }
+}
+
+impl Simulator {
+    /// Earliest guard crossing within (0, h]: (τ, bit set of diodes whose
+    /// guard fired). `z_next` must already hold the state at `h`.
+    pub(super) fn locate(&mut self, h: f64) -> Option<(f64, u64)> {
+        let mode = self.modes[self.mode as usize].clone();
+        if mode.guards.is_empty() {
+            return None;
+        }
+        let n = propagate::substeps(mode.rate, h);
+        if n == 1 {
+            // Exact end-point checks first: nothing more to do in the
+            // common case of an interval with no event.
+            let scales = self.scales();
+            let (za, zb) = (self.z.as_slice(), self.z_next.as_slice());
+            let suspect = mode.guards.iter().any(|g| {
+                let tol = ZERO_REL * abs_dot(&g.row, za).max(abs_dot(&g.row, zb))
+                    + guard_floor(&g.kind, scales);
+                let gb = dot(g.row.iter().copied(), zb);
+                let da = dot(g.drow.iter().copied(), za);
+                let db = dot(g.drow.iter().copied(), zb);
+                gb < -tol || (da < 0.0 && db > 0.0)
+            });
+            if !suspect {
+                return None;
+            }
+        }
+        let d = h / n as f64;
+        let mut za = self.z.clone();
+        let mut terms = std::mem::take(&mut self.terms);
+        let mut coef = Vec::new();
+        let mut found: Option<(f64, u64)> = None;
+        let scales = self.scales();
+        for i in 0..n {
+            propagate::taylor_terms(&mode.m, &za, d, &mut terms);
+            for g in &mode.guards {
+                coef.clear();
+                coef.extend(
+                    terms
+                        .iter()
+                        .map(|w| dot(g.row.iter().copied(), w.as_slice())),
+                );
+                let scale: f64 = terms.iter().map(|w| abs_dot(&g.row, w.as_slice())).sum();
+                let tol = ZERO_REL * scale + guard_floor(&g.kind, scales);
+                let (gb, db) = propagate::poly(&coef, 1.0);
+                let da = coef.get(1).copied().unwrap_or(0.0);
+                let root = if gb < -tol {
+                    Some(root_in(&coef, 0.0, 1.0))
+                } else if da < 0.0 && db > 0.0 {
+                    // An interior minimum: find it, then look below zero there.
+                    let smin = stationary(&coef);
+                    let (gm, _) = propagate::poly(&coef, smin);
+                    (gm < -tol).then(|| root_in(&coef, 0.0, smin))
+                } else {
+                    None
+                };
+                if let Some(s) = root {
+                    let tau = (i as f64 + s) * d;
+                    let bit = bits(g);
+                    found = match found {
+                        Some((t, b)) if (t - tau).abs() <= 1e-13 * h => Some((t.min(tau), b | bit)),
+                        Some((t, b)) if t < tau => Some((t, b)),
+                        _ => Some((tau, bit)),
+                    };
+                }
+            }
+            if found.is_some() {
+                break;
+            }
+            let mut next: DVector<f64> = terms[0].clone();
+            for w in terms.iter().skip(1) {
+                next += w;
+            }
+            za = next;
+        }
+        self.terms = terms;
+        // A crossing at the very end belongs to the scheduled instant.
+        found.map(|(t, b)| (if t >= h * (1.0 - 1e-14) { h } else { t }, b))
+    }
+}
+
+/// Root of the polynomial in [lo, hi] where p(lo) ≥ 0 > p(hi): safeguarded
+/// Newton, returning the first point at or after the crossing.
+fn root_in(c: &[f64], lo: f64, hi: f64) -> f64 {
+    let (mut a, mut b) = (lo, hi);
+    let (fa, _) = propagate::poly(c, a);
+    if fa < 0.0 {
+        return a;
+    }
+    let mut s = 0.5 * (a + b);
+    for _ in 0..200 {
+        let (v, dv) = propagate::poly(c, s);
+        if v < 0.0 {
+            b = s;
+        } else {
+            a = s;
+        }
+        if b - a <= f64::EPSILON * b.max(1e-300) {
+            break;
+        }
+        let newton = s - v / dv;
+        s = if dv != 0.0 && newton > a && newton < b {
+            newton
+        } else {
+            0.5 * (a + b)
+        };
+        if s == a || s == b {
+            s = 0.5 * (a + b);
+            if s == a || s == b {
+                break;
+            }
+        }
+    }
+    b
+}
+
+/// Where the polynomial's derivative crosses zero upward inside [0, 1]
+/// (the caller has checked p′(0) < 0 < p′(1)).
+fn stationary(c: &[f64]) -> f64 {
+    let dc: Vec<f64> = c
+        .iter()
+        .enumerate()
+        .skip(1)
+        .map(|(k, a)| k as f64 * a)
+        .collect();
+    let (mut a, mut b) = (0.0, 1.0);
+    for _ in 0..200 {
+        let m = 0.5 * (a + b);
+        let (v, _) = propagate::poly(&dc, m);
+        if v < 0.0 {
+            a = m;
+        } else {
+            b = m;
+        }
+        if b - a <= f64::EPSILON {
+            break;
+        }
+    }
+    0.5 * (a + b)
+}

@@ -1,0 +1,474 @@
+//! The transient run, read as stages (one file each): find the next
+//! scheduled instant (`schedule.rs`) → advance exactly and locate the
+//! earliest state event before it (`locate.rs`) → resolve the conduction
+//! pattern (`resolve.rs`) → record segments and events (`record.rs`).
+//!
+//! The loop is built not to allocate: state vectors are swapped between two
+//! buffers, matrix-vector products write into scratch space, events are
+//! only built when they are kept, and diagnostics only turn into text when a
+//! run actually stops.
+
+mod locate;
+mod record;
+mod resolve;
+mod schedule;
+
+use std::collections::{HashMap, VecDeque};
+use std::sync::Arc;
+
+use nalgebra::{DMatrix, DVector};
+
+use fluxstep_netlist::Circuit;
+
+use crate::compile::Compiled;
+use crate::error::SolverError;
+use crate::events::EventLog;
+use crate::mode::{pattern_text, Mode, ModeKey};
+use crate::options::Options;
+use crate::propagate;
+use crate::waveform::{OutputId, Waveform};
+
+use record::Who;
+use schedule::{SignalBuffer, TimeKey};
+
+/// Counters of a run.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub struct Stats {
+    /// Scheduled instants processed (gate edges, source corners, stop).
+    pub scheduled_events: usize,
+    /// State events located (diode turn-on/turn-off).
+    pub state_events: usize,
+    /// Distinct modes compiled.
+    pub modes: usize,
+    /// Intervals advanced with a cached matrix exponential.
+    pub cache_hits: usize,
+    /// Matrix exponentials computed.
+    pub exponentials: usize,
+}
+
+/// A view of one finished segment, handed to a streaming sink.
+pub struct SegmentView<'a> {
+    /// Start (s).
+    pub t0: f64,
+    /// End (s).
+    pub t1: f64,
+    mode: &'a Mode,
+    z0: &'a DVector<f64>,
+}
+
+impl SegmentView<'_> {
+    /// Value of an output at `t` in [t0, t1]; `None` if undetermined.
+    pub fn value(&self, id: OutputId, t: f64) -> Option<f64> {
+        if *self.mode.undetermined.get(id.0)? {
+            return None;
+        }
+        let z = propagate::advance(
+            &self.mode.m,
+            self.mode.rate,
+            self.z0,
+            (t - self.t0).max(0.0),
+        );
+        Some(dot(self.mode.c.row(id.0).iter().copied(), z.as_slice()))
+    }
+}
+
+/// A streaming receiver of segments (for runs too long to keep).
+pub type SegmentSink = Box<dyn FnMut(&SegmentView<'_>)>;
+
+/// The result of a finished run.
+#[derive(Debug)]
+pub struct RunResult {
+    /// The recorded waveform.
+    pub waveform: Waveform,
+    /// The recorded events.
+    pub events: EventLog,
+    /// Counters.
+    pub stats: Stats,
+}
+
+/// A circuit being simulated: advance it to a time or by whole switching
+/// periods, and read its state in between.
+///
+/// # Example
+///
+/// ```
+/// use fluxstep_netlist::Circuit;
+/// use fluxstep_solver::{Options, Simulator};
+///
+/// let c = Circuit::builder()
+///     .voltage_source("V1", "in", "gnd", 1.0)
+///     .resistor("R1", "in", "a", 1.0)
+///     .inductor("L1", "a", "gnd", 1e-3)
+///     .build()
+///     .unwrap();
+/// let mut sim = Simulator::new(&c, Options::default()).unwrap();
+/// sim.advance_to(1e-3).unwrap();
+/// let i = sim.output_value("L1.current").unwrap().unwrap();
+/// assert!((i - (1.0 - (-1.0f64).exp())).abs() < 1e-12);
+/// ```
+pub struct Simulator {
+    cc: Compiled,
+    opts: Options,
+    mode_index: HashMap<ModeKey, u32>,
+    modes: Vec<Arc<Mode>>,
+    /// Cached e^{Mh} per mode, keyed by the bits of h.
+    discs: Vec<Vec<(u64, DMatrix<f64>)>>,
+    t: f64,
+    tkey: Option<TimeKey>,
+    z: DVector<f64>,
+    /// The candidate next state (end of the interval being advanced).
+    z_next: DVector<f64>,
+    mode: u32,
+    key: ModeKey,
+    signals: Vec<SignalBuffer>,
+    /// Present state of each gate signal.
+    signal_on: Vec<bool>,
+    /// Indices of piecewise-linear sources (the only ones with corners).
+    pwl_sources: Vec<usize>,
+    wave: Waveform,
+    log: EventLog,
+    sink: Option<SegmentSink>,
+    recent: VecDeque<(f64, Who)>,
+    /// Every event counted, kept or not (for the event limit).
+    n_events: usize,
+    stats: Stats,
+    /// Largest inductor current and capacitor/source voltage seen so far.
+    seen: (f64, f64),
+    /// Candidate diode patterns ordered by distance from a first guess,
+    /// built once per first guess.
+    orders: HashMap<u64, Arc<Vec<u64>>>,
+    scratch: propagate::Scratch,
+    terms: Vec<DVector<f64>>,
+    before: Vec<f64>,
+}
+
+pub(crate) fn dot(a: impl IntoIterator<Item = f64>, b: &[f64]) -> f64 {
+    a.into_iter().zip(b).map(|(x, y)| x * y).sum()
+}
+
+impl Simulator {
+    /// Compiles the circuit and resolves its conduction pattern at t = 0.
+    ///
+    /// # Errors
+    ///
+    /// An invalid circuit, or an initial state no mode can hold (e.g. an
+    /// inductor with initial current and no path).
+    pub fn new(circuit: &Circuit, opts: Options) -> Result<Simulator, SolverError> {
+        let cc = Compiled::compile(circuit)?;
+        if cc.switches.len() > 64 || cc.diodes.len() > 16 {
+            return Err(SolverError::Unsupported {
+                time: 0.0,
+                pattern: String::new(),
+                reason: format!(
+                    "{} switches and {} diodes: at most 64 switches and 16 diodes are supported",
+                    cc.switches.len(),
+                    cc.diodes.len()
+                ),
+            });
+        }
+        let nz = cc.n_z();
+        let mut z = DVector::zeros(nz);
+        for (i, v) in cc.x0.iter().enumerate() {
+            z[i] = *v;
+        }
+        let signals = cc
+            .signals
+            .iter()
+            .map(|(_, s)| SignalBuffer {
+                edges: VecDeque::new(),
+                filled_to: 0.0,
+                chunk: s.period.map(|p| 64.0 * p).unwrap_or(f64::INFINITY),
+            })
+            .collect();
+        let signal_on = cc.signals.iter().map(|(_, s)| s.is_on(0.0)).collect();
+        let pwl_sources = (0..cc.sources.len())
+            .filter(|&i| cc.sources[i].input.is_some())
+            .collect();
+        let wave = Waveform {
+            segments: vec![],
+            states: vec![],
+            n_z: nz,
+            modes: vec![],
+            output_names: cc.outputs.iter().map(|(n, _)| n.clone()).collect(),
+            n_x: cc.n_x,
+        };
+        let log = EventLog {
+            state_names: cc.state_names.clone(),
+            events: vec![],
+        };
+        let mut sim = Simulator {
+            cc,
+            opts,
+            mode_index: HashMap::new(),
+            modes: vec![],
+            discs: vec![],
+            t: 0.0,
+            tkey: None,
+            z_next: z.clone(),
+            z,
+            mode: 0,
+            key: ModeKey {
+                switches: 0,
+                diodes: 0,
+            },
+            signals,
+            signal_on,
+            pwl_sources,
+            wave,
+            log,
+            sink: None,
+            recent: VecDeque::new(),
+            n_events: 0,
+            stats: Stats::default(),
+            seen: (0.0, 0.0),
+            orders: HashMap::new(),
+            scratch: propagate::Scratch::default(),
+            terms: vec![],
+            before: vec![],
+        };
+        sim.set_inputs(0.0);
+        sim.key.switches = sim.switch_bits();
+        // Edges at t = 0 are already reflected in the initial signal states.
+        for i in 0..sim.signals.len() {
+            sim.refill(i, 0.0);
+            while sim.signals[i].edges.front().is_some_and(|e| e.time <= 0.0) {
+                sim.signals[i].edges.pop_front();
+            }
+        }
+        sim.resolve(0, None, true)?;
+        Ok(sim)
+    }
+
+    /// Sends every finished segment to `sink` (in addition to what
+    /// [`Options::record`] keeps), e.g. to measure a million-cycle run in
+    /// bounded memory.
+    pub fn set_sink(&mut self, sink: SegmentSink) {
+        self.sink = Some(sink);
+    }
+
+    /// Present time (s).
+    pub fn time(&self) -> f64 {
+        self.t
+    }
+
+    /// Present state: inductor currents, capacitor voltages, oscillator states.
+    pub fn state(&self) -> &[f64] {
+        &self.z.as_slice()[..self.cc.n_x]
+    }
+
+    /// Names of the state entries.
+    pub fn state_names(&self) -> &[String] {
+        &self.cc.state_names
+    }
+
+    /// Present conduction pattern as text (`S1 on, D1 blocking`).
+    pub fn pattern(&self) -> String {
+        pattern_text(&self.cc, self.key)
+    }
+
+    /// Present value of an output; `Ok(None)` when it is undetermined (a
+    /// floating node).
+    ///
+    /// # Errors
+    ///
+    /// [`SolverError::UnknownOutput`] for a name that is not an output.
+    pub fn output_value(&self, name: &str) -> Result<Option<f64>, SolverError> {
+        let i = self.cc.output_index(name)?;
+        let m = &self.modes[self.mode as usize];
+        if m.undetermined[i] {
+            return Ok(None);
+        }
+        Ok(Some(dot(m.c.row(i).iter().copied(), self.z.as_slice())))
+    }
+
+    /// Stored energy in inductors and capacitors now (J).
+    pub fn stored_energy(&self) -> f64 {
+        self.cc.stored_energy(self.z.as_slice())
+    }
+
+    /// The switching period used by [`Simulator::advance_periods`]: the
+    /// period of the first periodic gate signal.
+    pub fn period(&self) -> Option<f64> {
+        self.cc.signals.iter().find_map(|(_, s)| s.period)
+    }
+
+    /// The recorded waveform so far.
+    pub fn waveform(&self) -> &Waveform {
+        &self.wave
+    }
+
+    /// The recorded events so far.
+    pub fn events(&self) -> &EventLog {
+        &self.log
+    }
+
+    /// Counters so far.
+    pub fn stats(&self) -> Stats {
+        let mut s = self.stats;
+        s.modes = self.modes.len();
+        s
+    }
+
+    /// Ends the run and hands over what was recorded.
+    pub fn finish(self) -> RunResult {
+        let stats = self.stats();
+        RunResult {
+            waveform: self.wave,
+            events: self.log,
+            stats,
+        }
+    }
+
+    /// Advances by `n` whole periods of the first periodic gate signal.
+    ///
+    /// # Errors
+    ///
+    /// As [`Simulator::advance_to`]; [`SolverError::BadTime`] if the circuit
+    /// has no periodic gate.
+    pub fn advance_periods(&mut self, n: u64) -> Result<(), SolverError> {
+        let p = self.period().ok_or(SolverError::BadTime {
+            time: self.t,
+            reason: "the circuit has no periodic gate signal to count periods by".into(),
+        })?;
+        // k·T computed from the cycle number, never accumulated.
+        let k = (self.t / p).round();
+        let target = if (k * p - self.t).abs() <= 1e-9 * p {
+            (k + n as f64) * p
+        } else {
+            self.t + n as f64 * p
+        };
+        self.advance_to(target)
+    }
+
+    /// Advances the circuit exactly to time `t_end`.
+    ///
+    /// # Errors
+    ///
+    /// A diagnostic ([`SolverError::InductorInterrupted`],
+    /// [`SolverError::ShortCircuit`], [`SolverError::Chatter`], …) that
+    /// names the elements and the time; the simulator then stays at the
+    /// instant of the problem.
+    pub fn advance_to(&mut self, t_end: f64) -> Result<(), SolverError> {
+        if !t_end.is_finite() || t_end < self.t {
+            return Err(SolverError::BadTime {
+                time: t_end,
+                reason: format!(
+                    "must be finite and not before the present time {:e} s",
+                    self.t
+                ),
+            });
+        }
+        while self.t < t_end {
+            let (t_next, key_next) = self.next_scheduled(t_end);
+            // The interval length comes from the schedule's (cycle, phase)
+            // pairs when both ends are periodic edges, so the same interval
+            // of every period has the same bits and hits the cache.
+            let h = match (self.tkey, key_next) {
+                (Some(a), Some(b)) if a.period.to_bits() == b.period.to_bits() => {
+                    (b.cycle - a.cycle) as f64 * a.period + (b.phase - a.phase)
+                }
+                _ => t_next - self.t,
+            };
+            let h = if h > 0.0 { h } else { t_next - self.t };
+            self.step(h, key_next.is_some() && self.tkey.is_some());
+            if let Some((tau, fired)) = self.locate(h) {
+                if tau < h {
+                    let m = self.modes[self.mode as usize].clone();
+                    propagate::advance_into(
+                        &m.m,
+                        m.rate,
+                        self.z.as_slice(),
+                        tau,
+                        self.z_next.as_mut_slice(),
+                        &mut self.scratch,
+                    );
+                    let t_e = self.t + tau;
+                    self.record(t_e);
+                    self.t = t_e;
+                    self.tkey = None;
+                    std::mem::swap(&mut self.z, &mut self.z_next);
+                    self.check_finite()?;
+                    self.stats.state_events += 1;
+                    self.resolve(fired, None, false)?;
+                    continue;
+                }
+            }
+            self.record(t_next);
+            self.t = t_next;
+            self.tkey = key_next;
+            std::mem::swap(&mut self.z, &mut self.z_next);
+            self.check_finite()?;
+            if t_next < t_end || self.has_scheduled_at(t_next) {
+                self.apply_scheduled(t_next)?;
+            }
+        }
+        Ok(())
+    }
+
+    fn check_finite(&self) -> Result<(), SolverError> {
+        if let Some(i) = self.z.iter().position(|v| !v.is_finite()) {
+            let what = if i < self.cc.n_x {
+                self.cc.state_names[i].clone()
+            } else {
+                "a source value".into()
+            };
+            return Err(SolverError::NonFinite { time: self.t, what });
+        }
+        Ok(())
+    }
+
+    fn mode_id(&mut self, key: ModeKey) -> Result<u32, SolverError> {
+        if let Some(&i) = self.mode_index.get(&key) {
+            return Ok(i);
+        }
+        let m = Arc::new(Mode::build(&self.cc, key)?);
+        let i = self.modes.len() as u32;
+        self.modes.push(m.clone());
+        self.wave.modes.push(m);
+        self.discs.push(vec![]);
+        self.mode_index.insert(key, i);
+        Ok(i)
+    }
+
+    /// Exact advance over `h` in the present mode, into `z_next`.
+    fn step(&mut self, h: f64, cacheable: bool) {
+        let mi = self.mode as usize;
+        let bits = h.to_bits();
+        if let Some((_, phi)) = self.discs[mi].iter().find(|(b, _)| *b == bits) {
+            self.stats.cache_hits += 1;
+            propagate::matvec(phi, self.z.as_slice(), self.z_next.as_mut_slice());
+            return;
+        }
+        let m = self.modes[mi].clone();
+        if cacheable && self.discs[mi].len() < 16 {
+            self.stats.exponentials += 1;
+            let phi = propagate::expm(&m.m, h);
+            propagate::matvec(&phi, self.z.as_slice(), self.z_next.as_mut_slice());
+            self.discs[mi].push((bits, phi));
+            return;
+        }
+        propagate::advance_into(
+            &m.m,
+            m.rate,
+            self.z.as_slice(),
+            h,
+            self.z_next.as_mut_slice(),
+            &mut self.scratch,
+        );
+    }
+}
+
+/// Runs a transient from the circuit's initial state to `stop_time`.
+///
+/// # Errors
+///
+/// As [`Simulator::new`] and [`Simulator::advance_to`].
+pub fn simulate(
+    circuit: &Circuit,
+    stop_time: f64,
+    opts: Options,
+) -> Result<RunResult, SolverError> {
+    let mut sim = Simulator::new(circuit, opts)?;
+    sim.advance_to(stop_time)?;
+    Ok(sim.finish())
+}

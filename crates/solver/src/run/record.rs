@@ -1,0 +1,119 @@
+//! Stage 4: recording — segments into the waveform (or a sink) and events
+//! into the log, each only when the recording window keeps it.
+
+use super::{SegmentView, Simulator};
+use crate::error::SolverError;
+use crate::events::{Event, EventKind};
+use crate::options::Record;
+use crate::waveform::Segment;
+
+/// The element an event concerns, named only when text is needed.
+#[derive(Clone, Debug, PartialEq)]
+pub(super) enum Who {
+    Switch(usize),
+    Diode(usize),
+    Source(usize),
+    /// Several elements (a jump), already named.
+    Named(String),
+}
+
+impl Simulator {
+    pub(super) fn name_of(&self, who: &Who) -> String {
+        match who {
+            Who::Switch(i) => self.cc.switches[*i].name.clone(),
+            Who::Diode(i) => self.cc.diodes[*i].name.clone(),
+            Who::Source(i) => self.cc.sources[*i].name.clone(),
+            Who::Named(s) => s.clone(),
+        }
+    }
+
+    fn keeps(&self, t0: f64, t1: f64) -> bool {
+        match self.opts.record {
+            Record::All => true,
+            Record::Window { from, to } => t1 >= from && t0 <= to,
+            Record::Nothing => false,
+        }
+    }
+
+    /// Records the segment from now to `t1` (start state `z`).
+    pub(super) fn record(&mut self, t1: f64) {
+        let t0 = self.t;
+        if t1 <= t0 {
+            return;
+        }
+        if let Some(sink) = self.sink.as_mut() {
+            let view = SegmentView {
+                t0,
+                t1,
+                mode: &self.modes[self.mode as usize],
+                z0: &self.z,
+            };
+            sink(&view);
+        }
+        if self.keeps(t0, t1) {
+            let at = self.wave.states.len();
+            self.wave.states.extend_from_slice(self.z.as_slice());
+            self.wave.segments.push(Segment {
+                t0,
+                t1,
+                mode: self.mode,
+                at,
+            });
+        }
+    }
+
+    /// Counts an event (event limit, chatter) and logs it if kept. The state
+    /// before is `self.before`; after is the present state when
+    /// `changed_state`, else the same as before.
+    pub(super) fn push_event(
+        &mut self,
+        time: f64,
+        kind: EventKind,
+        who: Who,
+        energy: Option<f64>,
+        changed_state: bool,
+    ) -> Result<(), SolverError> {
+        self.n_events += 1;
+        if self.n_events > self.opts.max_events {
+            return Err(SolverError::EventLimit {
+                time,
+                limit: self.opts.max_events,
+            });
+        }
+        let window = self.opts.chatter_window;
+        while self.recent.front().is_some_and(|(t, _)| *t < time - window) {
+            self.recent.pop_front();
+        }
+        self.recent.push_back((time, who.clone()));
+        if self.recent.len() > self.opts.chatter_events {
+            let mut elements: Vec<String> =
+                self.recent.iter().map(|(_, w)| self.name_of(w)).collect();
+            elements.sort();
+            elements.dedup();
+            return Err(SolverError::Chatter {
+                time,
+                count: self.recent.len(),
+                window,
+                elements,
+            });
+        }
+        if self.keeps(time, time) {
+            let before = self.before.clone();
+            let after = if changed_state {
+                self.z.as_slice()[..self.cc.n_x].to_vec()
+            } else {
+                before.clone()
+            };
+            let element = self.name_of(&who);
+            self.log.events.push(Event {
+                time,
+                kind,
+                element,
+                energy,
+                before,
+                after,
+            });
+        }
+        Ok(())
+    }
+}

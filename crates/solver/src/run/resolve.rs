@@ -1,0 +1,355 @@
+//! Stage 3: resolve the conduction pattern that is consistent with the
+//! state, apply any jump, and log what changed.
+//!
+//! Candidates are tried in order of Hamming distance from a first guess
+//! (the previous pattern with the diodes whose guard fired toggled), so the
+//! usual case costs one candidate. Each candidate is judged at the present
+//! state: its constraints (inductor cutsets, capacitor loops) and its
+//! guards with a derivative look-ahead. Trying a fixed finite list cannot
+//! cycle, unlike flip-and-retry loops; it is exhaustive, hence limited to
+//! 16 diodes. Diagnostics are kept as numbers and only turned into text if
+//! no candidate holds.
+
+use std::sync::Arc;
+
+use nalgebra::DVector;
+
+use super::locate::{guard_floor, ZERO_REL};
+use super::record::Who;
+use super::{dot, Simulator};
+use crate::compile::BranchKind;
+use crate::error::SolverError;
+use crate::events::EventKind;
+use crate::mode::{pattern_text, ConstraintKind, Mode, ModeKey, ModeProblem};
+use crate::options::OnInterruption;
+
+/// Why the best rejected candidate was rejected, kept cheap until needed.
+enum Rejection {
+    Problem(u32),
+    CurrentSource(usize, usize),
+}
+
+struct Interruption {
+    windings: Vec<usize>,
+    current: f64,
+    energy: f64,
+}
+
+impl Simulator {
+    fn cause_text(&self, cause: Option<(usize, bool)>) -> Option<String> {
+        cause.map(|(i, on)| {
+            format!(
+                "switch {} {}",
+                self.cc.switches[i].name,
+                if on { "closing" } else { "opening" }
+            )
+        })
+    }
+
+    /// Candidate patterns in order of distance from `first`.
+    fn order(&mut self, first: u64) -> Arc<Vec<u64>> {
+        let nd = self.cc.diodes.len();
+        self.orders
+            .entry(first)
+            .or_insert_with(|| {
+                let mut c: Vec<u64> = (0..1u64 << nd).collect();
+                c.sort_by_key(|&c| ((c ^ first).count_ones(), c));
+                Arc::new(c)
+            })
+            .clone()
+    }
+
+    /// Finds the conduction pattern consistent with the present state, with
+    /// the diodes in `flips` toggled first; applies any jump and logs.
+    pub(super) fn resolve(
+        &mut self,
+        flips: u64,
+        cause: Option<(usize, bool)>,
+        initial: bool,
+    ) -> Result<(), SolverError> {
+        let first = self.key.diodes ^ flips;
+        let scales = self.scales();
+        let (i_scale, v_scale) = scales;
+        let mut interruption: Option<Interruption> = None;
+        let mut other: Option<Rejection> = None;
+        let passes: &[bool] = if self.opts.on_interruption == OnInterruption::ConserveFlux {
+            &[false, true]
+        } else {
+            &[false]
+        };
+        let mut order: Option<Arc<Vec<u64>>> = None;
+        for &allow_cut in passes {
+            let mut idx = 0usize;
+            loop {
+                // The first guess needs no ordered list; build it only if
+                // the first guess fails.
+                let c = if idx == 0 {
+                    first
+                } else {
+                    let o = match &order {
+                        Some(o) => o.clone(),
+                        None => {
+                            let o = self.order(first);
+                            order = Some(o.clone());
+                            o
+                        }
+                    };
+                    // o[0] is `first` itself.
+                    match o.get(idx) {
+                        Some(&c) => c,
+                        None => break,
+                    }
+                };
+                idx += 1;
+                let key = ModeKey {
+                    switches: self.key.switches,
+                    diodes: c,
+                };
+                let mi = self.mode_id(key)?;
+                let mode = self.modes[mi as usize].clone();
+                if let Some(p) = &mode.problem {
+                    if other.is_none() || matches!(p, ModeProblem::Short { .. }) {
+                        other = Some(Rejection::Problem(mi));
+                    }
+                    continue;
+                }
+                // Constraint residuals, measured against the largest inductor
+                // current (cutsets) or capacitor/source voltage (loops) seen
+                // in the run: a located zero crossing leaves ~1e-17 of that
+                // behind, which the projection removes silently; anything
+                // above 1e-11 of it is a real jump.
+                let mut cut_violated = vec![];
+                let mut loop_violated = false;
+                for (r, kind) in mode.constraints.iter().enumerate() {
+                    let v = dot(mode.h.row(r).iter().copied(), self.z.as_slice());
+                    match kind {
+                        ConstraintKind::Cutset { windings, .. } if v.abs() > 1e-11 * i_scale => {
+                            cut_violated.extend(windings.iter().copied())
+                        }
+                        ConstraintKind::Loop { .. } if v.abs() > 1e-11 * v_scale => {
+                            loop_violated = true
+                        }
+                        _ => {}
+                    }
+                }
+                let z1 = if mode.constraints.is_empty() {
+                    self.z.clone()
+                } else {
+                    &mode.p * &self.z
+                };
+                if !cut_violated.is_empty() && !allow_cut {
+                    if interruption.is_none() {
+                        let current = cut_violated
+                            .iter()
+                            .filter_map(|&b| match self.cc.branches[b].kind {
+                                BranchKind::Winding { state } => Some(self.z[state].abs()),
+                                _ => None,
+                            })
+                            .fold(0.0, f64::max);
+                        let energy = self.cc.stored_energy(self.z.as_slice())
+                            - self.cc.stored_energy(z1.as_slice());
+                        interruption = Some(Interruption {
+                            windings: cut_violated,
+                            current,
+                            energy,
+                        });
+                    }
+                    continue;
+                }
+                if let Some(fi) = mode.free_checks.iter().position(|(row, _, _)| {
+                    let v = dot(row.iter().copied(), z1.as_slice());
+                    let s: f64 = row.iter().zip(z1.iter()).map(|(a, b)| (a * b).abs()).sum();
+                    v.abs() > 1e-9 * s + 1e-300
+                }) {
+                    if other.is_none() {
+                        other = Some(Rejection::CurrentSource(mi as usize, fi));
+                    }
+                    continue;
+                }
+                if !guards_hold(&mode, &z1, scales) {
+                    continue;
+                }
+                self.commit(
+                    key,
+                    mi,
+                    z1,
+                    &mode,
+                    !cut_violated.is_empty(),
+                    loop_violated,
+                    initial,
+                )?;
+                return Ok(());
+            }
+        }
+        Err(self.rejection_error(interruption, other, cause))
+    }
+
+    #[allow(clippy::too_many_arguments)] // one call site; a struct would only rename the list
+    fn commit(
+        &mut self,
+        key: ModeKey,
+        mi: u32,
+        z1: DVector<f64>,
+        mode: &Mode,
+        cut_jump: bool,
+        loop_jump: bool,
+        initial: bool,
+    ) -> Result<(), SolverError> {
+        let n_x = self.cc.n_x;
+        self.before.clear();
+        self.before.extend_from_slice(&self.z.as_slice()[..n_x]);
+        let jump_energy = (cut_jump || loop_jump).then(|| {
+            self.cc.stored_energy(self.z.as_slice()) - self.cc.stored_energy(z1.as_slice())
+        });
+        let old = self.key.diodes;
+        self.key = key;
+        self.mode = mi;
+        self.z = z1;
+        if let Some(energy) = jump_energy {
+            let mut names: Vec<String> = vec![];
+            for kind in &mode.constraints {
+                let list = match kind {
+                    ConstraintKind::Cutset { windings, .. } => windings,
+                    ConstraintKind::Loop { caps } => caps,
+                };
+                names.extend(list.iter().map(|&b| self.cc.branches[b].name.clone()));
+            }
+            let kind = if cut_jump {
+                EventKind::FluxJump
+            } else {
+                EventKind::ChargeJump
+            };
+            self.push_event(
+                self.t,
+                kind,
+                Who::Named(names.join(",")),
+                Some(energy),
+                true,
+            )?;
+        }
+        if !initial {
+            let changed = old ^ key.diodes;
+            for k in 0..self.cc.diodes.len() {
+                if changed >> k & 1 == 1 {
+                    let kind = if key.diodes >> k & 1 == 1 {
+                        EventKind::DiodeOn
+                    } else {
+                        EventKind::DiodeOff
+                    };
+                    self.push_event(self.t, kind, Who::Diode(k), None, true)?;
+                }
+            }
+        }
+        Ok(())
+    }
+
+    fn rejection_error(
+        &self,
+        interruption: Option<Interruption>,
+        other: Option<Rejection>,
+        cause: Option<(usize, bool)>,
+    ) -> SolverError {
+        let cause = self.cause_text(cause);
+        if let Some(i) = interruption {
+            return SolverError::InductorInterrupted {
+                time: self.t,
+                cause,
+                inductors: i
+                    .windings
+                    .iter()
+                    .map(|&b| self.cc.branches[b].name.clone())
+                    .collect(),
+                current: i.current,
+                energy: i.energy,
+            };
+        }
+        match other {
+            Some(Rejection::Problem(mi)) => {
+                let mode = &self.modes[mi as usize];
+                match mode.problem.as_ref().expect("rejected for its problem") {
+                    ModeProblem::Short { switches, shorted } => SolverError::ShortCircuit {
+                        time: self.t,
+                        cause,
+                        switches: switches.clone(),
+                        shorted: shorted.clone(),
+                    },
+                    ModeProblem::Unsupported(reason) => SolverError::Unsupported {
+                        time: self.t,
+                        pattern: pattern_text(&self.cc, mode.key),
+                        reason: reason.clone(),
+                    },
+                }
+            }
+            Some(Rejection::CurrentSource(mi, fi)) => {
+                let (_, node, srcs) = &self.modes[mi].free_checks[fi];
+                SolverError::CurrentSourceOpen {
+                    time: self.t,
+                    sources: srcs.clone(),
+                    node: self.cc.nodes[*node].clone(),
+                }
+            }
+            None => SolverError::NoConsistentPattern {
+                time: self.t,
+                diodes: self.cc.diodes.iter().map(|d| d.name.clone()).collect(),
+                reason: "every pattern violates a diode condition".into(),
+            },
+        }
+    }
+
+    /// Largest inductor current and largest capacitor or source voltage seen
+    /// so far in the run (never the present value alone: at a located zero
+    /// crossing the only inductor current is itself ~1e-17 A).
+    pub(super) fn scales(&mut self) -> (f64, f64) {
+        let mut i_s: f64 = self.seen.0;
+        for g in &self.cc.groups {
+            for &s in &g.states {
+                i_s = i_s.max(self.z[s].abs());
+            }
+        }
+        let mut v_s: f64 = self.seen.1;
+        for &(s, _) in &self.cc.caps {
+            v_s = v_s.max(self.z[s].abs());
+        }
+        for src in &self.cc.sources {
+            let v: f64 = src.terms.iter().map(|&(k, f)| f * self.z[k]).sum();
+            v_s = v_s.max(v.abs());
+        }
+        self.seen = (i_s, v_s);
+        self.seen
+    }
+}
+
+/// True if every guard is ≥ 0 at z and, where it is zero, its first
+/// non-zero derivative (up to the third) is positive: the mode can be
+/// entered and held for some positive time. Derivatives are computed only
+/// for guards that sit at zero.
+fn guards_hold(mode: &Mode, z: &DVector<f64>, scales: (f64, f64)) -> bool {
+    let mut undecided: Vec<usize> = vec![];
+    let mut d = z.clone();
+    for k in 0..4 {
+        if k > 0 {
+            if undecided.is_empty() {
+                return true;
+            }
+            d = &mode.m * &d;
+        }
+        let idx: Vec<usize> = if k == 0 {
+            (0..mode.guards.len()).collect()
+        } else {
+            std::mem::take(&mut undecided)
+        };
+        for gi in idx {
+            let g = &mode.guards[gi];
+            let v = dot(g.row.iter().copied(), d.as_slice());
+            let s: f64 = g.row.iter().zip(d.iter()).map(|(a, b)| (a * b).abs()).sum();
+            let tol = ZERO_REL * s + guard_floor(&g.kind, scales) * mode.rate.powi(k);
+            if v < -tol {
+                return false;
+            }
+            if v <= tol {
+                undecided.push(gi);
+            }
+        }
+    }
+    true
+}

@@ -1,0 +1,162 @@
+//! Stage 1: the schedule — gate edges and source corners, computed as
+//! `k·T + phase` so that every period repeats the same interval lengths.
+
+use std::collections::VecDeque;
+
+use fluxstep_netlist::Edge;
+
+use super::record::Who;
+use super::Simulator;
+use crate::error::SolverError;
+use crate::events::EventKind;
+
+/// An instant of a periodic schedule: `cycle·period + phase`.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub(super) struct TimeKey {
+    pub cycle: i64,
+    pub phase: f64,
+    pub period: f64,
+}
+
+/// Upcoming edges of one gate signal, refilled a chunk of periods at a time.
+pub(super) struct SignalBuffer {
+    pub edges: VecDeque<Edge>,
+    pub filled_to: f64,
+    pub chunk: f64,
+}
+
+impl Simulator {
+    pub(super) fn refill(&mut self, i: usize, upto: f64) {
+        let shape = &self.cc.signals[i].1;
+        let b = &mut self.signals[i];
+        while b.filled_to <= upto && b.filled_to.is_finite() {
+            let to = b.filled_to + b.chunk;
+            b.edges.extend(shape.edges(b.filled_to, to));
+            b.filled_to = to;
+        }
+    }
+
+    /// Switch bits from the present signal states.
+    pub(super) fn switch_bits(&self) -> u64 {
+        let mut sw = 0u64;
+        for (i, s) in self.cc.switches.iter().enumerate() {
+            if self.signal_on[s.signal] {
+                sw |= 1 << i;
+            }
+        }
+        sw
+    }
+
+    /// Next scheduled instant after now (capped at `t_end`) and its key.
+    pub(super) fn next_scheduled(&mut self, t_end: f64) -> (f64, Option<TimeKey>) {
+        let mut best = (t_end, None);
+        for i in 0..self.signals.len() {
+            if self.signals[i].edges.is_empty() {
+                let from = self.signals[i].filled_to;
+                self.refill(i, from);
+            }
+            if let Some(e) = self.signals[i].edges.front() {
+                if e.time < best.0 || (e.time == best.0 && best.1.is_none()) {
+                    let key = e.period.map(|period| TimeKey {
+                        cycle: e.cycle,
+                        phase: e.phase,
+                        period,
+                    });
+                    best = (e.time, key);
+                }
+            }
+        }
+        for &si in &self.pwl_sources {
+            let w = self.cc.sources[si]
+                .waveform
+                .as_ref()
+                .expect("piecewise-linear source");
+            if let Some(p) = w.piece_at(self.t) {
+                if p.end.is_finite() && p.end > self.t && p.end < best.0 {
+                    best = (p.end, None);
+                }
+            }
+        }
+        best
+    }
+
+    pub(super) fn has_scheduled_at(&self, t: f64) -> bool {
+        self.signals
+            .iter()
+            .any(|b| b.edges.front().is_some_and(|e| e.time <= t))
+            || self.pwl_sources.iter().any(|&si| {
+                self.cc.sources[si]
+                    .waveform
+                    .as_ref()
+                    .and_then(|w| w.piece_at(t))
+                    .is_some_and(|p| p.start == t)
+            })
+    }
+
+    /// Sets the input part of z (values and slopes) for time t; returns a
+    /// bit set of the sources that reached a corner at t.
+    pub(super) fn set_inputs(&mut self, t: f64) -> u64 {
+        let nx = self.cc.n_x;
+        let nu = self.cc.n_u;
+        self.z[nx] = 1.0;
+        let mut corners = 0u64;
+        for &si in &self.pwl_sources {
+            let s = &self.cc.sources[si];
+            let (Some(w), Some(k)) = (&s.waveform, s.input) else {
+                continue;
+            };
+            let p = w.piece_at(t).expect("piecewise-linear source has a piece");
+            if p.start == t && t > 0.0 && si < 64 {
+                corners |= 1 << si;
+            }
+            self.z[nx + k] = p.at(t);
+            self.z[nx + nu + k] = p.slope;
+        }
+        corners
+    }
+
+    /// Applies everything scheduled at `t`: source corners, gate edges, then
+    /// the conduction pattern that follows.
+    pub(super) fn apply_scheduled(&mut self, t: f64) -> Result<(), SolverError> {
+        self.stats.scheduled_events += 1;
+        let n_x = self.cc.n_x;
+        self.before.clear();
+        self.before.extend_from_slice(&self.z.as_slice()[..n_x]);
+        let corners = self.set_inputs(t);
+        for si in 0..self.cc.sources.len().min(64) {
+            if corners >> si & 1 == 1 {
+                self.push_event(t, EventKind::SourceBreakpoint, Who::Source(si), None, false)?;
+            }
+        }
+        let mut changed = false;
+        for i in 0..self.signals.len() {
+            while let Some(e) = self.signals[i].edges.front() {
+                if e.time > t {
+                    break;
+                }
+                self.signal_on[i] = e.on;
+                self.signals[i].edges.pop_front();
+                changed = true;
+            }
+        }
+        let mut cause = None;
+        if changed {
+            let sw = self.switch_bits();
+            let diff = sw ^ self.key.switches;
+            for i in 0..self.cc.switches.len() {
+                if diff >> i & 1 == 1 {
+                    let on = sw >> i & 1 == 1;
+                    cause = Some((i, on));
+                    let kind = if on {
+                        EventKind::SwitchOn
+                    } else {
+                        EventKind::SwitchOff
+                    };
+                    self.push_event(t, kind, Who::Switch(i), None, false)?;
+                }
+            }
+            self.key.switches = sw;
+        }
+        self.resolve(0, cause, false)
+    }
+}
