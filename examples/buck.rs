@@ -62,11 +62,7 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
             "discontinuous"
         }
     );
-    println!(
-        "  events {} (modes {})",
-        run.events.events.len(),
-        run.stats.modes
-    );
+    println!("  events {} (modes {})", run.events.len(), run.stats.modes);
     let opts = ReviewOptions {
         outputs: vec!["L1.current".into(), "sw".into(), "out".into()],
         window: Some((t0, t1)),

@@ -40,7 +40,6 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
     let id = w.output("Dfw.current").ok_or("no diode output")?;
     let t_open = run
         .events
-        .events
         .iter()
         .find(|e| e.element == switch.name)
         .map(|e| e.time)

@@ -25,7 +25,6 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
         .ok_or("no switch driven by a .high signal")?;
     let last_off = run
         .events
-        .events
         .iter()
         .rev()
         .find(|e| e.kind == EventKind::SwitchOff && e.time < end * 0.999 && e.element == high)
@@ -36,7 +35,6 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
         last_off * 1e6
     );
     for e in run
-        .events
         .events
         .iter()
         .filter(|e| e.time >= last_off && e.time < last_off + 200e-9)

@@ -56,11 +56,7 @@ pub fn run_and_report(
             hi - lo
         );
     }
-    println!(
-        "  events: {}, modes: {}",
-        run.events.events.len(),
-        run.stats.modes
-    );
+    println!("  events: {}, modes: {}", run.events.len(), run.stats.modes);
     let opts = ReviewOptions {
         outputs: cfg.outputs.clone(),
         window: Some((t0, t1)),

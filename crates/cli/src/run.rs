@@ -176,7 +176,7 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
         "file": args.file.display().to_string(),
         "stop_time": stop,
         "window": [a, b],
-        "events": result.events.events.len(),
+        "events": result.events.len(),
         "modes": result.stats.modes,
         "measurements": measurements,
     });
@@ -208,7 +208,7 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
         stop,
         a,
         b,
-        result.events.events.len()
+        result.events.len()
     );
     println!(
         "  {:<26} {:>12} {:>12} {:>12} {:>12} {:>12}",

@@ -128,7 +128,6 @@ pub fn review_figure(
         if opts.event_markers && fig.panels.is_empty() {
             if let Some(log) = events {
                 let times: Vec<(f64, String)> = log
-                    .events
                     .iter()
                     .filter(|e| e.time >= t0 && e.time <= t1)
                     .filter_map(|e| {

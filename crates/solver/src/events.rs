@@ -1,10 +1,18 @@
 //! The event log: every switching event in time order, with its cause, the
 //! element, and the state before and after.
+//!
+//! Events are stored compactly — element names interned, state snapshots
+//! shared by the events of one instant — so that logging every edge of a
+//! long run costs no allocation per event. [`EventLog::iter`] hands out
+//! borrowed [`EventRef`] views; [`EventRef::to_event`] makes an owned
+//! [`Event`]. The JSON form lists full events and is stable (same run, same
+//! bytes).
 
-use serde::{Deserialize, Serialize};
+use serde::ser::SerializeStruct;
+use serde::{Deserialize, Deserializer, Serialize, Serializer};
 
 /// Why an event happened.
-#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
 pub enum EventKind {
     /// A switch's gate turned it on.
@@ -25,7 +33,7 @@ pub enum EventKind {
     FluxJump,
 }
 
-/// One event.
+/// One event, owned.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct Event {
     /// Time (s).
@@ -43,31 +51,175 @@ pub struct Event {
     pub after: Vec<f64>,
 }
 
+/// One event, borrowed from an [`EventLog`].
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct EventRef<'a> {
+    /// Time (s).
+    pub time: f64,
+    /// Cause.
+    pub kind: EventKind,
+    /// The element (switch, diode, source; for jumps the elements involved, comma-separated).
+    pub element: &'a str,
+    /// Energy dissipated by a jump (J); `None` for other events.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub energy: Option<f64>,
+    /// State just before (see [`EventLog::state_names`]).
+    pub before: &'a [f64],
+    /// State just after.
+    pub after: &'a [f64],
+}
+
+impl EventRef<'_> {
+    /// An owned copy.
+    pub fn to_event(&self) -> Event {
+        Event {
+            time: self.time,
+            kind: self.kind,
+            element: self.element.to_string(),
+            energy: self.energy,
+            before: self.before.to_vec(),
+            after: self.after.to_vec(),
+        }
+    }
+}
+
+#[derive(Clone, Copy, Debug, PartialEq)]
+struct Compact {
+    time: f64,
+    kind: EventKind,
+    who: u32,
+    energy: Option<f64>,
+    before: usize,
+    after: usize,
+}
+
 /// Every recorded event in time order, with the names of the state entries.
-#[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize)]
+#[derive(Clone, Debug, Default, PartialEq)]
 pub struct EventLog {
-    /// Names of the state entries, in the order of `before` and `after`.
-    pub state_names: Vec<String>,
-    /// The events.
-    pub events: Vec<Event>,
+    state_names: Vec<String>,
+    names: Vec<String>,
+    records: Vec<Compact>,
+    states: Vec<f64>,
 }
 
 impl EventLog {
+    /// An empty log for states named `state_names`.
+    pub fn new(state_names: Vec<String>) -> Self {
+        EventLog {
+            state_names,
+            ..EventLog::default()
+        }
+    }
+
+    /// Names of the state entries, in the order of `before` and `after`.
+    pub fn state_names(&self) -> &[String] {
+        &self.state_names
+    }
+
+    /// Number of events.
+    pub fn len(&self) -> usize {
+        self.records.len()
+    }
+
+    /// True if no event was recorded.
+    pub fn is_empty(&self) -> bool {
+        self.records.is_empty()
+    }
+
+    /// The id of an element name, adding it if new.
+    pub(crate) fn intern(&mut self, name: &str) -> u32 {
+        match self.names.iter().position(|n| n == name) {
+            Some(i) => i as u32,
+            None => {
+                self.names.push(name.to_string());
+                (self.names.len() - 1) as u32
+            }
+        }
+    }
+
+    /// Adds a name without looking for it (the simulator's fixed ids).
+    pub(crate) fn names_push(&mut self, name: &str) {
+        self.names.push(name.to_string());
+    }
+
+    /// Offset of a snapshot equal to `x`: the last one if it matches (the
+    /// events of one instant share their snapshots), else a new one.
+    fn snapshot(&mut self, x: &[f64]) -> usize {
+        let n = x.len();
+        let len = self.states.len();
+        if len >= n
+            && self.states[len - n..]
+                .iter()
+                .zip(x)
+                .all(|(a, b)| a.to_bits() == b.to_bits())
+        {
+            return len - n;
+        }
+        self.states.extend_from_slice(x);
+        len
+    }
+
+    /// Appends an event.
+    pub(crate) fn push(
+        &mut self,
+        time: f64,
+        kind: EventKind,
+        who: u32,
+        energy: Option<f64>,
+        before: &[f64],
+        after: &[f64],
+    ) {
+        let b = self.snapshot(before);
+        let a = self.snapshot(after);
+        self.records.push(Compact {
+            time,
+            kind,
+            who,
+            energy,
+            before: b,
+            after: a,
+        });
+    }
+
+    fn view(&self, c: &Compact) -> EventRef<'_> {
+        let n = self.state_names.len();
+        EventRef {
+            time: c.time,
+            kind: c.kind,
+            element: &self.names[c.who as usize],
+            energy: c.energy,
+            before: &self.states[c.before..c.before + n],
+            after: &self.states[c.after..c.after + n],
+        }
+    }
+
+    /// Every event in order.
+    pub fn iter(&self) -> impl DoubleEndedIterator<Item = EventRef<'_>> + '_ {
+        self.records.iter().map(|c| self.view(c))
+    }
+
+    /// Event `i`.
+    pub fn get(&self, i: usize) -> Option<EventRef<'_>> {
+        self.records.get(i).map(|c| self.view(c))
+    }
+
     /// Events of one element, in order.
-    pub fn of<'a>(&'a self, element: &'a str) -> impl Iterator<Item = &'a Event> + 'a {
-        self.events.iter().filter(move |e| e.element == element)
+    pub fn of<'a>(
+        &'a self,
+        element: &'a str,
+    ) -> impl DoubleEndedIterator<Item = EventRef<'a>> + 'a {
+        self.iter().filter(move |e| e.element == element)
     }
 
     /// Events of one kind, in order.
-    pub fn of_kind(&self, kind: EventKind) -> impl Iterator<Item = &Event> + '_ {
-        self.events.iter().filter(move |e| e.kind == kind)
+    pub fn of_kind(&self, kind: EventKind) -> impl DoubleEndedIterator<Item = EventRef<'_>> + '_ {
+        self.iter().filter(move |e| e.kind == kind)
     }
 
     /// Switch edges (on and off) of one switch with `t0 <= time <= t1`.
     pub fn edges_within(&self, switch: &str, t0: f64, t1: f64) -> Vec<(f64, bool)> {
-        self.events
-            .iter()
-            .filter(|e| e.element == switch && e.time >= t0 && e.time <= t1)
+        self.of(switch)
+            .filter(|e| e.time >= t0 && e.time <= t1)
             .filter_map(|e| match e.kind {
                 EventKind::SwitchOn => Some((e.time, true)),
                 EventKind::SwitchOff => Some((e.time, false)),
@@ -83,7 +235,7 @@ impl EventLog {
     pub fn shortest_dead_time(&self, a: &str, b: &str) -> Option<f64> {
         let mut last_off: Option<(f64, bool)> = None; // (time, was it `a`)
         let mut best: Option<f64> = None;
-        for e in &self.events {
+        for e in self.iter() {
             let is_a = e.element == a;
             if !is_a && e.element != b {
                 continue;
@@ -111,7 +263,7 @@ impl EventLog {
     pub fn conduction_intervals(&self, diode: &str) -> Vec<(f64, f64)> {
         let mut out = vec![];
         let mut start: Option<f64> = None;
-        for e in self.events.iter().filter(|e| e.element == diode) {
+        for e in self.of(diode) {
             match e.kind {
                 EventKind::DiodeOn => start = Some(e.time),
                 EventKind::DiodeOff => {
@@ -129,8 +281,7 @@ impl EventLog {
 
     /// Recorded jumps (charge or flux) as (time, energy dissipated in J).
     pub fn jumps(&self) -> Vec<(f64, f64)> {
-        self.events
-            .iter()
+        self.iter()
             .filter(|e| matches!(e.kind, EventKind::ChargeJump | EventKind::FluxJump))
             .map(|e| (e.time, e.energy.unwrap_or(0.0)))
             .collect()
@@ -139,5 +290,52 @@ impl EventLog {
     /// A stable JSON text of the log (same run, same bytes), for golden files.
     pub fn to_json(&self) -> String {
         serde_json::to_string_pretty(self).expect("an event log always serializes") + "\n"
+    }
+}
+
+impl Serialize for EventLog {
+    fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        let events: Vec<EventRef<'_>> = self.iter().collect();
+        let mut st = s.serialize_struct("EventLog", 2)?;
+        st.serialize_field("state_names", &self.state_names)?;
+        st.serialize_field("events", &events)?;
+        st.end()
+    }
+}
+
+impl<'de> Deserialize<'de> for EventLog {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        #[derive(Deserialize)]
+        struct Owned {
+            state_names: Vec<String>,
+            events: Vec<Event>,
+        }
+        let o = Owned::deserialize(d)?;
+        let mut log = EventLog::new(o.state_names);
+        for e in o.events {
+            let who = log.intern(&e.element);
+            log.push(e.time, e.kind, who, e.energy, &e.before, &e.after);
+        }
+        Ok(log)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn json_round_trip_and_shared_snapshots() {
+        let mut log = EventLog::new(vec!["L1.current".into()]);
+        let s = log.intern("S1");
+        let d = log.intern("D1");
+        log.push(1e-6, EventKind::SwitchOff, s, None, &[2.0], &[2.0]);
+        log.push(1e-6, EventKind::DiodeOn, d, None, &[2.0], &[2.0]);
+        // One snapshot serves both events of the instant.
+        assert_eq!(log.states.len(), 1);
+        let text = log.to_json();
+        let back: EventLog = serde_json::from_str(&text).unwrap();
+        assert_eq!(back.to_json(), text);
+        assert_eq!(back.get(1).unwrap().element, "D1");
     }
 }

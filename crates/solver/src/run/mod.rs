@@ -192,10 +192,18 @@ impl Simulator {
             output_names: cc.outputs.iter().map(|(n, _)| n.clone()).collect(),
             n_x: cc.n_x,
         };
-        let log = EventLog {
-            state_names: cc.state_names.clone(),
-            events: vec![],
-        };
+        // Element ids in the log: switches, then diodes, then sources
+        // (see `record::Simulator::who_id`).
+        let mut log = EventLog::new(cc.state_names.clone());
+        for name in cc
+            .switches
+            .iter()
+            .map(|s| &s.name)
+            .chain(cc.diodes.iter().map(|d| &d.name))
+            .chain(cc.sources.iter().map(|s| &s.name))
+        {
+            log.names_push(name);
+        }
         let mut sim = Simulator {
             cc,
             opts,

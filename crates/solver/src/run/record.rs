@@ -3,7 +3,7 @@
 
 use super::{SegmentView, Simulator};
 use crate::error::SolverError;
-use crate::events::{Event, EventKind};
+use crate::events::EventKind;
 use crate::options::Record;
 use crate::waveform::Segment;
 
@@ -24,6 +24,18 @@ impl Simulator {
             Who::Diode(i) => self.cc.diodes[*i].name.clone(),
             Who::Source(i) => self.cc.sources[*i].name.clone(),
             Who::Named(s) => s.clone(),
+        }
+    }
+
+    /// The element's id in the log (names were interned in this order when
+    /// the simulator was built).
+    fn who_id(&mut self, who: &Who) -> u32 {
+        let (ns, nd) = (self.cc.switches.len(), self.cc.diodes.len());
+        match who {
+            Who::Switch(i) => *i as u32,
+            Who::Diode(i) => (ns + i) as u32,
+            Who::Source(i) => (ns + nd + i) as u32,
+            Who::Named(s) => self.log.intern(s),
         }
     }
 
@@ -98,21 +110,13 @@ impl Simulator {
             });
         }
         if self.keeps(time, time) {
-            let before = self.before.clone();
+            let id = self.who_id(&who);
             let after = if changed_state {
-                self.z.as_slice()[..self.cc.n_x].to_vec()
+                &self.z.as_slice()[..self.cc.n_x]
             } else {
-                before.clone()
+                &self.before[..]
             };
-            let element = self.name_of(&who);
-            self.log.events.push(Event {
-                time,
-                kind,
-                element,
-                energy,
-                before,
-                after,
-            });
+            self.log.push(time, kind, id, energy, &self.before, after);
         }
         Ok(())
     }

@@ -111,10 +111,9 @@ fn interruption_is_diagnosed_and_freewheeling_diode_takes_over() {
     assert!(rel(w.value(id, 1e-4).unwrap(), 1.0) < 1e-12);
     let ev: Vec<_> = run
         .events
-        .events
         .iter()
         .filter(|e| e.time == 1e-4)
-        .map(|e| (e.kind.clone(), e.element.clone()))
+        .map(|e| (e.kind, e.element.to_string()))
         .collect();
     assert_eq!(
         ev,
@@ -290,15 +289,11 @@ fn sync_buck_dead_time_sequence() {
     let hi_on = (k + 1.0) * t_per + 60e-9;
     let seq: Vec<(f64, EventKind, String)> = run
         .events
-        .events
         .iter()
         .filter(|e| e.time >= hi_off - 1e-12 && e.time <= hi_on + 1e-12)
-        .map(|e| (e.time, e.kind.clone(), e.element.clone()))
+        .map(|e| (e.time, e.kind, e.element.to_string()))
         .collect();
-    let kinds: Vec<(EventKind, &str)> = seq
-        .iter()
-        .map(|(_, k, n)| (k.clone(), n.as_str()))
-        .collect();
+    let kinds: Vec<(EventKind, &str)> = seq.iter().map(|(_, k, n)| (*k, n.as_str())).collect();
     assert_eq!(
         kinds,
         vec![

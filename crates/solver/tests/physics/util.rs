@@ -65,7 +65,6 @@ pub fn energy_balance(c: &Circuit, run: &RunResult) -> (f64, f64) {
     }
     let jumps: f64 = run
         .events
-        .events
         .iter()
         .filter(|e| matches!(e.kind, EventKind::ChargeJump | EventKind::FluxJump))
         .filter_map(|e| e.energy)
