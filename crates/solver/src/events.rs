@@ -71,7 +71,7 @@ pub struct EventRef<'a> {
 
 impl EventRef<'_> {
     /// An owned copy.
-    pub fn to_event(&self) -> Event {
+    pub fn to_event(self) -> Event {
         Event {
             time: self.time,
             kind: self.kind,
