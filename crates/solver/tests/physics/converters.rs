@@ -139,14 +139,14 @@ fn buck_discontinuous_conduction() {
         .events
         .of("D1")
         .filter(|e| e.kind == EventKind::DiodeOff)
-        .last()
+        .next_back()
         .unwrap()
         .time;
     let s_off = run
         .events
         .of("S1")
         .filter(|e| e.kind == EventKind::SwitchOff && e.time < off)
-        .last()
+        .next_back()
         .unwrap()
         .time;
     let x = w.state(s_off).unwrap();
