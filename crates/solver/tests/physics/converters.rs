@@ -138,15 +138,13 @@ fn buck_discontinuous_conduction() {
     let off = run
         .events
         .of("D1")
-        .filter(|e| e.kind == EventKind::DiodeOff)
-        .next_back()
+        .rfind(|e| e.kind == EventKind::DiodeOff)
         .unwrap()
         .time;
     let s_off = run
         .events
         .of("S1")
-        .filter(|e| e.kind == EventKind::SwitchOff && e.time < off)
-        .next_back()
+        .rfind(|e| e.kind == EventKind::SwitchOff && e.time < off)
         .unwrap()
         .time;
     let x = w.state(s_off).unwrap();
