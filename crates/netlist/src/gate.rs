@@ -372,10 +372,19 @@ impl SignalShape {
                 .then(b.period.is_some().cmp(&a.period.is_some()))
         });
         cand.dedup_by(|b, a| a.time == b.time);
+        // The state is constant between consecutive candidates (every
+        // possible change is a candidate), so the state before each one is
+        // the state after the previous: one evaluation per candidate.
+        let mut state = cand
+            .first()
+            .map(|e| self.was_on_before(e.time))
+            .unwrap_or(false);
         cand.into_iter()
             .filter_map(|mut e| {
                 let after = self.is_on(e.time);
-                (after != self.was_on_before(e.time)).then(|| {
+                let changed = after != state;
+                state = after;
+                changed.then(|| {
                     e.on = after;
                     e
                 })

@@ -110,6 +110,9 @@ pub struct Simulator {
     cc: Compiled,
     opts: Options,
     mode_index: HashMap<ModeKey, u32>,
+    /// Keys of `modes` in order; a linear scan beats hashing for the few
+    /// modes a converter visits.
+    mode_keys: Vec<ModeKey>,
     modes: Vec<Arc<Mode>>,
     /// Cached e^{Mh} per mode, keyed by the bits of h.
     discs: Vec<Vec<(u64, DMatrix<f64>)>>,
@@ -136,7 +139,9 @@ pub struct Simulator {
     seen: (f64, f64),
     /// Candidate diode patterns ordered by distance from a first guess,
     /// built once per first guess.
-    orders: HashMap<u64, Arc<Vec<u64>>>,
+    orders: Vec<Option<Arc<Vec<u64>>>>,
+    /// Scratch: the candidate state of a pattern under test.
+    z_try: DVector<f64>,
     scratch: propagate::Scratch,
     terms: Vec<DVector<f64>>,
     before: Vec<f64>,
@@ -208,6 +213,7 @@ impl Simulator {
             cc,
             opts,
             mode_index: HashMap::new(),
+            mode_keys: vec![],
             modes: vec![],
             discs: vec![],
             t: 0.0,
@@ -229,7 +235,8 @@ impl Simulator {
             n_events: 0,
             stats: Stats::default(),
             seen: (0.0, 0.0),
-            orders: HashMap::new(),
+            orders: vec![],
+            z_try: DVector::zeros(nz),
             scratch: propagate::Scratch::default(),
             terms: vec![],
             before: vec![],
@@ -426,7 +433,11 @@ impl Simulator {
     }
 
     fn mode_id(&mut self, key: ModeKey) -> Result<u32, SolverError> {
-        if let Some(&i) = self.mode_index.get(&key) {
+        if self.mode_keys.len() <= 32 {
+            if let Some(i) = self.mode_keys.iter().position(|k| *k == key) {
+                return Ok(i as u32);
+            }
+        } else if let Some(&i) = self.mode_index.get(&key) {
             return Ok(i);
         }
         let m = Arc::new(Mode::build(&self.cc, key)?);
@@ -435,6 +446,7 @@ impl Simulator {
         self.wave.modes.push(m);
         self.discs.push(vec![]);
         self.mode_index.insert(key, i);
+        self.mode_keys.push(key);
         Ok(i)
     }
 

@@ -22,6 +22,7 @@ use crate::error::SolverError;
 use crate::events::EventKind;
 use crate::mode::{pattern_text, ConstraintKind, Mode, ModeKey, ModeProblem};
 use crate::options::OnInterruption;
+use crate::propagate;
 
 /// Why the best rejected candidate was rejected, kept cheap until needed.
 enum Rejection {
@@ -49,9 +50,11 @@ impl Simulator {
     /// Candidate patterns in order of distance from `first`.
     fn order(&mut self, first: u64) -> Arc<Vec<u64>> {
         let nd = self.cc.diodes.len();
-        self.orders
-            .entry(first)
-            .or_insert_with(|| {
+        if self.orders.is_empty() {
+            self.orders = vec![None; 1 << nd];
+        }
+        self.orders[first as usize]
+            .get_or_insert_with(|| {
                 let mut c: Vec<u64> = (0..1u64 << nd).collect();
                 c.sort_by_key(|&c| ((c ^ first).count_ones(), c));
                 Arc::new(c)
@@ -132,11 +135,14 @@ impl Simulator {
                         _ => {}
                     }
                 }
-                let z1 = if mode.constraints.is_empty() {
-                    self.z.clone()
+                // The candidate state (after any jump) goes into a scratch
+                // buffer; `commit` swaps it in.
+                if mode.constraints.is_empty() {
+                    self.z_try.copy_from(&self.z);
                 } else {
-                    &mode.p * &self.z
-                };
+                    propagate::matvec(&mode.p, self.z.as_slice(), self.z_try.as_mut_slice());
+                }
+                let z1 = &self.z_try;
                 if !cut_violated.is_empty() && !allow_cut {
                     if interruption.is_none() {
                         let current = cut_violated
@@ -166,13 +172,12 @@ impl Simulator {
                     }
                     continue;
                 }
-                if !guards_hold(&mode, &z1, scales) {
+                if !guards_hold(&mode, z1, scales) {
                     continue;
                 }
                 self.commit(
                     key,
                     mi,
-                    z1,
                     &mode,
                     !cut_violated.is_empty(),
                     loop_violated,
@@ -189,7 +194,6 @@ impl Simulator {
         &mut self,
         key: ModeKey,
         mi: u32,
-        z1: DVector<f64>,
         mode: &Mode,
         cut_jump: bool,
         loop_jump: bool,
@@ -199,12 +203,12 @@ impl Simulator {
         self.before.clear();
         self.before.extend_from_slice(&self.z.as_slice()[..n_x]);
         let jump_energy = (cut_jump || loop_jump).then(|| {
-            self.cc.stored_energy(self.z.as_slice()) - self.cc.stored_energy(z1.as_slice())
+            self.cc.stored_energy(self.z.as_slice()) - self.cc.stored_energy(self.z_try.as_slice())
         });
         let old = self.key.diodes;
         self.key = key;
         self.mode = mi;
-        self.z = z1;
+        std::mem::swap(&mut self.z, &mut self.z_try);
         if let Some(energy) = jump_energy {
             let mut names: Vec<String> = vec![];
             for kind in &mode.constraints {
@@ -324,30 +328,40 @@ impl Simulator {
 /// entered and held for some positive time. Derivatives are computed only
 /// for guards that sit at zero.
 fn guards_hold(mode: &Mode, z: &DVector<f64>, scales: (f64, f64)) -> bool {
-    let mut undecided: Vec<usize> = vec![];
-    let mut d = z.clone();
+    // Bit i set: guard i sits at zero so far. Guards beyond the 128th are
+    // judged on their value alone (16 diodes give at most 136 guards, and
+    // only a bridge of many floating groups comes near).
+    let mut undecided: u128 = 0;
+    let mut d: Option<DVector<f64>> = None;
     for k in 0..4 {
-        if k > 0 {
-            if undecided.is_empty() {
-                return true;
-            }
-            d = &mode.m * &d;
+        if k > 0 && undecided == 0 {
+            return true;
         }
-        let idx: Vec<usize> = if k == 0 {
-            (0..mode.guards.len()).collect()
-        } else {
-            std::mem::take(&mut undecided)
-        };
-        for gi in idx {
-            let g = &mode.guards[gi];
-            let v = dot(g.row.iter().copied(), d.as_slice());
-            let s: f64 = g.row.iter().zip(d.iter()).map(|(a, b)| (a * b).abs()).sum();
+        if k > 0 {
+            d = Some(&mode.m * d.as_ref().unwrap_or(z));
+        }
+        let dk = d.as_ref().unwrap_or(z);
+        for (gi, g) in mode.guards.iter().enumerate() {
+            if k > 0 && (gi >= 128 || undecided >> gi & 1 == 0) {
+                continue;
+            }
+            let v = dot(g.row.iter().copied(), dk.as_slice());
+            let s: f64 = g
+                .row
+                .iter()
+                .zip(dk.iter())
+                .map(|(a, b)| (a * b).abs())
+                .sum();
             let tol = ZERO_REL * s + guard_floor(&g.kind, scales) * mode.rate.powi(k);
             if v < -tol {
                 return false;
             }
-            if v <= tol {
-                undecided.push(gi);
+            if gi < 128 {
+                if v <= tol {
+                    undecided |= 1 << gi;
+                } else {
+                    undecided &= !(1 << gi);
+                }
             }
         }
     }
