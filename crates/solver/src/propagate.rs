@@ -60,23 +60,46 @@ pub(crate) fn advance(m: &DMatrix<f64>, rate: f64, z: &DVector<f64>, tau: f64) -
 /// Taylor terms wₖ = (Mδ)ᵏ z / k! over one sub-interval of length δ (with
 /// ρ·δ ≤ [`TAYLOR_REACH`]), so that e^{Mδσ} z = Σ wₖ σᵏ for σ ∈ [0, 1].
 /// A guard r·z(σ) is then the polynomial Σ (r·wₖ) σᵏ.
-pub(crate) fn taylor_terms(
-    m: &DMatrix<f64>,
-    z: &DVector<f64>,
-    delta: f64,
-    out: &mut Vec<DVector<f64>>,
-) {
-    out.clear();
-    out.push(z.clone());
+pub(crate) fn taylor_terms(m: &DMatrix<f64>, z: &DVector<f64>, delta: f64, out: &mut TaylorTerms) {
+    let n = z.len();
+    let v = &mut out.v;
+    if v.is_empty() || v[0].len() != n {
+        v.clear();
+    }
+    let ensure = |v: &mut Vec<DVector<f64>>, k: usize| {
+        if v.len() <= k {
+            v.push(DVector::zeros(n));
+        }
+    };
+    ensure(v, 0);
+    v[0].copy_from(z);
     let scale = z.amax();
+    let mut len = 1;
     for k in 1..60 {
-        let mut next = m * &out[k - 1];
-        next *= delta / k as f64;
-        let tn = next.amax();
-        out.push(next);
+        ensure(v, k);
+        let (done, rest) = v.split_at_mut(k);
+        matvec(m, done[k - 1].as_slice(), rest[0].as_mut_slice());
+        rest[0] *= delta / k as f64;
+        let tn = rest[0].amax();
+        len = k + 1;
         if tn == 0.0 || (k >= 3 && tn <= scale * 1e-18) {
             break;
         }
+    }
+    out.len = len;
+}
+
+/// Taylor terms kept between calls so that their vectors are reused.
+#[derive(Clone, Debug, Default)]
+pub(crate) struct TaylorTerms {
+    v: Vec<DVector<f64>>,
+    len: usize,
+}
+
+impl TaylorTerms {
+    /// The terms of the last expansion.
+    pub(crate) fn terms(&self) -> &[DVector<f64>] {
+        &self.v[..self.len]
     }
 }
 

@@ -74,13 +74,14 @@ impl Waveform {
         let n = propagate::substeps(m.rate, b - a);
         let delta = (b - a) / n as f64;
         let mut z = propagate::advance(&m.m, m.rate, &self.z0(s), a - s.t0);
-        let mut terms = Vec::new();
+        let mut terms = propagate::TaylorTerms::default();
         let mut coef = Vec::new();
         for k in 0..n {
             propagate::taylor_terms(&m.m, &z, delta, &mut terms);
             coef.clear();
             coef.extend(
                 terms
+                    .terms()
                     .iter()
                     .map(|w| row.iter().zip(w.iter()).map(|(p, q)| p * q).sum::<f64>()),
             );

@@ -12,8 +12,6 @@
 //! purpose, so a current that just reaches zero and turns back keeps its
 //! conduction state.
 
-use nalgebra::DVector;
-
 use super::{dot, Simulator};
 use crate::mode::{Guard, GuardKind};
 use crate::propagate;
@@ -84,10 +82,15 @@ impl Simulator {
                 coef.clear();
                 coef.extend(
                     terms
+                        .terms()
                         .iter()
                         .map(|w| dot(g.row.iter().copied(), w.as_slice())),
                 );
-                let scale: f64 = terms.iter().map(|w| abs_dot(&g.row, w.as_slice())).sum();
+                let scale: f64 = terms
+                    .terms()
+                    .iter()
+                    .map(|w| abs_dot(&g.row, w.as_slice()))
+                    .sum();
                 let tol = ZERO_REL * scale + guard_floor(&g.kind, scales);
                 let (gb, db) = propagate::poly(&coef, 1.0);
                 let da = coef.get(1).copied().unwrap_or(0.0);
@@ -114,11 +117,10 @@ impl Simulator {
             if found.is_some() {
                 break;
             }
-            let mut next: DVector<f64> = terms[0].clone();
-            for w in terms.iter().skip(1) {
-                next += w;
+            za.fill(0.0);
+            for w in terms.terms() {
+                za += w;
             }
-            za = next;
         }
         self.terms = terms;
         // A crossing at the very end belongs to the scheduled instant.
@@ -126,16 +128,27 @@ impl Simulator {
     }
 }
 
-/// Root of the polynomial in [lo, hi] where p(lo) ≥ 0 > p(hi): safeguarded
-/// Newton, returning the first point at or after the crossing.
+/// Root of the polynomial in [lo, hi] where p(lo) ≥ 0 > p(hi): Newton
+/// from the secant guess, kept inside a shrinking bracket (bisection when a
+/// step would leave it), stopped when the step falls to a few ulps; then the
+/// point is nudged, an ulp at a time, to the first one where p < 0, so the
+/// returned instant is at or just after the crossing.
 fn root_in(c: &[f64], lo: f64, hi: f64) -> f64 {
     let (mut a, mut b) = (lo, hi);
     let (fa, _) = propagate::poly(c, a);
     if fa < 0.0 {
         return a;
     }
-    let mut s = 0.5 * (a + b);
-    for _ in 0..200 {
+    let (fb, _) = propagate::poly(c, b);
+    let mut s = if fa - fb > 0.0 {
+        a + (b - a) * fa / (fa - fb)
+    } else {
+        0.5 * (a + b)
+    };
+    if !(s > a && s < b) {
+        s = 0.5 * (a + b);
+    }
+    for _ in 0..100 {
         let (v, dv) = propagate::poly(c, s);
         if v < 0.0 {
             b = s;
@@ -143,20 +156,26 @@ fn root_in(c: &[f64], lo: f64, hi: f64) -> f64 {
             a = s;
         }
         if b - a <= f64::EPSILON * b.max(1e-300) {
-            break;
+            return b;
         }
         let newton = s - v / dv;
-        s = if dv != 0.0 && newton > a && newton < b {
-            newton
-        } else {
-            0.5 * (a + b)
-        };
-        if s == a || s == b {
-            s = 0.5 * (a + b);
-            if s == a || s == b {
+        if dv != 0.0 && newton > a && newton < b {
+            let step = (newton - s).abs();
+            s = newton;
+            if step <= 4.0 * f64::EPSILON * s.abs().max(1e-300) {
                 break;
             }
+        } else {
+            s = 0.5 * (a + b);
         }
+    }
+    // Converged: the first point at or after the crossing, within a few ulps.
+    let mut x = s.max(a);
+    for _ in 0..16 {
+        if x >= b || propagate::poly(c, x).0 < 0.0 {
+            return x.min(b);
+        }
+        x = f64::from_bits(x.to_bits() + 1);
     }
     b
 }

@@ -143,7 +143,7 @@ pub struct Simulator {
     /// Scratch: the candidate state of a pattern under test.
     z_try: DVector<f64>,
     scratch: propagate::Scratch,
-    terms: Vec<DVector<f64>>,
+    terms: propagate::TaylorTerms,
     before: Vec<f64>,
 }
 
@@ -238,7 +238,7 @@ impl Simulator {
             orders: vec![],
             z_try: DVector::zeros(nz),
             scratch: propagate::Scratch::default(),
-            terms: vec![],
+            terms: propagate::TaylorTerms::default(),
             before: vec![],
         };
         sim.set_inputs(0.0);
