@@ -148,8 +148,13 @@ fn root_in(c: &[f64], lo: f64, hi: f64) -> f64 {
     if !(s > a && s < b) {
         s = 0.5 * (a + b);
     }
+    // Below this the sign of p is rounding noise: σ is as good as it gets.
+    let noise = 8.0 * f64::EPSILON * c.iter().map(|x| x.abs()).sum::<f64>();
     for _ in 0..100 {
         let (v, dv) = propagate::poly(c, s);
+        if v.abs() <= noise {
+            break;
+        }
         if v < 0.0 {
             b = s;
         } else {
@@ -162,20 +167,43 @@ fn root_in(c: &[f64], lo: f64, hi: f64) -> f64 {
         if dv != 0.0 && newton > a && newton < b {
             let step = (newton - s).abs();
             s = newton;
-            if step <= 4.0 * f64::EPSILON * s.abs().max(1e-300) {
+            // σ lies in [0, 1]: an absolute step of a few ulps of 1 is the end.
+            if step <= 4.0 * f64::EPSILON {
                 break;
             }
         } else {
             s = 0.5 * (a + b);
         }
     }
-    // Converged: the first point at or after the crossing, within a few ulps.
-    let mut x = s.max(a);
+    // Converged: the first point at or after the crossing. Step up from the
+    // estimate an ulp at a time; if rounding noise hides the sign change
+    // there, bisect what is left of the bracket.
+    if propagate::poly(c, s).0 < 0.0 {
+        b = b.min(s);
+    } else {
+        a = a.max(s);
+    }
+    let mut x = a;
     for _ in 0..16 {
-        if x >= b || propagate::poly(c, x).0 < 0.0 {
-            return x.min(b);
+        if x >= b {
+            return b;
+        }
+        if propagate::poly(c, x).0 < 0.0 {
+            return x;
         }
         x = f64::from_bits(x.to_bits() + 1);
+    }
+    a = x;
+    while b - a > f64::EPSILON * b.max(1e-300) {
+        let m = 0.5 * (a + b);
+        if m <= a || m >= b {
+            break;
+        }
+        if propagate::poly(c, m).0 < 0.0 {
+            b = m;
+        } else {
+            a = m;
+        }
     }
     b
 }
