@@ -46,7 +46,8 @@ fn bits(g: &Guard) -> u64 {
 
 impl Simulator {
     /// Earliest guard crossing within (0, h]: (τ, bit set of diodes whose
-    /// guard fired). `z_next` must already hold the state at `h`.
+    /// guard fired). `z_next` must hold the state at `h` on entry; when
+    /// τ < h it holds the state at τ on return.
     pub(super) fn locate(&mut self, h: f64) -> Option<(f64, u64)> {
         let mode = self.modes[self.mode as usize].clone();
         if mode.guards.is_empty() {
@@ -74,7 +75,7 @@ impl Simulator {
         let mut za = self.z.clone();
         let mut terms = std::mem::take(&mut self.terms);
         let mut coef = Vec::new();
-        let mut found: Option<(f64, u64)> = None;
+        let mut found: Option<(f64, u64, f64)> = None;
         let scales = self.scales();
         for i in 0..n {
             propagate::taylor_terms(&mode.m, &za, d, &mut terms);
@@ -108,13 +109,26 @@ impl Simulator {
                     let tau = (i as f64 + s) * d;
                     let bit = bits(g);
                     found = match found {
-                        Some((t, b)) if (t - tau).abs() <= 1e-13 * h => Some((t.min(tau), b | bit)),
-                        Some((t, b)) if t < tau => Some((t, b)),
-                        _ => Some((tau, bit)),
+                        Some((t, b, sg)) if (t - tau).abs() <= 1e-13 * h => {
+                            Some((t.min(tau), b | bit, if tau < t { s } else { sg }))
+                        }
+                        Some((t, b, sg)) if t < tau => Some((t, b, sg)),
+                        _ => Some((tau, bit, s)),
                     };
                 }
             }
-            if found.is_some() {
+            if let Some((t, _, sigma)) = found {
+                if t >= h * (1.0 - 1e-14) {
+                    break;
+                }
+                // The state at the crossing, from the same expansion
+                // (Horner in σ), ready for the caller in `z_next`.
+                let zn = &mut self.z_next;
+                zn.fill(0.0);
+                for w in terms.terms().iter().rev() {
+                    *zn *= sigma;
+                    *zn += w;
+                }
                 break;
             }
             za.fill(0.0);
@@ -123,8 +137,9 @@ impl Simulator {
             }
         }
         self.terms = terms;
-        // A crossing at the very end belongs to the scheduled instant.
-        found.map(|(t, b)| (if t >= h * (1.0 - 1e-14) { h } else { t }, b))
+        // A crossing at the very end belongs to the scheduled instant (and
+        // `z_next` must then be the state at h again).
+        found.map(|(t, b, _)| (if t >= h * (1.0 - 1e-14) { h } else { t }, b))
     }
 }
 

@@ -388,15 +388,7 @@ impl Simulator {
             self.step(h, key_next.is_some() && self.tkey.is_some());
             if let Some((tau, fired)) = self.locate(h) {
                 if tau < h {
-                    let m = self.modes[self.mode as usize].clone();
-                    propagate::advance_into(
-                        &m.m,
-                        m.rate,
-                        self.z.as_slice(),
-                        tau,
-                        self.z_next.as_mut_slice(),
-                        &mut self.scratch,
-                    );
+                    // `locate` left the state at τ in `z_next`.
                     let t_e = self.t + tau;
                     self.record(t_e);
                     self.t = t_e;
