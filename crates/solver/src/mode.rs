@@ -568,15 +568,37 @@ impl Mode {
         let hz = h.columns(0, nz).into_owned();
         let dz = d.columns(0, nz).into_owned();
         let dl = d.columns(nz, n_lam).into_owned();
+        // Multipliers λ make the constraints' time derivatives vanish:
+        // S·λ = −H·D_z·z with S = H·D_λ. S may be singular when two floating
+        // groups are joined only by a winding (a transformer secondary
+        // feeding a blocked bridge): only their potential difference is
+        // fixed. The pseudo-inverse picks the determined part; the null
+        // directions of S are free gauges like those of groups reached by
+        // nothing, provided they move no state (checked).
+        let mut null_dirs = DMatrix::<f64>::zeros(n_lam, 0);
         let (lam, p) = if n_lam > 0 {
             let s = &hz * &dl;
-            let slu = s.clone().full_piv_lu();
-            let su = slu.u();
-            let smax = (0..n_lam).map(|i| su[(i, i)].abs()).fold(0.0, f64::max);
-            let smin = (0..n_lam)
-                .map(|i| su[(i, i)].abs())
-                .fold(f64::INFINITY, f64::min);
-            if smin.is_nan() || smin <= 1e-12 * smax {
+            let svd = s.clone().svd(true, true);
+            let (u, vt) = (
+                svd.u.as_ref().expect("asked for u"),
+                svd.v_t.as_ref().expect("asked for v"),
+            );
+            let smax = svd.singular_values.iter().fold(0.0f64, |a, &b| a.max(b));
+            let tol = 1e-10 * smax;
+            let mut s_pinv = DMatrix::<f64>::zeros(n_lam, n_lam);
+            let mut nulls = vec![];
+            for (k, &sv) in svd.singular_values.iter().enumerate() {
+                if sv.is_nan() {
+                    nulls.clear();
+                    break;
+                }
+                if sv > tol {
+                    s_pinv += vt.row(k).transpose() * u.column(k).transpose() / sv;
+                } else {
+                    nulls.push(vt.row(k).transpose());
+                }
+            }
+            if smax.is_nan() {
                 let reason = "a set of windings or capacitors whose constraint cannot be resolved"
                     .to_string();
                 return Ok(Mode::invalid(
@@ -585,14 +607,39 @@ impl Mode {
                     problem.unwrap_or(ModeProblem::Unsupported(reason)),
                 ));
             }
-            let lam = -slu.solve(&(&hz * &dz)).expect("checked invertible");
-            let p = DMatrix::identity(nz, nz) - &dl * slu.solve(&hz).expect("checked invertible");
+            if !nulls.is_empty() {
+                null_dirs = DMatrix::from_columns(&nulls);
+                // A free direction must not move any state, or the mode's
+                // dynamics would be undetermined.
+                let moved = &dl * &null_dirs;
+                let scale = dl.amax().max(f64::MIN_POSITIVE);
+                if moved.amax() > 1e-9 * scale {
+                    let reason =
+                        "a set of windings or capacitors whose constraint cannot be resolved"
+                            .to_string();
+                    return Ok(Mode::invalid(
+                        cc,
+                        key,
+                        problem.unwrap_or(ModeProblem::Unsupported(reason)),
+                    ));
+                }
+            }
+            let lam = -&s_pinv * (&hz * &dz);
+            let p = DMatrix::identity(nz, nz) - &dl * &s_pinv * &hz;
             (lam, p)
         } else {
             (DMatrix::zeros(0, nz), DMatrix::identity(nz, nz))
         };
         let yz = y.columns(0, nz).into_owned() + y.columns(nz, n_lam) * &lam;
-        let yf = y.columns(nz + n_lam, n_free).into_owned();
+        let n_null = null_dirs.ncols();
+        let n_free = n_free + n_null;
+        let mut yf = DMatrix::<f64>::zeros(n_unk, n_free);
+        yf.columns_mut(0, n_free - n_null)
+            .copy_from(&y.columns(nz + n_lam, n_free - n_null));
+        if n_null > 0 {
+            yf.columns_mut(n_free - n_null, n_null)
+                .copy_from(&(y.columns(nz, n_lam) * &null_dirs));
+        }
         let m = &dz + &dl * &lam;
 
         // 7. Outputs.

@@ -413,3 +413,77 @@ fn flyback_conversion_ratio_with_clamp() {
     let (dl, s) = energy_balance(&c, &run);
     assert!(rel(s, dl) < 1e-9, "energy {dl} vs {s}");
 }
+
+/// A transformer secondary feeding a diode bridge: while all four diodes
+/// block, the two secondary nodes are tied together only by the winding, so
+/// their difference (the winding voltage, n·v_primary) is known but their
+/// common level is not — each node reads as undetermined while the winding
+/// voltage stays defined; the capacitor still charges to about n times the
+/// primary peak, less what the leakage inductance takes (common practice).
+#[test]
+fn transformer_fed_bridge_with_floating_secondary() {
+    let (vp, f, lp, n) = (20.0, 1e3, 10e-3, 0.5);
+    let mag = Element::CoupledInductors(CoupledInductors {
+        name: "T1".into(),
+        windings: vec![
+            Winding {
+                name: "P".into(),
+                nodes: ["in".into(), "gnd".into()],
+                inductance: lp,
+                initial_current: None,
+            },
+            Winding {
+                name: "S".into(),
+                nodes: ["ac1".into(), "ac2".into()],
+                inductance: lp * n * n,
+                initial_current: None,
+            },
+        ],
+        couplings: vec![Coupling {
+            windings: ["P".into(), "S".into()],
+            k: Some(0.99),
+            mutual: None,
+        }],
+    });
+    let c = Circuit::builder()
+        .voltage_waveform(
+            "Vac",
+            "in",
+            "gnd",
+            fluxstep_netlist::Waveform::sine(0.0, vp, f, 0.0),
+        )
+        .element(mag)
+        .diode("D1", "ac1", "pos")
+        .diode("D2", "ac2", "pos")
+        .diode("D3", "gnd", "ac1")
+        .diode("D4", "gnd", "ac2")
+        .capacitor("C1", "pos", "gnd", 10e-6)
+        .resistor("Rload", "pos", "gnd", 1e3)
+        .build()
+        .unwrap();
+    let run = simulate(&c, 5e-3, Options::default()).unwrap();
+    let w = &run.waveform;
+    let off = run
+        .events
+        .of("D1")
+        .find(|e| e.kind == EventKind::DiodeOff)
+        .expect("D1 stops conducting")
+        .time;
+    let t = off + 10e-6;
+    assert!(w.value(w.output("ac1").unwrap(), t).is_none());
+    assert!(w.value(w.output("ac2").unwrap(), t).is_none());
+    let vs = w
+        .value(w.output("T1.S.voltage").unwrap(), t)
+        .expect("the winding voltage is defined");
+    let vprim = w.value(w.output("in").unwrap(), t).unwrap();
+    // No secondary current: v_S = (M/L_P)·v_P = k·n·v_P.
+    assert!(
+        rel(vs, 0.99 * n * vprim) < 1e-9,
+        "{vs} vs {}",
+        0.99 * n * vprim
+    );
+    let vc = w.average(w.output("C1.voltage").unwrap(), 4e-3, 5e-3);
+    assert!(vc > 0.8 * n * vp && vc < n * vp, "capacitor at {vc}");
+    let (d, s) = energy_balance(&c, &run);
+    assert!(rel(s, d) < 1e-9, "energy {d} vs {s}");
+}
