@@ -31,6 +31,10 @@ pub enum EventKind {
     /// Inductor currents jumped to conserve flux linkage when their path was
     /// cut (only when the run allows it); `energy` holds the energy dumped.
     FluxJump,
+    /// Closed switches began to short a source or capacitor through their
+    /// on-resistance (only when the run records instead of stopping);
+    /// `element` lists the devices.
+    ShootThrough,
 }
 
 /// One event, owned.

@@ -60,6 +60,6 @@ mod waveform_ext;
 pub use error::SolverError;
 pub use events::{Event, EventKind, EventLog};
 pub use mode::ModeKey;
-pub use options::{OnInterruption, Options, Record};
+pub use options::{OnInterruption, OnShootThrough, Options, Record};
 pub use run::{simulate, RunResult, SegmentSink, SegmentView, Simulator, Stats};
 pub use waveform::{OutputId, Segment, Waveform};

@@ -113,6 +113,10 @@ pub(crate) struct Mode {
     pub free_checks: Vec<(Vec<f64>, usize, Vec<String>)>,
     /// Rate bound (1/s) of the fastest dynamics, for sub-step sizes.
     pub rate: f64,
+    /// A loop of closed switches and conducting diodes, some with
+    /// resistance, across a voltage source or a capacitor: (devices,
+    /// shorted element). Zero-resistance shorts are a `problem` instead.
+    pub resistive_short: Option<(Vec<String>, Vec<String>)>,
 }
 
 struct Dsu(Vec<usize>);
@@ -324,6 +328,42 @@ impl Mode {
             }
         }
         let is_loop_cap = |bi: usize| loop_caps.iter().any(|(c, _)| *c == bi);
+
+        // Shoot-through through resistive devices: closed switches and
+        // conducting diodes (any resistance) joining both terminals of a
+        // voltage source, or of a capacitor through two or more devices (one
+        // device across a capacitor is that device's own capacitance or
+        // snubber being discharged, not a shorted leg).
+        let mut resistive_short = None;
+        if problem.is_none() {
+            let mut dsu3 = Dsu::new(nn);
+            let mut devices: Vec<(usize, usize, usize)> = vec![];
+            for (bi, b) in cc.branches.iter().enumerate() {
+                let on = match &b.kind {
+                    BranchKind::Switch { sw } => sw_on(*sw),
+                    BranchKind::Diode { d } => d_on(*d),
+                    _ => false,
+                };
+                if on && dsu3.union(b.a, b.b) {
+                    devices.push((b.a, b.b, bi));
+                }
+            }
+            for b in &cc.branches {
+                let min_devices = match b.kind {
+                    BranchKind::VSource { .. } => 1,
+                    BranchKind::Capacitor { .. } => 2,
+                    _ => continue,
+                };
+                if b.a != b.b && dsu3.find(b.a) == dsu3.find(b.b) {
+                    let path = forest_path(&devices, b.a, b.b, nn);
+                    if path.len() >= min_devices {
+                        let names = path.iter().map(|&p| cc.branches[p].name.clone()).collect();
+                        resistive_short = Some((names, vec![b.name.clone()]));
+                        break;
+                    }
+                }
+            }
+        }
 
         // 3. Unknowns: node voltages 1..nn, then voltage-branch currents, then gauge currents.
         let mut cur_of = vec![usize::MAX; cc.branches.len()];
@@ -815,6 +855,7 @@ impl Mode {
             p,
             free_checks,
             rate,
+            resistive_short,
         })
     }
 
@@ -832,6 +873,7 @@ impl Mode {
             p: DMatrix::identity(nz, nz),
             free_checks: vec![],
             rate: 0.0,
+            resistive_short: None,
         }
     }
 }

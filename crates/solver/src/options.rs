@@ -12,6 +12,19 @@ pub enum OnInterruption {
     ConserveFlux,
 }
 
+/// What to do when closed switches short a voltage source or a capacitor
+/// through their on-resistance (both switches of a half-bridge on at once).
+/// A short with no resistance at all always stops the run.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub enum OnShootThrough {
+    /// Default. Stop the run with [`crate::SolverError::ShortCircuit`].
+    #[default]
+    Stop,
+    /// Record a [`crate::EventKind::ShootThrough`] event each time the
+    /// short begins and go on (the current is limited by the resistances).
+    Record,
+}
+
 /// Which part of the run to keep.
 #[derive(Clone, Copy, Debug, Default, PartialEq)]
 pub enum Record {
@@ -37,6 +50,9 @@ pub struct Options {
     pub record: Record,
     /// Default `Stop`. Stop or conserve flux when an inductor current is interrupted.
     pub on_interruption: OnInterruption,
+    /// Default `Stop`. Stop or record when closed switches short a source
+    /// or capacitor through their on-resistance.
+    pub on_shoot_through: OnShootThrough,
     /// Default 1e9. The run stops with an error after this many events.
     pub max_events: usize,
     /// Default 200. More events than this within `chatter_window` stop the
@@ -52,6 +68,7 @@ impl Default for Options {
         Options {
             record: Record::All,
             on_interruption: OnInterruption::Stop,
+            on_shoot_through: OnShootThrough::Stop,
             max_events: 1_000_000_000,
             chatter_events: 200,
             chatter_window: 1e-12,

@@ -21,12 +21,13 @@ use crate::compile::BranchKind;
 use crate::error::SolverError;
 use crate::events::EventKind;
 use crate::mode::{pattern_text, ConstraintKind, Mode, ModeKey, ModeProblem};
-use crate::options::OnInterruption;
+use crate::options::{OnInterruption, OnShootThrough};
 use crate::propagate;
 
 /// Why the best rejected candidate was rejected, kept cheap until needed.
 enum Rejection {
     Problem(u32),
+    ResistiveShort(u32),
     CurrentSource(usize, usize),
 }
 
@@ -110,9 +111,30 @@ impl Simulator {
                 };
                 let mi = self.mode_id(key)?;
                 let mode = self.modes[mi as usize].clone();
+                // Report the closest rejected pattern, but a short before
+                // any other reason: it is what the switching action did.
+                let other_is_short = match &other {
+                    Some(Rejection::ResistiveShort(_)) => true,
+                    Some(Rejection::Problem(m)) => {
+                        matches!(
+                            self.modes[*m as usize].problem,
+                            Some(ModeProblem::Short { .. })
+                        )
+                    }
+                    _ => false,
+                };
                 if let Some(p) = &mode.problem {
-                    if other.is_none() || matches!(p, ModeProblem::Short { .. }) {
+                    let short = matches!(p, ModeProblem::Short { .. });
+                    if other.is_none() || (short && !other_is_short) {
                         other = Some(Rejection::Problem(mi));
+                    }
+                    continue;
+                }
+                if mode.resistive_short.is_some()
+                    && self.opts.on_shoot_through == OnShootThrough::Stop
+                {
+                    if !other_is_short {
+                        other = Some(Rejection::ResistiveShort(mi));
                     }
                     continue;
                 }
@@ -206,6 +228,7 @@ impl Simulator {
             self.cc.stored_energy(self.z.as_slice()) - self.cc.stored_energy(self.z_try.as_slice())
         });
         let old = self.key.diodes;
+        let was_shorted = self.modes[self.mode as usize].resistive_short.is_some() && !initial;
         self.key = key;
         self.mode = mi;
         std::mem::swap(&mut self.z, &mut self.z_try);
@@ -228,6 +251,15 @@ impl Simulator {
                 kind,
                 Who::Named(names.join(",")),
                 Some(energy),
+                true,
+            )?;
+        }
+        if let (Some((devices, _)), false) = (&mode.resistive_short, was_shorted) {
+            self.push_event(
+                self.t,
+                EventKind::ShootThrough,
+                Who::Named(devices.join(",")),
+                None,
                 true,
             )?;
         }
@@ -282,6 +314,18 @@ impl Simulator {
                         pattern: pattern_text(&self.cc, mode.key),
                         reason: reason.clone(),
                     },
+                }
+            }
+            Some(Rejection::ResistiveShort(mi)) => {
+                let (switches, shorted) = self.modes[mi as usize]
+                    .resistive_short
+                    .clone()
+                    .expect("rejected for its short");
+                SolverError::ShortCircuit {
+                    time: self.t,
+                    cause,
+                    switches,
+                    shorted,
                 }
             }
             Some(Rejection::CurrentSource(mi, fi)) => {

@@ -487,3 +487,66 @@ fn transformer_fed_bridge_with_floating_secondary() {
     let (d, s) = energy_balance(&c, &run);
     assert!(rel(s, d) < 1e-9, "energy {d} vs {s}");
 }
+
+/// Shoot-through through real on-resistances (10 mΩ each): stopped by
+/// default at the overlap; when recorded instead, the run goes on and the
+/// high-side current is Vin/(2r) + i_L/2 while both are on (Kirchhoff's
+/// laws; common practice).
+#[test]
+fn resistive_shoot_through_is_stopped_or_recorded() {
+    let r = 10e-3;
+    let body = DiodeModel {
+        forward_voltage: Some(0.7),
+        on_resistance: None,
+    };
+    let build = || {
+        Circuit::builder()
+            .voltage_source("Vin", "in", "gnd", 12.0)
+            .transistor("Shi", "in", "sw", "hi", r, body.clone())
+            .transistor("Slo", "sw", "gnd", "lo", r, body.clone())
+            .inductor_with_current("L1", "sw", "out", 10e-6, 1.0)
+            .capacitor_with_voltage("C1", "out", "gnd", 47e-6, 5.0)
+            .resistor("Rload", "out", "gnd", 5.0)
+            .gate(gate("hi", &[(0.0, true), (5.01e-6, false)], false))
+            .gate(gate("lo", &[(5.0e-6, true)], false))
+            .build()
+            .unwrap()
+    };
+    match simulate(&build(), 10e-6, Options::default()) {
+        Err(SolverError::ShortCircuit {
+            time,
+            switches,
+            shorted,
+            ..
+        }) => {
+            assert_eq!(time, 5.0e-6);
+            assert!(
+                switches.contains(&"Shi".to_string()) && switches.contains(&"Slo".to_string()),
+                "{switches:?}"
+            );
+            assert_eq!(shorted, vec!["Vin".to_string()]);
+        }
+        other => panic!("expected a shoot-through diagnostic, got {other:?}"),
+    }
+    let opts = Options {
+        on_shoot_through: fluxstep_solver::OnShootThrough::Record,
+        ..Options::default()
+    };
+    let run = simulate(&build(), 10e-6, opts).unwrap();
+    let shots: Vec<f64> = run
+        .events
+        .of_kind(EventKind::ShootThrough)
+        .map(|e| e.time)
+        .collect();
+    assert_eq!(shots, vec![5.0e-6]);
+    let w = &run.waveform;
+    let t = 5.005e-6;
+    let il = w.value(w.output("L1.current").unwrap(), t).unwrap();
+    let ihi = w.value(w.output("Shi.current").unwrap(), t).unwrap();
+    assert!(rel(ihi, 12.0 / (2.0 * r) + il / 2.0) < 1e-12, "{ihi}");
+    // After the overlap the high side is off and no current flows in it.
+    assert_eq!(
+        w.value(w.output("Shi.current").unwrap(), 6e-6).unwrap(),
+        0.0
+    );
+}
