@@ -405,10 +405,26 @@ fn flyback_conversion_ratio_with_clamp() {
     let ideal = vin * n_ratio * d / (1.0 - d);
     assert!(rel(vout, ideal) < 3e-2, "vout {vout} vs {ideal}");
     let vclamp = w.average(w.output("Cclamp.voltage").unwrap(), end - 10.0 / f, end);
+    // RCD clamp balance: each period the leakage energy ½·L_lk·I_pk², scaled
+    // by V_cl/(V_cl − V_refl) for the magnetizing energy that flows into the
+    // clamp while the leakage current falls, is burnt in R_clamp:
+    // V_cl²/R = f·½·L_lk·I_pk²·V_cl/(V_cl − V_refl) (common practice, RCD
+    // clamp design). For coupled windings the exact equivalent has
+    // L_lk = Lp·(1 − k²) and V_refl = (k/n)·Vout, n = √(Ls/Lp). It assumes a
+    // constant clamp voltage (ripple here < 1 %) and a linear leakage
+    // current; we allow 1 % (measured: 0.07 %).
+    let k = 0.995;
+    let l_lk = lp * (1.0 - k * k);
+    let v_refl = k / n_ratio * vout;
+    let t_off = ((end * f).floor() - 1.0 + d) / f;
+    let i_pk = w
+        .value_before(w.output("T1.P.current").unwrap(), t_off)
+        .unwrap();
+    let e = 0.5 * l_lk * i_pk * i_pk;
+    let predicted = 0.5 * (v_refl + (v_refl * v_refl + 4.0 * 10e3 * f * e).sqrt());
     assert!(
-        vclamp > vout / n_ratio,
-        "clamp {vclamp} must exceed the reflected voltage {}",
-        vout / n_ratio
+        rel(vclamp, predicted) < 1e-2,
+        "clamp {vclamp} vs {predicted} (i_pk {i_pk})"
     );
     let (dl, s) = energy_balance(&c, &run);
     assert!(rel(s, dl) < 1e-9, "energy {dl} vs {s}");
