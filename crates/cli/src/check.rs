@@ -129,6 +129,21 @@ fn describe_gate(g: &Gate) -> String {
                 plural(transitions.len(), "transition", "transitions")
             )
         }
+        Gate::PeakCurrent { name, frequency, sense, reference, slope, .. } => format!(
+            "{name} (peak-current control of {sense} at {}, reference {reference}, compensation slope {slope}/s)",
+            si(*frequency, "Hz")
+        ),
+        Gate::ValleyCurrent { name, frequency, sense, reference, .. } => format!(
+            "{name} (valley-current control of {sense} at {}, reference {reference})",
+            si(*frequency, "Hz")
+        ),
+        Gate::Hysteretic { name, sense, low, high } => {
+            format!("{name} (hysteretic control of {sense}, between {low} and {high})")
+        }
+        Gate::VoltageMode { name, frequency, control, ramp_low, ramp_high, .. } => format!(
+            "{name} (voltage-mode pwm at {} from {control}, ramp {ramp_low} to {ramp_high})",
+            si(*frequency, "Hz")
+        ),
     }
 }
 

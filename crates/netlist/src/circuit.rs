@@ -31,9 +31,84 @@ pub struct Circuit {
     /// The gate signals.
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub gates: Vec<Gate>,
+    /// Analog compensators whose states join the circuit state (optional).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub compensators: Vec<Compensator>,
     /// Default settings for a transient run (optional).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub run: Option<RunSettings>,
+}
+
+/// A linear analog compensator: it measures a circuit output, forms the
+/// error `reference − input`, and drives its own output `NAME.output`
+/// (usable as the control of a voltage-mode gate). Its states are solved
+/// exactly together with the circuit's.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Compensator {
+    /// Unique name; its output is `NAME.output`.
+    pub name: String,
+    /// The output measured (a node, `ELEMENT.current`, …).
+    pub input: String,
+    /// Set-point: the block acts on `reference − input`.
+    #[serde(deserialize_with = "value::de", serialize_with = "value::ser")]
+    #[schemars(with = "SiValue")]
+    pub reference: f64,
+    /// The transfer law.
+    pub law: CompensatorLaw,
+}
+
+/// The transfer law of a [`Compensator`], tagged by `kind` in JSON.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(tag = "kind", rename_all = "snake_case", deny_unknown_fields)]
+pub enum CompensatorLaw {
+    /// u = kp·e + ki·∫e dt.
+    Pi {
+        /// Proportional gain.
+        #[serde(deserialize_with = "value::de", serialize_with = "value::ser")]
+        #[schemars(with = "SiValue")]
+        kp: f64,
+        /// Integral gain (1/s).
+        #[serde(deserialize_with = "value::de", serialize_with = "value::ser")]
+        #[schemars(with = "SiValue")]
+        ki: f64,
+    },
+    /// G(s) = gain · (1/s if `integrator`) · Π(1 + s/ωz) / Π(1 + s/ωp),
+    /// ω = 2π·f, the usual form for voltage-mode compensators (one
+    /// integrator and two zeros and poles, or fewer). The numerator may not
+    /// have more zeros than the denominator has poles (integrator included).
+    PolesZeros {
+        /// Gain (for an integrator: the gain in 1/s at frequencies well
+        /// below every zero and pole).
+        #[serde(deserialize_with = "value::de", serialize_with = "value::ser")]
+        #[schemars(with = "SiValue")]
+        gain: f64,
+        /// Whether there is a pole at the origin (default true).
+        #[serde(default = "yes")]
+        integrator: bool,
+        /// Zero frequencies in hertz (positive: left half-plane).
+        #[serde(default)]
+        zeros_hz: Vec<f64>,
+        /// Pole frequencies in hertz (positive: left half-plane).
+        #[serde(default)]
+        poles_hz: Vec<f64>,
+    },
+    /// x' = A x + B e, u = C x + D e (single input, single output).
+    StateSpace {
+        /// n × n matrix, rows first.
+        a: Vec<Vec<f64>>,
+        /// n entries.
+        b: Vec<f64>,
+        /// n entries.
+        c: Vec<f64>,
+        /// Direct feed-through.
+        #[serde(default)]
+        d: f64,
+    },
+}
+
+fn yes() -> bool {
+    true
 }
 
 /// Default settings for a transient run, overridable from the command line.
@@ -614,10 +689,12 @@ impl CircuitBuilder {
     }
 }
 
-/// An output that can be recorded: a node voltage or an element's current
-/// or voltage.
+/// An output that can be recorded: a node voltage, an element's current
+/// or voltage, or a compensator's output.
 #[derive(Clone, Debug, PartialEq, Eq, Hash)]
 pub enum OutputName {
+    /// Output of a compensator (`NAME.output`).
+    Signal(String),
     /// Voltage of a node with respect to ground.
     Node(String),
     /// Current of an element (for windings and body diodes: `ELEMENT.PART`).
@@ -638,12 +715,13 @@ impl OutputName {
             None if !text.is_empty() => Ok(OutputName::Node(if is_ground(text) { GROUND.into() } else { text.into() })),
             Some((e, "current")) if !e.is_empty() => Ok(OutputName::Current(e.into())),
             Some((e, "voltage")) if !e.is_empty() => Ok(OutputName::Voltage(e.into())),
+            Some((e, "output")) if !e.is_empty() => Ok(OutputName::Signal(e.into())),
             _ => Err(Problem {
                 element: None,
                 field: Some("outputs".into()),
                 node: None,
                 message: format!(
-                    "unknown output {text:?}: expected a node name, ELEMENT.current or ELEMENT.voltage"
+                    "unknown output {text:?}: expected a node name, ELEMENT.current, ELEMENT.voltage or COMPENSATOR.output"
                 ),
             }),
         }
@@ -656,6 +734,7 @@ impl std::fmt::Display for OutputName {
             OutputName::Node(n) => write!(f, "{n}"),
             OutputName::Current(e) => write!(f, "{e}.current"),
             OutputName::Voltage(e) => write!(f, "{e}.voltage"),
+            OutputName::Signal(e) => write!(f, "{e}.output"),
         }
     }
 }

@@ -127,6 +127,142 @@ pub enum Gate {
         #[schemars(with = "Option<SiValue>")]
         period: Option<f64>,
     },
+    /// Peak-current control: on at every clock edge k·T; off when the sensed
+    /// output rises above `reference − slope·τ` (τ: time since the clock,
+    /// `slope`: compensation ramp in units per second), or at `max_duty`.
+    PeakCurrent {
+        /// Signal name that switches refer to.
+        name: String,
+        /// Clock frequency in hertz; must be positive.
+        #[serde(deserialize_with = "value::de", serialize_with = "value::ser")]
+        #[schemars(with = "SiValue")]
+        frequency: f64,
+        /// The output compared (usually `L1.current`).
+        sense: String,
+        /// Peak reference (A, or the sensed output's unit).
+        #[serde(deserialize_with = "value::de", serialize_with = "value::ser")]
+        #[schemars(with = "SiValue")]
+        reference: f64,
+        /// Compensation ramp slope subtracted from the reference, per second (default 0).
+        #[serde(default, deserialize_with = "value::de", serialize_with = "value::ser")]
+        #[schemars(with = "SiValue")]
+        slope: f64,
+        /// Longest on-time as a fraction of the period (default 1: no limit).
+        #[serde(
+            default = "one",
+            deserialize_with = "value::de",
+            serialize_with = "value::ser"
+        )]
+        #[schemars(with = "SiValue")]
+        max_duty: f64,
+    },
+    /// Valley-current control: off at every clock edge k·T; on when the
+    /// sensed output falls below `reference + slope·τ`.
+    ValleyCurrent {
+        /// Signal name that switches refer to.
+        name: String,
+        /// Clock frequency in hertz; must be positive.
+        #[serde(deserialize_with = "value::de", serialize_with = "value::ser")]
+        #[schemars(with = "SiValue")]
+        frequency: f64,
+        /// The output compared (usually `L1.current`).
+        sense: String,
+        /// Valley reference.
+        #[serde(deserialize_with = "value::de", serialize_with = "value::ser")]
+        #[schemars(with = "SiValue")]
+        reference: f64,
+        /// Compensation ramp slope added to the reference, per second (default 0).
+        #[serde(default, deserialize_with = "value::de", serialize_with = "value::ser")]
+        #[schemars(with = "SiValue")]
+        slope: f64,
+    },
+    /// Hysteretic control: off when the sensed output rises above `high`,
+    /// on when it falls below `low`. Starts on if the output is below `high`.
+    Hysteretic {
+        /// Signal name that switches refer to.
+        name: String,
+        /// The output compared (e.g. the output node).
+        sense: String,
+        /// Lower threshold (turns on).
+        #[serde(deserialize_with = "value::de", serialize_with = "value::ser")]
+        #[schemars(with = "SiValue")]
+        low: f64,
+        /// Upper threshold (turns off); must exceed `low`.
+        #[serde(deserialize_with = "value::de", serialize_with = "value::ser")]
+        #[schemars(with = "SiValue")]
+        high: f64,
+    },
+    /// Analog voltage-mode PWM: on at every clock edge k·T; off when the
+    /// `control` output falls below a sawtooth rising from `ramp_low` to
+    /// `ramp_high` over the period; the on-time is held within
+    /// [`min_duty`, `max_duty`] of the period.
+    VoltageMode {
+        /// Signal name that switches refer to.
+        name: String,
+        /// Clock frequency in hertz; must be positive.
+        #[serde(deserialize_with = "value::de", serialize_with = "value::ser")]
+        #[schemars(with = "SiValue")]
+        frequency: f64,
+        /// The control output (e.g. a compensator's `NAME.output`).
+        control: String,
+        /// Sawtooth value at the clock edge.
+        #[serde(default, deserialize_with = "value::de", serialize_with = "value::ser")]
+        #[schemars(with = "SiValue")]
+        ramp_low: f64,
+        /// Sawtooth value at the end of the period; must exceed `ramp_low`.
+        #[serde(deserialize_with = "value::de", serialize_with = "value::ser")]
+        #[schemars(with = "SiValue")]
+        ramp_high: f64,
+        /// Shortest on-time as a fraction of the period (default 0).
+        #[serde(default, deserialize_with = "value::de", serialize_with = "value::ser")]
+        #[schemars(with = "SiValue")]
+        min_duty: f64,
+        /// Longest on-time as a fraction of the period (default 1).
+        #[serde(
+            default = "one",
+            deserialize_with = "value::de",
+            serialize_with = "value::ser"
+        )]
+        #[schemars(with = "SiValue")]
+        max_duty: f64,
+    },
+}
+
+fn one() -> f64 {
+    1.0
+}
+
+/// One comparison of a comparator gate: met when the sensed output is
+/// above (or below) `base + slope·τ`, τ being the time since the last clock
+/// edge (0 for a gate without a clock).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Comparison {
+    /// True: met when the output rises above the threshold; false: falls below.
+    pub above: bool,
+    /// Threshold at the clock edge.
+    pub base: f64,
+    /// Threshold slope per second since the clock edge.
+    pub slope: f64,
+}
+
+/// A gate driven by comparing a circuit output with a threshold: what the
+/// solver needs, whatever the control law's name.
+#[derive(Clone, Debug, PartialEq)]
+pub struct ComparatorSpec {
+    /// The output compared.
+    pub sense: String,
+    /// Clock period, if the gate has a clock (edges at k·period).
+    pub period: Option<f64>,
+    /// What the clock does: `Some(true)` turns on, `Some(false)` turns off.
+    pub clock_turns: Option<bool>,
+    /// While on, turn off when this is met.
+    pub turn_off: Option<Comparison>,
+    /// While off, turn on when this is met.
+    pub turn_on: Option<Comparison>,
+    /// Turn-off comparisons are ignored before this fraction of the period.
+    pub min_duty: f64,
+    /// Forced off at this fraction of the period (1: never).
+    pub max_duty: f64,
 }
 
 /// A gate edge at an exact time.
@@ -167,7 +303,107 @@ impl Gate {
         match self {
             Gate::Pwm { name, .. }
             | Gate::ComplementaryPwm { name, .. }
-            | Gate::Transitions { name, .. } => name,
+            | Gate::Transitions { name, .. }
+            | Gate::PeakCurrent { name, .. }
+            | Gate::ValleyCurrent { name, .. }
+            | Gate::Hysteretic { name, .. }
+            | Gate::VoltageMode { name, .. } => name,
+        }
+    }
+
+    /// The comparator behind a closed-loop gate; `None` for scheduled gates.
+    pub fn comparator(&self) -> Option<ComparatorSpec> {
+        let clocked = |frequency: f64, on: bool| (Some(1.0 / frequency), Some(on));
+        match self {
+            Gate::PeakCurrent {
+                frequency,
+                sense,
+                reference,
+                slope,
+                max_duty,
+                ..
+            } => {
+                let (period, clock_turns) = clocked(*frequency, true);
+                Some(ComparatorSpec {
+                    sense: sense.clone(),
+                    period,
+                    clock_turns,
+                    turn_off: Some(Comparison {
+                        above: true,
+                        base: *reference,
+                        slope: -slope,
+                    }),
+                    turn_on: None,
+                    min_duty: 0.0,
+                    max_duty: *max_duty,
+                })
+            }
+            Gate::ValleyCurrent {
+                frequency,
+                sense,
+                reference,
+                slope,
+                ..
+            } => {
+                let (period, clock_turns) = clocked(*frequency, false);
+                Some(ComparatorSpec {
+                    sense: sense.clone(),
+                    period,
+                    clock_turns,
+                    turn_off: None,
+                    turn_on: Some(Comparison {
+                        above: false,
+                        base: *reference,
+                        slope: *slope,
+                    }),
+                    min_duty: 0.0,
+                    max_duty: 1.0,
+                })
+            }
+            Gate::Hysteretic {
+                sense, low, high, ..
+            } => Some(ComparatorSpec {
+                sense: sense.clone(),
+                period: None,
+                clock_turns: None,
+                turn_off: Some(Comparison {
+                    above: true,
+                    base: *high,
+                    slope: 0.0,
+                }),
+                turn_on: Some(Comparison {
+                    above: false,
+                    base: *low,
+                    slope: 0.0,
+                }),
+                min_duty: 0.0,
+                max_duty: 1.0,
+            }),
+            Gate::VoltageMode {
+                frequency,
+                control,
+                ramp_low,
+                ramp_high,
+                min_duty,
+                max_duty,
+                ..
+            } => {
+                let (period, clock_turns) = clocked(*frequency, true);
+                Some(ComparatorSpec {
+                    sense: control.clone(),
+                    period,
+                    clock_turns,
+                    turn_off: Some(Comparison {
+                        above: false,
+                        base: *ramp_low,
+                        slope: (ramp_high - ramp_low) * frequency,
+                    }),
+                    turn_on: None,
+                    min_duty: *min_duty,
+                    max_duty: *max_duty,
+                })
+            }
+            _ => None,
         }
     }
 
@@ -236,6 +472,24 @@ impl Gate {
                     (format!("{name}.high"), shape(hi)),
                     (format!("{name}.low"), shape(lo)),
                 ]
+            }
+            Gate::PeakCurrent { name, .. }
+            | Gate::ValleyCurrent { name, .. }
+            | Gate::Hysteretic { name, .. }
+            | Gate::VoltageMode { name, .. } => {
+                // Driven by the solver's comparator, not by a schedule: the
+                // shape only says "off until the run decides".
+                let period = self.comparator().and_then(|c| c.period);
+                vec![(
+                    name.clone(),
+                    SignalShape {
+                        period,
+                        initial: false,
+                        transitions: vec![],
+                        start: None,
+                        stop: None,
+                    },
+                )]
             }
             Gate::Transitions {
                 name,

@@ -54,10 +54,13 @@ mod validate;
 mod value;
 mod waveform;
 
-pub use circuit::{is_ground, Circuit, CircuitBuilder, OutputName, RunSettings, GROUND};
+pub use circuit::{
+    is_ground, Circuit, CircuitBuilder, Compensator, CompensatorLaw, OutputName, RunSettings,
+    GROUND,
+};
 pub use element::*;
 pub use error::{NetlistError, Problem};
-pub use gate::{Edge, Gate, SignalShape, Transition};
+pub use gate::{ComparatorSpec, Comparison, Edge, Gate, SignalShape, Transition};
 pub use value::{parse_si, ValueError, PREFIXES};
 pub use waveform::{LinearPiece, Point, Waveform};
 

@@ -65,6 +65,7 @@ pub fn problems(circuit: &Circuit) -> Vec<Problem> {
     c.gate_references();
     c.topology();
     c.run_settings();
+    c.compensators();
     c.out
 }
 
@@ -628,6 +629,10 @@ impl Checker<'_> {
     }
 
     fn gate_values(&mut self, l: &str, g: &Gate) {
+        if let Some(spec) = g.comparator() {
+            self.comparator_values(l, g, &spec);
+            return;
+        }
         match g {
             Gate::Pwm {
                 frequency,
@@ -714,6 +719,223 @@ impl Checker<'_> {
                     }
                 }
             }
+            // Closed-loop gates were checked by `comparator_values`.
+            Gate::PeakCurrent { .. }
+            | Gate::ValleyCurrent { .. }
+            | Gate::Hysteretic { .. }
+            | Gate::VoltageMode { .. } => {}
+        }
+    }
+
+    /// Closed-loop gates: a clock frequency, thresholds, duty limits and the
+    /// output they compare.
+    fn comparator_values(&mut self, l: &str, g: &Gate, spec: &crate::ComparatorSpec) {
+        match g {
+            Gate::PeakCurrent {
+                frequency,
+                reference,
+                slope,
+                max_duty,
+                ..
+            } => {
+                self.positive(l, "frequency", *frequency);
+                self.finite(l, "reference", *reference);
+                self.non_negative(l, "slope", *slope);
+                if self.finite(l, "max_duty", *max_duty) && !(*max_duty > 0.0 && *max_duty <= 1.0) {
+                    self.field(
+                        l,
+                        "max_duty",
+                        format!("must lie in (0, 1], got {}", num(*max_duty)),
+                    );
+                }
+            }
+            Gate::ValleyCurrent {
+                frequency,
+                reference,
+                slope,
+                ..
+            } => {
+                self.positive(l, "frequency", *frequency);
+                self.finite(l, "reference", *reference);
+                self.non_negative(l, "slope", *slope);
+            }
+            Gate::Hysteretic { low, high, .. } => {
+                if self.finite(l, "low", *low) && self.finite(l, "high", *high) && low >= high {
+                    self.field(
+                        l,
+                        "high",
+                        format!("must exceed low = {}, got {}", num(*low), num(*high)),
+                    );
+                }
+            }
+            Gate::VoltageMode {
+                frequency,
+                ramp_low,
+                ramp_high,
+                min_duty,
+                max_duty,
+                ..
+            } => {
+                self.positive(l, "frequency", *frequency);
+                if self.finite(l, "ramp_low", *ramp_low)
+                    && self.finite(l, "ramp_high", *ramp_high)
+                    && ramp_low >= ramp_high
+                {
+                    self.field(
+                        l,
+                        "ramp_high",
+                        format!(
+                            "must exceed ramp_low = {}, got {}",
+                            num(*ramp_low),
+                            num(*ramp_high)
+                        ),
+                    );
+                }
+                let lo_ok = self.finite(l, "min_duty", *min_duty);
+                let hi_ok = self.finite(l, "max_duty", *max_duty);
+                if hi_ok && !(*max_duty > 0.0 && *max_duty <= 1.0) {
+                    self.field(
+                        l,
+                        "max_duty",
+                        format!("must lie in (0, 1], got {}", num(*max_duty)),
+                    );
+                } else if lo_ok && hi_ok && !(*min_duty >= 0.0 && min_duty < max_duty) {
+                    self.field(
+                        l,
+                        "min_duty",
+                        format!(
+                            "must lie in [0, max_duty = {}), got {}",
+                            num(*max_duty),
+                            num(*min_duty)
+                        ),
+                    );
+                }
+            }
+            _ => {}
+        }
+        let field = if matches!(g, Gate::VoltageMode { .. }) {
+            "control"
+        } else {
+            "sense"
+        };
+        if let Some(why) = self.output_problem(&spec.sense) {
+            self.field(l, field, why);
+        }
+    }
+
+    /// Compensators: unique names, a measured output that exists, a law
+    /// that can be realised.
+    fn compensators(&mut self) {
+        let mut seen: HashMap<&str, usize> = HashMap::new();
+        for (i, k) in self.circuit.compensators.iter().enumerate() {
+            let l = label(&k.name, "compensators", i);
+            if let Some(why) = name_rule(&k.name) {
+                self.field(&l, "name", format!("compensator name {:?} {why}", k.name));
+            }
+            if let Some(j) = seen.insert(&k.name, i) {
+                self.field(
+                    &l,
+                    "name",
+                    format!("duplicate compensator name '{}': compensators[{j}] and compensators[{i}] both use it", k.name),
+                );
+            }
+            self.finite(&l, "reference", k.reference);
+            if let Some(why) = self.output_problem(&k.input) {
+                self.field(&l, "input", why);
+            }
+            if k.input.ends_with(".output") {
+                self.field(
+                    &l,
+                    "input",
+                    "a compensator measures a circuit output, not another compensator".into(),
+                );
+            }
+            match &k.law {
+                crate::CompensatorLaw::Pi { kp, ki } => {
+                    self.finite(&l, "law.kp", *kp);
+                    self.finite(&l, "law.ki", *ki);
+                }
+                crate::CompensatorLaw::PolesZeros {
+                    gain,
+                    integrator,
+                    zeros_hz,
+                    poles_hz,
+                } => {
+                    self.finite(&l, "law.gain", *gain);
+                    for (j, z) in zeros_hz.iter().enumerate() {
+                        self.positive(&l, &format!("law.zeros_hz[{j}]"), *z);
+                    }
+                    for (j, p) in poles_hz.iter().enumerate() {
+                        self.positive(&l, &format!("law.poles_hz[{j}]"), *p);
+                    }
+                    let den = poles_hz.len() + usize::from(*integrator);
+                    if zeros_hz.len() > den {
+                        self.field(
+                            &l,
+                            "law.zeros_hz",
+                            format!(
+                                "{} zeros but only {den} poles: the law would not be proper",
+                                zeros_hz.len()
+                            ),
+                        );
+                    }
+                    if den == 0 {
+                        self.field(
+                            &l,
+                            "law.poles_hz",
+                            "a compensator needs at least one pole or the integrator".into(),
+                        );
+                    }
+                }
+                crate::CompensatorLaw::StateSpace { a, b, c, d } => {
+                    let n = a.len();
+                    if n == 0 || a.iter().any(|r| r.len() != n) {
+                        self.field(
+                            &l,
+                            "law.a",
+                            "must be a square matrix with at least one row".into(),
+                        );
+                    }
+                    if b.len() != n {
+                        self.field(
+                            &l,
+                            "law.b",
+                            format!("must have {n} entries, has {}", b.len()),
+                        );
+                    }
+                    if c.len() != n {
+                        self.field(
+                            &l,
+                            "law.c",
+                            format!("must have {n} entries, has {}", c.len()),
+                        );
+                    }
+                    let all = a
+                        .iter()
+                        .flatten()
+                        .chain(b)
+                        .chain(c)
+                        .chain(std::iter::once(d));
+                    if all.into_iter().any(|v| !v.is_finite()) {
+                        self.field(&l, "law", "every entry must be a finite number".into());
+                    }
+                }
+            }
+        }
+    }
+
+    /// Why an output name is unusable, if it is.
+    fn output_problem(&self, text: &str) -> Option<String> {
+        match OutputName::parse(text) {
+            Err(p) => Some(p.message),
+            Ok(OutputName::Node(n)) => (!self.circuit.nodes().contains(&n))
+                .then(|| format!("output {text:?} names no node of the circuit")),
+            Ok(OutputName::Current(e)) | Ok(OutputName::Voltage(e)) => self
+                .output_target(&e)
+                .err()
+                .map(|why| format!("output {text:?}: {why}")),
+            Ok(OutputName::Signal(e)) => (!self.circuit.compensators.iter().any(|k| k.name == e))
+                .then(|| format!("output {text:?}: no compensator is named '{e}'")),
         }
     }
 
@@ -1066,18 +1288,9 @@ impl Checker<'_> {
                 );
             }
         }
-        let nodes = self.circuit.nodes();
         for (i, text) in run.outputs.iter().enumerate() {
             let field = format!("run.outputs[{i}]");
-            let message = match OutputName::parse(text) {
-                Err(p) => Some(p.message),
-                Ok(OutputName::Node(n)) => (!nodes.contains(&n))
-                    .then(|| format!("output {text:?} names no node of the circuit")),
-                Ok(OutputName::Current(e)) | Ok(OutputName::Voltage(e)) => self
-                    .output_target(&e)
-                    .err()
-                    .map(|why| format!("output {text:?}: {why}")),
-            };
+            let message = self.output_problem(text);
             if let Some(m) = message {
                 let mut p = Problem {
                     element: None,

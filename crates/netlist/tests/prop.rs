@@ -244,6 +244,7 @@ fn circuit() -> impl Strategy<Value = Circuit> {
             description,
             elements,
             gates,
+            compensators: vec![],
             run,
         })
 }
