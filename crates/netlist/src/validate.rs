@@ -760,7 +760,9 @@ impl Checker<'_> {
                 self.non_negative(l, "slope", *slope);
             }
             Gate::Hysteretic { low, high, .. } => {
-                if self.finite(l, "low", *low) && self.finite(l, "high", *high) && low >= high {
+                // Both are checked for finiteness, then compared.
+                let ok = [self.finite(l, "low", *low), self.finite(l, "high", *high)];
+                if ok == [true, true] && low >= high {
                     self.field(
                         l,
                         "high",
