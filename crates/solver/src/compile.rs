@@ -25,6 +25,43 @@ pub(crate) struct SourceRef {
     pub waveform: Option<Waveform>,
     /// Input index k (u_k at z[n_x + k]) for piecewise-linear sources.
     pub input: Option<usize>,
+    /// A threshold ramp made by the solver for a comparator gate, not a
+    /// circuit element (its corners are not logged as events).
+    pub internal: bool,
+}
+
+/// A compensator realised as a state-space block on its own states.
+#[derive(Clone, Debug)]
+pub(crate) struct CompiledCompensator {
+    pub name: String,
+    pub states: Vec<usize>,
+    pub a: DMatrix<f64>,
+    pub b: Vec<f64>,
+    pub c: Vec<f64>,
+    pub d: f64,
+    pub reference: f64,
+    /// Output index of the measured quantity.
+    pub input: usize,
+}
+
+/// A comparison of a comparator gate, as a threshold row over z.
+#[derive(Clone, Debug)]
+pub(crate) struct CompiledComparison {
+    pub above: bool,
+    /// The threshold as a linear function of z (a constant times the unit
+    /// input, or a sawtooth input).
+    pub threshold: Vec<f64>,
+}
+
+/// A closed-loop gate.
+#[derive(Clone, Debug)]
+pub(crate) struct CompiledComparator {
+    pub signal: usize,
+    pub spec: fluxstep_netlist::ComparatorSpec,
+    /// Output index of the sensed quantity.
+    pub sense: usize,
+    pub turn_off: Option<CompiledComparison>,
+    pub turn_on: Option<CompiledComparison>,
 }
 
 #[derive(Clone, Debug)]
@@ -98,6 +135,8 @@ pub(crate) enum OutputDef {
     /// Secondary winding of an ideal transformer (branch index).
     SecondaryVoltage(usize),
     SecondaryCurrent(usize),
+    /// Output of compensator k.
+    Compensator(usize),
 }
 
 /// The compiled circuit: everything the solver needs, numbered.
@@ -121,6 +160,8 @@ pub(crate) struct Compiled {
     /// Scale of each x state for norms (√L for currents, √C for voltages, 1 else).
     pub x_scale: Vec<f64>,
     pub outputs: Vec<(String, OutputDef)>,
+    pub compensators: Vec<CompiledCompensator>,
+    pub comparators: Vec<CompiledComparator>,
 }
 
 impl Compiled {
@@ -161,6 +202,8 @@ impl Compiled {
             x0: vec![],
             x_scale: vec![],
             outputs: vec![],
+            compensators: vec![],
+            comparators: vec![],
         };
         // Pass 1: states (x) and inputs (u); z indices of u are fixed after.
         let mut x_names = vec![];
@@ -191,6 +234,7 @@ impl Compiled {
                 _ => {}
             }
         }
+        let osc_start = x_names.len();
         for (name, w) in &pending_src {
             if let Waveform::Sine { phase, .. } = w {
                 x_names.push(format!("{name}.oscillator_sin"));
@@ -201,14 +245,22 @@ impl Compiled {
                 x_scale.push(1.0);
             }
         }
+        // Compensator states come last in x.
+        let mut realised = vec![];
+        for k in &circuit.compensators {
+            let (a, b, cv, d) = realise(&k.law);
+            let first = x_names.len();
+            for i in 0..b.len() {
+                x_names.push(format!("{}.state{i}", k.name));
+                x0.push(0.0);
+                x_scale.push(1.0);
+            }
+            realised.push((k, (first..first + b.len()).collect::<Vec<_>>(), a, b, cv, d));
+        }
         let n_x = x_names.len();
         c.n_x = n_x;
         let mut n_u = 1; // u_0 = 1
-        let mut osc_next = n_x
-            - 2 * pending_src
-                .iter()
-                .filter(|(_, w)| matches!(w, Waveform::Sine { .. }))
-                .count();
+        let mut osc_next = osc_start;
         for (name, w) in &pending_src {
             match w {
                 Waveform::Sine {
@@ -227,6 +279,7 @@ impl Compiled {
                         terms: vec![(n_x, *offset), (s, *amplitude)],
                         waveform: None,
                         input: None,
+                        internal: false,
                     });
                 }
                 _ => {
@@ -235,12 +288,80 @@ impl Compiled {
                         terms: vec![(n_x + n_u, 1.0)],
                         waveform: Some(w.clone()),
                         input: Some(n_u),
+                        internal: false,
                     });
                     n_u += 1;
                 }
             }
         }
+        // Comparator thresholds: a constant (times the unit input) or, with
+        // a slope, a sawtooth input restarting at every clock edge, exact
+        // like any piecewise-linear source.
+        let mut comparisons = vec![];
+        for (si, (sig_name, _)) in signals.iter().enumerate() {
+            let Some(gate) = circuit.gates.iter().find(|g| g.name() == sig_name) else {
+                continue;
+            };
+            let Some(spec) = gate.comparator() else {
+                continue;
+            };
+            let mut make = |cmp: Option<fluxstep_netlist::Comparison>, which: &str| {
+                cmp.map(|cmp| {
+                    let mut threshold = vec![];
+                    if cmp.slope == 0.0 || spec.period.is_none() {
+                        threshold.push((n_x, cmp.base));
+                    } else {
+                        let t = spec.period.expect("checked");
+                        c.sources.push(SourceRef {
+                            name: format!("{sig_name}.{which}"),
+                            terms: vec![(n_x + n_u, 1.0)],
+                            waveform: Some(Waveform::PiecewiseLinear {
+                                points: vec![
+                                    fluxstep_netlist::Point {
+                                        time: 0.0,
+                                        value: cmp.base,
+                                    },
+                                    fluxstep_netlist::Point {
+                                        time: t,
+                                        value: cmp.base + cmp.slope * t,
+                                    },
+                                ],
+                                period: Some(t),
+                            }),
+                            input: Some(n_u),
+                            internal: true,
+                        });
+                        threshold.push((n_x + n_u, 1.0));
+                        n_u += 1;
+                    }
+                    (cmp.above, threshold)
+                })
+            };
+            let off = make(spec.turn_off, "turn_off_threshold");
+            let on = make(spec.turn_on, "turn_on_threshold");
+            comparisons.push((si, spec, off, on));
+        }
         c.n_u = n_u;
+        let nz = n_x + 2 * n_u;
+        let row_of = |terms: Vec<(usize, f64)>| {
+            let mut r = vec![0.0; nz];
+            for (i, v) in terms {
+                r[i] += v;
+            }
+            r
+        };
+        let pending_comparators: Vec<_> = comparisons
+            .into_iter()
+            .map(|(si, spec, off, on)| {
+                let conv = |x: Option<(bool, Vec<(usize, f64)>)>| {
+                    x.map(|(above, t)| CompiledComparison {
+                        above,
+                        threshold: row_of(t),
+                    })
+                };
+                (si, spec, conv(off), conv(on))
+            })
+            .collect::<Vec<_>>();
         c.state_names = x_names;
         c.x0 = x0;
         c.x_scale = x_scale;
@@ -424,6 +545,34 @@ impl Compiled {
                     .push((format!("{}.voltage", b.name), OutputDef::BranchVoltage(i)));
             }
         }
+        for (k, (comp, states, a, b, cv, d)) in realised.into_iter().enumerate() {
+            c.outputs
+                .push((format!("{}.output", comp.name), OutputDef::Compensator(k)));
+            c.compensators.push(CompiledCompensator {
+                name: comp.name.clone(),
+                states,
+                a,
+                b,
+                c: cv,
+                d,
+                reference: comp.reference,
+                input: usize::MAX,
+            });
+        }
+        for k in 0..c.compensators.len() {
+            let input = &circuit.compensators[k].input;
+            c.compensators[k].input = c.output_index(input)?;
+        }
+        for (signal, spec, turn_off, turn_on) in pending_comparators {
+            let sense = c.output_index(&spec.sense)?;
+            c.comparators.push(CompiledComparator {
+                signal,
+                spec,
+                sense,
+                turn_off,
+                turn_on,
+            });
+        }
         Ok(c)
     }
 
@@ -458,4 +607,83 @@ impl Compiled {
         }
         e
     }
+}
+
+/// A state-space realisation (A, B, C, D) of a compensator law, single
+/// input (the error) and single output.
+fn realise(law: &fluxstep_netlist::CompensatorLaw) -> (DMatrix<f64>, Vec<f64>, Vec<f64>, f64) {
+    use fluxstep_netlist::CompensatorLaw;
+    match law {
+        // x' = e; u = ki·x + kp·e.
+        CompensatorLaw::Pi { kp, ki } => (DMatrix::zeros(1, 1), vec![1.0], vec![*ki], *kp),
+        CompensatorLaw::StateSpace { a, b, c, d } => {
+            let n = b.len();
+            (
+                DMatrix::from_fn(n, n, |i, j| a[i][j]),
+                b.clone(),
+                c.clone(),
+                *d,
+            )
+        }
+        CompensatorLaw::PolesZeros {
+            gain,
+            integrator,
+            zeros_hz,
+            poles_hz,
+        } => {
+            // N(s) = gain·Π(1 + s/ωz), D(s) = s^i·Π(1 + s/ωp), as
+            // coefficient lists in ascending powers of s.
+            let tau = |f: f64| 1.0 / (2.0 * std::f64::consts::PI * f);
+            let mut num = vec![*gain];
+            for &z in zeros_hz {
+                num = poly_mul(&num, &[1.0, tau(z)]);
+            }
+            let mut den = if *integrator {
+                vec![0.0, 1.0]
+            } else {
+                vec![1.0]
+            };
+            for &p in poles_hz {
+                den = poly_mul(&den, &[1.0, tau(p)]);
+            }
+            controllable_form(&num, &den)
+        }
+    }
+}
+
+fn poly_mul(a: &[f64], b: &[f64]) -> Vec<f64> {
+    let mut out = vec![0.0; a.len() + b.len() - 1];
+    for (i, x) in a.iter().enumerate() {
+        for (j, y) in b.iter().enumerate() {
+            out[i + j] += x * y;
+        }
+    }
+    out
+}
+
+/// Controllable canonical form of N(s)/D(s) (ascending coefficients,
+/// deg N ≤ deg D = n ≥ 1): D made monic, the direct term split off, then
+/// x' = A x + B e with A the companion matrix, B = [0 … 0 1]ᵀ, and C the
+/// remainder's numerator (common practice; any control text, e.g. Franklin,
+/// Powell & Emami-Naeini, *Feedback Control of Dynamic Systems*).
+fn controllable_form(num: &[f64], den: &[f64]) -> (DMatrix<f64>, Vec<f64>, Vec<f64>, f64) {
+    let n = den.len() - 1;
+    let lead = den[n];
+    let a_coef: Vec<f64> = den.iter().map(|x| x / lead).collect();
+    let mut b_coef = vec![0.0; n + 1];
+    for (i, x) in num.iter().enumerate() {
+        b_coef[i] = x / lead;
+    }
+    let d = b_coef[n];
+    let c: Vec<f64> = (0..n).map(|i| b_coef[i] - d * a_coef[i]).collect();
+    let mut a = DMatrix::zeros(n, n);
+    for i in 0..n.saturating_sub(1) {
+        a[(i, i + 1)] = 1.0;
+    }
+    for j in 0..n {
+        a[(n - 1, j)] = -a_coef[j];
+    }
+    let mut b = vec![0.0; n];
+    b[n - 1] = 1.0;
+    (a, b, c, d)
 }

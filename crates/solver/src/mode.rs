@@ -56,6 +56,8 @@ pub(crate) enum GuardKind {
     /// Two blocking diodes in a loop through floating nodes: the loop
     /// voltage must stay below their forward voltages.
     DiodePair(usize, usize),
+    /// Comparator `ci` of a closed-loop gate; true for its turn-off guard.
+    Comparator(usize, bool),
 }
 
 /// A linear function of `z` that must stay ≥ 0 while the mode holds.
@@ -117,6 +119,8 @@ pub(crate) struct Mode {
     /// resistance, across a voltage source or a capacitor: (devices,
     /// shorted element). Zero-resistance shorts are a `problem` instead.
     pub resistive_short: Option<(Vec<String>, Vec<String>)>,
+    /// Guards of closed-loop gates, per comparator: [while on, while off].
+    pub cmp_guards: Vec<[Option<Guard>; 2]>,
 }
 
 struct Dsu(Vec<usize>);
@@ -680,7 +684,7 @@ impl Mode {
             yf.columns_mut(n_free - n_null, n_null)
                 .copy_from(&(y.columns(nz, n_lam) * &null_dirs));
         }
-        let m = &dz + &dl * &lam;
+        let mut m = &dz + &dl * &lam;
 
         // 7. Outputs.
         let n_out = cc.outputs.len();
@@ -700,6 +704,23 @@ impl Mode {
         };
         for (oi, (_, def)) in cc.outputs.iter().enumerate() {
             let (row, free): (DVector<f64>, DVector<f64>) = match def {
+                OutputDef::Compensator(k) => {
+                    // u = C·x + D·(reference − input); the input's row is
+                    // already known (compensator outputs come last).
+                    let comp = &cc.compensators[*k];
+                    let mut r = DVector::zeros(nz);
+                    for (j, &st) in comp.states.iter().enumerate() {
+                        r[st] += comp.c[j];
+                    }
+                    r[one] += comp.d * comp.reference;
+                    r -= cm.row(comp.input).transpose() * comp.d;
+                    let f = if undetermined[comp.input] {
+                        DVector::from_element(1, 1.0)
+                    } else {
+                        DVector::zeros(1)
+                    };
+                    (r, f)
+                }
                 OutputDef::Node(n) => vz(*n),
                 OutputDef::BranchVoltage(bi) => {
                     let b = &cc.branches[*bi];
@@ -773,6 +794,25 @@ impl Mode {
             undetermined[oi] = free.iter().any(|v| v.abs() > 1e-9);
         }
 
+        // 7b. Compensator dynamics: x_c' = A·x_c + B·(reference − input).
+        for comp in &cc.compensators {
+            if undetermined[comp.input] && problem.is_none() {
+                problem = Some(ModeProblem::Unsupported(format!(
+                    "compensator {} measures {}, which is undetermined in this mode",
+                    comp.name, cc.outputs[comp.input].0
+                )));
+            }
+            let input_row = cm.row(comp.input).into_owned();
+            for (i, &si) in comp.states.iter().enumerate() {
+                let mut r = input_row.clone() * -comp.b[i];
+                r[one] += comp.b[i] * comp.reference;
+                for (j, &sj) in comp.states.iter().enumerate() {
+                    r[sj] += comp.a[(i, j)];
+                }
+                m.set_row(si, &r);
+            }
+        }
+
         // 8. Guards.
         let mut guards = vec![];
         let mut free_dep: Vec<(usize, Vec<f64>, DVector<f64>)> = vec![];
@@ -834,6 +874,36 @@ impl Mode {
                 ));
             }
         }
+        // 9b. Comparator guards: [0] while on (turn off when met), [1] while
+        // off (turn on when met); each stays positive until its comparison
+        // is met.
+        let mut cmp_guards = vec![];
+        for (ci, cmp) in cc.comparators.iter().enumerate() {
+            let sense = cm.row(cmp.sense).into_owned();
+            let make = |c: &Option<crate::compile::CompiledComparison>, off: bool| {
+                c.as_ref().map(|c| {
+                    let thr = DVector::from_column_slice(&c.threshold);
+                    let row: DVector<f64> = if c.above {
+                        thr - sense.transpose()
+                    } else {
+                        sense.transpose() - thr
+                    };
+                    let drow = m.transpose() * &row;
+                    Guard {
+                        kind: GuardKind::Comparator(ci, off),
+                        row: row.iter().copied().collect(),
+                        drow: drow.iter().copied().collect(),
+                    }
+                })
+            };
+            if undetermined[cmp.sense] && problem.is_none() {
+                problem = Some(ModeProblem::Unsupported(format!(
+                    "gate {} compares {}, which is undetermined in this mode",
+                    cc.signals[cmp.signal].0, cc.outputs[cmp.sense].0
+                )));
+            }
+            cmp_guards.push([make(&cmp.turn_off, true), make(&cmp.turn_on, false)]);
+        }
         // 10. Rate: ∞-norm of the state block in energy-scaled coordinates.
         let mut rate: f64 = 0.0;
         for i in 0..nx {
@@ -856,6 +926,7 @@ impl Mode {
             free_checks,
             rate,
             resistive_short,
+            cmp_guards,
         })
     }
 
@@ -874,6 +945,7 @@ impl Mode {
             free_checks: vec![],
             rate: 0.0,
             resistive_short: None,
+            cmp_guards: vec![],
         }
     }
 }

@@ -13,7 +13,7 @@
 //! conduction state.
 
 use super::{dot, Simulator};
-use crate::mode::{Guard, GuardKind};
+use crate::mode::{Guard, GuardKind, Mode};
 use crate::propagate;
 
 /// Relative tolerance for "this linear function of the state is zero",
@@ -29,6 +29,7 @@ pub(super) fn guard_floor(kind: &GuardKind, (i_scale, v_scale): (f64, f64)) -> f
     let s = match kind {
         GuardKind::DiodeCurrent(_) => i_scale,
         GuardKind::DiodeVoltage(_) | GuardKind::DiodePair(..) => v_scale,
+        GuardKind::Comparator(..) => i_scale.max(v_scale),
     };
     1e-13 * s + f64::MIN_POSITIVE
 }
@@ -37,29 +38,59 @@ fn abs_dot(a: &[f64], b: &[f64]) -> f64 {
     a.iter().zip(b).map(|(x, y)| (x * y).abs()).sum()
 }
 
-fn bits(g: &Guard) -> u64 {
+/// (diode bits, comparator bits) of a guard.
+fn bits(g: &Guard) -> (u64, u64) {
     match g.kind {
-        GuardKind::DiodeCurrent(k) | GuardKind::DiodeVoltage(k) => 1u64 << k,
-        GuardKind::DiodePair(a, b) => (1u64 << a) | (1u64 << b),
+        GuardKind::DiodeCurrent(k) | GuardKind::DiodeVoltage(k) => (1u64 << k, 0),
+        GuardKind::DiodePair(a, b) => ((1u64 << a) | (1u64 << b), 0),
+        GuardKind::Comparator(c, _) => (0, 1u64 << c),
     }
 }
 
+/// The guards that hold now: the mode's diode guards, and for each
+/// closed-loop gate the guard of its present state (bit c of `off_mask`:
+/// comparator c is on and may turn off; of `on_mask`: it is off and may
+/// turn on).
+fn active<'m>(
+    mode: &'m Mode,
+    off_mask: u64,
+    on_mask: u64,
+) -> impl Iterator<Item = &'m Guard> + Clone + 'm {
+    mode.guards.iter().chain(
+        mode.cmp_guards
+            .iter()
+            .enumerate()
+            .filter_map(move |(c, pair)| {
+                if off_mask >> c & 1 == 1 {
+                    pair[0].as_ref()
+                } else if on_mask >> c & 1 == 1 {
+                    pair[1].as_ref()
+                } else {
+                    None
+                }
+            }),
+    )
+}
+
 impl Simulator {
-    /// Earliest guard crossing within (0, h]: (τ, bit set of diodes whose
-    /// guard fired). `z_next` must hold the state at `h` on entry; when
-    /// τ < h it holds the state at τ on return.
-    pub(super) fn locate(&mut self, h: f64) -> Option<(f64, u64)> {
+    /// Earliest guard crossing within (0, h]: (τ, bits of the diodes whose
+    /// guard fired, bits of the comparators whose guard fired). `z_next`
+    /// must hold the state at `h` on entry; when τ < h it holds the state
+    /// at τ on return.
+    pub(super) fn locate(&mut self, h: f64) -> Option<(f64, u64, u64)> {
         let mode = self.modes[self.mode as usize].clone();
-        if mode.guards.is_empty() {
+        let (off_mask, on_mask) = self.comparator_masks();
+        if mode.guards.is_empty() && off_mask == 0 && on_mask == 0 {
             return None;
         }
+        let guards = active(&mode, off_mask, on_mask);
         let n = propagate::substeps(mode.rate, h);
         if n == 1 {
             // Exact end-point checks first: nothing more to do in the
             // common case of an interval with no event.
             let scales = self.scales();
             let (za, zb) = (self.z.as_slice(), self.z_next.as_slice());
-            let suspect = mode.guards.iter().any(|g| {
+            let suspect = guards.clone().any(|g| {
                 let tol = ZERO_REL * abs_dot(&g.row, za).max(abs_dot(&g.row, zb))
                     + guard_floor(&g.kind, scales);
                 let gb = dot(g.row.iter().copied(), zb);
@@ -75,11 +106,11 @@ impl Simulator {
         let mut za = self.z.clone();
         let mut terms = std::mem::take(&mut self.terms);
         let mut coef = Vec::new();
-        let mut found: Option<(f64, u64, f64)> = None;
+        let mut found: Option<(f64, (u64, u64), f64)> = None;
         let scales = self.scales();
         for i in 0..n {
             propagate::taylor_terms(&mode.m, &za, d, &mut terms);
-            for g in &mode.guards {
+            for g in guards.clone() {
                 coef.clear();
                 coef.extend(
                     terms
@@ -109,9 +140,11 @@ impl Simulator {
                     let tau = (i as f64 + s) * d;
                     let bit = bits(g);
                     found = match found {
-                        Some((t, b, sg)) if (t - tau).abs() <= 1e-13 * h => {
-                            Some((t.min(tau), b | bit, if tau < t { s } else { sg }))
-                        }
+                        Some((t, b, sg)) if (t - tau).abs() <= 1e-13 * h => Some((
+                            t.min(tau),
+                            (b.0 | bit.0, b.1 | bit.1),
+                            if tau < t { s } else { sg },
+                        )),
                         Some((t, b, sg)) if t < tau => Some((t, b, sg)),
                         _ => Some((tau, bit, s)),
                     };
@@ -139,7 +172,7 @@ impl Simulator {
         self.terms = terms;
         // A crossing at the very end belongs to the scheduled instant (and
         // `z_next` must then be the state at h again).
-        found.map(|(t, b, _)| (if t >= h * (1.0 - 1e-14) { h } else { t }, b))
+        found.map(|(t, b, _)| (if t >= h * (1.0 - 1e-14) { h } else { t }, b.0, b.1))
     }
 }
 

@@ -8,6 +8,7 @@
 //! only built when they are kept, and diagnostics only turn into text when a
 //! run actually stops.
 
+mod control;
 mod locate;
 mod record;
 mod resolve;
@@ -126,6 +127,9 @@ pub struct Simulator {
     signals: Vec<SignalBuffer>,
     /// Present state of each gate signal.
     signal_on: Vec<bool>,
+    /// Per comparator: whether its turn-off comparison counts yet (the
+    /// minimum on-time has passed).
+    cmp_enabled_off: Vec<bool>,
     /// Indices of piecewise-linear sources (the only ones with corners).
     pwl_sources: Vec<usize>,
     wave: Waveform,
@@ -186,6 +190,7 @@ impl Simulator {
             })
             .collect();
         let signal_on = cc.signals.iter().map(|(_, s)| s.is_on(0.0)).collect();
+        let n_cmp = cc.comparators.len();
         let pwl_sources = (0..cc.sources.len())
             .filter(|&i| cc.sources[i].input.is_some())
             .collect();
@@ -227,6 +232,7 @@ impl Simulator {
             },
             signals,
             signal_on,
+            cmp_enabled_off: vec![true; n_cmp],
             pwl_sources,
             wave,
             log,
@@ -251,6 +257,10 @@ impl Simulator {
             }
         }
         sim.resolve(0, None, true)?;
+        // Closed-loop gates decide their state at t = 0 from the circuit.
+        if let Some(cause) = sim.start_comparators()? {
+            sim.resolve(0, Some(cause), false)?;
+        }
         Ok(sim)
     }
 
@@ -386,7 +396,7 @@ impl Simulator {
             };
             let h = if h > 0.0 { h } else { t_next - self.t };
             self.step(h, key_next.is_some() && self.tkey.is_some());
-            if let Some((tau, fired)) = self.locate(h) {
+            if let Some((tau, fired, cmp_fired)) = self.locate(h) {
                 if tau < h {
                     // `locate` left the state at τ in `z_next`.
                     let t_e = self.t + tau;
@@ -396,7 +406,8 @@ impl Simulator {
                     std::mem::swap(&mut self.z, &mut self.z_next);
                     self.check_finite()?;
                     self.stats.state_events += 1;
-                    self.resolve(fired, None, false)?;
+                    let cause = self.fire_comparators(cmp_fired, t_e)?;
+                    self.resolve(fired, cause, false)?;
                     continue;
                 }
             }

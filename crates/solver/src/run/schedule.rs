@@ -66,6 +66,11 @@ impl Simulator {
                 }
             }
         }
+        if let Some((time, key)) = self.next_tick(self.t) {
+            if time < best.0 || (time == best.0 && best.1.is_none()) {
+                best = (time, Some(key));
+            }
+        }
         for &si in &self.pwl_sources {
             let w = self.cc.sources[si]
                 .waveform
@@ -84,6 +89,7 @@ impl Simulator {
         self.signals
             .iter()
             .any(|b| b.edges.front().is_some_and(|e| e.time <= t))
+            || self.has_tick_at(t)
             || self.pwl_sources.iter().any(|&si| {
                 self.cc.sources[si]
                     .waveform
@@ -124,7 +130,7 @@ impl Simulator {
         self.before.extend_from_slice(&self.z.as_slice()[..n_x]);
         let corners = self.set_inputs(t);
         for si in 0..self.cc.sources.len().min(64) {
-            if corners >> si & 1 == 1 {
+            if corners >> si & 1 == 1 && !self.cc.sources[si].internal {
                 self.push_event(t, EventKind::SourceBreakpoint, Who::Source(si), None, false)?;
             }
         }
@@ -156,6 +162,9 @@ impl Simulator {
                 }
             }
             self.key.switches = sw;
+        }
+        if let Some(c) = self.apply_ticks(t)? {
+            cause = Some(c);
         }
         self.resolve(0, cause, false)
     }

@@ -1,0 +1,226 @@
+//! Closed-loop gates: comparator clocks (scheduled ticks at k·T + phase)
+//! and the switching of a gate when its comparison is met (a state event
+//! located like a diode's).
+
+use super::record::Who;
+use super::schedule::TimeKey;
+use super::{dot, Simulator};
+use crate::error::SolverError;
+use crate::events::EventKind;
+
+/// What a comparator tick does.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub(super) enum Tick {
+    /// The clock edge: turn on (or off, for valley control).
+    Clock,
+    /// The minimum on-time has passed: the turn-off comparison counts.
+    EnableOff,
+    /// The maximum on-time is reached: turn off.
+    ForceOff,
+}
+
+impl Simulator {
+    /// The ticks of comparator `ci` as (phase, what), phases in [0, T).
+    fn ticks(&self, ci: usize) -> Vec<(f64, Tick)> {
+        let cmp = &self.cc.comparators[ci];
+        let Some(t) = cmp.spec.period else {
+            return vec![];
+        };
+        let mut v = vec![(0.0, Tick::Clock)];
+        if cmp.spec.min_duty > 0.0 {
+            v.push((cmp.spec.min_duty * t, Tick::EnableOff));
+        }
+        if cmp.spec.max_duty < 1.0 {
+            v.push((cmp.spec.max_duty * t, Tick::ForceOff));
+        }
+        v
+    }
+
+    /// The next comparator tick strictly after `t`: its time and key.
+    pub(super) fn next_tick(&self, t: f64) -> Option<(f64, TimeKey)> {
+        let mut best: Option<(f64, TimeKey)> = None;
+        for ci in 0..self.cc.comparators.len() {
+            let Some(p) = self.cc.comparators[ci].spec.period else {
+                continue;
+            };
+            for (phase, _) in self.ticks(ci) {
+                // k·T + phase, from the cycle number (never accumulated).
+                let mut k = ((t - phase) / p).floor() as i64 + 1;
+                while k as f64 * p + phase <= t {
+                    k += 1;
+                }
+                while k > 0 && (k - 1) as f64 * p + phase > t {
+                    k -= 1;
+                }
+                let time = k as f64 * p + phase;
+                if best.is_none_or(|(b, _)| time < b) {
+                    best = Some((
+                        time,
+                        TimeKey {
+                            cycle: k,
+                            phase,
+                            period: p,
+                        },
+                    ));
+                }
+            }
+        }
+        best
+    }
+
+    /// Ticks due exactly at `t`, as (comparator, what).
+    fn ticks_at(&self, t: f64) -> Vec<(usize, Tick)> {
+        let mut out = vec![];
+        for ci in 0..self.cc.comparators.len() {
+            let Some(p) = self.cc.comparators[ci].spec.period else {
+                continue;
+            };
+            for (phase, what) in self.ticks(ci) {
+                let k = ((t - phase) / p).round();
+                if k >= 0.0 && (k as i64) as f64 * p + phase == t {
+                    out.push((ci, what));
+                }
+            }
+        }
+        out
+    }
+
+    pub(super) fn has_tick_at(&self, t: f64) -> bool {
+        !self.ticks_at(t).is_empty()
+    }
+
+    /// Bits of the comparators whose turn-off guard (bit set in the first
+    /// mask) or turn-on guard (second mask) is active now.
+    pub(super) fn comparator_masks(&self) -> (u64, u64) {
+        let (mut off, mut on) = (0u64, 0u64);
+        for (ci, cmp) in self.cc.comparators.iter().enumerate().take(64) {
+            if self.signal_on[cmp.signal] {
+                if cmp.turn_off.is_some() && self.cmp_enabled_off[ci] {
+                    off |= 1 << ci;
+                }
+            } else if cmp.turn_on.is_some() {
+                on |= 1 << ci;
+            }
+        }
+        (off, on)
+    }
+
+    /// Whether comparator `ci`'s comparison for leaving its present state
+    /// is already met (guard ≤ 0 now, in the present mode).
+    fn comparison_met(&self, ci: usize, turning_off: bool) -> bool {
+        let mode = &self.modes[self.mode as usize];
+        let Some(g) = &mode.cmp_guards[ci][if turning_off { 0 } else { 1 }] else {
+            return false;
+        };
+        dot(g.row.iter().copied(), self.z.as_slice()) <= 0.0
+    }
+
+    /// Sets a comparator gate's signal and logs the switches it drives;
+    /// returns the cause for diagnostics.
+    fn set_comparator(
+        &mut self,
+        ci: usize,
+        on: bool,
+        t: f64,
+    ) -> Result<Option<(usize, bool)>, SolverError> {
+        let sig = self.cc.comparators[ci].signal;
+        if self.signal_on[sig] == on {
+            return Ok(None);
+        }
+        self.signal_on[sig] = on;
+        let sw = self.switch_bits();
+        let diff = sw ^ self.key.switches;
+        let mut cause = None;
+        for i in 0..self.cc.switches.len() {
+            if diff >> i & 1 == 1 {
+                cause = Some((i, on));
+                let kind = if on {
+                    EventKind::SwitchOn
+                } else {
+                    EventKind::SwitchOff
+                };
+                self.push_event(t, kind, Who::Switch(i), None, false)?;
+            }
+        }
+        self.key.switches = sw;
+        Ok(cause)
+    }
+
+    /// Applies the comparator ticks due at `t`; returns whether a gate
+    /// changed and the cause.
+    pub(super) fn apply_ticks(&mut self, t: f64) -> Result<Option<(usize, bool)>, SolverError> {
+        let mut cause = None;
+        for (ci, what) in self.ticks_at(t) {
+            let spec = self.cc.comparators[ci].spec.clone();
+            let on = self.signal_on[self.cc.comparators[ci].signal];
+            let c = match what {
+                Tick::Clock => {
+                    self.cmp_enabled_off[ci] = spec.min_duty == 0.0;
+                    match spec.clock_turns {
+                        // A pulse whose turn-off comparison is already met
+                        // (and may count) is skipped.
+                        Some(true) if !on => {
+                            if self.cmp_enabled_off[ci] && self.comparison_met(ci, true) {
+                                None
+                            } else {
+                                self.set_comparator(ci, true, t)?
+                            }
+                        }
+                        Some(false) if on => self.set_comparator(ci, false, t)?,
+                        _ => None,
+                    }
+                }
+                Tick::EnableOff => {
+                    self.cmp_enabled_off[ci] = true;
+                    if on && self.comparison_met(ci, true) {
+                        self.set_comparator(ci, false, t)?
+                    } else {
+                        None
+                    }
+                }
+                Tick::ForceOff if on => self.set_comparator(ci, false, t)?,
+                Tick::ForceOff => None,
+            };
+            cause = cause.or(c);
+        }
+        Ok(cause)
+    }
+
+    /// Comparators without a clock (hysteretic) take their state at t = 0:
+    /// on unless their turn-off comparison is already met; clocked ones
+    /// start with their clock tick at t = 0.
+    pub(super) fn start_comparators(&mut self) -> Result<Option<(usize, bool)>, SolverError> {
+        let mut cause = None;
+        for ci in 0..self.cc.comparators.len() {
+            if self.cc.comparators[ci].spec.period.is_none() {
+                self.cmp_enabled_off[ci] = true;
+                let met = self.comparison_met(ci, true);
+                if let Some(c) = self.set_comparator(ci, !met, 0.0)? {
+                    cause = Some(c);
+                }
+            }
+        }
+        if let Some(c) = self.apply_ticks(0.0)? {
+            cause = Some(c);
+        }
+        Ok(cause)
+    }
+
+    /// Toggles the comparators whose guard fired (state event).
+    pub(super) fn fire_comparators(
+        &mut self,
+        bits: u64,
+        t: f64,
+    ) -> Result<Option<(usize, bool)>, SolverError> {
+        let mut cause = None;
+        for ci in 0..self.cc.comparators.len().min(64) {
+            if bits >> ci & 1 == 1 {
+                let on = self.signal_on[self.cc.comparators[ci].signal];
+                if let Some(c) = self.set_comparator(ci, !on, t)? {
+                    cause = Some(c);
+                }
+            }
+        }
+        Ok(cause)
+    }
+}
