@@ -308,10 +308,7 @@ impl Compiled {
             let mut make = |cmp: Option<fluxstep_netlist::Comparison>, which: &str| {
                 cmp.map(|cmp| {
                     let mut threshold = vec![];
-                    if cmp.slope == 0.0 || spec.period.is_none() {
-                        threshold.push((n_x, cmp.base));
-                    } else {
-                        let t = spec.period.expect("checked");
+                    if let (Some(t), true) = (spec.period, cmp.slope != 0.0) {
                         c.sources.push(SourceRef {
                             name: format!("{sig_name}.{which}"),
                             terms: vec![(n_x + n_u, 1.0)],
@@ -333,6 +330,8 @@ impl Compiled {
                         });
                         threshold.push((n_x + n_u, 1.0));
                         n_u += 1;
+                    } else {
+                        threshold.push((n_x, cmp.base));
                     }
                     (cmp.above, threshold)
                 })
