@@ -154,8 +154,17 @@ impl Waveform {
                 match period {
                     Some(p) if *p > 0.0 => {
                         let k = (t / p).floor();
-                        // Rounding may put t just before k·p: step back one period.
-                        let k = if k * p > t { k - 1.0 } else { k };
+                        // Rounding of t/p may land one period off either
+                        // way; k·p (the form every schedule uses for the
+                        // same instant) decides, so a corner computed
+                        // elsewhere as k·p falls in the new repetition.
+                        let k = if k * p > t {
+                            k - 1.0
+                        } else if (k + 1.0) * p <= t {
+                            k + 1.0
+                        } else {
+                            k
+                        };
                         let local = pwl_piece(points, t - k * p);
                         let shift = |x: f64| if x.is_finite() { k * p + x } else { x };
                         // Before the first corner the first value holds until
@@ -233,6 +242,31 @@ mod tests {
         assert_eq!(w.value_at(9.0), 10.0);
         let p = w.piece_at(1.5).unwrap();
         assert_eq!((p.start, p.end, p.slope), (1.0, 2.0, 10.0));
+    }
+
+    #[test]
+    fn repeating_pwl_corner_at_k_times_period() {
+        // 3·(1e-5) is not exactly 3e-5; the corner there must start the new
+        // repetition whatever t/p rounds to.
+        let p = 1e-5;
+        let w = Waveform::PiecewiseLinear {
+            points: vec![
+                Point {
+                    time: 0.0,
+                    value: 0.0,
+                },
+                Point {
+                    time: p,
+                    value: 1.0,
+                },
+            ],
+            period: Some(p),
+        };
+        for k in 1..2000 {
+            let t = k as f64 * p;
+            assert_eq!(w.value_at(t), 0.0, "k = {k}");
+            assert_eq!(w.piece_at(t).unwrap().start, t);
+        }
     }
 
     #[test]

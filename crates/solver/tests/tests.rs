@@ -5,6 +5,7 @@
 //! - `physics::converters`: buck (continuous and discontinuous conduction),
 //!   boost and rectifier against textbook relations.
 //! - `physics::crosscheck`: the buck against an adaptive Runge–Kutta solver.
+//! - `physics::control`: closed-loop gates and compensators.
 //! - `physics::structure`: jumps, interruption, shoot-through, chatter,
 //!   floating nodes, magnetics and dead time.
 

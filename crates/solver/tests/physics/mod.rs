@@ -1,3 +1,4 @@
+mod control;
 mod converters;
 mod crosscheck;
 mod exact;
