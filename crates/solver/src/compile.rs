@@ -39,7 +39,10 @@ pub(crate) struct CompiledCompensator {
     pub b: Vec<f64>,
     pub c: Vec<f64>,
     pub d: f64,
-    pub reference: f64,
+    /// z index of the set-point input.
+    pub reference_z: usize,
+    /// Its source entry (changed at run time by controllers).
+    pub reference_source: usize,
     /// Output index of the measured quantity.
     pub input: usize,
 }
@@ -48,6 +51,8 @@ pub(crate) struct CompiledCompensator {
 #[derive(Clone, Debug)]
 pub(crate) struct CompiledComparison {
     pub above: bool,
+    /// Its threshold input's source entry.
+    pub source: usize,
     /// The threshold as a linear function of z (a constant times the unit
     /// input, or a sawtooth input).
     pub threshold: Vec<f64>,
@@ -307,38 +312,53 @@ impl Compiled {
             };
             let mut make = |cmp: Option<fluxstep_netlist::Comparison>, which: &str| {
                 cmp.map(|cmp| {
-                    let mut threshold = vec![];
-                    if let (Some(t), true) = (spec.period, cmp.slope != 0.0) {
-                        c.sources.push(SourceRef {
-                            name: format!("{sig_name}.{which}"),
-                            terms: vec![(n_x + n_u, 1.0)],
-                            waveform: Some(Waveform::PiecewiseLinear {
-                                points: vec![
-                                    fluxstep_netlist::Point {
-                                        time: 0.0,
-                                        value: cmp.base,
-                                    },
-                                    fluxstep_netlist::Point {
-                                        time: t,
-                                        value: cmp.base + cmp.slope * t,
-                                    },
-                                ],
-                                period: Some(t),
-                            }),
-                            input: Some(n_u),
-                            internal: true,
-                        });
-                        threshold.push((n_x + n_u, 1.0));
-                        n_u += 1;
-                    } else {
-                        threshold.push((n_x, cmp.base));
-                    }
-                    (cmp.above, threshold)
+                    // Always an input (constant, or a sawtooth restarting
+                    // at each clock edge), so a controller can move the
+                    // reference at run time without rebuilding any mode.
+                    let waveform = match (spec.period, cmp.slope != 0.0) {
+                        (Some(t), true) => Waveform::PiecewiseLinear {
+                            points: vec![
+                                fluxstep_netlist::Point {
+                                    time: 0.0,
+                                    value: cmp.base,
+                                },
+                                fluxstep_netlist::Point {
+                                    time: t,
+                                    value: cmp.base + cmp.slope * t,
+                                },
+                            ],
+                            period: Some(t),
+                        },
+                        _ => Waveform::Constant { value: cmp.base },
+                    };
+                    c.sources.push(SourceRef {
+                        name: format!("{sig_name}.{which}"),
+                        terms: vec![(n_x + n_u, 1.0)],
+                        waveform: Some(waveform),
+                        input: Some(n_u),
+                        internal: true,
+                    });
+                    let threshold = vec![(n_x + n_u, 1.0)];
+                    n_u += 1;
+                    (cmp.above, threshold, c.sources.len() - 1)
                 })
             };
             let off = make(spec.turn_off, "turn_off_threshold");
             let on = make(spec.turn_on, "turn_on_threshold");
             comparisons.push((si, spec, off, on));
+        }
+        // Compensator set-points, also inputs for the same reason.
+        let mut reference_inputs = vec![];
+        for k in &circuit.compensators {
+            c.sources.push(SourceRef {
+                name: format!("{}.reference", k.name),
+                terms: vec![(n_x + n_u, 1.0)],
+                waveform: Some(Waveform::Constant { value: k.reference }),
+                input: Some(n_u),
+                internal: true,
+            });
+            reference_inputs.push((n_x + n_u, c.sources.len() - 1));
+            n_u += 1;
         }
         c.n_u = n_u;
         let nz = n_x + 2 * n_u;
@@ -352,9 +372,10 @@ impl Compiled {
         let pending_comparators: Vec<_> = comparisons
             .into_iter()
             .map(|(si, spec, off, on)| {
-                let conv = |x: Option<(bool, Vec<(usize, f64)>)>| {
-                    x.map(|(above, t)| CompiledComparison {
+                let conv = |x: Option<(bool, Vec<(usize, f64)>, usize)>| {
+                    x.map(|(above, t, source)| CompiledComparison {
                         above,
+                        source,
                         threshold: row_of(t),
                     })
                 };
@@ -544,7 +565,9 @@ impl Compiled {
                     .push((format!("{}.voltage", b.name), OutputDef::BranchVoltage(i)));
             }
         }
-        for (k, (comp, states, a, b, cv, d)) in realised.into_iter().enumerate() {
+        for (k, ((comp, states, a, b, cv, d), (reference_z, reference_source))) in
+            realised.into_iter().zip(reference_inputs).enumerate()
+        {
             c.outputs
                 .push((format!("{}.output", comp.name), OutputDef::Compensator(k)));
             c.compensators.push(CompiledCompensator {
@@ -554,7 +577,8 @@ impl Compiled {
                 b,
                 c: cv,
                 d,
-                reference: comp.reference,
+                reference_z,
+                reference_source,
                 input: usize::MAX,
             });
         }

@@ -120,6 +120,15 @@ pub enum SolverError {
         /// The state or output concerned.
         what: String,
     },
+    /// A controller asked for something impossible (an unknown gate, a duty
+    /// outside [0, 1], an edge in the past…), or was set up wrongly.
+    #[error("t = {time:e} s: controller: {message}")]
+    Control {
+        /// Time (s).
+        time: f64,
+        /// What was wrong, naming the gate or output.
+        message: String,
+    },
     /// A time argument is invalid (before the present time, not finite…).
     #[error("invalid time {time:e} s: {reason}")]
     BadTime {

@@ -47,6 +47,7 @@
 #![deny(missing_docs)]
 
 mod compile;
+pub mod control;
 mod error;
 mod events;
 pub mod measure;

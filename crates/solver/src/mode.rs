@@ -712,7 +712,7 @@ impl Mode {
                     for (j, &st) in comp.states.iter().enumerate() {
                         r[st] += comp.c[j];
                     }
-                    r[one] += comp.d * comp.reference;
+                    r[comp.reference_z] += comp.d;
                     r -= cm.row(comp.input).transpose() * comp.d;
                     let f = if undetermined[comp.input] {
                         DVector::from_element(1, 1.0)
@@ -805,7 +805,7 @@ impl Mode {
             let input_row = cm.row(comp.input).into_owned();
             for (i, &si) in comp.states.iter().enumerate() {
                 let mut r = input_row.clone() * -comp.b[i];
-                r[one] += comp.b[i] * comp.reference;
+                r[comp.reference_z] += comp.b[i];
                 for (j, &sj) in comp.states.iter().enumerate() {
                     r[sj] += comp.a[(i, j)];
                 }

@@ -12,6 +12,7 @@ mod control;
 mod locate;
 mod record;
 mod resolve;
+mod sampled;
 mod schedule;
 
 use std::collections::{HashMap, VecDeque};
@@ -130,6 +131,12 @@ pub struct Simulator {
     /// Per comparator: whether its turn-off comparison counts yet (the
     /// minimum on-time has passed).
     cmp_enabled_off: Vec<bool>,
+    /// The circuit's gates, changed at run time by controllers.
+    gates: Vec<fluxstep_netlist::Gate>,
+    /// For each signal, the index of its gate.
+    signal_gate: Vec<usize>,
+    controllers: Vec<sampled::Slot>,
+    pending: Vec<sampled::Pending>,
     /// Indices of piecewise-linear sources (the only ones with corners).
     pwl_sources: Vec<usize>,
     wave: Waveform,
@@ -191,6 +198,17 @@ impl Simulator {
             .collect();
         let signal_on = cc.signals.iter().map(|(_, s)| s.is_on(0.0)).collect();
         let n_cmp = cc.comparators.len();
+        let signal_gate = cc
+            .signals
+            .iter()
+            .map(|(name, _)| {
+                circuit
+                    .gates
+                    .iter()
+                    .position(|g| g.signals().iter().any(|(n, _)| n == name))
+                    .expect("every signal comes from a gate")
+            })
+            .collect();
         let pwl_sources = (0..cc.sources.len())
             .filter(|&i| cc.sources[i].input.is_some())
             .collect();
@@ -233,6 +251,10 @@ impl Simulator {
             signals,
             signal_on,
             cmp_enabled_off: vec![true; n_cmp],
+            signal_gate,
+            gates: circuit.gates.clone(),
+            controllers: vec![],
+            pending: vec![],
             pwl_sources,
             wave,
             log,

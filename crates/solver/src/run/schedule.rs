@@ -66,6 +66,11 @@ impl Simulator {
                 }
             }
         }
+        if let Some((time, key)) = self.next_control(self.t) {
+            if time < best.0 || (time == best.0 && best.1.is_none() && key.is_some()) {
+                best = (time, key);
+            }
+        }
         if let Some((time, key)) = self.next_tick(self.t) {
             if time < best.0 || (time == best.0 && best.1.is_none()) {
                 best = (time, Some(key));
@@ -90,6 +95,7 @@ impl Simulator {
             .iter()
             .any(|b| b.edges.front().is_some_and(|e| e.time <= t))
             || self.has_tick_at(t)
+            || self.has_control_at(t)
             || self.pwl_sources.iter().any(|&si| {
                 self.cc.sources[si]
                     .waveform
@@ -134,6 +140,13 @@ impl Simulator {
                 self.push_event(t, EventKind::SourceBreakpoint, Who::Source(si), None, false)?;
             }
         }
+        self.run_controllers(t)?;
+        self.settle_instant(t)
+    }
+
+    /// Gate edges and comparator ticks due at `t`, then the conduction
+    /// pattern that follows.
+    pub(super) fn settle_instant(&mut self, t: f64) -> Result<(), SolverError> {
         let mut changed = false;
         for i in 0..self.signals.len() {
             while let Some(e) = self.signals[i].edges.front() {

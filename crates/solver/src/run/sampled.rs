@@ -1,0 +1,366 @@
+//! Sampled controllers inside the run: sample instants at `k·Ts + offset`
+//! (scheduled like gate edges), commands applied after their delay, gate
+//! schedules rebuilt from the instant a change takes effect.
+
+use fluxstep_netlist::{Edge, Gate, Waveform};
+
+use super::schedule::TimeKey;
+use super::{dot, Simulator};
+use crate::control::{Apply, Command, Commands, Controller, Sampling};
+use crate::error::SolverError;
+
+/// A controller and how it samples.
+pub(super) struct Slot {
+    pub sampling: Sampling,
+    pub controller: Box<dyn Controller>,
+    pub inputs: Vec<usize>,
+}
+
+/// Commands waiting for their delay to pass.
+pub(super) struct Pending {
+    pub time: f64,
+    pub key: Option<TimeKey>,
+    pub apply: Apply,
+    pub commands: Vec<Command>,
+}
+
+fn control_err(time: f64, message: String) -> SolverError {
+    SolverError::Control { time, message }
+}
+
+impl Simulator {
+    /// Attaches a sampled controller. Its first sample is the first instant
+    /// `k·period + offset` not before the present time.
+    ///
+    /// # Errors
+    ///
+    /// [`SolverError::UnknownOutput`] for an input that is not an output;
+    /// [`SolverError::Control`] for a non-positive period or a negative
+    /// offset or delay.
+    pub fn add_controller(
+        &mut self,
+        sampling: Sampling,
+        controller: Box<dyn Controller>,
+    ) -> Result<(), SolverError> {
+        if !(sampling.period > 0.0 && sampling.period.is_finite()) {
+            return Err(control_err(
+                self.t,
+                format!("sample period must be positive, got {}", sampling.period),
+            ));
+        }
+        if !(sampling.offset >= 0.0 && sampling.offset.is_finite())
+            || !(sampling.delay >= 0.0 && sampling.delay.is_finite())
+        {
+            return Err(control_err(
+                self.t,
+                "sample offset and delay must be finite and not negative".into(),
+            ));
+        }
+        let inputs = sampling
+            .inputs
+            .iter()
+            .map(|n| self.cc.output_index(n))
+            .collect::<Result<Vec<_>, _>>()?;
+        self.controllers.push(Slot {
+            sampling,
+            controller,
+            inputs,
+        });
+        // A sample due right now is taken now.
+        let i = self.controllers.len() - 1;
+        if self.sample_due(i, self.t).is_some() {
+            let t = self.t;
+            self.sample(i, t)?;
+            self.apply_pending(t)?;
+            self.settle_instant(t)?;
+        }
+        Ok(())
+    }
+
+    /// The cycle number if controller `i` samples exactly at `t`.
+    fn sample_due(&self, i: usize, t: f64) -> Option<i64> {
+        let s = &self.controllers[i].sampling;
+        let k = ((t - s.offset) / s.period).round();
+        (k >= 0.0 && (k as i64) as f64 * s.period + s.offset == t).then_some(k as i64)
+    }
+
+    /// The next sample or pending command strictly after `t`.
+    pub(super) fn next_control(&self, t: f64) -> Option<(f64, Option<TimeKey>)> {
+        let mut best: Option<(f64, Option<TimeKey>)> = None;
+        for slot in &self.controllers {
+            let s = &slot.sampling;
+            let mut k = ((t - s.offset) / s.period).floor() as i64 + 1;
+            while k as f64 * s.period + s.offset <= t {
+                k += 1;
+            }
+            while k > 0 && (k - 1) as f64 * s.period + s.offset > t {
+                k -= 1;
+            }
+            let time = k as f64 * s.period + s.offset;
+            if best.is_none_or(|(b, _)| time < b) {
+                best = Some((
+                    time,
+                    Some(TimeKey {
+                        cycle: k,
+                        phase: s.offset,
+                        period: s.period,
+                    }),
+                ));
+            }
+        }
+        for p in &self.pending {
+            if p.time > t && best.is_none_or(|(b, _)| p.time < b) {
+                best = Some((p.time, p.key));
+            }
+        }
+        best
+    }
+
+    pub(super) fn has_control_at(&self, t: f64) -> bool {
+        (0..self.controllers.len()).any(|i| self.sample_due(i, t).is_some())
+            || self.pending.iter().any(|p| p.time <= t)
+    }
+
+    /// Samples the controllers due at `t` and applies commands that are due.
+    pub(super) fn run_controllers(&mut self, t: f64) -> Result<(), SolverError> {
+        for i in 0..self.controllers.len() {
+            if self.sample_due(i, t).is_some() {
+                self.sample(i, t)?;
+            }
+        }
+        self.apply_pending(t)
+    }
+
+    fn sample(&mut self, i: usize, t: f64) -> Result<(), SolverError> {
+        let k = self.sample_due(i, t).expect("sampled only when due");
+        let mode = self.modes[self.mode as usize].clone();
+        let values: Vec<Option<f64>> = self.controllers[i]
+            .inputs
+            .iter()
+            .map(|&o| {
+                (!mode.undetermined[o])
+                    .then(|| dot(mode.c.row(o).iter().copied(), self.z.as_slice()))
+            })
+            .collect();
+        let mut commands = Commands::default();
+        self.controllers[i]
+            .controller
+            .sample(t, &values, &mut commands);
+        if commands.list.is_empty() {
+            return Ok(());
+        }
+        let s = &self.controllers[i].sampling;
+        let (time, key) = if s.delay == 0.0 {
+            (t, None)
+        } else {
+            // k·Ts + (offset + delay): the same bits every period.
+            let phase = s.offset + s.delay;
+            (
+                k as f64 * s.period + phase,
+                Some(TimeKey {
+                    cycle: k,
+                    phase,
+                    period: s.period,
+                }),
+            )
+        };
+        let pos = self.pending.partition_point(|p| p.time <= time);
+        self.pending.insert(
+            pos,
+            Pending {
+                time,
+                key,
+                apply: s.apply,
+                commands: commands.list,
+            },
+        );
+        Ok(())
+    }
+
+    fn apply_pending(&mut self, t: f64) -> Result<(), SolverError> {
+        while self.pending.first().is_some_and(|p| p.time <= t) {
+            let p = self.pending.remove(0);
+            for c in p.commands {
+                self.apply_command(t, p.apply, c)?;
+            }
+        }
+        Ok(())
+    }
+
+    fn apply_command(&mut self, t: f64, apply: Apply, c: Command) -> Result<(), SolverError> {
+        match c {
+            Command::Duty(name, duty) => {
+                if !(0.0..=1.0).contains(&duty) {
+                    return Err(control_err(
+                        t,
+                        format!("duty {duty} for gate {name} is outside [0, 1]"),
+                    ));
+                }
+                let gi = self.pwm_gate(&name, t)?;
+                match &mut self.gates[gi] {
+                    Gate::Pwm { duty: d, .. } | Gate::ComplementaryPwm { duty: d, .. } => *d = duty,
+                    _ => unreachable!("pwm_gate returns pwm gates"),
+                }
+                self.reschedule(gi, t, apply)
+            }
+            Command::Delay(name, delay) => {
+                if !delay.is_finite() {
+                    return Err(control_err(
+                        t,
+                        format!("delay {delay} for gate {name} is not finite"),
+                    ));
+                }
+                let gi = self.pwm_gate(&name, t)?;
+                match &mut self.gates[gi] {
+                    Gate::Pwm { delay: d, .. } | Gate::ComplementaryPwm { delay: d, .. } => {
+                        *d = delay
+                    }
+                    _ => unreachable!("pwm_gate returns pwm gates"),
+                }
+                self.reschedule(gi, t, apply)
+            }
+            Command::Reference(name, value) => {
+                if !value.is_finite() {
+                    return Err(control_err(
+                        t,
+                        format!("reference {value} for {name} is not finite"),
+                    ));
+                }
+                let mut sources = vec![];
+                if let Some(k) = self.cc.compensators.iter().find(|k| k.name == name) {
+                    sources.push(k.reference_source);
+                }
+                for cmp in &self.cc.comparators {
+                    if self.cc.signals[cmp.signal].0 == name
+                        && matches!(
+                            self.gates[self.signal_gate[cmp.signal]],
+                            Gate::PeakCurrent { .. } | Gate::ValleyCurrent { .. }
+                        )
+                    {
+                        sources.extend(cmp.turn_off.iter().chain(&cmp.turn_on).map(|c| c.source));
+                    }
+                }
+                if sources.is_empty() {
+                    return Err(control_err(
+                        t,
+                        format!("no compensator or current-control gate is named {name}"),
+                    ));
+                }
+                for si in sources {
+                    let w = self.cc.sources[si]
+                        .waveform
+                        .as_mut()
+                        .expect("internal inputs have waveforms");
+                    match w {
+                        Waveform::Constant { value: v } => *v = value,
+                        Waveform::PiecewiseLinear { points, .. } => {
+                            let shift = value - points[0].value;
+                            for p in points.iter_mut() {
+                                p.value += shift;
+                            }
+                        }
+                        Waveform::Sine { .. } => unreachable!("thresholds are never sines"),
+                    }
+                }
+                self.set_inputs(t);
+                Ok(())
+            }
+            Command::Edge(signal, time, on) => {
+                let Some(si) = self.cc.signals.iter().position(|(n, _)| *n == signal) else {
+                    return Err(control_err(t, format!("no gate signal is named {signal}")));
+                };
+                if !matches!(self.gates[self.signal_gate[si]], Gate::Transitions { .. }) {
+                    return Err(control_err(
+                        t,
+                        format!("edges can only be scheduled on transitions gates, not {signal}"),
+                    ));
+                }
+                if !(time >= t && time.is_finite()) {
+                    return Err(control_err(
+                        t,
+                        format!("edge of {signal} at {time:e} s lies in the past"),
+                    ));
+                }
+                let b = &mut self.signals[si];
+                let pos = b.edges.partition_point(|e| e.time <= time);
+                b.edges.insert(
+                    pos,
+                    Edge {
+                        time,
+                        on,
+                        cycle: 0,
+                        phase: time,
+                        period: None,
+                    },
+                );
+                Ok(())
+            }
+        }
+    }
+
+    fn pwm_gate(&self, name: &str, t: f64) -> Result<usize, SolverError> {
+        self.gates
+            .iter()
+            .position(|g| {
+                g.name() == name && matches!(g, Gate::Pwm { .. } | Gate::ComplementaryPwm { .. })
+            })
+            .ok_or_else(|| {
+                control_err(
+                    t,
+                    format!("no pwm or complementary_pwm gate is named {name}"),
+                )
+            })
+    }
+
+    /// New shapes for gate `gi`'s signals; their buffered edges from the
+    /// instant the change takes effect are regenerated.
+    fn reschedule(&mut self, gi: usize, t: f64, apply: Apply) -> Result<(), SolverError> {
+        for (name, shape) in self.gates[gi].signals() {
+            let si = self
+                .cc
+                .signals
+                .iter()
+                .position(|(n, _)| *n == name)
+                .expect("signals of a known gate");
+            let t_from = match (apply, shape.period) {
+                (Apply::NextPeriod, Some(p)) => {
+                    // The next period start k·T + d0 not before t.
+                    let d0 = match &self.gates[gi] {
+                        Gate::Pwm { delay, .. } | Gate::ComplementaryPwm { delay, .. } => {
+                            delay.rem_euclid(p)
+                        }
+                        _ => 0.0,
+                    };
+                    let mut k = ((t - d0) / p).ceil();
+                    while k * p + d0 < t {
+                        k += 1.0;
+                    }
+                    while (k - 1.0) * p + d0 >= t {
+                        k -= 1.0;
+                    }
+                    k * p + d0
+                }
+                _ => t,
+            };
+            self.cc.signals[si].1 = shape;
+            let b = &mut self.signals[si];
+            b.edges.retain(|e| e.time < t_from);
+            b.filled_to = t_from;
+            self.refill(si, t_from);
+            if apply == Apply::Immediately {
+                let now = self.cc.signals[si].1.is_on(t);
+                let edge_now = self.signals[si].edges.front().is_some_and(|e| e.time <= t);
+                if now != self.signal_on[si] && !edge_now {
+                    self.signals[si].edges.push_front(Edge {
+                        time: t,
+                        on: now,
+                        cycle: 0,
+                        phase: t,
+                        period: None,
+                    });
+                }
+            }
+        }
+        Ok(())
+    }
+}
