@@ -372,7 +372,7 @@ impl Compiled {
         let pending_comparators: Vec<_> = comparisons
             .into_iter()
             .map(|(si, spec, off, on)| {
-                let conv = |x: Option<(bool, Vec<(usize, f64)>, usize)>| {
+                let conv = |x: Option<PendingComparison>| {
                     x.map(|(above, t, source)| CompiledComparison {
                         above,
                         source,
@@ -631,6 +631,9 @@ impl Compiled {
         e
     }
 }
+
+/// (above, threshold terms over z, source index) of a comparison being compiled.
+type PendingComparison = (bool, Vec<(usize, f64)>, usize);
 
 /// A state-space realisation (A, B, C, D) of a compensator law, single
 /// input (the error) and single output.
