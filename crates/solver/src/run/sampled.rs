@@ -48,9 +48,8 @@ impl Simulator {
                 format!("sample period must be positive, got {}", sampling.period),
             ));
         }
-        if !(sampling.offset >= 0.0 && sampling.offset.is_finite())
-            || !(sampling.delay >= 0.0 && sampling.delay.is_finite())
-        {
+        let ok = |x: f64| x >= 0.0 && x.is_finite();
+        if !(ok(sampling.offset) && ok(sampling.delay)) {
             return Err(control_err(
                 self.t,
                 "sample offset and delay must be finite and not negative".into(),
