@@ -566,3 +566,74 @@ fn resistive_shoot_through_is_stopped_or_recorded() {
         0.0
     );
 }
+
+/// After a jump the floating-node rules still hold: a bridge rectifier's
+/// capacitor shares its charge with a second one (the jump dissipates
+/// ½·C1C2/(C1 + C2)·ΔV²), the bridge then blocks and its source side reads
+/// as undetermined, and the next half-cycle's diode turn-on across those
+/// floating nodes is still found, recharging the pair to the peak (charge
+/// conservation, ideal diodes; common practice).
+#[test]
+fn floating_nodes_after_a_charge_jump() {
+    let (vp, f, c1, c2) = (10.0, 1e3, 10e-6, 1e-6);
+    let c = Circuit::builder()
+        .voltage_waveform(
+            "Vac",
+            "ac1",
+            "ac2",
+            fluxstep_netlist::Waveform::sine(0.0, vp, f, 0.0),
+        )
+        .diode("D1", "ac1", "pos")
+        .diode("D2", "ac2", "pos")
+        .diode("D3", "gnd", "ac1")
+        .diode("D4", "gnd", "ac2")
+        .capacitor("C1", "pos", "gnd", c1)
+        .resistor("Rload", "pos", "gnd", 10e3)
+        .switch("S1", "pos", "b", "g")
+        .capacitor("C2", "b", "gnd", c2)
+        .gate(gate("g", &[(0.45e-3, true)], false))
+        .build()
+        .unwrap();
+    let run = simulate(&c, 1e-3, Options::default()).unwrap();
+    let w = &run.waveform;
+    let jump = run
+        .events
+        .of_kind(EventKind::ChargeJump)
+        .next()
+        .expect("the charge jump is recorded");
+    assert_eq!(jump.time, 0.45e-3);
+    let v_before = jump.before[run
+        .events
+        .state_names()
+        .iter()
+        .position(|n| n == "C1.voltage")
+        .unwrap()];
+    let loss = 0.5 * c1 * c2 / (c1 + c2) * v_before * v_before;
+    assert!(
+        rel(jump.energy.unwrap(), loss) < 1e-12,
+        "{} vs {loss}",
+        jump.energy.unwrap()
+    );
+    let shared = c1 * v_before / (c1 + c2);
+    assert!(
+        rel(
+            w.value(w.output("C2.voltage").unwrap(), 0.45e-3).unwrap(),
+            shared
+        ) < 1e-12
+    );
+    assert!(w.value(w.output("ac1").unwrap(), 0.5e-3).is_none());
+    let on = run
+        .events
+        .of("D2")
+        .find(|e| e.kind == EventKind::DiodeOn && e.time > 0.45e-3)
+        .expect("D2 turns on");
+    assert!(on.time > 0.5e-3 && on.time < 0.75e-3, "{:e}", on.time);
+    assert!(
+        rel(
+            w.value(w.output("C1.voltage").unwrap(), 0.75e-3).unwrap(),
+            vp
+        ) < 1e-9
+    );
+    let (d, s) = energy_balance(&c, &run);
+    assert!(rel(s, d) < 1e-9, "energy {d} vs {s}");
+}
