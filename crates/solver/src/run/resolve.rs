@@ -32,9 +32,8 @@ enum Rejection {
 }
 
 struct Interruption {
+    mode: u32,
     windings: Vec<usize>,
-    current: f64,
-    energy: f64,
 }
 
 impl Simulator {
@@ -157,6 +156,17 @@ impl Simulator {
                         _ => {}
                     }
                 }
+                if !cut_violated.is_empty() && !allow_cut {
+                    // Kept as numbers; the diagnostic is built only if no
+                    // candidate holds.
+                    if interruption.is_none() {
+                        interruption = Some(Interruption {
+                            mode: mi,
+                            windings: cut_violated,
+                        });
+                    }
+                    continue;
+                }
                 // The candidate state (after any jump) goes into a scratch
                 // buffer; `commit` swaps it in.
                 if mode.constraints.is_empty() {
@@ -165,25 +175,6 @@ impl Simulator {
                     propagate::matvec(&mode.p, self.z.as_slice(), self.z_try.as_mut_slice());
                 }
                 let z1 = &self.z_try;
-                if !cut_violated.is_empty() && !allow_cut {
-                    if interruption.is_none() {
-                        let current = cut_violated
-                            .iter()
-                            .filter_map(|&b| match self.cc.branches[b].kind {
-                                BranchKind::Winding { state } => Some(self.z[state].abs()),
-                                _ => None,
-                            })
-                            .fold(0.0, f64::max);
-                        let energy = self.cc.stored_energy(self.z.as_slice())
-                            - self.cc.stored_energy(z1.as_slice());
-                        interruption = Some(Interruption {
-                            windings: cut_violated,
-                            current,
-                            energy,
-                        });
-                    }
-                    continue;
-                }
                 if let Some(fi) = mode.free_checks.iter().position(|(row, _, _)| {
                     let v = dot(row.iter().copied(), z1.as_slice());
                     let s: f64 = row.iter().zip(z1.iter()).map(|(a, b)| (a * b).abs()).sum();
@@ -287,16 +278,27 @@ impl Simulator {
     ) -> SolverError {
         let cause = self.cause_text(cause);
         if let Some(i) = interruption {
+            let current = i
+                .windings
+                .iter()
+                .filter_map(|&b| match self.cc.branches[b].kind {
+                    BranchKind::Winding { state } => Some(self.z[state].abs()),
+                    _ => None,
+                })
+                .fold(0.0, f64::max);
+            let z1 = &self.modes[i.mode as usize].p * &self.z;
+            let energy =
+                self.cc.stored_energy(self.z.as_slice()) - self.cc.stored_energy(z1.as_slice());
             return SolverError::InductorInterrupted {
                 time: self.t,
                 cause,
+                current,
+                energy,
                 inductors: i
                     .windings
                     .iter()
                     .map(|&b| self.cc.branches[b].name.clone())
                     .collect(),
-                current: i.current,
-                energy: i.energy,
             };
         }
         match other {
