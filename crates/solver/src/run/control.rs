@@ -21,7 +21,8 @@ pub(super) enum Tick {
 
 impl Simulator {
     /// The ticks of comparator `ci` as (phase, what), phases in [0, T).
-    fn ticks(&self, ci: usize) -> Vec<(f64, Tick)> {
+    /// Computed once per comparator (see `Simulator::new`).
+    pub(super) fn make_ticks(&self, ci: usize) -> Vec<(f64, Tick)> {
         let cmp = &self.cc.comparators[ci];
         let Some(t) = cmp.spec.period else {
             return vec![];
@@ -43,7 +44,7 @@ impl Simulator {
             let Some(p) = self.cc.comparators[ci].spec.period else {
                 continue;
             };
-            for (phase, _) in self.ticks(ci) {
+            for &(phase, _) in &self.cmp_ticks[ci] {
                 // k·T + phase, from the cycle number (never accumulated).
                 let mut k = ((t - phase) / p).floor() as i64 + 1;
                 while k as f64 * p + phase <= t {
@@ -75,7 +76,7 @@ impl Simulator {
             let Some(p) = self.cc.comparators[ci].spec.period else {
                 continue;
             };
-            for (phase, what) in self.ticks(ci) {
+            for &(phase, what) in &self.cmp_ticks[ci] {
                 let k = ((t - phase) / p).round();
                 if k >= 0.0 && (k as i64) as f64 * p + phase == t {
                     out.push((ci, what));
@@ -86,7 +87,7 @@ impl Simulator {
     }
 
     pub(super) fn has_tick_at(&self, t: f64) -> bool {
-        !self.ticks_at(t).is_empty()
+        !self.cc.comparators.is_empty() && !self.ticks_at(t).is_empty()
     }
 
     /// Bits of the comparators whose turn-off guard (bit set in the first
@@ -150,6 +151,9 @@ impl Simulator {
     /// changed and the cause.
     pub(super) fn apply_ticks(&mut self, t: f64) -> Result<Option<(usize, bool)>, SolverError> {
         let mut cause = None;
+        if self.cc.comparators.is_empty() {
+            return Ok(None);
+        }
         for (ci, what) in self.ticks_at(t) {
             let spec = self.cc.comparators[ci].spec.clone();
             let on = self.signal_on[self.cc.comparators[ci].signal];

@@ -88,7 +88,9 @@ impl Simulator {
         if n == 1 {
             // Exact end-point checks first: nothing more to do in the
             // common case of an interval with no event.
-            let scales = self.scales();
+            // The run's scales as of the last resolved instant: floors are
+            // 1e-13 of them, so a lag of one interval does not matter.
+            let scales = self.seen;
             let (za, zb) = (self.z.as_slice(), self.z_next.as_slice());
             let suspect = guards.clone().any(|g| {
                 let tol = ZERO_REL * abs_dot(&g.row, za).max(abs_dot(&g.row, zb))

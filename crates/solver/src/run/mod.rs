@@ -131,6 +131,8 @@ pub struct Simulator {
     /// Per comparator: whether its turn-off comparison counts yet (the
     /// minimum on-time has passed).
     cmp_enabled_off: Vec<bool>,
+    /// Per comparator: its ticks within a period as (phase, what).
+    cmp_ticks: Vec<Vec<(f64, control::Tick)>>,
     /// The circuit's gates, changed at run time by controllers.
     gates: Vec<fluxstep_netlist::Gate>,
     /// For each signal, the index of its gate.
@@ -251,6 +253,7 @@ impl Simulator {
             signals,
             signal_on,
             cmp_enabled_off: vec![true; n_cmp],
+            cmp_ticks: vec![],
             signal_gate,
             gates: circuit.gates.clone(),
             controllers: vec![],
@@ -269,6 +272,7 @@ impl Simulator {
             terms: propagate::TaylorTerms::default(),
             before: vec![],
         };
+        sim.cmp_ticks = (0..n_cmp).map(|ci| sim.make_ticks(ci)).collect();
         sim.set_inputs(0.0);
         sim.key.switches = sim.switch_bits();
         // Edges at t = 0 are already reflected in the initial signal states.
