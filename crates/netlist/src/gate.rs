@@ -295,6 +295,10 @@ pub struct SignalShape {
     pub start: Option<f64>,
     /// Held off from this time on.
     pub stop: Option<f64>,
+    /// Time origin of the cycles: cycle k starts at `origin + k·period`
+    /// (0 unless a controller restarted the period, e.g. after a frequency
+    /// change).
+    pub origin: f64,
 }
 
 impl Gate {
@@ -433,6 +437,7 @@ impl Gate {
                         transitions,
                         start: *start,
                         stop: *stop,
+                        origin: 0.0,
                     },
                 )]
             }
@@ -467,6 +472,7 @@ impl Gate {
                     transitions,
                     start: *start,
                     stop: *stop,
+                    origin: 0.0,
                 };
                 vec![
                     (format!("{name}.high"), shape(hi)),
@@ -488,6 +494,7 @@ impl Gate {
                         transitions: vec![],
                         start: None,
                         stop: None,
+                        origin: 0.0,
                     },
                 )]
             }
@@ -511,6 +518,7 @@ impl Gate {
                         transitions: tr,
                         start: None,
                         stop: None,
+                        origin: 0.0,
                     },
                 )]
             }
@@ -524,12 +532,12 @@ impl SignalShape {
         let hit = |x: f64| if strictly_before { x < t } else { x <= t };
         match self.period {
             Some(p) if !self.transitions.is_empty() => {
-                let k = (t / p).floor() as i64;
+                let k = ((t - self.origin) / p).floor() as i64;
                 // Look at this cycle and the two before; phases lie in [0, 2p).
                 let mut best: Option<(f64, bool)> = None;
                 for c in [k - 2, k - 1, k, k + 1] {
                     for &(ph, on) in &self.transitions {
-                        let time = c as f64 * p + ph;
+                        let time = self.origin + (c as f64 * p + ph);
                         if hit(time) && best.is_none_or(|(b, _)| time >= b) {
                             best = Some((time, on));
                         }
@@ -587,11 +595,11 @@ impl SignalShape {
         };
         match self.period {
             Some(p) if !self.transitions.is_empty() => {
-                let k0 = (t0 / p).floor() as i64 - 2;
-                let k1 = (t1 / p).ceil() as i64 + 1;
+                let k0 = ((t0 - self.origin) / p).floor() as i64 - 2;
+                let k1 = ((t1 - self.origin) / p).ceil() as i64 + 1;
                 for k in k0..=k1 {
                     for &(ph, _) in &self.transitions {
-                        let time = k as f64 * p + ph;
+                        let time = self.origin + (k as f64 * p + ph);
                         if time >= t0 && time < t1 {
                             cand.push(Edge {
                                 time,

@@ -79,6 +79,7 @@ impl Default for Sampling {
 #[derive(Clone, Debug, PartialEq)]
 pub(crate) enum Command {
     Duty(String, f64),
+    Frequency(String, f64),
     Delay(String, f64),
     Reference(String, f64),
     Edge(String, f64, bool),
@@ -94,6 +95,13 @@ impl Commands {
     /// New duty cycle of a `pwm` or `complementary_pwm` gate (by gate name).
     pub fn set_duty(&mut self, gate: &str, duty: f64) {
         self.list.push(Command::Duty(gate.into(), duty));
+    }
+
+    /// New switching frequency (Hz) of a `pwm` or `complementary_pwm` gate;
+    /// the new period starts when the command applies (at the next period
+    /// start, or at once).
+    pub fn set_frequency(&mut self, gate: &str, frequency: f64) {
+        self.list.push(Command::Frequency(gate.into(), frequency));
     }
 
     /// New delay (phase, s) of a `pwm` or `complementary_pwm` gate.

@@ -135,6 +135,8 @@ pub struct Simulator {
     cmp_ticks: Vec<Vec<(f64, control::Tick)>>,
     /// The circuit's gates, changed at run time by controllers.
     gates: Vec<fluxstep_netlist::Gate>,
+    /// Per gate: the origin of its cycles (moved by frequency changes).
+    gate_origin: Vec<f64>,
     /// For each signal, the index of its gate.
     signal_gate: Vec<usize>,
     controllers: Vec<sampled::Slot>,
@@ -256,6 +258,7 @@ impl Simulator {
             cmp_ticks: vec![],
             signal_gate,
             gates: circuit.gates.clone(),
+            gate_origin: vec![0.0; circuit.gates.len()],
             controllers: vec![],
             pending: vec![],
             pwl_sources,

@@ -196,11 +196,12 @@ impl Simulator {
                     ));
                 }
                 let gi = self.pwm_gate(&name, t)?;
+                let t_from = self.effective_from(gi, t, apply);
                 match &mut self.gates[gi] {
                     Gate::Pwm { duty: d, .. } | Gate::ComplementaryPwm { duty: d, .. } => *d = duty,
                     _ => unreachable!("pwm_gate returns pwm gates"),
                 }
-                self.reschedule(gi, t, apply)
+                self.reschedule(gi, t_from)
             }
             Command::Delay(name, delay) => {
                 if !delay.is_finite() {
@@ -210,13 +211,46 @@ impl Simulator {
                     ));
                 }
                 let gi = self.pwm_gate(&name, t)?;
+                let t_from = self.effective_from(gi, t, apply);
                 match &mut self.gates[gi] {
                     Gate::Pwm { delay: d, .. } | Gate::ComplementaryPwm { delay: d, .. } => {
                         *d = delay
                     }
                     _ => unreachable!("pwm_gate returns pwm gates"),
                 }
-                self.reschedule(gi, t, apply)
+                self.reschedule(gi, t_from)
+            }
+            Command::Frequency(name, frequency) => {
+                if !(frequency > 0.0 && frequency.is_finite()) {
+                    return Err(control_err(
+                        t,
+                        format!("frequency {frequency} for gate {name} must be positive"),
+                    ));
+                }
+                let gi = self.pwm_gate(&name, t)?;
+                let t_from = self.effective_from(gi, t, apply);
+                // The new period starts at t_from: the cycles' origin moves
+                // there and the delay restarts from zero, so the first
+                // edge is exactly t_from and later ones t_from + (k·T + phase).
+                let new_delay = 0.0;
+                self.gate_origin[gi] = t_from;
+                match &mut self.gates[gi] {
+                    Gate::Pwm {
+                        frequency: f,
+                        delay: d,
+                        ..
+                    }
+                    | Gate::ComplementaryPwm {
+                        frequency: f,
+                        delay: d,
+                        ..
+                    } => {
+                        *f = frequency;
+                        *d = new_delay;
+                    }
+                    _ => unreachable!("pwm_gate returns pwm gates"),
+                }
+                self.reschedule(gi, t_from)
             }
             Command::Reference(name, value) => {
                 if !value.is_finite() {
@@ -311,53 +345,72 @@ impl Simulator {
             })
     }
 
-    /// New shapes for gate `gi`'s signals; their buffered edges from the
-    /// instant the change takes effect are regenerated.
-    fn reschedule(&mut self, gi: usize, t: f64, apply: Apply) -> Result<(), SolverError> {
-        for (name, shape) in self.gates[gi].signals() {
+    /// When a change to gate `gi` takes effect: the next start of its
+    /// (present) period not before `t`, or `t` itself.
+    fn effective_from(&self, gi: usize, t: f64, apply: Apply) -> f64 {
+        let (period, delay) = match &self.gates[gi] {
+            Gate::Pwm {
+                frequency, delay, ..
+            }
+            | Gate::ComplementaryPwm {
+                frequency, delay, ..
+            } => (1.0 / frequency, *delay),
+            _ => return t,
+        };
+        if apply == Apply::Immediately {
+            return t;
+        }
+        let d0 = delay.rem_euclid(period);
+        let o = self.gate_origin[gi];
+        let mut k = ((t - o - d0) / period).ceil();
+        while o + (k * period + d0) < t {
+            k += 1.0;
+        }
+        while o + ((k - 1.0) * period + d0) >= t {
+            k -= 1.0;
+        }
+        o + (k * period + d0)
+    }
+
+    /// New shapes for gate `gi`'s signals (its definition already changed);
+    /// buffered edges from `t_from` on are regenerated. Where the new
+    /// schedule's state at `t_from` differs from the old one's just before
+    /// (a restarted period whose first edge rounds a hair early, or a pulse
+    /// cut short at once), an edge at `t_from` is added.
+    fn reschedule(&mut self, gi: usize, t_from: f64) -> Result<(), SolverError> {
+        for (name, mut shape) in self.gates[gi].signals() {
+            shape.origin = self.gate_origin[gi];
             let si = self
                 .cc
                 .signals
                 .iter()
                 .position(|(n, _)| *n == name)
                 .expect("signals of a known gate");
-            let t_from = match (apply, shape.period) {
-                (Apply::NextPeriod, Some(p)) => {
-                    // The next period start k·T + d0 not before t.
-                    let d0 = match &self.gates[gi] {
-                        Gate::Pwm { delay, .. } | Gate::ComplementaryPwm { delay, .. } => {
-                            delay.rem_euclid(p)
-                        }
-                        _ => 0.0,
-                    };
-                    let mut k = ((t - d0) / p).ceil();
-                    while k * p + d0 < t {
-                        k += 1.0;
-                    }
-                    while (k - 1.0) * p + d0 >= t {
-                        k -= 1.0;
-                    }
-                    k * p + d0
-                }
-                _ => t,
+            let before = if t_from <= self.t {
+                self.signal_on[si]
+            } else {
+                self.cc.signals[si].1.was_on_before(t_from)
             };
             self.cc.signals[si].1 = shape;
             let b = &mut self.signals[si];
             b.edges.retain(|e| e.time < t_from);
             b.filled_to = t_from;
             self.refill(si, t_from);
-            if apply == Apply::Immediately {
-                let now = self.cc.signals[si].1.is_on(t);
-                let edge_now = self.signals[si].edges.front().is_some_and(|e| e.time <= t);
-                if now != self.signal_on[si] && !edge_now {
-                    self.signals[si].edges.push_front(Edge {
-                        time: t,
+            let now = self.cc.signals[si].1.is_on(t_from);
+            let b = &mut self.signals[si];
+            let pos = b.edges.partition_point(|e| e.time < t_from);
+            let edge_at = b.edges.get(pos).is_some_and(|e| e.time == t_from);
+            if now != before && !edge_at {
+                b.edges.insert(
+                    pos,
+                    Edge {
+                        time: t_from,
                         on: now,
                         cycle: 0,
-                        phase: t,
+                        phase: t_from,
                         period: None,
-                    });
-                }
+                    },
+                );
             }
         }
         Ok(())

@@ -499,3 +499,37 @@ fn controller_delay_and_update_timing() {
         assert!(rel(offs[4], expect[1]) < 1e-15, "{apply:?}: {:e}", offs[4]);
     }
 }
+
+/// A frequency change from a controller starts the new period at the next
+/// period start not before the command — here the sample at 30 µs is itself
+/// a period start, so 100 kHz → 50 kHz gives edges at 30 (on), 40, 50, 60,
+/// 70 µs (duty 0.5; common practice for a digital PWM's period register).
+#[test]
+fn controller_frequency_change_restarts_the_period() {
+    let mut sim = Simulator::new(&resistive_pwm(), Options::default()).unwrap();
+    let ctrl = |t: f64, _y: &[Option<f64>], cmd: &mut Commands| {
+        if (t - 30e-6).abs() < 1e-12 {
+            cmd.set_frequency("drive", 50e3);
+        }
+    };
+    let sampling = Sampling {
+        inputs: vec![],
+        period: 10e-6,
+        ..Sampling::default()
+    };
+    sim.add_controller(sampling, Box::new(ctrl)).unwrap();
+    sim.advance_to(75e-6).unwrap();
+    let run = sim.finish();
+    let edges: Vec<(f64, bool)> = run.events.edges_within("S1", 29e-6, 75e-6);
+    let expect = [
+        (30e-6, true),
+        (40e-6, false),
+        (50e-6, true),
+        (60e-6, false),
+        (70e-6, true),
+    ];
+    assert_eq!(edges.len(), expect.len(), "{edges:?}");
+    for (e, x) in edges.iter().zip(expect) {
+        assert!(rel(e.0, x.0) < 1e-15 && e.1 == x.1, "{edges:?}");
+    }
+}
