@@ -3,7 +3,7 @@
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 
-use fluxstep_netlist::{Circuit, Element, Gate, Waveform};
+use fluxstep_netlist::{Circuit, CompensatorLaw, Element, Gate, Waveform};
 
 use crate::si::si;
 
@@ -60,6 +60,8 @@ pub struct States {
     pub voltages: usize,
     /// Sine sources (two states each).
     pub sines: usize,
+    /// Compensator states.
+    pub compensator: usize,
 }
 
 impl States {
@@ -80,12 +82,23 @@ impl States {
                 _ => {}
             }
         }
+        for k in &circuit.compensators {
+            s.compensator += match &k.law {
+                CompensatorLaw::Pi { .. } => 1,
+                CompensatorLaw::PolesZeros {
+                    integrator,
+                    poles_hz,
+                    ..
+                } => poles_hz.len() + usize::from(*integrator),
+                CompensatorLaw::StateSpace { b, .. } => b.len(),
+            };
+        }
         s
     }
 
     /// The total number of states.
     pub fn total(&self) -> usize {
-        self.currents + self.voltages + 2 * self.sines
+        self.currents + self.voltages + 2 * self.sines + self.compensator
     }
 }
 
@@ -203,6 +216,13 @@ pub fn summary(path: &Path, circuit: &Circuit) -> String {
             "{} for {}",
             2 * s.sines,
             plural(s.sines, "sine source", "sine sources")
+        ));
+    }
+    if s.compensator > 0 {
+        parts.push(plural(
+            s.compensator,
+            "compensator state",
+            "compensator states",
         ));
     }
     let detail = if parts.is_empty() {
