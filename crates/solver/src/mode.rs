@@ -904,15 +904,8 @@ impl Mode {
             }
             cmp_guards.push([make(&cmp.turn_off, true), make(&cmp.turn_on, false)]);
         }
-        // 10. Rate: ∞-norm of the state block in energy-scaled coordinates.
-        let mut rate: f64 = 0.0;
-        for i in 0..nx {
-            let mut s = 0.0;
-            for j in 0..nx {
-                s += (m[(i, j)] * cc.x_scale[i] / cc.x_scale[j]).abs();
-            }
-            rate = rate.max(s);
-        }
+        // 10. Rate: ∞-norm of the state block after diagonal balancing.
+        let rate = balanced_norm(&m, nx, &cc.x_scale);
         Ok(Mode {
             key,
             problem,
@@ -980,4 +973,61 @@ pub(crate) fn pattern_text(cc: &Compiled, key: ModeKey) -> String {
     } else {
         parts.join(", ")
     }
+}
+
+/// ∞-norm of the top-left `n × n` block of `m` after diagonal balancing,
+/// a bound on how fast the state can change that does not depend on units.
+///
+/// Starts from the energy scaling of the states (√L for currents, √C for
+/// voltages, which already balances an L–C pair) and refines it with
+/// Osborne's iteration (E. E. Osborne, "On pre-conditioning of matrices",
+/// J. ACM 1960): each state is rescaled so that the couplings into it and
+/// out of it weigh the same. One-way couplings — a compensator measuring
+/// the circuit, a cascade of filter sections — then stop inflating the
+/// bound, which sets how many Taylor sub-steps an interval needs.
+pub(crate) fn balanced_norm(m: &DMatrix<f64>, n: usize, scale: &[f64]) -> f64 {
+    let mut a = DMatrix::from_fn(n, n, |i, j| (m[(i, j)] * scale[i] / scale[j]).abs());
+    let mut d = vec![1.0f64; n];
+    for _ in 0..20 {
+        let mut changed = false;
+        for i in 0..n {
+            let c: f64 = (0..n).filter(|&j| j != i).map(|j| a[(j, i)]).sum();
+            let r: f64 = (0..n).filter(|&j| j != i).map(|j| a[(i, j)]).sum();
+            if !c.is_finite() || !r.is_finite() || (c == 0.0 && r == 0.0) {
+                continue;
+            }
+            // A state only driven (no coupling out of it, c = 0) or only
+            // driving (r = 0) can be scaled as far as the range allows:
+            // that is how a one-way chain is balanced. The range keeps the
+            // total scaling from overflowing.
+            let f = if c == 0.0 {
+                1e4
+            } else if r == 0.0 {
+                1e-4
+            } else {
+                (r / c).sqrt().clamp(1e-4, 1e4)
+            };
+            if !(0.5..=2.0).contains(&f) || (f - 1.0).abs() > 1e-3 {
+                let f = if (d[i] * f).abs() > 1e12 || (d[i] * f).abs() < 1e-12 {
+                    1.0
+                } else {
+                    f
+                };
+                if f != 1.0 {
+                    d[i] *= f;
+                    for j in 0..n {
+                        a[(j, i)] *= f;
+                        a[(i, j)] /= f;
+                    }
+                    changed = true;
+                }
+            }
+        }
+        if !changed {
+            break;
+        }
+    }
+    (0..n)
+        .map(|i| (0..n).map(|j| a[(i, j)]).sum::<f64>())
+        .fold(0.0, f64::max)
 }
