@@ -394,8 +394,13 @@ impl Simulator {
             self.cc.signals[si].1 = shape;
             let b = &mut self.signals[si];
             b.edges.retain(|e| e.time < t_from);
-            b.filled_to = t_from;
-            self.refill(si, t_from);
+            // Only two periods ahead: a controller that changes the duty
+            // every period would otherwise regenerate a long chunk each time.
+            let shape = &self.cc.signals[si].1;
+            let span = shape.period.map(|p| 2.0 * p).unwrap_or(b.chunk);
+            let to = t_from + span;
+            b.edges.extend(shape.edges(t_from, to));
+            b.filled_to = to;
             let now = self.cc.signals[si].1.is_on(t_from);
             let b = &mut self.signals[si];
             let pos = b.edges.partition_point(|e| e.time < t_from);
