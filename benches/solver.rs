@@ -10,6 +10,13 @@
 //! - `buck_dcm/state_events/*`: located diode turn-offs per second
 //!   (nanoseconds per located event = 1e9 / rate).
 //! - `periods/*`: switching periods per second for both runs.
+//! - `closed_loop/digital_pi_buck/*`: the CCM buck under a sampled PI
+//!   controller (sample at each period start, 1 µs computation delay, new
+//!   duty at the next period): scheduled + located events per second.
+//! - `closed_loop/peak_current_buck/*`: a buck under peak-current control
+//!   (clock turn-on, comparator turn-off located on the exact solution every
+//!   period, 0.1 A/µs compensation ramp): scheduled + located events per
+//!   second.
 //!
 //! Each timed iteration is one end-to-end run: compile, resolve the initial
 //! pattern, advance 10,000 periods. The recorded result is dropped outside
@@ -22,7 +29,8 @@ use criterion::measurement::WallTime;
 use criterion::{
     criterion_group, criterion_main, BatchSize, BenchmarkGroup, Criterion, Throughput,
 };
-use fluxstep_netlist::Circuit;
+use fluxstep_netlist::{Circuit, Gate};
+use fluxstep_solver::control::{Apply, Commands, Sampling};
 use fluxstep_solver::{Options, Record, RunResult, Simulator, Stats};
 
 /// Switching periods per run.
@@ -55,6 +63,85 @@ fn buck_dcm() -> Circuit {
     buck(10e-6, 50.0, 0.0, 9.94)
 }
 
+/// Switching period of the closed-loop runs (s).
+const T: f64 = 10e-6;
+
+/// The CCM buck with its PWM duty left to a controller.
+fn digital_pi_buck() -> Circuit {
+    let mut c = buck_ccm();
+    c.gates = vec![Gate::Pwm {
+        name: "drive".into(),
+        frequency: 1.0 / T,
+        duty: 0.4,
+        delay: 0.0,
+        start: None,
+        stop: None,
+    }];
+    c.validate().expect("benchmark circuit is valid");
+    c
+}
+
+/// A discrete PI regulating the output to 4.8 V: sampled at each period
+/// start, 1 µs computation delay, the new duty applied at the next period.
+fn run_digital_pi(circuit: &Circuit, record: Record) -> RunResult {
+    let opts = Options {
+        record,
+        ..Options::default()
+    };
+    let mut sim = Simulator::new(circuit, opts).expect("compiles");
+    let (kp, ki) = (0.01, 200.0);
+    let mut integral = 0.4;
+    let pi = move |_t: f64, y: &[Option<f64>], cmd: &mut Commands| {
+        let e = 4.8 - y[0].expect("the output node is always determined");
+        integral = (integral + ki * T * e).clamp(0.0, 0.9);
+        cmd.set_duty("drive", (kp * e + integral).clamp(0.0, 0.9));
+    };
+    let sampling = Sampling {
+        inputs: vec!["out".into()],
+        period: T,
+        offset: 0.0,
+        delay: 1e-6,
+        apply: Apply::NextPeriod,
+    };
+    sim.add_controller(sampling, Box::new(pi))
+        .expect("valid sampling");
+    sim.advance_to(PERIODS as f64 * T).expect("runs");
+    sim.finish()
+}
+
+/// Buck under peak-current control, 12 V in, 22 µH, 100 µF, 2 Ω, peak
+/// reference 2.8 A: about 5 V out, duty about 0.42, continuous conduction;
+/// starts near that state.
+fn peak_current_buck() -> Circuit {
+    Circuit::builder()
+        .voltage_source("Vin", "in", "gnd", 12.0)
+        .switch("S1", "in", "sw", "pc")
+        .diode("D1", "gnd", "sw")
+        .inductor_with_current("L1", "sw", "out", 22e-6, 2.5)
+        .capacitor_with_voltage("C1", "out", "gnd", 100e-6, 5.0)
+        .resistor("Rload", "out", "gnd", 2.0)
+        .gate(Gate::PeakCurrent {
+            name: "pc".into(),
+            frequency: 1.0 / T,
+            sense: "L1.current".into(),
+            reference: 2.8,
+            slope: 0.1e6,
+            max_duty: 0.9,
+        })
+        .build()
+        .expect("benchmark circuit is valid")
+}
+
+fn run_to_end(circuit: &Circuit, record: Record) -> RunResult {
+    let opts = Options {
+        record,
+        ..Options::default()
+    };
+    let mut sim = Simulator::new(circuit, opts).expect("compiles");
+    sim.advance_to(PERIODS as f64 * T).expect("runs");
+    sim.finish()
+}
+
 fn run(circuit: &Circuit, record: Record) -> RunResult {
     let opts = Options {
         record,
@@ -67,7 +154,11 @@ fn run(circuit: &Circuit, record: Record) -> RunResult {
 
 /// One untimed run to count the events the timed runs will process.
 fn census(name: &str, circuit: &Circuit) -> Stats {
-    let s = run(circuit, Record::Nothing).stats;
+    census_with(name, circuit, run)
+}
+
+fn census_with(name: &str, circuit: &Circuit, runner: Runner) -> Stats {
+    let s = runner(circuit, Record::Nothing).stats;
     eprintln!(
         "{name}: {PERIODS} periods, {} scheduled + {} located events per run \
          ({} modes, {} exponentials, {} cached steps)",
@@ -76,11 +167,24 @@ fn census(name: &str, circuit: &Circuit) -> Stats {
     s
 }
 
+/// One end-to-end run of a circuit (the timed unit).
+type Runner = fn(&Circuit, Record) -> RunResult;
+
 fn timed(g: &mut BenchmarkGroup<'_, WallTime>, id: &str, circuit: &Circuit, record: Record) {
+    timed_with(g, id, circuit, record, run)
+}
+
+fn timed_with(
+    g: &mut BenchmarkGroup<'_, WallTime>,
+    id: &str,
+    circuit: &Circuit,
+    record: Record,
+    runner: Runner,
+) {
     g.bench_function(id, |b| {
         b.iter_batched(
             || (),
-            |()| run(black_box(circuit), record),
+            |()| runner(black_box(circuit), record),
             BatchSize::PerIteration,
         )
     });
@@ -131,6 +235,45 @@ fn solver(c: &mut Criterion) {
     timed(&mut g, "buck_ccm", &ccm, Record::All);
     timed(&mut g, "buck_dcm", &dcm, Record::All);
     g.finish();
+
+    closed_loop(c);
+}
+
+/// Closed loops: a sampled controller every period, and a comparator event
+/// located every period.
+fn closed_loop(c: &mut Criterion) {
+    let pi = digital_pi_buck();
+    let pc = peak_current_buck();
+    let s_pi = census_with("closed_loop/digital_pi_buck", &pi, run_digital_pi);
+    let s_pc = census_with("closed_loop/peak_current_buck", &pc, run_to_end);
+    // Sanity (not a speed check): one comparator turn-off per period.
+    assert!(
+        s_pc.state_events as u64 >= PERIODS,
+        "the peak-current run does not locate a turn-off every period"
+    );
+    for (name, circuit, stats, runner) in [
+        (
+            "closed_loop/digital_pi_buck",
+            &pi,
+            s_pi,
+            run_digital_pi as Runner,
+        ),
+        (
+            "closed_loop/peak_current_buck",
+            &pc,
+            s_pc,
+            run_to_end as Runner,
+        ),
+    ] {
+        let mut g = c.benchmark_group(name);
+        configure(&mut g);
+        g.throughput(Throughput::Elements(
+            (stats.scheduled_events + stats.state_events) as u64,
+        ));
+        timed_with(&mut g, "record_all", circuit, Record::All, runner);
+        timed_with(&mut g, "record_nothing", circuit, Record::Nothing, runner);
+        g.finish();
+    }
 }
 
 criterion_group!(benches, solver);
