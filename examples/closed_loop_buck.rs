@@ -95,31 +95,17 @@ fn set_point(t: f64) -> f64 {
 /// with both zeros at 1.5 kHz (below the LC resonance) and both poles at
 /// 60 kHz; g puts the loop magnitude at exactly 1 at the crossover (loop:
 /// Vin/Vramp · G / |1 + sL/R + s²LC|). Returns g and the law.
-///
-/// The law is given as a state-space in cascade form: the integrator x₁,
-/// then two lead sections (1 + s/ωz)/(1 + s/ωp) = a − (a − 1)·ωp/(s + ωp),
-/// a = ωp/ωz, each with one low-pass state; the second state is divided by
-/// a so that no entry of A exceeds ωp. (The same law as
-/// `CompensatorLaw::PolesZeros`; that form is realised in companion form,
-/// whose entries grow as ωp², which slows the run down at present.)
 fn type_three() -> (f64, CompensatorLaw) {
     let (fc, fz, fp) = (10e3, 1.5e3, 60e3);
     let w = 2.0 * PI * fc;
     let plant = VIN / VRAMP / ((1.0 - w * w * L * C).powi(2) + (w * L / RLOAD).powi(2)).sqrt();
     let shape = (1.0 + (fc / fz).powi(2)) / (1.0 + (fc / fp).powi(2)) / w;
     let g = 1.0 / (plant * shape);
-    let (wp, a) = (2.0 * PI * fp, fp / fz);
-    // x₁' = e;  x₂' = ωp·(x₁ − x₂);  x₃' = ωp·(x₁ − (a − 1)/a·x₂ − x₃);
-    // u = g·(a²·x₁ − a(a − 1)·x₂ − a(a − 1)·x₃).
-    let law = CompensatorLaw::StateSpace {
-        a: vec![
-            vec![0.0, 0.0, 0.0],
-            vec![wp, -wp, 0.0],
-            vec![wp, -wp * (a - 1.0) / a, -wp],
-        ],
-        b: vec![1.0, 0.0, 0.0],
-        c: vec![g * a * a, -g * a * (a - 1.0), -g * a * (a - 1.0)],
-        d: 0.0,
+    let law = CompensatorLaw::PolesZeros {
+        gain: g,
+        integrator: true,
+        zeros_hz: vec![fz, fz],
+        poles_hz: vec![fp, fp],
     };
     (g, law)
 }
