@@ -779,10 +779,13 @@ impl Checker<'_> {
                 ..
             } => {
                 self.positive(l, "frequency", *frequency);
-                if self.finite(l, "ramp_low", *ramp_low)
-                    && self.finite(l, "ramp_high", *ramp_high)
-                    && ramp_low >= ramp_high
-                {
+                // Both are checked for finiteness (`&&` would skip the
+                // second when the first fails), then compared.
+                let ok = [
+                    self.finite(l, "ramp_low", *ramp_low),
+                    self.finite(l, "ramp_high", *ramp_high),
+                ];
+                if ok == [true, true] && ramp_low >= ramp_high {
                     self.field(
                         l,
                         "ramp_high",
@@ -834,12 +837,22 @@ impl Checker<'_> {
             if let Some(why) = name_rule(&k.name) {
                 self.field(&l, "name", format!("compensator name {:?} {why}", k.name));
             }
-            if let Some(j) = seen.insert(&k.name, i) {
-                self.field(
-                    &l,
-                    "name",
-                    format!("duplicate compensator name '{}': compensators[{j}] and compensators[{i}] both use it", k.name),
-                );
+            // As for elements and gates: an empty name is reported once
+            // (above), and a duplicate names the first user of the name.
+            if !k.name.is_empty() {
+                match seen.get(k.name.as_str()) {
+                    Some(&j) => self.field(
+                        &l,
+                        "name",
+                        format!(
+                            "duplicate compensator name '{}': compensators[{j}] and compensators[{i}] both use it",
+                            k.name
+                        ),
+                    ),
+                    None => {
+                        seen.insert(&k.name, i);
+                    }
+                }
             }
             self.finite(&l, "reference", k.reference);
             if let Some(why) = self.output_problem(&k.input) {

@@ -160,3 +160,192 @@ fn the_every_kind_circuit_is_itself_valid() {
     // a bag of fields.
     crate::common::valid(&every_kind());
 }
+
+/// Every closed-loop gate kind and every compensator law, with awkward
+/// values and every optional field set away from its default.
+pub fn closed_loop() -> Circuit {
+    let mut c = Circuit::builder()
+        .description("every closed-loop gate and compensator law, for the round trip")
+        .voltage_source("Vin", "in", "gnd", 12.0)
+        .switch("S1", "in", "sw", "pc")
+        .switch("S2", "in", "sw", "vc")
+        .switch("S3", "in", "sw", "hy")
+        .switch("S4", "in", "sw", "vm")
+        .diode("D1", "gnd", "sw")
+        .inductor("L1", "sw", "out", 22e-6)
+        .capacitor("C1", "out", "gnd", 4.7e-9)
+        .resistor("Rload", "out", "gnd", 1.0 / 3.0)
+        .gate(Gate::PeakCurrent {
+            name: "pc".into(),
+            frequency: 200e3,
+            sense: "L1.current".into(),
+            reference: 0.1 + 0.2,
+            slope: 123456789.12345679,
+            max_duty: 0.9,
+        })
+        .gate(Gate::ValleyCurrent {
+            name: "vc".into(),
+            frequency: 1.0 / 3.0 * 1e6,
+            sense: "L1.current".into(),
+            reference: -0.0,
+            slope: 2.5e-15,
+        })
+        .gate(Gate::Hysteretic {
+            name: "hy".into(),
+            sense: "out".into(),
+            low: 4.975,
+            high: 5.025,
+        })
+        .gate(Gate::VoltageMode {
+            name: "vm".into(),
+            frequency: 150e3,
+            control: "K2.output".into(),
+            ramp_low: 0.1 + 0.2,
+            ramp_high: 1.8,
+            min_duty: 0.05,
+            max_duty: 0.95,
+        })
+        .run(1e-3, &["L1.current", "out", "K1.output", "K2.output"])
+        .build_unchecked();
+    c.compensators = vec![
+        Compensator {
+            name: "K1".into(),
+            input: "out".into(),
+            reference: 3.3,
+            law: CompensatorLaw::Pi {
+                kp: 1.0 / 3.0,
+                ki: 22e-6,
+            },
+        },
+        Compensator {
+            name: "K2".into(),
+            input: "out".into(),
+            reference: 5.0,
+            law: CompensatorLaw::PolesZeros {
+                gain: 2199.1,
+                integrator: false,
+                zeros_hz: vec![0.1 + 0.2, 1.5e3],
+                poles_hz: vec![60e3, 1.0 / 3.0 * 1e5],
+            },
+        },
+        Compensator {
+            name: "K3".into(),
+            input: "L1.current".into(),
+            reference: -2.5e-15,
+            law: CompensatorLaw::StateSpace {
+                a: vec![vec![0.0, 1.0], vec![-4e10, -1.0 / 3.0]],
+                b: vec![5e-324, 1.0],
+                c: vec![1.7976931348623157e308, -0.0],
+                d: 0.1 + 0.2,
+            },
+        },
+    ];
+    c
+}
+
+#[test]
+fn closed_loop_gates_and_compensators_round_trip_exactly() {
+    let c = closed_loop();
+    crate::common::valid(&c);
+    let text = c.to_json();
+    // Each kind and law appears under its JSON tag.
+    for tag in [
+        "\"peak_current\"",
+        "\"valley_current\"",
+        "\"hysteretic\"",
+        "\"voltage_mode\"",
+        "\"pi\"",
+        "\"poles_zeros\"",
+        "\"state_space\"",
+    ] {
+        assert!(text.contains(tag), "{tag} missing from\n{text}");
+    }
+    let back = Circuit::from_json(&text).unwrap();
+    assert_eq!(back, c);
+    assert_eq!(back.to_json(), text);
+    // Bits, not only values: −0.0 and the smallest subnormal survive.
+    let CompensatorLaw::StateSpace { b, c: cv, .. } = &back.compensators[2].law else {
+        panic!("K3 is a state space")
+    };
+    assert_eq!(b[0].to_bits(), 5e-324f64.to_bits());
+    assert_eq!(cv[1].to_bits(), (-0.0f64).to_bits());
+    let Gate::ValleyCurrent { reference, .. } = &back.gates[1] else {
+        panic!("vc is a valley-current gate")
+    };
+    assert_eq!(reference.to_bits(), (-0.0f64).to_bits());
+}
+
+#[test]
+fn closed_loop_defaults_are_filled_in() {
+    // Left out: slope 0 and max_duty 1 (peak current), ramp_low 0 and
+    // min_duty 0 and max_duty 1 (voltage mode), integrator true and no
+    // zeros (poles and zeros), d 0 (state space).
+    let text = r#"{
+      "elements": [
+        {"kind": "voltage_source", "name": "Vin", "nodes": ["in", "gnd"],
+         "waveform": {"kind": "constant", "value": "12"}},
+        {"kind": "switch", "name": "S1", "nodes": ["in", "sw"], "gate": "pc"},
+        {"kind": "switch", "name": "S2", "nodes": ["in", "sw"], "gate": "vm"},
+        {"kind": "diode", "name": "D1", "nodes": ["gnd", "sw"]},
+        {"kind": "inductor", "name": "L1", "nodes": ["sw", "out"], "inductance": "22u"},
+        {"kind": "capacitor", "name": "C1", "nodes": ["out", "gnd"], "capacitance": "47u"},
+        {"kind": "resistor", "name": "Rload", "nodes": ["out", "gnd"], "resistance": "6"}
+      ],
+      "gates": [
+        {"kind": "peak_current", "name": "pc", "frequency": "100k", "sense": "L1.current",
+         "reference": "2"},
+        {"kind": "voltage_mode", "name": "vm", "frequency": "100k", "control": "K.output",
+         "ramp_high": "1"}
+      ],
+      "compensators": [
+        {"name": "K", "input": "out", "reference": "5",
+         "law": {"kind": "poles_zeros", "gain": 100, "poles_hz": [20000]}},
+        {"name": "K2", "input": "out", "reference": "5",
+         "law": {"kind": "state_space", "a": [[-1000]], "b": [1], "c": [1]}}
+      ]
+    }"#;
+    let c = Circuit::from_json(text).unwrap();
+    assert_eq!(
+        c.gates[0],
+        Gate::PeakCurrent {
+            name: "pc".into(),
+            frequency: 100e3,
+            sense: "L1.current".into(),
+            reference: 2.0,
+            slope: 0.0,
+            max_duty: 1.0,
+        }
+    );
+    assert_eq!(
+        c.gates[1],
+        Gate::VoltageMode {
+            name: "vm".into(),
+            frequency: 100e3,
+            control: "K.output".into(),
+            ramp_low: 0.0,
+            ramp_high: 1.0,
+            min_duty: 0.0,
+            max_duty: 1.0,
+        }
+    );
+    assert_eq!(
+        c.compensators[0].law,
+        CompensatorLaw::PolesZeros {
+            gain: 100.0,
+            integrator: true,
+            zeros_hz: vec![],
+            poles_hz: vec![20e3],
+        }
+    );
+    assert_eq!(
+        c.compensators[1].law,
+        CompensatorLaw::StateSpace {
+            a: vec![vec![-1e3]],
+            b: vec![1.0],
+            c: vec![1.0],
+            d: 0.0,
+        }
+    );
+    let back = Circuit::from_json(&c.to_json()).unwrap();
+    assert_eq!(back, c);
+}

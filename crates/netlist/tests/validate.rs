@@ -986,3 +986,443 @@ fn run_outputs() {
         "a primary and a secondary",
     );
 }
+
+// ----- closed-loop gates ---------------------------------------------------
+
+fn peak(frequency: f64, slope: f64, max_duty: f64) -> Gate {
+    Gate::PeakCurrent {
+        name: "drive".into(),
+        frequency,
+        sense: "L1.current".into(),
+        reference: 3.0,
+        slope,
+        max_duty,
+    }
+}
+
+fn valley(frequency: f64, slope: f64) -> Gate {
+    Gate::ValleyCurrent {
+        name: "drive".into(),
+        frequency,
+        sense: "L1.current".into(),
+        reference: 1.0,
+        slope,
+    }
+}
+
+fn hysteretic(low: f64, high: f64) -> Gate {
+    Gate::Hysteretic {
+        name: "drive".into(),
+        sense: "out".into(),
+        low,
+        high,
+    }
+}
+
+fn voltage_mode(frequency: f64, ramp: (f64, f64), duty: (f64, f64)) -> Gate {
+    Gate::VoltageMode {
+        name: "drive".into(),
+        frequency,
+        control: "K.output".into(),
+        ramp_low: ramp.0,
+        ramp_high: ramp.1,
+        min_duty: duty.0,
+        max_duty: duty.1,
+    }
+}
+
+fn compensator(name: &str, input: &str, law: CompensatorLaw) -> Compensator {
+    Compensator {
+        name: name.into(),
+        input: input.into(),
+        reference: 12.0,
+        law,
+    }
+}
+
+fn pi() -> CompensatorLaw {
+    CompensatorLaw::Pi {
+        kp: 0.01,
+        ki: 200.0,
+    }
+}
+
+fn poles_zeros(integrator: bool, zeros_hz: &[f64], poles_hz: &[f64]) -> CompensatorLaw {
+    CompensatorLaw::PolesZeros {
+        gain: 1e3,
+        integrator,
+        zeros_hz: zeros_hz.to_vec(),
+        poles_hz: poles_hz.to_vec(),
+    }
+}
+
+/// The buck under analog voltage-mode control: gate `drive` compares the
+/// output of compensator `K` (measuring `out`) with a 0–1 sawtooth.
+fn voltage_mode_buck(gate: Gate, compensators: Vec<Compensator>) -> Circuit {
+    let mut c = buck_gate(gate);
+    c.compensators = compensators;
+    c
+}
+
+/// The voltage-mode buck with compensator K's law replaced.
+fn with_law(law: CompensatorLaw) -> Circuit {
+    voltage_mode_buck(
+        voltage_mode(200e3, (0.0, 1.0), (0.0, 0.9)),
+        vec![compensator("K", "out", law)],
+    )
+}
+
+#[test]
+fn valid_closed_loop_circuits_have_no_problems() {
+    valid(&buck_gate(peak(200e3, 0.1e6, 0.9)));
+    // No compensation ramp and no duty limit are allowed.
+    valid(&buck_gate(peak(200e3, 0.0, 1.0)));
+    valid(&buck_gate(valley(200e3, 0.0)));
+    valid(&buck_gate(hysteretic(11.9, 12.1)));
+    valid(&with_law(pi()));
+    valid(&with_law(poles_zeros(true, &[2e3, 2e3], &[50e3, 50e3])));
+    // Zeros up to the number of poles, integrator included: proper.
+    valid(&with_law(poles_zeros(
+        true,
+        &[1e3, 2e3, 3e3],
+        &[50e3, 60e3],
+    )));
+    valid(&with_law(poles_zeros(false, &[], &[10e3])));
+    valid(&with_law(CompensatorLaw::StateSpace {
+        a: vec![vec![0.0, 1.0], vec![-1e6, -1e3]],
+        b: vec![0.0, 1.0],
+        c: vec![1.0, 0.0],
+        d: 0.5,
+    }));
+    // A minimum duty just below the maximum.
+    valid(&voltage_mode_buck(
+        voltage_mode(200e3, (0.0, 1.0), (0.89, 0.9)),
+        vec![compensator("K", "out", pi())],
+    ));
+}
+
+#[test]
+fn closed_loop_frequency_must_be_positive() {
+    for f in [0.0, -100e3] {
+        let c = buck_gate(peak(f, 0.0, 1.0));
+        expect(&c, Some("drive"), Some("frequency"), "must be positive");
+        let c = buck_gate(valley(f, 0.0));
+        expect(&c, Some("drive"), Some("frequency"), "must be positive");
+        let c = voltage_mode_buck(
+            voltage_mode(f, (0.0, 1.0), (0.0, 1.0)),
+            vec![compensator("K", "out", pi())],
+        );
+        expect(&c, Some("drive"), Some("frequency"), "must be positive");
+    }
+    let c = buck_gate(peak(f64::INFINITY, 0.0, 1.0));
+    expect(&c, Some("drive"), Some("frequency"), "finite");
+}
+
+#[test]
+fn max_duty_outside_zero_to_one() {
+    for max in [0.0, -0.5, 1.2] {
+        let c = buck_gate(peak(200e3, 0.0, max));
+        expect(&c, Some("drive"), Some("max_duty"), "must lie in (0, 1]");
+        let c = voltage_mode_buck(
+            voltage_mode(200e3, (0.0, 1.0), (0.0, max)),
+            vec![compensator("K", "out", pi())],
+        );
+        expect(&c, Some("drive"), Some("max_duty"), "must lie in (0, 1]");
+    }
+    let c = buck_gate(peak(200e3, 0.0, f64::NAN));
+    expect(&c, Some("drive"), Some("max_duty"), "finite");
+}
+
+#[test]
+fn min_duty_not_below_max_duty() {
+    for (min, max) in [(0.5, 0.5), (0.8, 0.6), (-0.1, 0.9)] {
+        let c = voltage_mode_buck(
+            voltage_mode(200e3, (0.0, 1.0), (min, max)),
+            vec![compensator("K", "out", pi())],
+        );
+        let p = expect(
+            &c,
+            Some("drive"),
+            Some("min_duty"),
+            "must lie in [0, max_duty",
+        );
+        assert!(p.message.contains(&format!("{max}")), "{}", p.message);
+    }
+}
+
+#[test]
+fn hysteretic_thresholds_in_order() {
+    for (low, high) in [(12.0, 12.0), (12.1, 11.9)] {
+        let c = buck_gate(hysteretic(low, high));
+        expect(&c, Some("drive"), Some("high"), "must exceed low");
+    }
+    // Both thresholds are checked for finiteness.
+    let c = buck_gate(hysteretic(f64::NAN, f64::INFINITY));
+    expect(&c, Some("drive"), Some("low"), "finite");
+    expect(&c, Some("drive"), Some("high"), "finite");
+}
+
+#[test]
+fn voltage_mode_ramp_in_order() {
+    for (lo, hi) in [(1.0, 1.0), (2.0, 0.5)] {
+        let c = voltage_mode_buck(
+            voltage_mode(200e3, (lo, hi), (0.0, 1.0)),
+            vec![compensator("K", "out", pi())],
+        );
+        expect(&c, Some("drive"), Some("ramp_high"), "must exceed ramp_low");
+    }
+    // Both ends are checked for finiteness, even when the first fails.
+    let c = voltage_mode_buck(
+        voltage_mode(200e3, (f64::NAN, f64::INFINITY), (0.0, 1.0)),
+        vec![compensator("K", "out", pi())],
+    );
+    expect(&c, Some("drive"), Some("ramp_low"), "finite");
+    expect(&c, Some("drive"), Some("ramp_high"), "finite");
+}
+
+#[test]
+fn compensation_slope_must_not_be_negative() {
+    let c = buck_gate(peak(200e3, -1e5, 1.0));
+    expect(&c, Some("drive"), Some("slope"), "must not be negative");
+    let c = buck_gate(valley(200e3, -1e5));
+    expect(&c, Some("drive"), Some("slope"), "must not be negative");
+}
+
+#[test]
+fn comparator_reference_must_be_finite() {
+    let mut g = peak(200e3, 0.0, 1.0);
+    if let Gate::PeakCurrent { reference, .. } = &mut g {
+        *reference = f64::NAN;
+    }
+    expect(&buck_gate(g), Some("drive"), Some("reference"), "finite");
+}
+
+#[test]
+fn sense_or_control_names_an_unknown_output() {
+    let sensing = |sense: &str| {
+        let mut g = peak(200e3, 0.0, 1.0);
+        if let Gate::PeakCurrent { sense: s, .. } = &mut g {
+            *s = sense.into();
+        }
+        buck_gate(g)
+    };
+    expect(
+        &sensing("L9.current"),
+        Some("drive"),
+        Some("sense"),
+        "no element is named 'L9'",
+    );
+    expect(
+        &sensing("L1.flux"),
+        Some("drive"),
+        Some("sense"),
+        "unknown output",
+    );
+    expect(
+        &sensing("K.output"),
+        Some("drive"),
+        Some("sense"),
+        "no compensator is named 'K'",
+    );
+    let mut g = valley(200e3, 0.0);
+    if let Gate::ValleyCurrent { sense, .. } = &mut g {
+        *sense = "D9.current".into();
+    }
+    expect(
+        &buck_gate(g),
+        Some("drive"),
+        Some("sense"),
+        "no element is named 'D9'",
+    );
+    let mut g = hysteretic(11.9, 12.1);
+    if let Gate::Hysteretic { sense, .. } = &mut g {
+        *sense = "nowhere".into();
+    }
+    expect(&buck_gate(g), Some("drive"), Some("sense"), "names no node");
+    // A voltage-mode gate's comparison input is its `control`.
+    let c = voltage_mode_buck(
+        voltage_mode(200e3, (0.0, 1.0), (0.0, 1.0)),
+        vec![compensator("Q", "out", pi())],
+    );
+    expect(
+        &c,
+        Some("drive"),
+        Some("control"),
+        "no compensator is named 'K'",
+    );
+}
+
+// ----- compensators --------------------------------------------------------
+
+#[test]
+fn duplicate_compensator_name() {
+    let c = voltage_mode_buck(
+        voltage_mode(200e3, (0.0, 1.0), (0.0, 1.0)),
+        vec![
+            compensator("K", "out", pi()),
+            compensator("K", "out", pi()),
+            compensator("K", "L1.current", pi()),
+        ],
+    );
+    let p = expect(
+        &c,
+        Some("K"),
+        Some("name"),
+        "duplicate compensator name 'K'",
+    );
+    assert!(p.message.contains("compensators[0] and compensators[1]"));
+    // Each later duplicate names the first user of the name.
+    expect(
+        &c,
+        Some("K"),
+        Some("name"),
+        "compensators[0] and compensators[2]",
+    );
+}
+
+#[test]
+fn unusable_compensator_names() {
+    let c = voltage_mode_buck(
+        voltage_mode(200e3, (0.0, 1.0), (0.0, 1.0)),
+        vec![
+            compensator("K", "out", pi()),
+            compensator("", "out", pi()),
+            compensator("", "out", pi()),
+            compensator("K.a", "out", pi()),
+        ],
+    );
+    expect(&c, Some("compensators[1]"), Some("name"), "is empty");
+    // A name that is not empty labels its own problems, as for elements.
+    expect(&c, Some("K.a"), Some("name"), "must not contain '.'");
+    // Two empty names are two empty names, not a duplicate.
+    assert!(
+        !problems(&c)
+            .iter()
+            .any(|p| p.message.contains("duplicate compensator name ''")),
+        "{:?}",
+        problems(&c)
+    );
+}
+
+#[test]
+fn compensator_input_unknown() {
+    let c = with_law(pi());
+    let mut c2 = c.clone();
+    c2.compensators[0].input = "nowhere".into();
+    let p = expect(&c2, Some("K"), Some("input"), "names no node");
+    assert!(p.message.contains("nowhere"));
+    c2.compensators[0].input = "L9.current".into();
+    expect(&c2, Some("K"), Some("input"), "no element is named 'L9'");
+    let mut c3 = c;
+    c3.compensators[0].reference = f64::INFINITY;
+    expect(&c3, Some("K"), Some("reference"), "finite");
+}
+
+#[test]
+fn compensator_input_is_another_compensators_output() {
+    let c = voltage_mode_buck(
+        voltage_mode(200e3, (0.0, 1.0), (0.0, 1.0)),
+        vec![
+            compensator("K", "K2.output", pi()),
+            compensator("K2", "out", pi()),
+        ],
+    );
+    expect(&c, Some("K"), Some("input"), "not another compensator");
+    // K2 exists, so that is the only problem with K's input.
+    let on_input: Vec<_> = problems(&c)
+        .into_iter()
+        .filter(|p| p.field.as_deref() == Some("input"))
+        .collect();
+    assert_eq!(on_input.len(), 1, "{on_input:?}");
+}
+
+#[test]
+fn poles_and_zeros_at_non_positive_frequencies() {
+    let c = with_law(poles_zeros(true, &[0.0], &[50e3]));
+    expect(&c, Some("K"), Some("law.zeros_hz[0]"), "must be positive");
+    let c = with_law(poles_zeros(true, &[1e3], &[50e3, -50e3]));
+    expect(&c, Some("K"), Some("law.poles_hz[1]"), "must be positive");
+    let c = with_law(poles_zeros(true, &[f64::NAN], &[50e3]));
+    expect(&c, Some("K"), Some("law.zeros_hz[0]"), "finite");
+}
+
+#[test]
+fn more_zeros_than_poles() {
+    // Integrator and one pole: two zeros at most.
+    let c = with_law(poles_zeros(true, &[1e3, 2e3, 3e3], &[50e3]));
+    let p = expect(&c, Some("K"), Some("law.zeros_hz"), "not be proper");
+    assert!(p.message.contains("3 zeros") && p.message.contains("only 2 poles"));
+    let c = with_law(poles_zeros(false, &[1e3, 2e3], &[50e3]));
+    expect(&c, Some("K"), Some("law.zeros_hz"), "only 1 poles");
+}
+
+#[test]
+fn poles_and_zeros_without_any_pole() {
+    let c = with_law(poles_zeros(false, &[], &[]));
+    expect(&c, Some("K"), Some("law.poles_hz"), "at least one pole");
+}
+
+#[test]
+fn state_space_dimensions() {
+    let ss = |a: Vec<Vec<f64>>, b: Vec<f64>, c: Vec<f64>| {
+        with_law(CompensatorLaw::StateSpace { a, b, c, d: 0.0 })
+    };
+    let c = ss(
+        vec![vec![0.0, 1.0], vec![-1.0]],
+        vec![0.0, 1.0],
+        vec![1.0, 0.0],
+    );
+    expect(&c, Some("K"), Some("law.a"), "square matrix");
+    let c = ss(vec![], vec![], vec![]);
+    expect(&c, Some("K"), Some("law.a"), "at least one row");
+    let c = ss(
+        vec![vec![0.0, 1.0], vec![-1.0, 0.0]],
+        vec![1.0],
+        vec![1.0, 0.0],
+    );
+    expect(&c, Some("K"), Some("law.b"), "must have 2 entries, has 1");
+    let c = ss(
+        vec![vec![0.0, 1.0], vec![-1.0, 0.0]],
+        vec![0.0, 1.0],
+        vec![1.0, 0.0, 0.0],
+    );
+    expect(&c, Some("K"), Some("law.c"), "must have 2 entries, has 3");
+}
+
+#[test]
+fn state_space_entries_must_be_finite() {
+    for bad in [f64::NAN, f64::INFINITY] {
+        let c = with_law(CompensatorLaw::StateSpace {
+            a: vec![vec![-1e3, bad], vec![0.0, -1e3]],
+            b: vec![1.0, 1.0],
+            c: vec![1.0, 0.0],
+            d: 0.0,
+        });
+        expect(&c, Some("K"), Some("law"), "finite");
+        let c = with_law(CompensatorLaw::StateSpace {
+            a: vec![vec![-1e3]],
+            b: vec![1.0],
+            c: vec![1.0],
+            d: bad,
+        });
+        expect(&c, Some("K"), Some("law"), "finite");
+    }
+}
+
+#[test]
+fn run_output_names_an_unknown_compensator() {
+    let mut c = with_law(pi());
+    c.run = Some(RunSettings {
+        stop_time: 1e-3,
+        record_from: None,
+        outputs: vec!["out".into(), "K.output".into()],
+    });
+    valid(&c);
+    c.run.as_mut().unwrap().outputs[1] = "K2.output".into();
+    expect(
+        &c,
+        None,
+        Some("run.outputs[1]"),
+        "no compensator is named 'K2'",
+    );
+}
