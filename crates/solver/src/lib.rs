@@ -5,8 +5,10 @@
 //! C, coupled inductors and sources is linear and time-invariant, so the
 //! solver advances it **exactly** with a matrix exponential instead of
 //! integrating step by step. Switching instants are scheduled (gate edges,
-//! source corners) or located on the exact solution to machine precision
-//! (diode turn-on and turn-off).
+//! source corners, controller samples) or located on the exact solution to
+//! machine precision (diode turn-on and turn-off, comparator thresholds of
+//! closed-loop gates). Analog compensators are states of the same linear
+//! system, so closed loops are exact too.
 //!
 //! # Brief overview
 //!
@@ -17,7 +19,10 @@
 //! - [`Waveform`]: exact dense output — any output at any instant, vertices
 //!   for drawing, exact integrals.
 //! - [`EventLog`]: every event with its cause, element and state.
-//! - [`Options`]: what to record and how to treat interrupted inductors.
+//! - [`Options`]: what to record, how to treat interrupted inductors and
+//!   resistive shoot-through.
+//! - [`control`]: sampled controllers written in Rust ([`control::Controller`]).
+//! - [`measure`]: exact averages, RMS, extremes and element power.
 //! - [`SolverError`]: diagnostics that name elements, nodes and times.
 //!
 //! # Example
