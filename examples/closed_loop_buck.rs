@@ -32,8 +32,8 @@ use std::f64::consts::PI;
 use fluxstep::netlist::{Circuit, Compensator, CompensatorLaw, Gate, Transition};
 use fluxstep::plot::{review_figure, write_svg, ReviewOptions};
 use fluxstep::solver::control::{Apply, Commands, Sampling};
-use fluxstep::solver::measure::{measure, Measurement};
-use fluxstep::solver::{Options, OutputId, RunResult, Simulator, Waveform};
+use fluxstep::solver::measure::{measure, settling_time, Measurement};
+use fluxstep::solver::{Options, RunResult, Simulator};
 
 const VIN: f64 = 12.0;
 const VREF: f64 = 5.0;
@@ -175,49 +175,6 @@ fn run_digital() -> Result<RunResult, Box<dyn Error>> {
     Ok(sim.finish())
 }
 
-/// The time after `t0` from which the output stays within ±`BAND` of the
-/// set-point up to `t1`: the last period (scanning back from `t1`) whose
-/// exact extremes leave the band, then the last instant outside the band
-/// within it, by bisection. `None` if the output is outside the band at
-/// the end.
-fn settling_time(
-    w: &Waveform,
-    id: OutputId,
-    t0: f64,
-    t1: f64,
-) -> Result<Option<f64>, Box<dyn Error>> {
-    let (lo, hi) = (VREF * (1.0 - BAND), VREF * (1.0 + BAND));
-    let outside = |v: f64| v < lo || v > hi;
-    let n = ((t1 - t0) / T).round() as usize;
-    for k in (0..n).rev() {
-        let (a, b) = (t0 + k as f64 * T, t0 + (k + 1) as f64 * T);
-        let m = measure(w, id, a, b)?;
-        if !(m.min < lo || m.max > hi) {
-            continue;
-        }
-        if k + 1 == n {
-            return Ok(None);
-        }
-        // Last vertex outside the band, then bisect towards the next one.
-        let pts = w.vertices(id, a, b, 200);
-        let i = pts
-            .iter()
-            .rposition(|p| outside(p.1))
-            .unwrap_or(pts.len() - 1);
-        let (mut x, mut y) = (pts[i].0, pts.get(i + 1).map_or(b, |p| p.0));
-        for _ in 0..60 {
-            let mid = 0.5 * (x + y);
-            if outside(w.value(id, mid).ok_or("output undetermined")?) {
-                x = mid;
-            } else {
-                y = mid;
-            }
-        }
-        return Ok(Some(y - t0));
-    }
-    Ok(Some(0.0))
-}
-
 /// The peak above the set-point, reported as an overshoot (time after
 /// `since`) only where it rises above the peak of the settled ripple
 /// `steady` by more than a tenth of that ripple; below that it is the
@@ -251,12 +208,12 @@ fn report(label: &str, run: &RunResult) -> Result<(), Box<dyn Error>> {
     let pre = measure(w, out, T_STEP - 10.0 * T, T_STEP)?;
     println!(
         "  start-up   settling (±1 %) {:>12}   {}",
-        fmt_settle(settling_time(w, out, 0.0, T_STEP)?),
+        fmt_settle(settling_time(w, out, VREF, BAND, 0.0, T_STEP, T)?),
         overshoot(start.max, start.time_of_max, &pre, 0.0),
     );
     println!(
         "  load step  settling (±1 %) {:>12}   undershoot {:8.2} mV ({:.3} %) at +{:.3} ms, {}",
-        fmt_settle(settling_time(w, out, T_STEP, T_END)?),
+        fmt_settle(settling_time(w, out, VREF, BAND, T_STEP, T_END, T)?),
         (VREF - step.min) * 1e3,
         (VREF - step.min) / VREF * 100.0,
         (step.time_of_min - T_STEP) * 1e3,

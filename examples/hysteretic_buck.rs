@@ -21,8 +21,8 @@ use std::error::Error;
 
 use fluxstep::netlist::{Circuit, Gate, Transition, Waveform as Source};
 use fluxstep::plot::{review_figure, write_svg, ReviewOptions};
-use fluxstep::solver::measure::measure;
-use fluxstep::solver::{simulate, EventKind, Options, OutputId, RunResult, Waveform};
+use fluxstep::solver::measure::{measure, settling_time};
+use fluxstep::solver::{simulate, EventKind, Options, RunResult};
 
 const VIN: f64 = 12.0;
 const VREF: f64 = 5.0;
@@ -72,47 +72,6 @@ fn hysteretic_buck() -> Result<Circuit, Box<dyn Error>> {
             period: None,
         })
         .build()?)
-}
-
-/// The time after `t0` from which the output stays within ±`BAND` of
-/// `VREF` up to `t1`: the last chunk (scanning back from `t1`) whose exact
-/// extremes leave the band, then the last instant outside it within that
-/// chunk, by bisection. `None` if the output is outside the band at the end.
-fn settling_time(
-    w: &Waveform,
-    id: OutputId,
-    t0: f64,
-    t1: f64,
-) -> Result<Option<f64>, Box<dyn Error>> {
-    let (lo, hi) = (VREF * (1.0 - BAND), VREF * (1.0 + BAND));
-    let outside = |v: f64| v < lo || v > hi;
-    let n = ((t1 - t0) / CHUNK).round() as usize;
-    for k in (0..n).rev() {
-        let (a, b) = (t0 + k as f64 * CHUNK, t0 + (k + 1) as f64 * CHUNK);
-        let m = measure(w, id, a, b)?;
-        if !(m.min < lo || m.max > hi) {
-            continue;
-        }
-        if k + 1 == n {
-            return Ok(None);
-        }
-        let pts = w.vertices(id, a, b, 200);
-        let i = pts
-            .iter()
-            .rposition(|p| outside(p.1))
-            .unwrap_or(pts.len() - 1);
-        let (mut x, mut y) = (pts[i].0, pts.get(i + 1).map_or(b, |p| p.0));
-        for _ in 0..60 {
-            let mid = 0.5 * (x + y);
-            if outside(w.value(id, mid).ok_or("output undetermined")?) {
-                x = mid;
-            } else {
-                y = mid;
-            }
-        }
-        return Ok(Some(y - t0));
-    }
-    Ok(Some(0.0))
 }
 
 fn fmt_settle(s: Option<f64>) -> String {
@@ -203,7 +162,7 @@ fn main() -> Result<(), Box<dyn Error>> {
     let step = measure(w, out, T_STEP, T_END)?;
     println!(
         "  start-up    settling (±1 %) {:>10}, overshoot {:+.2} mV ({:+.3} %) at {:.4} ms",
-        fmt_settle(settling_time(w, out, 0.0, T_STEP)?),
+        fmt_settle(settling_time(w, out, VREF, BAND, 0.0, T_STEP, CHUNK)?),
         (start.max - VREF) * 1e3,
         (start.max - VREF) / VREF * 100.0,
         start.time_of_max * 1e3
@@ -211,7 +170,7 @@ fn main() -> Result<(), Box<dyn Error>> {
     steady("before step", &run, T_STEP - 0.5e-3, T_STEP)?;
     println!(
         "  load step   settling (±1 %) {:>10}, undershoot {:.2} mV ({:.3} %) at +{:.2} µs",
-        fmt_settle(settling_time(w, out, T_STEP, T_END)?),
+        fmt_settle(settling_time(w, out, VREF, BAND, T_STEP, T_END, CHUNK)?),
         (VREF - step.min) * 1e3,
         (VREF - step.min) / VREF * 100.0,
         (step.time_of_min - T_STEP) * 1e6

@@ -26,8 +26,8 @@ use std::error::Error;
 use fluxstep::netlist::{Circuit, Gate, Transition};
 use fluxstep::plot::{review_figure, write_svg, ReviewOptions};
 use fluxstep::solver::control::{Apply, Commands, Sampling};
-use fluxstep::solver::measure::{measure, Measurement};
-use fluxstep::solver::{EventKind, Options, OutputId, RunResult, Simulator, Waveform};
+use fluxstep::solver::measure::{measure, settling_time, Measurement};
+use fluxstep::solver::{EventKind, Options, RunResult, Simulator};
 
 const VIN: f64 = 12.0;
 const VREF: f64 = 24.0;
@@ -92,45 +92,6 @@ fn boost() -> Result<Circuit, Box<dyn Error>> {
 
 fn set_point(t: f64) -> f64 {
     VIN + (VREF - VIN) * (t / SOFT_START).min(1.0)
-}
-
-/// Same rule as in `closed_loop_buck`: the time after `t0` from which the
-/// output stays within ±`BAND` of `VREF` up to `t1`, or `None`.
-fn settling_time(
-    w: &Waveform,
-    id: OutputId,
-    t0: f64,
-    t1: f64,
-) -> Result<Option<f64>, Box<dyn Error>> {
-    let (lo, hi) = (VREF * (1.0 - BAND), VREF * (1.0 + BAND));
-    let outside = |v: f64| v < lo || v > hi;
-    let n = ((t1 - t0) / T).round() as usize;
-    for k in (0..n).rev() {
-        let (a, b) = (t0 + k as f64 * T, t0 + (k + 1) as f64 * T);
-        let m = measure(w, id, a, b)?;
-        if !(m.min < lo || m.max > hi) {
-            continue;
-        }
-        if k + 1 == n {
-            return Ok(None);
-        }
-        let pts = w.vertices(id, a, b, 200);
-        let i = pts
-            .iter()
-            .rposition(|p| outside(p.1))
-            .unwrap_or(pts.len() - 1);
-        let (mut x, mut y) = (pts[i].0, pts.get(i + 1).map_or(b, |p| p.0));
-        for _ in 0..60 {
-            let mid = 0.5 * (x + y);
-            if outside(w.value(id, mid).ok_or("output undetermined")?) {
-                x = mid;
-            } else {
-                y = mid;
-            }
-        }
-        return Ok(Some(y - t0));
-    }
-    Ok(Some(0.0))
 }
 
 /// The peak above the set-point, reported as an overshoot (time after
@@ -204,13 +165,13 @@ fn main() -> Result<(), Box<dyn Error>> {
     println!(
         "  start-up   settling (±1 %) {:>10}   {}, \
          inductor peak {:.3} A",
-        fmt_settle(settling_time(w, out, 0.0, T_STEP)?),
+        fmt_settle(settling_time(w, out, VREF, BAND, 0.0, T_STEP, T)?),
         overshoot(start.max, start.time_of_max, &pre, 0.0),
         start_il.max,
     );
     println!(
         "  load step  settling (±1 %) {:>10}   undershoot {:8.1} mV ({:.3} %) at +{:.3} ms, {}",
-        fmt_settle(settling_time(w, out, T_STEP, T_END)?),
+        fmt_settle(settling_time(w, out, VREF, BAND, T_STEP, T_END, T)?),
         (VREF - step.min) * 1e3,
         (VREF - step.min) / VREF * 100.0,
         (step.time_of_min - T_STEP) * 1e3,
