@@ -598,12 +598,14 @@ impl SignalShape {
                 let k0 = ((t0 - self.origin) / p).floor() as i64 - 2;
                 let k1 = ((t1 - self.origin) / p).ceil() as i64 + 1;
                 for k in k0..=k1 {
-                    for &(ph, _) in &self.transitions {
+                    for (j, &(ph, _)) in self.transitions.iter().enumerate() {
                         let time = self.origin + (k as f64 * p + ph);
                         if time >= t0 && time < t1 {
                             cand.push(Edge {
                                 time,
-                                on: false,
+                                // The transition's own value, for the fast
+                                // state evaluation below.
+                                on: self.transitions[j].1,
                                 cycle: k,
                                 phase: ph,
                                 period: Some(p),
@@ -633,6 +635,13 @@ impl SignalShape {
                 .total_cmp(&b.time)
                 .then(b.period.is_some().cmp(&a.period.is_some()))
         });
+        // Without two periodic transitions at the same instant, the raw
+        // state just after a periodic candidate is that transition's own
+        // value (it is the latest transition at or before its time), so
+        // the full evaluation is needed only for ties and window edges.
+        let untied = cand
+            .windows(2)
+            .all(|w| !(w[0].time == w[1].time && w[0].period.is_some() && w[1].period.is_some()));
         cand.dedup_by(|b, a| a.time == b.time);
         // The state is constant between consecutive candidates (every
         // possible change is a candidate), so the state before each one is
@@ -643,7 +652,11 @@ impl SignalShape {
             .unwrap_or(false);
         cand.into_iter()
             .filter_map(|mut e| {
-                let after = self.is_on(e.time);
+                let after = if untied && e.period.is_some() {
+                    e.on && self.in_window(e.time, false)
+                } else {
+                    self.is_on(e.time)
+                };
                 let changed = after != state;
                 state = after;
                 changed.then(|| {

@@ -141,6 +141,11 @@ impl EventLog {
         }
     }
 
+    /// The element name of an id.
+    pub(crate) fn name(&self, id: u32) -> &str {
+        &self.names[id as usize]
+    }
+
     /// Adds a name without looking for it (the simulator's fixed ids).
     pub(crate) fn names_push(&mut self, name: &str) {
         self.names.push(name.to_string());

@@ -12,6 +12,7 @@
 //! purpose, so a current that just reaches zero and turns back keeps its
 //! conduction state.
 
+use super::resolve::dot_and_abs;
 use super::{dot, Simulator};
 use crate::mode::{Guard, GuardKind, Mode};
 use crate::propagate;
@@ -78,12 +79,20 @@ impl Simulator {
     /// must hold the state at `h` on entry; when τ < h it holds the state
     /// at τ on return.
     pub(super) fn locate(&mut self, h: f64) -> Option<(f64, u64, u64)> {
-        let mode = self.modes[self.mode as usize].clone();
+        // Borrowed out of `self` for the duration (an `Arc` clone costs two
+        // atomic operations per interval).
+        let modes = std::mem::take(&mut self.modes);
+        let found = self.locate_in(&modes[self.mode as usize], h);
+        self.modes = modes;
+        found
+    }
+
+    fn locate_in(&mut self, mode: &Mode, h: f64) -> Option<(f64, u64, u64)> {
         let (off_mask, on_mask) = self.comparator_masks();
         if mode.guards.is_empty() && off_mask == 0 && on_mask == 0 {
             return None;
         }
-        let guards = active(&mode, off_mask, on_mask);
+        let guards = active(mode, off_mask, on_mask);
         let n = propagate::substeps(mode.rate, h);
         if n == 1 {
             // Exact end-point checks first: nothing more to do in the
@@ -93,12 +102,17 @@ impl Simulator {
             let scales = self.seen;
             let (za, zb) = (self.z.as_slice(), self.z_next.as_slice());
             let suspect = guards.clone().any(|g| {
-                let tol = ZERO_REL * abs_dot(&g.row, za).max(abs_dot(&g.row, zb))
-                    + guard_floor(&g.kind, scales);
-                let gb = dot(g.row.iter().copied(), zb);
-                let da = dot(g.drow.iter().copied(), za);
                 let db = dot(g.drow.iter().copied(), zb);
-                gb < -tol || (da < 0.0 && db > 0.0)
+                let da = dot(g.drow.iter().copied(), za);
+                if da < 0.0 && db > 0.0 {
+                    return true;
+                }
+                let (gb, sb) = dot_and_abs(&g.row, zb);
+                // The tolerance matters only for a negative end value.
+                gb < 0.0 && {
+                    let tol = ZERO_REL * sb.max(abs_dot(&g.row, za)) + guard_floor(&g.kind, scales);
+                    gb < -tol
+                }
             });
             if !suspect {
                 return None;

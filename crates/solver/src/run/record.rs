@@ -8,13 +8,13 @@ use crate::options::Record;
 use crate::waveform::Segment;
 
 /// The element an event concerns, named only when text is needed.
-#[derive(Clone, Debug, PartialEq)]
+#[derive(Clone, Copy, Debug, PartialEq)]
 pub(super) enum Who {
     Switch(usize),
     Diode(usize),
     Source(usize),
-    /// Several elements (a jump), already named.
-    Named(String),
+    /// Several elements (a jump): the id of their joined names in the log.
+    Named(u32),
 }
 
 impl Simulator {
@@ -23,19 +23,19 @@ impl Simulator {
             Who::Switch(i) => self.cc.switches[*i].name.clone(),
             Who::Diode(i) => self.cc.diodes[*i].name.clone(),
             Who::Source(i) => self.cc.sources[*i].name.clone(),
-            Who::Named(s) => s.clone(),
+            Who::Named(id) => self.log.name(*id).to_string(),
         }
     }
 
     /// The element's id in the log (names were interned in this order when
     /// the simulator was built).
-    fn who_id(&mut self, who: &Who) -> u32 {
+    fn who_id(&self, who: &Who) -> u32 {
         let (ns, nd) = (self.cc.switches.len(), self.cc.diodes.len());
         match who {
             Who::Switch(i) => *i as u32,
             Who::Diode(i) => (ns + i) as u32,
             Who::Source(i) => (ns + nd + i) as u32,
-            Who::Named(s) => self.log.intern(s),
+            Who::Named(id) => *id,
         }
     }
 
@@ -92,12 +92,21 @@ impl Simulator {
                 limit: self.opts.max_events,
             });
         }
+        // The last `chatter_events + 1` events: more than `chatter_events`
+        // fall within the window exactly when the oldest of them does
+        // (times never decrease).
         let window = self.opts.chatter_window;
-        while self.recent.front().is_some_and(|(t, _)| *t < time - window) {
+        let limit = self.opts.chatter_events;
+        if self.recent.len() > limit {
             self.recent.pop_front();
         }
-        self.recent.push_back((time, who.clone()));
-        if self.recent.len() > self.opts.chatter_events {
+        self.recent.push_back((time, who));
+        if self.recent.len() > limit
+            && self
+                .recent
+                .front()
+                .is_some_and(|(t, _)| *t >= time - window)
+        {
             let mut elements: Vec<String> =
                 self.recent.iter().map(|(_, w)| self.name_of(w)).collect();
             elements.sort();

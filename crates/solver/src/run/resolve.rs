@@ -33,7 +33,6 @@ enum Rejection {
 
 struct Interruption {
     mode: u32,
-    windings: Vec<usize>,
 }
 
 impl Simulator {
@@ -47,8 +46,13 @@ impl Simulator {
         })
     }
 
-    /// Candidate patterns in order of distance from `first`.
-    fn order(&mut self, first: u64) -> Arc<Vec<u64>> {
+    /// Candidate `idx` in order of distance from `first` (`first` itself
+    /// at 0); the ordered list is built once per first guess, and only if
+    /// the first guess fails.
+    fn candidate(&mut self, first: u64, idx: usize) -> Option<u64> {
+        if idx == 0 {
+            return Some(first);
+        }
         let nd = self.cc.diodes.len();
         if self.orders.is_empty() {
             self.orders = vec![None; 1 << nd];
@@ -57,9 +61,10 @@ impl Simulator {
             .get_or_insert_with(|| {
                 let mut c: Vec<u64> = (0..1u64 << nd).collect();
                 c.sort_by_key(|&c| ((c ^ first).count_ones(), c));
-                Arc::new(c)
+                c
             })
-            .clone()
+            .get(idx)
+            .copied()
     }
 
     /// Finds the conduction pattern consistent with the present state, with
@@ -72,7 +77,6 @@ impl Simulator {
     ) -> Result<(), SolverError> {
         let first = self.key.diodes ^ flips;
         let scales = self.scales();
-        let (i_scale, v_scale) = scales;
         let mut interruption: Option<Interruption> = None;
         let mut other: Option<Rejection> = None;
         let passes: &[bool] = if self.opts.on_interruption == OnInterruption::ConserveFlux {
@@ -80,28 +84,11 @@ impl Simulator {
         } else {
             &[false]
         };
-        let mut order: Option<Arc<Vec<u64>>> = None;
         for &allow_cut in passes {
             let mut idx = 0usize;
             loop {
-                // The first guess needs no ordered list; build it only if
-                // the first guess fails.
-                let c = if idx == 0 {
-                    first
-                } else {
-                    let o = match &order {
-                        Some(o) => o.clone(),
-                        None => {
-                            let o = self.order(first);
-                            order = Some(o.clone());
-                            o
-                        }
-                    };
-                    // o[0] is `first` itself.
-                    match o.get(idx) {
-                        Some(&c) => c,
-                        None => break,
-                    }
+                let Some(c) = self.candidate(first, idx) else {
+                    break;
                 };
                 idx += 1;
                 let key = ModeKey {
@@ -109,105 +96,94 @@ impl Simulator {
                     diodes: c,
                 };
                 let mi = self.mode_id(key)?;
-                let mode = self.modes[mi as usize].clone();
-                // Report the closest rejected pattern, but a short before
-                // any other reason: it is what the switching action did.
-                let other_is_short = match &other {
-                    Some(Rejection::ResistiveShort(_)) => true,
-                    Some(Rejection::Problem(m)) => {
-                        matches!(
-                            self.modes[*m as usize].problem,
-                            Some(ModeProblem::Short { .. })
-                        )
-                    }
-                    _ => false,
-                };
-                if let Some(p) = &mode.problem {
-                    let short = matches!(p, ModeProblem::Short { .. });
-                    if other.is_none() || (short && !other_is_short) {
-                        other = Some(Rejection::Problem(mi));
-                    }
-                    continue;
+                // The modes are borrowed out of `self` while the candidate is
+                // judged (cloning the `Arc` costs two atomic operations,
+                // which dominated this stage).
+                let modes = std::mem::take(&mut self.modes);
+                let verdict =
+                    self.judge(&modes, mi, allow_cut, scales, &mut interruption, &mut other);
+                self.modes = modes;
+                if let Some((cut_jump, loop_jump)) = verdict {
+                    self.commit(key, mi, cut_jump, loop_jump, initial)?;
+                    return Ok(());
                 }
-                if mode.resistive_short.is_some()
-                    && self.opts.on_shoot_through == OnShootThrough::Stop
-                {
-                    if !other_is_short {
-                        other = Some(Rejection::ResistiveShort(mi));
-                    }
-                    continue;
-                }
-                // Constraint residuals, measured against the largest inductor
-                // current (cutsets) or capacitor/source voltage (loops) seen
-                // in the run: a located zero crossing leaves ~1e-17 of that
-                // behind, which the projection removes silently; anything
-                // above 1e-11 of it is a real jump.
-                let mut cut_violated = vec![];
-                let mut loop_violated = false;
-                for (r, kind) in mode.constraints.iter().enumerate() {
-                    let v = dot(mode.h.row(r).iter().copied(), self.z.as_slice());
-                    match kind {
-                        ConstraintKind::Cutset { windings, .. } if v.abs() > 1e-11 * i_scale => {
-                            cut_violated.extend(windings.iter().copied())
-                        }
-                        ConstraintKind::Loop { .. } if v.abs() > 1e-11 * v_scale => {
-                            loop_violated = true
-                        }
-                        _ => {}
-                    }
-                }
-                if !cut_violated.is_empty() && !allow_cut {
-                    // Kept as numbers; the diagnostic is built only if no
-                    // candidate holds.
-                    if interruption.is_none() {
-                        interruption = Some(Interruption {
-                            mode: mi,
-                            windings: cut_violated,
-                        });
-                    }
-                    continue;
-                }
-                // The candidate state (after any jump) goes into a scratch
-                // buffer; `commit` swaps it in.
-                if mode.constraints.is_empty() {
-                    self.z_try.copy_from(&self.z);
-                } else {
-                    propagate::matvec(&mode.p, self.z.as_slice(), self.z_try.as_mut_slice());
-                }
-                let z1 = &self.z_try;
-                if let Some(fi) = mode.free_checks.iter().position(|(row, _, _)| {
-                    let v = dot(row.iter().copied(), z1.as_slice());
-                    let s: f64 = row.iter().zip(z1.iter()).map(|(a, b)| (a * b).abs()).sum();
-                    v.abs() > 1e-9 * s + 1e-300
-                }) {
-                    if other.is_none() {
-                        other = Some(Rejection::CurrentSource(mi as usize, fi));
-                    }
-                    continue;
-                }
-                if !guards_hold(&mode, z1, scales) {
-                    continue;
-                }
-                self.commit(
-                    key,
-                    mi,
-                    &mode,
-                    !cut_violated.is_empty(),
-                    loop_violated,
-                    initial,
-                )?;
-                return Ok(());
             }
         }
         Err(self.rejection_error(interruption, other, cause))
     }
 
-    #[allow(clippy::too_many_arguments)] // one call site; a struct would only rename the list
+    /// Judges candidate mode `mi` at the present state: `Some((flux jump,
+    /// charge jump))` if it holds (its state after any jump is then in
+    /// `z_try`), else `None`, keeping the closest reason for the diagnostic.
+    fn judge(
+        &mut self,
+        modes: &[Arc<Mode>],
+        mi: u32,
+        allow_cut: bool,
+        scales: (f64, f64),
+        interruption: &mut Option<Interruption>,
+        other: &mut Option<Rejection>,
+    ) -> Option<(bool, bool)> {
+        let mode = &*modes[mi as usize];
+        // Report the closest rejected pattern, but a short before
+        // any other reason: it is what the switching action did.
+        let other_is_short = match &*other {
+            Some(Rejection::ResistiveShort(_)) => true,
+            Some(Rejection::Problem(m)) => {
+                matches!(modes[*m as usize].problem, Some(ModeProblem::Short { .. }))
+            }
+            _ => false,
+        };
+        if let Some(p) = &mode.problem {
+            let short = matches!(p, ModeProblem::Short { .. });
+            if other.is_none() || (short && !other_is_short) {
+                *other = Some(Rejection::Problem(mi));
+            }
+            return None;
+        }
+        if mode.resistive_short.is_some() && self.opts.on_shoot_through == OnShootThrough::Stop {
+            if !other_is_short {
+                *other = Some(Rejection::ResistiveShort(mi));
+            }
+            return None;
+        }
+        let (cut_violated, loop_violated) = violations(mode, self.z.as_slice(), scales, None);
+        if cut_violated && !allow_cut {
+            // Only the mode is kept; the diagnostic is built from it only
+            // if no candidate holds (the state does not change meanwhile).
+            if interruption.is_none() {
+                *interruption = Some(Interruption { mode: mi });
+            }
+            return None;
+        }
+        // The candidate state (after any jump) goes into a scratch
+        // buffer; `commit` swaps it in.
+        if mode.constraints.is_empty() {
+            self.z_try.copy_from(&self.z);
+        } else {
+            propagate::matvec(&mode.p, self.z.as_slice(), self.z_try.as_mut_slice());
+        }
+        let z1 = &self.z_try;
+        if let Some(fi) = mode.free_checks.iter().position(|(row, _, _)| {
+            let v = dot(row.iter().copied(), z1.as_slice());
+            let s: f64 = row.iter().zip(z1.iter()).map(|(a, b)| (a * b).abs()).sum();
+            v.abs() > 1e-9 * s + 1e-300
+        }) {
+            if other.is_none() {
+                *other = Some(Rejection::CurrentSource(mi as usize, fi));
+            }
+            return None;
+        }
+        if !guards_hold(mode, z1, scales) {
+            return None;
+        }
+        Some((cut_violated, loop_violated))
+    }
+
     fn commit(
         &mut self,
         key: ModeKey,
         mi: u32,
-        mode: &Mode,
         cut_jump: bool,
         loop_jump: bool,
         initial: bool,
@@ -225,7 +201,7 @@ impl Simulator {
         std::mem::swap(&mut self.z, &mut self.z_try);
         if let Some(energy) = jump_energy {
             let mut names: Vec<String> = vec![];
-            for kind in &mode.constraints {
+            for kind in &self.modes[mi as usize].constraints {
                 let list = match kind {
                     ConstraintKind::Cutset { windings, .. } => windings,
                     ConstraintKind::Loop { caps } => caps,
@@ -237,22 +213,16 @@ impl Simulator {
             } else {
                 EventKind::ChargeJump
             };
-            self.push_event(
-                self.t,
-                kind,
-                Who::Named(names.join(",")),
-                Some(energy),
-                true,
-            )?;
+            let id = self.log.intern(&names.join(","));
+            self.push_event(self.t, kind, Who::Named(id), Some(energy), true)?;
         }
-        if let (Some((devices, _)), false) = (&mode.resistive_short, was_shorted) {
-            self.push_event(
-                self.t,
-                EventKind::ShootThrough,
-                Who::Named(devices.join(",")),
-                None,
-                true,
-            )?;
+        let short = match (&self.modes[mi as usize].resistive_short, was_shorted) {
+            (Some((devices, _)), false) => Some(devices.join(",")),
+            _ => None,
+        };
+        if let Some(devices) = short {
+            let id = self.log.intern(&devices);
+            self.push_event(self.t, EventKind::ShootThrough, Who::Named(id), None, true)?;
         }
         if !initial {
             let changed = old ^ key.diodes;
@@ -278,8 +248,14 @@ impl Simulator {
     ) -> SolverError {
         let cause = self.cause_text(cause);
         if let Some(i) = interruption {
-            let current = i
-                .windings
+            let mut windings = vec![];
+            violations(
+                &self.modes[i.mode as usize],
+                self.z.as_slice(),
+                self.seen,
+                Some(&mut windings),
+            );
+            let current = windings
                 .iter()
                 .filter_map(|&b| match self.cc.branches[b].kind {
                     BranchKind::Winding { state } => Some(self.z[state].abs()),
@@ -294,8 +270,7 @@ impl Simulator {
                 cause,
                 current,
                 energy,
-                inductors: i
-                    .windings
+                inductors: windings
                     .iter()
                     .map(|&b| self.cc.branches[b].name.clone())
                     .collect(),
@@ -351,10 +326,8 @@ impl Simulator {
     /// crossing the only inductor current is itself ~1e-17 A).
     pub(super) fn scales(&mut self) -> (f64, f64) {
         let mut i_s: f64 = self.seen.0;
-        for g in &self.cc.groups {
-            for &s in &g.states {
-                i_s = i_s.max(self.z[s].abs());
-            }
+        for &s in &self.current_states {
+            i_s = i_s.max(self.z[s].abs());
         }
         let mut v_s: f64 = self.seen.1;
         for &(s, _) in &self.cc.caps {
@@ -369,6 +342,37 @@ impl Simulator {
     }
 }
 
+/// Whether the mode's inductor cutsets (first) or capacitor loops (second)
+/// are violated at z, i.e. entering it needs a jump; `windings` collects
+/// the windings of the violated cutsets.
+///
+/// Residuals are measured against the largest inductor current (cutsets)
+/// or capacitor/source voltage (loops) seen in the run: a located zero
+/// crossing leaves ~1e-17 of that behind, which the projection removes
+/// silently; anything above 1e-11 of it is a real jump.
+fn violations(
+    mode: &Mode,
+    z: &[f64],
+    (i_scale, v_scale): (f64, f64),
+    mut windings: Option<&mut Vec<usize>>,
+) -> (bool, bool) {
+    let (mut cut, mut lp) = (false, false);
+    for (r, kind) in mode.constraints.iter().enumerate() {
+        let v = dot(mode.h.row(r).iter().copied(), z);
+        match kind {
+            ConstraintKind::Cutset { windings: w, .. } if v.abs() > 1e-11 * i_scale => {
+                cut = true;
+                if let Some(list) = windings.as_deref_mut() {
+                    list.extend(w.iter().copied());
+                }
+            }
+            ConstraintKind::Loop { .. } if v.abs() > 1e-11 * v_scale => lp = true,
+            _ => {}
+        }
+    }
+    (cut, lp)
+}
+
 /// True if every guard is ≥ 0 at z and, where it is zero, its first
 /// non-zero derivative (up to the third) is positive: the mode can be
 /// entered and held for some positive time. Derivatives are computed only
@@ -378,38 +382,59 @@ fn guards_hold(mode: &Mode, z: &DVector<f64>, scales: (f64, f64)) -> bool {
     // judged on their value alone (16 diodes give at most 136 guards, and
     // only a bridge of many floating groups comes near).
     let mut undecided: u128 = 0;
-    let mut d: Option<DVector<f64>> = None;
-    for k in 0..4 {
-        if k > 0 && undecided == 0 {
+    let zs = z.as_slice();
+    // Value pass first, on slices: in the usual case every guard is clearly
+    // positive and no derivative is needed.
+    for (gi, g) in mode.guards.iter().enumerate() {
+        let (v, s) = dot_and_abs(&g.row, zs);
+        let tol = ZERO_REL * s + guard_floor(&g.kind, scales);
+        if v < -tol {
+            return false;
+        }
+        if gi < 128 && v <= tol {
+            undecided |= 1 << gi;
+        }
+    }
+    if undecided == 0 {
+        return true;
+    }
+    // A guard at zero: look at its derivatives (rare, so allocating here
+    // is fine).
+    let mut d = z.clone_owned();
+    let mut next = DVector::zeros(zs.len());
+    let mut rate_k = 1.0;
+    for _ in 1..4 {
+        if undecided == 0 {
             return true;
         }
-        if k > 0 {
-            d = Some(&mode.m * d.as_ref().unwrap_or(z));
-        }
-        let dk = d.as_ref().unwrap_or(z);
-        for (gi, g) in mode.guards.iter().enumerate() {
-            if k > 0 && (gi >= 128 || undecided >> gi & 1 == 0) {
+        propagate::matvec(&mode.m, d.as_slice(), next.as_mut_slice());
+        std::mem::swap(&mut d, &mut next);
+        rate_k *= mode.rate;
+        for (gi, g) in mode.guards.iter().enumerate().take(128) {
+            if undecided >> gi & 1 == 0 {
                 continue;
             }
-            let v = dot(g.row.iter().copied(), dk.as_slice());
-            let s: f64 = g
-                .row
-                .iter()
-                .zip(dk.iter())
-                .map(|(a, b)| (a * b).abs())
-                .sum();
-            let tol = ZERO_REL * s + guard_floor(&g.kind, scales) * mode.rate.powi(k);
+            let (v, s) = dot_and_abs(&g.row, d.as_slice());
+            let tol = ZERO_REL * s + guard_floor(&g.kind, scales) * rate_k;
             if v < -tol {
                 return false;
             }
-            if gi < 128 {
-                if v <= tol {
-                    undecided |= 1 << gi;
-                } else {
-                    undecided &= !(1 << gi);
-                }
+            if v > tol {
+                undecided &= !(1 << gi);
             }
         }
     }
     true
+}
+
+/// `(Σ aᵢbᵢ, Σ |aᵢbᵢ|)`.
+pub(super) fn dot_and_abs(a: &[f64], b: &[f64]) -> (f64, f64) {
+    let mut v = 0.0;
+    let mut s = 0.0;
+    for (x, y) in a.iter().zip(b) {
+        let p = x * y;
+        v += p;
+        s += p.abs();
+    }
+    (v, s)
 }

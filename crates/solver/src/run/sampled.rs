@@ -132,7 +132,7 @@ impl Simulator {
 
     fn sample(&mut self, i: usize, t: f64) -> Result<(), SolverError> {
         let k = self.sample_due(i, t).expect("sampled only when due");
-        let mode = self.modes[self.mode as usize].clone();
+        let mode = &self.modes[self.mode as usize];
         let values: Vec<Option<f64>> = self.controllers[i]
             .inputs
             .iter()

@@ -3,7 +3,7 @@
 
 use std::collections::VecDeque;
 
-use fluxstep_netlist::Edge;
+use fluxstep_netlist::{Edge, Waveform};
 
 use super::record::Who;
 use super::Simulator;
@@ -81,6 +81,9 @@ impl Simulator {
                 .waveform
                 .as_ref()
                 .expect("piecewise-linear source");
+            if matches!(w, Waveform::Constant { .. }) {
+                continue;
+            }
             if let Some(p) = w.piece_at(self.t) {
                 if p.end.is_finite() && p.end > self.t && p.end < best.0 {
                     best = (p.end, None);
@@ -107,6 +110,9 @@ impl Simulator {
 
     /// Sets the input part of z (values and slopes) for time t; returns a
     /// bit set of the sources that reached a corner at t.
+    ///
+    /// Constant inputs are written again every time on purpose: a cached
+    /// matrix exponential need not carry them over to the last bit.
     pub(super) fn set_inputs(&mut self, t: f64) -> u64 {
         let nx = self.cc.n_x;
         let nu = self.cc.n_u;
@@ -117,6 +123,11 @@ impl Simulator {
             let (Some(w), Some(k)) = (&s.waveform, s.input) else {
                 continue;
             };
+            if let Waveform::Constant { value } = w {
+                self.z[nx + k] = *value;
+                self.z[nx + nu + k] = 0.0;
+                continue;
+            }
             let p = w.piece_at(t).expect("piecewise-linear source has a piece");
             if p.start == t && t > 0.0 && si < 64 {
                 corners |= 1 << si;
