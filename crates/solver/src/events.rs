@@ -87,14 +87,15 @@ impl EventRef<'_> {
     }
 }
 
+/// One logged event in 24 bytes: its snapshots are numbered (snapshot k
+/// is `states[k·n..(k+1)·n]`), and the rare energy of a jump is kept aside.
 #[derive(Clone, Copy, Debug, PartialEq)]
 struct Compact {
     time: f64,
-    kind: EventKind,
     who: u32,
-    energy: Option<f64>,
-    before: usize,
-    after: usize,
+    before: u32,
+    after: u32,
+    kind: EventKind,
 }
 
 /// Every recorded event in time order, with the names of the state entries.
@@ -104,6 +105,10 @@ pub struct EventLog {
     names: Vec<String>,
     records: Vec<Compact>,
     states: Vec<f64>,
+    /// Number of snapshots in `states`.
+    snapshots: u32,
+    /// (record index, energy) of the events that carry an energy, in order.
+    energies: Vec<(u32, f64)>,
 }
 
 impl EventLog {
@@ -151,24 +156,33 @@ impl EventLog {
         self.names.push(name.to_string());
     }
 
-    /// Offset of a snapshot equal to `x`: the last one if it matches (the
+    /// Number of a snapshot equal to `x`: the last one if it matches (the
     /// events of one instant share their snapshots), else a new one.
-    fn snapshot(&mut self, x: &[f64]) -> usize {
+    fn snapshot(&mut self, x: &[f64]) -> u32 {
         let n = x.len();
         let len = self.states.len();
-        if len >= n
+        if self.snapshots > 0
             && self.states[len - n..]
                 .iter()
                 .zip(x)
                 .all(|(a, b)| a.to_bits() == b.to_bits())
         {
-            return len - n;
+            return self.snapshots - 1;
         }
         self.states.extend_from_slice(x);
-        len
+        self.snapshots += 1;
+        self.snapshots - 1
     }
 
-    /// Appends an event.
+    /// Makes room for `events` more events with about one new snapshot
+    /// each.
+    pub(crate) fn reserve(&mut self, events: usize) {
+        self.records.reserve(events);
+        self.states.reserve(events * self.state_names.len());
+    }
+
+    /// Appends an event; `false` (and nothing added) if the log is full
+    /// (2³² − 2 snapshots or records) or the states have the wrong length.
     pub(crate) fn push(
         &mut self,
         time: f64,
@@ -177,39 +191,59 @@ impl EventLog {
         energy: Option<f64>,
         before: &[f64],
         after: &[f64],
-    ) {
+    ) -> bool {
+        let n = self.state_names.len();
+        if before.len() != n
+            || after.len() != n
+            || self.snapshots >= u32::MAX - 2
+            || self.records.len() >= (u32::MAX - 1) as usize
+        {
+            return false;
+        }
         let b = self.snapshot(before);
         let a = self.snapshot(after);
+        if let Some(e) = energy {
+            self.energies.push((self.records.len() as u32, e));
+        }
         self.records.push(Compact {
             time,
-            kind,
             who,
-            energy,
             before: b,
             after: a,
+            kind,
         });
+        true
     }
 
-    fn view(&self, c: &Compact) -> EventRef<'_> {
+    fn view(&self, i: usize, c: &Compact) -> EventRef<'_> {
         let n = self.state_names.len();
+        let (b, a) = (c.before as usize * n, c.after as usize * n);
+        let energy = self
+            .energies
+            .binary_search_by_key(&(i as u32), |&(k, _)| k)
+            .ok()
+            .map(|k| self.energies[k].1);
         EventRef {
             time: c.time,
             kind: c.kind,
             element: &self.names[c.who as usize],
-            energy: c.energy,
-            before: &self.states[c.before..c.before + n],
-            after: &self.states[c.after..c.after + n],
+            energy,
+            before: &self.states[b..b + n],
+            after: &self.states[a..a + n],
         }
     }
 
     /// Every event in order.
     pub fn iter(&self) -> impl DoubleEndedIterator<Item = EventRef<'_>> + '_ {
-        self.records.iter().map(|c| self.view(c))
+        self.records
+            .iter()
+            .enumerate()
+            .map(|(i, c)| self.view(i, c))
     }
 
     /// Event `i`.
     pub fn get(&self, i: usize) -> Option<EventRef<'_>> {
-        self.records.get(i).map(|c| self.view(c))
+        self.records.get(i).map(|c| self.view(i, c))
     }
 
     /// Events of one element, in order.
@@ -321,9 +355,14 @@ impl<'de> Deserialize<'de> for EventLog {
         }
         let o = Owned::deserialize(d)?;
         let mut log = EventLog::new(o.state_names);
-        for e in o.events {
+        for (i, e) in o.events.into_iter().enumerate() {
             let who = log.intern(&e.element);
-            log.push(e.time, e.kind, who, e.energy, &e.before, &e.after);
+            if !log.push(e.time, e.kind, who, e.energy, &e.before, &e.after) {
+                return Err(serde::de::Error::custom(format!(
+                    "event {i}: before/after must list {} state values",
+                    log.state_names.len()
+                )));
+            }
         }
         Ok(log)
     }

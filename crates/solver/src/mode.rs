@@ -101,13 +101,18 @@ pub(crate) struct Mode {
     pub problem: Option<ModeProblem>,
     /// z' = M z.
     pub m: DMatrix<f64>,
+    /// Rows of M that may be non-zero: all rows at or after `live` are zero
+    /// (the slopes of piecewise-linear inputs are constant), so products
+    /// with M skip them.
+    pub live: usize,
     /// Outputs y = C z, one row per compiled output.
     pub c: DMatrix<f64>,
     /// Output rows that depend on a free gauge.
     pub undetermined: Vec<bool>,
     pub guards: Vec<Guard>,
-    /// Constraint rows H (restricted to z) and their kinds.
-    pub h: DMatrix<f64>,
+    /// Constraint rows H (restricted to z) as columns (Hᵀ, so that each
+    /// row is contiguous), and their kinds.
+    pub ht: DMatrix<f64>,
     pub constraints: Vec<ConstraintKind>,
     /// Jump map z⁺ = P z⁻ restoring the constraints.
     pub p: DMatrix<f64>,
@@ -906,14 +911,19 @@ impl Mode {
         }
         // 10. Rate: ∞-norm of the state block after diagonal balancing.
         let rate = balanced_norm(&m, nx, &cc.x_scale);
+        let live = (0..m.nrows())
+            .rev()
+            .find(|&i| m.row(i).iter().any(|v| *v != 0.0))
+            .map_or(0, |i| i + 1);
         Ok(Mode {
             key,
             problem,
             m,
+            live,
             c: cm,
             undetermined,
             guards,
-            h: hz,
+            ht: hz.transpose(),
             constraints,
             p,
             free_checks,
@@ -929,10 +939,11 @@ impl Mode {
             key,
             problem: Some(problem),
             m: DMatrix::zeros(nz, nz),
+            live: 0,
             c: DMatrix::zeros(cc.outputs.len(), nz),
             undetermined: vec![true; cc.outputs.len()],
             guards: vec![],
-            h: DMatrix::zeros(0, nz),
+            ht: DMatrix::zeros(nz, 0),
             constraints: vec![],
             p: DMatrix::identity(nz, nz),
             free_checks: vec![],

@@ -59,8 +59,15 @@ pub(crate) fn advance(m: &DMatrix<f64>, rate: f64, z: &DVector<f64>, tau: f64) -
 
 /// Taylor terms wₖ = (Mδ)ᵏ z / k! over one sub-interval of length δ (with
 /// ρ·δ ≤ [`TAYLOR_REACH`]), so that e^{Mδσ} z = Σ wₖ σᵏ for σ ∈ [0, 1].
-/// A guard r·z(σ) is then the polynomial Σ (r·wₖ) σᵏ.
-pub(crate) fn taylor_terms(m: &DMatrix<f64>, z: &DVector<f64>, delta: f64, out: &mut TaylorTerms) {
+/// A guard r·z(σ) is then the polynomial Σ (r·wₖ) σᵏ. Only the first
+/// `live` rows of M may be non-zero (see `Mode::live`).
+pub(crate) fn taylor_terms(
+    m: &DMatrix<f64>,
+    live: usize,
+    z: &DVector<f64>,
+    delta: f64,
+    out: &mut TaylorTerms,
+) {
     let n = z.len();
     let v = &mut out.v;
     if v.is_empty() || v[0].len() != n {
@@ -73,20 +80,48 @@ pub(crate) fn taylor_terms(m: &DMatrix<f64>, z: &DVector<f64>, delta: f64, out: 
     };
     ensure(v, 0);
     v[0].copy_from(z);
-    let scale = z.amax();
+    let scale = amax(z.as_slice());
     let mut len = 1;
     for k in 1..60 {
         ensure(v, k);
         let (done, rest) = v.split_at_mut(k);
-        matvec(m, done[k - 1].as_slice(), rest[0].as_mut_slice());
-        rest[0] *= delta / k as f64;
-        let tn = rest[0].amax();
+        let y = rest[0].as_mut_slice();
+        matvec_live(m, live, done[k - 1].as_slice(), y);
+        let f = delta / k as f64;
+        let mut tn: f64 = 0.0;
+        for yi in y[..live].iter_mut() {
+            *yi *= f;
+            tn = tn.max(yi.abs());
+        }
         len = k + 1;
         if tn == 0.0 || (k >= 3 && tn <= scale * 1e-18) {
             break;
         }
     }
     out.len = len;
+}
+
+/// Largest magnitude (0 for an empty slice).
+fn amax(x: &[f64]) -> f64 {
+    x.iter().fold(0.0, |a, v| a.max(v.abs()))
+}
+
+/// y = M x where only the first `live` rows of M may be non-zero: the
+/// other entries of y are set to zero without being computed. Row for
+/// row, the same operations in the same order as [`matvec`], so the
+/// results are the same bits.
+pub(crate) fn matvec_live(m: &DMatrix<f64>, live: usize, x: &[f64], y: &mut [f64]) {
+    let n = m.nrows();
+    let data = m.as_slice();
+    y.fill(0.0);
+    for (j, &xj) in x.iter().enumerate() {
+        if xj != 0.0 {
+            let col = &data[j * n..j * n + live];
+            for (yi, &mij) in y[..live].iter_mut().zip(col) {
+                *yi += mij * xj;
+            }
+        }
+    }
 }
 
 /// Taylor terms kept between calls so that their vectors are reused.
@@ -144,9 +179,11 @@ pub(crate) struct Scratch {
     x: Vec<f64>,
 }
 
-/// e^{Mτ} z into `out`, as [`advance`] does, without allocating.
+/// e^{Mτ} z into `out`, as [`advance`] does, without allocating (only the
+/// first `live` rows of M may be non-zero).
 pub(crate) fn advance_into(
     m: &DMatrix<f64>,
+    live: usize,
     rate: f64,
     z: &[f64],
     tau: f64,
@@ -164,7 +201,7 @@ pub(crate) fn advance_into(
         for _ in 0..n {
             s.term.copy_from_slice(&s.x);
             for k in 1..60 {
-                matvec(m, &s.term, &mut s.next);
+                matvec_live(m, live, &s.term, &mut s.next);
                 let f = d / k as f64;
                 let mut tn: f64 = 0.0;
                 for (t, &v) in s.term.iter_mut().zip(&s.next) {

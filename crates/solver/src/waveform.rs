@@ -17,8 +17,6 @@ pub struct Segment {
     /// End time (s).
     pub t1: f64,
     pub(crate) mode: u32,
-    /// Offset of the start state in [`Waveform::states`].
-    pub(crate) at: usize,
 }
 
 /// Identifies an output of a circuit (a node voltage, an element current or voltage).
@@ -97,14 +95,16 @@ impl Waveform {
     }
 
     /// The start state of a segment.
-    pub(crate) fn z0(&self, s: &Segment) -> DVector<f64> {
-        DVector::from_column_slice(&self.states[s.at..s.at + self.n_z])
+    /// Start state of segment `i` (every segment keeps `n_z` entries, so
+    /// segment i's start at `i·n_z`).
+    pub(crate) fn z0(&self, i: usize) -> DVector<f64> {
+        DVector::from_column_slice(&self.states[i * self.n_z..(i + 1) * self.n_z])
     }
 
     fn state_in(&self, i: usize, t: f64) -> DVector<f64> {
         let s = &self.segments[i];
         let m = &self.modes[s.mode as usize];
-        propagate::advance(&m.m, m.rate, &self.z0(s), (t - s.t0).max(0.0))
+        propagate::advance(&m.m, m.rate, &self.z0(i), (t - s.t0).max(0.0))
     }
 
     fn out_in(&self, i: usize, id: OutputId, z: &DVector<f64>) -> Option<f64> {
@@ -206,7 +206,7 @@ impl Waveform {
     pub fn integrate(&self, ids: &[OutputId], t0: f64, t1: f64, f: impl Fn(&[f64]) -> f64) -> f64 {
         let mut total = 0.0;
         let mut vals = vec![0.0; ids.len()];
-        for s in self.segments.iter() {
+        for (i, s) in self.segments.iter().enumerate() {
             let a = s.t0.max(t0);
             let b = s.t1.min(t1);
             if b <= a {
@@ -218,7 +218,7 @@ impl Waveform {
             }
             let n = propagate::substeps(m.rate, b - a);
             let d = (b - a) / n as f64;
-            let mut z = propagate::advance(&m.m, m.rate, &self.z0(s), a - s.t0);
+            let mut z = propagate::advance(&m.m, m.rate, &self.z0(i), a - s.t0);
             for _ in 0..n {
                 let mut part = 0.0;
                 for &(x, w) in &GL8 {

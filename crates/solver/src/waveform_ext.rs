@@ -73,11 +73,11 @@ impl Waveform {
         let row = m.c.row(id.0);
         let n = propagate::substeps(m.rate, b - a);
         let delta = (b - a) / n as f64;
-        let mut z = propagate::advance(&m.m, m.rate, &self.z0(s), a - s.t0);
+        let mut z = propagate::advance(&m.m, m.rate, &self.z0(i), a - s.t0);
         let mut terms = propagate::TaylorTerms::default();
         let mut coef = Vec::new();
         for k in 0..n {
-            propagate::taylor_terms(&m.m, &z, delta, &mut terms);
+            propagate::taylor_terms(&m.m, m.live, &z, delta, &mut terms);
             coef.clear();
             coef.extend(
                 terms

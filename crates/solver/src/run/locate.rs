@@ -125,7 +125,7 @@ impl Simulator {
         let mut found: Option<(f64, (u64, u64), f64)> = None;
         let scales = self.scales();
         for i in 0..n {
-            propagate::taylor_terms(&mode.m, &za, d, &mut terms);
+            propagate::taylor_terms(&mode.m, mode.live, &za, d, &mut terms);
             for g in guards.clone() {
                 coef.clear();
                 coef.extend(

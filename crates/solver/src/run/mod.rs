@@ -26,7 +26,7 @@ use crate::compile::Compiled;
 use crate::error::SolverError;
 use crate::events::EventLog;
 use crate::mode::{pattern_text, Mode, ModeKey};
-use crate::options::Options;
+use crate::options::{Options, Record};
 use crate::propagate;
 use crate::waveform::{OutputId, Waveform};
 
@@ -157,6 +157,11 @@ pub struct Simulator {
     /// Candidate diode patterns ordered by distance from a first guess,
     /// built once per first guess.
     orders: Vec<Option<Vec<u64>>>,
+    /// Remembered transitions (see `resolve::Transition`), at most 64.
+    memo: Vec<resolve::Transition>,
+    /// Whether remembered transitions are replayed (off only in the test
+    /// that checks replay gives the same bits as the full search).
+    replay: bool,
     /// Scratch: the candidate state of a pattern under test.
     z_try: DVector<f64>,
     scratch: propagate::Scratch,
@@ -273,6 +278,8 @@ impl Simulator {
             seen: (0.0, 0.0),
             current_states: vec![],
             orders: vec![],
+            memo: vec![],
+            replay: true,
             z_try: DVector::zeros(nz),
             scratch: propagate::Scratch::default(),
             terms: propagate::TaylorTerms::default(),
@@ -421,6 +428,7 @@ impl Simulator {
                 ),
             });
         }
+        self.reserve_for(t_end);
         while self.t < t_end {
             let (t_next, key_next) = self.next_scheduled(t_end);
             // The interval length comes from the schedule's (cycle, phase)
@@ -459,6 +467,36 @@ impl Simulator {
             }
         }
         Ok(())
+    }
+
+    /// When everything is recorded, reserves room for the segments and
+    /// events expected up to `t_end` from the gates' edges per second (with
+    /// a margin for diode events), so that the buffers do not grow by
+    /// doubling and copying. Room reserved but never written costs no
+    /// physical memory.
+    fn reserve_for(&mut self, t_end: f64) {
+        if self.opts.record != Record::All {
+            return;
+        }
+        let per_second: f64 = self
+            .cc
+            .signals
+            .iter()
+            .filter_map(|(_, s)| s.period.map(|p| s.transitions.len() as f64 / p))
+            .sum();
+        let expected = 2.0 * per_second * (t_end - self.t);
+        // Beyond this a run is better streamed than reserved.
+        let cap = 50_000_000.0;
+        if expected.is_nan() || expected < 1.0 {
+            return;
+        }
+        let n = expected.min(cap) as usize;
+        let more = n.saturating_sub(self.wave.segments.capacity() - self.wave.segments.len());
+        if more > 0 {
+            self.wave.segments.reserve(n);
+            self.wave.states.reserve(n * self.wave.n_z);
+            self.log.reserve(2 * n);
+        }
     }
 
     fn check_finite(&self) -> Result<(), SolverError> {
@@ -517,6 +555,7 @@ impl Simulator {
         }
         propagate::advance_into(
             &m.m,
+            m.live,
             m.rate,
             self.z.as_slice(),
             h,
@@ -539,4 +578,58 @@ pub fn simulate(
     let mut sim = Simulator::new(circuit, opts)?;
     sim.advance_to(stop_time)?;
     Ok(sim.finish())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Runs a circuit file for `stop` seconds with or without replay of
+    /// remembered transitions.
+    fn run(file: &str, stop: f64, replay: bool) -> RunResult {
+        let path = format!(
+            "{}/../../examples/circuits/{file}",
+            env!("CARGO_MANIFEST_DIR")
+        );
+        let c = Circuit::from_file(path).expect("example circuit is valid");
+        let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
+        sim.replay = replay;
+        sim.advance_to(stop).expect("runs");
+        sim.finish()
+    }
+
+    /// Contract: replaying a remembered transition is only a shortcut, so
+    /// every converter gives the same bits with and without it — states of
+    /// every segment and the whole event log.
+    #[test]
+    fn replay_gives_the_same_bits_as_the_full_search() {
+        for (file, stop) in [
+            ("buck.json", 1e-3),
+            ("buck_dcm.json", 1e-3),
+            ("boost.json", 1e-3),
+            ("sync_buck.json", 1e-3),
+            ("flyback.json", 2e-3),
+            ("rectifier.json", 40e-3),
+            ("peak_current_buck.json", 1e-3),
+            ("hysteretic_buck.json", 1e-3),
+        ] {
+            let a = run(file, stop, true);
+            let b = run(file, stop, false);
+            assert!(a.events.len() > 10, "{file}: too few events to test");
+            assert_eq!(
+                a.events.to_json(),
+                b.events.to_json(),
+                "{file}: event logs differ"
+            );
+            assert_eq!(
+                a.waveform.segments.len(),
+                b.waveform.segments.len(),
+                "{file}"
+            );
+            let bits = |r: &RunResult| -> Vec<u64> {
+                r.waveform.states.iter().map(|v| v.to_bits()).collect()
+            };
+            assert_eq!(bits(&a), bits(&b), "{file}: segment states differ");
+        }
+    }
 }

@@ -63,13 +63,11 @@ impl Simulator {
             sink(&view);
         }
         if self.keeps(t0, t1) {
-            let at = self.wave.states.len();
             self.wave.states.extend_from_slice(self.z.as_slice());
             self.wave.segments.push(Segment {
                 t0,
                 t1,
                 mode: self.mode,
-                at,
             });
         }
     }
@@ -125,7 +123,13 @@ impl Simulator {
             } else {
                 &self.before[..]
             };
-            self.log.push(time, kind, id, energy, &self.before, after);
+            if !self.log.push(time, kind, id, energy, &self.before, after) {
+                // The log numbers its records and snapshots with 32 bits.
+                return Err(SolverError::EventLimit {
+                    time,
+                    limit: self.log.len(),
+                });
+            }
         }
         Ok(())
     }

@@ -35,6 +35,19 @@ struct Interruption {
     mode: u32,
 }
 
+/// A resolved transition, remembered for replay: from mode `from` with
+/// switch bits `switches` and guard flips `flips`, the search rejected the
+/// modes in `cut_rejected` for cutting an inductor current (every other
+/// candidate before `to` for a structural reason) and accepted `to`
+/// without a jump.
+pub(super) struct Transition {
+    from: u32,
+    switches: u64,
+    flips: u64,
+    cut_rejected: Vec<u32>,
+    to: u32,
+}
+
 impl Simulator {
     fn cause_text(&self, cause: Option<(usize, bool)>) -> Option<String> {
         cause.map(|(i, on)| {
@@ -77,6 +90,14 @@ impl Simulator {
     ) -> Result<(), SolverError> {
         let first = self.key.diodes ^ flips;
         let scales = self.scales();
+        if !initial && self.replay && self.resolve_remembered(flips, scales)? {
+            return Ok(());
+        }
+        // What a remembered transition needs: the candidates rejected for
+        // cutting an inductor current before the accepted one; `None` once
+        // any other state-dependent rejection makes the outcome unsafe to
+        // replay.
+        let mut cut_rejected: Option<Vec<u32>> = (!initial).then(Vec::new);
         let mut interruption: Option<Interruption> = None;
         let mut other: Option<Rejection> = None;
         let passes: &[bool] = if self.opts.on_interruption == OnInterruption::ConserveFlux {
@@ -86,10 +107,7 @@ impl Simulator {
         };
         for &allow_cut in passes {
             let mut idx = 0usize;
-            loop {
-                let Some(c) = self.candidate(first, idx) else {
-                    break;
-                };
+            while let Some(c) = self.candidate(first, idx) {
                 idx += 1;
                 let key = ModeKey {
                     switches: self.key.switches,
@@ -100,8 +118,35 @@ impl Simulator {
                 // judged (cloning the `Arc` costs two atomic operations,
                 // which dominated this stage).
                 let modes = std::mem::take(&mut self.modes);
+                let mode_ok = modes[mi as usize].problem.is_none()
+                    && !(modes[mi as usize].resistive_short.is_some()
+                        && self.opts.on_shoot_through == OnShootThrough::Stop);
                 let verdict =
                     self.judge(&modes, mi, allow_cut, scales, &mut interruption, &mut other);
+                if let (Some(list), None) = (cut_rejected.as_mut(), verdict) {
+                    // Rejected by a structural problem (always rejected) or
+                    // by cutting a current (re-checked on replay); anything
+                    // else forbids replay.
+                    let cut = violations(&modes[mi as usize], self.z.as_slice(), scales, None).0;
+                    if mode_ok && cut && !allow_cut {
+                        list.push(mi);
+                    } else if mode_ok {
+                        cut_rejected = None;
+                    }
+                }
+                if let (Some(list), Some((false, false)), false) =
+                    (&cut_rejected, verdict, allow_cut)
+                {
+                    if modes[mi as usize].resistive_short.is_none() && self.memo.len() < 64 {
+                        self.memo.push(Transition {
+                            from: self.mode,
+                            switches: self.key.switches,
+                            flips,
+                            cut_rejected: list.clone(),
+                            to: mi,
+                        });
+                    }
+                }
                 self.modes = modes;
                 if let Some((cut_jump, loop_jump)) = verdict {
                     self.commit(key, mi, cut_jump, loop_jump, initial)?;
@@ -110,6 +155,71 @@ impl Simulator {
             }
         }
         Err(self.rejection_error(interruption, other, cause))
+    }
+
+    /// Replays a remembered transition from the present mode with the
+    /// present switches: true if it applied. It applies only if the
+    /// exhaustive search would reach the same pattern: every candidate it
+    /// rejected for cutting an inductor current still cuts one (the
+    /// others were rejected for structural reasons that cannot change),
+    /// and the remembered pattern still holds without a jump.
+    fn resolve_remembered(&mut self, flips: u64, scales: (f64, f64)) -> Result<bool, SolverError> {
+        let Some(ti) = self.memo.iter().position(|t| {
+            t.from == self.mode && t.switches == self.key.switches && t.flips == flips
+        }) else {
+            return Ok(false);
+        };
+        let t = &self.memo[ti];
+        let z = self.z.as_slice();
+        let still = t
+            .cut_rejected
+            .iter()
+            .all(|&mi| violations(&self.modes[mi as usize], z, scales, None).0);
+        if !still {
+            return Ok(false);
+        }
+        let to = t.to;
+        let mode = &self.modes[to as usize];
+        if violations(mode, z, scales, None) != (false, false) {
+            return Ok(false);
+        }
+        // As in `judge`: the projection removes rounding residue of the
+        // constraints, and the checks see the projected state.
+        let projected = !mode.constraints.is_empty();
+        if projected {
+            propagate::matvec(&mode.p, z, self.z_try.as_mut_slice());
+        }
+        let z1 = if projected { &self.z_try } else { &self.z };
+        if mode.free_checks.iter().any(|(row, _, _)| {
+            let (v, s) = dot_and_abs(row, z1.as_slice());
+            v.abs() > 1e-9 * s + 1e-300
+        }) || !guards_hold(mode, z1, scales)
+        {
+            return Ok(false);
+        }
+        // As `commit` without a jump or a short.
+        let n_x = self.cc.n_x;
+        self.before.clear();
+        self.before.extend_from_slice(&self.z.as_slice()[..n_x]);
+        if projected {
+            std::mem::swap(&mut self.z, &mut self.z_try);
+        }
+        let old = self.key.diodes;
+        let new = self.modes[to as usize].key.diodes;
+        self.key.diodes = new;
+        self.mode = to;
+        let changed = old ^ new;
+        for k in 0..self.cc.diodes.len() {
+            if changed >> k & 1 == 1 {
+                let kind = if new >> k & 1 == 1 {
+                    EventKind::DiodeOn
+                } else {
+                    EventKind::DiodeOff
+                };
+                self.push_event(self.t, kind, Who::Diode(k), None, true)?;
+            }
+        }
+        Ok(true)
     }
 
     /// Judges candidate mode `mi` at the present state: `Some((flux jump,
@@ -358,7 +468,7 @@ fn violations(
 ) -> (bool, bool) {
     let (mut cut, mut lp) = (false, false);
     for (r, kind) in mode.constraints.iter().enumerate() {
-        let v = dot(mode.h.row(r).iter().copied(), z);
+        let v = dot(mode.ht.column(r).iter().copied(), z);
         match kind {
             ConstraintKind::Cutset { windings: w, .. } if v.abs() > 1e-11 * i_scale => {
                 cut = true;
