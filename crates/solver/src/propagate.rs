@@ -86,7 +86,7 @@ pub(crate) fn taylor_terms(
         ensure(v, k);
         let (done, rest) = v.split_at_mut(k);
         let y = rest[0].as_mut_slice();
-        matvec_live(m, live, done[k - 1].as_slice(), y);
+        matvec_rows(m, live, done[k - 1].as_slice(), y);
         let f = delta / k as f64;
         let mut tn: f64 = 0.0;
         for yi in y[..live].iter_mut() {
@@ -106,22 +106,71 @@ fn amax(x: &[f64]) -> f64 {
     x.iter().fold(0.0, |a, v| a.max(v.abs()))
 }
 
-/// y = M x where only the first `live` rows of M may be non-zero: the
-/// other entries of y are set to zero without being computed. Row for
-/// row, the same operations in the same order as [`matvec`], so the
-/// results are the same bits.
-pub(crate) fn matvec_live(m: &DMatrix<f64>, live: usize, x: &[f64], y: &mut [f64]) {
+/// y = M x where only the first `live` rows of M may be non-zero. Row for
+/// row the same operations in the same order as [`matvec`] (the first
+/// term is added to +0 as there), so the results are the same bits; rows
+/// past `live` come out as +0 either way.
+#[inline]
+fn matvec_rows(m: &DMatrix<f64>, live: usize, x: &[f64], y: &mut [f64]) {
     let n = m.nrows();
     let data = m.as_slice();
-    y.fill(0.0);
+    // Fixed sizes unroll completely (no loop counters or bounds checks);
+    // converters mostly have 3 to 8 entries in z.
+    match n {
+        3 => return fixed::<3>(data, x, y),
+        4 => return fixed::<4>(data, x, y),
+        5 => return fixed::<5>(data, x, y),
+        6 => return fixed::<6>(data, x, y),
+        7 => return fixed::<7>(data, x, y),
+        8 => return fixed::<8>(data, x, y),
+        _ => {}
+    }
+    let (head, tail) = y.split_at_mut(live);
+    for v in tail.iter_mut() {
+        *v = 0.0;
+    }
+    let mut started = false;
     for (j, &xj) in x.iter().enumerate() {
         if xj != 0.0 {
             let col = &data[j * n..j * n + live];
-            for (yi, &mij) in y[..live].iter_mut().zip(col) {
-                *yi += mij * xj;
+            if started {
+                for (yi, &mij) in head.iter_mut().zip(col) {
+                    *yi += mij * xj;
+                }
+            } else {
+                for (yi, &mij) in head.iter_mut().zip(col) {
+                    *yi = 0.0 + mij * xj;
+                }
+                started = true;
             }
         }
     }
+    if !started {
+        for yi in head.iter_mut() {
+            *yi = 0.0;
+        }
+    }
+}
+
+/// y = M x for an N×N matrix, all rows (rows that are zero in M give +0).
+#[inline]
+fn fixed<const N: usize>(data: &[f64], x: &[f64], y: &mut [f64]) {
+    let x: &[f64; N] = x
+        .try_into()
+        .expect("z has as many entries as M has columns");
+    let y: &mut [f64; N] = y.try_into().expect("y has as many entries as M has rows");
+    let mut acc = [0.0f64; N];
+    for (j, &xj) in x.iter().enumerate() {
+        if xj != 0.0 {
+            let col: &[f64; N] = data[j * N..(j + 1) * N]
+                .try_into()
+                .expect("a column of an N×N matrix has N entries");
+            for i in 0..N {
+                acc[i] += col[i] * xj;
+            }
+        }
+    }
+    *y = acc;
 }
 
 /// Taylor terms kept between calls so that their vectors are reused.
@@ -158,6 +207,9 @@ pub(crate) fn expm(m: &DMatrix<f64>, h: f64) -> DMatrix<f64> {
 /// For the 4–12 states of a converter this plain loop beats a general
 /// matrix-vector product, whose set-up cost dominates at that size.
 pub(crate) fn matvec(m: &DMatrix<f64>, x: &[f64], y: &mut [f64]) {
+    if m.nrows() == m.ncols() && (3..=8).contains(&m.nrows()) {
+        return matvec_rows(m, m.nrows(), x, y);
+    }
     let n = m.nrows();
     let data = m.as_slice();
     y.fill(0.0);
@@ -200,16 +252,24 @@ pub(crate) fn advance_into(
         let d = tau / n as f64;
         for _ in 0..n {
             s.term.copy_from_slice(&s.x);
+            // Rows past `live` of M are zero: those entries of x stay as
+            // they are, and of the terms only the first has them.
+            let tail_max = s.x[live..].iter().fold(0.0f64, |a, v| a.max(v.abs()));
             for k in 1..60 {
-                matvec_live(m, live, &s.term, &mut s.next);
+                matvec_rows(m, live, &s.term, &mut s.next);
                 let f = d / k as f64;
                 let mut tn: f64 = 0.0;
-                for (t, &v) in s.term.iter_mut().zip(&s.next) {
+                for (t, &v) in s.term[..live].iter_mut().zip(&s.next[..live]) {
                     *t = v * f;
                     tn = tn.max(t.abs());
                 }
-                let mut sn: f64 = 0.0;
-                for (x, &t) in s.x.iter_mut().zip(&s.term) {
+                if k == 1 {
+                    for t in s.term[live..].iter_mut() {
+                        *t = 0.0;
+                    }
+                }
+                let mut sn: f64 = tail_max;
+                for (x, &t) in s.x[..live].iter_mut().zip(&s.term[..live]) {
                     *x += t;
                     sn = sn.max(x.abs());
                 }

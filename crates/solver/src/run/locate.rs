@@ -39,6 +39,22 @@ fn abs_dot(a: &[f64], b: &[f64]) -> f64 {
     a.iter().zip(b).map(|(x, y)| (x * y).abs()).sum()
 }
 
+/// Whether guard `g` may cross zero in an interval from state `za` to
+/// `zb`: negative (beyond its tolerance) at the end, or falling at the
+/// start and rising at the end (a dip that may go below zero and back).
+fn suspect_at_end(g: &Guard, za: &[f64], zb: &[f64], scales: (f64, f64)) -> bool {
+    let da = dot(g.drow.iter().copied(), za);
+    if da < 0.0 && dot(g.drow.iter().copied(), zb) > 0.0 {
+        return true;
+    }
+    let (gb, sb) = dot_and_abs(&g.row, zb);
+    // The tolerance matters only for a negative end value.
+    gb < 0.0 && {
+        let tol = ZERO_REL * sb.max(abs_dot(&g.row, za)) + guard_floor(&g.kind, scales);
+        gb < -tol
+    }
+}
+
 /// (diode bits, comparator bits) of a guard.
 fn bits(g: &Guard) -> (u64, u64) {
     match g.kind {
@@ -101,44 +117,36 @@ impl Simulator {
             // 1e-13 of them, so a lag of one interval does not matter.
             let scales = self.seen;
             let (za, zb) = (self.z.as_slice(), self.z_next.as_slice());
-            let suspect = guards.clone().any(|g| {
-                let db = dot(g.drow.iter().copied(), zb);
-                let da = dot(g.drow.iter().copied(), za);
-                if da < 0.0 && db > 0.0 {
-                    return true;
-                }
-                let (gb, sb) = dot_and_abs(&g.row, zb);
-                // The tolerance matters only for a negative end value.
-                gb < 0.0 && {
-                    let tol = ZERO_REL * sb.max(abs_dot(&g.row, za)) + guard_floor(&g.kind, scales);
-                    gb < -tol
-                }
-            });
+            let suspect = if off_mask == 0 && on_mask == 0 {
+                // No closed-loop gate: the mode's own guards only, without
+                // the chained iterator.
+                mode.guards
+                    .iter()
+                    .any(|g| suspect_at_end(g, za, zb, scales))
+            } else {
+                guards.clone().any(|g| suspect_at_end(g, za, zb, scales))
+            };
             if !suspect {
                 return None;
             }
         }
         let d = h / n as f64;
-        let mut za = self.z.clone();
+        let mut za = std::mem::take(&mut self.za);
+        za.copy_from(&self.z);
         let mut terms = std::mem::take(&mut self.terms);
-        let mut coef = Vec::new();
+        let mut coef = std::mem::take(&mut self.coef);
         let mut found: Option<(f64, (u64, u64), f64)> = None;
         let scales = self.scales();
         for i in 0..n {
             propagate::taylor_terms(&mode.m, mode.live, &za, d, &mut terms);
             for g in guards.clone() {
                 coef.clear();
-                coef.extend(
-                    terms
-                        .terms()
-                        .iter()
-                        .map(|w| dot(g.row.iter().copied(), w.as_slice())),
-                );
-                let scale: f64 = terms
-                    .terms()
-                    .iter()
-                    .map(|w| abs_dot(&g.row, w.as_slice()))
-                    .sum();
+                let mut scale = 0.0;
+                for w in terms.terms() {
+                    let (c, a) = dot_and_abs(&g.row, w.as_slice());
+                    coef.push(c);
+                    scale += a;
+                }
                 let tol = ZERO_REL * scale + guard_floor(&g.kind, scales);
                 let (gb, db) = propagate::poly(&coef, 1.0);
                 let da = coef.get(1).copied().unwrap_or(0.0);
@@ -172,20 +180,26 @@ impl Simulator {
                 }
                 // The state at the crossing, from the same expansion
                 // (Horner in σ), ready for the caller in `z_next`.
-                let zn = &mut self.z_next;
+                let zn = self.z_next.as_mut_slice();
                 zn.fill(0.0);
                 for w in terms.terms().iter().rev() {
-                    *zn *= sigma;
-                    *zn += w;
+                    for (x, &wi) in zn.iter_mut().zip(w.as_slice()) {
+                        *x = *x * sigma + wi;
+                    }
                 }
                 break;
             }
-            za.fill(0.0);
+            let zs = za.as_mut_slice();
+            zs.fill(0.0);
             for w in terms.terms() {
-                za += w;
+                for (x, &wi) in zs.iter_mut().zip(w.as_slice()) {
+                    *x += wi;
+                }
             }
         }
         self.terms = terms;
+        self.za = za;
+        self.coef = coef;
         // A crossing at the very end belongs to the scheduled instant (and
         // `z_next` must then be the state at h again).
         found.map(|(t, b, _)| (if t >= h * (1.0 - 1e-14) { h } else { t }, b.0, b.1))

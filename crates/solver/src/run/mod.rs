@@ -166,6 +166,10 @@ pub struct Simulator {
     z_try: DVector<f64>,
     scratch: propagate::Scratch,
     terms: propagate::TaylorTerms,
+    /// Scratch of event location: start state of a sub-interval and a
+    /// guard's Taylor coefficients.
+    za: DVector<f64>,
+    coef: Vec<f64>,
     before: Vec<f64>,
 }
 
@@ -283,6 +287,8 @@ impl Simulator {
             z_try: DVector::zeros(nz),
             scratch: propagate::Scratch::default(),
             terms: propagate::TaylorTerms::default(),
+            za: DVector::zeros(nz),
+            coef: vec![],
             before: vec![],
         };
         sim.cmp_ticks = (0..n_cmp).map(|ci| sim.make_ticks(ci)).collect();

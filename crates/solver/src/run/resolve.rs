@@ -437,14 +437,19 @@ impl Simulator {
     pub(super) fn scales(&mut self) -> (f64, f64) {
         let mut i_s: f64 = self.seen.0;
         for &s in &self.current_states {
-            i_s = i_s.max(self.z[s].abs());
+            i_s = i_s.max(self.z.as_slice()[s].abs());
         }
+        let z = self.z.as_slice();
         let mut v_s: f64 = self.seen.1;
         for &(s, _) in &self.cc.caps {
-            v_s = v_s.max(self.z[s].abs());
+            v_s = v_s.max(z[s].abs());
         }
         for src in &self.cc.sources {
-            let v: f64 = src.terms.iter().map(|&(k, f)| f * self.z[k]).sum();
+            let v: f64 = match src.terms.as_slice() {
+                // The usual source: one input entry.
+                &[(k, f)] => f * z[k],
+                terms => terms.iter().map(|&(k, f)| f * z[k]).sum(),
+            };
             v_s = v_s.max(v.abs());
         }
         self.seen = (i_s, v_s);
