@@ -672,6 +672,80 @@ impl SignalShape {
 mod tests {
     use super::*;
 
+    /// Edges by brute force: every candidate instant, its state from
+    /// `is_on`, kept where the state changes (the definition `edges`
+    /// shortcuts for untied periodic transitions).
+    fn edges_by_evaluation(s: &SignalShape, t0: f64, t1: f64) -> Vec<(f64, bool)> {
+        let mut times: Vec<f64> = vec![];
+        if let Some(p) = s.period {
+            let k0 = ((t0 - s.origin) / p).floor() as i64 - 2;
+            let k1 = ((t1 - s.origin) / p).ceil() as i64 + 1;
+            for k in k0..=k1 {
+                for &(ph, _) in &s.transitions {
+                    times.push(s.origin + (k as f64 * p + ph));
+                }
+            }
+        }
+        times.extend([s.start.unwrap_or(0.0).max(0.0)]);
+        times.extend(s.stop);
+        times.retain(|&t| t >= t0 && t < t1);
+        times.sort_by(f64::total_cmp);
+        times.dedup();
+        let mut state = times.first().map(|&t| s.was_on_before(t)).unwrap_or(false);
+        let mut out = vec![];
+        for t in times {
+            let after = s.is_on(t);
+            if after != state {
+                out.push((t, after));
+            }
+            state = after;
+        }
+        out
+    }
+
+    /// The fast state evaluation in `edges` agrees with evaluating every
+    /// candidate, for random periodic shapes with windows, origins and
+    /// coinciding transitions (ties fall back to the full evaluation).
+    #[test]
+    fn edges_match_evaluation_of_every_candidate() {
+        let mut seed = 0x2545_f491_4f6c_dd1du64;
+        let mut rnd = move || {
+            seed ^= seed << 13;
+            seed ^= seed >> 7;
+            seed ^= seed << 17;
+            (seed >> 11) as f64 / (1u64 << 53) as f64
+        };
+        for case in 0..400 {
+            let p = 1e-6 * (1.0 + 9.0 * rnd());
+            let n = 1 + (rnd() * 5.0) as usize;
+            let mut phases: Vec<f64> = (0..n).map(|_| 2.0 * p * rnd()).collect();
+            if case % 5 == 0 {
+                // A tie: the same instant twice (p apart in phase).
+                let ph = 0.5 * p * rnd();
+                phases.push(ph);
+                phases.push(ph + p);
+            }
+            phases.sort_by(f64::total_cmp);
+            let transitions = phases.iter().map(|&ph| (ph, rnd() < 0.5)).collect();
+            let shape = SignalShape {
+                period: Some(p),
+                initial: rnd() < 0.5,
+                transitions,
+                start: (rnd() < 0.5).then(|| 20.0 * p * rnd()),
+                stop: (rnd() < 0.5).then(|| 20.0 * p + 30.0 * p * rnd()),
+                origin: if rnd() < 0.3 { 3.0 * p * rnd() } else { 0.0 },
+            };
+            let (t0, t1) = (10.0 * p * rnd(), 60.0 * p);
+            let got: Vec<(f64, bool)> =
+                shape.edges(t0, t1).iter().map(|e| (e.time, e.on)).collect();
+            assert_eq!(
+                got,
+                edges_by_evaluation(&shape, t0, t1),
+                "case {case}: {shape:?}"
+            );
+        }
+    }
+
     fn pwm(duty: f64) -> Gate {
         Gate::Pwm {
             name: "g".into(),

@@ -386,4 +386,52 @@ mod tests {
         assert_eq!(back.to_json(), text);
         assert_eq!(back.get(1).unwrap().element, "D1");
     }
+
+    #[test]
+    fn energies_belong_to_their_events_and_bad_lengths_are_refused() {
+        let mut log = EventLog::new(vec!["C1.voltage".into(), "C2.voltage".into()]);
+        let s = log.intern("S1");
+        let j = log.intern("C1,C2");
+        assert!(log.push(0.0, EventKind::SwitchOn, s, None, &[4.0, 0.0], &[4.0, 0.0]));
+        assert!(log.push(
+            0.0,
+            EventKind::ChargeJump,
+            j,
+            Some(2.0),
+            &[4.0, 0.0],
+            &[2.0, 2.0]
+        ));
+        assert!(log.push(1.0, EventKind::SwitchOff, s, None, &[2.0, 2.0], &[2.0, 2.0]));
+        assert!(log.push(
+            2.0,
+            EventKind::ChargeJump,
+            j,
+            Some(0.5),
+            &[2.0, 1.0],
+            &[1.5, 1.5]
+        ));
+        let energies: Vec<Option<f64>> = log.iter().map(|e| e.energy).collect();
+        assert_eq!(energies, [None, Some(2.0), None, Some(0.5)]);
+        assert_eq!(log.get(1).unwrap().after, &[2.0, 2.0]);
+        assert_eq!(log.get(2).unwrap().before, &[2.0, 2.0]);
+        assert_eq!(log.jumps(), [(0.0, 2.0), (2.0, 0.5)]);
+        // Three states against two names: refused, nothing added.
+        assert!(!log.push(
+            3.0,
+            EventKind::SwitchOn,
+            s,
+            None,
+            &[1.0, 2.0, 3.0],
+            &[1.0, 2.0, 3.0]
+        ));
+        assert_eq!(log.len(), 4);
+        let text = log.to_json().replace("1.5,", "1.5, 9.0,");
+        let err = serde_json::from_str::<EventLog>(&text)
+            .unwrap_err()
+            .to_string();
+        assert!(
+            err.contains("event 3") && err.contains("2 state values"),
+            "{err}"
+        );
+    }
 }

@@ -69,24 +69,19 @@ pub(crate) fn taylor_terms(
     out: &mut TaylorTerms,
 ) {
     let n = z.len();
-    let v = &mut out.v;
-    if v.is_empty() || v[0].len() != n {
-        v.clear();
+    out.n = n;
+    let d = &mut out.data;
+    // Room for every term the loop below may make, once: no growth inside.
+    if d.len() < 60 * n {
+        d.resize(60 * n, 0.0);
     }
-    let ensure = |v: &mut Vec<DVector<f64>>, k: usize| {
-        if v.len() <= k {
-            v.push(DVector::zeros(n));
-        }
-    };
-    ensure(v, 0);
-    v[0].copy_from(z);
+    d[..n].copy_from_slice(z.as_slice());
     let scale = amax(z.as_slice());
     let mut len = 1;
     for k in 1..60 {
-        ensure(v, k);
-        let (done, rest) = v.split_at_mut(k);
-        let y = rest[0].as_mut_slice();
-        matvec_rows(m, live, done[k - 1].as_slice(), y);
+        let (done, rest) = d.split_at_mut(k * n);
+        let y = &mut rest[..n];
+        matvec_rows(m, live, &done[(k - 1) * n..], y);
         let f = delta / k as f64;
         let mut tn: f64 = 0.0;
         for yi in y[..live].iter_mut() {
@@ -176,14 +171,16 @@ fn fixed<const N: usize>(data: &[f64], x: &[f64], y: &mut [f64]) {
 /// Taylor terms kept between calls so that their vectors are reused.
 #[derive(Clone, Debug, Default)]
 pub(crate) struct TaylorTerms {
-    v: Vec<DVector<f64>>,
+    /// Term k is `data[k·n..(k+1)·n]`.
+    data: Vec<f64>,
+    n: usize,
     len: usize,
 }
 
 impl TaylorTerms {
-    /// The terms of the last expansion.
-    pub(crate) fn terms(&self) -> &[DVector<f64>] {
-        &self.v[..self.len]
+    /// The terms of the last expansion, in order.
+    pub(crate) fn terms(&self) -> std::slice::ChunksExact<'_, f64> {
+        self.data[..self.len * self.n].chunks_exact(self.n.max(1))
     }
 }
 

@@ -82,7 +82,6 @@ impl Waveform {
             coef.extend(
                 terms
                     .terms()
-                    .iter()
                     .map(|w| row.iter().zip(w.iter()).map(|(p, q)| p * q).sum::<f64>()),
             );
             let t_start = a + delta * k as f64;

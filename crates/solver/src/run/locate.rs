@@ -143,7 +143,7 @@ impl Simulator {
                 coef.clear();
                 let mut scale = 0.0;
                 for w in terms.terms() {
-                    let (c, a) = dot_and_abs(&g.row, w.as_slice());
+                    let (c, a) = dot_and_abs(&g.row, w);
                     coef.push(c);
                     scale += a;
                 }
@@ -182,8 +182,8 @@ impl Simulator {
                 // (Horner in σ), ready for the caller in `z_next`.
                 let zn = self.z_next.as_mut_slice();
                 zn.fill(0.0);
-                for w in terms.terms().iter().rev() {
-                    for (x, &wi) in zn.iter_mut().zip(w.as_slice()) {
+                for w in terms.terms().rev() {
+                    for (x, &wi) in zn.iter_mut().zip(w) {
                         *x = *x * sigma + wi;
                     }
                 }
@@ -192,7 +192,7 @@ impl Simulator {
             let zs = za.as_mut_slice();
             zs.fill(0.0);
             for w in terms.terms() {
-                for (x, &wi) in zs.iter_mut().zip(w.as_slice()) {
+                for (x, &wi) in zs.iter_mut().zip(w) {
                     *x += wi;
                 }
             }
