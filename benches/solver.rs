@@ -5,8 +5,10 @@
 //!
 //! Reported rates (criterion's `thrpt` line, elements per second):
 //! - `buck_ccm/events/*`: scheduled + located events per second, recording
-//!   the whole waveform (`record_all`) or nothing (`record_nothing`, to
-//!   separate the cost of recording).
+//!   the whole waveform and event log (`record_all`), the same into the
+//!   storage of the previous run (`record_all_reused`, see
+//!   `Simulator::reuse_storage`: no fresh pages to fault in), or nothing
+//!   (`record_nothing`, to separate the cost of recording).
 //! - `buck_dcm/state_events/*`: located diode turn-offs per second
 //!   (nanoseconds per located event = 1e9 / rate).
 //! - `periods/*`: switching periods per second for both runs.
@@ -22,6 +24,7 @@
 //! pattern, advance 10,000 periods. The recorded result is dropped outside
 //! the timed region. Run with `cargo bench --bench solver`.
 
+use std::cell::Cell;
 use std::hint::black_box;
 use std::time::Duration;
 
@@ -190,6 +193,28 @@ fn timed_with(
     });
 }
 
+/// As [`timed`], each run recording into the storage of the run before it
+/// (`Simulator::reuse_storage`): what a sweep or a test suite of many runs
+/// sees once its buffers exist, without the cost of fresh pages.
+fn timed_reusing(g: &mut BenchmarkGroup<'_, WallTime>, id: &str, circuit: &Circuit) {
+    let previous: Cell<Option<RunResult>> = Cell::new(Some(run(circuit, Record::All)));
+    g.bench_function(id, |b| {
+        b.iter_batched(
+            || previous.take(),
+            |old| {
+                let mut sim =
+                    Simulator::new(black_box(circuit), Options::default()).expect("compiles");
+                if let Some(old) = old {
+                    sim.reuse_storage(old);
+                }
+                sim.advance_periods(PERIODS).expect("runs");
+                previous.set(Some(sim.finish()));
+            },
+            BatchSize::PerIteration,
+        )
+    });
+}
+
 fn configure(g: &mut BenchmarkGroup<'_, WallTime>) {
     g.sample_size(10);
     g.warm_up_time(Duration::from_secs(1));
@@ -219,6 +244,7 @@ fn solver(c: &mut Criterion) {
         (s_ccm.scheduled_events + s_ccm.state_events) as u64,
     ));
     timed(&mut g, "record_all", &ccm, Record::All);
+    timed_reusing(&mut g, "record_all_reused", &ccm);
     timed(&mut g, "record_nothing", &ccm, Record::Nothing);
     g.finish();
 
@@ -226,6 +252,7 @@ fn solver(c: &mut Criterion) {
     configure(&mut g);
     g.throughput(Throughput::Elements(s_dcm.state_events as u64));
     timed(&mut g, "record_all", &dcm, Record::All);
+    timed_reusing(&mut g, "record_all_reused", &dcm);
     timed(&mut g, "record_nothing", &dcm, Record::Nothing);
     g.finish();
 

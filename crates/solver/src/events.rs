@@ -174,6 +174,32 @@ impl EventLog {
         self.snapshots - 1
     }
 
+    /// Takes over the buffers of `old`, emptied, if this log is still
+    /// empty (see `Simulator::reuse_storage`).
+    pub(crate) fn reuse_storage(&mut self, old: EventLog) {
+        if !self.records.is_empty() {
+            return;
+        }
+        let EventLog {
+            mut records,
+            mut states,
+            mut energies,
+            ..
+        } = old;
+        records.clear();
+        states.clear();
+        energies.clear();
+        if records.capacity() > self.records.capacity() {
+            self.records = records;
+        }
+        if states.capacity() > self.states.capacity() {
+            self.states = states;
+        }
+        if energies.capacity() > self.energies.capacity() {
+            self.energies = energies;
+        }
+    }
+
     /// Makes room for `events` more events with about one new snapshot
     /// each.
     pub(crate) fn reserve(&mut self, events: usize) {

@@ -10,7 +10,7 @@ use crate::mode::Mode;
 use crate::propagate;
 
 /// One stretch of the run inside a single mode, with no event inside.
-#[derive(Clone, Debug)]
+#[derive(Clone, Debug, PartialEq)]
 pub struct Segment {
     /// Start time (s).
     pub t0: f64,

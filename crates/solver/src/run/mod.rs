@@ -315,6 +315,50 @@ impl Simulator {
         Ok(sim)
     }
 
+    /// Takes over the storage of a finished run — its segment, state and
+    /// event buffers, emptied — so that a series of runs (a sweep, a test
+    /// suite) records into memory it already has instead of asking the
+    /// system for fresh pages. Call it before advancing: buffers that
+    /// already hold this run's records are kept and `old` is dropped.
+    ///
+    /// # Example
+    ///
+    /// ```
+    /// use fluxstep_netlist::Circuit;
+    /// use fluxstep_solver::{Options, Simulator};
+    ///
+    /// let c = Circuit::builder()
+    ///     .voltage_source("V1", "in", "gnd", 1.0)
+    ///     .resistor("R1", "in", "a", 1.0)
+    ///     .inductor("L1", "a", "gnd", 1e-3)
+    ///     .build()
+    ///     .unwrap();
+    /// let mut first = Simulator::new(&c, Options::default()).unwrap();
+    /// first.advance_to(1e-3).unwrap();
+    /// let first = first.finish();
+    /// let mut second = Simulator::new(&c, Options::default()).unwrap();
+    /// second.reuse_storage(first);
+    /// second.advance_to(1e-3).unwrap();
+    /// assert!(second.waveform().span().is_some());
+    /// ```
+    pub fn reuse_storage(&mut self, old: RunResult) {
+        let RunResult {
+            waveform, events, ..
+        } = old;
+        if self.wave.segments.is_empty() {
+            let (mut segs, mut states) = (waveform.segments, waveform.states);
+            segs.clear();
+            states.clear();
+            if segs.capacity() > self.wave.segments.capacity() {
+                self.wave.segments = segs;
+            }
+            if states.capacity() > self.wave.states.capacity() {
+                self.wave.states = states;
+            }
+        }
+        self.log.reuse_storage(events);
+    }
+
     /// Sends every finished segment to `sink` (in addition to what
     /// [`Options::record`] keeps), e.g. to measure a million-cycle run in
     /// bounded memory.
@@ -602,6 +646,31 @@ mod tests {
         sim.replay = replay;
         sim.advance_to(stop).expect("runs");
         sim.finish()
+    }
+
+    /// Contract: a run in reused storage records exactly what a fresh run
+    /// records.
+    #[test]
+    fn reused_storage_gives_the_same_records() {
+        let path = format!(
+            "{}/../../examples/circuits/buck_dcm.json",
+            env!("CARGO_MANIFEST_DIR")
+        );
+        let c = Circuit::from_file(path).expect("example circuit is valid");
+        let fresh = || {
+            let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
+            sim.advance_to(1e-3).expect("runs");
+            sim.finish()
+        };
+        let (a, old) = (fresh(), fresh());
+        let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
+        sim.reuse_storage(old);
+        sim.advance_to(1e-3).expect("runs");
+        let b = sim.finish();
+        assert!(a.events.len() > 100);
+        assert_eq!(a.events, b.events);
+        assert_eq!(a.waveform.segments, b.waveform.segments);
+        assert_eq!(a.waveform.states, b.waveform.states);
     }
 
     /// Contract: replaying a remembered transition is only a shortcut, so
