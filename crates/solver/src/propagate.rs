@@ -220,6 +220,67 @@ pub(crate) fn matvec(m: &DMatrix<f64>, x: &[f64], y: &mut [f64]) {
     }
 }
 
+/// Σ aᵢbᵢ over two slices of equal length, in index order from the same
+/// start as `Iterator::sum` (so the same bits as `a.iter().zip(b)` summed),
+/// unrolled for the common lengths.
+#[inline]
+pub(crate) fn dot_s(a: &[f64], b: &[f64]) -> f64 {
+    match (a.len(), b.len()) {
+        (4, 4) => dot_fixed::<4>(a, b),
+        (5, 5) => dot_fixed::<5>(a, b),
+        (6, 6) => dot_fixed::<6>(a, b),
+        (7, 7) => dot_fixed::<7>(a, b),
+        (8, 8) => dot_fixed::<8>(a, b),
+        _ => a.iter().zip(b).map(|(x, y)| x * y).sum(),
+    }
+}
+
+#[inline]
+fn dot_fixed<const N: usize>(a: &[f64], b: &[f64]) -> f64 {
+    let a: &[f64; N] = a.try_into().expect("length checked by the caller");
+    let b: &[f64; N] = b.try_into().expect("length checked by the caller");
+    let mut acc: f64 = std::iter::empty::<f64>().sum();
+    for i in 0..N {
+        acc += a[i] * b[i];
+    }
+    acc
+}
+
+/// `(Σ aᵢbᵢ, Σ |aᵢbᵢ|)`, unrolled for the common lengths.
+#[inline]
+pub(crate) fn dot_and_abs(a: &[f64], b: &[f64]) -> (f64, f64) {
+    match (a.len(), b.len()) {
+        (4, 4) => dot_abs_fixed::<4>(a, b),
+        (5, 5) => dot_abs_fixed::<5>(a, b),
+        (6, 6) => dot_abs_fixed::<6>(a, b),
+        (7, 7) => dot_abs_fixed::<7>(a, b),
+        (8, 8) => dot_abs_fixed::<8>(a, b),
+        _ => {
+            let mut v = 0.0;
+            let mut s = 0.0;
+            for (x, y) in a.iter().zip(b) {
+                let p = x * y;
+                v += p;
+                s += p.abs();
+            }
+            (v, s)
+        }
+    }
+}
+
+#[inline]
+fn dot_abs_fixed<const N: usize>(a: &[f64], b: &[f64]) -> (f64, f64) {
+    let a: &[f64; N] = a.try_into().expect("length checked by the caller");
+    let b: &[f64; N] = b.try_into().expect("length checked by the caller");
+    let (mut v, mut s) = (0.0, 0.0);
+    for i in 0..N {
+        let p = a[i] * b[i];
+        v += p;
+        s += p.abs();
+    }
+    (v, s)
+}
+
 /// Scratch vectors for [`advance_into`].
 #[derive(Clone, Debug, Default)]
 pub(crate) struct Scratch {

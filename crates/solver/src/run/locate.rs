@@ -12,10 +12,10 @@
 //! purpose, so a current that just reaches zero and turns back keeps its
 //! conduction state.
 
-use super::resolve::dot_and_abs;
-use super::{dot, Simulator};
+use super::Simulator;
 use crate::mode::{Guard, GuardKind, Mode};
 use crate::propagate;
+use crate::propagate::{dot_and_abs, dot_s};
 
 /// Relative tolerance for "this linear function of the state is zero",
 /// measured against the sum of the magnitudes of its terms (so it scales
@@ -36,15 +36,15 @@ pub(super) fn guard_floor(kind: &GuardKind, (i_scale, v_scale): (f64, f64)) -> f
 }
 
 fn abs_dot(a: &[f64], b: &[f64]) -> f64 {
-    a.iter().zip(b).map(|(x, y)| (x * y).abs()).sum()
+    dot_and_abs(a, b).1
 }
 
 /// Whether guard `g` may cross zero in an interval from state `za` to
 /// `zb`: negative (beyond its tolerance) at the end, or falling at the
 /// start and rising at the end (a dip that may go below zero and back).
 fn suspect_at_end(g: &Guard, za: &[f64], zb: &[f64], scales: (f64, f64)) -> bool {
-    let da = dot(g.drow.iter().copied(), za);
-    if da < 0.0 && dot(g.drow.iter().copied(), zb) > 0.0 {
+    let da = dot_s(&g.drow, za);
+    if da < 0.0 && dot_s(&g.drow, zb) > 0.0 {
         return true;
     }
     let (gb, sb) = dot_and_abs(&g.row, zb);

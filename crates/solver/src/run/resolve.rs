@@ -16,13 +16,14 @@ use nalgebra::DVector;
 
 use super::locate::{guard_floor, ZERO_REL};
 use super::record::Who;
-use super::{dot, Simulator};
+use super::Simulator;
 use crate::compile::BranchKind;
 use crate::error::SolverError;
 use crate::events::EventKind;
 use crate::mode::{pattern_text, ConstraintKind, Mode, ModeKey, ModeProblem};
 use crate::options::{OnInterruption, OnShootThrough};
 use crate::propagate;
+use crate::propagate::dot_and_abs;
 
 /// Why the best rejected candidate was rejected, kept cheap until needed.
 enum Rejection {
@@ -275,7 +276,7 @@ impl Simulator {
         }
         let z1 = &self.z_try;
         if let Some(fi) = mode.free_checks.iter().position(|(row, _, _)| {
-            let v = dot(row.iter().copied(), z1.as_slice());
+            let v = propagate::dot_s(row, z1.as_slice());
             let s: f64 = row.iter().zip(z1.iter()).map(|(a, b)| (a * b).abs()).sum();
             v.abs() > 1e-9 * s + 1e-300
         }) {
@@ -473,7 +474,7 @@ fn violations(
 ) -> (bool, bool) {
     let (mut cut, mut lp) = (false, false);
     for (r, kind) in mode.constraints.iter().enumerate() {
-        let v = dot(mode.ht.column(r).iter().copied(), z);
+        let v = propagate::dot_s(mode.ht.column(r).as_slice(), z);
         match kind {
             ConstraintKind::Cutset { windings: w, .. } if v.abs() > 1e-11 * i_scale => {
                 cut = true;
@@ -540,16 +541,4 @@ fn guards_hold(mode: &Mode, z: &DVector<f64>, scales: (f64, f64)) -> bool {
         }
     }
     true
-}
-
-/// `(Σ aᵢbᵢ, Σ |aᵢbᵢ|)`.
-pub(super) fn dot_and_abs(a: &[f64], b: &[f64]) -> (f64, f64) {
-    let mut v = 0.0;
-    let mut s = 0.0;
-    for (x, y) in a.iter().zip(b) {
-        let p = x * y;
-        v += p;
-        s += p.abs();
-    }
-    (v, s)
 }
