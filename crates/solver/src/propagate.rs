@@ -81,13 +81,8 @@ pub(crate) fn taylor_terms(
     for k in 1..60 {
         let (done, rest) = d.split_at_mut(k * n);
         let y = &mut rest[..n];
-        matvec_rows(m, live, &done[(k - 1) * n..], y);
         let f = delta / k as f64;
-        let mut tn: f64 = 0.0;
-        for yi in y[..live].iter_mut() {
-            *yi *= f;
-            tn = tn.max(yi.abs());
-        }
+        let tn = matvec_scaled(m, live, &done[(k - 1) * n..], y, f);
         len = k + 1;
         if tn == 0.0 || (k >= 3 && tn <= scale * 1e-18) {
             break;
@@ -105,7 +100,7 @@ fn amax(x: &[f64]) -> f64 {
 /// row the same operations in the same order as [`matvec`] (the first
 /// term is added to +0 as there), so the results are the same bits; rows
 /// past `live` come out as +0 either way.
-#[inline]
+#[inline(always)]
 fn matvec_rows(m: &DMatrix<f64>, live: usize, x: &[f64], y: &mut [f64]) {
     let n = m.nrows();
     let data = m.as_slice();
@@ -147,8 +142,57 @@ fn matvec_rows(m: &DMatrix<f64>, live: usize, x: &[f64], y: &mut [f64]) {
     }
 }
 
+/// y = (M x)·f (each entry summed, then scaled, as a product followed by a
+/// scaling would); returns the largest |yᵢ|. `f` must be positive.
+#[inline(always)]
+fn matvec_scaled(m: &DMatrix<f64>, live: usize, x: &[f64], y: &mut [f64], f: f64) -> f64 {
+    let data = m.as_slice();
+    match m.nrows() {
+        3 => return scaled_fixed::<3>(data, x, y, f),
+        4 => return scaled_fixed::<4>(data, x, y, f),
+        5 => return scaled_fixed::<5>(data, x, y, f),
+        6 => return scaled_fixed::<6>(data, x, y, f),
+        7 => return scaled_fixed::<7>(data, x, y, f),
+        8 => return scaled_fixed::<8>(data, x, y, f),
+        _ => {}
+    }
+    matvec_rows(m, live, x, y);
+    let mut tn: f64 = 0.0;
+    for yi in y[..live].iter_mut() {
+        *yi *= f;
+        tn = tn.max(yi.abs());
+    }
+    tn
+}
+
+#[inline(always)]
+fn scaled_fixed<const N: usize>(data: &[f64], x: &[f64], y: &mut [f64], f: f64) -> f64 {
+    let x: &[f64; N] = x
+        .try_into()
+        .expect("z has as many entries as M has columns");
+    let y: &mut [f64; N] = y.try_into().expect("y has as many entries as M has rows");
+    let mut acc = [0.0f64; N];
+    for (j, &xj) in x.iter().enumerate() {
+        if xj != 0.0 {
+            let col: &[f64; N] = data[j * N..(j + 1) * N]
+                .try_into()
+                .expect("a column of an N×N matrix has N entries");
+            for i in 0..N {
+                acc[i] += col[i] * xj;
+            }
+        }
+    }
+    let mut tn: f64 = 0.0;
+    for i in 0..N {
+        acc[i] *= f;
+        tn = tn.max(acc[i].abs());
+    }
+    *y = acc;
+    tn
+}
+
 /// y = M x for an N×N matrix, all rows (rows that are zero in M give +0).
-#[inline]
+#[inline(always)]
 fn fixed<const N: usize>(data: &[f64], x: &[f64], y: &mut [f64]) {
     let x: &[f64; N] = x
         .try_into()
@@ -314,18 +358,9 @@ pub(crate) fn advance_into(
             // they are, and of the terms only the first has them.
             let tail_max = s.x[live..].iter().fold(0.0f64, |a, v| a.max(v.abs()));
             for k in 1..60 {
-                matvec_rows(m, live, &s.term, &mut s.next);
                 let f = d / k as f64;
-                let mut tn: f64 = 0.0;
-                for (t, &v) in s.term[..live].iter_mut().zip(&s.next[..live]) {
-                    *t = v * f;
-                    tn = tn.max(t.abs());
-                }
-                if k == 1 {
-                    for t in s.term[live..].iter_mut() {
-                        *t = 0.0;
-                    }
-                }
+                let tn = matvec_scaled(m, live, &s.term, &mut s.next, f);
+                std::mem::swap(&mut s.term, &mut s.next);
                 let mut sn: f64 = tail_max;
                 for (x, &t) in s.x[..live].iter_mut().zip(&s.term[..live]) {
                     *x += t;
