@@ -183,9 +183,9 @@ fn scaled_fixed<const N: usize>(data: &[f64], x: &[f64], y: &mut [f64], f: f64) 
         }
     }
     let mut tn: f64 = 0.0;
-    for i in 0..N {
-        acc[i] *= f;
-        tn = tn.max(acc[i].abs());
+    for a in acc.iter_mut() {
+        *a *= f;
+        tn = tn.max(a.abs());
     }
     *y = acc;
     tn
