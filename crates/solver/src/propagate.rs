@@ -267,7 +267,7 @@ pub(crate) fn matvec(m: &DMatrix<f64>, x: &[f64], y: &mut [f64]) {
 /// Σ aᵢbᵢ over two slices of equal length, in index order from the same
 /// start as `Iterator::sum` (so the same bits as `a.iter().zip(b)` summed),
 /// unrolled for the common lengths.
-#[inline]
+#[inline(always)]
 pub(crate) fn dot_s(a: &[f64], b: &[f64]) -> f64 {
     match (a.len(), b.len()) {
         (4, 4) => dot_fixed::<4>(a, b),
@@ -279,7 +279,7 @@ pub(crate) fn dot_s(a: &[f64], b: &[f64]) -> f64 {
     }
 }
 
-#[inline]
+#[inline(always)]
 fn dot_fixed<const N: usize>(a: &[f64], b: &[f64]) -> f64 {
     let a: &[f64; N] = a.try_into().expect("length checked by the caller");
     let b: &[f64; N] = b.try_into().expect("length checked by the caller");
@@ -291,7 +291,7 @@ fn dot_fixed<const N: usize>(a: &[f64], b: &[f64]) -> f64 {
 }
 
 /// `(Σ aᵢbᵢ, Σ |aᵢbᵢ|)`, unrolled for the common lengths.
-#[inline]
+#[inline(always)]
 pub(crate) fn dot_and_abs(a: &[f64], b: &[f64]) -> (f64, f64) {
     match (a.len(), b.len()) {
         (4, 4) => dot_abs_fixed::<4>(a, b),
@@ -312,7 +312,7 @@ pub(crate) fn dot_and_abs(a: &[f64], b: &[f64]) -> (f64, f64) {
     }
 }
 
-#[inline]
+#[inline(always)]
 fn dot_abs_fixed<const N: usize>(a: &[f64], b: &[f64]) -> (f64, f64) {
     let a: &[f64; N] = a.try_into().expect("length checked by the caller");
     let b: &[f64; N] = b.try_into().expect("length checked by the caller");

@@ -535,8 +535,10 @@ impl Simulator {
             .filter_map(|(_, s)| s.period.map(|p| s.transitions.len() as f64 / p))
             .sum();
         let expected = 2.0 * per_second * (t_end - self.t);
-        // Beyond this a run is better streamed than reserved.
-        let cap = 50_000_000.0;
+        // At most about 140 MB ahead (with a handful of states): past that
+        // doubling costs little next to the run itself, and a run that
+        // stops early should not have claimed gigabytes.
+        let cap = 1_000_000.0;
         if expected.is_nan() || expected < 1.0 {
             return;
         }
