@@ -630,11 +630,16 @@ impl SignalShape {
                 cand.push(plain(w));
             }
         }
-        cand.sort_by(|a, b| {
+        let order = |a: &Edge, b: &Edge| {
             a.time
                 .total_cmp(&b.time)
                 .then(b.period.is_some().cmp(&a.period.is_some()))
-        });
+        };
+        // Usually generated in order already; the sort is stable, so
+        // skipping it then changes nothing.
+        if !cand.is_sorted_by(|a, b| order(a, b).is_le()) {
+            cand.sort_by(order);
+        }
         // Without two periodic transitions at the same instant, the raw
         // state just after a periodic candidate is that transition's own
         // value (it is the latest transition at or before its time), so

@@ -16,7 +16,12 @@ pub(crate) const TAYLOR_REACH: f64 = 0.5;
 
 /// Number of sub-intervals so that each has ρ·τ ≤ [`TAYLOR_REACH`].
 pub(crate) fn substeps(rate: f64, tau: f64) -> usize {
-    let s = (rate * tau / TAYLOR_REACH).ceil();
+    let x = rate * tau / TAYLOR_REACH;
+    // The usual case without the call to `ceil`.
+    if x <= 1.0 {
+        return 1;
+    }
+    let s = x.ceil();
     if s.is_finite() && s >= 1.0 {
         (s as usize).min(1 << 20)
     } else {
