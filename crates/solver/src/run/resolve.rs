@@ -9,6 +9,11 @@
 //! cycle, unlike flip-and-retry loops; it is exhaustive, hence limited to
 //! 16 diodes. Diagnostics are kept as numbers and only turned into text if
 //! no candidate holds.
+//!
+//! A fixed-frequency converter repeats the same few transitions, so each
+//! outcome is remembered and replayed after re-checking exactly the
+//! state-dependent reasons the search had (see `resolve_remembered`); a
+//! contract test checks that replay gives the same bits.
 
 use std::sync::Arc;
 
@@ -47,6 +52,12 @@ pub(super) struct Transition {
     flips: u64,
     cut_rejected: Vec<u32>,
     to: u32,
+}
+
+impl Transition {
+    fn same_key(&self, other: &Transition) -> bool {
+        self.from == other.from && self.switches == other.switches && self.flips == other.flips
+    }
 }
 
 impl Simulator {
@@ -138,14 +149,22 @@ impl Simulator {
                 if let (Some(list), Some((false, false)), false) =
                     (&cut_rejected, verdict, allow_cut)
                 {
-                    if modes[mi as usize].resistive_short.is_none() && self.memo.len() < 64 {
-                        self.memo.push(Transition {
+                    if modes[mi as usize].resistive_short.is_none() {
+                        let t = Transition {
                             from: self.mode,
                             switches: self.key.switches,
                             flips,
                             cut_rejected: list.clone(),
                             to: mi,
-                        });
+                        };
+                        // The latest outcome of a transition replaces an
+                        // earlier one (a converter moving between
+                        // conduction modes changes it).
+                        match self.memo.iter().position(|m| m.same_key(&t)) {
+                            Some(i) => self.memo[i] = t,
+                            None if self.memo.len() < 64 => self.memo.push(t),
+                            None => {}
+                        }
                     }
                 }
                 self.modes = modes;
