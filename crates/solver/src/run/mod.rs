@@ -689,6 +689,9 @@ mod tests {
             ("rectifier.json", 40e-3),
             ("peak_current_buck.json", 1e-3),
             ("hysteretic_buck.json", 1e-3),
+            // A load step under a compensated loop.
+            ("voltage_mode_buck.json", 2e-3),
+            ("buck_boost.json", 1e-3),
         ] {
             let a = run(file, stop, true);
             let b = run(file, stop, false);
