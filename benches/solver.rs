@@ -9,8 +9,10 @@
 //!   storage of the previous run (`record_all_reused`, see
 //!   `Simulator::reuse_storage`: no fresh pages to fault in), or nothing
 //!   (`record_nothing`, to separate the cost of recording).
-//! - `buck_dcm/state_events/*`: located diode turn-offs per second
-//!   (nanoseconds per located event = 1e9 / rate).
+//! - `buck_dcm/state_events/*`: located diode turn-offs per second. Each
+//!   period also has two scheduled edges, so 1e9 / rate is the whole
+//!   period's cost; the cost of the location itself is that minus two
+//!   events of `buck_ccm/events/record_nothing`.
 //! - `periods/*`: switching periods per second for both runs.
 //! - `closed_loop/digital_pi_buck/*`: the CCM buck under a sampled PI
 //!   controller (sample at each period start, 1 µs computation delay, new
@@ -23,6 +25,12 @@
 //! Each timed iteration is one end-to-end run: compile, resolve the initial
 //! pattern, advance 10,000 periods. The recorded result is dropped outside
 //! the timed region. Run with `cargo bench --bench solver`.
+//!
+//! Wall time on shared machines drifts by up to 2× within an hour; to
+//! compare two versions, count instructions instead, e.g.
+//! `valgrind --tool=callgrind target/release/deps/solver-* --bench
+//! --profile-time 1 buck_ccm/events/record_nothing` (criterion's profile
+//! mode runs the routine without measuring).
 
 use std::cell::Cell;
 use std::hint::black_box;
