@@ -27,10 +27,8 @@
 //! the timed region. Run with `cargo bench --bench solver`.
 //!
 //! Wall time on shared machines drifts by up to 2× within an hour; to
-//! compare two versions, count instructions instead, e.g.
-//! `valgrind --tool=callgrind target/release/deps/solver-* --bench
-//! --profile-time 1 buck_ccm/events/record_nothing` (criterion's profile
-//! mode runs the routine without measuring).
+//! compare two versions, count the instructions of one run instead with
+//! `benches/once.rs` under valgrind (see there).
 
 use std::cell::Cell;
 use std::hint::black_box;
