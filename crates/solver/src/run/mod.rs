@@ -146,7 +146,10 @@ pub struct Simulator {
     wave: Waveform,
     log: EventLog,
     sink: Option<SegmentSink>,
-    recent: VecDeque<(f64, Who)>,
+    /// The latest events, a ring of `chatter_events + 1` (oldest at
+    /// `recent_head` once full).
+    recent: Vec<(f64, Who)>,
+    recent_head: usize,
     /// Every event counted, kept or not (for the event limit).
     n_events: usize,
     stats: Stats,
@@ -276,7 +279,8 @@ impl Simulator {
             wave,
             log,
             sink: None,
-            recent: VecDeque::new(),
+            recent: vec![],
+            recent_head: 0,
             n_events: 0,
             stats: Stats::default(),
             seen: (0.0, 0.0),

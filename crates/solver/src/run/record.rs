@@ -90,28 +90,30 @@ impl Simulator {
                 limit: self.opts.max_events,
             });
         }
-        // The last `chatter_events + 1` events: more than `chatter_events`
-        // fall within the window exactly when the oldest of them does
-        // (times never decrease).
+        // The last `chatter_events + 1` events in a ring: more than
+        // `chatter_events` fall within the window exactly when the oldest
+        // of them does (times never decrease).
         let window = self.opts.chatter_window;
-        let limit = self.opts.chatter_events;
-        if self.recent.len() > limit {
-            self.recent.pop_front();
-        }
-        self.recent.push_back((time, who));
-        if self.recent.len() > limit
-            && self
-                .recent
-                .front()
-                .is_some_and(|(t, _)| *t >= time - window)
-        {
+        let cap = self.opts.chatter_events + 1;
+        let oldest = if self.recent.len() < cap {
+            self.recent.push((time, who));
+            self.recent[0].0
+        } else {
+            self.recent[self.recent_head] = (time, who);
+            self.recent_head += 1;
+            if self.recent_head == cap {
+                self.recent_head = 0;
+            }
+            self.recent[self.recent_head].0
+        };
+        if self.recent.len() == cap && oldest >= time - window {
             let mut elements: Vec<String> =
                 self.recent.iter().map(|(_, w)| self.name_of(w)).collect();
             elements.sort();
             elements.dedup();
             return Err(SolverError::Chatter {
                 time,
-                count: self.recent.len(),
+                count: cap,
                 window,
                 elements,
             });

@@ -151,7 +151,9 @@ impl Simulator {
                 self.push_event(t, EventKind::SourceBreakpoint, Who::Source(si), None, false)?;
             }
         }
-        self.run_controllers(t)?;
+        if !self.controllers.is_empty() || !self.pending.is_empty() {
+            self.run_controllers(t)?;
+        }
         self.settle_instant(t)
     }
 
@@ -187,8 +189,10 @@ impl Simulator {
             }
             self.key.switches = sw;
         }
-        if let Some(c) = self.apply_ticks(t)? {
-            cause = Some(c);
+        if !self.cc.comparators.is_empty() {
+            if let Some(c) = self.apply_ticks(t)? {
+                cause = Some(c);
+            }
         }
         self.resolve(0, cause, false)
     }
