@@ -66,14 +66,18 @@ impl Simulator {
                 }
             }
         }
-        if let Some((time, key)) = self.next_control(self.t) {
-            if time < best.0 || (time == best.0 && best.1.is_none() && key.is_some()) {
-                best = (time, key);
+        if !self.controllers.is_empty() || !self.pending.is_empty() {
+            if let Some((time, key)) = self.next_control(self.t) {
+                if time < best.0 || (time == best.0 && best.1.is_none() && key.is_some()) {
+                    best = (time, key);
+                }
             }
         }
-        if let Some((time, key)) = self.next_tick(self.t) {
-            if time < best.0 || (time == best.0 && best.1.is_none()) {
-                best = (time, Some(key));
+        if !self.cc.comparators.is_empty() {
+            if let Some((time, key)) = self.next_tick(self.t) {
+                if time < best.0 || (time == best.0 && best.1.is_none()) {
+                    best = (time, Some(key));
+                }
             }
         }
         for &si in &self.pwl_sources {
