@@ -96,7 +96,6 @@ pub(crate) enum ModeProblem {
 /// A compiled mode.
 #[derive(Clone, Debug)]
 pub(crate) struct Mode {
-    #[allow(dead_code)] // kept for debugging output of a mode
     pub key: ModeKey,
     pub problem: Option<ModeProblem>,
     /// z' = M z.

@@ -41,6 +41,19 @@ struct Interruption {
     mode: u32,
 }
 
+/// The outcome of judging one candidate pattern.
+#[derive(Clone, Copy, PartialEq)]
+enum Verdict {
+    /// It holds; entering it needs a flux (`cut`) or charge jump.
+    Holds { cut: bool, charge: bool },
+    /// Rejected whatever the state: an impossible or forbidden mode.
+    Structural,
+    /// Rejected for cutting an inductor current.
+    Cut,
+    /// Rejected by an unbalanced current source or a guard.
+    Other,
+}
+
 /// A resolved transition, remembered for replay: from mode `from` with
 /// switch bits `switches` and guard flips `flips`, the search rejected the
 /// modes in `cut_rejected` for cutting an inductor current (every other
@@ -130,24 +143,29 @@ impl Simulator {
                 // judged (cloning the `Arc` costs two atomic operations,
                 // which dominated this stage).
                 let modes = std::mem::take(&mut self.modes);
-                let mode_ok = modes[mi as usize].problem.is_none()
-                    && !(modes[mi as usize].resistive_short.is_some()
-                        && self.opts.on_shoot_through == OnShootThrough::Stop);
                 let verdict =
                     self.judge(&modes, mi, allow_cut, scales, &mut interruption, &mut other);
-                if let (Some(list), None) = (cut_rejected.as_mut(), verdict) {
-                    // Rejected by a structural problem (always rejected) or
-                    // by cutting a current (re-checked on replay); anything
-                    // else forbids replay.
-                    let cut = violations(&modes[mi as usize], self.z.as_slice(), scales, None).0;
-                    if mode_ok && cut && !allow_cut {
-                        list.push(mi);
-                    } else if mode_ok {
-                        cut_rejected = None;
+                match verdict {
+                    // Rejected for a structural reason: always rejected.
+                    Verdict::Structural => {}
+                    // Re-checked on replay.
+                    Verdict::Cut => {
+                        if let Some(list) = cut_rejected.as_mut() {
+                            list.push(mi);
+                        }
                     }
+                    // Any other state-dependent rejection forbids replay.
+                    Verdict::Other => cut_rejected = None,
+                    Verdict::Holds { .. } => {}
                 }
-                if let (Some(list), Some((false, false)), false) =
-                    (&cut_rejected, verdict, allow_cut)
+                if let (
+                    Some(list),
+                    Verdict::Holds {
+                        cut: false,
+                        charge: false,
+                    },
+                    false,
+                ) = (&cut_rejected, verdict, allow_cut)
                 {
                     if modes[mi as usize].resistive_short.is_none() {
                         let t = Transition {
@@ -168,8 +186,8 @@ impl Simulator {
                     }
                 }
                 self.modes = modes;
-                if let Some((cut_jump, loop_jump)) = verdict {
-                    self.commit(key, mi, cut_jump, loop_jump, initial)?;
+                if let Verdict::Holds { cut, charge } = verdict {
+                    self.commit(key, mi, cut, charge, initial)?;
                     return Ok(());
                 }
             }
@@ -210,14 +228,11 @@ impl Simulator {
             propagate::matvec(&mode.p, z, self.z_try.as_mut_slice());
         }
         let z1 = if projected { &self.z_try } else { &self.z };
-        if mode.free_checks.iter().any(|(row, _, _)| {
-            let (v, s) = dot_and_abs(row, z1.as_slice());
-            v.abs() > 1e-9 * s + 1e-300
-        }) || !guards_hold(mode, z1, scales)
-        {
+        if unbalanced_source(mode, z1.as_slice()).is_some() || !guards_hold(mode, z1, scales) {
             return Ok(false);
         }
-        // As `commit` without a jump or a short.
+        // What `commit` does for a pattern without a jump or a short, kept
+        // lean: this runs at every scheduled edge.
         let n_x = self.cc.n_x;
         self.before.clear();
         self.before.extend_from_slice(&self.z.as_slice()[..n_x]);
@@ -225,9 +240,15 @@ impl Simulator {
             std::mem::swap(&mut self.z, &mut self.z_try);
         }
         let old = self.key.diodes;
-        let new = self.modes[to as usize].key.diodes;
-        self.key.diodes = new;
+        self.key = self.modes[to as usize].key;
         self.mode = to;
+        self.log_diode_changes(old).map(|()| true)
+    }
+
+    /// Logs a diode-on or diode-off event for each diode whose state
+    /// differs between `old` and the present pattern.
+    fn log_diode_changes(&mut self, old: u64) -> Result<(), SolverError> {
+        let new = self.key.diodes;
         let changed = old ^ new;
         for k in 0..self.cc.diodes.len() {
             if changed >> k & 1 == 1 {
@@ -239,12 +260,12 @@ impl Simulator {
                 self.push_event(self.t, kind, Who::Diode(k), None, true)?;
             }
         }
-        Ok(true)
+        Ok(())
     }
 
-    /// Judges candidate mode `mi` at the present state: `Some((flux jump,
-    /// charge jump))` if it holds (its state after any jump is then in
-    /// `z_try`), else `None`, keeping the closest reason for the diagnostic.
+    /// Judges candidate mode `mi` at the present state (if it holds, its
+    /// state after any jump is then in `z_try`), keeping the closest reason
+    /// for the diagnostic of a rejection.
     fn judge(
         &mut self,
         modes: &[Arc<Mode>],
@@ -253,7 +274,7 @@ impl Simulator {
         scales: (f64, f64),
         interruption: &mut Option<Interruption>,
         other: &mut Option<Rejection>,
-    ) -> Option<(bool, bool)> {
+    ) -> Verdict {
         let mode = &*modes[mi as usize];
         // Report the closest rejected pattern, but a short before
         // any other reason: it is what the switching action did.
@@ -269,13 +290,13 @@ impl Simulator {
             if other.is_none() || (short && !other_is_short) {
                 *other = Some(Rejection::Problem(mi));
             }
-            return None;
+            return Verdict::Structural;
         }
         if mode.resistive_short.is_some() && self.opts.on_shoot_through == OnShootThrough::Stop {
             if !other_is_short {
                 *other = Some(Rejection::ResistiveShort(mi));
             }
-            return None;
+            return Verdict::Structural;
         }
         let (cut_violated, loop_violated) = violations(mode, self.z.as_slice(), scales, None);
         if cut_violated && !allow_cut {
@@ -284,7 +305,7 @@ impl Simulator {
             if interruption.is_none() {
                 *interruption = Some(Interruption { mode: mi });
             }
-            return None;
+            return Verdict::Cut;
         }
         // The candidate state (after any jump) goes into a scratch
         // buffer; `commit` swaps it in.
@@ -294,20 +315,19 @@ impl Simulator {
             propagate::matvec(&mode.p, self.z.as_slice(), self.z_try.as_mut_slice());
         }
         let z1 = &self.z_try;
-        if let Some(fi) = mode.free_checks.iter().position(|(row, _, _)| {
-            let v = propagate::dot_s(row, z1.as_slice());
-            let s: f64 = row.iter().zip(z1.iter()).map(|(a, b)| (a * b).abs()).sum();
-            v.abs() > 1e-9 * s + 1e-300
-        }) {
+        if let Some(fi) = unbalanced_source(mode, z1.as_slice()) {
             if other.is_none() {
                 *other = Some(Rejection::CurrentSource(mi as usize, fi));
             }
-            return None;
+            return Verdict::Other;
         }
         if !guards_hold(mode, z1, scales) {
-            return None;
+            return Verdict::Other;
         }
-        Some((cut_violated, loop_violated))
+        Verdict::Holds {
+            cut: cut_violated,
+            charge: loop_violated,
+        }
     }
 
     fn commit(
@@ -355,17 +375,7 @@ impl Simulator {
             self.push_event(self.t, EventKind::ShootThrough, Who::Named(id), None, true)?;
         }
         if !initial {
-            let changed = old ^ key.diodes;
-            for k in 0..self.cc.diodes.len() {
-                if changed >> k & 1 == 1 {
-                    let kind = if key.diodes >> k & 1 == 1 {
-                        EventKind::DiodeOn
-                    } else {
-                        EventKind::DiodeOff
-                    };
-                    self.push_event(self.t, kind, Who::Diode(k), None, true)?;
-                }
-            }
+            self.log_diode_changes(old)?;
         }
         Ok(())
     }
@@ -506,6 +516,15 @@ fn violations(
         }
     }
     (cut, lp)
+}
+
+/// The first current source left without a path in the mode (its free
+/// group's gauge current is not zero at z), if any.
+fn unbalanced_source(mode: &Mode, z: &[f64]) -> Option<usize> {
+    mode.free_checks.iter().position(|(row, _, _)| {
+        let (v, s) = dot_and_abs(row, z);
+        v.abs() > 1e-9 * s + 1e-300
+    })
 }
 
 /// True if every guard is ≥ 0 at z and, where it is zero, its first
