@@ -172,27 +172,12 @@ fn matvec_scaled(m: &DMatrix<f64>, live: usize, x: &[f64], y: &mut [f64], f: f64
 
 #[inline(always)]
 fn scaled_fixed<const N: usize>(data: &[f64], x: &[f64], y: &mut [f64], f: f64) -> f64 {
-    let x: &[f64; N] = x
-        .try_into()
-        .expect("z has as many entries as M has columns");
-    let y: &mut [f64; N] = y.try_into().expect("y has as many entries as M has rows");
-    let mut acc = [0.0f64; N];
-    for (j, &xj) in x.iter().enumerate() {
-        if xj != 0.0 {
-            let col: &[f64; N] = data[j * N..(j + 1) * N]
-                .try_into()
-                .expect("a column of an N×N matrix has N entries");
-            for i in 0..N {
-                acc[i] += col[i] * xj;
-            }
-        }
-    }
+    fixed::<N>(data, x, y);
     let mut tn: f64 = 0.0;
-    for a in acc.iter_mut() {
-        *a *= f;
-        tn = tn.max(a.abs());
+    for yi in y.iter_mut() {
+        *yi *= f;
+        tn = tn.max(yi.abs());
     }
-    *y = acc;
     tn
 }
 
@@ -361,7 +346,7 @@ pub(crate) fn advance_into(
             s.term.copy_from_slice(&s.x);
             // Rows past `live` of M are zero: those entries of x stay as
             // they are, and of the terms only the first has them.
-            let tail_max = s.x[live..].iter().fold(0.0f64, |a, v| a.max(v.abs()));
+            let tail_max = amax(&s.x[live..]);
             for k in 1..60 {
                 let f = d / k as f64;
                 let tn = matvec_scaled(m, live, &s.term, &mut s.next, f);
