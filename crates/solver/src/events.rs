@@ -181,23 +181,14 @@ impl EventLog {
             return;
         }
         let EventLog {
-            mut records,
-            mut states,
-            mut energies,
+            records,
+            states,
+            energies,
             ..
         } = old;
-        records.clear();
-        states.clear();
-        energies.clear();
-        if records.capacity() > self.records.capacity() {
-            self.records = records;
-        }
-        if states.capacity() > self.states.capacity() {
-            self.states = states;
-        }
-        if energies.capacity() > self.energies.capacity() {
-            self.energies = energies;
-        }
+        adopt(&mut self.records, records);
+        adopt(&mut self.states, states);
+        adopt(&mut self.energies, energies);
     }
 
     /// Makes room for `events` more events with about one new snapshot
@@ -391,6 +382,15 @@ impl<'de> Deserialize<'de> for EventLog {
             }
         }
         Ok(log)
+    }
+}
+
+/// Replaces the empty buffer `mine` by `old`, emptied, if `old` has more
+/// room (for reusing the storage of a finished run).
+pub(crate) fn adopt<T>(mine: &mut Vec<T>, mut old: Vec<T>) {
+    old.clear();
+    if old.capacity() > mine.capacity() {
+        *mine = old;
     }
 }
 

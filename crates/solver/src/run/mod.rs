@@ -24,7 +24,7 @@ use fluxstep_netlist::Circuit;
 
 use crate::compile::Compiled;
 use crate::error::SolverError;
-use crate::events::EventLog;
+use crate::events::{adopt, EventLog};
 use crate::mode::{pattern_text, Mode, ModeKey};
 use crate::options::{Options, Record};
 use crate::propagate;
@@ -350,15 +350,8 @@ impl Simulator {
             waveform, events, ..
         } = old;
         if self.wave.segments.is_empty() {
-            let (mut segs, mut states) = (waveform.segments, waveform.states);
-            segs.clear();
-            states.clear();
-            if segs.capacity() > self.wave.segments.capacity() {
-                self.wave.segments = segs;
-            }
-            if states.capacity() > self.wave.states.capacity() {
-                self.wave.states = states;
-            }
+            adopt(&mut self.wave.segments, waveform.segments);
+            adopt(&mut self.wave.states, waveform.states);
         }
         self.log.reuse_storage(events);
     }
@@ -546,13 +539,11 @@ impl Simulator {
         if expected.is_nan() || expected < 1.0 {
             return;
         }
+        // `reserve` does nothing where the room is there already.
         let n = expected.min(cap) as usize;
-        let more = n.saturating_sub(self.wave.segments.capacity() - self.wave.segments.len());
-        if more > 0 {
-            self.wave.segments.reserve(n);
-            self.wave.states.reserve(n * self.wave.n_z);
-            self.log.reserve(2 * n);
-        }
+        self.wave.segments.reserve(n);
+        self.wave.states.reserve(n * self.wave.n_z);
+        self.log.reserve(2 * n);
     }
 
     fn check_finite(&self) -> Result<(), SolverError> {
@@ -640,14 +631,19 @@ pub fn simulate(
 mod tests {
     use super::*;
 
-    /// Runs a circuit file for `stop` seconds with or without replay of
-    /// remembered transitions.
-    fn run(file: &str, stop: f64, replay: bool) -> RunResult {
+    /// An example circuit file of the repository.
+    fn example(file: &str) -> Circuit {
         let path = format!(
             "{}/../../examples/circuits/{file}",
             env!("CARGO_MANIFEST_DIR")
         );
-        let c = Circuit::from_file(path).expect("example circuit is valid");
+        Circuit::from_file(path).expect("example circuit is valid")
+    }
+
+    /// Runs a circuit file for `stop` seconds with or without replay of
+    /// remembered transitions.
+    fn run(file: &str, stop: f64, replay: bool) -> RunResult {
+        let c = example(file);
         let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
         sim.replay = replay;
         sim.advance_to(stop).expect("runs");
@@ -658,11 +654,7 @@ mod tests {
     /// records.
     #[test]
     fn reused_storage_gives_the_same_records() {
-        let path = format!(
-            "{}/../../examples/circuits/buck_dcm.json",
-            env!("CARGO_MANIFEST_DIR")
-        );
-        let c = Circuit::from_file(path).expect("example circuit is valid");
+        let c = example("buck_dcm.json");
         let fresh = || {
             let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
             sim.advance_to(1e-3).expect("runs");
