@@ -598,14 +598,14 @@ impl SignalShape {
                 let k0 = ((t0 - self.origin) / p).floor() as i64 - 2;
                 let k1 = ((t1 - self.origin) / p).ceil() as i64 + 1;
                 for k in k0..=k1 {
-                    for (j, &(ph, _)) in self.transitions.iter().enumerate() {
+                    for &(ph, on) in &self.transitions {
                         let time = self.origin + (k as f64 * p + ph);
                         if time >= t0 && time < t1 {
                             cand.push(Edge {
                                 time,
                                 // The transition's own value, for the fast
                                 // state evaluation below.
-                                on: self.transitions[j].1,
+                                on,
                                 cycle: k,
                                 phase: ph,
                                 period: Some(p),
