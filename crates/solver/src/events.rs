@@ -158,18 +158,16 @@ impl EventLog {
 
     /// Number of a snapshot equal to `x`: the last one if it matches (the
     /// events of one instant share their snapshots), else a new one.
+    #[inline]
     fn snapshot(&mut self, x: &[f64]) -> u32 {
         let n = x.len();
         let len = self.states.len();
-        if self.snapshots > 0
-            && self.states[len - n..]
-                .iter()
-                .zip(x)
-                .all(|(a, b)| a.to_bits() == b.to_bits())
-        {
+        if self.snapshots > 0 && same_bits(&self.states[len - n..], x) {
             return self.snapshots - 1;
         }
-        self.states.extend_from_slice(x);
+        // Element by element: a handful of states, not worth a call to
+        // the system's copy routine.
+        self.states.extend(x.iter().copied());
         self.snapshots += 1;
         self.snapshots - 1
     }
@@ -200,6 +198,7 @@ impl EventLog {
 
     /// Appends an event; `false` (and nothing added) if the log is full
     /// (2³² − 2 snapshots or records) or the states have the wrong length.
+    #[inline]
     pub(crate) fn push(
         &mut self,
         time: f64,
@@ -218,7 +217,13 @@ impl EventLog {
             return false;
         }
         let b = self.snapshot(before);
-        let a = self.snapshot(after);
+        // The same slice twice (an event that leaves the state as it was)
+        // is the same snapshot without comparing it again.
+        let a = if std::ptr::eq(before, after) {
+            b
+        } else {
+            self.snapshot(after)
+        };
         if let Some(e) = energy {
             self.energies.push((self.records.len() as u32, e));
         }
@@ -460,4 +465,10 @@ mod tests {
             "{err}"
         );
     }
+}
+
+/// Whether two slices of equal length hold the same bits.
+#[inline]
+fn same_bits(a: &[f64], b: &[f64]) -> bool {
+    a.len() == b.len() && a.iter().zip(b).all(|(x, y)| x.to_bits() == y.to_bits())
 }

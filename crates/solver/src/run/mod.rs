@@ -157,6 +157,13 @@ pub struct Simulator {
     seen: (f64, f64),
     /// The state entries that are inductor currents (for `seen`).
     current_states: Vec<usize>,
+    /// Capacitor voltages (factor 1) and single-term source voltages as
+    /// (z index, factor), and the sources of several terms (for `seen`).
+    voltage_terms: Vec<(usize, f64)>,
+    multi_term_sources: Vec<usize>,
+    /// When every piecewise-linear source is constant: the input entries
+    /// of z and their values, written at every scheduled instant.
+    const_inputs: Option<Vec<(usize, f64)>>,
     /// Candidate diode patterns ordered by distance from a first guess,
     /// built once per first guess.
     orders: Vec<Option<Vec<u64>>>,
@@ -285,6 +292,9 @@ impl Simulator {
             stats: Stats::default(),
             seen: (0.0, 0.0),
             current_states: vec![],
+            voltage_terms: vec![],
+            multi_term_sources: vec![],
+            const_inputs: None,
             orders: vec![],
             memo: vec![],
             replay: true,
@@ -302,6 +312,14 @@ impl Simulator {
             .iter()
             .flat_map(|g| g.states.iter().copied())
             .collect();
+        sim.voltage_terms = sim.cc.caps.iter().map(|&(s, _)| (s, 1.0)).collect();
+        for (si, src) in sim.cc.sources.iter().enumerate() {
+            match src.terms.as_slice() {
+                &[(k, f)] => sim.voltage_terms.push((k, f)),
+                _ => sim.multi_term_sources.push(si),
+            }
+        }
+        sim.const_inputs = sim.constant_inputs();
         sim.set_inputs(0.0);
         sim.key.switches = sim.switch_bits();
         // Edges at t = 0 are already reflected in the initial signal states.

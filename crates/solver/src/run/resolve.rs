@@ -465,21 +465,23 @@ impl Simulator {
     /// so far in the run (never the present value alone: at a located zero
     /// crossing the only inductor current is itself ~1e-17 A).
     pub(super) fn scales(&mut self) -> (f64, f64) {
+        let z = self.z.as_slice();
         let mut i_s: f64 = self.seen.0;
         for &s in &self.current_states {
-            i_s = i_s.max(self.z.as_slice()[s].abs());
+            i_s = i_s.max(z[s].abs());
         }
-        let z = self.z.as_slice();
+        // Capacitor voltages and single-term sources as (index, factor);
+        // the maximum does not depend on the order.
         let mut v_s: f64 = self.seen.1;
-        for &(s, _) in &self.cc.caps {
-            v_s = v_s.max(z[s].abs());
+        for &(k, f) in &self.voltage_terms {
+            v_s = v_s.max((f * z[k]).abs());
         }
-        for src in &self.cc.sources {
-            let v: f64 = match src.terms.as_slice() {
-                // The usual source: one input entry.
-                &[(k, f)] => f * z[k],
-                terms => terms.iter().map(|&(k, f)| f * z[k]).sum(),
-            };
+        for &si in &self.multi_term_sources {
+            let v: f64 = self.cc.sources[si]
+                .terms
+                .iter()
+                .map(|&(k, f)| f * z[k])
+                .sum();
             v_s = v_s.max(v.abs());
         }
         self.seen = (i_s, v_s);
@@ -552,8 +554,21 @@ fn guards_hold(mode: &Mode, z: &DVector<f64>, scales: (f64, f64)) -> bool {
     if undecided == 0 {
         return true;
     }
-    // A guard at zero: look at its derivatives (rare, so allocating here
-    // is fine).
+    guards_hold_at_zero(mode, z, scales, undecided)
+}
+
+/// The rest of [`guards_hold`] for the guards that sit at zero (bits of
+/// `undecided`): their derivatives decide. Rare, so allocating here is
+/// fine, and kept out of line so the usual value pass stays small.
+#[cold]
+#[inline(never)]
+fn guards_hold_at_zero(
+    mode: &Mode,
+    z: &DVector<f64>,
+    scales: (f64, f64),
+    mut undecided: u128,
+) -> bool {
+    let zs = z.as_slice();
     let mut d = z.clone_owned();
     let mut next = DVector::zeros(zs.len());
     let mut rate_k = 1.0;

@@ -120,6 +120,14 @@ impl Simulator {
     pub(super) fn set_inputs(&mut self, t: f64) -> u64 {
         let nx = self.cc.n_x;
         let nu = self.cc.n_u;
+        if let Some(list) = &self.const_inputs {
+            // Every source constant: the same entries every time, no corners.
+            let z = self.z.as_mut_slice();
+            for &(i, v) in list {
+                z[i] = v;
+            }
+            return 0;
+        }
         self.z[nx] = 1.0;
         let mut corners = 0u64;
         for &si in &self.pwl_sources {
@@ -140,6 +148,27 @@ impl Simulator {
             self.z[nx + nu + k] = p.slope;
         }
         corners
+    }
+
+    /// The writes of [`Simulator::set_inputs`] when every piecewise-linear
+    /// source is constant (the entry of 1, each value and its zero slope),
+    /// in the order `set_inputs` makes them; `None` otherwise.
+    pub(super) fn constant_inputs(&self) -> Option<Vec<(usize, f64)>> {
+        let nx = self.cc.n_x;
+        let nu = self.cc.n_u;
+        let mut list = vec![(nx, 1.0)];
+        for &si in &self.pwl_sources {
+            let s = &self.cc.sources[si];
+            let (Some(w), Some(k)) = (&s.waveform, s.input) else {
+                continue;
+            };
+            let Waveform::Constant { value } = w else {
+                return None;
+            };
+            list.push((nx + k, *value));
+            list.push((nx + nu + k, 0.0));
+        }
+        Some(list)
     }
 
     /// Applies everything scheduled at `t`: source corners, gate edges, then
