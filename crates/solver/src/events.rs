@@ -158,16 +158,14 @@ impl EventLog {
 
     /// Number of a snapshot equal to `x`: the last one if it matches (the
     /// events of one instant share their snapshots), else a new one.
-    #[inline]
+    #[inline(always)]
     fn snapshot(&mut self, x: &[f64]) -> u32 {
         let n = x.len();
         let len = self.states.len();
         if self.snapshots > 0 && same_bits(&self.states[len - n..], x) {
             return self.snapshots - 1;
         }
-        // Element by element: a handful of states, not worth a call to
-        // the system's copy routine.
-        self.states.extend(x.iter().copied());
+        crate::propagate::extend_small(&mut self.states, x);
         self.snapshots += 1;
         self.snapshots - 1
     }

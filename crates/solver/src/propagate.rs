@@ -364,3 +364,50 @@ pub(crate) fn advance_into(
     }
     out.copy_from_slice(&s.x);
 }
+
+/// Appends a short slice: lengths up to 8 are copied as fixed-size arrays
+/// (moves the compiler unrolls, no call to the system's copy routine).
+#[inline(always)]
+pub(crate) fn extend_small(v: &mut Vec<f64>, x: &[f64]) {
+    #[inline(always)]
+    fn fixed<const N: usize>(v: &mut Vec<f64>, x: &[f64]) {
+        let a: &[f64; N] = x.try_into().expect("length matched by the caller");
+        v.extend_from_slice(a);
+    }
+    match x.len() {
+        1 => fixed::<1>(v, x),
+        2 => fixed::<2>(v, x),
+        3 => fixed::<3>(v, x),
+        4 => fixed::<4>(v, x),
+        5 => fixed::<5>(v, x),
+        6 => fixed::<6>(v, x),
+        7 => fixed::<7>(v, x),
+        8 => fixed::<8>(v, x),
+        _ => v.extend_from_slice(x),
+    }
+}
+
+/// Whether every entry is finite, in one pass and a single test in the
+/// usual case: v·0 is 0 for a finite v and NaN otherwise, so the sum is 0
+/// exactly when every entry is finite. Fixed lengths unroll.
+#[inline(always)]
+pub(crate) fn all_finite(z: &[f64]) -> bool {
+    #[inline(always)]
+    fn fixed<const N: usize>(z: &[f64]) -> bool {
+        let a: &[f64; N] = z.try_into().expect("length matched by the caller");
+        let mut acc = 0.0;
+        for v in a {
+            acc += v * 0.0;
+        }
+        acc == 0.0
+    }
+    match z.len() {
+        3 => fixed::<3>(z),
+        4 => fixed::<4>(z),
+        5 => fixed::<5>(z),
+        6 => fixed::<6>(z),
+        7 => fixed::<7>(z),
+        8 => fixed::<8>(z),
+        _ => z.iter().map(|v| v * 0.0).sum::<f64>() == 0.0,
+    }
+}

@@ -42,7 +42,8 @@ fn abs_dot(a: &[f64], b: &[f64]) -> f64 {
 /// Whether guard `g` may cross zero in an interval from state `za` to
 /// `zb`: negative (beyond its tolerance) at the end, or falling at the
 /// start and rising at the end (a dip that may go below zero and back).
-fn suspect_at_end(g: &Guard, za: &[f64], zb: &[f64], scales: (f64, f64)) -> bool {
+#[inline(always)]
+pub(super) fn suspect_at_end(g: &Guard, za: &[f64], zb: &[f64], scales: (f64, f64)) -> bool {
     let da = dot_s(&g.drow, za);
     if da < 0.0 && dot_s(&g.drow, zb) > 0.0 {
         return true;

@@ -5,6 +5,7 @@ use super::{SegmentView, Simulator};
 use crate::error::SolverError;
 use crate::events::EventKind;
 use crate::options::Record;
+use crate::propagate;
 use crate::waveform::Segment;
 
 /// The element an event concerns, named only when text is needed.
@@ -48,6 +49,7 @@ impl Simulator {
     }
 
     /// Records the segment from now to `t1` (start state `z`).
+    #[inline(always)]
     pub(super) fn record(&mut self, t1: f64) {
         let t0 = self.t;
         if t1 <= t0 {
@@ -63,7 +65,7 @@ impl Simulator {
             sink(&view);
         }
         if self.keeps(t0, t1) {
-            self.wave.states.extend_from_slice(self.z.as_slice());
+            propagate::extend_small(&mut self.wave.states, self.z.as_slice());
             self.wave.segments.push(Segment {
                 t0,
                 t1,
@@ -75,6 +77,7 @@ impl Simulator {
     /// Counts an event (event limit, chatter) and logs it if kept. The state
     /// before is `self.before`; after is the present state when
     /// `changed_state`, else the same as before.
+    #[inline]
     pub(super) fn push_event(
         &mut self,
         time: f64,

@@ -235,7 +235,7 @@ impl Simulator {
         // lean: this runs at every scheduled edge.
         let n_x = self.cc.n_x;
         self.before.clear();
-        self.before.extend_from_slice(&self.z.as_slice()[..n_x]);
+        propagate::extend_small(&mut self.before, &self.z.as_slice()[..n_x]);
         if projected {
             std::mem::swap(&mut self.z, &mut self.z_try);
         }
@@ -464,6 +464,7 @@ impl Simulator {
     /// Largest inductor current and largest capacitor or source voltage seen
     /// so far in the run (never the present value alone: at a located zero
     /// crossing the only inductor current is itself ~1e-17 A).
+    #[inline(always)]
     pub(super) fn scales(&mut self) -> (f64, f64) {
         let z = self.z.as_slice();
         let mut i_s: f64 = self.seen.0;
@@ -497,15 +498,21 @@ impl Simulator {
 /// or capacitor/source voltage (loops) seen in the run: a located zero
 /// crossing leaves ~1e-17 of that behind, which the projection removes
 /// silently; anything above 1e-11 of it is a real jump.
+#[inline(always)]
 fn violations(
     mode: &Mode,
     z: &[f64],
     (i_scale, v_scale): (f64, f64),
     mut windings: Option<&mut Vec<usize>>,
 ) -> (bool, bool) {
+    if mode.constraints.is_empty() {
+        return (false, false);
+    }
     let (mut cut, mut lp) = (false, false);
-    for (r, kind) in mode.constraints.iter().enumerate() {
-        let v = propagate::dot_s(mode.ht.column(r).as_slice(), z);
+    // Hᵀ is column-major: constraint r's row is the r-th run of n_z.
+    let rows = mode.ht.as_slice().chunks_exact(mode.ht.nrows().max(1));
+    for (row, kind) in rows.zip(&mode.constraints) {
+        let v = propagate::dot_s(row, z);
         match kind {
             ConstraintKind::Cutset { windings: w, .. } if v.abs() > 1e-11 * i_scale => {
                 cut = true;
@@ -533,14 +540,35 @@ fn unbalanced_source(mode: &Mode, z: &[f64]) -> Option<usize> {
 /// non-zero derivative (up to the third) is positive: the mode can be
 /// entered and held for some positive time. Derivatives are computed only
 /// for guards that sit at zero.
+#[inline(always)]
 fn guards_hold(mode: &Mode, z: &DVector<f64>, scales: (f64, f64)) -> bool {
+    // Value pass first, on slices: in the usual case every guard is clearly
+    // positive and no derivative is needed.
+    let zs = z.as_slice();
+    let mut at_zero = false;
+    for g in &mode.guards {
+        let (v, s) = dot_and_abs(&g.row, zs);
+        let tol = ZERO_REL * s + guard_floor(&g.kind, scales);
+        if v < -tol {
+            return false;
+        }
+        at_zero |= v <= tol;
+    }
+    !at_zero || guards_hold_at_zero(mode, z, scales)
+}
+
+/// The rest of [`guards_hold`] when some guard sits at zero: every guard
+/// is judged again, and the derivatives of those at zero decide. Rare, so
+/// allocating here is fine, and kept out of line so the usual value pass
+/// stays small.
+#[cold]
+#[inline(never)]
+fn guards_hold_at_zero(mode: &Mode, z: &DVector<f64>, scales: (f64, f64)) -> bool {
     // Bit i set: guard i sits at zero so far. Guards beyond the 128th are
     // judged on their value alone (16 diodes give at most 136 guards, and
     // only a bridge of many floating groups comes near).
     let mut undecided: u128 = 0;
     let zs = z.as_slice();
-    // Value pass first, on slices: in the usual case every guard is clearly
-    // positive and no derivative is needed.
     for (gi, g) in mode.guards.iter().enumerate() {
         let (v, s) = dot_and_abs(&g.row, zs);
         let tol = ZERO_REL * s + guard_floor(&g.kind, scales);
@@ -554,21 +582,6 @@ fn guards_hold(mode: &Mode, z: &DVector<f64>, scales: (f64, f64)) -> bool {
     if undecided == 0 {
         return true;
     }
-    guards_hold_at_zero(mode, z, scales, undecided)
-}
-
-/// The rest of [`guards_hold`] for the guards that sit at zero (bits of
-/// `undecided`): their derivatives decide. Rare, so allocating here is
-/// fine, and kept out of line so the usual value pass stays small.
-#[cold]
-#[inline(never)]
-fn guards_hold_at_zero(
-    mode: &Mode,
-    z: &DVector<f64>,
-    scales: (f64, f64),
-    mut undecided: u128,
-) -> bool {
-    let zs = z.as_slice();
     let mut d = z.clone_owned();
     let mut next = DVector::zeros(zs.len());
     let mut rate_k = 1.0;

@@ -117,6 +117,7 @@ impl Simulator {
     ///
     /// Constant inputs are written again every time on purpose: a cached
     /// matrix exponential need not carry them over to the last bit.
+    #[inline(always)]
     pub(super) fn set_inputs(&mut self, t: f64) -> u64 {
         let nx = self.cc.n_x;
         let nu = self.cc.n_u;
@@ -177,7 +178,7 @@ impl Simulator {
         self.stats.scheduled_events += 1;
         let n_x = self.cc.n_x;
         self.before.clear();
-        self.before.extend_from_slice(&self.z.as_slice()[..n_x]);
+        crate::propagate::extend_small(&mut self.before, &self.z.as_slice()[..n_x]);
         let corners = self.set_inputs(t);
         for si in 0..self.cc.sources.len().min(64) {
             if corners >> si & 1 == 1 && !self.cc.sources[si].internal {

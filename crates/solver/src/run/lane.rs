@@ -1,0 +1,111 @@
+//! The lane: a lean driver for the usual stretch of a fixed-frequency run.
+//!
+//! While every interval runs from one periodic gate edge to the next
+//! before the stop time, its matrix exponential is cached, it needs one
+//! Taylor reach (ρ·h ≤ 1/2) and no guard is suspect at its end, the
+//! general loop of `advance_to` would only look up the next edge, multiply
+//! by the cached exponential, record the segment and apply the edge. The
+//! lane does exactly that, with the general stages' own arithmetic (so the
+//! same bits) but without their generality: no controller, comparator,
+//! source corner or state-event search. Anything else — a suspect guard, a
+//! new interval length, the stop time, an edge outside the periodic
+//! schedule — returns to the general loop *before* anything is changed, so
+//! the general loop handles that interval from the same state. A contract
+//! test (`lane_gives_the_same_bits_as_the_general_loop`) checks the whole
+//! record of every example converter with and without it.
+
+use super::locate::suspect_at_end;
+use super::schedule::TimeKey;
+use super::Simulator;
+use crate::error::SolverError;
+use crate::propagate;
+
+impl Simulator {
+    /// Whether the lane may run at all: nothing it leaves out is present.
+    fn lane_open(&self) -> bool {
+        self.lane
+            && self.sink.is_none()
+            && self.controllers.is_empty()
+            && self.pending.is_empty()
+            && self.cc.comparators.is_empty()
+            && self.const_inputs.is_some()
+    }
+
+    /// Advances interval by interval while the lane's conditions hold (see
+    /// the module notes); returns at the first interval the general loop
+    /// must handle, with nothing of it done.
+    pub(super) fn run_lane(&mut self, t_end: f64) -> Result<(), SolverError> {
+        if !self.lane_open() {
+            return Ok(());
+        }
+        while let Some(a) = self.tkey {
+            // The next edge: the earliest front of the signal buffers (the
+            // first signal wins a tie, as in `next_scheduled`).
+            let mut best: Option<(f64, usize)> = None;
+            for i in 0..self.signals.len() {
+                if self.signals[i].edges.is_empty() {
+                    let from = self.signals[i].filled_to;
+                    self.refill(i, from);
+                }
+                if let Some(e) = self.signals[i].edges.front() {
+                    if best.is_none_or(|(t, _)| e.time < t) {
+                        best = Some((e.time, i));
+                    }
+                }
+            }
+            let Some((_, si)) = best else {
+                return Ok(());
+            };
+            let e = *self.signals[si].edges.front().expect("found above");
+            let Some(period) = e.period else {
+                return Ok(());
+            };
+            // An edge at or after the stop time belongs to the general loop.
+            if !(e.time < t_end) || period.to_bits() != a.period.to_bits() {
+                return Ok(());
+            }
+            let h = (e.cycle - a.cycle) as f64 * a.period + (e.phase - a.phase);
+            if !(h > 0.0) {
+                return Ok(());
+            }
+            let mi = self.mode as usize;
+            let bits = h.to_bits();
+            let Some(phi) = self.discs[mi]
+                .iter()
+                .find(|(b, _)| *b == bits)
+                .map(|(_, phi)| phi)
+            else {
+                return Ok(());
+            };
+            let mode = &self.modes[mi];
+            if !mode.guards.is_empty() && propagate::substeps(mode.rate, h) != 1 {
+                return Ok(());
+            }
+            propagate::matvec(phi, self.z.as_slice(), self.z_next.as_mut_slice());
+            let (za, zb) = (self.z.as_slice(), self.z_next.as_slice());
+            let scales = self.seen;
+            if mode
+                .guards
+                .iter()
+                .any(|g| suspect_at_end(g, za, zb, scales))
+            {
+                return Ok(());
+            }
+            // From here on exactly what the general loop does after a
+            // cached step with no event inside.
+            self.stats.cache_hits += 1;
+            self.lane_steps += 1;
+            self.record(e.time);
+            self.t = e.time;
+            self.tkey = Some(TimeKey {
+                cycle: e.cycle,
+                phase: e.phase,
+                period,
+            });
+            std::mem::swap(&mut self.z, &mut self.z_next);
+            self.check_finite()?;
+            self.apply_scheduled(e.time)?;
+        }
+        Ok(())
+    }
+}
