@@ -88,10 +88,7 @@ impl Simulator {
     ) -> Result<(), SolverError> {
         self.n_events += 1;
         if self.n_events > self.opts.max_events {
-            return Err(SolverError::EventLimit {
-                time,
-                limit: self.opts.max_events,
-            });
+            return Err(self.event_limit_error(time));
         }
         // The last `chatter_events + 1` events in a ring: more than
         // `chatter_events` fall within the window exactly when the oldest
@@ -110,16 +107,7 @@ impl Simulator {
             self.recent[self.recent_head].0
         };
         if self.recent.len() == cap && oldest >= time - window {
-            let mut elements: Vec<String> =
-                self.recent.iter().map(|(_, w)| self.name_of(w)).collect();
-            elements.sort();
-            elements.dedup();
-            return Err(SolverError::Chatter {
-                time,
-                count: cap,
-                window,
-                elements,
-            });
+            return Err(self.chatter_error(time));
         }
         if self.keeps(time, time) {
             let id = self.who_id(&who);
@@ -130,12 +118,45 @@ impl Simulator {
             };
             if !self.log.push(time, kind, id, energy, &self.before, after) {
                 // The log numbers its records and snapshots with 32 bits.
-                return Err(SolverError::EventLimit {
-                    time,
-                    limit: self.log.len(),
-                });
+                return Err(self.log_full_error(time));
             }
         }
         Ok(())
+    }
+
+    /// The diagnostic of too many events within the chatter window (kept
+    /// out of line: `push_event` runs at every event).
+    #[cold]
+    #[inline(never)]
+    fn chatter_error(&self, time: f64) -> SolverError {
+        let mut elements: Vec<String> = self.recent.iter().map(|(_, w)| self.name_of(w)).collect();
+        elements.sort();
+        elements.dedup();
+        SolverError::Chatter {
+            time,
+            count: self.recent.len(),
+            window: self.opts.chatter_window,
+            elements,
+        }
+    }
+
+    /// The diagnostic of more events than the options allow.
+    #[cold]
+    #[inline(never)]
+    fn event_limit_error(&self, time: f64) -> SolverError {
+        SolverError::EventLimit {
+            time,
+            limit: self.opts.max_events,
+        }
+    }
+
+    /// The diagnostic of a log that cannot number another record.
+    #[cold]
+    #[inline(never)]
+    fn log_full_error(&self, time: f64) -> SolverError {
+        SolverError::EventLimit {
+            time,
+            limit: self.log.len(),
+        }
     }
 }
