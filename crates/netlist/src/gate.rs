@@ -846,7 +846,10 @@ mod tests {
                 assert_eq!(fast, shape.general_edges(t0, t1), "case {case}: {shape:?}");
             }
         }
-        assert!(applied > 200, "the shortcut applied in only {applied} cases");
+        assert!(
+            applied > 200,
+            "the shortcut applied in only {applied} cases"
+        );
     }
 
     fn pwm(duty: f64) -> Gate {

@@ -61,11 +61,12 @@ impl Simulator {
                 return Ok(());
             };
             // An edge at or after the stop time belongs to the general loop.
-            if !(e.time < t_end) || period.to_bits() != a.period.to_bits() {
+            if e.time >= t_end || e.time.is_nan() || period.to_bits() != a.period.to_bits() {
                 return Ok(());
             }
             let h = (e.cycle - a.cycle) as f64 * a.period + (e.phase - a.phase);
-            if !(h > 0.0) {
+            // As the general loop: a length that is not positive is not used.
+            if h.is_nan() || h <= 0.0 {
                 return Ok(());
             }
             let mi = self.mode as usize;
