@@ -397,6 +397,25 @@ pub(crate) fn adopt<T>(mine: &mut Vec<T>, mut old: Vec<T>) {
     }
 }
 
+/// Whether two slices of equal length hold the same bits.
+#[inline]
+fn same_bits(a: &[f64], b: &[f64]) -> bool {
+    fn fixed<const N: usize>(a: &[f64], b: &[f64]) -> bool {
+        let (a, b): (&[f64; N], &[f64; N]) = match (a.try_into(), b.try_into()) {
+            (Ok(a), Ok(b)) => (a, b),
+            _ => return false,
+        };
+        (0..N).all(|i| a[i].to_bits() == b[i].to_bits())
+    }
+    match (a.len(), b.len()) {
+        (1, 1) => fixed::<1>(a, b),
+        (2, 2) => fixed::<2>(a, b),
+        (3, 3) => fixed::<3>(a, b),
+        (4, 4) => fixed::<4>(a, b),
+        _ => a.len() == b.len() && a.iter().zip(b).all(|(x, y)| x.to_bits() == y.to_bits()),
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -462,24 +481,5 @@ mod tests {
             err.contains("event 3") && err.contains("2 state values"),
             "{err}"
         );
-    }
-}
-
-/// Whether two slices of equal length hold the same bits.
-#[inline]
-fn same_bits(a: &[f64], b: &[f64]) -> bool {
-    fn fixed<const N: usize>(a: &[f64], b: &[f64]) -> bool {
-        let (a, b): (&[f64; N], &[f64; N]) = match (a.try_into(), b.try_into()) {
-            (Ok(a), Ok(b)) => (a, b),
-            _ => return false,
-        };
-        (0..N).all(|i| a[i].to_bits() == b[i].to_bits())
-    }
-    match (a.len(), b.len()) {
-        (1, 1) => fixed::<1>(a, b),
-        (2, 2) => fixed::<2>(a, b),
-        (3, 3) => fixed::<3>(a, b),
-        (4, 4) => fixed::<4>(a, b),
-        _ => a.len() == b.len() && a.iter().zip(b).all(|(x, y)| x.to_bits() == y.to_bits()),
     }
 }
