@@ -249,16 +249,17 @@ impl Simulator {
     /// differs between `old` and the present pattern.
     fn log_diode_changes(&mut self, old: u64) -> Result<(), SolverError> {
         let new = self.key.diodes;
-        let changed = old ^ new;
-        for k in 0..self.cc.diodes.len() {
-            if changed >> k & 1 == 1 {
-                let kind = if new >> k & 1 == 1 {
-                    EventKind::DiodeOn
-                } else {
-                    EventKind::DiodeOff
-                };
-                self.push_event(self.t, kind, Who::Diode(k), None, true)?;
-            }
+        // The diodes that changed, in increasing order.
+        let mut changed = old ^ new;
+        while changed != 0 {
+            let k = changed.trailing_zeros() as usize;
+            changed &= changed - 1;
+            let kind = if new >> k & 1 == 1 {
+                EventKind::DiodeOn
+            } else {
+                EventKind::DiodeOff
+            };
+            self.push_event(self.t, kind, Who::Diode(k), None, true)?;
         }
         Ok(())
     }

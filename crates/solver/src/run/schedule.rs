@@ -180,8 +180,12 @@ impl Simulator {
         self.before.clear();
         crate::propagate::extend_small(&mut self.before, &self.z.as_slice()[..n_x]);
         let corners = self.set_inputs(t);
-        for si in 0..self.cc.sources.len().min(64) {
-            if corners >> si & 1 == 1 && !self.cc.sources[si].internal {
+        // Set bits in increasing order (none in the usual case).
+        let mut rest = corners;
+        while rest != 0 {
+            let si = rest.trailing_zeros() as usize;
+            rest &= rest - 1;
+            if si < self.cc.sources.len() && !self.cc.sources[si].internal {
                 self.push_event(t, EventKind::SourceBreakpoint, Who::Source(si), None, false)?;
             }
         }
@@ -208,18 +212,19 @@ impl Simulator {
         let mut cause = None;
         if changed {
             let sw = self.switch_bits();
-            let diff = sw ^ self.key.switches;
-            for i in 0..self.cc.switches.len() {
-                if diff >> i & 1 == 1 {
-                    let on = sw >> i & 1 == 1;
-                    cause = Some((i, on));
-                    let kind = if on {
-                        EventKind::SwitchOn
-                    } else {
-                        EventKind::SwitchOff
-                    };
-                    self.push_event(t, kind, Who::Switch(i), None, false)?;
-                }
+            // The switches that changed, in increasing order.
+            let mut diff = sw ^ self.key.switches;
+            while diff != 0 {
+                let i = diff.trailing_zeros() as usize;
+                diff &= diff - 1;
+                let on = sw >> i & 1 == 1;
+                cause = Some((i, on));
+                let kind = if on {
+                    EventKind::SwitchOn
+                } else {
+                    EventKind::SwitchOff
+                };
+                self.push_event(t, kind, Who::Switch(i), None, false)?;
             }
             self.key.switches = sw;
         }
