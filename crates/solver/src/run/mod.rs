@@ -118,7 +118,13 @@ pub struct Simulator {
     mode_keys: Vec<ModeKey>,
     modes: Vec<Arc<Mode>>,
     /// Cached e^{Mh} per mode, keyed by the bits of h.
-    discs: Vec<Vec<(u64, DMatrix<f64>)>>,
+    discs: Vec<Vec<Disc>>,
+    /// Per mode: the bits of the latest lengths advanced without a cached
+    /// exponential, a ring of [`REPEAT_RING`], and the exponentials of
+    /// lengths that came back, at most [`MAX_AGAIN`], the oldest replaced
+    /// first (see `step`).
+    misses: Vec<[u64; REPEAT_RING]>,
+    again: Vec<(usize, Vec<Disc>)>,
     t: f64,
     tkey: Option<TimeKey>,
     z: DVector<f64>,
@@ -176,6 +182,9 @@ pub struct Simulator {
     /// Whether the lean driver of `lane.rs` runs (off only in the test
     /// that checks it gives the same bits as the general loop).
     lane: bool,
+    /// Whether lengths that come back are cached (off only in the test
+    /// that compares with advancing them by Taylor steps).
+    cache_repeats: bool,
     /// Intervals the lane advanced (for the contract test).
     lane_steps: usize,
     /// Scratch: the candidate state of a pattern under test.
@@ -270,6 +279,8 @@ impl Simulator {
             mode_keys: vec![],
             modes: vec![],
             discs: vec![],
+            misses: vec![],
+            again: vec![],
             t: 0.0,
             tkey: None,
             z_next: z.clone(),
@@ -305,6 +316,7 @@ impl Simulator {
             memo: vec![],
             replay: true,
             lane: true,
+            cache_repeats: true,
             lane_steps: 0,
             z_try: DVector::zeros(nz),
             scratch: propagate::Scratch::default(),
@@ -605,6 +617,8 @@ impl Simulator {
         self.modes.push(m.clone());
         self.wave.modes.push(m);
         self.discs.push(vec![]);
+        self.misses.push([f64::NAN.to_bits(); REPEAT_RING]);
+        self.again.push((0, vec![]));
         self.mode_index.insert(key, i);
         self.mode_keys.push(key);
         Ok(i)
@@ -619,6 +633,13 @@ impl Simulator {
             propagate::matvec(phi, self.z.as_slice(), self.z_next.as_mut_slice());
             return;
         }
+        if !cacheable {
+            if let Some((_, phi)) = self.again[mi].1.iter().find(|(b, _)| *b == bits) {
+                self.stats.cache_hits += 1;
+                propagate::matvec(phi, self.z.as_slice(), self.z_next.as_mut_slice());
+                return;
+            }
+        }
         let m = self.modes[mi].clone();
         if cacheable && self.discs[mi].len() < 16 {
             self.stats.exponentials += 1;
@@ -626,6 +647,32 @@ impl Simulator {
             propagate::matvec(&phi, self.z.as_slice(), self.z_next.as_mut_slice());
             self.discs[mi].push((bits, phi));
             return;
+        }
+        // A length that is not a span of the schedule (it starts at a
+        // located event, say) is cached when the same bits come back: once
+        // a converter in discontinuous conduction settles, its idle
+        // interval takes only a few distinct lengths (the located instant
+        // jitters in its last bits), while a length seen once costs no
+        // exponential. The oldest such entry makes room for a new one, so
+        // the lengths of the settling transient do not keep out those of
+        // the steady state.
+        if !cacheable && self.cache_repeats {
+            if self.misses[mi].contains(&bits) {
+                self.stats.exponentials += 1;
+                let phi = propagate::expm(&m.m, h);
+                propagate::matvec(&phi, self.z.as_slice(), self.z_next.as_mut_slice());
+                let (next, list) = &mut self.again[mi];
+                if list.len() < MAX_AGAIN {
+                    list.push((bits, phi));
+                } else {
+                    list[*next] = (bits, phi);
+                    *next = (*next + 1) % MAX_AGAIN;
+                }
+                return;
+            }
+            let ring = &mut self.misses[mi];
+            ring.rotate_right(1);
+            ring[0] = bits;
         }
         propagate::advance_into(
             &m.m,
@@ -638,6 +685,15 @@ impl Simulator {
         );
     }
 }
+
+/// A cached discretisation: the bits of a length h and e^{Mh}.
+type Disc = (u64, DMatrix<f64>);
+
+/// Lengths remembered per mode for caching on their return (see `step`).
+const REPEAT_RING: usize = 8;
+
+/// Most exponentials cached per mode for lengths that came back.
+const MAX_AGAIN: usize = 16;
 
 /// Runs a transient from the circuit's initial state to `stop_time`.
 ///
@@ -778,6 +834,53 @@ mod tests {
             };
             assert_eq!(bits(&a), bits(&b), "{file}: segment states differ");
             assert_eq!(a.stats, b.stats, "{file}: counters differ");
+        }
+    }
+
+    /// The buck in discontinuous conduction caches the lengths of its idle
+    /// interval once they repeat, and the cached exponential agrees with
+    /// the Taylor steps it replaces to a few units of the last place
+    /// (both exact to rounding: `propagate.rs` notes; common practice).
+    #[test]
+    fn lengths_that_come_back_are_cached_and_agree() {
+        // A light-load buck started near its steady state (demo values).
+        let c = Circuit::builder()
+            .voltage_source("Vin", "in", "gnd", 12.0)
+            .switch("S1", "in", "sw", "drive")
+            .diode("D1", "gnd", "sw")
+            .inductor("L1", "sw", "out", 10e-6)
+            .capacitor_with_voltage("C1", "out", "gnd", 100e-6, 9.94)
+            .resistor("Rload", "out", "gnd", 50.0)
+            .pwm("drive", 100e3, 0.4)
+            .build()
+            .expect("valid");
+        let run = |cache: bool| {
+            let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
+            sim.cache_repeats = cache;
+            // Long enough for the located instant to settle to its last
+            // bits (the output capacitor's time constant is 5 ms).
+            sim.advance_to(60e-3).expect("runs");
+            sim.finish()
+        };
+        let (a, b) = (run(true), run(false));
+        // Without the cache every idle interval is a Taylor advance; with
+        // it most of the 6,000 are cached steps, and each exponential made
+        // for them serves many intervals.
+        let gained = a.stats.cache_hits - b.stats.cache_hits;
+        let made = a.stats.exponentials - b.stats.exponentials;
+        assert!(gained > 3000, "only {gained} idle intervals cached");
+        assert!(
+            20 * made < gained,
+            "{made} exponentials for {gained} cached intervals"
+        );
+        assert_eq!(a.waveform.segments.len(), b.waveform.segments.len());
+        let scale = b.waveform.states.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+        for (x, y) in a.waveform.states.iter().zip(&b.waveform.states) {
+            assert!((x - y).abs() <= 1e-12 * scale, "{x} vs {y}");
+        }
+        for (s, t) in a.waveform.segments.iter().zip(&b.waveform.segments) {
+            assert!((s.t0 - t.t0).abs() <= 1e-12 * 60e-3, "{} vs {}", s.t0, t.t0);
+            assert_eq!(s.mode, t.mode);
         }
     }
 
