@@ -15,9 +15,11 @@
 //! record of every example converter with and without it.
 
 use super::locate::suspect_at_end;
+use super::record::Who;
 use super::schedule::TimeKey;
 use super::Simulator;
 use crate::error::SolverError;
+use crate::events::EventKind;
 use crate::propagate;
 
 impl Simulator {
@@ -105,8 +107,55 @@ impl Simulator {
             });
             std::mem::swap(&mut self.z, &mut self.z_next);
             self.check_finite()?;
-            self.apply_scheduled(e.time)?;
+            self.lane_instant(e.time)?;
         }
         Ok(())
+    }
+
+    /// `apply_scheduled` at a gate edge for what the lane admits (constant
+    /// inputs, so no source corner; no controller, no comparator): the
+    /// same steps in the same order, with the remembered transition tried
+    /// first and the full `resolve` only if it does not apply (its own
+    /// replay attempt then fails the same way, changing nothing).
+    fn lane_instant(&mut self, t: f64) -> Result<(), SolverError> {
+        self.stats.scheduled_events += 1;
+        let n_x = self.cc.n_x;
+        self.before.clear();
+        propagate::extend_small(&mut self.before, &self.z.as_slice()[..n_x]);
+        self.set_inputs(t);
+        let mut changed = false;
+        for i in 0..self.signals.len() {
+            while let Some(e) = self.signals[i].edges.front() {
+                if e.time > t {
+                    break;
+                }
+                self.signal_on[i] = e.on;
+                self.signals[i].edges.pop_front();
+                changed = true;
+            }
+        }
+        let mut cause = None;
+        if changed {
+            let sw = self.switch_bits();
+            let mut diff = sw ^ self.key.switches;
+            while diff != 0 {
+                let i = diff.trailing_zeros() as usize;
+                diff &= diff - 1;
+                let on = sw >> i & 1 == 1;
+                cause = Some((i, on));
+                let kind = if on {
+                    EventKind::SwitchOn
+                } else {
+                    EventKind::SwitchOff
+                };
+                self.push_event(t, kind, Who::Switch(i), None, false)?;
+            }
+            self.key.switches = sw;
+        }
+        let scales = self.scales();
+        if self.replay && self.resolve_remembered(0, scales)? {
+            return Ok(());
+        }
+        self.resolve(0, cause, false)
     }
 }

@@ -201,7 +201,11 @@ impl Simulator {
     /// rejected for cutting an inductor current still cuts one (the
     /// others were rejected for structural reasons that cannot change),
     /// and the remembered pattern still holds without a jump.
-    fn resolve_remembered(&mut self, flips: u64, scales: (f64, f64)) -> Result<bool, SolverError> {
+    pub(super) fn resolve_remembered(
+        &mut self,
+        flips: u64,
+        scales: (f64, f64),
+    ) -> Result<bool, SolverError> {
         let Some(ti) = self.memo.iter().position(|t| {
             t.from == self.mode && t.switches == self.key.switches && t.flips == flips
         }) else {
