@@ -12,6 +12,8 @@
 //! purpose, so a current that just reaches zero and turns back keeps its
 //! conduction state.
 
+use nalgebra::{DMatrix, DVector};
+
 use super::Simulator;
 use crate::mode::{Guard, GuardKind, Mode};
 use crate::propagate;
@@ -57,7 +59,7 @@ pub(super) fn suspect_at_end(g: &Guard, za: &[f64], zb: &[f64], scales: (f64, f6
 }
 
 /// (diode bits, comparator bits) of a guard.
-fn bits(g: &Guard) -> (u64, u64) {
+fn bits_of(g: &Guard) -> (u64, u64) {
     match g.kind {
         GuardKind::DiodeCurrent(k) | GuardKind::DiodeVoltage(k) => (1u64 << k, 0),
         GuardKind::DiodePair(a, b) => ((1u64 << a) | (1u64 << b), 0),
@@ -130,6 +132,11 @@ impl Simulator {
             if !suspect {
                 return None;
             }
+            if off_mask == 0 && on_mask == 0 && self.poly_cache {
+                if let Some(found) = self.locate_cached(mode, h) {
+                    return found;
+                }
+            }
         }
         let d = h / n as f64;
         let mut za = std::mem::take(&mut self.za);
@@ -149,30 +156,8 @@ impl Simulator {
                     scale += a;
                 }
                 let tol = ZERO_REL * scale + guard_floor(&g.kind, scales);
-                let (gb, db) = propagate::poly(&coef, 1.0);
-                let da = coef.get(1).copied().unwrap_or(0.0);
-                let root = if gb < -tol {
-                    Some(root_in(&coef, 0.0, 1.0))
-                } else if da < 0.0 && db > 0.0 {
-                    // An interior minimum: find it, then look below zero there.
-                    let smin = stationary(&coef);
-                    let (gm, _) = propagate::poly(&coef, smin);
-                    (gm < -tol).then(|| root_in(&coef, 0.0, smin))
-                } else {
-                    None
-                };
-                if let Some(s) = root {
-                    let tau = (i as f64 + s) * d;
-                    let bit = bits(g);
-                    found = match found {
-                        Some((t, b, sg)) if (t - tau).abs() <= 1e-13 * h => Some((
-                            t.min(tau),
-                            (b.0 | bit.0, b.1 | bit.1),
-                            if tau < t { s } else { sg },
-                        )),
-                        Some((t, b, sg)) if t < tau => Some((t, b, sg)),
-                        _ => Some((tau, bit, s)),
-                    };
+                if let Some(s) = guard_root(&coef, tol) {
+                    found = merge(found, (i as f64 + s) * d, bits_of(g), s, h);
                 }
             }
             if let Some((t, _, sigma)) = found {
@@ -204,6 +189,164 @@ impl Simulator {
         // A crossing at the very end belongs to the scheduled instant (and
         // `z_next` must then be the state at h again).
         found.map(|(t, b, _)| (if t >= h * (1.0 - 1e-14) { h } else { t }, b.0, b.1))
+    }
+}
+
+/// Earliest crossing: the others within 1e-13·h of it fire with it.
+type Found = Option<(f64, (u64, u64), f64)>;
+
+/// Adds a guard's crossing at `tau` (σ = `s` in its sub-interval) to the
+/// earliest found so far in an interval of length `h`.
+fn merge(found: Found, tau: f64, bit: (u64, u64), s: f64, h: f64) -> Found {
+    match found {
+        Some((t, b, sg)) if (t - tau).abs() <= 1e-13 * h => Some((
+            t.min(tau),
+            (b.0 | bit.0, b.1 | bit.1),
+            if tau < t { s } else { sg },
+        )),
+        Some((t, b, sg)) if t < tau => Some((t, b, sg)),
+        _ => Some((tau, bit, s)),
+    }
+}
+
+/// Where the guard polynomial with coefficients `coef` (σ ∈ [0, 1])
+/// first goes below −`tol`: through its end value, or below zero at an
+/// interior minimum (a dip and back).
+fn guard_root(coef: &[f64], tol: f64) -> Option<f64> {
+    let (gb, db) = propagate::poly(coef, 1.0);
+    let da = coef.get(1).copied().unwrap_or(0.0);
+    if gb < -tol {
+        Some(root_in(coef, 0.0, 1.0))
+    } else if da < 0.0 && db > 0.0 {
+        // An interior minimum: find it, then look below zero there.
+        let smin = stationary(coef);
+        let (gm, _) = propagate::poly(coef, smin);
+        (gm < -tol).then(|| root_in(coef, 0.0, smin))
+    } else {
+        None
+    }
+}
+
+/// The guard polynomials of a mode over one cached interval length h:
+/// for guard g and term k the row q = r·(Mh)ᵏ/k!, so that the guard's
+/// coefficients at start state z are q·z, without the Taylor vectors.
+pub(super) struct GuardPolys {
+    bits: u64,
+    /// Terms kept: beyond them ‖(Mh)ᵏ/k!‖∞ ≤ 1e-18.
+    terms: usize,
+    /// Per guard: `terms` rows of n_z, then their magnitudes.
+    rows: Vec<Vec<f64>>,
+    abs: Vec<Vec<f64>>,
+}
+
+impl GuardPolys {
+    fn build(mode: &Mode, h: f64) -> GuardPolys {
+        let n = mode.m.nrows();
+        let mh = &mode.m * h;
+        let mut t = DMatrix::<f64>::identity(n, n);
+        let mut rows: Vec<Vec<f64>> = vec![vec![]; mode.guards.len()];
+        let mut terms = 0;
+        for k in 0..60 {
+            if k > 0 {
+                t = &mh * &t / k as f64;
+            }
+            for (g, r) in mode.guards.iter().zip(rows.iter_mut()) {
+                let gr = DVector::from_column_slice(&g.row);
+                r.extend((t.transpose() * gr).iter().copied());
+            }
+            terms = k + 1;
+            let norm = t
+                .row_iter()
+                .map(|row| row.iter().map(|v| v.abs()).sum::<f64>())
+                .fold(0.0, f64::max);
+            if norm == 0.0 || (k >= 3 && norm <= 1e-18) {
+                break;
+            }
+        }
+        let abs = rows
+            .iter()
+            .map(|r| r.iter().map(|v| v.abs()).collect())
+            .collect();
+        GuardPolys {
+            bits: h.to_bits(),
+            terms,
+            rows,
+            abs,
+        }
+    }
+}
+
+impl Simulator {
+    /// [`Simulator::locate_in`] over one Taylor reach of a length the
+    /// schedule repeats (its exponential is cached), with the guard
+    /// polynomials of that length cached too: coefficients are dot
+    /// products with the start state, and the state at a crossing comes
+    /// from a cached exponential of the crossing's own length when that
+    /// length came back, else from the Taylor vectors. `None` when the
+    /// length is not a cached one (the caller then expands as usual).
+    fn locate_cached(&mut self, mode: &Mode, h: f64) -> Option<Option<(f64, u64, u64)>> {
+        let mi = self.mode as usize;
+        let bits = h.to_bits();
+        if !self.discs[mi].iter().any(|(b, _)| *b == bits) {
+            return None;
+        }
+        let pi = match self.polys[mi].iter().position(|p| p.bits == bits) {
+            Some(i) => i,
+            None if self.polys[mi].len() < 16 => {
+                self.polys[mi].push(GuardPolys::build(mode, h));
+                self.polys[mi].len() - 1
+            }
+            None => return None,
+        };
+        let scales = self.scales();
+        let z = self.z.as_slice();
+        let nz = z.len();
+        let mut za_abs = std::mem::take(&mut self.za);
+        for (a, &v) in za_abs.as_mut_slice().iter_mut().zip(z) {
+            *a = v.abs();
+        }
+        let mut coef = std::mem::take(&mut self.coef);
+        let gp = &self.polys[mi][pi];
+        let mut found: Found = None;
+        for (gi, g) in mode.guards.iter().enumerate() {
+            coef.clear();
+            let mut scale = 0.0;
+            let rows = gp.rows[gi].chunks_exact(nz);
+            let abs = gp.abs[gi].chunks_exact(nz);
+            for (q, qa) in rows.zip(abs).take(gp.terms) {
+                coef.push(dot_s(q, z));
+                scale += dot_s(qa, za_abs.as_slice());
+            }
+            let tol = ZERO_REL * scale + guard_floor(&g.kind, scales);
+            if let Some(s) = guard_root(&coef, tol) {
+                found = merge(found, s * h, bits_of(g), s, h);
+            }
+        }
+        self.coef = coef;
+        self.za = za_abs;
+        let Some((t, b, sigma)) = found else {
+            return Some(None);
+        };
+        // A crossing at the very end belongs to the scheduled instant
+        // (`z_next` still holds the state at h).
+        if t >= h * (1.0 - 1e-14) {
+            return Some(Some((h, b.0, b.1)));
+        }
+        if !self.advance_repeated(mi, &mode.m, t) {
+            // The state at the crossing from the Taylor vectors (Horner in
+            // σ), into `z_next`.
+            let mut terms = std::mem::take(&mut self.terms);
+            propagate::taylor_terms(&mode.m, mode.live, &self.z, h, &mut terms);
+            let zn = self.z_next.as_mut_slice();
+            zn.fill(0.0);
+            for w in terms.terms().rev() {
+                for (x, &wi) in zn.iter_mut().zip(w) {
+                    *x = *x * sigma + wi;
+                }
+            }
+            self.terms = terms;
+        }
+        Some(Some((t, b.0, b.1)))
     }
 }
 

@@ -185,6 +185,11 @@ pub struct Simulator {
     /// Whether lengths that come back are cached (off only in the test
     /// that compares with advancing them by Taylor steps).
     cache_repeats: bool,
+    /// Whether guard polynomials are cached per interval length (off only
+    /// in the test that compares with the Taylor expansion).
+    poly_cache: bool,
+    /// Per mode: guard polynomials of cached lengths (see `locate.rs`).
+    polys: Vec<Vec<locate::GuardPolys>>,
     /// Intervals the lane advanced (for the contract test).
     lane_steps: usize,
     /// Scratch: the candidate state of a pattern under test.
@@ -317,6 +322,8 @@ impl Simulator {
             replay: true,
             lane: true,
             cache_repeats: true,
+            poly_cache: true,
+            polys: vec![],
             lane_steps: 0,
             z_try: DVector::zeros(nz),
             scratch: propagate::Scratch::default(),
@@ -619,9 +626,49 @@ impl Simulator {
         self.discs.push(vec![]);
         self.misses.push([f64::NAN.to_bits(); REPEAT_RING]);
         self.again.push((0, vec![]));
+        self.polys.push(vec![]);
         self.mode_index.insert(key, i);
         self.mode_keys.push(key);
         Ok(i)
+    }
+
+    /// z_next = e^{M·len} z in mode `mi` (matrix `m`) by an exponential
+    /// cached for a length that came back; false (nothing advanced) if
+    /// there is none yet. A length that is not a span of the schedule (it
+    /// starts or ends at a located event) is cached when the same bits
+    /// come back: once a converter in discontinuous conduction settles,
+    /// its located instants jitter only in their last bits, so the lengths
+    /// take a few distinct values, while a length seen once costs no
+    /// exponential. The oldest entry makes room for a new one, so the
+    /// lengths of the settling transient do not keep out those of the
+    /// steady state.
+    pub(super) fn advance_repeated(&mut self, mi: usize, m: &DMatrix<f64>, len: f64) -> bool {
+        let bits = len.to_bits();
+        if let Some((_, phi)) = self.again[mi].1.iter().find(|(b, _)| *b == bits) {
+            self.stats.cache_hits += 1;
+            propagate::matvec(phi, self.z.as_slice(), self.z_next.as_mut_slice());
+            return true;
+        }
+        if !self.cache_repeats {
+            return false;
+        }
+        if !self.misses[mi].contains(&bits) {
+            let ring = &mut self.misses[mi];
+            ring.rotate_right(1);
+            ring[0] = bits;
+            return false;
+        }
+        self.stats.exponentials += 1;
+        let phi = propagate::expm(m, len);
+        propagate::matvec(&phi, self.z.as_slice(), self.z_next.as_mut_slice());
+        let (next, list) = &mut self.again[mi];
+        if list.len() < MAX_AGAIN {
+            list.push((bits, phi));
+        } else {
+            list[*next] = (bits, phi);
+            *next = (*next + 1) % MAX_AGAIN;
+        }
+        true
     }
 
     /// Exact advance over `h` in the present mode, into `z_next`.
@@ -633,13 +680,6 @@ impl Simulator {
             propagate::matvec(phi, self.z.as_slice(), self.z_next.as_mut_slice());
             return;
         }
-        if !cacheable {
-            if let Some((_, phi)) = self.again[mi].1.iter().find(|(b, _)| *b == bits) {
-                self.stats.cache_hits += 1;
-                propagate::matvec(phi, self.z.as_slice(), self.z_next.as_mut_slice());
-                return;
-            }
-        }
         let m = self.modes[mi].clone();
         if cacheable && self.discs[mi].len() < 16 {
             self.stats.exponentials += 1;
@@ -648,31 +688,8 @@ impl Simulator {
             self.discs[mi].push((bits, phi));
             return;
         }
-        // A length that is not a span of the schedule (it starts at a
-        // located event, say) is cached when the same bits come back: once
-        // a converter in discontinuous conduction settles, its idle
-        // interval takes only a few distinct lengths (the located instant
-        // jitters in its last bits), while a length seen once costs no
-        // exponential. The oldest such entry makes room for a new one, so
-        // the lengths of the settling transient do not keep out those of
-        // the steady state.
-        if !cacheable && self.cache_repeats {
-            if self.misses[mi].contains(&bits) {
-                self.stats.exponentials += 1;
-                let phi = propagate::expm(&m.m, h);
-                propagate::matvec(&phi, self.z.as_slice(), self.z_next.as_mut_slice());
-                let (next, list) = &mut self.again[mi];
-                if list.len() < MAX_AGAIN {
-                    list.push((bits, phi));
-                } else {
-                    list[*next] = (bits, phi);
-                    *next = (*next + 1) % MAX_AGAIN;
-                }
-                return;
-            }
-            let ring = &mut self.misses[mi];
-            ring.rotate_right(1);
-            ring[0] = bits;
+        if !cacheable && self.advance_repeated(mi, &m.m, h) {
+            return;
         }
         propagate::advance_into(
             &m.m,
@@ -881,6 +898,42 @@ mod tests {
         for (s, t) in a.waveform.segments.iter().zip(&b.waveform.segments) {
             assert!((s.t0 - t.t0).abs() <= 1e-12 * 60e-3, "{} vs {}", s.t0, t.t0);
             assert_eq!(s.mode, t.mode);
+        }
+    }
+
+    /// Guard polynomials cached per interval length locate the same
+    /// turn-offs as the Taylor expansion, to a few units of the last place
+    /// of the period, and give the same states to 1e-12 of their scale
+    /// (both are the exact solution up to rounding; common practice).
+    #[test]
+    fn cached_guard_polynomials_locate_as_the_expansion_does() {
+        let c = example("buck_dcm.json");
+        let run = |cached: bool| {
+            let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
+            sim.poly_cache = cached;
+            sim.advance_to(5e-3).expect("runs");
+            let used = sim.polys.iter().map(Vec::len).sum::<usize>();
+            (sim.finish(), used)
+        };
+        let ((a, used), (b, unused)) = (run(true), run(false));
+        assert!(used > 0 && unused == 0, "cache used {used}, {unused}");
+        assert!(a.stats.state_events > 400, "{:?}", a.stats);
+        assert_eq!(a.stats.state_events, b.stats.state_events);
+        assert_eq!(a.events.len(), b.events.len());
+        // 200 kHz.
+        let period = 5e-6;
+        for (x, y) in a.events.iter().zip(b.events.iter()) {
+            assert_eq!((x.kind, x.element), (y.kind, y.element));
+            assert!(
+                (x.time - y.time).abs() <= 1e-12 * period,
+                "{} vs {}",
+                x.time,
+                y.time
+            );
+        }
+        let scale = b.waveform.states.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+        for (x, y) in a.waveform.states.iter().zip(&b.waveform.states) {
+            assert!((x - y).abs() <= 1e-12 * scale, "{x} vs {y}");
         }
     }
 
