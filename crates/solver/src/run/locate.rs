@@ -215,13 +215,15 @@ fn merge(found: Found, tau: f64, bit: (u64, u64), s: f64, h: f64) -> Found {
 fn guard_root(coef: &[f64], tol: f64) -> Option<f64> {
     let (gb, db) = propagate::poly(coef, 1.0);
     let da = coef.get(1).copied().unwrap_or(0.0);
+    // p(0) is the first coefficient exactly (Horner at 0).
+    let g0 = coef.first().copied().unwrap_or(0.0);
     if gb < -tol {
-        Some(root_in(coef, 0.0, 1.0))
+        Some(root_in(coef, 0.0, 1.0, g0, gb))
     } else if da < 0.0 && db > 0.0 {
         // An interior minimum: find it, then look below zero there.
         let smin = stationary(coef);
         let (gm, _) = propagate::poly(coef, smin);
-        (gm < -tol).then(|| root_in(coef, 0.0, smin))
+        (gm < -tol).then(|| root_in(coef, 0.0, smin, g0, gm))
     } else {
         None
     }
@@ -234,7 +236,8 @@ pub(super) struct GuardPolys {
     bits: u64,
     /// Terms kept: beyond them ‖(Mh)ᵏ/k!‖∞ ≤ 1e-18.
     terms: usize,
-    /// Per guard: `terms` rows of n_z, then their magnitudes.
+    /// Per guard: `terms` rows of n_z, and Σₖ|qₖ| (one row: the scale of
+    /// the guard's terms at z is its product with |z|).
     rows: Vec<Vec<f64>>,
     abs: Vec<Vec<f64>>,
 }
@@ -265,7 +268,15 @@ impl GuardPolys {
         }
         let abs = rows
             .iter()
-            .map(|r| r.iter().map(|v| v.abs()).collect())
+            .map(|r| {
+                let mut sum = vec![0.0; n];
+                for q in r.chunks_exact(n.max(1)) {
+                    for (s, v) in sum.iter_mut().zip(q) {
+                        *s += v.abs();
+                    }
+                }
+                sum
+            })
             .collect();
         GuardPolys {
             bits: h.to_bits(),
@@ -310,13 +321,10 @@ impl Simulator {
         let mut found: Found = None;
         for (gi, g) in mode.guards.iter().enumerate() {
             coef.clear();
-            let mut scale = 0.0;
-            let rows = gp.rows[gi].chunks_exact(nz);
-            let abs = gp.abs[gi].chunks_exact(nz);
-            for (q, qa) in rows.zip(abs).take(gp.terms) {
+            for q in gp.rows[gi].chunks_exact(nz).take(gp.terms) {
                 coef.push(dot_s(q, z));
-                scale += dot_s(qa, za_abs.as_slice());
             }
+            let scale = dot_s(&gp.abs[gi], za_abs.as_slice());
             let tol = ZERO_REL * scale + guard_floor(&g.kind, scales);
             if let Some(s) = guard_root(&coef, tol) {
                 found = merge(found, s * h, bits_of(g), s, h);
@@ -356,13 +364,12 @@ impl Simulator {
 /// point is nudged, an ulp at a time (up from a point where p ≥ 0, down from
 /// one where p < 0), to a point where p < 0 whose predecessor has p ≥ 0, so
 /// the returned instant is at or just after the crossing.
-fn root_in(c: &[f64], lo: f64, hi: f64) -> f64 {
+/// `fa` and `fb` are p(lo) and p(hi), which the caller has already.
+fn root_in(c: &[f64], lo: f64, hi: f64, fa: f64, fb: f64) -> f64 {
     let (mut a, mut b) = (lo, hi);
-    let (fa, _) = propagate::poly(c, a);
     if fa < 0.0 {
         return a;
     }
-    let (fb, _) = propagate::poly(c, b);
     let mut s = if fa - fb > 0.0 {
         a + (b - a) * fa / (fa - fb)
     } else {
@@ -500,7 +507,7 @@ mod tests {
             for (i, ci) in c.iter_mut().enumerate().skip(4) {
                 *ci += k * 1e-5f64.powi(i as i32) * (rnd() - 0.5);
             }
-            let x = root_in(&c, 0.0, 1.0);
+            let x = root_in(&c, 0.0, 1.0, c[0], propagate::poly(&c, 1.0).0);
             let below = f64::from_bits(x.to_bits() - 1);
             assert!(propagate::poly(&c, x).0 < 0.0, "case {case}: p(x) ≥ 0");
             assert!(
