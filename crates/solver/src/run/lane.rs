@@ -1,7 +1,8 @@
 //! The lane: a lean driver for the usual stretch of a fixed-frequency run.
 //!
-//! While every interval runs from one periodic gate edge to the next
-//! before the stop time, its matrix exponential is cached, it needs one
+//! While every interval ends at a periodic gate edge before the stop time
+//! (and starts at one, or at a located event), its matrix exponential is
+//! cached, it needs one
 //! Taylor reach (ρ·h ≤ 1/2) and no guard is suspect at its end, the
 //! general loop of `advance_to` would only look up the next edge, multiply
 //! by the cached exponential, record the segment and apply the edge. The
@@ -40,7 +41,7 @@ impl Simulator {
         if !self.lane_open() {
             return Ok(());
         }
-        while let Some(a) = self.tkey {
+        loop {
             // The next edge: the earliest front of the signal buffers (the
             // first signal wins a tie, as in `next_scheduled`).
             let mut best: Option<(f64, usize)> = None;
@@ -63,21 +64,37 @@ impl Simulator {
                 return Ok(());
             };
             // An edge at or after the stop time belongs to the general loop.
-            if e.time >= t_end || e.time.is_nan() || period.to_bits() != a.period.to_bits() {
+            if e.time >= t_end || e.time.is_nan() {
                 return Ok(());
             }
-            let h = (e.cycle - a.cycle) as f64 * a.period + (e.phase - a.phase);
+            // The length as the general loop takes it: from the schedule's
+            // (cycle, phase) pairs between two periodic edges, else by
+            // subtraction (an interval that starts at a located event).
+            let (h, from_schedule) = match self.tkey {
+                Some(a) if period.to_bits() == a.period.to_bits() => (
+                    (e.cycle - a.cycle) as f64 * a.period + (e.phase - a.phase),
+                    true,
+                ),
+                Some(_) => return Ok(()),
+                None => (e.time - self.t, false),
+            };
             // As the general loop: a length that is not positive is not used.
             if h.is_nan() || h <= 0.0 {
                 return Ok(());
             }
             let mi = self.mode as usize;
             let bits = h.to_bits();
-            let Some(phi) = self.discs[mi]
-                .iter()
-                .find(|(b, _)| *b == bits)
-                .map(|(_, phi)| phi)
-            else {
+            // The general step's look-ups, in its order: spans of the
+            // schedule, then (for another length) lengths that came back.
+            // A miss returns: the general step keeps the books of misses.
+            let cached = self.discs[mi].iter().find(|(b, _)| *b == bits).or_else(|| {
+                if from_schedule {
+                    None
+                } else {
+                    self.again[mi].1.iter().find(|(b, _)| *b == bits)
+                }
+            });
+            let Some((_, phi)) = cached else {
                 return Ok(());
             };
             let mode = &self.modes[mi];
@@ -109,7 +126,6 @@ impl Simulator {
             self.check_finite()?;
             self.lane_instant(e.time)?;
         }
-        Ok(())
     }
 
     /// `apply_scheduled` at a gate edge for what the lane admits (constant
