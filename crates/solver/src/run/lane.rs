@@ -16,11 +16,9 @@
 //! record of every example converter with and without it.
 
 use super::locate::suspect_at_end;
-use super::record::Who;
 use super::schedule::TimeKey;
 use super::Simulator;
 use crate::error::SolverError;
-use crate::events::EventKind;
 use crate::propagate;
 
 impl Simulator {
@@ -139,35 +137,7 @@ impl Simulator {
         self.before.clear();
         propagate::extend_small(&mut self.before, &self.z.as_slice()[..n_x]);
         self.set_inputs(t);
-        let mut changed = false;
-        for i in 0..self.signals.len() {
-            while let Some(e) = self.signals[i].edges.front() {
-                if e.time > t {
-                    break;
-                }
-                self.signal_on[i] = e.on;
-                self.signals[i].edges.pop_front();
-                changed = true;
-            }
-        }
-        let mut cause = None;
-        if changed {
-            let sw = self.switch_bits();
-            let mut diff = sw ^ self.key.switches;
-            while diff != 0 {
-                let i = diff.trailing_zeros() as usize;
-                diff &= diff - 1;
-                let on = sw >> i & 1 == 1;
-                cause = Some((i, on));
-                let kind = if on {
-                    EventKind::SwitchOn
-                } else {
-                    EventKind::SwitchOff
-                };
-                self.push_event(t, kind, Who::Switch(i), None, false)?;
-            }
-            self.key.switches = sw;
-        }
+        let cause = self.take_gate_edges(t)?;
         let scales = self.scales();
         if self.replay && self.resolve_remembered(0, scales)? {
             return Ok(());

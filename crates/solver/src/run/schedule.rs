@@ -198,6 +198,20 @@ impl Simulator {
     /// Gate edges and comparator ticks due at `t`, then the conduction
     /// pattern that follows.
     pub(super) fn settle_instant(&mut self, t: f64) -> Result<(), SolverError> {
+        let mut cause = self.take_gate_edges(t)?;
+        if !self.cc.comparators.is_empty() {
+            if let Some(c) = self.apply_ticks(t)? {
+                cause = Some(c);
+            }
+        }
+        self.resolve(0, cause, false)
+    }
+
+    /// Takes the gate edges due at `t`, logs the switches that changed (in
+    /// increasing order) and returns the last of them as the cause of
+    /// what follows.
+    #[inline(always)]
+    pub(super) fn take_gate_edges(&mut self, t: f64) -> Result<Option<(usize, bool)>, SolverError> {
         let mut changed = false;
         for i in 0..self.signals.len() {
             while let Some(e) = self.signals[i].edges.front() {
@@ -228,11 +242,6 @@ impl Simulator {
             }
             self.key.switches = sw;
         }
-        if !self.cc.comparators.is_empty() {
-            if let Some(c) = self.apply_ticks(t)? {
-                cause = Some(c);
-            }
-        }
-        self.resolve(0, cause, false)
+        Ok(cause)
     }
 }
