@@ -2,11 +2,9 @@
 //! and the switching of a gate when its comparison is met (a state event
 //! located like a diode's).
 
-use super::record::Who;
 use super::schedule::TimeKey;
 use super::{dot, Simulator};
 use crate::error::SolverError;
-use crate::events::EventKind;
 
 /// What a comparator tick does.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -129,22 +127,8 @@ impl Simulator {
             return Ok(None);
         }
         self.signal_on[sig] = on;
-        let sw = self.switch_bits();
-        let diff = sw ^ self.key.switches;
-        let mut cause = None;
-        for i in 0..self.cc.switches.len() {
-            if diff >> i & 1 == 1 {
-                cause = Some((i, on));
-                let kind = if on {
-                    EventKind::SwitchOn
-                } else {
-                    EventKind::SwitchOff
-                };
-                self.push_event(t, kind, Who::Switch(i), None, false)?;
-            }
-        }
-        self.key.switches = sw;
-        Ok(cause)
+        // The switches it drives follow it: their new bits are `on`.
+        self.log_switch_changes(t)
     }
 
     /// Applies the comparator ticks due at `t`; returns whether a gate

@@ -223,25 +223,36 @@ impl Simulator {
                 changed = true;
             }
         }
-        let mut cause = None;
-        if changed {
-            let sw = self.switch_bits();
-            // The switches that changed, in increasing order.
-            let mut diff = sw ^ self.key.switches;
-            while diff != 0 {
-                let i = diff.trailing_zeros() as usize;
-                diff &= diff - 1;
-                let on = sw >> i & 1 == 1;
-                cause = Some((i, on));
-                let kind = if on {
-                    EventKind::SwitchOn
-                } else {
-                    EventKind::SwitchOff
-                };
-                self.push_event(t, kind, Who::Switch(i), None, false)?;
-            }
-            self.key.switches = sw;
+        if !changed {
+            return Ok(None);
         }
+        self.log_switch_changes(t)
+    }
+
+    /// Logs the switches whose state the present signals change (in
+    /// increasing order) and takes their new bits; returns the last of
+    /// them as the cause of what follows.
+    #[inline(always)]
+    pub(super) fn log_switch_changes(
+        &mut self,
+        t: f64,
+    ) -> Result<Option<(usize, bool)>, SolverError> {
+        let sw = self.switch_bits();
+        let mut diff = sw ^ self.key.switches;
+        let mut cause = None;
+        while diff != 0 {
+            let i = diff.trailing_zeros() as usize;
+            diff &= diff - 1;
+            let on = sw >> i & 1 == 1;
+            cause = Some((i, on));
+            let kind = if on {
+                EventKind::SwitchOn
+            } else {
+                EventKind::SwitchOff
+            };
+            self.push_event(t, kind, Who::Switch(i), None, false)?;
+        }
+        self.key.switches = sw;
         Ok(cause)
     }
 }
