@@ -216,6 +216,17 @@ impl TaylorTerms {
     pub(crate) fn terms(&self) -> std::slice::ChunksExact<'_, f64> {
         self.data[..self.len * self.n].chunks_exact(self.n.max(1))
     }
+
+    /// The state Σ wₖ σᵏ at σ ∈ [0, 1] of the sub-interval (Horner in σ),
+    /// into `out`.
+    pub(crate) fn state_at(&self, sigma: f64, out: &mut [f64]) {
+        out.fill(0.0);
+        for w in self.terms().rev() {
+            for (x, &wi) in out.iter_mut().zip(w) {
+                *x = *x * sigma + wi;
+            }
+        }
+    }
 }
 
 /// Evaluates Σ cₖ σᵏ and its derivative (Horner).

@@ -164,15 +164,9 @@ impl Simulator {
                 if t >= h * (1.0 - 1e-14) {
                     break;
                 }
-                // The state at the crossing, from the same expansion
-                // (Horner in σ), ready for the caller in `z_next`.
-                let zn = self.z_next.as_mut_slice();
-                zn.fill(0.0);
-                for w in terms.terms().rev() {
-                    for (x, &wi) in zn.iter_mut().zip(w) {
-                        *x = *x * sigma + wi;
-                    }
-                }
+                // The state at the crossing, from the same expansion,
+                // ready for the caller in `z_next`.
+                terms.state_at(sigma, self.z_next.as_mut_slice());
                 break;
             }
             let zs = za.as_mut_slice();
@@ -341,17 +335,11 @@ impl Simulator {
             return Some(Some((h, b.0, b.1)));
         }
         if !self.advance_repeated(mi, &mode.m, t) {
-            // The state at the crossing from the Taylor vectors (Horner in
-            // σ), into `z_next`.
+            // The state at the crossing from the Taylor vectors, into
+            // `z_next`.
             let mut terms = std::mem::take(&mut self.terms);
             propagate::taylor_terms(&mode.m, mode.live, &self.z, h, &mut terms);
-            let zn = self.z_next.as_mut_slice();
-            zn.fill(0.0);
-            for w in terms.terms().rev() {
-                for (x, &wi) in zn.iter_mut().zip(w) {
-                    *x = *x * sigma + wi;
-                }
-            }
+            terms.state_at(sigma, self.z_next.as_mut_slice());
             self.terms = terms;
         }
         Some(Some((t, b.0, b.1)))
