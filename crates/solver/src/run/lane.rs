@@ -85,13 +85,17 @@ impl Simulator {
             // The general step's look-ups, in its order: spans of the
             // schedule, then (for another length) lengths that came back.
             // A miss returns: the general step keeps the books of misses.
-            let cached = self.discs[mi].iter().find(|(b, _)| *b == bits).or_else(|| {
-                if from_schedule {
-                    None
-                } else {
-                    self.again[mi].1.iter().find(|(b, _)| *b == bits)
-                }
-            });
+            let cached = self.caches[mi]
+                .discs
+                .iter()
+                .find(|(b, _)| *b == bits)
+                .or_else(|| {
+                    if from_schedule {
+                        None
+                    } else {
+                        self.caches[mi].again.iter().find(|(b, _)| *b == bits)
+                    }
+                });
             let Some((_, phi)) = cached else {
                 return Ok(());
             };

@@ -292,14 +292,14 @@ impl Simulator {
     fn locate_cached(&mut self, mode: &Mode, h: f64) -> Option<Option<(f64, u64, u64)>> {
         let mi = self.mode as usize;
         let bits = h.to_bits();
-        if !self.discs[mi].iter().any(|(b, _)| *b == bits) {
+        if !self.caches[mi].discs.iter().any(|(b, _)| *b == bits) {
             return None;
         }
-        let pi = match self.polys[mi].iter().position(|p| p.bits == bits) {
+        let pi = match self.caches[mi].polys.iter().position(|p| p.bits == bits) {
             Some(i) => i,
-            None if self.polys[mi].len() < 16 => {
-                self.polys[mi].push(GuardPolys::build(mode, h));
-                self.polys[mi].len() - 1
+            None if self.caches[mi].polys.len() < 16 => {
+                self.caches[mi].polys.push(GuardPolys::build(mode, h));
+                self.caches[mi].polys.len() - 1
             }
             None => return None,
         };
@@ -311,7 +311,7 @@ impl Simulator {
             *a = v.abs();
         }
         let mut coef = std::mem::take(&mut self.coef);
-        let gp = &self.polys[mi][pi];
+        let gp = &self.caches[mi].polys[pi];
         let mut found: Found = None;
         for (gi, g) in mode.guards.iter().enumerate() {
             coef.clear();

@@ -117,14 +117,8 @@ pub struct Simulator {
     /// modes a converter visits.
     mode_keys: Vec<ModeKey>,
     modes: Vec<Arc<Mode>>,
-    /// Cached e^{Mh} per mode, keyed by the bits of h.
-    discs: Vec<Vec<Disc>>,
-    /// Per mode: the bits of the latest lengths advanced without a cached
-    /// exponential, a ring of [`REPEAT_RING`], and the exponentials of
-    /// lengths that came back, at most [`MAX_AGAIN`], the oldest replaced
-    /// first (see `step`).
-    misses: Vec<[u64; REPEAT_RING]>,
-    again: Vec<(usize, Vec<Disc>)>,
+    /// What is cached per mode, by the bits of interval lengths.
+    caches: Vec<ModeCache>,
     t: f64,
     tkey: Option<TimeKey>,
     z: DVector<f64>,
@@ -188,8 +182,6 @@ pub struct Simulator {
     /// Whether guard polynomials are cached per interval length (off only
     /// in the test that compares with the Taylor expansion).
     poly_cache: bool,
-    /// Per mode: guard polynomials of cached lengths (see `locate.rs`).
-    polys: Vec<Vec<locate::GuardPolys>>,
     /// Intervals the lane advanced (for the contract test).
     lane_steps: usize,
     /// Scratch: the candidate state of a pattern under test.
@@ -283,9 +275,7 @@ impl Simulator {
             mode_index: HashMap::new(),
             mode_keys: vec![],
             modes: vec![],
-            discs: vec![],
-            misses: vec![],
-            again: vec![],
+            caches: vec![],
             t: 0.0,
             tkey: None,
             z_next: z.clone(),
@@ -323,7 +313,6 @@ impl Simulator {
             lane: true,
             cache_repeats: true,
             poly_cache: true,
-            polys: vec![],
             lane_steps: 0,
             z_try: DVector::zeros(nz),
             scratch: propagate::Scratch::default(),
@@ -623,10 +612,7 @@ impl Simulator {
         let i = self.modes.len() as u32;
         self.modes.push(m.clone());
         self.wave.modes.push(m);
-        self.discs.push(vec![]);
-        self.misses.push([f64::NAN.to_bits(); REPEAT_RING]);
-        self.again.push((0, vec![]));
-        self.polys.push(vec![]);
+        self.caches.push(ModeCache::default());
         self.mode_index.insert(key, i);
         self.mode_keys.push(key);
         Ok(i)
@@ -644,7 +630,8 @@ impl Simulator {
     /// steady state.
     pub(super) fn advance_repeated(&mut self, mi: usize, m: &DMatrix<f64>, len: f64) -> bool {
         let bits = len.to_bits();
-        if let Some((_, phi)) = self.again[mi].1.iter().find(|(b, _)| *b == bits) {
+        let cache = &mut self.caches[mi];
+        if let Some((_, phi)) = cache.again.iter().find(|(b, _)| *b == bits) {
             self.stats.cache_hits += 1;
             propagate::matvec(phi, self.z.as_slice(), self.z_next.as_mut_slice());
             return true;
@@ -652,21 +639,19 @@ impl Simulator {
         if !self.cache_repeats {
             return false;
         }
-        if !self.misses[mi].contains(&bits) {
-            let ring = &mut self.misses[mi];
-            ring.rotate_right(1);
-            ring[0] = bits;
+        if !cache.misses.contains(&bits) {
+            cache.misses.rotate_right(1);
+            cache.misses[0] = bits;
             return false;
         }
         self.stats.exponentials += 1;
         let phi = propagate::expm(m, len);
         propagate::matvec(&phi, self.z.as_slice(), self.z_next.as_mut_slice());
-        let (next, list) = &mut self.again[mi];
-        if list.len() < MAX_AGAIN {
-            list.push((bits, phi));
+        if cache.again.len() < MAX_AGAIN {
+            cache.again.push((bits, phi));
         } else {
-            list[*next] = (bits, phi);
-            *next = (*next + 1) % MAX_AGAIN;
+            cache.again[cache.again_next] = (bits, phi);
+            cache.again_next = (cache.again_next + 1) % MAX_AGAIN;
         }
         true
     }
@@ -675,17 +660,17 @@ impl Simulator {
     fn step(&mut self, h: f64, cacheable: bool) {
         let mi = self.mode as usize;
         let bits = h.to_bits();
-        if let Some((_, phi)) = self.discs[mi].iter().find(|(b, _)| *b == bits) {
+        if let Some((_, phi)) = self.caches[mi].discs.iter().find(|(b, _)| *b == bits) {
             self.stats.cache_hits += 1;
             propagate::matvec(phi, self.z.as_slice(), self.z_next.as_mut_slice());
             return;
         }
         let m = self.modes[mi].clone();
-        if cacheable && self.discs[mi].len() < 16 {
+        if cacheable && self.caches[mi].discs.len() < 16 {
             self.stats.exponentials += 1;
             let phi = propagate::expm(&m.m, h);
             propagate::matvec(&phi, self.z.as_slice(), self.z_next.as_mut_slice());
-            self.discs[mi].push((bits, phi));
+            self.caches[mi].discs.push((bits, phi));
             return;
         }
         if !cacheable && self.advance_repeated(mi, &m.m, h) {
@@ -705,6 +690,32 @@ impl Simulator {
 
 /// A cached discretisation: the bits of a length h and e^{Mh}.
 type Disc = (u64, DMatrix<f64>);
+
+/// What is cached for one mode, by the exact bits of interval lengths.
+struct ModeCache {
+    /// e^{Mh} for spans of the schedule, at most 16.
+    discs: Vec<Disc>,
+    /// The latest lengths advanced without a cached exponential (a ring).
+    misses: [u64; REPEAT_RING],
+    /// e^{Mh} for lengths that came back, at most [`MAX_AGAIN`], and the
+    /// next one to replace once full (see `Simulator::advance_repeated`).
+    again: Vec<Disc>,
+    again_next: usize,
+    /// Guard polynomials of scheduled lengths (see `locate.rs`).
+    polys: Vec<locate::GuardPolys>,
+}
+
+impl Default for ModeCache {
+    fn default() -> Self {
+        ModeCache {
+            discs: vec![],
+            misses: [f64::NAN.to_bits(); REPEAT_RING],
+            again: vec![],
+            again_next: 0,
+            polys: vec![],
+        }
+    }
+}
 
 /// Lengths remembered per mode for caching on their return (see `step`).
 const REPEAT_RING: usize = 8;
@@ -912,7 +923,7 @@ mod tests {
             let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
             sim.poly_cache = cached;
             sim.advance_to(5e-3).expect("runs");
-            let used = sim.polys.iter().map(Vec::len).sum::<usize>();
+            let used = sim.caches.iter().map(|c| c.polys.len()).sum::<usize>();
             (sim.finish(), used)
         };
         let ((a, used), (b, unused)) = (run(true), run(false));
