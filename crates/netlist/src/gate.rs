@@ -774,13 +774,7 @@ mod tests {
     /// coinciding transitions (ties fall back to the full evaluation).
     #[test]
     fn edges_match_evaluation_of_every_candidate() {
-        let mut seed = 0x2545_f491_4f6c_dd1du64;
-        let mut rnd = move || {
-            seed ^= seed << 13;
-            seed ^= seed >> 7;
-            seed ^= seed << 17;
-            (seed >> 11) as f64 / (1u64 << 53) as f64
-        };
+        let mut rnd = uniform(0x2545_f491_4f6c_dd1du64);
         for case in 0..400 {
             let p = 1e-6 * (1.0 + 9.0 * rnd());
             let n = 1 + (rnd() * 5.0) as usize;
@@ -812,17 +806,22 @@ mod tests {
         }
     }
 
-    /// Contract: the shortcut for a steady chunk gives exactly the edges of
-    /// the general evaluation (every field), wherever it applies.
-    #[test]
-    fn steady_edges_match_the_general_evaluation() {
-        let mut seed = 0x9e37_79b9_7f4a_7c15u64;
-        let mut rnd = move || {
+    /// Uniform numbers in [0, 1) from a xorshift generator: repeatable
+    /// random test cases.
+    fn uniform(mut seed: u64) -> impl FnMut() -> f64 {
+        move || {
             seed ^= seed << 13;
             seed ^= seed >> 7;
             seed ^= seed << 17;
             (seed >> 11) as f64 / (1u64 << 53) as f64
-        };
+        }
+    }
+
+    /// Contract: the shortcut for a steady chunk gives exactly the edges of
+    /// the general evaluation (every field), wherever it applies.
+    #[test]
+    fn steady_edges_match_the_general_evaluation() {
+        let mut rnd = uniform(0x9e37_79b9_7f4a_7c15u64);
         let mut applied = 0;
         for case in 0..600 {
             let p = 1e-6 * (1.0 + 9.0 * rnd());
