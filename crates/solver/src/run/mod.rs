@@ -16,7 +16,7 @@ mod resolve;
 mod sampled;
 mod schedule;
 
-use std::collections::{HashMap, VecDeque};
+use std::collections::HashMap;
 use std::sync::Arc;
 
 use nalgebra::{DMatrix, DVector};
@@ -32,7 +32,7 @@ use crate::propagate;
 use crate::waveform::{OutputId, Waveform};
 
 use record::Who;
-use schedule::{SignalBuffer, TimeKey};
+use schedule::{EdgeQueue, SignalBuffer, TimeKey};
 
 /// Counters of a run.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
@@ -228,7 +228,7 @@ impl Simulator {
             .signals
             .iter()
             .map(|(_, s)| SignalBuffer {
-                edges: VecDeque::new(),
+                edges: EdgeQueue::default(),
                 filled_to: 0.0,
                 chunk: s.period.map(|p| 64.0 * p).unwrap_or(f64::INFINITY),
             })

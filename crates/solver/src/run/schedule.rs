@@ -1,8 +1,6 @@
 //! Stage 1: the schedule — gate edges and source corners, computed as
 //! `k·T + phase` so that every period repeats the same interval lengths.
 
-use std::collections::VecDeque;
-
 use fluxstep_netlist::{Edge, Waveform};
 
 use super::record::Who;
@@ -18,9 +16,77 @@ pub(super) struct TimeKey {
     pub period: f64,
 }
 
+/// A queue of upcoming edges: a vector and the index of its front, so that
+/// looking at and taking the front is an index, not a ring's wrap-around
+/// (this runs at every edge). Taken edges are dropped when the queue runs
+/// empty or is extended past half of its taken part.
+#[derive(Default)]
+pub(super) struct EdgeQueue {
+    buf: Vec<Edge>,
+    head: usize,
+}
+
+impl EdgeQueue {
+    /// The edges not yet taken, in order.
+    fn live(&self) -> &[Edge] {
+        self.buf.get(self.head..).unwrap_or(&[])
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.head >= self.buf.len()
+    }
+
+    pub fn front(&self) -> Option<&Edge> {
+        self.buf.get(self.head)
+    }
+
+    pub fn get(&self, i: usize) -> Option<&Edge> {
+        self.live().get(i)
+    }
+
+    pub fn pop_front(&mut self) {
+        if self.head < self.buf.len() {
+            self.head += 1;
+            if self.head == self.buf.len() {
+                self.buf.clear();
+                self.head = 0;
+            }
+        }
+    }
+
+    /// Drops the taken edges from the vector.
+    fn compact(&mut self) {
+        self.buf.drain(..self.head);
+        self.head = 0;
+    }
+
+    pub fn extend(&mut self, edges: impl IntoIterator<Item = Edge>) {
+        if 2 * self.head > self.buf.len() {
+            self.compact();
+        }
+        self.buf.extend(edges);
+    }
+
+    /// The number of live edges `e` with `pred(e)` true, for a `pred` that
+    /// holds on a prefix (as `slice::partition_point`).
+    pub fn partition_point(&self, pred: impl FnMut(&Edge) -> bool) -> usize {
+        self.live().partition_point(pred)
+    }
+
+    /// Inserts before live edge `i`.
+    pub fn insert(&mut self, i: usize, e: Edge) {
+        self.buf.insert(self.head + i, e);
+    }
+
+    pub fn retain(&mut self, keep: impl FnMut(&Edge) -> bool) {
+        self.compact();
+        self.buf.retain(keep);
+    }
+}
+
 /// Upcoming edges of one gate signal, refilled a chunk of periods at a time.
 pub(super) struct SignalBuffer {
-    pub edges: VecDeque<Edge>,
+    pub edges: EdgeQueue,
     pub filled_to: f64,
     pub chunk: f64,
 }
