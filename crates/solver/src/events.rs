@@ -235,6 +235,46 @@ impl EventLog {
         true
     }
 
+    /// Appends the events of one instant without energy: the first
+    /// `n_same` leave the state `before` as it was, the rest take it to
+    /// `after`. The same records and snapshots as pushing them one by one
+    /// with [`EventLog::push`], provided at most one event changes the
+    /// state or `after` has the bits of `before` (one by one, a second
+    /// changing event would store `before` again); `false` (and nothing
+    /// added) if that does not hold or the log cannot take them all.
+    pub(crate) fn push_instant(
+        &mut self,
+        time: f64,
+        events: &[(EventKind, u32)],
+        n_same: usize,
+        before: &[f64],
+        after: &[f64],
+    ) -> bool {
+        let n = self.state_names.len();
+        let k = events.len();
+        if before.len() != n
+            || after.len() != n
+            || self.snapshots >= u32::MAX - 4
+            || self.records.len() + k >= (u32::MAX - 1) as usize
+            || (k > n_same + 1 && !same_bits(before, after))
+        {
+            return false;
+        }
+        let b = self.snapshot(before);
+        let a = if n_same < k { self.snapshot(after) } else { b };
+        self.records.reserve(k);
+        for (j, &(kind, who)) in events.iter().enumerate() {
+            self.records.push(Compact {
+                time,
+                who,
+                before: b,
+                after: if j < n_same { b } else { a },
+                kind,
+            });
+        }
+        true
+    }
+
     fn view(&self, i: usize, c: &Compact) -> EventRef<'_> {
         let n = self.state_names.len();
         let (b, a) = (c.before as usize * n, c.after as usize * n);

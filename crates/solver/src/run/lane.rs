@@ -134,18 +134,33 @@ impl Simulator {
     /// inputs, so no source corner; no controller, no comparator): the
     /// same steps in the same order, with the remembered transition tried
     /// first and the full `resolve` only if it does not apply (its own
-    /// replay attempt then fails the same way, changing nothing).
+    /// replay attempt then fails the same way, changing nothing). The
+    /// instant's events are logged together (`push_instant`: the same
+    /// records as one by one).
     fn lane_instant(&mut self, t: f64) -> Result<(), SolverError> {
         self.stats.scheduled_events += 1;
         let n_x = self.cc.n_x;
         self.before.clear();
         propagate::extend_small(&mut self.before, &self.z.as_slice()[..n_x]);
         self.set_inputs(t);
-        let cause = self.take_gate_edges(t)?;
-        let scales = self.scales();
-        if self.replay && self.resolve_remembered(0, scales)? {
-            return Ok(());
+        let old = self.key.switches;
+        if self.take_due_edges(t) {
+            self.key.switches = self.switch_bits();
         }
+        let switched = old ^ self.key.switches;
+        let scales = self.scales();
+        if self.replay {
+            if let Some((to, projected)) = self.remembered_target(0, scales) {
+                let old = self.enter_remembered(to, projected);
+                return self.push_instant(t, switched, old ^ self.key.diodes);
+            }
+        }
+        self.push_instant(t, switched, 0)?;
+        // The cause as `log_switch_changes` gives it: the last switch.
+        let cause = (switched != 0).then(|| {
+            let i = 63 - switched.leading_zeros() as usize;
+            (i, self.key.switches >> i & 1 == 1)
+        });
         self.resolve(0, cause, false)
     }
 }

@@ -31,7 +31,6 @@ use crate::options::{Options, Record};
 use crate::propagate;
 use crate::waveform::{OutputId, Waveform};
 
-use record::Who;
 use schedule::{EdgeQueue, SignalBuffer, TimeKey};
 
 /// Counters of a run.
@@ -149,7 +148,7 @@ pub struct Simulator {
     sink: Option<SegmentSink>,
     /// The latest events, a ring of `chatter_events + 1` (oldest at
     /// `recent_head` once full).
-    recent: Vec<(f64, Who)>,
+    recent: Vec<(f64, u32)>,
     recent_head: usize,
     /// Every event counted, kept or not (for the event limit).
     n_events: usize,
@@ -825,6 +824,47 @@ mod tests {
                 );
             }
         }
+    }
+
+    /// Contract: where the event limit or the chatter window stops a run,
+    /// the lane (which logs an instant's events together) stops it at the
+    /// same event with the same diagnostic and the same log, including
+    /// limits that fall between the two events of one instant.
+    #[test]
+    fn lane_stops_at_the_same_event_as_the_general_loop() {
+        let c = example("buck.json");
+        let stop = |opts: &Options, lane: bool| {
+            let mut sim = Simulator::new(&c, opts.clone()).expect("compiles");
+            sim.lane = lane;
+            let err = sim.advance_to(2e-3).expect_err("must stop");
+            let steps = sim.lane_steps;
+            (format!("{err:?}"), sim.finish(), steps)
+        };
+        let mut cases: Vec<Options> = [401, 402, 777, 1000]
+            .into_iter()
+            .map(|max_events| Options {
+                max_events,
+                ..Options::default()
+            })
+            .collect();
+        // 200 kHz: two instants of two events each per 5 µs period.
+        for (chatter_events, chatter_window) in [(3, 2.5e-6), (4, 4.9e-6), (5, 5.2e-6)] {
+            cases.push(Options {
+                chatter_events,
+                chatter_window,
+                ..Options::default()
+            });
+        }
+        let mut lane_used = 0;
+        for opts in &cases {
+            let (ea, a, steps) = stop(opts, true);
+            let (eb, b, _) = stop(opts, false);
+            lane_used += steps;
+            assert_eq!(ea, eb, "{opts:?}");
+            assert_eq!(a.events.to_json(), b.events.to_json(), "{opts:?}");
+            assert_eq!(a.waveform.segments, b.waveform.segments, "{opts:?}");
+        }
+        assert!(lane_used > 100, "the lane took only {lane_used} intervals");
     }
 
     /// Contract: the same holds when the run is advanced in pieces (the lane

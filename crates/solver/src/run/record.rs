@@ -19,15 +19,6 @@ pub(super) enum Who {
 }
 
 impl Simulator {
-    pub(super) fn name_of(&self, who: &Who) -> String {
-        match who {
-            Who::Switch(i) => self.cc.switches[*i].name.clone(),
-            Who::Diode(i) => self.cc.diodes[*i].name.clone(),
-            Who::Source(i) => self.cc.sources[*i].name.clone(),
-            Who::Named(id) => self.log.name(*id).to_string(),
-        }
-    }
-
     /// The element's id in the log (names were interned in this order when
     /// the simulator was built).
     fn who_id(&self, who: &Who) -> u32 {
@@ -95,11 +86,12 @@ impl Simulator {
         // of them does (times never decrease).
         let window = self.opts.chatter_window;
         let cap = self.opts.chatter_events + 1;
+        let id = self.who_id(&who);
         let oldest = if self.recent.len() < cap {
-            self.recent.push((time, who));
+            self.recent.push((time, id));
             self.recent[0].0
         } else {
-            self.recent[self.recent_head] = (time, who);
+            self.recent[self.recent_head] = (time, id);
             self.recent_head += 1;
             if self.recent_head == cap {
                 self.recent_head = 0;
@@ -110,7 +102,6 @@ impl Simulator {
             return Err(self.chatter_error(time));
         }
         if self.keeps(time, time) {
-            let id = self.who_id(&who);
             let after = if changed_state {
                 &self.z.as_slice()[..self.cc.n_x]
             } else {
@@ -124,12 +115,134 @@ impl Simulator {
         Ok(())
     }
 
+    /// Counts and logs the events of one instant at once: a switch event
+    /// for each bit of `switched` (the state as it was, `before`), then a
+    /// diode event for each bit of `diodes` (the state after: the present
+    /// one), each in increasing order, of the kind the present pattern
+    /// gives. The same outcome as [`Simulator::push_event`] one by one in
+    /// that order, which it falls back to for more than
+    /// [`INSTANT_BATCH`] events or where a limit or the chatter window
+    /// could be reached within the instant.
+    pub(super) fn push_instant(
+        &mut self,
+        time: f64,
+        switched: u64,
+        diodes: u64,
+    ) -> Result<(), SolverError> {
+        let mut ids = [(EventKind::SwitchOn, 0u32); INSTANT_BATCH];
+        let mut k = 0;
+        let ns = self.cc.switches.len() as u32;
+        for (changed, on, base, kinds) in [
+            (
+                switched,
+                self.key.switches,
+                0,
+                [EventKind::SwitchOff, EventKind::SwitchOn],
+            ),
+            (
+                diodes,
+                self.key.diodes,
+                ns,
+                [EventKind::DiodeOff, EventKind::DiodeOn],
+            ),
+        ] {
+            let mut bits = changed;
+            while bits != 0 {
+                if k == INSTANT_BATCH {
+                    return self.push_instant_one_by_one(time, switched, diodes);
+                }
+                let i = bits.trailing_zeros();
+                bits &= bits - 1;
+                ids[k] = (kinds[(on >> i & 1) as usize], base + i);
+                k += 1;
+            }
+        }
+        let cap = self.opts.chatter_events + 1;
+        let len = self.recent.len();
+        // The chatter check of the last event decides for all (times never
+        // decrease), and the oldest of the ring after k more is known.
+        let quiet = if len == cap {
+            k < cap && {
+                let mut oldest = self.recent_head + k;
+                if oldest >= cap {
+                    oldest -= cap;
+                }
+                self.recent[oldest].0 < time - self.opts.chatter_window
+            }
+        } else {
+            len + k < cap
+        };
+        if !quiet || self.n_events + k > self.opts.max_events {
+            return self.push_instant_one_by_one(time, switched, diodes);
+        }
+        if self.keeps(time, time) {
+            let after = &self.z.as_slice()[..self.cc.n_x];
+            let n_same = (0..k).filter(|&j| ids[j].1 < ns).count();
+            // Refused (nothing added): one by one gives the same records
+            // or the same refusal.
+            if !self
+                .log
+                .push_instant(time, &ids[..k], n_same, &self.before, after)
+            {
+                return self.push_instant_one_by_one(time, switched, diodes);
+            }
+        }
+        self.n_events += k;
+        for &(_, id) in &ids[..k] {
+            if self.recent.len() < cap {
+                self.recent.push((time, id));
+            } else {
+                self.recent[self.recent_head] = (time, id);
+                self.recent_head += 1;
+                if self.recent_head == cap {
+                    self.recent_head = 0;
+                }
+            }
+        }
+        Ok(())
+    }
+
+    /// [`Simulator::push_instant`] by [`Simulator::push_event`], one event
+    /// at a time.
+    #[cold]
+    #[inline(never)]
+    fn push_instant_one_by_one(
+        &mut self,
+        time: f64,
+        switched: u64,
+        diodes: u64,
+    ) -> Result<(), SolverError> {
+        for (changed, on, diode) in [
+            (switched, self.key.switches, false),
+            (diodes, self.key.diodes, true),
+        ] {
+            let mut bits = changed;
+            while bits != 0 {
+                let i = bits.trailing_zeros() as usize;
+                bits &= bits - 1;
+                let up = on >> i & 1 == 1;
+                let (kind, who) = match (diode, up) {
+                    (false, true) => (EventKind::SwitchOn, Who::Switch(i)),
+                    (false, false) => (EventKind::SwitchOff, Who::Switch(i)),
+                    (true, true) => (EventKind::DiodeOn, Who::Diode(i)),
+                    (true, false) => (EventKind::DiodeOff, Who::Diode(i)),
+                };
+                self.push_event(time, kind, who, None, diode)?;
+            }
+        }
+        Ok(())
+    }
+
     /// The diagnostic of too many events within the chatter window (kept
     /// out of line: `push_event` runs at every event).
     #[cold]
     #[inline(never)]
     fn chatter_error(&self, time: f64) -> SolverError {
-        let mut elements: Vec<String> = self.recent.iter().map(|(_, w)| self.name_of(w)).collect();
+        let mut elements: Vec<String> = self
+            .recent
+            .iter()
+            .map(|&(_, id)| self.log.name(id).to_string())
+            .collect();
         elements.sort();
         elements.dedup();
         SolverError::Chatter {
@@ -160,3 +273,6 @@ impl Simulator {
         }
     }
 }
+
+/// The most events of one instant [`Simulator::push_instant`] logs at once.
+const INSTANT_BATCH: usize = 4;

@@ -196,34 +196,52 @@ impl Simulator {
     }
 
     /// Replays a remembered transition from the present mode with the
-    /// present switches: true if it applied. It applies only if the
-    /// exhaustive search would reach the same pattern: every candidate it
-    /// rejected for cutting an inductor current still cuts one (the
-    /// others were rejected for structural reasons that cannot change),
-    /// and the remembered pattern still holds without a jump.
+    /// present switches: true if it applied (see
+    /// [`Simulator::remembered_target`]), its diode changes logged.
     pub(super) fn resolve_remembered(
         &mut self,
         flips: u64,
         scales: (f64, f64),
     ) -> Result<bool, SolverError> {
-        let Some(ti) = self.memo.iter().position(|t| {
-            t.from == self.mode && t.switches == self.key.switches && t.flips == flips
-        }) else {
+        let Some((to, projected)) = self.remembered_target(flips, scales) else {
             return Ok(false);
         };
-        let t = &self.memo[ti];
+        let n_x = self.cc.n_x;
+        self.before.clear();
+        propagate::extend_small(&mut self.before, &self.z.as_slice()[..n_x]);
+        let old = self.enter_remembered(to, projected);
+        self.log_diode_changes(old).map(|()| true)
+    }
+
+    /// The remembered transition from the present mode with the present
+    /// switches and `flips`, if it applies: its mode, and whether that
+    /// mode projects the state (the projected state is then in `z_try`).
+    /// It applies only if the exhaustive search would reach the same
+    /// pattern: every candidate it rejected for cutting an inductor
+    /// current still cuts one (the others were rejected for structural
+    /// reasons that cannot change), and the remembered pattern still holds
+    /// without a jump.
+    pub(super) fn remembered_target(
+        &mut self,
+        flips: u64,
+        scales: (f64, f64),
+    ) -> Option<(u32, bool)> {
+        let t = self
+            .memo
+            .iter()
+            .find(|t| t.from == self.mode && t.switches == self.key.switches && t.flips == flips)?;
         let z = self.z.as_slice();
         let still = t
             .cut_rejected
             .iter()
             .all(|&mi| violations(&self.modes[mi as usize], z, scales, None).0);
         if !still {
-            return Ok(false);
+            return None;
         }
         let to = t.to;
         let mode = &self.modes[to as usize];
         if violations(mode, z, scales, None) != (false, false) {
-            return Ok(false);
+            return None;
         }
         // As in `judge`: the projection removes rounding residue of the
         // constraints, and the checks see the projected state.
@@ -233,20 +251,23 @@ impl Simulator {
         }
         let z1 = if projected { &self.z_try } else { &self.z };
         if unbalanced_source(mode, z1.as_slice()).is_some() || !guards_hold(mode, z1, scales) {
-            return Ok(false);
+            return None;
         }
-        // What `commit` does for a pattern without a jump or a short, kept
-        // lean: this runs at every scheduled edge.
-        let n_x = self.cc.n_x;
-        self.before.clear();
-        propagate::extend_small(&mut self.before, &self.z.as_slice()[..n_x]);
+        Some((to, projected))
+    }
+
+    /// Enters a mode that [`Simulator::remembered_target`] found, as
+    /// `commit` does for a pattern without a jump or a short (kept lean:
+    /// this runs at every scheduled edge); returns the diode bits before.
+    /// The state before must already be in `before`.
+    pub(super) fn enter_remembered(&mut self, to: u32, projected: bool) -> u64 {
         if projected {
             std::mem::swap(&mut self.z, &mut self.z_try);
         }
         let old = self.key.diodes;
         self.key = self.modes[to as usize].key;
         self.mode = to;
-        self.log_diode_changes(old).map(|()| true)
+        old
     }
 
     /// Logs a diode-on or diode-off event for each diode whose state

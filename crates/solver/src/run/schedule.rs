@@ -278,6 +278,16 @@ impl Simulator {
     /// what follows.
     #[inline(always)]
     pub(super) fn take_gate_edges(&mut self, t: f64) -> Result<Option<(usize, bool)>, SolverError> {
+        if !self.take_due_edges(t) {
+            return Ok(None);
+        }
+        self.log_switch_changes(t)
+    }
+
+    /// Takes the gate edges due at `t` into the signal states; true if
+    /// there were any.
+    #[inline(always)]
+    pub(super) fn take_due_edges(&mut self, t: f64) -> bool {
         let mut changed = false;
         for i in 0..self.signals.len() {
             while let Some(e) = self.signals[i].edges.front() {
@@ -289,10 +299,7 @@ impl Simulator {
                 changed = true;
             }
         }
-        if !changed {
-            return Ok(None);
-        }
-        self.log_switch_changes(t)
+        changed
     }
 
     /// Logs the switches whose state the present signals change (in
