@@ -7,7 +7,8 @@
 //! ```
 //!
 //! Arguments: `ccm` or `dcm` (the bucks of `benches/common`), then `all`
-//! or `nothing` (what to record). Prints the events and the wall time per
+//! or `nothing` (what to record), then optionally how many runs (default
+//! 1; each run is timed and printed, as a criterion iteration would be). Prints the events and the wall time per
 //! event of this one run.
 
 use std::time::Instant;
@@ -32,21 +33,25 @@ fn main() {
     } else {
         Record::All
     };
+    // An optional third word: how many runs (each printed).
+    let runs: usize = words.get(2).and_then(|w| w.parse().ok()).unwrap_or(1);
     let c = if dcm { buck_dcm() } else { buck_ccm() };
-    let start = Instant::now();
-    let opts = Options {
-        record,
-        ..Options::default()
-    };
-    let mut sim = Simulator::new(&c, opts).expect("compiles");
-    sim.advance_periods(PERIODS).expect("runs");
-    let run = sim.finish();
-    let n = run.stats.scheduled_events + run.stats.state_events;
-    let dt = start.elapsed().as_secs_f64();
-    println!(
-        "{} events ({} located), {:.1} ns per event",
-        n,
-        run.stats.state_events,
-        dt * 1e9 / n as f64
-    );
+    for _ in 0..runs {
+        let start = Instant::now();
+        let opts = Options {
+            record,
+            ..Options::default()
+        };
+        let mut sim = Simulator::new(&c, opts).expect("compiles");
+        sim.advance_periods(PERIODS).expect("runs");
+        let run = sim.finish();
+        let n = run.stats.scheduled_events + run.stats.state_events;
+        let dt = start.elapsed().as_secs_f64();
+        let located = run.stats.state_events;
+        drop(run);
+        println!(
+            "{n} events ({located} located), {:.1} ns per event",
+            dt * 1e9 / n as f64
+        );
+    }
 }

@@ -235,40 +235,52 @@ impl EventLog {
         true
     }
 
-    /// Appends the events of one instant without energy: the first
-    /// `n_same` leave the state `before` as it was, the rest take it to
-    /// `after`. The same records and snapshots as pushing them one by one
-    /// with [`EventLog::push`], provided at most one event changes the
-    /// state or `after` has the bits of `before` (one by one, a second
-    /// changing event would store `before` again); `false` (and nothing
-    /// added) if that does not hold or the log cannot take them all.
-    pub(crate) fn push_instant(
+    /// Appends the events of one instant without energy: `first` (if
+    /// any) leaves the state `before` as it was, `second` (if any) takes
+    /// it to `after`. The same records and snapshots as pushing them one
+    /// by one with [`EventLog::push`]; `false` (and nothing added) where
+    /// the log cannot take both.
+    pub(crate) fn push_pair(
         &mut self,
         time: f64,
-        events: &[(EventKind, u32)],
-        n_same: usize,
+        first: Option<(EventKind, u32)>,
+        second: Option<(EventKind, u32)>,
         before: &[f64],
         after: &[f64],
     ) -> bool {
         let n = self.state_names.len();
-        let k = events.len();
         if before.len() != n
             || after.len() != n
             || self.snapshots >= u32::MAX - 4
-            || self.records.len() + k >= (u32::MAX - 1) as usize
-            || (k > n_same + 1 && !same_bits(before, after))
+            || self.records.len() >= (u32::MAX - 3) as usize
         {
             return false;
         }
         let b = self.snapshot(before);
-        let a = if n_same < k { self.snapshot(after) } else { b };
-        self.records.reserve(k);
-        for (j, &(kind, who)) in events.iter().enumerate() {
+        if let Some((kind, who)) = first {
             self.records.push(Compact {
                 time,
                 who,
                 before: b,
-                after: if j < n_same { b } else { a },
+                after: b,
+                kind,
+            });
+        }
+        if let Some((kind, who)) = second {
+            // One by one, the state after is compared with the snapshot
+            // just taken, which is `before`.
+            let a = if same_bits(before, after) {
+                b
+            } else {
+                crate::propagate::extend_small(&mut self.states, after);
+                self.snapshots += 1;
+                self.snapshots - 1
+            };
+            self.records.push(Compact {
+                time,
+                who,
+                before: b,
+                after: a,
                 kind,
             });
         }

@@ -807,6 +807,8 @@ mod tests {
                 b.events.to_json(),
                 "{file}: event logs differ"
             );
+            // Down to the numbering of the stored snapshots.
+            assert!(a.events == b.events, "{file}: event storage differs");
             assert_eq!(a.waveform.segments, b.waveform.segments, "{file}");
             let bits = |r: &RunResult| -> Vec<u64> {
                 r.waveform.states.iter().map(|v| v.to_bits()).collect()

@@ -120,46 +120,25 @@ impl Simulator {
     /// diode event for each bit of `diodes` (the state after: the present
     /// one), each in increasing order, of the kind the present pattern
     /// gives. The same outcome as [`Simulator::push_event`] one by one in
-    /// that order, which it falls back to for more than
-    /// [`INSTANT_BATCH`] events or where a limit or the chatter window
-    /// could be reached within the instant.
+    /// that order, which it falls back to for more than one switch or
+    /// diode, or where a limit or the chatter window could be reached
+    /// within the instant.
     pub(super) fn push_instant(
         &mut self,
         time: f64,
         switched: u64,
         diodes: u64,
     ) -> Result<(), SolverError> {
-        let mut ids = [(EventKind::SwitchOn, 0u32); INSTANT_BATCH];
-        let mut k = 0;
-        let ns = self.cc.switches.len() as u32;
-        for (changed, on, base, kinds) in [
-            (
-                switched,
-                self.key.switches,
-                0,
-                [EventKind::SwitchOff, EventKind::SwitchOn],
-            ),
-            (
-                diodes,
-                self.key.diodes,
-                ns,
-                [EventKind::DiodeOff, EventKind::DiodeOn],
-            ),
-        ] {
-            let mut bits = changed;
-            while bits != 0 {
-                if k == INSTANT_BATCH {
-                    return self.push_instant_one_by_one(time, switched, diodes);
-                }
-                let i = bits.trailing_zeros();
-                bits &= bits - 1;
-                ids[k] = (kinds[(on >> i & 1) as usize], base + i);
-                k += 1;
-            }
+        if switched & switched.wrapping_sub(1) != 0 || diodes & diodes.wrapping_sub(1) != 0 {
+            return self.push_instant_one_by_one(time, switched, diodes);
+        }
+        let k = (switched != 0) as usize + (diodes != 0) as usize;
+        if k == 0 {
+            return Ok(());
         }
         let cap = self.opts.chatter_events + 1;
         let len = self.recent.len();
-        // The chatter check of the last event decides for all (times never
+        // The chatter check of the last event decides for both (times never
         // decrease), and the oldest of the ring after k more is known.
         let quiet = if len == cap {
             k < cap && {
@@ -175,20 +154,33 @@ impl Simulator {
         if !quiet || self.n_events + k > self.opts.max_events {
             return self.push_instant_one_by_one(time, switched, diodes);
         }
+        let first = (switched != 0).then(|| {
+            let i = switched.trailing_zeros();
+            let kind = if self.key.switches >> i & 1 == 1 {
+                EventKind::SwitchOn
+            } else {
+                EventKind::SwitchOff
+            };
+            (kind, i)
+        });
+        let second = (diodes != 0).then(|| {
+            let i = diodes.trailing_zeros();
+            let kind = if self.key.diodes >> i & 1 == 1 {
+                EventKind::DiodeOn
+            } else {
+                EventKind::DiodeOff
+            };
+            (kind, self.cc.switches.len() as u32 + i)
+        });
         if self.keeps(time, time) {
             let after = &self.z.as_slice()[..self.cc.n_x];
-            let n_same = (0..k).filter(|&j| ids[j].1 < ns).count();
-            // Refused (nothing added): one by one gives the same records
-            // or the same refusal.
-            if !self
-                .log
-                .push_instant(time, &ids[..k], n_same, &self.before, after)
-            {
+            // Refused (nothing added): one by one gives the same refusal.
+            if !self.log.push_pair(time, first, second, &self.before, after) {
                 return self.push_instant_one_by_one(time, switched, diodes);
             }
         }
         self.n_events += k;
-        for &(_, id) in &ids[..k] {
+        for (_, id) in first.into_iter().chain(second) {
             if self.recent.len() < cap {
                 self.recent.push((time, id));
             } else {
@@ -273,6 +265,3 @@ impl Simulator {
         }
     }
 }
-
-/// The most events of one instant [`Simulator::push_instant`] logs at once.
-const INSTANT_BATCH: usize = 4;
