@@ -156,7 +156,7 @@ impl Simulator {
                     scale += a;
                 }
                 let tol = ZERO_REL * scale + guard_floor(&g.kind, scales);
-                if let Some(s) = guard_root(&coef, tol) {
+                if let Some(s) = guard_root(&coef, tol, None) {
                     found = merge(found, (i as f64 + s) * d, bits_of(g), s, h);
                 }
             }
@@ -206,18 +206,21 @@ fn merge(found: Found, tau: f64, bit: (u64, u64), s: f64, h: f64) -> Found {
 /// Where the guard polynomial with coefficients `coef` (σ ∈ [0, 1])
 /// first goes below −`tol`: through its end value, or below zero at an
 /// interior minimum (a dip and back).
-fn guard_root(coef: &[f64], tol: f64) -> Option<f64> {
+///
+/// `hint`, if any, is where the search starts (the crossing of an earlier
+/// period, which in a settled converter lies within a few ulps).
+fn guard_root(coef: &[f64], tol: f64, hint: Option<f64>) -> Option<f64> {
     let (gb, db) = propagate::poly(coef, 1.0);
     let da = coef.get(1).copied().unwrap_or(0.0);
     // p(0) is the first coefficient exactly (Horner at 0).
     let g0 = coef.first().copied().unwrap_or(0.0);
     if gb < -tol {
-        Some(root_in(coef, 0.0, 1.0, g0, gb))
+        Some(root_in(coef, 0.0, 1.0, g0, gb, hint))
     } else if da < 0.0 && db > 0.0 {
         // An interior minimum: find it, then look below zero there.
         let smin = stationary(coef);
-        let (gm, _) = propagate::poly(coef, smin);
-        (gm < -tol).then(|| root_in(coef, 0.0, smin, g0, gm))
+        let gm = propagate::poly_value(coef, smin);
+        (gm < -tol).then(|| root_in(coef, 0.0, smin, g0, gm, hint))
     } else {
         None
     }
@@ -234,6 +237,10 @@ pub(super) struct GuardPolys {
     /// the guard's terms at z is its product with |z|).
     rows: Vec<Vec<f64>>,
     abs: Vec<Vec<f64>>,
+    /// Per guard: σ of its latest crossing over this length, where the
+    /// next search starts (the result does not depend on it where the
+    /// crossing is clean; it saves about half of the evaluations).
+    hints: Vec<Option<f64>>,
 }
 
 impl GuardPolys {
@@ -275,6 +282,7 @@ impl GuardPolys {
         GuardPolys {
             bits: h.to_bits(),
             terms,
+            hints: vec![None; rows.len()],
             rows,
             abs,
         }
@@ -313,6 +321,10 @@ impl Simulator {
         let mut coef = std::mem::take(&mut self.coef);
         let gp = &self.caches[mi].polys[pi];
         let mut found: Found = None;
+        // The crossings found, to start the next search from (a few are
+        // enough: converters have a handful of guards).
+        let mut hits = [(0usize, 0.0f64); 4];
+        let mut n_hits = 0;
         for (gi, g) in mode.guards.iter().enumerate() {
             coef.clear();
             for q in gp.rows[gi].chunks_exact(nz).take(gp.terms) {
@@ -320,9 +332,16 @@ impl Simulator {
             }
             let scale = dot_s(&gp.abs[gi], za_abs.as_slice());
             let tol = ZERO_REL * scale + guard_floor(&g.kind, scales);
-            if let Some(s) = guard_root(&coef, tol) {
+            if let Some(s) = guard_root(&coef, tol, gp.hints[gi]) {
                 found = merge(found, s * h, bits_of(g), s, h);
+                if n_hits < hits.len() {
+                    hits[n_hits] = (gi, s);
+                    n_hits += 1;
+                }
             }
+        }
+        for &(gi, s) in &hits[..n_hits] {
+            self.caches[mi].polys[pi].hints[gi] = Some(s);
         }
         self.coef = coef;
         self.za = za_abs;
@@ -353,7 +372,8 @@ impl Simulator {
 /// one where p < 0), to a point where p < 0 whose predecessor has p ≥ 0, so
 /// the returned instant is at or just after the crossing.
 /// `fa` and `fb` are p(lo) and p(hi), which the caller has already.
-fn root_in(c: &[f64], lo: f64, hi: f64, fa: f64, fb: f64) -> f64 {
+/// A `hint` strictly inside the bracket replaces the secant guess.
+fn root_in(c: &[f64], lo: f64, hi: f64, fa: f64, fb: f64, hint: Option<f64>) -> f64 {
     let (mut a, mut b) = (lo, hi);
     if fa < 0.0 {
         return a;
@@ -363,6 +383,17 @@ fn root_in(c: &[f64], lo: f64, hi: f64, fa: f64, fb: f64) -> f64 {
     } else {
         0.5 * (a + b)
     };
+    // From a hint: one Newton step from it (it narrows the bracket too),
+    // which from a few ulps away lands within rounding of the crossing.
+    if let Some(h) = hint.filter(|&h| h > a && h < b) {
+        let (v, dv) = propagate::poly(c, h);
+        if v < 0.0 {
+            b = h;
+        } else {
+            a = h;
+        }
+        s = if dv != 0.0 { h - v / dv } else { h };
+    }
     if !(s > a && s < b) {
         s = 0.5 * (a + b);
     }
@@ -396,14 +427,14 @@ fn root_in(c: &[f64], lo: f64, hi: f64, fa: f64, fb: f64) -> f64 {
     // Converged: the first point at or after the crossing. Step up from the
     // estimate an ulp at a time; if rounding noise hides the sign change
     // there, bisect what is left of the bracket.
-    if propagate::poly(c, s).0 < 0.0 {
+    if propagate::poly_value(c, s) < 0.0 {
         // Already past the crossing: step down while the point below is
         // still negative (p(a) ≥ 0 bounds the walk).
         b = b.min(s);
         let mut x = b;
         for _ in 0..16 {
             let below = f64::from_bits(x.to_bits() - 1);
-            if x <= 0.0 || below <= a || propagate::poly(c, below).0 >= 0.0 {
+            if x <= 0.0 || below <= a || propagate::poly_value(c, below) >= 0.0 {
                 return x;
             }
             x = below;
@@ -416,7 +447,7 @@ fn root_in(c: &[f64], lo: f64, hi: f64, fa: f64, fb: f64) -> f64 {
             if x >= b {
                 return b;
             }
-            if propagate::poly(c, x).0 < 0.0 {
+            if propagate::poly_value(c, x) < 0.0 {
                 return x;
             }
             x = f64::from_bits(x.to_bits() + 1);
@@ -428,7 +459,7 @@ fn root_in(c: &[f64], lo: f64, hi: f64, fa: f64, fb: f64) -> f64 {
         if m <= a || m >= b {
             break;
         }
-        if propagate::poly(c, m).0 < 0.0 {
+        if propagate::poly_value(c, m) < 0.0 {
             b = m;
         } else {
             a = m;
@@ -480,6 +511,7 @@ mod tests {
             seed ^= seed << 17;
             (seed >> 11) as f64 / (1u64 << 53) as f64
         };
+        let mut moved = 0;
         for case in 0..2000 {
             let r = 0.01 + 0.98 * rnd();
             // q(σ) = 1 + a σ + b σ², positive on [0, 1] for a, b ≥ 0, times
@@ -495,7 +527,8 @@ mod tests {
             for (i, ci) in c.iter_mut().enumerate().skip(4) {
                 *ci += k * 1e-5f64.powi(i as i32) * (rnd() - 0.5);
             }
-            let x = root_in(&c, 0.0, 1.0, c[0], propagate::poly(&c, 1.0).0);
+            let fb = propagate::poly(&c, 1.0).0;
+            let x = root_in(&c, 0.0, 1.0, c[0], fb, None);
             let below = f64::from_bits(x.to_bits() - 1);
             assert!(propagate::poly(&c, x).0 < 0.0, "case {case}: p(x) ≥ 0");
             assert!(
@@ -503,6 +536,30 @@ mod tests {
                 "case {case}: not the first point past the crossing"
             );
             assert!((x - r).abs() <= 1e-14, "case {case}: {x} vs {r}");
+            // Started from a hint — an earlier crossing a few ulps off, or
+            // one far away — the search ends at the same point.
+            let ulps = (rnd() * 64.0) as u64;
+            for hint in [
+                f64::from_bits(x.to_bits() + ulps),
+                f64::from_bits(x.to_bits() - ulps),
+                0.9 * x + 0.1 * rnd(),
+                rnd(),
+            ] {
+                let y = root_in(&c, 0.0, 1.0, c[0], fb, Some(hint));
+                if y != x {
+                    // Only where rounding blurs the crossing: then y is a
+                    // first point past it too, as close to the root.
+                    moved += 1;
+                    let below = f64::from_bits(y.to_bits() - 1);
+                    assert!(propagate::poly(&c, y).0 < 0.0, "case {case}: p(y) ≥ 0");
+                    assert!(propagate::poly(&c, below).0 >= 0.0, "case {case}");
+                    assert!((y - r).abs() <= 1e-14, "case {case}: {y} vs {r}");
+                }
+            }
         }
+        assert!(
+            moved <= 40,
+            "{moved} of 8000 hinted searches ended elsewhere"
+        );
     }
 }
