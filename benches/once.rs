@@ -8,7 +8,9 @@
 //!
 //! Arguments: `ccm` or `dcm` (the bucks of `benches/common`), then `all`
 //! or `nothing` (what to record), then optionally how many runs (default
-//! 1; each run is timed and printed, as a criterion iteration would be). Prints the events and the wall time per
+//! 1; each run is timed and printed, as a criterion iteration would be),
+//! then optionally `reuse` (each run records into the storage of the run
+//! before, so that fresh pages do not dominate the time). Prints the events and the wall time per
 //! event of this one run.
 
 use std::time::Instant;
@@ -35,7 +37,11 @@ fn main() {
     };
     // An optional third word: how many runs (each printed).
     let runs: usize = words.get(2).and_then(|w| w.parse().ok()).unwrap_or(1);
+    // An optional fourth word `reuse`: each run records into the storage of
+    // the one before (no fresh pages, as `record_all_reused`).
+    let reuse = words.get(3) == Some(&"reuse");
     let c = if dcm { buck_dcm() } else { buck_ccm() };
+    let mut previous = None;
     for _ in 0..runs {
         let start = Instant::now();
         let opts = Options {
@@ -43,12 +49,17 @@ fn main() {
             ..Options::default()
         };
         let mut sim = Simulator::new(&c, opts).expect("compiles");
+        if let Some(old) = previous.take() {
+            sim.reuse_storage(old);
+        }
         sim.advance_periods(PERIODS).expect("runs");
         let run = sim.finish();
         let n = run.stats.scheduled_events + run.stats.state_events;
         let dt = start.elapsed().as_secs_f64();
         let located = run.stats.state_events;
-        drop(run);
+        if reuse {
+            previous = Some(run);
+        }
         println!(
             "{n} events ({located} located), {:.1} ns per event",
             dt * 1e9 / n as f64

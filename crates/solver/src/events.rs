@@ -240,6 +240,7 @@ impl EventLog {
     /// it to `after`. The same records and snapshots as pushing them one
     /// by one with [`EventLog::push`]; `false` (and nothing added) where
     /// the log cannot take both.
+    #[inline(always)]
     pub(crate) fn push_pair(
         &mut self,
         time: f64,
