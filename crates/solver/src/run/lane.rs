@@ -2,16 +2,16 @@
 //!
 //! While every interval ends at a periodic gate edge before the stop time
 //! (and starts at one, or at a located event), its matrix exponential is
-//! cached, it needs one
-//! Taylor reach (ρ·h ≤ 1/2) and no guard is suspect at its end, the
-//! general loop of `advance_to` would only look up the next edge, multiply
-//! by the cached exponential, record the segment and apply the edge. The
-//! lane does exactly that, with the general stages' own arithmetic (so the
-//! same bits) but without their generality: no controller, comparator,
-//! source corner or state-event search. Anything else — a suspect guard, a
-//! new interval length, the stop time, an edge outside the periodic
-//! schedule — returns to the general loop *before* anything is changed, so
-//! the general loop handles that interval from the same state. A contract
+//! cached and it needs one Taylor reach (ρ·h ≤ 1/2), the general loop of
+//! `advance_to` would only look up the next edge, multiply by the cached
+//! exponential, locate a guard that is suspect at the end, record the
+//! segment and apply the edge or the located instant. The lane does
+//! exactly that, calling the general stages' own functions (so the same
+//! bits) but without their generality: no controller, comparator or source
+//! corner. Anything else — a new interval length, the stop time, an edge
+//! outside the periodic schedule — returns to the general loop *before*
+//! anything is changed, so the general loop handles that interval from the
+//! same state. A contract
 //! test (`lane_gives_the_same_bits_as_the_general_loop`) checks the whole
 //! record of every example converter with and without it.
 
@@ -106,17 +106,32 @@ impl Simulator {
             propagate::matvec(phi, self.z.as_slice(), self.z_next.as_mut_slice());
             let (za, zb) = (self.z.as_slice(), self.z_next.as_slice());
             let scales = self.seen;
-            if mode
+            let suspect = mode
                 .guards
                 .iter()
-                .any(|g| suspect_at_end(g, za, zb, scales))
-            {
-                return Ok(());
-            }
-            // From here on exactly what the general loop does after a
-            // cached step with no event inside.
+                .any(|g| suspect_at_end(g, za, zb, scales));
+            // From here on exactly what the general loop does after the
+            // same cached step.
             self.stats.cache_hits += 1;
             self.lane_steps += 1;
+            if suspect {
+                // The general loop's location and, for a crossing inside,
+                // its located instant.
+                if let Some((tau, fired, cmp_fired)) = self.locate(h) {
+                    if tau < h {
+                        let t_e = self.t + tau;
+                        self.record(t_e);
+                        self.t = t_e;
+                        self.tkey = None;
+                        std::mem::swap(&mut self.z, &mut self.z_next);
+                        self.check_finite()?;
+                        self.stats.state_events += 1;
+                        let cause = self.fire_comparators(cmp_fired, t_e)?;
+                        self.resolve(fired, cause, false)?;
+                        continue;
+                    }
+                }
+            }
             self.record(e.time);
             self.t = e.time;
             self.tkey = Some(TimeKey {
