@@ -11,9 +11,8 @@
 //! corner. Anything else — a new interval length, the stop time, an edge
 //! outside the periodic schedule — returns to the general loop *before*
 //! anything is changed, so the general loop handles that interval from the
-//! same state. A contract
-//! test (`lane_gives_the_same_bits_as_the_general_loop`) checks the whole
-//! record of every example converter with and without it.
+//! same state. A contract test (`lane_gives_the_same_bits_as_the_general_loop`)
+//! checks the whole record of every example converter with and without it.
 
 use super::locate::suspect_at_end;
 use super::schedule::TimeKey;

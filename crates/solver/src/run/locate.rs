@@ -212,7 +212,7 @@ fn merge(found: Found, tau: f64, bit: (u64, u64), s: f64, h: f64) -> Found {
 fn guard_root(coef: &[f64], tol: f64, hint: Option<f64>) -> Option<f64> {
     let (gb, db) = propagate::poly(coef, 1.0);
     let da = coef.get(1).copied().unwrap_or(0.0);
-    // p(0) is the first coefficient exactly (Horner at 0).
+    // p(0) is the first coefficient (the evaluation at 0 gives it exactly).
     let g0 = coef.first().copied().unwrap_or(0.0);
     if gb < -tol {
         Some(root_in(coef, 0.0, 1.0, g0, gb, hint))

@@ -32,18 +32,22 @@ impl EdgeQueue {
         self.buf.get(self.head..).unwrap_or(&[])
     }
 
+    /// True when every edge has been taken.
     pub fn is_empty(&self) -> bool {
         self.head >= self.buf.len()
     }
 
+    /// The next edge, if any.
     pub fn front(&self) -> Option<&Edge> {
         self.buf.get(self.head)
     }
 
+    /// Live edge `i` (0 is the front).
     pub fn get(&self, i: usize) -> Option<&Edge> {
         self.live().get(i)
     }
 
+    /// Takes the front edge (nothing if empty).
     pub fn pop_front(&mut self) {
         if self.head < self.buf.len() {
             self.head += 1;
@@ -60,6 +64,7 @@ impl EdgeQueue {
         self.head = 0;
     }
 
+    /// Appends edges after the last.
     pub fn extend(&mut self, edges: impl IntoIterator<Item = Edge>) {
         if 2 * self.head > self.buf.len() {
             self.compact();
@@ -78,6 +83,7 @@ impl EdgeQueue {
         self.buf.insert(self.head + i, e);
     }
 
+    /// Keeps the live edges for which `keep` is true, in order.
     pub fn retain(&mut self, keep: impl FnMut(&Edge) -> bool) {
         self.compact();
         self.buf.retain(keep);
@@ -327,5 +333,71 @@ impl Simulator {
         }
         self.key.switches = sw;
         Ok(cause)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use std::collections::VecDeque;
+
+    use fluxstep_netlist::Edge;
+
+    use super::EdgeQueue;
+
+    fn edge(time: f64) -> Edge {
+        Edge {
+            time,
+            on: time as i64 % 2 == 0,
+            cycle: 0,
+            phase: time,
+            period: None,
+        }
+    }
+
+    /// Contract: the edge queue behaves as a double-ended queue under every
+    /// operation the schedule uses, in random order.
+    #[test]
+    fn edge_queue_behaves_as_a_deque() {
+        let mut seed = 0x9e37_79b9_7f4a_7c15u64;
+        let mut rnd = move |n: u64| {
+            seed ^= seed << 13;
+            seed ^= seed >> 7;
+            seed ^= seed << 17;
+            seed % n
+        };
+        let (mut q, mut model) = (EdgeQueue::default(), VecDeque::new());
+        let mut next = 0.0;
+        for step in 0..20_000 {
+            match rnd(6) {
+                0 | 1 => {
+                    let k = rnd(5);
+                    let new: Vec<Edge> = (0..k).map(|i| edge(next + i as f64)).collect();
+                    next += k as f64;
+                    q.extend(new.clone());
+                    model.extend(new);
+                }
+                2 | 3 => {
+                    q.pop_front();
+                    model.pop_front();
+                }
+                4 => {
+                    let t = next - rnd(8) as f64 - 0.5;
+                    let i = q.partition_point(|e| e.time <= t);
+                    assert_eq!(i, model.partition_point(|e| e.time <= t), "step {step}");
+                    q.insert(i, edge(t));
+                    model.insert(i, edge(t));
+                }
+                _ => {
+                    let t = next - rnd(4) as f64;
+                    q.retain(|e| e.time < t);
+                    model.retain(|e| e.time < t);
+                }
+            }
+            assert_eq!(q.is_empty(), model.is_empty(), "step {step}");
+            assert_eq!(q.front(), model.front(), "step {step}");
+            let i = rnd(4) as usize;
+            assert_eq!(q.get(i), model.get(i), "step {step}");
+            assert_eq!(q.live().len(), model.len(), "step {step}");
+        }
     }
 }
