@@ -60,6 +60,8 @@ mod mode;
 mod options;
 mod propagate;
 mod run;
+#[cfg(test)]
+mod test_util;
 mod waveform;
 mod waveform_ext;
 

@@ -465,13 +465,7 @@ mod tests {
     /// and the value of `poly` has exactly the bits of `poly_value`.
     #[test]
     fn even_odd_evaluation_agrees_with_horner() {
-        let mut seed = 0x2545_f491_4f6c_dd1du64;
-        let mut rnd = move || {
-            seed ^= seed << 13;
-            seed ^= seed >> 7;
-            seed ^= seed << 17;
-            (seed >> 11) as f64 / (1u64 << 53) as f64
-        };
+        let mut rnd = crate::test_util::uniform(0x2545_f491_4f6c_dd1du64);
         for case in 0..3000 {
             let n = (rnd() * 17.0) as usize;
             let c: Vec<f64> = (0..n)

@@ -504,13 +504,7 @@ mod tests {
     /// (common practice).
     #[test]
     fn root_is_the_first_point_past_the_crossing() {
-        let mut seed = 0x1234_5678_9abc_def1u64;
-        let mut rnd = move || {
-            seed ^= seed << 13;
-            seed ^= seed >> 7;
-            seed ^= seed << 17;
-            (seed >> 11) as f64 / (1u64 << 53) as f64
-        };
+        let mut rnd = crate::test_util::uniform(0x1234_5678_9abc_def1u64);
         let mut moved = 0;
         for case in 0..2000 {
             let r = 0.01 + 0.98 * rnd();

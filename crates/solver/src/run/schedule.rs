@@ -358,13 +358,8 @@ mod tests {
     /// operation the schedule uses, in random order.
     #[test]
     fn edge_queue_behaves_as_a_deque() {
-        let mut seed = 0x9e37_79b9_7f4a_7c15u64;
-        let mut rnd = move |n: u64| {
-            seed ^= seed << 13;
-            seed ^= seed >> 7;
-            seed ^= seed << 17;
-            seed % n
-        };
+        let mut uniform = crate::test_util::uniform(0x9e37_79b9_7f4a_7c15u64);
+        let mut rnd = move |n: u64| (uniform() * n as f64) as u64;
         let (mut q, mut model) = (EdgeQueue::default(), VecDeque::new());
         let mut next = 0.0;
         for step in 0..20_000 {
