@@ -6,7 +6,8 @@
 //! valgrind --tool=callgrind target/release/deps/once-* ccm all
 //! ```
 //!
-//! Arguments: `ccm` or `dcm` (the bucks of `benches/common`), then `all`
+//! Arguments: `ccm`, `dcm` or `pi` (the bucks of `benches/common`; `pi`
+//! is the CCM buck under the sampled PI controller), then `all`
 //! or `nothing` (what to record), then optionally how many runs (default
 //! 1; each run is timed and printed, as a criterion iteration would be),
 //! then optionally `reuse` (each run records into the storage of the run
@@ -19,7 +20,7 @@ use fluxstep_solver::{Options, Record, Simulator};
 
 mod common;
 
-use common::{buck_ccm, buck_dcm, PERIODS};
+use common::{buck_ccm, buck_dcm, digital_pi_buck, run_digital_pi, PERIODS};
 
 fn main() {
     let args: Vec<String> = std::env::args().skip(1).collect();
@@ -30,6 +31,7 @@ fn main() {
         .filter(|a| !a.starts_with('-'))
         .collect();
     let dcm = words.first() == Some(&"dcm");
+    let pi = words.first() == Some(&"pi");
     let record = if words.get(1) == Some(&"nothing") {
         Record::Nothing
     } else {
@@ -40,7 +42,13 @@ fn main() {
     // An optional fourth word `reuse`: each run records into the storage of
     // the one before (no fresh pages, as `record_all_reused`).
     let reuse = words.get(3) == Some(&"reuse");
-    let c = if dcm { buck_dcm() } else { buck_ccm() };
+    let c = if pi {
+        digital_pi_buck()
+    } else if dcm {
+        buck_dcm()
+    } else {
+        buck_ccm()
+    };
     let mut previous = None;
     for _ in 0..runs {
         let start = Instant::now();
@@ -48,12 +56,16 @@ fn main() {
             record,
             ..Options::default()
         };
-        let mut sim = Simulator::new(&c, opts).expect("compiles");
-        if let Some(old) = previous.take() {
-            sim.reuse_storage(old);
-        }
-        sim.advance_periods(PERIODS).expect("runs");
-        let run = sim.finish();
+        let run = if pi {
+            run_digital_pi(&c, record)
+        } else {
+            let mut sim = Simulator::new(&c, opts).expect("compiles");
+            if let Some(old) = previous.take() {
+                sim.reuse_storage(old);
+            }
+            sim.advance_periods(PERIODS).expect("runs");
+            sim.finish()
+        };
         let n = run.stats.scheduled_events + run.stats.state_events;
         let dt = start.elapsed().as_secs_f64();
         let located = run.stats.state_events;

@@ -39,58 +39,11 @@ use criterion::{
     criterion_group, criterion_main, BatchSize, BenchmarkGroup, Criterion, Throughput,
 };
 use fluxstep_netlist::{Circuit, Gate};
-use fluxstep_solver::control::{Apply, Commands, Sampling};
 use fluxstep_solver::{Options, Record, RunResult, Simulator, Stats};
 
 mod common;
 
-use common::{buck_ccm, buck_dcm, PERIODS};
-
-/// Switching period of the closed-loop runs (s).
-const T: f64 = 10e-6;
-
-/// The CCM buck with its PWM duty left to a controller.
-fn digital_pi_buck() -> Circuit {
-    let mut c = buck_ccm();
-    c.gates = vec![Gate::Pwm {
-        name: "drive".into(),
-        frequency: 1.0 / T,
-        duty: 0.4,
-        delay: 0.0,
-        start: None,
-        stop: None,
-    }];
-    c.validate().expect("benchmark circuit is valid");
-    c
-}
-
-/// A discrete PI regulating the output to 4.8 V: sampled at each period
-/// start, 1 µs computation delay, the new duty applied at the next period.
-fn run_digital_pi(circuit: &Circuit, record: Record) -> RunResult {
-    let opts = Options {
-        record,
-        ..Options::default()
-    };
-    let mut sim = Simulator::new(circuit, opts).expect("compiles");
-    let (kp, ki) = (0.01, 200.0);
-    let mut integral = 0.4;
-    let pi = move |_t: f64, y: &[Option<f64>], cmd: &mut Commands| {
-        let e = 4.8 - y[0].expect("the output node is always determined");
-        integral = (integral + ki * T * e).clamp(0.0, 0.9);
-        cmd.set_duty("drive", (kp * e + integral).clamp(0.0, 0.9));
-    };
-    let sampling = Sampling {
-        inputs: vec!["out".into()],
-        period: T,
-        offset: 0.0,
-        delay: 1e-6,
-        apply: Apply::NextPeriod,
-    };
-    sim.add_controller(sampling, Box::new(pi))
-        .expect("valid sampling");
-    sim.advance_to(PERIODS as f64 * T).expect("runs");
-    sim.finish()
-}
+use common::{buck_ccm, buck_dcm, digital_pi_buck, run_digital_pi, PERIODS, T};
 
 /// Buck under peak-current control, 12 V in, 22 µH, 100 µF, 2 Ω, peak
 /// reference 2.8 A: about 5 V out, duty about 0.42, continuous conduction;

@@ -366,7 +366,8 @@ pub(crate) struct Scratch {
 }
 
 /// e^{Mτ} z into `out`, as [`advance`] does, without allocating (only the
-/// first `live` rows of M may be non-zero).
+/// first `live` rows of M may be non-zero). τ may be negative (a step back
+/// over a short remainder, see `Simulator::advance_near`).
 pub(crate) fn advance_into(
     m: &DMatrix<f64>,
     live: usize,
@@ -381,8 +382,8 @@ pub(crate) fn advance_into(
     s.next.resize(nz, 0.0);
     s.x.resize(nz, 0.0);
     s.x.copy_from_slice(z);
-    if tau > 0.0 {
-        let n = substeps(rate, tau);
+    if tau != 0.0 {
+        let n = substeps(rate, tau.abs());
         let d = tau / n as f64;
         for _ in 0..n {
             s.term.copy_from_slice(&s.x);
