@@ -1,0 +1,14 @@
+//! Analyses above the exact transient: the third stage of the pipeline
+//! (netlist → solver → **analysis** → plot).
+//!
+//! The solver advances a circuit exactly between switching events; this
+//! crate asks it questions a power-supply designer asks of a whole design:
+//! the periodic steady state and its stability, and (in later modules) the
+//! small-signal response and sweeps over operating points and tolerances.
+//!
+//! # Brief overview
+//!
+//! (filled in as the modules land)
+
+// Every public item is part of the embedding API.
+#![deny(missing_docs)]

@@ -1,0 +1,1 @@
+//! Integration tests of the analysis crate, one module per analysis.
