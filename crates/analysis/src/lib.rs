@@ -2,13 +2,53 @@
 //! (netlist → solver → **analysis** → plot).
 //!
 //! The solver advances a circuit exactly between switching events; this
-//! crate asks it questions a power-supply designer asks of a whole design:
-//! the periodic steady state and its stability, and (in later modules) the
-//! small-signal response and sweeps over operating points and tolerances.
+//! crate asks it the questions a power-supply designer asks of a whole
+//! design, starting with the periodic steady state and its stability.
+//! It reads the solver's record of a run through the sensitivity seam of
+//! [`fluxstep_solver::dynamics`] (each segment's exact dynamics, the jump
+//! on entering a mode, the guard at a located event) and never reopens
+//! the transient loop.
 //!
 //! # Brief overview
 //!
-//! (filled in as the modules land)
+//! - [`steady::find`]: the periodic steady state by shooting — Newton's
+//!   method on the exact period map with its exact Jacobian (transition
+//!   matrices and saltation matrices) — returning a [`steady::SteadyState`]
+//!   with the state at period start, the one-period waveform and event log,
+//!   measurements, Floquet multipliers and the iteration history.
+//! - [`steady::SteadyOptions`]: tolerance, iteration and time limits, period
+//!   multiple, settling periods before the first iterate.
+//! - [`AnalysisError`]: every failure, naming what it concerns.
+//!
+//! # Example
+//!
+//! ```
+//! use fluxstep_analysis::steady::{find, SteadyOptions};
+//! use fluxstep_netlist::Circuit;
+//!
+//! // Asynchronous buck in continuous conduction: 12 V, 50 % duty.
+//! let buck = Circuit::builder()
+//!     .voltage_source("Vin", "in", "gnd", 12.0)
+//!     .switch("S1", "in", "sw", "drive")
+//!     .diode("D1", "gnd", "sw")
+//!     .inductor("L1", "sw", "out", 100e-6)
+//!     .capacitor("C1", "out", "gnd", 100e-6)
+//!     .resistor("Rload", "out", "gnd", 5.0)
+//!     .pwm("drive", 100e3, 0.5)
+//!     .build()
+//!     .unwrap();
+//! let ss = find(&buck, &SteadyOptions::default()).unwrap();
+//! // The period map is affine for a fixed event sequence: one Newton step.
+//! assert!(ss.iterations.len() <= 3);
+//! let vout = ss.measurement("out").unwrap().average;
+//! assert!((vout - 6.0).abs() < 0.05); // D·Vin, less the small ripple effect
+//! assert!(ss.is_stable());
+//! ```
 
 // Every public item is part of the embedding API.
 #![deny(missing_docs)]
+
+mod error;
+pub mod steady;
+
+pub use error::AnalysisError;

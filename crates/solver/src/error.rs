@@ -129,6 +129,13 @@ pub enum SolverError {
         /// What was wrong, naming the gate or output.
         message: String,
     },
+    /// A state given to restart a run is unusable (wrong length, not
+    /// finite, an unknown state name).
+    #[error("invalid state: {reason}")]
+    InvalidState {
+        /// What was wrong, naming the state.
+        reason: String,
+    },
     /// A time argument is invalid (before the present time, not finite…).
     #[error("invalid time {time:e} s: {reason}")]
     BadTime {

@@ -53,6 +53,7 @@
 
 mod compile;
 pub mod control;
+pub mod dynamics;
 mod error;
 mod events;
 pub mod measure;

@@ -17,6 +17,11 @@ pub struct Segment {
     /// End time (s).
     pub t1: f64,
     pub(crate) mode: u32,
+    /// How the segment ended: [`crate::dynamics::SCHEDULED_END`] at a
+    /// scheduled instant (or the end of the record), else the located state
+    /// event's code (see `dynamics::crossing_code`). Fits in the padding
+    /// after `mode`, so a segment stays 24 bytes.
+    pub(crate) end: u32,
 }
 
 /// Identifies an output of a circuit (a node voltage, an element current or voltage).

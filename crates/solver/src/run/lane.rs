@@ -119,7 +119,7 @@ impl Simulator {
                 if let Some((tau, fired, cmp_fired)) = self.locate(h) {
                     if tau < h {
                         let t_e = self.t + tau;
-                        self.record(t_e);
+                        self.record_located(t_e, fired, cmp_fired);
                         self.t = t_e;
                         self.tkey = None;
                         std::mem::swap(&mut self.z, &mut self.z_next);

@@ -13,6 +13,7 @@ mod lane;
 mod locate;
 mod record;
 mod resolve;
+mod restart;
 mod sampled;
 mod schedule;
 
@@ -537,7 +538,7 @@ impl Simulator {
                 if tau < h {
                     // `locate` left the state at τ in `z_next`.
                     let t_e = self.t + tau;
-                    self.record(t_e);
+                    self.record_located(t_e, fired, cmp_fired);
                     self.t = t_e;
                     self.tkey = None;
                     std::mem::swap(&mut self.z, &mut self.z_next);

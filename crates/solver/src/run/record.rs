@@ -39,9 +39,23 @@ impl Simulator {
         }
     }
 
-    /// Records the segment from now to `t1` (start state `z`).
+    /// Records the segment from now to `t1` (start state `z`), which ends
+    /// at a scheduled instant.
     #[inline(always)]
     pub(super) fn record(&mut self, t1: f64) {
+        self.record_ending(t1, crate::dynamics::SCHEDULED_END);
+    }
+
+    /// Records the segment from now to `t1`, which ends at a located state
+    /// event: the guards of the diodes `fired` and comparators `cmp_fired`
+    /// crossed zero there (kept for the saltation matrices of
+    /// [`crate::dynamics`]).
+    pub(super) fn record_located(&mut self, t1: f64, fired: u64, cmp_fired: u64) {
+        self.record_ending(t1, crate::dynamics::crossing_code(fired, cmp_fired));
+    }
+
+    #[inline(always)]
+    fn record_ending(&mut self, t1: f64, end: u32) {
         let t0 = self.t;
         if t1 <= t0 {
             return;
@@ -61,6 +75,7 @@ impl Simulator {
                 t0,
                 t1,
                 mode: self.mode,
+                end,
             });
         }
     }
