@@ -1,1 +1,8 @@
 //! Integration tests of the analysis crate, one module per analysis.
+
+/// Shared circuits and helpers.
+mod common;
+/// Periodic steady state: agreement with long settled transients, Newton
+/// iteration counts, the discontinuous-conduction ratio, current-mode
+/// multipliers, saltation against finite differences, bad input.
+mod steady;

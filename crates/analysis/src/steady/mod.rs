@@ -46,6 +46,12 @@ use crate::AnalysisError;
 use monodromy::segments_jacobian;
 use period::common_period;
 
+/// A multiplier this close to 1 counts as exactly 1 (a conserved
+/// quantity): rounding of a period's product of transition matrices is far
+/// below it, and a real slow mode (|λ| = 1 − 1e-10 takes 10¹⁰ periods per
+/// factor e) is no steady state a designer could observe.
+const UNIT_MULTIPLIER: f64 = 1e-10;
+
 /// Options of a steady-state search.
 #[derive(Clone, Debug)]
 pub struct SteadyOptions {
@@ -101,6 +107,10 @@ pub struct Iteration {
     /// Periods simulated to find this iterate (more than 1 when steps were
     /// halved).
     pub trials: usize,
+    /// Whether this iterate came from a Newton step; false for the
+    /// starting point and for a plain period (x ← P(x)) taken where the
+    /// Newton matrix was singular.
+    pub newton: bool,
 }
 
 /// What a Floquet multiplier says about the orbit, in plain words.
@@ -239,6 +249,24 @@ impl SteadyState {
     }
 }
 
+/// ∂z(end)/∂z(start) over the extended state for the recorded segments
+/// `segments` of `wave`: the jump into the first segment's mode, each
+/// segment's transition matrix, at every boundary the jump into the next
+/// mode or, after a located event, the saltation matrix; and finally
+/// `end_jump`, the jump applied at the instant that ends the last segment
+/// (`None` for none). Exact up to rounding.
+pub fn period_jacobian(
+    wave: &fluxstep_solver::Waveform,
+    segments: std::ops::Range<usize>,
+    end_jump: Option<&DMatrix<f64>>,
+) -> DMatrix<f64> {
+    let phi = segments_jacobian(wave, segments);
+    match end_jump {
+        Some(j) => j * phi,
+        None => phi,
+    }
+}
+
 /// The outcome of simulating one period from a given state.
 struct Period {
     x_start: Vec<f64>,
@@ -325,11 +353,7 @@ impl<'c> Shooter<'c> {
 
     /// ∂x(T)/∂x(0) over the free states for the period just simulated.
     fn jacobian(&self, p: &Period) -> DMatrix<f64> {
-        let wave = self.sim.waveform();
-        let mut phi = segments_jacobian(wave, p.segments.clone());
-        if let Some(j) = &p.end_jump {
-            phi = j * phi;
-        }
+        let phi = period_jacobian(self.sim.waveform(), p.segments.clone(), p.end_jump.as_ref());
         let f = &self.free;
         DMatrix::from_fn(f.len(), f.len(), |r, c| phi[(f[r], f[c])])
     }
@@ -426,6 +450,7 @@ pub fn find(circuit: &Circuit, opts: &SteadyOptions) -> Result<SteadyState, Anal
         residual: r,
         damping: 0.0,
         trials: 1,
+        newton: false,
     }];
     let not_converged = |reason: String, history: Vec<Iteration>| AnalysisError::NotConverged {
         reason,
@@ -442,12 +467,18 @@ pub fn find(circuit: &Circuit, opts: &SteadyOptions) -> Result<SteadyState, Anal
         let j = shooter.jacobian(&p);
         let f = DVector::from_iterator(free.len(), free.iter().map(|&i| p.x_end[i] - p.x_start[i]));
         let a = &j - DMatrix::identity(free.len(), free.len());
-        let Some(delta) = a.clone().lu().solve(&(-&f)) else {
-            return Err(undetermined(&a, &free, shooter.sim.state_names()));
-        };
-        if delta.iter().any(|v| !v.is_finite()) {
-            return Err(undetermined(&a, &free, shooter.sim.state_names()));
-        }
+        // Where I − Φ is singular here (a multiplier of exactly 1: e.g. a
+        // current-mode loop whose comparator has not yet fired, so the
+        // current just integrates), Newton has no step; one plain period
+        // (x ← P(x)) moves on until the event sequence gives one. A state
+        // that truly has no steady value is caught on the orbit below.
+        let newton = a
+            .clone()
+            .lu()
+            .solve(&(-&f))
+            .filter(|d| d.iter().all(|v| v.is_finite()));
+        let is_newton = newton.is_some();
+        let delta = newton.unwrap_or_else(|| f.clone());
         // Damped step: halve until the residual falls (a change of event
         // sequence makes the affine prediction overshoot).
         let mut lambda = 1.0;
@@ -487,6 +518,7 @@ pub fn find(circuit: &Circuit, opts: &SteadyOptions) -> Result<SteadyState, Anal
             residual: r,
             damping: lambda,
             trials,
+            newton: is_newton,
         });
     }
     // The recorded orbit: a fresh run from the first boundary, so its times
@@ -528,6 +560,19 @@ pub fn find(circuit: &Circuit, opts: &SteadyOptions) -> Result<SteadyState, Anal
             .then(b.re.total_cmp(&a.re))
             .then(b.im.total_cmp(&a.im))
     });
+    // A multiplier of 1 on the orbit: the state along its eigenvector stays
+    // wherever it starts, so this orbit is one of a family.
+    let ident = DMatrix::identity(free.len(), free.len());
+    if multipliers
+        .iter()
+        .any(|m| (m.re - 1.0).abs() <= UNIT_MULTIPLIER && m.im.abs() <= UNIT_MULTIPLIER)
+    {
+        return Err(undetermined(
+            &(&monodromy - ident),
+            &free,
+            last.sim.state_names(),
+        ));
+    }
     let state_names = last.sim.state_names().to_vec();
     Ok(SteadyState {
         period,

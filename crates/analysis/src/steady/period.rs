@@ -11,8 +11,8 @@ pub(crate) const MAX_MULTIPLE: u64 = 100_000;
 
 /// Relative tolerance for "these two periods are in an integer ratio":
 /// periods are written with a handful of significant digits, so a true
-/// ratio misses an integer by rounding only, far below this.
-const RATIO_TOL: f64 = 1e-9;
+/// ratio misses an integer by rounding only, far below this; a looser tolerance would take 103993/33102 for π.
+const RATIO_TOL: f64 = 1e-12;
 
 /// The steady-state period as `multiple` periods of `base`, where `base` is
 /// the period of the first periodic part (so that period boundaries,
