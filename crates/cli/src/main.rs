@@ -21,6 +21,7 @@ mod check;
 mod input;
 mod run;
 mod si;
+mod steady;
 
 /// Exit status for input that cannot be used. clap uses the same status for
 /// usage errors, so every "your input is wrong" case shares one code.
@@ -47,6 +48,10 @@ enum Command {
     /// Run the transient a circuit file describes; write waveform CSV,
     /// event log, measurement summary and figure into a folder.
     Run(run::Args),
+    /// Find the periodic steady state by shooting (Newton on the exact
+    /// period map) with its Floquet multipliers; write one period as CSV,
+    /// the summary and a figure of two periods.
+    Steady(steady::Args),
 }
 
 fn main() -> ExitCode {
@@ -54,10 +59,14 @@ fn main() -> ExitCode {
     let result = match &cli.command {
         Command::Check(args) => check::run(args),
         Command::Run(args) => run::run(args),
+        Command::Steady(args) => steady::run(args),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,
-        Err(err) if err.downcast_ref::<run::Stopped>().is_some() => {
+        Err(err)
+            if err.downcast_ref::<run::Stopped>().is_some()
+                || err.downcast_ref::<steady::NotFound>().is_some() =>
+        {
             eprintln!("error: {err}");
             ExitCode::from(EXIT_STOPPED)
         }

@@ -235,7 +235,7 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
 
 /// Without a list: the first inductor current, node `sw` and node `out`
 /// where they exist.
-fn default_outputs(c: &fluxstep_netlist::Circuit) -> Vec<String> {
+pub(crate) fn default_outputs(c: &fluxstep_netlist::Circuit) -> Vec<String> {
     let mut v = vec![];
     if let Some(l) = c
         .elements

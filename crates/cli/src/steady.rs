@@ -1,0 +1,267 @@
+//! `fluxstep steady FILE`: find the periodic steady state of a circuit by
+//! shooting and write `waveform.csv` (one period), `events.json`,
+//! `summary.json` (state at period start by name, measurements, Floquet
+//! multipliers, iterations, residual) and `figure.svg` (two periods); print
+//! a summary with units.
+
+use std::path::PathBuf;
+
+use anyhow::Context;
+use fluxstep_analysis::steady::{find, Reading, SteadyOptions};
+use fluxstep_analysis::AnalysisError;
+use fluxstep_plot::{review_figure, write_svg, ReviewOptions};
+
+use crate::run::Stopped;
+use crate::si::si;
+
+/// Arguments of `fluxstep steady`.
+#[derive(Debug, clap::Args)]
+pub struct Args {
+    /// The circuit file (JSON, see docs/netlist.md).
+    pub file: PathBuf,
+    /// Outputs for the CSV and figure, comma-separated; default: the file's
+    /// `run.outputs`, else the first inductor current, `sw` and `out`.
+    #[arg(long, value_delimiter = ',')]
+    pub outputs: Vec<String>,
+    /// Output folder; default `out/<file stem>-steady`.
+    #[arg(long)]
+    pub dir: Option<PathBuf>,
+    /// Newton stops when no state changes over a period by more than this
+    /// fraction of its scale.
+    #[arg(long, default_value_t = 1e-12)]
+    pub tolerance: f64,
+    /// Most Newton iterations.
+    #[arg(long, default_value_t = 50)]
+    pub max_iterations: usize,
+    /// Periods of plain transient before the first Newton iterate.
+    #[arg(long, default_value_t = 0)]
+    pub settle: u64,
+    /// Find a fixed point over this many periods (2: a period-two orbit).
+    #[arg(long, default_value_t = 1)]
+    pub period_multiple: u64,
+    /// Points of the uniform grid in the CSV (event instants are always added).
+    #[arg(long, default_value_t = 1000)]
+    pub grid: usize,
+}
+
+/// The unit of an output or state by its name: currents in A, voltages
+/// (nodes, `.voltage`) in V; compensator quantities have none.
+pub fn unit_of(name: &str) -> &'static str {
+    if name.ends_with(".current") {
+        "A"
+    } else if name.ends_with(".voltage") || !name.contains('.') {
+        "V"
+    } else {
+        ""
+    }
+}
+
+fn words(r: Reading) -> &'static str {
+    match r {
+        Reading::Stable => "stable",
+        Reading::Slow => "slow mode",
+        Reading::Unstable => "unstable",
+        Reading::PeriodDoubling => "unstable: period doubling",
+    }
+}
+
+/// Finds the steady state and writes the four files.
+///
+/// # Errors
+///
+/// Bad input or a circuit without a steady state: an ordinary error (exit
+/// 2). A solver diagnostic on the orbit, or no convergence: [`Stopped`]-like
+/// (exit 1).
+pub fn run(args: &Args) -> anyhow::Result<()> {
+    let circuit = crate::input::read_circuit(&args.file)?;
+    let opts = SteadyOptions {
+        tolerance: args.tolerance,
+        max_iterations: args.max_iterations,
+        settle_periods: args.settle,
+        period_multiple: args.period_multiple,
+        record_periods: 2,
+        ..SteadyOptions::default()
+    };
+    let ss = match find(&circuit, &opts) {
+        Ok(ss) => ss,
+        Err(AnalysisError::Solver(e)) => return Err(anyhow::Error::new(Stopped(e))),
+        Err(e @ AnalysisError::NotConverged { .. }) => {
+            return Err(anyhow::Error::new(NotFound(e.to_string())))
+        }
+        Err(e) => return Err(e.into()),
+    };
+    let w = &ss.run.waveform;
+    let mut outputs: Vec<String> = if args.outputs.is_empty() {
+        circuit
+            .run
+            .as_ref()
+            .map(|c| c.outputs.clone())
+            .unwrap_or_default()
+    } else {
+        args.outputs.clone()
+    };
+    if outputs.is_empty() {
+        outputs = crate::run::default_outputs(&circuit);
+    }
+    let mut ids = vec![];
+    for o in &outputs {
+        ids.push(w.output(o).with_context(|| {
+            format!(
+                "unknown output {o:?}; the outputs are {}",
+                w.output_names().join(", ")
+            )
+        })?);
+    }
+    let stem = args
+        .file
+        .file_stem()
+        .map(|s| s.to_string_lossy().into_owned())
+        .unwrap_or_else(|| "circuit".into());
+    let dir = args
+        .dir
+        .clone()
+        .unwrap_or_else(|| PathBuf::from("out").join(format!("{stem}-steady")));
+    std::fs::create_dir_all(&dir).with_context(|| format!("cannot create {}", dir.display()))?;
+
+    // One period in the CSV: event instants plus a uniform grid.
+    let (a, b) = (ss.start_time, ss.end_time());
+    let mut times = w.event_times(a, b);
+    let n = args.grid.max(2);
+    times.extend((0..n).map(|k| a + (b - a) * k as f64 / (n - 1) as f64));
+    times.sort_by(f64::total_cmp);
+    times.dedup();
+    let mut csv = String::from("time");
+    for o in &outputs {
+        csv.push(',');
+        csv.push_str(o);
+    }
+    csv.push('\n');
+    for t in &times {
+        csv.push_str(&format!("{t:e}"));
+        for id in &ids {
+            csv.push(',');
+            if let Some(v) = w.value(*id, *t) {
+                csv.push_str(&format!("{v:e}"));
+            }
+        }
+        csv.push('\n');
+    }
+    let write = |name: &str, text: String| {
+        std::fs::write(dir.join(name), text)
+            .with_context(|| format!("cannot write {}", dir.join(name).display()))
+    };
+    write("waveform.csv", csv)?;
+    // The events of the first period only.
+    let events: Vec<_> = ss
+        .run
+        .events
+        .iter()
+        .filter(|e| e.time >= a && e.time < b)
+        .map(|e| e.to_event())
+        .collect();
+    write("events.json", serde_json::to_string_pretty(&events)? + "\n")?;
+    let measurements = ss.measurements();
+    let state: serde_json::Map<String, serde_json::Value> = ss
+        .state_names
+        .iter()
+        .zip(&ss.state)
+        .map(|(n, v)| (n.clone(), serde_json::json!(v)))
+        .collect();
+    let summary = serde_json::json!({
+        "file": args.file.display().to_string(),
+        "period": ss.period,
+        "start_time": ss.start_time,
+        "state_at_period_start": state,
+        "residual": ss.residual,
+        "newton_steps": ss.newton_steps(),
+        "iterations": ss.iterations,
+        "stable": ss.is_stable(),
+        "multipliers": ss.multipliers,
+        "measurements": measurements,
+    });
+    write(
+        "summary.json",
+        serde_json::to_string_pretty(&summary)? + "\n",
+    )?;
+    let fig = review_figure(
+        &format!("{stem}: periodic steady state"),
+        w,
+        Some(&ss.run.events),
+        &ReviewOptions {
+            outputs: outputs.clone(),
+            ..ReviewOptions::default()
+        },
+    )?;
+    write_svg(&fig, dir.join("figure.svg"))?;
+
+    println!(
+        "{stem}: periodic steady state, period {} ({}), found in {} Newton steps, residual {:.1e}",
+        si(ss.period, "s"),
+        si(1.0 / ss.period, "Hz"),
+        ss.newton_steps(),
+        ss.residual
+    );
+    println!("  state at period start:");
+    for (n, v) in ss.state_names.iter().zip(&ss.state) {
+        println!("    {n:<24} {:>12}", si(*v, unit_of(n)));
+    }
+    println!(
+        "  {:<24} {:>12} {:>12} {:>12} {:>12} {:>12}",
+        "output", "average", "rms", "min", "max", "peak-peak"
+    );
+    for o in &outputs {
+        match measurements.iter().find(|m| m.output == *o) {
+            Some(m) => {
+                let u = unit_of(o);
+                println!(
+                    "  {:<24} {:>12} {:>12} {:>12} {:>12} {:>12}",
+                    o,
+                    si(m.average, u),
+                    si(m.rms, u),
+                    si(m.min, u),
+                    si(m.max, u),
+                    si(m.peak_to_peak, u)
+                );
+            }
+            None => println!("  {o:<24} (undetermined in part of the period)"),
+        }
+    }
+    println!(
+        "  stability: {}",
+        if ss.is_stable() { "stable" } else { "UNSTABLE" }
+    );
+    for m in &ss.multipliers {
+        let value = if m.im == 0.0 {
+            format!("{:.6}", m.re)
+        } else {
+            format!(
+                "{:.6} {} {:.6}i",
+                m.re,
+                if m.im < 0.0 { "-" } else { "+" },
+                m.im.abs()
+            )
+        };
+        println!(
+            "    multiplier {value:<28} |λ| {:.6}  {}",
+            m.magnitude,
+            words(m.reading)
+        );
+    }
+    println!(
+        "  written: {}/{{waveform.csv, events.json, summary.json, figure.svg}}",
+        dir.display()
+    );
+    Ok(())
+}
+
+/// The steady-state search did not converge (exit status 1).
+#[derive(Debug)]
+pub struct NotFound(pub String);
+
+impl std::fmt::Display for NotFound {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(&self.0)
+    }
+}
+
+impl std::error::Error for NotFound {}

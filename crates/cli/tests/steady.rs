@@ -1,0 +1,99 @@
+//! `fluxstep steady` as a user runs it: files, summary, exit codes.
+
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+
+fn fluxstep(args: &[&str]) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_fluxstep"))
+        .args(args)
+        .output()
+        .expect("the fluxstep binary runs")
+}
+
+fn example(name: &str) -> String {
+    Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("../../examples/circuits")
+        .join(name)
+        .to_string_lossy()
+        .into_owned()
+}
+
+fn scratch_dir(name: &str) -> PathBuf {
+    let d = Path::new(env!("CARGO_TARGET_TMPDIR")).join(name);
+    let _ = std::fs::remove_dir_all(&d);
+    d
+}
+
+#[test]
+fn steady_writes_one_period_and_a_summary_with_units() {
+    let dir = scratch_dir("steady-buck-dcm");
+    let out = fluxstep(&[
+        "steady",
+        &example("buck_dcm.json"),
+        "--dir",
+        dir.to_str().unwrap(),
+    ]);
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(0), "{stdout}\n{stderr}");
+    assert!(
+        stdout.contains("periodic steady state, period 5 µs (200 kHz)"),
+        "{stdout}"
+    );
+    assert!(
+        stdout.contains("C1.voltage") && stdout.contains(" V"),
+        "{stdout}"
+    );
+    assert!(stdout.contains("stability: stable"), "{stdout}");
+    let summary: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("summary.json")).unwrap()).unwrap();
+    assert_eq!(summary["period"], 5e-6);
+    assert!(summary["residual"].as_f64().unwrap() <= 1e-12);
+    let vc = summary["state_at_period_start"]["C1.voltage"]
+        .as_f64()
+        .unwrap();
+    assert!((vc - 16.96).abs() < 0.01, "{vc}");
+    assert_eq!(summary["multipliers"].as_array().unwrap().len(), 2);
+    // The CSV covers exactly one period.
+    let csv = std::fs::read_to_string(dir.join("waveform.csv")).unwrap();
+    let times: Vec<f64> = csv
+        .lines()
+        .skip(1)
+        .map(|l| l.split(',').next().unwrap().parse().unwrap())
+        .collect();
+    assert_eq!(times.first(), Some(&0.0));
+    assert_eq!(times.last(), Some(&5e-6));
+    for f in ["events.json", "figure.svg"] {
+        assert!(dir.join(f).exists(), "{f}");
+    }
+}
+
+#[test]
+fn steady_without_a_period_is_bad_input() {
+    let dir = scratch_dir("steady-none");
+    let out = fluxstep(&[
+        "steady",
+        &example("interrupted_inductor.json"),
+        "--dir",
+        dir.to_str().unwrap(),
+    ]);
+    assert_eq!(out.status.code(), Some(2));
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(stderr.contains("no periodic steady state"), "{stderr}");
+}
+
+#[test]
+fn steady_that_does_not_converge_exits_1_with_the_history() {
+    let dir = scratch_dir("steady-limit");
+    let out = fluxstep(&[
+        "steady",
+        &example("buck_dcm.json"),
+        "--max-iterations",
+        "1",
+        "--dir",
+        dir.to_str().unwrap(),
+    ]);
+    assert_eq!(out.status.code(), Some(1));
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(stderr.contains("iteration limit 1"), "{stderr}");
+}
