@@ -24,6 +24,27 @@ pub enum AnalysisError {
         /// Every output name of the circuit.
         valid: Vec<String>,
     },
+    /// A small-signal input the circuit does not have.
+    #[error("unknown input {name:?}; the inputs are {}", valid.join(", "))]
+    UnknownInput {
+        /// The name as given.
+        name: String,
+        /// Every valid input name.
+        valid: Vec<String>,
+    },
+    /// The periodic orbit is unstable, so a small-signal response around
+    /// it would be meaningless.
+    #[error(
+        "the periodic orbit is unstable (largest Floquet multiplier {:.4}{:+.4}i, magnitude above 1): \
+         no small-signal response exists around it; stabilise the loop first \
+         (e.g. a compensation ramp for current-mode control above 50 % duty)",
+        multipliers.first().map(|m| m.0).unwrap_or(f64::NAN),
+        multipliers.first().map(|m| m.1).unwrap_or(f64::NAN)
+    )]
+    Unstable {
+        /// The multipliers (re, im), largest magnitude first.
+        multipliers: Vec<(f64, f64)>,
+    },
     /// Nothing in the circuit repeats, so it has no periodic steady state.
     #[error(
         "no periodic steady state: the circuit has no periodic gate, clocked \

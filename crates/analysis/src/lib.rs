@@ -18,6 +18,11 @@
 //!   measurements, Floquet multipliers and the iteration history.
 //! - [`steady::SteadyOptions`]: tolerance, iteration and time limits, period
 //!   multiple, settling periods before the first iterate.
+//! - [`response::frequency_response`]: the exact small-signal response of
+//!   any output to a source value, a duty cycle, a reference, a comparator's
+//!   sense input or a current injected into a node, from the linearised
+//!   switched model (no averaging); [`response::loop_gain`] with crossover
+//!   and phase and gain margins.
 //! - [`AnalysisError`]: every failure, naming what it concerns.
 //!
 //! # Example
@@ -49,6 +54,8 @@
 #![deny(missing_docs)]
 
 mod error;
+pub mod response;
 pub mod steady;
+mod units;
 
 pub use error::AnalysisError;

@@ -2,6 +2,9 @@
 
 /// Shared circuits and helpers.
 mod common;
+/// Small-signal responses: the averaged CCM model, brute-force injection,
+/// current-mode sampling poles, DCM, loop margins, bad input.
+mod response;
 /// Periodic steady state: agreement with long settled transients, Newton
 /// iteration counts, the discontinuous-conduction ratio, current-mode
 /// multipliers, saltation against finite differences, bad input.

@@ -60,6 +60,30 @@ pub struct SegmentDynamics<'a> {
     /// When the segment ended at a located state event: the row g of the
     /// guard that crossed zero there (g·z(t1) = 0).
     pub crossing: Option<&'a [f64]>,
+    /// What the crossed guard watches, when there is one.
+    pub crossed: Option<Crossed>,
+    /// Outputs y = C z inside the segment, one row per output in
+    /// [`Waveform::output_names`] order.
+    pub outputs: &'a DMatrix<f64>,
+    /// Per output: whether it is undetermined (floating) in this segment.
+    pub undetermined: &'a [bool],
+}
+
+/// What a located state event's guard watches.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Crossed {
+    /// A diode's current (conducting) or voltage (blocking), by its index
+    /// among the circuit's diodes.
+    Diode(usize),
+    /// The comparison of a closed-loop gate, by the gate's index among the
+    /// circuit's closed-loop (comparator) gates in file order; `turn_off`
+    /// for the comparison that turns the gate off.
+    Comparator {
+        /// Index among the comparator gates.
+        index: usize,
+        /// True for the turn-off comparison.
+        turn_off: bool,
+    },
 }
 
 impl SegmentDynamics<'_> {
@@ -92,7 +116,7 @@ pub(crate) fn entry_jump(mode: &Mode) -> Option<&DMatrix<f64>> {
 
 /// The guard of `mode` that a crossing code names, closest to zero at `z`
 /// (a diode can have more than one guard; a comparator one per gate state).
-fn crossing_guard<'m>(mode: &'m Mode, code: u32, z: &DVector<f64>) -> Option<&'m [f64]> {
+fn crossing_guard<'m>(mode: &'m Mode, code: u32, z: &DVector<f64>) -> Option<(&'m [f64], Crossed)> {
     let candidates: Vec<&Guard> = if code == SCHEDULED_END {
         return None;
     } else if code <= 64 {
@@ -125,7 +149,14 @@ fn crossing_guard<'m>(mode: &'m Mode, code: u32, z: &DVector<f64>) -> Option<&'m
     candidates
         .into_iter()
         .min_by(|a, b| rel(a).total_cmp(&rel(b)))
-        .map(|g| g.row.as_slice())
+        .map(|g| {
+            let kind = match g.kind {
+                GuardKind::DiodeCurrent(k) | GuardKind::DiodeVoltage(k) => Crossed::Diode(k),
+                GuardKind::DiodePair(..) => Crossed::Diode((code - 1) as usize),
+                GuardKind::Comparator(index, turn_off) => Crossed::Comparator { index, turn_off },
+            };
+            (g.row.as_slice(), kind)
+        })
 }
 
 impl Waveform {
@@ -145,7 +176,7 @@ impl Waveform {
         let s = self.segments.get(i)?;
         let mode = &self.modes[s.mode as usize];
         let start = &self.states[i * self.n_z..(i + 1) * self.n_z];
-        let crossing = if s.end == SCHEDULED_END {
+        let found = if s.end == SCHEDULED_END {
             None
         } else {
             let z1 = propagate::expm(&mode.m, s.t1 - s.t0) * DVector::from_column_slice(start);
@@ -157,7 +188,10 @@ impl Waveform {
             matrix: &mode.m,
             start,
             entry_jump: entry_jump(mode),
-            crossing,
+            crossing: found.map(|(row, _)| row),
+            crossed: found.map(|(_, kind)| kind),
+            outputs: &mode.c,
+            undetermined: &mode.undetermined,
         })
     }
 }

@@ -66,6 +66,7 @@ mod test_util;
 mod waveform;
 mod waveform_ext;
 
+pub use dynamics::{Crossed, SegmentDynamics};
 pub use error::SolverError;
 pub use events::{Event, EventKind, EventLog};
 pub use mode::ModeKey;

@@ -43,6 +43,7 @@ use fluxstep_solver::measure::{measure, Measurement};
 use fluxstep_solver::{Options, Record, RunResult, Simulator};
 
 use crate::AnalysisError;
+pub(crate) use monodromy::saltation;
 use monodromy::segments_jacobian;
 use period::common_period;
 

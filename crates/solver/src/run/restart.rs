@@ -82,6 +82,44 @@ impl Simulator {
         self.resolve(0, None, true)
     }
 
+    /// Names of the inputs whose values are entries of the extended state
+    /// (see [`Simulator::input_index`]).
+    pub fn input_names(&self) -> Vec<String> {
+        self.cc
+            .sources
+            .iter()
+            .filter(|s| s.input.is_some())
+            .map(|s| s.name.clone())
+            .collect()
+    }
+
+    /// The index in the extended state z of a named input: a source with
+    /// a constant or piecewise-linear waveform (its value, V or A), a
+    /// closed-loop gate's comparison threshold (`GATE.turn_off_threshold`,
+    /// `GATE.turn_on_threshold`: the reference of a current-mode gate, the
+    /// ramp of a voltage-mode gate) or a compensator's set-point
+    /// (`COMPENSATOR.reference`). Perturbing that entry perturbs the input
+    /// (see [`crate::dynamics`]).
+    ///
+    /// # Errors
+    ///
+    /// [`SolverError::InvalidState`] listing the input names (a sine
+    /// source is an oscillator state, not an input).
+    pub fn input_index(&self, name: &str) -> Result<usize, SolverError> {
+        self.cc
+            .sources
+            .iter()
+            .find(|s| s.name == name)
+            .and_then(|s| s.input)
+            .map(|k| self.cc.n_x + k)
+            .ok_or_else(|| SolverError::InvalidState {
+                reason: format!(
+                    "no input named {name:?}; the inputs are {}",
+                    self.input_names().join(", ")
+                ),
+            })
+    }
+
     /// The indices of states that no circuit quantity drives (the
     /// oscillators behind sine sources): forced, not free to settle.
     pub fn forced_states(&self) -> Vec<usize> {
