@@ -771,7 +771,11 @@ impl OutputName {
     /// A [`Problem`] naming the field `outputs` when the suffix is unknown.
     pub fn parse(text: &str) -> Result<OutputName, Problem> {
         match text.rsplit_once('.') {
-            None if !text.is_empty() => Ok(OutputName::Node(if is_ground(text) { GROUND.into() } else { text.into() })),
+            None if !text.is_empty() => Ok(OutputName::Node(if is_ground(text) {
+                GROUND.into()
+            } else {
+                text.into()
+            })),
             Some((e, "current")) if !e.is_empty() => Ok(OutputName::Current(e.into())),
             Some((e, "voltage")) if !e.is_empty() => Ok(OutputName::Voltage(e.into())),
             Some((e, "output")) if !e.is_empty() => Ok(OutputName::Signal(e.into())),
