@@ -167,7 +167,7 @@ fn period_from_events(log: &EventLog, t0: f64, t1: f64) -> Option<f64> {
 /// operation). Whatever else the window holds (a slow settling, a load
 /// step), the bracket shows one period's ripple, never the window's span.
 fn periodic_ripple(w: &Waveform, name: &str, t0: f64, t1: f64, period: f64) -> Option<Measurement> {
-    if !(period > 0.0) || t1 - t0 < 2.0 * period * (1.0 - 1e-9) {
+    if period.is_nan() || period <= 0.0 || t1 - t0 < 2.0 * period * (1.0 - 1e-9) {
         return None;
     }
     let id = w.output(name)?;
