@@ -3,7 +3,7 @@
 
 use nalgebra::Complex;
 
-use fluxstep_analysis::response::{frequency_response, log_frequencies, loop_gain, Input};
+use fluxstep_analysis::response::{frequency_response, log_frequencies, Input};
 use fluxstep_analysis::steady::SteadyOptions;
 
 use crate::common::example;

@@ -3,9 +3,9 @@
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 
-use fluxstep_netlist::{Circuit, CompensatorLaw, Element, Gate, Waveform};
+use fluxstep_netlist::{Circuit, Compensator, CompensatorLaw, Element, Gate, OutputName, Waveform};
 
-use crate::si::si;
+use fluxstep_plot::format_si_short as si;
 
 /// Arguments of `fluxstep check`.
 #[derive(Debug, clap::Args)]
@@ -106,6 +106,53 @@ fn plural(n: usize, one: &str, many: &str) -> String {
     format!("{n} {}", if n == 1 { one } else { many })
 }
 
+/// The unit of an output named in a gate or compensator ("A" for a
+/// current, "V" for a voltage, "" for a compensator output).
+fn unit(output: &str) -> &'static str {
+    OutputName::parse(output).map(|o| o.unit()).unwrap_or("")
+}
+
+/// One compensator: name, law, what it measures and its set-point.
+fn describe_compensator(k: &Compensator) -> String {
+    let law = match &k.law {
+        CompensatorLaw::Pi { kp, ki } => format!("PI, kp {kp}, ki {}", si(*ki, "/s")),
+        CompensatorLaw::PolesZeros {
+            integrator,
+            zeros_hz,
+            poles_hz,
+            ..
+        } => {
+            let list = |v: &[f64]| {
+                v.iter()
+                    .map(|f| si(*f, "Hz"))
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            };
+            let mut parts = vec![];
+            if *integrator {
+                parts.push("integrator".to_string());
+            }
+            if !zeros_hz.is_empty() {
+                parts.push(format!("zeros {}", list(zeros_hz)));
+            }
+            if !poles_hz.is_empty() {
+                parts.push(format!("poles {}", list(poles_hz)));
+            }
+            format!("poles and zeros: {}", parts.join("; "))
+        }
+        CompensatorLaw::StateSpace { b, .. } => {
+            format!("state space, {}", plural(b.len(), "state", "states"))
+        }
+    };
+    format!(
+        "{} ({law}; measures {}, reference {}; output {}.output)",
+        k.name,
+        k.input,
+        si(k.reference, unit(&k.input)),
+        k.name
+    )
+}
+
 fn describe_gate(g: &Gate) -> String {
     match g {
         Gate::Pwm {
@@ -142,20 +189,52 @@ fn describe_gate(g: &Gate) -> String {
                 plural(transitions.len(), "transition", "transitions")
             )
         }
-        Gate::PeakCurrent { name, frequency, sense, reference, slope, .. } => format!(
-            "{name} (peak-current control of {sense} at {}, reference {reference}, compensation slope {slope}/s)",
-            si(*frequency, "Hz")
+        Gate::PeakCurrent {
+            name,
+            frequency,
+            sense,
+            reference,
+            slope,
+            ..
+        } => format!(
+            "{name} (peak-current control of {sense} at {}, reference {}, compensation slope {})",
+            si(*frequency, "Hz"),
+            si(*reference, unit(sense)),
+            si(*slope, &format!("{}/s", unit(sense))),
         ),
-        Gate::ValleyCurrent { name, frequency, sense, reference, .. } => format!(
-            "{name} (valley-current control of {sense} at {}, reference {reference})",
-            si(*frequency, "Hz")
+        Gate::ValleyCurrent {
+            name,
+            frequency,
+            sense,
+            reference,
+            ..
+        } => format!(
+            "{name} (valley-current control of {sense} at {}, reference {})",
+            si(*frequency, "Hz"),
+            si(*reference, unit(sense)),
         ),
-        Gate::Hysteretic { name, sense, low, high } => {
-            format!("{name} (hysteretic control of {sense}, between {low} and {high})")
-        }
-        Gate::VoltageMode { name, frequency, control, ramp_low, ramp_high, .. } => format!(
-            "{name} (voltage-mode pwm at {} from {control}, ramp {ramp_low} to {ramp_high})",
-            si(*frequency, "Hz")
+        Gate::Hysteretic {
+            name,
+            sense,
+            low,
+            high,
+        } => format!(
+            "{name} (hysteretic control of {sense}, between {} and {})",
+            si(*low, unit(sense)),
+            si(*high, unit(sense)),
+        ),
+        Gate::VoltageMode {
+            name,
+            frequency,
+            control,
+            ramp_low,
+            ramp_high,
+            ..
+        } => format!(
+            "{name} (voltage-mode pwm at {} from {control}, ramp {} to {})",
+            si(*frequency, "Hz"),
+            si(*ramp_low, unit(control)),
+            si(*ramp_high, unit(control)),
         ),
     }
 }
@@ -197,6 +276,15 @@ pub fn summary(path: &Path, circuit: &Circuit) -> String {
     } else {
         line("gates:", gates.join("; "));
         line("signals:", signals.join(", "));
+    }
+
+    if !circuit.compensators.is_empty() {
+        let list: Vec<String> = circuit
+            .compensators
+            .iter()
+            .map(describe_compensator)
+            .collect();
+        line("control:", list.join("; "));
     }
 
     let s = States::of(circuit);
@@ -294,5 +382,23 @@ mod tests {
              \x20 states:   2 (1 inductor current, 1 capacitor voltage)\n\
              \x20 run:      until 1 ms; outputs L1.current, out\n"
         );
+    }
+
+    /// Issue 13: thresholds and slopes carry units; compensators are
+    /// listed by name.
+    #[test]
+    fn issue_13_control_settings_have_units_and_compensators_names() {
+        let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("../../examples/circuits");
+        let c = Circuit::from_file(root.join("peak_current_buck.json")).unwrap();
+        let text = summary(Path::new("p.json"), &c);
+        assert!(text.contains("reference 4.3 A"), "{text}");
+        assert!(text.contains("compensation slope 250 kA/s"), "{text}");
+        let c = Circuit::from_file(root.join("voltage_mode_buck.json")).unwrap();
+        let text = summary(Path::new("v.json"), &c);
+        assert!(text.contains("control:  K (poles and zeros"), "{text}");
+        assert!(text.contains("reference 3.3 V"), "{text}");
+        let c = Circuit::from_file(root.join("hysteretic_buck.json")).unwrap();
+        let text = summary(Path::new("h.json"), &c);
+        assert!(text.contains("between 4.975 V and 5.025 V"), "{text}");
     }
 }

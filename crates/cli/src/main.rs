@@ -6,11 +6,13 @@
 //! and this file maps their results to exit codes. Library errors are
 //! typed; only here are they turned into text (with `anyhow`).
 //!
-//! Exit status: 0 on success; 1 when a simulation stopped on a diagnostic;
-//! 2 when the input cannot be used (a usage
-//! error, an unreadable file, text that is not a circuit in JSON, or a
-//! circuit that breaks the rules — every problem is then listed on stderr,
-//! one per line).
+//! Exit status ([`EXIT_CODES`], also in `--help` and the README): 0 on
+//! success; 1 when a simulation stopped on a diagnostic (the files are
+//! still written, up to the fault); 2 when the input cannot be used (a
+//! usage error, an unreadable file, text that is not a circuit in JSON, or
+//! a circuit that breaks the rules — every problem is then listed on
+//! stderr, one per line); 3 when an output folder or file cannot be
+//! created or written.
 
 use std::process::ExitCode;
 
@@ -20,7 +22,6 @@ use fluxstep_netlist::NetlistError;
 mod check;
 mod input;
 mod run;
-mod si;
 mod steady;
 
 /// Exit status for input that cannot be used. clap uses the same status for
@@ -31,9 +32,30 @@ const EXIT_BAD_INPUT: u8 = 2;
 /// inductor current, a shoot-through, chatter…).
 const EXIT_STOPPED: u8 = 1;
 
-/// Exact simulation of switching power converters.
+/// Exit status when an output folder or file cannot be created or written:
+/// not the input's fault, so not 2.
+const EXIT_WRITE: u8 = 3;
+
+/// The exit codes as `--help` and the README list them.
+const EXIT_CODES: &str = "Exit codes:
+  0  success
+  1  the simulation stopped on a diagnostic (files are still written, up to the fault)
+  2  invalid input: usage, unreadable file, not a circuit, or a circuit that breaks rules
+  3  an output folder or file cannot be created or written";
+
+/// Simulates switching power converters (ideal switches, diodes, R, L, C,
+/// coupled inductors) exactly, from a JSON circuit file: checks the file,
+/// runs the transient, and writes the waveform, events, measurements and a
+/// figure.
 #[derive(Debug, Parser)]
-#[command(name = "fluxstep", version, about, long_about = None)]
+#[command(
+    name = "fluxstep",
+    version,
+    about = "Exact simulation of switching power converters from a JSON circuit file: \
+             check the circuit, run it, and write waveforms, events, measurements and a figure",
+    long_about = None,
+    after_help = EXIT_CODES
+)]
 struct Cli {
     #[command(subcommand)]
     command: Command,
@@ -44,9 +66,11 @@ struct Cli {
 #[derive(Debug, Subcommand)]
 enum Command {
     /// Read and validate a circuit file and print a short summary.
+    #[command(after_help = EXIT_CODES)]
     Check(check::Args),
     /// Run the transient a circuit file describes; write waveform CSV,
     /// event log, measurement summary and figure into a folder.
+    #[command(after_help = EXIT_CODES)]
     Run(run::Args),
     /// Find the periodic steady state by shooting (Newton on the exact
     /// period map) with its Floquet multipliers; write one period as CSV,
@@ -69,6 +93,18 @@ fn main() -> ExitCode {
         {
             eprintln!("error: {err}");
             ExitCode::from(EXIT_STOPPED)
+        }
+        Err(err) if err.downcast_ref::<run::WriteFailed>().is_some() => {
+            eprintln!("error: {err}");
+            ExitCode::from(EXIT_WRITE)
+        }
+        Err(err)
+            if err
+                .downcast_ref::<fluxstep_plot::PlotError>()
+                .is_some_and(|e| matches!(e, fluxstep_plot::PlotError::Io { .. })) =>
+        {
+            eprintln!("error: {err:#}");
+            ExitCode::from(EXIT_WRITE)
         }
         Err(err) => {
             eprint!("{}", report(&err));

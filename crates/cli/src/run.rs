@@ -2,15 +2,22 @@
 //! write the design-review outputs into a folder: `waveform.csv` (time plus
 //! one column per output), `events.json`, `summary.json` (exact
 //! measurements) and `figure.svg`; print a compact summary table.
+//! docs/outputs.md describes every column and key of these files.
+//!
+//! A run that stops on a diagnostic still writes what it recorded up to the
+//! fault, with the diagnostic in the summary and as a red line on the
+//! figure, and then exits with status 1.
 
-use std::fmt::Write as _;
-use std::io::IsTerminal;
-use std::path::PathBuf;
+use std::io::{IsTerminal, Write as _};
+use std::path::{Path, PathBuf};
 
 use anyhow::Context;
-use fluxstep_plot::{review_figure, write_svg, ReviewOptions};
-use fluxstep_solver::measure::{measure, Measurement};
-use fluxstep_solver::{Options, Record, Simulator, SolverError};
+use fluxstep_netlist::{Circuit, InterruptionPolicy, OutputName, ShootThroughPolicy};
+use fluxstep_plot::{format_si_digits, format_si_short, render_svg, review_figure, ReviewOptions};
+use fluxstep_solver::measure::{measure, without_rounding_noise, Measurement};
+use fluxstep_solver::{
+    OnInterruption, OnShootThrough, Options, Record, RunResult, Simulator, SolverError,
+};
 
 /// Arguments of `fluxstep run`.
 #[derive(Debug, clap::Args)]
@@ -18,21 +25,59 @@ pub struct Args {
     /// The circuit file (JSON, see docs/netlist.md).
     pub file: PathBuf,
     /// Stop time in seconds, SI prefixes allowed ("5m"); default: the file's `run.stop_time`.
-    #[arg(long)]
+    #[arg(long, value_name = "SECONDS")]
     pub stop: Option<String>,
-    /// Start of the recorded window ("4.9m"); default: the file's
-    /// `run.record_from`, else the last 5 switching periods.
-    #[arg(long)]
+    /// Start of the recorded window in seconds, SI prefixes allowed ("4.9m");
+    /// default: the file's `run.record_from`, else the last 5 switching periods.
+    #[arg(long, value_name = "SECONDS")]
     pub from: Option<String>,
-    /// Outputs, comma-separated (`L1.current,sw,out`); default: the file's `run.outputs`.
-    #[arg(long, value_delimiter = ',')]
+    /// Outputs to record, comma-separated (`L1.current,sw,out`); default: the file's `run.outputs`.
+    #[arg(long, value_delimiter = ',', value_name = "NAMES")]
     pub outputs: Vec<String>,
-    /// Output folder; default `out/<file stem>`.
-    #[arg(long)]
-    pub out: Option<PathBuf>,
+    /// Folder the four files are written into; default `out/<file stem>`.
+    #[arg(long, value_name = "FOLDER")]
+    pub dir: Option<PathBuf>,
     /// Points of the uniform grid in the CSV (event instants are always added).
-    #[arg(long, default_value_t = 2000)]
+    #[arg(long, default_value_t = 2000, value_name = "POINTS")]
     pub grid: usize,
+    /// When a switch or diode leaves inductor current with no path: stop
+    /// (default) or go on with the flux-conserving jump; default: the
+    /// file's `run.on_interruption`.
+    #[arg(long, value_enum, value_name = "POLICY")]
+    pub on_interruption: Option<Interruption>,
+    /// When closed switches short a source or capacitor through their
+    /// on-resistance: stop (default) or record the event and go on;
+    /// default: the file's `run.on_shoot_through`.
+    #[arg(long, value_enum, value_name = "POLICY")]
+    pub on_shoot_through: Option<ShootThrough>,
+    /// Instants in seconds, SI prefixes allowed ("4.9525m,4.955m"), around
+    /// which the figure adds a narrow zoom column (a dead time, a diode
+    /// turn-off).
+    #[arg(long, value_delimiter = ',', value_name = "SECONDS")]
+    pub zoom: Vec<String>,
+    /// Width of each zoom column's window in seconds ("200n"); default: a
+    /// fiftieth of the switching period.
+    #[arg(long, value_name = "SECONDS")]
+    pub zoom_span: Option<String>,
+}
+
+/// `--on-interruption`, spelled as in the circuit file.
+#[derive(Clone, Copy, Debug, clap::ValueEnum)]
+pub enum Interruption {
+    /// Stop with a diagnostic.
+    Stop,
+    /// Go on with the flux-conserving jump and log the energy lost.
+    #[value(name = "conserve_flux")]
+    ConserveFlux,
+}
+
+/// `--on-shoot-through`, spelled as in the circuit file.
+#[derive(Clone, Copy, Debug, clap::ValueEnum)]
+pub enum ShootThrough {
+    /// Stop with a diagnostic.
+    Stop,
+    /// Log a shoot-through event and go on.
+    Record,
 }
 
 /// The simulation stopped on a diagnostic (exit status 1).
@@ -47,60 +92,129 @@ impl std::fmt::Display for Stopped {
 
 impl std::error::Error for Stopped {}
 
+/// An output folder or file could not be created or written (exit status 3).
+#[derive(Debug)]
+pub struct WriteFailed {
+    /// The folder or file.
+    pub path: PathBuf,
+    /// The cause.
+    pub source: std::io::Error,
+}
+
+impl std::fmt::Display for WriteFailed {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(f, "cannot write {}: {}", self.path.display(), self.source)
+    }
+}
+
+impl std::error::Error for WriteFailed {
+    fn source(&self) -> Option<&(dyn std::error::Error + 'static)> {
+        Some(&self.source)
+    }
+}
+
+pub(crate) fn write_failed(path: &Path) -> impl FnOnce(std::io::Error) -> anyhow::Error + '_ {
+    move |source| {
+        anyhow::Error::new(WriteFailed {
+            path: path.to_path_buf(),
+            source,
+        })
+    }
+}
+
 fn si_arg(text: &str, what: &str) -> anyhow::Result<f64> {
     fluxstep_netlist::parse_si(text).with_context(|| format!("--{what}"))
 }
 
-/// Runs the file's transient and writes the four files.
-///
-/// # Errors
-///
-/// Bad input (file, flags, output names): an ordinary error (exit 2). A
-/// simulation diagnostic: [`Stopped`] (exit 1).
-pub fn run(args: &Args) -> anyhow::Result<()> {
-    let circuit = crate::input::read_circuit(&args.file)?;
-    let cfg = circuit.run.clone();
-    let stop = match (&args.stop, &cfg) {
+/// Everything a run needs, settled from the file and the flags.
+struct Plan {
+    stop: f64,
+    from: f64,
+    outputs: Vec<String>,
+    on_interruption: OnInterruption,
+    on_shoot_through: OnShootThrough,
+    period: Option<f64>,
+}
+
+fn plan(args: &Args, circuit: &Circuit) -> anyhow::Result<Plan> {
+    let cfg = circuit.run.as_ref();
+    let stop = match (&args.stop, cfg) {
         (Some(s), _) => si_arg(s, "stop")?,
         (None, Some(c)) => c.stop_time,
         (None, None) => anyhow::bail!("no stop time: give --stop or a run.stop_time in the file"),
     };
     if stop.is_nan() || stop <= 0.0 {
-        anyhow::bail!("--stop must be positive, got {stop}");
+        anyhow::bail!("--stop must be positive, got {stop} s");
     }
-    let mut outputs: Vec<String> = if args.outputs.is_empty() {
-        cfg.as_ref().map(|c| c.outputs.clone()).unwrap_or_default()
+    let outputs: Vec<String> = if args.outputs.is_empty() {
+        cfg.map(|c| c.outputs.clone()).unwrap_or_default()
     } else {
         args.outputs.clone()
     };
     let period = circuit.signals().iter().find_map(|(_, s)| s.period);
-    let from = match (&args.from, cfg.as_ref().and_then(|c| c.record_from)) {
+    let from = match (&args.from, cfg.and_then(|c| c.record_from)) {
         (Some(s), _) => si_arg(s, "from")?,
         (None, Some(f)) => f,
         (None, None) => period.map(|p| (stop - 5.0 * p).max(0.0)).unwrap_or(0.0),
     };
     if from.is_nan() || from < 0.0 || from >= stop {
         anyhow::bail!(
-            "the recorded window must start in [0, stop): --from {from} with stop {stop}"
+            "the recorded window must start in [0, stop): --from {} with stop {}",
+            format_si_short(from, "s"),
+            format_si_short(stop, "s")
         );
     }
+    let on_interruption = match (args.on_interruption, cfg.map(|c| c.on_interruption)) {
+        (Some(Interruption::ConserveFlux), _) | (None, Some(InterruptionPolicy::ConserveFlux)) => {
+            OnInterruption::ConserveFlux
+        }
+        _ => OnInterruption::Stop,
+    };
+    let on_shoot_through = match (args.on_shoot_through, cfg.map(|c| c.on_shoot_through)) {
+        (Some(ShootThrough::Record), _) | (None, Some(ShootThroughPolicy::Record)) => {
+            OnShootThrough::Record
+        }
+        _ => OnShootThrough::Stop,
+    };
+    Ok(Plan {
+        stop,
+        from,
+        outputs,
+        on_interruption,
+        on_shoot_through,
+        period,
+    })
+}
+
+/// Runs `circuit` to `plan.stop` recording [from, stop]; a diagnostic ends
+/// the run early and is returned beside what was recorded.
+fn simulate(
+    circuit: &Circuit,
+    plan: &Plan,
+    from: f64,
+    progress: bool,
+) -> anyhow::Result<(RunResult, Option<SolverError>)> {
     let opts = Options {
-        record: Record::Window { from, to: stop },
+        record: Record::Window {
+            from,
+            to: plan.stop,
+        },
+        on_interruption: plan.on_interruption,
+        on_shoot_through: plan.on_shoot_through,
         ..Options::default()
     };
-    let mut sim = Simulator::new(&circuit, opts).map_err(|e| anyhow::Error::new(Stopped(e)))?;
-    if outputs.is_empty() {
-        outputs = default_outputs(&circuit);
-    }
-    for o in &outputs {
+    let mut sim = Simulator::new(circuit, opts).map_err(|e| anyhow::Error::new(Stopped(e)))?;
+    for o in &plan.outputs {
         if sim.waveform().output(o).is_none() {
             anyhow::bail!(
-                "unknown output {o:?}: expected a node name, ELEMENT.current or ELEMENT.voltage"
+                "unknown output {o:?}: an output is {}; this circuit has {}",
+                fluxstep_netlist::OUTPUT_FORMS,
+                sim.waveform().output_names().join(", ")
             );
         }
     }
     // Advance in slices so that a long run can show progress on a terminal.
-    let bar = std::io::stderr().is_terminal().then(|| {
+    let bar = progress.then(|| {
         let b = indicatif::ProgressBar::new(100);
         b.set_style(
             indicatif::ProgressStyle::with_template("{bar:40} {percent:>3}% simulated")
@@ -108,14 +222,17 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
         );
         b
     });
+    let mut stopped = None;
     for k in 1..=100u32 {
         let t = if k == 100 {
-            stop
+            plan.stop
         } else {
-            stop * f64::from(k) / 100.0
+            plan.stop * f64::from(k) / 100.0
         };
-        sim.advance_to(t)
-            .map_err(|e| anyhow::Error::new(Stopped(e)))?;
+        if let Err(e) = sim.advance_to(t) {
+            stopped = Some(e);
+            break;
+        }
         if let Some(b) = &bar {
             b.set_position(u64::from(k));
         }
@@ -123,9 +240,36 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
     if let Some(b) = bar {
         b.finish_and_clear();
     }
-    let result = sim.finish();
-    let w = &result.waveform;
-    let dir = args.out.clone().unwrap_or_else(|| {
+    Ok((sim.finish(), stopped))
+}
+
+/// Runs the file's transient and writes the four files.
+///
+/// # Errors
+///
+/// Bad input (file, flags, output names): an ordinary error (exit 2). A
+/// simulation diagnostic: [`Stopped`] (exit 1), after the files are
+/// written. A folder or file that cannot be written: [`WriteFailed`] (exit 3).
+pub fn run(args: &Args) -> anyhow::Result<()> {
+    let circuit = crate::input::read_circuit(&args.file)?;
+    let mut plan = plan(args, &circuit)?;
+    if plan.outputs.is_empty() {
+        plan.outputs = default_outputs(&circuit);
+    }
+    let zoom = args
+        .zoom
+        .iter()
+        .map(|z| si_arg(z, "zoom"))
+        .collect::<anyhow::Result<Vec<f64>>>()?;
+    let zoom_span = args
+        .zoom_span
+        .as_deref()
+        .map(|z| si_arg(z, "zoom-span"))
+        .transpose()?;
+    if zoom_span.is_some_and(|s| !(s > 0.0 && s.is_finite())) {
+        anyhow::bail!("--zoom-span must be positive");
+    }
+    let dir = args.dir.clone().unwrap_or_else(|| {
         let stem = args
             .file
             .file_stem()
@@ -133,58 +277,76 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
             .unwrap_or_else(|| "run".into());
         PathBuf::from("out").join(stem)
     });
-    std::fs::create_dir_all(&dir).with_context(|| format!("cannot create {}", dir.display()))?;
-    let ids: Vec<_> = outputs
+    std::fs::create_dir_all(&dir).map_err(write_failed(&dir))?;
+
+    let progress = std::io::stderr().is_terminal();
+    let (mut result, mut stopped) = simulate(&circuit, &plan, plan.from, progress)?;
+    if let Some(e) = &stopped {
+        // A fault before the recorded window leaves nothing to show: run
+        // again (the run is deterministic, so it stops at the same
+        // instant) recording a window of the same length up to the fault.
+        let fault = e.time().unwrap_or(plan.from);
+        if result.waveform.span().is_none() && fault > 0.0 {
+            let from = (fault - (plan.stop - plan.from)).max(0.0);
+            (result, stopped) = simulate(&circuit, &plan, from, false)?;
+        }
+    }
+    let w = &result.waveform;
+    let Some((a, b)) = w.span() else {
+        return match stopped {
+            Some(e) => Err(anyhow::Error::new(Stopped(e))),
+            None => anyhow::bail!("nothing was recorded"),
+        };
+    };
+    let ids: Vec<_> = plan
+        .outputs
         .iter()
-        .map(|o| w.output(o).expect("checked above"))
+        .map(|o| w.output(o).expect("checked by simulate"))
         .collect();
 
-    // Waveform CSV: event instants plus a uniform grid.
-    let (a, b) = w.span().context("nothing was recorded")?;
+    // Waveform CSV: event instants plus a uniform grid, written row by row.
     let mut times = w.event_times(a, b);
     let n = args.grid.max(2);
     times.extend((0..n).map(|k| a + (b - a) * k as f64 / (n - 1) as f64));
     times.sort_by(f64::total_cmp);
     times.dedup();
-    let mut csv = String::from("time");
-    for o in &outputs {
-        write!(csv, ",{o}").expect("writing to a string");
-    }
-    csv.push('\n');
-    for t in &times {
-        write!(csv, "{t:e}").expect("writing to a string");
-        for id in &ids {
-            match w.value(*id, *t) {
-                Some(v) => write!(csv, ",{v:e}").expect("writing to a string"),
-                None => csv.push(','),
-            }
-        }
-        csv.push('\n');
-    }
-    std::fs::write(dir.join("waveform.csv"), csv).context("cannot write waveform.csv")?;
-    std::fs::write(dir.join("events.json"), result.events.to_json())
-        .context("cannot write events.json")?;
+    let csv_path = dir.join("waveform.csv");
+    write_csv(&csv_path, &plan.outputs, &times, |t, out| {
+        out.extend(ids.iter().map(|id| w.value(*id, t)));
+    })?;
+    let events_path = dir.join("events.json");
+    std::fs::write(&events_path, result.events.to_json()).map_err(write_failed(&events_path))?;
 
     // Summary: exact measurements over the recorded window.
-    let mut measurements: Vec<Measurement> = vec![];
-    for id in &ids {
-        if let Ok(m) = measure(w, *id, a, b) {
-            measurements.push(m);
-        }
-    }
-    let summary = serde_json::json!({
+    let measurements: Vec<Measurement> = ids
+        .iter()
+        .filter_map(|id| measure(w, *id, a, b).ok())
+        .collect();
+    let unit = |name: &str| OutputName::parse(name).map(|o| o.unit()).unwrap_or("");
+    let mut summary = serde_json::json!({
         "file": args.file.display().to_string(),
-        "stop_time": stop,
+        "stop_time": plan.stop,
         "window": [a, b],
         "events": result.events.len(),
         "modes": result.stats.modes,
-        "measurements": measurements,
+        "measurements": measurements.iter().map(|m| {
+            let mut v = serde_json::to_value(m).expect("a measurement serializes");
+            v["unit"] = unit(&m.output).into();
+            v
+        }).collect::<Vec<_>>(),
     });
+    if let Some(e) = &stopped {
+        summary["stopped"] = serde_json::json!({
+            "time": e.time(),
+            "diagnostic": e.to_string(),
+        });
+    }
+    let summary_path = dir.join("summary.json");
     std::fs::write(
-        dir.join("summary.json"),
+        &summary_path,
         serde_json::to_string_pretty(&summary)? + "\n",
     )
-    .context("cannot write summary.json")?;
+    .map_err(write_failed(&summary_path))?;
 
     let title = args
         .file
@@ -196,46 +358,169 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
         w,
         Some(&result.events),
         &ReviewOptions {
-            outputs: outputs.clone(),
+            outputs: plan.outputs.clone(),
+            period: plan.period,
+            zoom,
+            zoom_span,
+            stopped: stopped
+                .as_ref()
+                .map(|e| (e.time().unwrap_or(b), format!("stopped: {}", short(e)))),
             ..ReviewOptions::default()
         },
     )?;
-    write_svg(&fig, dir.join("figure.svg"))?;
+    let svg = render_svg(&fig)?;
+    let figure_path = dir.join("figure.svg");
+    std::fs::write(&figure_path, svg).map_err(write_failed(&figure_path))?;
 
-    println!(
-        "{}: {:.4e} s simulated, window {:.4e} … {:.4e} s, {} events",
-        title,
-        stop,
-        a,
-        b,
-        result.events.len()
+    print!(
+        "{}",
+        table(
+            &title,
+            plan.stop,
+            (a, b),
+            result.events.len(),
+            &plan.outputs,
+            &measurements
+        )
     );
-    println!(
-        "  {:<26} {:>12} {:>12} {:>12} {:>12} {:>12}",
-        "output", "average", "rms", "min", "max", "peak-peak"
-    );
-    for (o, id) in outputs.iter().zip(&ids) {
-        match measurements
-            .iter()
-            .find(|m| m.output == *o || w.output(&m.output) == Some(*id))
-        {
-            Some(m) => println!(
-                "  {:<26} {:>12.5e} {:>12.5e} {:>12.5e} {:>12.5e} {:>12.5e}",
-                o, m.average, m.rms, m.min, m.max, m.peak_to_peak
-            ),
-            None => println!("  {o:<26} (undetermined in part of the window)"),
-        }
-    }
     println!(
         "  written: {}/{{waveform.csv, events.json, summary.json, figure.svg}}",
         dir.display()
     );
+    match stopped {
+        Some(e) => Err(anyhow::Error::new(Stopped(e))),
+        None => Ok(()),
+    }
+}
+
+/// The kind of a diagnostic in a few words, for the figure.
+fn short(e: &SolverError) -> &'static str {
+    match e {
+        SolverError::InductorInterrupted { .. } => "inductor current interrupted",
+        SolverError::ShortCircuit { .. } => "short circuit",
+        SolverError::CurrentSourceOpen { .. } => "current source open",
+        SolverError::NoConsistentPattern { .. } => "no consistent diode pattern",
+        SolverError::Chatter { .. } => "chatter",
+        SolverError::EventLimit { .. } => "event limit",
+        SolverError::NonFinite { .. } => "value not finite",
+        _ => "diagnostic",
+    }
+}
+
+/// Writes the waveform CSV row by row through a buffered writer: the file
+/// is never held in memory as a whole. `row` appends the output values at
+/// a time (`None`: undetermined there, written as an empty cell).
+pub(crate) fn write_csv(
+    path: &Path,
+    outputs: &[String],
+    times: &[f64],
+    mut row: impl FnMut(f64, &mut Vec<Option<f64>>),
+) -> anyhow::Result<()> {
+    let file = std::fs::File::create(path).map_err(write_failed(path))?;
+    let mut csv = csv::Writer::from_writer(std::io::BufWriter::new(file));
+    let io = |e: csv::Error| match e.into_kind() {
+        csv::ErrorKind::Io(source) => anyhow::Error::new(WriteFailed {
+            path: path.to_path_buf(),
+            source,
+        }),
+        other => anyhow::anyhow!("{}: {other:?}", path.display()),
+    };
+    csv.write_field("time").map_err(io)?;
+    for o in outputs {
+        csv.write_field(o).map_err(io)?;
+    }
+    csv.write_record(None::<&[u8]>).map_err(io)?;
+    let mut values = Vec::with_capacity(outputs.len());
+    let mut cell = String::new();
+    for &t in times {
+        values.clear();
+        row(t, &mut values);
+        cell.clear();
+        std::fmt::Write::write_fmt(&mut cell, format_args!("{t:e}")).expect("to a String");
+        csv.write_field(&cell).map_err(io)?;
+        for v in &values {
+            cell.clear();
+            if let Some(v) = v {
+                std::fmt::Write::write_fmt(&mut cell, format_args!("{v:e}")).expect("to a String");
+            }
+            csv.write_field(&cell).map_err(io)?;
+        }
+        csv.write_record(None::<&[u8]>).map_err(io)?;
+    }
+    let mut inner = csv.into_inner().map_err(|e| {
+        anyhow::Error::new(WriteFailed {
+            path: path.to_path_buf(),
+            source: std::io::Error::other(e.to_string()),
+        })
+    })?;
+    inner.flush().map_err(write_failed(path))?;
     Ok(())
+}
+
+/// The summary printed on stdout: what was simulated, then one row per
+/// output with units and SI prefixes; values below the run's rounding
+/// floor are shown as 0 (the JSON keeps the raw numbers).
+pub fn table(
+    title: &str,
+    stop: f64,
+    (a, b): (f64, f64),
+    events: usize,
+    outputs: &[String],
+    measurements: &[Measurement],
+) -> String {
+    let mut out = format!(
+        "{title}: {} simulated, window {} … {}, {events} event{}\n",
+        format_si_digits(stop, "s", 4),
+        format_si_digits(a, "s", 6),
+        format_si_digits(b, "s", 6),
+        if events == 1 { "" } else { "s" },
+    );
+    out.push_str(&measurement_rows(outputs, measurements, "window"));
+    out
+}
+
+/// One row per output with units and SI prefixes, under a heading; values
+/// below the rounding floor shown as 0. `span` names what the numbers
+/// cover ("window", "period").
+pub(crate) fn measurement_rows(
+    outputs: &[String],
+    measurements: &[Measurement],
+    span: &str,
+) -> String {
+    let mut out = String::new();
+    out.push_str(&format!(
+        "  {:<26} {:>11} {:>11} {:>11} {:>11} {:>11}\n",
+        "output", "average", "rms", "min", "max", "peak-peak"
+    ));
+    let shown = without_rounding_noise(measurements);
+    for o in outputs {
+        let key = OutputName::parse(o).ok();
+        let unit = key.as_ref().map(|k| k.unit()).unwrap_or("");
+        let found = shown
+            .iter()
+            .find(|m| m.output == *o || OutputName::parse(&m.output).ok() == key);
+        match found {
+            Some(m) => {
+                let f = |v: f64| format_si_digits(v, unit, 4);
+                out.push_str(&format!(
+                    "  {:<26} {:>11} {:>11} {:>11} {:>11} {:>11}\n",
+                    o,
+                    f(m.average),
+                    f(m.rms),
+                    f(m.min),
+                    f(m.max),
+                    f(m.peak_to_peak)
+                ));
+            }
+            None => out.push_str(&format!("  {o:<26} (undetermined in part of the {span})\n")),
+        }
+    }
+    out
 }
 
 /// Without a list: the first inductor current, node `sw` and node `out`
 /// where they exist.
-pub(crate) fn default_outputs(c: &fluxstep_netlist::Circuit) -> Vec<String> {
+pub(crate) fn default_outputs(c: &Circuit) -> Vec<String> {
     let mut v = vec![];
     if let Some(l) = c
         .elements
@@ -253,4 +538,52 @@ pub(crate) fn default_outputs(c: &fluxstep_netlist::Circuit) -> Vec<String> {
         v.push(c.nodes().get(1).cloned().unwrap_or_else(|| "gnd".into()));
     }
     v
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn m(output: &str, average: f64, rms: f64, min: f64, max: f64) -> Measurement {
+        Measurement {
+            output: output.into(),
+            t0: 0.0,
+            t1: 1.0,
+            average,
+            rms,
+            min,
+            max,
+            peak_to_peak: max - min,
+            time_of_min: 0.0,
+            time_of_max: 0.0,
+        }
+    }
+
+    /// Issue 13: units and SI prefixes in the table, rounding noise as 0.
+    #[test]
+    fn issue_13_the_table_prints_units_and_hides_rounding_noise() {
+        let text = table(
+            "buck",
+            5e-3,
+            (4.95e-3, 5e-3),
+            42,
+            &["L1.current".into(), "out".into(), "K.output".into()],
+            &[
+                m("L1.current", 1.99972, 2.03815, -8.65e-12, 2.68202),
+                m("out", 11.9999, 11.9999, 11.9907, 12.0091),
+                m("K.output", 0.270143, 0.270719, 0.238883, 0.407923),
+            ],
+        );
+        assert!(
+            text.contains("5.000 ms simulated, window 4.95000 ms … 5.00000 ms, 42 events"),
+            "{text}"
+        );
+        assert!(text.contains("2.000 A"), "{text}");
+        assert!(text.contains("2.682 A"), "{text}");
+        assert!(text.contains(" 0 A "), "{text}");
+        assert!(!text.contains("e-12"), "{text}");
+        assert!(text.contains("18.40 mV"), "{text}");
+        assert!(text.contains("270.1 m"), "{text}");
+        assert!(!text.contains("e0"), "{text}");
+    }
 }

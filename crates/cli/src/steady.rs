@@ -12,7 +12,9 @@ use fluxstep_analysis::AnalysisError;
 use fluxstep_plot::{review_figure, write_svg, ReviewOptions};
 
 use crate::run::Stopped;
-use crate::si::si;
+use fluxstep_plot::{format_si_digits, format_si_short};
+
+use crate::run::{measurement_rows, write_csv, write_failed};
 
 /// Arguments of `fluxstep steady`.
 #[derive(Debug, clap::Args)]
@@ -44,16 +46,20 @@ pub struct Args {
     pub grid: usize,
 }
 
-/// The unit of an output or state by its name: currents in A, voltages
-/// (nodes, `.voltage`) in V; compensator quantities have none.
-pub fn unit_of(name: &str) -> &'static str {
+/// The unit of a state by its name (`L1.current` in A, `C1.voltage` in V;
+/// oscillator and compensator states have none).
+fn state_unit(name: &str) -> &'static str {
     if name.ends_with(".current") {
         "A"
-    } else if name.ends_with(".voltage") || !name.contains('.') {
+    } else if name.ends_with(".voltage") {
         "V"
     } else {
         ""
     }
+}
+
+fn si(value: f64, unit: &str) -> String {
+    format_si_digits(value, unit, 4)
 }
 
 fn words(r: Reading) -> &'static str {
@@ -130,27 +136,13 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
     times.extend((0..n).map(|k| a + (b - a) * k as f64 / (n - 1) as f64));
     times.sort_by(f64::total_cmp);
     times.dedup();
-    let mut csv = String::from("time");
-    for o in &outputs {
-        csv.push(',');
-        csv.push_str(o);
-    }
-    csv.push('\n');
-    for t in &times {
-        csv.push_str(&format!("{t:e}"));
-        for id in &ids {
-            csv.push(',');
-            if let Some(v) = w.value(*id, *t) {
-                csv.push_str(&format!("{v:e}"));
-            }
-        }
-        csv.push('\n');
-    }
+    write_csv(&dir.join("waveform.csv"), &outputs, &times, |t, row| {
+        row.extend(ids.iter().map(|id| w.value(*id, t)));
+    })?;
     let write = |name: &str, text: String| {
-        std::fs::write(dir.join(name), text)
-            .with_context(|| format!("cannot write {}", dir.join(name).display()))
+        let path = dir.join(name);
+        std::fs::write(&path, text).map_err(write_failed(&path))
     };
-    write("waveform.csv", csv)?;
     // The events of the first period only.
     let events: Vec<_> = ss
         .run
@@ -196,36 +188,30 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
 
     println!(
         "{stem}: periodic steady state, period {} ({}), found in {} Newton steps, residual {:.1e}",
-        si(ss.period, "s"),
-        si(1.0 / ss.period, "Hz"),
+        format_si_short(ss.period, "s"),
+        format_si_short(1.0 / ss.period, "Hz"),
         ss.newton_steps(),
         ss.residual
     );
     println!("  state at period start:");
+    // The same rounding floor as the table: a located zero of 1e-17 A is 0.
+    let top = |unit: &str| {
+        ss.state_names
+            .iter()
+            .zip(&ss.state)
+            .filter(|(n, _)| state_unit(n) == unit)
+            .fold(0.0f64, |m, (_, v)| m.max(v.abs()))
+    };
     for (n, v) in ss.state_names.iter().zip(&ss.state) {
-        println!("    {n:<24} {:>12}", si(*v, unit_of(n)));
+        let unit = state_unit(n);
+        let shown = if v.abs() <= fluxstep_solver::measure::ROUNDING_REL * top(unit) {
+            0.0
+        } else {
+            *v
+        };
+        println!("    {n:<24} {:>12}", si(shown, unit));
     }
-    println!(
-        "  {:<24} {:>12} {:>12} {:>12} {:>12} {:>12}",
-        "output", "average", "rms", "min", "max", "peak-peak"
-    );
-    for o in &outputs {
-        match measurements.iter().find(|m| m.output == *o) {
-            Some(m) => {
-                let u = unit_of(o);
-                println!(
-                    "  {:<24} {:>12} {:>12} {:>12} {:>12} {:>12}",
-                    o,
-                    si(m.average, u),
-                    si(m.rms, u),
-                    si(m.min, u),
-                    si(m.max, u),
-                    si(m.peak_to_peak, u)
-                );
-            }
-            None => println!("  {o:<24} (undetermined in part of the period)"),
-        }
-    }
+    print!("{}", measurement_rows(&outputs, &measurements, "period"));
     println!(
         "  stability: {}",
         if ss.is_stable() { "stable" } else { "UNSTABLE" }

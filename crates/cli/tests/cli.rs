@@ -168,3 +168,83 @@ fn usage() {
     assert_eq!(out.status.code(), Some(0));
     assert!(text(&out.stdout).contains("check"));
 }
+
+/// Issue 13: `--help` says what the tool does and lists every exit code;
+/// the folder option is `--dir` (not `--out`, too close to `--outputs`);
+/// `--from` says it takes seconds with SI prefixes.
+#[test]
+fn issue_13_help_describes_the_tool_and_its_exit_codes() {
+    let help = text(&fluxstep(&["--help"]).stdout);
+    assert!(
+        help.lines()
+            .next()
+            .unwrap()
+            .contains("simulation of switching power converters"),
+        "{help}"
+    );
+    for code in [
+        "0  success",
+        "1  the simulation stopped",
+        "2  invalid input",
+        "3  an output folder",
+    ] {
+        assert!(help.contains(code), "{code}: {help}");
+    }
+    let run = text(&fluxstep(&["run", "--help"]).stdout);
+    assert!(
+        run.contains("--dir <FOLDER>") && !run.contains("--out "),
+        "{run}"
+    );
+    assert!(run.contains("3  an output folder"), "{run}");
+    let from = run.split("--from").nth(1).unwrap();
+    assert!(from.contains("seconds, SI prefixes allowed"), "{run}");
+    let old = fluxstep(&["run", "x.json", "--out", "y"]);
+    assert_eq!(old.status.code(), Some(2));
+}
+
+/// Issue 13: README lists the same exit codes as `--help`.
+#[test]
+fn issue_13_readme_lists_the_exit_codes() {
+    let readme =
+        std::fs::read_to_string(Path::new(env!("CARGO_MANIFEST_DIR")).join("../../README.md"))
+            .unwrap();
+    for code in [
+        "0  success",
+        "1  the simulation stopped",
+        "2  invalid input",
+        "3  an output folder",
+    ] {
+        assert!(readme.contains(code), "{code}");
+    }
+    assert!(readme.contains("docs/outputs.md"));
+    assert!(!readme.contains("--out "));
+}
+
+/// Issue 13: examples whose energy can hurt carry a caution that defers
+/// to local electrical codes and qualified review; descriptions match what
+/// ideal parts do (no ring-down without a capacitance to ring with).
+#[test]
+fn issue_13_example_descriptions_carry_cautions_and_match_results() {
+    let description = |name: &str| {
+        let text = std::fs::read_to_string(examples_dir().join(format!("{name}.json"))).unwrap();
+        let v: serde_json::Value = serde_json::from_str(&text).unwrap();
+        v["description"].as_str().unwrap().to_string()
+    };
+    for name in ["flyback", "rectifier", "interrupted_inductor"] {
+        let d = description(name);
+        assert!(d.contains("Caution"), "{name}: {d}");
+        assert!(
+            d.contains("local electrical codes") && d.contains("qualified review"),
+            "{name}"
+        );
+    }
+    assert!(description("flyback").contains("147 V"));
+    assert!(
+        description("rectifier").contains("mains") && description("rectifier").contains("4.7 mF")
+    );
+    let dcm = description("buck_dcm");
+    assert!(
+        !dcm.contains("rings down") && dcm.contains("steps"),
+        "{dcm}"
+    );
+}

@@ -29,7 +29,7 @@ fn every_example_circuit_runs_and_writes_its_files() {
         let o = fluxstep(&[
             "run",
             path.to_str().unwrap(),
-            "--out",
+            "--dir",
             out.to_str().unwrap(),
             "--grid",
             "200",
@@ -86,7 +86,7 @@ fn interrupted_inductor_exits_1_with_the_diagnostic() {
     let o = fluxstep(&[
         "run",
         "examples/circuits/interrupted_inductor.json",
-        "--out",
+        "--dir",
         dir.to_str().unwrap(),
     ]);
     assert_eq!(o.status.code(), Some(1));
@@ -111,10 +111,251 @@ fn malformed_input_exits_2() {
         "examples/circuits/buck.json",
         "--outputs",
         "nosuch.current",
-        "--out",
+        "--dir",
         dir.to_str().unwrap(),
     ]);
     assert_eq!(o.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&o.stderr).contains("nosuch.current"));
     let _ = std::fs::remove_dir_all(dir);
+}
+
+fn scratch_dir(what: &str) -> PathBuf {
+    let dir = std::env::temp_dir().join(format!("fluxstep-{what}-{}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&dir);
+    dir
+}
+
+/// Issue 13: a run that stops on a diagnostic still writes the waveform,
+/// events, figure and summary up to the fault; the exit status stays 1.
+#[test]
+fn issue_13_a_stopped_run_writes_its_files() {
+    let dir = scratch_dir("stopped");
+    let o = fluxstep(&[
+        "run",
+        "examples/circuits/interrupted_inductor.json",
+        "--dir",
+        dir.to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(1));
+    let summary: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("summary.json")).unwrap()).unwrap();
+    assert_eq!(summary["stopped"]["time"].as_f64(), Some(50e-6));
+    assert!(summary["stopped"]["diagnostic"]
+        .as_str()
+        .unwrap()
+        .contains("inductor current interrupted"));
+    assert_eq!(summary["window"][1].as_f64(), Some(50e-6));
+    let csv = std::fs::read_to_string(dir.join("waveform.csv")).unwrap();
+    assert!(csv.lines().count() > 100);
+    let svg = std::fs::read_to_string(dir.join("figure.svg")).unwrap();
+    assert!(svg.contains("stopped: inductor current interrupted"));
+    assert!(std::fs::read_to_string(dir.join("events.json"))
+        .unwrap()
+        .contains("switch_off"));
+    let _ = std::fs::remove_dir_all(dir);
+}
+
+/// Issue 13: the flux-conserving jump the diagnostic suggests is reachable
+/// from the command line (and from the file's run settings).
+#[test]
+fn issue_13_on_interruption_from_the_command_line() {
+    let dir = scratch_dir("conserve");
+    let o = fluxstep(&[
+        "run",
+        "examples/circuits/interrupted_inductor.json",
+        "--dir",
+        dir.to_str().unwrap(),
+        "--on-interruption",
+        "conserve_flux",
+    ]);
+    assert_eq!(
+        o.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    let events = std::fs::read_to_string(dir.join("events.json")).unwrap();
+    assert!(
+        events.contains("flux_jump") && events.contains("energy"),
+        "{events}"
+    );
+    let _ = std::fs::remove_dir_all(dir);
+}
+
+/// Issue 13: a folder that cannot be created is not invalid input: exit 3.
+#[test]
+fn issue_13_an_unwritable_folder_exits_3() {
+    let o = fluxstep(&[
+        "run",
+        "examples/circuits/buck.json",
+        "--dir",
+        "/dev/null/cannot-be-a-folder",
+    ]);
+    assert_eq!(o.status.code(), Some(3));
+    assert!(
+        String::from_utf8_lossy(&o.stderr).contains("cannot write /dev/null/cannot-be-a-folder")
+    );
+}
+
+/// Issue 13: the summary table has units and SI prefixes, and rounding
+/// noise shows as 0. Expected values: buck.json's own description (2 A
+/// average inductor current, 24 V switch node) — common practice.
+#[test]
+fn issue_13_summary_table_has_units() {
+    let dir = scratch_dir("table");
+    let o = fluxstep(&[
+        "run",
+        "examples/circuits/buck.json",
+        "--dir",
+        dir.to_str().unwrap(),
+        "--grid",
+        "50",
+    ]);
+    assert!(o.status.success());
+    let out = String::from_utf8_lossy(&o.stdout);
+    assert!(out.contains("5.000 ms simulated"), "{out}");
+    let row = |name: &str| {
+        out.lines()
+            .find(|l| l.trim_start().starts_with(&format!("{name} ")))
+            .unwrap()
+            .to_string()
+    };
+    assert!(row("L1.current").contains("2.000 A"), "{out}");
+    assert!(row("sw").contains("24.00 V"), "{out}");
+    assert!(row("out").contains(" mV"), "{out}");
+    let table: Vec<&str> = out.lines().filter(|l| !l.contains("written:")).collect();
+    assert!(
+        table.iter().all(|l| !l.contains("e-") && !l.contains("e0")),
+        "{out}"
+    );
+    let flyback = fluxstep(&[
+        "run",
+        "examples/circuits/flyback.json",
+        "--dir",
+        dir.to_str().unwrap(),
+        "--grid",
+        "50",
+    ]);
+    let out = String::from_utf8_lossy(&flyback.stdout);
+    // The primary current touches zero; rounding leaves -8.65e-12 A.
+    assert!(
+        out.lines()
+            .any(|l| l.contains("T1.pri.current") && l.contains(" 0 A ")),
+        "{out}"
+    );
+    let _ = std::fs::remove_dir_all(dir);
+}
+
+/// Issue 13: an unknown output lists every output form and this
+/// circuit's outputs.
+#[test]
+fn issue_13_unknown_output_lists_the_forms() {
+    let dir = scratch_dir("unknown");
+    let o = fluxstep(&[
+        "run",
+        "examples/circuits/buck.json",
+        "--outputs",
+        "L1.flux",
+        "--dir",
+        dir.to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&o.stderr);
+    for form in [
+        "body_diode",
+        "primary",
+        "WINDING",
+        "COMPENSATOR.output",
+        "L1.current",
+    ] {
+        assert!(err.contains(form), "{form}: {err}");
+    }
+    let _ = std::fs::remove_dir_all(dir);
+}
+
+/// Every key of summary.json and events.json (from a normal run, a
+/// stopped one and one with a flux jump), every event kind and every CSV
+/// column header form is named in docs/outputs.md.
+#[test]
+fn issue_13_every_output_key_is_documented() {
+    let doc = std::fs::read_to_string(root().join("docs/outputs.md")).unwrap();
+    fn keys(v: &serde_json::Value, out: &mut Vec<String>) {
+        match v {
+            serde_json::Value::Object(m) => {
+                for (k, x) in m {
+                    out.push(k.clone());
+                    keys(x, out);
+                }
+            }
+            serde_json::Value::Array(a) => a.iter().for_each(|x| keys(x, out)),
+            _ => {}
+        }
+    }
+    let runs: [&[&str]; 3] = [
+        &["examples/circuits/sync_buck.json"],
+        &["examples/circuits/interrupted_inductor.json"],
+        &[
+            "examples/circuits/interrupted_inductor.json",
+            "--on-interruption",
+            "conserve_flux",
+        ],
+    ];
+    let mut seen = vec![];
+    for (k, extra) in runs.iter().enumerate() {
+        let dir = scratch_dir(&format!("doc{k}"));
+        let mut args = vec![
+            "run",
+            extra[0],
+            "--dir",
+            dir.to_str().unwrap(),
+            "--grid",
+            "20",
+        ];
+        args.extend(&extra[1..]);
+        fluxstep(&args);
+        for file in ["summary.json", "events.json"] {
+            let v: serde_json::Value =
+                serde_json::from_str(&std::fs::read_to_string(dir.join(file)).unwrap()).unwrap();
+            keys(&v, &mut seen);
+            if let Some(events) = v["events"].as_array() {
+                seen.extend(
+                    events
+                        .iter()
+                        .map(|e| e["kind"].as_str().unwrap().to_string()),
+                );
+            }
+        }
+        let csv = std::fs::read_to_string(dir.join("waveform.csv")).unwrap();
+        seen.push(
+            csv.lines()
+                .next()
+                .unwrap()
+                .split(',')
+                .next()
+                .unwrap()
+                .to_string(),
+        );
+        let _ = std::fs::remove_dir_all(dir);
+    }
+    seen.sort();
+    seen.dedup();
+    for key in &seen {
+        assert!(
+            doc.contains(&format!("`{key}`")),
+            "docs/outputs.md does not name `{key}`"
+        );
+    }
+    for kind in [
+        "switch_on",
+        "switch_off",
+        "diode_on",
+        "diode_off",
+        "source_breakpoint",
+        "charge_jump",
+        "flux_jump",
+        "shoot_through",
+    ] {
+        assert!(doc.contains(&format!("`{kind}`")), "{kind}");
+    }
+    assert!(seen.iter().any(|k| k == "stopped") && seen.iter().any(|k| k == "energy"));
 }

@@ -127,11 +127,71 @@ pub struct RunSettings {
     )]
     #[schemars(with = "Option<SiValue>")]
     pub record_from: Option<f64>,
-    /// Outputs to record and plot: a node name for its voltage, or
-    /// `ELEMENT.current` / `ELEMENT.voltage` (a winding: `ELEMENT.WINDING.current`).
+    /// Outputs to record and plot, in any of the forms of
+    /// [`OUTPUT_FORMS`]: a node name for its voltage, `ELEMENT.current` /
+    /// `ELEMENT.voltage`, a winding `ELEMENT.WINDING.current`, …
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub outputs: Vec<String>,
+    /// What the run does when a switch or diode leaves inductor current
+    /// with no path: `"stop"` (default) or `"conserve_flux"`.
+    #[serde(default, skip_serializing_if = "is_default")]
+    pub on_interruption: InterruptionPolicy,
+    /// What the run does when closed switches short a source or capacitor
+    /// through their on-resistance: `"stop"` (default) or `"record"`.
+    #[serde(default, skip_serializing_if = "is_default")]
+    pub on_shoot_through: ShootThroughPolicy,
 }
+
+impl RunSettings {
+    /// Settings that stop at `stop_time`, record everything, name no
+    /// outputs and stop on every diagnostic.
+    pub fn default_for(stop_time: f64) -> RunSettings {
+        RunSettings {
+            stop_time,
+            record_from: None,
+            outputs: Vec::new(),
+            on_interruption: InterruptionPolicy::Stop,
+            on_shoot_through: ShootThroughPolicy::Stop,
+        }
+    }
+}
+
+fn is_default<T: Default + PartialEq>(v: &T) -> bool {
+    *v == T::default()
+}
+
+/// What a run does when a switch or diode leaves inductor current with no
+/// path (physically: the voltage spike that destroys a transistor).
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum InterruptionPolicy {
+    /// Default. Stop the run with a diagnostic naming the switch, the
+    /// inductors, the current and the stored energy.
+    #[default]
+    Stop,
+    /// Go on with the flux-conserving jump (inductors left in series share
+    /// current by conservation of flux linkage) and log the energy lost.
+    ConserveFlux,
+}
+
+/// What a run does when closed switches short a voltage source or a
+/// capacitor through their on-resistance. A short with no resistance at
+/// all always stops the run.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum ShootThroughPolicy {
+    /// Default. Stop the run with a diagnostic naming the loop.
+    #[default]
+    Stop,
+    /// Log a shoot-through event each time the short begins and go on.
+    Record,
+}
+
+/// Every form an output name can take, for messages that list them.
+pub const OUTPUT_FORMS: &str = "a node name (its voltage to ground), ELEMENT.current, \
+ELEMENT.voltage, a coupled winding COUPLED.WINDING.current or .voltage, a transformer side \
+TRANSFORMER.primary.current / TRANSFORMER.secondary.current (or .voltage), a switch's body \
+diode SWITCH.body_diode.current or .voltage, or COMPENSATOR.output";
 
 impl Circuit {
     /// Reads a circuit from JSON text and validates it.
@@ -666,9 +726,8 @@ impl CircuitBuilder {
     /// Sets the default run settings.
     pub fn run(mut self, stop_time: f64, outputs: &[&str]) -> Self {
         self.circuit.run = Some(RunSettings {
-            stop_time,
-            record_from: None,
             outputs: outputs.iter().map(|s| s.to_string()).collect(),
+            ..RunSettings::default_for(stop_time)
         });
         self
     }
@@ -712,7 +771,11 @@ impl OutputName {
     /// A [`Problem`] naming the field `outputs` when the suffix is unknown.
     pub fn parse(text: &str) -> Result<OutputName, Problem> {
         match text.rsplit_once('.') {
-            None if !text.is_empty() => Ok(OutputName::Node(if is_ground(text) { GROUND.into() } else { text.into() })),
+            None if !text.is_empty() => Ok(OutputName::Node(if is_ground(text) {
+                GROUND.into()
+            } else {
+                text.into()
+            })),
             Some((e, "current")) if !e.is_empty() => Ok(OutputName::Current(e.into())),
             Some((e, "voltage")) if !e.is_empty() => Ok(OutputName::Voltage(e.into())),
             Some((e, "output")) if !e.is_empty() => Ok(OutputName::Signal(e.into())),
@@ -720,10 +783,29 @@ impl OutputName {
                 element: None,
                 field: Some("outputs".into()),
                 node: None,
-                message: format!(
-                    "unknown output {text:?}: expected a node name, ELEMENT.current, ELEMENT.voltage or COMPENSATOR.output"
-                ),
+                message: format!("unknown output {text:?}: expected {OUTPUT_FORMS}"),
             }),
+        }
+    }
+
+    /// The SI unit of the output: "A" for a current, "V" for a voltage, and
+    /// "" for a compensator output (its unit follows from its law and input,
+    /// so it is shown as a plain number).
+    pub fn unit(&self) -> &'static str {
+        match self {
+            OutputName::Current(_) => "A",
+            OutputName::Node(_) | OutputName::Voltage(_) => "V",
+            OutputName::Signal(_) => "",
+        }
+    }
+
+    /// The quantity in plain words, for axis titles: "current", "voltage"
+    /// or "control signal".
+    pub fn quantity(&self) -> &'static str {
+        match self {
+            OutputName::Current(_) => "current",
+            OutputName::Node(_) | OutputName::Voltage(_) => "voltage",
+            OutputName::Signal(_) => "control signal",
         }
     }
 }

@@ -55,8 +55,8 @@ mod value;
 mod waveform;
 
 pub use circuit::{
-    is_ground, Circuit, CircuitBuilder, Compensator, CompensatorLaw, OutputName, RunSettings,
-    GROUND,
+    is_ground, Circuit, CircuitBuilder, Compensator, CompensatorLaw, InterruptionPolicy,
+    OutputName, RunSettings, ShootThroughPolicy, GROUND, OUTPUT_FORMS,
 };
 pub use element::*;
 pub use error::{NetlistError, Problem};

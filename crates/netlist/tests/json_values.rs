@@ -269,3 +269,61 @@ fn the_first_of_two_identical_mistakes_is_named() {
         other => panic!("expected a JSON error, got {other:?}"),
     }
 }
+
+/// Issue 13: the interruption and shoot-through policies are run settings
+/// of the file, named as the policies are in docs/netlist.md.
+#[test]
+fn issue_13_run_policies_are_run_settings() {
+    let text = |extra: &str| {
+        format!(
+            r#"{{"elements": [
+  {{"kind": "voltage_source", "name": "V1", "nodes": ["a", "gnd"],
+   "waveform": {{"kind": "constant", "value": 1}}}},
+  {{"kind": "resistor", "name": "R1", "nodes": ["a", "gnd"], "resistance": 1}}
+], "run": {{"stop_time": "1m"{extra}}}}}"#
+        )
+    };
+    let c = Circuit::from_json(&text("")).unwrap();
+    let run = c.run.as_ref().unwrap();
+    assert_eq!(run.on_interruption, InterruptionPolicy::Stop);
+    assert_eq!(run.on_shoot_through, ShootThroughPolicy::Stop);
+    // Defaults are left out of the JSON form.
+    assert!(!c.to_json().contains("on_interruption"));
+    let c = Circuit::from_json(&text(
+        r#", "on_interruption": "conserve_flux", "on_shoot_through": "record""#,
+    ))
+    .unwrap();
+    let run = c.run.as_ref().unwrap();
+    assert_eq!(run.on_interruption, InterruptionPolicy::ConserveFlux);
+    assert_eq!(run.on_shoot_through, ShootThroughPolicy::Record);
+    assert_eq!(Circuit::from_json(&c.to_json()).unwrap(), c);
+    match Circuit::from_json(&text(r#", "on_interruption": "ignore""#)) {
+        Err(NetlistError::Json { path, message }) => {
+            assert_eq!(path, "run.on_interruption");
+            assert!(message.contains("conserve_flux"), "{message}");
+        }
+        other => panic!("expected a JSON error, got {other:?}"),
+    }
+}
+
+/// Issue 13: the message for an unknown output form lists every form the
+/// format accepts.
+#[test]
+fn issue_13_unknown_output_form_lists_every_form() {
+    let p = OutputName::parse("L1.flux").unwrap_err();
+    for form in [
+        "node name",
+        "ELEMENT.current",
+        "ELEMENT.voltage",
+        "WINDING.current",
+        "primary",
+        "secondary",
+        "body_diode",
+        "COMPENSATOR.output",
+    ] {
+        assert!(p.message.contains(form), "{form}: {}", p.message);
+    }
+    assert_eq!(OutputName::parse("L1.current").unwrap().unit(), "A");
+    assert_eq!(OutputName::parse("out").unwrap().unit(), "V");
+    assert_eq!(OutputName::parse("K.output").unwrap().unit(), "");
+}

@@ -224,13 +224,28 @@ fn gate() -> impl Strategy<Value = Gate> {
 }
 
 fn run() -> impl Strategy<Value = RunSettings> {
-    (value(), option::of(value()), vec("\\PC{0,12}", 0..4)).prop_map(
-        |(stop_time, record_from, outputs)| RunSettings {
-            stop_time,
-            record_from,
-            outputs,
-        },
+    (
+        value(),
+        option::of(value()),
+        vec("\\PC{0,12}", 0..4),
+        prop_oneof![
+            Just(InterruptionPolicy::Stop),
+            Just(InterruptionPolicy::ConserveFlux)
+        ],
+        prop_oneof![
+            Just(ShootThroughPolicy::Stop),
+            Just(ShootThroughPolicy::Record)
+        ],
     )
+        .prop_map(
+            |(stop_time, record_from, outputs, on_interruption, on_shoot_through)| RunSettings {
+                stop_time,
+                record_from,
+                outputs,
+                on_interruption,
+                on_shoot_through,
+            },
+        )
 }
 
 fn circuit() -> impl Strategy<Value = Circuit> {

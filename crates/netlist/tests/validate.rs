@@ -968,6 +968,7 @@ fn run_outputs() {
         stop_time: 1e-3,
         record_from: None,
         outputs: vec!["Q2.body_diode.current".into(), "Q2.current".into()],
+        ..RunSettings::default_for(1e-3)
     });
     valid(&c);
     let x = |outputs: &[&str]| {
@@ -1416,6 +1417,7 @@ fn run_output_names_an_unknown_compensator() {
         stop_time: 1e-3,
         record_from: None,
         outputs: vec!["out".into(), "K.output".into()],
+        ..RunSettings::default_for(1e-3)
     });
     valid(&c);
     c.run.as_mut().unwrap().outputs[1] = "K2.output".into();

@@ -48,7 +48,7 @@ pub enum PlotError {
         index: usize,
     },
     /// An output named for a figure is not an output of the circuit.
-    #[error("unknown output {name:?}: expected a node name, ELEMENT.current or ELEMENT.voltage")]
+    #[error("unknown output {name:?}: expected {}", fluxstep_netlist::OUTPUT_FORMS)]
     UnknownOutput {
         /// The name as given.
         name: String,

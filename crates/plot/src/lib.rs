@@ -19,11 +19,17 @@
 //! - [`Panel`], [`Figure`]: layout. Only the bottom panel carries time
 //!   labels; a legend appears where a panel holds more than one trace.
 //! - [`render_svg`], [`write_svg`]: output. Every trace is exactly one
-//!   `<polyline>` element, in panel then trace order, and nothing else is
-//!   a polyline (grid, ticks, dashes and markers are thin `<rect>`s), so a
-//!   test can count traces in the file.
-//! - [`si_scale`], [`nice_ticks`], [`format_si`]: the number formatting the
-//!   axes use (SI prefixes, 1-2-5 tick steps), public for other reports.
+//!   `<polyline>` element, in panel then trace order (then once more per
+//!   zoom column, [`Figure::zooms`]), and nothing else is a polyline (grid,
+//!   ticks, dashes and markers are thin `<rect>`s), so a test can count
+//!   traces in the file. Vertices are written to 0.01 px, so a ramp is a
+//!   straight line at any magnification, not a staircase.
+//! - [`review_figure`]: the design-review figure of a solver run, annotated
+//!   with the solver's own measurements (ripple of one period on inductor
+//!   currents in periodic operation, averages, the instant a run stopped).
+//! - [`si_scale`], [`nice_ticks`], [`format_si`], [`format_si_digits`],
+//!   [`format_si_short`]: the number formatting of the whole project (SI
+//!   prefixes, 1-2-5 tick steps); the command line prints with them too.
 //! - [`PlotError`]: every failure, naming the panel, trace or time at fault.
 //!
 //! Dense traces are thinned for display only when they hold more than
@@ -77,4 +83,4 @@ pub use error::PlotError;
 pub use model::{Annotation, Figure, Panel, Trace};
 pub use render::{render_svg, write_svg};
 pub use review::{output_trace, review_figure, ReviewOptions};
-pub use scale::{format_si, nice_ticks, si_scale, Ticks};
+pub use scale::{format_si, format_si_digits, format_si_short, nice_ticks, si_scale, Ticks};

@@ -15,6 +15,9 @@ pub struct Trace {
     pub unit: String,
     /// `(time in s, value in unit)` vertices.
     pub points: Vec<(f64, f64)>,
+    /// The quantity in plain words for the value axis ("current",
+    /// "control signal"); empty: named from the unit ("A" → "current").
+    pub quantity: String,
 }
 
 impl Trace {
@@ -24,7 +27,14 @@ impl Trace {
             label: label.into(),
             unit: unit.into(),
             points,
+            quantity: String::new(),
         }
+    }
+
+    /// Names the quantity shown on the value axis.
+    pub fn with_quantity(mut self, quantity: impl Into<String>) -> Self {
+        self.quantity = quantity.into();
+        self
     }
 }
 
@@ -47,6 +57,15 @@ pub enum Annotation {
         trace_index: usize,
         /// The average, in the trace's unit.
         value: f64,
+    },
+    /// A strong vertical line across the whole plot at `time` (e.g. the
+    /// instant a run stopped on a diagnostic), with `label` in the panel
+    /// header when it is not empty.
+    Instant {
+        /// The instant (s).
+        time: f64,
+        /// Shown in the header, e.g. "stopped: inductor current interrupted".
+        label: String,
     },
     /// Thin vertical ticks along the top edge of the panel, one per
     /// `(time in s, kind)`; each distinct kind gets its own colour and an
@@ -109,6 +128,11 @@ pub struct Figure {
     /// cut at its edges (by linear interpolation between vertices), so a
     /// window of a long run draws only what is visible.
     pub window: Option<(f64, f64)>,
+    /// Default none. Narrow windows `(start, end)` in seconds drawn as
+    /// extra columns to the right of the main plots, each with every panel
+    /// on the same value axis and its own time axis: a dead-time interval
+    /// or a diode turn-off that is a single pixel at full width.
+    pub zooms: Vec<(f64, f64)>,
 }
 
 impl Figure {
@@ -120,7 +144,14 @@ impl Figure {
             width: 960,
             height: 640,
             window: None,
+            zooms: Vec::new(),
         }
+    }
+
+    /// Adds a zoom column showing `[start, end]` seconds.
+    pub fn with_zoom(mut self, start: f64, end: f64) -> Self {
+        self.zooms.push((start, end));
+        self
     }
 
     /// Adds a panel below the existing ones.

@@ -18,7 +18,8 @@ use crate::error::PlotError;
 use crate::model::{Annotation, Figure, Panel};
 use crate::reduce::{clip_to_window, thin_per_column};
 use crate::scale::{
-    exponent_labels, fixed_labels, format_si, nice_ticks, quantity_name, si_scale, Ticks,
+    exponent_labels, fixed_labels, format_si, format_si_digits, nice_ticks, quantity_name,
+    si_scale, Ticks,
 };
 
 const MARGIN: f64 = 14.0;
@@ -48,6 +49,12 @@ const SOFT_INK: RGBColor = RGBColor(0x48, 0x4f, 0x58);
 const GRID: RGBColor = RGBColor(0xe6, 0xe9, 0xed);
 const ZERO_LINE: RGBColor = RGBColor(0xc2, 0xc8, 0xcf);
 const FRAME: RGBColor = RGBColor(0x8e, 0x95, 0x9d);
+/// The colour of an [`Annotation::Instant`]: a warning red, used for
+/// nothing else.
+const INSTANT: RGBColor = RGBColor(0xd0, 0x1c, 0x1c);
+/// Width of a zoom column's plot and the gap before it, in pixels.
+const ZOOM_W: f64 = 130.0;
+const ZOOM_GAP: f64 = 16.0;
 /// Trace colours: dark enough to print on white, far apart in hue, in an
 /// order where neighbours never share a hue family.
 const TRACE_COLOURS: [RGBColor; 8] = [
@@ -72,7 +79,10 @@ const MARKER_COLOURS: [RGBColor; 5] = [
 /// Renders a figure to SVG text.
 ///
 /// Each trace becomes exactly one `<polyline>` element, in panel order and
-/// then trace order; no other element of the figure is a polyline. Traces
+/// then trace order (then, for each zoom column, one more per trace, in the
+/// same order); no other element of the figure is a polyline. Vertices are
+/// written with sub-pixel precision (0.01 px), so a straight ramp is one
+/// straight line at any zoom of the picture, not a staircase. Traces
 /// with more than about four vertices per pixel column of the plot are
 /// thinned to the first, lowest, highest and last vertex of each column.
 ///
@@ -103,7 +113,48 @@ pub fn render_svg(figure: &Figure) -> Result<String, PlotError> {
             .map_err(|e| PlotError::Draw(e.to_string()))?;
         root.present().map_err(|e| PlotError::Draw(e.to_string()))?;
     }
-    Ok(svg)
+    let precise = layout.precise.take();
+    Ok(with_precise_points(&svg, &precise))
+}
+
+/// The SVG backend writes whole pixels; this puts the sub-pixel vertices
+/// of the k-th polyline (kept while drawing, in drawing order) in place of
+/// its rounded ones. Polylines are only ever traces (see [`render_svg`]), so
+/// the k-th polyline in the text is the k-th trace drawn.
+fn with_precise_points(svg: &str, precise: &[String]) -> String {
+    let mut out = String::with_capacity(svg.len() + precise.iter().map(String::len).sum::<usize>());
+    let mut rest = svg;
+    for points in precise {
+        let Some(at) = rest.find("<polyline") else {
+            break;
+        };
+        let Some(open) = rest[at..]
+            .find("points=\"")
+            .map(|k| at + k + "points=\"".len())
+        else {
+            break;
+        };
+        let Some(close) = rest[open..].find('"').map(|k| open + k) else {
+            break;
+        };
+        out.push_str(&rest[..open]);
+        out.push_str(points);
+        rest = &rest[close..];
+    }
+    out.push_str(rest);
+    out
+}
+
+/// A coordinate with at most two decimals, trailing zeros dropped.
+fn coord(v: f64) -> String {
+    let v = (v.clamp(-1.0e6, 1.0e6) * 100.0).round() / 100.0;
+    let text = format!("{v:.2}");
+    let text = text.trim_end_matches('0').trim_end_matches('.');
+    if text == "-0" {
+        "0".to_string()
+    } else {
+        text.to_string()
+    }
 }
 
 /// Renders a figure and writes the SVG to `path`.
@@ -244,7 +295,17 @@ fn validate(figure: &Figure) -> Result<(f64, f64), PlotError> {
                         return Err(bad("event marker", "time"));
                     }
                 }
+                Annotation::Instant { time, .. } => {
+                    if !time.is_finite() {
+                        return Err(bad("instant", "time"));
+                    }
+                }
             }
+        }
+    }
+    for &(start, end) in &figure.zooms {
+        if !(start.is_finite() && end.is_finite() && start < end && (end - start).is_finite()) {
+            return Err(PlotError::InvalidWindow { start, end });
         }
     }
     match figure.window {
@@ -346,6 +407,7 @@ struct YAxis {
 
 struct PanelLayout<'a> {
     panel: &'a Panel,
+    instants: Vec<f64>,
     title: String,
     traces: Vec<Vec<(f64, f64)>>,
     colours: Vec<RGBColor>,
@@ -358,8 +420,22 @@ struct PanelLayout<'a> {
     y: YAxis,
 }
 
+/// A narrow column showing a zoomed time window of every panel.
+struct ZoomColumn {
+    t0: f64,
+    t1: f64,
+    left: f64,
+    right: f64,
+    ticks: Ticks,
+    labels: Vec<String>,
+    title: String,
+}
+
 struct Layout<'a> {
     figure: &'a Figure,
+    zooms: Vec<ZoomColumn>,
+    /// Sub-pixel vertices of every polyline, in drawing order.
+    precise: std::cell::RefCell<Vec<String>>,
     t0: f64,
     t1: f64,
     panels: Vec<PanelLayout<'a>>,
@@ -400,6 +476,8 @@ impl<'a> Layout<'a> {
             let unit = &panel.traces[0].unit;
             let mut notes = Vec::new();
             let mut markers = Vec::new();
+            let mut instants = Vec::new();
+            let mut instant_labels = Vec::new();
             let mut kinds: Vec<String> = Vec::new();
             for annotation in &panel.annotations {
                 match annotation {
@@ -422,6 +500,12 @@ impl<'a> Layout<'a> {
                         at: *value,
                         shape: NoteShape::Level,
                     }),
+                    Annotation::Instant { time, label } => {
+                        instants.push(*time);
+                        if !label.is_empty() {
+                            instant_labels.push(clean(label));
+                        }
+                    }
                     Annotation::EventMarkers { times } => {
                         for (t, kind) in times {
                             let kind = clean(kind);
@@ -449,6 +533,13 @@ impl<'a> Layout<'a> {
                     });
                 }
             }
+            for label in instant_labels {
+                items.push(HeaderItem {
+                    text: label,
+                    colour: INSTANT,
+                    swatch: Swatch::Tick,
+                });
+            }
             for (k, kind) in kinds.into_iter().enumerate() {
                 items.push(HeaderItem {
                     text: kind,
@@ -460,6 +551,7 @@ impl<'a> Layout<'a> {
                 pi,
                 PanelLayout {
                     panel,
+                    instants,
                     title,
                     traces,
                     colours,
@@ -492,7 +584,8 @@ impl<'a> Layout<'a> {
         } else {
             MARGIN + 10.0
         };
-        let plot_right = width - right_gutter;
+        let zoom_space = figure.zooms.len() as f64 * (ZOOM_W + ZOOM_GAP);
+        let plot_right = width - right_gutter - zoom_space;
         for (_, p) in panels.iter_mut() {
             let items = std::mem::take(&mut p.legend[0]);
             let first_row = plot_right - MARGIN - text_width(&p.title, PANEL_PX) * 1.08 - 24.0;
@@ -543,8 +636,29 @@ impl<'a> Layout<'a> {
         }
 
         let (x_ticks, x_labels, x_title) = x_axis(t0, t1, plot_w);
+        let zooms = figure
+            .zooms
+            .iter()
+            .enumerate()
+            .map(|(k, &(a, b))| {
+                let left =
+                    plot_right + right_gutter - MARGIN + ZOOM_GAP + k as f64 * (ZOOM_W + ZOOM_GAP);
+                let (ticks, labels, title) = zoom_axis(a, b);
+                ZoomColumn {
+                    t0: a,
+                    t1: b,
+                    left,
+                    right: left + ZOOM_W,
+                    ticks,
+                    labels,
+                    title,
+                }
+            })
+            .collect();
         Ok(Layout {
             figure,
+            zooms,
+            precise: std::cell::RefCell::new(Vec::new()),
             t0,
             t1,
             panels: panels.into_iter().map(|(_, p)| p).collect(),
@@ -554,6 +668,124 @@ impl<'a> Layout<'a> {
             x_labels,
             x_title,
         })
+    }
+
+    /// Draws one trace as one polyline and keeps its sub-pixel vertices
+    /// for [`with_precise_points`].
+    #[allow(clippy::too_many_arguments)]
+    fn draw_trace<DB: DrawingBackend>(
+        &self,
+        root: &DrawingArea<DB, plotters::coord::Shift>,
+        trace: &[(f64, f64)],
+        colour: RGBColor,
+        left: f64,
+        right: f64,
+        x_px: &dyn Fn(f64) -> f64,
+        y_px: &dyn Fn(f64) -> f64,
+    ) -> Result<(), DrawingAreaErrorKind<DB::ErrorType>> {
+        let column_limit = THIN_FACTOR * (right - left);
+        let thinned;
+        let vertices = if trace.len() as f64 > column_limit {
+            thinned = thin_per_column(trace, |t| x_px(t).floor() as i64);
+            &thinned[..]
+        } else {
+            trace
+        };
+        let mut path: Vec<(i32, i32)> = Vec::with_capacity(vertices.len());
+        let mut precise = String::with_capacity(vertices.len() * 14);
+        let mut last: Option<(String, String)> = None;
+        for &(t, v) in vertices {
+            let (x, y) = (x_px(t), y_px(v));
+            let q = (coord(x), coord(y));
+            if last.as_ref() != Some(&q) {
+                precise.push_str(&q.0);
+                precise.push(',');
+                precise.push_str(&q.1);
+                precise.push(' ');
+                path.push((px(x), px(y)));
+                last = Some(q);
+            }
+        }
+        root.draw(&PathElement::new(path, colour.stroke_width(2)))?;
+        self.precise.borrow_mut().push(precise);
+        Ok(())
+    }
+
+    /// One zoom column of one panel: grid, traces, instants, frame, and on
+    /// the bottom panel the column's own time labels.
+    fn draw_zoom<DB: DrawingBackend>(
+        &self,
+        root: &DrawingArea<DB, plotters::coord::Shift>,
+        p: &PanelLayout<'_>,
+        z: &ZoomColumn,
+        index: usize,
+        first_panel: bool,
+        bottom_panel: bool,
+    ) -> Result<(), DrawingAreaErrorKind<DB::ErrorType>> {
+        let (top, bottom) = (p.plot_top, p.plot_bottom);
+        let y_px = |v: f64| bottom - (v - p.y.low) / (p.y.high - p.y.low) * (bottom - top);
+        let x_px = |t: f64| z.left + (t - z.t0) / (z.t1 - z.t0) * (z.right - z.left);
+        let rect = |x0: f64, y0: f64, x1: f64, y1: f64, c: RGBAColor| {
+            Rectangle::new([(px(x0), px(y0)), (px(x1), px(y1))], c.filled())
+        };
+        for &t in &z.ticks.values {
+            let x = x_px(t);
+            root.draw(&rect(x - 0.5, top, x + 0.5, bottom, GRID.to_rgba()))?;
+        }
+        for &v in &p.y.ticks.values {
+            let y = y_px(v);
+            root.draw(&rect(z.left, y - 0.5, z.right, y + 0.5, GRID.to_rgba()))?;
+        }
+        for (trace, colour) in p.panel.traces.iter().zip(&p.colours) {
+            let clipped = clip_to_window(&trace.points, z.t0, z.t1);
+            self.draw_trace(root, &clipped, *colour, z.left, z.right, &x_px, &y_px)?;
+        }
+        for &t in &p.instants {
+            if t >= z.t0 && t <= z.t1 {
+                let x = x_px(t);
+                root.draw(&rect(x - 1.0, top, x + 1.0, bottom, INSTANT.to_rgba()))?;
+            }
+        }
+        root.draw(&Rectangle::new(
+            [(px(z.left), px(top)), (px(z.right), px(bottom))],
+            FRAME.stroke_width(1),
+        ))?;
+        if first_panel {
+            root.draw(&Text::new(
+                format!("zoom {}", index + 1),
+                (px(z.left), px(p.top + 0.5 * HEADER_ROW)),
+                text_style(NOTE_PX, true, &INK, HPos::Left, VPos::Center),
+            ))?;
+        }
+        let x_style = text_style(TICK_PX, false, &SOFT_INK, HPos::Center, VPos::Top);
+        for (t, label) in z.ticks.values.iter().zip(&z.labels) {
+            let x = x_px(*t);
+            root.draw(&rect(
+                x - 0.5,
+                bottom,
+                x + 0.5,
+                bottom + TICK_LEN,
+                FRAME.to_rgba(),
+            ))?;
+            if bottom_panel {
+                root.draw(&Text::new(
+                    label.clone(),
+                    (px(x), px(bottom + TICK_LEN + 4.0)),
+                    x_style.clone(),
+                ))?;
+            }
+        }
+        if bottom_panel {
+            root.draw(&Text::new(
+                z.title.clone(),
+                (
+                    px(0.5 * (z.left + z.right)),
+                    px(bottom + TICK_LEN + 4.0 + TICK_PX + 8.0),
+                ),
+                text_style(AXIS_PX, false, &SOFT_INK, HPos::Center, VPos::Top),
+            ))?;
+        }
+        Ok(())
     }
 
     fn x_px(&self, t: f64) -> f64 {
@@ -575,6 +807,13 @@ impl<'a> Layout<'a> {
         let last = self.panels.len() - 1;
         for (i, p) in self.panels.iter().enumerate() {
             self.draw_panel(root, p, i == last)?;
+        }
+        // Zoom columns after every main panel, so that the main traces
+        // stay the first polylines of the file, in panel order.
+        for (k, z) in self.zooms.iter().enumerate() {
+            for (i, p) in self.panels.iter().enumerate() {
+                self.draw_zoom(root, p, z, k, i == 0, i == last)?;
+            }
         }
         let bottom = self.panels[last].plot_bottom;
         root.draw(&Text::new(
@@ -683,21 +922,13 @@ impl<'a> Layout<'a> {
             }
         }
 
-        let column_limit = THIN_FACTOR * (right - left);
         for (trace, colour) in p.traces.iter().zip(&p.colours) {
-            let vertices = if trace.len() as f64 > column_limit {
-                thin_per_column(trace, |t| self.x_px(t).floor() as i64)
-            } else {
-                trace.clone()
-            };
-            let mut path: Vec<(i32, i32)> = Vec::with_capacity(vertices.len());
-            for &(t, v) in &vertices {
-                let q = (px(self.x_px(t)), px(y_px(v)));
-                if path.last() != Some(&q) {
-                    path.push(q);
-                }
+            self.draw_trace(root, trace, *colour, left, right, &|t| self.x_px(t), &y_px)?;
+        }
+        for &t in &p.instants {
+            if t >= self.t0 && t <= self.t1 {
+                root.draw(&vline(self.x_px(t), top, bottom, 2.0, INSTANT.to_rgba()))?;
             }
-            root.draw(&PathElement::new(path, colour.stroke_width(2)))?;
         }
 
         for &(t, colour) in &p.markers {
@@ -916,10 +1147,16 @@ fn y_axis(p: &PanelLayout<'_>, plot_h: f64, name: &str) -> Result<YAxis, PlotErr
         Some(labels) => (labels, prefix),
         None => (exponent_labels(&ticks.values, ticks.step), ""),
     };
-    let title = if unit.is_empty() {
-        "value".to_string()
+    let quantity = &p.panel.traces[0].quantity;
+    let quantity = if quantity.is_empty() {
+        quantity_name(unit).to_string()
     } else {
-        format!("{} ({prefix}{})", quantity_name(unit), clean(unit))
+        clean(quantity)
+    };
+    let title = match (unit.is_empty(), prefix.is_empty()) {
+        (true, true) => quantity,
+        (true, false) => format!("{quantity} ({prefix})"),
+        (false, _) => format!("{quantity} ({prefix}{})", clean(unit)),
     };
     Ok(YAxis {
         low: y_low,
@@ -958,4 +1195,41 @@ fn x_axis(t0: f64, t1: f64, plot_w: f64) -> (Ticks, Vec<String>, String) {
         }
     }
     (chosen.0, chosen.1, format!("time ({}s)", chosen.2))
+}
+
+/// Time ticks of a zoom column: two or three labels fit its width; the
+/// labels show the time since the column's first tick would be clearer,
+/// but absolute times let a reader find the instant on the main axis.
+fn zoom_axis(t0: f64, t1: f64) -> (Ticks, Vec<String>, String) {
+    let centre = 0.5 * (t0 + t1);
+    let (factor, prefix) = si_scale(0.5 * (t1 - t0).abs());
+    let title = |prefix: &str| {
+        let at = format_si_digits(centre, "s", 7);
+        let (number, unit) = at.split_once(' ').unwrap_or((at.as_str(), ""));
+        let number = if number.contains('.') {
+            number.trim_end_matches('0').trim_end_matches('.')
+        } else {
+            number
+        };
+        format!("{prefix}s from {number} {unit}")
+    };
+    let shift = |ticks: Ticks| Ticks {
+        step: ticks.step,
+        values: ticks.values.iter().map(|v| v + centre).collect(),
+    };
+    for max_count in (2..=3).rev() {
+        let ticks = nice_ticks(t0 - centre, t1 - centre, max_count);
+        if let Some(labels) = fixed_labels(&ticks.values, ticks.step, factor) {
+            let widest = labels
+                .iter()
+                .map(|l| text_width(l, TICK_PX))
+                .fold(0.0, f64::max);
+            if ticks.values.len() < 2 || (widest + 8.0) * ticks.values.len() as f64 <= ZOOM_W {
+                return (shift(ticks), labels, title(prefix));
+            }
+        }
+    }
+    let ticks = nice_ticks(t0 - centre, t1 - centre, 2);
+    let labels = exponent_labels(&ticks.values, ticks.step);
+    (shift(ticks), labels, title(""))
 }

@@ -8,6 +8,8 @@
 //! to its width on the figure, so curved pieces look smooth at the figure's
 //! resolution while a long window stays cheap.
 
+use fluxstep_netlist::OutputName;
+use fluxstep_solver::measure::{measure, without_rounding_noise, Measurement};
 use fluxstep_solver::{EventKind, EventLog, Waveform};
 
 use crate::error::PlotError;
@@ -21,10 +23,25 @@ pub struct ReviewOptions {
     pub outputs: Vec<String>,
     /// Default: the whole recorded span. Time window to draw.
     pub window: Option<(f64, f64)>,
-    /// Default true. Mark peak-to-peak ripple and the average on current panels.
+    /// Default true. Mark the average on current panels and, on inductor
+    /// and winding currents in periodic operation, the peak-to-peak ripple
+    /// of one period (numbers from [`fluxstep_solver::measure`]).
     pub ripple: bool,
+    /// Default `None`: inferred from the switch turn-on events of the log.
+    /// The switching period, used to tell periodic operation and to measure
+    /// the ripple of one period.
+    pub period: Option<f64>,
     /// Default false. Mark gate edges and diode turn-on/turn-off on top.
     pub event_markers: bool,
+    /// Default none. Instants (s) around which a narrow zoom column is
+    /// added, each `zoom_span` wide.
+    pub zoom: Vec<f64>,
+    /// Default `None`: a fiftieth of the period (or of the window without
+    /// one). Width of each zoom column's window (s).
+    pub zoom_span: Option<f64>,
+    /// Default `None`. The instant a run stopped on a diagnostic and a
+    /// short description: drawn as a red line across every panel.
+    pub stopped: Option<(f64, String)>,
     /// Default 960 × 640 px.
     pub size: (u32, u32),
 }
@@ -35,22 +52,47 @@ impl Default for ReviewOptions {
             outputs: vec![],
             window: None,
             ripple: true,
+            period: None,
             event_markers: false,
+            zoom: vec![],
+            zoom_span: None,
+            stopped: None,
             size: (960, 640),
         }
     }
 }
 
-fn unit_of(name: &str) -> &'static str {
-    if name.ends_with(".current") {
-        "A"
-    } else {
-        "V"
+/// Unit and quantity of an output from its name: a current in A, a node
+/// or element voltage in V, a compensator output as a plain number.
+fn unit_of(name: &str) -> (&'static str, &'static str) {
+    match OutputName::parse(name) {
+        Ok(o) => (o.unit(), o.quantity()),
+        Err(_) => ("", "value"),
     }
 }
 
+/// Whether the interior vertices of one segment lie on the chord between
+/// its end vertices to within rounding: then the output is an exact
+/// straight line there (a constant or a constant slope) and one line is
+/// drawn for it.
+fn straight(points: &[(f64, f64)]) -> bool {
+    let (Some(&(ta, ya)), Some(&(tb, yb))) = (points.first(), points.last()) else {
+        return true;
+    };
+    if tb <= ta {
+        return true;
+    }
+    let scale = points.iter().fold(0.0f64, |m, p| m.max(p.1.abs()));
+    let tol = 1e-12 * scale + f64::MIN_POSITIVE;
+    points.iter().all(|&(t, y)| {
+        let chord = ya + (yb - ya) * ((t - ta) / (tb - ta));
+        (y - chord).abs() <= tol
+    })
+}
+
 /// The vertices of one output over [t0, t1], with interior points sized for
-/// a figure `width_px` wide.
+/// a figure `width_px` wide; a segment on which the output is exactly
+/// straight keeps only its two end vertices.
 ///
 /// # Errors
 ///
@@ -76,13 +118,71 @@ pub fn output_trace(
         // About one interior point per 3 px of the segment, at most 64.
         let px = (b - a) / span * width_px as f64;
         let interior = ((px / 3.0) as usize).min(64);
-        points.extend(w.vertices(id, a, b, interior));
+        let vertices = w.vertices(id, a, b, interior);
+        if interior > 0 && vertices.len() > 2 && straight(&vertices) {
+            points.push(vertices[0]);
+            points.push(vertices[vertices.len() - 1]);
+        } else {
+            points.extend(vertices);
+        }
     }
     points.dedup();
-    Ok(Trace::new(name, unit_of(name), points))
+    let (unit, quantity) = unit_of(name);
+    Ok(Trace::new(name, unit, points).with_quantity(quantity))
+}
+
+/// The switching period read from the log: the spacing of the last turn-ons
+/// of the switch that turns on most often, when the last few spacings agree
+/// to 1 % (a fixed-frequency or settled hysteretic converter).
+fn period_from_events(log: &EventLog, t0: f64, t1: f64) -> Option<f64> {
+    let mut by_switch: Vec<(&str, Vec<f64>)> = Vec::new();
+    for e in log.of_kind(EventKind::SwitchOn) {
+        if e.time < t0 || e.time > t1 {
+            continue;
+        }
+        match by_switch.iter_mut().find(|(n, _)| *n == e.element) {
+            Some((_, v)) => v.push(e.time),
+            None => by_switch.push((e.element, vec![e.time])),
+        }
+    }
+    let (_, times) = by_switch.into_iter().max_by_key(|(_, v)| v.len())?;
+    if times.len() < 3 {
+        return None;
+    }
+    let gaps: Vec<f64> = times
+        .windows(2)
+        .rev()
+        .take(4)
+        .map(|w| w[1] - w[0])
+        .collect();
+    let (lo, hi) = gaps
+        .iter()
+        .fold((f64::INFINITY, 0.0f64), |(l, h), g| (l.min(*g), h.max(*g)));
+    (lo > 0.0 && hi <= lo * 1.01).then(|| gaps.iter().sum::<f64>() / gaps.len() as f64)
+}
+
+/// The ripple of one period, when the output repeats: measured over the
+/// last period of the window, and only if the first period's peak-to-peak
+/// agrees with it to 2 % (a start-up in the window is not periodic
+/// operation). Whatever else the window holds (a slow settling, a load
+/// step), the bracket shows one period's ripple, never the window's span.
+fn periodic_ripple(w: &Waveform, name: &str, t0: f64, t1: f64, period: f64) -> Option<Measurement> {
+    if period.is_nan() || period <= 0.0 || t1 - t0 < 2.0 * period * (1.0 - 1e-9) {
+        return None;
+    }
+    let id = w.output(name)?;
+    let last = measure(w, id, t1 - period, t1).ok()?;
+    let first = measure(w, id, t0, t0 + period).ok()?;
+    let tol = 0.02 * last.peak_to_peak;
+    ((first.peak_to_peak - last.peak_to_peak).abs() <= tol).then_some(last)
 }
 
 /// The stacked design-review figure of a run.
+///
+/// Numbers on the figure are the solver's exact measurements
+/// ([`fluxstep_solver::measure::measure`]) with rounding noise shown as
+/// zero ([`without_rounding_noise`]); nothing is computed from the drawn
+/// vertices.
 ///
 /// # Errors
 ///
@@ -99,31 +199,64 @@ pub fn review_figure(
     })?;
     let (t0, t1) = opts.window.unwrap_or((a, b));
     let mut fig = Figure::new(title).with_size(opts.size.0, opts.size.1);
+    let period = opts
+        .period
+        .or_else(|| events.and_then(|log| period_from_events(log, t0, t1)));
+    // Inductor and winding currents are the states named `….current`.
+    let inductor_currents: Vec<&str> = events
+        .map(|log| {
+            log.state_names()
+                .iter()
+                .filter(|n| n.ends_with(".current"))
+                .map(String::as_str)
+                .collect()
+        })
+        .unwrap_or_default();
+    let measured: Vec<Measurement> = opts
+        .outputs
+        .iter()
+        .filter_map(|name| measure(w, w.output(name)?, t0.max(a), t1.min(b)).ok())
+        .collect();
+    let shown = without_rounding_noise(&measured);
     for name in &opts.outputs {
         let trace = output_trace(w, name, t0, t1, opts.size.0)?;
         let mut panel = Panel::new(name.as_str());
-        if opts.ripple && name.ends_with(".current") && !trace.points.is_empty() {
-            let (lo, hi) = trace
-                .points
+        let is_current = unit_of(name).0 == "A";
+        if opts.ripple && is_current && !trace.points.is_empty() {
+            let key = w.output(name);
+            let m = shown
                 .iter()
-                .fold((f64::INFINITY, f64::NEG_INFINITY), |(l, h), p| {
-                    (l.min(p.1), h.max(p.1))
-                });
-            let id = w.output(name).expect("checked by output_trace");
-            let avg = w.average(id, t0, t1);
-            if hi > lo {
-                panel = panel.with_annotation(Annotation::Ripple {
-                    trace_index: 0,
-                    min: lo,
-                    max: hi,
-                });
+                .find(|m| w.output(&m.output) == key && key.is_some());
+            let ripple = if inductor_currents.contains(&name.as_str()) {
+                period.and_then(|p| periodic_ripple(w, name, t0.max(a), t1.min(b), p))
+            } else {
+                None
+            };
+            if let Some(r) = ripple {
+                if r.peak_to_peak > 0.0 {
+                    panel = panel.with_annotation(Annotation::Ripple {
+                        trace_index: 0,
+                        min: r.min,
+                        max: r.max,
+                    });
+                }
             }
-            if avg.is_finite() {
+            if let Some(m) = m {
                 panel = panel.with_annotation(Annotation::Average {
                     trace_index: 0,
-                    value: avg,
+                    value: m.average,
                 });
             }
+        }
+        if let Some((time, label)) = &opts.stopped {
+            panel = panel.with_annotation(Annotation::Instant {
+                time: *time,
+                label: if fig.panels.is_empty() {
+                    label.clone()
+                } else {
+                    String::new()
+                },
+            });
         }
         if opts.event_markers && fig.panels.is_empty() {
             if let Some(log) = events {
@@ -147,6 +280,16 @@ pub fn review_figure(
             }
         }
         fig = fig.with_panel(panel.with_trace(trace));
+    }
+    let span = opts
+        .zoom_span
+        .or(period.map(|p| p / 50.0))
+        .unwrap_or((t1 - t0) / 50.0);
+    for &t in &opts.zoom {
+        let (za, zb) = ((t - 0.5 * span).max(t0), (t + 0.5 * span).min(t1));
+        if zb > za {
+            fig = fig.with_zoom(za, zb);
+        }
     }
     Ok(fig)
 }

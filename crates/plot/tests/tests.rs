@@ -7,5 +7,9 @@ mod errors;
 /// The buck-like figure rasterised with resvg, written to
 /// `target/plot-check/buck_like.png` for a person to look at.
 mod png_check;
+/// Issue 13: review figures draw the solver's measurements, ripple only
+/// where it is a ripple, sub-pixel vertices, zoom columns and the instant a
+/// run stopped.
+mod review;
 /// The SVG is well-formed XML with one polyline per trace and sane labels.
 mod svg_structure;

@@ -611,7 +611,10 @@ impl Compiled {
             .position(|(n, _)| *n == key)
             .ok_or_else(|| SolverError::UnknownOutput {
                 name: name.into(),
-                reason: "no node or element of that name".into(),
+                reason: format!(
+                    "no node or element of that name; an output is {}",
+                    fluxstep_netlist::OUTPUT_FORMS
+                ),
             })
     }
 

@@ -23,7 +23,8 @@ pub enum SolverError {
     #[error(
         "t = {time:e} s: inductor current interrupted{}: {} carried {current:.6e} A with no path left; \
          stored energy {energy:.6e} J would be released as a voltage spike. \
-         add a freewheeling path (e.g. a diode), or allow the flux-conserving jump",
+         Add a freewheeling path (e.g. a diode), or allow the flux-conserving jump \
+         (run setting on_interruption = \"conserve_flux\", Options::on_interruption).",
         cause.as_ref().map(|c| format!(" by {c}")).unwrap_or_default(),
         inductors.join(", ")
     )]
@@ -137,6 +138,7 @@ pub enum SolverError {
         reason: String,
     },
     /// A time argument is invalid (before the present time, not finite…).
+    /// See also [`SolverError::time`].
     #[error("invalid time {time:e} s: {reason}")]
     BadTime {
         /// The time given (s).
@@ -144,4 +146,57 @@ pub enum SolverError {
         /// Why it is invalid.
         reason: String,
     },
+}
+
+impl SolverError {
+    /// The instant of the run the diagnostic concerns (s), where it has
+    /// one: the time of an interruption, short, chatter, limit or
+    /// non-finite value. `None` for errors that are not about an instant
+    /// of the run (an invalid circuit, an unknown output, a bad time
+    /// argument).
+    pub fn time(&self) -> Option<f64> {
+        match self {
+            SolverError::InductorInterrupted { time, .. }
+            | SolverError::ShortCircuit { time, .. }
+            | SolverError::CurrentSourceOpen { time, .. }
+            | SolverError::NoConsistentPattern { time, .. }
+            | SolverError::Unsupported { time, .. }
+            | SolverError::Chatter { time, .. }
+            | SolverError::EventLimit { time, .. }
+            | SolverError::NonFinite { time, .. }
+            | SolverError::Control { time, .. } => Some(*time),
+            SolverError::Netlist(_)
+            | SolverError::UnknownOutput { .. }
+            | SolverError::BadTime { .. }
+            | SolverError::InvalidState { .. } => None,
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Issue 13: a sentence after a full stop starts with a capital, and
+    /// the interruption diagnostic names the run setting that allows the jump.
+    #[test]
+    fn issue_13_interruption_message_reads_as_sentences() {
+        let e = SolverError::InductorInterrupted {
+            time: 5e-5,
+            cause: Some("switch S1 opening".into()),
+            inductors: vec!["L1".into()],
+            current: 4.7,
+            energy: 1.1e-3,
+        };
+        let text = e.to_string();
+        for (i, _) in text.match_indices(". ") {
+            if text[..i].ends_with("e.g") {
+                continue;
+            }
+            let next = text[i + 2..].chars().next().unwrap();
+            assert!(next.is_uppercase(), "{text}");
+        }
+        assert!(text.contains("conserve_flux"), "{text}");
+        assert_eq!(e.time(), Some(5e-5));
+    }
 }

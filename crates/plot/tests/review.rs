@@ -1,0 +1,194 @@
+//! Review figures of solver runs (issue 13): what the figure claims is
+//! what the solver measured, and what it draws is exact at sub-pixel
+//! resolution.
+
+use fluxstep_netlist::Circuit;
+use fluxstep_plot::{output_trace, render_svg, review_figure, Annotation, ReviewOptions};
+use fluxstep_solver::measure::measure;
+use fluxstep_solver::{simulate, Options};
+
+fn buck() -> Circuit {
+    let path = concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/../../examples/circuits/buck.json"
+    );
+    Circuit::from_file(path).unwrap()
+}
+
+fn polylines(svg: &str) -> Vec<Vec<(f64, f64)>> {
+    let doc = roxmltree::Document::parse(svg).unwrap();
+    doc.descendants()
+        .filter(|n| n.has_tag_name("polyline"))
+        .map(|n| {
+            n.attribute("points")
+                .unwrap()
+                .split_whitespace()
+                .map(|p| {
+                    let (x, y) = p.split_once(',').unwrap();
+                    (x.parse().unwrap(), y.parse().unwrap())
+                })
+                .collect()
+        })
+        .collect()
+}
+
+/// The SVG backend rounds to whole pixels, which draws a ramp as a
+/// staircase of one-pixel kinks; the figure writes sub-pixel vertices.
+#[test]
+fn issue_13_svg_coordinates_are_not_all_integers() {
+    let run = simulate(&buck(), 1e-3, Options::default()).unwrap();
+    let opts = ReviewOptions {
+        outputs: vec!["L1.current".into(), "sw".into()],
+        window: Some((1e-3 - 25e-6, 1e-3)),
+        ..ReviewOptions::default()
+    };
+    let fig = review_figure("buck", &run.waveform, Some(&run.events), &opts).unwrap();
+    let svg = render_svg(&fig).unwrap();
+    let lines = polylines(&svg);
+    assert_eq!(lines.len(), 2);
+    let fractional = lines[0]
+        .iter()
+        .filter(|(x, y)| x.fract() != 0.0 || y.fract() != 0.0)
+        .count();
+    assert!(
+        fractional > lines[0].len() / 2,
+        "{fractional} of {}",
+        lines[0].len()
+    );
+    // Precision of at least 0.1 px: two decimals are written.
+    assert!(lines[0]
+        .iter()
+        .any(|(x, _)| (x * 10.0).fract().abs() > 1e-9));
+}
+
+/// An inductor driven by a constant voltage with no resistance carries
+/// i = V·t / L: an exact straight line, drawn as one line (two vertices),
+/// not as a chain of interior samples.
+#[test]
+fn issue_13_an_exact_straight_segment_is_one_line() {
+    let c = Circuit::builder()
+        .voltage_source("V1", "a", "gnd", 10.0)
+        .inductor("L1", "a", "gnd", 1e-3)
+        .build()
+        .unwrap();
+    let run = simulate(&c, 1e-3, Options::default()).unwrap();
+    let trace = output_trace(&run.waveform, "L1.current", 0.0, 1e-3, 960).unwrap();
+    assert_eq!(trace.points.len(), 2, "{:?}", trace.points);
+    assert_eq!(trace.points[1], (1e-3, 10.0 * 1e-3 / 1e-3));
+    // A curved piece keeps its interior vertices.
+    let c = Circuit::builder()
+        .voltage_source("V1", "a", "gnd", 10.0)
+        .resistor("R1", "a", "b", 1.0)
+        .inductor("L1", "b", "gnd", 1e-3)
+        .build()
+        .unwrap();
+    let run = simulate(&c, 1e-3, Options::default()).unwrap();
+    let trace = output_trace(&run.waveform, "L1.current", 0.0, 1e-3, 960).unwrap();
+    assert!(trace.points.len() > 10);
+}
+
+fn ripple(fig: &fluxstep_plot::Figure, panel: usize) -> Option<(f64, f64)> {
+    fig.panels[panel].annotations.iter().find_map(|a| match a {
+        Annotation::Ripple { min, max, .. } => Some((*min, *max)),
+        _ => None,
+    })
+}
+
+fn average(fig: &fluxstep_plot::Figure, panel: usize) -> Option<f64> {
+    fig.panels[panel].annotations.iter().find_map(|a| match a {
+        Annotation::Average { value, .. } => Some(*value),
+        _ => None,
+    })
+}
+
+/// The ripple bracket belongs on inductor currents in periodic operation,
+/// with the solver's exact extremes of one period; a diode's pulses get an
+/// average only. Source of the expectation: common practice (a ripple is a
+/// property of one period of a repeating waveform).
+#[test]
+fn issue_13_ripple_only_on_inductor_currents_from_the_solver_measurement() {
+    let run = simulate(&buck(), 1e-3, Options::default()).unwrap();
+    let (t0, t1) = (1e-3 - 25e-6, 1e-3);
+    let opts = ReviewOptions {
+        outputs: vec!["L1.current".into(), "D1.current".into(), "sw".into()],
+        window: Some((t0, t1)),
+        ..ReviewOptions::default()
+    };
+    let fig = review_figure("buck", &run.waveform, Some(&run.events), &opts).unwrap();
+    let (lo, hi) = ripple(&fig, 0).expect("inductor current ripple");
+    let il = run.waveform.output("L1.current").unwrap();
+    let last = measure(&run.waveform, il, t1 - 5e-6, t1).unwrap();
+    assert_eq!((lo, hi), (last.min, last.max));
+    let whole = measure(&run.waveform, il, t0, t1).unwrap();
+    assert_eq!(average(&fig, 0), Some(whole.average));
+    assert!(
+        ripple(&fig, 1).is_none(),
+        "no ripple bracket on diode pulses"
+    );
+    assert!(average(&fig, 1).is_some());
+    assert!(ripple(&fig, 2).is_none() && average(&fig, 2).is_none());
+    // A window that holds the start-up is not periodic operation.
+    let opts = ReviewOptions {
+        outputs: vec!["L1.current".into()],
+        window: Some((0.0, 100e-6)),
+        ..ReviewOptions::default()
+    };
+    let fig = review_figure("buck", &run.waveform, Some(&run.events), &opts).unwrap();
+    assert!(ripple(&fig, 0).is_none());
+}
+
+/// A compensator output is a control signal, not a voltage.
+#[test]
+fn issue_13_axis_quantity_comes_from_the_output() {
+    let trace = {
+        let path = concat!(
+            env!("CARGO_MANIFEST_DIR"),
+            "/../../examples/circuits/voltage_mode_buck.json"
+        );
+        let c = Circuit::from_file(path).unwrap();
+        let run = simulate(&c, 0.2e-3, Options::default()).unwrap();
+        output_trace(&run.waveform, "K.output", 0.1e-3, 0.2e-3, 960).unwrap()
+    };
+    assert_eq!(trace.unit, "");
+    assert_eq!(trace.quantity, "control signal");
+    let fig = fluxstep_plot::Figure::new("")
+        .with_panel(fluxstep_plot::Panel::new("K.output").with_trace(trace));
+    let svg = render_svg(&fig).unwrap();
+    assert!(svg.contains("control signal"));
+    assert!(!svg.contains("voltage ("));
+}
+
+/// Zoom columns: one more polyline per trace and column, each inside its
+/// column, and a stopped run's instant as a red line with its label.
+#[test]
+fn issue_13_zoom_columns_and_the_stop_instant() {
+    let run = simulate(&buck(), 1e-3, Options::default()).unwrap();
+    let (t0, t1) = (1e-3 - 25e-6, 1e-3);
+    let turn_off = run
+        .events
+        .of_kind(fluxstep_solver::EventKind::SwitchOff)
+        .map(|e| e.time)
+        .find(|t| *t > t0)
+        .unwrap();
+    let opts = ReviewOptions {
+        outputs: vec!["L1.current".into(), "sw".into()],
+        window: Some((t0, t1)),
+        zoom: vec![turn_off, turn_off + 5e-6],
+        zoom_span: Some(200e-9),
+        stopped: Some((t1 - 1e-6, "stopped: example".into())),
+        ..ReviewOptions::default()
+    };
+    let fig = review_figure("buck", &run.waveform, Some(&run.events), &opts).unwrap();
+    assert_eq!(fig.zooms.len(), 2);
+    let svg = render_svg(&fig).unwrap();
+    let lines = polylines(&svg);
+    assert_eq!(lines.len(), 2 * 3);
+    // The zoom polylines lie right of the main plots.
+    let main_right = lines[0].iter().map(|p| p.0).fold(0.0, f64::max);
+    for l in &lines[2..] {
+        assert!(l.iter().all(|p| p.0 > main_right), "{l:?}");
+    }
+    assert!(svg.contains("zoom 1") && svg.contains("zoom 2"));
+    assert!(svg.contains("stopped: example"));
+    assert!(svg.contains("#D01C1C"));
+}
