@@ -31,15 +31,18 @@ impl Simulator {
         }
     }
 
-    fn keeps(&self, t0: f64, t1: f64) -> bool {
+    /// Whether an event at `time` is kept: inside the recorded window,
+    /// ends included.
+    fn keeps(&self, time: f64) -> bool {
         match self.opts.record {
             Record::All => true,
-            Record::Window { from, to } => t1 >= from && t0 <= to,
+            Record::Window { from, to } => time >= from && time <= to,
             Record::Nothing => false,
         }
     }
 
-    /// Records the segment from now to `t1` (start state `z`).
+    /// Records the segment from now to `t1` (start state `z`): all of it,
+    /// or under [`Record::Window`] exactly its part inside `[from, to]`.
     #[inline(always)]
     pub(super) fn record(&mut self, t1: f64) {
         let t0 = self.t;
@@ -55,14 +58,53 @@ impl Simulator {
             };
             sink(&view);
         }
-        if self.keeps(t0, t1) {
-            propagate::extend_small(&mut self.wave.states, self.z.as_slice());
-            self.wave.segments.push(Segment {
-                t0,
-                t1,
-                mode: self.mode,
-            });
+        match self.opts.record {
+            Record::All => self.push_segment(t0, t1),
+            Record::Window { from, to } => {
+                if t0 >= from && t1 <= to {
+                    self.push_segment(t0, t1);
+                } else if t1 > from && t0 < to {
+                    self.push_clipped(t0, t1, from, to);
+                }
+            }
+            Record::Nothing => {}
         }
+    }
+
+    /// Appends the segment [t0, t1] that starts at the present state.
+    #[inline(always)]
+    fn push_segment(&mut self, t0: f64, t1: f64) {
+        propagate::extend_small(&mut self.wave.states, self.z.as_slice());
+        self.wave.segments.push(Segment {
+            t0,
+            t1,
+            mode: self.mode,
+        });
+    }
+
+    /// Appends the part of the segment [t0, t1] inside the window
+    /// [from, to], which it crosses at one end or both: the recorded run
+    /// covers exactly the window. A segment that starts before `from`
+    /// starts its record at `from` with the state there, by the same
+    /// exact propagation [`crate::Waveform`] uses inside a segment (so the
+    /// clipped record gives the same bits at every instant it keeps).
+    /// Happens at most twice per window, so it may allocate.
+    #[cold]
+    #[inline(never)]
+    fn push_clipped(&mut self, t0: f64, t1: f64, from: f64, to: f64) {
+        let (a, b) = (t0.max(from), t1.min(to));
+        if a > t0 {
+            let m = &self.modes[self.mode as usize];
+            let z = propagate::advance(&m.m, m.rate, &self.z, a - t0);
+            propagate::extend_small(&mut self.wave.states, z.as_slice());
+        } else {
+            propagate::extend_small(&mut self.wave.states, self.z.as_slice());
+        }
+        self.wave.segments.push(Segment {
+            t0: a,
+            t1: b,
+            mode: self.mode,
+        });
     }
 
     /// Counts an event (event limit, chatter) and logs it if kept. The state
@@ -101,7 +143,7 @@ impl Simulator {
         if self.recent.len() == cap && oldest >= time - window {
             return Err(self.chatter_error(time));
         }
-        if self.keeps(time, time) {
+        if self.keeps(time) {
             let after = if changed_state {
                 &self.z.as_slice()[..self.cc.n_x]
             } else {
@@ -172,7 +214,7 @@ impl Simulator {
             };
             (kind, self.cc.switches.len() as u32 + i)
         });
-        if self.keeps(time, time) {
+        if self.keeps(time) {
             let after = &self.z.as_slice()[..self.cc.n_x];
             // Refused (nothing added): one by one gives the same refusal.
             if !self.log.push_pair(time, first, second, &self.before, after) {
