@@ -615,6 +615,31 @@ impl Compiled {
             })
     }
 
+    /// What a jump from `a` to `b` moved: with `flux`, the largest change
+    /// of flux linkage (L·i, by coupled group) of any inductor; else the
+    /// largest change of charge C·v of any capacitor.
+    pub fn moved(&self, a: &[f64], b: &[f64], flux: bool) -> f64 {
+        let mut most = 0.0f64;
+        if flux {
+            for g in &self.groups {
+                for (i, _) in g.states.iter().enumerate() {
+                    let d: f64 = g
+                        .states
+                        .iter()
+                        .enumerate()
+                        .map(|(j, &sj)| g.l[(i, j)] * (b[sj] - a[sj]))
+                        .sum();
+                    most = most.max(d.abs());
+                }
+            }
+        } else {
+            for &(s, cap) in &self.caps {
+                most = most.max((cap * (b[s] - a[s])).abs());
+            }
+        }
+        most
+    }
+
     /// Stored energy ½·iᵀL i + ½·C v² of the state part of `z`.
     pub fn stored_energy(&self, z: &[f64]) -> f64 {
         let mut e = 0.0;

@@ -66,7 +66,7 @@ mod waveform;
 mod waveform_ext;
 
 pub use error::SolverError;
-pub use events::{Event, EventKind, EventLog};
+pub use events::{Event, EventCause, EventKind, EventLog, EventRef, SwitchEdge};
 pub use mode::ModeKey;
 pub use options::{OnInterruption, OnShootThrough, Options, Record};
 pub use run::{simulate, RunResult, SegmentSink, SegmentView, Simulator, Stats};

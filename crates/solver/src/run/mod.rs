@@ -25,7 +25,7 @@ use fluxstep_netlist::Circuit;
 
 use crate::compile::Compiled;
 use crate::error::SolverError;
-use crate::events::{adopt, EventLog};
+use crate::events::{adopt, EventCause, EventLog};
 use crate::mode::{pattern_text, Mode, ModeKey};
 use crate::options::{Options, Record};
 use crate::propagate;
@@ -155,6 +155,8 @@ pub struct Simulator {
     recent_head: usize,
     /// Every event counted, kept or not (for the event limit).
     n_events: usize,
+    /// The kind of the present instant, logged with its events.
+    cause: EventCause,
     stats: Stats,
     /// Largest inductor current and capacitor/source voltage seen so far.
     seen: (f64, f64),
@@ -307,6 +309,7 @@ impl Simulator {
             recent: vec![],
             recent_head: 0,
             n_events: 0,
+            cause: EventCause::Start,
             stats: Stats::default(),
             seen: (0.0, 0.0),
             current_states: vec![],
@@ -543,6 +546,7 @@ impl Simulator {
                     std::mem::swap(&mut self.z, &mut self.z_next);
                     self.check_finite()?;
                     self.stats.state_events += 1;
+                    self.cause = EventCause::Crossing;
                     let cause = self.fire_comparators(cmp_fired, t_e)?;
                     self.resolve(fired, cause, false)?;
                     continue;

@@ -3,7 +3,7 @@
 
 use super::{SegmentView, Simulator};
 use crate::error::SolverError;
-use crate::events::EventKind;
+use crate::events::{EventKind, JumpInfo};
 use crate::options::Record;
 use crate::propagate;
 use crate::waveform::Segment;
@@ -116,7 +116,7 @@ impl Simulator {
         time: f64,
         kind: EventKind,
         who: Who,
-        energy: Option<f64>,
+        jump: Option<JumpInfo>,
         changed_state: bool,
     ) -> Result<(), SolverError> {
         self.n_events += 1;
@@ -149,7 +149,10 @@ impl Simulator {
             } else {
                 &self.before[..]
             };
-            if !self.log.push(time, kind, id, energy, &self.before, after) {
+            if !self
+                .log
+                .push(time, kind, self.cause, id, jump, &self.before, after)
+            {
                 // The log numbers its records and snapshots with 32 bits.
                 return Err(self.log_full_error(time));
             }
@@ -217,7 +220,10 @@ impl Simulator {
         if self.keeps(time) {
             let after = &self.z.as_slice()[..self.cc.n_x];
             // Refused (nothing added): one by one gives the same refusal.
-            if !self.log.push_pair(time, first, second, &self.before, after) {
+            if !self
+                .log
+                .push_pair(time, self.cause, first, second, &self.before, after)
+            {
                 return self.push_instant_one_by_one(time, switched, diodes);
             }
         }

@@ -6,7 +6,7 @@ use fluxstep_netlist::{Edge, Waveform};
 use super::record::Who;
 use super::Simulator;
 use crate::error::SolverError;
-use crate::events::EventKind;
+use crate::events::{EventCause, EventKind};
 
 /// Gate edges at most this many units in the last place after an instant
 /// belong to it. Two computations of the same instant, `k·T + φ` in one
@@ -271,6 +271,7 @@ impl Simulator {
     /// the conduction pattern that follows.
     pub(super) fn apply_scheduled(&mut self, t: f64) -> Result<(), SolverError> {
         self.stats.scheduled_events += 1;
+        self.cause = EventCause::Scheduled;
         let n_x = self.cc.n_x;
         self.before.clear();
         crate::propagate::extend_small(&mut self.before, &self.z.as_slice()[..n_x]);

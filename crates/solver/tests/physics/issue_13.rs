@@ -4,7 +4,7 @@
 
 use fluxstep_netlist::{Circuit, DiodeModel, Gate};
 use fluxstep_solver::measure::measure;
-use fluxstep_solver::{EventKind, Options, Record, RunResult, Simulator};
+use fluxstep_solver::{EventCause, EventKind, EventRef, Options, Record, RunResult, Simulator};
 
 /// An example circuit file of the repository.
 fn example(file: &str) -> Circuit {
@@ -238,4 +238,79 @@ fn issue_13_zero_dead_time_runs_and_matches_two_gates() {
             }
         }
     }
+}
+
+/// Events say why they happened. In the buck in discontinuous conduction
+/// the freewheeling diode turns off when its current falls to zero, a
+/// located crossing (in steady state); in the synchronous buck with dead time the body diode
+/// is commutated off when the low-side switch turns on, at the gate edge.
+/// The diode's turn-on at the high side's turn-off is a commutation too.
+#[test]
+fn issue_13_events_tell_commutation_from_zero_current() {
+    let dcm = fluxstep_solver::simulate(&example("buck_dcm.json"), 1e-3, Options::default())
+        .expect("runs");
+    let offs: Vec<_> = dcm.events.of_kind(EventKind::DiodeOff).collect();
+    assert!(offs.len() > 100);
+    // Start-up overshoot runs in continuous conduction (commutated off at
+    // the switch's turn-on); in steady discontinuous conduction the
+    // current reaches zero first.
+    let (early, late): (Vec<EventRef<'_>>, Vec<EventRef<'_>>) =
+        offs.iter().partition(|e| e.time < 0.5e-3);
+    assert!(early.iter().any(|e| e.is_commutation()));
+    assert!(late.len() > 50);
+    assert!(late
+        .iter()
+        .all(|e| e.cause == EventCause::Crossing && !e.is_commutation()));
+    let sync = fluxstep_solver::simulate(&example("sync_buck.json"), 1e-3, Options::default())
+        .expect("runs");
+    let offs: Vec<_> = sync.events.of_kind(EventKind::DiodeOff).collect();
+    assert!(offs.len() > 100);
+    assert!(offs.iter().all(|e| e.is_commutation()));
+    assert!(sync
+        .events
+        .of_kind(EventKind::SwitchOn)
+        .all(|e| e.cause == EventCause::Scheduled));
+    // The JSON form carries the cause, and reads back.
+    let text = sync.events.to_json();
+    assert!(text.contains("\"cause\": \"scheduled\""));
+    let back: fluxstep_solver::EventLog = serde_json::from_str(&text).expect("reads back");
+    assert_eq!(back.to_json(), text);
+}
+
+/// A charge-sharing jump reports the charge it moved as well as the energy
+/// it dissipated: C1 at V1 joined to C2 at V2 passes
+/// C1·C2/(C1 + C2)·(V1 − V2) and loses ½·C1·C2/(C1 + C2)·(V1 − V2)²
+/// (conservation of charge; common practice). The switch comes from the
+/// builder's shortcut for a switch that closes at a given time; opening it
+/// again later moves nothing.
+#[test]
+fn issue_13_charge_jump_reports_the_charge_moved() {
+    let (c1, v1, c2, v2) = (1e-6, 10.0, 2.2e-6, 2.0);
+    let c = Circuit::builder()
+        .capacitor_with_voltage("C1", "a", "gnd", c1, v1)
+        .capacitor_with_voltage("C2", "b", "gnd", c2, v2)
+        .timed_switch("S1", "a", "b", &[(1e-6, true), (2e-6, false)])
+        .build()
+        .expect("valid");
+    let run = fluxstep_solver::simulate(&c, 3e-6, Options::default()).expect("runs");
+    let jumps: Vec<_> = run.events.of_kind(EventKind::ChargeJump).collect();
+    assert_eq!(jumps.len(), 1);
+    let series = c1 * c2 / (c1 + c2);
+    let (q, loss) = (series * (v1 - v2), 0.5 * series * (v1 - v2).powi(2));
+    let j = jumps[0];
+    assert_eq!(j.time, 1e-6);
+    assert_eq!(j.cause, EventCause::Scheduled);
+    assert!(
+        (j.moved.unwrap() - q).abs() < 1e-12 * q,
+        "{:?} vs {q}",
+        j.moved
+    );
+    assert!((j.energy.unwrap() - loss).abs() < 1e-12 * loss);
+    let edges = run.events.edges_within("S1", 0.0, 3e-6);
+    assert_eq!(
+        edges.iter().map(|e| (e.time, e.on)).collect::<Vec<_>>(),
+        [(1e-6, true), (2e-6, false)]
+    );
+    let text = run.events.to_json();
+    assert!(text.contains("\"moved\""), "{text}");
 }
