@@ -93,7 +93,7 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
         outputs = default_outputs(&circuit);
     }
     for o in &outputs {
-        if sim.waveform().output(o).is_none() {
+        if sim.waveform().output(o).is_err() {
             anyhow::bail!(
                 "unknown output {o:?}: expected a node name, ELEMENT.current or ELEMENT.voltage"
             );
@@ -155,8 +155,8 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
         write!(csv, "{t:e}").expect("writing to a string");
         for id in &ids {
             match w.value(*id, *t) {
-                Some(v) => write!(csv, ",{v:e}").expect("writing to a string"),
-                None => csv.push(','),
+                Ok(v) => write!(csv, ",{v:e}").expect("writing to a string"),
+                Err(_) => csv.push(','),
             }
         }
         csv.push('\n');
@@ -217,7 +217,7 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
     for (o, id) in outputs.iter().zip(&ids) {
         match measurements
             .iter()
-            .find(|m| m.output == *o || w.output(&m.output) == Some(*id))
+            .find(|m| m.output == *o || w.output(&m.output).ok() == Some(*id))
         {
             Some(m) => println!(
                 "  {:<26} {:>12.5e} {:>12.5e} {:>12.5e} {:>12.5e} {:>12.5e}",

@@ -64,7 +64,7 @@ pub fn output_trace(
 ) -> Result<Trace, PlotError> {
     let id = w
         .output(name)
-        .ok_or_else(|| PlotError::UnknownOutput { name: name.into() })?;
+        .map_err(|_| PlotError::UnknownOutput { name: name.into() })?;
     let span = (t1 - t0).max(f64::MIN_POSITIVE);
     let mut points = vec![];
     for s in w.segments() {

@@ -11,7 +11,7 @@
 
 use nalgebra::DMatrix;
 
-use fluxstep_netlist::{is_ground, Circuit, Element, OutputName, SignalShape, Waveform};
+use fluxstep_netlist::{is_ground, Circuit, Element, SignalShape, Waveform};
 
 use crate::error::SolverError;
 
@@ -601,18 +601,7 @@ impl Compiled {
 
     /// Index of an output by its name (`NODE`, `ELEMENT.current`, …).
     pub fn output_index(&self, name: &str) -> Result<usize, SolverError> {
-        let parsed = OutputName::parse(name).map_err(|p| SolverError::UnknownOutput {
-            name: name.into(),
-            reason: p.message,
-        })?;
-        let key = parsed.to_string();
-        self.outputs
-            .iter()
-            .position(|(n, _)| *n == key)
-            .ok_or_else(|| SolverError::UnknownOutput {
-                name: name.into(),
-                reason: "no node or element of that name".into(),
-            })
+        crate::waveform::output_position(self.outputs.iter().map(|(n, _)| n.as_str()), name)
     }
 
     /// What a jump from `a` to `b` moved: with `flux`, the largest change

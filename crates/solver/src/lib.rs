@@ -70,4 +70,4 @@ pub use events::{Event, EventCause, EventKind, EventLog, EventRef, SwitchEdge};
 pub use mode::ModeKey;
 pub use options::{OnInterruption, OnShootThrough, Options, Record};
 pub use run::{simulate, RunResult, SegmentSink, SegmentView, Simulator, Stats};
-pub use waveform::{OutputId, Segment, Waveform};
+pub use waveform::{OutputId, Segment, ValueError, Waveform};

@@ -4,7 +4,9 @@
 
 use fluxstep_netlist::{Circuit, DiodeModel, Gate};
 use fluxstep_solver::measure::measure;
-use fluxstep_solver::{EventCause, EventKind, EventRef, Options, Record, RunResult, Simulator};
+use fluxstep_solver::{
+    EventCause, EventKind, EventRef, Options, Record, RunResult, Simulator, ValueError,
+};
 
 /// An example circuit file of the repository.
 fn example(file: &str) -> Circuit {
@@ -120,9 +122,9 @@ fn issue_13_clipped_record_agrees_with_the_full_record() {
                 let id = a.output(name).unwrap();
                 // At `from` the window sees the value just after.
                 let (x, y) = if k == 0 {
-                    (a.value(id, t), b.value(id, t))
+                    (a.value(id, t).ok(), b.value(id, t).ok())
                 } else {
-                    (a.value_before(id, t), b.value_before(id, t))
+                    (a.value_before(id, t).ok(), b.value_before(id, t).ok())
                 };
                 match (x, y) {
                     (Some(x), Some(y)) => assert!(
@@ -313,4 +315,92 @@ fn issue_13_charge_jump_reports_the_charge_moved() {
     );
     let text = run.events.to_json();
     assert!(text.contains("\"moved\""), "{text}");
+}
+
+/// One way to look outputs up: the waveform and the simulator give the
+/// same id or the same error, which lists every accepted form; a value
+/// that is missing says why (outside the record, or floating).
+#[test]
+fn issue_13_output_lookup_and_missing_values_say_why() {
+    let c = example("buck.json");
+    let opts = Options {
+        record: Record::Window {
+            from: 1e-4,
+            to: 2e-4,
+        },
+        ..Options::default()
+    };
+    let mut sim = Simulator::new(&c, opts).expect("compiles");
+    let il = sim.output("L1.current").expect("an output");
+    sim.advance_to(2e-4).expect("runs");
+    assert_eq!(sim.waveform().output("L1.current").unwrap(), il);
+    for bad in ["L9.current", "L1.flux"] {
+        let a = sim.output(bad).unwrap_err().to_string();
+        let b = sim.waveform().output(bad).unwrap_err().to_string();
+        assert_eq!(a, b);
+        for form in [
+            "ELEMENT.current",
+            "body_diode",
+            "XFMR.primary",
+            "WINDING",
+            ".output",
+        ] {
+            assert!(a.contains(form), "{a}");
+        }
+    }
+    assert_eq!(
+        sim.value(il).unwrap(),
+        sim.output_value("L1.current").unwrap()
+    );
+    let w = sim.waveform();
+    assert!(matches!(
+        w.value(il, 0.5e-4),
+        Err(ValueError::OutsideRecord { span: Some((a, b)), .. }) if a == 1e-4 && b == 2e-4
+    ));
+    assert!(w.value(il, 1.5e-4).is_ok());
+}
+
+/// Slopes are exact from the mode. In a buck with the switch on the
+/// inductor current rises at (Vin − Vout)/L and with it off falls at
+/// −Vout/L (the inductor's own law, v = L·di/dt; common practice); the
+/// capacitor voltage changes at i_C/C. Checked against the values the
+/// waveform gives at the same instants, to 1e-12.
+#[test]
+fn issue_13_slopes_are_exact_from_the_mode() {
+    let c = example("buck.json");
+    let run = fluxstep_solver::simulate(&c, 1e-3, Options::default()).expect("runs");
+    let w = &run.waveform;
+    let id = |n: &str| w.output(n).unwrap();
+    let (il, vl, vc, ic) = (
+        id("L1.current"),
+        id("L1.voltage"),
+        id("C1.voltage"),
+        id("C1.current"),
+    );
+    let cap = match c.element("C1") {
+        Some(fluxstep_netlist::Element::Capacitor(k)) => k.capacitance,
+        _ => panic!("C1 is a capacitor"),
+    };
+    let l_h = match c.element("L1") {
+        Some(fluxstep_netlist::Element::Inductor(k)) => k.inductance,
+        _ => panic!("L1 is an inductor"),
+    };
+    let mut checked = 0;
+    for k in 0..200 {
+        let t = 0.9e-3 + 1e-4 * f64::from(k) / 200.0 + 1.234e-8;
+        let di = w.slope(il, t).unwrap();
+        let want = w.value(vl, t).unwrap() / l_h;
+        assert!(
+            (di - want).abs() <= 1e-12 * want.abs().max(1.0),
+            "{di} vs {want}"
+        );
+        let dv = w.slope(vc, t).unwrap();
+        let want = w.value(ic, t).unwrap() / cap;
+        assert!(
+            (dv - want).abs() <= 1e-12 * want.abs().max(1.0),
+            "{dv} vs {want}"
+        );
+        checked += 1;
+    }
+    assert_eq!(checked, 200);
 }
