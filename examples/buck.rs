@@ -19,8 +19,8 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
         .ok_or("no PWM gate")?;
     let (_, end) = w.span().ok_or("nothing recorded")?;
     let (t0, t1) = (end - 5.0 * period, end);
-    let il = w.output("L1.current").ok_or("no L1")?;
-    let out = w.output("out").ok_or("no out node")?;
+    let il = w.output("L1.current")?;
+    let out = w.output("out")?;
     let pts = w.vertices(il, t0, t1, 8);
     let (lo, hi) = pts
         .iter()

@@ -198,11 +198,11 @@ fn fmt_settle(s: Option<f64>) -> String {
 
 fn report(label: &str, run: &RunResult) -> Result<(), Box<dyn Error>> {
     let w = &run.waveform;
-    let out = w.output("out").ok_or("no output node")?;
+    let out = w.output("out")?;
     let start = measure(w, out, 0.0, T_STEP)?;
     let step = measure(w, out, T_STEP, T_END)?;
     let fin = measure(w, out, T_END - 10.0 * T, T_END)?;
-    let il = w.output("L1.current").ok_or("no L1")?;
+    let il = w.output("L1.current")?;
     let ripple = measure(w, il, T_END - 10.0 * T, T_END)?;
     println!("{label}");
     let pre = measure(w, out, T_STEP - 10.0 * T, T_STEP)?;

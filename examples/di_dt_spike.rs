@@ -23,8 +23,8 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
         .build()?;
     let run = simulate(&c, 200e-9, Options::default())?;
     let w = &run.waveform;
-    let v = w.output("Lwire.voltage").ok_or("no output")?;
-    let i = w.output("Lwire.current").ok_or("no output")?;
+    let v = w.output("Lwire.voltage")?;
+    let i = w.output("Lwire.current")?;
     println!("10 nH wiring, 10 A → 0 in 10 ns:");
     for t in [50e-9, 105e-9, 150e-9] {
         println!(

@@ -115,8 +115,8 @@ fn steady(label: &str, run: &RunResult, t0: f64, t1: f64) -> Result<(), Box<dyn 
         frequency: f,
         window: (a, b),
     } = cycles(run, t0, t1)?;
-    let out = measure(w, w.output("out").ok_or("no output")?, a, b)?;
-    let il = measure(w, w.output("L1.current").ok_or("no L1")?, a, b)?;
+    let out = measure(w, w.output("out")?, a, b)?;
+    let il = measure(w, w.output("L1.current")?, a, b)?;
     println!(
         "  {label:<11} {n} cycles in {:.3}…{:.3} ms: frequency {:.1} kHz",
         a * 1e3,
@@ -144,7 +144,7 @@ fn main() -> Result<(), Box<dyn Error>> {
     let circuit = hysteretic_buck()?;
     let run = simulate(&circuit, T_END, Options::default())?;
     let w = &run.waveform;
-    let out = w.output("out").ok_or("no output")?;
+    let out = w.output("out")?;
     println!(
         "hysteretic buck {VIN} V → {VREF} V, band {:.3}…{:.3} V, L = {} µH, C = {} µF + {} mΩ, \
          load {} A → {} A at {} ms, supply ramp {} ms",

@@ -37,7 +37,7 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
     fixed.validate()?;
     let run = simulate(&fixed, stop, Options::default())?;
     let w = &run.waveform;
-    let id = w.output("Dfw.current").ok_or("no diode output")?;
+    let id = w.output("Dfw.current")?;
     let t_open = run
         .events
         .iter()

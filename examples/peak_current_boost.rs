@@ -135,8 +135,8 @@ fn main() -> Result<(), Box<dyn Error>> {
     sim.advance_to(T_END)?;
     let run: RunResult = sim.finish();
     let w = &run.waveform;
-    let out = w.output("out").ok_or("no output node")?;
-    let il = w.output("L1.current").ok_or("no L1")?;
+    let out = w.output("out")?;
+    let il = w.output("L1.current")?;
 
     println!(
         "peak-current boost {VIN} V → {VREF} V, {} kHz, L = {} µH, C = {} µF, ramp {} A/µs, \

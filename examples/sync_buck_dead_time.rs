@@ -41,8 +41,8 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
     {
         println!("    {:>12.4} µs  {:?} {}", e.time * 1e6, e.kind, e.element);
     }
-    let sw = w.output("sw").ok_or("no sw node")?;
-    if let Some(v) = w.value(sw, last_off + 1e-9) {
+    let sw = w.output("sw")?;
+    if let Ok(v) = w.value(sw, last_off + 1e-9) {
         println!("  switch node 1 ns into the dead time: {v:.4} V");
     }
     Ok(())

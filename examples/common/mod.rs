@@ -40,7 +40,7 @@ pub fn run_and_report(
         "output", "average", "min", "max", "peak-peak"
     );
     for o in &cfg.outputs {
-        let id = w.output(o).ok_or_else(|| format!("unknown output {o}"))?;
+        let id = w.output(o)?;
         let pts = w.vertices(id, t0, t1, 16);
         let (lo, hi) = pts
             .iter()

@@ -205,7 +205,7 @@ fn simulate(
     };
     let mut sim = Simulator::new(circuit, opts).map_err(|e| anyhow::Error::new(Stopped(e)))?;
     for o in &plan.outputs {
-        if sim.waveform().output(o).is_none() {
+        if sim.waveform().output(o).is_err() {
             anyhow::bail!(
                 "unknown output {o:?}: an output is {}; this circuit has {}",
                 fluxstep_netlist::OUTPUT_FORMS,
@@ -312,7 +312,7 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
     times.dedup();
     let csv_path = dir.join("waveform.csv");
     write_csv(&csv_path, &plan.outputs, &times, |t, out| {
-        out.extend(ids.iter().map(|id| w.value(*id, t)));
+        out.extend(ids.iter().map(|id| w.value(*id, t).ok()));
     })?;
     let events_path = dir.join("events.json");
     std::fs::write(&events_path, result.events.to_json()).map_err(write_failed(&events_path))?;

@@ -137,7 +137,7 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
     times.sort_by(f64::total_cmp);
     times.dedup();
     write_csv(&dir.join("waveform.csv"), &outputs, &times, |t, row| {
-        row.extend(ids.iter().map(|id| w.value(*id, t)));
+        row.extend(ids.iter().map(|id| w.value(*id, t).ok()));
     })?;
     let write = |name: &str, text: String| {
         let path = dir.join(name);

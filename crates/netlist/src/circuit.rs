@@ -6,7 +6,7 @@ use serde::{Deserialize, Serialize};
 
 use crate::element::*;
 use crate::error::{NetlistError, Problem};
-use crate::gate::{Gate, SignalShape};
+use crate::gate::{Gate, SignalShape, Transition};
 use crate::value::{self, SiValue};
 use crate::waveform::Waveform;
 
@@ -650,6 +650,37 @@ impl CircuitBuilder {
             on_resistance: None,
             body_diode: None,
         }))
+    }
+
+    /// Adds an ideal switch `a`–`b` that is open at first and closes
+    /// (`true`) or opens (`false`) at each of the given times (strictly
+    /// increasing), driven by a gate of explicit transitions of the same
+    /// name — the usual way to close a switch onto a charged capacitor or
+    /// open one under inductor current at a chosen instant.
+    ///
+    /// # Example
+    ///
+    /// ```
+    /// use fluxstep_netlist::Circuit;
+    ///
+    /// let c = Circuit::builder()
+    ///     .capacitor_with_voltage("C1", "a", "gnd", 1e-6, 10.0)
+    ///     .capacitor("C2", "b", "gnd", 1e-6)
+    ///     .timed_switch("S1", "a", "b", &[(1e-6, true), (5e-6, false)])
+    ///     .build()
+    ///     .unwrap();
+    /// assert_eq!(c.gates[0].name(), "S1");
+    /// ```
+    pub fn timed_switch(self, name: &str, a: &str, b: &str, times: &[(f64, bool)]) -> Self {
+        self.switch(name, a, b, name).gate(Gate::Transitions {
+            name: name.into(),
+            initial: false,
+            transitions: times
+                .iter()
+                .map(|&(time, on)| Transition { time, on })
+                .collect(),
+            period: None,
+        })
     }
 
     /// Adds a switch with an anti-parallel body diode (a transistor), drain

@@ -106,7 +106,7 @@ pub fn output_trace(
 ) -> Result<Trace, PlotError> {
     let id = w
         .output(name)
-        .ok_or_else(|| PlotError::UnknownOutput { name: name.into() })?;
+        .map_err(|_| PlotError::UnknownOutput { name: name.into() })?;
     let span = (t1 - t0).max(f64::MIN_POSITIVE);
     let mut points = vec![];
     for s in w.segments() {
@@ -170,7 +170,7 @@ fn periodic_ripple(w: &Waveform, name: &str, t0: f64, t1: f64, period: f64) -> O
     if period.is_nan() || period <= 0.0 || t1 - t0 < 2.0 * period * (1.0 - 1e-9) {
         return None;
     }
-    let id = w.output(name)?;
+    let id = w.output(name).ok()?;
     let last = measure(w, id, t1 - period, t1).ok()?;
     let first = measure(w, id, t0, t0 + period).ok()?;
     let tol = 0.02 * last.peak_to_peak;
@@ -215,7 +215,7 @@ pub fn review_figure(
     let measured: Vec<Measurement> = opts
         .outputs
         .iter()
-        .filter_map(|name| measure(w, w.output(name)?, t0.max(a), t1.min(b)).ok())
+        .filter_map(|name| measure(w, w.output(name).ok()?, t0.max(a), t1.min(b)).ok())
         .collect();
     let shown = without_rounding_noise(&measured);
     for name in &opts.outputs {
@@ -223,10 +223,10 @@ pub fn review_figure(
         let mut panel = Panel::new(name.as_str());
         let is_current = unit_of(name).0 == "A";
         if opts.ripple && is_current && !trace.points.is_empty() {
-            let key = w.output(name);
+            let key = w.output(name).ok();
             let m = shown
                 .iter()
-                .find(|m| w.output(&m.output) == key && key.is_some());
+                .find(|m| w.output(&m.output).ok() == key && key.is_some());
             let ripple = if inductor_currents.contains(&name.as_str()) {
                 period.and_then(|p| periodic_ripple(w, name, t0.max(a), t1.min(b), p))
             } else {

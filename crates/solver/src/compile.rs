@@ -11,7 +11,7 @@
 
 use nalgebra::DMatrix;
 
-use fluxstep_netlist::{is_ground, Circuit, Element, OutputName, SignalShape, Waveform};
+use fluxstep_netlist::{is_ground, Circuit, Element, SignalShape, Waveform};
 
 use crate::error::SolverError;
 
@@ -601,21 +601,32 @@ impl Compiled {
 
     /// Index of an output by its name (`NODE`, `ELEMENT.current`, …).
     pub fn output_index(&self, name: &str) -> Result<usize, SolverError> {
-        let parsed = OutputName::parse(name).map_err(|p| SolverError::UnknownOutput {
-            name: name.into(),
-            reason: p.message,
-        })?;
-        let key = parsed.to_string();
-        self.outputs
-            .iter()
-            .position(|(n, _)| *n == key)
-            .ok_or_else(|| SolverError::UnknownOutput {
-                name: name.into(),
-                reason: format!(
-                    "no node or element of that name; an output is {}",
-                    fluxstep_netlist::OUTPUT_FORMS
-                ),
-            })
+        crate::waveform::output_position(self.outputs.iter().map(|(n, _)| n.as_str()), name)
+    }
+
+    /// What a jump from `a` to `b` moved: with `flux`, the largest change
+    /// of flux linkage (L·i, by coupled group) of any inductor; else the
+    /// largest change of charge C·v of any capacitor.
+    pub fn moved(&self, a: &[f64], b: &[f64], flux: bool) -> f64 {
+        let mut most = 0.0f64;
+        if flux {
+            for g in &self.groups {
+                for (i, _) in g.states.iter().enumerate() {
+                    let d: f64 = g
+                        .states
+                        .iter()
+                        .enumerate()
+                        .map(|(j, &sj)| g.l[(i, j)] * (b[sj] - a[sj]))
+                        .sum();
+                    most = most.max(d.abs());
+                }
+            }
+        } else {
+            for &(s, cap) in &self.caps {
+                most = most.max((cap * (b[s] - a[s])).abs());
+            }
+        }
+        most
     }
 
     /// Stored energy ½·iᵀL i + ½·C v² of the state part of `z`.

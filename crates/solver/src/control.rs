@@ -31,7 +31,7 @@
 //! let sampling = Sampling { inputs: vec!["out".into()], period: 10e-6, ..Sampling::default() };
 //! sim.add_controller(sampling, Box::new(controller)).unwrap();
 //! sim.advance_to(20e-3).unwrap();
-//! let out = sim.output_value("out").unwrap().unwrap();
+//! let out = sim.output_value("out").unwrap();
 //! assert!((out - 5.0).abs() < 0.1, "{out}");
 //! ```
 

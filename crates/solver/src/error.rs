@@ -17,6 +17,15 @@ pub enum SolverError {
         /// Why it was rejected.
         reason: String,
     },
+    /// An output has no value now: it depends on a free potential (a
+    /// floating node, or the voltage of an open element across one).
+    #[error("t = {time:e} s: {output} is undetermined (floating)")]
+    Undetermined {
+        /// The output's name.
+        output: String,
+        /// The present time (s).
+        time: f64,
+    },
     /// A switch or diode opened while inductors carried current with no path
     /// left for it: physically an unbounded voltage spike (an arc across a
     /// contact, the avalanche that destroys a transistor).
@@ -164,7 +173,8 @@ impl SolverError {
             | SolverError::Chatter { time, .. }
             | SolverError::EventLimit { time, .. }
             | SolverError::NonFinite { time, .. }
-            | SolverError::Control { time, .. } => Some(*time),
+            | SolverError::Control { time, .. }
+            | SolverError::Undetermined { time, .. } => Some(*time),
             SolverError::Netlist(_)
             | SolverError::UnknownOutput { .. }
             | SolverError::BadTime { .. }

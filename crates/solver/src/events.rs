@@ -37,18 +37,57 @@ pub enum EventKind {
     ShootThrough,
 }
 
+/// What kind of instant an event happened at: with the event's kind, why
+/// it happened. A diode turning off at a [`EventCause::Scheduled`] instant
+/// was commutated by the switching there; one turning off at a
+/// [`EventCause::Crossing`] had its current fall to zero on its own
+/// (discontinuous conduction).
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum EventCause {
+    /// At t = 0, settling the initial conduction pattern.
+    #[default]
+    Start,
+    /// At a scheduled instant: a gate edge, a comparator gate's clock, a
+    /// sampled controller's update or a source corner. Switch events here
+    /// are gate edges; diode events and jumps follow from them.
+    Scheduled,
+    /// At an instant located on the exact solution: a diode's current or
+    /// voltage reaching zero, or a comparator gate's threshold crossed
+    /// (its switch events), and what follows from it.
+    Crossing,
+}
+
+/// A switch turning on or off (see [`EventLog::edges_within`]).
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+pub struct SwitchEdge {
+    /// Time (s).
+    pub time: f64,
+    /// True: turned on; false: turned off.
+    pub on: bool,
+}
+
 /// One event, owned.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct Event {
     /// Time (s).
     pub time: f64,
-    /// Cause.
+    /// What happened.
     pub kind: EventKind,
+    /// The kind of instant it happened at (why).
+    #[serde(default)]
+    pub cause: EventCause,
     /// The element (switch, diode, source; for jumps the elements involved, comma-separated).
     pub element: String,
     /// Energy dissipated by a jump (J); `None` for other events.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub energy: Option<f64>,
+    /// What a jump moved: the charge (C) of a [`EventKind::ChargeJump`],
+    /// the flux linkage (Wb) of a [`EventKind::FluxJump`] — the largest
+    /// that any one capacitor or inductor gained or lost, which for two
+    /// sharing is what passed between them; `None` for other events.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub moved: Option<f64>,
     /// State (inductor currents, capacitor voltages, oscillator states) just before.
     pub before: Vec<f64>,
     /// State just after.
@@ -60,13 +99,18 @@ pub struct Event {
 pub struct EventRef<'a> {
     /// Time (s).
     pub time: f64,
-    /// Cause.
+    /// What happened.
     pub kind: EventKind,
+    /// The kind of instant it happened at (why).
+    pub cause: EventCause,
     /// The element (switch, diode, source; for jumps the elements involved, comma-separated).
     pub element: &'a str,
     /// Energy dissipated by a jump (J); `None` for other events.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub energy: Option<f64>,
+    /// Charge (C) or flux linkage (Wb) a jump moved (see [`Event::moved`]).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub moved: Option<f64>,
     /// State just before (see [`EventLog::state_names`]).
     pub before: &'a [f64],
     /// State just after.
@@ -74,13 +118,21 @@ pub struct EventRef<'a> {
 }
 
 impl EventRef<'_> {
+    /// A diode turned off by the switching at a scheduled instant (a
+    /// commutation), not by its current falling to zero.
+    pub fn is_commutation(&self) -> bool {
+        self.kind == EventKind::DiodeOff && self.cause == EventCause::Scheduled
+    }
+
     /// An owned copy.
     pub fn to_event(self) -> Event {
         Event {
             time: self.time,
             kind: self.kind,
+            cause: self.cause,
             element: self.element.to_string(),
             energy: self.energy,
+            moved: self.moved,
             before: self.before.to_vec(),
             after: self.after.to_vec(),
         }
@@ -89,6 +141,7 @@ impl EventRef<'_> {
 
 /// One logged event in 24 bytes: its snapshots are numbered (snapshot k
 /// is `states[k·n..(k+1)·n]`), and the rare energy of a jump is kept aside.
+/// Kind and cause are one byte each, in what would be padding.
 #[derive(Clone, Copy, Debug, PartialEq)]
 struct Compact {
     time: f64,
@@ -96,6 +149,16 @@ struct Compact {
     before: u32,
     after: u32,
     kind: EventKind,
+    cause: EventCause,
+}
+
+/// What a jump adds to its event: the energy it dissipated (J) and the
+/// charge or flux linkage it moved (`None` in logs read from JSON written
+/// before it was recorded).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub(crate) struct JumpInfo {
+    pub energy: f64,
+    pub moved: Option<f64>,
 }
 
 /// Every recorded event in time order, with the names of the state entries.
@@ -107,8 +170,9 @@ pub struct EventLog {
     states: Vec<f64>,
     /// Number of snapshots in `states`.
     snapshots: u32,
-    /// (record index, energy) of the events that carry an energy, in order.
-    energies: Vec<(u32, f64)>,
+    /// (record index, what the jump dissipated and moved) of the events
+    /// that carry them, in order.
+    energies: Vec<(u32, JumpInfo)>,
 }
 
 impl EventLog {
@@ -197,12 +261,14 @@ impl EventLog {
     /// Appends an event; `false` (and nothing added) if the log is full
     /// (2³² − 2 snapshots or records) or the states have the wrong length.
     #[inline]
+    #[allow(clippy::too_many_arguments)] // one record's fields
     pub(crate) fn push(
         &mut self,
         time: f64,
         kind: EventKind,
+        cause: EventCause,
         who: u32,
-        energy: Option<f64>,
+        jump: Option<JumpInfo>,
         before: &[f64],
         after: &[f64],
     ) -> bool {
@@ -222,8 +288,8 @@ impl EventLog {
         } else {
             self.snapshot(after)
         };
-        if let Some(e) = energy {
-            self.energies.push((self.records.len() as u32, e));
+        if let Some(j) = jump {
+            self.energies.push((self.records.len() as u32, j));
         }
         self.records.push(Compact {
             time,
@@ -231,6 +297,7 @@ impl EventLog {
             before: b,
             after: a,
             kind,
+            cause,
         });
         true
     }
@@ -244,6 +311,7 @@ impl EventLog {
     pub(crate) fn push_pair(
         &mut self,
         time: f64,
+        cause: EventCause,
         first: Option<(EventKind, u32)>,
         second: Option<(EventKind, u32)>,
         before: &[f64],
@@ -265,6 +333,7 @@ impl EventLog {
                 before: b,
                 after: b,
                 kind,
+                cause,
             });
         }
         if let Some((kind, who)) = second {
@@ -283,6 +352,7 @@ impl EventLog {
                 before: b,
                 after: a,
                 kind,
+                cause,
             });
         }
         true
@@ -291,7 +361,7 @@ impl EventLog {
     fn view(&self, i: usize, c: &Compact) -> EventRef<'_> {
         let n = self.state_names.len();
         let (b, a) = (c.before as usize * n, c.after as usize * n);
-        let energy = self
+        let jump = self
             .energies
             .binary_search_by_key(&(i as u32), |&(k, _)| k)
             .ok()
@@ -299,8 +369,10 @@ impl EventLog {
         EventRef {
             time: c.time,
             kind: c.kind,
+            cause: c.cause,
             element: &self.names[c.who as usize],
-            energy,
+            energy: jump.map(|j| j.energy),
+            moved: jump.and_then(|j| j.moved),
             before: &self.states[b..b + n],
             after: &self.states[a..a + n],
         }
@@ -333,12 +405,18 @@ impl EventLog {
     }
 
     /// Switch edges (on and off) of one switch with `t0 <= time <= t1`.
-    pub fn edges_within(&self, switch: &str, t0: f64, t1: f64) -> Vec<(f64, bool)> {
+    pub fn edges_within(&self, switch: &str, t0: f64, t1: f64) -> Vec<SwitchEdge> {
         self.of(switch)
             .filter(|e| e.time >= t0 && e.time <= t1)
             .filter_map(|e| match e.kind {
-                EventKind::SwitchOn => Some((e.time, true)),
-                EventKind::SwitchOff => Some((e.time, false)),
+                EventKind::SwitchOn => Some(SwitchEdge {
+                    time: e.time,
+                    on: true,
+                }),
+                EventKind::SwitchOff => Some(SwitchEdge {
+                    time: e.time,
+                    on: false,
+                }),
                 _ => None,
             })
             .collect()
@@ -430,7 +508,11 @@ impl<'de> Deserialize<'de> for EventLog {
         let mut log = EventLog::new(o.state_names);
         for (i, e) in o.events.into_iter().enumerate() {
             let who = log.intern(&e.element);
-            if !log.push(e.time, e.kind, who, e.energy, &e.before, &e.after) {
+            let jump = e.energy.map(|energy| JumpInfo {
+                energy,
+                moved: e.moved,
+            });
+            if !log.push(e.time, e.kind, e.cause, who, jump, &e.before, &e.after) {
                 return Err(serde::de::Error::custom(format!(
                     "event {i}: before/after must list {} state values",
                     log.state_names.len()
@@ -473,13 +555,35 @@ fn same_bits(a: &[f64], b: &[f64]) -> bool {
 mod tests {
     use super::*;
 
+    /// The cause byte sits in what was padding: a record stays 24 bytes.
+    #[test]
+    fn a_record_is_24_bytes() {
+        assert_eq!(std::mem::size_of::<Compact>(), 24);
+    }
+
     #[test]
     fn json_round_trip_and_shared_snapshots() {
         let mut log = EventLog::new(vec!["L1.current".into()]);
         let s = log.intern("S1");
         let d = log.intern("D1");
-        log.push(1e-6, EventKind::SwitchOff, s, None, &[2.0], &[2.0]);
-        log.push(1e-6, EventKind::DiodeOn, d, None, &[2.0], &[2.0]);
+        log.push(
+            1e-6,
+            EventKind::SwitchOff,
+            EventCause::Scheduled,
+            s,
+            None,
+            &[2.0],
+            &[2.0],
+        );
+        log.push(
+            1e-6,
+            EventKind::DiodeOn,
+            EventCause::Scheduled,
+            d,
+            None,
+            &[2.0],
+            &[2.0],
+        );
         // One snapshot serves both events of the instant.
         assert_eq!(log.states.len(), 1);
         let text = log.to_json();
@@ -493,26 +597,52 @@ mod tests {
         let mut log = EventLog::new(vec!["C1.voltage".into(), "C2.voltage".into()]);
         let s = log.intern("S1");
         let j = log.intern("C1,C2");
-        assert!(log.push(0.0, EventKind::SwitchOn, s, None, &[4.0, 0.0], &[4.0, 0.0]));
+        assert!(log.push(
+            0.0,
+            EventKind::SwitchOn,
+            EventCause::Start,
+            s,
+            None,
+            &[4.0, 0.0],
+            &[4.0, 0.0]
+        ));
         assert!(log.push(
             0.0,
             EventKind::ChargeJump,
+            EventCause::Start,
             j,
-            Some(2.0),
+            Some(JumpInfo {
+                energy: 2.0,
+                moved: Some(4.0)
+            }),
             &[4.0, 0.0],
             &[2.0, 2.0]
         ));
-        assert!(log.push(1.0, EventKind::SwitchOff, s, None, &[2.0, 2.0], &[2.0, 2.0]));
+        assert!(log.push(
+            1.0,
+            EventKind::SwitchOff,
+            EventCause::Scheduled,
+            s,
+            None,
+            &[2.0, 2.0],
+            &[2.0, 2.0]
+        ));
         assert!(log.push(
             2.0,
             EventKind::ChargeJump,
+            EventCause::Scheduled,
             j,
-            Some(0.5),
+            Some(JumpInfo {
+                energy: 0.5,
+                moved: None
+            }),
             &[2.0, 1.0],
             &[1.5, 1.5]
         ));
         let energies: Vec<Option<f64>> = log.iter().map(|e| e.energy).collect();
         assert_eq!(energies, [None, Some(2.0), None, Some(0.5)]);
+        let moved: Vec<Option<f64>> = log.iter().map(|e| e.moved).collect();
+        assert_eq!(moved, [None, Some(4.0), None, None]);
         assert_eq!(log.get(1).unwrap().after, &[2.0, 2.0]);
         assert_eq!(log.get(2).unwrap().before, &[2.0, 2.0]);
         assert_eq!(log.jumps(), [(0.0, 2.0), (2.0, 0.5)]);
@@ -520,6 +650,7 @@ mod tests {
         assert!(!log.push(
             3.0,
             EventKind::SwitchOn,
+            EventCause::Scheduled,
             s,
             None,
             &[1.0, 2.0, 3.0],

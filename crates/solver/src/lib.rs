@@ -68,8 +68,8 @@ mod waveform_ext;
 
 pub use dynamics::{Crossed, SegmentDynamics};
 pub use error::SolverError;
-pub use events::{Event, EventKind, EventLog};
+pub use events::{Event, EventCause, EventKind, EventLog, EventRef, SwitchEdge};
 pub use mode::ModeKey;
 pub use options::{OnInterruption, OnShootThrough, Options, Record};
 pub use run::{simulate, RunResult, SegmentSink, SegmentView, Simulator, Stats};
-pub use waveform::{OutputId, Segment, Waveform};
+pub use waveform::{OutputId, Segment, ValueError, Waveform};

@@ -412,8 +412,8 @@ fn element_parts(waveform: &Waveform, element: &str) -> Vec<(OutputId, OutputId)
         .filter_map(|n| n.strip_suffix(".current"))
         .filter(|part| *part == element || part.starts_with(&prefix))
         .filter_map(|part| {
-            let v = waveform.output(&format!("{part}.voltage"))?;
-            let i = waveform.output(&format!("{part}.current"))?;
+            let v = waveform.output(&format!("{part}.voltage")).ok()?;
+            let i = waveform.output(&format!("{part}.current")).ok()?;
             Some((v, i))
         })
         .collect()
@@ -679,7 +679,7 @@ pub fn settling_time(
             }
             let v = waveform
                 .value(id, mid)
-                .ok_or_else(|| MeasureError::Undetermined {
+                .map_err(|_| MeasureError::Undetermined {
                     subject: subject.clone(),
                     time: mid,
                 })?;
@@ -699,7 +699,7 @@ impl Measurement {
     fn end_value(&self, waveform: &Waveform, id: OutputId) -> Result<f64, MeasureError> {
         waveform
             .value_before(id, self.t1)
-            .ok_or_else(|| MeasureError::Undetermined {
+            .map_err(|_| MeasureError::Undetermined {
                 subject: self.output.clone(),
                 time: self.t1,
             })

@@ -6,8 +6,73 @@ use std::sync::Arc;
 
 use nalgebra::DVector;
 
+use crate::error::SolverError;
 use crate::mode::Mode;
 use crate::propagate;
+
+/// Every form of output name the circuit format accepts, for error
+/// messages.
+pub(crate) const OUTPUT_FORMS: &str = "an output is a node name, ELEMENT.current or \
+    ELEMENT.voltage of a two-terminal element, ELEMENT.WINDING.current or .voltage of a \
+    coupled-inductor winding, XFMR.primary or XFMR.secondary with .current or .voltage of \
+    an ideal transformer, SWITCH.body_diode.current or .voltage, or COMPENSATOR.output";
+
+/// The position of output `name` among `names` (canonical output names).
+///
+/// # Errors
+///
+/// [`SolverError::UnknownOutput`] for a name that is malformed or names
+/// nothing in the circuit, with every accepted form listed.
+pub(crate) fn output_position<'a>(
+    names: impl IntoIterator<Item = &'a str>,
+    name: &str,
+) -> Result<usize, SolverError> {
+    let parsed =
+        fluxstep_netlist::OutputName::parse(name).map_err(|p| SolverError::UnknownOutput {
+            name: name.into(),
+            reason: format!("{}; {OUTPUT_FORMS}", p.message),
+        })?;
+    let key = parsed.to_string();
+    names
+        .into_iter()
+        .position(|n| n == key)
+        .ok_or_else(|| SolverError::UnknownOutput {
+            name: name.into(),
+            reason: format!("no node or element of that name in this circuit; {OUTPUT_FORMS}"),
+        })
+}
+
+/// Why an output has no value at an instant.
+#[derive(Clone, Debug, PartialEq, thiserror::Error)]
+pub enum ValueError {
+    /// The instant lies outside the recorded window (or nothing was
+    /// recorded: `span` is `None`).
+    #[error("{output}: t = {time:e} s is outside the recorded window{}",
+        span.map(|(a, b)| format!(" [{a:e}, {b:e}] s")).unwrap_or_else(|| " (nothing recorded)".into()))]
+    OutsideRecord {
+        /// The output's name.
+        output: String,
+        /// The instant asked for (s).
+        time: f64,
+        /// The recorded window, if any.
+        span: Option<(f64, f64)>,
+    },
+    /// The output is undetermined there: it depends on a free potential
+    /// (a floating node, or the voltage of an open element across one).
+    #[error("{output} is undetermined (floating) at t = {time:e} s")]
+    Undetermined {
+        /// The output's name.
+        output: String,
+        /// The instant asked for (s).
+        time: f64,
+    },
+    /// The id belongs to another circuit's waveform.
+    #[error("output id {index} does not belong to this waveform")]
+    ForeignOutput {
+        /// The id's index.
+        index: usize,
+    },
+}
 
 /// One stretch of the run inside a single mode, with no event inside.
 #[derive(Clone, Debug, PartialEq)]
@@ -59,14 +124,16 @@ const GL8: [(f64, f64); 8] = [
 
 impl Waveform {
     /// The id of an output by name: a node name, `ELEMENT.current`,
-    /// `ELEMENT.voltage` (windings `ELEMENT.WINDING.current`, body diodes
-    /// `SWITCH.body_diode.current`).
-    pub fn output(&self, name: &str) -> Option<OutputId> {
-        let key = fluxstep_netlist::OutputName::parse(name).ok()?.to_string();
-        self.output_names
-            .iter()
-            .position(|n| *n == key)
-            .map(OutputId)
+    /// `ELEMENT.voltage` (windings `ELEMENT.WINDING.current`, transformer
+    /// sides `XFMR.primary.current`, body diodes
+    /// `SWITCH.body_diode.current`, compensators `NAME.output`). The same
+    /// look-up as [`crate::Simulator::output`].
+    ///
+    /// # Errors
+    ///
+    /// [`SolverError::UnknownOutput`], listing every accepted form.
+    pub fn output(&self, name: &str) -> Result<OutputId, SolverError> {
+        output_position(self.output_names.iter().map(String::as_str), name).map(OutputId)
     }
 
     /// All output names, in id order.
@@ -120,20 +187,106 @@ impl Waveform {
         Some(m.c.row(id.0).iter().zip(z.iter()).map(|(a, b)| a * b).sum())
     }
 
-    /// Value of an output at `t` (the value just after an event at `t`);
-    /// `None` outside the recorded window or where the output is
-    /// undetermined (a floating node).
-    pub fn value(&self, id: OutputId, t: f64) -> Option<f64> {
-        let i = self.find(t, false)?;
+    /// Segment `i` holding `t` (right value, or left limit with `left`),
+    /// or why there is none.
+    fn locate(&self, id: OutputId, t: f64, left: bool) -> Result<usize, ValueError> {
+        if !self.has_output(id) {
+            return Err(ValueError::ForeignOutput { index: id.0 });
+        }
+        self.find(t, left).ok_or_else(|| ValueError::OutsideRecord {
+            output: self.output_name(id).to_string(),
+            time: t,
+            span: self.span(),
+        })
+    }
+
+    /// The output of segment `i` at `t`, or why it is undetermined.
+    fn value_in(&self, i: usize, id: OutputId, t: f64) -> Result<f64, ValueError> {
         let z = self.state_in(i, t);
         self.out_in(i, id, &z)
+            .ok_or_else(|| ValueError::Undetermined {
+                output: self.output_name(id).to_string(),
+                time: t,
+            })
+    }
+
+    /// Value of an output at `t` (the value just after an event at `t`).
+    ///
+    /// # Errors
+    ///
+    /// [`ValueError::OutsideRecord`] outside the recorded window,
+    /// [`ValueError::Undetermined`] where the output floats,
+    /// [`ValueError::ForeignOutput`] for another waveform's id.
+    pub fn value(&self, id: OutputId, t: f64) -> Result<f64, ValueError> {
+        let i = self.locate(id, t, false)?;
+        self.value_in(i, id, t)
     }
 
     /// Value just before `t` (the left limit at an event).
-    pub fn value_before(&self, id: OutputId, t: f64) -> Option<f64> {
-        let i = self.find(t, true)?;
+    ///
+    /// # Errors
+    ///
+    /// As [`Waveform::value`].
+    pub fn value_before(&self, id: OutputId, t: f64) -> Result<f64, ValueError> {
+        let i = self.locate(id, t, true)?;
+        self.value_in(i, id, t)
+    }
+
+    /// Time derivative of an output at `t` (just after an event at `t`):
+    /// the inductor voltage over inductance of `L1.current` (di/dt), the
+    /// current over capacitance of `C1.voltage` (dv/dt), the slew rate of
+    /// a node. Exact from the mode: with z′ = M z and output y = c·z,
+    /// y′ = c·(M z), no finite difference. An output that steps at an
+    /// event has a slope on each side; this is the one after.
+    ///
+    /// # Errors
+    ///
+    /// As [`Waveform::value`].
+    ///
+    /// # Example
+    ///
+    /// ```
+    /// use fluxstep_netlist::Circuit;
+    /// use fluxstep_solver::{simulate, Options};
+    ///
+    /// // 1 V across 1 mH through 1 Ω: di/dt = (1 − i)/1e-3 A/s.
+    /// let c = Circuit::builder()
+    ///     .voltage_source("V1", "in", "gnd", 1.0)
+    ///     .resistor("R1", "in", "a", 1.0)
+    ///     .inductor("L1", "a", "gnd", 1e-3)
+    ///     .build()
+    ///     .unwrap();
+    /// let run = simulate(&c, 2e-3, Options::default()).unwrap();
+    /// let w = &run.waveform;
+    /// let il = w.output("L1.current").unwrap();
+    /// let i = w.value(il, 1e-3).unwrap();
+    /// assert!((w.slope(il, 1e-3).unwrap() - (1.0 - i) / 1e-3).abs() < 1e-9);
+    /// ```
+    pub fn slope(&self, id: OutputId, t: f64) -> Result<f64, ValueError> {
+        let i = self.locate(id, t, false)?;
+        self.slope_in(i, id, t)
+    }
+
+    /// Time derivative just before `t` (the left limit at an event).
+    ///
+    /// # Errors
+    ///
+    /// As [`Waveform::value`].
+    pub fn slope_before(&self, id: OutputId, t: f64) -> Result<f64, ValueError> {
+        let i = self.locate(id, t, true)?;
+        self.slope_in(i, id, t)
+    }
+
+    fn slope_in(&self, i: usize, id: OutputId, t: f64) -> Result<f64, ValueError> {
+        let m = &self.modes[self.segments[i].mode as usize];
+        if m.undetermined[id.0] {
+            return Err(ValueError::Undetermined {
+                output: self.output_name(id).to_string(),
+                time: t,
+            });
+        }
         let z = self.state_in(i, t);
-        self.out_in(i, id, &z)
+        Ok(slope_of(m, id.0, z.as_slice()))
     }
 
     /// The state vector (inductor currents, capacitor voltages, oscillator
@@ -201,7 +354,10 @@ impl Waveform {
         }
         times.sort_by(f64::total_cmp);
         times.dedup();
-        times.into_iter().map(|t| (t, self.value(id, t))).collect()
+        times
+            .into_iter()
+            .map(|t| (t, self.value(id, t).ok()))
+            .collect()
     }
 
     /// ∫ f(outputs) dt over [t0, t1] ∩ the recorded window, where `f`
@@ -249,4 +405,17 @@ impl Waveform {
     pub fn average(&self, id: OutputId, t0: f64, t1: f64) -> f64 {
         self.integrate(&[id], t0, t1, |v| v[0]) / (t1 - t0)
     }
+}
+
+/// y′ = c·(M z) for output row `row` of mode `m` at state `z`.
+pub(crate) fn slope_of(m: &Mode, row: usize, z: &[f64]) -> f64 {
+    let c = m.c.row(row);
+    let mut sum = 0.0;
+    for (j, cj) in c.iter().enumerate() {
+        if *cj != 0.0 {
+            let mz: f64 = m.m.row(j).iter().zip(z).map(|(a, b)| a * b).sum();
+            sum += cj * mz;
+        }
+    }
+    sum
 }

@@ -231,7 +231,7 @@ impl SteadyState {
         let wave = &self.run.waveform;
         let id = wave
             .output(output)
-            .ok_or_else(|| AnalysisError::UnknownOutput {
+            .map_err(|_| AnalysisError::UnknownOutput {
                 name: output.to_string(),
                 valid: wave.output_names().to_vec(),
             })?;

@@ -18,6 +18,7 @@ use super::locate::suspect_at_end;
 use super::schedule::TimeKey;
 use super::Simulator;
 use crate::error::SolverError;
+use crate::events::EventCause;
 use crate::propagate;
 
 impl Simulator {
@@ -125,6 +126,7 @@ impl Simulator {
                         std::mem::swap(&mut self.z, &mut self.z_next);
                         self.check_finite()?;
                         self.stats.state_events += 1;
+                        self.cause = EventCause::Crossing;
                         let cause = self.fire_comparators(cmp_fired, t_e)?;
                         self.resolve(fired, cause, false)?;
                         continue;
@@ -153,6 +155,7 @@ impl Simulator {
     /// records as one by one).
     fn lane_instant(&mut self, t: f64) -> Result<(), SolverError> {
         self.stats.scheduled_events += 1;
+        self.cause = EventCause::Scheduled;
         let n_x = self.cc.n_x;
         self.before.clear();
         propagate::extend_small(&mut self.before, &self.z.as_slice()[..n_x]);

@@ -26,7 +26,7 @@ use fluxstep_netlist::Circuit;
 
 use crate::compile::Compiled;
 use crate::error::SolverError;
-use crate::events::{adopt, EventLog};
+use crate::events::{adopt, EventCause, EventLog};
 use crate::mode::{pattern_text, Mode, ModeKey};
 use crate::options::{Options, Record};
 use crate::propagate;
@@ -109,7 +109,7 @@ pub struct RunResult {
 ///     .unwrap();
 /// let mut sim = Simulator::new(&c, Options::default()).unwrap();
 /// sim.advance_to(1e-3).unwrap();
-/// let i = sim.output_value("L1.current").unwrap().unwrap();
+/// let i = sim.output_value("L1.current").unwrap();
 /// assert!((i - (1.0 - (-1.0f64).exp())).abs() < 1e-12);
 /// ```
 pub struct Simulator {
@@ -156,6 +156,8 @@ pub struct Simulator {
     recent_head: usize,
     /// Every event counted, kept or not (for the event limit).
     n_events: usize,
+    /// The kind of the present instant, logged with its events.
+    cause: EventCause,
     stats: Stats,
     /// Largest inductor current and capacitor/source voltage seen so far.
     seen: (f64, f64),
@@ -308,6 +310,7 @@ impl Simulator {
             recent: vec![],
             recent_head: 0,
             n_events: 0,
+            cause: EventCause::Start,
             stats: Stats::default(),
             seen: (0.0, 0.0),
             current_states: vec![],
@@ -425,19 +428,72 @@ impl Simulator {
         pattern_text(&self.cc, self.key)
     }
 
-    /// Present value of an output; `Ok(None)` when it is undetermined (a
-    /// floating node).
+    /// The id of an output by name, for [`Simulator::value`] and the
+    /// waveform (the same look-up as [`Waveform::output`]).
     ///
     /// # Errors
     ///
-    /// [`SolverError::UnknownOutput`] for a name that is not an output.
-    pub fn output_value(&self, name: &str) -> Result<Option<f64>, SolverError> {
-        let i = self.cc.output_index(name)?;
-        let m = &self.modes[self.mode as usize];
-        if m.undetermined[i] {
-            return Ok(None);
+    /// [`SolverError::UnknownOutput`], listing every accepted form.
+    pub fn output(&self, name: &str) -> Result<OutputId, SolverError> {
+        self.cc.output_index(name).map(OutputId)
+    }
+
+    /// Present value of an output.
+    ///
+    /// # Errors
+    ///
+    /// [`SolverError::UnknownOutput`] for a name that is not an output,
+    /// [`SolverError::Undetermined`] where it floats now.
+    pub fn output_value(&self, name: &str) -> Result<f64, SolverError> {
+        let id = self.output(name)?;
+        self.value(id)
+    }
+
+    /// Present value of output `id`.
+    ///
+    /// # Errors
+    ///
+    /// As [`Simulator::output_value`].
+    pub fn value(&self, id: OutputId) -> Result<f64, SolverError> {
+        let i = self.checked_row(id)?;
+        Ok(dot(
+            self.modes[self.mode as usize].c.row(i).iter().copied(),
+            self.z.as_slice(),
+        ))
+    }
+
+    /// Present time derivative of output `id` (di/dt of an inductor
+    /// current, dv/dt of a capacitor voltage), exact from the mode: see
+    /// [`Waveform::slope`].
+    ///
+    /// # Errors
+    ///
+    /// As [`Simulator::output_value`].
+    pub fn slope(&self, id: OutputId) -> Result<f64, SolverError> {
+        let i = self.checked_row(id)?;
+        Ok(crate::waveform::slope_of(
+            &self.modes[self.mode as usize],
+            i,
+            self.z.as_slice(),
+        ))
+    }
+
+    /// The output row of `id` if it is this circuit's and determined now.
+    fn checked_row(&self, id: OutputId) -> Result<usize, SolverError> {
+        let name = self.cc.outputs.get(id.0).map(|(n, _)| n.as_str());
+        let Some(name) = name else {
+            return Err(SolverError::UnknownOutput {
+                name: format!("#{}", id.0),
+                reason: "the id belongs to another circuit".into(),
+            });
+        };
+        if self.modes[self.mode as usize].undetermined[id.0] {
+            return Err(SolverError::Undetermined {
+                output: name.to_string(),
+                time: self.t,
+            });
         }
-        Ok(Some(dot(m.c.row(i).iter().copied(), self.z.as_slice())))
+        Ok(id.0)
     }
 
     /// Stored energy in inductors and capacitors now (J).
@@ -544,6 +600,7 @@ impl Simulator {
                     std::mem::swap(&mut self.z, &mut self.z_next);
                     self.check_finite()?;
                     self.stats.state_events += 1;
+                    self.cause = EventCause::Crossing;
                     let cause = self.fire_comparators(cmp_fired, t_e)?;
                     self.resolve(fired, cause, false)?;
                     continue;

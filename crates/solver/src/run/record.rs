@@ -3,7 +3,7 @@
 
 use super::{SegmentView, Simulator};
 use crate::error::SolverError;
-use crate::events::EventKind;
+use crate::events::{EventKind, JumpInfo};
 use crate::options::Record;
 use crate::propagate;
 use crate::waveform::Segment;
@@ -31,16 +31,19 @@ impl Simulator {
         }
     }
 
-    fn keeps(&self, t0: f64, t1: f64) -> bool {
+    /// Whether an event at `time` is kept: inside the recorded window,
+    /// ends included.
+    fn keeps(&self, time: f64) -> bool {
         match self.opts.record {
             Record::All => true,
-            Record::Window { from, to } => t1 >= from && t0 <= to,
+            Record::Window { from, to } => time >= from && time <= to,
             Record::Nothing => false,
         }
     }
 
     /// Records the segment from now to `t1` (start state `z`), which ends
-    /// at a scheduled instant.
+    /// at a scheduled instant: all of it, or under [`Record::Window`]
+    /// exactly its part inside `[from, to]`.
     #[inline(always)]
     pub(super) fn record(&mut self, t1: f64) {
         self.record_ending(t1, crate::dynamics::SCHEDULED_END);
@@ -69,15 +72,61 @@ impl Simulator {
             };
             sink(&view);
         }
-        if self.keeps(t0, t1) {
-            propagate::extend_small(&mut self.wave.states, self.z.as_slice());
-            self.wave.segments.push(Segment {
-                t0,
-                t1,
-                mode: self.mode,
-                end,
-            });
+        match self.opts.record {
+            Record::All => self.push_segment(t0, t1, end),
+            Record::Window { from, to } => {
+                if t0 >= from && t1 <= to {
+                    self.push_segment(t0, t1, end);
+                } else if t1 > from && t0 < to {
+                    self.push_clipped(t0, t1, from, to, end);
+                }
+            }
+            Record::Nothing => {}
         }
+    }
+
+    /// Appends the segment [t0, t1] that starts at the present state.
+    #[inline(always)]
+    fn push_segment(&mut self, t0: f64, t1: f64, end: u32) {
+        propagate::extend_small(&mut self.wave.states, self.z.as_slice());
+        self.wave.segments.push(Segment {
+            t0,
+            t1,
+            mode: self.mode,
+            end,
+        });
+    }
+
+    /// Appends the part of the segment [t0, t1] inside the window
+    /// [from, to], which it crosses at one end or both: the recorded run
+    /// covers exactly the window. A segment that starts before `from`
+    /// starts its record at `from` with the state there, by the same
+    /// exact propagation [`crate::Waveform`] uses inside a segment (so the
+    /// clipped record gives the same bits at every instant it keeps).
+    /// Happens at most twice per window, so it may allocate.
+    #[cold]
+    #[inline(never)]
+    fn push_clipped(&mut self, t0: f64, t1: f64, from: f64, to: f64, end: u32) {
+        let (a, b) = (t0.max(from), t1.min(to));
+        if a > t0 {
+            let m = &self.modes[self.mode as usize];
+            let z = propagate::advance(&m.m, m.rate, &self.z, a - t0);
+            propagate::extend_small(&mut self.wave.states, z.as_slice());
+        } else {
+            propagate::extend_small(&mut self.wave.states, self.z.as_slice());
+        }
+        // Cut short by the window's end, the record ends at no event.
+        let end = if b < t1 {
+            crate::dynamics::SCHEDULED_END
+        } else {
+            end
+        };
+        self.wave.segments.push(Segment {
+            t0: a,
+            t1: b,
+            mode: self.mode,
+            end,
+        });
     }
 
     /// Counts an event (event limit, chatter) and logs it if kept. The state
@@ -89,7 +138,7 @@ impl Simulator {
         time: f64,
         kind: EventKind,
         who: Who,
-        energy: Option<f64>,
+        jump: Option<JumpInfo>,
         changed_state: bool,
     ) -> Result<(), SolverError> {
         self.n_events += 1;
@@ -116,13 +165,16 @@ impl Simulator {
         if self.recent.len() == cap && oldest >= time - window {
             return Err(self.chatter_error(time));
         }
-        if self.keeps(time, time) {
+        if self.keeps(time) {
             let after = if changed_state {
                 &self.z.as_slice()[..self.cc.n_x]
             } else {
                 &self.before[..]
             };
-            if !self.log.push(time, kind, id, energy, &self.before, after) {
+            if !self
+                .log
+                .push(time, kind, self.cause, id, jump, &self.before, after)
+            {
                 // The log numbers its records and snapshots with 32 bits.
                 return Err(self.log_full_error(time));
             }
@@ -187,10 +239,13 @@ impl Simulator {
             };
             (kind, self.cc.switches.len() as u32 + i)
         });
-        if self.keeps(time, time) {
+        if self.keeps(time) {
             let after = &self.z.as_slice()[..self.cc.n_x];
             // Refused (nothing added): one by one gives the same refusal.
-            if !self.log.push_pair(time, first, second, &self.before, after) {
+            if !self
+                .log
+                .push_pair(time, self.cause, first, second, &self.before, after)
+            {
                 return self.push_instant_one_by_one(time, switched, diodes);
             }
         }

@@ -24,7 +24,7 @@ use super::record::Who;
 use super::Simulator;
 use crate::compile::BranchKind;
 use crate::error::SolverError;
-use crate::events::EventKind;
+use crate::events::{EventKind, JumpInfo};
 use crate::mode::{pattern_text, ConstraintKind, Mode, ModeKey, ModeProblem};
 use crate::options::{OnInterruption, OnShootThrough};
 use crate::propagate;
@@ -367,15 +367,20 @@ impl Simulator {
         let n_x = self.cc.n_x;
         self.before.clear();
         self.before.extend_from_slice(&self.z.as_slice()[..n_x]);
-        let jump_energy = (cut_jump || loop_jump).then(|| {
-            self.cc.stored_energy(self.z.as_slice()) - self.cc.stored_energy(self.z_try.as_slice())
+        let jump = (cut_jump || loop_jump).then(|| JumpInfo {
+            energy: self.cc.stored_energy(self.z.as_slice())
+                - self.cc.stored_energy(self.z_try.as_slice()),
+            moved: Some(
+                self.cc
+                    .moved(self.z.as_slice(), self.z_try.as_slice(), cut_jump),
+            ),
         });
         let old = self.key.diodes;
         let was_shorted = self.modes[self.mode as usize].resistive_short.is_some() && !initial;
         self.key = key;
         self.mode = mi;
         std::mem::swap(&mut self.z, &mut self.z_try);
-        if let Some(energy) = jump_energy {
+        if let Some(jump) = jump {
             let mut names: Vec<String> = vec![];
             for kind in &self.modes[mi as usize].constraints {
                 let list = match kind {
@@ -390,7 +395,7 @@ impl Simulator {
                 EventKind::ChargeJump
             };
             let id = self.log.intern(&names.join(","));
-            self.push_event(self.t, kind, Who::Named(id), Some(energy), true)?;
+            self.push_event(self.t, kind, Who::Named(id), Some(jump), true)?;
         }
         let short = match (&self.modes[mi as usize].resistive_short, was_shorted) {
             (Some((devices, _)), false) => Some(devices.join(",")),

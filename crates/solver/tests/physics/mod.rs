@@ -2,5 +2,6 @@ mod control;
 mod converters;
 mod crosscheck;
 mod exact;
+mod issue_13;
 mod structure;
 pub mod util;
