@@ -8,7 +8,11 @@
 //!
 //! # Brief overview
 //!
-//! (filled in as the modules land)
+//! - [`sweep`]: sweeps over operating points, tolerance corners and Monte
+//!   Carlo samples ([`sweep::Sweep`]), run in parallel with identical bits
+//!   whatever the thread count, or in shards merged into the same table.
 
 // Every public item is part of the embedding API.
 #![deny(missing_docs)]
+
+pub mod sweep;
