@@ -21,6 +21,7 @@ mod check;
 mod input;
 mod run;
 mod si;
+mod sweep;
 
 /// Exit status for input that cannot be used. clap uses the same status for
 /// usage errors, so every "your input is wrong" case shares one code.
@@ -47,6 +48,11 @@ enum Command {
     /// Run the transient a circuit file describes; write waveform CSV,
     /// event log, measurement summary and figure into a folder.
     Run(run::Args),
+    /// Run a sweep file (operating points, tolerance corners, Monte Carlo),
+    /// or one shard of it; write the result table and summary.
+    Sweep(sweep::Args),
+    /// Combine the shard folders of a sweep into the files a single run writes.
+    Merge(sweep::MergeArgs),
 }
 
 fn main() -> ExitCode {
@@ -54,6 +60,8 @@ fn main() -> ExitCode {
     let result = match &cli.command {
         Command::Check(args) => check::run(args),
         Command::Run(args) => run::run(args),
+        Command::Sweep(args) => sweep::run(args),
+        Command::Merge(args) => sweep::merge(args),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,
