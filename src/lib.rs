@@ -3,7 +3,8 @@
 //! This facade re-exports the pipeline's crates in data-flow order:
 //! [`netlist`] (circuit description, JSON, validation) → [`solver`] (exact
 //! piecewise-linear transient: modes, matrix exponentials, located events)
-//! → [`plot`] (SVG design-review figures). The `fluxstep` binary
+//! → [`analysis`] (sweeps over operating points and tolerances) → [`plot`]
+//! (SVG design-review figures). The `fluxstep` binary
 //! (fluxstep-cli) wires the same crates to JSON files.
 //!
 //! Simulation results do not replace measurement on real hardware, local
@@ -33,6 +34,7 @@
 //! assert!((v + 18.0).abs() < 0.5, "{v}");
 //! ```
 
+pub use fluxstep_analysis as analysis;
 pub use fluxstep_netlist as netlist;
 pub use fluxstep_plot as plot;
 pub use fluxstep_solver as solver;
