@@ -373,7 +373,7 @@ impl Sweep {
                 Length::Periods(n)
             }
             (None, Some(t), _) | (None, None, Some(t)) => {
-                if !(t > 0.0) {
+                if t.is_nan() || t <= 0.0 {
                     return Err(invalid(
                         "simulation.stop_time".into(),
                         format!("must be positive, got {t}"),

@@ -34,7 +34,7 @@ pub(super) fn check_distribution(d: &Distribution) -> Result<(), String> {
                 return Err(format!("sigma must not be negative, got {sigma}"));
             }
             if let Some([lo, hi]) = limits {
-                if !(lo < hi) {
+                if lo.is_nan() || hi.is_nan() || lo >= hi {
                     return Err(format!("limits must satisfy low < high, got [{lo}, {hi}]"));
                 }
                 let mass = if sigma == 0.0 {
