@@ -2,7 +2,7 @@
 //! circuit, run the transient, measure the figures.
 
 use fluxstep_netlist::Circuit;
-use fluxstep_solver::measure::{element_power, measure};
+use fluxstep_solver::measure::{element_power, measure, MeasureError, Measurement};
 use fluxstep_solver::{Options, Record, RunResult, Simulator};
 
 use super::rng::SplitMix64;
@@ -191,14 +191,26 @@ impl Sweep {
             _ => from,
         };
         let mut problem = None;
+        // One measurement per output, shared by its figures: measuring
+        // (exact integrals and extremes) costs more than the run's last
+        // periods themselves.
+        let mut measured: Vec<(&str, Result<Measurement, MeasureError>)> = vec![];
         for (k, f) in self.figures.iter().enumerate() {
             let value = if f.measure == Measure::Power {
                 element_power(w, &f.of, from, to)
             } else {
-                let id = w
-                    .output(&f.of)
-                    .expect("figure outputs are checked on the base circuit");
-                measure(w, id, from, to).map(|m| match f.measure {
+                let m = match measured.iter().position(|(o, _)| *o == f.of) {
+                    Some(j) => measured[j].1.clone(),
+                    None => {
+                        let id = w
+                            .output(&f.of)
+                            .expect("figure outputs are checked on the base circuit");
+                        let m = measure(w, id, from, to);
+                        measured.push((&f.of, m.clone()));
+                        m
+                    }
+                };
+                m.map(|m| match f.measure {
                     Measure::Average => m.average,
                     Measure::Rms => m.rms,
                     Measure::Min => m.min,
