@@ -42,6 +42,10 @@ fn sweep_text() -> String {
   "figures": [
     {{"kind": "window", "name": "vout", "of": "out", "measure": "average"}},
     {{"kind": "window", "name": "il_peak", "of": "L1.current", "measure": "max"}}
+  ],
+  "plots": [
+    {{"kind": "lines", "figure": "vout", "x": "Vin.waveform.value", "lines": "Rload.resistance"}},
+    {{"kind": "histogram", "figure": "il_peak", "bins": 5}}
   ]
 }}"#,
         buck_json()
@@ -109,7 +113,16 @@ fn threads_and_merged_shards_write_the_same_bytes() {
     let mut args = vec!["merge"];
     args.extend(shard_dirs.iter().map(String::as_str));
     ok(&fluxstep(&args));
-    for name in ["table.csv", "summary.json"] {
+    let plots = [
+        "plot-1-vout-vs-Vin.waveform.value.svg",
+        "plot-2-il_peak-histogram.svg",
+    ];
+    let lines = String::from_utf8(read(one.join(plots[0]))).unwrap();
+    // One line per load, drawn through the three sample-0 points of each;
+    // the slice holds L1.inductance at its first value.
+    assert_eq!(lines.matches("<polyline").count(), 2, "{lines}");
+    assert!(lines.contains("Rload.resistance = 6 Ω"), "{lines}");
+    for name in ["table.csv", "summary.json", plots[0], plots[1]] {
         let a = read(one.join(name));
         assert_eq!(a, read(two.join(name)), "{name}: 1 vs 2 threads");
         assert_eq!(

@@ -109,6 +109,11 @@ pub struct Figure {
     /// cut at its edges (by linear interpolation between vertices), so a
     /// window of a long run draws only what is visible.
     pub window: Option<(f64, f64)>,
+    /// Default `None`: the horizontal axis is time in seconds. `Some((name,
+    /// unit))` names another quantity (a swept parameter, a histogram's
+    /// figure); traces' first coordinates are then that quantity, still
+    /// non-decreasing along each trace.
+    pub x_axis: Option<(String, String)>,
 }
 
 impl Figure {
@@ -120,6 +125,7 @@ impl Figure {
             width: 960,
             height: 640,
             window: None,
+            x_axis: None,
         }
     }
 
@@ -133,6 +139,12 @@ impl Figure {
     pub fn with_size(mut self, width: u32, height: u32) -> Self {
         self.width = width;
         self.height = height;
+        self
+    }
+
+    /// Names the horizontal quantity and its unit (instead of time in seconds).
+    pub fn with_x_axis(mut self, name: impl Into<String>, unit: impl Into<String>) -> Self {
+        self.x_axis = Some((name.into(), unit.into()));
         self
     }
 

@@ -435,7 +435,39 @@ impl Sweep {
             .filter(|&n| n <= usize::MAX as u64 / 2)
             .ok_or_else(|| invalid("parameters".into(), "too many points".into()))?;
 
+        for (i, plot) in spec.plots.iter().enumerate() {
+            let (figure, params) = match plot {
+                PlotSpec::Lines { figure, x, lines } => {
+                    (figure, std::iter::once(x).chain(lines).collect::<Vec<_>>())
+                }
+                PlotSpec::Histogram { figure, bins } => {
+                    if bins.is_some_and(|b| b == 0) {
+                        return Err(invalid(
+                            format!("plots[{i}].bins"),
+                            "must be at least 1".into(),
+                        ));
+                    }
+                    (figure, vec![])
+                }
+            };
+            if !figures.iter().any(|f| f.name == *figure) {
+                return Err(invalid(
+                    format!("plots[{i}].figure"),
+                    format!("{figure:?} is not a figure of this sweep"),
+                ));
+            }
+            for p in params {
+                if !columns.iter().any(|c| c.text == *p) {
+                    return Err(invalid(
+                        format!("plots[{i}]"),
+                        format!("{p:?} is not a parameter of this sweep"),
+                    ));
+                }
+            }
+        }
+
         let meta = TableMeta {
+            plots: spec.plots.clone(),
             fingerprint: fingerprint(&spec, &base),
             points,
             monte_carlo: spec.monte_carlo.is_some(),

@@ -9,7 +9,7 @@ use std::path::Path;
 
 use serde::{Deserialize, Serialize};
 
-use super::spec::Worst;
+use super::spec::{PlotSpec, Worst};
 use super::{Shard, SweepError};
 
 /// How a point ended.
@@ -58,7 +58,7 @@ pub struct Column {
 }
 
 /// What a table holds besides its rows; the same for every shard of a sweep.
-#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct TableMeta {
     /// A hash of the sweep and its base circuit.
     pub fingerprint: String,
@@ -70,6 +70,9 @@ pub struct TableMeta {
     pub parameters: Vec<Column>,
     /// Figure columns.
     pub figures: Vec<Column>,
+    /// The plots the sweep asks for, drawn from the table.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub plots: Vec<PlotSpec>,
 }
 
 /// One point's results.
