@@ -3,7 +3,8 @@
 //! This facade re-exports the pipeline's crates in data-flow order:
 //! [`netlist`] (circuit description, JSON, validation) → [`solver`] (exact
 //! piecewise-linear transient: modes, matrix exponentials, located events)
-//! → [`analysis`] (periodic steady state and its stability) → [`plot`]
+//! → [`analysis`] (periodic steady state and its stability, small-signal
+//! response, sweeps over operating points and tolerances) → [`plot`]
 //! (SVG design-review figures). The `fluxstep` binary
 //! (fluxstep-cli) wires the same crates to JSON files.
 //!

@@ -23,6 +23,9 @@
 //!   sense input or a current injected into a node, from the linearised
 //!   switched model (no averaging); [`response::loop_gain`] with crossover
 //!   and phase and gain margins.
+//! - [`sweep`]: sweeps over operating points, tolerance corners and Monte
+//!   Carlo samples ([`sweep::Sweep`]), run in parallel with identical bits
+//!   whatever the thread count, or in shards merged into the same table.
 //! - [`AnalysisError`]: every failure, naming what it concerns.
 //!
 //! # Example
@@ -56,6 +59,7 @@
 mod error;
 pub mod response;
 pub mod steady;
+pub mod sweep;
 mod units;
 
 pub use error::AnalysisError;

@@ -9,3 +9,7 @@ mod response;
 /// iteration counts, the discontinuous-conduction ratio, current-mode
 /// multipliers, saltation against finite differences, bad input.
 mod steady;
+/// Sweeps: same bits for any thread count and for merged shards, the buck's
+/// CCM/DCM conversion ratios over a duty sweep, Monte Carlo statistics,
+/// failing corners, bad input, and the committed JSON Schema.
+mod sweep;

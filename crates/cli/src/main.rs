@@ -23,6 +23,7 @@ mod check;
 mod input;
 mod run;
 mod steady;
+mod sweep;
 
 /// Exit status for input that cannot be used. clap uses the same status for
 /// usage errors, so every "your input is wrong" case shares one code.
@@ -76,6 +77,11 @@ enum Command {
     /// period map) with its Floquet multipliers; write one period as CSV,
     /// the summary and a figure of two periods.
     Steady(steady::Args),
+    /// Run a sweep file (operating points, tolerance corners, Monte Carlo),
+    /// or one shard of it; write the result table and summary.
+    Sweep(sweep::Args),
+    /// Combine the shard folders of a sweep into the files a single run writes.
+    Merge(sweep::MergeArgs),
 }
 
 fn main() -> ExitCode {
@@ -84,6 +90,8 @@ fn main() -> ExitCode {
         Command::Check(args) => check::run(args),
         Command::Run(args) => run::run(args),
         Command::Steady(args) => steady::run(args),
+        Command::Sweep(args) => sweep::run(args),
+        Command::Merge(args) => sweep::merge(args),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

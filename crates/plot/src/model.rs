@@ -133,6 +133,11 @@ pub struct Figure {
     /// on the same value axis and its own time axis: a dead-time interval
     /// or a diode turn-off that is a single pixel at full width.
     pub zooms: Vec<(f64, f64)>,
+    /// Default `None`: the horizontal axis is time in seconds. `Some((name,
+    /// unit))` names another quantity (a swept parameter, a histogram's
+    /// figure); traces' first coordinates are then that quantity, still
+    /// non-decreasing along each trace.
+    pub x_axis: Option<(String, String)>,
 }
 
 impl Figure {
@@ -145,6 +150,7 @@ impl Figure {
             height: 640,
             window: None,
             zooms: Vec::new(),
+            x_axis: None,
         }
     }
 
@@ -164,6 +170,12 @@ impl Figure {
     pub fn with_size(mut self, width: u32, height: u32) -> Self {
         self.width = width;
         self.height = height;
+        self
+    }
+
+    /// Names the horizontal quantity and its unit (instead of time in seconds).
+    pub fn with_x_axis(mut self, name: impl Into<String>, unit: impl Into<String>) -> Self {
+        self.x_axis = Some((name.into(), unit.into()));
         self
     }
 

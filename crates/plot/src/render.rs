@@ -635,7 +635,11 @@ impl<'a> Layout<'a> {
             )));
         }
 
-        let (x_ticks, x_labels, x_title) = x_axis(t0, t1, plot_w);
+        let (name, unit) = figure
+            .x_axis
+            .as_ref()
+            .map_or(("time", "s"), |(n, u)| (n.as_str(), u.as_str()));
+        let (x_ticks, x_labels, x_title) = x_axis(t0, t1, plot_w, name, unit);
         let zooms = figure
             .zooms
             .iter()
@@ -1167,9 +1171,9 @@ fn y_axis(p: &PanelLayout<'_>, plot_h: f64, name: &str) -> Result<YAxis, PlotErr
     })
 }
 
-/// Time ticks for a plot `plot_w` pixels wide: as many as fit with their
-/// labels at least a gap apart.
-fn x_axis(t0: f64, t1: f64, plot_w: f64) -> (Ticks, Vec<String>, String) {
+/// Horizontal ticks for a plot `plot_w` pixels wide: as many as fit with
+/// their labels at least a gap apart; the title is `name (prefix unit)`.
+fn x_axis(t0: f64, t1: f64, plot_w: f64, name: &str, unit: &str) -> (Ticks, Vec<String>, String) {
     let (factor, prefix) = si_scale(t0.abs().max(t1.abs()));
     let make = |max_count: usize| {
         let ticks = nice_ticks(t0, t1, max_count);
@@ -1194,7 +1198,12 @@ fn x_axis(t0: f64, t1: f64, plot_w: f64) -> (Ticks, Vec<String>, String) {
             break;
         }
     }
-    (chosen.0, chosen.1, format!("time ({}s)", chosen.2))
+    let title = if unit.is_empty() && chosen.2.is_empty() {
+        name.to_string()
+    } else {
+        format!("{name} ({}{unit})", chosen.2)
+    };
+    (chosen.0, chosen.1, title)
 }
 
 /// Time ticks of a zoom column: two or three labels fit its width; the
