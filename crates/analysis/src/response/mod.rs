@@ -136,7 +136,8 @@ impl Point {
             im: h.im,
             magnitude_db: 20.0 * h.norm().log10(),
             phase_deg: h.arg().to_degrees(),
-            beyond_nyquist: frequency > 0.5 * fs,
+            // fs = 1/T carries the rounding of T: fs/2 itself is not beyond.
+            beyond_nyquist: frequency > 0.5 * fs * (1.0 + 1e-12),
         }
     }
 
@@ -168,8 +169,8 @@ pub struct Response {
 /// A loop gain with its margins.
 #[derive(Debug)]
 pub struct LoopGain {
-    /// The closed-loop gate whose sense input is the break point.
-    pub gate: String,
+    /// Where the loop is broken.
+    pub point: BreakPoint,
     /// T(f) = −(returned signal)/(signal at the comparator), one entry per
     /// frequency asked for.
     pub points: Vec<Point>,
@@ -211,7 +212,9 @@ pub fn log_frequencies(from: f64, to: f64, points: usize) -> Result<Vec<f64>, An
     let (a, b) = (from.ln(), to.ln());
     Ok((0..points)
         .map(|k| {
-            if k + 1 == points {
+            if k == 0 {
+                from
+            } else if k + 1 == points {
                 to
             } else {
                 (a + (b - a) * k as f64 / (points - 1) as f64).exp()
@@ -350,41 +353,147 @@ pub fn frequency_response(
     })
 }
 
-/// The loop gain of the loop closed through closed-loop gate `gate`,
-/// broken at the gate's sense input: a signal v̂ added to what the
-/// comparator senses returns as x̂ through the loop, and
-/// T = −x̂ / (x̂ + v̂) — R. D. Middlebrook's voltage injection ("Measurement
-/// of loop gain in feedback systems", Int. J. Electronics 1975), exact here
-/// because the comparator draws no current.
-///
-/// # Errors
-///
-/// As [`frequency_response`]; [`AnalysisError::UnknownInput`] when `gate`
-/// is not a closed-loop gate.
-pub fn loop_gain(
-    circuit: &Circuit,
-    gate: &str,
-    frequencies: &[f64],
-    opts: &SteadyOptions,
-) -> Result<LoopGain, AnalysisError> {
-    check_frequencies(frequencies)?;
-    let sense = circuit
-        .gates
-        .iter()
-        .find(|g| g.name() == gate)
-        .and_then(Gate::comparator)
-        .map(|spec| spec.sense)
-        .ok_or_else(|| AnalysisError::UnknownInput {
-            name: format!("{gate}.sense"),
+/// Where a loop is broken for its loop gain.
+#[derive(Clone, Debug, PartialEq)]
+pub enum BreakPoint {
+    /// At a closed-loop gate's sense input: what the comparator compares
+    /// (for a voltage-mode gate, the compensator's output).
+    GateSense(String),
+    /// At a compensator's input: the node voltage it measures.
+    CompensatorInput(String),
+}
+
+impl BreakPoint {
+    /// The break point named `name` in `circuit`: a closed-loop gate or a
+    /// compensator.
+    ///
+    /// # Errors
+    ///
+    /// [`AnalysisError::UnknownInput`] listing the closed-loop gates and
+    /// compensators.
+    pub fn named(circuit: &Circuit, name: &str) -> Result<BreakPoint, AnalysisError> {
+        if circuit
+            .gates
+            .iter()
+            .any(|g| g.name() == name && g.comparator().is_some())
+        {
+            return Ok(BreakPoint::GateSense(name.into()));
+        }
+        if circuit.compensators.iter().any(|k| k.name == name) {
+            return Ok(BreakPoint::CompensatorInput(name.into()));
+        }
+        Err(AnalysisError::UnknownInput {
+            name: format!("loop break point {name}"),
             valid: circuit
                 .gates
                 .iter()
                 .filter(|g| g.comparator().is_some())
                 .map(|g| g.name().to_string())
+                .chain(circuit.compensators.iter().map(|k| k.name.clone()))
                 .collect(),
-        })?;
-    let ss = steady_for_response(circuit, opts)?;
-    let lin = linear::Linearized::new(circuit, &ss, &Input::Sense(gate.into()), &sense)?;
+        })
+    }
+}
+
+/// The circuit prepared for a loop break, the input that injects there and
+/// the output that returns: at a gate's sense, the comparator's sense input
+/// and its sensed output; at a compensator's input, a zero-valued voltage
+/// source in series with the measurement (the compensator then measures
+/// node + source) and the node itself.
+fn prepare_break(
+    circuit: &Circuit,
+    point: &BreakPoint,
+) -> Result<(Circuit, Input, String), AnalysisError> {
+    match point {
+        BreakPoint::GateSense(gate) => {
+            let sense = circuit
+                .gates
+                .iter()
+                .find(|g| g.name() == gate)
+                .and_then(Gate::comparator)
+                .map(|spec| spec.sense)
+                .ok_or_else(|| AnalysisError::UnknownInput {
+                    name: format!("{gate}.sense"),
+                    valid: circuit
+                        .gates
+                        .iter()
+                        .filter(|g| g.comparator().is_some())
+                        .map(|g| g.name().to_string())
+                        .collect(),
+                })?;
+            Ok((circuit.clone(), Input::Sense(gate.clone()), sense))
+        }
+        BreakPoint::CompensatorInput(name) => {
+            let mut c = circuit.clone();
+            let k = c
+                .compensators
+                .iter_mut()
+                .find(|k| k.name == *name)
+                .ok_or_else(|| AnalysisError::UnknownInput {
+                    name: name.clone(),
+                    valid: circuit
+                        .compensators
+                        .iter()
+                        .map(|k| k.name.clone())
+                        .collect(),
+                })?;
+            let node = k.input.clone();
+            if !circuit.nodes().contains(&node) {
+                return Err(AnalysisError::InvalidOption {
+                    field: "loop",
+                    reason: format!(
+                        "compensator {name} measures {node}, not a node voltage: break the loop at its gate instead"
+                    ),
+                });
+            }
+            let unique = |base: &str| {
+                let mut s = base.to_string();
+                while circuit.element(&s).is_some() || circuit.nodes().contains(&s) {
+                    s.push('_');
+                }
+                s
+            };
+            let (source, sensed) = (unique("loop_injection"), unique("loop_sense"));
+            k.input = sensed.clone();
+            c.elements
+                .push(Element::VoltageSource(fluxstep_netlist::VoltageSource {
+                    name: source.clone(),
+                    nodes: [sensed.clone(), node.clone()],
+                    waveform: Stimulus::Constant { value: 0.0 },
+                }));
+            // The measured node needs a second terminal; 1 GΩ draws nothing
+            // that matters and keeps the netlist's rules.
+            c.elements
+                .push(Element::Resistor(fluxstep_netlist::Resistor {
+                    name: unique("loop_sense_load"),
+                    nodes: [sensed, "gnd".into()],
+                    resistance: 1e9,
+                }));
+            Ok((c, Input::Value(source), node))
+        }
+    }
+}
+
+/// The loop gain of a closed loop broken at `point`: a signal v̂ injected
+/// there returns as x̂ through the loop, and T = −x̂ / (x̂ + v̂) —
+/// R. D. Middlebrook's voltage injection ("Measurement of loop gain in
+/// feedback systems", Int. J. Electronics 1975), exact here because a
+/// comparator or a compensator input draws no current.
+///
+/// # Errors
+///
+/// As [`frequency_response`]; [`AnalysisError::UnknownInput`] for a break
+/// point that is neither a closed-loop gate nor a compensator.
+pub fn loop_gain(
+    circuit: &Circuit,
+    point: &BreakPoint,
+    frequencies: &[f64],
+    opts: &SteadyOptions,
+) -> Result<LoopGain, AnalysisError> {
+    check_frequencies(frequencies)?;
+    let (c, input, ret) = prepare_break(circuit, point)?;
+    let ss = steady_for_response(&c, opts)?;
+    let lin = linear::Linearized::new(&c, &ss, &input, &ret)?;
     let fs = 1.0 / lin.period();
     let t_of = |f: f64| {
         let x = lin.transfer(f);
@@ -396,7 +505,7 @@ pub fn loop_gain(
         .collect();
     let margins = margins::margins(frequencies, &points, &t_of);
     Ok(LoopGain {
-        gate: gate.to_string(),
+        point: point.clone(),
         points,
         margins,
         switching_frequency: fs,
