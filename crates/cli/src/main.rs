@@ -21,6 +21,7 @@ use fluxstep_netlist::NetlistError;
 
 mod check;
 mod input;
+mod response;
 mod run;
 mod steady;
 mod sweep;
@@ -77,6 +78,11 @@ enum Command {
     /// period map) with its Floquet multipliers; write one period as CSV,
     /// the summary and a figure of two periods.
     Steady(steady::Args),
+    /// Small-signal frequency response of the periodic steady state (an
+    /// input to an output), or the loop gain of a closed loop with its
+    /// crossover and margins; write CSV, JSON and a Bode figure.
+    #[command(after_help = EXIT_CODES)]
+    Response(response::Args),
     /// Run a sweep file (operating points, tolerance corners, Monte Carlo),
     /// or one shard of it; write the result table and summary.
     Sweep(sweep::Args),
@@ -90,6 +96,7 @@ fn main() -> ExitCode {
         Command::Check(args) => check::run(args),
         Command::Run(args) => run::run(args),
         Command::Steady(args) => steady::run(args),
+        Command::Response(args) => response::run(args),
         Command::Sweep(args) => sweep::run(args),
         Command::Merge(args) => sweep::merge(args),
     };

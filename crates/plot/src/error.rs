@@ -15,6 +15,17 @@ pub enum PlotError {
         /// Title of the figure.
         figure: String,
     },
+    /// A Bode figure's frequency is not positive and finite, or not above
+    /// the one before.
+    #[error("figure '{figure}': frequency {frequency} Hz at point {index} is not positive, finite and increasing")]
+    InvalidFrequency {
+        /// Title of the figure.
+        figure: String,
+        /// Index of the point.
+        index: usize,
+        /// The frequency given (Hz).
+        frequency: f64,
+    },
     /// A panel holds no trace.
     #[error("{panel} has no traces")]
     EmptyPanel {

@@ -72,6 +72,7 @@
 // Every public item is part of the figure contract other crates build on.
 #![deny(missing_docs)]
 
+mod bode;
 mod error;
 mod model;
 mod reduce;
@@ -79,6 +80,7 @@ mod render;
 mod review;
 mod scale;
 
+pub use bode::{bode_figure, unwrap_phase, BodeMarks, BodePoint};
 pub use error::PlotError;
 pub use model::{Annotation, Figure, Panel, Trace};
 pub use render::{render_svg, write_svg};

@@ -138,6 +138,10 @@ pub struct Figure {
     /// figure); traces' first coordinates are then that quantity, still
     /// non-decreasing along each trace.
     pub x_axis: Option<(String, String)>,
+    /// Default false. True: traces' first coordinates are log10 of the
+    /// horizontal quantity (a frequency), and the axis is labelled at
+    /// decades in that quantity's unit with SI prefixes ("1 kHz").
+    pub x_log10: bool,
 }
 
 impl Figure {
@@ -151,6 +155,7 @@ impl Figure {
             window: None,
             zooms: Vec::new(),
             x_axis: None,
+            x_log10: false,
         }
     }
 
@@ -176,6 +181,13 @@ impl Figure {
     /// Names the horizontal quantity and its unit (instead of time in seconds).
     pub fn with_x_axis(mut self, name: impl Into<String>, unit: impl Into<String>) -> Self {
         self.x_axis = Some((name.into(), unit.into()));
+        self
+    }
+
+    /// A logarithmic horizontal axis: traces carry log10 of the quantity
+    /// named by [`Figure::with_x_axis`] (see [`Figure::x_log10`]).
+    pub fn with_log_x(mut self) -> Self {
+        self.x_log10 = true;
         self
     }
 

@@ -18,8 +18,8 @@ use crate::error::PlotError;
 use crate::model::{Annotation, Figure, Panel};
 use crate::reduce::{clip_to_window, thin_per_column};
 use crate::scale::{
-    exponent_labels, fixed_labels, format_si, format_si_digits, nice_ticks, quantity_name,
-    si_scale, Ticks,
+    exponent_labels, fixed_labels, format_si, format_si_digits, format_si_short, nice_ticks,
+    quantity_name, si_scale, Ticks,
 };
 
 const MARGIN: f64 = 14.0;
@@ -639,7 +639,11 @@ impl<'a> Layout<'a> {
             .x_axis
             .as_ref()
             .map_or(("time", "s"), |(n, u)| (n.as_str(), u.as_str()));
-        let (x_ticks, x_labels, x_title) = x_axis(t0, t1, plot_w, name, unit);
+        let (x_ticks, x_labels, x_title) = if figure.x_log10 {
+            decade_axis(t0, t1, name, unit)
+        } else {
+            x_axis(t0, t1, plot_w, name, unit)
+        };
         let zooms = figure
             .zooms
             .iter()
@@ -1204,6 +1208,27 @@ fn x_axis(t0: f64, t1: f64, plot_w: f64, name: &str, unit: &str) -> (Ticks, Vec<
         format!("{name} ({}{unit})", chosen.2)
     };
     (chosen.0, chosen.1, title)
+}
+
+/// Ticks of a logarithmic axis whose coordinates are log10 of the quantity:
+/// one per decade inside [t0, t1] (at least the two ends when the span is
+/// under a decade), labelled in the quantity's unit with SI prefixes.
+fn decade_axis(t0: f64, t1: f64, name: &str, unit: &str) -> (Ticks, Vec<String>, String) {
+    let mut values: Vec<f64> = (t0.ceil() as i64..=t1.floor() as i64)
+        .map(|d| d as f64)
+        .collect();
+    if values.len() < 2 {
+        values = vec![t0, t1];
+    }
+    let labels = values
+        .iter()
+        .map(|v| format_si_short(10f64.powf(*v), unit))
+        .collect();
+    (
+        Ticks { step: 1.0, values },
+        labels,
+        format!("{name} (log scale)"),
+    )
 }
 
 /// Time ticks of a zoom column: two or three labels fit its width; the

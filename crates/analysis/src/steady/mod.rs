@@ -53,6 +53,10 @@ use period::common_period;
 /// factor e) is no steady state a designer could observe.
 const UNIT_MULTIPLIER: f64 = 1e-10;
 
+/// Plain periods taken where no fraction of a Newton step reduces the
+/// residual: enough for a loop held at a duty limit to come off it.
+const PLAIN_BURST: usize = 50;
+
 /// Options of a steady-state search.
 #[derive(Clone, Debug)]
 pub struct SteadyOptions {
@@ -362,10 +366,15 @@ impl<'c> Shooter<'c> {
 
 /// The largest change over the period relative to each state's scale.
 fn residual(p: &Period, free: &[usize]) -> f64 {
-    let top = free.iter().map(|&i| p.scale[i]).fold(0.0, f64::max);
+    residual_on(p, &p.scale, free)
+}
+
+/// The largest change over the period relative to `scale`.
+fn residual_on(p: &Period, scale: &[f64], free: &[usize]) -> f64 {
+    let top = free.iter().map(|&i| scale[i]).fold(0.0, f64::max);
     let floor = 1e-9 * top + f64::MIN_POSITIVE;
     free.iter()
-        .map(|&i| (p.x_end[i] - p.x_start[i]).abs() / p.scale[i].max(floor))
+        .map(|&i| (p.x_end[i] - p.x_start[i]).abs() / scale[i].max(floor))
         .fold(0.0, f64::max)
 }
 
@@ -411,6 +420,30 @@ fn check_options(o: &SteadyOptions) -> Result<(), AnalysisError> {
 /// See the crate documentation.
 pub fn find(circuit: &Circuit, opts: &SteadyOptions) -> Result<SteadyState, AnalysisError> {
     check_options(opts)?;
+    match shoot(circuit, opts) {
+        // A closed loop can take Newton into a region where its modulator
+        // is held at a duty limit: there the integrator's drift per period
+        // is tiny next to the state the step produced, and the search
+        // "converges" on an orbit whose loop does nothing (a multiplier of
+        // exactly 1). Settling by plain periods first starts the search
+        // where the loop acts; a true family of orbits (a capacitor with
+        // no DC path) is still reported as such.
+        Err(AnalysisError::Undetermined { .. }) if opts.settle_periods < RETRY_SETTLE => shoot(
+            circuit,
+            &SteadyOptions {
+                settle_periods: opts.settle_periods + RETRY_SETTLE,
+                ..opts.clone()
+            },
+        ),
+        other => other,
+    }
+}
+
+/// Periods of plain transient before the second attempt of a search whose
+/// first ended on an orbit with a multiplier of 1.
+const RETRY_SETTLE: u64 = 2000;
+
+fn shoot(circuit: &Circuit, opts: &SteadyOptions) -> Result<SteadyState, AnalysisError> {
     let started = Instant::now();
     let cp = common_period(circuit)?;
     let multiple = cp.multiple * opts.period_multiple;
@@ -484,7 +517,8 @@ pub fn find(circuit: &Circuit, opts: &SteadyOptions) -> Result<SteadyState, Anal
         // sequence makes the affine prediction overshoot).
         let mut lambda = 1.0;
         let mut trials = 0;
-        loop {
+        let mut stepped = false;
+        while lambda >= 1.0 / 1024.0 {
             if let Some(limit) = opts.time_limit {
                 if started.elapsed() > limit {
                     return Err(not_converged(
@@ -499,21 +533,42 @@ pub fn find(circuit: &Circuit, opts: &SteadyOptions) -> Result<SteadyState, Anal
                 x_try[i] += lambda * delta[k];
             }
             if let Ok(p_try) = shooter.period(&x_try) {
-                let r_try = residual(&p_try, &free);
+                // Judged on the present iterate's scales as well as its
+                // own: a step that blows a state up (an integrator sent to
+                // 1e11) shrinks its own relative residual without being any
+                // nearer the orbit.
+                let r_try = residual(&p_try, &free).max(residual_on(&p_try, &p.scale, &free));
                 if r_try < r || r_try <= opts.tolerance {
                     x = x_try;
                     p = p_try;
                     r = r_try;
+                    stepped = true;
                     break;
                 }
             }
             lambda *= 0.5;
-            if lambda < 1.0 / 1024.0 {
-                return Err(not_converged(
-                    "no fraction of the Newton step reduced the residual".into(),
-                    history,
-                ));
+        }
+        if !stepped {
+            // No fraction of the step reduces the residual: the map is far
+            // from affine around here (a loop held at a duty limit, an
+            // integrator winding up, conduction modes changing within the
+            // step). Plain periods move towards the orbit of a stable loop;
+            // Newton resumes from where they end.
+            let mut next = p.x_end.clone();
+            for _ in 0..PLAIN_BURST {
+                p = shooter.period(&next)?;
+                next = p.x_end.clone();
+                trials += 1;
             }
+            x = p.x_start.clone();
+            r = residual(&p, &free);
+            history.push(Iteration {
+                residual: r,
+                damping: 0.0,
+                trials,
+                newton: false,
+            });
+            continue;
         }
         history.push(Iteration {
             residual: r,
