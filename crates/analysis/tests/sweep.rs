@@ -329,12 +329,10 @@ fn bad_input_is_refused_with_a_clear_error() {
     );
     let e = with(
         r#"{"kind": "window", "name": "ripple""#,
-        r#"{"kind": "steady", "name": "ripple", "periods": 1}, {"kind": "window", "name": "r2""#,
+        r#"{"kind": "loop", "name": "pm", "at": "nowhere", "margin": "phase_margin_deg"}, {"kind": "window", "name": "r2""#,
     );
-    assert!(
-        e.contains("figures[2] \"ripple\": kind \"steady\" is not available in this version"),
-        "{e}"
-    );
+    assert!(e.contains("figures[2].at"), "{e}");
+    assert!(e.contains("loop break point nowhere"), "{e}");
     let e = with(r#""kind": "uniform""#, r#""kind": "uniformly""#);
     assert!(e.contains("monte_carlo.tolerances[0].distribution"), "{e}");
 
@@ -355,6 +353,97 @@ fn bad_input_is_refused_with_a_clear_error() {
 /// The committed JSON Schema (docs/sweep.schema.json) matches the one
 /// generated from the types. Regenerate it with
 /// `UPDATE_SCHEMA=1 cargo test -p fluxstep-analysis`.
+/// Steady-state figures: the output average of the periodic steady state
+/// over a duty sweep in continuous conduction equals D·Vin less the
+/// small-ripple error (the same K = 0.5 buck, D ≥ 0.5 in CCM; Erickson &
+/// Maksimović, *Fundamentals of Power Electronics*, ch. 2), with no settling
+/// transient to wait for.
+#[test]
+fn steady_figures_follow_the_conversion_ratio() {
+    let json = r#"{
+        "circuit": "buck",
+        "simulation": {"periods": 10},
+        "parameters": [
+            {"path": "drive.duty", "values": {"kind": "list", "values": [0.6, 0.75, 0.9]}}
+        ],
+        "figures": [
+            {"kind": "steady", "name": "vout", "of": "out", "measure": "average", "worst": "min"},
+            {"kind": "steady", "name": "ripple", "of": "out", "measure": "peak_to_peak"}
+        ]
+    }"#;
+    let t = sweep(json)
+        .unwrap()
+        .run(&RunOptions {
+            threads: Some(1),
+            shard: None,
+            progress: None,
+        })
+        .unwrap();
+    assert_eq!(t.failures(), 0, "{}", t.to_csv());
+    for row in &t.rows {
+        let d = row.values[0];
+        let (v, ripple) = (row.figures[0].unwrap(), row.figures[1].unwrap());
+        assert!(
+            (v - 12.0 * d).abs() <= ripple + 1e-9,
+            "D = {d}: {v} V, ripple {ripple} V"
+        );
+    }
+}
+
+/// Loop figures: a sweep of the closed voltage loop's load gives, per
+/// point, exactly the crossover and phase margin `loop_gain` reports for
+/// that circuit (the same computation, so the same bits).
+#[test]
+fn loop_figures_are_the_loop_gain_margins() {
+    use fluxstep_analysis::response::{log_frequencies, loop_gain, BreakPoint};
+    use fluxstep_analysis::steady::SteadyOptions;
+    let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("../../examples/circuits/voltage_mode_buck.json");
+    let base = Circuit::from_file(&path).unwrap();
+    let json = r#"{
+        "circuit": "voltage_mode_buck",
+        "simulation": {"periods": 10},
+        "parameters": [{"path": "Rload.resistance", "values": {"kind": "list", "values": ["2.2", "4.4"]}}],
+        "figures": [
+            {"kind": "loop", "name": "fc", "at": "vm", "margin": "crossover_hz", "from": "1k", "points": 40},
+            {"kind": "loop", "name": "pm", "at": "vm", "margin": "phase_margin_deg", "from": "1k", "points": 40}
+        ]
+    }"#;
+    let t = Sweep::new(SweepSpec::from_json(json).unwrap(), &base)
+        .unwrap()
+        .run(&RunOptions {
+            threads: Some(1),
+            shard: None,
+            progress: None,
+        })
+        .unwrap();
+    assert_eq!(t.failures(), 0, "{}", t.to_csv());
+    for row in &t.rows {
+        let mut c = base.clone();
+        for e in &mut c.elements {
+            if let fluxstep_netlist::Element::Resistor(r) = e {
+                if r.name == "Rload" {
+                    r.resistance = row.values[0];
+                }
+            }
+        }
+        let fs = 1.0
+            / fluxstep_analysis::steady::find(&c, &SteadyOptions::default())
+                .unwrap()
+                .period;
+        let freqs = log_frequencies(1e3, 0.5 * fs, 40).unwrap();
+        let lg = loop_gain(
+            &c,
+            &BreakPoint::named(&c, "vm").unwrap(),
+            &freqs,
+            &SteadyOptions::default(),
+        )
+        .unwrap();
+        assert_eq!(row.figures[0], lg.margins.crossover_hz);
+        assert_eq!(row.figures[1], lg.margins.phase_margin_deg);
+    }
+}
+
 #[test]
 fn committed_sweep_schema_is_up_to_date() {
     let fresh = fluxstep_analysis::sweep::json_schema();

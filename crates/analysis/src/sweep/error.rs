@@ -56,16 +56,6 @@ pub enum SweepError {
         /// What is wrong, with the value given.
         message: String,
     },
-    /// A figure of an analysis this version does not have.
-    #[error("figures[{index}] {name:?}: kind {kind:?} is not available in this version (only \"window\" figures are)")]
-    NotAvailable {
-        /// Position in `figures`.
-        index: usize,
-        /// The figure's name.
-        name: String,
-        /// Its kind (`steady`, `loop`).
-        kind: &'static str,
-    },
     /// `--shard I/N` with I not in 0..N or N = 0.
     #[error("shard {index}/{count} is out of range: need a count of at least 1 and an index from 0 to count − 1")]
     Shard {

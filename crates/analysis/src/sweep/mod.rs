@@ -69,8 +69,8 @@ use fluxstep_solver::{Options, Record, Simulator};
 
 pub use error::SweepError;
 pub use spec::{
-    json_schema, Distribution, Figure, Measure, MonteCarlo, Parameter, PlotSpec, ReservedFigure,
-    Simulation, SweepSpec, Tolerance, Values, Window, WindowFigure, Worst,
+    json_schema, Distribution, Figure, LoopFigure, Margin, Measure, MonteCarlo, Parameter,
+    PlotSpec, Simulation, SweepSpec, Tolerance, Values, Window, WindowFigure, Worst,
 };
 pub use summary::{FigureSummary, Percentiles, PointRef, Summary};
 pub use table::{Column, Row, Status, Table, TableMeta};
@@ -168,6 +168,17 @@ struct Tol {
     absolute: bool,
 }
 
+/// What a figure is computed from.
+#[derive(Clone, Debug)]
+pub(crate) enum FigureKind {
+    /// The transient window.
+    Window,
+    /// One period of the periodic steady state.
+    Steady,
+    /// A loop gain's crossover or margin.
+    Loop(spec::LoopFigure),
+}
+
 /// A sweep ready to run: paths resolved, values expanded, figures checked.
 #[derive(Clone, Debug)]
 pub struct Sweep {
@@ -181,6 +192,8 @@ pub struct Sweep {
     /// already among them.
     columns: Vec<Resolved>,
     figures: Vec<WindowFigure>,
+    /// What each figure is computed from, in `figures` order.
+    kinds: Vec<FigureKind>,
     length: Length,
     window: Window,
     meta: TableMeta,
@@ -291,19 +304,37 @@ impl Sweep {
             return Err(invalid("figures".into(), "name at least one figure".into()));
         }
         let mut figures = vec![];
+        let mut kinds = vec![];
         for (i, f) in spec.figures.iter().enumerate() {
+            // A loop figure is checked as a figure of its own; window and
+            // steady figures name an output (or an element for power).
+            let owned;
             let wf = match f {
-                Figure::Window(w) => w,
-                Figure::Steady(r) | Figure::Loop(r) => {
-                    return Err(SweepError::NotAvailable {
-                        index: i,
-                        name: r.name.clone(),
-                        kind: if matches!(f, Figure::Steady(_)) {
-                            "steady"
-                        } else {
-                            "loop"
-                        },
-                    })
+                Figure::Window(w) | Figure::Steady(w) => {
+                    kinds.push(if matches!(f, Figure::Window(_)) {
+                        FigureKind::Window
+                    } else {
+                        FigureKind::Steady
+                    });
+                    w
+                }
+                Figure::Loop(l) => {
+                    crate::response::BreakPoint::named(circuit, &l.at)
+                        .map_err(|e| invalid(format!("figures[{i}].at"), e.to_string()))?;
+                    if l.points == 0 || !(l.from > 0.0 && l.from.is_finite()) {
+                        return Err(invalid(
+                            format!("figures[{i}]"),
+                            "a loop figure needs from > 0 Hz and at least one point".into(),
+                        ));
+                    }
+                    kinds.push(FigureKind::Loop(l.clone()));
+                    owned = WindowFigure {
+                        name: l.name.clone(),
+                        of: String::new(),
+                        measure: Measure::Average,
+                        worst: l.worst,
+                    };
+                    &owned
                 }
             };
             let field = format!("figures[{i}]");
@@ -320,7 +351,9 @@ impl Sweep {
                     ),
                 ));
             }
-            let known = if wf.measure == Measure::Power {
+            let known = if matches!(kinds.last(), Some(FigureKind::Loop(_))) {
+                true
+            } else if wf.measure == Measure::Power {
                 outputs.contains(&format!("{}.current", wf.of))
                     || outputs
                         .iter()
@@ -481,9 +514,18 @@ impl Sweep {
                 .collect(),
             figures: figures
                 .iter()
-                .map(|f| Column {
+                .zip(&kinds)
+                .map(|(f, k)| Column {
                     name: f.name.clone(),
-                    unit: figure_unit(f).to_string(),
+                    unit: match k {
+                        FigureKind::Loop(l) => match l.margin {
+                            Margin::CrossoverHz => "Hz",
+                            Margin::PhaseMarginDeg => "°",
+                            Margin::GainMarginDb => "dB",
+                        },
+                        _ => figure_unit(f),
+                    }
+                    .to_string(),
                     worst: Some(f.worst),
                 })
                 .collect(),
@@ -497,6 +539,7 @@ impl Sweep {
             seed,
             columns,
             figures,
+            kinds,
             length,
             window,
             meta,

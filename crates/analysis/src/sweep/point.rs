@@ -6,9 +6,9 @@ use fluxstep_solver::measure::{element_power, measure, MeasureError, Measurement
 use fluxstep_solver::{Options, Record, RunResult, Simulator};
 
 use super::rng::SplitMix64;
-use super::spec::{Distribution, Measure, Window};
+use super::spec::{Distribution, Margin, Measure, Window};
 use super::table::{Row, Status};
-use super::{Length, Sweep};
+use super::{FigureKind, Length, Sweep};
 
 /// A truncated normal whose limits keep less than this share of the
 /// distribution is refused: rejection sampling would spin.
@@ -167,6 +167,17 @@ impl Sweep {
                 format!("window end {to:e} s is after the end of the run, {stop:e} s"),
             );
         }
+        let mut problem = None;
+        // Steady-state and loop figures: one search per point, one loop
+        // gain per break point.
+        if self.kinds.iter().any(|k| !matches!(k, FigureKind::Window)) {
+            if let Err((status, message)) = self.analyses(&circuit, &mut row) {
+                return fail(row, status, message);
+            }
+        }
+        if !self.kinds.iter().any(|k| matches!(k, FigureKind::Window)) {
+            return row;
+        }
         let opts = Options {
             record: Record::Window { from, to: stop },
             ..Options::default()
@@ -190,12 +201,14 @@ impl Sweep {
             Some((start, _)) if from < start && start - from <= 8.0 * f64::EPSILON * stop => start,
             _ => from,
         };
-        let mut problem = None;
         // One measurement per output, shared by its figures: measuring
         // (exact integrals and extremes) costs more than the run's last
         // periods themselves.
         let mut measured: Vec<(&str, Result<Measurement, MeasureError>)> = vec![];
         for (k, f) in self.figures.iter().enumerate() {
+            if !matches!(self.kinds[k], FigureKind::Window) {
+                continue;
+            }
             let value = if f.measure == Measure::Power {
                 element_power(w, &f.of, from, to)
             } else {
@@ -231,6 +244,92 @@ impl Sweep {
             Some(m) => fail(row, Status::Failed, m),
             None => row,
         }
+    }
+}
+
+impl Sweep {
+    /// The steady-state and loop figures of one point into `row`; a failed
+    /// analysis fails the point with its message.
+    fn analyses(&self, circuit: &Circuit, row: &mut Row) -> Result<(), (Status, String)> {
+        let failed = |e: crate::AnalysisError| {
+            let status = match e {
+                crate::AnalysisError::Solver(_) => Status::Stopped,
+                _ => Status::Failed,
+            };
+            (status, e.to_string())
+        };
+        if self.kinds.iter().any(|k| matches!(k, FigureKind::Steady)) {
+            let ss = crate::steady::find(circuit, &crate::steady::SteadyOptions::default())
+                .map_err(failed)?;
+            let w = &ss.run.waveform;
+            let (from, to) = (ss.start_time, ss.end_time());
+            for (k, f) in self.figures.iter().enumerate() {
+                if !matches!(self.kinds[k], FigureKind::Steady) {
+                    continue;
+                }
+                let value = if f.measure == Measure::Power {
+                    element_power(w, &f.of, from, to)
+                } else {
+                    let id = w
+                        .output(&f.of)
+                        .expect("figure outputs are checked on the base circuit");
+                    measure(w, id, from, to).map(|m| match f.measure {
+                        Measure::Average => m.average,
+                        Measure::Rms => m.rms,
+                        Measure::Min => m.min,
+                        Measure::Max => m.max,
+                        Measure::PeakToPeak => m.peak_to_peak,
+                        Measure::Power => unreachable!("handled above"),
+                    })
+                };
+                row.figures[k] =
+                    Some(value.map_err(|e| (Status::Failed, format!("{}: {e}", f.name)))?);
+            }
+        }
+        let mut gains: Vec<(String, crate::response::LoopGain)> = vec![];
+        for (k, kind) in self.kinds.iter().enumerate() {
+            let FigureKind::Loop(l) = kind else {
+                continue;
+            };
+            let key = format!("{}|{}|{}", l.at, l.from, l.points);
+            let lg = match gains.iter().position(|(g, _)| *g == key) {
+                Some(i) => &gains[i].1,
+                None => {
+                    let point =
+                        crate::response::BreakPoint::named(circuit, &l.at).map_err(failed)?;
+                    let fs = crate::steady::find(circuit, &crate::steady::SteadyOptions::default())
+                        .map_err(failed)
+                        .map(|ss| 1.0 / ss.period)?;
+                    let freqs = crate::response::log_frequencies(l.from, 0.5 * fs, l.points)
+                        .map_err(failed)?;
+                    let lg = crate::response::loop_gain(
+                        circuit,
+                        &point,
+                        &freqs,
+                        &crate::steady::SteadyOptions::default(),
+                    )
+                    .map_err(failed)?;
+                    gains.push((key, lg));
+                    &gains.last().expect("just pushed").1
+                }
+            };
+            let m = &lg.margins;
+            let value = match l.margin {
+                Margin::CrossoverHz => m.crossover_hz,
+                Margin::PhaseMarginDeg => m.phase_margin_deg,
+                Margin::GainMarginDb => m.gain_margin_db,
+            };
+            row.figures[k] = Some(value.ok_or_else(|| {
+                (
+                    Status::Failed,
+                    format!(
+                        "{}: no such crossing between {} Hz and fs/2",
+                        l.name, l.from
+                    ),
+                )
+            })?);
+        }
+        Ok(())
     }
 }
 

@@ -235,19 +235,19 @@ pub enum Distribution {
 
 /// A figure computed at every point, tagged by `kind`.
 ///
-/// `window` figures are transient measurements. `steady` (periodic steady
-/// state) and `loop` (loop-gain margins) are reserved for analyses still to
-/// come: the format accepts their names now so that sweep files written for
-/// them keep their meaning, and this version reports them as not available.
+/// `window` figures are transient measurements; `steady` figures measure
+/// one period of the periodic steady state (found by shooting, see
+/// [`crate::steady`]); `loop` figures are a loop gain's crossover or
+/// margins (see [`crate::response::loop_gain`]).
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(tag = "kind", rename_all = "snake_case")]
 pub enum Figure {
     /// A measurement over the simulation window.
     Window(WindowFigure),
-    /// A measurement of the periodic steady state (not available in this version).
-    Steady(ReservedFigure),
-    /// A loop margin (not available in this version).
-    Loop(ReservedFigure),
+    /// A measurement over one period of the periodic steady state.
+    Steady(WindowFigure),
+    /// A crossover or margin of a loop gain.
+    Loop(LoopFigure),
 }
 
 impl Figure {
@@ -255,7 +255,8 @@ impl Figure {
     pub fn name(&self) -> &str {
         match self {
             Figure::Window(f) => &f.name,
-            Figure::Steady(f) | Figure::Loop(f) => &f.name,
+            Figure::Steady(f) => &f.name,
+            Figure::Loop(f) => &f.name,
         }
     }
 }
@@ -277,15 +278,57 @@ pub struct WindowFigure {
     pub worst: Worst,
 }
 
-/// A figure of an analysis not yet available; its other fields are kept
-/// as written.
+/// A loop-gain figure: the loop broken at a closed-loop gate's sense input
+/// or a compensator's input, evaluated at `points` log-spaced frequencies
+/// from `from` to half the switching frequency, crossovers refined on the
+/// exact loop gain.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
-pub struct ReservedFigure {
-    /// Column name in the table.
+#[serde(deny_unknown_fields)]
+pub struct LoopFigure {
+    /// Column name in the table; unique among figures and parameters.
     pub name: String,
-    /// The analysis's own settings (not interpreted in this version).
-    #[serde(flatten)]
-    pub settings: serde_json::Map<String, serde_json::Value>,
+    /// The break point: a closed-loop gate or a compensator, by name.
+    pub at: String,
+    /// Which margin.
+    pub margin: Margin,
+    /// Default 10 Hz. Lowest frequency of the grid.
+    #[serde(
+        default = "ten_hz",
+        deserialize_with = "si::de",
+        serialize_with = "si::ser"
+    )]
+    #[schemars(with = "SiValue")]
+    pub from: f64,
+    /// Default 100. Frequencies of the grid.
+    #[serde(default = "hundred")]
+    pub points: usize,
+    /// Default `min` for margins. Which end of the spread is the worst case.
+    #[serde(default = "worst_min")]
+    pub worst: Worst,
+}
+
+fn ten_hz() -> f64 {
+    10.0
+}
+
+fn hundred() -> usize {
+    100
+}
+
+fn worst_min() -> Worst {
+    Worst::Min
+}
+
+/// A loop-gain figure's quantity.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum Margin {
+    /// Crossover frequency (Hz), where |T| falls through 1.
+    CrossoverHz,
+    /// Phase margin (degrees) at the crossover.
+    PhaseMarginDeg,
+    /// Gain margin (dB) where ∠T passes −180°.
+    GainMarginDb,
 }
 
 /// A transient measurement over the window.
