@@ -571,6 +571,7 @@ impl CircuitBuilder {
             nodes: nodes(a, b),
             inductance: henries,
             initial_current: None,
+            winding_resistance: None,
         }))
     }
 
@@ -588,6 +589,7 @@ impl CircuitBuilder {
             nodes: nodes(a, b),
             inductance: henries,
             initial_current: Some(amps),
+            winding_resistance: None,
         }))
     }
 
@@ -598,6 +600,7 @@ impl CircuitBuilder {
             nodes: nodes(a, b),
             capacitance: farads,
             initial_voltage: None,
+            esr: None,
         }))
     }
 
@@ -615,6 +618,7 @@ impl CircuitBuilder {
             nodes: nodes(a, b),
             capacitance: farads,
             initial_voltage: Some(volts),
+            esr: None,
         }))
     }
 

@@ -68,6 +68,18 @@ pub struct Inductor {
     )]
     #[schemars(with = "Option<SiValue>")]
     pub initial_current: Option<f64>,
+    /// Winding (copper) resistance in ohms in series with the inductance
+    /// (default none); must not be negative. The solver expands it into a
+    /// resistor named `ELEMENT.winding` on an internal node, so
+    /// `ELEMENT.voltage` is the voltage across the inductance alone and
+    /// `ELEMENT.winding.voltage` the drop across the resistance.
+    #[serde(
+        default,
+        deserialize_with = "value::de_opt",
+        skip_serializing_if = "Option::is_none"
+    )]
+    #[schemars(with = "Option<SiValue>")]
+    pub winding_resistance: Option<f64>,
 }
 
 /// A linear capacitor; its voltage v(a) − v(b) is a state of the circuit.
@@ -90,6 +102,18 @@ pub struct Capacitor {
     )]
     #[schemars(with = "Option<SiValue>")]
     pub initial_voltage: Option<f64>,
+    /// Equivalent series resistance in ohms (default none); must not be
+    /// negative. The solver expands it into a resistor named `ELEMENT.esr`
+    /// on an internal node, so `ELEMENT.voltage` is the voltage across the
+    /// capacitance alone (the state) and `ELEMENT.esr.voltage` the drop
+    /// across the resistance.
+    #[serde(
+        default,
+        deserialize_with = "value::de_opt",
+        skip_serializing_if = "Option::is_none"
+    )]
+    #[schemars(with = "Option<SiValue>")]
+    pub esr: Option<f64>,
 }
 
 /// One winding of a set of coupled inductors.

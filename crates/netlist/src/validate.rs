@@ -420,10 +420,12 @@ impl Checker<'_> {
             Element::Inductor(x) => {
                 self.positive(l, "inductance", x.inductance);
                 self.optional_finite(l, "initial_current", x.initial_current);
+                self.optional_non_negative(l, "winding_resistance", x.winding_resistance);
             }
             Element::Capacitor(x) => {
                 self.positive(l, "capacitance", x.capacitance);
                 self.optional_finite(l, "initial_voltage", x.initial_voltage);
+                self.optional_non_negative(l, "esr", x.esr);
             }
             Element::CoupledInductors(x) => self.coupled(l, x),
             Element::IdealTransformer(x) => {

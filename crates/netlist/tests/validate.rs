@@ -619,6 +619,31 @@ fn diode_and_switch_values_must_not_be_negative() {
     );
 }
 
+#[test]
+fn esr_and_winding_resistance_must_not_be_negative() {
+    let c = buck()
+        .element(Element::Capacitor(Capacitor {
+            name: "C2".into(),
+            nodes: ["out".into(), "gnd".into()],
+            capacitance: 1e-6,
+            initial_voltage: None,
+            esr: Some(-0.01),
+        }))
+        .build_unchecked();
+    expect(&c, Some("C2"), Some("esr"), "must not be negative");
+    let c = buck()
+        .element(Element::Inductor(Inductor {
+            name: "L2".into(),
+            nodes: ["out".into(), "x".into()],
+            inductance: 1e-6,
+            initial_current: None,
+            winding_resistance: Some(f64::NAN),
+        }))
+        .resistor("Rx", "x", "gnd", 1.0)
+        .build_unchecked();
+    expect(&c, Some("L2"), Some("winding_resistance"), "finite");
+}
+
 // ----- coupled inductors ---------------------------------------------------
 
 fn flyback_couplings(couplings: Vec<Coupling>) -> Circuit {
