@@ -2,6 +2,10 @@
 
 /// Shared circuits and helpers.
 mod common;
+/// Losses: the energy balance on every example circuit, conduction losses
+/// of switches, diodes, ESR and winding resistance against closed forms,
+/// jump energies, loads and efficiency, bad input.
+mod losses;
 /// Small-signal responses: the averaged CCM model, brute-force injection,
 /// current-mode sampling poles, DCM, loop margins, bad input.
 mod response;

@@ -93,26 +93,40 @@ fn element() -> impl Strategy<Value = Element> {
                 resistance,
             })
         }),
-        (name(), nodes(), value(), option::of(value()), option::of(value())).prop_map(
-            |(name, nodes, inductance, initial_current, winding_resistance)| {
-                Element::Inductor(Inductor {
+        (
+            name(),
+            nodes(),
+            value(),
+            option::of(value()),
+            option::of(value())
+        )
+            .prop_map(
+                |(name, nodes, inductance, initial_current, winding_resistance)| {
+                    Element::Inductor(Inductor {
+                        name,
+                        nodes,
+                        inductance,
+                        initial_current,
+                        winding_resistance,
+                    })
+                }
+            ),
+        (
+            name(),
+            nodes(),
+            value(),
+            option::of(value()),
+            option::of(value())
+        )
+            .prop_map(|(name, nodes, capacitance, initial_voltage, esr)| {
+                Element::Capacitor(Capacitor {
                     name,
                     nodes,
-                    inductance,
-                    initial_current,
-                    winding_resistance,
+                    capacitance,
+                    initial_voltage,
+                    esr,
                 })
-            }
-        ),
-        (name(), nodes(), value(), option::of(value()), option::of(value())).prop_map(
-            |(name, nodes, capacitance, initial_voltage, esr)| Element::Capacitor(Capacitor {
-                name,
-                nodes,
-                capacitance,
-                initial_voltage,
-                esr,
-            })
-        ),
+            }),
         (name(), vec(winding(), 0..4), vec(coupling(), 0..3)).prop_map(
             |(name, windings, couplings)| Element::CoupledInductors(CoupledInductors {
                 name,

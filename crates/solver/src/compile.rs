@@ -407,7 +407,8 @@ impl Compiled {
                 }),
                 Element::Inductor(l) => {
                     let (a, b) = (node(&l.nodes[0]), node(&l.nodes[1]));
-                    let (b, series) = series_part(&mut node, &l.name, "winding", b, l.winding_resistance);
+                    let (b, series) =
+                        series_part(&mut node, &l.name, "winding", b, l.winding_resistance);
                     c.branches.push(Branch {
                         name: l.name.clone(),
                         a,
