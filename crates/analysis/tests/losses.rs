@@ -123,6 +123,7 @@ fn switch(name: &str, a: &str, b: &str, gate: &str, r: f64, body: Option<DiodeMo
         gate: gate.into(),
         on_resistance: Some(r),
         body_diode: body,
+        thermal: None,
     })
 }
 

@@ -17,3 +17,7 @@ mod steady;
 /// CCM/DCM conversion ratios over a duty sweep, Monte Carlo statistics,
 /// failing corners, bad input, and the committed JSON Schema.
 mod sweep;
+/// Junction temperature: Foster networks driven by the exact loss against
+/// the steady rise, the step response and the periodic pulse-train ripple;
+/// the warning above the maximum; bad input.
+mod thermal;

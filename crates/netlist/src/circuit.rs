@@ -653,6 +653,7 @@ impl CircuitBuilder {
             gate: gate.into(),
             on_resistance: None,
             body_diode: None,
+            thermal: None,
         }))
     }
 
@@ -704,6 +705,7 @@ impl CircuitBuilder {
             gate: gate.into(),
             on_resistance: (on_resistance != 0.0).then_some(on_resistance),
             body_diode: Some(body),
+            thermal: None,
         }))
     }
 
@@ -713,6 +715,7 @@ impl CircuitBuilder {
             name: name.into(),
             nodes: nodes(anode, cathode),
             model: DiodeModel::default(),
+            thermal: None,
         }))
     }
 
@@ -722,6 +725,7 @@ impl CircuitBuilder {
             name: name.into(),
             nodes: nodes(anode, cathode),
             model,
+            thermal: None,
         }))
     }
 

@@ -170,12 +170,14 @@ fn element() -> impl Strategy<Value = Element> {
                     gate,
                     on_resistance,
                     body_diode,
+                    thermal: None,
                 })
             }),
         (name(), nodes(), diode_model()).prop_map(|(name, nodes, model)| Element::Diode(Diode {
             name,
             nodes,
-            model
+            model,
+            thermal: None,
         })),
     ]
 }

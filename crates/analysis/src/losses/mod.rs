@@ -29,6 +29,8 @@
 //! before any jump there, so windows of whole periods tile: each jump is
 //! counted in exactly one of them.
 
+pub mod thermal;
+
 use serde::{Deserialize, Serialize};
 
 use fluxstep_netlist::{Circuit, Element};
@@ -257,6 +259,7 @@ impl LossReport {
 ///     gate: "g".into(),
 ///     on_resistance: Some(1.0),
 ///     body_diode: None,
+///     thermal: None,
 /// };
 /// let c = Circuit::builder()
 ///     .voltage_source("V1", "in", "gnd", 10.0)
