@@ -28,7 +28,10 @@
 //!   whatever the thread count, or in shards merged into the same table.
 //! - [`losses`]: conduction and jump losses of every part from the exact
 //!   integrals, efficiency and the energy balance over a window
-//!   ([`losses::breakdown`] → [`losses::LossReport`]).
+//!   ([`losses::breakdown`] → [`losses::LossReport`]); junction
+//!   temperature from Foster networks ([`losses::thermal`]); switching
+//!   energies from datasheet tables at each edge's exact current and
+//!   voltage ([`losses::switching`]).
 //! - [`AnalysisError`]: every failure, naming what it concerns.
 //!
 //! # Example

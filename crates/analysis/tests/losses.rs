@@ -288,3 +288,89 @@ fn an_unknown_load_is_named() {
     assert!(matches!(e, AnalysisError::UnknownLoad { .. }));
     assert!(e.to_string().contains("Rlaod"), "{e}");
 }
+
+mod switching {
+    use fluxstep_analysis::losses::switching::{switching_loss, EnergyTable, SwitchEnergies};
+    use fluxstep_analysis::AnalysisError;
+    use fluxstep_netlist::{Circuit, Waveform};
+    use fluxstep_solver::{simulate, Options};
+
+    /// A constant-current chopper: 100 V, an ideal switch, a 10 A current
+    /// sink clamped by a freewheeling diode, 100 kHz at 40 %.
+    fn chopper() -> Circuit {
+        Circuit::builder()
+            .voltage_source("Vin", "in", "gnd", 100.0)
+            .switch("S1", "in", "sw", "g")
+            .diode("D1", "gnd", "sw")
+            .current_source("Iload", "sw", "gnd", Waveform::Constant { value: 10.0 })
+            .pwm("g", 100e3, 0.4)
+            .build()
+            .unwrap()
+    }
+
+    fn table(top: f64) -> EnergyTable {
+        EnergyTable {
+            current: vec![0.0, 5.0, top],
+            energy: vec![0.0, 50e-6, 300e-6],
+            reference_voltage: 50.0,
+        }
+    }
+
+    /// Each edge switches exactly 10 A against 100 V: linear interpolation
+    /// gives 50 + (5/15)·250 = 133.3 µJ at 50 V, twice that at 100 V
+    /// (datasheet table, linear in current and voltage; common practice).
+    /// Three periods [10 µs, 40 µs) hold three turn-ons and three
+    /// turn-offs (at t = 0 the switch starts on: no edge).
+    #[test]
+    fn edges_read_the_table_at_the_exact_current_and_voltage() {
+        let c = chopper();
+        let run = simulate(&c, 40e-6, Options::default()).unwrap();
+        let model = SwitchEnergies {
+            element: "S1".into(),
+            turn_on: table(20.0),
+            turn_off: table(20.0),
+        };
+        let s = switching_loss(&model, &run.waveform, &run.events, 10e-6, 40e-6).unwrap();
+        let e = 2.0 * (50e-6 + 250e-6 / 3.0);
+        assert_eq!(s.edges, 6, "{s:?}");
+        assert!((s.turn_on - 3.0 * e).abs() < 1e-12 * e, "{s:?}");
+        assert!((s.turn_off - 3.0 * e).abs() < 1e-12 * e, "{s:?}");
+        assert!(s.outside.is_empty());
+        // A table that stops at 8 A: every edge is reported, none counted.
+        let short = SwitchEnergies {
+            element: "S1".into(),
+            turn_on: table(8.0),
+            turn_off: table(8.0),
+        };
+        let s = switching_loss(&short, &run.waveform, &run.events, 10e-6, 40e-6).unwrap();
+        assert_eq!((s.edges, s.outside.len()), (0, 6));
+        assert!(s
+            .outside
+            .iter()
+            .all(|o| o.current == 10.0 && o.voltage == 100.0));
+    }
+
+    #[test]
+    fn bad_tables_name_the_field() {
+        let c = chopper();
+        let run = simulate(&c, 10e-6, Options::default()).unwrap();
+        let mut falling = table(20.0);
+        falling.current = vec![0.0, 5.0, 4.0];
+        let mut negative = table(20.0);
+        negative.energy[1] = -1e-6;
+        for (bad, what) in [(falling, "increasing"), (negative, "non-negative")] {
+            let model = SwitchEnergies {
+                element: "S1".into(),
+                turn_on: table(20.0),
+                turn_off: bad,
+            };
+            let e = switching_loss(&model, &run.waveform, &run.events, 0.0, 10e-6).unwrap_err();
+            assert!(matches!(e, AnalysisError::LossModel { .. }));
+            let text = e.to_string();
+            assert!(
+                text.contains("S1") && text.contains("turn_off") && text.contains(what),
+                "{text}"
+            );
+        }
+    }
+}

@@ -11,10 +11,10 @@
 //!   over the window;
 //! - **jump** loss: the energy a charge-sharing or flux-conserving jump
 //!   dissipates at its instant (logged with the event);
-//! - **switching** and **recovery** energies of each edge from datasheet
-//!   tables ([`switching`]), and inductor **core** loss by the improved
-//!   generalised Steinmetz equation ([`core`]), added by the caller as
-//!   [`PartLoss`] entries with [`LossReport::add`];
+//! - **switching** energies of each edge from datasheet tables
+//!   ([`switching`]), added by the caller as [`PartLoss`] entries with
+//!   [`LossReport::add`] (as are reverse-recovery and core losses computed
+//!   elsewhere);
 //! - the **energy balance**: energy delivered by the sources equals the
 //!   energy absorbed by the loads, plus every loss, plus the change of
 //!   stored energy (½·C·v², ½·iᵀ·L·i) — a check of the whole chain;
@@ -29,6 +29,7 @@
 //! before any jump there, so windows of whole periods tile: each jump is
 //! counted in exactly one of them.
 
+pub mod switching;
 pub mod thermal;
 
 use serde::{Deserialize, Serialize};
