@@ -64,6 +64,24 @@ pub enum AnalysisError {
         /// The largest multiple of the first period tried.
         max_multiple: u64,
     },
+    /// A load named for the loss breakdown is not an element of the circuit.
+    #[error("unknown load {name:?}: a load is an element; the elements are {}", valid.join(", "))]
+    UnknownLoad {
+        /// The name as given.
+        name: String,
+        /// Every element name.
+        valid: Vec<String>,
+    },
+    /// A loss or thermal model is out of range.
+    #[error("{element}: {field} {reason}")]
+    LossModel {
+        /// The element the model belongs to.
+        element: String,
+        /// The field, as a path (`thermal.junction_case[1].tau`).
+        field: String,
+        /// Why it is invalid.
+        reason: String,
+    },
     /// An option is out of range.
     #[error("invalid option {field}: {reason}")]
     InvalidOption {

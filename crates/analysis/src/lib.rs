@@ -26,6 +26,12 @@
 //! - [`sweep`]: sweeps over operating points, tolerance corners and Monte
 //!   Carlo samples ([`sweep::Sweep`]), run in parallel with identical bits
 //!   whatever the thread count, or in shards merged into the same table.
+//! - [`losses`]: conduction and jump losses of every part from the exact
+//!   integrals, efficiency and the energy balance over a window
+//!   ([`losses::breakdown`] → [`losses::LossReport`]); junction
+//!   temperature from Foster networks ([`losses::thermal`]); switching
+//!   energies from datasheet tables at each edge's exact current and
+//!   voltage ([`losses::switching`]).
 //! - [`AnalysisError`]: every failure, naming what it concerns.
 //!
 //! # Example
@@ -57,6 +63,7 @@
 #![deny(missing_docs)]
 
 mod error;
+pub mod losses;
 pub mod response;
 pub mod steady;
 pub mod sweep;

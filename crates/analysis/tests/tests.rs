@@ -2,6 +2,10 @@
 
 /// Shared circuits and helpers.
 mod common;
+/// Losses: the energy balance on every example circuit, conduction losses
+/// of switches, diodes, ESR and winding resistance against closed forms,
+/// jump energies, loads and efficiency, bad input.
+mod losses;
 /// Small-signal responses: the averaged CCM model, brute-force injection,
 /// current-mode sampling poles, DCM, loop margins, bad input.
 mod response;
@@ -13,3 +17,7 @@ mod steady;
 /// CCM/DCM conversion ratios over a duty sweep, Monte Carlo statistics,
 /// failing corners, bad input, and the committed JSON Schema.
 mod sweep;
+/// Junction temperature: Foster networks driven by the exact loss against
+/// the steady rise, the step response and the periodic pulse-train ripple;
+/// the warning above the maximum; bad input.
+mod thermal;

@@ -571,6 +571,7 @@ impl CircuitBuilder {
             nodes: nodes(a, b),
             inductance: henries,
             initial_current: None,
+            winding_resistance: None,
         }))
     }
 
@@ -588,6 +589,7 @@ impl CircuitBuilder {
             nodes: nodes(a, b),
             inductance: henries,
             initial_current: Some(amps),
+            winding_resistance: None,
         }))
     }
 
@@ -598,6 +600,7 @@ impl CircuitBuilder {
             nodes: nodes(a, b),
             capacitance: farads,
             initial_voltage: None,
+            esr: None,
         }))
     }
 
@@ -615,6 +618,7 @@ impl CircuitBuilder {
             nodes: nodes(a, b),
             capacitance: farads,
             initial_voltage: Some(volts),
+            esr: None,
         }))
     }
 
@@ -649,6 +653,7 @@ impl CircuitBuilder {
             gate: gate.into(),
             on_resistance: None,
             body_diode: None,
+            thermal: None,
         }))
     }
 
@@ -700,6 +705,7 @@ impl CircuitBuilder {
             gate: gate.into(),
             on_resistance: (on_resistance != 0.0).then_some(on_resistance),
             body_diode: Some(body),
+            thermal: None,
         }))
     }
 
@@ -709,6 +715,7 @@ impl CircuitBuilder {
             name: name.into(),
             nodes: nodes(anode, cathode),
             model: DiodeModel::default(),
+            thermal: None,
         }))
     }
 
@@ -718,6 +725,7 @@ impl CircuitBuilder {
             name: name.into(),
             nodes: nodes(anode, cathode),
             model,
+            thermal: None,
         }))
     }
 

@@ -68,6 +68,18 @@ pub struct Inductor {
     )]
     #[schemars(with = "Option<SiValue>")]
     pub initial_current: Option<f64>,
+    /// Winding (copper) resistance in ohms in series with the inductance
+    /// (default none); must not be negative. The solver expands it into a
+    /// resistor named `ELEMENT.winding` on an internal node, so
+    /// `ELEMENT.voltage` is the voltage across the inductance alone and
+    /// `ELEMENT.winding.voltage` the drop across the resistance.
+    #[serde(
+        default,
+        deserialize_with = "value::de_opt",
+        skip_serializing_if = "Option::is_none"
+    )]
+    #[schemars(with = "Option<SiValue>")]
+    pub winding_resistance: Option<f64>,
 }
 
 /// A linear capacitor; its voltage v(a) − v(b) is a state of the circuit.
@@ -90,6 +102,18 @@ pub struct Capacitor {
     )]
     #[schemars(with = "Option<SiValue>")]
     pub initial_voltage: Option<f64>,
+    /// Equivalent series resistance in ohms (default none); must not be
+    /// negative. The solver expands it into a resistor named `ELEMENT.esr`
+    /// on an internal node, so `ELEMENT.voltage` is the voltage across the
+    /// capacitance alone (the state) and `ELEMENT.esr.voltage` the drop
+    /// across the resistance.
+    #[serde(
+        default,
+        deserialize_with = "value::de_opt",
+        skip_serializing_if = "Option::is_none"
+    )]
+    #[schemars(with = "Option<SiValue>")]
+    pub esr: Option<f64>,
 }
 
 /// One winding of a set of coupled inductors.
@@ -274,6 +298,67 @@ pub struct Switch {
     /// `SWITCH.body_diode`.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub body_diode: Option<DiodeModel>,
+    /// The thermal network from junction to ambient (optional), driven by
+    /// the loss of the channel and body diode together.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub thermal: Option<ThermalNetwork>,
+}
+
+/// One Foster stage of a thermal impedance: Z(t) = R·(1 − e^(−t/τ)).
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct FosterPair {
+    /// Thermal resistance in kelvin per watt; must be positive.
+    #[serde(deserialize_with = "value::de", serialize_with = "value::ser")]
+    #[schemars(with = "SiValue")]
+    pub resistance: f64,
+    /// Time constant τ = R·C in seconds; must be positive.
+    #[serde(deserialize_with = "value::de", serialize_with = "value::ser")]
+    #[schemars(with = "SiValue")]
+    pub time_constant: f64,
+}
+
+/// A semiconductor's thermal network: Foster stages from junction to case
+/// (as datasheets give them), then from case to ambient (the heat sink),
+/// all in series, driven by the part's loss.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct ThermalNetwork {
+    /// Foster stages junction → case; at least one.
+    pub junction_case: Vec<FosterPair>,
+    /// Foster stages case → ambient (default none: the case is held at
+    /// ambient).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub case_ambient: Vec<FosterPair>,
+    /// Ambient temperature in °C (default 25).
+    #[serde(
+        default,
+        deserialize_with = "value::de_opt",
+        skip_serializing_if = "Option::is_none"
+    )]
+    #[schemars(with = "Option<SiValue>")]
+    pub ambient: Option<f64>,
+    /// Largest allowed junction temperature in °C (optional): above it the
+    /// analysis warns, naming the element.
+    #[serde(
+        default,
+        deserialize_with = "value::de_opt",
+        skip_serializing_if = "Option::is_none"
+    )]
+    #[schemars(with = "Option<SiValue>")]
+    pub max_junction: Option<f64>,
+}
+
+impl ThermalNetwork {
+    /// Every Foster stage, junction → case first.
+    pub fn stages(&self) -> impl Iterator<Item = &FosterPair> {
+        self.junction_case.iter().chain(&self.case_ambient)
+    }
+
+    /// The ambient temperature (°C), 25 by default.
+    pub fn ambient(&self) -> f64 {
+        self.ambient.unwrap_or(25.0)
+    }
 }
 
 /// A diode from anode (first terminal) to cathode (second).
@@ -287,6 +372,9 @@ pub struct Diode {
     /// Forward voltage and on-resistance (both default to 0: ideal).
     #[serde(flatten)]
     pub model: DiodeModel,
+    /// The thermal network from junction to ambient (optional).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub thermal: Option<ThermalNetwork>,
 }
 
 impl Element {

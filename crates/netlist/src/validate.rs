@@ -420,10 +420,12 @@ impl Checker<'_> {
             Element::Inductor(x) => {
                 self.positive(l, "inductance", x.inductance);
                 self.optional_finite(l, "initial_current", x.initial_current);
+                self.optional_non_negative(l, "winding_resistance", x.winding_resistance);
             }
             Element::Capacitor(x) => {
                 self.positive(l, "capacitance", x.capacitance);
                 self.optional_finite(l, "initial_voltage", x.initial_voltage);
+                self.optional_non_negative(l, "esr", x.esr);
             }
             Element::CoupledInductors(x) => self.coupled(l, x),
             Element::IdealTransformer(x) => {
@@ -437,12 +439,45 @@ impl Checker<'_> {
                     self.optional_non_negative(l, "body_diode.forward_voltage", d.forward_voltage);
                     self.optional_non_negative(l, "body_diode.on_resistance", d.on_resistance);
                 }
+                if let Some(t) = &x.thermal {
+                    self.thermal(l, t);
+                }
             }
             Element::Diode(x) => {
                 self.optional_non_negative(l, "forward_voltage", x.model.forward_voltage);
                 self.optional_non_negative(l, "on_resistance", x.model.on_resistance);
+                if let Some(t) = &x.thermal {
+                    self.thermal(l, t);
+                }
             }
         }
+    }
+
+    /// A thermal network: at least one junction–case stage, every R and τ
+    /// positive, temperatures finite.
+    fn thermal(&mut self, l: &str, t: &ThermalNetwork) {
+        if t.junction_case.is_empty() {
+            self.field(
+                l,
+                "thermal.junction_case",
+                "needs at least one Foster stage (resistance and time_constant)".into(),
+            );
+        }
+        for (list, stages) in [
+            ("junction_case", &t.junction_case),
+            ("case_ambient", &t.case_ambient),
+        ] {
+            for (k, p) in stages.iter().enumerate() {
+                self.positive(l, &format!("thermal.{list}[{k}].resistance"), p.resistance);
+                self.positive(
+                    l,
+                    &format!("thermal.{list}[{k}].time_constant"),
+                    p.time_constant,
+                );
+            }
+        }
+        self.optional_finite(l, "thermal.ambient", t.ambient);
+        self.optional_finite(l, "thermal.max_junction", t.max_junction);
     }
 
     fn coupled(&mut self, l: &str, x: &CoupledInductors) {

@@ -93,22 +93,40 @@ fn element() -> impl Strategy<Value = Element> {
                 resistance,
             })
         }),
-        (name(), nodes(), value(), option::of(value())).prop_map(
-            |(name, nodes, inductance, initial_current)| Element::Inductor(Inductor {
-                name,
-                nodes,
-                inductance,
-                initial_current,
-            })
-        ),
-        (name(), nodes(), value(), option::of(value())).prop_map(
-            |(name, nodes, capacitance, initial_voltage)| Element::Capacitor(Capacitor {
-                name,
-                nodes,
-                capacitance,
-                initial_voltage,
-            })
-        ),
+        (
+            name(),
+            nodes(),
+            value(),
+            option::of(value()),
+            option::of(value())
+        )
+            .prop_map(
+                |(name, nodes, inductance, initial_current, winding_resistance)| {
+                    Element::Inductor(Inductor {
+                        name,
+                        nodes,
+                        inductance,
+                        initial_current,
+                        winding_resistance,
+                    })
+                }
+            ),
+        (
+            name(),
+            nodes(),
+            value(),
+            option::of(value()),
+            option::of(value())
+        )
+            .prop_map(|(name, nodes, capacitance, initial_voltage, esr)| {
+                Element::Capacitor(Capacitor {
+                    name,
+                    nodes,
+                    capacitance,
+                    initial_voltage,
+                    esr,
+                })
+            }),
         (name(), vec(winding(), 0..4), vec(coupling(), 0..3)).prop_map(
             |(name, windings, couplings)| Element::CoupledInductors(CoupledInductors {
                 name,
@@ -152,12 +170,14 @@ fn element() -> impl Strategy<Value = Element> {
                     gate,
                     on_resistance,
                     body_diode,
+                    thermal: None,
                 })
             }),
         (name(), nodes(), diode_model()).prop_map(|(name, nodes, model)| Element::Diode(Diode {
             name,
             nodes,
-            model
+            model,
+            thermal: None,
         })),
     ]
 }

@@ -619,6 +619,76 @@ fn diode_and_switch_values_must_not_be_negative() {
     );
 }
 
+#[test]
+fn esr_and_winding_resistance_must_not_be_negative() {
+    let c = buck()
+        .element(Element::Capacitor(Capacitor {
+            name: "C2".into(),
+            nodes: ["out".into(), "gnd".into()],
+            capacitance: 1e-6,
+            initial_voltage: None,
+            esr: Some(-0.01),
+        }))
+        .build_unchecked();
+    expect(&c, Some("C2"), Some("esr"), "must not be negative");
+    let c = buck()
+        .element(Element::Inductor(Inductor {
+            name: "L2".into(),
+            nodes: ["out".into(), "x".into()],
+            inductance: 1e-6,
+            initial_current: None,
+            winding_resistance: Some(f64::NAN),
+        }))
+        .resistor("Rx", "x", "gnd", 1.0)
+        .build_unchecked();
+    expect(&c, Some("L2"), Some("winding_resistance"), "finite");
+}
+
+#[test]
+fn thermal_networks_need_positive_stages() {
+    let stage = |resistance: f64, time_constant: f64| FosterPair {
+        resistance,
+        time_constant,
+    };
+    let with = |net: ThermalNetwork| {
+        buck()
+            .element(Element::Diode(Diode {
+                name: "D2".into(),
+                nodes: ["gnd".into(), "out".into()],
+                model: DiodeModel::default(),
+                thermal: Some(net),
+            }))
+            .build_unchecked()
+    };
+    let net = |jc: Vec<FosterPair>, ca: Vec<FosterPair>| ThermalNetwork {
+        junction_case: jc,
+        case_ambient: ca,
+        ambient: None,
+        max_junction: None,
+    };
+    let c = with(net(vec![stage(0.5, 1e-3), stage(0.0, 1e-2)], vec![]));
+    expect(
+        &c,
+        Some("D2"),
+        Some("thermal.junction_case[1].resistance"),
+        "must be positive",
+    );
+    let c = with(net(vec![stage(0.5, 1e-3)], vec![stage(2.0, -1.0)]));
+    expect(
+        &c,
+        Some("D2"),
+        Some("thermal.case_ambient[0].time_constant"),
+        "must be positive",
+    );
+    let c = with(net(vec![], vec![]));
+    expect(
+        &c,
+        Some("D2"),
+        Some("thermal.junction_case"),
+        "at least one",
+    );
+}
+
 // ----- coupled inductors ---------------------------------------------------
 
 fn flyback_couplings(couplings: Vec<Coupling>) -> Circuit {

@@ -406,12 +406,16 @@ impl Compiled {
                     },
                 }),
                 Element::Inductor(l) => {
+                    let (a, b) = (node(&l.nodes[0]), node(&l.nodes[1]));
+                    let (b, series) =
+                        series_part(&mut node, &l.name, "winding", b, l.winding_resistance);
                     c.branches.push(Branch {
                         name: l.name.clone(),
-                        a: node(&l.nodes[0]),
-                        b: node(&l.nodes[1]),
+                        a,
+                        b,
                         kind: BranchKind::Winding { state },
                     });
+                    c.branches.extend(series);
                     let m = DMatrix::from_element(1, 1, l.inductance);
                     c.groups.push(InductorGroup {
                         states: vec![state],
@@ -442,15 +446,18 @@ impl Compiled {
                     c.groups.push(InductorGroup { states, l, l_inv });
                 }
                 Element::Capacitor(cap) => {
+                    let (a, b) = (node(&cap.nodes[0]), node(&cap.nodes[1]));
+                    let (b, series) = series_part(&mut node, &cap.name, "esr", b, cap.esr);
                     c.branches.push(Branch {
                         name: cap.name.clone(),
-                        a: node(&cap.nodes[0]),
-                        b: node(&cap.nodes[1]),
+                        a,
+                        b,
                         kind: BranchKind::Capacitor {
                             state,
                             c: cap.capacitance,
                         },
                     });
+                    c.branches.extend(series);
                     c.caps.push((state, cap.capacitance));
                     state += 1;
                 }
@@ -538,7 +545,12 @@ impl Compiled {
         c.nodes = nodes;
         // Outputs: every node voltage, every branch current and voltage.
         for (i, n) in c.nodes.iter().enumerate() {
-            c.outputs.push((n.clone(), OutputDef::Node(i)));
+            // Internal nodes of expanded series resistances (`C1.esr`) are
+            // named with a '.', which no circuit node may contain; they are
+            // not outputs (an output `C1.esr` would read as a part name).
+            if !n.contains('.') {
+                c.outputs.push((n.clone(), OutputDef::Node(i)));
+            }
         }
         for (i, b) in c.branches.iter().enumerate() {
             if let BranchKind::Transformer { .. } = b.kind {
@@ -651,6 +663,32 @@ type PendingComparison = (bool, Vec<(usize, f64)>, usize);
 
 /// A state-space realisation (A, B, C, D) of a compensator law, single
 /// input (the error) and single output.
+/// The series resistance `ohms` of an inductor or capacitor `name`, expanded
+/// into a resistor branch `NAME.PART` from a new internal node `NAME.PART`
+/// to `b`: returns the node the element itself now ends at, and the
+/// resistor branch (none for no or zero resistance, which is a plain short).
+fn series_part(
+    node: &mut impl FnMut(&str) -> usize,
+    name: &str,
+    part: &str,
+    b: usize,
+    ohms: Option<f64>,
+) -> (usize, Option<Branch>) {
+    match ohms {
+        Some(r) if r > 0.0 => {
+            let inner = node(&format!("{name}.{part}"));
+            let branch = Branch {
+                name: format!("{name}.{part}"),
+                a: inner,
+                b,
+                kind: BranchKind::Resistor { g: 1.0 / r },
+            };
+            (inner, Some(branch))
+        }
+        _ => (b, None),
+    }
+}
+
 fn realise(law: &fluxstep_netlist::CompensatorLaw) -> (DMatrix<f64>, Vec<f64>, Vec<f64>, f64) {
     use fluxstep_netlist::CompensatorLaw;
     match law {

@@ -367,14 +367,69 @@ pub fn element_energy(
     t0: f64,
     t1: f64,
 ) -> Result<f64, MeasureError> {
-    let parts = element_parts(waveform, element);
+    parts_energy(waveform, element, &element_parts(waveform, element), t0, t1)
+}
+
+/// Energy absorbed over `[t0, t1]` (J) by exactly one recorded part: the
+/// output pair `PART.voltage` / `PART.current`, without the sub-parts
+/// `PART.*` that [`element_energy`] adds (a switch's channel without its
+/// body diode, a capacitance without its expanded `ELEMENT.esr`).
+///
+/// # Errors
+///
+/// As [`element_power`], naming the part.
+///
+/// # Example
+///
+/// ```
+/// use fluxstep_netlist::{Capacitor, Circuit, Element};
+/// use fluxstep_solver::measure::{element_energy, part_energy};
+/// use fluxstep_solver::{simulate, Options};
+///
+/// // 1 µF at 10 V with 1 Ω of ESR, discharged into 9 Ω: the ESR takes a
+/// // tenth of the 50 µJ (series resistances share by value).
+/// let rc = Circuit::builder()
+///     .element(Element::Capacitor(Capacitor {
+///         name: "C1".into(),
+///         nodes: ["top".into(), "gnd".into()],
+///         capacitance: 1e-6,
+///         initial_voltage: Some(10.0),
+///         esr: Some(1.0),
+///     }))
+///     .resistor("R1", "top", "gnd", 9.0)
+///     .build()
+///     .unwrap();
+/// let run = simulate(&rc, 1e-3, Options::default()).unwrap();
+/// let esr = part_energy(&run.waveform, "C1.esr", 0.0, 1e-3).unwrap();
+/// assert!((esr - 5e-6).abs() < 1e-15);
+/// let whole = element_energy(&run.waveform, "C1", 0.0, 1e-3).unwrap();
+/// let capacitance = part_energy(&run.waveform, "C1", 0.0, 1e-3).unwrap();
+/// assert!((whole - (capacitance + esr)).abs() < 1e-18);
+/// ```
+pub fn part_energy(waveform: &Waveform, part: &str, t0: f64, t1: f64) -> Result<f64, MeasureError> {
+    let pair = waveform
+        .output(&format!("{part}.voltage"))
+        .ok()
+        .zip(waveform.output(&format!("{part}.current")).ok());
+    let parts: Vec<_> = pair.into_iter().collect();
+    parts_energy(waveform, part, &parts, t0, t1)
+}
+
+/// ∫ Σ v·i dt over `parts`, after checking that none floats where it carries current.
+fn parts_energy(
+    waveform: &Waveform,
+    element: &str,
+    parts: &[(OutputId, OutputId)],
+    t0: f64,
+    t1: f64,
+) -> Result<f64, MeasureError> {
     if parts.is_empty() {
         return Err(MeasureError::UnknownElement {
             element: element.into(),
         });
     }
     check_window(waveform, element, t0, t1)?;
-    for &(v, i) in &parts {
+    for &(v, i) in parts {
         for (k, seg) in window_segments(waveform, t0, t1) {
             let floating = waveform.undetermined_in(k, v) || waveform.undetermined_in(k, i);
             if floating

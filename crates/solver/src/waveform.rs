@@ -365,6 +365,21 @@ impl Waveform {
     /// in which case that stretch counts as zero). Exact up to rounding: see
     /// the note on the quadrature rule.
     pub fn integrate(&self, ids: &[OutputId], t0: f64, t1: f64, f: impl Fn(&[f64]) -> f64) -> f64 {
+        self.integrate_timed(ids, t0, t1, |_, v| f(v))
+    }
+
+    /// As [`Waveform::integrate`], with `f` also given the time: ∫ f(t,
+    /// outputs) dt, for weights such as e^(−(t1 − t)/τ) (the response of a
+    /// first-order system to a power). Exact up to rounding where `f` is
+    /// smooth in t on the scale of the sub-intervals (the Gauss–Legendre
+    /// rule integrates polynomials of degree 15 exactly on each).
+    pub fn integrate_timed(
+        &self,
+        ids: &[OutputId],
+        t0: f64,
+        t1: f64,
+        f: impl Fn(f64, &[f64]) -> f64,
+    ) -> f64 {
         let mut total = 0.0;
         let mut vals = vec![0.0; ids.len()];
         for (i, s) in self.segments.iter().enumerate() {
@@ -380,8 +395,9 @@ impl Waveform {
             let n = propagate::substeps(m.rate, b - a);
             let d = (b - a) / n as f64;
             let mut z = propagate::advance(&m.m, m.rate, &self.z0(i), a - s.t0);
-            for _ in 0..n {
+            for step in 0..n {
                 let mut part = 0.0;
+                let start = a + step as f64 * d;
                 for &(x, w) in &GL8 {
                     let zz = propagate::taylor(&m.m, &z, 0.5 * d * (x + 1.0));
                     for (k, id) in ids.iter().enumerate() {
@@ -392,7 +408,7 @@ impl Waveform {
                                 .map(|(p, q)| p * q)
                                 .sum();
                     }
-                    part += w * f(&vals);
+                    part += w * f(start + 0.5 * d * (x + 1.0), &vals);
                 }
                 total += 0.5 * d * part;
                 z = propagate::taylor(&m.m, &z, d);

@@ -1,0 +1,376 @@
+//! Losses: the energy balance on every example circuit, conduction losses
+//! against closed forms, jump energy, ESR and winding resistance, loads
+//! and efficiency, bad input.
+
+use std::path::PathBuf;
+
+use fluxstep_analysis::losses::{breakdown, LossKind, LossOptions};
+use fluxstep_analysis::AnalysisError;
+use fluxstep_netlist::{
+    Capacitor, Circuit, DiodeModel, Element, Inductor, ShootThroughPolicy, Switch,
+};
+use fluxstep_solver::{simulate, OnInterruption, OnShootThrough, Options, RunResult};
+
+use crate::common::example;
+
+/// Runs an example with its file's policies, recording everything.
+fn run_example(c: &Circuit) -> (RunResult, f64) {
+    let cfg = c.run.as_ref().expect("every example has run settings");
+    let opts = Options {
+        // Conserve flux so the interrupted inductor's jump is in the
+        // balance (the file's default stops there with a diagnostic).
+        on_interruption: OnInterruption::ConserveFlux,
+        on_shoot_through: match cfg.on_shoot_through {
+            ShootThroughPolicy::Record => OnShootThrough::Record,
+            _ => OnShootThrough::Stop,
+        },
+        ..Options::default()
+    };
+    (
+        simulate(c, cfg.stop_time, opts).expect("example runs"),
+        cfg.stop_time,
+    )
+}
+
+/// Input energy = output + Σ losses (conduction and jumps) + change of
+/// stored energy, to 1e-9 relative, on every example circuit and on two
+/// windows (the whole run, which includes every start-up jump, and the
+/// last fifth). Source: conservation of energy (Tellegen's theorem: the
+/// powers of all branches sum to zero at every instant; a jump's logged
+/// energy is the stored energy it removes) — common practice.
+#[test]
+fn energy_balances_on_every_example() {
+    let dir = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../../examples/circuits");
+    let mut names: Vec<_> = std::fs::read_dir(&dir)
+        .unwrap()
+        .map(|e| e.unwrap().file_name().into_string().unwrap())
+        .filter(|n| n.ends_with(".json"))
+        .collect();
+    names.sort();
+    assert!(names.len() >= 11, "{names:?}");
+    for name in &names {
+        let c = example(name);
+        let (run, stop) = run_example(&c);
+        for t0 in [0.0, 0.8 * stop] {
+            let r = breakdown(
+                &c,
+                &run.waveform,
+                &run.events,
+                t0,
+                stop,
+                &LossOptions::default(),
+            )
+            .unwrap_or_else(|e| panic!("{name}: {e}"));
+            assert!(
+                r.balance_error() < 1e-9,
+                "{name} from {t0:e}: residual {:e} J, relative {:e}; {r:#?}",
+                r.balance_residual(),
+                r.balance_error()
+            );
+            assert!(
+                r.input_energy.is_finite() && r.total_loss() >= 0.0,
+                "{name}"
+            );
+            println!(
+                "{name} from {t0:e}: input {:e} J, losses {:e} W, relative residual {:e}",
+                r.input_energy,
+                r.total_loss(),
+                r.balance_error()
+            );
+        }
+    }
+}
+
+/// The interrupted inductor's flux jump is counted once, as a jump loss of
+/// the 1.1 mJ the file's description states: ½·L·i² with
+/// i = 12/1·(1 − e^(−0.5)) (first-order RL step, common practice).
+#[test]
+fn a_flux_jump_is_a_jump_loss() {
+    let c = example("interrupted_inductor.json");
+    let (run, stop) = run_example(&c);
+    let r = breakdown(
+        &c,
+        &run.waveform,
+        &run.events,
+        0.0,
+        stop,
+        &LossOptions::default(),
+    )
+    .unwrap();
+    let jumps: Vec<_> = r
+        .parts
+        .iter()
+        .filter(|p| p.kind == LossKind::Jump)
+        .collect();
+    assert_eq!(jumps.len(), 1, "{jumps:?}");
+    let Some(Element::Inductor(l)) = c.element("L1") else {
+        panic!("L1 is an inductor")
+    };
+    let i = 12.0 * (1.0 - (-0.5f64).exp());
+    let e = 0.5 * l.inductance * i * i;
+    assert!(
+        (jumps[0].energy - e).abs() < 1e-9 * e,
+        "{} vs {e}",
+        jumps[0].energy
+    );
+    assert!((r.by_kind().jump * r.duration() - e).abs() < 1e-9 * e);
+}
+
+fn switch(name: &str, a: &str, b: &str, gate: &str, r: f64, body: Option<DiodeModel>) -> Element {
+    Element::Switch(Switch {
+        name: name.into(),
+        nodes: [a.into(), b.into()],
+        gate: gate.into(),
+        on_resistance: Some(r),
+        body_diode: body,
+        thermal: None,
+    })
+}
+
+/// A resistive chopper: 10 V through a 0.5 Ω switch into 4.5 Ω at 30 %
+/// duty. While on, I = V/(Ron + R) = 2 A: switch loss Ron·I²·D = 0.6 W,
+/// load 4.5·4·0.3 = 5.4 W, input 20·0.3 = 6 W, efficiency 0.9 exactly
+/// (Ohm's and Joule's laws; common practice).
+#[test]
+fn switch_on_resistance_loss_matches_joules_law() {
+    let c = Circuit::builder()
+        .voltage_source("V1", "in", "gnd", 10.0)
+        .element(switch("S1", "in", "out", "g", 0.5, None))
+        .resistor("Rload", "out", "gnd", 4.5)
+        .pwm("g", 50e3, 0.3)
+        .build()
+        .unwrap();
+    let run = simulate(&c, 200e-6, Options::default()).unwrap();
+    let opts = LossOptions {
+        loads: vec!["Rload".into()],
+    };
+    // Ten whole periods.
+    let r = breakdown(&c, &run.waveform, &run.events, 0.0, 200e-6, &opts).unwrap();
+    assert!((r.element_loss("S1") - 0.6).abs() < 1e-12, "{r:#?}");
+    assert!((r.output_power() - 5.4).abs() < 1e-12);
+    assert!((r.input_power() - 6.0).abs() < 1e-12);
+    assert!((r.efficiency().unwrap() - 0.9).abs() < 1e-12);
+    assert!((r.by_kind().conduction - 0.6).abs() < 1e-12);
+}
+
+/// A diode with 0.7 V and 0.1 Ω from 10 V through 9.2 Ω: I = (10 − 0.7) /
+/// 9.3 = 1 A, diode loss Vf·I + Ron·I² = 0.8 W (piecewise-linear diode
+/// model; common practice).
+#[test]
+fn diode_loss_is_forward_drop_plus_resistance() {
+    let model = DiodeModel {
+        forward_voltage: Some(0.7),
+        on_resistance: Some(0.1),
+    };
+    let c = Circuit::builder()
+        .voltage_source("V1", "in", "gnd", 10.0)
+        .diode_model("D1", "in", "out", model)
+        .resistor("R1", "out", "gnd", 9.2)
+        .build()
+        .unwrap();
+    let run = simulate(&c, 1e-3, Options::default()).unwrap();
+    let r = breakdown(
+        &c,
+        &run.waveform,
+        &run.events,
+        0.0,
+        1e-3,
+        &LossOptions::default(),
+    )
+    .unwrap();
+    assert!((r.element_loss("D1") - 0.8).abs() < 1e-12, "{r:#?}");
+    assert!((r.element_loss("R1") - 9.2).abs() < 1e-12);
+}
+
+/// Two 1 µF capacitors, one at 10 V, joined by an ideal switch: the jump
+/// dissipates ½·(C1·C2/(C1 + C2))·ΔV² = 25 µJ (charge sharing; common
+/// practice), counted in the window that starts at the jump and not in
+/// the one that ends there.
+#[test]
+fn charge_sharing_counts_once_at_a_window_start() {
+    let c = Circuit::builder()
+        .capacitor_with_voltage("C1", "a", "gnd", 1e-6, 10.0)
+        .capacitor("C2", "b", "gnd", 1e-6)
+        .resistor("Rleak", "b", "gnd", 1e6)
+        .timed_switch("S1", "a", "b", &[(1e-6, true)])
+        .build()
+        .unwrap();
+    let run = simulate(&c, 2e-6, Options::default()).unwrap();
+    let none = LossOptions::default();
+    let before = breakdown(&c, &run.waveform, &run.events, 0.0, 1e-6, &none).unwrap();
+    let after = breakdown(&c, &run.waveform, &run.events, 1e-6, 2e-6, &none).unwrap();
+    assert_eq!(before.by_kind().jump, 0.0);
+    let e = after.by_kind().jump * after.duration();
+    assert!((e - 25e-6).abs() < 1e-9 * 25e-6, "{e}");
+    // The stored energy at the shared instant: 50 µJ before the jump.
+    assert_eq!(before.stored.1, after.stored.0);
+    assert!((after.stored.0 - 50e-6).abs() < 1e-15);
+    for r in [before, after] {
+        assert!(r.balance_error() < 1e-9, "{r:#?}");
+    }
+}
+
+/// ESR and winding resistance, expanded by the compiler: a DC source into
+/// an RL branch whose inductor has 0.2 Ω of winding resistance, with a
+/// 10 µF capacitor with 0.05 Ω ESR across the 1.8 Ω load. After the start
+/// (many time constants), the DC current is V/(R_w + R) = 5 A, so the
+/// winding dissipates 0.2·25 = 5 W and the ESR nothing (Ohm's law; common
+/// practice); the balance holds through the start-up.
+#[test]
+fn esr_and_winding_resistance_are_conduction_losses() {
+    let c = Circuit::builder()
+        .voltage_source("V1", "in", "gnd", 10.0)
+        .element(Element::Inductor(Inductor {
+            name: "L1".into(),
+            nodes: ["in".into(), "out".into()],
+            inductance: 10e-6,
+            initial_current: None,
+            winding_resistance: Some(0.2),
+        }))
+        .element(Element::Capacitor(Capacitor {
+            name: "C1".into(),
+            nodes: ["out".into(), "gnd".into()],
+            capacitance: 10e-6,
+            initial_voltage: None,
+            esr: Some(0.05),
+        }))
+        .resistor("Rload", "out", "gnd", 1.8)
+        .build()
+        .unwrap();
+    let run = simulate(&c, 2e-3, Options::default()).unwrap();
+    let opts = LossOptions {
+        loads: vec!["Rload".into()],
+    };
+    let whole = breakdown(&c, &run.waveform, &run.events, 0.0, 2e-3, &opts).unwrap();
+    assert!(whole.balance_error() < 1e-9, "{whole:#?}");
+    assert!(
+        whole.element_loss("C1") > 0.0,
+        "the ESR carries the start-up current"
+    );
+    let late = breakdown(&c, &run.waveform, &run.events, 1.9e-3, 2e-3, &opts).unwrap();
+    assert!((late.element_loss("L1") - 5.0).abs() < 1e-9, "{late:#?}");
+    assert!(late.element_loss("C1").abs() < 1e-9);
+    assert!((late.efficiency().unwrap() - 0.9).abs() < 1e-9);
+    let names: Vec<_> = late.parts.iter().map(|p| p.name.as_str()).collect();
+    assert_eq!(names, ["L1.winding", "C1.esr"]);
+}
+
+/// The synchronous buck example: the channels and body diodes of both
+/// switches are separate parts; the body diodes conduct only in the dead
+/// times, and the breakdown's per-kind total equals the sum of its parts.
+#[test]
+fn sync_buck_breakdown_has_channels_and_body_diodes() {
+    let c = example("sync_buck.json");
+    let (run, stop) = run_example(&c);
+    let t0 = stop - 10.0 / 200e3;
+    let opts = LossOptions {
+        loads: vec!["Rload".into()],
+    };
+    let r = breakdown(&c, &run.waveform, &run.events, t0, stop, &opts).unwrap();
+    let names: Vec<_> = r.parts.iter().map(|p| p.name.as_str()).collect();
+    assert_eq!(names, ["Q1", "Q1.body_diode", "Q2", "Q2.body_diode"]);
+    let sum: f64 = r.parts.iter().map(|p| p.power).sum();
+    assert!((r.by_kind().conduction - sum).abs() < 1e-12 * sum);
+    assert!(r.element_loss("Q2.body_diode") > 0.0);
+    assert_eq!(r.element_loss("Q1.body_diode"), 0.0);
+    let eta = r.efficiency().unwrap();
+    assert!(eta > 0.9 && eta < 1.0, "{eta}");
+}
+
+#[test]
+fn an_unknown_load_is_named() {
+    let c = example("buck.json");
+    let run = simulate(&c, 10e-6, Options::default()).unwrap();
+    let opts = LossOptions {
+        loads: vec!["Rlaod".into()],
+    };
+    let e = breakdown(&c, &run.waveform, &run.events, 0.0, 10e-6, &opts).unwrap_err();
+    assert!(matches!(e, AnalysisError::UnknownLoad { .. }));
+    assert!(e.to_string().contains("Rlaod"), "{e}");
+}
+
+mod switching {
+    use fluxstep_analysis::losses::switching::{switching_loss, EnergyTable, SwitchEnergies};
+    use fluxstep_analysis::AnalysisError;
+    use fluxstep_netlist::{Circuit, Waveform};
+    use fluxstep_solver::{simulate, Options};
+
+    /// A constant-current chopper: 100 V, an ideal switch, a 10 A current
+    /// sink clamped by a freewheeling diode, 100 kHz at 40 %.
+    fn chopper() -> Circuit {
+        Circuit::builder()
+            .voltage_source("Vin", "in", "gnd", 100.0)
+            .switch("S1", "in", "sw", "g")
+            .diode("D1", "gnd", "sw")
+            .current_source("Iload", "sw", "gnd", Waveform::Constant { value: 10.0 })
+            .pwm("g", 100e3, 0.4)
+            .build()
+            .unwrap()
+    }
+
+    fn table(top: f64) -> EnergyTable {
+        EnergyTable {
+            current: vec![0.0, 5.0, top],
+            energy: vec![0.0, 50e-6, 300e-6],
+            reference_voltage: 50.0,
+        }
+    }
+
+    /// Each edge switches exactly 10 A against 100 V: linear interpolation
+    /// gives 50 + (5/15)·250 = 133.3 µJ at 50 V, twice that at 100 V
+    /// (datasheet table, linear in current and voltage; common practice).
+    /// Three periods [10 µs, 40 µs) hold three turn-ons and three
+    /// turn-offs (at t = 0 the switch starts on: no edge).
+    #[test]
+    fn edges_read_the_table_at_the_exact_current_and_voltage() {
+        let c = chopper();
+        let run = simulate(&c, 40e-6, Options::default()).unwrap();
+        let model = SwitchEnergies {
+            element: "S1".into(),
+            turn_on: table(20.0),
+            turn_off: table(20.0),
+        };
+        let s = switching_loss(&model, &run.waveform, &run.events, 10e-6, 40e-6).unwrap();
+        let e = 2.0 * (50e-6 + 250e-6 / 3.0);
+        assert_eq!(s.edges, 6, "{s:?}");
+        assert!((s.turn_on - 3.0 * e).abs() < 1e-12 * e, "{s:?}");
+        assert!((s.turn_off - 3.0 * e).abs() < 1e-12 * e, "{s:?}");
+        assert!(s.outside.is_empty());
+        // A table that stops at 8 A: every edge is reported, none counted.
+        let short = SwitchEnergies {
+            element: "S1".into(),
+            turn_on: table(8.0),
+            turn_off: table(8.0),
+        };
+        let s = switching_loss(&short, &run.waveform, &run.events, 10e-6, 40e-6).unwrap();
+        assert_eq!((s.edges, s.outside.len()), (0, 6));
+        assert!(s
+            .outside
+            .iter()
+            .all(|o| o.current == 10.0 && o.voltage == 100.0));
+    }
+
+    #[test]
+    fn bad_tables_name_the_field() {
+        let c = chopper();
+        let run = simulate(&c, 10e-6, Options::default()).unwrap();
+        let mut falling = table(20.0);
+        falling.current = vec![0.0, 5.0, 4.0];
+        let mut negative = table(20.0);
+        negative.energy[1] = -1e-6;
+        for (bad, what) in [(falling, "increasing"), (negative, "non-negative")] {
+            let model = SwitchEnergies {
+                element: "S1".into(),
+                turn_on: table(20.0),
+                turn_off: bad,
+            };
+            let e = switching_loss(&model, &run.waveform, &run.events, 0.0, 10e-6).unwrap_err();
+            assert!(matches!(e, AnalysisError::LossModel { .. }));
+            let text = e.to_string();
+            assert!(
+                text.contains("S1") && text.contains("turn_off") && text.contains(what),
+                "{text}"
+            );
+        }
+    }
+}
