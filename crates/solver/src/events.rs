@@ -6,7 +6,11 @@
 //! long run costs no allocation per event. [`EventLog::iter`] hands out
 //! borrowed [`EventRef`] views; [`EventRef::to_event`] makes an owned
 //! [`Event`]. The JSON form lists full events and is stable (same run, same
-//! bytes).
+//! bytes). [`EventLog::compare`] sets a log against a golden one.
+
+mod compare;
+
+pub use compare::{CompareError, Comparison, Difference, DifferenceKind, Tolerances};
 
 use serde::ser::SerializeStruct;
 use serde::{Deserialize, Deserializer, Serialize, Serializer};
