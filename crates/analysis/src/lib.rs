@@ -26,6 +26,10 @@
 //! - [`sweep`]: sweeps over operating points, tolerance corners and Monte
 //!   Carlo samples ([`sweep::Sweep`]), run in parallel with identical bits
 //!   whatever the thread count, or in shards merged into the same table.
+//! - [`timing`]: timing rules (dead time, on-time, diode conduction,
+//!   hard turn-on, delays, output bands) over a recorded run, with the
+//!   worst-case margin of each, and golden event-log comparison in a
+//!   designer's words; `assert_timing` / `assert_matches_golden` for tests.
 //! - [`AnalysisError`]: every failure, naming what it concerns.
 //!
 //! # Example
@@ -60,6 +64,7 @@ mod error;
 pub mod response;
 pub mod steady;
 pub mod sweep;
+pub mod timing;
 mod units;
 
 pub use error::AnalysisError;
