@@ -13,3 +13,7 @@ mod steady;
 /// CCM/DCM conversion ratios over a duty sweep, Monte Carlo statistics,
 /// failing corners, bad input, and the committed JSON Schema.
 mod sweep;
+/// Timing rules against closed-form timing (complementary pair dead times,
+/// the DCM buck's diode conduction, RC band), one violated period among
+/// 10,000, golden comparisons and their sentences.
+mod timing;

@@ -311,10 +311,13 @@ impl EventLog {
         // The common span, widened by the pairing window so that events
         // that moved across its ends still pair.
         let (lo, hi) = match (span(self), span(golden)) {
-            (Some(a), Some(b)) => (a.0.max(b.0) - window, a.1.min(b.1) + window),
+            (Some(a), Some(b)) => (a.0.max(b.0), a.1.min(b.1)),
             _ => (f64::NEG_INFINITY, f64::INFINITY),
         };
-        let inside = |t: f64| t >= lo && t <= hi;
+        let inside = |t: f64| t >= lo - window && t <= hi + window;
+        // An event with no partner counts as added or missing only inside
+        // the common span itself.
+        let strictly_inside = |t: f64| t >= lo && t <= hi;
 
         let mut names: HashMap<String, u32> = HashMap::new();
         let new = Streams::of(self, &mut names);
@@ -342,6 +345,15 @@ impl EventLog {
         // into named records only for the first few.
         let mut diffs: Vec<(f64, Key, Option<f64>, Option<f64>)> = Vec::new();
         let empty: Vec<f64> = Vec::new();
+        let added = |out: &mut Comparison, diffs: &mut Vec<_>, x: f64, key: Key| {
+            if strictly_inside(x) {
+                out.added += 1;
+                out.events += 1;
+                diffs.push((x, key, Some(x), None));
+            } else {
+                out.outside_common_span += 1;
+            }
+        };
         let mut keys: Vec<Key> = new.keys.clone();
         keys.extend(old.keys.iter().filter(|k| !new.index.contains_key(k)));
         for key in keys {
@@ -366,8 +378,21 @@ impl EventLog {
                     }
                     _ => {}
                 }
+                // Pair the two heads unless the next event of either
+                // stream is a closer partner: then the head is extra.
+                let closer_next = |next: Option<f64>, x: f64, y: f64| {
+                    next.is_some_and(|n| inside(n) && (n - y).abs() < (x - y).abs())
+                };
+                let pair = match (ta, tg) {
+                    (Some(x), Some(y)) => {
+                        (x - y).abs() <= window
+                            && !closer_next(a.get(i + 1).copied(), x, y)
+                            && !closer_next(g.get(j + 1).copied(), y, x)
+                    }
+                    _ => false,
+                };
                 match (ta, tg) {
-                    (Some(x), Some(y)) if (x - y).abs() <= window => {
+                    (Some(x), Some(y)) if pair => {
                         let d = x - y;
                         if d.abs() > out.largest_shift.abs() {
                             out.largest_shift = d;
@@ -384,22 +409,22 @@ impl EventLog {
                         out.golden_events += 1;
                     }
                     (Some(x), Some(y)) if x < y => {
-                        out.added += 1;
-                        diffs.push((x, key, Some(x), None));
+                        added(&mut out, &mut diffs, x, key);
                         i += 1;
-                        out.events += 1;
                     }
                     (Some(x), None) => {
-                        out.added += 1;
-                        diffs.push((x, key, Some(x), None));
+                        added(&mut out, &mut diffs, x, key);
                         i += 1;
-                        out.events += 1;
                     }
                     (_, Some(y)) => {
-                        out.missing += 1;
-                        diffs.push((y, key, None, Some(y)));
+                        if strictly_inside(y) {
+                            out.missing += 1;
+                            out.golden_events += 1;
+                            diffs.push((y, key, None, Some(y)));
+                        } else {
+                            out.outside_common_span += 1;
+                        }
                         j += 1;
-                        out.golden_events += 1;
                     }
                     (None, None) => unreachable!("the loop runs while one remains"),
                 }
