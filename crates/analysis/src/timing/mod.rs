@@ -434,10 +434,15 @@ fn sentence(rule: &TimingRule, o: &RuleOutcome) -> String {
     } else {
         let periods = if o.periods > 0 && w.period.is_some() {
             format!(
-                "; {} of {} period{} violate it",
+                "; {} of {} period{} {} it",
                 o.violated_periods,
                 o.periods,
-                if o.periods == 1 { "" } else { "s" }
+                if o.periods == 1 { "" } else { "s" },
+                if o.violated_periods == 1 {
+                    "violates"
+                } else {
+                    "violate"
+                }
             )
         } else {
             format!(

@@ -152,6 +152,19 @@ pub enum CompareError {
         /// State names of the golden log.
         golden: Vec<String>,
     },
+    /// The logs have no switch in common: they come from different
+    /// circuits.
+    #[error(
+        "the logs come from different circuits: their switches are [{}] and, in the golden log, [{}]",
+        .new.join(", "),
+        .golden.join(", ")
+    )]
+    DifferentSwitches {
+        /// Switches of the new log.
+        new: Vec<String>,
+        /// Switches of the golden log.
+        golden: Vec<String>,
+    },
     /// A tolerance or period that is negative or not finite.
     #[error("tolerance {what} must be finite and not negative, got {value}")]
     BadTolerance {
@@ -287,6 +300,27 @@ impl EventLog {
             return Err(CompareError::DifferentCircuits {
                 new: self.state_names.clone(),
                 golden: golden.state_names.clone(),
+            });
+        }
+        // The same states but no switch in common: another circuit with
+        // the same state names (a switch that stopped switching in one run
+        // is a difference to report, so only disjoint sets are refused).
+        let switches = |log: &EventLog| -> Vec<String> {
+            let mut v: Vec<String> = log
+                .records
+                .iter()
+                .filter(|r| matches!(r.kind, EventKind::SwitchOn | EventKind::SwitchOff))
+                .map(|r| log.names[r.who as usize].clone())
+                .collect();
+            v.sort();
+            v.dedup();
+            v
+        };
+        let (mine, theirs) = (switches(self), switches(golden));
+        if !mine.is_empty() && !theirs.is_empty() && !mine.iter().any(|s| theirs.contains(s)) {
+            return Err(CompareError::DifferentSwitches {
+                new: mine,
+                golden: theirs,
             });
         }
         for (what, value) in [
