@@ -256,9 +256,14 @@ fn an_output_band_uses_the_exact_extremes() {
         max: 6.4,
     })
     .within(0.0, 1e-3);
-    let o = &check(&[band.clone()], &res.events, Some(&res.waveform), None)
-        .unwrap()
-        .rules[0];
+    let o = &check(
+        std::slice::from_ref(&band),
+        &res.events,
+        Some(&res.waveform),
+        None,
+    )
+    .unwrap()
+    .rules[0];
     let w = o.worst.as_ref().unwrap();
     let peak = 10.0 * (1.0 - (-1.0f64).exp());
     assert!((w.value - peak).abs() < 1e-12, "{}", w.value);
