@@ -9,6 +9,15 @@ use crate::steady::Iteration;
 /// Everything that can stop an analysis.
 #[derive(Debug, thiserror::Error)]
 pub enum AnalysisError {
+    /// A timing rule could not be evaluated (not why it failed: that is
+    /// its outcome).
+    #[error("timing rule '{rule}': {reason}")]
+    Timing {
+        /// The rule's name.
+        rule: String,
+        /// Why.
+        reason: String,
+    },
     /// The circuit could not be compiled or simulated (unchanged from the
     /// solver, so a diagnostic reads the same as in a transient run).
     #[error(transparent)]

@@ -32,6 +32,10 @@
 //!   temperature from Foster networks ([`losses::thermal`]); switching
 //!   energies from datasheet tables at each edge's exact current and
 //!   voltage ([`losses::switching`]).
+//! - [`timing`]: timing rules (dead time, on-time, diode conduction,
+//!   hard turn-on, delays, output bands) over a recorded run, with the
+//!   worst-case margin of each, and golden event-log comparison in a
+//!   designer's words; `assert_timing` / `assert_matches_golden` for tests.
 //! - [`AnalysisError`]: every failure, naming what it concerns.
 //!
 //! # Example
@@ -67,6 +71,7 @@ pub mod losses;
 pub mod response;
 pub mod steady;
 pub mod sweep;
+pub mod timing;
 mod units;
 
 pub use error::AnalysisError;

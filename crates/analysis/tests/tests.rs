@@ -21,3 +21,7 @@ mod sweep;
 /// the steady rise, the step response and the periodic pulse-train ripple;
 /// the warning above the maximum; bad input.
 mod thermal;
+/// Timing rules against closed-form timing (complementary pair dead times,
+/// the DCM buck's diode conduction, RC band), one violated period among
+/// 10,000, golden comparisons and their sentences.
+mod timing;

@@ -8,7 +8,8 @@
 //!
 //! Exit status ([`EXIT_CODES`], also in `--help` and the README): 0 on
 //! success; 1 when a simulation stopped on a diagnostic (the files are
-//! still written, up to the fault); 2 when the input cannot be used (a
+//! still written, up to the fault), a timing rule was violated or
+//! compared event logs differ; 2 when the input cannot be used (a
 //! usage error, an unreadable file, text that is not a circuit in JSON, or
 //! a circuit that breaks the rules — every problem is then listed on
 //! stderr, one per line); 3 when an output folder or file cannot be
@@ -20,6 +21,7 @@ use clap::{Parser, Subcommand};
 use fluxstep_netlist::NetlistError;
 
 mod check;
+mod compare;
 mod input;
 mod response;
 mod run;
@@ -31,7 +33,8 @@ mod sweep;
 const EXIT_BAD_INPUT: u8 = 2;
 
 /// Exit status when a simulation stopped on a diagnostic (an interrupted
-/// inductor current, a shoot-through, chatter…).
+/// inductor current, a shoot-through, chatter…), a timing rule was
+/// violated, or event logs differ from their golden log.
 const EXIT_STOPPED: u8 = 1;
 
 /// Exit status when an output folder or file cannot be created or written:
@@ -41,7 +44,8 @@ const EXIT_WRITE: u8 = 3;
 /// The exit codes as `--help` and the README list them.
 const EXIT_CODES: &str = "Exit codes:
   0  success
-  1  the simulation stopped on a diagnostic (files are still written, up to the fault)
+  1  the simulation stopped on a diagnostic (files are still written, up to the fault),
+     a timing rule of the file was violated, or compared event logs differ
   2  invalid input: usage, unreadable file, not a circuit, or a circuit that breaks rules
   3  an output folder or file cannot be created or written";
 
@@ -88,6 +92,11 @@ enum Command {
     Sweep(sweep::Args),
     /// Combine the shard folders of a sweep into the files a single run writes.
     Merge(sweep::MergeArgs),
+    /// Compare an events.json with a golden one: where they first differ,
+    /// and counts of moved, added and missing events (exit 1 on a
+    /// difference beyond the tolerance).
+    #[command(after_help = EXIT_CODES)]
+    Compare(compare::Args),
 }
 
 fn main() -> ExitCode {
@@ -99,6 +108,7 @@ fn main() -> ExitCode {
         Command::Response(args) => response::run(args),
         Command::Sweep(args) => sweep::run(args),
         Command::Merge(args) => sweep::merge(args),
+        Command::Compare(args) => compare::run(args),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,
@@ -107,6 +117,10 @@ fn main() -> ExitCode {
                 || err.downcast_ref::<steady::NotFound>().is_some() =>
         {
             eprintln!("error: {err}");
+            ExitCode::from(EXIT_STOPPED)
+        }
+        Err(err) if err.downcast_ref::<compare::TimingFailed>().is_some() => {
+            eprintln!("timing: {err}");
             ExitCode::from(EXIT_STOPPED)
         }
         Err(err) if err.downcast_ref::<run::WriteFailed>().is_some() => {

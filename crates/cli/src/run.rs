@@ -341,6 +341,16 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
             "diagnostic": e.to_string(),
         });
     }
+    // Timing rules of the file (docs/timing.md): margins into the summary;
+    // a violation exits 1 once every file is written.
+    let timing = crate::compare::timing_rules(&circuit, &result, plan.period, |from| {
+        Ok(simulate(&circuit, &plan, from, false)?.0)
+    })?
+    .map(|report| crate::compare::timing_summary(&report));
+    let violated = timing.and_then(|(value, err)| {
+        summary["timing"] = value;
+        err
+    });
     let summary_path = dir.join("summary.json");
     std::fs::write(
         &summary_path,
@@ -387,9 +397,10 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
         "  written: {}/{{waveform.csv, events.json, summary.json, figure.svg}}",
         dir.display()
     );
-    match stopped {
-        Some(e) => Err(anyhow::Error::new(Stopped(e))),
-        None => Ok(()),
+    match (stopped, violated) {
+        (Some(e), _) => Err(anyhow::Error::new(Stopped(e))),
+        (None, Some(v)) => Err(anyhow::Error::new(v)),
+        (None, None) => Ok(()),
     }
 }
 

@@ -7,6 +7,7 @@ use serde::{Deserialize, Serialize};
 use crate::element::*;
 use crate::error::{NetlistError, Problem};
 use crate::gate::{Gate, SignalShape, Transition};
+use crate::timing::TimingRule;
 use crate::value::{self, SiValue};
 use crate::waveform::Waveform;
 
@@ -140,6 +141,10 @@ pub struct RunSettings {
     /// through their on-resistance: `"stop"` (default) or `"record"`.
     #[serde(default, skip_serializing_if = "is_default")]
     pub on_shoot_through: ShootThroughPolicy,
+    /// Timing rules checked over the run (see docs/timing.md); a violated
+    /// rule makes `fluxstep run` exit with status 1.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub timing: Vec<TimingRule>,
 }
 
 impl RunSettings {
@@ -152,6 +157,7 @@ impl RunSettings {
             outputs: Vec::new(),
             on_interruption: InterruptionPolicy::Stop,
             on_shoot_through: ShootThroughPolicy::Stop,
+            timing: Vec::new(),
         }
     }
 }

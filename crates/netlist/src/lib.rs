@@ -17,6 +17,9 @@
 //! - [`Waveform`]: constant, piecewise-linear and sine sources.
 //! - [`Gate`] and [`SignalShape`]: PWM, complementary PWM with dead time,
 //!   explicit transitions; exact edge times.
+//! - [`TimingRule`] and [`TimingCheck`]: timing rules of the run settings
+//!   (dead time, on-time, diode conduction, …), evaluated by the analysis
+//!   crate.
 //! - [`NetlistError`] and [`Problem`]: what went wrong and where.
 //!
 //! Sign convention: an element's voltage is v(first terminal) − v(second)
@@ -50,6 +53,7 @@ mod circuit;
 mod element;
 mod error;
 mod gate;
+mod timing;
 mod validate;
 mod value;
 mod waveform;
@@ -61,6 +65,7 @@ pub use circuit::{
 pub use element::*;
 pub use error::{NetlistError, Problem};
 pub use gate::{ComparatorSpec, Comparison, Edge, Gate, SignalShape, Transition};
+pub use timing::{EdgeSense, TimingCheck, TimingRule};
 pub use value::{parse_si, ValueError, PREFIXES};
 pub use waveform::{LinearPiece, Point, Waveform};
 

@@ -243,27 +243,81 @@ fn gate() -> impl Strategy<Value = Gate> {
     ]
 }
 
+/// Timing rules of every kind, with any names and values.
+fn timing_rule() -> impl Strategy<Value = TimingRule> {
+    let check = prop_oneof![
+        (name(), name(), value()).prop_map(|(a, b, min)| TimingCheck::DeadTime {
+            switches: [a, b],
+            min
+        }),
+        (name(), option::of(value()), option::of(value()))
+            .prop_map(|(switch, min, max)| TimingCheck::OnTime { switch, min, max }),
+        (name(), option::of(value()), option::of(value()))
+            .prop_map(|(switch, min, max)| TimingCheck::OffTime { switch, min, max }),
+        (name(), option::of(value()), option::of(value()))
+            .prop_map(|(switch, min, max)| TimingCheck::SwitchingPeriod { switch, min, max }),
+        vec(name(), 0..4).prop_map(|switches| TimingCheck::NoOverlap { switches }),
+        (name(), value()).prop_map(|(diode, max)| TimingCheck::DiodeConduction { diode, max }),
+        (name(), name(), any::<u64>()).prop_map(|(switch, diode, max_count)| {
+            TimingCheck::HardTurnOn {
+                switch,
+                diode,
+                max_count,
+            }
+        }),
+        (
+            name(),
+            prop_oneof![
+                Just(EdgeSense::On),
+                Just(EdgeSense::Off),
+                Just(EdgeSense::Both)
+            ],
+            value()
+        )
+            .prop_map(|(switch, edge, max)| TimingCheck::EdgeDelay { switch, edge, max }),
+        ("\\PC{0,12}", value(), value()).prop_map(|(output, min, max)| TimingCheck::Band {
+            output,
+            min,
+            max
+        }),
+    ];
+    (name(), option::of(value()), option::of(value()), check).prop_map(|(name, from, to, check)| {
+        TimingRule {
+            name,
+            from,
+            to,
+            check,
+        }
+    })
+}
+
 fn run() -> impl Strategy<Value = RunSettings> {
     (
-        value(),
-        option::of(value()),
-        vec("\\PC{0,12}", 0..4),
-        prop_oneof![
-            Just(InterruptionPolicy::Stop),
-            Just(InterruptionPolicy::ConserveFlux)
-        ],
-        prop_oneof![
-            Just(ShootThroughPolicy::Stop),
-            Just(ShootThroughPolicy::Record)
-        ],
+        vec(timing_rule(), 0..3),
+        (
+            value(),
+            option::of(value()),
+            vec("\\PC{0,12}", 0..4),
+            prop_oneof![
+                Just(InterruptionPolicy::Stop),
+                Just(InterruptionPolicy::ConserveFlux)
+            ],
+            prop_oneof![
+                Just(ShootThroughPolicy::Stop),
+                Just(ShootThroughPolicy::Record)
+            ],
+        ),
     )
         .prop_map(
-            |(stop_time, record_from, outputs, on_interruption, on_shoot_through)| RunSettings {
-                stop_time,
-                record_from,
-                outputs,
-                on_interruption,
-                on_shoot_through,
+            |(timing, (stop_time, record_from, outputs, on_interruption, on_shoot_through))| {
+                RunSettings {
+                    stop_time,
+                    record_from,
+                    outputs,
+                    on_interruption,
+                    on_shoot_through,
+                    timing,
+                }
             },
         )
 }

@@ -1498,3 +1498,145 @@ fn run_output_names_an_unknown_compensator() {
         "no compensator is named 'K2'",
     );
 }
+
+/// The asynchronous buck with one timing rule in its run settings.
+fn buck_with_rule(check: TimingCheck) -> Circuit {
+    let mut c = buck().build().unwrap();
+    c.run = Some(RunSettings {
+        timing: vec![TimingRule::new(check).named("guard")],
+        ..RunSettings::default_for(1e-3)
+    });
+    c
+}
+
+#[test]
+fn timing_rules_name_switches_and_diodes_of_the_right_kind() {
+    valid(&buck_with_rule(TimingCheck::DiodeConduction {
+        diode: "D1".into(),
+        max: 3e-6,
+    }));
+    let p = expect(
+        &buck_with_rule(TimingCheck::OnTime {
+            switch: "S9".into(),
+            min: Some(1e-6),
+            max: None,
+        }),
+        None,
+        Some("run.timing[0].switch"),
+        "no element is named 'S9'",
+    );
+    assert!(p.message.contains("rule 'guard'"), "{p}");
+    expect(
+        &buck_with_rule(TimingCheck::DiodeConduction {
+            diode: "S1".into(),
+            max: 1e-6,
+        }),
+        None,
+        Some("run.timing[0].diode"),
+        "'S1' is a switch; this field needs a diode",
+    );
+    expect(
+        &buck_with_rule(TimingCheck::DiodeConduction {
+            diode: "S1.body_diode".into(),
+            max: 1e-6,
+        }),
+        None,
+        Some("run.timing[0].diode"),
+        "switch 'S1' has no body_diode",
+    );
+    expect(
+        &buck_with_rule(TimingCheck::HardTurnOn {
+            switch: "D1".into(),
+            diode: "D1".into(),
+            max_count: 0,
+        }),
+        None,
+        Some("run.timing[0].switch"),
+        "'D1' is a diode; this field needs a switch",
+    );
+    expect(
+        &buck_with_rule(TimingCheck::NoOverlap {
+            switches: vec!["S1".into()],
+        }),
+        None,
+        Some("run.timing[0].switches"),
+        "two or more",
+    );
+}
+
+#[test]
+fn timing_limits_must_be_positive_and_finite() {
+    for bad in [0.0, -1e-9, f64::INFINITY] {
+        expect(
+            &buck_with_rule(TimingCheck::DiodeConduction {
+                diode: "D1".into(),
+                max: bad,
+            }),
+            None,
+            Some("run.timing[0].max"),
+            "must be a positive time",
+        );
+    }
+    expect(
+        &buck_with_rule(TimingCheck::OnTime {
+            switch: "S1".into(),
+            min: None,
+            max: None,
+        }),
+        None,
+        Some("run.timing[0].min"),
+        "give min, max or both",
+    );
+    expect(
+        &buck_with_rule(TimingCheck::OffTime {
+            switch: "S1".into(),
+            min: Some(2e-6),
+            max: Some(1e-6),
+        }),
+        None,
+        Some("run.timing[0].max"),
+        "must not be below min",
+    );
+    let mut c = buck_with_rule(TimingCheck::Band {
+        output: "out".into(),
+        min: 0.0,
+        max: 13.0,
+    });
+    c.run.as_mut().unwrap().timing[0].from = Some(5e-4);
+    c.run.as_mut().unwrap().timing[0].to = Some(1e-4);
+    expect(&c, None, Some("run.timing[0].to"), "must be after from");
+}
+
+#[test]
+fn timing_rules_read_from_json_with_their_fields_beside_the_name() {
+    let text = r#"{
+      "elements": [
+        {"kind": "voltage_source", "name": "Vin", "nodes": ["in", "gnd"], "waveform": {"kind": "constant", "value": 24}},
+        {"kind": "switch", "name": "S1", "nodes": ["in", "sw"], "gate": "drive"},
+        {"kind": "diode", "name": "D1", "nodes": ["gnd", "sw"]},
+        {"kind": "inductor", "name": "L1", "nodes": ["sw", "out"], "inductance": "22u"},
+        {"kind": "capacitor", "name": "C1", "nodes": ["out", "gnd"], "capacitance": "47u"},
+        {"kind": "resistor", "name": "R", "nodes": ["out", "gnd"], "resistance": 6}
+      ],
+      "gates": [{"kind": "pwm", "name": "drive", "frequency": "200k", "duty": 0.5}],
+      "run": {"stop_time": "1m", "timing": [
+        {"name": "freewheel", "kind": "diode_conduction", "diode": "D1", "max": "3u", "from": "100u"}
+      ]}
+    }"#;
+    let c = Circuit::from_json(text).unwrap();
+    let rule = &c.run.as_ref().unwrap().timing[0];
+    assert_eq!(rule.from, Some(100e-6));
+    assert_eq!(
+        rule.check,
+        TimingCheck::DiodeConduction {
+            diode: "D1".into(),
+            max: 3e-6
+        }
+    );
+    let back = Circuit::from_json(&c.to_json()).unwrap();
+    assert_eq!(back, c);
+    let err = Circuit::from_json(&text.replace("\"max\": \"3u\"", "\"maxx\": \"3u\""))
+        .unwrap_err()
+        .to_string();
+    assert!(err.contains("maxx"), "{err}");
+}

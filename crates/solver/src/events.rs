@@ -6,7 +6,11 @@
 //! long run costs no allocation per event. [`EventLog::iter`] hands out
 //! borrowed [`EventRef`] views; [`EventRef::to_event`] makes an owned
 //! [`Event`]. The JSON form lists full events and is stable (same run, same
-//! bytes).
+//! bytes). [`EventLog::compare`] sets a log against a golden one.
+
+mod compare;
+
+pub use compare::{CompareError, Comparison, Difference, DifferenceKind, Tolerances};
 
 use serde::ser::SerializeStruct;
 use serde::{Deserialize, Deserializer, Serialize, Serializer};
@@ -389,6 +393,21 @@ impl EventLog {
     /// Event `i`.
     pub fn get(&self, i: usize) -> Option<EventRef<'_>> {
         self.records.get(i).map(|c| self.view(i, c))
+    }
+
+    /// The log's number for an element name (see [`EventLog::brief`]);
+    /// `None` if the element has no event in the log.
+    pub fn element_number(&self, name: &str) -> Option<u32> {
+        self.names.iter().position(|n| n == name).map(|i| i as u32)
+    }
+
+    /// Every event in order as (time, kind, cause, element number) — no
+    /// states or names, for passes over long logs that only need timing
+    /// (element numbers from [`EventLog::element_number`]).
+    pub fn brief(&self) -> impl DoubleEndedIterator<Item = (f64, EventKind, EventCause, u32)> + '_ {
+        self.records
+            .iter()
+            .map(|c| (c.time, c.kind, c.cause, c.who))
     }
 
     /// Events of one element, in order.

@@ -18,7 +18,8 @@
 //!   [`RunResult`].
 //! - [`Waveform`]: exact dense output — any output at any instant, vertices
 //!   for drawing, exact integrals.
-//! - [`EventLog`]: every event with its cause, element and state.
+//! - [`EventLog`]: every event with its cause, element and state;
+//!   [`EventLog::compare`] against a golden log with [`Tolerances`].
 //! - [`Options`]: what to record, how to treat interrupted inductors and
 //!   resistive shoot-through.
 //! - [`control`]: sampled controllers written in Rust ([`control::Controller`]).
@@ -68,7 +69,10 @@ mod waveform_ext;
 
 pub use dynamics::{Crossed, SegmentDynamics};
 pub use error::SolverError;
-pub use events::{Event, EventCause, EventKind, EventLog, EventRef, SwitchEdge};
+pub use events::{
+    CompareError, Comparison, Difference, DifferenceKind, Event, EventCause, EventKind, EventLog,
+    EventRef, SwitchEdge, Tolerances,
+};
 pub use mode::ModeKey;
 pub use options::{OnInterruption, OnShootThrough, Options, Record};
 pub use run::{simulate, RunResult, SegmentSink, SegmentView, Simulator, Stats};
