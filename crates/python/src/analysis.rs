@@ -267,7 +267,10 @@ impl PySteady {
     /// Exact measurements of ``output`` over one period (dict as
     /// :meth:`fluxstep.Run.measure`).
     fn measurement<'py>(&self, py: Python<'py>, output: &str) -> PyResult<Bound<'py, PyAny>> {
-        let m = self.inner.measurement(output).map_err(|e| analysis_error(py, e))?;
+        let m = self
+            .inner
+            .measurement(output)
+            .map_err(|e| analysis_error(py, e))?;
         ser_to_py(py, &m)
     }
 
@@ -548,7 +551,11 @@ pub struct PySweep {
 impl PySweep {
     #[new]
     #[pyo3(signature = (spec, circuit=None))]
-    fn new(py: Python<'_>, spec: &Bound<'_, PyAny>, circuit: Option<&Bound<'_, PyAny>>) -> PyResult<Self> {
+    fn new(
+        py: Python<'_>,
+        spec: &Bound<'_, PyAny>,
+        circuit: Option<&Bound<'_, PyAny>>,
+    ) -> PyResult<Self> {
         let text = if spec.is_instance_of::<PyDict>() {
             Some(serde_json::to_string(&to_value(spec, "")?).expect("a JSON value serializes"))
         } else if let Ok(s) = spec.cast::<PyString>() {
@@ -574,7 +581,10 @@ impl PySweep {
             (None, Some(c)) => {
                 let path: PathBuf = spec.extract()?;
                 let text = std::fs::read_to_string(&path).map_err(|e| {
-                    pyo3::exceptions::PyOSError::new_err(format!("cannot read {}: {e}", path.display()))
+                    pyo3::exceptions::PyOSError::new_err(format!(
+                        "cannot read {}: {e}",
+                        path.display()
+                    ))
                 })?;
                 let spec = SweepSpec::from_json(&text).map_err(|e| sweep_error(py, e))?;
                 Sweep::new(spec, &circuit_arg(py, c)?).map_err(|e| sweep_error(py, e))?
@@ -606,7 +616,9 @@ impl PySweep {
     fn run(&self, py: Python<'_>, threads: Option<usize>) -> PyResult<PyTable> {
         let total = self.inner.points();
         let workers = threads.unwrap_or_else(|| {
-            std::thread::available_parallelism().map(|n| n.get()).unwrap_or(1)
+            std::thread::available_parallelism()
+                .map(|n| n.get())
+                .unwrap_or(1)
         }) as u64;
         // Batches of about 8 points per worker, at most 64 of them.
         let count = (total / (8 * workers.max(1))).clamp(1, 64);
@@ -667,7 +679,10 @@ impl PyTable {
                 "sample",
                 PyArray1::from_vec(
                     py,
-                    t.rows.iter().map(|r| r.sample.map_or(-1, |s| s as i64)).collect(),
+                    t.rows
+                        .iter()
+                        .map(|r| r.sample.map_or(-1, |s| s as i64))
+                        .collect(),
                 ),
             )?;
         }
@@ -682,15 +697,24 @@ impl PyTable {
                 &c.name,
                 PyArray1::from_vec(
                     py,
-                    t.rows.iter().map(|r| r.figures[k].unwrap_or(f64::NAN)).collect(),
+                    t.rows
+                        .iter()
+                        .map(|r| r.figures[k].unwrap_or(f64::NAN))
+                        .collect(),
                 ),
             )?;
         }
         let np = py.import("numpy")?;
         let status: Vec<&str> = t.rows.iter().map(|r| r.status.as_str()).collect();
         let message: Vec<&str> = t.rows.iter().map(|r| r.message.as_str()).collect();
-        d.set_item("status", np.call_method1("array", (PyList::new(py, status)?,))?)?;
-        d.set_item("message", np.call_method1("array", (PyList::new(py, message)?,))?)?;
+        d.set_item(
+            "status",
+            np.call_method1("array", (PyList::new(py, status)?,))?,
+        )?;
+        d.set_item(
+            "message",
+            np.call_method1("array", (PyList::new(py, message)?,))?,
+        )?;
         Ok(d)
     }
 

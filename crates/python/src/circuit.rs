@@ -96,7 +96,11 @@ impl PyCircuit {
     /// Every element name, in order.
     #[getter]
     fn elements(&self) -> Vec<String> {
-        self.inner.elements.iter().map(|e| e.name().to_string()).collect()
+        self.inner
+            .elements
+            .iter()
+            .map(|e| e.name().to_string())
+            .collect()
     }
 
     /// Every output that a run can record and evaluate (node voltages,
@@ -145,7 +149,11 @@ pub fn load(py: Python<'_>, source: &Bound<'_, PyAny>) -> PyResult<PyCircuit> {
     let path: PathBuf = source.extract().map_err(|_| {
         PyTypeError::new_err(format!(
             "a Circuit, a dict, JSON text or a path is expected, got {}",
-            source.get_type().name().map(|n| n.to_string()).unwrap_or_default()
+            source
+                .get_type()
+                .name()
+                .map(|n| n.to_string())
+                .unwrap_or_default()
         ))
     })?;
     PyCircuit::from_file(py, path)
@@ -163,9 +171,8 @@ pub fn circuit_arg(py: Python<'_>, source: &Bound<'_, PyAny>) -> PyResult<Circui
 /// number, dict or JSON text, read with the circuit format's own rules.
 fn part<T: serde::de::DeserializeOwned>(obj: &Bound<'_, PyAny>, what: &str) -> PyResult<T> {
     let value = to_value(obj, what)?;
-    serde_json::from_value(value).map_err(|e| {
-        pyo3::exceptions::PyValueError::new_err(format!("{what}: {e}"))
-    })
+    serde_json::from_value(value)
+        .map_err(|e| pyo3::exceptions::PyValueError::new_err(format!("{what}: {e}")))
 }
 
 /// A source waveform: a number is a constant value; otherwise a dict in the
@@ -222,7 +229,13 @@ impl PyBuilder {
     }
 
     /// Adds a resistor ``a``–``b`` of ``ohms``.
-    fn resistor<'a>(slf: PyRefMut<'a, Self>, name: &str, a: &str, b: &str, ohms: f64) -> PyRefMut<'a, Self> {
+    fn resistor<'a>(
+        slf: PyRefMut<'a, Self>,
+        name: &str,
+        a: &str,
+        b: &str,
+        ohms: f64,
+    ) -> PyRefMut<'a, Self> {
         Self::with(slf, |x| x.resistor(name, a, b, ohms))
     }
 
@@ -270,7 +283,9 @@ impl PyBuilder {
         value: &Bound<'_, PyAny>,
     ) -> PyResult<PyRefMut<'a, Self>> {
         let w = waveform(value)?;
-        Ok(Self::with(slf, |x| x.voltage_waveform(name, plus, minus, w)))
+        Ok(Self::with(slf, |x| {
+            x.voltage_waveform(name, plus, minus, w)
+        }))
     }
 
     /// Adds a current source pushing ``value`` (a number in amperes or a
@@ -283,11 +298,19 @@ impl PyBuilder {
         value: &Bound<'_, PyAny>,
     ) -> PyResult<PyRefMut<'a, Self>> {
         let w = waveform(value)?;
-        Ok(Self::with(slf, |x| x.current_source(name, from_node, to_node, w)))
+        Ok(Self::with(slf, |x| {
+            x.current_source(name, from_node, to_node, w)
+        }))
     }
 
     /// Adds an ideal switch ``a``–``b`` driven by gate signal ``gate``.
-    fn switch<'a>(slf: PyRefMut<'a, Self>, name: &str, a: &str, b: &str, gate: &str) -> PyRefMut<'a, Self> {
+    fn switch<'a>(
+        slf: PyRefMut<'a, Self>,
+        name: &str,
+        a: &str,
+        b: &str,
+        gate: &str,
+    ) -> PyRefMut<'a, Self> {
         Self::with(slf, |x| x.switch(name, a, b, gate))
     }
 
@@ -319,7 +342,9 @@ impl PyBuilder {
             Some(m) => part(m, "body")?,
             None => DiodeModel::default(),
         };
-        Ok(Self::with(slf, |x| x.transistor(name, a, b, gate, on_resistance, model)))
+        Ok(Self::with(slf, |x| {
+            x.transistor(name, a, b, gate, on_resistance, model)
+        }))
     }
 
     /// Adds a diode ``anode`` → ``cathode``: ideal, or with the diode model
@@ -342,7 +367,12 @@ impl PyBuilder {
     }
 
     /// Adds fixed-frequency PWM gate ``name`` (rising at k·T, duty in [0, 1]).
-    fn pwm<'a>(slf: PyRefMut<'a, Self>, name: &str, frequency: f64, duty: f64) -> PyRefMut<'a, Self> {
+    fn pwm<'a>(
+        slf: PyRefMut<'a, Self>,
+        name: &str,
+        frequency: f64,
+        duty: f64,
+    ) -> PyRefMut<'a, Self> {
         Self::with(slf, |x| x.pwm(name, frequency, duty))
     }
 
@@ -355,11 +385,16 @@ impl PyBuilder {
         dead_time_high: f64,
         dead_time_low: f64,
     ) -> PyRefMut<'a, Self> {
-        Self::with(slf, |x| x.complementary_pwm(name, frequency, duty, dead_time_high, dead_time_low))
+        Self::with(slf, |x| {
+            x.complementary_pwm(name, frequency, duty, dead_time_high, dead_time_low)
+        })
     }
 
     /// Adds any element, given as a dict of the circuit format.
-    fn element<'a>(slf: PyRefMut<'a, Self>, data: &Bound<'_, PyAny>) -> PyResult<PyRefMut<'a, Self>> {
+    fn element<'a>(
+        slf: PyRefMut<'a, Self>,
+        data: &Bound<'_, PyAny>,
+    ) -> PyResult<PyRefMut<'a, Self>> {
         let e: Element = part(data, "element")?;
         Ok(Self::with(slf, |x| x.element(e)))
     }
@@ -372,7 +407,11 @@ impl PyBuilder {
 
     /// Sets the default run settings: stop time (s) and outputs.
     #[pyo3(signature = (stop_time, outputs=Vec::new()))]
-    fn run<'a>(slf: PyRefMut<'a, Self>, stop_time: f64, outputs: Vec<String>) -> PyRefMut<'a, Self> {
+    fn run<'a>(
+        slf: PyRefMut<'a, Self>,
+        stop_time: f64,
+        outputs: Vec<String>,
+    ) -> PyRefMut<'a, Self> {
         let names: Vec<&str> = outputs.iter().map(String::as_str).collect();
         Self::with(slf, |x| x.run(stop_time, &names))
     }

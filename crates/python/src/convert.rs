@@ -87,10 +87,7 @@ fn name(at: &str) -> &str {
 
 fn float(x: f64, at: &str) -> PyResult<Value> {
     Number::from_f64(x).map(Value::Number).ok_or_else(|| {
-        pyo3::exceptions::PyValueError::new_err(format!(
-            "{}: {x} is not a finite number",
-            name(at)
-        ))
+        pyo3::exceptions::PyValueError::new_err(format!("{}: {x} is not a finite number", name(at)))
     })
 }
 

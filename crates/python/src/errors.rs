@@ -12,12 +12,7 @@ use pyo3::types::{PyDict, PyList};
 
 /// An instance of exception class `name` of `fluxstep._errors`, built from
 /// `args` and `kwargs`, as a `PyErr` ready to raise.
-fn raise(
-    py: Python<'_>,
-    name: &str,
-    message: String,
-    kwargs: Option<&Bound<'_, PyDict>>,
-) -> PyErr {
+fn raise(py: Python<'_>, name: &str, message: String, kwargs: Option<&Bound<'_, PyDict>>) -> PyErr {
     let made = (|| -> PyResult<PyErr> {
         let class = py.import("fluxstep._errors")?.getattr(name)?;
         let value = class.call((message.clone(),), kwargs)?;
@@ -44,13 +39,20 @@ fn invalid_text(problems: &[fluxstep_netlist::Problem]) -> String {
 pub fn circuit_error(py: Python<'_>, e: NetlistError, context: Option<&str>) -> PyErr {
     let prefix = context.map(|c| format!("{c}: ")).unwrap_or_default();
     match e {
-        NetlistError::Io { path, source } => {
-            PyOSError::new_err((source.raw_os_error().unwrap_or(2), format!("cannot read {path}: {source}"), path))
-        }
+        NetlistError::Io { path, source } => PyOSError::new_err((
+            source.raw_os_error().unwrap_or(2),
+            format!("cannot read {path}: {source}"),
+            path,
+        )),
         NetlistError::Json { path, message } => {
             let kw = PyDict::new(py);
             let _ = kw.set_item("path", &path);
-            raise(py, "CircuitError", format!("{prefix}{path}: {message}"), Some(&kw))
+            raise(
+                py,
+                "CircuitError",
+                format!("{prefix}{path}: {message}"),
+                Some(&kw),
+            )
         }
         NetlistError::Invalid(problems) => {
             let kw = PyDict::new(py);
@@ -64,7 +66,12 @@ pub fn circuit_error(py: Python<'_>, e: NetlistError, context: Option<&str>) -> 
                 let _ = list.append(d);
             }
             let _ = kw.set_item("problems", list);
-            raise(py, "CircuitError", format!("{prefix}{}", invalid_text(&problems)), Some(&kw))
+            raise(
+                py,
+                "CircuitError",
+                format!("{prefix}{}", invalid_text(&problems)),
+                Some(&kw),
+            )
         }
     }
 }
@@ -170,7 +177,9 @@ pub fn sweep_error(py: Python<'_>, e: SweepError) -> PyErr {
 
 /// A warning of class `StoppedRunWarning` with `message`.
 pub fn warn_stopped(py: Python<'_>, message: &str) -> PyResult<()> {
-    let class = py.import("fluxstep._errors")?.getattr("StoppedRunWarning")?;
+    let class = py
+        .import("fluxstep._errors")?
+        .getattr("StoppedRunWarning")?;
     py.import("warnings")?
         .call_method1("warn", (message, class, 2))?;
     Ok(())

@@ -90,7 +90,11 @@ fn advance_sliced(
         let took = started.elapsed().as_secs_f64();
         // Grow or shrink the slice toward the wall time aimed at; the cut
         // instants do not change the result, only how often Ctrl-C is seen.
-        let factor = if took > 0.0 { SLICE_SECONDS / took } else { 4.0 };
+        let factor = if took > 0.0 {
+            SLICE_SECONDS / took
+        } else {
+            4.0
+        };
         slice *= factor.clamp(0.5, 4.0);
         if cut < stop {
             Python::attach(|py| py.check_signals())?;
@@ -140,7 +144,9 @@ fn plan(
             "stop must be positive and finite, got {stop} s"
         )));
     }
-    let from = record_from.or(cfg.and_then(|c| c.record_from));
+    // The file's window belongs to the file's stop time: it applies only
+    // while it starts before the stop asked for.
+    let from = record_from.or(cfg.and_then(|c| c.record_from).filter(|&f| f < stop));
     let record = match from {
         None => Record::All,
         Some(f) if f >= 0.0 && f < stop => Record::Window { from: f, to: stop },
@@ -201,7 +207,8 @@ fn plan(
 /// JSON text, a path). Settings not given come from the circuit's ``run``
 /// settings, else the solver's defaults: ``stop`` from ``run.stop_time``;
 /// ``record_from`` (start of the recorded window, s) from
-/// ``run.record_from``, else the whole run is recorded; ``outputs`` (the
+/// ``run.record_from`` when that lies before ``stop``, else the whole run
+/// is recorded; ``outputs`` (the
 /// outputs the summary measures) from ``run.outputs``, else every output;
 /// ``on_interruption`` (``"stop"`` or ``"conserve_flux"``) and
 /// ``on_shoot_through`` (``"stop"`` or ``"record"``) from the file, else
@@ -254,7 +261,11 @@ pub fn simulate(
     let done = py.detach(|| -> Result<_, Failure> {
         let mut sim = Simulator::new(&c, plan.opts.clone()).map_err(Failure::Solver)?;
         let names = sim.waveform().output_names().to_vec();
-        if let Some(o) = plan.outputs.iter().find(|o| sim.waveform().output(o).is_err()) {
+        if let Some(o) = plan
+            .outputs
+            .iter()
+            .find(|o| sim.waveform().output(o).is_err())
+        {
             return Err(Failure::Output(format!(
                 "unknown output {o:?}: an output is {}; this circuit has {}",
                 fluxstep_netlist::OUTPUT_FORMS,
@@ -327,7 +338,13 @@ impl PyRun {
     }
 
     /// `t0`, `t1` or the recorded span's ends.
-    fn window(&self, py: Python<'_>, t0: Option<f64>, t1: Option<f64>, subject: &str) -> PyResult<(f64, f64)> {
+    fn window(
+        &self,
+        py: Python<'_>,
+        t0: Option<f64>,
+        t1: Option<f64>,
+        subject: &str,
+    ) -> PyResult<(f64, f64)> {
         let span = self.result.waveform.span();
         match (t0, t1, span) {
             (Some(a), Some(b), _) => Ok((a, b)),
@@ -378,6 +395,9 @@ impl PyRun {
         Ok(PyArray1::from_vec(py, out).reshape(shape)?.into_any())
     }
 }
+
+/// Two arrays of equal length: times and values.
+type Pair<'py> = (Bound<'py, PyArray1<f64>>, Bound<'py, PyArray1<f64>>);
 
 fn side_is_before(side: &str) -> PyResult<bool> {
     match side {
@@ -454,7 +474,7 @@ impl PyRun {
         t0: Option<f64>,
         t1: Option<f64>,
         interior: usize,
-    ) -> PyResult<(Bound<'py, PyArray1<f64>>, Bound<'py, PyArray1<f64>>)> {
+    ) -> PyResult<Pair<'py>> {
         let id = self.id(py, name)?;
         let Ok((a, b)) = self.window(py, t0, t1, name) else {
             let empty = || PyArray1::from_vec(py, vec![]);
@@ -485,7 +505,9 @@ impl PyRun {
         let id = self.id(py, name)?;
         let (a, b) = self.window(py, t0, t1, name)?;
         let w = &self.result.waveform;
-        let m = py.detach(|| measure(w, id, a, b)).map_err(|e| measure_error(py, e))?;
+        let m = py
+            .detach(|| measure(w, id, a, b))
+            .map_err(|e| measure_error(py, e))?;
         let d = ser_to_py(py, &m)?;
         d.set_item("unit", unit(name))?;
         Ok(d)
@@ -591,15 +613,27 @@ impl PyRun {
             before.extend_from_slice(e.before);
             after.extend_from_slice(e.after);
         }
-        let width = |v: &[String]| v.iter().map(|s| s.chars().count()).max().unwrap_or(1).max(1);
+        let width = |v: &[String]| {
+            v.iter()
+                .map(|s| s.chars().count())
+                .max()
+                .unwrap_or(1)
+                .max(1)
+        };
         let np = py.import("numpy")?;
         let dtype = PyList::new(
             py,
             [
                 ("time", "f8".to_string()).into_pyobject(py)?.into_any(),
-                ("kind", format!("U{}", width(&kind))).into_pyobject(py)?.into_any(),
-                ("cause", format!("U{}", width(&cause))).into_pyobject(py)?.into_any(),
-                ("element", format!("U{}", width(&element))).into_pyobject(py)?.into_any(),
+                ("kind", format!("U{}", width(&kind)))
+                    .into_pyobject(py)?
+                    .into_any(),
+                ("cause", format!("U{}", width(&cause)))
+                    .into_pyobject(py)?
+                    .into_any(),
+                ("element", format!("U{}", width(&element)))
+                    .into_pyobject(py)?
+                    .into_any(),
                 ("energy", "f8".to_string()).into_pyobject(py)?.into_any(),
                 ("moved", "f8".to_string()).into_pyobject(py)?.into_any(),
                 ("before", "f8", (ns,)).into_pyobject(py)?.into_any(),
@@ -735,6 +769,9 @@ fn name_of<T: serde::Serialize>(v: &T) -> String {
 }
 
 /// A JSON value as Python objects (re-exported for the analysis module).
-pub(crate) fn json_to_py<'py>(py: Python<'py>, v: &serde_json::Value) -> PyResult<Bound<'py, PyAny>> {
+pub(crate) fn json_to_py<'py>(
+    py: Python<'py>,
+    v: &serde_json::Value,
+) -> PyResult<Bound<'py, PyAny>> {
     to_py(py, v)
 }

@@ -95,3 +95,19 @@ class StoppedRunWarning(UserWarning):
     """A run stopped on a diagnostic before its stop time; the result holds
     what was recorded up to the fault, and ``Run.stopped`` the
     diagnostic."""
+
+
+# Shown as fluxstep.X in tracebacks, where users import them from.
+for _cls in (
+    FluxstepError,
+    CircuitError,
+    OutputError,
+    SimulationError,
+    MeasureError,
+    UnavailableValueError,
+    AnalysisError,
+    SweepError,
+    StoppedRunWarning,
+):
+    _cls.__module__ = "fluxstep"
+del _cls
