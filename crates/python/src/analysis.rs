@@ -16,7 +16,7 @@ use pyo3::types::{PyDict, PyList, PyString};
 use crate::circuit::circuit_arg;
 use crate::convert::{ser_to_py, to_value};
 use crate::errors::{analysis_error, circuit_error, sweep_error};
-use crate::run::{json_to_py, PyRun};
+use crate::run::{json_to_py, unit, PyRun};
 
 /// Options of a steady-state search (``fluxstep.steady.SteadyOptions``);
 /// every default is the Rust one.
@@ -159,16 +159,15 @@ pub struct PySteady {
 }
 
 impl PySteady {
-    fn new(py: Python<'_>, mut ss: SteadyState) -> PyResult<PySteady> {
-        let result = std::mem::replace(
-            &mut ss.run,
-            fluxstep_solver::RunResult {
-                waveform: Default::default(),
-                events: fluxstep_solver::EventLog::new(vec![]),
-                stats: Default::default(),
-            },
-        );
-        let end = ss.start_time + ss.period * ss.iterations.len().max(1) as f64;
+    fn new(py: Python<'_>, ss: SteadyState) -> PyResult<PySteady> {
+        // A copy for the Python-side run (one or two periods: small); the
+        // original stays in place for the steady state's own measurements.
+        let result = fluxstep_solver::RunResult {
+            waveform: ss.run.waveform.clone(),
+            events: ss.run.events.clone(),
+            stats: ss.run.stats,
+        };
+        let end = ss.run.waveform.span().map_or(ss.end_time(), |(_, b)| b);
         let run = Py::new(py, PyRun::from_result(result, end))?;
         Ok(PySteady { inner: ss, run })
     }
@@ -265,18 +264,26 @@ impl PySteady {
     }
 
     /// Exact measurements of ``output`` over one period (dict as
-    /// :meth:`fluxstep.Run.measure`).
+    /// :meth:`fluxstep.Run.measure`, with its ``unit``).
     fn measurement<'py>(&self, py: Python<'py>, output: &str) -> PyResult<Bound<'py, PyAny>> {
         let m = self
             .inner
             .measurement(output)
             .map_err(|e| analysis_error(py, e))?;
-        ser_to_py(py, &m)
+        let d = ser_to_py(py, &m)?;
+        d.set_item("unit", unit(&m.output))?;
+        Ok(d)
     }
 
     /// Measurements of every output determined over the period.
     fn measurements<'py>(&self, py: Python<'py>) -> PyResult<Bound<'py, PyAny>> {
-        ser_to_py(py, &self.inner.measurements())
+        let list = PyList::empty(py);
+        for m in self.inner.measurements() {
+            let d = ser_to_py(py, &m)?;
+            d.set_item("unit", unit(&m.output))?;
+            list.append(d)?;
+        }
+        Ok(list.into_any())
     }
 
     fn __repr__(&self) -> String {

@@ -51,15 +51,17 @@ fn edge_cut(circuit: &Circuit, target: f64, horizon: f64, stop: f64) -> Option<f
         .map(|(_, &t)| t)
 }
 
-/// The length of the first slice: a few periods of the first periodic
-/// gate, or a thousandth of the run.
+/// The length of the first slice: 4,096 periods of the first periodic gate
+/// (a few milliseconds of a simple converter; each cut costs a return from
+/// the solver's lean driver and a look for signals, so short runs are
+/// better cut rarely), or a sixteenth of the run.
 fn first_slice(circuit: &Circuit, stop: f64) -> f64 {
     circuit
         .signals()
         .iter()
         .find_map(|(_, s)| s.period)
-        .map(|p| 64.0 * p)
-        .unwrap_or(stop / 1000.0)
+        .map(|p| 4096.0 * p)
+        .unwrap_or(stop / 16.0)
         .min(stop)
 }
 
@@ -72,6 +74,14 @@ fn advance_sliced(
     stop: f64,
 ) -> Result<Option<SolverError>, PyErr> {
     let mut slice = first_slice(circuit, stop);
+    // How far past a slice's end to look for its cut: a few periods (the
+    // edges of that stretch are generated and sorted at every cut).
+    let horizon = circuit
+        .signals()
+        .iter()
+        .find_map(|(_, s)| s.period)
+        .map(|p| 4.0 * p)
+        .unwrap_or(stop);
     loop {
         let t = sim.time();
         if t >= stop {
@@ -79,7 +89,7 @@ fn advance_sliced(
         }
         let target = t + slice;
         let cut = if target < stop {
-            edge_cut(circuit, target, slice.max(1e-300), stop).unwrap_or(stop)
+            edge_cut(circuit, target, horizon.min(slice), stop).unwrap_or(stop)
         } else {
             stop
         };
@@ -756,7 +766,7 @@ impl PyRun {
 }
 
 /// The SI unit of an output name ("V", "A", or "" for a compensator output).
-fn unit(name: &str) -> &'static str {
+pub(crate) fn unit(name: &str) -> &'static str {
     OutputName::parse(name).map(|o| o.unit()).unwrap_or("")
 }
 

@@ -74,3 +74,13 @@ def test_ctrl_c_stops_a_long_run_cleanly(examples):
     # The interpreter and the package go on working.
     run = fluxstep.simulate(c, 1e-4)
     assert run.ok
+
+
+def test_steady_state_measurements_and_run(examples):
+    ss = fluxstep.steady.find(examples / "buck.json")
+    m = ss.measurement("out")
+    assert m == ss.run.measure("out", ss.start_time, ss.end_time)
+    assert len(ss.measurements()) > 0
+    assert ss.monodromy.shape == (len(ss.free_states), len(ss.free_states))
+    with pytest.raises(fluxstep.OutputError):
+        ss.measurement("nope")
