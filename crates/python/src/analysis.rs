@@ -494,12 +494,12 @@ pub fn frequency_response(
     })
 }
 
-/// The loop gain of the loop closed through closed-loop gate ``gate``,
-/// broken at its sense input, at ``frequencies`` (Hz), with crossover and
-/// margins.
+/// The loop gain of a closed loop broken at ``gate``: a closed-loop gate
+/// (at its comparator's sense input) or a compensator (at its input), at
+/// ``frequencies`` (Hz), with crossover and margins.
 ///
 /// Raises as :func:`frequency_response`; AnalysisError ``unknown_input``
-/// when ``gate`` is not a closed-loop gate.
+/// when ``gate`` is neither a closed-loop gate nor a compensator.
 #[pyfunction]
 #[pyo3(signature = (circuit, gate, frequencies, options=None))]
 pub fn loop_gain(
@@ -511,11 +511,12 @@ pub fn loop_gain(
 ) -> PyResult<PyLoopGain> {
     let c = circuit_arg(py, circuit)?;
     let opts = self::options(options)?;
+    let point = response::BreakPoint::named(&c, gate).map_err(|e| analysis_error(py, e))?;
     let r = py
-        .detach(|| response::loop_gain(&c, gate, &frequencies, &opts))
+        .detach(|| response::loop_gain(&c, &point, &frequencies, &opts))
         .map_err(|e| analysis_error(py, e))?;
     Ok(PyLoopGain {
-        gate: r.gate,
+        gate: gate.to_string(),
         points_: r.points,
         margins_: r.margins,
         switching_frequency: r.switching_frequency,

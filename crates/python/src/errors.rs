@@ -141,6 +141,9 @@ pub fn analysis_error(py: Python<'_>, e: AnalysisError) -> PyErr {
         AnalysisError::InvalidOption { .. } => "invalid_option",
         AnalysisError::NotConverged { .. } => "not_converged",
         AnalysisError::Undetermined { .. } => "undetermined",
+        AnalysisError::Timing { .. } => "timing",
+        AnalysisError::UnknownLoad { .. } => "unknown_load",
+        AnalysisError::LossModel { .. } => "loss_model",
     };
     let kw = PyDict::new(py);
     let _ = kw.set_item("kind", kind);
