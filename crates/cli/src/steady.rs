@@ -159,7 +159,33 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
         .zip(&ss.state)
         .map(|(n, v)| (n.clone(), serde_json::json!(v)))
         .collect();
-    let summary = serde_json::json!({
+    // The file's timing rules over the recorded orbit (two periods). Rules
+    // with a time window concern the transient (start-up, a load step) and
+    // are left to `fluxstep run`.
+    let rules: Vec<_> = circuit
+        .run
+        .as_ref()
+        .map(|r| {
+            r.timing
+                .iter()
+                .filter(|t| t.from.is_none() && t.to.is_none())
+                .cloned()
+                .collect()
+        })
+        .unwrap_or_default();
+    let timing = if rules.is_empty() {
+        None
+    } else {
+        Some(crate::compare::timing_summary(
+            &fluxstep_analysis::timing::check(
+                &rules,
+                &ss.run.events,
+                Some(&ss.run.waveform),
+                Some(ss.period),
+            )?,
+        ))
+    };
+    let mut summary = serde_json::json!({
         "file": args.file.display().to_string(),
         "period": ss.period,
         "start_time": ss.start_time,
@@ -170,6 +196,10 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
         "stable": ss.is_stable(),
         "multipliers": ss.multipliers,
         "measurements": measurements,
+    });
+    let violated = timing.and_then(|(value, err)| {
+        summary["timing"] = value;
+        err
     });
     write(
         "summary.json",
@@ -237,7 +267,11 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
         "  written: {}/{{waveform.csv, events.json, summary.json, figure.svg}}",
         dir.display()
     );
-    Ok(())
+    // A violated timing rule exits 1 once every file is written.
+    match violated {
+        Some(e) => Err(anyhow::Error::new(e)),
+        None => Ok(()),
+    }
 }
 
 /// The steady-state search did not converge (exit status 1).

@@ -97,3 +97,41 @@ fn steady_that_does_not_converge_exits_1_with_the_history() {
     let stderr = String::from_utf8_lossy(&out.stderr);
     assert!(stderr.contains("iteration limit 1"), "{stderr}");
 }
+
+/// The file's timing rules without a window hold over the steady orbit:
+/// the synchronous buck's 50 ns dead time passes a 40 ns minimum (exit 0,
+/// margins in the summary) and fails a 60 ns one (exit 1, the rule's
+/// sentence on stderr, files still written). Dead-time arithmetic: common
+/// practice.
+#[test]
+fn steady_checks_the_files_timing_rules() {
+    let text = std::fs::read_to_string(example("sync_buck.json")).unwrap();
+    for (min, code) in [("40n", 0), ("60n", 1)] {
+        let dir = scratch_dir(&format!("steady-timing-{min}"));
+        std::fs::create_dir_all(&dir).unwrap();
+        let file = dir.join("sync.json");
+        std::fs::write(
+            &file,
+            text.replace("\"min\": \"40n\"", &format!("\"min\": \"{min}\"")),
+        )
+        .unwrap();
+        let out = fluxstep(&[
+            "steady",
+            file.to_str().unwrap(),
+            "--dir",
+            dir.to_str().unwrap(),
+        ]);
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(code), "{min}: {stderr}");
+        let summary: serde_json::Value =
+            serde_json::from_str(&std::fs::read_to_string(dir.join("summary.json")).unwrap())
+                .unwrap();
+        let rule = &summary["timing"]["rules"][0];
+        assert_eq!(rule["rule"], "bridge dead time");
+        let value = rule["worst"]["value"].as_f64().unwrap();
+        assert!((value - 50e-9).abs() < 1e-15, "{value}");
+        if code == 1 {
+            assert!(stderr.contains("bridge dead time"), "{stderr}");
+        }
+    }
+}
