@@ -72,6 +72,5 @@ pub mod response;
 pub mod steady;
 pub mod sweep;
 pub mod timing;
-mod units;
 
 pub use error::AnalysisError;

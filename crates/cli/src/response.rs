@@ -73,9 +73,7 @@ fn classify(e: AnalysisError) -> anyhow::Error {
 pub fn run(args: &Args) -> anyhow::Result<()> {
     let circuit = crate::input::read_circuit(&args.file)?;
     let opts = SteadyOptions::default();
-    let fs = fluxstep_analysis::steady::find(&circuit, &opts)
-        .map_err(classify)
-        .map(|ss| 1.0 / ss.period)?;
+    let fs = 1.0 / fluxstep_analysis::steady::period(&circuit).map_err(classify)?;
     let from = hz(&args.from, "from")?;
     let to = match &args.to {
         Some(t) => hz(t, "to")?,

@@ -1,28 +1,8 @@
 //! `fluxstep steady` as a user runs it: files, summary, exit codes.
 
-use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
+mod common;
 
-fn fluxstep(args: &[&str]) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_fluxstep"))
-        .args(args)
-        .output()
-        .expect("the fluxstep binary runs")
-}
-
-fn example(name: &str) -> String {
-    Path::new(env!("CARGO_MANIFEST_DIR"))
-        .join("../../examples/circuits")
-        .join(name)
-        .to_string_lossy()
-        .into_owned()
-}
-
-fn scratch_dir(name: &str) -> PathBuf {
-    let d = Path::new(env!("CARGO_TARGET_TMPDIR")).join(name);
-    let _ = std::fs::remove_dir_all(&d);
-    d
-}
+use common::{example, fluxstep, scratch_dir};
 
 #[test]
 fn steady_writes_one_period_and_a_summary_with_units() {

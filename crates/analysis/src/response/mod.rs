@@ -336,7 +336,7 @@ pub fn frequency_response(
         .iter()
         .map(|&f| Point::new(f, lin.transfer(f), fs))
         .collect();
-    let unit_out = crate::units::unit_of(output);
+    let unit_out = fluxstep_netlist::OutputName::parse(output).map_or("", |o| o.unit());
     let unit_in = input.unit(circuit);
     let unit = match unit_in {
         "" => unit_out.to_string(),

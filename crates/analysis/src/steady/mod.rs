@@ -400,6 +400,19 @@ fn check_options(o: &SteadyOptions) -> Result<(), AnalysisError> {
     Ok(())
 }
 
+/// The steady-state period of `circuit` (s): the common period of its
+/// periodic gates, clocked comparator gates and periodic sources — what
+/// [`find`] uses, without simulating anything.
+///
+/// # Errors
+///
+/// [`AnalysisError::NoPeriod`] or [`AnalysisError::Incommensurate`], as
+/// [`find`].
+pub fn period(circuit: &Circuit) -> Result<f64, AnalysisError> {
+    let cp = common_period(circuit)?;
+    Ok(cp.multiple as f64 * cp.base)
+}
+
 /// Finds the periodic steady state of `circuit` by shooting.
 ///
 /// # Errors

@@ -297,9 +297,7 @@ impl Sweep {
                 None => {
                     let point =
                         crate::response::BreakPoint::named(circuit, &l.at).map_err(failed)?;
-                    let fs = crate::steady::find(circuit, &crate::steady::SteadyOptions::default())
-                        .map_err(failed)
-                        .map(|ss| 1.0 / ss.period)?;
+                    let fs = 1.0 / crate::steady::period(circuit).map_err(failed)?;
                     let freqs = crate::response::log_frequencies(l.from, 0.5 * fs, l.points)
                         .map_err(failed)?;
                     let lg = crate::response::loop_gain(

@@ -192,7 +192,10 @@ fn check_one(
     let (unit, limits) = match &rule.check {
         TimingCheck::Band { output, min, max } => {
             band(rule, output, *min, *max, waveform, period, &mut tally)?;
-            (crate::units::unit_of(output), (Some(*min), Some(*max)))
+            (
+                fluxstep_netlist::OutputName::parse(output).map_or("", |o| o.unit()),
+                (Some(*min), Some(*max)),
+            )
         }
         check => {
             eval::samples(check, events, period, |s| {
