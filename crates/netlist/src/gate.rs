@@ -526,7 +526,24 @@ impl Gate {
     }
 }
 
+/// The absolute time of the transition at `phase` in cycle `k` of a
+/// periodic signal: the one formula every periodic edge time comes from, so
+/// instants that are the same by definition are the same `f64`.
+#[inline]
+fn cycle_instant(origin: f64, k: i64, period: f64, phase: f64) -> f64 {
+    origin + (k as f64 * period + phase)
+}
+
 impl SignalShape {
+    /// The instant cycle `k` starts, as the schedule computes it: the time
+    /// of the cycle's first transition (phase 0 when it has none), in the
+    /// same bits as that edge. `None` for an aperiodic signal.
+    pub fn cycle_start(&self, k: i64) -> Option<f64> {
+        let p = self.period?;
+        let phase = self.transitions.first().map_or(0.0, |t| t.0);
+        Some(cycle_instant(self.origin, k, p, phase))
+    }
+
     /// Raw (unwindowed) state just after time `t`.
     fn raw_at(&self, t: f64, strictly_before: bool) -> bool {
         let hit = |x: f64| if strictly_before { x < t } else { x <= t };
@@ -537,7 +554,7 @@ impl SignalShape {
                 let mut best: Option<(f64, bool)> = None;
                 for c in [k - 2, k - 1, k, k + 1] {
                     for &(ph, on) in &self.transitions {
-                        let time = self.origin + (c as f64 * p + ph);
+                        let time = cycle_instant(self.origin, c, p, ph);
                         if hit(time) && best.is_none_or(|(b, _)| time >= b) {
                             best = Some((time, on));
                         }
@@ -598,7 +615,7 @@ impl SignalShape {
         let mut last = f64::NEG_INFINITY;
         for k in k0..=k1 {
             for &(ph, on) in &self.transitions {
-                let time = self.origin + (k as f64 * p + ph);
+                let time = cycle_instant(self.origin, k, p, ph);
                 if time < t0 {
                     continue;
                 }
@@ -660,7 +677,7 @@ impl SignalShape {
                 let k1 = ((t1 - self.origin) / p).ceil() as i64 + 1;
                 for k in k0..=k1 {
                     for &(ph, on) in &self.transitions {
-                        let time = self.origin + (k as f64 * p + ph);
+                        let time = cycle_instant(self.origin, k, p, ph);
                         if time >= t0 && time < t1 {
                             cand.push(Edge {
                                 time,
@@ -748,7 +765,7 @@ mod tests {
             let k1 = ((t1 - s.origin) / p).ceil() as i64 + 1;
             for k in k0..=k1 {
                 for &(ph, _) in &s.transitions {
-                    times.push(s.origin + (k as f64 * p + ph));
+                    times.push(cycle_instant(s.origin, k, p, ph));
                 }
             }
         }

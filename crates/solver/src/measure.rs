@@ -125,6 +125,15 @@ pub enum MeasureError {
         /// The name as given.
         element: String,
     },
+    /// A period measured by its index must start and end at recorded
+    /// segment boundaries (see [`measure_period`]).
+    #[error("{subject}: no recorded segment boundary at t = {time:e} s (give the instant as Simulator::cycle_start computes it)")]
+    NotABoundary {
+        /// Output name.
+        subject: String,
+        /// The instant as given (s).
+        time: f64,
+    },
     /// A period-based window needs a positive finite period and at least one period.
     #[error("{subject}: need a positive period and at least one period, got period {period:e} s, count {count}")]
     InvalidPeriods {
@@ -201,6 +210,78 @@ pub fn measure(
         output: name,
         t0,
         t1,
+        average,
+        rms,
+        min: ext.min,
+        max: ext.max,
+        peak_to_peak: ext.max - ext.min,
+        time_of_min: ext.time_of_min,
+        time_of_max: ext.time_of_max,
+    })
+}
+
+/// Measures output `id` over the recorded segments from the one that
+/// starts at `start` to the one that ends at `end`, integrating each over
+/// the length the solver advanced it by ([`crate::Segment::length`]) and
+/// dividing by their sum: one period measured by its index, with the
+/// period's own scheduled lengths. Give `start` and `end` as
+/// [`crate::Simulator::cycle_start`] computes them (segment boundaries, in
+/// the same bits).
+///
+/// Why: far into a run absolute time is quantised (ulp(0.1 s) ≈ 1.4e-17 s),
+/// so the window length `end − start` and the segments' `t1 − t0` differ
+/// from the lengths the state was advanced by, biasing averages by about
+/// 1e-13 relative; the scheduled lengths are the same bits in every period.
+/// Extremes and their instants are as [`measure`] gives them.
+///
+/// # Errors
+///
+/// [`MeasureError::NotABoundary`] when no recorded segment starts at
+/// `start` or none ends at `end` (bit for bit); otherwise as [`measure`].
+pub fn measure_period(
+    waveform: &Waveform,
+    id: OutputId,
+    start: f64,
+    end: f64,
+) -> Result<Measurement, MeasureError> {
+    if !waveform.has_output(id) {
+        return Err(MeasureError::ForeignOutput { index: id.0 });
+    }
+    let name = waveform.output_name(id).to_string();
+    check_window(waveform, &name, start, end)?;
+    let segs = waveform.segments();
+    let first = segs.partition_point(|s| s.t0 < start);
+    if segs.get(first).is_none_or(|s| s.t0 != start) {
+        return Err(MeasureError::NotABoundary {
+            subject: name,
+            time: start,
+        });
+    }
+    let last = segs.partition_point(|s| s.t1 < end);
+    if segs.get(last).is_none_or(|s| s.t1 != end) {
+        return Err(MeasureError::NotABoundary {
+            subject: name,
+            time: end,
+        });
+    }
+    let ext = extremes(waveform, id, &name, start, end)?;
+    let (mut len, mut sum, mut sum_sq) = (0.0, 0.0, 0.0);
+    for (i, s) in segs.iter().enumerate().take(last + 1).skip(first) {
+        len += s.length();
+        sum += waveform.integrate_piece(i, &[id], 0.0, s.length(), 0.0, |_, v| v[0]);
+        sum_sq += waveform.integrate_piece(i, &[id], 0.0, s.length(), 0.0, |_, v| v[0] * v[0]);
+    }
+    let (average, rms) = (sum / len, (sum_sq / len).max(0.0).sqrt());
+    if !average.is_finite() || !rms.is_finite() {
+        return Err(MeasureError::NonFinite {
+            subject: name,
+            time: start,
+        });
+    }
+    Ok(Measurement {
+        output: name,
+        t0: start,
+        t1: end,
         average,
         rms,
         min: ext.min,

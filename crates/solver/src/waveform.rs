@@ -81,12 +81,30 @@ pub struct Segment {
     pub t0: f64,
     /// End time (s).
     pub t1: f64,
+    /// The length the solver advanced the state by over this segment: the
+    /// schedule's own length between two periodic edges, or the located
+    /// event's offset from `t0`. Far into a run `t1 − t0` rounds to the
+    /// grid of absolute time and can differ from it in the last bits.
+    pub(crate) len: f64,
     pub(crate) mode: u32,
     /// How the segment ended: [`crate::dynamics::SCHEDULED_END`] at a
     /// scheduled instant (or the end of the record), else the located state
     /// event's code (see `dynamics::crossing_code`). Fits in the padding
-    /// after `mode`, so a segment stays 24 bytes.
+    /// after `mode`.
     pub(crate) end: u32,
+}
+
+impl Segment {
+    /// The length the state was advanced by over this segment (s): the
+    /// schedule's own length between two periodic edges (the same bits for
+    /// the same interval of every period), or the located event's offset
+    /// from [`Segment::t0`]. Far into a run `t1 − t0` is rounded to the grid
+    /// of absolute time (ulp(0.1 s) ≈ 1.4e-17 s) and can differ from this
+    /// in the last bits; [`crate::measure::measure_period`] integrates over
+    /// these lengths.
+    pub fn length(&self) -> f64 {
+        self.len
+    }
 }
 
 /// Identifies an output of a circuit (a node voltage, an element current or voltage).
@@ -381,38 +399,56 @@ impl Waveform {
         f: impl Fn(f64, &[f64]) -> f64,
     ) -> f64 {
         let mut total = 0.0;
-        let mut vals = vec![0.0; ids.len()];
         for (i, s) in self.segments.iter().enumerate() {
             let a = s.t0.max(t0);
             let b = s.t1.min(t1);
             if b <= a {
                 continue;
             }
-            let m = &self.modes[s.mode as usize];
-            if ids.iter().any(|id| m.undetermined[id.0]) {
-                continue;
-            }
-            let n = propagate::substeps(m.rate, b - a);
-            let d = (b - a) / n as f64;
-            let mut z = propagate::advance(&m.m, m.rate, &self.z0(i), a - s.t0);
-            for step in 0..n {
-                let mut part = 0.0;
-                let start = a + step as f64 * d;
-                for &(x, w) in &GL8 {
-                    let zz = propagate::taylor(&m.m, &z, 0.5 * d * (x + 1.0));
-                    for (k, id) in ids.iter().enumerate() {
-                        vals[k] =
-                            m.c.row(id.0)
-                                .iter()
-                                .zip(zz.iter())
-                                .map(|(p, q)| p * q)
-                                .sum();
-                    }
-                    part += w * f(start + 0.5 * d * (x + 1.0), &vals);
+            total += self.integrate_piece(i, ids, a - s.t0, b - a, a, &f);
+        }
+        total
+    }
+
+    /// ∫ f(t, outputs) dt over `width` seconds of segment `i` from the
+    /// offset `a` after its start, where f sees the time as `origin` plus
+    /// the distance into the piece (0 where an output floats in that
+    /// segment's mode).
+    pub(crate) fn integrate_piece(
+        &self,
+        i: usize,
+        ids: &[OutputId],
+        a: f64,
+        width: f64,
+        origin: f64,
+        f: impl Fn(f64, &[f64]) -> f64,
+    ) -> f64 {
+        let m = &self.modes[self.segments[i].mode as usize];
+        if ids.iter().any(|id| m.undetermined[id.0]) {
+            return 0.0;
+        }
+        let mut vals = vec![0.0; ids.len()];
+        let mut total = 0.0;
+        let n = propagate::substeps(m.rate, width);
+        let d = width / n as f64;
+        let mut z = propagate::advance(&m.m, m.rate, &self.z0(i), a);
+        for step in 0..n {
+            let mut part = 0.0;
+            let start = origin + step as f64 * d;
+            for &(x, w) in &GL8 {
+                let zz = propagate::taylor(&m.m, &z, 0.5 * d * (x + 1.0));
+                for (k, id) in ids.iter().enumerate() {
+                    vals[k] =
+                        m.c.row(id.0)
+                            .iter()
+                            .zip(zz.iter())
+                            .map(|(p, q)| p * q)
+                            .sum();
                 }
-                total += 0.5 * d * part;
-                z = propagate::taylor(&m.m, &z, d);
+                part += w * f(start + 0.5 * d * (x + 1.0), &vals);
             }
+            total += 0.5 * d * part;
+            z = propagate::taylor(&m.m, &z, d);
         }
         total
     }

@@ -120,7 +120,7 @@ impl Simulator {
                 if let Some((tau, fired, cmp_fired)) = self.locate(h) {
                     if tau < h {
                         let t_e = self.t + tau;
-                        self.record_located(t_e, fired, cmp_fired);
+                        self.record_located(t_e, tau, fired, cmp_fired);
                         self.t = t_e;
                         self.tkey = None;
                         std::mem::swap(&mut self.z, &mut self.z_next);
@@ -133,7 +133,7 @@ impl Simulator {
                     }
                 }
             }
-            self.record(e.time);
+            self.record(e.time, h);
             self.t = e.time;
             self.tkey = Some(TimeKey {
                 cycle: e.cycle,

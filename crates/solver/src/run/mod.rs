@@ -507,6 +507,39 @@ impl Simulator {
         self.cc.signals.iter().find_map(|(_, s)| s.period)
     }
 
+    /// The instant cycle `k` of the first periodic gate signal (the one
+    /// [`Simulator::period`] gives) starts: the time of its first edge in
+    /// that cycle, in the same bits as the schedule computes that edge, so
+    /// it is a segment boundary of the record. With
+    /// [`crate::measure::measure_period`] this measures period k by its
+    /// index.
+    ///
+    /// ```
+    /// use fluxstep_netlist::Circuit;
+    /// use fluxstep_solver::measure::measure_period;
+    /// use fluxstep_solver::{Options, Simulator};
+    ///
+    /// let buck = Circuit::builder()
+    ///     .voltage_source("Vin", "in", "gnd", 12.0)
+    ///     .switch("S1", "in", "sw", "drive")
+    ///     .diode("D1", "gnd", "sw")
+    ///     .inductor("L1", "sw", "out", 100e-6)
+    ///     .capacitor("C1", "out", "gnd", 100e-6)
+    ///     .resistor("Rload", "out", "gnd", 5.0)
+    ///     .pwm("drive", 100e3, 0.5)
+    ///     .build()
+    ///     .unwrap();
+    /// let mut sim = Simulator::new(&buck, Options::default()).unwrap();
+    /// sim.advance_periods(20).unwrap();
+    /// let (a, b) = (sim.cycle_start(10).unwrap(), sim.cycle_start(11).unwrap());
+    /// let sw = sim.waveform().output("sw").unwrap();
+    /// let m = measure_period(sim.waveform(), sw, a, b).unwrap();
+    /// assert!((m.average - 6.0).abs() < 1e-12); // D·Vin
+    /// ```
+    pub fn cycle_start(&self, k: i64) -> Option<f64> {
+        self.cc.signals.iter().find_map(|(_, s)| s.cycle_start(k))
+    }
+
     /// The recorded waveform so far.
     pub fn waveform(&self) -> &Waveform {
         &self.wave
@@ -594,7 +627,7 @@ impl Simulator {
                 if tau < h {
                     // `locate` left the state at τ in `z_next`.
                     let t_e = self.t + tau;
-                    self.record_located(t_e, fired, cmp_fired);
+                    self.record_located(t_e, tau, fired, cmp_fired);
                     self.t = t_e;
                     self.tkey = None;
                     std::mem::swap(&mut self.z, &mut self.z_next);
@@ -606,7 +639,7 @@ impl Simulator {
                     continue;
                 }
             }
-            self.record(t_next);
+            self.record(t_next, h);
             self.t = t_next;
             self.tkey = key_next;
             std::mem::swap(&mut self.z, &mut self.z_next);

@@ -43,22 +43,24 @@ impl Simulator {
 
     /// Records the segment from now to `t1` (start state `z`), which ends
     /// at a scheduled instant: all of it, or under [`Record::Window`]
-    /// exactly its part inside `[from, to]`.
+    /// exactly its part inside `[from, to]`. `len` is the length the
+    /// state was advanced by (the schedule's own length between periodic
+    /// edges, which can differ from `t1 − t` in the last bits).
     #[inline(always)]
-    pub(super) fn record(&mut self, t1: f64) {
-        self.record_ending(t1, crate::dynamics::SCHEDULED_END);
+    pub(super) fn record(&mut self, t1: f64, len: f64) {
+        self.record_ending(t1, len, crate::dynamics::SCHEDULED_END);
     }
 
     /// Records the segment from now to `t1`, which ends at a located state
     /// event: the guards of the diodes `fired` and comparators `cmp_fired`
     /// crossed zero there (kept for the saltation matrices of
     /// [`crate::dynamics`]).
-    pub(super) fn record_located(&mut self, t1: f64, fired: u64, cmp_fired: u64) {
-        self.record_ending(t1, crate::dynamics::crossing_code(fired, cmp_fired));
+    pub(super) fn record_located(&mut self, t1: f64, len: f64, fired: u64, cmp_fired: u64) {
+        self.record_ending(t1, len, crate::dynamics::crossing_code(fired, cmp_fired));
     }
 
     #[inline(always)]
-    fn record_ending(&mut self, t1: f64, end: u32) {
+    fn record_ending(&mut self, t1: f64, len: f64, end: u32) {
         let t0 = self.t;
         if t1 <= t0 {
             return;
@@ -73,10 +75,10 @@ impl Simulator {
             sink(&view);
         }
         match self.opts.record {
-            Record::All => self.push_segment(t0, t1, end),
+            Record::All => self.push_segment(t0, t1, len, end),
             Record::Window { from, to } => {
                 if t0 >= from && t1 <= to {
-                    self.push_segment(t0, t1, end);
+                    self.push_segment(t0, t1, len, end);
                 } else if t1 > from && t0 < to {
                     self.push_clipped(t0, t1, from, to, end);
                 }
@@ -87,11 +89,12 @@ impl Simulator {
 
     /// Appends the segment [t0, t1] that starts at the present state.
     #[inline(always)]
-    fn push_segment(&mut self, t0: f64, t1: f64, end: u32) {
+    fn push_segment(&mut self, t0: f64, t1: f64, len: f64, end: u32) {
         propagate::extend_small(&mut self.wave.states, self.z.as_slice());
         self.wave.segments.push(Segment {
             t0,
             t1,
+            len,
             mode: self.mode,
             end,
         });
@@ -121,9 +124,11 @@ impl Simulator {
         } else {
             end
         };
+        // A clipped piece has no scheduled length of its own.
         self.wave.segments.push(Segment {
             t0: a,
             t1: b,
+            len: b - a,
             mode: self.mode,
             end,
         });
