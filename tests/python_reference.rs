@@ -2,7 +2,7 @@
 //! pytest suite (`crates/python/tests/test_reference.py`) checks that the
 //! `fluxstep` Python package gives these very bits. This test recomputes
 //! them with the plain Rust calls (`simulate` in one call, `measure`,
-//! `Waveform::value`, `vertices`, `steady::find`, `frequency_response`) and
+//! `Waveform::values`, `vertices`, `steady::find`, `frequency_response`) and
 //! compares them with the committed files, so neither side can drift.
 //! `UPDATE_GOLDEN=1 cargo test --test python_reference` rewrites them.
 
@@ -10,7 +10,7 @@ use fluxstep::analysis::response::{frequency_response, Input};
 use fluxstep::analysis::steady::{find, SteadyOptions};
 use fluxstep::netlist::Circuit;
 use fluxstep::solver::measure::measure;
-use fluxstep::solver::{simulate, Options, Record};
+use fluxstep::solver::{simulate, Options, Record, Side};
 use serde_json::{json, Value};
 
 /// The example circuits compared: continuous conduction with a located
@@ -52,9 +52,11 @@ fn reference(name: &str) -> Value {
     let mut measurements = vec![];
     for o in &cfg.outputs {
         let id = w.output(o).expect("example outputs exist");
-        let v: Vec<Value> = times
-            .iter()
-            .map(|&t| w.value(id, t).map_or(Value::Null, |x| json!(x)))
+        let v: Vec<Value> = w
+            .values(id, &times, Side::After)
+            .expect("an output of this waveform")
+            .into_iter()
+            .map(|x| if x.is_nan() { Value::Null } else { json!(x) })
             .collect();
         values.insert(o.clone(), Value::Array(v));
         measurements.push(serde_json::to_value(measure(w, id, a, b).expect("measurable")).unwrap());

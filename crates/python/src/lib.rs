@@ -36,6 +36,7 @@ fn _fluxstep(m: &Bound<'_, PyModule>) -> PyResult<()> {
     m.add_function(wrap_pyfunction!(circuit::load, m)?)?;
     m.add_class::<run::PyRun>()?;
     m.add_function(wrap_pyfunction!(run::simulate, m)?)?;
+    m.add_function(wrap_pyfunction!(run::plain_run_seconds, m)?)?;
     m.add_class::<analysis::PySteadyOptions>()?;
     m.add_class::<analysis::PySteady>()?;
     m.add_function(wrap_pyfunction!(analysis::steady_find, m)?)?;

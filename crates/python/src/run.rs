@@ -8,8 +8,8 @@ use std::time::Instant;
 use fluxstep_netlist::{Circuit, InterruptionPolicy, OutputName, ShootThroughPolicy};
 use fluxstep_solver::measure::measure;
 use fluxstep_solver::{
-    OnInterruption, OnShootThrough, Options, OutputId, Record, RunResult, Simulator, SolverError,
-    ValueError,
+    OnInterruption, OnShootThrough, Options, OutputId, Record, RunResult, Side, Simulator,
+    SolverError, ValueError,
 };
 use numpy::{PyArray1, PyArrayDyn, PyArrayMethods, PyUntypedArrayMethods};
 use pyo3::exceptions::PyValueError;
@@ -282,6 +282,8 @@ pub fn simulate(
                 names.join(", ")
             )));
         }
+        // Room for the whole run at once, not grown slice by slice.
+        sim.reserve_until(stop_time);
         let stopped = advance_sliced(&c, &mut sim, stop_time).map_err(Failure::Python)?;
         let outputs = if plan.outputs.is_empty() {
             names
@@ -310,6 +312,28 @@ pub fn simulate(
         )?;
     }
     Ok(run)
+}
+
+/// Seconds a plain Rust run of ``circuit`` to ``stop`` takes (compile,
+/// advance in one call, finish; everything recorded), timed inside Rust.
+/// A baseline for the bindings' benchmark: the time of :func:`simulate`
+/// on the same circuit in the same process, divided by this, is the
+/// Python call's overhead. Not part of the API.
+#[pyfunction]
+#[pyo3(name = "_plain_run_seconds")]
+pub fn plain_run_seconds(py: Python<'_>, circuit: &Bound<'_, PyAny>, stop: f64) -> PyResult<f64> {
+    let c = circuit_arg(py, circuit)?;
+    let (took, result) = py.detach(|| {
+        let started = Instant::now();
+        let result = Simulator::new(&c, Options::default()).and_then(|mut sim| {
+            sim.advance_to(stop)?;
+            Ok(sim.finish())
+        });
+        (started.elapsed().as_secs_f64(), result)
+    });
+    // Dropped after the timing, as the Python result is.
+    drop(result.map_err(|e| solver_error(py, e))?);
+    Ok(took)
 }
 
 /// The result of :func:`simulate`: the exact recorded waveform, the event
@@ -368,7 +392,8 @@ impl PyRun {
         }
     }
 
-    /// Evaluates `f` at every time of `t` (any shape, or a number).
+    /// Evaluates `f` at every time of `t` (any shape, or a number), one
+    /// call per instant.
     fn evaluate<'py>(
         &self,
         py: Python<'py>,
@@ -376,12 +401,30 @@ impl PyRun {
         strict: bool,
         f: impl Fn(f64) -> Result<f64, ValueError> + Sync,
     ) -> PyResult<Bound<'py, PyAny>> {
+        self.evaluate_batch(py, t, strict, &f, |times| {
+            times.iter().map(|&x| f(x).unwrap_or(f64::NAN)).collect()
+        })
+    }
+
+    /// Evaluates at every time of `t` (any shape, or a number): `batch`
+    /// gives all values at once with NaN where there is none (a number is
+    /// a batch of one, so it gets the same bits as in an array), and `f`
+    /// the reason there is none, for the error of `strict`.
+    fn evaluate_batch<'py>(
+        &self,
+        py: Python<'py>,
+        t: &Bound<'py, PyAny>,
+        strict: bool,
+        f: &(impl Fn(f64) -> Result<f64, ValueError> + Sync),
+        batch: impl Fn(&[f64]) -> Vec<f64> + Sync,
+    ) -> PyResult<Bound<'py, PyAny>> {
         if let Ok(x) = t.extract::<f64>() {
             if !t.hasattr("shape")? || t.getattr("shape")?.len()? == 0 {
+                // A number is a batch of one: the same bits as in an array.
+                let v = batch(&[x]).first().copied().unwrap_or(f64::NAN);
                 return match f(x) {
-                    Ok(v) => Ok(v.into_pyobject(py)?.into_any()),
-                    Err(e) if strict => Err(value_error(py, e)),
-                    Err(_) => Ok(f64::NAN.into_pyobject(py)?.into_any()),
+                    Err(e) if strict && v.is_nan() => Err(value_error(py, e)),
+                    _ => Ok(v.into_pyobject(py)?.into_any()),
                 };
             }
         }
@@ -391,17 +434,15 @@ impl PyRun {
         let shape = arr.shape().to_vec();
         let ro = arr.readonly();
         let times = ro.as_slice()?;
-        let out: Result<Vec<f64>, ValueError> = py.detach(|| {
-            times
-                .iter()
-                .map(|&x| match f(x) {
-                    Ok(v) => Ok(v),
-                    Err(e) if strict => Err(e),
-                    Err(_) => Ok(f64::NAN),
-                })
-                .collect()
-        });
-        let out = out.map_err(|e| value_error(py, e))?;
+        let out = py.detach(|| batch(times));
+        if strict {
+            // The first instant without a value gives the reason.
+            if let Some(k) = out.iter().position(|v| v.is_nan()) {
+                if let Err(e) = f(times[k]) {
+                    return Err(value_error(py, e));
+                }
+            }
+        }
         Ok(PyArray1::from_vec(py, out).reshape(shape)?.into_any())
     }
 }
@@ -444,9 +485,13 @@ impl PyRun {
         let id = self.id(py, name)?;
         let w = &self.result.waveform;
         if side_is_before(side)? {
-            self.evaluate(py, t, strict, |x| w.value_before(id, x))
+            self.evaluate_batch(py, t, strict, &|x| w.value_before(id, x), |ts| {
+                w.values(id, ts, Side::Before).unwrap_or_default()
+            })
         } else {
-            self.evaluate(py, t, strict, |x| w.value(id, x))
+            self.evaluate_batch(py, t, strict, &|x| w.value(id, x), |ts| {
+                w.values(id, ts, Side::After).unwrap_or_default()
+            })
         }
     }
 

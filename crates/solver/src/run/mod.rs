@@ -651,6 +651,17 @@ impl Simulator {
         Ok(())
     }
 
+    /// Reserves room for the record up to `t_end`, as
+    /// [`Simulator::advance_to`] does for its own span (nothing when less is
+    /// recorded than everything). A caller that advances in slices toward a
+    /// known stop time calls this once, so that the buffers are not grown
+    /// by copying at each slice.
+    pub fn reserve_until(&mut self, t_end: f64) {
+        if t_end.is_finite() && t_end > self.t {
+            self.reserve_for(t_end);
+        }
+    }
+
     /// When everything is recorded, reserves room for the segments and
     /// events expected up to `t_end` from the gates' edges per second (with
     /// a margin for diode events), so that the buffers do not grow by
