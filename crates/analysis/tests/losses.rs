@@ -124,6 +124,7 @@ fn switch(name: &str, a: &str, b: &str, gate: &str, r: f64, body: Option<DiodeMo
         on_resistance: Some(r),
         body_diode: body,
         thermal: None,
+        transition: None,
     })
 }
 

@@ -171,6 +171,7 @@ fn element() -> impl Strategy<Value = Element> {
                     on_resistance,
                     body_diode,
                     thermal: None,
+                    transition: None,
                 })
             }),
         (name(), nodes(), diode_model()).prop_map(|(name, nodes, model)| Element::Diode(Diode {

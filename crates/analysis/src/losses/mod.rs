@@ -261,6 +261,7 @@ impl LossReport {
 ///     on_resistance: Some(1.0),
 ///     body_diode: None,
 ///     thermal: None,
+///     transition: None,
 /// };
 /// let c = Circuit::builder()
 ///     .voltage_source("V1", "in", "gnd", 10.0)
