@@ -375,3 +375,84 @@ mod switching {
         }
     }
 }
+
+/// A constant-current chopper (100 V bus, 10 A load, 100 kHz, clamp diode)
+/// whose switch has the finite transition model, as `transition: Some(..)`.
+fn chopper_with_transitions() -> (Circuit, (f64, f64), (f64, f64)) {
+    use fluxstep_netlist::{SwitchTransition, TransitionRates, Waveform};
+    let off = (100.0 / 20e-9, 10.0 / 10e-9);
+    let on = (100.0 / 25e-9, 10.0 / 15e-9);
+    let mut s = match switch("S1", "sw", "gnd", "g", 0.05, None) {
+        Element::Switch(s) => s,
+        _ => unreachable!(),
+    };
+    s.transition = Some(SwitchTransition {
+        turn_off: TransitionRates {
+            voltage_rate: off.0,
+            current_rate: off.1,
+        },
+        turn_on: TransitionRates {
+            voltage_rate: on.0,
+            current_rate: on.1,
+        },
+    });
+    let c = Circuit::builder()
+        .voltage_source("V1", "in", "gnd", 100.0)
+        .current_source("I1", "in", "sw", Waveform::Constant { value: 10.0 })
+        .diode("D1", "sw", "in")
+        .element(Element::Switch(s))
+        .pwm("g", 100e3, 0.5)
+        .build()
+        .unwrap();
+    (c, off, on)
+}
+
+/// The breakdown splits a switch's ∫v·i at its transitions: switching
+/// energy per period ½·V·I·(t_v + t_i) per edge (Mohan, Undeland &
+/// Robbins, *Power Electronics*, switching-loss chapter; common practice),
+/// conduction R·I² over the on-time outside the transitions (the on-state
+/// begins at the end of the turn-on's voltage fall and ends at the
+/// turn-off's gate edge), and the energy balance still closes to 1e-9
+/// (conservation of energy, common practice).
+#[test]
+fn transition_losses_are_switching_energy_in_the_balance() {
+    let (c, off, on) = chopper_with_transitions();
+    let t = 1e-5;
+    let run = simulate(&c, 3.0 * t, Options::default()).unwrap();
+    let opts = LossOptions {
+        loads: vec!["I1".into()],
+    };
+    let r = breakdown(&c, &run.waveform, &run.events, t, 2.0 * t, &opts).unwrap();
+    let (v, i) = (100.0, 10.0);
+    // The voltage ramp starts from the on-state drop v0 = R·I, so the
+    // turn-off's voltage rise gives I·(V² − v0²)/(2·dv/dt), which is
+    // ½·V·I·t_v for v0 = 0.
+    let v0 = 0.05 * i;
+    let e_off = i * (v * v - v0 * v0) / (2.0 * off.0) + 0.5 * v * i * (i / off.1);
+    let e_on = 0.5 * v * i * (i / on.1 + v / on.0);
+    let sw: f64 = r
+        .parts
+        .iter()
+        .filter(|p| p.kind == LossKind::Transition && p.name == "S1")
+        .map(|p| p.energy)
+        .sum();
+    assert!(
+        (sw - (e_off + e_on)).abs() < 1e-9 * (e_off + e_on),
+        "{sw} vs {}",
+        e_off + e_on
+    );
+    // On from the end of the turn-on (at T + t_i + t_v) to T + T/2.
+    let t_on = 0.5 * t - i / on.1 - v / on.0;
+    let cond: f64 = r
+        .parts
+        .iter()
+        .filter(|p| p.kind == LossKind::Conduction && p.name == "S1")
+        .map(|p| p.energy)
+        .sum();
+    let want = 0.05 * i * i * t_on;
+    assert!((cond - want).abs() < 1e-9 * want, "{cond} vs {want}");
+    assert!((r.by_kind().switching - sw / t).abs() < 1e-9 * sw / t);
+    assert!(r.balance_error() < 1e-9, "{}", r.balance_error());
+    let eta = r.efficiency().unwrap();
+    assert!((eta - r.output_power() / r.input_power()).abs() < 1e-12);
+}
