@@ -16,7 +16,7 @@
 use std::time::Instant;
 
 use fluxstep_netlist::{Circuit, DiodeModel, Element, SwitchTransition, TransitionRates};
-use fluxstep_solver::{simulate, Options, Record};
+use fluxstep_solver::{simulate, Options, Record, Stats};
 
 const T: f64 = 5e-6;
 const PERIODS: f64 = 20_000.0;
@@ -55,10 +55,11 @@ fn buck(transitions: bool) -> Circuit {
     c
 }
 
-/// (events, best seconds) over `reps` runs.
-fn measure(c: &Circuit, reps: usize) -> (usize, f64) {
+/// (events, best seconds, counters) over `reps` runs.
+fn measure(c: &Circuit, reps: usize) -> (usize, f64, Stats) {
     let mut best = f64::INFINITY;
     let mut events = 0;
+    let mut stats = Stats::default();
     for _ in 0..reps {
         let opts = Options {
             record: Record::All,
@@ -68,15 +69,16 @@ fn measure(c: &Circuit, reps: usize) -> (usize, f64) {
         let run = simulate(c, PERIODS * T, opts).expect("the buck runs");
         best = best.min(start.elapsed().as_secs_f64());
         events = run.events.len();
+        stats = run.stats;
     }
-    (events, best)
+    (events, best, stats)
 }
 
 fn main() {
     // `cargo bench` passes `--bench`; a filter argument is ignored.
     let reps = 5;
-    let (ideal_events, ideal_s) = measure(&buck(false), reps);
-    let (ramp_events, ramp_s) = measure(&buck(true), reps);
+    let (ideal_events, ideal_s, ideal_stats) = measure(&buck(false), reps);
+    let (ramp_events, ramp_s, ramp_stats) = measure(&buck(true), reps);
     let ideal_rate = ideal_events as f64 / ideal_s;
     let ramp_rate = ramp_events as f64 / ramp_s;
     println!(
@@ -89,6 +91,8 @@ fn main() {
         ramp_s * 1e3,
         ramp_rate
     );
+    println!("counters, ideal:       {ideal_stats:?}");
+    println!("counters, transitions: {ramp_stats:?}");
     println!(
         "ratio of events/s:    {:.1} % (periods/s: {:.1} %)",
         100.0 * ramp_rate / ideal_rate,

@@ -18,7 +18,9 @@
 //! A turn-off that starts with no current a → b, or with a body diode
 //! ready to take a negative current, and a turn-on that starts at no
 //! positive voltage, are instantaneous: the switch changes at zero voltage
-//! (a synchronous rectifier), as without the model.
+//! (a synchronous rectifier), as without the model. A hard turn-on while
+//! no diode conducts has no current to take over: it starts with the
+//! voltage fall.
 
 use super::schedule::coincident_until;
 use super::Simulator;
@@ -91,16 +93,26 @@ impl Simulator {
             }
             let current = self.output_now(info.current_out);
             let voltage = self.output_now(info.voltage_out);
-            let z = self.z.as_mut_slice();
             if on {
-                // Hard turn-on: positive voltage to be taken away.
+                // Hard turn-on: positive voltage to be taken away. With a
+                // diode conducting, the switch first takes over its
+                // current; with none (discontinuous conduction, start-up)
+                // there is no current to commutate and the voltage falls
+                // at once.
                 if voltage > 1e-9 * scales.1 {
-                    z[info.value] = 0.0;
-                    z[info.slope] = info.on.1;
-                    self.key.ramps |= ramp_bit(i, false);
-                    self.phases[i] = Phase::OnCurrent;
+                    if self.key.diodes != 0 {
+                        let z = self.z.as_mut_slice();
+                        z[info.value] = 0.0;
+                        z[info.slope] = info.on.1;
+                        self.key.ramps |= ramp_bit(i, false);
+                        self.phases[i] = Phase::OnCurrent;
+                    } else {
+                        self.second_phase(i, false, voltage, t);
+                        self.ramp_next = self.next_ramp_end();
+                    }
                 }
             } else {
+                let z = self.z.as_mut_slice();
                 let into_body = current < 0.0 && info.body_diode.is_some();
                 if current.abs() > 1e-9 * scales.0 && !into_body {
                     z[info.value] = voltage;
@@ -128,26 +140,39 @@ impl Simulator {
                 .clone()
                 .expect("a switch in a phase has a model");
             let off = phase == Phase::OffVoltage;
-            let (now, rate) = if off {
-                (self.output_now(info.current_out), info.off.1)
+            let now = if off {
+                self.output_now(info.current_out)
             } else {
-                (self.output_now(info.voltage_out), info.on.0)
+                self.output_now(info.voltage_out)
             };
-            let z = self.z.as_mut_slice();
-            z[info.value] = now;
-            z[info.slope] = -rate * now.signum();
-            // The end as t + |value|/rate; at least the next representable
-            // instant so that the phase has an interval of its own.
-            let end = (t + now.abs() / rate).max(f64::from_bits(t.to_bits() + 1));
-            self.key.ramps &= !(ramp_bit(i, true) | ramp_bit(i, false));
-            self.key.ramps |= ramp_bit(i, !off);
-            self.phases[i] = if off {
-                Phase::OffCurrent { end }
-            } else {
-                Phase::OnVoltage { end }
-            };
+            self.second_phase(i, off, now, t);
         }
         self.ramp_next = self.next_ramp_end();
+    }
+
+    /// Starts the second phase of switch `i` at `t` from the present value
+    /// `now`: the current fall of a turn-off (`off`) or the voltage fall
+    /// of a turn-on, to zero at the set rate.
+    fn second_phase(&mut self, i: usize, off: bool, now: f64, t: f64) {
+        let info = self.cc.switches[i]
+            .transition
+            .as_ref()
+            .expect("a switch in a phase has a model");
+        let rate = if off { info.off.1 } else { info.on.0 };
+        let (value, slope) = (info.value, info.slope);
+        let z = self.z.as_mut_slice();
+        z[value] = now;
+        z[slope] = -rate * now.signum();
+        // The end as t + |value|/rate; at least the next representable
+        // instant so that the phase has an interval of its own.
+        let end = (t + now.abs() / rate).max(f64::from_bits(t.to_bits() + 1));
+        self.key.ramps &= !(ramp_bit(i, true) | ramp_bit(i, false));
+        self.key.ramps |= ramp_bit(i, !off);
+        self.phases[i] = if off {
+            Phase::OffCurrent { end }
+        } else {
+            Phase::OnVoltage { end }
+        };
     }
 
     /// Ends the second phases due at `t`: the switch takes its gate's
