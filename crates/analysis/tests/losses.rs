@@ -456,3 +456,103 @@ fn transition_losses_are_switching_energy_in_the_balance() {
     let eta = r.efficiency().unwrap();
     assert!((eta - r.output_power() / r.input_power()).abs() < 1e-12);
 }
+
+/// A synchronous buck (24 V, 200 kHz, 50 ns / 80 ns dead times, body
+/// diodes) with the transition model on both transistors.
+fn sync_buck_with_transitions() -> Circuit {
+    use fluxstep_netlist::{SwitchTransition, TransitionRates};
+    let body = DiodeModel {
+        forward_voltage: Some(0.7),
+        on_resistance: None,
+    };
+    let mut c = Circuit::builder()
+        .voltage_source("Vin", "in", "gnd", 24.0)
+        .element(switch(
+            "Q1",
+            "in",
+            "sw",
+            "hb.high",
+            0.01,
+            Some(body.clone()),
+        ))
+        .element(switch("Q2", "sw", "gnd", "hb.low", 0.01, Some(body)))
+        .inductor("L1", "sw", "out", 22e-6)
+        .capacitor("C1", "out", "gnd", 47e-6)
+        .resistor("R", "out", "gnd", 6.0)
+        .complementary_pwm("hb", 200e3, 0.5, 50e-9, 80e-9)
+        .build()
+        .unwrap();
+    for e in &mut c.elements {
+        if let Element::Switch(s) = e {
+            s.transition = Some(SwitchTransition {
+                turn_off: TransitionRates {
+                    voltage_rate: 24.0 / 10e-9,
+                    current_rate: 2.0 / 5e-9,
+                },
+                turn_on: TransitionRates {
+                    voltage_rate: 24.0 / 12e-9,
+                    current_rate: 2.0 / 6e-9,
+                },
+            });
+        }
+    }
+    c
+}
+
+/// In a synchronous buck the high side switches hard (two transitions a
+/// period, each with switching energy) and the low side at zero voltage
+/// into its body diode (none) — common practice; the energy balance
+/// closes to 1e-9 over the start-up and over a late period (conservation
+/// of energy, common practice).
+#[test]
+fn sync_buck_transitions_switch_the_high_side_hard_and_balance() {
+    let c = sync_buck_with_transitions();
+    let t = 5e-6;
+    let run = simulate(&c, 400.0 * t, Options::default()).unwrap();
+    let w = &run.waveform;
+    let q1 = w.transition_spans("Q1");
+    let late: Vec<_> = q1.iter().filter(|s| s.t0 >= 399.0 * t).collect();
+    assert_eq!(late.len(), 2, "{late:?}");
+    assert!(late.iter().any(|s| s.turn_on) && late.iter().any(|s| !s.turn_on));
+    // Start-up rings the inductor current negative, and then the low side
+    // does switch hard; in continuous conduction (valley 1.3 A) it does not.
+    assert!(w.transition_spans("Q2").iter().all(|s| s.t1 < 300.0 * t));
+    let opts = LossOptions {
+        loads: vec!["R".into()],
+    };
+    for (t0, t1) in [(0.0, 400.0 * t), (399.0 * t, 400.0 * t)] {
+        let r = breakdown(&c, w, &run.events, t0, t1, &opts).unwrap();
+        assert!(r.balance_error() < 1e-9, "{t0}: {}", r.balance_error());
+        let q2: f64 = r
+            .parts
+            .iter()
+            .filter(|p| p.kind == LossKind::Transition && p.name == "Q2")
+            .map(|p| p.energy)
+            .sum();
+        if t0 > 0.0 {
+            assert_eq!(q2, 0.0);
+        }
+        assert!(r.by_kind().switching > 0.0);
+    }
+}
+
+/// The small-signal response does not linearise transition ramps: it
+/// refuses the circuit, naming the switch and the field.
+#[test]
+fn the_response_refuses_transition_models() {
+    use fluxstep_analysis::response::{frequency_response, Input};
+    use fluxstep_analysis::steady::SteadyOptions;
+    let c = sync_buck_with_transitions();
+    let e = frequency_response(
+        &c,
+        &Input::Value("Vin".into()),
+        "out",
+        &[1e3],
+        &SteadyOptions::default(),
+    )
+    .unwrap_err();
+    assert!(
+        matches!(&e, AnalysisError::LossModel { element, field, .. } if element == "Q1" && field == "transition"),
+        "{e}"
+    );
+}
