@@ -124,6 +124,7 @@ fn switch(name: &str, a: &str, b: &str, gate: &str, r: f64, body: Option<DiodeMo
         on_resistance: Some(r),
         body_diode: body,
         thermal: None,
+        transition: None,
     })
 }
 
@@ -373,4 +374,185 @@ mod switching {
             );
         }
     }
+}
+
+/// A constant-current chopper (100 V bus, 10 A load, 100 kHz, clamp diode)
+/// whose switch has the finite transition model, as `transition: Some(..)`.
+fn chopper_with_transitions() -> (Circuit, (f64, f64), (f64, f64)) {
+    use fluxstep_netlist::{SwitchTransition, TransitionRates, Waveform};
+    let off = (100.0 / 20e-9, 10.0 / 10e-9);
+    let on = (100.0 / 25e-9, 10.0 / 15e-9);
+    let mut s = match switch("S1", "sw", "gnd", "g", 0.05, None) {
+        Element::Switch(s) => s,
+        _ => unreachable!(),
+    };
+    s.transition = Some(SwitchTransition {
+        turn_off: TransitionRates {
+            voltage_rate: off.0,
+            current_rate: off.1,
+        },
+        turn_on: TransitionRates {
+            voltage_rate: on.0,
+            current_rate: on.1,
+        },
+    });
+    let c = Circuit::builder()
+        .voltage_source("V1", "in", "gnd", 100.0)
+        .current_source("I1", "in", "sw", Waveform::Constant { value: 10.0 })
+        .diode("D1", "sw", "in")
+        .element(Element::Switch(s))
+        .pwm("g", 100e3, 0.5)
+        .build()
+        .unwrap();
+    (c, off, on)
+}
+
+/// The breakdown splits a switch's ∫v·i at its transitions: switching
+/// energy per period ½·V·I·(t_v + t_i) per edge (Mohan, Undeland &
+/// Robbins, *Power Electronics*, switching-loss chapter; common practice),
+/// conduction R·I² over the on-time outside the transitions (the on-state
+/// begins at the end of the turn-on's voltage fall and ends at the
+/// turn-off's gate edge), and the energy balance still closes to 1e-9
+/// (conservation of energy, common practice).
+#[test]
+fn transition_losses_are_switching_energy_in_the_balance() {
+    let (c, off, on) = chopper_with_transitions();
+    let t = 1e-5;
+    let run = simulate(&c, 3.0 * t, Options::default()).unwrap();
+    let opts = LossOptions {
+        loads: vec!["I1".into()],
+    };
+    let r = breakdown(&c, &run.waveform, &run.events, t, 2.0 * t, &opts).unwrap();
+    let (v, i) = (100.0, 10.0);
+    // The voltage ramp starts from the on-state drop v0 = R·I, so the
+    // turn-off's voltage rise gives I·(V² − v0²)/(2·dv/dt), which is
+    // ½·V·I·t_v for v0 = 0.
+    let v0 = 0.05 * i;
+    let e_off = i * (v * v - v0 * v0) / (2.0 * off.0) + 0.5 * v * i * (i / off.1);
+    let e_on = 0.5 * v * i * (i / on.1 + v / on.0);
+    let sw: f64 = r
+        .parts
+        .iter()
+        .filter(|p| p.kind == LossKind::Transition && p.name == "S1")
+        .map(|p| p.energy)
+        .sum();
+    assert!(
+        (sw - (e_off + e_on)).abs() < 1e-9 * (e_off + e_on),
+        "{sw} vs {}",
+        e_off + e_on
+    );
+    // On from the end of the turn-on (at T + t_i + t_v) to T + T/2.
+    let t_on = 0.5 * t - i / on.1 - v / on.0;
+    let cond: f64 = r
+        .parts
+        .iter()
+        .filter(|p| p.kind == LossKind::Conduction && p.name == "S1")
+        .map(|p| p.energy)
+        .sum();
+    let want = 0.05 * i * i * t_on;
+    assert!((cond - want).abs() < 1e-9 * want, "{cond} vs {want}");
+    assert!((r.by_kind().switching - sw / t).abs() < 1e-9 * sw / t);
+    assert!(r.balance_error() < 1e-9, "{}", r.balance_error());
+    let eta = r.efficiency().unwrap();
+    assert!((eta - r.output_power() / r.input_power()).abs() < 1e-12);
+}
+
+/// A synchronous buck (24 V, 200 kHz, 50 ns / 80 ns dead times, body
+/// diodes) with the transition model on both transistors.
+fn sync_buck_with_transitions() -> Circuit {
+    use fluxstep_netlist::{SwitchTransition, TransitionRates};
+    let body = DiodeModel {
+        forward_voltage: Some(0.7),
+        on_resistance: None,
+    };
+    let mut c = Circuit::builder()
+        .voltage_source("Vin", "in", "gnd", 24.0)
+        .element(switch(
+            "Q1",
+            "in",
+            "sw",
+            "hb.high",
+            0.01,
+            Some(body.clone()),
+        ))
+        .element(switch("Q2", "sw", "gnd", "hb.low", 0.01, Some(body)))
+        .inductor("L1", "sw", "out", 22e-6)
+        .capacitor("C1", "out", "gnd", 47e-6)
+        .resistor("R", "out", "gnd", 6.0)
+        .complementary_pwm("hb", 200e3, 0.5, 50e-9, 80e-9)
+        .build()
+        .unwrap();
+    for e in &mut c.elements {
+        if let Element::Switch(s) = e {
+            s.transition = Some(SwitchTransition {
+                turn_off: TransitionRates {
+                    voltage_rate: 24.0 / 10e-9,
+                    current_rate: 2.0 / 5e-9,
+                },
+                turn_on: TransitionRates {
+                    voltage_rate: 24.0 / 12e-9,
+                    current_rate: 2.0 / 6e-9,
+                },
+            });
+        }
+    }
+    c
+}
+
+/// In a synchronous buck the high side switches hard (two transitions a
+/// period, each with switching energy) and the low side at zero voltage
+/// into its body diode (none) — common practice; the energy balance
+/// closes to 1e-9 over the start-up and over a late period (conservation
+/// of energy, common practice).
+#[test]
+fn sync_buck_transitions_switch_the_high_side_hard_and_balance() {
+    let c = sync_buck_with_transitions();
+    let t = 5e-6;
+    let run = simulate(&c, 400.0 * t, Options::default()).unwrap();
+    let w = &run.waveform;
+    let q1 = w.transition_spans("Q1");
+    let late: Vec<_> = q1.iter().filter(|s| s.t0 >= 399.0 * t).collect();
+    assert_eq!(late.len(), 2, "{late:?}");
+    assert!(late.iter().any(|s| s.turn_on) && late.iter().any(|s| !s.turn_on));
+    // Start-up rings the inductor current negative, and then the low side
+    // does switch hard; in continuous conduction (valley 1.3 A) it does not.
+    assert!(w.transition_spans("Q2").iter().all(|s| s.t1 < 300.0 * t));
+    let opts = LossOptions {
+        loads: vec!["R".into()],
+    };
+    for (t0, t1) in [(0.0, 400.0 * t), (399.0 * t, 400.0 * t)] {
+        let r = breakdown(&c, w, &run.events, t0, t1, &opts).unwrap();
+        assert!(r.balance_error() < 1e-9, "{t0}: {}", r.balance_error());
+        let q2: f64 = r
+            .parts
+            .iter()
+            .filter(|p| p.kind == LossKind::Transition && p.name == "Q2")
+            .map(|p| p.energy)
+            .sum();
+        if t0 > 0.0 {
+            assert_eq!(q2, 0.0);
+        }
+        assert!(r.by_kind().switching > 0.0);
+    }
+}
+
+/// The small-signal response does not linearise transition ramps: it
+/// refuses the circuit, naming the switch and the field.
+#[test]
+fn the_response_refuses_transition_models() {
+    use fluxstep_analysis::response::{frequency_response, Input};
+    use fluxstep_analysis::steady::SteadyOptions;
+    let c = sync_buck_with_transitions();
+    let e = frequency_response(
+        &c,
+        &Input::Value("Vin".into()),
+        "out",
+        &[1e3],
+        &SteadyOptions::default(),
+    )
+    .unwrap_err();
+    assert!(
+        matches!(&e, AnalysisError::LossModel { element, field, .. } if element == "Q1" && field == "transition"),
+        "{e}"
+    );
 }

@@ -105,6 +105,7 @@ fn periodic_ripple_matches_the_pulse_train_closed_form() {
             on_resistance: Some(0.5),
             body_diode: None,
             thermal: Some(net),
+            transition: None,
         }))
         .resistor("Rload", "out", "gnd", 4.5)
         .pwm("g", 50e3, 0.3)

@@ -414,6 +414,7 @@ fn short(e: &SolverError) -> &'static str {
         SolverError::Chatter { .. } => "chatter",
         SolverError::EventLimit { .. } => "event limit",
         SolverError::NonFinite { .. } => "value not finite",
+        SolverError::TransitionIncomplete { .. } => "switching transition incomplete",
         _ => "diagnostic",
     }
 }

@@ -660,6 +660,7 @@ impl CircuitBuilder {
             on_resistance: None,
             body_diode: None,
             thermal: None,
+            transition: None,
         }))
     }
 
@@ -712,6 +713,7 @@ impl CircuitBuilder {
             on_resistance: (on_resistance != 0.0).then_some(on_resistance),
             body_diode: Some(body),
             thermal: None,
+            transition: None,
         }))
     }
 

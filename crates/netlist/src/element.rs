@@ -302,6 +302,49 @@ pub struct Switch {
     /// the loss of the channel and body diode together.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub thermal: Option<ThermalNetwork>,
+    /// Finite switching transitions (optional; default none: the switch
+    /// changes state instantly). See [`SwitchTransition`].
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub transition: Option<SwitchTransition>,
+}
+
+/// The rates of one switching transition, both positive.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct TransitionRates {
+    /// Rate of change of the switch voltage in volts per second; must be
+    /// positive.
+    #[serde(deserialize_with = "value::de", serialize_with = "value::ser")]
+    #[schemars(with = "SiValue")]
+    pub voltage_rate: f64,
+    /// Rate of change of the switch current in amperes per second; must be
+    /// positive.
+    #[serde(deserialize_with = "value::de", serialize_with = "value::ser")]
+    #[schemars(with = "SiValue")]
+    pub current_rate: f64,
+}
+
+/// The clamped inductive switching model of a switch (N. Mohan,
+/// T. Undeland & W. Robbins, *Power Electronics*, chapter on switching
+/// losses).
+///
+/// Turn-off: the switch voltage rises at `turn_off.voltage_rate` while the
+/// switch still carries its current, until a diode turns on (the clamp);
+/// then its current falls at `turn_off.current_rate` to zero and the switch
+/// is open. Turn-on: the current rises at `turn_on.current_rate` while the
+/// switch still blocks its voltage, until a diode stops conducting; then
+/// the voltage falls at `turn_on.voltage_rate` to zero and the switch is
+/// closed. Each phase is an exact ramp constraint. A turn-off that starts
+/// with no current flowing a → b, or into its own body diode, and a
+/// turn-on that starts with no positive voltage, are instantaneous (zero
+/// voltage switching).
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct SwitchTransition {
+    /// Rates of the turn-off: voltage rise, then current fall.
+    pub turn_off: TransitionRates,
+    /// Rates of the turn-on: current rise, then voltage fall.
+    pub turn_on: TransitionRates,
 }
 
 /// One Foster stage of a thermal impedance: Z(t) = R·(1 − e^(−t/τ)).

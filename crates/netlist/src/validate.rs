@@ -443,6 +443,20 @@ impl Checker<'_> {
                 if let Some(t) = &x.thermal {
                     self.thermal(l, t);
                 }
+                if let Some(t) = &x.transition {
+                    for (edge, r) in [("turn_off", &t.turn_off), ("turn_on", &t.turn_on)] {
+                        self.positive(
+                            l,
+                            &format!("transition.{edge}.voltage_rate"),
+                            r.voltage_rate,
+                        );
+                        self.positive(
+                            l,
+                            &format!("transition.{edge}.current_rate"),
+                            r.current_rate,
+                        );
+                    }
+                }
             }
             Element::Diode(x) => {
                 self.optional_non_negative(l, "forward_voltage", x.model.forward_voltage);

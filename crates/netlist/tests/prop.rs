@@ -161,9 +161,10 @@ fn element() -> impl Strategy<Value = Element> {
             nodes(),
             name(),
             option::of(value()),
-            option::of(diode_model())
+            option::of(diode_model()),
+            option::of((value(), value(), value(), value()))
         )
-            .prop_map(|(name, nodes, gate, on_resistance, body_diode)| {
+            .prop_map(|(name, nodes, gate, on_resistance, body_diode, ramps)| {
                 Element::Switch(Switch {
                     name,
                     nodes,
@@ -171,6 +172,16 @@ fn element() -> impl Strategy<Value = Element> {
                     on_resistance,
                     body_diode,
                     thermal: None,
+                    transition: ramps.map(|(a, b, c, d)| SwitchTransition {
+                        turn_off: TransitionRates {
+                            voltage_rate: a,
+                            current_rate: b,
+                        },
+                        turn_on: TransitionRates {
+                            voltage_rate: c,
+                            current_rate: d,
+                        },
+                    }),
                 })
             }),
         (name(), nodes(), diode_model()).prop_map(|(name, nodes, model)| Element::Diode(Diode {

@@ -689,6 +689,48 @@ fn thermal_networks_need_positive_stages() {
     );
 }
 
+#[test]
+fn transition_rates_must_be_positive() {
+    let with = |off_v: f64, on_i: f64| {
+        let rates = |voltage_rate, current_rate| TransitionRates {
+            voltage_rate,
+            current_rate,
+        };
+        buck()
+            .element(Element::Switch(Switch {
+                name: "S9".into(),
+                nodes: ["in".into(), "sw".into()],
+                gate: "drive".into(),
+                on_resistance: None,
+                body_diode: None,
+                thermal: None,
+                transition: Some(SwitchTransition {
+                    turn_off: rates(off_v, 1e9),
+                    turn_on: rates(1e9, on_i),
+                }),
+            }))
+            .build_unchecked()
+    };
+    expect(
+        &with(0.0, 1e9),
+        Some("S9"),
+        Some("transition.turn_off.voltage_rate"),
+        "must be positive",
+    );
+    expect(
+        &with(1e9, -2.0),
+        Some("S9"),
+        Some("transition.turn_on.current_rate"),
+        "must be positive",
+    );
+    expect(
+        &with(f64::INFINITY, 1e9),
+        Some("S9"),
+        Some("transition.turn_off.voltage_rate"),
+        "finite",
+    );
+}
+
 // ----- coupled inductors ---------------------------------------------------
 
 fn flyback_couplings(couplings: Vec<Coupling>) -> Circuit {

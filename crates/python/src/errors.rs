@@ -87,6 +87,7 @@ fn solver_kind(e: &SolverError) -> &'static str {
         SolverError::CurrentSourceOpen { .. } => "current_source_open",
         SolverError::NoConsistentPattern { .. } => "no_consistent_pattern",
         SolverError::Unsupported { .. } => "unsupported",
+        SolverError::TransitionIncomplete { .. } => "transition_incomplete",
         SolverError::Chatter { .. } => "chatter",
         SolverError::EventLimit { .. } => "event_limit",
         SolverError::NonFinite { .. } => "non_finite",

@@ -113,6 +113,28 @@ pub(crate) struct SwitchInfo {
     pub name: String,
     pub r_on: f64,
     pub signal: usize,
+    /// The finite-transition model, if the switch has one.
+    pub transition: Option<TransitionInfo>,
+}
+
+/// A switch's transition model, compiled: during a ramp the switch is a
+/// voltage or current source whose value and slope are the input entries
+/// `z[value]` and `z[slope]` (set by the run loop at each phase's start).
+#[derive(Clone, Debug)]
+pub(crate) struct TransitionInfo {
+    /// z index of the ramp's value (V or A).
+    pub value: usize,
+    /// z index of the ramp's slope (V/s or A/s).
+    pub slope: usize,
+    /// Turn-off rates (voltage, current).
+    pub off: (f64, f64),
+    /// Turn-on rates (voltage, current).
+    pub on: (f64, f64),
+    /// Output indices of the switch's current and voltage.
+    pub current_out: usize,
+    pub voltage_out: usize,
+    /// Index of its body diode among the diodes, if it has one.
+    pub body_diode: Option<usize>,
 }
 
 #[derive(Clone, Debug)]
@@ -360,6 +382,20 @@ impl Compiled {
             reference_inputs.push((n_x + n_u, c.sources.len() - 1));
             n_u += 1;
         }
+        // Ramp inputs of switches with a transition model, in circuit order
+        // (set by the run loop only, never by the schedule).
+        let mut ramp_inputs = vec![];
+        for e in &circuit.elements {
+            if let Element::Switch(s) = e {
+                if s.transition.is_some() {
+                    ramp_inputs.push(Some(n_u));
+                    n_u += 1;
+                } else {
+                    ramp_inputs.push(None);
+                }
+            }
+        }
+        let mut ramp_inputs = ramp_inputs.into_iter();
         c.n_u = n_u;
         let nz = n_x + 2 * n_u;
         let row_of = |terms: Vec<(usize, f64)>| {
@@ -481,10 +517,24 @@ impl Compiled {
                 }
                 Element::Switch(s) => {
                     let (a, b) = (node(&s.nodes[0]), node(&s.nodes[1]));
+                    let input = ramp_inputs.next().expect("one entry per switch");
+                    let transition = match (&s.transition, input) {
+                        (Some(t), Some(k)) => Some(TransitionInfo {
+                            value: n_x + k,
+                            slope: n_x + n_u + k,
+                            off: (t.turn_off.voltage_rate, t.turn_off.current_rate),
+                            on: (t.turn_on.voltage_rate, t.turn_on.current_rate),
+                            current_out: usize::MAX,
+                            voltage_out: usize::MAX,
+                            body_diode: s.body_diode.as_ref().map(|_| c.diodes.len()),
+                        }),
+                        _ => None,
+                    };
                     c.switches.push(SwitchInfo {
                         name: s.name.clone(),
                         r_on: s.on_resistance.unwrap_or(0.0),
                         signal: sig_index(&s.gate),
+                        transition,
                     });
                     c.branches.push(Branch {
                         name: s.name.clone(),
@@ -597,6 +647,16 @@ impl Compiled {
         for k in 0..c.compensators.len() {
             let input = &circuit.compensators[k].input;
             c.compensators[k].input = c.output_index(input)?;
+        }
+        for k in 0..c.switches.len() {
+            if c.switches[k].transition.is_some() {
+                let name = c.switches[k].name.clone();
+                let current_out = c.output_index(&format!("{name}.current"))?;
+                let voltage_out = c.output_index(&format!("{name}.voltage"))?;
+                let t = c.switches[k].transition.as_mut().expect("checked");
+                t.current_out = current_out;
+                t.voltage_out = voltage_out;
+            }
         }
         for (signal, spec, turn_off, turn_on) in pending_comparators {
             let sense = c.output_index(&spec.sense)?;

@@ -99,6 +99,19 @@ pub enum SolverError {
         /// What is not supported.
         reason: String,
     },
+    /// A switch's finite transition did not complete: nothing clamped its
+    /// ramp (no diode turned on or off) before its gate changed again.
+    #[error("t = {time:e} s: the {edge} transition of switch {switch} did not complete: {reason}")]
+    TransitionIncomplete {
+        /// When it was found (s).
+        time: f64,
+        /// The switch.
+        switch: String,
+        /// `turn-off` or `turn-on`.
+        edge: String,
+        /// What happened.
+        reason: String,
+    },
     /// Too many events in a tiny window: ideal elements chattering.
     #[error(
         "t = {time:e} s: chatter: {count} events within {window:e} s involving {}",
@@ -170,6 +183,7 @@ impl SolverError {
             | SolverError::CurrentSourceOpen { time, .. }
             | SolverError::NoConsistentPattern { time, .. }
             | SolverError::Unsupported { time, .. }
+            | SolverError::TransitionIncomplete { time, .. }
             | SolverError::Chatter { time, .. }
             | SolverError::EventLimit { time, .. }
             | SolverError::NonFinite { time, .. }

@@ -76,4 +76,4 @@ pub use events::{
 pub use mode::ModeKey;
 pub use options::{OnInterruption, OnShootThrough, Options, Record};
 pub use run::{simulate, RunResult, SegmentSink, SegmentView, Simulator, Stats};
-pub use waveform::{OutputId, Segment, Side, ValueError, Waveform};
+pub use waveform::{OutputId, Segment, Side, TransitionSpan, ValueError, Waveform};

@@ -36,13 +36,24 @@ use crate::compile::{BranchKind, Compiled, OutputDef};
 use crate::error::SolverError;
 
 /// A conduction pattern: bit i of `switches` is switch i on, bit j of
-/// `diodes` is diode j conducting.
+/// `diodes` is diode j conducting, bits 2i and 2i + 1 of `ramps` switch i
+/// in a voltage or current ramp of its transition model.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, PartialOrd, Ord)]
 pub struct ModeKey {
     /// Bit i set: switch i is on.
     pub switches: u64,
     /// Bit j set: diode j conducts.
     pub diodes: u64,
+    /// Bit 2i set: switch i is a voltage ramp (a source of the voltage at
+    /// its transition input); bit 2i + 1: a current ramp. Either overrides
+    /// its bit in `switches`. Zero for a switch without a transition model.
+    pub ramps: u64,
+}
+
+/// The ramp bit of switch `i` in [`ModeKey::ramps`]: voltage or current.
+#[inline(always)]
+pub(crate) fn ramp_bit(i: usize, voltage: bool) -> u64 {
+    1 << (2 * i + usize::from(!voltage))
 }
 
 /// What a guard watches.
@@ -198,7 +209,10 @@ impl Mode {
         let nz = cc.n_z();
         let nx = cc.n_x;
         let one = nx; // z index of the constant input 1
-        let sw_on = |i: usize| key.switches >> i & 1 == 1;
+        let ramp_v = |i: usize| key.ramps & ramp_bit(i, true) != 0;
+        let ramp_i = |i: usize| key.ramps & ramp_bit(i, false) != 0;
+        // Closed (a short or its on-resistance): on and in no ramp.
+        let sw_on = |i: usize| key.switches >> i & 1 == 1 && key.ramps >> (2 * i) & 3 == 0;
         let d_on = |i: usize| key.diodes >> i & 1 == 1;
         let present_voltage = |k: &BranchKind| -> bool {
             match k {
@@ -206,7 +220,7 @@ impl Mode {
                 | BranchKind::VSource { .. }
                 | BranchKind::Capacitor { .. } => true,
                 BranchKind::Transformer { .. } => true,
-                BranchKind::Switch { sw } => sw_on(*sw),
+                BranchKind::Switch { sw } => sw_on(*sw) || ramp_v(*sw),
                 BranchKind::Diode { d } => d_on(*d),
                 BranchKind::Winding { .. } | BranchKind::ISource { .. } => false,
             }
@@ -256,6 +270,7 @@ impl Mode {
                 match b.kind {
                     BranchKind::Winding { .. } => comp_windings[c].push(bi),
                     BranchKind::ISource { .. } => comp_sources[c].push(b.name.clone()),
+                    BranchKind::Switch { sw } if ramp_i(sw) => comp_sources[c].push(b.name.clone()),
                     _ => {}
                 }
             }
@@ -273,6 +288,7 @@ impl Mode {
         let zero_r = |k: &BranchKind| -> Option<u8> {
             match k {
                 BranchKind::VSource { .. } => Some(0),
+                BranchKind::Switch { sw } if ramp_v(*sw) => Some(0),
                 BranchKind::Switch { sw } if sw_on(*sw) && cc.switches[*sw].r_on == 0.0 => Some(1),
                 BranchKind::Diode { d } if d_on(*d) && cc.diodes[*d].r_on == 0.0 => Some(1),
                 BranchKind::Capacitor { .. } => Some(2),
@@ -380,7 +396,9 @@ impl Mode {
             let needs = match &b.kind {
                 BranchKind::VSource { .. } | BranchKind::Transformer { .. } => true,
                 BranchKind::Capacitor { .. } => !is_loop_cap(bi),
-                BranchKind::Switch { sw } => sw_on(*sw) && cc.switches[*sw].r_on == 0.0,
+                BranchKind::Switch { sw } => {
+                    (sw_on(*sw) && cc.switches[*sw].r_on == 0.0) || ramp_v(*sw)
+                }
                 BranchKind::Diode { d } => d_on(*d),
                 _ => false,
             };
@@ -475,7 +493,21 @@ impl Mode {
                     }
                 }
                 BranchKind::Switch { sw } => {
-                    if sw_on(*sw) {
+                    let ramp = cc.switches[*sw].transition.as_ref();
+                    if ramp_v(*sw) {
+                        let k = cur_of[bi];
+                        stamp_cur(&mut g, a, bn, k, 1.0);
+                        stamp_v(&mut g, k, a, bn, 1.0);
+                        rhs[(k, ramp.expect("a ramp has a model").value)] += 1.0;
+                    } else if ramp_i(*sw) {
+                        inject(
+                            &mut rhs,
+                            a,
+                            bn,
+                            ramp.expect("a ramp has a model").value,
+                            1.0,
+                        );
+                    } else if sw_on(*sw) {
                         let r = cc.switches[*sw].r_on;
                         if r > 0.0 {
                             stamp_g(&mut g, a, bn, 1.0 / r);
@@ -772,6 +804,16 @@ impl Mode {
                             (r, DVector::zeros(n_free))
                         }
                         BranchKind::VSource { .. } | BranchKind::Transformer { .. } => curz(*bi),
+                        BranchKind::Switch { sw } if ramp_v(*sw) => curz(*bi),
+                        BranchKind::Switch { sw } if ramp_i(*sw) => {
+                            let mut r = DVector::zeros(nz);
+                            r[cc.switches[*sw]
+                                .transition
+                                .as_ref()
+                                .expect("a ramp has a model")
+                                .value] = 1.0;
+                            (r, DVector::zeros(n_free))
+                        }
                         BranchKind::Switch { sw } => {
                             if !sw_on(*sw) {
                                 zero
@@ -960,7 +1002,11 @@ pub(crate) fn pattern_text(cc: &Compiled, key: ModeKey) -> String {
         parts.push(format!(
             "{} {}",
             s.name,
-            if key.switches >> i & 1 == 1 {
+            if key.ramps & ramp_bit(i, true) != 0 {
+                "in a voltage ramp"
+            } else if key.ramps & ramp_bit(i, false) != 0 {
+                "in a current ramp"
+            } else if key.switches >> i & 1 == 1 {
                 "on"
             } else {
                 "off"

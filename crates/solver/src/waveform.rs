@@ -181,6 +181,24 @@ pub struct Waveform {
     pub(crate) modes: Vec<Arc<Mode>>,
     pub(crate) output_names: Vec<String>,
     pub(crate) n_x: usize,
+    /// Switch names in circuit order (bit i of a mode key's switches).
+    pub(crate) switch_names: Vec<String>,
+}
+
+/// One finite switching transition of a switch (see the circuit format's
+/// `transition` field): the stretch between its gate edge and the end of
+/// its second ramp.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct TransitionSpan {
+    /// The gate edge (s).
+    pub t0: f64,
+    /// When the first phase was clamped (s): a diode turned on (turn-off)
+    /// or stopped conducting (turn-on).
+    pub clamp: f64,
+    /// The end of the second ramp (s).
+    pub t1: f64,
+    /// True for a turn-on.
+    pub turn_on: bool,
 }
 
 /// Gauss–Legendre nodes and weights on [−1, 1], 8 points. On a sub-interval
@@ -624,6 +642,56 @@ impl Waveform {
             z = propagate::taylor(&m.m, &z, d);
         }
         total
+    }
+
+    /// The finite transitions of `switch` within the record, in time
+    /// order, from the modes of its segments (a transition cut by the
+    /// record's ends is clipped to them). Empty for an unknown name or a
+    /// switch without a transition model.
+    pub fn transition_spans(&self, switch: &str) -> Vec<TransitionSpan> {
+        let Some(i) = self.switch_names.iter().position(|n| n == switch) else {
+            return vec![];
+        };
+        let (v_bit, i_bit) = (
+            crate::mode::ramp_bit(i, true),
+            crate::mode::ramp_bit(i, false),
+        );
+        let mut out: Vec<TransitionSpan> = vec![];
+        let mut open: Option<TransitionSpan> = None;
+        for s in &self.segments {
+            let key = self.modes[s.mode as usize].key;
+            let ramp = key.ramps & (v_bit | i_bit);
+            if ramp == 0 {
+                if let Some(t) = open.take() {
+                    out.push(t);
+                }
+                continue;
+            }
+            let turn_on = key.switches >> i & 1 == 1;
+            // The first phase: voltage ramp on turn-off, current on turn-on.
+            let first = (ramp == v_bit) != turn_on;
+            match open.as_mut() {
+                Some(t) if t.turn_on == turn_on && t.t1 == s.t0 && !(first && t.clamp < t.t1) => {
+                    if first {
+                        t.clamp = s.t1;
+                    }
+                    t.t1 = s.t1;
+                }
+                _ => {
+                    if let Some(t) = open.take() {
+                        out.push(t);
+                    }
+                    open = Some(TransitionSpan {
+                        t0: s.t0,
+                        clamp: if first { s.t1 } else { s.t0 },
+                        t1: s.t1,
+                        turn_on,
+                    });
+                }
+            }
+        }
+        out.extend(open);
+        out
     }
 
     /// Average of an output over [t0, t1].

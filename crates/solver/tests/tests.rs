@@ -8,5 +8,7 @@
 //! - `physics::control`: closed-loop gates and compensators.
 //! - `physics::structure`: jumps, interruption, shoot-through, chatter,
 //!   floating nodes, magnetics and dead time.
+//! - `physics::transition`: finite switching transitions (clamped
+//!   inductive switching, stray-inductance overshoot).
 
 mod physics;

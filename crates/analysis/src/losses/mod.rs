@@ -48,8 +48,13 @@ pub enum LossKind {
     Conduction,
     /// Energy dissipated by a charge-sharing or flux-conserving jump.
     Jump,
-    /// Turn-on and turn-off energy of a switch.
+    /// Turn-on and turn-off energy of a switch, from tables (added beside
+    /// the simulation).
     Switching,
+    /// Turn-on and turn-off energy of a switch with a transition model:
+    /// the exact ∫v·i over its simulated transitions (part of the energy
+    /// balance; counted with `switching` in [`KindTotals`]).
+    Transition,
     /// Reverse-recovery energy of a diode.
     Recovery,
     /// Magnetic core loss of an inductor.
@@ -142,7 +147,7 @@ impl LossReport {
             let slot = match p.kind {
                 LossKind::Conduction => &mut k.conduction,
                 LossKind::Jump => &mut k.jump,
-                LossKind::Switching => &mut k.switching,
+                LossKind::Switching | LossKind::Transition => &mut k.switching,
                 LossKind::Recovery => &mut k.recovery,
                 LossKind::Core => &mut k.core,
             };
@@ -188,7 +193,12 @@ impl LossReport {
     fn added_energy(&self) -> f64 {
         self.parts
             .iter()
-            .filter(|p| !matches!(p.kind, LossKind::Conduction | LossKind::Jump))
+            .filter(|p| {
+                !matches!(
+                    p.kind,
+                    LossKind::Conduction | LossKind::Jump | LossKind::Transition
+                )
+            })
             .map(|p| p.energy)
             .sum()
     }
@@ -201,7 +211,12 @@ impl LossReport {
         let simulated: f64 = self
             .parts
             .iter()
-            .filter(|p| matches!(p.kind, LossKind::Conduction | LossKind::Jump))
+            .filter(|p| {
+                matches!(
+                    p.kind,
+                    LossKind::Conduction | LossKind::Jump | LossKind::Transition
+                )
+            })
             .map(|p| p.energy)
             .sum();
         self.input_energy - self.output_energy - simulated - (self.stored.1 - self.stored.0)
@@ -261,6 +276,7 @@ impl LossReport {
 ///     on_resistance: Some(1.0),
 ///     body_diode: None,
 ///     thermal: None,
+///     transition: None,
 /// };
 /// let c = Circuit::builder()
 ///     .voltage_source("V1", "in", "gnd", 10.0)
@@ -322,7 +338,22 @@ pub fn breakdown(
             }
             Element::Resistor(_) | Element::Diode(_) => conduction(&mut report, name)?,
             Element::Switch(s) => {
-                conduction(&mut report, name)?;
+                if s.transition.is_some() {
+                    // The channel's ∫v·i split at the transitions' ends:
+                    // inside them switching, outside conduction.
+                    let total = part_energy(waveform, name, t0, t1)?;
+                    let mut switching = 0.0;
+                    for span in waveform.transition_spans(name) {
+                        let (a, b) = (span.t0.max(t0), span.t1.min(t1));
+                        if b > a {
+                            switching += part_energy(waveform, name, a, b)?;
+                        }
+                    }
+                    report.add(name, LossKind::Conduction, total - switching);
+                    report.add(name, LossKind::Transition, switching);
+                } else {
+                    conduction(&mut report, name)?;
+                }
                 if s.body_diode.is_some() {
                     conduction(&mut report, &format!("{name}.body_diode"))?;
                 }

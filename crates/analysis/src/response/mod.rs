@@ -273,6 +273,22 @@ fn steady_for_response(
     circuit: &Circuit,
     opts: &SteadyOptions,
 ) -> Result<SteadyState, AnalysisError> {
+    // The ramps of a transition model restart from the state at each
+    // clamp, a reset the linearised period map does not include: refuse
+    // rather than answer wrongly.
+    for e in &circuit.elements {
+        if let fluxstep_netlist::Element::Switch(s) = e {
+            if s.transition.is_some() {
+                return Err(AnalysisError::LossModel {
+                    element: s.name.clone(),
+                    field: "transition".into(),
+                    reason: "is not linearised by the small-signal response; \
+                             analyse the converter without the transition model"
+                        .into(),
+                });
+            }
+        }
+    }
     let ss = find(
         circuit,
         &SteadyOptions {

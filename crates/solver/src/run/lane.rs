@@ -40,6 +40,10 @@ impl Simulator {
             return Ok(());
         }
         loop {
+            // A running transition has instants of its own (`transition.rs`).
+            if self.key.ramps != 0 {
+                return Ok(());
+            }
             // The next edge: the earliest front of the signal buffers (the
             // first signal wins a tie, as in `next_scheduled`).
             let mut best: Option<(f64, usize)> = None;
@@ -165,6 +169,9 @@ impl Simulator {
             self.key.switches = self.switch_bits();
         }
         let switched = old ^ self.key.switches;
+        if switched & self.ramp_switches != 0 {
+            self.start_ramps(t, switched)?;
+        }
         let scales = self.scales();
         if self.replay {
             if let Some((to, projected)) = self.remembered_target(0, scales) {

@@ -16,6 +16,7 @@ mod resolve;
 mod restart;
 mod sampled;
 mod schedule;
+mod transition;
 
 use std::collections::HashMap;
 use std::sync::Arc;
@@ -202,6 +203,12 @@ pub struct Simulator {
     za: DVector<f64>,
     coef: Vec<f64>,
     before: Vec<f64>,
+    /// Bit i set: switch i has a transition model (`transition.rs`).
+    ramp_switches: u64,
+    /// Per switch: where it is in its transition.
+    phases: Vec<transition::Phase>,
+    /// The earliest end of a running ramp phase (∞ if none).
+    ramp_next: f64,
 }
 
 pub(crate) fn dot(a: impl IntoIterator<Item = f64>, b: &[f64]) -> f64 {
@@ -228,6 +235,25 @@ impl Simulator {
                 ),
             });
         }
+        let mut ramp_switches = 0u64;
+        for (i, s) in cc.switches.iter().enumerate() {
+            if s.transition.is_some() {
+                if i >= 32 {
+                    return Err(SolverError::Unsupported {
+                        time: 0.0,
+                        pattern: String::new(),
+                        reason: format!(
+                            "switch {} has a transition model but is switch number {} of the circuit: \
+                             only the first 32 switches may have one",
+                            s.name,
+                            i + 1
+                        ),
+                    });
+                }
+                ramp_switches |= 1 << i;
+            }
+        }
+        let n_switches = cc.switches.len();
         let nz = cc.n_z();
         let mut z = DVector::zeros(nz);
         for (i, v) in cc.x0.iter().enumerate() {
@@ -265,6 +291,7 @@ impl Simulator {
             modes: vec![],
             output_names: cc.outputs.iter().map(|(n, _)| n.clone()).collect(),
             n_x: cc.n_x,
+            switch_names: cc.switches.iter().map(|s| s.name.clone()).collect(),
         };
         // Element ids in the log: switches, then diodes, then sources
         // (see `record::Simulator::who_id`).
@@ -293,6 +320,7 @@ impl Simulator {
             key: ModeKey {
                 switches: 0,
                 diodes: 0,
+                ramps: 0,
             },
             signals,
             signal_on,
@@ -331,6 +359,9 @@ impl Simulator {
             za: DVector::zeros(nz),
             coef: vec![],
             before: vec![],
+            ramp_switches,
+            phases: vec![transition::Phase::Idle; n_switches],
+            ramp_next: f64::INFINITY,
         };
         sim.cmp_ticks = (0..n_cmp).map(|ci| sim.make_ticks(ci)).collect();
         sim.current_states = sim
@@ -635,6 +666,9 @@ impl Simulator {
                     self.stats.state_events += 1;
                     self.cause = EventCause::Crossing;
                     let cause = self.fire_comparators(cmp_fired, t_e)?;
+                    if fired != 0 && self.ramp_waits_for_clamp() {
+                        self.clamp_ramps(t_e);
+                    }
                     self.resolve(fired, cause, false)?;
                     continue;
                 }

@@ -62,6 +62,7 @@ enum Verdict {
 pub(super) struct Transition {
     from: u32,
     switches: u64,
+    ramps: u64,
     flips: u64,
     cut_rejected: Vec<u32>,
     to: u32,
@@ -69,7 +70,10 @@ pub(super) struct Transition {
 
 impl Transition {
     fn same_key(&self, other: &Transition) -> bool {
-        self.from == other.from && self.switches == other.switches && self.flips == other.flips
+        self.from == other.from
+            && self.switches == other.switches
+            && self.ramps == other.ramps
+            && self.flips == other.flips
     }
 }
 
@@ -137,6 +141,7 @@ impl Simulator {
                 let key = ModeKey {
                     switches: self.key.switches,
                     diodes: c,
+                    ramps: self.key.ramps,
                 };
                 let mi = self.mode_id(key)?;
                 // The modes are borrowed out of `self` while the candidate is
@@ -171,6 +176,7 @@ impl Simulator {
                         let t = Transition {
                             from: self.mode,
                             switches: self.key.switches,
+                            ramps: self.key.ramps,
                             flips,
                             cut_rejected: list.clone(),
                             to: mi,
@@ -226,10 +232,12 @@ impl Simulator {
         flips: u64,
         scales: (f64, f64),
     ) -> Option<(u32, bool)> {
-        let t = self
-            .memo
-            .iter()
-            .find(|t| t.from == self.mode && t.switches == self.key.switches && t.flips == flips)?;
+        let t = self.memo.iter().find(|t| {
+            t.from == self.mode
+                && t.switches == self.key.switches
+                && t.ramps == self.key.ramps
+                && t.flips == flips
+        })?;
         let z = self.z.as_slice();
         let still = t
             .cut_rejected

@@ -188,14 +188,19 @@ impl Simulator {
                 }
             }
         }
+        if self.ramp_next < best.0 {
+            best = (self.ramp_next, None);
+        }
         best
     }
 
     pub(super) fn has_scheduled_at(&self, t: f64) -> bool {
         let until = coincident_until(t);
-        self.signals
-            .iter()
-            .any(|b| b.edges.front().is_some_and(|e| e.time <= until))
+        self.ramp_next <= until
+            || self
+                .signals
+                .iter()
+                .any(|b| b.edges.front().is_some_and(|e| e.time <= until))
             || self.has_tick_at(t)
             || self.has_control_at(t)
             || self.pwl_sources.iter().any(|&si| {
@@ -294,6 +299,9 @@ impl Simulator {
     /// Gate edges and comparator ticks due at `t`, then the conduction
     /// pattern that follows.
     pub(super) fn settle_instant(&mut self, t: f64) -> Result<(), SolverError> {
+        if self.ramp_next <= coincident_until(t) {
+            self.end_ramps(t);
+        }
         let mut cause = self.take_gate_edges(t)?;
         if !self.cc.comparators.is_empty() {
             if let Some(c) = self.apply_ticks(t)? {
@@ -357,7 +365,11 @@ impl Simulator {
             };
             self.push_event(t, kind, Who::Switch(i), None, false)?;
         }
+        let changed = sw ^ self.key.switches;
         self.key.switches = sw;
+        if changed & self.ramp_switches != 0 {
+            self.start_ramps(t, changed)?;
+        }
         Ok(cause)
     }
 }

@@ -4,4 +4,5 @@ mod crosscheck;
 mod exact;
 mod issue_13;
 mod structure;
+mod transition;
 pub mod util;

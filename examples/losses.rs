@@ -1,0 +1,107 @@
+//! Efficiency against load of a synchronous buck with dead time, and its
+//! loss breakdown.
+//!
+//! A demo design of our own: 24 V → 12 V at 200 kHz, 22 µH with 15 mΩ of
+//! winding resistance, 47 µF with 5 mΩ of ESR, two 10 mΩ transistors with
+//! 0.7 V body diodes, 50 ns / 80 ns dead times. The high-side transistor
+//! has the clamped inductive switching model (turn-off: 24 V in 10 ns,
+//! current fall 5 ns per 2 A scaled as a fixed rate; turn-on similar); the
+//! low side switches at zero voltage. Each load point runs 3,000 periods
+//! and reports the last one.
+//!
+//! ```sh
+//! cargo run --release --example losses
+//! ```
+//!
+//! Caution: a simulated efficiency is as good as the part data given;
+//! it does not replace measurement and qualified review.
+
+use fluxstep::analysis::losses::{breakdown, LossOptions};
+use fluxstep::netlist::{
+    Capacitor, Circuit, DiodeModel, Element, Inductor, SwitchTransition, TransitionRates,
+};
+use fluxstep::solver::{simulate, Options};
+
+const T: f64 = 5e-6;
+
+fn buck(load: f64) -> Result<Circuit, Box<dyn std::error::Error>> {
+    let body = DiodeModel {
+        forward_voltage: Some(0.7),
+        on_resistance: None,
+    };
+    let mut c = Circuit::builder()
+        .voltage_source("Vin", "in", "gnd", 24.0)
+        .transistor("Q1", "in", "sw", "hb.high", 0.01, body.clone())
+        .transistor("Q2", "sw", "gnd", "hb.low", 0.01, body)
+        .element(Element::Inductor(Inductor {
+            name: "L1".into(),
+            nodes: ["sw".into(), "out".into()],
+            inductance: 22e-6,
+            initial_current: Some(12.0 / load),
+            winding_resistance: Some(0.015),
+        }))
+        .element(Element::Capacitor(Capacitor {
+            name: "C1".into(),
+            nodes: ["out".into(), "gnd".into()],
+            capacitance: 47e-6,
+            initial_voltage: Some(12.0),
+            esr: Some(0.005),
+        }))
+        .resistor("Rload", "out", "gnd", load)
+        .complementary_pwm("hb", 1.0 / T, 0.5, 50e-9, 80e-9)
+        .build()?;
+    for e in &mut c.elements {
+        if let Element::Switch(s) = e {
+            if s.name == "Q1" {
+                s.transition = Some(SwitchTransition {
+                    turn_off: TransitionRates {
+                        voltage_rate: 24.0 / 10e-9,
+                        current_rate: 1e9,
+                    },
+                    turn_on: TransitionRates {
+                        voltage_rate: 24.0 / 12e-9,
+                        current_rate: 0.8e9,
+                    },
+                });
+            }
+        }
+    }
+    Ok(c)
+}
+
+fn main() -> Result<(), Box<dyn std::error::Error>> {
+    println!(
+        "{:>8} {:>8} {:>9} {:>9} {:>9} {:>9} {:>8} {:>9}",
+        "load", "I out", "P out", "cond.", "switch.", "total", "eff.", "balance"
+    );
+    for load in [24.0, 12.0, 6.0, 4.0, 3.0, 2.4, 2.0] {
+        let c = buck(load)?;
+        let periods = 3000.0;
+        let run = simulate(&c, periods * T, Options::default())?;
+        let opts = LossOptions {
+            loads: vec!["Rload".into()],
+        };
+        let r = breakdown(
+            &c,
+            &run.waveform,
+            &run.events,
+            (periods - 1.0) * T,
+            periods * T,
+            &opts,
+        )?;
+        let k = r.by_kind();
+        println!(
+            "{:>6.1} Ω {:>6.2} A {:>7.3} W {:>7.3} W {:>7.3} W {:>7.3} W {:>7.2} % {:>9.1e}",
+            load,
+            12.0 / load,
+            r.output_power(),
+            k.conduction,
+            k.switching,
+            r.total_loss(),
+            100.0 * r.efficiency().unwrap_or(f64::NAN),
+            r.balance_error()
+        );
+    }
+    println!("(conduction: channels, body diodes, winding and ESR; switching: Q1's transitions)");
+    Ok(())
+}
