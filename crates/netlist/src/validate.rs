@@ -67,6 +67,11 @@ pub fn problems(circuit: &Circuit) -> Vec<Problem> {
     c.topology();
     c.run_settings();
     c.compensators();
+    if let Some(run) = &circuit.run {
+        // Other rules (positive, finite) speak for a bad stop time itself.
+        c.out
+            .extend(circuit.time_resolution_problems(run.stop_time));
+    }
     c.out
 }
 

@@ -122,6 +122,18 @@ pub enum SolverError {
         /// The limit.
         limit: usize,
     },
+    /// The recorded waveform and event log would grow past the memory
+    /// budget ([`crate::Options::memory_budget`]).
+    #[error(
+        "t = {time:e} s: the record reached the memory budget of {budget} bytes \
+         (raise the budget, record a shorter window, or fewer events)"
+    )]
+    MemoryBudget {
+        /// Time (s).
+        time: f64,
+        /// The budget (bytes).
+        budget: usize,
+    },
     /// A value became NaN or infinite.
     #[error("t = {time:e} s: {what} is not finite")]
     NonFinite {
@@ -172,6 +184,7 @@ impl SolverError {
             | SolverError::Unsupported { time, .. }
             | SolverError::Chatter { time, .. }
             | SolverError::EventLimit { time, .. }
+            | SolverError::MemoryBudget { time, .. }
             | SolverError::NonFinite { time, .. }
             | SolverError::Control { time, .. }
             | SolverError::Undetermined { time, .. } => Some(*time),
