@@ -125,8 +125,7 @@ pub enum SolverError {
     /// The recorded waveform and event log would grow past the memory
     /// budget ([`crate::Options::memory_budget`]).
     #[error(
-        "t = {time:e} s: the record reached the memory budget of {budget} bytes \
-         (raise the budget, record a shorter window, or fewer events)"
+        "t = {time:e} s: the recorded waveform and events reached the memory budget of {budget} bytes"
     )]
     MemoryBudget {
         /// Time (s).

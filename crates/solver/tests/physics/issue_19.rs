@@ -31,7 +31,10 @@ fn issue_19_a_record_past_its_budget_stops_with_a_diagnostic() {
     };
     assert_eq!(b, budget);
     assert!(time > 0.0 && time < 5e-3, "{time}");
-    assert!(err.to_string().contains("memory budget of 65536 bytes"));
+    assert!(
+        err.to_string().contains("memory budget of 65536 bytes"),
+        "{err}"
+    );
     let r = sim.finish();
     let used = r.waveform.memory_bytes() + r.events.memory_bytes();
     // Checked at every event and scheduled instant: over by at most one
