@@ -303,10 +303,12 @@ impl Circuit {
     /// Every node name, ground first (as `gnd`), then in order of first use.
     pub fn nodes(&self) -> Vec<String> {
         let mut out = vec![GROUND.to_string()];
+        // A set beside the list keeps this linear in the terminals.
+        let mut seen: std::collections::HashSet<&str> = [GROUND].into_iter().collect();
         for e in &self.elements {
             for (_, n) in e.terminals() {
                 let n = if is_ground(n) { GROUND } else { n };
-                if !out.iter().any(|x| x == n) {
+                if seen.insert(n) {
                     out.push(n.to_string());
                 }
             }

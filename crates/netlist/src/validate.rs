@@ -56,6 +56,7 @@ pub fn problems(circuit: &Circuit) -> Vec<Problem> {
             .map(|(i, e)| label(e.name(), "elements", i))
             .collect(),
         out: Vec::new(),
+        nodes: std::cell::OnceCell::new(),
     };
     c.element_names();
     c.node_names();
@@ -120,12 +121,21 @@ fn canonical(node: &str) -> &str {
     }
 }
 
+/// How many names a problem lists before it only counts the rest: a
+/// message naming all of 2,000 signals helps nobody.
+const NAMES_SHOWN: usize = 12;
+
 fn quoted(names: &[&str]) -> String {
-    names
+    let mut text = names
         .iter()
+        .take(NAMES_SHOWN)
         .map(|n| format!("'{n}'"))
         .collect::<Vec<_>>()
-        .join(", ")
+        .join(", ");
+    if names.len() > NAMES_SHOWN {
+        text.push_str(&format!(" and {} more", names.len() - NAMES_SHOWN));
+    }
+    text
 }
 
 /// Whether a symmetric matrix is positive definite, by Cholesky
@@ -261,6 +271,10 @@ struct Checker<'a> {
     circuit: &'a Circuit,
     labels: Vec<String>,
     out: Vec<Problem>,
+    /// The circuit's node names, built on first use: looking an output up
+    /// in [`Circuit::nodes`] each time made checking thousands of outputs
+    /// on thousands of nodes take seconds.
+    nodes: std::cell::OnceCell<std::collections::HashSet<String>>,
 }
 
 impl Checker<'_> {
@@ -984,8 +998,11 @@ impl Checker<'_> {
     fn output_problem(&self, text: &str) -> Option<String> {
         match OutputName::parse(text) {
             Err(p) => Some(p.message),
-            Ok(OutputName::Node(n)) => (!self.circuit.nodes().contains(&n))
-                .then(|| format!("output {text:?} names no node of the circuit")),
+            Ok(OutputName::Node(n)) => (!self
+                .nodes
+                .get_or_init(|| self.circuit.nodes().into_iter().collect())
+                .contains(&n))
+            .then(|| format!("output {text:?} names no node of the circuit")),
             Ok(OutputName::Current(e)) | Ok(OutputName::Voltage(e)) => self
                 .output_target(&e)
                 .err()

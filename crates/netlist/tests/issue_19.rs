@@ -64,3 +64,30 @@ fn issue_19_a_byte_order_mark_is_skipped() {
     let with_bom = Circuit::from_json(&format!("\u{feff}{text}")).unwrap();
     assert_eq!(plain, with_bom);
 }
+
+/// A problem lists at most a dozen names and counts the rest: the message
+/// of an unknown gate signal among 2,000 used to name all 2,000.
+#[test]
+fn issue_19_a_problem_names_a_dozen_and_counts_the_rest() {
+    let mut b = Circuit::builder()
+        .voltage_source("V1", "in", "gnd", 1.0)
+        .switch("S1", "in", "out", "nowhere")
+        .resistor("R1", "out", "gnd", 1.0);
+    for i in 0..2000 {
+        b = b.pwm(&format!("g{i}"), 1e3, 0.5);
+    }
+    let problems = match b.build() {
+        Err(NetlistError::Invalid(p)) => p,
+        other => panic!("expected problems, got {other:?}"),
+    };
+    let p = problems
+        .iter()
+        .find(|p| p.message.contains("unknown gate signal"))
+        .expect("the unknown signal is named");
+    assert!(
+        p.message.contains("'g11'") && !p.message.contains("'g12'"),
+        "{}",
+        p.message
+    );
+    assert!(p.message.contains("and 1988 more"), "{}", p.message);
+}
