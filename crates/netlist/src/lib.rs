@@ -66,7 +66,7 @@ pub use circuit::{
 pub use element::*;
 pub use error::{NetlistError, Problem};
 pub use gate::{ComparatorSpec, Comparison, Edge, Gate, SignalShape, Transition};
-pub use resolution::MIN_DURATION_RATIO;
+pub use resolution::{MAX_DIODES, MAX_SWITCHES, MIN_DURATION_RATIO};
 pub use timing::{EdgeSense, TimingCheck, TimingRule};
 pub use value::{parse_si, ValueError, PREFIXES};
 pub use waveform::{LinearPiece, Point, Waveform};

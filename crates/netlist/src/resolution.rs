@@ -16,7 +16,47 @@ use crate::waveform::Waveform;
 /// be rounded away as the run goes on.
 pub const MIN_DURATION_RATIO: f64 = 1.0 / (1u64 << 40) as f64;
 
+/// The most switches a circuit may have: the solver keeps the on/off
+/// pattern of the switches in one 64-bit word.
+pub const MAX_SWITCHES: usize = 64;
+
+/// The most diodes (diode elements plus switches' body diodes) a circuit
+/// may have: the solver finds the conduction pattern of the diodes among
+/// 2^16 at most.
+pub const MAX_DIODES: usize = 16;
+
 impl Circuit {
+    /// Problems with the size of the circuit: more than [`MAX_SWITCHES`]
+    /// switches or more than [`MAX_DIODES`] diodes (body diodes included).
+    pub fn size_problems(&self) -> Vec<Problem> {
+        let switches = self
+            .elements
+            .iter()
+            .filter(|e| matches!(e, Element::Switch(_)))
+            .count();
+        let diodes = self
+            .elements
+            .iter()
+            .filter(|e| match e {
+                Element::Diode(_) => true,
+                Element::Switch(s) => s.body_diode.is_some(),
+                _ => false,
+            })
+            .count();
+        let mut out = vec![];
+        if switches > MAX_SWITCHES {
+            out.push(Problem::circuit(format!(
+                "{switches} switches: at most {MAX_SWITCHES} are supported"
+            )));
+        }
+        if diodes > MAX_DIODES {
+            out.push(Problem::circuit(format!(
+                "{diodes} diodes (body diodes of switches included): at most {MAX_DIODES} are supported"
+            )));
+        }
+        out
+    }
+
     /// Problems with periods and durations (gate periods, on and off
     /// times, dead times, repeating source periods, spacing of waveform
     /// points, sine periods) too short for `f64` time to resolve over a run
@@ -126,6 +166,23 @@ impl Circuit {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Issue 19: too many diodes is a rule of the file (exit 2 from
+    /// `check`), not a run that fails later with an empty pattern.
+    #[test]
+    fn issue_19_more_diodes_than_supported_is_a_validation_problem() {
+        let mut b = Circuit::builder()
+            .voltage_source("V1", "a", "gnd", 1.0)
+            .resistor("R1", "a", "b", 1.0);
+        for i in 0..20 {
+            b = b.diode(&format!("D{i}"), "b", "gnd");
+        }
+        let err = b.build().unwrap_err().to_string();
+        assert!(
+            err.contains("20 diodes") && err.contains("at most 16"),
+            "{err}"
+        );
+    }
 
     /// Issue 19: a repeating source with a period of 1e-300 s must be
     /// refused, naming the element and the field, not run to garbage.

@@ -68,6 +68,7 @@ pub fn problems(circuit: &Circuit) -> Vec<Problem> {
     c.topology();
     c.run_settings();
     c.compensators();
+    c.out.extend(circuit.size_problems());
     if let Some(run) = &circuit.run {
         // Other rules (positive, finite) speak for a bad stop time itself.
         c.out
