@@ -142,6 +142,11 @@ fn main() -> ExitCode {
     }
 }
 
+/// How many problems of an invalid circuit are printed before the rest are
+/// only counted: a broken generator can produce thousands, and the first
+/// ones usually explain the others.
+const PROBLEMS_SHOWN: usize = 100;
+
 /// The text printed on stderr for an error: one line, or for a circuit
 /// that breaks rules, a heading and then one line per problem.
 fn report(err: &anyhow::Error) -> String {
@@ -152,8 +157,14 @@ fn report(err: &anyhow::Error) -> String {
                 n => format!("{n} problems"),
             };
             let mut text = format!("error: {err}: invalid circuit, {count}:\n");
-            for p in problems {
+            for p in problems.iter().take(PROBLEMS_SHOWN) {
                 text.push_str(&format!("  {p}\n"));
+            }
+            if problems.len() > PROBLEMS_SHOWN {
+                text.push_str(&format!(
+                    "  … and {} more (fix these first)\n",
+                    problems.len() - PROBLEMS_SHOWN
+                ));
             }
             text
         }
@@ -180,6 +191,25 @@ mod tests {
             "error: bad.json: invalid circuit, 2 problems:\n\
              \x20 L1.inductance: must be positive, got -1e-5\n\
              \x20 R1.nodes[1]: node 'x' is dangling\n"
+        );
+    }
+
+    /// Issue 19: thousands of problems print the first 100 and a count.
+    #[test]
+    fn issue_19_a_long_list_of_problems_is_cut_with_a_count() {
+        let problems = (0..2000)
+            .map(|i| Problem::field(&format!("R{i}"), "resistance", "must be positive"))
+            .collect();
+        let err = Err::<(), _>(NetlistError::Invalid(problems))
+            .context("bad.json")
+            .unwrap_err();
+        let text = report(&err);
+        assert_eq!(text.lines().count(), 1 + 100 + 1, "{text}");
+        assert!(text.contains("2000 problems"));
+        assert!(text.contains("R99.resistance") && !text.contains("R100.resistance"));
+        assert!(
+            text.ends_with("  … and 1900 more (fix these first)\n"),
+            "{text}"
         );
     }
 

@@ -37,9 +37,15 @@ pub struct Args {
     /// Folder the four files are written into; default `out/<file stem>`.
     #[arg(long, value_name = "FOLDER")]
     pub dir: Option<PathBuf>,
-    /// Points of the uniform grid in the CSV (event instants are always added).
-    #[arg(long, default_value_t = 2000, value_name = "POINTS")]
+    /// Points of the uniform grid in the CSV (event instants are always
+    /// added), from 2 to 100,000,000.
+    #[arg(long, default_value_t = 2000, value_name = "POINTS", value_parser = grid_points)]
     pub grid: usize,
+    /// Memory the recorded waveform and events may take, in bytes with SI
+    /// prefixes ("500M", "2G"); a run that would record more stops with a
+    /// diagnostic (exit 1). Default 2 GiB.
+    #[arg(long, value_name = "BYTES")]
+    pub memory_budget: Option<String>,
     /// When a switch or diode leaves inductor current with no path: stop
     /// (default) or go on with the flux-conserving jump; default: the
     /// file's `run.on_interruption`.
@@ -86,7 +92,15 @@ pub struct Stopped(pub SolverError);
 
 impl std::fmt::Display for Stopped {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        write!(f, "the simulation stopped: {}", self.0)
+        write!(f, "the simulation stopped: {}", self.0)?;
+        if let SolverError::MemoryBudget { .. } = self.0 {
+            // What the user can change from the command line.
+            write!(
+                f,
+                " (raise it with --memory-budget, or record a shorter window with --from)"
+            )?;
+        }
+        Ok(())
     }
 }
 
@@ -122,6 +136,33 @@ pub(crate) fn write_failed(path: &Path) -> impl FnOnce(std::io::Error) -> anyhow
     }
 }
 
+/// The largest `--grid`: 10⁸ rows are a CSV of several gigabytes already.
+pub(crate) const MAX_GRID: usize = 100_000_000;
+
+/// Parses `--grid`: a whole number from 2 to [`MAX_GRID`].
+pub(crate) fn grid_points(text: &str) -> Result<usize, String> {
+    match text.parse::<usize>() {
+        Ok(n) if (2..=MAX_GRID).contains(&n) => Ok(n),
+        _ => Err(format!(
+            "expected a whole number of points from 2 to {MAX_GRID}, got {text:?}"
+        )),
+    }
+}
+
+/// Parses `--memory-budget`: bytes with SI prefixes ("500M", "2G"; a
+/// trailing "B" is allowed), at least 1 kB.
+pub(crate) fn memory_budget(text: &str) -> anyhow::Result<usize> {
+    let number = text.strip_suffix('B').unwrap_or(text);
+    let bytes = fluxstep_netlist::parse_si(number).with_context(|| "--memory-budget")?;
+    if !(1e3..=usize::MAX as f64).contains(&bytes) {
+        anyhow::bail!(
+            "--memory-budget must lie between 1k and {:e} bytes, got {text:?}",
+            usize::MAX as f64
+        );
+    }
+    Ok(bytes as usize)
+}
+
 fn si_arg(text: &str, what: &str) -> anyhow::Result<f64> {
     fluxstep_netlist::parse_si(text).with_context(|| format!("--{what}"))
 }
@@ -134,6 +175,7 @@ struct Plan {
     on_interruption: OnInterruption,
     on_shoot_through: OnShootThrough,
     period: Option<f64>,
+    memory_budget: usize,
 }
 
 fn plan(args: &Args, circuit: &Circuit) -> anyhow::Result<Plan> {
@@ -143,9 +185,25 @@ fn plan(args: &Args, circuit: &Circuit) -> anyhow::Result<Plan> {
         (None, Some(c)) => c.stop_time,
         (None, None) => anyhow::bail!("no stop time: give --stop or a run.stop_time in the file"),
     };
-    if stop.is_nan() || stop <= 0.0 {
-        anyhow::bail!("--stop must be positive, got {stop} s");
+    if !(stop.is_finite() && stop > 0.0) {
+        anyhow::bail!("--stop must be positive and finite, got {stop:e} s");
     }
+    if args.stop.is_some() {
+        // The file's own stop time was checked with the file.
+        let problems = circuit.time_resolution_problems(stop);
+        if !problems.is_empty() {
+            return Err(anyhow::Error::new(fluxstep_netlist::NetlistError::Invalid(
+                problems,
+            )))
+            .context(format!("with --stop {stop:e} s"));
+        }
+    }
+    let memory_budget = args
+        .memory_budget
+        .as_deref()
+        .map(memory_budget)
+        .transpose()?
+        .unwrap_or(fluxstep_solver::DEFAULT_MEMORY_BUDGET);
     let outputs: Vec<String> = if args.outputs.is_empty() {
         cfg.map(|c| c.outputs.clone()).unwrap_or_default()
     } else {
@@ -183,6 +241,7 @@ fn plan(args: &Args, circuit: &Circuit) -> anyhow::Result<Plan> {
         on_interruption,
         on_shoot_through,
         period,
+        memory_budget,
     })
 }
 
@@ -201,6 +260,7 @@ fn simulate(
         },
         on_interruption: plan.on_interruption,
         on_shoot_through: plan.on_shoot_through,
+        memory_budget: plan.memory_budget,
         ..Options::default()
     };
     let mut sim = Simulator::new(circuit, opts).map_err(|e| anyhow::Error::new(Stopped(e)))?;
@@ -277,7 +337,7 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
             .unwrap_or_else(|| "run".into());
         PathBuf::from("out").join(stem)
     });
-    std::fs::create_dir_all(&dir).map_err(write_failed(&dir))?;
+    create_folder(&dir)?;
 
     let progress = std::io::stderr().is_terminal();
     let (mut result, mut stopped) = simulate(&circuit, &plan, plan.from, progress)?;
@@ -305,15 +365,15 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
         .collect();
 
     // Waveform CSV: event instants plus a uniform grid, written row by row.
-    let mut times = w.event_times(a, b);
-    let n = args.grid.max(2);
-    times.extend((0..n).map(|k| a + (b - a) * k as f64 / (n - 1) as f64));
-    times.sort_by(f64::total_cmp);
-    times.dedup();
     let csv_path = dir.join("waveform.csv");
-    write_csv(&csv_path, &plan.outputs, &times, |t, out| {
-        out.extend(ids.iter().map(|id| w.value(*id, t).ok()));
-    })?;
+    write_csv(
+        &csv_path,
+        &plan.outputs,
+        csv_times(w, a, b, args.grid),
+        |t, out| {
+            out.extend(ids.iter().map(|id| w.value(*id, t).ok()));
+        },
+    )?;
     let events_path = dir.join("events.json");
     std::fs::write(&events_path, result.events.to_json()).map_err(write_failed(&events_path))?;
 
@@ -413,6 +473,7 @@ fn short(e: &SolverError) -> &'static str {
         SolverError::NoConsistentPattern { .. } => "no consistent diode pattern",
         SolverError::Chatter { .. } => "chatter",
         SolverError::EventLimit { .. } => "event limit",
+        SolverError::MemoryBudget { .. } => "memory budget",
         SolverError::NonFinite { .. } => "value not finite",
         SolverError::TransitionIncomplete { .. } => "switching transition incomplete",
         _ => "diagnostic",
@@ -425,7 +486,7 @@ fn short(e: &SolverError) -> &'static str {
 pub(crate) fn write_csv(
     path: &Path,
     outputs: &[String],
-    times: &[f64],
+    times: impl IntoIterator<Item = f64>,
     mut row: impl FnMut(f64, &mut Vec<Option<f64>>),
 ) -> anyhow::Result<()> {
     let file = std::fs::File::create(path).map_err(write_failed(path))?;
@@ -444,7 +505,7 @@ pub(crate) fn write_csv(
     csv.write_record(None::<&[u8]>).map_err(io)?;
     let mut values = Vec::with_capacity(outputs.len());
     let mut cell = String::new();
-    for &t in times {
+    for t in times {
         values.clear();
         row(t, &mut values);
         cell.clear();
@@ -467,6 +528,55 @@ pub(crate) fn write_csv(
     })?;
     inner.flush().map_err(write_failed(path))?;
     Ok(())
+}
+
+/// The rows of a waveform CSV over [a, b]: every event instant (segment
+/// start) inside and `n` equally spaced points, in increasing order without
+/// repeats. Both are already in order, so they are merged as they are
+/// written: nothing the size of the record or the grid is held in memory.
+pub(crate) fn csv_times(
+    w: &fluxstep_solver::Waveform,
+    a: f64,
+    b: f64,
+    n: usize,
+) -> impl Iterator<Item = f64> + '_ {
+    let n = n.max(2);
+    let mut events = w
+        .segments()
+        .iter()
+        .map(|s| s.t0)
+        .filter(move |&t| t >= a && t <= b)
+        .peekable();
+    let mut grid = (0..n)
+        .map(move |k| a + (b - a) * k as f64 / (n - 1) as f64)
+        .peekable();
+    let mut last = None;
+    std::iter::from_fn(move || loop {
+        let t = match (events.peek(), grid.peek()) {
+            (Some(&e), Some(&g)) if e <= g => events.next(),
+            (_, Some(_)) => grid.next(),
+            (Some(_), None) => events.next(),
+            (None, None) => return None,
+        }?;
+        if last != Some(t) {
+            last = Some(t);
+            return Some(t);
+        }
+    })
+}
+
+/// Creates the output folder, with a clear message where the path is a
+/// file or a device (`--dir /dev/null`) rather than a folder.
+pub(crate) fn create_folder(dir: &Path) -> anyhow::Result<()> {
+    if dir.exists() && !dir.is_dir() {
+        return Err(anyhow::Error::new(WriteFailed {
+            path: dir.to_path_buf(),
+            source: std::io::Error::other(
+                "exists and is not a folder (the outputs are written as files into a folder)",
+            ),
+        }));
+    }
+    std::fs::create_dir_all(dir).map_err(write_failed(dir))
 }
 
 /// The summary printed on stdout: what was simulated, then one row per

@@ -42,7 +42,7 @@ pub struct Args {
     #[arg(long, default_value_t = 1)]
     pub period_multiple: u64,
     /// Points of the uniform grid in the CSV (event instants are always added).
-    #[arg(long, default_value_t = 1000)]
+    #[arg(long, default_value_t = 1000, value_parser = crate::run::grid_points)]
     pub grid: usize,
 }
 
@@ -127,16 +127,12 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
         .dir
         .clone()
         .unwrap_or_else(|| PathBuf::from("out").join(format!("{stem}-steady")));
-    std::fs::create_dir_all(&dir).with_context(|| format!("cannot create {}", dir.display()))?;
+    crate::run::create_folder(&dir)?;
 
     // One period in the CSV: event instants plus a uniform grid.
     let (a, b) = (ss.start_time, ss.end_time());
-    let mut times = w.event_times(a, b);
-    let n = args.grid.max(2);
-    times.extend((0..n).map(|k| a + (b - a) * k as f64 / (n - 1) as f64));
-    times.sort_by(f64::total_cmp);
-    times.dedup();
-    write_csv(&dir.join("waveform.csv"), &outputs, &times, |t, row| {
+    let times = crate::run::csv_times(w, a, b, args.grid);
+    write_csv(&dir.join("waveform.csv"), &outputs, times, |t, row| {
         row.extend(ids.iter().map(|id| w.value(*id, t).ok()));
     })?;
     let write = |name: &str, text: String| {

@@ -359,3 +359,84 @@ fn issue_13_every_output_key_is_documented() {
     }
     assert!(seen.iter().any(|k| k == "stopped") && seen.iter().any(|k| k == "energy"));
 }
+
+/// Issue 19 (bounded memory, clear refusals). Root causes: `--grid` was
+/// used unchecked as a vector's size (a capacity-overflow panic); the CSV's
+/// rows were collected in memory before writing; recording had no memory
+/// bound; an existing file given as the output folder gave "File exists".
+mod issue_19 {
+    use super::*;
+
+    fn temp(name: &str) -> PathBuf {
+        std::env::temp_dir().join(format!("fluxstep-i19-{name}-{}", std::process::id()))
+    }
+
+    #[test]
+    fn issue_19_a_huge_grid_is_refused_not_a_panic() {
+        let dir = temp("grid");
+        let o = fluxstep(&[
+            "run",
+            "examples/circuits/buck.json",
+            "--dir",
+            dir.to_str().unwrap(),
+            "--grid",
+            "18446744073709551615",
+        ]);
+        let err = String::from_utf8_lossy(&o.stderr);
+        assert_eq!(o.status.code(), Some(2), "{err}");
+        assert!(err.contains("--grid") && err.contains("from 2 to"), "{err}");
+        assert!(!err.contains("panicked"), "{err}");
+    }
+
+    #[test]
+    fn issue_19_a_record_past_the_memory_budget_stops_naming_it() {
+        let dir = temp("budget");
+        let o = fluxstep(&[
+            "run",
+            "examples/circuits/buck.json",
+            "--dir",
+            dir.to_str().unwrap(),
+            "--from",
+            "0",
+            "--memory-budget",
+            "100k",
+        ]);
+        let err = String::from_utf8_lossy(&o.stderr);
+        assert_eq!(o.status.code(), Some(1), "{err}");
+        assert!(err.contains("memory budget of 100000 bytes"), "{err}");
+        assert!(err.contains("--memory-budget"), "{err}");
+        // What was recorded up to there is written.
+        assert!(dir.join("waveform.csv").exists());
+        let o = fluxstep(&[
+            "run",
+            "examples/circuits/buck.json",
+            "--memory-budget",
+            "lots",
+        ]);
+        assert_eq!(o.status.code(), Some(2));
+    }
+
+    #[test]
+    fn issue_19_a_stop_time_the_periods_cannot_be_resolved_in_is_refused() {
+        let o = fluxstep(&["run", "examples/circuits/buck.json", "--stop", "1e300"]);
+        let err = String::from_utf8_lossy(&o.stderr);
+        assert_eq!(o.status.code(), Some(2), "{err}");
+        assert!(
+            err.contains("drive.frequency") && err.contains("too short"),
+            "{err}"
+        );
+        let o = fluxstep(&["run", "examples/circuits/buck.json", "--stop", "inf"]);
+        assert_eq!(o.status.code(), Some(2));
+    }
+
+    #[test]
+    fn issue_19_a_device_as_the_output_folder_is_named_clearly() {
+        let o = fluxstep(&["run", "examples/circuits/buck.json", "--dir", "/dev/null"]);
+        let err = String::from_utf8_lossy(&o.stderr);
+        assert_eq!(o.status.code(), Some(3), "{err}");
+        assert!(
+            err.contains("/dev/null") && err.contains("not a folder"),
+            "{err}"
+        );
+    }
+}

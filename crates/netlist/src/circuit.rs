@@ -230,6 +230,11 @@ impl Circuit {
     ///
     /// [`NetlistError::Json`] naming the path of the malformed field.
     pub fn from_json_unchecked(text: &str) -> Result<Circuit, NetlistError> {
+        // A byte-order mark (some editors write one) is not part of the JSON.
+        let text = text.strip_prefix('\u{feff}').unwrap_or(text);
+        if let Ok(value) = serde_json::from_str::<serde_json::Value>(text) {
+            positional_arrays(&value)?;
+        }
         let de = &mut serde_json::Deserializer::from_str(text);
         serde_path_to_error::deserialize(de).map_err(|e| {
             let path = e.path().to_string();
@@ -298,10 +303,12 @@ impl Circuit {
     /// Every node name, ground first (as `gnd`), then in order of first use.
     pub fn nodes(&self) -> Vec<String> {
         let mut out = vec![GROUND.to_string()];
+        // A set beside the list keeps this linear in the terminals.
+        let mut seen: std::collections::HashSet<&str> = [GROUND].into_iter().collect();
         for e in &self.elements {
             for (_, n) in e.terminals() {
                 let n = if is_ground(n) { GROUND } else { n };
-                if !out.iter().any(|x| x == n) {
+                if seen.insert(n) {
                     out.push(n.to_string());
                 }
             }
@@ -866,4 +873,69 @@ impl std::fmt::Display for OutputName {
             OutputName::Signal(e) => write!(f, "{e}.output"),
         }
     }
+}
+
+/// Refuses arrays where the format has objects. serde reads a struct or a
+/// tagged enum from a sequence of its fields in order, so without this
+/// check `["inductor", "L1", ["sw", "out"], "22u"]` would pass for an
+/// inductor: a format nobody documented, which breaks silently when a
+/// field is added. Apart from the matrix `a` of a state-space law, no field
+/// of the format holds an array of arrays, so an array inside an array is
+/// such a positional object; the top level and `run` must be objects.
+fn positional_arrays(value: &serde_json::Value) -> Result<(), NetlistError> {
+    use serde_json::Value;
+    fn walk(v: &Value, path: &mut String) -> Result<(), NetlistError> {
+        match v {
+            Value::Array(items) => {
+                for (i, item) in items.iter().enumerate() {
+                    let len = path.len();
+                    path.push_str(&format!("[{i}]"));
+                    // A state-space law's `a` is the one matrix of the
+                    // format: its rows are arrays of numbers.
+                    let matrix = path[..len].ends_with(".a");
+                    if item.is_array() && !matrix {
+                        let what = match path.split('.').next_back() {
+                            Some(p) if p.starts_with("points") || p.starts_with("transitions") => {
+                                "expected an object with named fields (`time`, …), not an array"
+                            }
+                            _ => "expected an object with `kind` and named fields, not an array",
+                        };
+                        return Err(NetlistError::Json {
+                            path: path.clone(),
+                            message: what.into(),
+                        });
+                    }
+                    walk(item, path)?;
+                    path.truncate(len);
+                }
+                Ok(())
+            }
+            Value::Object(map) => {
+                for (k, item) in map {
+                    let len = path.len();
+                    if !path.is_empty() {
+                        path.push('.');
+                    }
+                    path.push_str(k);
+                    if k == "run" && item.is_array() && len == 0 {
+                        return Err(NetlistError::Json {
+                            path: path.clone(),
+                            message: "expected an object with named fields (`stop_time`, …), not an array".into(),
+                        });
+                    }
+                    walk(item, path)?;
+                    path.truncate(len);
+                }
+                Ok(())
+            }
+            _ => Ok(()),
+        }
+    }
+    if value.is_array() {
+        return Err(NetlistError::Json {
+            path: "the top level".into(),
+            message: "expected an object with `elements` (a circuit), not an array".into(),
+        });
+    }
+    walk(value, &mut String::new())
 }

@@ -56,6 +56,7 @@ pub fn problems(circuit: &Circuit) -> Vec<Problem> {
             .map(|(i, e)| label(e.name(), "elements", i))
             .collect(),
         out: Vec::new(),
+        nodes: std::cell::OnceCell::new(),
     };
     c.element_names();
     c.node_names();
@@ -67,6 +68,12 @@ pub fn problems(circuit: &Circuit) -> Vec<Problem> {
     c.topology();
     c.run_settings();
     c.compensators();
+    c.out.extend(circuit.size_problems());
+    if let Some(run) = &circuit.run {
+        // Other rules (positive, finite) speak for a bad stop time itself.
+        c.out
+            .extend(circuit.time_resolution_problems(run.stop_time));
+    }
     c.out
 }
 
@@ -115,12 +122,21 @@ fn canonical(node: &str) -> &str {
     }
 }
 
+/// How many names a problem lists before it only counts the rest: a
+/// message naming all of 2,000 signals helps nobody.
+const NAMES_SHOWN: usize = 12;
+
 fn quoted(names: &[&str]) -> String {
-    names
+    let mut text = names
         .iter()
+        .take(NAMES_SHOWN)
         .map(|n| format!("'{n}'"))
         .collect::<Vec<_>>()
-        .join(", ")
+        .join(", ");
+    if names.len() > NAMES_SHOWN {
+        text.push_str(&format!(" and {} more", names.len() - NAMES_SHOWN));
+    }
+    text
 }
 
 /// Whether a symmetric matrix is positive definite, by Cholesky
@@ -256,6 +272,10 @@ struct Checker<'a> {
     circuit: &'a Circuit,
     labels: Vec<String>,
     out: Vec<Problem>,
+    /// The circuit's node names, built on first use: looking an output up
+    /// in [`Circuit::nodes`] each time made checking thousands of outputs
+    /// on thousands of nodes take seconds.
+    nodes: std::cell::OnceCell<std::collections::HashSet<String>>,
 }
 
 impl Checker<'_> {
@@ -993,8 +1013,11 @@ impl Checker<'_> {
     fn output_problem(&self, text: &str) -> Option<String> {
         match OutputName::parse(text) {
             Err(p) => Some(p.message),
-            Ok(OutputName::Node(n)) => (!self.circuit.nodes().contains(&n))
-                .then(|| format!("output {text:?} names no node of the circuit")),
+            Ok(OutputName::Node(n)) => (!self
+                .nodes
+                .get_or_init(|| self.circuit.nodes().into_iter().collect())
+                .contains(&n))
+            .then(|| format!("output {text:?} names no node of the circuit")),
             Ok(OutputName::Current(e)) | Ok(OutputName::Voltage(e)) => self
                 .output_target(&e)
                 .err()

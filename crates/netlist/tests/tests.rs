@@ -7,6 +7,8 @@
 mod common;
 /// Every examples/circuits/*.json reads, validates and round-trips.
 mod examples;
+/// Issue 19: hostile input — positional arrays, a byte-order mark.
+mod issue_19;
 /// SI-prefix strings through JSON: good ones give the literal's bits, bad
 /// ones fail naming their path (`elements[2].inductance`).
 mod json_values;

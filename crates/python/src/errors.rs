@@ -90,6 +90,7 @@ fn solver_kind(e: &SolverError) -> &'static str {
         SolverError::TransitionIncomplete { .. } => "transition_incomplete",
         SolverError::Chatter { .. } => "chatter",
         SolverError::EventLimit { .. } => "event_limit",
+        SolverError::MemoryBudget { .. } => "memory_budget",
         SolverError::NonFinite { .. } => "non_finite",
         SolverError::Control { .. } => "control",
         SolverError::InvalidState { .. } => "invalid_state",

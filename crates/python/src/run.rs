@@ -200,6 +200,7 @@ fn plan(
         max_events: max_events.unwrap_or(d.max_events),
         chatter_events: chatter_events.unwrap_or(d.chatter_events),
         chatter_window: chatter_window.unwrap_or(d.chatter_window),
+        memory_budget: d.memory_budget,
     };
     let outputs = outputs
         .or_else(|| cfg.map(|c| c.outputs.clone()).filter(|o| !o.is_empty()))

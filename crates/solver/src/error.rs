@@ -135,6 +135,17 @@ pub enum SolverError {
         /// The limit.
         limit: usize,
     },
+    /// The recorded waveform and event log would grow past the memory
+    /// budget ([`crate::Options::memory_budget`]).
+    #[error(
+        "t = {time:e} s: the recorded waveform and events reached the memory budget of {budget} bytes"
+    )]
+    MemoryBudget {
+        /// Time (s).
+        time: f64,
+        /// The budget (bytes).
+        budget: usize,
+    },
     /// A value became NaN or infinite.
     #[error("t = {time:e} s: {what} is not finite")]
     NonFinite {
@@ -186,6 +197,7 @@ impl SolverError {
             | SolverError::TransitionIncomplete { time, .. }
             | SolverError::Chatter { time, .. }
             | SolverError::EventLimit { time, .. }
+            | SolverError::MemoryBudget { time, .. }
             | SolverError::NonFinite { time, .. }
             | SolverError::Control { time, .. }
             | SolverError::Undetermined { time, .. } => Some(*time),

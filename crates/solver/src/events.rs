@@ -193,6 +193,14 @@ impl EventLog {
         &self.state_names
     }
 
+    /// Bytes the recorded events occupy (records, state snapshots and jump
+    /// energies: what [`crate::Options::memory_budget`] counts for the log).
+    pub fn memory_bytes(&self) -> usize {
+        self.records.len() * std::mem::size_of::<Compact>()
+            + self.states.len() * std::mem::size_of::<f64>()
+            + self.energies.len() * std::mem::size_of::<(u32, JumpInfo)>()
+    }
+
     /// Number of events.
     pub fn len(&self) -> usize {
         self.records.len()

@@ -61,7 +61,18 @@ pub struct Options {
     /// Default 1e-12 s. Window for `chatter_events`; lower it for circuits
     /// that switch faster than a few nanoseconds.
     pub chatter_window: f64,
+    /// Default [`DEFAULT_MEMORY_BUDGET`] (2 GiB). Bytes the recorded
+    /// waveform and event log may occupy together; a run whose record
+    /// would grow past it stops with [`crate::SolverError::MemoryBudget`]
+    /// (what was recorded up to there is kept). Raise it for long records
+    /// on a machine with the memory, or record a window instead of
+    /// everything ([`Record::Window`]).
+    pub memory_budget: usize,
 }
+
+/// The default of [`Options::memory_budget`]: 2 GiB, which a laptop can
+/// hold beside the rest of the process.
+pub const DEFAULT_MEMORY_BUDGET: usize = 2 << 30;
 
 impl Default for Options {
     fn default() -> Self {
@@ -72,6 +83,7 @@ impl Default for Options {
             max_events: 1_000_000_000,
             chatter_events: 200,
             chatter_window: 1e-12,
+            memory_budget: DEFAULT_MEMORY_BUDGET,
         }
     }
 }

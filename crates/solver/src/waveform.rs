@@ -505,6 +505,13 @@ impl Waveform {
         Some(self.state_in(i, t).iter().take(self.n_x).copied().collect())
     }
 
+    /// Bytes the recorded segments and their start states occupy (what
+    /// [`crate::Options::memory_budget`] counts for the waveform).
+    pub fn memory_bytes(&self) -> usize {
+        self.segments.len() * std::mem::size_of::<Segment>()
+            + self.states.len() * std::mem::size_of::<f64>()
+    }
+
     /// Event instants (segment boundaries) inside [t0, t1].
     pub fn event_times(&self, t0: f64, t1: f64) -> Vec<f64> {
         let mut v: Vec<f64> = self

@@ -678,6 +678,7 @@ impl Simulator {
             self.tkey = key_next;
             std::mem::swap(&mut self.z, &mut self.z_next);
             self.check_finite()?;
+            self.check_budget(t_next)?;
             if t_next < t_end || self.has_scheduled_at(t_next) {
                 self.apply_scheduled(t_next)?;
             }

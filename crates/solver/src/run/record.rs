@@ -150,6 +150,7 @@ impl Simulator {
         if self.n_events > self.opts.max_events {
             return Err(self.event_limit_error(time));
         }
+        self.check_budget(time)?;
         // The last `chatter_events + 1` events in a ring: more than
         // `chatter_events` fall within the window exactly when the oldest
         // of them does (times never decrease).
@@ -208,6 +209,7 @@ impl Simulator {
         if k == 0 {
             return Ok(());
         }
+        self.check_budget(time)?;
         let cap = self.opts.chatter_events + 1;
         let len = self.recent.len();
         // The chatter check of the last event decides for both (times never
@@ -298,6 +300,29 @@ impl Simulator {
             }
         }
         Ok(())
+    }
+
+    /// Stops the run with [`SolverError::MemoryBudget`] once the recorded
+    /// waveform and event log occupy more than
+    /// [`crate::Options::memory_budget`]. Called at every event and every
+    /// scheduled instant, so the record overshoots the budget by at most
+    /// one segment and one instant's events.
+    #[inline]
+    pub(super) fn check_budget(&self, time: f64) -> Result<(), SolverError> {
+        if self.wave.memory_bytes() + self.log.memory_bytes() > self.opts.memory_budget {
+            return Err(self.budget_error(time));
+        }
+        Ok(())
+    }
+
+    /// The diagnostic of a record past the memory budget.
+    #[cold]
+    #[inline(never)]
+    fn budget_error(&self, time: f64) -> SolverError {
+        SolverError::MemoryBudget {
+            time,
+            budget: self.opts.memory_budget,
+        }
     }
 
     /// The diagnostic of too many events within the chatter window (kept
