@@ -53,6 +53,7 @@ mod circuit;
 mod element;
 mod error;
 mod gate;
+mod limits;
 mod timing;
 mod validate;
 mod value;
@@ -64,6 +65,7 @@ pub use circuit::{
 };
 pub use element::*;
 pub use error::{NetlistError, Problem};
+pub use limits::{DesignLimits, PartLimit};
 pub use gate::{ComparatorSpec, Comparison, Edge, Gate, SignalShape, Transition};
 pub use timing::{EdgeSense, TimingCheck, TimingRule};
 pub use value::{parse_si, ValueError, PREFIXES};

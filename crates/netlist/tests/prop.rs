@@ -317,6 +317,7 @@ fn run() -> impl Strategy<Value = RunSettings> {
                     on_interruption,
                     on_shoot_through,
                     timing,
+                    limits: None,
                 }
             },
         )
