@@ -23,6 +23,7 @@ use fluxstep_netlist::NetlistError;
 mod check;
 mod compare;
 mod input;
+mod report;
 mod response;
 mod run;
 mod steady;
@@ -97,6 +98,12 @@ enum Command {
     /// difference beyond the tolerance).
     #[command(after_help = EXIT_CODES)]
     Compare(compare::Args),
+    /// Write the design-review report: one self-contained report.html
+    /// (circuit, operating point, waveforms, stress, losses, loops, events,
+    /// design limits) and the summary.json of its numbers (exit 1 when a
+    /// design limit of the file fails).
+    #[command(after_help = EXIT_CODES)]
+    Report(report::Args),
 }
 
 fn main() -> ExitCode {
@@ -109,12 +116,14 @@ fn main() -> ExitCode {
         Command::Sweep(args) => sweep::run(args),
         Command::Merge(args) => sweep::merge(args),
         Command::Compare(args) => compare::run(args),
+        Command::Report(args) => report::run(args),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,
         Err(err)
             if err.downcast_ref::<run::Stopped>().is_some()
-                || err.downcast_ref::<steady::NotFound>().is_some() =>
+                || err.downcast_ref::<steady::NotFound>().is_some()
+                || err.downcast_ref::<report::LimitsFailed>().is_some() =>
         {
             eprintln!("error: {err}");
             ExitCode::from(EXIT_STOPPED)
