@@ -53,8 +53,8 @@ impl std::error::Error for LimitsFailed {}
 /// [`LimitsFailed`] (exit 1) once both files are written.
 pub fn run(args: &Args) -> anyhow::Result<()> {
     let circuit = crate::input::read_circuit(&args.file)?;
-    let bytes =
-        std::fs::read(&args.file).with_context(|| format!("cannot read {}", args.file.display()))?;
+    let bytes = std::fs::read(&args.file)
+        .with_context(|| format!("cannot read {}", args.file.display()))?;
     let stem = args
         .file
         .file_stem()

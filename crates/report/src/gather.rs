@@ -73,11 +73,20 @@ impl Facts {
 /// The report's outputs: the file's `run.outputs`, else the first
 /// inductor current, `sw` and `out` where they exist.
 fn outputs(c: &Circuit) -> Vec<String> {
-    if let Some(o) = c.run.as_ref().map(|r| r.outputs.clone()).filter(|o| !o.is_empty()) {
+    if let Some(o) = c
+        .run
+        .as_ref()
+        .map(|r| r.outputs.clone())
+        .filter(|o| !o.is_empty())
+    {
         return o;
     }
     let mut v = vec![];
-    if let Some(l) = c.elements.iter().find(|e| matches!(e, Element::Inductor(_))) {
+    if let Some(l) = c
+        .elements
+        .iter()
+        .find(|e| matches!(e, Element::Inductor(_)))
+    {
         v.push(format!("{}.current", l.name()));
     }
     for n in ["sw", "out"] {
@@ -89,7 +98,8 @@ fn outputs(c: &Circuit) -> Vec<String> {
 }
 
 /// The loads for the efficiency: resistors from the ripple output node
-/// (`out` unless the limits name another) to ground.
+/// (`out` unless the limits name another) to ground, and those reached
+/// from it through one switch (a switched load step).
 pub(crate) fn loads(c: &Circuit) -> Vec<String> {
     let node = c
         .run
@@ -97,12 +107,23 @@ pub(crate) fn loads(c: &Circuit) -> Vec<String> {
         .and_then(|r| r.limits.as_ref())
         .map(|l| l.ripple_output().to_string())
         .unwrap_or_else(|| "out".into());
+    let mut load_nodes = vec![node.clone()];
+    for e in &c.elements {
+        if let Element::Switch(s) = e {
+            if s.nodes[0] == node && !is_ground(&s.nodes[1]) {
+                load_nodes.push(s.nodes[1].clone());
+            } else if s.nodes[1] == node && !is_ground(&s.nodes[0]) {
+                load_nodes.push(s.nodes[0].clone());
+            }
+        }
+    }
+    let on_load = |n: &str| load_nodes.iter().any(|x| x == n);
     c.elements
         .iter()
         .filter_map(|e| match e {
             Element::Resistor(r)
-                if (r.nodes[0] == node && is_ground(&r.nodes[1]))
-                    || (r.nodes[1] == node && is_ground(&r.nodes[0])) =>
+                if (on_load(&r.nodes[0]) && is_ground(&r.nodes[1]))
+                    || (on_load(&r.nodes[1]) && is_ground(&r.nodes[0])) =>
             {
                 Some(r.name.clone())
             }
@@ -152,9 +173,7 @@ fn transient(c: &Circuit, period: Option<f64>) -> Result<(RunResult, Option<Solv
             _ => fluxstep_solver::OnInterruption::Stop,
         },
         on_shoot_through: match run.on_shoot_through {
-            fluxstep_netlist::ShootThroughPolicy::Record => {
-                fluxstep_solver::OnShootThrough::Record
-            }
+            fluxstep_netlist::ShootThroughPolicy::Record => fluxstep_solver::OnShootThrough::Record,
             _ => fluxstep_solver::OnShootThrough::Stop,
         },
         ..Options::default()
@@ -174,17 +193,20 @@ pub(crate) fn gather(c: &Circuit, opts: &ReportOptions) -> Result<Facts, ReportE
         Ok(ss) => Basis::Steady(Box::new(ss)),
         Err(e) => {
             let why = e.to_string();
-            let (run, stopped) = transient(c, period)
-                .map_err(|t| ReportError::Nothing(format!("no periodic steady state ({why}); {t}")))?;
+            let (run, stopped) = transient(c, period).map_err(|t| {
+                ReportError::Nothing(format!("no periodic steady state ({why}); {t}"))
+            })?;
             Basis::Transient { run, why, stopped }
         }
     };
     let (window, events) = match &basis {
         Basis::Steady(ss) => ((ss.start_time, ss.end_time()), &ss.run.events),
         Basis::Transient { run, why, .. } => (
-            run.waveform
-                .span()
-                .ok_or_else(|| ReportError::Nothing(format!("no periodic steady state ({why}) and the transient recorded nothing")))?,
+            run.waveform.span().ok_or_else(|| {
+                ReportError::Nothing(format!(
+                    "no periodic steady state ({why}) and the transient recorded nothing"
+                ))
+            })?,
             &run.events,
         ),
     };
@@ -221,7 +243,11 @@ pub(crate) fn gather(c: &Circuit, opts: &ReportOptions) -> Result<Facts, ReportE
                 ));
                 if s.body_diode.is_some() {
                     let d = format!("{}.body_diode", s.name);
-                    stress.push((d.clone(), m(&format!("{d}.current")), m(&format!("{d}.voltage"))));
+                    stress.push((
+                        d.clone(),
+                        m(&format!("{d}.current")),
+                        m(&format!("{d}.voltage")),
+                    ));
                 }
                 if s.thermal.is_some() {
                     junction_parts.push(s.name.clone());
@@ -263,8 +289,17 @@ pub(crate) fn gather(c: &Circuit, opts: &ReportOptions) -> Result<Facts, ReportE
     }
     let loads = loads(c);
     let loss_data = has_loss_data(c, &loads);
-    let losses = breakdown(c, w, events, a, b, &LossOptions { loads: loads.clone() })
-        .map_err(|e| e.to_string());
+    let losses = breakdown(
+        c,
+        w,
+        events,
+        a,
+        b,
+        &LossOptions {
+            loads: loads.clone(),
+        },
+    )
+    .map_err(|e| e.to_string());
     let start = match &basis {
         Basis::Steady(_) => ThermalStart::Periodic,
         Basis::Transient { .. } => ThermalStart::Ambient,
@@ -277,7 +312,10 @@ pub(crate) fn gather(c: &Circuit, opts: &ReportOptions) -> Result<Facts, ReportE
     // gate whose sense is not a compensator's output.
     let mut points = vec![];
     for k in &c.compensators {
-        points.push((k.name.clone(), format!("the input of compensator {}", k.name)));
+        points.push((
+            k.name.clone(),
+            format!("the input of compensator {}", k.name),
+        ));
     }
     for g in &c.gates {
         if let Some(spec) = g.comparator() {
@@ -286,13 +324,20 @@ pub(crate) fn gather(c: &Circuit, opts: &ReportOptions) -> Result<Facts, ReportE
                 .iter()
                 .any(|k| spec.sense == format!("{}.output", k.name));
             if !by_compensator {
-                points.push((g.name().to_string(), format!("the sense input of gate {}", g.name())));
+                points.push((
+                    g.name().to_string(),
+                    format!("the sense input of gate {}", g.name()),
+                ));
             }
         }
     }
     let mut loops = vec![];
     if let (false, Some(p)) = (points.is_empty(), period) {
-        let n = if opts.loop_points == 0 { 80 } else { opts.loop_points };
+        let n = if opts.loop_points == 0 {
+            80
+        } else {
+            opts.loop_points
+        };
         let freqs = log_frequencies(10.0, 0.5 / p, n)?;
         for (name, at) in points {
             let gain = BreakPoint::named(c, &name)

@@ -60,6 +60,10 @@ use std::path::{Path, PathBuf};
 
 use fluxstep_netlist::Circuit;
 
+/// The page's sections in order, as (element id, heading): every report
+/// has each of them, saying plainly when its analysis does not apply.
+pub use page::SECTIONS;
+
 /// What a report needs besides the circuit.
 #[derive(Clone, Debug, Default)]
 pub struct ReportOptions {

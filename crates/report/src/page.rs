@@ -19,7 +19,7 @@ use crate::gather::{Basis, Facts};
 use crate::sheet::{esc, key, Sheet};
 use crate::{Report, ReportOptions};
 
-/// The sections, in page order: (id, heading). Tests check each is present.
+/// The sections, in page order: (element id, heading).
 pub const SECTIONS: [(&str, &str); 11] = [
     ("limits", "Design limits"),
     ("circuit", "The circuit"),
@@ -142,7 +142,13 @@ fn peak_abs(m: &Measurement) -> (f64, f64) {
 
 fn limits_checks(limits: &DesignLimits, f: &Facts, s: &mut Sheet) -> Vec<Check> {
     let mut out = vec![];
-    let check = |s: &mut Sheet, id: &str, figure: String, value: f64, unit: &str, limit: f64, pass: bool| {
+    let check = |s: &mut Sheet,
+                 id: &str,
+                 figure: String,
+                 value: f64,
+                 unit: &str,
+                 limit: f64,
+                 pass: bool| {
         let p = format!("/limits/{}", key(id));
         let value = s.si(&format!("{p}/value"), value, unit);
         let limit = s.si(&format!("{p}/limit"), limit, unit);
@@ -235,7 +241,11 @@ fn limits_checks(limits: &DesignLimits, f: &Facts, s: &mut Sheet) -> Vec<Check> 
             });
         }
         for l in &f.loops {
-            let pm = l.gain.as_ref().ok().and_then(|g| g.margins.phase_margin_deg);
+            let pm = l
+                .gain
+                .as_ref()
+                .ok()
+                .and_then(|g| g.margins.phase_margin_deg);
             match pm {
                 Some(pm) => {
                     let p = format!("/limits/{}", key(&format!("phase_margin.{}", l.name)));
@@ -455,7 +465,11 @@ pub(crate) fn render(
         b.push_str("<h3>Gates</h3><table class=\"parts\"><thead><tr><th>gate</th><th>kind</th><th>settings</th></tr></thead><tbody>");
         for g in &c.gates {
             let v = serde_json::to_value(g).unwrap_or_default();
-            let kind = v.get("kind").and_then(|k| k.as_str()).unwrap_or("").to_string();
+            let kind = v
+                .get("kind")
+                .and_then(|k| k.as_str())
+                .unwrap_or("")
+                .to_string();
             let _ = write!(
                 b,
                 "<tr><td>{}</td><td>{}</td><td>{}</td></tr>",
@@ -495,7 +509,10 @@ pub(crate) fn render(
     section(b, 2);
     match &f.basis {
         Basis::Steady(ss) => {
-            s.set("/operating_point/basis", Value::from("periodic steady state"));
+            s.set(
+                "/operating_point/basis",
+                Value::from("periodic steady state"),
+            );
             let _ = write!(
                 b,
                 "<p>Periodic steady state found by shooting: period {}, switching frequency {}, residual {} after {} Newton steps; the orbit is <strong>{}</strong>.</p>",
@@ -530,7 +547,11 @@ pub(crate) fn render(
                 s.si("/operating_point/window/1", e, "s"),
             );
             if let Some(x) = stopped {
-                let _ = write!(b, "<p class=\"warn\">The run stopped: {}</p>", esc(&x.to_string()));
+                let _ = write!(
+                    b,
+                    "<p class=\"warn\">The run stopped: {}</p>",
+                    esc(&x.to_string())
+                );
             }
         }
     }
@@ -560,7 +581,12 @@ pub(crate) fn render(
         let _ = write!(b, "<h3>Inductor currents {span_words}</h3>");
         b.push_str("<table><thead><tr><th>inductor</th><th class=\"n\">average</th><th class=\"n\">RMS</th><th class=\"n\">valley</th><th class=\"n\">peak</th><th class=\"n\">ripple</th><th>conduction</th></tr></thead><tbody>");
         let ms: Vec<Measurement> = f.inductors.iter().map(|(_, m)| m.clone()).collect();
-        for (name, m) in f.inductors.iter().map(|(n, _)| n).zip(without_rounding_noise(&ms)) {
+        for (name, m) in f
+            .inductors
+            .iter()
+            .map(|(n, _)| n)
+            .zip(without_rounding_noise(&ms))
+        {
             let p = format!("/operating_point/inductors/{}", key(name));
             // Continuous when the current keeps one sign through the period.
             let ccm = m.min > 0.0 || m.max < 0.0;
@@ -594,9 +620,9 @@ pub(crate) fn render(
     section(b, 3);
     let run = f.run();
     let stopped = match &f.basis {
-        Basis::Transient { stopped: Some(x), .. } => {
-            Some((x.time().unwrap_or(e), "stopped".to_string()))
-        }
+        Basis::Transient {
+            stopped: Some(x), ..
+        } => Some((x.time().unwrap_or(e), "stopped".to_string())),
         _ => None,
     };
     let fig = review_figure(
@@ -639,7 +665,10 @@ pub(crate) fn render(
     if f.stress.is_empty() {
         b.push_str("<p>The circuit has no switch or diode.</p>");
     } else {
-        let _ = write!(b, "<p>Largest magnitudes {span_words}, with the instant each is reached.</p>");
+        let _ = write!(
+            b,
+            "<p>Largest magnitudes {span_words}, with the instant each is reached.</p>"
+        );
         b.push_str("<table><thead><tr><th>part</th><th class=\"n\">peak current</th><th class=\"n\">at</th><th class=\"n\">peak voltage</th><th class=\"n\">at</th></tr></thead><tbody>");
         for (name, i, v) in &f.stress {
             let p = format!("/stress/{}", key(name));
@@ -669,7 +698,11 @@ pub(crate) fn render(
     section(b, 5);
     match (&f.losses, f.loss_data) {
         (Err(x), _) => {
-            let _ = write!(b, "<p class=\"warn\">The loss analysis could not run: {}</p>", esc(x));
+            let _ = write!(
+                b,
+                "<p class=\"warn\">The loss analysis could not run: {}</p>",
+                esc(x)
+            );
         }
         (Ok(_), false) => {
             b.push_str("<p>No loss data: every part of this circuit is ideal (no on-resistance, forward drop, ESR, winding resistance or non-load resistor), so it dissipates nothing and there is no efficiency to report. Add loss fields to the parts (docs/netlist.md) to see a breakdown.</p>");
@@ -710,11 +743,19 @@ pub(crate) fn render(
                     "<tr><td>{}</td><td>{}</td><td class=\"n\">{}</td></tr>",
                     esc(&p.name),
                     esc(&kind),
-                    s.si(&format!("/losses/parts/{}/{}", key(&p.name), key(&kind)), p.power, "W")
+                    s.si(
+                        &format!("/losses/parts/{}/{}", key(&p.name), key(&kind)),
+                        p.power,
+                        "W"
+                    )
                 );
             }
             b.push_str("</tbody></table>");
-            let _ = write!(b, "<figure>{}<figcaption>Average loss by part.</figcaption></figure>", loss_bars(&bars));
+            let _ = write!(
+                b,
+                "<figure>{}<figcaption>Average loss by part.</figcaption></figure>",
+                loss_bars(&bars)
+            );
         }
     }
     if f.junctions.is_empty() {
@@ -753,7 +794,11 @@ pub(crate) fn render(
         let _ = write!(b, "<h3>Loop broken at {}</h3>", esc(&l.at));
         match &l.gain {
             Err(x) => {
-                let _ = write!(b, "<p class=\"warn\">The loop gain could not be computed: {}</p>", esc(x));
+                let _ = write!(
+                    b,
+                    "<p class=\"warn\">The loop gain could not be computed: {}</p>",
+                    esc(x)
+                );
             }
             Ok(g) => {
                 let p = format!("/loops/{}", key(&l.name));
@@ -785,7 +830,12 @@ pub(crate) fn render(
                     phase_crossover: m.phase_crossover_hz.zip(m.gain_margin_db),
                     switching_frequency: Some(g.switching_frequency),
                 };
-                let fig = bode_figure(&format!("loop gain at {}", l.at), "loop gain T", &pts, &marks)?;
+                let fig = bode_figure(
+                    &format!("loop gain at {}", l.at),
+                    "loop gain T",
+                    &pts,
+                    &marks,
+                )?;
                 let _ = write!(
                     b,
                     "<figure>{}<figcaption>Loop gain from the linearised switched model (no averaging).</figcaption></figure>",
@@ -851,13 +901,21 @@ pub(crate) fn render(
     let events: Vec<_> = run
         .events
         .iter()
-        .filter(|x| x.time >= a && (x.time < e || matches!(f.basis, Basis::Transient { .. }) && x.time <= e))
+        .filter(|x| {
+            x.time >= a && (x.time < e || matches!(f.basis, Basis::Transient { .. }) && x.time <= e)
+        })
         .collect();
     let mut by_kind: BTreeMap<String, Vec<_>> = BTreeMap::new();
     for x in &events {
-        by_kind.entry(kind_words(x.kind).to_string()).or_default().push(*x);
+        by_kind
+            .entry(kind_words(x.kind).to_string())
+            .or_default()
+            .push(*x);
     }
-    let _ = write!(b, "<p>Events {span_words}, by kind, with the first three of each.</p>");
+    let _ = write!(
+        b,
+        "<p>Events {span_words}, by kind, with the first three of each.</p>"
+    );
     b.push_str("<table><thead><tr><th>kind</th><th class=\"n\">count</th><th>first events</th></tr></thead><tbody>");
     for (k, list) in &by_kind {
         let first = list
@@ -883,7 +941,10 @@ pub(crate) fn render(
     b.push_str("</tbody></table>");
     let mut diagnostics: Vec<(Option<f64>, String)> = vec![];
     for x in &events {
-        let energy = x.energy.map(|j| format_si_short(j, "J")).unwrap_or_default();
+        let energy = x
+            .energy
+            .map(|j| format_si_short(j, "J"))
+            .unwrap_or_default();
         match x.kind {
             EventKind::ChargeJump => diagnostics.push((Some(x.time), format!("A switch or diode closed a loop of capacitors and sources ({}): their voltages jumped to share charge, dissipating {energy} at that instant. A real circuit shows a current spike here, limited only by the loop's resistance.", x.element))),
             EventKind::FluxJump => diagnostics.push((Some(x.time), format!("Inductor current lost its path ({}); the run went on with the flux-conserving jump, dumping {energy}. On hardware this is the voltage spike that destroys a transistor: add a freewheeling path.", x.element))),
@@ -907,16 +968,24 @@ pub(crate) fn render(
             diagnostics.push((Some(j.time_of_max), w));
         }
     }
-    s.count("/events/diagnostics", diagnostics.len());
+    let count = s.count("/events/diagnostics", diagnostics.len());
     if diagnostics.is_empty() {
-        b.push_str("<p>No diagnostics: no jump, shoot-through, interrupted current or stop.</p>");
+        let _ = write!(
+            b,
+            "<p>{count} diagnostics: no jump, shoot-through, interrupted current or stop.</p>"
+        );
     } else {
-        b.push_str("<h3>Diagnostics</h3><table><thead><tr><th class=\"n\">instant</th><th>what happened</th></tr></thead><tbody>");
+        let _ = write!(
+            b,
+            "<h3>Diagnostics</h3><p>{count} in all, each with its instant.</p>"
+        );
+        b.push_str("<table><thead><tr><th class=\"n\">instant</th><th>what happened</th></tr></thead><tbody>");
         for (t, text) in &diagnostics {
             let _ = write!(
                 b,
                 "<tr><td class=\"n\">{}</td><td>{}</td></tr>",
-                t.map(|t| fluxstep_plot::format_si_digits(t, "s", 6)).unwrap_or_else(|| "—".into()),
+                t.map(|t| fluxstep_plot::format_si_digits(t, "s", 6))
+                    .unwrap_or_else(|| "—".into()),
                 esc(text)
             );
         }

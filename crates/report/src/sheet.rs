@@ -36,7 +36,9 @@ impl Sheet {
                 map.insert(k.clone(), value);
                 return;
             }
-            at = map.entry(k.clone()).or_insert_with(|| Value::Object(Map::new()));
+            at = map
+                .entry(k.clone())
+                .or_insert_with(|| Value::Object(Map::new()));
         }
     }
 
@@ -134,7 +136,10 @@ mod tests {
         assert!(html.contains("data-key=\"/a/L1.current/max\""), "{html}");
         assert!(html.contains("data-value=\"2.68\""), "{html}");
         assert!(html.contains("2.680 A"), "{html}");
-        assert_eq!(s.summary.pointer("/a/L1.current/max"), Some(&Value::from(2.68)));
+        assert_eq!(
+            s.summary.pointer("/a/L1.current/max"),
+            Some(&Value::from(2.68))
+        );
         let t = s.fixed("/t", -12.34, 1, "°C");
         assert!(t.contains("−12.3 °C"), "{t}");
         let n = s.si("/nan", f64::NAN, "V");
@@ -144,6 +149,9 @@ mod tests {
 
     #[test]
     fn text_is_escaped() {
-        assert_eq!(esc("<a href=\"x\">&'"), "&lt;a href=&quot;x&quot;&gt;&amp;&#39;");
+        assert_eq!(
+            esc("<a href=\"x\">&'"),
+            "&lt;a href=&quot;x&quot;&gt;&amp;&#39;"
+        );
     }
 }
