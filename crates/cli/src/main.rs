@@ -8,8 +8,8 @@
 //!
 //! Exit status ([`EXIT_CODES`], also in `--help` and the README): 0 on
 //! success; 1 when a simulation stopped on a diagnostic (the files are
-//! still written, up to the fault), a timing rule was violated or
-//! compared event logs differ; 2 when the input cannot be used (a
+//! still written, up to the fault), a timing rule was violated, a design
+//! limit failed in a report, or compared event logs differ; 2 when the input cannot be used (a
 //! usage error, an unreadable file, text that is not a circuit in JSON, or
 //! a circuit that breaks the rules — every problem is then listed on
 //! stderr, one per line); 3 when an output folder or file cannot be
@@ -46,7 +46,7 @@ const EXIT_WRITE: u8 = 3;
 const EXIT_CODES: &str = "Exit codes:
   0  success
   1  the simulation stopped on a diagnostic (files are still written, up to the fault),
-     a timing rule of the file was violated, or compared event logs differ
+     a timing rule or design limit of the file was violated, or compared event logs differ
   2  invalid input: usage, unreadable file, not a circuit, or a circuit that breaks rules
   3  an output folder or file cannot be created or written";
 

@@ -65,8 +65,8 @@ pub use circuit::{
 };
 pub use element::*;
 pub use error::{NetlistError, Problem};
-pub use limits::{DesignLimits, PartLimit};
 pub use gate::{ComparatorSpec, Comparison, Edge, Gate, SignalShape, Transition};
+pub use limits::{DesignLimits, PartLimit};
 pub use timing::{EdgeSense, TimingCheck, TimingRule};
 pub use value::{parse_si, ValueError, PREFIXES};
 pub use waveform::{LinearPiece, Point, Waveform};

@@ -118,7 +118,10 @@ impl DesignLimits {
                 format!("must be a positive voltage in volts, got {v}"),
             );
         }
-        if let Some(v) = self.derating.filter(|v| !(v.is_finite() && *v > 0.0 && *v <= 1.0)) {
+        if let Some(v) = self
+            .derating
+            .filter(|v| !(v.is_finite() && *v > 0.0 && *v <= 1.0))
+        {
             push(
                 "run.limits.derating".into(),
                 format!("must lie in (0, 1], got {v}"),
@@ -140,7 +143,11 @@ impl DesignLimits {
             );
         }
         for (list, name, wants) in [
-            (&self.saturation_current, "saturation_current", "an inductor"),
+            (
+                &self.saturation_current,
+                "saturation_current",
+                "an inductor",
+            ),
             (&self.voltage_rating, "voltage_rating", "a switch or diode"),
         ] {
             for (i, p) in list.iter().enumerate() {

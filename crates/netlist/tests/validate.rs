@@ -1681,8 +1681,14 @@ fn design_limits_name_parts_of_the_right_kind_and_positive_values() {
     };
     at("run.limits.output", "no node is named 'vout'");
     at("run.limits.max_output_ripple", "must be a positive voltage");
-    at("run.limits.saturation_current[0].element", "'S1' is not an inductor");
-    at("run.limits.saturation_current[1].element", "no element is named 'L9'");
+    at(
+        "run.limits.saturation_current[0].element",
+        "'S1' is not an inductor",
+    );
+    at(
+        "run.limits.saturation_current[1].element",
+        "no element is named 'L9'",
+    );
     at(
         "run.limits.voltage_rating[0].element",
         "'L1' is not a switch or diode",
