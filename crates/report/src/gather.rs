@@ -21,7 +21,7 @@ pub(crate) enum Basis {
     /// A transient window: why there is no steady state, and the
     /// diagnostic that stopped the run, if one did.
     Transient {
-        run: RunResult,
+        run: Box<RunResult>,
         why: String,
         stopped: Option<SolverError>,
     },
@@ -196,7 +196,11 @@ pub(crate) fn gather(c: &Circuit, opts: &ReportOptions) -> Result<Facts, ReportE
             let (run, stopped) = transient(c, period).map_err(|t| {
                 ReportError::Nothing(format!("no periodic steady state ({why}); {t}"))
             })?;
-            Basis::Transient { run, why, stopped }
+            Basis::Transient {
+                run: Box::new(run),
+                why,
+                stopped,
+            }
         }
     };
     let (window, events) = match &basis {

@@ -211,3 +211,25 @@ fn a_closed_loop_shows_its_margins_and_bode_plot() {
     assert!(pm > 0.0 && pm < 90.0, "{pm}");
     assert!(r.html.contains("Loop broken at the input of compensator K"));
 }
+
+#[test]
+fn every_example_circuit_gives_a_consistent_report() {
+    let dir = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("../../examples/circuits");
+    let mut names: Vec<String> = std::fs::read_dir(&dir)
+        .unwrap()
+        .filter_map(|e| e.ok()?.file_name().into_string().ok())
+        .filter(|n| n.ends_with(".json"))
+        .collect();
+    names.sort();
+    assert!(names.len() >= 10);
+    for name in &names {
+        let (r, _) = example_report(name);
+        check_numbers(&marked(&r.html), &r.summary);
+        for (id, _) in SECTIONS {
+            assert!(
+                r.html.contains(&format!("<section id=\"{id}\">")),
+                "{name}: {id}"
+            );
+        }
+    }
+}
