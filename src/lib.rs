@@ -5,7 +5,8 @@
 //! piecewise-linear transient: modes, matrix exponentials, located events)
 //! → [`analysis`] (periodic steady state and its stability, small-signal
 //! response, sweeps over operating points and tolerances) → [`plot`]
-//! (SVG design-review figures). The `fluxstep` binary
+//! (SVG design-review figures) → [`report`] (the design-review page: one
+//! self-contained HTML file, `report::write`). The `fluxstep` binary
 //! (fluxstep-cli) wires the same crates to JSON files.
 //!
 //! Simulation results do not replace measurement on real hardware, local
@@ -38,6 +39,7 @@
 pub use fluxstep_analysis as analysis;
 pub use fluxstep_netlist as netlist;
 pub use fluxstep_plot as plot;
+pub use fluxstep_report as report;
 pub use fluxstep_solver as solver;
 
 /// The README's Rust examples, compiled and run as doctests.

@@ -8,8 +8,8 @@
 //!
 //! Exit status ([`EXIT_CODES`], also in `--help` and the README): 0 on
 //! success; 1 when a simulation stopped on a diagnostic (the files are
-//! still written, up to the fault), a timing rule was violated or
-//! compared event logs differ; 2 when the input cannot be used (a
+//! still written, up to the fault), a timing rule was violated, a design
+//! limit failed in a report, or compared event logs differ; 2 when the input cannot be used (a
 //! usage error, an unreadable file, text that is not a circuit in JSON, or
 //! a circuit that breaks the rules — every problem is then listed on
 //! stderr, one per line); 3 when an output folder or file cannot be
@@ -23,6 +23,7 @@ use fluxstep_netlist::NetlistError;
 mod check;
 mod compare;
 mod input;
+mod report;
 mod response;
 mod run;
 mod steady;
@@ -45,7 +46,7 @@ const EXIT_WRITE: u8 = 3;
 const EXIT_CODES: &str = "Exit codes:
   0  success
   1  the simulation stopped on a diagnostic (files are still written, up to the fault),
-     a timing rule of the file was violated, or compared event logs differ
+     a timing rule or design limit of the file was violated, or compared event logs differ
   2  invalid input: usage, unreadable file, not a circuit, or a circuit that breaks rules
   3  an output folder or file cannot be created or written";
 
@@ -97,6 +98,12 @@ enum Command {
     /// difference beyond the tolerance).
     #[command(after_help = EXIT_CODES)]
     Compare(compare::Args),
+    /// Write the design-review report: one self-contained report.html
+    /// (circuit, operating point, waveforms, stress, losses, loops, events,
+    /// design limits) and the summary.json of its numbers (exit 1 when a
+    /// design limit of the file fails).
+    #[command(after_help = EXIT_CODES)]
+    Report(report::Args),
 }
 
 fn main() -> ExitCode {
@@ -109,12 +116,14 @@ fn main() -> ExitCode {
         Command::Sweep(args) => sweep::run(args),
         Command::Merge(args) => sweep::merge(args),
         Command::Compare(args) => compare::run(args),
+        Command::Report(args) => report::run(args),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,
         Err(err)
             if err.downcast_ref::<run::Stopped>().is_some()
-                || err.downcast_ref::<steady::NotFound>().is_some() =>
+                || err.downcast_ref::<steady::NotFound>().is_some()
+                || err.downcast_ref::<report::LimitsFailed>().is_some() =>
         {
             eprintln!("error: {err}");
             ExitCode::from(EXIT_STOPPED)

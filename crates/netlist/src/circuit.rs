@@ -7,6 +7,7 @@ use serde::{Deserialize, Serialize};
 use crate::element::*;
 use crate::error::{NetlistError, Problem};
 use crate::gate::{Gate, SignalShape, Transition};
+use crate::limits::DesignLimits;
 use crate::timing::TimingRule;
 use crate::value::{self, SiValue};
 use crate::waveform::Waveform;
@@ -145,6 +146,11 @@ pub struct RunSettings {
     /// rule makes `fluxstep run` exit with status 1.
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub timing: Vec<TimingRule>,
+    /// Design limits a report checks the design against (see
+    /// docs/report.md); a failed limit makes `fluxstep report` exit with
+    /// status 1.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub limits: Option<DesignLimits>,
 }
 
 impl RunSettings {
@@ -158,6 +164,7 @@ impl RunSettings {
             on_interruption: InterruptionPolicy::Stop,
             on_shoot_through: ShootThroughPolicy::Stop,
             timing: Vec::new(),
+            limits: None,
         }
     }
 }

@@ -53,6 +53,7 @@ mod circuit;
 mod element;
 mod error;
 mod gate;
+mod limits;
 mod resolution;
 mod timing;
 mod validate;
@@ -66,6 +67,7 @@ pub use circuit::{
 pub use element::*;
 pub use error::{NetlistError, Problem};
 pub use gate::{ComparatorSpec, Comparison, Edge, Gate, SignalShape, Transition};
+pub use limits::{DesignLimits, PartLimit};
 pub use resolution::{MAX_DIODES, MAX_SWITCHES, MIN_DURATION_RATIO};
 pub use timing::{EdgeSense, TimingCheck, TimingRule};
 pub use value::{parse_si, ValueError, PREFIXES};

@@ -1378,6 +1378,9 @@ impl Checker<'_> {
         }
         self.timing_rules();
         let Some(run) = &self.circuit.run else { return };
+        if let Some(limits) = &run.limits {
+            self.out.extend(limits.problems(self.circuit));
+        }
         for (i, text) in run.outputs.iter().enumerate() {
             let field = format!("run.outputs[{i}]");
             let message = self.output_problem(text);

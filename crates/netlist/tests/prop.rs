@@ -328,6 +328,7 @@ fn run() -> impl Strategy<Value = RunSettings> {
                     on_interruption,
                     on_shoot_through,
                     timing,
+                    limits: None,
                 }
             },
         )

@@ -1682,3 +1682,62 @@ fn timing_rules_read_from_json_with_their_fields_beside_the_name() {
         .to_string();
     assert!(err.contains("maxx"), "{err}");
 }
+
+/// The asynchronous buck with design limits in its run settings.
+fn buck_with_limits(limits: DesignLimits) -> Circuit {
+    let mut c = buck().build().unwrap();
+    c.run = Some(RunSettings {
+        limits: Some(limits),
+        ..RunSettings::default_for(1e-3)
+    });
+    c
+}
+
+#[test]
+fn design_limits_name_parts_of_the_right_kind_and_positive_values() {
+    let part = |element: &str, value: f64| PartLimit {
+        element: element.into(),
+        value,
+    };
+    let good = DesignLimits {
+        output: Some("out".into()),
+        max_output_ripple: Some(0.1),
+        saturation_current: vec![part("L1", 4.0)],
+        voltage_rating: vec![part("S1", 40.0), part("D1", 40.0)],
+        derating: Some(0.8),
+        min_phase_margin: Some(45.0),
+        max_junction_temperature: Some(125.0),
+    };
+    valid(&buck_with_limits(good.clone()));
+    let c = buck_with_limits(DesignLimits {
+        output: Some("vout".into()),
+        max_output_ripple: Some(-1.0),
+        saturation_current: vec![part("S1", 4.0), part("L9", 1.0)],
+        voltage_rating: vec![part("L1", 40.0), part("D1", 0.0)],
+        derating: Some(1.5),
+        min_phase_margin: Some(200.0),
+        max_junction_temperature: Some(f64::NAN),
+    });
+    let at = |field: &str, text: &str| {
+        expect(&c, None, Some(field), text);
+    };
+    at("run.limits.output", "no node is named 'vout'");
+    at("run.limits.max_output_ripple", "must be a positive voltage");
+    at(
+        "run.limits.saturation_current[0].element",
+        "'S1' is not an inductor",
+    );
+    at(
+        "run.limits.saturation_current[1].element",
+        "no element is named 'L9'",
+    );
+    at(
+        "run.limits.voltage_rating[0].element",
+        "'L1' is not a switch or diode",
+    );
+    at("run.limits.voltage_rating[1].value", "must be positive");
+    at("run.limits.derating", "must lie in (0, 1]");
+    at("run.limits.min_phase_margin", "must lie in (0, 180)");
+    at("run.limits.max_junction_temperature", "must be a finite");
+    assert_eq!(problems(&c).len(), 9);
+}
