@@ -74,6 +74,6 @@ pub use events::{
     EventRef, SwitchEdge, Tolerances,
 };
 pub use mode::ModeKey;
-pub use options::{OnInterruption, OnShootThrough, Options, Record};
+pub use options::{OnInterruption, OnShootThrough, Options, Record, CHATTER_FRACTION};
 pub use run::{simulate, RunResult, SegmentSink, SegmentView, Simulator, Stats};
 pub use waveform::{OutputId, Segment, ValueError, Waveform};

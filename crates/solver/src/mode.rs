@@ -522,15 +522,13 @@ impl Mode {
 
         // 4. Solve the network.
         let lu = g.clone().full_piv_lu();
-        let u = lu.u();
-        let pmax = (0..u.nrows().min(u.ncols()))
-            .map(|i| u[(i, i)].abs())
-            .fold(0.0, f64::max);
-        let pmin = (0..u.nrows().min(u.ncols()))
-            .map(|i| u[(i, i)].abs())
-            .fold(f64::INFINITY, f64::min);
-        // NaN pivots count as singular too, hence the negated comparison.
-        if n_unk > 0 && (pmin.is_nan() || pmin <= 1e-13 * pmax) {
+        // Singular or not is judged on the equilibrated matrix: the raw
+        // one mixes conductances (1/R) with the unit entries of voltage
+        // branches, so an impedance scale far from 1 Ω (a 0.1 µΩ load, or a
+        // whole circuit with R·k, L·k, C/k) would make the pivot ratio
+        // fall below any fixed threshold although the network is regular.
+        // The solve itself keeps the raw matrix (same bits as before).
+        if n_unk > 0 && singular(&g) {
             let reason = "the network equations are singular".to_string();
             return Ok(Mode::invalid(
                 cc,
@@ -950,6 +948,65 @@ impl Mode {
             resistive_short: None,
             cmp_guards: vec![],
         }
+    }
+}
+
+/// Whether the square network matrix `g` is numerically singular: its
+/// smallest pivot below 1e-13 of its largest after equilibration.
+///
+/// Equilibration (row and column scaling by powers of two until every row
+/// and column has its largest entry near 1, as in D. Ruiz, "A scaling
+/// algorithm to equilibrate both rows and columns norms in matrices",
+/// RAL-TR-2001-034) removes the circuit's impedance scale from the
+/// test: scaling every resistance by k scales the conductance block by
+/// 1/k, which a diagonal scaling undoes exactly, so the verdict does not
+/// depend on k. NaN entries count as singular.
+fn singular(g: &DMatrix<f64>) -> bool {
+    let n = g.nrows();
+    let mut a = g.clone();
+    for _ in 0..40 {
+        let mut moved = false;
+        for i in 0..n {
+            let r = a.row(i).amax();
+            if r > 0.0 && r.is_finite() {
+                let f = pow2_near(1.0 / r.sqrt());
+                if f != 1.0 {
+                    a.row_mut(i).scale_mut(f);
+                    moved = true;
+                }
+            }
+        }
+        for j in 0..a.ncols() {
+            let c = a.column(j).amax();
+            if c > 0.0 && c.is_finite() {
+                let f = pow2_near(1.0 / c.sqrt());
+                if f != 1.0 {
+                    a.column_mut(j).scale_mut(f);
+                    moved = true;
+                }
+            }
+        }
+        if !moved {
+            break;
+        }
+    }
+    let u = a.full_piv_lu();
+    let u = u.u();
+    let diag = (0..u.nrows().min(u.ncols())).map(|i| u[(i, i)].abs());
+    let pmax = diag.clone().fold(0.0, f64::max);
+    let pmin = diag.fold(f64::INFINITY, f64::min);
+    // NaN pivots count as singular too, hence the negated comparison.
+    pmin.is_nan() || !(pmin > 1e-13 * pmax)
+}
+
+/// The power of two nearest to `x` (> 0) in the logarithm, so scaling by it
+/// is exact; 1 for values within a factor √2 of 1.
+fn pow2_near(x: f64) -> f64 {
+    let e = x.log2().round();
+    if e == 0.0 {
+        1.0
+    } else {
+        2f64.powi(e as i32)
     }
 }
 
