@@ -8,5 +8,8 @@
 //! - `physics::control`: closed-loop gates and compensators.
 //! - `physics::structure`: jumps, interruption, shoot-through, chatter,
 //!   floating nodes, magnetics and dead time.
+//! - `physics::issue_13`, `physics::issue_19`: regression tests of those
+//!   issues (outputs a designer can trust; extreme scales and the
+//!   metamorphic scaling laws).
 
 mod physics;
