@@ -224,7 +224,7 @@ fn plan(
 /// ``on_interruption`` (``"stop"`` or ``"conserve_flux"``) and
 /// ``on_shoot_through`` (``"stop"`` or ``"record"``) from the file, else
 /// ``"stop"``; ``max_events`` (1e9), ``chatter_events`` (200) and
-/// ``chatter_window`` (1e-12 s) as in the solver.
+/// ``chatter_window`` (0: automatic, 2e-7 of the shortest gate period) as in the solver.
 ///
 /// The result is the solver's, bit for bit. The run releases the GIL and
 /// looks for Ctrl-C about every 20 ms (between slices that end on the

@@ -74,6 +74,8 @@ pub use events::{
     EventRef, SwitchEdge, Tolerances,
 };
 pub use mode::ModeKey;
-pub use options::{OnInterruption, OnShootThrough, Options, Record, DEFAULT_MEMORY_BUDGET};
+pub use options::{
+    OnInterruption, OnShootThrough, Options, Record, CHATTER_FRACTION, DEFAULT_MEMORY_BUDGET,
+};
 pub use run::{simulate, RunResult, SegmentSink, SegmentView, Simulator, Stats};
 pub use waveform::{OutputId, Segment, Side, TransitionSpan, ValueError, Waveform};

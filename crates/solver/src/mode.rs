@@ -67,8 +67,10 @@ pub(crate) enum GuardKind {
     /// Two blocking diodes in a loop through floating nodes: the loop
     /// voltage must stay below their forward voltages.
     DiodePair(usize, usize),
-    /// Comparator `ci` of a closed-loop gate; true for its turn-off guard.
-    Comparator(usize, bool),
+    /// Comparator `ci` of a closed-loop gate; true for its turn-off guard;
+    /// then true if it compares a current (else a voltage), which sets
+    /// the unit of its zero floor.
+    Comparator(usize, bool, bool),
 }
 
 /// A linear function of `z` that must stay ≥ 0 while the mode holds.
@@ -553,16 +555,20 @@ impl Mode {
         }
 
         // 4. Solve the network.
-        let lu = g.clone().full_piv_lu();
-        let u = lu.u();
-        let pmax = (0..u.nrows().min(u.ncols()))
-            .map(|i| u[(i, i)].abs())
-            .fold(0.0, f64::max);
-        let pmin = (0..u.nrows().min(u.ncols()))
-            .map(|i| u[(i, i)].abs())
-            .fold(f64::INFINITY, f64::min);
-        // NaN pivots count as singular too, hence the negated comparison.
-        if n_unk > 0 && (pmin.is_nan() || pmin <= 1e-13 * pmax) {
+        // Singular or not is judged on the equilibrated matrix: the raw
+        // one mixes conductances (1/R) with the unit entries of voltage
+        // branches, so an impedance scale far from 1 Ω (a 0.1 µΩ load, or a
+        // whole circuit with R·k, L·k, C/k) would make the pivot ratio
+        // fall below any fixed threshold although the network is regular.
+        let (dr, dc) = equilibration(&g);
+        let mut ge = g.clone();
+        for (i, mut row) in ge.row_iter_mut().enumerate() {
+            row *= dr[i];
+        }
+        for (j, mut col) in ge.column_iter_mut().enumerate() {
+            col *= dc[j];
+        }
+        if n_unk > 0 && singular(&ge) {
             let reason = "the network equations are singular".to_string();
             return Ok(Mode::invalid(
                 cc,
@@ -570,10 +576,27 @@ impl Mode {
                 problem.unwrap_or(ModeProblem::Unsupported(reason)),
             ));
         }
-        let y = if n_unk > 0 {
-            lu.solve(&rhs).expect("checked invertible")
-        } else {
+        // The equilibrated system is solved where the raw matrix spans
+        // more than 2^20 in its entries' magnitudes (there the raw LU
+        // loses about as many digits as that spread); an ordinary circuit
+        // keeps the raw solve and its bits.
+        let y = if n_unk == 0 {
             DMatrix::zeros(0, ncol)
+        } else if spread(&g) > 1048576.0 {
+            let mut r = rhs.clone();
+            for (i, mut row) in r.row_iter_mut().enumerate() {
+                row *= dr[i];
+            }
+            let mut y = ge.full_piv_lu().solve(&r).expect("checked invertible");
+            for (j, mut row) in y.row_iter_mut().enumerate() {
+                row *= dc[j];
+            }
+            y
+        } else {
+            g.clone()
+                .full_piv_lu()
+                .solve(&rhs)
+                .expect("checked invertible")
         };
         let vrow = |n: usize| -> DVector<f64> {
             match nidx(n) {
@@ -926,6 +949,10 @@ impl Mode {
         let mut cmp_guards = vec![];
         for (ci, cmp) in cc.comparators.iter().enumerate() {
             let sense = cm.row(cmp.sense).into_owned();
+            let current = matches!(
+                cc.outputs[cmp.sense].1,
+                OutputDef::BranchCurrent(_) | OutputDef::SecondaryCurrent(_)
+            );
             let make = |c: &Option<crate::compile::CompiledComparison>, off: bool| {
                 c.as_ref().map(|c| {
                     let thr = DVector::from_column_slice(&c.threshold);
@@ -936,7 +963,7 @@ impl Mode {
                     };
                     let drow = m.transpose() * &row;
                     Guard {
-                        kind: GuardKind::Comparator(ci, off),
+                        kind: GuardKind::Comparator(ci, off, current),
                         row: row.iter().copied().collect(),
                         drow: drow.iter().copied().collect(),
                     }
@@ -992,6 +1019,89 @@ impl Mode {
             resistive_short: None,
             cmp_guards: vec![],
         }
+    }
+}
+
+/// Whether the square network matrix `g` (equilibrated, see
+/// [`equilibration`]) is numerically singular: its smallest LU pivot
+/// below 1e-13 of its largest. NaN entries count as singular.
+fn singular(g: &DMatrix<f64>) -> bool {
+    let u = g.clone().full_piv_lu();
+    let u = u.u();
+    let diag = (0..u.nrows().min(u.ncols())).map(|i| u[(i, i)].abs());
+    let pmax = diag.clone().fold(0.0, f64::max);
+    let pmin = diag.fold(f64::INFINITY, f64::min);
+    // NaN pivots count as singular too, hence the negated comparison.
+    pmin.is_nan() || !(pmin > 1e-13 * pmax)
+}
+
+/// Ratio of the largest to the smallest non-zero magnitude in `g` (1 for
+/// a matrix without non-zero entries).
+fn spread(g: &DMatrix<f64>) -> f64 {
+    let (lo, hi) = g
+        .iter()
+        .map(|v| v.abs())
+        .filter(|&v| v > 0.0)
+        .fold((f64::INFINITY, 0.0f64), |(lo, hi), v| {
+            (lo.min(v), hi.max(v))
+        });
+    if hi > 0.0 {
+        hi / lo
+    } else {
+        1.0
+    }
+}
+
+/// Row and column factors (powers of two, so scaling is exact) that bring
+/// every row and column of `g` to a largest entry near 1 (D. Ruiz, "A
+/// scaling algorithm to equilibrate both rows and columns norms in
+/// matrices", RAL-TR-2001-034, 2001). Scaling every resistance by k
+/// scales the conductance block by 1/k, which these factors undo, so the
+/// circuit's impedance scale drops out of the singularity test and of the
+/// solve.
+fn equilibration(g: &DMatrix<f64>) -> (Vec<f64>, Vec<f64>) {
+    let (n, m) = g.shape();
+    let mut a = g.clone();
+    let (mut dr, mut dc) = (vec![1.0; n], vec![1.0; m]);
+    for _ in 0..40 {
+        let mut moved = false;
+        for i in 0..n {
+            let r = a.row(i).amax();
+            if r > 0.0 && r.is_finite() {
+                let f = pow2_near(1.0 / r.sqrt());
+                if f != 1.0 {
+                    a.row_mut(i).scale_mut(f);
+                    dr[i] *= f;
+                    moved = true;
+                }
+            }
+        }
+        for j in 0..m {
+            let c = a.column(j).amax();
+            if c > 0.0 && c.is_finite() {
+                let f = pow2_near(1.0 / c.sqrt());
+                if f != 1.0 {
+                    a.column_mut(j).scale_mut(f);
+                    dc[j] *= f;
+                    moved = true;
+                }
+            }
+        }
+        if !moved {
+            break;
+        }
+    }
+    (dr, dc)
+}
+
+/// The power of two nearest to `x` (> 0) in the logarithm, so scaling by it
+/// is exact; 1 for values within a factor √2 of 1.
+fn pow2_near(x: f64) -> f64 {
+    let e = x.log2().round();
+    if e == 0.0 {
+        1.0
+    } else {
+        2f64.powi(e as i32)
     }
 }
 

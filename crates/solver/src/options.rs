@@ -43,6 +43,13 @@ pub enum Record {
     Nothing,
 }
 
+/// The automatic chatter window as a fraction of the circuit's time scale
+/// (see [`Options::chatter_window`]): 2e-7, i.e. 1 ps at 200 kHz. Ideal
+/// parts chatter at a single instant or within rounding of it, so any
+/// window far below a switching period and far above the rounding of
+/// time (2e-16 of it) separates chatter from fast but real switching.
+pub const CHATTER_FRACTION: f64 = 2e-7;
+
 /// Options of a transient run.
 #[derive(Clone, Debug)]
 pub struct Options {
@@ -58,8 +65,12 @@ pub struct Options {
     /// Default 200. More events than this within `chatter_window` stop the
     /// run with a chatter diagnostic instead of hanging.
     pub chatter_events: usize,
-    /// Default 1e-12 s. Window for `chatter_events`; lower it for circuits
-    /// that switch faster than a few nanoseconds.
+    /// Default 0: automatic, [`CHATTER_FRACTION`] of the circuit's own
+    /// time scale — its shortest gate period, or without periodic gates
+    /// 2π/ρ of the first mode (ρ bounds its fastest dynamics), or 1e-12 s
+    /// when neither exists. So a 200 kHz converter gets 1 ps, and the
+    /// same converter scaled to 200 THz gets 1e-21 s. A positive value is
+    /// taken as the window in seconds. The window for `chatter_events`.
     pub chatter_window: f64,
     /// Default [`DEFAULT_MEMORY_BUDGET`] (2 GiB). Bytes the recorded
     /// waveform and event log may occupy together; a run whose record
@@ -82,7 +93,7 @@ impl Default for Options {
             on_shoot_through: OnShootThrough::Stop,
             max_events: 1_000_000_000,
             chatter_events: 200,
-            chatter_window: 1e-12,
+            chatter_window: 0.0,
             memory_budget: DEFAULT_MEMORY_BUDGET,
         }
     }

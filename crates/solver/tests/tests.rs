@@ -10,5 +10,8 @@
 //!   floating nodes, magnetics and dead time.
 //! - `physics::transition`: finite switching transitions (clamped
 //!   inductive switching, stray-inductance overshoot).
+//! - `physics::issue_13`, `physics::issue_19`: regression tests of those
+//!   issues (outputs a designer can trust; extreme scales and the
+//!   metamorphic scaling laws).
 
 mod physics;

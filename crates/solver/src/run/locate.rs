@@ -25,14 +25,17 @@ use crate::propagate::{dot_and_abs, dot_s};
 pub(super) const ZERO_REL: f64 = 1e-10;
 
 /// Absolute floor under which a guard counts as zero: 1e-13 of the largest
-/// inductor current (current guards) or capacitor/source voltage (voltage
-/// guards) seen in the run. Without it a current left at 1e-33 A by a
+/// inductor current (current guards, comparators of a current) or
+/// capacitor/source voltage (voltage guards, comparators of a voltage)
+/// seen in the run — never a mix of the two, whose ratio is the circuit's
+/// impedance scale. Without it a current left at 1e-33 A by a
 /// located zero crossing would be judged by its own size and look negative.
 pub(super) fn guard_floor(kind: &GuardKind, (i_scale, v_scale): (f64, f64)) -> f64 {
     let s = match kind {
-        GuardKind::DiodeCurrent(_) => i_scale,
-        GuardKind::DiodeVoltage(_) | GuardKind::DiodePair(..) => v_scale,
-        GuardKind::Comparator(..) => i_scale.max(v_scale),
+        GuardKind::DiodeCurrent(_) | GuardKind::Comparator(_, _, true) => i_scale,
+        GuardKind::DiodeVoltage(_)
+        | GuardKind::DiodePair(..)
+        | GuardKind::Comparator(_, _, false) => v_scale,
     };
     1e-13 * s + f64::MIN_POSITIVE
 }
@@ -63,7 +66,7 @@ fn bits_of(g: &Guard) -> (u64, u64) {
     match g.kind {
         GuardKind::DiodeCurrent(k) | GuardKind::DiodeVoltage(k) => (1u64 << k, 0),
         GuardKind::DiodePair(a, b) => ((1u64 << a) | (1u64 << b), 0),
-        GuardKind::Comparator(c, _) => (0, 1u64 << c),
+        GuardKind::Comparator(c, ..) => (0, 1u64 << c),
     }
 }
 

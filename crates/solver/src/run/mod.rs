@@ -29,7 +29,7 @@ use crate::compile::Compiled;
 use crate::error::SolverError;
 use crate::events::{adopt, EventCause, EventLog};
 use crate::mode::{pattern_text, Mode, ModeKey};
-use crate::options::{Options, Record};
+use crate::options::{Options, Record, CHATTER_FRACTION};
 use crate::propagate;
 use crate::waveform::{OutputId, Waveform};
 
@@ -155,6 +155,9 @@ pub struct Simulator {
     /// `recent_head` once full).
     recent: Vec<(f64, u32)>,
     recent_head: usize,
+    /// The chatter window in seconds, resolved from
+    /// [`Options::chatter_window`] and the circuit's time scale.
+    chatter_window: f64,
     /// Every event counted, kept or not (for the event limit).
     n_events: usize,
     /// The kind of the present instant, logged with its events.
@@ -337,6 +340,7 @@ impl Simulator {
             sink: None,
             recent: vec![],
             recent_head: 0,
+            chatter_window: 0.0,
             n_events: 0,
             cause: EventCause::Start,
             stats: Stats::default(),
@@ -387,7 +391,29 @@ impl Simulator {
                 sim.signals[i].edges.pop_front();
             }
         }
+        // The chatter window from the gates' periods; without periodic
+        // gates it is set from the first mode below (the first resolve
+        // logs at most one event per part, far from any chatter count).
+        let shortest = sim
+            .cc
+            .signals
+            .iter()
+            .filter_map(|(_, s)| s.period)
+            .filter(|p| p.is_finite() && *p > 0.0)
+            .fold(f64::INFINITY, f64::min);
+        sim.chatter_window = sim.opts.chatter_window;
+        if !(sim.chatter_window > 0.0) && shortest.is_finite() {
+            sim.chatter_window = CHATTER_FRACTION * shortest;
+        }
         sim.resolve(0, None, true)?;
+        if !(sim.chatter_window > 0.0) {
+            let rate = sim.modes[sim.mode as usize].rate;
+            sim.chatter_window = if rate > 0.0 && rate.is_finite() {
+                CHATTER_FRACTION * std::f64::consts::TAU / rate
+            } else {
+                1e-12
+            };
+        }
         // Closed-loop gates decide their state at t = 0 from the circuit.
         if let Some(cause) = sim.start_comparators()? {
             sim.resolve(0, Some(cause), false)?;

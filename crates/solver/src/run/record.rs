@@ -154,7 +154,7 @@ impl Simulator {
         // The last `chatter_events + 1` events in a ring: more than
         // `chatter_events` fall within the window exactly when the oldest
         // of them does (times never decrease).
-        let window = self.opts.chatter_window;
+        let window = self.chatter_window;
         let cap = self.opts.chatter_events + 1;
         let id = self.who_id(&who);
         let oldest = if self.recent.len() < cap {
@@ -220,7 +220,7 @@ impl Simulator {
                 if oldest >= cap {
                     oldest -= cap;
                 }
-                self.recent[oldest].0 < time - self.opts.chatter_window
+                self.recent[oldest].0 < time - self.chatter_window
             }
         } else {
             len + k < cap
@@ -340,7 +340,7 @@ impl Simulator {
         SolverError::Chatter {
             time,
             count: self.recent.len(),
-            window: self.opts.chatter_window,
+            window: self.chatter_window,
             elements,
         }
     }
