@@ -1032,7 +1032,7 @@ fn singular(g: &DMatrix<f64>) -> bool {
     let pmax = diag.clone().fold(0.0, f64::max);
     let pmin = diag.fold(f64::INFINITY, f64::min);
     // NaN pivots count as singular too, hence the negated comparison.
-    pmin.is_nan() || !(pmin > 1e-13 * pmax)
+    pmin.is_nan() || pmin.partial_cmp(&(1e-13 * pmax)) != Some(std::cmp::Ordering::Greater)
 }
 
 /// Ratio of the largest to the smallest non-zero magnitude in `g` (1 for
@@ -1059,6 +1059,7 @@ fn spread(g: &DMatrix<f64>) -> f64 {
 /// scales the conductance block by 1/k, which these factors undo, so the
 /// circuit's impedance scale drops out of the singularity test and of the
 /// solve.
+#[allow(clippy::needless_range_loop)] // rows and columns of `a` by index, as the method reads
 fn equilibration(g: &DMatrix<f64>) -> (Vec<f64>, Vec<f64>) {
     let (n, m) = g.shape();
     let mut a = g.clone();

@@ -402,11 +402,12 @@ impl Simulator {
             .filter(|p| p.is_finite() && *p > 0.0)
             .fold(f64::INFINITY, f64::min);
         sim.chatter_window = sim.opts.chatter_window;
-        if !(sim.chatter_window > 0.0) && shortest.is_finite() {
+        let automatic = |w: f64| w.is_nan() || w <= 0.0;
+        if automatic(sim.chatter_window) && shortest.is_finite() {
             sim.chatter_window = CHATTER_FRACTION * shortest;
         }
         sim.resolve(0, None, true)?;
-        if !(sim.chatter_window > 0.0) {
+        if automatic(sim.chatter_window) {
             let rate = sim.modes[sim.mode as usize].rate;
             sim.chatter_window = if rate > 0.0 && rate.is_finite() {
                 CHATTER_FRACTION * std::f64::consts::TAU / rate

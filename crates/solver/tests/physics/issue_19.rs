@@ -289,7 +289,7 @@ fn assert_scales(file: &str, sc: Scale) {
         // Off the switching instants (an output that steps there is
         // taken on either side by rounding of the scaled time).
         let pts: Vec<f64> = (0..50)
-            .map(|j| stop * (f64::from(j) + 0.318_309_886) / 50.0)
+            .map(|j| stop * (f64::from(j) + std::f64::consts::FRAC_1_PI) / 50.0)
             .collect();
         let v1: Vec<Option<f64>> = pts.iter().map(|&t| w1.value(i1, t).ok()).collect();
         let r = v1.iter().flatten().fold(0.0f64, |m, v| m.max(v.abs()));
