@@ -59,6 +59,8 @@ pub(crate) struct Facts {
     pub junctions: Vec<Result<JunctionTemperature, String>>,
     pub loops: Vec<Loop>,
     pub sweep: Option<Result<Summary, String>>,
+    /// The sweep file's plots that could be drawn, in its order.
+    pub sweep_plots: Vec<fluxstep_plot::Figure>,
 }
 
 impl Facts {
@@ -350,11 +352,16 @@ pub(crate) fn gather(c: &Circuit, opts: &ReportOptions) -> Result<Facts, ReportE
             loops.push(Loop { name, at, gain });
         }
     }
+    let mut sweep_plots = vec![];
     let sweep = opts.sweep.as_ref().map(|path| {
         let s = Sweep::from_file(path).map_err(|e| format!("{}: {e}", path.display()))?;
         let table = s
             .run(&RunOptions::default())
             .map_err(|e| format!("{}: {e}", path.display()))?;
+        sweep_plots = crate::sweep_plots::plots(&table)
+            .into_iter()
+            .filter_map(|(_, f)| f)
+            .collect();
         Ok(Summary::of(&table))
     });
     Ok(Facts {
@@ -372,6 +379,7 @@ pub(crate) fn gather(c: &Circuit, opts: &ReportOptions) -> Result<Facts, ReportE
         junctions,
         loops,
         sweep,
+        sweep_plots,
         basis,
     })
 }

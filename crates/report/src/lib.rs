@@ -55,6 +55,7 @@ mod chart;
 mod gather;
 mod page;
 mod sheet;
+pub mod sweep_plots;
 
 use std::path::{Path, PathBuf};
 

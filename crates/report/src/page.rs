@@ -892,6 +892,11 @@ pub(crate) fn render(
                 );
             }
             b.push_str("</tbody></table>");
+            for fig in &f.sweep_plots {
+                b.push_str("<figure>");
+                b.push_str(&inline_svg(&render_svg(fig)?));
+                b.push_str("</figure>");
+            }
         }
     }
     b.push_str("</section>");

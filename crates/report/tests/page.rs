@@ -233,3 +233,30 @@ fn every_example_circuit_gives_a_consistent_report() {
         }
     }
 }
+
+/// A sweep file adds its points by status, the worst case of each figure
+/// and its plots (two line plots in buck_operating_range.sweep.json) to
+/// the sweep section, with the numbers in the summary.
+#[test]
+fn a_sweep_adds_its_worst_cases_and_its_plots() {
+    let sweep = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("../../examples/sweeps/buck_operating_range.sweep.json");
+    let dir = std::path::Path::new(env!("CARGO_TARGET_TMPDIR")).join("report-sweep");
+    let opts = ReportOptions {
+        name: "buck".into(),
+        sweep: Some(sweep),
+        loop_points: 40,
+        ..ReportOptions::default()
+    };
+    let r = fluxstep_report::write(&circuit("buck.json"), &opts, &dir).expect("written");
+    let start = r
+        .html
+        .find("<section id=\"sweep\">")
+        .expect("a sweep section");
+    let end = start + r.html[start..].find("</section>").expect("closed");
+    let section = &r.html[start..end];
+    assert_eq!(section.matches("<svg").count(), 2, "{section}");
+    assert!(section.contains("il_peak against Vin.waveform.value"));
+    assert!(r.summary["sweep"]["points"].as_f64().unwrap() > 0.0);
+    assert!(check_numbers(&marked(&r.html), &r.summary) > 0);
+}
