@@ -451,10 +451,10 @@ impl PyRun {
 /// Two arrays of equal length: times and values.
 type Pair<'py> = (Bound<'py, PyArray1<f64>>, Bound<'py, PyArray1<f64>>);
 
-fn side_is_before(side: &str) -> PyResult<bool> {
+fn side_of(side: &str) -> PyResult<Side> {
     match side {
-        "after" => Ok(false),
-        "before" => Ok(true),
+        "after" => Ok(Side::After),
+        "before" => Ok(Side::Before),
         other => Err(PyValueError::new_err(format!(
             "side must be \"after\" or \"before\", got {other:?}"
         ))),
@@ -485,15 +485,14 @@ impl PyRun {
     ) -> PyResult<Bound<'py, PyAny>> {
         let id = self.id(py, name)?;
         let w = &self.result.waveform;
-        if side_is_before(side)? {
-            self.evaluate_batch(py, t, strict, &|x| w.value_before(id, x), |ts| {
-                w.values(id, ts, Side::Before).unwrap_or_default()
-            })
-        } else {
-            self.evaluate_batch(py, t, strict, &|x| w.value(id, x), |ts| {
-                w.values(id, ts, Side::After).unwrap_or_default()
-            })
-        }
+        let side = side_of(side)?;
+        let one = |x| match side {
+            Side::After => w.value(id, x),
+            Side::Before => w.value_before(id, x),
+        };
+        self.evaluate_batch(py, t, strict, &one, |ts| {
+            w.values(id, ts, side).unwrap_or_default()
+        })
     }
 
     /// The exact time derivative of output ``name`` at ``t`` (unit per
@@ -510,11 +509,11 @@ impl PyRun {
     ) -> PyResult<Bound<'py, PyAny>> {
         let id = self.id(py, name)?;
         let w = &self.result.waveform;
-        if side_is_before(side)? {
-            self.evaluate(py, t, strict, |x| w.slope_before(id, x))
-        } else {
-            self.evaluate(py, t, strict, |x| w.slope(id, x))
-        }
+        let side = side_of(side)?;
+        self.evaluate(py, t, strict, |x| match side {
+            Side::After => w.slope(id, x),
+            Side::Before => w.slope_before(id, x),
+        })
     }
 
     /// The exact vertices of output ``name`` over ``[t0, t1]`` (default: the

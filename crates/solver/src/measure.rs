@@ -195,11 +195,25 @@ pub fn measure(
     check_window(waveform, &name, t0, t1)?;
     let ext = extremes(waveform, id, &name, t0, t1)?;
     let len = t1 - t0;
-    let average = waveform.integrate(&[id], t0, t1, |v| v[0]) / len;
-    let mean_square = waveform.integrate(&[id], t0, t1, |v| v[0] * v[0]) / len;
+    let integral = waveform.integrate(&[id], t0, t1, |v| v[0]);
+    let integral_sq = waveform.integrate(&[id], t0, t1, |v| v[0] * v[0]);
+    assemble(name, (t0, t1), len, (integral, integral_sq), ext)
+}
+
+/// The measurement over the window `(t0, t1)` from the integrals of the output and of
+/// its square over `len` seconds and the extremes; an error naming the
+/// output at the window's start when the result is not finite.
+fn assemble(
+    name: String,
+    (t0, t1): (f64, f64),
+    len: f64,
+    (integral, integral_sq): (f64, f64),
+    ext: Extremes,
+) -> Result<Measurement, MeasureError> {
+    let average = integral / len;
     // Rounding can leave a mean square a hair below zero for an output that
     // is zero throughout.
-    let rms = mean_square.max(0.0).sqrt();
+    let rms = (integral_sq / len).max(0.0).sqrt();
     if !average.is_finite() || !rms.is_finite() {
         return Err(MeasureError::NonFinite {
             subject: name,
@@ -271,25 +285,7 @@ pub fn measure_period(
         sum += waveform.integrate_piece(i, &[id], 0.0, s.length(), 0.0, |_, v| v[0]);
         sum_sq += waveform.integrate_piece(i, &[id], 0.0, s.length(), 0.0, |_, v| v[0] * v[0]);
     }
-    let (average, rms) = (sum / len, (sum_sq / len).max(0.0).sqrt());
-    if !average.is_finite() || !rms.is_finite() {
-        return Err(MeasureError::NonFinite {
-            subject: name,
-            time: start,
-        });
-    }
-    Ok(Measurement {
-        output: name,
-        t0: start,
-        t1: end,
-        average,
-        rms,
-        min: ext.min,
-        max: ext.max,
-        peak_to_peak: ext.max - ext.min,
-        time_of_min: ext.time_of_min,
-        time_of_max: ext.time_of_max,
-    })
+    assemble(name, (start, end), len, (sum, sum_sq), ext)
 }
 
 /// Measures output `id` over the last `count` periods of the recorded span:
