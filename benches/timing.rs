@@ -24,6 +24,7 @@ fn pair() -> Circuit {
     let body = DiodeModel {
         forward_voltage: Some(0.7),
         on_resistance: None,
+        recovered_charge: None,
     };
     Circuit::builder()
         .voltage_source("Vin", "in", "gnd", 24.0)

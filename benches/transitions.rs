@@ -25,6 +25,7 @@ fn buck(transitions: bool) -> Circuit {
     let body = DiodeModel {
         forward_voltage: Some(0.7),
         on_resistance: None,
+        recovered_charge: None,
     };
     let mut c = Circuit::builder()
         .voltage_source("Vin", "in", "gnd", 24.0)

@@ -28,6 +28,7 @@ fn buck(load: f64) -> Result<Circuit, Box<dyn std::error::Error>> {
     let body = DiodeModel {
         forward_voltage: Some(0.7),
         on_resistance: None,
+        recovered_charge: None,
     };
     let mut c = Circuit::builder()
         .voltage_source("Vin", "in", "gnd", 24.0)
@@ -39,6 +40,7 @@ fn buck(load: f64) -> Result<Circuit, Box<dyn std::error::Error>> {
             inductance: 22e-6,
             initial_current: Some(12.0 / load),
             winding_resistance: Some(0.015),
+            core: None,
         }))
         .element(Element::Capacitor(Capacitor {
             name: "C1".into(),

@@ -18,6 +18,7 @@ fn buck(dead_time_high: f64) -> Circuit {
     let body = DiodeModel {
         forward_voltage: Some(0.7),
         on_resistance: None,
+        recovered_charge: None,
     };
     Circuit::builder()
         .voltage_source("Vin", "in", "gnd", 24.0)

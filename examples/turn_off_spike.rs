@@ -45,6 +45,7 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
                 current_rate: load / 10e-9,
             },
         }),
+        switching_energy: None,
     };
     let c = Circuit::builder()
         .voltage_source("Vbus", "bus", "gnd", bus)
@@ -56,6 +57,7 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
             DiodeModel {
                 forward_voltage: Some(0.6),
                 on_resistance: None,
+                recovered_charge: None,
             },
         )
         .element(Element::Switch(q1))

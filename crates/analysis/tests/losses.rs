@@ -125,6 +125,7 @@ fn switch(name: &str, a: &str, b: &str, gate: &str, r: f64, body: Option<DiodeMo
         body_diode: body,
         thermal: None,
         transition: None,
+        switching_energy: None,
     })
 }
 
@@ -162,6 +163,7 @@ fn diode_loss_is_forward_drop_plus_resistance() {
     let model = DiodeModel {
         forward_voltage: Some(0.7),
         on_resistance: Some(0.1),
+        recovered_charge: None,
     };
     let c = Circuit::builder()
         .voltage_source("V1", "in", "gnd", 10.0)
@@ -227,6 +229,7 @@ fn esr_and_winding_resistance_are_conduction_losses() {
             inductance: 10e-6,
             initial_current: None,
             winding_resistance: Some(0.2),
+            core: None,
         }))
         .element(Element::Capacitor(Capacitor {
             name: "C1".into(),
@@ -464,6 +467,7 @@ fn sync_buck_with_transitions() -> Circuit {
     let body = DiodeModel {
         forward_voltage: Some(0.7),
         on_resistance: None,
+        recovered_charge: None,
     };
     let mut c = Circuit::builder()
         .voltage_source("Vin", "in", "gnd", 24.0)

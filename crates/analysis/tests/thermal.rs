@@ -37,6 +37,7 @@ fn dc_diode(net: ThermalNetwork) -> Circuit {
             model: DiodeModel {
                 forward_voltage: Some(0.7),
                 on_resistance: Some(0.1),
+                recovered_charge: None,
             },
             thermal: Some(net),
         }))
@@ -106,6 +107,7 @@ fn periodic_ripple_matches_the_pulse_train_closed_form() {
             body_diode: None,
             thermal: Some(net),
             transition: None,
+            switching_energy: None,
         }))
         .resistor("Rload", "out", "gnd", 4.5)
         .pwm("g", 50e3, 0.3)

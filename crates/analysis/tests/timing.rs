@@ -16,6 +16,7 @@ fn pair(duty: f64) -> Circuit {
     let body = DiodeModel {
         forward_voltage: Some(0.7),
         on_resistance: None,
+        recovered_charge: None,
     };
     Circuit::builder()
         .voltage_source("Vin", "in", "gnd", 12.0)

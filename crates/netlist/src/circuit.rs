@@ -151,6 +151,12 @@ pub struct RunSettings {
     /// status 1.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub limits: Option<DesignLimits>,
+    /// The converter's loads (default none): elements whose absorbed power
+    /// is the output power in the efficiency. Without them, resistors from
+    /// the output node to ground (directly or through one switch) are
+    /// taken (docs/losses.md).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub loads: Vec<String>,
 }
 
 impl RunSettings {
@@ -165,6 +171,7 @@ impl RunSettings {
             on_shoot_through: ShootThroughPolicy::Stop,
             timing: Vec::new(),
             limits: None,
+            loads: Vec::new(),
         }
     }
 }
@@ -592,6 +599,7 @@ impl CircuitBuilder {
             inductance: henries,
             initial_current: None,
             winding_resistance: None,
+            core: None,
         }))
     }
 
@@ -610,6 +618,7 @@ impl CircuitBuilder {
             inductance: henries,
             initial_current: Some(amps),
             winding_resistance: None,
+            core: None,
         }))
     }
 
@@ -675,6 +684,7 @@ impl CircuitBuilder {
             body_diode: None,
             thermal: None,
             transition: None,
+            switching_energy: None,
         }))
     }
 
@@ -728,6 +738,7 @@ impl CircuitBuilder {
             body_diode: Some(body),
             thermal: None,
             transition: None,
+            switching_energy: None,
         }))
     }
 

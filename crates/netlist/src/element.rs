@@ -7,6 +7,7 @@
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 
+use crate::loss_data::{CoreModel, SwitchingEnergy};
 use crate::value::{self, SiValue};
 use crate::waveform::Waveform;
 
@@ -80,6 +81,10 @@ pub struct Inductor {
     )]
     #[schemars(with = "Option<SiValue>")]
     pub winding_resistance: Option<f64>,
+    /// Core-loss parameters (optional): the losses analysis evaluates the
+    /// core loss from the exact flux waveform. See [`CoreModel`].
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub core: Option<CoreModel>,
 }
 
 /// A linear capacitor; its voltage v(a) − v(b) is a state of the circuit.
@@ -272,6 +277,18 @@ pub struct DiodeModel {
     )]
     #[schemars(with = "Option<SiValue>")]
     pub on_resistance: Option<f64>,
+    /// Recovered charge Qrr in coulombs (default none); must not be
+    /// negative. The losses analysis counts Qrr·Vr as recovery energy at
+    /// each turn-off forced by a switching edge (common practice); a diode
+    /// whose current falls to zero by itself (discontinuous conduction)
+    /// has none.
+    #[serde(
+        default,
+        deserialize_with = "value::de_opt",
+        skip_serializing_if = "Option::is_none"
+    )]
+    #[schemars(with = "Option<SiValue>")]
+    pub recovered_charge: Option<f64>,
 }
 
 /// An ideal switch: a short (or `on_resistance`) while its gate is on, open
@@ -306,6 +323,10 @@ pub struct Switch {
     /// changes state instantly). See [`SwitchTransition`].
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub transition: Option<SwitchTransition>,
+    /// Datasheet switching energies (optional), counted by the losses
+    /// analysis at each hard edge. See [`SwitchingEnergy`].
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub switching_energy: Option<SwitchingEnergy>,
 }
 
 /// The rates of one switching transition, both positive.

@@ -42,6 +42,7 @@ use crate::circuit::{is_ground, Circuit, OutputName, GROUND};
 use crate::element::*;
 use crate::error::Problem;
 use crate::gate::Gate;
+use crate::loss_data::CoreModel;
 use crate::timing::TimingCheck;
 use crate::waveform::Waveform;
 
@@ -442,6 +443,9 @@ impl Checker<'_> {
                 self.positive(l, "inductance", x.inductance);
                 self.optional_finite(l, "initial_current", x.initial_current);
                 self.optional_non_negative(l, "winding_resistance", x.winding_resistance);
+                if let Some(c) = &x.core {
+                    self.core(l, c);
+                }
             }
             Element::Capacitor(x) => {
                 self.positive(l, "capacitance", x.capacitance);
@@ -459,6 +463,18 @@ impl Checker<'_> {
                 if let Some(d) = &x.body_diode {
                     self.optional_non_negative(l, "body_diode.forward_voltage", d.forward_voltage);
                     self.optional_non_negative(l, "body_diode.on_resistance", d.on_resistance);
+                    self.optional_non_negative(
+                        l,
+                        "body_diode.recovered_charge",
+                        d.recovered_charge,
+                    );
+                }
+                if let Some(e) = &x.switching_energy {
+                    for (edge, t) in [("turn_on", &e.turn_on), ("turn_off", &e.turn_off)] {
+                        if let Some((at, why)) = t.problem() {
+                            self.field(l, &format!("switching_energy.{edge}.{at}"), why);
+                        }
+                    }
                 }
                 if let Some(t) = &x.thermal {
                     self.thermal(l, t);
@@ -481,9 +497,36 @@ impl Checker<'_> {
             Element::Diode(x) => {
                 self.optional_non_negative(l, "forward_voltage", x.model.forward_voltage);
                 self.optional_non_negative(l, "on_resistance", x.model.on_resistance);
+                self.optional_non_negative(l, "recovered_charge", x.model.recovered_charge);
                 if let Some(t) = &x.thermal {
                     self.thermal(l, t);
                 }
+            }
+        }
+    }
+
+    /// Core-loss parameters: k, N, A and volume positive; α and β inside
+    /// [`CoreModel::ALPHA`] and [`CoreModel::BETA`].
+    fn core(&mut self, l: &str, c: &CoreModel) {
+        self.positive(l, "core.k", c.k);
+        self.positive(l, "core.turns", c.turns);
+        self.positive(l, "core.area", c.area);
+        self.positive(l, "core.volume", c.volume);
+        for (field, v, (lo, hi)) in [
+            ("core.alpha", c.alpha, CoreModel::ALPHA),
+            ("core.beta", c.beta, CoreModel::BETA),
+        ] {
+            if self.finite(l, field, v) && !(lo..=hi).contains(&v) {
+                self.field(
+                    l,
+                    field,
+                    format!(
+                        "must be between {} and {} (where published Steinmetz fits lie), got {}",
+                        num(lo),
+                        num(hi),
+                        num(v)
+                    ),
+                );
             }
         }
     }
@@ -1380,6 +1423,14 @@ impl Checker<'_> {
         let Some(run) = &self.circuit.run else { return };
         if let Some(limits) = &run.limits {
             self.out.extend(limits.problems(self.circuit));
+        }
+        for (i, load) in run.loads.iter().enumerate() {
+            if !self.circuit.elements.iter().any(|e| e.name() == load) {
+                self.run_problem(
+                    &format!("run.loads[{i}]"),
+                    format!("{load:?} is not an element of the circuit"),
+                );
+            }
         }
         for (i, text) in run.outputs.iter().enumerate() {
             let field = format!("run.outputs[{i}]");

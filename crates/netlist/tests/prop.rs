@@ -59,6 +59,7 @@ fn diode_model() -> impl Strategy<Value = DiodeModel> {
         DiodeModel {
             forward_voltage,
             on_resistance,
+            recovered_charge: None,
         }
     })
 }
@@ -108,6 +109,7 @@ fn element() -> impl Strategy<Value = Element> {
                         inductance,
                         initial_current,
                         winding_resistance,
+                        core: None,
                     })
                 }
             ),
@@ -182,6 +184,7 @@ fn element() -> impl Strategy<Value = Element> {
                             current_rate: d,
                         },
                     }),
+                    switching_energy: None,
                 })
             }),
         (name(), nodes(), diode_model()).prop_map(|(name, nodes, model)| Element::Diode(Diode {
@@ -329,6 +332,7 @@ fn run() -> impl Strategy<Value = RunSettings> {
                     on_shoot_through,
                     timing,
                     limits: None,
+                    loads: Vec::new(),
                 }
             },
         )

@@ -26,6 +26,7 @@ pub fn every_kind() -> Circuit {
     let model = DiodeModel {
         forward_voltage: Some(0.7),
         on_resistance: Some(0.05),
+        recovered_charge: None,
     };
     let points: Vec<(f64, f64)> = AWKWARD
         .iter()

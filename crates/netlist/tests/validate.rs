@@ -91,6 +91,7 @@ fn sync_buck(gate: Gate) -> Circuit {
     let body = DiodeModel {
         forward_voltage: Some(0.7),
         on_resistance: None,
+        recovered_charge: None,
     };
     Circuit::builder()
         .voltage_source("Vin", "in", "gnd", 24.0)
@@ -571,6 +572,7 @@ fn diode_and_switch_values_must_not_be_negative() {
     let model = |vf: Option<f64>, r: Option<f64>| DiodeModel {
         forward_voltage: vf,
         on_resistance: r,
+        recovered_charge: None,
     };
     let c = buck()
         .diode_model("D2", "gnd", "out", model(Some(-0.7), None))
@@ -638,6 +640,7 @@ fn esr_and_winding_resistance_must_not_be_negative() {
             inductance: 1e-6,
             initial_current: None,
             winding_resistance: Some(f64::NAN),
+            core: None,
         }))
         .resistor("Rx", "x", "gnd", 1.0)
         .build_unchecked();
@@ -708,6 +711,7 @@ fn transition_rates_must_be_positive() {
                     turn_off: rates(off_v, 1e9),
                     turn_on: rates(1e9, on_i),
                 }),
+                switching_energy: None,
             }))
             .build_unchecked()
     };

@@ -307,6 +307,7 @@ fn transistor_power_includes_its_body_diode() {
     let body = fluxstep_netlist::DiodeModel {
         forward_voltage: Some(vf),
         on_resistance: None,
+        recovered_charge: None,
     };
     let circuit = Circuit::builder()
         .voltage_source("Vin", "in", "gnd", VIN)

@@ -277,6 +277,7 @@ impl LossReport {
 ///     body_diode: None,
 ///     thermal: None,
 ///     transition: None,
+///     switching_energy: None,
 /// };
 /// let c = Circuit::builder()
 ///     .voltage_source("V1", "in", "gnd", 10.0)

@@ -158,6 +158,7 @@ fn sync_buck(gates: &[Gate], [hi, lo]: [&str; 2], body_diodes: bool) -> Circuit 
         let body = DiodeModel {
             forward_voltage: Some(0.7),
             on_resistance: None,
+            recovered_charge: None,
         };
         b.transistor("Q1", "in", "sw", hi, 10e-3, body.clone())
             .transistor("Q2", "sw", "gnd", lo, 10e-3, body)

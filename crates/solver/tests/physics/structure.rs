@@ -173,6 +173,7 @@ fn half_bridge(hi: Gate, lo: Gate) -> Circuit {
     let body = DiodeModel {
         forward_voltage: Some(0.7),
         on_resistance: None,
+        recovered_charge: None,
     };
     Circuit::builder()
         .voltage_source("Vin", "in", "gnd", 12.0)
@@ -267,6 +268,7 @@ fn sync_buck() -> Circuit {
     let body = DiodeModel {
         forward_voltage: Some(0.7),
         on_resistance: None,
+        recovered_charge: None,
     };
     Circuit::builder()
         .voltage_source("Vin", "in", "gnd", 12.0)
@@ -521,6 +523,7 @@ fn resistive_shoot_through_is_stopped_or_recorded() {
     let body = DiodeModel {
         forward_voltage: Some(0.7),
         on_resistance: None,
+        recovered_charge: None,
     };
     let build = || {
         Circuit::builder()

@@ -39,6 +39,7 @@ fn switch_with_transition(a: &str, b: &str) -> Element {
                 current_rate: ON.1,
             },
         }),
+        switching_energy: None,
     })
 }
 
