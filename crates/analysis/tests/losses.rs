@@ -294,9 +294,12 @@ fn an_unknown_load_is_named() {
 }
 
 mod switching {
-    use fluxstep_analysis::losses::switching::{switching_loss, EnergyTable, SwitchEnergies};
+    use fluxstep_analysis::losses::switching::{
+        recovery_loss, switching_loss, EnergyTable, SwitchingEnergy,
+    };
+    use fluxstep_analysis::losses::{breakdown, LossKind, LossOptions};
     use fluxstep_analysis::AnalysisError;
-    use fluxstep_netlist::{Circuit, Waveform};
+    use fluxstep_netlist::{Circuit, Element, Waveform};
     use fluxstep_solver::{simulate, Options};
 
     /// A constant-current chopper: 100 V, an ideal switch, a 10 A current
@@ -313,10 +316,13 @@ mod switching {
     }
 
     fn table(top: f64) -> EnergyTable {
-        EnergyTable {
-            current: vec![0.0, 5.0, top],
-            energy: vec![0.0, 50e-6, 300e-6],
-            reference_voltage: 50.0,
+        EnergyTable::single(50.0, &[(0.0, 0.0), (5.0, 50e-6), (top, 300e-6)])
+    }
+
+    fn model(on: EnergyTable, off: EnergyTable) -> SwitchingEnergy {
+        SwitchingEnergy {
+            turn_on: on,
+            turn_off: off,
         }
     }
 
@@ -329,29 +335,119 @@ mod switching {
     fn edges_read_the_table_at_the_exact_current_and_voltage() {
         let c = chopper();
         let run = simulate(&c, 40e-6, Options::default()).unwrap();
-        let model = SwitchEnergies {
-            element: "S1".into(),
-            turn_on: table(20.0),
-            turn_off: table(20.0),
-        };
-        let s = switching_loss(&model, &run.waveform, &run.events, 10e-6, 40e-6).unwrap();
+        let m = model(table(20.0), table(20.0));
+        let s = switching_loss("S1", &m, &run.waveform, &run.events, 10e-6, 40e-6).unwrap();
         let e = 2.0 * (50e-6 + 250e-6 / 3.0);
-        assert_eq!(s.edges, 6, "{s:?}");
+        assert_eq!((s.edges, s.soft), (6, 0), "{s:?}");
         assert!((s.turn_on - 3.0 * e).abs() < 1e-12 * e, "{s:?}");
         assert!((s.turn_off - 3.0 * e).abs() < 1e-12 * e, "{s:?}");
         assert!(s.outside.is_empty());
         // A table that stops at 8 A: every edge is reported, none counted.
-        let short = SwitchEnergies {
-            element: "S1".into(),
-            turn_on: table(8.0),
-            turn_off: table(8.0),
-        };
-        let s = switching_loss(&short, &run.waveform, &run.events, 10e-6, 40e-6).unwrap();
-        assert_eq!((s.edges, s.outside.len()), (0, 6));
+        let short = model(table(8.0), table(8.0));
+        let s = switching_loss("S1", &short, &run.waveform, &run.events, 10e-6, 40e-6).unwrap();
+        assert_eq!((s.turn_on + s.turn_off, s.outside.len()), (0.0, 6));
         assert!(s
             .outside
             .iter()
             .all(|o| o.current == 10.0 && o.voltage == 100.0));
+    }
+
+    /// Two curves (50 V and 150 V): at 100 V the energy is the mean of
+    /// the two curves' values at 10 A; a 200 V bus lies outside the table
+    /// and is reported (linear interpolation of datasheet curves; common
+    /// practice).
+    #[test]
+    fn two_curves_interpolate_in_voltage_and_never_extrapolate() {
+        let mut t = table(20.0);
+        let mut upper = t.curves[0].clone();
+        upper.voltage = 150.0;
+        for p in &mut upper.points {
+            p.energy *= 4.0;
+        }
+        t.curves.push(upper);
+        let m = model(t.clone(), t);
+        let run = simulate(&chopper(), 40e-6, Options::default()).unwrap();
+        let s = switching_loss("S1", &m, &run.waveform, &run.events, 10e-6, 40e-6).unwrap();
+        let at_10a = 50e-6 + 250e-6 / 3.0;
+        let e = 0.5 * (at_10a + 4.0 * at_10a);
+        assert!((s.turn_on - 3.0 * e).abs() < 1e-12 * e, "{s:?}");
+        let mut high = chopper();
+        if let Element::VoltageSource(v) = &mut high.elements[0] {
+            v.waveform = Waveform::Constant { value: 200.0 };
+        }
+        let run = simulate(&high, 40e-6, Options::default()).unwrap();
+        let s = switching_loss("S1", &m, &run.waveform, &run.events, 10e-6, 40e-6).unwrap();
+        assert_eq!(s.outside.len(), 6);
+        assert!(s.outside.iter().all(|o| o.voltage == 200.0));
+    }
+
+    /// A switch whose current flows in its body diode's direction, or that
+    /// turns on at zero volts, switches softly: no table energy
+    /// (zero-voltage switching; common practice). The synchronous buck's
+    /// low side turns on and off while its body diode carries the
+    /// inductor current.
+    #[test]
+    fn soft_edges_have_no_table_energy() {
+        let c = Circuit::from_json(include_str!("../../../examples/circuits/sync_buck.json"))
+            .unwrap();
+        let run = simulate(&c, 40e-6, Options::default()).unwrap();
+        let m = model(table(1e3), table(1e3));
+        let s = switching_loss("Q2", &m, &run.waveform, &run.events, 20e-6, 40e-6).unwrap();
+        assert!(s.edges >= 6 && s.soft == s.edges, "{s:?}");
+        assert_eq!(s.turn_on + s.turn_off, 0.0);
+        let hs = switching_loss("Q1", &m, &run.waveform, &run.events, 20e-6, 40e-6).unwrap();
+        assert!(hs.edges >= 6 && hs.soft == 0, "{hs:?}");
+    }
+
+    /// The freewheeling diode is turned off by every switch turn-on while
+    /// it carries the 10 A load: Qrr·Vr per period with Vr = 100 V
+    /// (reverse-recovery energy Qrr·Vr; common practice). The breakdown
+    /// reads `recovered_charge` from the circuit and keeps it out of the
+    /// energy balance.
+    #[test]
+    fn forced_diode_turn_offs_cost_qrr_times_the_reverse_voltage() {
+        let mut c = chopper();
+        for e in &mut c.elements {
+            if let Element::Diode(d) = e {
+                d.model.recovered_charge = Some(50e-9);
+            }
+        }
+        let run = simulate(&c, 40e-6, Options::default()).unwrap();
+        let r = recovery_loss("D1", 50e-9, &run.waveform, &run.events, 10e-6, 40e-6).unwrap();
+        assert_eq!((r.forced, r.natural), (3, 0), "{r:?}");
+        let e = 3.0 * 50e-9 * 100.0;
+        assert!((r.energy - e).abs() < 1e-12 * e, "{r:?}");
+        let opts = LossOptions {
+            loads: vec!["Iload".into()],
+        };
+        let b = breakdown(&c, &run.waveform, &run.events, 10e-6, 40e-6, &opts).unwrap();
+        let p = b.parts.iter().find(|p| p.kind == LossKind::Recovery).unwrap();
+        assert_eq!(p.name, "D1");
+        assert!((p.energy - e).abs() < 1e-12 * e);
+        assert!(b.balance_error() < 1e-9, "{}", b.balance_error());
+    }
+
+    /// In discontinuous conduction the diode's current reaches zero by
+    /// itself: no recovery loss (Erickson & Maksimović, *Fundamentals of
+    /// Power Electronics*, 2nd ed., section 4.3; from memory).
+    #[test]
+    fn a_diode_that_stops_by_itself_has_no_recovery_loss() {
+        let c = Circuit::from_json(include_str!("../../../examples/circuits/buck_dcm.json"))
+            .unwrap();
+        let diode = c
+            .elements
+            .iter()
+            .find_map(|e| match e {
+                Element::Diode(d) => Some(d.name.clone()),
+                _ => None,
+            })
+            .unwrap();
+        let stop = c.run.as_ref().unwrap().stop_time;
+        let run = simulate(&c, stop, Options::default()).unwrap();
+        let r = recovery_loss(&diode, 1e-6, &run.waveform, &run.events, stop / 2.0, stop)
+            .unwrap();
+        assert!(r.natural > 0 && r.forced == 0, "{r:?}");
+        assert_eq!(r.energy, 0.0);
     }
 
     #[test]
@@ -359,20 +455,19 @@ mod switching {
         let c = chopper();
         let run = simulate(&c, 10e-6, Options::default()).unwrap();
         let mut falling = table(20.0);
-        falling.current = vec![0.0, 5.0, 4.0];
+        falling.curves[0].points[2].current = 4.0;
         let mut negative = table(20.0);
-        negative.energy[1] = -1e-6;
-        for (bad, what) in [(falling, "increasing"), (negative, "non-negative")] {
-            let model = SwitchEnergies {
-                element: "S1".into(),
-                turn_on: table(20.0),
-                turn_off: bad,
-            };
-            let e = switching_loss(&model, &run.waveform, &run.events, 0.0, 10e-6).unwrap_err();
+        negative.curves[0].points[1].energy = -1e-6;
+        for (bad, what, field) in [
+            (falling, "increasing", "turn_off.curves[0].points[2].current"),
+            (negative, "not negative", "turn_off.curves[0].points[1].energy"),
+        ] {
+            let m = model(table(20.0), bad);
+            let e = switching_loss("S1", &m, &run.waveform, &run.events, 0.0, 10e-6).unwrap_err();
             assert!(matches!(e, AnalysisError::LossModel { .. }));
             let text = e.to_string();
             assert!(
-                text.contains("S1") && text.contains("turn_off") && text.contains(what),
+                text.contains("S1") && text.contains(field) && text.contains(what),
                 "{text}"
             );
         }

@@ -11,10 +11,13 @@
 //!   over the window;
 //! - **jump** loss: the energy a charge-sharing or flux-conserving jump
 //!   dissipates at its instant (logged with the event);
-//! - **switching** energies of each edge from datasheet tables
-//!   ([`switching`]), added by the caller as [`PartLoss`] entries with
-//!   [`LossReport::add`] (as are reverse-recovery and core losses computed
-//!   elsewhere);
+//! - **switching** energies of each hard edge from a switch's datasheet
+//!   tables (`switching_energy`), **recovery** energy Qrr·Vr of each forced
+//!   diode turn-off (`recovered_charge`) ([`switching`]) and the **core**
+//!   loss of an inductor with a `core` by the iGSE ([`core`]): evaluated
+//!   on the exact solution beside the simulated (ideal or transition-model)
+//!   switching, so not part of the energy balance; the efficiency counts
+//!   them as drawn from the input;
 //! - the **energy balance**: energy delivered by the sources equals the
 //!   energy absorbed by the loads, plus every loss, plus the change of
 //!   stored energy (½·C·v², ½·iᵀ·L·i) — a check of the whole chain;
@@ -29,6 +32,7 @@
 //! before any jump there, so windows of whole periods tile: each jump is
 //! counted in exactly one of them.
 
+pub mod core;
 pub mod switching;
 pub mod thermal;
 
@@ -117,6 +121,9 @@ pub struct LossReport {
     pub stored: (f64, f64),
     /// Every loss, in circuit order, jumps and added losses last.
     pub parts: Vec<PartLoss>,
+    /// Switch edges outside their switching-energy tables (not counted).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub outside_tables: Vec<switching::OutsideTable>,
 }
 
 impl LossReport {
@@ -321,6 +328,7 @@ pub fn breakdown(
         output_energy: 0.0,
         stored: (0.0, 0.0),
         parts: vec![],
+        outside_tables: vec![],
     };
     let conduction = |report: &mut LossReport, part: &str| -> Result<(), AnalysisError> {
         let energy = part_energy(waveform, part, t0, t1)?;
@@ -397,6 +405,36 @@ pub fn breakdown(
                 p.power = p.energy / (t1 - t0);
             }
             None => report.add(ev.element, LossKind::Jump, energy),
+        }
+    }
+    // Losses evaluated beside the simulation, from the parts' data.
+    for e in &circuit.elements {
+        match e {
+            Element::Switch(s) if !is_load(&s.name) => {
+                if let Some(model) = &s.switching_energy {
+                    let l = switching::switching_loss(&s.name, model, waveform, events, t0, t1)?;
+                    report.add(&s.name, LossKind::Switching, l.turn_on + l.turn_off);
+                    report.outside_tables.extend(l.outside);
+                }
+                if let Some(q) = s.body_diode.as_ref().and_then(|d| d.recovered_charge) {
+                    let d = format!("{}.body_diode", s.name);
+                    let l = switching::recovery_loss(&d, q, waveform, events, t0, t1)?;
+                    report.add(&d, LossKind::Recovery, l.energy);
+                }
+            }
+            Element::Diode(d) if !is_load(&d.name) => {
+                if let Some(q) = d.model.recovered_charge {
+                    let l = switching::recovery_loss(&d.name, q, waveform, events, t0, t1)?;
+                    report.add(&d.name, LossKind::Recovery, l.energy);
+                }
+            }
+            Element::Inductor(l) if !is_load(&l.name) => {
+                if let Some(c) = &l.core {
+                    let x = core::core_loss(&l.name, l.inductance, c, waveform, t0, t1)?;
+                    report.add(&format!("{}.core", l.name), LossKind::Core, x.energy);
+                }
+            }
+            _ => {}
         }
     }
     // The recorded value at t0 is the one after any jump there; the jump's

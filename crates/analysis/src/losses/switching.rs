@@ -1,99 +1,32 @@
-//! Switching and reverse-recovery energies from datasheet tables, taken at
+//! Switching and reverse-recovery energies from datasheet data, taken at
 //! the exact switched current and blocking voltage of every edge.
 //!
 //! A switch's turn-off switches the current it carried just before the
 //! edge against the voltage it blocks just after; a turn-on the reverse
 //! (current just after, voltage just before). Both values come from the
-//! exact solution at the edge's instant. The energy is read from a table
-//! of energy against current by linear interpolation, scaled linearly
-//! from the table's reference voltage (common practice with datasheet
-//! curves measured at one voltage). A diode's reverse-recovery energy is
-//! taken as Qrr·Vr with Vr the reverse voltage just after it stops
-//! conducting (common practice). Edges outside a table are reported, never
-//! extrapolated.
+//! exact solution at the edge's instant, and the energy is read from the
+//! switch's [`EnergyTable`]s (linear interpolation; one curve scales
+//! linearly from its voltage, common practice with datasheet curves). Only
+//! hard edges dissipate: a switched current that is not positive (the
+//! current flows in the body diode's direction) or a blocking voltage
+//! that is not positive (a diode clamps the switch near zero volts) is a
+//! soft edge, counted with zero energy (zero-voltage or zero-current
+//! switching). Edges outside a table are reported, never extrapolated.
+//!
+//! A diode's reverse-recovery energy is taken as Qrr·Vr, with Vr the
+//! reverse voltage just after it stops conducting, at each turn-off forced
+//! while it still carried current (common practice). A diode whose current
+//! falls to zero by itself (discontinuous conduction) has no recovery
+//! loss: its charge is gone before the reverse voltage appears
+//! (R. W. Erickson & D. Maksimović, *Fundamentals of Power Electronics*,
+//! 2nd ed., 2001, section 4.3; from memory).
 
 use serde::{Deserialize, Serialize};
 
-use fluxstep_solver::{EventKind, EventLog, Waveform};
+pub use fluxstep_netlist::{EnergyCurve, EnergyPoint, EnergyTable, SwitchingEnergy};
+use fluxstep_solver::{EventKind, EventLog, OutputId, Waveform};
 
 use crate::AnalysisError;
-
-/// Energy (J) against switched current (A), measured at `reference_voltage`.
-#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
-pub struct EnergyTable {
-    /// Switched currents (A), strictly increasing, non-negative.
-    pub current: Vec<f64>,
-    /// Energies (J) at those currents, finite and non-negative.
-    pub energy: Vec<f64>,
-    /// The blocking voltage the table was measured at (V), positive; the
-    /// energy scales by V/`reference_voltage`.
-    pub reference_voltage: f64,
-}
-
-impl EnergyTable {
-    /// Checks the table, naming `element` and `field` in the error.
-    ///
-    /// # Errors
-    ///
-    /// [`AnalysisError::LossModel`] for fewer than two points, lengths that
-    /// differ, currents that are negative or not strictly increasing,
-    /// energies that are negative or not finite, or a reference voltage
-    /// that is not positive.
-    pub fn validate(&self, element: &str, field: &str) -> Result<(), AnalysisError> {
-        let bad = |what: String| {
-            Err(AnalysisError::LossModel {
-                element: element.into(),
-                field: field.into(),
-                reason: what,
-            })
-        };
-        if self.current.len() < 2 || self.current.len() != self.energy.len() {
-            return bad(format!(
-                "needs at least two points and as many energies as currents, got {} and {}",
-                self.current.len(),
-                self.energy.len()
-            ));
-        }
-        if !self.current.iter().all(|i| i.is_finite() && *i >= 0.0)
-            || self.current.windows(2).any(|w| w[1] <= w[0])
-        {
-            return bad("currents must be non-negative and strictly increasing".into());
-        }
-        if !self.energy.iter().all(|e| e.is_finite() && *e >= 0.0) {
-            return bad("energies must be finite and non-negative".into());
-        }
-        if !(self.reference_voltage.is_finite() && self.reference_voltage > 0.0) {
-            return bad(format!(
-                "reference_voltage must be positive, got {}",
-                self.reference_voltage
-            ));
-        }
-        Ok(())
-    }
-
-    /// The energy at current `i` and blocking voltage `v`; `None` outside
-    /// the table's current range.
-    pub fn at(&self, i: f64, v: f64) -> Option<f64> {
-        let (c, e) = (&self.current, &self.energy);
-        if !(i >= c[0] && i <= c[c.len() - 1]) {
-            return None;
-        }
-        let k = c.partition_point(|x| *x <= i).clamp(1, c.len() - 1);
-        let s = (i - c[k - 1]) / (c[k] - c[k - 1]);
-        Some((e[k - 1] + s * (e[k] - e[k - 1])) * v / self.reference_voltage)
-    }
-}
-
-/// The switching model of one switch.
-#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
-pub struct SwitchEnergies {
-    /// The switch.
-    pub element: String,
-    /// Turn-on energy.
-    pub turn_on: EnergyTable,
-    /// Turn-off energy.
-    pub turn_off: EnergyTable,
-}
 
 /// One edge that fell outside its table.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
@@ -119,46 +52,54 @@ pub struct SwitchingLoss {
     pub turn_on: f64,
     /// Sum of turn-off energies (J).
     pub turn_off: f64,
-    /// Edges counted.
+    /// Edges in the window, hard and soft.
     pub edges: usize,
+    /// Soft edges (switched current or blocking voltage not positive):
+    /// zero energy.
+    pub soft: usize,
     /// Edges outside the tables (not counted).
     pub outside: Vec<OutsideTable>,
 }
 
-/// Switching energy of `model`'s switch over `[t0, t1)`, each edge taken
-/// at its exact switched current and blocking voltage.
+/// Switching energy of switch `element` with datasheet tables `model`
+/// over `[t0, t1)`, each edge taken at its exact switched current and
+/// blocking voltage (module notes: hard and soft edges).
 ///
 /// # Errors
 ///
-/// [`AnalysisError::LossModel`] for an invalid table; [`AnalysisError::UnknownOutput`]
-/// when the switch's current or voltage is not recorded.
+/// [`AnalysisError::LossModel`] for an invalid table (naming the field);
+/// [`AnalysisError::UnknownOutput`] when the switch's current or voltage
+/// is not recorded.
 pub fn switching_loss(
-    model: &SwitchEnergies,
+    element: &str,
+    model: &SwitchingEnergy,
     waveform: &Waveform,
     events: &EventLog,
     t0: f64,
     t1: f64,
 ) -> Result<SwitchingLoss, AnalysisError> {
-    model.turn_on.validate(&model.element, "turn_on")?;
-    model.turn_off.validate(&model.element, "turn_off")?;
-    let output = |q: &str| {
-        let name = format!("{}.{q}", model.element);
-        waveform
-            .output(&name)
-            .map_err(|_| AnalysisError::UnknownOutput {
-                name,
-                valid: waveform.output_names().to_vec(),
-            })
-    };
-    let (iv, vv) = (output("current")?, output("voltage")?);
+    for (edge, t) in [("turn_on", &model.turn_on), ("turn_off", &model.turn_off)] {
+        if let Some((at, reason)) = t.problem() {
+            return Err(AnalysisError::LossModel {
+                element: element.into(),
+                field: format!("switching_energy.{edge}.{at}"),
+                reason,
+            });
+        }
+    }
+    let (iv, vv) = (
+        output(waveform, &format!("{element}.current"))?,
+        output(waveform, &format!("{element}.voltage"))?,
+    );
     let mut out = SwitchingLoss {
-        element: model.element.clone(),
+        element: element.into(),
         turn_on: 0.0,
         turn_off: 0.0,
         edges: 0,
+        soft: 0,
         outside: vec![],
     };
-    for ev in events.of(&model.element) {
+    for ev in events.of(element) {
         let on = match ev.kind {
             EventKind::SwitchOn => true,
             EventKind::SwitchOff => false,
@@ -177,19 +118,17 @@ pub fn switching_loss(
         } else {
             (before(iv), after(vv))
         };
-        let (i, v) = (i.abs(), v.abs());
+        out.edges += 1;
+        if !(i > 0.0 && v > 0.0) {
+            out.soft += 1;
+            continue;
+        }
         let table = if on { &model.turn_on } else { &model.turn_off };
         match table.at(i, v) {
-            Some(e) => {
-                out.edges += 1;
-                if on {
-                    out.turn_on += e;
-                } else {
-                    out.turn_off += e;
-                }
-            }
+            Some(e) if on => out.turn_on += e,
+            Some(e) => out.turn_off += e,
             None => out.outside.push(OutsideTable {
-                element: model.element.clone(),
+                element: element.into(),
                 time: ev.time,
                 on,
                 current: i,
@@ -198,4 +137,75 @@ pub fn switching_loss(
         }
     }
     Ok(out)
+}
+
+/// Reverse-recovery energy of diode `diode` (a diode element, or a body
+/// diode `SWITCH.body_diode`) with recovered charge `qrr` (C) over
+/// `[t0, t1)`: Qrr·Vr at each turn-off forced while it carried current
+/// (module notes).
+///
+/// # Errors
+///
+/// [`AnalysisError::UnknownOutput`] when the diode's current or voltage is
+/// not recorded.
+pub fn recovery_loss(
+    diode: &str,
+    qrr: f64,
+    waveform: &Waveform,
+    events: &EventLog,
+    t0: f64,
+    t1: f64,
+) -> Result<RecoveryLoss, AnalysisError> {
+    let (iv, vv) = (
+        output(waveform, &format!("{diode}.current"))?,
+        output(waveform, &format!("{diode}.voltage"))?,
+    );
+    let mut out = RecoveryLoss {
+        element: diode.into(),
+        energy: 0.0,
+        forced: 0,
+        natural: 0,
+    };
+    // A current left by a located zero crossing is rounding noise of the
+    // diode's largest current in the window; a forced turn-off cuts a
+    // current of the circuit's own size.
+    let peak = fluxstep_solver::measure::measure(waveform, iv, t0, t1)
+        .map(|m| m.min.abs().max(m.max.abs()))
+        .unwrap_or(0.0);
+    for ev in events.of(diode) {
+        if ev.kind != EventKind::DiodeOff || !(ev.time >= t0 && ev.time < t1) {
+            continue;
+        }
+        let i = waveform.value_before(iv, ev.time).unwrap_or(0.0);
+        if i > 1e-6 * peak {
+            let vr = -waveform.value(vv, ev.time).unwrap_or(0.0);
+            out.energy += qrr * vr.max(0.0);
+            out.forced += 1;
+        } else {
+            out.natural += 1;
+        }
+    }
+    Ok(out)
+}
+
+/// Reverse-recovery energy of one diode over a window.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct RecoveryLoss {
+    /// The diode.
+    pub element: String,
+    /// Sum of Qrr·Vr over the forced turn-offs (J).
+    pub energy: f64,
+    /// Turn-offs forced while the diode carried current.
+    pub forced: usize,
+    /// Turn-offs at zero current (no recovery loss).
+    pub natural: usize,
+}
+
+fn output(waveform: &Waveform, name: &str) -> Result<OutputId, AnalysisError> {
+    waveform
+        .output(name)
+        .map_err(|_| AnalysisError::UnknownOutput {
+            name: name.into(),
+            valid: waveform.output_names().to_vec(),
+        })
 }
