@@ -2,6 +2,9 @@
 
 /// Shared circuits and helpers.
 mod common;
+/// Core loss by the iGSE against the Steinmetz equation (sinusoidal
+/// flux) and the piecewise-linear closed form (triangular flux).
+mod core_loss;
 /// Losses: the energy balance on every example circuit, conduction losses
 /// of switches, diodes, ESR and winding resistance against closed forms,
 /// jump energies, loads and efficiency, bad input.
