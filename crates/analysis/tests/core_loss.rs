@@ -84,7 +84,10 @@ fn triangular_flux_matches_the_piecewise_linear_closed_form() {
         let m = core(1.5, 2.5);
         let x = core_loss("L1", l, &m, &run.waveform, 3.0 * period, 4.0 * period).unwrap();
         let swing = vp * d * period / (m.turns * m.area);
-        assert!((x.flux_density_swing - swing).abs() < 1e-12 * swing, "{x:?}");
+        assert!(
+            (x.flux_density_swing - swing).abs() < 1e-12 * swing,
+            "{x:?}"
+        );
         let ki = igse_ki(m.k, m.alpha, m.beta);
         let closed = ki
             * swing.powf(m.beta)

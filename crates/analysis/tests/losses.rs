@@ -388,8 +388,8 @@ mod switching {
     /// inductor current.
     #[test]
     fn soft_edges_have_no_table_energy() {
-        let c = Circuit::from_json(include_str!("../../../examples/circuits/sync_buck.json"))
-            .unwrap();
+        let c =
+            Circuit::from_json(include_str!("../../../examples/circuits/sync_buck.json")).unwrap();
         let run = simulate(&c, 40e-6, Options::default()).unwrap();
         let m = model(table(1e3), table(1e3));
         let s = switching_loss("Q2", &m, &run.waveform, &run.events, 20e-6, 40e-6).unwrap();
@@ -421,7 +421,11 @@ mod switching {
             loads: vec!["Iload".into()],
         };
         let b = breakdown(&c, &run.waveform, &run.events, 10e-6, 40e-6, &opts).unwrap();
-        let p = b.parts.iter().find(|p| p.kind == LossKind::Recovery).unwrap();
+        let p = b
+            .parts
+            .iter()
+            .find(|p| p.kind == LossKind::Recovery)
+            .unwrap();
         assert_eq!(p.name, "D1");
         assert!((p.energy - e).abs() < 1e-12 * e);
         assert!(b.balance_error() < 1e-9, "{}", b.balance_error());
@@ -432,8 +436,8 @@ mod switching {
     /// Power Electronics*, 2nd ed., section 4.3; from memory).
     #[test]
     fn a_diode_that_stops_by_itself_has_no_recovery_loss() {
-        let c = Circuit::from_json(include_str!("../../../examples/circuits/buck_dcm.json"))
-            .unwrap();
+        let c =
+            Circuit::from_json(include_str!("../../../examples/circuits/buck_dcm.json")).unwrap();
         let diode = c
             .elements
             .iter()
@@ -444,8 +448,7 @@ mod switching {
             .unwrap();
         let stop = c.run.as_ref().unwrap().stop_time;
         let run = simulate(&c, stop, Options::default()).unwrap();
-        let r = recovery_loss(&diode, 1e-6, &run.waveform, &run.events, stop / 2.0, stop)
-            .unwrap();
+        let r = recovery_loss(&diode, 1e-6, &run.waveform, &run.events, stop / 2.0, stop).unwrap();
         assert!(r.natural > 0 && r.forced == 0, "{r:?}");
         assert_eq!(r.energy, 0.0);
     }
@@ -459,8 +462,16 @@ mod switching {
         let mut negative = table(20.0);
         negative.curves[0].points[1].energy = -1e-6;
         for (bad, what, field) in [
-            (falling, "increasing", "turn_off.curves[0].points[2].current"),
-            (negative, "not negative", "turn_off.curves[0].points[1].energy"),
+            (
+                falling,
+                "increasing",
+                "turn_off.curves[0].points[2].current",
+            ),
+            (
+                negative,
+                "not negative",
+                "turn_off.curves[0].points[1].energy",
+            ),
         ] {
             let m = model(table(20.0), bad);
             let e = switching_loss("S1", &m, &run.waveform, &run.events, 0.0, 10e-6).unwrap_err();

@@ -78,7 +78,10 @@ impl EnergyTable {
         for (k, c) in self.curves.iter().enumerate() {
             let at = |f: &str| format!("curves[{k}].{f}");
             if !(c.voltage.is_finite() && c.voltage > 0.0) {
-                return Some((at("voltage"), format!("must be positive, got {}", c.voltage)));
+                return Some((
+                    at("voltage"),
+                    format!("must be positive, got {}", c.voltage),
+                ));
             }
             if k > 0 && c.voltage <= self.curves[k - 1].voltage {
                 return Some((
@@ -145,7 +148,9 @@ impl EnergyTable {
                 if !(v >= cs[0].voltage && v <= cs[cs.len() - 1].voltage) {
                     return None;
                 }
-                let k = cs.partition_point(|c| c.voltage <= v).clamp(1, cs.len() - 1);
+                let k = cs
+                    .partition_point(|c| c.voltage <= v)
+                    .clamp(1, cs.len() - 1);
                 let (a, b) = (&cs[k - 1], &cs[k]);
                 let (ea, eb) = (along(a)?, along(b)?);
                 let s = (v - a.voltage) / (b.voltage - a.voltage);

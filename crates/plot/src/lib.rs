@@ -30,6 +30,8 @@
 //! - [`si_scale`], [`nice_ticks`], [`format_si`], [`format_si_digits`],
 //!   [`format_si_short`]: the number formatting of the whole project (SI
 //!   prefixes, 1-2-5 tick steps); the command line prints with them too.
+//! - [`loss_chart_svg`]: the loss breakdown as stacked horizontal bars,
+//!   one per part, split by mechanism ([`LossBar`]).
 //! - [`PlotError`]: every failure, naming the panel, trace or time at fault.
 //!
 //! Dense traces are thinned for display only when they hold more than
@@ -72,6 +74,7 @@
 // Every public item is part of the figure contract other crates build on.
 #![deny(missing_docs)]
 
+mod bars;
 mod bode;
 mod error;
 mod model;
@@ -80,6 +83,7 @@ mod render;
 mod review;
 mod scale;
 
+pub use bars::{loss_chart_svg, LossBar, MECHANISMS};
 pub use bode::{bode_figure, unwrap_phase, BodeMarks, BodePoint};
 pub use error::PlotError;
 pub use model::{Annotation, Figure, Panel, Trace};

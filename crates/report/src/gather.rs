@@ -4,11 +4,11 @@
 //! facts for the page; only what makes a page impossible is an error.
 
 use fluxstep_analysis::losses::thermal::{junction_temperature, JunctionTemperature, ThermalStart};
-use fluxstep_analysis::losses::{breakdown, LossOptions, LossReport};
+use fluxstep_analysis::losses::{breakdown, has_loss_data, loads, LossOptions, LossReport};
 use fluxstep_analysis::response::{log_frequencies, loop_gain, BreakPoint, LoopGain};
 use fluxstep_analysis::steady::{find, SteadyOptions, SteadyState};
 use fluxstep_analysis::sweep::{RunOptions, Summary, Sweep};
-use fluxstep_netlist::{is_ground, Circuit, Element};
+use fluxstep_netlist::{Circuit, Element};
 use fluxstep_solver::measure::{measure, Measurement};
 use fluxstep_solver::{Options, Record, RunResult, Simulator, SolverError};
 
@@ -97,64 +97,6 @@ fn outputs(c: &Circuit) -> Vec<String> {
         }
     }
     v
-}
-
-/// The loads for the efficiency: resistors from the ripple output node
-/// (`out` unless the limits name another) to ground, and those reached
-/// from it through one switch (a switched load step).
-pub(crate) fn loads(c: &Circuit) -> Vec<String> {
-    let node = c
-        .run
-        .as_ref()
-        .and_then(|r| r.limits.as_ref())
-        .map(|l| l.ripple_output().to_string())
-        .unwrap_or_else(|| "out".into());
-    let mut load_nodes = vec![node.clone()];
-    for e in &c.elements {
-        if let Element::Switch(s) = e {
-            if s.nodes[0] == node && !is_ground(&s.nodes[1]) {
-                load_nodes.push(s.nodes[1].clone());
-            } else if s.nodes[1] == node && !is_ground(&s.nodes[0]) {
-                load_nodes.push(s.nodes[0].clone());
-            }
-        }
-    }
-    let on_load = |n: &str| load_nodes.iter().any(|x| x == n);
-    c.elements
-        .iter()
-        .filter_map(|e| match e {
-            Element::Resistor(r)
-                if (on_load(&r.nodes[0]) && is_ground(&r.nodes[1]))
-                    || (on_load(&r.nodes[1]) && is_ground(&r.nodes[0])) =>
-            {
-                Some(r.name.clone())
-            }
-            _ => None,
-        })
-        .collect()
-}
-
-/// Whether a part of the circuit dissipates: a field that models a loss
-/// (on-resistance, forward drop, ESR, winding resistance) or a resistor
-/// that is not a load.
-fn has_loss_data(c: &Circuit, loads: &[String]) -> bool {
-    let some = |v: Option<f64>| v.is_some_and(|x| x != 0.0);
-    c.elements.iter().any(|e| match e {
-        Element::Resistor(r) => !loads.contains(&r.name),
-        Element::Switch(s) => {
-            some(s.on_resistance)
-                || s.body_diode
-                    .as_ref()
-                    .is_some_and(|d| some(d.forward_voltage) || some(d.on_resistance))
-        }
-        Element::Diode(d) => some(d.model.forward_voltage) || some(d.model.on_resistance),
-        other => {
-            let v = serde_json::to_value(other).unwrap_or_default();
-            ["esr", "winding_resistance"]
-                .iter()
-                .any(|k| v.get(k).and_then(|x| x.as_f64()).is_some_and(|x| x != 0.0))
-        }
-    })
 }
 
 /// A transient per the file's run settings, recording `[from, stop]`.

@@ -51,7 +51,6 @@
 // Every public item is part of the embedding API.
 #![deny(missing_docs)]
 
-mod chart;
 mod gather;
 mod page;
 mod sheet;

@@ -7,14 +7,14 @@ use std::fmt::Write as _;
 
 use fluxstep_netlist::{Circuit, DesignLimits, OutputName};
 use fluxstep_plot::{
-    bode_figure, format_si_short, render_svg, review_figure, BodeMarks, BodePoint, ReviewOptions,
+    bode_figure, format_si_short, loss_chart_svg, render_svg, review_figure, BodeMarks, BodePoint,
+    LossBar, ReviewOptions,
 };
 use fluxstep_solver::measure::{without_rounding_noise, Measurement};
 use fluxstep_solver::{EventCause, EventKind};
 use serde_json::Value;
 use sha2::{Digest, Sha256};
 
-use crate::chart::loss_bars;
 use crate::gather::{Basis, Facts};
 use crate::sheet::{esc, key, Sheet};
 use crate::{Report, ReportOptions};
@@ -726,12 +726,14 @@ pub(crate) fn render(
                 }
                 None => b.push_str(". No load resistor from the output node to ground, so the efficiency is not defined.</p>"),
             }
-            let mut parts: BTreeMap<String, f64> = BTreeMap::new();
-            for p in &r.parts {
-                *parts.entry(p.name.clone()).or_default() += p.power;
-            }
-            let mut bars: Vec<(String, f64)> = parts.into_iter().collect();
-            bars.sort_by(|x, y| y.1.abs().total_cmp(&x.1.abs()).then(x.0.cmp(&y.0)));
+            let bars: Vec<LossBar> = r
+                .by_part()
+                .into_iter()
+                .map(|t| LossBar {
+                    part: t.part,
+                    by_kind: t.by_kind,
+                })
+                .collect();
             b.push_str("<table class=\"narrow\"><thead><tr><th>part</th><th>kind</th><th class=\"n\">average loss</th></tr></thead><tbody>");
             for p in &r.parts {
                 let kind = serde_json::to_value(p.kind)
@@ -753,8 +755,8 @@ pub(crate) fn render(
             b.push_str("</tbody></table>");
             let _ = write!(
                 b,
-                "<figure>{}<figcaption>Average loss by part.</figcaption></figure>",
-                loss_bars(&bars)
+                "<figure>{}<figcaption>Average loss by part and mechanism.</figcaption></figure>",
+                loss_chart_svg(None, &bars)
             );
         }
     }

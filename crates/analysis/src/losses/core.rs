@@ -142,13 +142,7 @@ fn kronrod(a: f64, b: f64, f: &dyn Fn(&[f64]) -> Vec<f64>) -> (f64, f64) {
 
 /// ∫ f over [a, b], bisecting until each piece's error estimate is below
 /// `tol` times its share of `scale` (the length `span`).
-fn adaptive(
-    a: f64,
-    b: f64,
-    span: f64,
-    tol: f64,
-    f: &dyn Fn(&[f64]) -> Vec<f64>,
-) -> f64 {
+fn adaptive(a: f64, b: f64, span: f64, tol: f64, f: &dyn Fn(&[f64]) -> Vec<f64>) -> f64 {
     let mut total = 0.0;
     let mut stack = vec![(a, b, 0u32)];
     while let Some((a, b, depth)) = stack.pop() {
@@ -202,7 +196,13 @@ pub fn core_loss(
             .values(vv, t, Side::After)
             .unwrap_or_else(|_| vec![f64::NAN; t.len()])
             .into_iter()
-            .map(|v| if v.is_finite() { (v / na).abs().powf(alpha) } else { 0.0 })
+            .map(|v| {
+                if v.is_finite() {
+                    (v / na).abs().powf(alpha)
+                } else {
+                    0.0
+                }
+            })
             .collect()
     };
     let span = t1 - t0;

@@ -38,7 +38,7 @@ pub mod thermal;
 
 use serde::{Deserialize, Serialize};
 
-use fluxstep_netlist::{Circuit, Element};
+use fluxstep_netlist::{is_ground, Circuit, Element};
 use fluxstep_solver::measure::{element_energy, part_energy};
 use fluxstep_solver::{EventKind, EventLog, Waveform};
 
@@ -256,6 +256,123 @@ impl LossReport {
             power: energy / self.duration(),
         });
     }
+}
+
+/// One part's average loss by mechanism, for a chart or a table.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct PartTotals {
+    /// The part, as in [`PartLoss::name`].
+    pub part: String,
+    /// `(mechanism, W)`: `conduction`, `switching` (tables and transition
+    /// models together), `recovery`, `core`, `jump`, each present once at
+    /// most, in that order.
+    pub by_kind: Vec<(String, f64)>,
+    /// The sum (W).
+    pub total: f64,
+}
+
+impl LossReport {
+    /// Average loss of each part by mechanism, largest total first (ties
+    /// by name).
+    pub fn by_part(&self) -> Vec<PartTotals> {
+        const ORDER: [&str; 5] = ["conduction", "switching", "recovery", "core", "jump"];
+        let mut out: Vec<PartTotals> = vec![];
+        for p in &self.parts {
+            let kind = match p.kind {
+                LossKind::Conduction => "conduction",
+                LossKind::Switching | LossKind::Transition => "switching",
+                LossKind::Recovery => "recovery",
+                LossKind::Core => "core",
+                LossKind::Jump => "jump",
+            };
+            let at = match out.iter().position(|t| t.part == p.name) {
+                Some(k) => k,
+                None => {
+                    out.push(PartTotals {
+                        part: p.name.clone(),
+                        by_kind: vec![],
+                        total: 0.0,
+                    });
+                    out.len() - 1
+                }
+            };
+            let t = &mut out[at];
+            match t.by_kind.iter_mut().find(|k| k.0 == kind) {
+                Some(k) => k.1 += p.power,
+                None => t.by_kind.push((kind.into(), p.power)),
+            }
+            t.total += p.power;
+        }
+        for t in &mut out {
+            t.by_kind
+                .sort_by_key(|k| ORDER.iter().position(|o| *o == k.0));
+        }
+        out.sort_by(|x, y| y.total.total_cmp(&x.total).then(x.part.cmp(&y.part)));
+        out
+    }
+}
+
+/// The converter's loads for the efficiency: the file's `run.loads` when
+/// it names any, else the resistors from the output node (`out`, or the
+/// ripple output of the file's design limits) to ground, and those reached
+/// from it through one switch (a switched load step).
+pub fn loads(c: &Circuit) -> Vec<String> {
+    if let Some(run) = c.run.as_ref().filter(|r| !r.loads.is_empty()) {
+        return run.loads.clone();
+    }
+    let node = c
+        .run
+        .as_ref()
+        .and_then(|r| r.limits.as_ref())
+        .map(|l| l.ripple_output().to_string())
+        .unwrap_or_else(|| "out".into());
+    let mut load_nodes = vec![node.clone()];
+    for e in &c.elements {
+        if let Element::Switch(s) = e {
+            if s.nodes[0] == node && !is_ground(&s.nodes[1]) {
+                load_nodes.push(s.nodes[1].clone());
+            } else if s.nodes[1] == node && !is_ground(&s.nodes[0]) {
+                load_nodes.push(s.nodes[0].clone());
+            }
+        }
+    }
+    let on_load = |n: &str| load_nodes.iter().any(|x| x == n);
+    c.elements
+        .iter()
+        .filter_map(|e| match e {
+            Element::Resistor(r)
+                if (on_load(&r.nodes[0]) && is_ground(&r.nodes[1]))
+                    || (on_load(&r.nodes[1]) && is_ground(&r.nodes[0])) =>
+            {
+                Some(r.name.clone())
+            }
+            _ => None,
+        })
+        .collect()
+}
+
+/// Whether a part of the circuit dissipates or has loss data: a field
+/// that models a loss (on-resistance, forward drop, ESR, winding
+/// resistance, switching-energy tables, recovered charge, a core, a
+/// transition model) or a resistor that is not one of `loads`.
+pub fn has_loss_data(c: &Circuit, loads: &[String]) -> bool {
+    let some = |v: Option<f64>| v.is_some_and(|x| x != 0.0);
+    let diode = |d: &fluxstep_netlist::DiodeModel| {
+        some(d.forward_voltage) || some(d.on_resistance) || some(d.recovered_charge)
+    };
+    c.elements.iter().any(|e| match e {
+        Element::Resistor(r) => !loads.contains(&r.name),
+        Element::Switch(s) => {
+            some(s.on_resistance)
+                || s.switching_energy.is_some()
+                || s.transition.is_some()
+                || s.body_diode.as_ref().is_some_and(diode)
+        }
+        Element::Diode(d) => diode(&d.model),
+        Element::Capacitor(x) => some(x.esr),
+        Element::Inductor(l) => some(l.winding_resistance) || l.core.is_some(),
+        _ => false,
+    })
 }
 
 /// The loss breakdown of a run over `[t0, t1]`.
