@@ -23,6 +23,7 @@ use fluxstep_netlist::NetlistError;
 mod check;
 mod compare;
 mod input;
+mod losses;
 mod report;
 mod response;
 mod run;
@@ -123,7 +124,8 @@ fn main() -> ExitCode {
         Err(err)
             if err.downcast_ref::<run::Stopped>().is_some()
                 || err.downcast_ref::<steady::NotFound>().is_some()
-                || err.downcast_ref::<report::LimitsFailed>().is_some() =>
+                || err.downcast_ref::<report::LimitsFailed>().is_some()
+                || err.downcast_ref::<losses::BalanceFailed>().is_some() =>
         {
             eprintln!("error: {err}");
             ExitCode::from(EXIT_STOPPED)

@@ -395,6 +395,19 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
             v
         }).collect::<Vec<_>>(),
     });
+    // The energy balance of the window, and the losses where the circuit
+    // has loss data (docs/outputs.md).
+    let title0 = args
+        .file
+        .file_stem()
+        .map(|s| s.to_string_lossy().into_owned())
+        .unwrap_or_default();
+    let losses = crate::losses::section(&circuit, w, &result.events, (a, b), false, &title0);
+    summary["losses"] = losses.json.clone();
+    if let Some(svg) = &losses.chart {
+        let path = dir.join("losses.svg");
+        std::fs::write(&path, svg).map_err(write_failed(&path))?;
+    }
     if let Some(e) = &stopped {
         summary["stopped"] = serde_json::json!({
             "time": e.time(),
@@ -453,14 +466,21 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
             &measurements
         )
     );
+    print!("{}", losses.text);
     println!(
-        "  written: {}/{{waveform.csv, events.json, summary.json, figure.svg}}",
-        dir.display()
+        "  written: {}/{{waveform.csv, events.json, summary.json, figure.svg{}}}",
+        dir.display(),
+        if losses.chart.is_some() {
+            ", losses.svg"
+        } else {
+            ""
+        }
     );
-    match (stopped, violated) {
-        (Some(e), _) => Err(anyhow::Error::new(Stopped(e))),
-        (None, Some(v)) => Err(anyhow::Error::new(v)),
-        (None, None) => Ok(()),
+    match (stopped, violated, losses.failed) {
+        (Some(e), _, _) => Err(anyhow::Error::new(Stopped(e))),
+        (None, Some(v), _) => Err(anyhow::Error::new(v)),
+        (None, None, Some(f)) => Err(anyhow::Error::new(f)),
+        (None, None, None) => Ok(()),
     }
 }
 

@@ -193,6 +193,18 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
         "multipliers": ss.multipliers,
         "measurements": measurements,
     });
+    let losses = crate::losses::section(
+        &circuit,
+        w,
+        &ss.run.events,
+        (a, b),
+        true,
+        &format!("{stem}: periodic steady state"),
+    );
+    summary["losses"] = losses.json.clone();
+    if let Some(svg) = &losses.chart {
+        write("losses.svg", svg.clone())?;
+    }
     let violated = timing.and_then(|(value, err)| {
         summary["timing"] = value;
         err
@@ -259,14 +271,22 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
             words(m.reading)
         );
     }
+    print!("{}", losses.text);
     println!(
-        "  written: {}/{{waveform.csv, events.json, summary.json, figure.svg}}",
-        dir.display()
+        "  written: {}/{{waveform.csv, events.json, summary.json, figure.svg{}}}",
+        dir.display(),
+        if losses.chart.is_some() {
+            ", losses.svg"
+        } else {
+            ""
+        }
     );
-    // A violated timing rule exits 1 once every file is written.
-    match violated {
-        Some(e) => Err(anyhow::Error::new(e)),
-        None => Ok(()),
+    // A violated timing rule or a failed energy balance exits 1 once every
+    // file is written.
+    match (violated, losses.failed) {
+        (Some(e), _) => Err(anyhow::Error::new(e)),
+        (None, Some(f)) => Err(anyhow::Error::new(f)),
+        (None, None) => Ok(()),
     }
 }
 
