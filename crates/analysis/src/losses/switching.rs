@@ -14,8 +14,11 @@
 //! switching). Edges outside a table are reported, never extrapolated.
 //!
 //! A diode's reverse-recovery energy is taken as Qrr·Vr, with Vr the
-//! reverse voltage just after it stops conducting, at each turn-off forced
-//! while it still carried current (common practice). A diode whose current
+//! reverse voltage just after it stops conducting, at each forced turn-off
+//! (common practice): one that cuts the current it still carried (an
+//! ideal switch closing), or one inside a switch's turn-on transition,
+//! whose rising current took the diode's over (there Vr is the reverse
+//! voltage at the transition's end, when the switch's voltage has fallen). A diode whose current
 //! falls to zero by itself (discontinuous conduction) has no recovery
 //! loss: its charge is gone before the reverse voltage appears
 //! (R. W. Erickson & D. Maksimović, *Fundamentals of Power Electronics*,
@@ -141,8 +144,7 @@ pub fn switching_loss(
 
 /// Reverse-recovery energy of diode `diode` (a diode element, or a body
 /// diode `SWITCH.body_diode`) with recovered charge `qrr` (C) over
-/// `[t0, t1)`: Qrr·Vr at each turn-off forced while it carried current
-/// (module notes).
+/// `[t0, t1)`: Qrr·Vr at each forced turn-off (module notes).
 ///
 /// # Errors
 ///
@@ -172,18 +174,41 @@ pub fn recovery_loss(
     let peak = fluxstep_solver::measure::measure(waveform, iv, t0, t1)
         .map(|m| m.min.abs().max(m.max.abs()))
         .unwrap_or(0.0);
+    // Turn-on transitions of every switch: a diode whose current a
+    // switch's rising current takes over stops inside one of them.
+    let mut switches: Vec<&str> = events
+        .of_kind(EventKind::SwitchOn)
+        .map(|e| e.element)
+        .collect();
+    switches.sort_unstable();
+    switches.dedup();
+    let turn_ons: Vec<(f64, f64)> = switches
+        .iter()
+        .flat_map(|s| waveform.transition_spans(s))
+        .filter(|s| s.turn_on)
+        .map(|s| (s.t0, s.t1))
+        .collect();
     for ev in events.of(diode) {
         if ev.kind != EventKind::DiodeOff || !(ev.time >= t0 && ev.time < t1) {
             continue;
         }
         let i = waveform.value_before(iv, ev.time).unwrap_or(0.0);
-        if i > 1e-6 * peak {
-            let vr = -waveform.value(vv, ev.time).unwrap_or(0.0);
-            out.energy += qrr * vr.max(0.0);
-            out.forced += 1;
-        } else {
-            out.natural += 1;
+        let commutated = turn_ons
+            .iter()
+            .find(|&&(a, b)| ev.time >= a && ev.time <= b);
+        if i > 1e-6 * peak || commutated.is_some() {
+            // Inside a transition the reverse voltage builds up as the
+            // switch's voltage falls: the diode blocks it fully at the
+            // transition's end.
+            let at = commutated.map_or(ev.time, |s| s.1);
+            let vr = -waveform.value(vv, at).unwrap_or(0.0);
+            if vr > 0.0 {
+                out.energy += qrr * vr;
+                out.forced += 1;
+                continue;
+            }
         }
+        out.natural += 1;
     }
     Ok(out)
 }
@@ -195,9 +220,11 @@ pub struct RecoveryLoss {
     pub element: String,
     /// Sum of Qrr·Vr over the forced turn-offs (J).
     pub energy: f64,
-    /// Turn-offs forced while the diode carried current.
+    /// Forced turn-offs into a reverse voltage (module notes): each costs
+    /// Qrr·Vr.
     pub forced: usize,
-    /// Turn-offs at zero current (no recovery loss).
+    /// Turn-offs without recovery loss: at zero current, or with no reverse
+    /// voltage after (a parallel channel took the current over).
     pub natural: usize,
 }
 
