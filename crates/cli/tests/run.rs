@@ -223,7 +223,11 @@ fn issue_13_summary_table_has_units() {
     assert!(row("L1.current").contains("2.000 A"), "{out}");
     assert!(row("sw").contains("24.00 V"), "{out}");
     assert!(row("out").contains(" mV"), "{out}");
-    let table: Vec<&str> = out.lines().filter(|l| !l.contains("written:")).collect();
+    // The energy balance's residual is a certificate, in scientific form.
+    let table: Vec<&str> = out
+        .lines()
+        .filter(|l| !l.contains("written:") && !l.contains("energy balance:"))
+        .collect();
     assert!(
         table.iter().all(|l| !l.contains("e-") && !l.contains("e0")),
         "{out}"
@@ -439,4 +443,146 @@ mod issue_19 {
             "{err}"
         );
     }
+}
+
+/// Issue 17: the synchronous buck's run prints the energy balance, the
+/// efficiency and the loss of each part, writes them into summary.json and
+/// draws losses.svg; a circuit without loss data prints only the balance
+/// (conservation of energy, common practice).
+#[test]
+fn issue_17_run_prints_losses_and_the_energy_balance() {
+    let dir = scratch_dir("losses");
+    let o = fluxstep(&[
+        "run",
+        "examples/circuits/sync_buck.json",
+        "--dir",
+        dir.to_str().unwrap(),
+        "--grid",
+        "50",
+    ]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let out = String::from_utf8_lossy(&o.stdout);
+    assert!(out.contains("energy balance: residual"), "{out}");
+    assert!(
+        out.contains("losses (loads Rload)") && out.contains("efficiency 99."),
+        "{out}"
+    );
+    assert!(
+        out.lines()
+            .any(|l| l.trim_start().starts_with("Q2.body_diode")),
+        "{out}"
+    );
+    let summary: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("summary.json")).unwrap()).unwrap();
+    let l = &summary["losses"];
+    assert_eq!(l["balance"]["passed"], true);
+    assert!(l["balance"]["relative"].as_f64().unwrap() < 1e-12);
+    let eta = l["efficiency"].as_f64().unwrap();
+    let (pin, pout) = (
+        l["input_power"].as_f64().unwrap(),
+        l["output_power"].as_f64().unwrap(),
+    );
+    assert!((eta - pout / pin).abs() < 1e-12, "{l}");
+    let svg = std::fs::read_to_string(dir.join("losses.svg")).unwrap();
+    assert!(svg.contains("Q2.body_diode") && svg.contains("efficiency"));
+    let ideal = fluxstep(&[
+        "run",
+        "examples/circuits/buck.json",
+        "--dir",
+        dir.join("buck").to_str().unwrap(),
+        "--grid",
+        "50",
+    ]);
+    let out = String::from_utf8_lossy(&ideal.stdout);
+    assert!(
+        out.contains("energy balance: residual") && !out.contains("losses ("),
+        "{out}"
+    );
+    assert!(!dir.join("buck/losses.svg").exists());
+    let _ = std::fs::remove_dir_all(dir);
+}
+
+/// Issue 17: bad loss data is refused by `check` with exit 2, naming the
+/// element and the field.
+#[test]
+fn issue_17_bad_loss_data_names_the_field() {
+    let base: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(root().join("examples/circuits/sync_buck.json")).unwrap(),
+    )
+    .unwrap();
+    let table = |points: serde_json::Value| {
+        serde_json::json!({ "turn_on": { "curves": [ { "voltage": "24", "points": points } ] },
+                            "turn_off": { "curves": [ { "voltage": "24", "points": [
+                                { "current": "0", "energy": "0" },
+                                { "current": "10", "energy": "5u" } ] } ] } })
+    };
+    let cases: Vec<(&str, &str, serde_json::Value, &str)> = vec![
+        (
+            "Q1",
+            "switching_energy",
+            table(serde_json::json!([
+                { "current": "0", "energy": "0" },
+                { "current": "10", "energy": "5u" },
+                { "current": "8", "energy": "6u" } ])),
+            "switching_energy.turn_on.curves[0].points[2].current",
+        ),
+        (
+            "Q1",
+            "switching_energy",
+            table(serde_json::json!([
+                { "current": "0", "energy": "0" },
+                { "current": "10", "energy": "-5u" } ])),
+            "switching_energy.turn_on.curves[0].points[1].energy",
+        ),
+        (
+            "L1",
+            "core",
+            serde_json::json!({ "k": "3", "alpha": "3.5", "beta": "2.5", "turns": "10",
+                                "area": "50u", "volume": "5u" }),
+            "core.alpha",
+        ),
+        (
+            "L1",
+            "core",
+            serde_json::json!({ "k": "-3", "alpha": "1.5", "beta": "2.5", "turns": "10",
+                                "area": "50u", "volume": "5u" }),
+            "core.k",
+        ),
+    ];
+    for (k, (element, field, value, named)) in cases.into_iter().enumerate() {
+        let mut c = base.clone();
+        for e in c["elements"].as_array_mut().unwrap() {
+            if e["name"] == element {
+                e[field] = value.clone();
+            }
+        }
+        let path =
+            std::env::temp_dir().join(format!("fluxstep-badloss-{}-{k}.json", std::process::id()));
+        std::fs::write(&path, c.to_string()).unwrap();
+        let o = fluxstep(&["check", path.to_str().unwrap()]);
+        let err = String::from_utf8_lossy(&o.stderr);
+        assert_eq!(o.status.code(), Some(2), "{named}: {err}");
+        assert!(
+            err.contains(element) && err.contains(named),
+            "{named}: {err}"
+        );
+        let _ = std::fs::remove_file(path);
+    }
+    // A negative recovered charge on a body diode.
+    let mut c = base.clone();
+    for e in c["elements"].as_array_mut().unwrap() {
+        if e["name"] == "Q2" {
+            e["body_diode"]["recovered_charge"] = "-1n".into();
+        }
+    }
+    let path = std::env::temp_dir().join(format!("fluxstep-badqrr-{}.json", std::process::id()));
+    std::fs::write(&path, c.to_string()).unwrap();
+    let o = fluxstep(&["check", path.to_str().unwrap()]);
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert_eq!(o.status.code(), Some(2), "{err}");
+    assert!(
+        err.contains("Q2") && err.contains("body_diode.recovered_charge"),
+        "{err}"
+    );
+    let _ = std::fs::remove_file(path);
 }
