@@ -129,11 +129,17 @@ impl Simulator {
         let mut cut_rejected: Option<Vec<u32>> = (!initial).then(Vec::new);
         let mut interruption: Option<Interruption> = None;
         let mut other: Option<Rejection> = None;
-        let passes: &[bool] = if self.opts.on_interruption == OnInterruption::ConserveFlux {
-            &[false, true]
-        } else {
-            &[false]
-        };
+        // At t = 0 the given initial state may cut an inductor current (an
+        // inductor in series with a current source, or with inductors of
+        // other initial currents): it jumps to the consistent currents,
+        // conserving flux linkage, as a capacitor jumps to the voltage of a
+        // source or loop. Later, only when the run allows it.
+        let passes: &[bool] =
+            if initial || self.opts.on_interruption == OnInterruption::ConserveFlux {
+                &[false, true]
+            } else {
+                &[false]
+            };
         for &allow_cut in passes {
             let mut idx = 0usize;
             while let Some(c) = self.candidate(first, idx) {
@@ -441,9 +447,16 @@ impl Simulator {
                     _ => None,
                 })
                 .fold(0.0, f64::max);
-            let z1 = &self.modes[i.mode as usize].p * &self.z;
-            let energy =
-                self.cc.stored_energy(self.z.as_slice()) - self.cc.stored_energy(z1.as_slice());
+            // The energy the interrupted inductors hold (with their mutual
+            // terms): what the spike would release.
+            let mut without = self.z.clone();
+            for &b in &windings {
+                if let BranchKind::Winding { state } = self.cc.branches[b].kind {
+                    without[state] = 0.0;
+                }
+            }
+            let energy = self.cc.stored_energy(self.z.as_slice())
+                - self.cc.stored_energy(without.as_slice());
             return SolverError::InductorInterrupted {
                 time: self.t,
                 cause,

@@ -4,6 +4,7 @@ mod crosscheck;
 mod exact;
 mod issue_13;
 mod issue_19;
+mod issue_19_cuts;
 mod issue_19_memory;
 mod structure;
 mod transition;
