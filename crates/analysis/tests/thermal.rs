@@ -151,3 +151,75 @@ fn an_element_without_a_network_is_named() {
         junction_temperature(&c, &run.waveform, "D1", 0.0, 1e-3, ThermalStart::Ambient).unwrap();
     assert_eq!(j.warning(), None);
 }
+
+/// Switching energy heats the junction too. An ideal switch (no
+/// conduction loss) chops a 10 A current sink from 100 V at 100 kHz,
+/// D = 0.4, with tables that give E_on = 60 µJ and E_off = 40 µJ at every
+/// edge. A single Foster stage (R, τ) then sees two pulses a period: each
+/// lifts it by E·R/τ and it decays in between, so in the periodic state
+/// just after the turn-on θ_on = (R/τ)(E_on + E_off·e^(−(1−D)T/τ)) /
+/// (1 − e^(−T/τ)), just after the turn-off θ_off = (R/τ)(E_off +
+/// E_on·e^(−DT/τ)) / (1 − e^(−T/τ)), and the lowest value is the larger
+/// one decayed to the next pulse (impulse response of a first-order
+/// thermal network; common practice). Mean rise: (E_on + E_off)·f·R.
+/// All within 1e-12.
+#[test]
+fn switching_pulses_heat_the_junction_exactly() {
+    use fluxstep_analysis::losses::thermal::junction_temperature_of;
+    use fluxstep_netlist::{EnergyTable, SwitchingEnergy, Waveform};
+    let (r, tau, t, d) = (2.0, 3e-6, 10e-6, 0.4);
+    let mut c = Circuit::builder()
+        .voltage_source("Vin", "in", "gnd", 100.0)
+        .switch("S1", "in", "sw", "g")
+        .diode("D1", "gnd", "sw")
+        .current_source("Iload", "sw", "gnd", Waveform::Constant { value: 10.0 })
+        .pwm("g", 1.0 / t, d)
+        .build()
+        .unwrap();
+    for e in &mut c.elements {
+        if let Element::Switch(s) = e {
+            s.thermal = Some(ThermalNetwork {
+                junction_case: vec![stage(r, tau)],
+                case_ambient: vec![],
+                ambient: Some(25.0),
+                max_junction: None,
+            });
+            s.switching_energy = Some(SwitchingEnergy {
+                turn_on: EnergyTable::single(100.0, &[(0.0, 0.0), (20.0, 120e-6)]),
+                turn_off: EnergyTable::single(100.0, &[(0.0, 0.0), (20.0, 80e-6)]),
+            });
+        }
+    }
+    let run = simulate(&c, 4.0 * t, Options::default()).unwrap();
+    let j = junction_temperature_of(
+        &c,
+        &run.waveform,
+        &run.events,
+        "S1",
+        2.0 * t,
+        3.0 * t,
+        ThermalStart::Periodic,
+    )
+    .unwrap();
+    let (e_on, e_off) = (60e-6, 40e-6);
+    let k = 1.0 - (-t / tau).exp();
+    let on = r / tau * (e_on + e_off * (-(1.0 - d) * t / tau).exp()) / k;
+    let off = r / tau * (e_off + e_on * (-d * t / tau).exp()) / k;
+    let low = (on * (-d * t / tau).exp()).min(off * (-(1.0 - d) * t / tau).exp());
+    let close = |got: f64, want: f64| (got - want).abs() < 1e-12 * want;
+    assert!(close(j.max - 25.0, on.max(off)), "{j:?} vs {on} {off}");
+    assert!(close(j.min - 25.0, low), "{j:?} vs {low}");
+    assert!(close(j.average_loss, (e_on + e_off) / t), "{j:?}");
+    assert!(close(j.steady - 25.0, (e_on + e_off) / t * r), "{j:?}");
+    // Without the tables the ideal switch stays at ambient.
+    let cold = junction_temperature(
+        &c,
+        &run.waveform,
+        "S1",
+        2.0 * t,
+        3.0 * t,
+        ThermalStart::Periodic,
+    )
+    .unwrap();
+    assert!(cold.max - 25.0 < 1e-12, "{cold:?}");
+}

@@ -5,7 +5,7 @@
 
 use std::fmt::Write as _;
 
-use fluxstep_analysis::losses::thermal::{junction_temperature, ThermalStart};
+use fluxstep_analysis::losses::thermal::{junction_temperature_of, ThermalStart};
 use fluxstep_analysis::losses::{breakdown, has_loss_data, loads, LossOptions};
 use fluxstep_netlist::{Circuit, Element};
 use fluxstep_plot::{format_si_digits, loss_chart_svg, LossBar};
@@ -212,7 +212,7 @@ pub(crate) fn section(
             Element::Diode(d) if d.thermal.is_some() => &d.name,
             _ => continue,
         };
-        match junction_temperature(c, waveform, name, t0, t1, start) {
+        match junction_temperature_of(c, waveform, events, name, t0, t1, start) {
             Ok(j) => {
                 let _ = writeln!(
                     text,

@@ -3,7 +3,9 @@
 //! gains and an optional sweep. Findings about the circuit are kept as
 //! facts for the page; only what makes a page impossible is an error.
 
-use fluxstep_analysis::losses::thermal::{junction_temperature, JunctionTemperature, ThermalStart};
+use fluxstep_analysis::losses::thermal::{
+    junction_temperature_of, JunctionTemperature, ThermalStart,
+};
 use fluxstep_analysis::losses::{breakdown, has_loss_data, loads, LossOptions, LossReport};
 use fluxstep_analysis::response::{log_frequencies, loop_gain, BreakPoint, LoopGain};
 use fluxstep_analysis::steady::{find, SteadyOptions, SteadyState};
@@ -254,7 +256,9 @@ pub(crate) fn gather(c: &Circuit, opts: &ReportOptions) -> Result<Facts, ReportE
     };
     let junctions = junction_parts
         .iter()
-        .map(|p| junction_temperature(c, w, p, a, b, start).map_err(|e| format!("{p}: {e}")))
+        .map(|p| {
+            junction_temperature_of(c, w, events, p, a, b, start).map_err(|e| format!("{p}: {e}"))
+        })
         .collect();
     // Loops: each compensator (broken at its input), and each closed-loop
     // gate whose sense is not a compensator's output.

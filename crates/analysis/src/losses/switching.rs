@@ -62,6 +62,9 @@ pub struct SwitchingLoss {
     pub soft: usize,
     /// Edges outside the tables (not counted).
     pub outside: Vec<OutsideTable>,
+    /// `(instant, energy)` of every hard edge counted, in time order:
+    /// the pulses that heat the junction.
+    pub pulses: Vec<(f64, f64)>,
 }
 
 /// Switching energy of switch `element` with datasheet tables `model`
@@ -101,6 +104,7 @@ pub fn switching_loss(
         edges: 0,
         soft: 0,
         outside: vec![],
+        pulses: vec![],
     };
     for ev in events.of(element) {
         let on = match ev.kind {
@@ -128,8 +132,14 @@ pub fn switching_loss(
         }
         let table = if on { &model.turn_on } else { &model.turn_off };
         match table.at(i, v) {
-            Some(e) if on => out.turn_on += e,
-            Some(e) => out.turn_off += e,
+            Some(e) => {
+                if on {
+                    out.turn_on += e;
+                } else {
+                    out.turn_off += e;
+                }
+                out.pulses.push((ev.time, e));
+            }
             None => out.outside.push(OutsideTable {
                 element: element.into(),
                 time: ev.time,
@@ -167,6 +177,7 @@ pub fn recovery_loss(
         energy: 0.0,
         forced: 0,
         natural: 0,
+        pulses: vec![],
     };
     // A current left by a located zero crossing is rounding noise of the
     // diode's largest current in the window; a forced turn-off cuts a
@@ -205,6 +216,7 @@ pub fn recovery_loss(
             if vr > 0.0 {
                 out.energy += qrr * vr;
                 out.forced += 1;
+                out.pulses.push((ev.time, qrr * vr));
                 continue;
             }
         }
@@ -226,6 +238,8 @@ pub struct RecoveryLoss {
     /// Turn-offs without recovery loss: at zero current, or with no reverse
     /// voltage after (a parallel channel took the current over).
     pub natural: usize,
+    /// `(instant, energy)` of every forced turn-off, in time order.
+    pub pulses: Vec<(f64, f64)>,
 }
 
 fn output(waveform: &Waveform, name: &str) -> Result<OutputId, AnalysisError> {

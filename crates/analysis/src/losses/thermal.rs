@@ -18,7 +18,7 @@ use serde::{Deserialize, Serialize};
 
 use fluxstep_netlist::{Circuit, Element, ThermalNetwork};
 use fluxstep_solver::measure::MeasureError;
-use fluxstep_solver::{OutputId, Waveform};
+use fluxstep_solver::{EventLog, OutputId, Waveform};
 
 use crate::AnalysisError;
 
@@ -133,8 +133,37 @@ pub fn junction_temperature(
     t1: f64,
     start: ThermalStart,
 ) -> Result<JunctionTemperature, AnalysisError> {
+    junction_temperature_with_pulses(circuit, waveform, element, t0, t1, start, &[])
+}
+
+/// As [`junction_temperature`], with the part's simulated loss joined by
+/// energy pulses `(instant, J)` deposited at single instants: the
+/// switching energies of its datasheet tables and the recovery energy of
+/// its body diode, evaluated beside the simulation. A pulse E lifts each
+/// Foster stage by E·R/τ at its instant (the stage's heat capacity is
+/// τ/R), exactly. [`junction_temperature_of`] gathers them from the
+/// circuit.
+///
+/// # Errors
+///
+/// As [`junction_temperature`].
+pub fn junction_temperature_with_pulses(
+    circuit: &Circuit,
+    waveform: &Waveform,
+    element: &str,
+    t0: f64,
+    t1: f64,
+    start: ThermalStart,
+    pulses: &[(f64, f64)],
+) -> Result<JunctionTemperature, AnalysisError> {
     let net = network(circuit, element)?;
-    let energy = fluxstep_solver::measure::element_energy(waveform, element, t0, t1)?;
+    let pulses: Vec<(f64, f64)> = pulses
+        .iter()
+        .copied()
+        .filter(|p| p.0 >= t0 && p.0 < t1)
+        .collect();
+    let energy = fluxstep_solver::measure::element_energy(waveform, element, t0, t1)?
+        + pulses.iter().map(|p| p.1).sum::<f64>();
     let parts = parts(waveform, element);
     let power = |v: &[f64]| -> f64 { v.chunks(2).map(|c| c[0] * c[1]).sum() };
     let stages: Vec<(f64, f64)> = net
@@ -158,6 +187,7 @@ pub fn junction_temperature(
         })
         .collect();
     times.extend(waveform.event_times(t0, t1));
+    times.extend(pulses.iter().map(|p| p.0));
     times.retain(|t| *t >= t0 && *t <= t1);
     times.sort_by(f64::total_cmp);
     times.dedup();
@@ -165,6 +195,8 @@ pub fn junction_temperature(
     let forced = |a: f64, b: f64, r: f64, tau: f64| -> f64 {
         r / tau * waveform.integrate_timed(&parts, a, b, |s, v| (-(b - s) / tau).exp() * power(v))
     };
+    // The pulse energy at instant t (every pulse there).
+    let pulse_at = |t: f64| -> f64 { pulses.iter().filter(|p| p.0 == t).map(|p| p.1).sum() };
     let mut theta: Vec<f64> = match start {
         ThermalStart::Ambient => vec![0.0; stages.len()],
         ThermalStart::Periodic => stages
@@ -172,6 +204,7 @@ pub fn junction_temperature(
             .map(|&(r, tau)| {
                 let mut f = 0.0;
                 for w in times.windows(2) {
+                    f += pulse_at(w[0]) * r / tau;
                     f = (-(w[1] - w[0]) / tau).exp() * f + forced(w[0], w[1], r, tau);
                 }
                 // θ(t0) = e^(−T/τ)·θ(t0) + F.
@@ -184,6 +217,18 @@ pub fn junction_temperature(
     let first = temp(&theta);
     let (mut min, mut max, mut time_of_max) = (first, first, t0);
     for w in times.windows(2) {
+        let e = pulse_at(w[0]);
+        if e != 0.0 {
+            // Just after the pulse: the peak of its spike.
+            for (th, &(r, tau)) in theta.iter_mut().zip(&stages) {
+                *th += e * r / tau;
+            }
+            let t = temp(&theta);
+            if t > max {
+                max = t;
+                time_of_max = w[0];
+            }
+        }
         for (th, &(r, tau)) in theta.iter_mut().zip(&stages) {
             *th = (-(w[1] - w[0]) / tau).exp() * *th + forced(w[0], w[1], r, tau);
         }
@@ -212,6 +257,45 @@ pub fn junction_temperature(
         end: temp(&theta),
         max_junction: net.max_junction,
     })
+}
+
+/// As [`junction_temperature`], with the pulses of the part's
+/// `switching_energy` tables and its (body) diode's `recovered_charge`
+/// (see [`crate::losses::switching`]) added to its simulated loss.
+///
+/// # Errors
+///
+/// As [`junction_temperature`], and those of
+/// [`crate::losses::switching::switching_loss`].
+pub fn junction_temperature_of(
+    circuit: &Circuit,
+    waveform: &Waveform,
+    events: &EventLog,
+    element: &str,
+    t0: f64,
+    t1: f64,
+    start: ThermalStart,
+) -> Result<JunctionTemperature, AnalysisError> {
+    use crate::losses::switching::{recovery_loss, switching_loss};
+    let mut pulses = vec![];
+    match circuit.element(element) {
+        Some(Element::Switch(s)) => {
+            if let Some(m) = &s.switching_energy {
+                pulses.extend(switching_loss(element, m, waveform, events, t0, t1)?.pulses);
+            }
+            if let Some(q) = s.body_diode.as_ref().and_then(|d| d.recovered_charge) {
+                let d = format!("{element}.body_diode");
+                pulses.extend(recovery_loss(&d, q, waveform, events, t0, t1)?.pulses);
+            }
+        }
+        Some(Element::Diode(d)) => {
+            if let Some(q) = d.model.recovered_charge {
+                pulses.extend(recovery_loss(element, q, waveform, events, t0, t1)?.pulses);
+            }
+        }
+        _ => {}
+    }
+    junction_temperature_with_pulses(circuit, waveform, element, t0, t1, start, &pulses)
 }
 
 /// The thermal network of a switch or diode.
