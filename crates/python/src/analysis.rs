@@ -765,3 +765,71 @@ impl PyTable {
         )
     }
 }
+
+/// The loss breakdown of ``run`` (a :class:`Run` of ``circuit``) over
+/// ``[t0, t1]`` (default: the recorded window), as a dict: ``t0``, ``t1``,
+/// ``loads``, ``input_power``, ``output_power``, ``total_loss`` (W),
+/// ``efficiency`` (None without loads), ``by_kind`` (W per mechanism),
+/// ``by_part`` (a list, largest first, of ``part``, ``total`` and
+/// ``by_kind``), ``parts`` (every loss with its ``energy`` in J and
+/// ``power`` in W), ``stored`` (stored energy at both ends, J),
+/// ``balance_residual`` (J) and ``balance_error`` (relative), and
+/// ``outside_tables`` (switch edges outside their switching-energy table).
+///
+/// ``loads`` names the output elements; by default the file's
+/// ``run.loads``, else the resistors from ``out`` to ground (directly or
+/// through one switch). Every figure is an exact integral of the run or
+/// an exact sum over its events (docs/losses.md).
+///
+/// Raises AnalysisError for an unknown load or bad loss data,
+/// MeasureError for a window outside the record.
+#[pyfunction]
+#[pyo3(signature = (circuit, run, t0=None, t1=None, loads=None))]
+pub fn losses<'py>(
+    py: Python<'py>,
+    circuit: &Bound<'_, PyAny>,
+    run: &crate::run::PyRun,
+    t0: Option<f64>,
+    t1: Option<f64>,
+    loads: Option<Vec<String>>,
+) -> PyResult<Bound<'py, PyAny>> {
+    use fluxstep_analysis::losses::{breakdown, LossOptions};
+    let c = circuit_arg(py, circuit)?;
+    let w = &run.result.waveform;
+    let (a, b) = match (t0, t1, w.span()) {
+        (Some(a), Some(b), _) => (a, b),
+        (a, b, Some((s0, s1))) => (a.unwrap_or(s0), b.unwrap_or(s1)),
+        _ => {
+            return Err(crate::errors::measure_error(
+                py,
+                fluxstep_solver::measure::MeasureError::NothingRecorded {
+                    subject: "losses".into(),
+                },
+            ))
+        }
+    };
+    let loads = loads.unwrap_or_else(|| fluxstep_analysis::losses::loads(&c));
+    let opts = LossOptions {
+        loads: loads.clone(),
+    };
+    let events = &run.result.events;
+    let r = py
+        .detach(|| breakdown(&c, w, events, a, b, &opts))
+        .map_err(|e| analysis_error(py, e))?;
+    let d = PyDict::new(py);
+    d.set_item("t0", r.t0)?;
+    d.set_item("t1", r.t1)?;
+    d.set_item("loads", loads)?;
+    d.set_item("input_power", r.input_power())?;
+    d.set_item("output_power", r.output_power())?;
+    d.set_item("total_loss", r.total_loss())?;
+    d.set_item("efficiency", r.efficiency())?;
+    d.set_item("by_kind", ser_to_py(py, &r.by_kind())?)?;
+    d.set_item("by_part", ser_to_py(py, &r.by_part())?)?;
+    d.set_item("parts", ser_to_py(py, &r.parts)?)?;
+    d.set_item("stored", r.stored)?;
+    d.set_item("balance_residual", r.balance_residual())?;
+    d.set_item("balance_error", r.balance_error())?;
+    d.set_item("outside_tables", ser_to_py(py, &r.outside_tables)?)?;
+    Ok(d.into_any())
+}

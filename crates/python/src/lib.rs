@@ -40,6 +40,7 @@ fn _fluxstep(m: &Bound<'_, PyModule>) -> PyResult<()> {
     m.add_class::<analysis::PySteadyOptions>()?;
     m.add_class::<analysis::PySteady>()?;
     m.add_function(wrap_pyfunction!(analysis::steady_find, m)?)?;
+    m.add_function(wrap_pyfunction!(analysis::losses, m)?)?;
     m.add_class::<analysis::PyResponse>()?;
     m.add_class::<analysis::PyLoopGain>()?;
     m.add_function(wrap_pyfunction!(analysis::frequency_response, m)?)?;

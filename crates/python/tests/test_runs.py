@@ -84,3 +84,23 @@ def test_steady_state_measurements_and_run(examples):
     assert ss.monodromy.shape == (len(ss.free_states), len(ss.free_states))
     with pytest.raises(fluxstep.OutputError):
         ss.measurement("nope")
+
+
+def test_losses_of_the_synchronous_buck(examples):
+    # Energy conservation over the recorded window (common practice): the
+    # sources' energy equals the load's, the losses and the change of
+    # stored energy; the efficiency is output over input.
+    path = examples / "sync_buck.json"
+    run = fluxstep.simulate(path)
+    r = fluxstep.losses(path, run)
+    assert r["loads"] == ["Rload"]
+    assert (r["t0"], r["t1"]) == run.span
+    assert r["balance_error"] < 1e-12
+    assert abs(r["efficiency"] - r["output_power"] / r["input_power"]) < 1e-12
+    parts = {p["part"]: p for p in r["by_part"]}
+    assert "Q2.body_diode" in parts and parts["Q2.body_diode"]["total"] > 0
+    assert abs(sum(p["total"] for p in r["by_part"]) - r["total_loss"]) < 1e-12
+    assert r["by_kind"]["conduction"] == pytest.approx(r["total_loss"], rel=1e-12)
+    # A named load that is not an element is refused.
+    with pytest.raises(fluxstep.AnalysisError):
+        fluxstep.losses(path, run, loads=["Rmissing"])

@@ -38,7 +38,7 @@ from ._errors import (
     SweepError,
     UnavailableValueError,
 )
-from ._fluxstep import Circuit, CircuitBuilder, Run, __version__, load, simulate
+from ._fluxstep import Circuit, CircuitBuilder, Run, __version__, load, losses, simulate
 
 __all__ = [
     "AnalysisError",
@@ -55,6 +55,7 @@ __all__ = [
     "UnavailableValueError",
     "__version__",
     "load",
+    "losses",
     "response",
     "simulate",
     "steady",

@@ -125,6 +125,14 @@ class Run:
     @property
     def summary(self) -> dict[str, Any]: ...
 
+def losses(
+    circuit: CircuitLike,
+    run: Run,
+    t0: float | None = None,
+    t1: float | None = None,
+    loads: Sequence[str] | None = None,
+) -> dict[str, Any]: ...
+
 def simulate(
     circuit: CircuitLike,
     stop: float | None = None,

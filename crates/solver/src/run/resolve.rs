@@ -130,10 +130,9 @@ impl Simulator {
         let mut interruption: Option<Interruption> = None;
         let mut other: Option<Rejection> = None;
         // At t = 0 the given initial state may cut an inductor current (an
-        // inductor in series with a current source, or with inductors of
-        // other initial currents): it jumps to the consistent currents,
-        // conserving flux linkage, as a capacitor jumps to the voltage of a
-        // source or loop. Later, only when the run allows it.
+        // inductor in series with a current source): it jumps to the
+        // source's current, as a capacitor jumps to a source's voltage.
+        // Later, only when the run allows it.
         let passes: &[bool] =
             if initial || self.opts.on_interruption == OnInterruption::ConserveFlux {
                 &[false, true]
@@ -199,6 +198,18 @@ impl Simulator {
                 }
                 self.modes = modes;
                 if let Verdict::Holds { cut, charge } = verdict {
+                    // At t = 0 without the flux-conserving policy, a cut
+                    // is taken only where a source sets the currents (the
+                    // jump stores energy); one that would release the
+                    // inductors' energy is an interruption, as later.
+                    if cut
+                        && initial
+                        && self.opts.on_interruption != OnInterruption::ConserveFlux
+                        && self.cc.stored_energy(self.z_try.as_slice())
+                            < self.cc.stored_energy(self.z.as_slice())
+                    {
+                        continue;
+                    }
                     self.commit(key, mi, cut, charge, initial)?;
                     return Ok(());
                 }
