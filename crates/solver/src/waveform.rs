@@ -530,8 +530,15 @@ impl Waveform {
     /// stretches are skipped.
     pub fn vertices(&self, id: OutputId, t0: f64, t1: f64, interior: usize) -> Vec<(f64, f64)> {
         let mut out = vec![];
-        for (i, s) in self.segments.iter().enumerate() {
-            if s.t1 < t0 || s.t0 > t1 {
+        // Segments are in time order: start at the first that ends at or
+        // after t0 and stop after the last that starts by t1, so drawing a
+        // long record segment by segment stays linear.
+        let first = self.segments.partition_point(|s| s.t1 < t0);
+        for (i, s) in self.segments.iter().enumerate().skip(first) {
+            if s.t0 > t1 {
+                break;
+            }
+            if s.t1 < t0 {
                 continue;
             }
             let a = s.t0.max(t0);
