@@ -8,11 +8,25 @@
 //! below one unit in the last place, so this is as exact as the matrix
 //! exponential itself (nalgebra's `exp`, Al-Mohy & Higham, SIAM J. Matrix
 //! Anal. Appl. 2009).
+//!
+//! Stiff spans: where that rule would need more than [`STIFF_SUBSTEPS`]
+//! sub-steps (a decaying mode far faster than the span, e.g. 1 fH behind
+//! 1 Ω), the span is advanced by one matrix exponential instead
+//! ([`expm`]: scaling and squaring, with the scaling done here in exact
+//! powers of two where ‖Mτ‖ is too large for nalgebra's own). Ordinary
+//! spans need one to a few sub-steps and keep the Taylor path and its
+//! bits.
 
 use nalgebra::{DMatrix, DVector};
 
 /// Largest ρ·τ over which one Taylor expansion is used.
 pub(crate) const TAYLOR_REACH: f64 = 0.5;
+
+/// More Taylor sub-steps than this over one span: advance it by one
+/// matrix exponential instead (see the module docs). No example circuit
+/// comes near it (their spans need one to a few sub-steps), so their bits
+/// do not depend on it.
+pub(crate) const STIFF_SUBSTEPS: usize = 64;
 
 /// Number of sub-intervals so that each has ρ·τ ≤ [`TAYLOR_REACH`].
 pub(crate) fn substeps(rate: f64, tau: f64) -> usize {
@@ -26,6 +40,97 @@ pub(crate) fn substeps(rate: f64, tau: f64) -> usize {
         (s as usize).min(1 << 20)
     } else {
         1
+    }
+}
+
+/// −Re λ·τ past which a component e^{λτ} counts as dead (see `run/locate.rs`).
+pub(crate) const DEAD: f64 = 60.0;
+
+/// Phase error (rad) an oscillation may accumulate over a stiff span in
+/// f64 arithmetic and time (ε·|Im λ|·max(h, t)) before the run refuses it.
+pub(crate) const PHASE_LIMIT: f64 = 1e-6;
+
+/// A mode's eigenvalues as stiff spans need them.
+#[derive(Debug)]
+pub(crate) struct Spectrum {
+    /// (−Re λ, |λ|, |Im λ|) of each eigenvalue, fastest decay first.
+    eig: Vec<(f64, f64, f64)>,
+    /// Per index k: max |λ| over `eig[k..]` (0 past the end).
+    alive_max: Vec<f64>,
+    /// max |λ|.
+    top: f64,
+}
+
+impl Spectrum {
+    /// The eigenvalues of `m` (real Schur form), or `None` where they
+    /// cannot be trusted: the iteration fails, a value is not finite,
+    /// their sum is not the trace (to 1e-8 of Σ|λ|), or a mode grows
+    /// faster than the span's slow dynamics could bound.
+    pub(crate) fn of(m: &DMatrix<f64>) -> Option<Spectrum> {
+        let schur = nalgebra::linalg::Schur::try_new(m.clone(), f64::EPSILON, 10_000)?;
+        let ev = schur.complex_eigenvalues();
+        let sum: f64 = ev.iter().map(|c| c.re).sum();
+        let abs: f64 = ev.iter().map(|c| c.norm()).sum();
+        if !abs.is_finite() || (sum - m.trace()).abs() > 1e-8 * abs + f64::MIN_POSITIVE {
+            return None;
+        }
+        let mut eig: Vec<(f64, f64, f64)> = ev
+            .iter()
+            .map(|c| (-c.re, c.norm(), c.im.abs()))
+            .collect();
+        let top = eig.iter().map(|e| e.1).fold(0.0, f64::max);
+        // A growing mode as fast as the fastest: nothing to gain, and its
+        // growth is what the Taylor rule's bound is for.
+        if eig.iter().any(|e| e.0 < 0.0 && -e.0 > 1e-3 * top) {
+            return None;
+        }
+        eig.sort_by(|a, b| b.0.total_cmp(&a.0));
+        let mut alive_max = vec![0.0f64; eig.len() + 1];
+        for k in (0..eig.len()).rev() {
+            alive_max[k] = alive_max[k + 1].max(eig[k].1);
+        }
+        Some(Spectrum {
+            eig,
+            alive_max,
+            top,
+        })
+    }
+
+    /// max |λ| over the eigenvalues still alive τ into a span.
+    pub(crate) fn alive_rate(&self, tau: f64) -> f64 {
+        let k = self.eig.partition_point(|e| e.0 * tau >= DEAD);
+        self.alive_max[k]
+    }
+
+    /// The sub-interval length at τ into a span: δ₀·2ʲ (δ₀ = 1/(2·top)),
+    /// the longest with (alive rate)·δ ≤ 1/2; ∞ when nothing is alive.
+    pub(crate) fn step_at(&self, tau: f64) -> f64 {
+        let r = self.alive_rate(tau);
+        if r <= 0.0 {
+            return f64::INFINITY;
+        }
+        let d0 = TAYLOR_REACH / self.top;
+        let j = (self.top / r).log2().floor().clamp(0.0, 1000.0) as i32;
+        let mut d = d0;
+        let mut left = j;
+        while left > 0 {
+            let k = left.min(512);
+            d *= 2f64.powi(k);
+            left -= k;
+        }
+        d
+    }
+
+    /// The fastest oscillation that stays alive over a span of length `h`
+    /// ending at `t_end` and whose phase f64 cannot follow there (error
+    /// ε·|Im λ|·max(h, t_end) above [`PHASE_LIMIT`]): its |Im λ|.
+    pub(crate) fn unresolved(&self, h: f64, t_end: f64) -> Option<f64> {
+        self.eig
+            .iter()
+            .filter(|e| e.0 * h < DEAD)
+            .map(|e| e.2)
+            .filter(|w| f64::EPSILON * w * h.max(t_end) > PHASE_LIMIT)
+            .reduce(f64::max)
     }
 }
 
@@ -54,6 +159,9 @@ pub(crate) fn advance(m: &DMatrix<f64>, rate: f64, z: &DVector<f64>, tau: f64) -
         return z.clone();
     }
     let n = substeps(rate, tau);
+    if n > STIFF_SUBSTEPS {
+        return expm(m, tau) * z;
+    }
     let d = tau / n as f64;
     let mut x = z.clone();
     for _ in 0..n {
@@ -271,9 +379,61 @@ pub(crate) fn poly_value(c: &[f64], s: f64) -> f64 {
     e + s * o
 }
 
+/// ‖Mh‖₁ up to which nalgebra's `exp` gets the matrix as it is (ordinary
+/// circuits stay far below and keep its bits). Above, its scaling loses
+/// the slow part of a stiff matrix (e^{−1e-6} came out as 1 beside a
+/// 1e13 entry) and gives NaN somewhere past 1e40.
+const EXP_DIRECT: f64 = 1e6;
+
 /// Matrix exponential e^{M h}.
+///
+/// Above [`EXP_DIRECT`], scaling and squaring done here so that it keeps
+/// the slow part of a stiff matrix: B = Mh·2⁻ˢ with ‖B‖₁ ≤ 1/2 (s exact
+/// powers of two, applied in steps that cannot underflow the factor), F =
+/// e^B − I by its Taylor series without the identity (20 terms: the tail
+/// is below 0.5²⁰/20! ≈ 4e-25 of ‖B‖), then s squarings of I + F carried
+/// as F ← 2F + F² (N. J. Higham, *Functions of Matrices*, SIAM 2008,
+/// §10.3, from memory: the identity is never added to the small entries,
+/// so a decay of 1e-6 beside a rate of 1e13 keeps its digits). About 1000
+/// squarings for an inductance of 1e-300 H behind an ohm. For decaying
+/// modes the squarings damp their own rounding; an oscillation's phase
+/// error grows as ε·ω·h, which the run checks before it trusts a stiff span
+/// (`Spectrum::unresolved`). A non-finite input or overflow comes back as
+/// non-finite, never as finite garbage.
 pub(crate) fn expm(m: &DMatrix<f64>, h: f64) -> DMatrix<f64> {
-    (m * h).exp()
+    let a = m * h;
+    let norm = a
+        .column_iter()
+        .map(|c| c.iter().map(|v| v.abs()).sum::<f64>())
+        .fold(0.0, f64::max);
+    if norm <= EXP_DIRECT {
+        return a.exp();
+    }
+    let n = a.nrows();
+    if !norm.is_finite() {
+        return DMatrix::from_element(n, n, f64::NAN);
+    }
+    // norm < 2^(e+1) with e = ⌊log₂ norm⌋, so 2^-(e+2)·norm < 1/2.
+    let s = norm.log2().floor() as i32 + 2;
+    let mut b = a;
+    let mut left = s;
+    while left > 0 {
+        let k = left.min(512);
+        b *= 2f64.powi(-k);
+        left -= k;
+    }
+    let mut term = b.clone();
+    let mut f = b.clone();
+    for k in 2..=20 {
+        term = &term * &b / k as f64;
+        f += &term;
+    }
+    for _ in 0..s {
+        let sq = &f * &f;
+        f *= 2.0;
+        f += sq;
+    }
+    f + DMatrix::identity(n, n)
 }
 
 /// y = M x for a dense column-major matrix, into `y`, without allocating.
@@ -382,6 +542,11 @@ pub(crate) fn advance_into(
     s.next.resize(nz, 0.0);
     s.x.resize(nz, 0.0);
     s.x.copy_from_slice(z);
+    if tau != 0.0 && substeps(rate, tau.abs()) > STIFF_SUBSTEPS {
+        let e = expm(m, tau);
+        matvec(&e, z, out);
+        return;
+    }
     if tau != 0.0 {
         let n = substeps(rate, tau.abs());
         let d = tau / n as f64;

@@ -51,6 +51,13 @@ pub struct Stats {
     /// Intervals advanced from the cached exponential of a nearby length
     /// and a short Taylor remainder.
     pub near_steps: usize,
+    /// Stiff spans: intervals that the Taylor rule would split into more
+    /// than 64 sub-steps, advanced by one exponential instead (see
+    /// `propagate.rs`). 0 for ordinary converters.
+    pub stiff_spans: usize,
+    /// Sub-intervals scanned for state events in stiff spans (their
+    /// lengths grow as fast decaying modes die out, see `locate.rs`).
+    pub stiff_substeps: usize,
 }
 
 /// A view of one finished segment, handed to a streaming sink.
@@ -680,6 +687,10 @@ impl Simulator {
                 _ => t_next - self.t,
             };
             let h = if h > 0.0 { h } else { t_next - self.t };
+            let rate = self.modes[self.mode as usize].rate;
+            if propagate::substeps(rate, h) > propagate::STIFF_SUBSTEPS {
+                self.check_resolvable(h)?;
+            }
             self.step(h, key_next.is_some() && self.tkey.is_some());
             if let Some((tau, fired, cmp_fired)) = self.locate(h) {
                 if tau < h {
@@ -886,7 +897,11 @@ impl Simulator {
         if (!cacheable || self.near_cache) && self.advance_repeated(mi, &m.m, h) {
             return;
         }
-        if self.advance_near(mi, &m, h) {
+        if propagate::substeps(m.rate, h) > propagate::STIFF_SUBSTEPS {
+            // One exponential (a near length's remainder could be a step
+            // back over a fast decay).
+            self.stats.stiff_spans += 1;
+        } else if self.advance_near(mi, &m, h) {
             return;
         }
         propagate::advance_into(
@@ -916,6 +931,11 @@ struct ModeCache {
     again_next: usize,
     /// Guard polynomials of scheduled lengths (see `locate.rs`).
     polys: Vec<locate::GuardPolys>,
+    /// The mode's eigenvalues, computed at its first stiff span (`None`
+    /// before; `Some(None)` where they cannot be trusted).
+    spectrum: Option<Option<std::sync::Arc<propagate::Spectrum>>>,
+    /// e^{Mδ} for the sub-interval lengths δ of stiff spans.
+    stiff_discs: Vec<Disc>,
 }
 
 impl Default for ModeCache {
@@ -926,6 +946,8 @@ impl Default for ModeCache {
             again: vec![],
             again_next: 0,
             polys: vec![],
+            spectrum: None,
+            stiff_discs: vec![],
         }
     }
 }
