@@ -14,24 +14,30 @@
 //!
 //! Stiff spans (more than `propagate::STIFF_SUBSTEPS` sub-intervals by the
 //! rule above, e.g. a 22 ps RC behind a 5 µs switching interval) are
-//! scanned differently, because a decaying real mode cannot hide a pair of
-//! crossings the way an oscillation can. The mode's eigenvalues λ are
-//! computed once ([`Spectrum`]). A component e^{λτ} with −Re λ·τ ≥
-//! `propagate::DEAD` has fallen below rounding of the state (e⁻⁶⁰ ≈ 1e-26, with a
-//! margin of 1e9 over 2⁻⁵² for non-normal growth), so at τ into the span
-//! only the eigenvalues still alive bound the step: a sub-interval starting
-//! at τ has length δ₀·2ʲ, the longest with |λ|·δ ≤ 1/2 for every λ alive at
-//! τ (δ₀ = 1/(2 max|λ|)). The fast modes thus set the step only for the
-//! first 2·DEAD·|λ|/(−Re λ) sub-intervals, then the slow ones and the
-//! oscillations (|Im λ|) do. Each sub-interval is checked as above (end
-//! value, then a dip between falling and rising ends) with exact states
-//! from cached exponentials e^{Mδ}; a derivative within rounding noise of
-//! its terms (ε·Σ|drow·z|, which the dead fast components leave) counts as
-//! zero. A crossing is refined on exact states e^{Mσ}z (Illinois steps
-//! kept inside the bracket, then bisection) to the first representable
-//! point past it, as `root_in` does on polynomials. Where the eigenvalues
-//! cannot be trusted (Schur iteration fails, non-finite values, their sum
-//! far from the trace, or a fast growing mode) the rule above is kept.
+//! scanned by a different rule. The rule above bounds the step by the
+//! fastest mode all the way through, although a decaying mode only
+//! matters while it is alive. The mode's eigenvalues λ are computed once
+//! (`propagate::Spectrum`, on the balanced matrix). A component e^{λτ}
+//! with −Re λ·τ ≥ `propagate::DEAD` (60) has fallen below rounding of the
+//! state (e⁻⁶⁰ ≈ 9e-27: a margin of 1e9 below 2⁻⁵² for non-normal growth
+//! of the component before it decays). So τ into the span only the
+//! eigenvalues still alive bound the step: the sub-interval starting at
+//! τ has length δ₀·2ʲ, the longest with |λ|·δ ≤ 1/2 for every λ alive at
+//! τ (δ₀ = 1/(2 max|λ|); powers of two so that the exponentials e^{Mδ}
+//! are cached per mode). A fast real mode thus sets the step for the
+//! first 2·60·|λ|/(−Re λ) sub-intervals only (about 120), then the slow
+//! modes and the oscillations (whose |Im λ| stays alive as long as they
+//! do) set it. Within each sub-interval the live part of the guard varies
+//! as slowly as under the rule above, so the same checks apply — end
+//! value, then a dip between a falling start and a rising end — on exact
+//! states from the cached exponentials; a derivative within rounding noise
+//! of its terms (64·ε·Σ|drow·z|, what dead fast components leave) counts
+//! as zero. A crossing is refined on exact states e^{Mσ}z (Illinois steps
+//! kept inside the bracket, bisection where they stall) to the first
+//! representable point past it, as `root_in` does on polynomials. Where
+//! the eigenvalues cannot be trusted (the Schur iteration fails, a value is
+//! not finite, their sum is not the trace, or a fast growing mode) the
+//! rule above is kept.
 
 use std::sync::Arc;
 
@@ -140,12 +146,6 @@ impl Simulator {
         }
         let guards = active(mode, off_mask, on_mask);
         let n = propagate::substeps(mode.rate, h);
-        if n > propagate::STIFF_SUBSTEPS {
-            if let Some(sp) = self.spectrum() {
-                let guards: Vec<&Guard> = guards.collect();
-                return self.locate_stiff(mode, &sp, &guards, h);
-            }
-        }
         if n == 1 {
             // Exact end-point checks first: nothing more to do in the
             // common case of an interval with no event.
@@ -169,6 +169,12 @@ impl Simulator {
                 if let Some(found) = self.locate_cached(mode, h) {
                     return found;
                 }
+            }
+        }
+        if n > propagate::STIFF_SUBSTEPS {
+            if let Some(sp) = self.spectrum() {
+                let guards: Vec<&Guard> = guards.collect();
+                return self.locate_stiff(mode, &sp, &guards, h);
             }
         }
         let d = h / n as f64;

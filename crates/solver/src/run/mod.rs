@@ -219,6 +219,9 @@ pub struct Simulator {
     phases: Vec<transition::Phase>,
     /// The earliest end of a running ramp phase (∞ if none).
     ramp_next: f64,
+    /// Why `step` refused a stiff span (see `locate::check_resolvable`),
+    /// reported by `check_finite` in place of the NaN it left.
+    refused: Option<SolverError>,
 }
 
 pub(crate) fn dot(a: impl IntoIterator<Item = f64>, b: &[f64]) -> f64 {
@@ -373,6 +376,7 @@ impl Simulator {
             ramp_switches,
             phases: vec![transition::Phase::Idle; n_switches],
             ramp_next: f64::INFINITY,
+            refused: None,
         };
         sim.cmp_ticks = (0..n_cmp).map(|ci| sim.make_ticks(ci)).collect();
         sim.current_states = sim
@@ -687,10 +691,6 @@ impl Simulator {
                 _ => t_next - self.t,
             };
             let h = if h > 0.0 { h } else { t_next - self.t };
-            let rate = self.modes[self.mode as usize].rate;
-            if propagate::substeps(rate, h) > propagate::STIFF_SUBSTEPS {
-                self.check_resolvable(h)?;
-            }
             self.step(h, key_next.is_some() && self.tkey.is_some());
             if let Some((tau, fired, cmp_fired)) = self.locate(h) {
                 if tau < h {
@@ -766,11 +766,16 @@ impl Simulator {
     }
 
     #[inline(always)]
-    fn check_finite(&self) -> Result<(), SolverError> {
+    fn check_finite(&mut self) -> Result<(), SolverError> {
         let z = self.z.as_slice();
         if propagate::all_finite(z) {
             return Ok(());
         }
+        // A stiff span refused by `step` left NaN and its reason.
+        if let Some(e) = self.refused.take() {
+            return Err(e);
+        }
+        let z = self.z.as_slice();
         if let Some(i) = z.iter().position(|v| !v.is_finite()) {
             let what = if i < self.cc.n_x {
                 self.cc.state_names[i].clone()
@@ -885,6 +890,17 @@ impl Simulator {
             return;
         }
         let m = self.modes[mi].clone();
+        let stiff = propagate::substeps(m.rate, h) > propagate::STIFF_SUBSTEPS;
+        if stiff {
+            // Out of the hot loop: only lengths without a cached
+            // exponential get here. A refusal leaves NaN, which
+            // `check_finite` turns into the stored diagnostic.
+            if let Err(e) = self.check_resolvable(h) {
+                self.z_next.fill(f64::NAN);
+                self.refused = Some(e);
+                return;
+            }
+        }
         if cacheable && self.caches[mi].discs.len() < 16 {
             self.stats.exponentials += 1;
             let phi = propagate::expm(&m.m, h);
@@ -897,7 +913,7 @@ impl Simulator {
         if (!cacheable || self.near_cache) && self.advance_repeated(mi, &m.m, h) {
             return;
         }
-        if propagate::substeps(m.rate, h) > propagate::STIFF_SUBSTEPS {
+        if stiff {
             // One exponential (a near length's remainder could be a step
             // back over a fast decay).
             self.stats.stiff_spans += 1;
