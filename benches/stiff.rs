@@ -63,7 +63,12 @@ fn ladder(n: usize) -> Circuit {
     let mut b = Circuit::builder().voltage_source("V1", "n0", "gnd", 1.0);
     for k in 1..=n {
         b = b
-            .resistor(&format!("R{k}"), &format!("n{}", k - 1), &format!("n{k}"), 1.0)
+            .resistor(
+                &format!("R{k}"),
+                &format!("n{}", k - 1),
+                &format!("n{k}"),
+                1.0,
+            )
             .capacitor(&format!("C{k}"), &format!("n{k}"), "gnd", 100e-12);
     }
     b.resistor("RL", &format!("n{n}"), "gnd", 10.0)

@@ -74,10 +74,8 @@ impl Spectrum {
         if !abs.is_finite() || (sum - m.trace()).abs() > 1e-8 * abs + f64::MIN_POSITIVE {
             return None;
         }
-        let mut eig: Vec<(f64, f64, f64)> = ev
-            .iter()
-            .map(|c| (-c.re, c.norm(), c.im.abs()))
-            .collect();
+        let mut eig: Vec<(f64, f64, f64)> =
+            ev.iter().map(|c| (-c.re, c.norm(), c.im.abs())).collect();
         let top = eig.iter().map(|e| e.1).fold(0.0, f64::max);
         // A growing mode as fast as the fastest: nothing to gain, and its
         // growth is what the Taylor rule's bound is for.
@@ -673,7 +671,10 @@ mod tests {
             let m = DMatrix::from_row_slice(2, 2, &[-1.0 / l, 1.0 / l, 0.0, 0.0]);
             let e = expm(&m, 1e-3);
             assert_eq!(e[(0, 0)], 0.0, "L = {l:e}");
-            assert!((e[(0, 1)] - 1.0).abs() <= 4.0 * f64::EPSILON, "L = {l:e}: {e}");
+            assert!(
+                (e[(0, 1)] - 1.0).abs() <= 4.0 * f64::EPSILON,
+                "L = {l:e}: {e}"
+            );
             assert_eq!((e[(1, 0)], e[(1, 1)]), (0.0, 1.0), "L = {l:e}");
         }
         // Fast RL beside a slow RC decay (rate 1e-3/s over 1e-3 s) and its
@@ -686,7 +687,10 @@ mod tests {
             );
             let e = expm(&m, 1e-3);
             let slow = (-1e-6f64).exp();
-            assert!((e[(1, 1)] - slow).abs() <= 4.0 * f64::EPSILON, "L = {l:e}: {e}");
+            assert!(
+                (e[(1, 1)] - slow).abs() <= 4.0 * f64::EPSILON,
+                "L = {l:e}: {e}"
+            );
             // ∫₀ʰ e^{−a s} ds = (1 − e^{−ah})/a, a = 1e-3 (common practice).
             let int = -(-1e-6f64).exp_m1() / 1e-3;
             assert!((e[(1, 2)] - int).abs() <= 1e-15 * int, "L = {l:e}: {e}");

@@ -701,7 +701,12 @@ impl Waveform {
             for (&(x, w), e) in GL8.iter().zip(exps) {
                 let zz = e * &z;
                 for (k, id) in ids.iter().enumerate() {
-                    vals[k] = m.c.row(id.0).iter().zip(zz.iter()).map(|(p, q)| p * q).sum();
+                    vals[k] =
+                        m.c.row(id.0)
+                            .iter()
+                            .zip(zz.iter())
+                            .map(|(p, q)| p * q)
+                            .sum();
                 }
                 part += w * f(start + 0.5 * d * (x + 1.0), &vals);
             }

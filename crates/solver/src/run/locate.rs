@@ -172,6 +172,10 @@ impl Simulator {
             }
         }
         if n > propagate::STIFF_SUBSTEPS {
+            if self.refused.is_some() {
+                // `step` refused the span and left NaN: nothing to locate.
+                return None;
+            }
             if let Some(sp) = self.spectrum() {
                 let guards: Vec<&Guard> = guards.collect();
                 return self.locate_stiff(mode, &sp, &guards, h);

@@ -221,7 +221,7 @@ pub struct Simulator {
     ramp_next: f64,
     /// Why `step` refused a stiff span (see `locate::check_resolvable`),
     /// reported by `check_finite` in place of the NaN it left.
-    refused: Option<SolverError>,
+    pub(super) refused: Option<SolverError>,
 }
 
 pub(crate) fn dot(a: impl IntoIterator<Item = f64>, b: &[f64]) -> f64 {

@@ -96,10 +96,18 @@ fn issue_19_rc_ladder_reaches_its_exact_dc_solution() {
     let mut b = Circuit::builder().voltage_source("V1", "n0", "gnd", 1.0);
     for k in 1..=n {
         b = b
-            .resistor(&format!("R{k}"), &format!("n{}", k - 1), &format!("n{k}"), 1.0)
+            .resistor(
+                &format!("R{k}"),
+                &format!("n{}", k - 1),
+                &format!("n{k}"),
+                1.0,
+            )
             .capacitor(&format!("C{k}"), &format!("n{k}"), "gnd", 100e-12);
     }
-    let c = b.resistor("RL", &format!("n{n}"), "gnd", 10.0).build().unwrap();
+    let c = b
+        .resistor("RL", &format!("n{n}"), "gnd", 10.0)
+        .build()
+        .unwrap();
     let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
     sim.advance_to(1e-3).expect("runs");
     for k in 1..=n {
@@ -186,10 +194,7 @@ fn issue_19_sync_buck_with_a_vanishing_inductance_finishes_or_names_it() {
         Err(e) => {
             let text = e.to_string();
             assert!(text.contains("L1"), "{text}");
-            assert!(
-                !matches!(e, SolverError::NonFinite { .. }),
-                "{text}"
-            );
+            assert!(!matches!(e, SolverError::NonFinite { .. }), "{text}");
         }
     }
     assert!(sim.stats().stiff_substeps <= 100_000, "{:?}", sim.stats());
