@@ -296,7 +296,8 @@ impl Simulator {
         let mut s = 0.0;
         loop {
             let d = sp.step_at(s);
-            let last = !(s + d < h);
+            // d is ∞ once nothing is alive (never NaN: rates are finite).
+            let last = s + d >= h || d.is_nan();
             let b = if last { h } else { s + d };
             if last {
                 zb.copy_from_slice(self.z_next.as_slice());
