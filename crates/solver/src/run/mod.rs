@@ -917,6 +917,7 @@ impl Simulator {
             // One exponential (a near length's remainder could be a step
             // back over a fast decay).
             self.stats.stiff_spans += 1;
+            self.stats.exponentials += 1;
         } else if self.advance_near(mi, &m, h) {
             return;
         }
