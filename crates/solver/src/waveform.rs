@@ -397,6 +397,14 @@ impl Waveform {
                         x
                     }
                 };
+                if n > propagate::STIFF_SUBSTEPS {
+                    // A stiff segment (see `propagate::STIFF_SUBSTEPS`):
+                    // its sub-intervals are too long for a Taylor
+                    // polynomial, so each instant from one exponential,
+                    // as `Waveform::value` does.
+                    let z = self.state_in(i, t);
+                    return self.out_in(i, id, &z).unwrap_or(f64::NAN);
+                }
                 let x = (t - s.t0).max(0.0) * inv;
                 let j = (x as usize).min(n - 1);
                 if poly.key != Some((i, j)) {
