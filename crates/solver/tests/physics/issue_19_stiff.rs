@@ -11,6 +11,7 @@
 //! `Stats::stiff_substeps` show the work; no test times anything.
 
 use fluxstep_netlist::{Circuit, Element};
+use fluxstep_solver::measure::measure;
 use fluxstep_solver::{simulate, Options, Side, Simulator, SolverError};
 
 use super::util::rel;
@@ -50,6 +51,14 @@ fn issue_19_one_femtohenry_reaches_one_millisecond_in_one_exponential() {
     for (&t, &b) in times.iter().zip(&batch) {
         assert_eq!(b, w.value(i, t).unwrap(), "at {t}");
     }
+    // Extremes and averages over the stiff segment: the current rises
+    // from 0 to 1 A; its average over 1 ms is 1 A − τ/1 ms (the RL step's
+    // integral, common practice).
+    let m = measure(w, i, 0.0, 1e-3).unwrap();
+    // (Interpolated on the pieces: within rounding of the 1 A scale.)
+    assert!(m.min.abs() <= 1e-15, "{m:?}");
+    assert!(rel(m.max, 1.0) <= 1e-15, "{m:?}");
+    assert!(rel(m.average, 1.0 - 1e-12) <= 1e-12, "{m:?}");
     let s = run.stats;
     assert_eq!(s.stiff_spans, 1, "{s:?}");
     assert_eq!(s.exponentials, 1, "{s:?}");
