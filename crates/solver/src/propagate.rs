@@ -8,11 +8,25 @@
 //! below one unit in the last place, so this is as exact as the matrix
 //! exponential itself (nalgebra's `exp`, Al-Mohy & Higham, SIAM J. Matrix
 //! Anal. Appl. 2009).
+//!
+//! Stiff spans: where that rule would need more than [`STIFF_SUBSTEPS`]
+//! sub-steps (a decaying mode far faster than the span, e.g. 1 fH behind
+//! 1 Ω), the span is advanced by one matrix exponential instead
+//! ([`expm`]: scaling and squaring, with the scaling done here in exact
+//! powers of two where ‖Mτ‖ is too large for nalgebra's own). Ordinary
+//! spans need one to a few sub-steps and keep the Taylor path and its
+//! bits.
 
 use nalgebra::{DMatrix, DVector};
 
 /// Largest ρ·τ over which one Taylor expansion is used.
 pub(crate) const TAYLOR_REACH: f64 = 0.5;
+
+/// More Taylor sub-steps than this over one span: advance it by one
+/// matrix exponential instead (see the module docs). No example circuit
+/// comes near it (their spans need one to a few sub-steps), so their bits
+/// do not depend on it.
+pub(crate) const STIFF_SUBSTEPS: usize = 64;
 
 /// Number of sub-intervals so that each has ρ·τ ≤ [`TAYLOR_REACH`].
 pub(crate) fn substeps(rate: f64, tau: f64) -> usize {
@@ -27,6 +41,132 @@ pub(crate) fn substeps(rate: f64, tau: f64) -> usize {
     } else {
         1
     }
+}
+
+/// −Re λ·τ past which a component e^{λτ} counts as dead (see `run/locate.rs`).
+pub(crate) const DEAD: f64 = 60.0;
+
+/// Phase error (rad) an oscillation may accumulate over a stiff span in
+/// f64 arithmetic and time (ε·|Im λ|·max(h, t)) before the run refuses it.
+pub(crate) const PHASE_LIMIT: f64 = 1e-6;
+
+/// A mode's eigenvalues as stiff spans need them.
+#[derive(Debug)]
+pub(crate) struct Spectrum {
+    /// (−Re λ, |λ|, |Im λ|) of each eigenvalue, fastest decay first.
+    eig: Vec<(f64, f64, f64)>,
+    /// Per index k: max |λ| over `eig[k..]` (0 past the end).
+    alive_max: Vec<f64>,
+    /// max |λ|.
+    top: f64,
+}
+
+impl Spectrum {
+    /// The eigenvalues of `m` (real Schur form), or `None` where they
+    /// cannot be trusted: the iteration fails, a value is not finite,
+    /// their sum is not the trace (to 1e-8 of Σ|λ|), or a mode grows
+    /// faster than the span's slow dynamics could bound.
+    pub(crate) fn of(m: &DMatrix<f64>) -> Option<Spectrum> {
+        let schur = nalgebra::linalg::Schur::try_new(balanced(m), f64::EPSILON, 10_000)?;
+        let ev = schur.complex_eigenvalues();
+        let sum: f64 = ev.iter().map(|c| c.re).sum();
+        let abs: f64 = ev.iter().map(|c| c.norm()).sum();
+        if !abs.is_finite() || (sum - m.trace()).abs() > 1e-8 * abs + f64::MIN_POSITIVE {
+            return None;
+        }
+        let mut eig: Vec<(f64, f64, f64)> =
+            ev.iter().map(|c| (-c.re, c.norm(), c.im.abs())).collect();
+        let top = eig.iter().map(|e| e.1).fold(0.0, f64::max);
+        // A growing mode as fast as the fastest: nothing to gain, and its
+        // growth is what the Taylor rule's bound is for.
+        if eig.iter().any(|e| e.0 < 0.0 && -e.0 > 1e-3 * top) {
+            return None;
+        }
+        eig.sort_by(|a, b| b.0.total_cmp(&a.0));
+        let mut alive_max = vec![0.0f64; eig.len() + 1];
+        for k in (0..eig.len()).rev() {
+            alive_max[k] = alive_max[k + 1].max(eig[k].1);
+        }
+        Some(Spectrum {
+            eig,
+            alive_max,
+            top,
+        })
+    }
+
+    /// max |λ| over the eigenvalues still alive τ into a span.
+    pub(crate) fn alive_rate(&self, tau: f64) -> f64 {
+        let k = self.eig.partition_point(|e| e.0 * tau >= DEAD);
+        self.alive_max[k]
+    }
+
+    /// The sub-interval length at τ into a span: δ₀·2ʲ (δ₀ = 1/(2·top)),
+    /// the longest with (alive rate)·δ ≤ 1/2; ∞ when nothing is alive.
+    pub(crate) fn step_at(&self, tau: f64) -> f64 {
+        let r = self.alive_rate(tau);
+        if r <= 0.0 {
+            return f64::INFINITY;
+        }
+        let d0 = TAYLOR_REACH / self.top;
+        let j = (self.top / r).log2().floor().clamp(0.0, 1000.0) as i32;
+        let mut d = d0;
+        let mut left = j;
+        while left > 0 {
+            let k = left.min(512);
+            d *= 2f64.powi(k);
+            left -= k;
+        }
+        d
+    }
+
+    /// The fastest oscillation that stays alive over a span of length `h`
+    /// ending at `t_end` and whose phase f64 cannot follow there (error
+    /// ε·|Im λ|·max(h, t_end) above [`PHASE_LIMIT`]): its |Im λ|.
+    pub(crate) fn unresolved(&self, h: f64, t_end: f64) -> Option<f64> {
+        self.eig
+            .iter()
+            .filter(|e| e.0 * h < DEAD)
+            .map(|e| e.2)
+            .filter(|w| f64::EPSILON * w * h.max(t_end) > PHASE_LIMIT)
+            .reduce(f64::max)
+    }
+}
+
+/// D⁻¹MD with D diagonal, of powers of two (exact), such that each
+/// state's couplings in and out weigh the same (B. N. Parlett &
+/// C. Reinsch, "Balancing a matrix for calculation of eigenvalues and
+/// eigenvectors", Numer. Math. 1969). Without it the Schur iteration
+/// misses ±1.5e152i in a matrix holding 1e300 beside 2e4 (an inductance of
+/// 1e-300 H across a capacitor) and reports a slow real decay instead.
+fn balanced(m: &DMatrix<f64>) -> DMatrix<f64> {
+    let n = m.nrows();
+    let mut a = m.clone();
+    for _ in 0..100 {
+        let mut changed = false;
+        for i in 0..n {
+            let c: f64 = (0..n).filter(|&j| j != i).map(|j| a[(j, i)].abs()).sum();
+            let r: f64 = (0..n).filter(|&j| j != i).map(|j| a[(i, j)].abs()).sum();
+            if !(c > 0.0 && r > 0.0 && c.is_finite() && r.is_finite()) {
+                continue;
+            }
+            let e = (0.5 * (r / c).log2()).round();
+            if !e.is_finite() || e.abs() < 1.0 {
+                continue;
+            }
+            let e = e.clamp(-1000.0, 1000.0) as i32;
+            // Scale in two halves so no factor overflows.
+            let (f1, f2) = (2f64.powi(e / 2), 2f64.powi(e - e / 2));
+            for j in 0..n {
+                a[(j, i)] = a[(j, i)] * f1 * f2;
+                a[(i, j)] = a[(i, j)] / f1 / f2;
+            }
+            changed = true;
+        }
+        if !changed {
+            break;
+        }
+    }
+    a
 }
 
 /// Taylor vectors wₖ = Mᵏ z / k!·τᵏ, so that e^{Mτ} z = Σ wₖ; stops when a
@@ -54,6 +194,9 @@ pub(crate) fn advance(m: &DMatrix<f64>, rate: f64, z: &DVector<f64>, tau: f64) -
         return z.clone();
     }
     let n = substeps(rate, tau);
+    if n > STIFF_SUBSTEPS {
+        return expm(m, tau) * z;
+    }
     let d = tau / n as f64;
     let mut x = z.clone();
     for _ in 0..n {
@@ -271,9 +414,61 @@ pub(crate) fn poly_value(c: &[f64], s: f64) -> f64 {
     e + s * o
 }
 
+/// ‖Mh‖₁ up to which nalgebra's `exp` gets the matrix as it is (ordinary
+/// circuits stay far below and keep its bits). Above, its scaling loses
+/// the slow part of a stiff matrix (e^{−1e-6} came out as 1 beside a
+/// 1e13 entry) and gives NaN somewhere past 1e40.
+const EXP_DIRECT: f64 = 1e6;
+
 /// Matrix exponential e^{M h}.
+///
+/// Above [`EXP_DIRECT`], scaling and squaring done here so that it keeps
+/// the slow part of a stiff matrix: B = Mh·2⁻ˢ with ‖B‖₁ ≤ 1/2 (s exact
+/// powers of two, applied in steps that cannot underflow the factor), F =
+/// e^B − I by its Taylor series without the identity (20 terms: the tail
+/// is below 0.5²⁰/20! ≈ 4e-25 of ‖B‖), then s squarings of I + F carried
+/// as F ← 2F + F² (N. J. Higham, *Functions of Matrices*, SIAM 2008,
+/// §10.3, from memory: the identity is never added to the small entries,
+/// so a decay of 1e-6 beside a rate of 1e13 keeps its digits). About 1000
+/// squarings for an inductance of 1e-300 H behind an ohm. For decaying
+/// modes the squarings damp their own rounding; an oscillation's phase
+/// error grows as ε·ω·h, which the run checks before it trusts a stiff span
+/// (`Spectrum::unresolved`). A non-finite input or overflow comes back as
+/// non-finite, never as finite garbage.
 pub(crate) fn expm(m: &DMatrix<f64>, h: f64) -> DMatrix<f64> {
-    (m * h).exp()
+    let a = m * h;
+    let norm = a
+        .column_iter()
+        .map(|c| c.iter().map(|v| v.abs()).sum::<f64>())
+        .fold(0.0, f64::max);
+    if norm <= EXP_DIRECT {
+        return a.exp();
+    }
+    let n = a.nrows();
+    if !norm.is_finite() {
+        return DMatrix::from_element(n, n, f64::NAN);
+    }
+    // norm < 2^(e+1) with e = ⌊log₂ norm⌋, so 2^-(e+2)·norm < 1/2.
+    let s = norm.log2().floor() as i32 + 2;
+    let mut b = a;
+    let mut left = s;
+    while left > 0 {
+        let k = left.min(512);
+        b *= 2f64.powi(-k);
+        left -= k;
+    }
+    let mut term = b.clone();
+    let mut f = b.clone();
+    for k in 2..=20 {
+        term = &term * &b / k as f64;
+        f += &term;
+    }
+    for _ in 0..s {
+        let sq = &f * &f;
+        f *= 2.0;
+        f += sq;
+    }
+    f + DMatrix::identity(n, n)
 }
 
 /// y = M x for a dense column-major matrix, into `y`, without allocating.
@@ -382,6 +577,11 @@ pub(crate) fn advance_into(
     s.next.resize(nz, 0.0);
     s.x.resize(nz, 0.0);
     s.x.copy_from_slice(z);
+    if tau != 0.0 && substeps(rate, tau.abs()) > STIFF_SUBSTEPS {
+        let e = expm(m, tau);
+        matvec(&e, z, out);
+        return;
+    }
     if tau != 0.0 {
         let n = substeps(rate, tau.abs());
         let d = tau / n as f64;
@@ -457,7 +657,70 @@ pub(crate) fn all_finite(z: &[f64]) -> bool {
 
 #[cfg(test)]
 mod tests {
-    use super::{poly, poly_value};
+    use super::{expm, poly, poly_value, Spectrum};
+    use nalgebra::DMatrix;
+
+    /// e^{Mh} of the RL step z = [i, u], i′ = (u − i)/τ·… with u ≡ 1 V
+    /// and R = 1 Ω: [[e^{−h/τ}, 1 − e^{−h/τ}], [0, 1]] (the RL step's
+    /// closed form, common practice), for τ = L/R from 1e-15 down to
+    /// 1e-300 s over h = 1 ms — up to ~1000 squarings, no NaN; and a slow
+    /// decay of e^{−1e-6} beside a fast entry keeps its digits.
+    #[test]
+    fn exponential_of_a_huge_stiff_matrix_is_accurate() {
+        for l in [1e-15, 1e-60, 1e-150, 1e-300] {
+            let m = DMatrix::from_row_slice(2, 2, &[-1.0 / l, 1.0 / l, 0.0, 0.0]);
+            let e = expm(&m, 1e-3);
+            assert_eq!(e[(0, 0)], 0.0, "L = {l:e}");
+            assert!(
+                (e[(0, 1)] - 1.0).abs() <= 4.0 * f64::EPSILON,
+                "L = {l:e}: {e}"
+            );
+            assert_eq!((e[(1, 0)], e[(1, 1)]), (0.0, 1.0), "L = {l:e}");
+        }
+        // Fast RL beside a slow RC decay (rate 1e-3/s over 1e-3 s) and its
+        // input: e^{−1e-6} must come out to a few ulps.
+        for l in [1e-12, 1e-40, 1e-300] {
+            let m = DMatrix::from_row_slice(
+                3,
+                3,
+                &[-1.0 / l, 1.0 / l, 0.0, 0.0, -1e-3, 1.0, 0.0, 0.0, 0.0],
+            );
+            let e = expm(&m, 1e-3);
+            let slow = (-1e-6f64).exp();
+            assert!(
+                (e[(1, 1)] - slow).abs() <= 4.0 * f64::EPSILON,
+                "L = {l:e}: {e}"
+            );
+            // ∫₀ʰ e^{−a s} ds = (1 − e^{−ah})/a, a = 1e-3 (common practice).
+            let int = -(-1e-6f64).exp_m1() / 1e-3;
+            assert!((e[(1, 2)] - int).abs() <= 1e-15 * int, "L = {l:e}: {e}");
+            assert!(e.iter().all(|v| v.is_finite()));
+        }
+        let bad = DMatrix::from_row_slice(2, 2, &[f64::INFINITY, 0.0, 0.0, 0.0]);
+        assert!(expm(&bad, 1.0).iter().all(|v| v.is_nan()));
+    }
+
+    /// The spectrum of an inductance of 1e-300 H across 47 µF shows the
+    /// oscillation ω = 1/√(LC) (common practice) that the unbalanced Schur
+    /// iteration misses, and a real decay dies at DEAD/rate.
+    #[test]
+    fn spectrum_sees_an_oscillation_behind_a_huge_entry() {
+        let (l, c) = (1e-300, 47e-6);
+        let m = DMatrix::from_row_slice(2, 2, &[0.0, -1.0 / l, 1.0 / c, 0.0]);
+        let sp = Spectrum::of(&m).expect("trusted");
+        let w = 1.0 / (l * c).sqrt();
+        assert!((sp.top - w).abs() <= 1e-12 * w, "{sp:?}");
+        assert!(sp.unresolved(1e-9, 1e-9).is_some());
+        // A 1 fs decay beside a 1 s one: alive at first, dead after 60 fs.
+        let m = DMatrix::from_row_slice(2, 2, &[-1e15, 0.0, 0.0, -1.0]);
+        let sp = Spectrum::of(&m).expect("trusted");
+        assert_eq!(sp.alive_rate(0.0), 1e15);
+        assert_eq!(sp.alive_rate(6.1e-14), 1.0);
+        assert!(sp.unresolved(1.0, 1.0).is_none());
+        // The step grows by powers of two from 1/(2·1e15) to ≤ 1/2 s.
+        let d = sp.step_at(1e-13);
+        assert!(d <= 0.5 && d > 0.25, "{d}");
+    }
 
     /// The even/odd evaluation agrees with one Horner chain within the
     /// usual error bound of a polynomial evaluation, 2n·ε·Σ|cₖσᵏ| (N. J.

@@ -4,7 +4,7 @@
 
 use std::sync::Arc;
 
-use nalgebra::DVector;
+use nalgebra::{DMatrix, DVector};
 
 use crate::error::SolverError;
 use crate::mode::Mode;
@@ -397,6 +397,14 @@ impl Waveform {
                         x
                     }
                 };
+                if n > propagate::STIFF_SUBSTEPS {
+                    // A stiff segment (see `propagate::STIFF_SUBSTEPS`):
+                    // its sub-intervals are too long for a Taylor
+                    // polynomial, so each instant from one exponential,
+                    // as `Waveform::value` does.
+                    let z = self.state_in(i, t);
+                    return self.out_in(i, id, &z).unwrap_or(f64::NAN);
+                }
                 let x = (t - s.t0).max(0.0) * inv;
                 let j = (x as usize).min(n - 1);
                 if poly.key != Some((i, j)) {
@@ -635,6 +643,11 @@ impl Waveform {
         let mut vals = vec![0.0; ids.len()];
         let mut total = 0.0;
         let n = propagate::substeps(m.rate, width);
+        if n > propagate::STIFF_SUBSTEPS {
+            if let Some(sp) = propagate::Spectrum::of(&m.m) {
+                return self.integrate_stiff(i, &sp, ids, a, width, origin, f);
+            }
+        }
         let d = width / n as f64;
         let mut z = propagate::advance(&m.m, m.rate, &self.z0(i), a);
         for step in 0..n {
@@ -654,6 +667,67 @@ impl Waveform {
             }
             total += 0.5 * d * part;
             z = propagate::taylor(&m.m, &z, d);
+        }
+        total
+    }
+
+    /// [`Waveform::integrate_piece`] over a stiff piece (see
+    /// `propagate::STIFF_SUBSTEPS`): sub-intervals as long as the
+    /// eigenvalues still alive there allow (|λ|·δ ≤ 1/2, the fast decaying
+    /// ones dead after `propagate::DEAD`/(−Re λ) from the segment's
+    /// start, the same grading as event location in `run/locate.rs`), so
+    /// the Gauss–Legendre rule stays exact on each; states from matrix
+    /// exponentials, cached per sub-interval length within the call.
+    #[allow(clippy::too_many_arguments)] // integrate_piece's, plus the spectrum
+    fn integrate_stiff(
+        &self,
+        i: usize,
+        sp: &propagate::Spectrum,
+        ids: &[OutputId],
+        a: f64,
+        width: f64,
+        origin: f64,
+        f: impl Fn(f64, &[f64]) -> f64,
+    ) -> f64 {
+        let m = &self.modes[self.segments[i].mode as usize];
+        let mut vals = vec![0.0; ids.len()];
+        let mut total = 0.0;
+        let mut z = propagate::advance(&m.m, m.rate, &self.z0(i), a);
+        // Per sub-interval length: e^{Mδ(x+1)/2} at the 8 nodes and e^{Mδ}.
+        let mut cache: Vec<(u64, Vec<DMatrix<f64>>)> = vec![];
+        let mut tau = 0.0;
+        while tau < width {
+            let d = sp.step_at(a + tau).min(width - tau);
+            let k = match cache.iter().position(|(b, _)| *b == d.to_bits()) {
+                Some(k) => k,
+                None => {
+                    let mut e: Vec<DMatrix<f64>> = GL8
+                        .iter()
+                        .map(|&(x, _)| propagate::expm(&m.m, 0.5 * d * (x + 1.0)))
+                        .collect();
+                    e.push(propagate::expm(&m.m, d));
+                    cache.push((d.to_bits(), e));
+                    cache.len() - 1
+                }
+            };
+            let exps = &cache[k].1;
+            let mut part = 0.0;
+            let start = origin + tau;
+            for (&(x, w), e) in GL8.iter().zip(exps) {
+                let zz = e * &z;
+                for (k, id) in ids.iter().enumerate() {
+                    vals[k] =
+                        m.c.row(id.0)
+                            .iter()
+                            .zip(zz.iter())
+                            .map(|(p, q)| p * q)
+                            .sum();
+                }
+                part += w * f(start + 0.5 * d * (x + 1.0), &vals);
+            }
+            total += 0.5 * d * part;
+            z = &exps[GL8.len()] * &z;
+            tau += d;
         }
         total
     }

@@ -11,13 +11,43 @@
 //! touch that does not go below the tolerance is not an event — on
 //! purpose, so a current that just reaches zero and turns back keeps its
 //! conduction state.
+//!
+//! Stiff spans (more than `propagate::STIFF_SUBSTEPS` sub-intervals by the
+//! rule above, e.g. a 22 ps RC behind a 5 µs switching interval) are
+//! scanned by a different rule. The rule above bounds the step by the
+//! fastest mode all the way through, although a decaying mode only
+//! matters while it is alive. The mode's eigenvalues λ are computed once
+//! (`propagate::Spectrum`, on the balanced matrix). A component e^{λτ}
+//! with −Re λ·τ ≥ `propagate::DEAD` (60) has fallen below rounding of the
+//! state (e⁻⁶⁰ ≈ 9e-27: a margin of 1e9 below 2⁻⁵² for non-normal growth
+//! of the component before it decays). So τ into the span only the
+//! eigenvalues still alive bound the step: the sub-interval starting at
+//! τ has length δ₀·2ʲ, the longest with |λ|·δ ≤ 1/2 for every λ alive at
+//! τ (δ₀ = 1/(2 max|λ|); powers of two so that the exponentials e^{Mδ}
+//! are cached per mode). A fast real mode thus sets the step for the
+//! first 2·60·|λ|/(−Re λ) sub-intervals only (about 120), then the slow
+//! modes and the oscillations (whose |Im λ| stays alive as long as they
+//! do) set it. Within each sub-interval the live part of the guard varies
+//! as slowly as under the rule above, so the same checks apply — end
+//! value, then a dip between a falling start and a rising end — on exact
+//! states from the cached exponentials; a derivative within rounding noise
+//! of its terms (64·ε·Σ|drow·z|, what dead fast components leave) counts
+//! as zero. A crossing is refined on exact states e^{Mσ}z (Illinois steps
+//! kept inside the bracket, bisection where they stall) to the first
+//! representable point past it, as `root_in` does on polynomials. Where
+//! the eigenvalues cannot be trusted (the Schur iteration fails, a value is
+//! not finite, their sum is not the trace, or a fast growing mode) the
+//! rule above is kept.
+
+use std::sync::Arc;
 
 use nalgebra::{DMatrix, DVector};
 
 use super::Simulator;
-use crate::mode::{Guard, GuardKind, Mode};
+use crate::error::SolverError;
+use crate::mode::{pattern_text, Guard, GuardKind, Mode};
 use crate::propagate;
-use crate::propagate::{dot_and_abs, dot_s};
+use crate::propagate::{dot_and_abs, dot_s, Spectrum, PHASE_LIMIT};
 
 /// Relative tolerance for "this linear function of the state is zero",
 /// measured against the sum of the magnitudes of its terms (so it scales
@@ -141,6 +171,16 @@ impl Simulator {
                 }
             }
         }
+        if n > propagate::STIFF_SUBSTEPS {
+            if self.refused.is_some() {
+                // `step` refused the span and left NaN: nothing to locate.
+                return None;
+            }
+            if let Some(sp) = self.spectrum() {
+                let guards: Vec<&Guard> = guards.collect();
+                return self.locate_stiff(mode, &sp, &guards, h);
+            }
+        }
         let d = h / n as f64;
         let mut za = std::mem::take(&mut self.za);
         za.copy_from(&self.z);
@@ -187,6 +227,213 @@ impl Simulator {
         // `z_next` must then be the state at h again).
         found.map(|(t, b, _)| (if t >= h * (1.0 - 1e-14) { h } else { t }, b.0, b.1))
     }
+}
+
+impl Simulator {
+    /// The present mode's spectrum, computed at its first stiff span.
+    fn spectrum(&mut self) -> Option<Arc<Spectrum>> {
+        let mi = self.mode as usize;
+        if self.caches[mi].spectrum.is_none() {
+            let sp = Spectrum::of(&self.modes[mi].m).map(Arc::new);
+            self.caches[mi].spectrum = Some(sp);
+        }
+        self.caches[mi].spectrum.clone().flatten()
+    }
+
+    /// Before a stiff span of length `h`: stops the run where the mode
+    /// oscillates faster than f64 time and arithmetic can follow over it
+    /// (see `Spectrum::unresolved`), naming the state with the smallest
+    /// energy scale (√L or √C: the smallest inductance or capacitance
+    /// taking part), whose value makes it so.
+    ///
+    /// # Errors
+    ///
+    /// [`SolverError::Unsupported`] naming that state and the rate.
+    pub(super) fn check_resolvable(&mut self, h: f64) -> Result<(), SolverError> {
+        let Some(sp) = self.spectrum() else {
+            return Ok(());
+        };
+        let Some(w) = sp.unresolved(h, self.t + h) else {
+            return Ok(());
+        };
+        Err(self.too_fast(w, h))
+    }
+
+    #[cold]
+    #[inline(never)]
+    fn too_fast(&self, w: f64, h: f64) -> SolverError {
+        let mode = &self.modes[self.mode as usize];
+        let nx = self.cc.n_x;
+        let who = (0..nx.min(self.cc.x_scale.len()))
+            .filter(|&i| mode.m.row(i).iter().any(|v| *v != 0.0))
+            .min_by(|&a, &b| self.cc.x_scale[a].total_cmp(&self.cc.x_scale[b]))
+            .map(|i| self.cc.state_names[i].clone())
+            .unwrap_or_else(|| "a state".into());
+        SolverError::Unsupported {
+            time: self.t,
+            pattern: pattern_text(&self.cc, self.key),
+            reason: format!(
+                "the circuit oscillates at {w:.3e} rad/s in this pattern, too fast to follow \
+                 in 64-bit time and arithmetic over {h:.3e} s up to t = {:.3e} s (phase error \
+                 above {PHASE_LIMIT:e} rad); the fastest state is {who}: check its value",
+                self.t + h
+            ),
+        }
+    }
+
+    /// [`Simulator::locate_in`] over a stiff span (see the module docs).
+    fn locate_stiff(
+        &mut self,
+        mode: &Mode,
+        sp: &Spectrum,
+        guards: &[&Guard],
+        h: f64,
+    ) -> Option<(f64, u64, u64)> {
+        let scales = self.scales();
+        let mi = self.mode as usize;
+        let mut za = self.z.as_slice().to_vec();
+        let mut zb = vec![0.0; za.len()];
+        let mut s = 0.0;
+        loop {
+            let d = sp.step_at(s);
+            // d is ∞ once nothing is alive (never NaN: rates are finite).
+            let last = s + d >= h || d.is_nan();
+            let b = if last { h } else { s + d };
+            if last {
+                zb.copy_from_slice(self.z_next.as_slice());
+            } else {
+                let bits = d.to_bits();
+                let cache = &mut self.caches[mi].stiff_discs;
+                if let Some((_, e)) = cache.iter().find(|(k, _)| *k == bits) {
+                    propagate::matvec(e, &za, &mut zb);
+                } else {
+                    let e = propagate::expm(&mode.m, d);
+                    propagate::matvec(&e, &za, &mut zb);
+                    if cache.len() < 64 {
+                        self.stats.exponentials += 1;
+                        cache.push((bits, e));
+                    }
+                }
+            }
+            self.stats.stiff_substeps += 1;
+            let mut found: Found = None;
+            for g in guards {
+                if let Some(sigma) = stiff_root(mode, g, &za, &zb, b - s, scales) {
+                    found = merge(found, s + sigma, bits_of(g), sigma, h);
+                }
+            }
+            if let Some((t, bits, sigma)) = found {
+                // A crossing at the very end belongs to the scheduled
+                // instant (`z_next` holds the state at h).
+                if t >= h * (1.0 - 1e-14) {
+                    return Some((h, bits.0, bits.1));
+                }
+                let e = propagate::expm(&mode.m, sigma);
+                propagate::matvec(&e, &za, self.z_next.as_mut_slice());
+                return Some((t, bits.0, bits.1));
+            }
+            if last {
+                return None;
+            }
+            s = b;
+            std::mem::swap(&mut za, &mut zb);
+        }
+    }
+}
+
+/// The state e^{Mσ}·z.
+fn exact_at(m: &DMatrix<f64>, z: &[f64], sigma: f64) -> Vec<f64> {
+    let e = propagate::expm(m, sigma);
+    let mut out = vec![0.0; z.len()];
+    propagate::matvec(&e, z, &mut out);
+    out
+}
+
+/// Where guard `g` first goes below zero in a stiff sub-interval of length
+/// `d` from state `za` (its end state `zb`), as σ from its start: through
+/// its end value, or below zero at an interior minimum. On exact states.
+fn stiff_root(
+    mode: &Mode,
+    g: &Guard,
+    za: &[f64],
+    zb: &[f64],
+    d: f64,
+    scales: (f64, f64),
+) -> Option<f64> {
+    let (ga, sa) = dot_and_abs(&g.row, za);
+    let (gb, sb) = dot_and_abs(&g.row, zb);
+    let tol = ZERO_REL * sa.max(sb) + guard_floor(&g.kind, scales);
+    let value = |sigma: f64| dot_s(&g.row, &exact_at(&mode.m, za, sigma));
+    if gb < -tol {
+        return Some(exact_root(value, 0.0, d, ga, gb));
+    }
+    // Derivatives within rounding of their terms count as zero.
+    let (da, dsa) = dot_and_abs(&g.drow, za);
+    let (db, dsb) = dot_and_abs(&g.drow, zb);
+    let noise = |s: f64| 64.0 * f64::EPSILON * s;
+    if !(da < -noise(dsa) && db > noise(dsb)) {
+        return None;
+    }
+    // A dip: the minimum where the derivative turns upward.
+    let (mut a, mut b) = (0.0, d);
+    for _ in 0..200 {
+        let m = 0.5 * (a + b);
+        if m <= a || m >= b {
+            break;
+        }
+        if dot_s(&g.drow, &exact_at(&mode.m, za, m)) < 0.0 {
+            a = m;
+        } else {
+            b = m;
+        }
+    }
+    let smin = 0.5 * (a + b);
+    let gm = value(smin);
+    (gm < -tol).then(|| exact_root(value, 0.0, smin, ga, gm))
+}
+
+/// The first representable point past the zero of `f` in [lo, hi], where
+/// f(lo) = `fa` ≥ 0 > f(hi) = `fb` (`lo` itself if `fa` < 0): Illinois
+/// steps kept inside the bracket, bisection where they stall, until the
+/// bracket is an ulp wide.
+fn exact_root(f: impl Fn(f64) -> f64, lo: f64, hi: f64, fa: f64, fb: f64) -> f64 {
+    if fa < 0.0 {
+        return lo;
+    }
+    let (mut a, mut b, mut fa, mut fb) = (lo, hi, fa, fb);
+    let mut side = 0i8;
+    for i in 0..400 {
+        let m = if i % 4 == 3 || fa - fb <= 0.0 {
+            0.5 * (a + b)
+        } else {
+            let x = a + (b - a) * fa / (fa - fb);
+            if x > a && x < b {
+                x
+            } else {
+                0.5 * (a + b)
+            }
+        };
+        if m <= a || m >= b {
+            break;
+        }
+        let fm = f(m);
+        if fm < 0.0 {
+            b = m;
+            fb = fm;
+            if side == -1 {
+                fa *= 0.5;
+            }
+            side = -1;
+        } else {
+            a = m;
+            fa = fm;
+            if side == 1 {
+                fb *= 0.5;
+            }
+            side = 1;
+        }
+    }
+    b
 }
 
 /// Earliest crossing: the others within 1e-13·h of it fire with it.

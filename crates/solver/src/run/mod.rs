@@ -51,6 +51,13 @@ pub struct Stats {
     /// Intervals advanced from the cached exponential of a nearby length
     /// and a short Taylor remainder.
     pub near_steps: usize,
+    /// Stiff spans: intervals that the Taylor rule would split into more
+    /// than 64 sub-steps, advanced by one exponential instead (see
+    /// `propagate.rs`). 0 for ordinary converters.
+    pub stiff_spans: usize,
+    /// Sub-intervals scanned for state events in stiff spans (their
+    /// lengths grow as fast decaying modes die out, see `locate.rs`).
+    pub stiff_substeps: usize,
 }
 
 /// A view of one finished segment, handed to a streaming sink.
@@ -212,6 +219,9 @@ pub struct Simulator {
     phases: Vec<transition::Phase>,
     /// The earliest end of a running ramp phase (∞ if none).
     ramp_next: f64,
+    /// Why `step` refused a stiff span (see `locate::check_resolvable`),
+    /// reported by `check_finite` in place of the NaN it left.
+    pub(super) refused: Option<SolverError>,
 }
 
 pub(crate) fn dot(a: impl IntoIterator<Item = f64>, b: &[f64]) -> f64 {
@@ -366,6 +376,7 @@ impl Simulator {
             ramp_switches,
             phases: vec![transition::Phase::Idle; n_switches],
             ramp_next: f64::INFINITY,
+            refused: None,
         };
         sim.cmp_ticks = (0..n_cmp).map(|ci| sim.make_ticks(ci)).collect();
         sim.current_states = sim
@@ -755,11 +766,16 @@ impl Simulator {
     }
 
     #[inline(always)]
-    fn check_finite(&self) -> Result<(), SolverError> {
+    fn check_finite(&mut self) -> Result<(), SolverError> {
         let z = self.z.as_slice();
         if propagate::all_finite(z) {
             return Ok(());
         }
+        // A stiff span refused by `step` left NaN and its reason.
+        if let Some(e) = self.refused.take() {
+            return Err(e);
+        }
+        let z = self.z.as_slice();
         if let Some(i) = z.iter().position(|v| !v.is_finite()) {
             let what = if i < self.cc.n_x {
                 self.cc.state_names[i].clone()
@@ -874,6 +890,17 @@ impl Simulator {
             return;
         }
         let m = self.modes[mi].clone();
+        let stiff = propagate::substeps(m.rate, h) > propagate::STIFF_SUBSTEPS;
+        if stiff {
+            // Out of the hot loop: only lengths without a cached
+            // exponential get here. A refusal leaves NaN, which
+            // `check_finite` turns into the stored diagnostic.
+            if let Err(e) = self.check_resolvable(h) {
+                self.z_next.fill(f64::NAN);
+                self.refused = Some(e);
+                return;
+            }
+        }
         if cacheable && self.caches[mi].discs.len() < 16 {
             self.stats.exponentials += 1;
             let phi = propagate::expm(&m.m, h);
@@ -886,7 +913,12 @@ impl Simulator {
         if (!cacheable || self.near_cache) && self.advance_repeated(mi, &m.m, h) {
             return;
         }
-        if self.advance_near(mi, &m, h) {
+        if stiff {
+            // One exponential (a near length's remainder could be a step
+            // back over a fast decay).
+            self.stats.stiff_spans += 1;
+            self.stats.exponentials += 1;
+        } else if self.advance_near(mi, &m, h) {
             return;
         }
         propagate::advance_into(
@@ -916,6 +948,11 @@ struct ModeCache {
     again_next: usize,
     /// Guard polynomials of scheduled lengths (see `locate.rs`).
     polys: Vec<locate::GuardPolys>,
+    /// The mode's eigenvalues, computed at its first stiff span (`None`
+    /// before; `Some(None)` where they cannot be trusted).
+    spectrum: Option<Option<std::sync::Arc<propagate::Spectrum>>>,
+    /// e^{Mδ} for the sub-interval lengths δ of stiff spans.
+    stiff_discs: Vec<Disc>,
 }
 
 impl Default for ModeCache {
@@ -926,6 +963,8 @@ impl Default for ModeCache {
             again: vec![],
             again_next: 0,
             polys: vec![],
+            spectrum: None,
+            stiff_discs: vec![],
         }
     }
 }

@@ -6,6 +6,7 @@ mod issue_13;
 mod issue_19;
 mod issue_19_cuts;
 mod issue_19_memory;
+mod issue_19_stiff;
 mod structure;
 mod transition;
 pub mod util;
