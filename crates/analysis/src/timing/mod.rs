@@ -25,7 +25,7 @@
 //!
 //! // A synchronous buck: complementary 100 kHz pair, dead times 50 ns
 //! // before the high side turns on and 80 ns before the low side does.
-//! let body = DiodeModel { forward_voltage: Some(0.7), on_resistance: None };
+//! let body = DiodeModel { forward_voltage: Some(0.7), on_resistance: None, recovered_charge: None };
 //! let buck = Circuit::builder()
 //!     .voltage_source("Vin", "in", "gnd", 12.0)
 //!     .transistor("Q1", "in", "sw", "hb.high", 0.01, body.clone())
