@@ -185,9 +185,6 @@ pub struct Simulator {
     /// before the search by Hamming distance (off only in the tests that
     /// use the search as an oracle).
     pivoting: bool,
-    /// Tests only: compare pivoting with the search at every instant.
-    #[cfg(test)]
-    cross: Option<lcp::CrossCheck>,
     /// Remembered transitions (see `resolve::Transition`), at most 64.
     memo: Vec<resolve::Transition>,
     /// Whether remembered transitions are replayed (off only in the test
@@ -363,8 +360,6 @@ impl Simulator {
             orders: vec![],
             far_order: None,
             pivoting: true,
-            #[cfg(test)]
-            cross: lcp::cross_from_start(),
             memo: vec![],
             replay: true,
             lane: true,
