@@ -5,6 +5,7 @@ mod exact;
 mod issue_13;
 mod issue_19;
 mod issue_19_memory;
+mod issue_20;
 mod structure;
 mod transition;
 pub mod util;
