@@ -38,10 +38,11 @@
 //! search by Hamming distance decides, as it does where no pattern holds
 //! without a jump.
 
+use super::resolve::violations;
 use super::resolve::{note_rejection, violated_guards, Found, Verdict};
 use super::Simulator;
 use crate::error::SolverError;
-use crate::mode::{GuardKind, Mode};
+use crate::mode::{GuardKind, Mode, ModeProblem};
 
 /// Patterns judged per diode before pivoting gives up (plus a constant):
 /// generous for the few pivots a well-posed network needs, small enough
@@ -74,8 +75,11 @@ impl Simulator {
     ) -> Result<Option<Found>, SolverError> {
         let mut cut_rejected: Option<Vec<u32>> = (!initial).then(Vec::new);
         // The usual case: the first guess holds. Nothing is allocated.
-        let mut base = match self.pivot_step(first, flips, scales, &mut cut_rejected)? {
-            Step::Holds(found) => return Ok(Some(found)),
+        let mut base = match self.pivot_step(first, scales, &mut cut_rejected)? {
+            Step::Holds(found) => {
+                self.remember(&cut_rejected, Verdict::held(found), flips, found.mode);
+                return Ok(Some(found));
+            }
             Step::Toggle(d) => Some(first ^ 1 << d),
             Step::Singular => None,
         };
@@ -83,12 +87,22 @@ impl Simulator {
         let budget = PIVOTS_PER_DIODE * nd + 16;
         let mut judged: Vec<u64> = vec![first];
         let mut from = first;
+        // Whether a scan of neighbours found nothing, after which singular
+        // patterns are repaired by their cause alone.
+        let mut targeted = false;
+        // The patterns repaired from so far, and the steps taken.
+        let mut path: Vec<u64> = vec![];
+        let mut steps = 0;
         loop {
+            steps += 1;
+            if steps > budget {
+                return Ok(None);
+            }
             let next = match base {
                 Some(next) => next,
                 // A singular pivot: the first neighbour (in the order of
                 // the exhaustive list) that is not singular decides.
-                None => {
+                None if !targeted => {
                     let mut found = None;
                     for nb in neighbours(from, nd) {
                         if judged.contains(&nb) {
@@ -98,8 +112,17 @@ impl Simulator {
                             return Ok(None);
                         }
                         judged.push(nb);
-                        match self.pivot_step(nb, flips, scales, &mut cut_rejected)? {
-                            Step::Holds(f) => return self.descend(first, f, &mut judged, scales),
+                        match self.pivot_step(nb, scales, &mut cut_rejected)? {
+                            Step::Holds(f) => {
+                                return self.descend(
+                                    first,
+                                    f,
+                                    &mut judged,
+                                    scales,
+                                    cut_rejected,
+                                    flips,
+                                )
+                            }
                             // Back to a pattern judged before: try the
                             // next neighbour.
                             Step::Toggle(d) if judged.contains(&(nb ^ 1 << d)) => {}
@@ -112,23 +135,93 @@ impl Simulator {
                     }
                     match found {
                         Some(next) => next,
+                        None => {
+                            // Several problems at once (two phases
+                            // commutating at one instant): repair them one
+                            // by one. The path now depends on more than a
+                            // replay re-checks, so it is not remembered.
+                            targeted = true;
+                            cut_rejected = None;
+                            path.push(from);
+                            match self.repair(from, scales, &path)? {
+                                Some(next) => next,
+                                None => return Ok(None),
+                            }
+                        }
+                    }
+                }
+                None => {
+                    path.push(from);
+                    match self.repair(from, scales, &path)? {
+                        Some(next) => next,
                         None => return Ok(None),
                     }
                 }
             };
             // A pattern judged before: the rule cycles (a degenerate
             // network of ideal diodes), the search decides.
-            if judged.contains(&next) || judged.len() >= budget {
+            if (!targeted && judged.contains(&next)) || judged.len() >= budget {
                 return Ok(None);
             }
-            judged.push(next);
+            if !judged.contains(&next) {
+                judged.push(next);
+            }
             from = next;
-            base = match self.pivot_step(next, flips, scales, &mut cut_rejected)? {
-                Step::Holds(found) => return self.descend(first, found, &mut judged, scales),
+            base = match self.pivot_step(next, scales, &mut cut_rejected)? {
+                Step::Holds(found) => {
+                    return self.descend(first, found, &mut judged, scales, cut_rejected, flips)
+                }
                 Step::Toggle(d) => Some(next ^ 1 << d),
                 Step::Singular => None,
             };
         }
+    }
+
+    /// The repair of a singular pattern by its cause: a loop of zero
+    /// resistance through conducting diodes turns its lowest-valued such
+    /// diode off; an inductor current left without a path turns on a
+    /// blocking diode at a terminal of a cut winding. Of the candidate
+    /// patterns, the smallest value not yet repaired from (`path`);
+    /// `None` if there is none (the search decides).
+    fn repair(
+        &mut self,
+        base: u64,
+        scales: (f64, f64),
+        path: &[u64],
+    ) -> Result<Option<u64>, SolverError> {
+        let (mi, _) = self.judge_pattern(base, scales)?;
+        let mode = &self.modes[mi as usize];
+        let mut toggles: Vec<usize> = vec![];
+        let devices = match (&mode.problem, &mode.resistive_short) {
+            (Some(ModeProblem::Short { switches, .. }), _) => Some(switches),
+            (None, Some((devices, _))) => Some(devices),
+            _ => None,
+        };
+        if let Some(devices) = devices {
+            for (k, d) in self.cc.diodes.iter().enumerate() {
+                if base >> k & 1 == 1 && devices.contains(&d.name) {
+                    toggles.push(k);
+                }
+            }
+        } else if mode.problem.is_none() {
+            let mut windings = vec![];
+            violations(mode, self.z.as_slice(), scales, Some(&mut windings));
+            let ends: Vec<usize> = windings
+                .iter()
+                .flat_map(|&w| [self.cc.branches[w].a, self.cc.branches[w].b])
+                .collect();
+            for (k, d) in self.cc.diodes.iter().enumerate() {
+                let br = &self.cc.branches[d.branch];
+                if base >> k & 1 == 0 && (ends.contains(&br.a) || ends.contains(&br.b)) {
+                    toggles.push(k);
+                }
+            }
+        }
+        Ok(toggles
+            .into_iter()
+            .map(|k| base ^ 1 << k)
+            .filter(|c| !path.contains(c))
+            .min())
     }
 
     /// The nearest pattern to `first` that holds, moving on from `found`
@@ -144,12 +237,19 @@ impl Simulator {
     /// skipped, so a pattern reached in one step from the first guess
     /// costs nothing here. Exchanges are tried only up to 16 diodes: above,
     /// they would build too many modes, and ties are left to pivoting.
+    ///
+    /// The transition is remembered (as [`Simulator::search`] would) only
+    /// if `found` stands and every pattern judged on the way was rejected
+    /// for a reason a replay re-checks: then pivoting from the same
+    /// verdicts retraces the same path.
     fn descend(
         &mut self,
         first: u64,
         found: Found,
         judged: &mut Vec<u64>,
         scales: (f64, f64),
+        mut cut_rejected: Option<Vec<u32>>,
+        flips: u64,
     ) -> Result<Option<Found>, SolverError> {
         let nd = self.cc.diodes.len();
         let mut best = found;
@@ -180,6 +280,7 @@ impl Simulator {
                 judged.push(c);
                 let (mi, verdict) = self.judge_pattern(c, scales)?;
                 current = false;
+                note_rejection(&mut cut_rejected, verdict, mi);
                 if let Verdict::Holds { cut, charge } = verdict {
                     better = Some(Found {
                         diodes: c,
@@ -196,6 +297,9 @@ impl Simulator {
                 None => break,
             }
         }
+        if best == found {
+            self.remember(&cut_rejected, Verdict::held(best), flips, best.mode);
+        }
         if !current {
             self.judge_pattern(best.diodes, scales)?;
         }
@@ -203,18 +307,16 @@ impl Simulator {
     }
 
     /// Judges pattern `diodes` (no inductor current may be cut) and says
-    /// which pivot follows; remembers a transition that holds as
-    /// [`Simulator::search`] would.
+    /// which pivot follows, noting its rejection for a remembered
+    /// transition.
     fn pivot_step(
         &mut self,
         diodes: u64,
-        flips: u64,
         scales: (f64, f64),
         cut_rejected: &mut Option<Vec<u32>>,
     ) -> Result<Step, SolverError> {
         let (mi, verdict) = self.judge_pattern(diodes, scales)?;
         note_rejection(cut_rejected, verdict, mi);
-        self.remember(cut_rejected, verdict, flips, mi);
         Ok(match verdict {
             Verdict::Holds { cut, charge } => Step::Holds(Found {
                 diodes,
@@ -355,7 +457,7 @@ mod tests {
 
     /// Every example circuit, with a run time that reaches its steady
     /// behaviour.
-    const EXAMPLES: [(&str, f64); 10] = [
+    const EXAMPLES: [(&str, f64); 13] = [
         ("buck.json", 1e-3),
         ("buck_dcm.json", 1e-3),
         ("boost.json", 1e-3),
@@ -366,6 +468,9 @@ mod tests {
         ("hysteretic_buck.json", 1e-3),
         ("voltage_mode_buck.json", 2e-3),
         ("buck_boost.json", 1e-3),
+        ("three_phase_bridge.json", 40e-3),
+        ("interleaved_buck_12.json", 20e-6),
+        ("three_phase_inverter.json", 20e-3),
     ];
 
     /// Runs `c` for `stop` s with the given switches; replay is off so

@@ -612,6 +612,16 @@ impl Simulator {
 /// two: the list of all 2^n patterns would not fit in memory.
 const EXHAUSTIVE_DIODES: usize = 16;
 
+impl Verdict {
+    /// The verdict of a pattern found to hold.
+    pub(super) fn held(found: Found) -> Verdict {
+        Verdict::Holds {
+            cut: found.cut,
+            charge: found.charge,
+        }
+    }
+}
+
 /// A pattern that holds: its diode bits, mode, and whether entering it
 /// needs a flux (`cut`) or charge jump.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -660,7 +670,7 @@ fn near_patterns(first: u64, nd: usize) -> Vec<u64> {
 /// crossing leaves ~1e-17 of that behind, which the projection removes
 /// silently; anything above 1e-11 of it is a real jump.
 #[inline(always)]
-fn violations(
+pub(super) fn violations(
     mode: &Mode,
     z: &[f64],
     (i_scale, v_scale): (f64, f64),
