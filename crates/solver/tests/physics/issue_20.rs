@@ -81,7 +81,7 @@ fn issue_20_a_circuit_of_24_diodes_runs() {
     let c = example("multiplier_24.json");
     let run = simulate(&c, 1e-3, Options::default()).expect("runs");
     let w = &run.waveform;
-    let out = w.output("b12").expect("output");
+    let out = w.output("out").expect("output");
     let end = w.span().expect("recorded").1;
     let v = w.value(out, end).expect("value");
     let limit = 2.0 * 12.0 * (10.0 - 0.6);
