@@ -114,6 +114,16 @@ pub enum AnalysisError {
         /// One entry per Newton iteration.
         history: Vec<Iteration>,
     },
+    /// The eigenvalues of the period map (the Floquet multipliers) could
+    /// not be computed: the eigenvalue iteration did not converge.
+    #[error(
+        "the Floquet multipliers of the {states}-state period map could not be computed \
+         (the eigenvalue iteration did not converge)"
+    )]
+    Multipliers {
+        /// The number of free states of the period map.
+        states: usize,
+    },
     /// A Floquet multiplier equals 1: the period map leaves a state (or a
     /// combination of states) where it is, so it has no single steady value
     /// (e.g. a capacitor with no DC path, a lossless loop).

@@ -429,3 +429,20 @@ fn a_state_without_a_steady_value_is_named() {
         other => panic!("expected Undetermined, got {other:?}"),
     }
 }
+
+/// Twelve equal buck phases of ideal parts share one output: a current
+/// circulating between two phases meets no resistance, so the period map
+/// keeps it where it starts (eleven multipliers of exactly 1; common
+/// practice: lossless parallel phases do not share current by
+/// themselves). The eigenvalue iteration stalls on that multiplicity; the
+/// analysis still names the state instead of looping.
+#[test]
+fn lossless_parallel_phases_have_no_single_steady_state() {
+    let c = example("interleaved_buck_12.json");
+    match find(&c, &SteadyOptions::default()) {
+        Err(AnalysisError::Undetermined { state }) => {
+            assert!(state.starts_with('L'), "{state}");
+        }
+        other => panic!("expected Undetermined, got {other:?}"),
+    }
+}

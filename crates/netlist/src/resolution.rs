@@ -21,9 +21,9 @@ pub const MIN_DURATION_RATIO: f64 = 1.0 / (1u64 << 40) as f64;
 pub const MAX_SWITCHES: usize = 64;
 
 /// The most diodes (diode elements plus switches' body diodes) a circuit
-/// may have: the solver finds the conduction pattern of the diodes among
-/// 2^16 at most.
-pub const MAX_DIODES: usize = 16;
+/// may have: the solver keeps the conduction pattern of the diodes in one
+/// 64-bit word.
+pub const MAX_DIODES: usize = 64;
 
 impl Circuit {
     /// Problems with the size of the circuit: more than [`MAX_SWITCHES`]
@@ -174,12 +174,12 @@ mod tests {
         let mut b = Circuit::builder()
             .voltage_source("V1", "a", "gnd", 1.0)
             .resistor("R1", "a", "b", 1.0);
-        for i in 0..20 {
+        for i in 0..70 {
             b = b.diode(&format!("D{i}"), "b", "gnd");
         }
         let err = b.build().unwrap_err().to_string();
         assert!(
-            err.contains("20 diodes") && err.contains("at most 16"),
+            err.contains("70 diodes") && err.contains("at most 64"),
             "{err}"
         );
     }

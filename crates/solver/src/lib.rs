@@ -77,5 +77,6 @@ pub use mode::ModeKey;
 pub use options::{
     OnInterruption, OnShootThrough, Options, Record, CHATTER_FRACTION, DEFAULT_MEMORY_BUDGET,
 };
+pub use propagate::eigenvalues;
 pub use run::{simulate, RunResult, SegmentSink, SegmentView, Simulator, Stats};
 pub use waveform::{OutputId, Segment, Side, TransitionSpan, ValueError, Waveform};

@@ -10,6 +10,9 @@
 //!   floating nodes, magnetics and dead time.
 //! - `physics::transition`: finite switching transitions (clamped
 //!   inductive switching, stray-inductance overshoot).
+//! - `physics::issue_20`: many diodes (three-phase bridge sequence, a
+//!   24-diode multiplier, interleaved-buck ripple cancellation, a diode
+//!   loop around a source).
 //! - `physics::issue_13`, `physics::issue_19`: regression tests of those
 //!   issues (outputs a designer can trust; extreme scales and the
 //!   metamorphic scaling laws).

@@ -617,12 +617,20 @@ fn shoot(circuit: &Circuit, opts: &SteadyOptions) -> Result<SteadyState, Analysi
     if opts.record_periods > 1 {
         last.sim.advance_to(record_end)?;
     }
-    let mut multipliers: Vec<Multiplier> = monodromy
-        .clone()
-        .complex_eigenvalues()
-        .iter()
-        .map(|l| Multiplier::new(*l))
-        .collect();
+    let ident = DMatrix::identity(free.len(), free.len());
+    let Some(eigenvalues) = fluxstep_solver::eigenvalues(&monodromy) else {
+        // The eigenvalue iteration can stall on a multiplier of 1 of high
+        // multiplicity (equal lossless phases); the singular values of
+        // M − I still tell that case apart.
+        let shifted = &monodromy - &ident;
+        let smallest = shifted.singular_values().min();
+        if smallest <= UNIT_MULTIPLIER {
+            return Err(undetermined(&shifted, &free, last.sim.state_names()));
+        }
+        return Err(AnalysisError::Multipliers { states: free.len() });
+    };
+    let mut multipliers: Vec<Multiplier> =
+        eigenvalues.iter().map(|l| Multiplier::new(*l)).collect();
     multipliers.sort_by(|a, b| {
         b.magnitude
             .total_cmp(&a.magnitude)
@@ -631,7 +639,6 @@ fn shoot(circuit: &Circuit, opts: &SteadyOptions) -> Result<SteadyState, Analysi
     });
     // A multiplier of 1 on the orbit: the state along its eigenvector stays
     // wherever it starts, so this orbit is one of a family.
-    let ident = DMatrix::identity(free.len(), free.len());
     if multipliers
         .iter()
         .any(|m| (m.re - 1.0).abs() <= UNIT_MULTIPLIER && m.im.abs() <= UNIT_MULTIPLIER)

@@ -1,14 +1,18 @@
 //! Stage 3: resolve the conduction pattern that is consistent with the
 //! state, apply any jump, and log what changed.
 //!
-//! Candidates are tried in order of Hamming distance from a first guess
-//! (the previous pattern with the diodes whose guard fired toggled), so the
-//! usual case costs one candidate. Each candidate is judged at the present
-//! state: its constraints (inductor cutsets, capacitor loops) and its
-//! guards with a derivative look-ahead. Trying a fixed finite list cannot
-//! cycle, unlike flip-and-retry loops; it is exhaustive, hence limited to
-//! 16 diodes. Diagnostics are kept as numbers and only turned into text if
-//! no candidate holds.
+//! Each candidate pattern is judged at the present state: its constraints
+//! (inductor cutsets, capacitor loops) and its guards with a derivative
+//! look-ahead. The pattern is found by principal pivoting on the diodes'
+//! complementarity conditions (`lcp.rs`), starting from a first guess (the
+//! previous pattern with the diodes whose guard fired toggled), so the
+//! usual case costs one candidate. Where pivoting finds no pattern that
+//! holds without an inductor-current jump, the search by Hamming distance
+//! from the first guess decides (`search`): exhaustive up to 16 diodes,
+//! distance two at most above. It is what finds flux-conserving jumps and
+//! builds the diagnostics of a rejection; trying a fixed finite list cannot
+//! cycle. Diagnostics are kept as numbers and only turned into text if no
+//! candidate holds.
 //!
 //! A fixed-frequency converter repeats the same few transitions, so each
 //! outcome is remembered and replayed after re-checking exactly the
@@ -43,7 +47,7 @@ struct Interruption {
 
 /// The outcome of judging one candidate pattern.
 #[derive(Clone, Copy, PartialEq)]
-enum Verdict {
+pub(super) enum Verdict {
     /// It holds; entering it needs a flux (`cut`) or charge jump.
     Holds { cut: bool, charge: bool },
     /// Rejected whatever the state: an impossible or forbidden mode.
@@ -89,13 +93,23 @@ impl Simulator {
     }
 
     /// Candidate `idx` in order of distance from `first` (`first` itself
-    /// at 0); the ordered list is built once per first guess, and only if
-    /// the first guess fails.
+    /// at 0), ties broken by the pattern's value; the ordered list is
+    /// built once per first guess, and only if the first guess fails. Up
+    /// to 16 diodes the list holds every pattern; above, the patterns
+    /// within distance two (2,081 for 64 diodes), as the list would not
+    /// fit in memory.
     fn candidate(&mut self, first: u64, idx: usize) -> Option<u64> {
         if idx == 0 {
             return Some(first);
         }
         let nd = self.cc.diodes.len();
+        if nd > EXHAUSTIVE_DIODES {
+            if self.far_order.as_ref().map(|o| o.0) != Some(first) {
+                self.far_order = Some((first, near_patterns(first, nd)));
+            }
+            let order = &self.far_order.as_ref().expect("just set").1;
+            return order.get(idx).copied();
+        }
         if self.orders.is_empty() {
             self.orders = vec![None; 1 << nd];
         }
@@ -122,6 +136,47 @@ impl Simulator {
         if !initial && self.replay && self.resolve_remembered(flips, scales)? {
             return Ok(());
         }
+        if self.pivoting {
+            if let Some(found) = self.pivot(first, flips, initial, scales)? {
+                #[cfg(test)]
+                self.cross_check(first, flips, initial, scales, Some(found))?;
+                if !initial && self.replay {
+                    self.certify(first, flips, found, scales)?;
+                }
+                return self.commit_found(found, initial);
+            }
+            #[cfg(test)]
+            self.cross_check(first, flips, initial, scales, None)?;
+        }
+        match self.search(first, flips, cause, initial, scales)? {
+            Ok(found) => self.commit_found(found, initial),
+            Err(e) => Err(e),
+        }
+    }
+
+    /// Enters a pattern found by `pivot` or `search` (its state is in
+    /// `z_try`).
+    fn commit_found(&mut self, found: Found, initial: bool) -> Result<(), SolverError> {
+        let key = ModeKey {
+            switches: self.key.switches,
+            diodes: found.diodes,
+            ramps: self.key.ramps,
+        };
+        self.commit(key, found.mode, found.cut, found.charge, initial)
+    }
+
+    /// The search by Hamming distance from `first`: the first candidate
+    /// that holds (its state in `z_try`), or the error that explains why
+    /// none does. Without pivoting this is the whole resolution (the test
+    /// oracle); with it, what decides where pivoting finds nothing.
+    pub(super) fn search(
+        &mut self,
+        first: u64,
+        flips: u64,
+        cause: Option<(usize, bool)>,
+        initial: bool,
+        scales: (f64, f64),
+    ) -> Result<Result<Found, SolverError>, SolverError> {
         // What a remembered transition needs: the candidates rejected for
         // cutting an inductor current before the accepted one; `None` once
         // any other state-dependent rejection makes the outcome unsafe to
@@ -155,48 +210,11 @@ impl Simulator {
                 let modes = std::mem::take(&mut self.modes);
                 let verdict =
                     self.judge(&modes, mi, allow_cut, scales, &mut interruption, &mut other);
-                match verdict {
-                    // Rejected for a structural reason: always rejected.
-                    Verdict::Structural => {}
-                    // Re-checked on replay.
-                    Verdict::Cut => {
-                        if let Some(list) = cut_rejected.as_mut() {
-                            list.push(mi);
-                        }
-                    }
-                    // Any other state-dependent rejection forbids replay.
-                    Verdict::Other => cut_rejected = None,
-                    Verdict::Holds { .. } => {}
-                }
-                if let (
-                    Some(list),
-                    Verdict::Holds {
-                        cut: false,
-                        charge: false,
-                    },
-                    false,
-                ) = (&cut_rejected, verdict, allow_cut)
-                {
-                    if modes[mi as usize].resistive_short.is_none() {
-                        let t = Transition {
-                            from: self.mode,
-                            switches: self.key.switches,
-                            ramps: self.key.ramps,
-                            flips,
-                            cut_rejected: list.clone(),
-                            to: mi,
-                        };
-                        // The latest outcome of a transition replaces an
-                        // earlier one (a converter moving between
-                        // conduction modes changes it).
-                        match self.memo.iter().position(|m| m.same_key(&t)) {
-                            Some(i) => self.memo[i] = t,
-                            None if self.memo.len() < 64 => self.memo.push(t),
-                            None => {}
-                        }
-                    }
-                }
                 self.modes = modes;
+                note_rejection(&mut cut_rejected, verdict, mi);
+                if !allow_cut {
+                    self.remember(&cut_rejected, verdict, flips, mi);
+                }
                 if let Verdict::Holds { cut, charge } = verdict {
                     // At t = 0 without the flux-conserving policy, a cut
                     // is taken only where a source sets the currents (the
@@ -210,12 +228,129 @@ impl Simulator {
                     {
                         continue;
                     }
-                    self.commit(key, mi, cut, charge, initial)?;
-                    return Ok(());
+                    return Ok(Ok(Found {
+                        diodes: c,
+                        mode: mi,
+                        cut,
+                        charge,
+                    }));
                 }
             }
         }
-        Err(self.rejection_error(interruption, other, cause))
+        Ok(Err(self.rejection_error(interruption, other, cause)))
+    }
+
+    /// Makes a transition that pivoting found by a path a replay cannot
+    /// retrace (several problems repaired at once: two phases commutating
+    /// at one instant) replayable all the same, if the search by Hamming
+    /// distance would have remembered it: every candidate the search
+    /// tries before `found` is rejected for a structural reason or for
+    /// cutting an inductor current. Those candidates are judged once (at
+    /// most `CERTIFY_CANDIDATES` of them); the remembered transition then
+    /// carries the search's list, so that a replay re-checks what the
+    /// search would. Nothing changes if `found` is remembered already, or
+    /// needs a jump; `z_try` holds `found`'s state again on return.
+    fn certify(
+        &mut self,
+        first: u64,
+        flips: u64,
+        found: Found,
+        scales: (f64, f64),
+    ) -> Result<(), SolverError> {
+        if found.cut || found.charge {
+            return Ok(());
+        }
+        let known = self.memo.iter().any(|t| {
+            t.from == self.mode
+                && t.switches == self.key.switches
+                && t.ramps == self.key.ramps
+                && t.flips == flips
+                && t.to == found.mode
+        });
+        if known {
+            return Ok(());
+        }
+        let mut cut_rejected = Some(Vec::new());
+        let mut reached = false;
+        for idx in 0..CERTIFY_CANDIDATES {
+            let Some(c) = self.candidate(first, idx) else {
+                break;
+            };
+            if c == found.diodes {
+                reached = true;
+                break;
+            }
+            let (mi, verdict) = self.judge_pattern(c, scales)?;
+            note_rejection(&mut cut_rejected, verdict, mi);
+            if cut_rejected.is_none() || matches!(verdict, Verdict::Holds { .. }) {
+                break;
+            }
+        }
+        if reached {
+            self.remember(&cut_rejected, Verdict::held(found), flips, found.mode);
+        }
+        self.judge_pattern(found.diodes, scales)?;
+        Ok(())
+    }
+
+    /// Judges the candidate pattern `diodes` with the present switches,
+    /// as [`Simulator::search`] does in its first pass (no inductor
+    /// current may be cut): its mode and verdict, the state after any jump
+    /// in `z_try`.
+    pub(super) fn judge_pattern(
+        &mut self,
+        diodes: u64,
+        scales: (f64, f64),
+    ) -> Result<(u32, Verdict), SolverError> {
+        let key = ModeKey {
+            switches: self.key.switches,
+            diodes,
+            ramps: self.key.ramps,
+        };
+        let mi = self.mode_id(key)?;
+        let modes = std::mem::take(&mut self.modes);
+        let verdict = self.judge(&modes, mi, false, scales, &mut None, &mut None);
+        self.modes = modes;
+        Ok((mi, verdict))
+    }
+
+    /// Remembers a transition that held at once (no jump, no short) after
+    /// only structural rejections and the cuts in `cut_rejected`.
+    pub(super) fn remember(
+        &mut self,
+        cut_rejected: &Option<Vec<u32>>,
+        verdict: Verdict,
+        flips: u64,
+        mi: u32,
+    ) {
+        let (
+            Some(list),
+            Verdict::Holds {
+                cut: false,
+                charge: false,
+            },
+        ) = (cut_rejected, verdict)
+        else {
+            return;
+        };
+        if self.modes[mi as usize].resistive_short.is_some() {
+            return;
+        }
+        let t = Transition {
+            from: self.mode,
+            switches: self.key.switches,
+            ramps: self.key.ramps,
+            flips,
+            cut_rejected: list.clone(),
+            to: mi,
+        };
+        // The latest outcome of a transition replaces an earlier one (a
+        // converter moving between conduction modes changes it).
+        match self.memo.iter().position(|m| m.same_key(&t)) {
+            Some(i) => self.memo[i] = t,
+            None if self.memo.len() < 64 => self.memo.push(t),
+            None => {}
+        }
     }
 
     /// Replays a remembered transition from the present mode with the
@@ -553,6 +688,64 @@ impl Simulator {
     }
 }
 
+/// Above this many diodes the fallback search stops at Hamming distance
+/// two: the list of all 2^n patterns would not fit in memory.
+const EXHAUSTIVE_DIODES: usize = 16;
+
+impl Verdict {
+    /// The verdict of a pattern found to hold.
+    pub(super) fn held(found: Found) -> Verdict {
+        Verdict::Holds {
+            cut: found.cut,
+            charge: found.charge,
+        }
+    }
+}
+
+/// A pattern that holds: its diode bits, mode, and whether entering it
+/// needs a flux (`cut`) or charge jump.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub(super) struct Found {
+    pub diodes: u64,
+    pub mode: u32,
+    pub cut: bool,
+    pub charge: bool,
+}
+
+/// Keeps the list of cut rejections a remembered transition re-checks:
+/// a structural rejection cannot change, a cut is re-checked on replay,
+/// and any other state-dependent rejection forbids replay.
+pub(super) fn note_rejection(cut_rejected: &mut Option<Vec<u32>>, verdict: Verdict, mi: u32) {
+    match verdict {
+        Verdict::Structural | Verdict::Holds { .. } => {}
+        Verdict::Cut => {
+            if let Some(list) = cut_rejected.as_mut() {
+                list.push(mi);
+            }
+        }
+        Verdict::Other => *cut_rejected = None,
+    }
+}
+
+/// How many candidates of the search [`Simulator::certify`] judges at
+/// most to make one transition replayable (every pattern within distance
+/// two of the first guess for up to 22 diodes).
+const CERTIFY_CANDIDATES: usize = 256;
+
+/// The patterns within Hamming distance two of `first` among `nd` diodes,
+/// ordered by distance, then by value (the order of the exhaustive list).
+fn near_patterns(first: u64, nd: usize) -> Vec<u64> {
+    let mut c = vec![first];
+    for i in 0..nd {
+        c.push(first ^ 1 << i);
+        for j in i + 1..nd {
+            c.push(first ^ 1 << i ^ 1 << j);
+        }
+    }
+    c.sort_by_key(|&c| ((c ^ first).count_ones(), c));
+    c
+}
+
 /// Whether the mode's inductor cutsets (first) or capacitor loops (second)
 /// are violated at z, i.e. entering it needs a jump; `windings` collects
 /// the windings of the violated cutsets.
@@ -562,7 +755,7 @@ impl Simulator {
 /// crossing leaves ~1e-17 of that behind, which the projection removes
 /// silently; anything above 1e-11 of it is a real jump.
 #[inline(always)]
-fn violations(
+pub(super) fn violations(
     mode: &Mode,
     z: &[f64],
     (i_scale, v_scale): (f64, f64),
@@ -620,54 +813,71 @@ fn guards_hold(mode: &Mode, z: &DVector<f64>, scales: (f64, f64)) -> bool {
     !at_zero || guards_hold_at_zero(mode, z, scales)
 }
 
-/// The rest of [`guards_hold`] when some guard sits at zero: every guard
-/// is judged again, and the derivatives of those at zero decide. Rare, so
+/// The rest of [`guards_hold`] when some guard sits at zero. Rare, so
 /// allocating here is fine, and kept out of line so the usual value pass
 /// stays small.
 #[cold]
 #[inline(never)]
 fn guards_hold_at_zero(mode: &Mode, z: &DVector<f64>, scales: (f64, f64)) -> bool {
-    // Bit i set: guard i sits at zero so far. Guards beyond the 128th are
-    // judged on their value alone (16 diodes give at most 136 guards, and
-    // only a bridge of many floating groups comes near).
-    let mut undecided: u128 = 0;
+    violated_guards(mode, z, scales, false).is_empty()
+}
+
+/// The guards violated at z (indices into `mode.guards`, increasing): a
+/// guard below zero, or one at zero whose first non-zero derivative (up to
+/// the third) is negative. This is the lexicographic order of the vector
+/// (g, g′, g″, g‴): a guard that touches zero is judged by where it goes
+/// next. With `all` false it stops at the first violated guard found.
+pub(super) fn violated_guards(
+    mode: &Mode,
+    z: &DVector<f64>,
+    scales: (f64, f64),
+    all: bool,
+) -> Vec<usize> {
+    let mut violated = vec![];
+    // Guards that sit at zero so far.
+    let mut undecided: Vec<usize> = vec![];
     let zs = z.as_slice();
     for (gi, g) in mode.guards.iter().enumerate() {
         let (v, s) = dot_and_abs(&g.row, zs);
         let tol = ZERO_REL * s + guard_floor(&g.kind, scales);
         if v < -tol {
-            return false;
-        }
-        if gi < 128 && v <= tol {
-            undecided |= 1 << gi;
+            violated.push(gi);
+            if !all {
+                return violated;
+            }
+        } else if v <= tol {
+            undecided.push(gi);
         }
     }
-    if undecided == 0 {
-        return true;
+    if !violated.is_empty() && !all {
+        return violated;
     }
     let mut d = z.clone_owned();
     let mut next = DVector::zeros(zs.len());
     let mut rate_k = 1.0;
     for _ in 1..4 {
-        if undecided == 0 {
-            return true;
+        if undecided.is_empty() {
+            break;
         }
         propagate::matvec(&mode.m, d.as_slice(), next.as_mut_slice());
         std::mem::swap(&mut d, &mut next);
         rate_k *= mode.rate;
-        for (gi, g) in mode.guards.iter().enumerate().take(128) {
-            if undecided >> gi & 1 == 0 {
-                continue;
-            }
+        let mut still = Vec::with_capacity(undecided.len());
+        for &gi in &undecided {
+            let g = &mode.guards[gi];
             let (v, s) = dot_and_abs(&g.row, d.as_slice());
             let tol = ZERO_REL * s + guard_floor(&g.kind, scales) * rate_k;
             if v < -tol {
-                return false;
-            }
-            if v > tol {
-                undecided &= !(1 << gi);
+                violated.push(gi);
+                if !all {
+                    return violated;
+                }
+            } else if v <= tol {
+                still.push(gi);
             }
         }
+        undecided = still;
     }
-    true
+    violated.sort_unstable();
+    violated
 }

@@ -7,6 +7,7 @@ mod issue_19;
 mod issue_19_cuts;
 mod issue_19_memory;
 mod issue_19_stiff;
+mod issue_20;
 mod structure;
 mod transition;
 pub mod util;

@@ -1,0 +1,178 @@
+//! Cost per event against the number of states: an interleaved buck of
+//! 1, 2, 4, 8 and 12 phases (12 V → 3 V, 250 kHz per phase, D = 0.25,
+//! the phases T/N apart, each with its own switch, freewheeling diode and
+//! inductor, one shared output capacitor and load), recording everything,
+//! side by side with a bare loop of precomputed exact steps of the same
+//! dimension in the same process; and a buck whose diode turns off by
+//! itself (discontinuous conduction: a located event) against the same
+//! buck in continuous conduction (scheduled events only).
+//!
+//! ```sh
+//! cargo bench --bench phases
+//! ```
+//!
+//! The bare loop is the floor the simulator approaches: per event one
+//! n×n matrix–vector product and a constant, the state copied into a
+//! growing record. Wall times are the minimum of several runs (the
+//! machines are shared); the ratios in the same process are what counts.
+
+use std::hint::black_box;
+use std::time::Instant;
+
+use fluxstep_netlist::{Circuit, Gate};
+use fluxstep_solver::{simulate, Options, Record, Stats};
+
+/// Switching frequency of each phase (Hz).
+const F: f64 = 250e3;
+/// Duty cycle of every phase.
+const D: f64 = 0.25;
+
+/// An `n`-phase interleaved buck started near its periodic steady state
+/// (output at D·Vin, each inductor at its load share).
+fn interleaved(n: usize) -> Circuit {
+    let mut b = Circuit::builder().voltage_source("Vin", "in", "gnd", 12.0);
+    let share = 10.0;
+    for k in 1..=n {
+        let sw = format!("sw{k}");
+        b = b
+            .switch(&format!("S{k}"), "in", &sw, &format!("ph{k}"))
+            .diode(&format!("D{k}"), "gnd", &sw)
+            .inductor_with_current(&format!("L{k}"), &sw, "out", 2.2e-6, share)
+            .gate(Gate::Pwm {
+                name: format!("ph{k}"),
+                frequency: F,
+                duty: D,
+                delay: (k - 1) as f64 / (n as f64 * F),
+                start: None,
+                stop: None,
+            });
+    }
+    b.capacitor_with_voltage("Cout", "out", "gnd", 470e-6, D * 12.0)
+        .resistor("Rload", "out", "gnd", D * 12.0 / (share * n as f64))
+        .build()
+        .expect("benchmark circuit is valid")
+}
+
+/// A one-phase buck at light load: `dcm` selects a load at which the
+/// diode current reaches zero inside each period (a located event).
+fn single(dcm: bool) -> Circuit {
+    let (r, i0) = if dcm { (30.0, 0.0) } else { (0.3, 10.0) };
+    Circuit::builder()
+        .voltage_source("Vin", "in", "gnd", 12.0)
+        .switch("S1", "in", "sw", "ph1")
+        .diode("D1", "gnd", "sw")
+        .inductor_with_current("L1", "sw", "out", 2.2e-6, i0)
+        .capacitor_with_voltage("Cout", "out", "gnd", 470e-6, if dcm { 8.5 } else { 3.0 })
+        .resistor("Rload", "out", "gnd", r)
+        .pwm("ph1", F, D)
+        .build()
+        .expect("benchmark circuit is valid")
+}
+
+/// (event instants handled, states, best seconds) of `periods`
+/// switching periods.
+fn run(c: &Circuit, periods: f64, reps: usize) -> (usize, usize, f64, Stats) {
+    let mut best = f64::INFINITY;
+    let mut events = 0;
+    let mut states = 0;
+    let mut stats = Stats::default();
+    for _ in 0..reps {
+        let opts = Options {
+            record: Record::All,
+            ..Options::default()
+        };
+        let start = Instant::now();
+        let r = simulate(c, periods / F, opts).expect("the buck runs");
+        best = best.min(start.elapsed().as_secs_f64());
+        events = r.stats.scheduled_events + r.stats.state_events;
+        states = r.events.state_names().len();
+        stats = r.stats;
+        black_box(&r);
+    }
+    (events, states, best, stats)
+}
+
+/// Best seconds of `steps` exact steps z ← Φ·z + g of dimension `n`
+/// (two alternating precomputed maps, as a switch toggling), each state
+/// recorded.
+fn bare(n: usize, steps: usize, reps: usize) -> f64 {
+    // A contractive map with every entry used, so that nothing folds away.
+    let map = |s: f64| -> (Vec<f64>, Vec<f64>) {
+        let phi = (0..n * n)
+            .map(|k| {
+                if k % (n + 1) == 0 {
+                    0.9
+                } else {
+                    s / (n * n) as f64
+                }
+            })
+            .collect();
+        let g = (0..n).map(|k| 0.01 * (k + 1) as f64).collect();
+        (phi, g)
+    };
+    let maps = [map(0.05), map(0.07)];
+    let mut best = f64::INFINITY;
+    for _ in 0..reps {
+        let mut z = vec![0.0; n];
+        let mut next = vec![0.0; n];
+        let mut record: Vec<f64> = Vec::new();
+        let start = Instant::now();
+        for s in 0..steps {
+            let (phi, g) = &maps[s & 1];
+            for (i, out) in next.iter_mut().enumerate() {
+                let row = &phi[i * n..(i + 1) * n];
+                *out = g[i] + row.iter().zip(&z).map(|(a, b)| a * b).sum::<f64>();
+            }
+            std::mem::swap(&mut z, &mut next);
+            record.extend_from_slice(&z);
+            record.push(s as f64);
+        }
+        best = best.min(start.elapsed().as_secs_f64());
+        black_box(&record);
+    }
+    best
+}
+
+fn main() {
+    // `cargo bench` passes `--bench`; a filter argument is ignored.
+    let reps = 5;
+    println!("phases states   events   ns/event   bare ns/event   bare/sim   per-event vs 1 phase");
+    let mut first = None;
+    let mut counters = Vec::new();
+    for n in [1usize, 2, 4, 8, 12] {
+        // About 200,000 events at every size.
+        let periods = (100_000 / n) as f64;
+        let (events, states, s, stats) = run(&interleaved(n), periods, reps);
+        let ns = s * 1e9 / events as f64;
+        let bare_ns = bare(states, events, reps) * 1e9 / events as f64;
+        let base = *first.get_or_insert(ns);
+        println!(
+            "{n:>6} {states:>6} {events:>8} {ns:>10.1} {bare_ns:>15.1} {:>9.1} % {:>10.2}×",
+            100.0 * bare_ns / ns,
+            ns / base
+        );
+        counters.push((n, stats));
+    }
+    for (n, stats) in counters {
+        println!("counters, {n} phases: {stats:?}");
+    }
+    let periods = 50_000.0;
+    let (ev_ccm, _, s_ccm, st_ccm) = run(&single(false), periods, reps);
+    let (ev_dcm, _, s_dcm, st_dcm) = run(&single(true), periods, reps);
+    println!("counters, CCM buck: {st_ccm:?}");
+    println!("counters, DCM buck: {st_dcm:?}");
+    let ns_ccm = s_ccm * 1e9 / ev_ccm as f64;
+    // The DCM run has three events a period: the two scheduled edges
+    // and the located diode turn-off; the located event's own cost is
+    // what is left after two scheduled events.
+    let per_period_dcm = s_dcm * 1e9 / periods;
+    let located = per_period_dcm - 2.0 * ns_ccm;
+    println!(
+        "scheduled event (CCM buck): {ns_ccm:.1} ns ({ev_ccm} events); DCM buck: {:.1} ns per period ({ev_dcm} events)",
+        per_period_dcm
+    );
+    println!(
+        "located diode turn-off: {located:.1} ns = {:.2}× a scheduled event",
+        located / ns_ccm
+    );
+}
