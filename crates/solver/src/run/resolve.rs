@@ -69,8 +69,18 @@ pub(super) struct Transition {
     ramps: u64,
     flips: u64,
     cut_rejected: Vec<u32>,
+    /// The distinct inductor-cutset rows that cut the candidates in
+    /// `cut_rejected` when the transition was remembered, as (mode, row of
+    /// its constraints): candidates that turn off the same diode share one.
+    cut_rows: Vec<(u32, u32)>,
+    /// Per entry of `cut_rejected`, its row in `cut_rows` (`NO_ROW`: none
+    /// found, the replay checks the whole mode).
+    cut_by: Vec<u16>,
     to: u32,
 }
+
+/// A `cut_by` entry without a remembered row.
+const NO_ROW: u16 = u16::MAX;
 
 impl Transition {
     fn same_key(&self, other: &Transition) -> bool {
@@ -336,12 +346,15 @@ impl Simulator {
         if self.modes[mi as usize].resistive_short.is_some() {
             return;
         }
+        let (cut_rows, cut_by) = self.cut_rows(list);
         let t = Transition {
             from: self.mode,
             switches: self.key.switches,
             ramps: self.key.ramps,
             flips,
             cut_rejected: list.clone(),
+            cut_rows,
+            cut_by,
             to: mi,
         };
         // The latest outcome of a transition replaces an earlier one (a
@@ -351,6 +364,41 @@ impl Simulator {
             None if self.memo.len() < 64 => self.memo.push(t),
             None => {}
         }
+    }
+
+    /// The distinct cutset rows that cut the modes of `list` at the
+    /// present state, and each mode's row among them (see
+    /// [`Transition`]).
+    fn cut_rows(&self, list: &[u32]) -> (Vec<(u32, u32)>, Vec<u16>) {
+        let z = self.z.as_slice();
+        let i_scale = self.seen.0;
+        let mut rows: Vec<(u32, u32)> = vec![];
+        let mut by = Vec::with_capacity(list.len());
+        for &mi in list {
+            let mode = &self.modes[mi as usize];
+            let Some(r) = first_cut_row(mode, z, i_scale) else {
+                by.push(NO_ROW);
+                continue;
+            };
+            let row = constraint_row(mode, r);
+            let same = rows.iter().position(|&(m, q)| {
+                let other = constraint_row(&self.modes[m as usize], q as usize);
+                other.len() == row.len()
+                    && other
+                        .iter()
+                        .zip(row)
+                        .all(|(a, b)| a.to_bits() == b.to_bits())
+            });
+            let g = match same {
+                Some(g) => g,
+                None => {
+                    rows.push((mi, r as u32));
+                    rows.len() - 1
+                }
+            };
+            by.push(u16::try_from(g).unwrap_or(NO_ROW));
+        }
+        (rows, by)
     }
 
     /// Replays a remembered transition from the present mode with the
@@ -391,10 +439,26 @@ impl Simulator {
                 && t.flips == flips
         })?;
         let z = self.z.as_slice();
-        let still = t
-            .cut_rejected
-            .iter()
-            .all(|&mi| violations(&self.modes[mi as usize], z, scales, None).0);
+        // Each distinct row once (the common case: a few rows, one per
+        // diode the candidates turn off); a mode whose remembered row no
+        // longer cuts is checked whole, as before.
+        let still = if t.cut_rows.len() <= 64 {
+            let mut cutting = 0u64;
+            for (g, &(m, r)) in t.cut_rows.iter().enumerate() {
+                let row = constraint_row(&self.modes[m as usize], r as usize);
+                if cuts(row, z, scales.0) {
+                    cutting |= 1 << g;
+                }
+            }
+            t.cut_rejected.iter().zip(&t.cut_by).all(|(&mi, &g)| {
+                (g != NO_ROW && cutting >> g & 1 == 1)
+                    || violations(&self.modes[mi as usize], z, scales, None).0
+            })
+        } else {
+            t.cut_rejected
+                .iter()
+                .all(|&mi| violations(&self.modes[mi as usize], z, scales, None).0)
+        };
         if !still {
             return None;
         }
@@ -755,6 +819,27 @@ fn near_patterns(first: u64, nd: usize) -> Vec<u64> {
 /// crossing leaves ~1e-17 of that behind, which the projection removes
 /// silently; anything above 1e-11 of it is a real jump.
 #[inline(always)]
+/// Row `r` of a mode's constraints (Hᵀ is column-major: constraint r's
+/// row is the r-th run of n_z).
+fn constraint_row(mode: &Mode, r: usize) -> &[f64] {
+    let n = mode.ht.nrows();
+    &mode.ht.as_slice()[r * n..(r + 1) * n]
+}
+
+/// Whether a cutset row carries current at z (the test of
+/// [`violations`]).
+#[inline(always)]
+fn cuts(row: &[f64], z: &[f64], i_scale: f64) -> bool {
+    propagate::dot_s(row, z).abs() > 1e-11 * i_scale
+}
+
+/// The first inductor cutset of `mode` that carries current at z.
+fn first_cut_row(mode: &Mode, z: &[f64], i_scale: f64) -> Option<usize> {
+    mode.constraints.iter().enumerate().position(|(r, kind)| {
+        matches!(kind, ConstraintKind::Cutset { .. }) && cuts(constraint_row(mode, r), z, i_scale)
+    })
+}
+
 pub(super) fn violations(
     mode: &Mode,
     z: &[f64],
@@ -768,15 +853,16 @@ pub(super) fn violations(
     // Hᵀ is column-major: constraint r's row is the r-th run of n_z.
     let rows = mode.ht.as_slice().chunks_exact(mode.ht.nrows().max(1));
     for (row, kind) in rows.zip(&mode.constraints) {
-        let v = propagate::dot_s(row, z);
         match kind {
-            ConstraintKind::Cutset { windings: w, .. } if v.abs() > 1e-11 * i_scale => {
+            ConstraintKind::Cutset { windings: w, .. } if cuts(row, z, i_scale) => {
                 cut = true;
                 if let Some(list) = windings.as_deref_mut() {
                     list.extend(w.iter().copied());
                 }
             }
-            ConstraintKind::Loop { .. } if v.abs() > 1e-11 * v_scale => lp = true,
+            ConstraintKind::Loop { .. } if propagate::dot_s(row, z).abs() > 1e-11 * v_scale => {
+                lp = true
+            }
             _ => {}
         }
     }
