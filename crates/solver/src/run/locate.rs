@@ -481,12 +481,22 @@ fn guard_root(coef: &[f64], tol: f64, hint: Option<f64>) -> Option<f64> {
 /// coefficients at start state z are q·z, without the Taylor vectors.
 pub(super) struct GuardPolys {
     bits: u64,
-    /// Terms kept: beyond them ‖(Mh)ᵏ/k!‖∞ ≤ 1e-18.
-    terms: usize,
-    /// Per guard: `terms` rows of n_z, and Σₖ|qₖ| (one row: the scale of
+    /// Per guard: one row of n_z per Taylor term (beyond them
+    /// ‖(Mh)ᵏ/k!‖∞ ≤ 1e-18), and Σₖ|qₖ| (one row: the scale of
     /// the guard's terms at z is its product with |z|).
     rows: Vec<Vec<f64>>,
     abs: Vec<Vec<f64>>,
+    /// Per guard: how many of its rows count, up to the last that is not
+    /// exactly zero (a guard affine in time, r·M² = 0 — a diode voltage
+    /// set by a source and a voltage ramp — has two; one that cannot move
+    /// has one). The rows past it give coefficients ±0, and dropping ±0
+    /// coefficients from the top of a polynomial changes neither its
+    /// values nor its derivative's (each Horner chain meets its first
+    /// non-zero coefficient as ±0·u + c = c exactly; at most the sign of a
+    /// zero result differs, which no comparison or guarded division in
+    /// the root search sees), so the crossing is the same to the bit at
+    /// a fraction of the products.
+    kept: Vec<usize>,
     /// Per guard: σ of its latest crossing over this length, where the
     /// next search starts (the result does not depend on it where the
     /// crossing is clean; it saves about half of the evaluations).
@@ -529,12 +539,21 @@ impl GuardPolys {
                 sum
             })
             .collect();
+        let kept = rows
+            .iter()
+            .map(|r| {
+                r.chunks_exact(n.max(1))
+                    .take(terms)
+                    .rposition(|q| q.iter().any(|v| *v != 0.0))
+                    .map_or(1, |k| k + 1)
+            })
+            .collect();
         GuardPolys {
             bits: h.to_bits(),
-            terms,
             hints: vec![None; rows.len()],
             rows,
             abs,
+            kept,
         }
     }
 }
@@ -577,7 +596,7 @@ impl Simulator {
         let mut n_hits = 0;
         for (gi, g) in mode.guards.iter().enumerate() {
             coef.clear();
-            for q in gp.rows[gi].chunks_exact(nz).take(gp.terms) {
+            for q in gp.rows[gi].chunks_exact(nz).take(gp.kept[gi]) {
                 coef.push(dot_s(q, z));
             }
             let scale = dot_s(&gp.abs[gi], za_abs.as_slice());

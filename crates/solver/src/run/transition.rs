@@ -26,7 +26,7 @@ use super::schedule::coincident_until;
 use super::Simulator;
 use crate::error::SolverError;
 use crate::mode::ramp_bit;
-use crate::waveform::OutputId;
+use crate::propagate::dot_s;
 
 /// Where a switch is in its transition.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -44,9 +44,19 @@ pub(super) enum Phase {
 }
 
 impl Simulator {
-    /// The present value of output `k` (0 where it is undetermined).
+    /// The present value of output `k` (0 where it is undetermined): the
+    /// same products summed in the same order as [`Simulator::value`]
+    /// (`dot_s` starts from the same zero as `Iterator::sum`), so the same
+    /// bits, from the contiguous row of Cᵀ instead of a strided row of C.
+    #[inline]
     fn output_now(&self, k: usize) -> f64 {
-        self.value(OutputId(k)).unwrap_or(0.0)
+        let mode = &self.modes[self.mode as usize];
+        if mode.undetermined.get(k) != Some(&false) {
+            return 0.0;
+        }
+        let z = self.z.as_slice();
+        let n = z.len();
+        dot_s(&mode.ct.as_slice()[k * n..(k + 1) * n], z)
     }
 
     /// Starts the transitions of the switches in `changed` (their new bits
@@ -91,9 +101,10 @@ impl Simulator {
                     reason: reason.into(),
                 });
             }
-            let current = self.output_now(info.current_out);
-            let voltage = self.output_now(info.voltage_out);
+            // Each edge reads only what it needs (the value does not
+            // depend on when it is read: z changes only below).
             if on {
+                let voltage = self.output_now(info.voltage_out);
                 // Hard turn-on: positive voltage to be taken away. With a
                 // diode conducting, the switch first takes over its
                 // current; with none (discontinuous conduction, start-up)
@@ -112,9 +123,11 @@ impl Simulator {
                     }
                 }
             } else {
-                let z = self.z.as_mut_slice();
+                let current = self.output_now(info.current_out);
                 let into_body = current < 0.0 && info.body_diode.is_some();
                 if current.abs() > 1e-9 * scales.0 && !into_body {
+                    let voltage = self.output_now(info.voltage_out);
+                    let z = self.z.as_mut_slice();
                     z[info.value] = voltage;
                     z[info.slope] = info.off.0 * current.signum();
                     self.key.ramps |= ramp_bit(i, true);
