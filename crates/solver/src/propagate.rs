@@ -262,10 +262,10 @@ fn matvec_rows(m: &DMatrix<f64>, live: usize, x: &[f64], y: &mut [f64]) {
         6 => return fixed::<6>(data, x, y),
         7 => return fixed::<7>(data, x, y),
         8 => return fixed::<8>(data, x, y),
-        9 => return fixed::<9>(data, x, y),
-        10 => return fixed::<10>(data, x, y),
-        11 => return fixed::<11>(data, x, y),
-        12 => return fixed::<12>(data, x, y),
+        9 => return compact::<9>(data, x, y),
+        10 => return compact::<10>(data, x, y),
+        11 => return compact::<11>(data, x, y),
+        12 => return compact::<12>(data, x, y),
         _ => {}
     }
     let (head, tail) = y.split_at_mut(live);
@@ -307,10 +307,10 @@ fn matvec_scaled(m: &DMatrix<f64>, live: usize, x: &[f64], y: &mut [f64], f: f64
         6 => return scaled_fixed::<6>(data, x, y, f),
         7 => return scaled_fixed::<7>(data, x, y, f),
         8 => return scaled_fixed::<8>(data, x, y, f),
-        9 => return scaled_fixed::<9>(data, x, y, f),
-        10 => return scaled_fixed::<10>(data, x, y, f),
-        11 => return scaled_fixed::<11>(data, x, y, f),
-        12 => return scaled_fixed::<12>(data, x, y, f),
+        9 => return scaled_compact::<9>(data, x, y, f),
+        10 => return scaled_compact::<10>(data, x, y, f),
+        11 => return scaled_compact::<11>(data, x, y, f),
+        12 => return scaled_compact::<12>(data, x, y, f),
         _ => {}
     }
     matvec_rows(m, live, x, y);
@@ -325,6 +325,38 @@ fn matvec_scaled(m: &DMatrix<f64>, live: usize, x: &[f64], y: &mut [f64], f: f64
 #[inline(always)]
 fn scaled_fixed<const N: usize>(data: &[f64], x: &[f64], y: &mut [f64], f: f64) -> f64 {
     fixed::<N>(data, x, y);
+    let mut tn: f64 = 0.0;
+    for yi in y.iter_mut() {
+        *yi *= f;
+        tn = tn.max(yi.abs());
+    }
+    tn
+}
+
+/// [`fixed`] for 9 to 12 entries (switches with transition models add two
+/// each): the same operations in the same order, so the same bits, with
+/// the loop over columns kept as a loop. Fully unrolled at every call
+/// site, as the smaller sizes are, these made the hot code of such a
+/// circuit outgrow the instruction cache.
+#[inline(always)]
+fn compact<const N: usize>(data: &[f64], x: &[f64], y: &mut [f64]) {
+    let y: &mut [f64; N] = y.try_into().expect("y has as many entries as M has rows");
+    let mut acc = [0.0f64; N];
+    // Runtime-length slices: the compiler keeps the column loop rolled.
+    for (col, &xj) in data.chunks_exact(N).zip(x) {
+        if xj != 0.0 {
+            let col: &[f64; N] = col.try_into().expect("chunks of N");
+            for i in 0..N {
+                acc[i] += col[i] * xj;
+            }
+        }
+    }
+    *y = acc;
+}
+
+#[inline(always)]
+fn scaled_compact<const N: usize>(data: &[f64], x: &[f64], y: &mut [f64], f: f64) -> f64 {
+    compact::<N>(data, x, y);
     let mut tn: f64 = 0.0;
     for yi in y.iter_mut() {
         *yi *= f;
