@@ -460,13 +460,15 @@ fn merge(found: Found, tau: f64, bit: (u64, u64), s: f64, h: f64) -> Found {
 /// `hint`, if any, is where the search starts (the crossing of an earlier
 /// period, which in a settled converter lies within a few ulps).
 fn guard_root(coef: &[f64], tol: f64, hint: Option<f64>) -> Option<f64> {
-    let (gb, db) = propagate::poly(coef, 1.0);
+    // The value alone first (`poly` gives the same bits with the
+    // derivative, which only a dip needs).
+    let gb = propagate::poly_value(coef, 1.0);
     let da = coef.get(1).copied().unwrap_or(0.0);
     // p(0) is the first coefficient (the evaluation at 0 gives it exactly).
     let g0 = coef.first().copied().unwrap_or(0.0);
     if gb < -tol {
         Some(root_in(coef, 0.0, 1.0, g0, gb, hint))
-    } else if da < 0.0 && db > 0.0 {
+    } else if da < 0.0 && propagate::poly(coef, 1.0).1 > 0.0 {
         // An interior minimum: find it, then look below zero there.
         let smin = stationary(coef);
         let gm = propagate::poly_value(coef, smin);
