@@ -237,3 +237,67 @@ impl Simulator {
                 .any(|p| matches!(p, Phase::OffVoltage | Phase::OnCurrent))
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use fluxstep_netlist::{Circuit, DiodeModel, Element, SwitchTransition, TransitionRates};
+
+    use super::super::Simulator;
+    use crate::options::Options;
+    use crate::waveform::OutputId;
+
+    /// `output_now` reads Cᵀ's contiguous row and must give the bits of
+    /// `Simulator::value` (the same products summed in the same order),
+    /// for every output, in every pattern a synchronous buck with
+    /// transition models on both switches goes through (demo values).
+    #[test]
+    fn output_now_gives_the_bits_of_value() {
+        let body = DiodeModel {
+            forward_voltage: Some(0.7),
+            on_resistance: None,
+            recovered_charge: None,
+        };
+        let mut c = Circuit::builder()
+            .voltage_source("Vin", "in", "gnd", 24.0)
+            .transistor("Q1", "in", "sw", "hb.high", 0.01, body.clone())
+            .transistor("Q2", "sw", "gnd", "hb.low", 0.01, body)
+            .inductor_with_current("L1", "sw", "out", 22e-6, 2.0)
+            .capacitor_with_voltage("C1", "out", "gnd", 47e-6, 12.0)
+            .resistor("R", "out", "gnd", 6.0)
+            .complementary_pwm("hb", 200e3, 0.5, 50e-9, 80e-9)
+            .build()
+            .expect("valid");
+        for e in &mut c.elements {
+            if let Element::Switch(s) = e {
+                s.transition = Some(SwitchTransition {
+                    turn_off: TransitionRates {
+                        voltage_rate: 24.0 / 10e-9,
+                        current_rate: 2.0 / 5e-9,
+                    },
+                    turn_on: TransitionRates {
+                        voltage_rate: 24.0 / 12e-9,
+                        current_rate: 2.0 / 6e-9,
+                    },
+                });
+            }
+        }
+        let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
+        let mut patterns = std::collections::HashSet::new();
+        // Instants 3.1 ns apart over three periods (5 µs each): inside
+        // every ramp phase (6 to 12 ns) too.
+        for k in 1..5000 {
+            sim.advance_to(k as f64 * 3.1e-9).expect("runs");
+            patterns.insert(sim.key);
+            for out in 0..sim.cc.outputs.len() {
+                let want = sim.value(OutputId(out)).unwrap_or(0.0);
+                let got = sim.output_now(out);
+                assert_eq!(got.to_bits(), want.to_bits(), "output {out} at step {k}");
+            }
+        }
+        assert!(
+            patterns.len() >= 6,
+            "only {} patterns visited",
+            patterns.len()
+        );
+    }
+}
