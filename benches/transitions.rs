@@ -11,7 +11,17 @@
 //! The high-side transistor switches hard at both edges (two ramps and a
 //! located clamp each); the low side turns on and off at zero voltage
 //! into its body diode, so its model adds nothing. Wall time is the
-//! minimum of several runs (the machines are shared).
+//! minimum of several runs, the two variants taking turns (the machines
+//! are shared).
+//!
+//! For counting instructions (repeatable, unlike wall time), one variant
+//! alone: `ideal` or `ramps`, then optionally the periods (default
+//! 20,000) and the runs (default 9):
+//!
+//! ```sh
+//! cargo bench --bench transitions --no-run
+//! valgrind --tool=callgrind target/release/deps/transitions-* ramps 4000 1
+//! ```
 
 use std::time::Instant;
 
@@ -56,30 +66,74 @@ fn buck(transitions: bool) -> Circuit {
     c
 }
 
-/// (events, best seconds, counters) over `reps` runs.
-fn measure(c: &Circuit, reps: usize) -> (usize, f64, Stats) {
-    let mut best = f64::INFINITY;
-    let mut events = 0;
-    let mut stats = Stats::default();
-    for _ in 0..reps {
+/// The best of a series of runs of one circuit: events, seconds,
+/// counters.
+#[derive(Default)]
+struct Best {
+    events: usize,
+    seconds: Option<f64>,
+    stats: Stats,
+}
+
+impl Best {
+    /// One more run of `c` over `periods`.
+    fn run(&mut self, c: &Circuit, periods: f64) {
         let opts = Options {
             record: Record::All,
             ..Options::default()
         };
         let start = Instant::now();
-        let run = simulate(c, PERIODS * T, opts).expect("the buck runs");
-        best = best.min(start.elapsed().as_secs_f64());
-        events = run.events.len();
-        stats = run.stats;
+        let run = simulate(c, periods * T, opts).expect("the buck runs");
+        let s = start.elapsed().as_secs_f64();
+        self.seconds = Some(self.seconds.map_or(s, |b| b.min(s)));
+        self.events = run.events.len();
+        self.stats = run.stats;
     }
-    (events, best, stats)
+
+    fn seconds(&self) -> f64 {
+        self.seconds.unwrap_or(f64::NAN)
+    }
 }
 
 fn main() {
-    // `cargo bench` passes `--bench`; a filter argument is ignored.
-    let reps = 5;
-    let (ideal_events, ideal_s, ideal_stats) = measure(&buck(false), reps);
-    let (ramp_events, ramp_s, ramp_stats) = measure(&buck(true), reps);
+    // `cargo bench` passes `--bench`; only plain words select a run.
+    let args: Vec<String> = std::env::args().skip(1).collect();
+    let words: Vec<&str> = args
+        .iter()
+        .map(String::as_str)
+        .filter(|a| !a.starts_with('-'))
+        .collect();
+    let one = words
+        .first()
+        .copied()
+        .filter(|w| *w == "ideal" || *w == "ramps");
+    let periods: f64 = words.get(1).and_then(|w| w.parse().ok()).unwrap_or(PERIODS);
+    let reps: usize = words.get(2).and_then(|w| w.parse().ok()).unwrap_or(9);
+    if let Some(which) = one {
+        let c = buck(which == "ramps");
+        let mut best = Best::default();
+        for _ in 0..reps {
+            best.run(&c, periods);
+        }
+        println!(
+            "{which}: {} events in {:.3} ms, {:.3e} events/s",
+            best.events,
+            best.seconds() * 1e3,
+            best.events as f64 / best.seconds()
+        );
+        println!("counters: {:?}", best.stats);
+        return;
+    }
+    // The two variants alternate, so that both see the same load of a
+    // shared machine.
+    let (ideal, ramps) = (buck(false), buck(true));
+    let (mut a, mut b) = (Best::default(), Best::default());
+    for _ in 0..reps {
+        a.run(&ideal, periods);
+        b.run(&ramps, periods);
+    }
+    let (ideal_events, ideal_s, ideal_stats) = (a.events, a.seconds(), a.stats);
+    let (ramp_events, ramp_s, ramp_stats) = (b.events, b.seconds(), b.stats);
     let ideal_rate = ideal_events as f64 / ideal_s;
     let ramp_rate = ramp_events as f64 / ramp_s;
     println!(

@@ -119,6 +119,9 @@ pub(crate) struct Mode {
     pub live: usize,
     /// Outputs y = C z, one row per compiled output.
     pub c: DMatrix<f64>,
+    /// Cᵀ: each output's row contiguous (a switch's current and voltage
+    /// are read at each of its hard edges, `run/transition.rs`).
+    pub ct: DMatrix<f64>,
     /// Output rows that depend on a free gauge.
     pub undetermined: Vec<bool>,
     pub guards: Vec<Guard>,
@@ -988,6 +991,7 @@ impl Mode {
             problem,
             m,
             live,
+            ct: cm.transpose(),
             c: cm,
             undetermined,
             guards,
@@ -1009,6 +1013,7 @@ impl Mode {
             m: DMatrix::zeros(nz, nz),
             live: 0,
             c: DMatrix::zeros(cc.outputs.len(), nz),
+            ct: DMatrix::zeros(nz, cc.outputs.len()),
             undetermined: vec![true; cc.outputs.len()],
             guards: vec![],
             ht: DMatrix::zeros(nz, 0),

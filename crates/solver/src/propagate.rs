@@ -267,7 +267,8 @@ fn matvec_rows(m: &DMatrix<f64>, live: usize, x: &[f64], y: &mut [f64]) {
     let n = m.nrows();
     let data = m.as_slice();
     // Fixed sizes unroll completely (no loop counters or bounds checks);
-    // converters mostly have 3 to 8 entries in z.
+    // converters mostly have 3 to 12 entries in z (each switch with a
+    // transition model adds two: its ramp value and slope).
     match n {
         3 => return fixed::<3>(data, x, y),
         4 => return fixed::<4>(data, x, y),
@@ -275,6 +276,10 @@ fn matvec_rows(m: &DMatrix<f64>, live: usize, x: &[f64], y: &mut [f64]) {
         6 => return fixed::<6>(data, x, y),
         7 => return fixed::<7>(data, x, y),
         8 => return fixed::<8>(data, x, y),
+        9 => return compact::<9>(data, x, y),
+        10 => return compact::<10>(data, x, y),
+        11 => return compact::<11>(data, x, y),
+        12 => return compact::<12>(data, x, y),
         _ => {}
     }
     let (head, tail) = y.split_at_mut(live);
@@ -316,6 +321,10 @@ fn matvec_scaled(m: &DMatrix<f64>, live: usize, x: &[f64], y: &mut [f64], f: f64
         6 => return scaled_fixed::<6>(data, x, y, f),
         7 => return scaled_fixed::<7>(data, x, y, f),
         8 => return scaled_fixed::<8>(data, x, y, f),
+        9 => return scaled_compact::<9>(data, x, y, f),
+        10 => return scaled_compact::<10>(data, x, y, f),
+        11 => return scaled_compact::<11>(data, x, y, f),
+        12 => return scaled_compact::<12>(data, x, y, f),
         _ => {}
     }
     matvec_rows(m, live, x, y);
@@ -330,6 +339,38 @@ fn matvec_scaled(m: &DMatrix<f64>, live: usize, x: &[f64], y: &mut [f64], f: f64
 #[inline(always)]
 fn scaled_fixed<const N: usize>(data: &[f64], x: &[f64], y: &mut [f64], f: f64) -> f64 {
     fixed::<N>(data, x, y);
+    let mut tn: f64 = 0.0;
+    for yi in y.iter_mut() {
+        *yi *= f;
+        tn = tn.max(yi.abs());
+    }
+    tn
+}
+
+/// [`fixed`] for 9 to 12 entries (switches with transition models add two
+/// each): the same operations in the same order, so the same bits, with
+/// the loop over columns kept as a loop. Fully unrolled at every call
+/// site, as the smaller sizes are, these made the hot code of such a
+/// circuit outgrow the instruction cache.
+#[inline(always)]
+fn compact<const N: usize>(data: &[f64], x: &[f64], y: &mut [f64]) {
+    let y: &mut [f64; N] = y.try_into().expect("y has as many entries as M has rows");
+    let mut acc = [0.0f64; N];
+    // Runtime-length slices: the compiler keeps the column loop rolled.
+    for (col, &xj) in data.chunks_exact(N).zip(x) {
+        if xj != 0.0 {
+            let col: &[f64; N] = col.try_into().expect("chunks of N");
+            for i in 0..N {
+                acc[i] += col[i] * xj;
+            }
+        }
+    }
+    *y = acc;
+}
+
+#[inline(always)]
+fn scaled_compact<const N: usize>(data: &[f64], x: &[f64], y: &mut [f64], f: f64) -> f64 {
+    compact::<N>(data, x, y);
     let mut tn: f64 = 0.0;
     for yi in y.iter_mut() {
         *yi *= f;
@@ -489,7 +530,7 @@ pub(crate) fn expm(m: &DMatrix<f64>, h: f64) -> DMatrix<f64> {
 /// For the 4–12 states of a converter this plain loop beats a general
 /// matrix-vector product, whose set-up cost dominates at that size.
 pub(crate) fn matvec(m: &DMatrix<f64>, x: &[f64], y: &mut [f64]) {
-    if m.nrows() == m.ncols() && (3..=8).contains(&m.nrows()) {
+    if m.nrows() == m.ncols() && (3..=12).contains(&m.nrows()) {
         return matvec_rows(m, m.nrows(), x, y);
     }
     let n = m.nrows();
@@ -516,6 +557,10 @@ pub(crate) fn dot_s(a: &[f64], b: &[f64]) -> f64 {
         (6, 6) => dot_fixed::<6>(a, b),
         (7, 7) => dot_fixed::<7>(a, b),
         (8, 8) => dot_fixed::<8>(a, b),
+        (9, 9) => dot_fixed::<9>(a, b),
+        (10, 10) => dot_fixed::<10>(a, b),
+        (11, 11) => dot_fixed::<11>(a, b),
+        (12, 12) => dot_fixed::<12>(a, b),
         _ => a.iter().zip(b).map(|(x, y)| x * y).sum(),
     }
 }
@@ -540,6 +585,10 @@ pub(crate) fn dot_and_abs(a: &[f64], b: &[f64]) -> (f64, f64) {
         (6, 6) => dot_abs_fixed::<6>(a, b),
         (7, 7) => dot_abs_fixed::<7>(a, b),
         (8, 8) => dot_abs_fixed::<8>(a, b),
+        (9, 9) => dot_abs_fixed::<9>(a, b),
+        (10, 10) => dot_abs_fixed::<10>(a, b),
+        (11, 11) => dot_abs_fixed::<11>(a, b),
+        (12, 12) => dot_abs_fixed::<12>(a, b),
         _ => {
             let mut v = 0.0;
             let mut s = 0.0;
@@ -622,7 +671,7 @@ pub(crate) fn advance_into(
     out.copy_from_slice(&s.x);
 }
 
-/// Appends a short slice: lengths up to 8 are copied as fixed-size arrays
+/// Appends a short slice: lengths up to 12 are copied as fixed-size arrays
 /// (moves the compiler unrolls, no call to the system's copy routine).
 #[inline(always)]
 pub(crate) fn extend_small(v: &mut Vec<f64>, x: &[f64]) {
@@ -640,6 +689,10 @@ pub(crate) fn extend_small(v: &mut Vec<f64>, x: &[f64]) {
         6 => fixed::<6>(v, x),
         7 => fixed::<7>(v, x),
         8 => fixed::<8>(v, x),
+        9 => fixed::<9>(v, x),
+        10 => fixed::<10>(v, x),
+        11 => fixed::<11>(v, x),
+        12 => fixed::<12>(v, x),
         _ => v.extend_from_slice(x),
     }
 }
@@ -665,6 +718,10 @@ pub(crate) fn all_finite(z: &[f64]) -> bool {
         6 => fixed::<6>(z),
         7 => fixed::<7>(z),
         8 => fixed::<8>(z),
+        9 => fixed::<9>(z),
+        10 => fixed::<10>(z),
+        11 => fixed::<11>(z),
+        12 => fixed::<12>(z),
         _ => z.iter().map(|v| v * 0.0).sum::<f64>() == 0.0,
     }
 }

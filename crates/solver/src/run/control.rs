@@ -194,7 +194,10 @@ impl Simulator {
         Ok(cause)
     }
 
-    /// Toggles the comparators whose guard fired (state event).
+    /// Toggles the comparators whose guard fired (state event). Inline:
+    /// at every located diode event of a circuit without comparators it is
+    /// an empty loop, not worth a call to cold code.
+    #[inline]
     pub(super) fn fire_comparators(
         &mut self,
         bits: u64,

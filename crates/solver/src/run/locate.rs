@@ -460,13 +460,15 @@ fn merge(found: Found, tau: f64, bit: (u64, u64), s: f64, h: f64) -> Found {
 /// `hint`, if any, is where the search starts (the crossing of an earlier
 /// period, which in a settled converter lies within a few ulps).
 fn guard_root(coef: &[f64], tol: f64, hint: Option<f64>) -> Option<f64> {
-    let (gb, db) = propagate::poly(coef, 1.0);
+    // The value alone first (`poly` gives the same bits with the
+    // derivative, which only a dip needs).
+    let gb = propagate::poly_value(coef, 1.0);
     let da = coef.get(1).copied().unwrap_or(0.0);
     // p(0) is the first coefficient (the evaluation at 0 gives it exactly).
     let g0 = coef.first().copied().unwrap_or(0.0);
     if gb < -tol {
         Some(root_in(coef, 0.0, 1.0, g0, gb, hint))
-    } else if da < 0.0 && db > 0.0 {
+    } else if da < 0.0 && propagate::poly(coef, 1.0).1 > 0.0 {
         // An interior minimum: find it, then look below zero there.
         let smin = stationary(coef);
         let gm = propagate::poly_value(coef, smin);
@@ -481,12 +483,22 @@ fn guard_root(coef: &[f64], tol: f64, hint: Option<f64>) -> Option<f64> {
 /// coefficients at start state z are q·z, without the Taylor vectors.
 pub(super) struct GuardPolys {
     bits: u64,
-    /// Terms kept: beyond them ‖(Mh)ᵏ/k!‖∞ ≤ 1e-18.
-    terms: usize,
-    /// Per guard: `terms` rows of n_z, and Σₖ|qₖ| (one row: the scale of
+    /// Per guard: one row of n_z per Taylor term (beyond them
+    /// ‖(Mh)ᵏ/k!‖∞ ≤ 1e-18), and Σₖ|qₖ| (one row: the scale of
     /// the guard's terms at z is its product with |z|).
     rows: Vec<Vec<f64>>,
     abs: Vec<Vec<f64>>,
+    /// Per guard: how many of its rows count, up to the last that is not
+    /// exactly zero (a guard affine in time, r·M² = 0 — a diode voltage
+    /// set by a source and a voltage ramp — has two; one that cannot move
+    /// has one). The rows past it give coefficients ±0, and dropping ±0
+    /// coefficients from the top of a polynomial changes neither its
+    /// values nor its derivative's (each Horner chain meets its first
+    /// non-zero coefficient as ±0·u + c = c exactly; at most the sign of a
+    /// zero result differs, which no comparison or guarded division in
+    /// the root search sees), so the crossing is the same to the bit at
+    /// a fraction of the products.
+    kept: Vec<usize>,
     /// Per guard: σ of its latest crossing over this length, where the
     /// next search starts (the result does not depend on it where the
     /// crossing is clean; it saves about half of the evaluations).
@@ -529,12 +541,21 @@ impl GuardPolys {
                 sum
             })
             .collect();
+        let kept = rows
+            .iter()
+            .map(|r| {
+                r.chunks_exact(n.max(1))
+                    .take(terms)
+                    .rposition(|q| q.iter().any(|v| *v != 0.0))
+                    .map_or(1, |k| k + 1)
+            })
+            .collect();
         GuardPolys {
             bits: h.to_bits(),
-            terms,
             hints: vec![None; rows.len()],
             rows,
             abs,
+            kept,
         }
     }
 }
@@ -577,7 +598,7 @@ impl Simulator {
         let mut n_hits = 0;
         for (gi, g) in mode.guards.iter().enumerate() {
             coef.clear();
-            for q in gp.rows[gi].chunks_exact(nz).take(gp.terms) {
+            for q in gp.rows[gi].chunks_exact(nz).take(gp.kept[gi]) {
                 coef.push(dot_s(q, z));
             }
             let scale = dot_s(&gp.abs[gi], za_abs.as_slice());
@@ -746,6 +767,61 @@ fn stationary(c: &[f64]) -> f64 {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Contract of `GuardPolys::kept`: coefficients that are ±0 at the top
+    /// of a guard polynomial (the rows past its last non-zero one) change
+    /// neither where `guard_root` puts the crossing nor the polynomial's
+    /// value, to the bit: each Horner chain meets its first non-zero
+    /// coefficient as ±0·u + c = c exactly (common practice). Random
+    /// polynomials of degree 1 to 7 with a root inside, some with an
+    /// interior dip, padded with up to six signed zeros.
+    #[test]
+    fn zero_top_terms_do_not_move_the_crossing() {
+        let mut rnd = crate::test_util::uniform(0x9e37_79b9_7f4a_7c15u64);
+        let mut crossings = 0;
+        for case in 0..4000 {
+            let len = 2 + (rnd() * 7.0) as usize;
+            let r = 0.01 + 0.98 * rnd();
+            let k = 10f64.powf(6.0 * rnd() - 3.0);
+            // (r − σ)·q(σ), q > 0 on [0, 1], or for a quarter of the cases
+            // a positive value with a dip (σ − m)² − d around the middle.
+            let mut c = vec![0.0; len];
+            if case % 4 == 3 && len >= 3 {
+                let (m, d) = (0.2 + 0.6 * rnd(), 0.1 * rnd() * rnd());
+                c[0] = k * (m * m - d);
+                c[1] = -2.0 * k * m;
+                c[2] = k;
+            } else {
+                c[0] = k * r;
+                c[1] = -k;
+                for (i, ci) in c.iter_mut().enumerate().skip(2) {
+                    *ci = k * 0.1f64.powi(i as i32) * (rnd() - 0.5);
+                }
+            }
+            let pad = 1 + (rnd() * 6.0) as usize;
+            let mut long = c.clone();
+            long.extend((0..pad).map(|_| if rnd() < 0.5 { -0.0 } else { 0.0 }));
+            let tol = k * 1e-12 * rnd();
+            for hint in [None, Some(r), Some(rnd())] {
+                let a = guard_root(&c, tol, hint);
+                let b = guard_root(&long, tol, hint);
+                assert_eq!(a.map(f64::to_bits), b.map(f64::to_bits), "case {case}");
+                crossings += a.is_some() as usize;
+            }
+            for _ in 0..8 {
+                let s = rnd();
+                let (va, vb) = (
+                    propagate::poly_value(&c, s),
+                    propagate::poly_value(&long, s),
+                );
+                // Equal, up to the sign of a zero result.
+                assert!(va == vb, "case {case}: {va} vs {vb}");
+                let (da, db) = (propagate::poly(&c, s).1, propagate::poly(&long, s).1);
+                assert!(da == db, "case {case}: {da} vs {db}");
+            }
+        }
+        assert!(crossings > 6000, "only {crossings} crossings tested");
+    }
 
     /// Contract of `root_in`: the returned point has p < 0 and the point
     /// just below it p ≥ 0 (the first instant after the crossing), and it

@@ -938,20 +938,30 @@ pub(super) fn violated_guards(
     if !violated.is_empty() && !all {
         return violated;
     }
-    let mut d = z.clone_owned();
-    let mut next = DVector::zeros(zs.len());
+    // On the stack up to 16 entries of z: a circuit with transition models
+    // gets here at every located clamp, and allocating cost more than the rest.
+    let n = zs.len();
+    let (mut buf, mut heap) = ([[0.0f64; 16]; 2], vec![]);
+    let (mut d, mut next): (&mut [f64], &mut [f64]) = match &mut buf {
+        [a, b] if n <= 16 => (&mut a[..n], &mut b[..n]),
+        _ => {
+            heap.resize(2 * n, 0.0);
+            heap.split_at_mut(n)
+        }
+    };
+    d.copy_from_slice(zs);
     let mut rate_k = 1.0;
     for _ in 1..4 {
         if undecided.is_empty() {
             break;
         }
-        propagate::matvec(&mode.m, d.as_slice(), next.as_mut_slice());
+        propagate::matvec(&mode.m, d, next);
         std::mem::swap(&mut d, &mut next);
         rate_k *= mode.rate;
         let mut still = Vec::with_capacity(undecided.len());
         for &gi in &undecided {
             let g = &mode.guards[gi];
-            let (v, s) = dot_and_abs(&g.row, d.as_slice());
+            let (v, s) = dot_and_abs(&g.row, d);
             let tol = ZERO_REL * s + guard_floor(&g.kind, scales) * rate_k;
             if v < -tol {
                 violated.push(gi);

@@ -26,7 +26,7 @@ use super::schedule::coincident_until;
 use super::Simulator;
 use crate::error::SolverError;
 use crate::mode::ramp_bit;
-use crate::waveform::OutputId;
+use crate::propagate::dot_s;
 
 /// Where a switch is in its transition.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -44,9 +44,19 @@ pub(super) enum Phase {
 }
 
 impl Simulator {
-    /// The present value of output `k` (0 where it is undetermined).
+    /// The present value of output `k` (0 where it is undetermined): the
+    /// same products summed in the same order as [`Simulator::value`]
+    /// (`dot_s` starts from the same zero as `Iterator::sum`), so the same
+    /// bits, from the contiguous row of Cᵀ instead of a strided row of C.
+    #[inline]
     fn output_now(&self, k: usize) -> f64 {
-        self.value(OutputId(k)).unwrap_or(0.0)
+        let mode = &self.modes[self.mode as usize];
+        if mode.undetermined.get(k) != Some(&false) {
+            return 0.0;
+        }
+        let z = self.z.as_slice();
+        let n = z.len();
+        dot_s(&mode.ct.as_slice()[k * n..(k + 1) * n], z)
     }
 
     /// Starts the transitions of the switches in `changed` (their new bits
@@ -91,9 +101,10 @@ impl Simulator {
                     reason: reason.into(),
                 });
             }
-            let current = self.output_now(info.current_out);
-            let voltage = self.output_now(info.voltage_out);
+            // Each edge reads only what it needs (the value does not
+            // depend on when it is read: z changes only below).
             if on {
+                let voltage = self.output_now(info.voltage_out);
                 // Hard turn-on: positive voltage to be taken away. With a
                 // diode conducting, the switch first takes over its
                 // current; with none (discontinuous conduction, start-up)
@@ -112,9 +123,11 @@ impl Simulator {
                     }
                 }
             } else {
-                let z = self.z.as_mut_slice();
+                let current = self.output_now(info.current_out);
                 let into_body = current < 0.0 && info.body_diode.is_some();
                 if current.abs() > 1e-9 * scales.0 && !into_body {
+                    let voltage = self.output_now(info.voltage_out);
+                    let z = self.z.as_mut_slice();
                     z[info.value] = voltage;
                     z[info.slope] = info.off.0 * current.signum();
                     self.key.ramps |= ramp_bit(i, true);
@@ -222,5 +235,69 @@ impl Simulator {
                 .phases
                 .iter()
                 .any(|p| matches!(p, Phase::OffVoltage | Phase::OnCurrent))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use fluxstep_netlist::{Circuit, DiodeModel, Element, SwitchTransition, TransitionRates};
+
+    use super::super::Simulator;
+    use crate::options::Options;
+    use crate::waveform::OutputId;
+
+    /// `output_now` reads Cᵀ's contiguous row and must give the bits of
+    /// `Simulator::value` (the same products summed in the same order),
+    /// for every output, in every pattern a synchronous buck with
+    /// transition models on both switches goes through (demo values).
+    #[test]
+    fn output_now_gives_the_bits_of_value() {
+        let body = DiodeModel {
+            forward_voltage: Some(0.7),
+            on_resistance: None,
+            recovered_charge: None,
+        };
+        let mut c = Circuit::builder()
+            .voltage_source("Vin", "in", "gnd", 24.0)
+            .transistor("Q1", "in", "sw", "hb.high", 0.01, body.clone())
+            .transistor("Q2", "sw", "gnd", "hb.low", 0.01, body)
+            .inductor_with_current("L1", "sw", "out", 22e-6, 2.0)
+            .capacitor_with_voltage("C1", "out", "gnd", 47e-6, 12.0)
+            .resistor("R", "out", "gnd", 6.0)
+            .complementary_pwm("hb", 200e3, 0.5, 50e-9, 80e-9)
+            .build()
+            .expect("valid");
+        for e in &mut c.elements {
+            if let Element::Switch(s) = e {
+                s.transition = Some(SwitchTransition {
+                    turn_off: TransitionRates {
+                        voltage_rate: 24.0 / 10e-9,
+                        current_rate: 2.0 / 5e-9,
+                    },
+                    turn_on: TransitionRates {
+                        voltage_rate: 24.0 / 12e-9,
+                        current_rate: 2.0 / 6e-9,
+                    },
+                });
+            }
+        }
+        let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
+        let mut patterns = std::collections::HashSet::new();
+        // Instants 3.1 ns apart over three periods (5 µs each): inside
+        // every ramp phase (6 to 12 ns) too.
+        for k in 1..5000 {
+            sim.advance_to(k as f64 * 3.1e-9).expect("runs");
+            patterns.insert(sim.key);
+            for out in 0..sim.cc.outputs.len() {
+                let want = sim.value(OutputId(out)).unwrap_or(0.0);
+                let got = sim.output_now(out);
+                assert_eq!(got.to_bits(), want.to_bits(), "output {out} at step {k}");
+            }
+        }
+        assert!(
+            patterns.len() >= 6,
+            "only {} patterns visited",
+            patterns.len()
+        );
     }
 }
