@@ -119,6 +119,41 @@ impl Spectrum {
         d
     }
 
+    /// How many sub-intervals [`Spectrum::step_at`] cuts `[from, from +
+    /// width]` into (τ measured from the span's start), counted stretch by
+    /// stretch between the instants where an eigenvalue dies, without
+    /// walking them: at most one more per stretch than the walk makes.
+    /// `∞` when the count is beyond what a walk could finish.
+    pub(crate) fn pieces(&self, from: f64, width: f64) -> f64 {
+        let end = from + width;
+        let mut tau = from;
+        let mut count = 0.0;
+        // Deaths in increasing τ: `eig` is sorted by decreasing decay.
+        let deaths = self
+            .eig
+            .iter()
+            .filter(|e| e.0 > 0.0)
+            .map(|e| DEAD / e.0)
+            .chain(std::iter::once(f64::INFINITY));
+        for death in deaths {
+            if death <= tau {
+                continue;
+            }
+            let stop = death.min(end);
+            let d = self.step_at(tau);
+            count += ((stop - tau) / d).ceil().max(1.0);
+            tau = stop;
+            if tau >= end {
+                break;
+            }
+        }
+        if count.is_finite() {
+            count
+        } else {
+            f64::INFINITY
+        }
+    }
+
     /// The fastest oscillation that stays alive over a span of length `h`
     /// ending at `t_end` and whose phase f64 cannot follow there (error
     /// ε·|Im λ|·max(h, t_end) above [`PHASE_LIMIT`]): its |Im λ|.

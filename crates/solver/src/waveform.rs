@@ -644,7 +644,13 @@ impl Waveform {
         let mut total = 0.0;
         let n = propagate::substeps(m.rate, width);
         if n > propagate::STIFF_SUBSTEPS {
-            if let Some(sp) = propagate::Spectrum::of(&m.m) {
+            let (need, spectrum) = self.pieces_needed(i, a, width);
+            // Beyond the cap of a measurement (see `MAX_PIECES`): no
+            // number, rather than hours of work or a rate bound overrun.
+            if !(need <= crate::waveform_ext::MAX_PIECES as f64) {
+                return f64::NAN;
+            }
+            if let Some(sp) = spectrum {
                 return self.integrate_stiff(i, &sp, ids, a, width, origin, f);
             }
         }
@@ -696,8 +702,16 @@ impl Waveform {
         // Per sub-interval length: e^{Mδ(x+1)/2} at the 8 nodes and e^{Mδ}.
         let mut cache: Vec<(u64, Vec<DMatrix<f64>>)> = vec![];
         let mut tau = 0.0;
-        while tau < width {
+        // The caller checked the count; the bound only guarantees the end
+        // where τ + δ would round to τ.
+        for _ in 0..=crate::waveform_ext::MAX_PIECES {
+            if tau >= width {
+                break;
+            }
             let d = sp.step_at(a + tau).min(width - tau);
+            if tau + d <= tau {
+                break;
+            }
             let k = match cache.iter().position(|(b, _)| *b == d.to_bits()) {
                 Some(k) => k,
                 None => {
