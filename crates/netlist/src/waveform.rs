@@ -204,9 +204,9 @@ impl Waveform {
 fn pwl_piece(points: &[Point], t: f64) -> LinearPiece {
     let first = points[0];
     let last = points[points.len() - 1];
-    // `!(t >= …)` also takes a NaN instant here rather than to an index
-    // below the first corner.
-    if !(t >= first.time) {
+    // A NaN instant goes here too rather than to an index below the
+    // first corner.
+    if t < first.time || t.is_nan() {
         return LinearPiece {
             start: f64::NEG_INFINITY,
             end: first.time,

@@ -23,7 +23,7 @@ use serde::{Deserialize, Serialize};
 
 use crate::propagate;
 use crate::waveform::{OutputId, Waveform};
-use crate::waveform_ext::{Piece, MAX_PIECES};
+use crate::waveform_ext::{within_piece_cap, Piece, MAX_PIECES};
 
 /// Samples of the derivative per sub-interval when bracketing stationary
 /// points. A sub-interval spans at most half a radian of the fastest
@@ -117,7 +117,7 @@ pub enum MeasureError {
     /// measured there: its exact local form needs more than about a
     /// million polynomial pieces (2²⁰; an oscillation hundreds of
     /// thousands of radians long between two events, such as a 1 THz
-    /// source over 0.1 ms). Shorten the window, or check the element
+    /// source over 0.1 ms, 6e8 radians). Shorten the window, or check the element
     /// values that make the circuit that fast.
     #[error(
         "{subject} changes too fast to measure in the segment from t = {time:e} s: \
@@ -544,7 +544,7 @@ fn parts_energy(
         let need = waveform
             .pieces_needed(k, a - waveform.segments()[k].t0, b - a)
             .0;
-        if !(need <= MAX_PIECES as f64) {
+        if !within_piece_cap(need) {
             return Err(too_fast(waveform, element, k, (a, b)));
         }
     }

@@ -1153,7 +1153,8 @@ impl Mode {
     /// (√L or √C, the smallest inductance or capacitance that takes part),
     /// whose value makes it so; `None` within the bound.
     pub(crate) fn too_fast(&self, cc: &Compiled) -> Option<String> {
-        if !(self.rate > MAX_RATE) {
+        // A NaN rate is left to the run's own checks of non-finite values.
+        if self.rate <= MAX_RATE || self.rate.is_nan() {
             return None;
         }
         let who = (0..cc.n_x.min(cc.x_scale.len()).min(self.m.nrows()))

@@ -647,7 +647,7 @@ impl Waveform {
             let (need, spectrum) = self.pieces_needed(i, a, width);
             // Beyond the cap of a measurement (see `MAX_PIECES`): no
             // number, rather than hours of work or a rate bound overrun.
-            if !(need <= crate::waveform_ext::MAX_PIECES as f64) {
+            if !crate::waveform_ext::within_piece_cap(need) {
                 return f64::NAN;
             }
             if let Some(sp) = spectrum {

@@ -102,7 +102,7 @@ impl Waveform {
             return true;
         }
         let (need, spectrum) = self.pieces_needed(i, a - s.t0, b - a);
-        if !(need <= MAX_PIECES as f64) {
+        if !within_piece_cap(need) {
             return false;
         }
         if let Some(sp) = spectrum {
@@ -231,7 +231,13 @@ impl Waveform {
 /// measurement refuses it (`MeasureError::TooFast`): 2²⁰ ≈ 10⁶, the cap
 /// of the Taylor sub-steps over one span (`propagate::substeps`). A
 /// segment needs that many only where the output swings through about
-/// 2·10⁵ radians inside it (an oscillation far faster than the record
-/// between two events, e.g. a 1 THz source over 0.1 ms) — about a second
+/// 5·10⁵ radians inside it (an oscillation far faster than the record
+/// between two events, e.g. a 1 THz source over more than 80 ns) — seconds
 /// of work; beyond, the walk would take minutes to hours.
 pub(crate) const MAX_PIECES: usize = 1 << 20;
+
+/// Whether a stretch needing `need` pieces is within [`MAX_PIECES`] (a
+/// NaN count is not).
+pub(crate) fn within_piece_cap(need: f64) -> bool {
+    need <= MAX_PIECES as f64
+}
