@@ -729,8 +729,9 @@ impl Mode {
             }
             let lam = -&s_pinv * (&hz * &dz);
             let p = DMatrix::identity(nz, nz) - &dl * &s_pinv * &hz;
-            // What each entry of D_λ·λ is made of, in magnitude (see
-            // `cancellation_floor` below).
+            // What each entry of D_λ·λ is made of, in magnitude: the
+            // scale of the rounding left where M cancels (see below, where
+            // M is formed).
             let made_of = dl.abs() * (s_pinv.abs() * (hz.abs() * dz.abs()));
             (lam, p, made_of)
         } else {
