@@ -594,7 +594,10 @@ impl Waveform {
     /// ∫ f(outputs) dt over [t0, t1] ∩ the recorded window, where `f`
     /// receives the values of `ids` (`None` if any is undetermined there,
     /// in which case that stretch counts as zero). Exact up to rounding: see
-    /// the note on the quadrature rule.
+    /// the note on the quadrature rule. NaN where a segment's stretch would
+    /// need more than 2²⁰ pieces (an oscillation of hundreds of thousands
+    /// of radians between two events; the measurements of
+    /// [`crate::measure`] refuse it by name).
     pub fn integrate(&self, ids: &[OutputId], t0: f64, t1: f64, f: impl Fn(&[f64]) -> f64) -> f64 {
         self.integrate_timed(ids, t0, t1, |_, v| f(v))
     }
