@@ -6,6 +6,9 @@
 //! - `panic-infinite-clock-period.json`: a peak-current clock of 5e-324 Hz
 //!   (period ∞) indexed the compensation ramp at a NaN instant; now the
 //!   file is refused naming `frequency`.
+//! - `panic-winding-5e-324.json`: a flyback winding of 5e-324 H passed the
+//!   Cholesky test of its inductance matrix, whose general inverse then
+//!   failed while compiling; now the winding is refused by name.
 //! - `slow-inductance-1e-300.json`, `slow-capacitance-1e-300.json`,
 //!   `slow-capacitance-2e-308.json`: dynamics near 1e300 /s, whose
 //!   measurement walked pieces shorter than one ulp of time; now refused
@@ -28,6 +31,12 @@ fn issue_19_a_clock_with_an_infinite_period_is_refused_not_a_panic() {
         &case("panic-infinite-clock-period.json"),
         &Limits::default(),
     );
+    assert!(!o.valid, "{o:?}");
+}
+
+#[test]
+fn issue_19_a_winding_without_a_finite_inverse_is_refused_not_a_panic() {
+    let o = run_case(&case("panic-winding-5e-324.json"), &Limits::default());
     assert!(!o.valid, "{o:?}");
 }
 

@@ -342,6 +342,25 @@ impl Checker<'_> {
         true
     }
 
+    /// Reports a positive value whose reciprocal is not finite (below
+    /// about 5.6e-309): the inverse inductance matrix of coupled windings
+    /// would not exist in f64. True if it is fine.
+    fn invertible(&mut self, element: &str, field: &str, v: f64) -> bool {
+        if (1.0 / v).is_finite() {
+            return true;
+        }
+        self.field(
+            element,
+            field,
+            format!(
+                "must exceed about {} (its reciprocal must be a finite number), got {}",
+                num(1.0 / f64::MAX),
+                num(v)
+            ),
+        );
+        false
+    }
+
     fn positive(&mut self, element: &str, field: &str, v: f64) -> bool {
         if !self.finite(element, field, v) {
             return false;
@@ -594,7 +613,9 @@ impl Checker<'_> {
             ok = false;
         }
         for (k, w) in x.windings.iter().enumerate() {
-            ok &= self.positive(l, &format!("windings[{k}].inductance"), w.inductance);
+            let field = format!("windings[{k}].inductance");
+            ok &=
+                self.positive(l, &field, w.inductance) && self.invertible(l, &field, w.inductance);
             self.optional_finite(
                 l,
                 &format!("windings[{k}].initial_current"),

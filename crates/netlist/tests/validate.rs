@@ -1235,6 +1235,28 @@ fn closed_loop_frequency_must_be_positive() {
     expect(&c, Some("drive"), Some("frequency"), "finite");
 }
 
+/// Issue 19 (a fuzz case): a winding of 5e-324 H passes the Cholesky
+/// test of the inductance matrix, but its inverse, which the solver needs,
+/// overflows (a panic compiling the circuit). The winding is refused by
+/// name.
+#[test]
+fn issue_19_a_winding_without_a_finite_inverse_is_refused() {
+    let c = flyback_with(coupled(
+        vec![
+            winding("pri", "in", "sw", 5e-324),
+            winding("sec", "gnd", "sec", 12.5e-6),
+        ],
+        vec![by_k("pri", "sec", 0.99)],
+    ))
+    .build_unchecked();
+    expect(
+        &c,
+        Some("T1"),
+        Some("windings[0].inductance"),
+        "reciprocal must be a finite number",
+    );
+}
+
 /// Issue 19 (a fuzz case): a clock of 5e-324 Hz has the period 1/f = ∞,
 /// whose schedule k·T is NaN (a panic indexing the compensation ramp's
 /// corners). Every frequency field refuses a period that is not finite.

@@ -201,3 +201,26 @@ fn issue_19_a_measurement_beyond_the_piece_cap_is_refused() {
     assert!(matches!(err, MeasureError::TooFast { .. }), "{err}");
     assert!(err.to_string().contains("ac1"), "{err}");
 }
+
+/// The flyback with both windings scaled to 1e-200 of their inductance
+/// (k = 0.99 kept): the determinant of the inductance matrix underflows
+/// (about 1e-409 H²), where the general inverse failed and compiling
+/// panicked; now the windings compile (by Cholesky) and the run either
+/// goes on or stops with a diagnostic.
+#[test]
+fn issue_19_tiny_coupled_windings_compile() {
+    let mut c = example("flyback.json");
+    for e in &mut c.elements {
+        if let Element::CoupledInductors(k) = e {
+            for w in &mut k.windings {
+                w.inductance *= 1e-200;
+            }
+        }
+    }
+    c.validate().expect("still a valid circuit");
+    let sim = Simulator::new(&c, Options::default());
+    if let Err(e) = sim {
+        let text = e.to_string();
+        assert!(!text.contains("inverse"), "{text}");
+    }
+}
