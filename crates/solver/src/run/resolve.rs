@@ -971,13 +971,62 @@ fn guards_hold(mode: &Mode, z: &DVector<f64>, scales: (f64, f64)) -> bool {
     !at_zero || guards_hold_at_zero(mode, z, scales)
 }
 
-/// The rest of [`guards_hold`] when some guard sits at zero. Rare, so
-/// allocating here is fine, and kept out of line so the usual value pass
-/// stays small.
-#[cold]
+/// The rest of [`guards_hold`] when some guard sits at zero, kept out of
+/// line so the usual value pass stays small: `violated_guards(…,
+/// false).is_empty()`, with the guards at zero as bits and the
+/// derivatives on the stack up to 64 guards and 16 entries of z. A
+/// circuit with transition models gets here at every located clamp and
+/// every ramp start (a diode at zero current), where the allocations of
+/// the general function cost more than its arithmetic. The same values
+/// and tolerances are compared; only the bookkeeping differs.
 #[inline(never)]
 fn guards_hold_at_zero(mode: &Mode, z: &DVector<f64>, scales: (f64, f64)) -> bool {
-    violated_guards(mode, z, scales, false).is_empty()
+    let zs = z.as_slice();
+    let n = zs.len();
+    if mode.guards.len() > 64 || n > 16 {
+        return violated_guards(mode, z, scales, false).is_empty();
+    }
+    let mut undecided = 0u64;
+    for (gi, g) in mode.guards.iter().enumerate() {
+        let (v, s) = dot_and_abs(&g.row, zs);
+        let tol = ZERO_REL * s + guard_floor(&g.kind, scales);
+        if v < -tol {
+            return false;
+        }
+        if v <= tol {
+            undecided |= 1 << gi;
+        }
+    }
+    let mut buf = [[0.0f64; 16]; 2];
+    let [a, b] = &mut buf;
+    let (mut d, mut next): (&mut [f64], &mut [f64]) = (&mut a[..n], &mut b[..n]);
+    d.copy_from_slice(zs);
+    let mut rate_k = 1.0;
+    for _ in 1..4 {
+        if undecided == 0 {
+            break;
+        }
+        propagate::matvec(&mode.m, d, next);
+        std::mem::swap(&mut d, &mut next);
+        rate_k *= mode.rate;
+        let mut still = 0u64;
+        let mut left = undecided;
+        while left != 0 {
+            let gi = left.trailing_zeros() as usize;
+            left &= left - 1;
+            let g = &mode.guards[gi];
+            let (v, s) = dot_and_abs(&g.row, d);
+            let tol = ZERO_REL * s + guard_floor(&g.kind, scales) * rate_k;
+            if v < -tol {
+                return false;
+            }
+            if v <= tol {
+                still |= 1 << gi;
+            }
+        }
+        undecided = still;
+    }
+    true
 }
 
 /// The guards violated at z (indices into `mode.guards`, increasing): a
@@ -1056,6 +1105,7 @@ mod tests {
 
     use super::super::lcp::{CrossCheck, CROSS};
     use super::super::{RunResult, Simulator};
+    use super::{guards_hold_at_zero, violated_guards, DVector};
     use crate::options::Options;
 
     /// A synchronous buck with dead time and body diodes (24 V → 12 V,
@@ -1121,6 +1171,41 @@ mod tests {
             };
             assert_eq!(bits(&a), bits(&b), "ramps {ramps}");
         }
+    }
+
+    /// `guards_hold_at_zero` (bits and a stack buffer) decides as
+    /// `violated_guards(…, false).is_empty()` does, on states of the buck
+    /// with transition models moved onto each guard's zero, in every mode
+    /// the run built.
+    #[test]
+    fn guards_at_zero_decide_as_the_general_function() {
+        let c = buck(true);
+        let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
+        let (mut checked, mut held) = (0, 0);
+        for k in 1..400 {
+            sim.advance_to(k as f64 * 37.3e-9).expect("runs");
+            let scales = sim.seen;
+            for mode in &sim.modes {
+                for g in &mode.guards {
+                    // z minus its component along the guard's row: the
+                    // guard is zero there to rounding.
+                    let row = DVector::from_column_slice(&g.row);
+                    let (gz, gg) = (row.dot(&sim.z), row.dot(&row));
+                    if gg == 0.0 {
+                        continue;
+                    }
+                    let z = &sim.z - row * (gz / gg);
+                    let want = violated_guards(mode, &z, scales, false).is_empty();
+                    assert_eq!(guards_hold_at_zero(mode, &z, scales), want);
+                    checked += 1;
+                    held += usize::from(want);
+                }
+            }
+        }
+        assert!(
+            checked > 1000 && held > 0 && held < checked,
+            "{checked} {held}"
+        );
     }
 
     /// Once the buck has settled, every instant replays a remembered
