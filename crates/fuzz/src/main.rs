@@ -175,6 +175,19 @@ struct Counts {
     timeouts: u64,
 }
 
+/// Executions between two progress lines of a long run (on stderr, so
+/// that a run stopped early still shows what it did).
+const PROGRESS_EVERY: u64 = 100_000;
+
+impl Counts {
+    fn progress(&self, secs: f64) {
+        eprintln!(
+            "progress: {} executions in {:.0} s; {} panics, {} crashes, {} over the time limit",
+            self.executions, secs, self.panics, self.crashes, self.timeouts
+        );
+    }
+}
+
 fn save(c: &Config, corpus: &[String], n: u64, what: &str) -> PathBuf {
     let _ = std::fs::create_dir_all(&c.save);
     let path = c.save.join(format!("{what}-seed{}-case{n}.json", c.seed));
@@ -219,6 +232,7 @@ fn parent(c: &Config) -> ExitCode {
     let case_limit = Duration::from_secs_f64(c.case_seconds);
     let mut counts = Counts::default();
     let mut next = 0u64;
+    let mut next_progress = PROGRESS_EVERY;
     const BATCH: u64 = 100_000;
     'outer: while next < total && budget.is_none_or(|b| start.elapsed() < b) {
         let to = (next + BATCH).min(total);
@@ -263,6 +277,10 @@ fn parent(c: &Config) -> ExitCode {
                             next = n + 1;
                         }
                         _ => {}
+                    }
+                    if counts.executions >= next_progress {
+                        counts.progress(start.elapsed().as_secs_f64());
+                        next_progress += PROGRESS_EVERY;
                     }
                     if next >= to {
                         let _ = child.wait();

@@ -320,6 +320,47 @@ impl Checker<'_> {
     }
 
     /// Reports a value that is not finite and positive; true if it is.
+    /// Reports a frequency that is not positive, or so small that its
+    /// period 1/f is not a finite number of seconds (below about 5.6e-309
+    /// Hz: a schedule of k·T would be ∞ or NaN); true if it is fine.
+    fn frequency(&mut self, element: &str, field: &str, f: f64) -> bool {
+        if !self.positive(element, field, f) {
+            return false;
+        }
+        if !(1.0 / f).is_finite() {
+            self.field(
+                element,
+                field,
+                format!(
+                    "must exceed about {} Hz (its period 1/f must be a finite number of seconds), got {}",
+                    num(1.0 / f64::MAX),
+                    num(f)
+                ),
+            );
+            return false;
+        }
+        true
+    }
+
+    /// Reports a positive value whose reciprocal is not finite (below
+    /// about 5.6e-309): the inverse inductance matrix of coupled windings
+    /// would not exist in f64. True if it is fine.
+    fn invertible(&mut self, element: &str, field: &str, v: f64) -> bool {
+        if (1.0 / v).is_finite() {
+            return true;
+        }
+        self.field(
+            element,
+            field,
+            format!(
+                "must exceed about {} (its reciprocal must be a finite number), got {}",
+                num(1.0 / f64::MAX),
+                num(v)
+            ),
+        );
+        false
+    }
+
     fn positive(&mut self, element: &str, field: &str, v: f64) -> bool {
         if !self.finite(element, field, v) {
             return false;
@@ -572,7 +613,9 @@ impl Checker<'_> {
             ok = false;
         }
         for (k, w) in x.windings.iter().enumerate() {
-            ok &= self.positive(l, &format!("windings[{k}].inductance"), w.inductance);
+            let field = format!("windings[{k}].inductance");
+            ok &=
+                self.positive(l, &field, w.inductance) && self.invertible(l, &field, w.inductance);
             self.optional_finite(
                 l,
                 &format!("windings[{k}].initial_current"),
@@ -704,7 +747,7 @@ impl Checker<'_> {
             } => {
                 self.finite(l, "waveform.offset", *offset);
                 self.finite(l, "waveform.amplitude", *amplitude);
-                self.positive(l, "waveform.frequency", *frequency);
+                self.frequency(l, "waveform.frequency", *frequency);
                 self.finite(l, "waveform.phase", *phase);
             }
         }
@@ -851,7 +894,7 @@ impl Checker<'_> {
                 max_duty,
                 ..
             } => {
-                self.positive(l, "frequency", *frequency);
+                self.frequency(l, "frequency", *frequency);
                 self.finite(l, "reference", *reference);
                 self.non_negative(l, "slope", *slope);
                 if self.finite(l, "max_duty", *max_duty) && !(*max_duty > 0.0 && *max_duty <= 1.0) {
@@ -868,7 +911,7 @@ impl Checker<'_> {
                 slope,
                 ..
             } => {
-                self.positive(l, "frequency", *frequency);
+                self.frequency(l, "frequency", *frequency);
                 self.finite(l, "reference", *reference);
                 self.non_negative(l, "slope", *slope);
             }
@@ -891,7 +934,7 @@ impl Checker<'_> {
                 max_duty,
                 ..
             } => {
-                self.positive(l, "frequency", *frequency);
+                self.frequency(l, "frequency", *frequency);
                 // Both are checked for finiteness (`&&` would skip the
                 // second when the first fails), then compared.
                 let ok = [
@@ -1073,7 +1116,7 @@ impl Checker<'_> {
     /// Checks frequency, duty and delay of a PWM; returns (period, duty)
     /// when both are usable for further checks.
     fn pwm_timing(&mut self, l: &str, frequency: f64, duty: f64, delay: f64) -> Option<(f64, f64)> {
-        let f_ok = self.positive(l, "frequency", frequency);
+        let f_ok = self.frequency(l, "frequency", frequency);
         let mut d_ok = self.finite(l, "duty", duty);
         if d_ok && !(0.0..=1.0).contains(&duty) {
             self.field(

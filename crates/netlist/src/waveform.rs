@@ -152,7 +152,9 @@ impl Waveform {
                     return None;
                 }
                 match period {
-                    Some(p) if *p > 0.0 => {
+                    // An infinite period (validation refuses one) repeats
+                    // nothing: k·p would be NaN.
+                    Some(p) if *p > 0.0 && p.is_finite() => {
                         let k = (t / p).floor();
                         // Rounding of t/p may land one period off either
                         // way; k·p (the form every schedule uses for the
@@ -202,7 +204,9 @@ impl Waveform {
 fn pwl_piece(points: &[Point], t: f64) -> LinearPiece {
     let first = points[0];
     let last = points[points.len() - 1];
-    if t < first.time {
+    // A NaN instant goes here too rather than to an index below the
+    // first corner.
+    if t < first.time || t.is_nan() {
         return LinearPiece {
             start: f64::NEG_INFINITY,
             end: first.time,

@@ -1235,6 +1235,78 @@ fn closed_loop_frequency_must_be_positive() {
     expect(&c, Some("drive"), Some("frequency"), "finite");
 }
 
+/// Issue 19 (a fuzz case): a winding of 5e-324 H passes the Cholesky
+/// test of the inductance matrix, but its inverse, which the solver needs,
+/// overflows (a panic compiling the circuit). The winding is refused by
+/// name.
+#[test]
+fn issue_19_a_winding_without_a_finite_inverse_is_refused() {
+    let c = flyback_with(coupled(
+        vec![
+            winding("pri", "in", "sw", 5e-324),
+            winding("sec", "gnd", "sec", 12.5e-6),
+        ],
+        vec![by_k("pri", "sec", 0.99)],
+    ))
+    .build_unchecked();
+    expect(
+        &c,
+        Some("T1"),
+        Some("windings[0].inductance"),
+        "reciprocal must be a finite number",
+    );
+}
+
+/// Issue 19 (a fuzz case): a clock of 5e-324 Hz has the period 1/f = ∞,
+/// whose schedule k·T is NaN (a panic indexing the compensation ramp's
+/// corners). Every frequency field refuses a period that is not finite.
+#[test]
+fn issue_19_a_frequency_whose_period_is_infinite_is_refused() {
+    let f = 5e-324;
+    let text = "period 1/f must be a finite number of seconds";
+    expect(
+        &buck_gate(peak(f, 0.25e6, 0.9)),
+        Some("drive"),
+        Some("frequency"),
+        text,
+    );
+    expect(
+        &buck_gate(valley(f, 0.0)),
+        Some("drive"),
+        Some("frequency"),
+        text,
+    );
+    let c = voltage_mode_buck(
+        voltage_mode(f, (0.0, 1.0), (0.0, 1.0)),
+        vec![compensator("K", "out", pi())],
+    );
+    expect(&c, Some("drive"), Some("frequency"), text);
+    expect(
+        &buck_gate(pwm_gate_at(f)),
+        Some("drive"),
+        Some("frequency"),
+        text,
+    );
+    let c = buck()
+        .voltage_waveform("V2", "x", "gnd", Waveform::sine(0.0, 1.0, f, 0.0))
+        .resistor("R2", "x", "gnd", 1.0)
+        .build_unchecked();
+    expect(&c, Some("V2"), Some("waveform.frequency"), text);
+    // A tiny frequency with a finite period passes.
+    valid(&buck_gate(peak(1e-300, 0.25e6, 0.9)));
+}
+
+fn pwm_gate_at(frequency: f64) -> Gate {
+    Gate::Pwm {
+        name: "drive".into(),
+        frequency,
+        duty: 0.5,
+        delay: 0.0,
+        start: None,
+        stop: None,
+    }
+}
+
 #[test]
 fn max_duty_outside_zero_to_one() {
     for max in [0.0, -0.5, 1.2] {

@@ -143,6 +143,7 @@ pub fn analysis_error(py: Python<'_>, e: AnalysisError) -> PyErr {
         AnalysisError::InvalidOption { .. } => "invalid_option",
         AnalysisError::NotConverged { .. } => "not_converged",
         AnalysisError::Undetermined { .. } => "undetermined",
+        AnalysisError::Multipliers { .. } => "multipliers",
         AnalysisError::Timing { .. } => "timing",
         AnalysisError::UnknownLoad { .. } => "unknown_load",
         AnalysisError::LossModel { .. } => "loss_model",

@@ -464,10 +464,28 @@ impl Compiled {
                     let lm = k.inductance_matrix();
                     let n = lm.len();
                     let l = DMatrix::from_fn(n, n, |i, j| lm[i][j]);
+                    // Where the general inverse fails (its determinant
+                    // underflows for tiny inductances: two windings of
+                    // 1e-200 H give det ≈ 1e-402 → 0), by Cholesky:
+                    // validation proved L positive definite, and the
+                    // factor keeps the scales apart. Ordinary windings
+                    // keep the general inverse and its bits.
+                    let finite = |m: &DMatrix<f64>| m.iter().all(|v| v.is_finite());
                     let l_inv = l
                         .clone()
                         .try_inverse()
-                        .expect("validated positive definite");
+                        .filter(finite)
+                        .or_else(|| l.clone().cholesky().map(|ch| ch.inverse()))
+                        .filter(finite)
+                        .ok_or_else(|| SolverError::Unsupported {
+                            time: 0.0,
+                            pattern: "every pattern".into(),
+                            reason: format!(
+                                "the inductance matrix of {} has no finite inverse in 64-bit \
+                                 arithmetic: check the windings' inductances",
+                                k.name
+                            ),
+                        })?;
                     let mut states = vec![];
                     for w in &k.windings {
                         c.branches.push(Branch {

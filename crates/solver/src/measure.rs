@@ -23,7 +23,7 @@ use serde::{Deserialize, Serialize};
 
 use crate::propagate;
 use crate::waveform::{OutputId, Waveform};
-use crate::waveform_ext::Piece;
+use crate::waveform_ext::{within_piece_cap, Piece, MAX_PIECES};
 
 /// Samples of the derivative per sub-interval when bracketing stationary
 /// points. A sub-interval spans at most half a radian of the fastest
@@ -112,6 +112,27 @@ pub enum MeasureError {
         subject: String,
         /// Where the value was found (s).
         time: f64,
+    },
+    /// The output changes too fast inside one recorded segment to be
+    /// measured there: its exact local form needs more than about a
+    /// million polynomial pieces (2²⁰; an oscillation hundreds of
+    /// thousands of radians long between two events, such as a 1 THz
+    /// source over 0.1 ms, 6e8 radians). Shorten the window, or check the element
+    /// values that make the circuit that fast.
+    #[error(
+        "{subject} changes too fast to measure in the segment from t = {time:e} s: \
+         {pieces:.3e} polynomial pieces needed, more than the limit of {limit}; \
+         shorten the window or check the element values that make the circuit that fast"
+    )]
+    TooFast {
+        /// Output or element name.
+        subject: String,
+        /// Start of the segment's stretch inside the window (s).
+        time: f64,
+        /// Pieces the stretch needs (may be ∞).
+        pieces: f64,
+        /// The limit (2²⁰).
+        limit: usize,
     },
     /// The output id belongs to another waveform.
     #[error("output id {index} does not belong to this waveform")]
@@ -519,6 +540,14 @@ fn parts_energy(
             }
         }
     }
+    for (k, (a, b)) in window_segments(waveform, t0, t1) {
+        let need = waveform
+            .pieces_needed(k, a - waveform.segments()[k].t0, b - a)
+            .0;
+        if !within_piece_cap(need) {
+            return Err(too_fast(waveform, element, k, (a, b)));
+        }
+    }
     // `integrate` counts a stretch where either output is undetermined as
     // zero, which the check above has shown to be exact.
     let energy: f64 = parts
@@ -598,6 +627,19 @@ fn window_segments(
         })
 }
 
+/// [`MeasureError::TooFast`] for the stretch `(a, b)` of segment `k`.
+#[cold]
+fn too_fast(waveform: &Waveform, subject: &str, k: usize, (a, b): (f64, f64)) -> MeasureError {
+    MeasureError::TooFast {
+        subject: subject.into(),
+        time: a,
+        pieces: waveform
+            .pieces_needed(k, a - waveform.segments()[k].t0, b - a)
+            .0,
+        limit: MAX_PIECES,
+    }
+}
+
 struct Extremes {
     min: f64,
     max: f64,
@@ -642,11 +684,14 @@ fn extremes(
                 time: a,
             });
         }
-        waveform.output_pieces(k, id, a, b, |piece| {
+        let complete = waveform.output_pieces(k, id, a, b, |piece| {
             if bad.is_none() {
                 bad = scan_piece(piece, &mut ext);
             }
         });
+        if !complete {
+            return Err(too_fast(waveform, name, k, (a, b)));
+        }
         if let Some(time) = bad {
             return Err(MeasureError::NonFinite {
                 subject: name.into(),

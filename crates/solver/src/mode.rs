@@ -682,7 +682,7 @@ impl Mode {
         // directions of S are free gauges like those of groups reached by
         // nothing, provided they move no state (checked).
         let mut null_dirs = DMatrix::<f64>::zeros(n_lam, 0);
-        let (lam, p) = if n_lam > 0 {
+        let (lam, p, made_of) = if n_lam > 0 {
             let s = &hz * &dl;
             let svd = s.clone().svd(true, true);
             let (u, vt) = (
@@ -732,9 +732,17 @@ impl Mode {
             }
             let lam = -&s_pinv * (&hz * &dz);
             let p = DMatrix::identity(nz, nz) - &dl * &s_pinv * &hz;
-            (lam, p)
+            // What each entry of D_λ·λ is made of, in magnitude: the
+            // scale of the rounding left where M cancels (see below, where
+            // M is formed).
+            let made_of = dl.abs() * (s_pinv.abs() * (hz.abs() * dz.abs()));
+            (lam, p, made_of)
         } else {
-            (DMatrix::zeros(0, nz), DMatrix::identity(nz, nz))
+            (
+                DMatrix::zeros(0, nz),
+                DMatrix::identity(nz, nz),
+                DMatrix::zeros(nz, nz),
+            )
         };
         let yz = y.columns(0, nz).into_owned() + y.columns(nz, n_lam) * &lam;
         let n_null = null_dirs.ncols();
@@ -747,6 +755,23 @@ impl Mode {
                 .copy_from(&(y.columns(nz, n_lam) * &null_dirs));
         }
         let mut m = &dz + &dl * &lam;
+        // The multipliers cancel the dynamics a cut or loop forbids (a cut
+        // inductor's v/L) exactly in theory, but only to rounding of the
+        // terms in f64: 1/L·ε for an inductance L. With L = 1e-300 H that
+        // residue (1e284 /s) coupled to a capacitor is a fake oscillation
+        // of 1e144 rad/s, and the run refused an ordinary dead time. An
+        // entry within a few rounding errors of the terms it was summed
+        // from is zero (the usual error bound of a sum and a product,
+        // n·ε·Σ|terms|: N. J. Higham, *Accuracy and Stability of Numerical
+        // Algorithms*, 2nd ed., 2002, §3.1; from memory).
+        if n_lam > 0 {
+            let floor = CANCELLATION_ULPS * f64::EPSILON;
+            for (v, (a, b)) in m.iter_mut().zip(dz.iter().zip(made_of.iter())) {
+                if v.abs() <= floor * (a.abs() + b) {
+                    *v = 0.0;
+                }
+            }
+        }
 
         // 7. Outputs.
         let n_out = cc.outputs.len();
@@ -1108,6 +1133,47 @@ fn pow2_near(x: f64) -> f64 {
         1.0
     } else {
         2f64.powi(e as i32)
+    }
+}
+
+/// Rounding errors (in units of ε) within which an entry of a mode's M
+/// formed by a multiplier's cancellation counts as zero: the sums and
+/// products that form it have a few dozen terms at most in the circuits
+/// fluxstep handles, and a genuine entry that small next to the terms
+/// it cancels would be below what the run could resolve anyway.
+const CANCELLATION_ULPS: f64 = 64.0;
+
+/// Fastest dynamics a conduction pattern may have, 1e150 /s (the rate
+/// bound [`Mode::rate`]). The eigenvalue iteration and the matrix
+/// exponential multiply entries of M with each other; below this bound
+/// such a product stays within f64 (1.8e308), above it they overflow and
+/// the run would hang or answer garbage. Only values far outside any
+/// hardware get there (an inductance or capacitance of 1e-150 or less
+/// next to ordinary resistances: a time constant shorter than 1e-150 s,
+/// which 64-bit time cannot place anywhere in a run).
+pub(crate) const MAX_RATE: f64 = 1e150;
+
+impl Mode {
+    /// Why the run cannot use this pattern because its dynamics are faster
+    /// than [`MAX_RATE`], naming the state with the smallest energy scale
+    /// (√L or √C, the smallest inductance or capacitance that takes part),
+    /// whose value makes it so; `None` within the bound.
+    pub(crate) fn too_fast(&self, cc: &Compiled) -> Option<String> {
+        // A NaN rate is left to the run's own checks of non-finite values.
+        if self.rate <= MAX_RATE || self.rate.is_nan() {
+            return None;
+        }
+        let who = (0..cc.n_x.min(cc.x_scale.len()).min(self.m.nrows()))
+            .filter(|&i| self.m.row(i).iter().any(|v| *v != 0.0))
+            .min_by(|&a, &b| cc.x_scale[a].total_cmp(&cc.x_scale[b]))
+            .and_then(|i| cc.state_names.get(i).cloned())
+            .unwrap_or_else(|| "a state".into());
+        Some(format!(
+            "its dynamics are faster than {MAX_RATE:e} /s (rate bound {:.3e} /s), beyond what \
+             64-bit arithmetic can follow; the fastest state is {who}: check its value and the \
+             resistances around it",
+            self.rate
+        ))
     }
 }
 

@@ -119,6 +119,49 @@ impl Spectrum {
         d
     }
 
+    /// How many sub-intervals [`Spectrum::step_at`] cuts `[from, from +
+    /// width]` into (τ measured from the span's start), counted stretch by
+    /// stretch between the instants where an eigenvalue dies, without
+    /// walking them: within one per stretch of what the walk makes.
+    /// `∞` when the count is beyond what a walk could finish.
+    pub(crate) fn pieces(&self, from: f64, width: f64) -> f64 {
+        let end = from + width;
+        let mut tau = from;
+        let mut count = 0.0;
+        // Deaths in increasing τ: `eig` is sorted by decreasing decay.
+        let deaths = self
+            .eig
+            .iter()
+            .filter(|e| e.0 > 0.0)
+            .map(|e| DEAD / e.0)
+            .chain(std::iter::once(f64::INFINITY));
+        for death in deaths {
+            if death <= tau {
+                continue;
+            }
+            let stop = death.min(end);
+            // The step is the same all through the stretch; read it inside
+            // (at `tau` itself rounding may still count the eigenvalue
+            // that just died as alive).
+            let inside = if stop.is_finite() {
+                tau + 0.5 * (stop - tau)
+            } else {
+                f64::INFINITY
+            };
+            let d = self.step_at(inside);
+            count += ((stop - tau) / d).ceil().max(1.0);
+            tau = stop;
+            if tau >= end {
+                break;
+            }
+        }
+        if count.is_finite() {
+            count
+        } else {
+            f64::INFINITY
+        }
+    }
+
     /// The fastest oscillation that stays alive over a span of length `h`
     /// ending at `t_end` and whose phase f64 cannot follow there (error
     /// ε·|Im λ|·max(h, t_end) above [`PHASE_LIMIT`]): its |Im λ|.
@@ -791,6 +834,40 @@ mod tests {
         // The step grows by powers of two from 1/(2·1e15) to ≤ 1/2 s.
         let d = sp.step_at(1e-13);
         assert!(d <= 0.5 && d > 0.25, "{d}");
+    }
+
+    /// `Spectrum::pieces` counts the walk of `step_at` over a span without
+    /// walking it: within one per stretch between two deaths of the walk's
+    /// count (three eigenvalues here: 1e15, 1e9 and 1 /s), from the span's
+    /// start and from inside it.
+    #[test]
+    fn piece_count_matches_the_walk() {
+        let m = DMatrix::from_row_slice(3, 3, &[-1e15, 0.0, 0.0, 0.0, -1e9, 0.0, 0.0, 0.0, -1.0]);
+        let sp = Spectrum::of(&m).expect("trusted");
+        for (from, width) in [
+            (0.0, 1e-3),
+            (0.0, 10.0),
+            (3e-14, 1e-6),
+            (1e-7, 2.0),
+            (0.0, 5e-14),
+        ] {
+            let mut tau = from;
+            let mut walked = 0.0;
+            while tau < from + width {
+                tau += sp.step_at(tau).min(from + width - tau);
+                walked += 1.0;
+            }
+            let counted = sp.pieces(from, width);
+            assert!(
+                (counted - walked).abs() <= 3.0,
+                "[{from:e}, +{width:e}]: counted {counted}, walked {walked}"
+            );
+        }
+        // An oscillation that never dies: ∞ pieces over an endless span.
+        let m = DMatrix::from_row_slice(2, 2, &[0.0, -1e12, 1e12, 0.0]);
+        let sp = Spectrum::of(&m).expect("trusted");
+        assert_eq!(sp.pieces(0.0, f64::INFINITY), f64::INFINITY);
+        assert!((sp.pieces(0.0, 1e-3) - 2e9).abs() <= 1.0);
     }
 
     /// The even/odd evaluation agrees with one Horner chain within the

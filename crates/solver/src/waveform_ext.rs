@@ -54,11 +54,40 @@ impl Waveform {
             && m.c.row(id.0).iter().all(|&v| v == 0.0)
     }
 
+    /// How many polynomial pieces [`Waveform::output_pieces`] (and the
+    /// quadrature of [`Waveform::integrate`]) cut `width` seconds of
+    /// segment `i`, from `offset` after its start, into; with the mode's
+    /// spectrum where the stretch is stiff. `∞` when the count is beyond
+    /// reach.
+    pub(crate) fn pieces_needed(
+        &self,
+        i: usize,
+        offset: f64,
+        width: f64,
+    ) -> (f64, Option<propagate::Spectrum>) {
+        let m = &self.modes[self.segments[i].mode as usize];
+        if width <= 0.0 {
+            return (0.0, None);
+        }
+        let n = propagate::substeps(m.rate, width);
+        if n <= propagate::STIFF_SUBSTEPS {
+            return (n as f64, None);
+        }
+        match propagate::Spectrum::of(&m.m) {
+            Some(sp) => (sp.pieces(offset, width), Some(sp)),
+            // Taylor sub-steps by the rate bound, uncapped.
+            None => ((m.rate * width / propagate::TAYLOR_REACH).ceil(), None),
+        }
+    }
+
     /// Calls `f` with the polynomial pieces of output `id` over
     /// `[a, b] ⊆ [t0, t1]` of segment `i`. The sub-interval length follows
     /// the mode's rate bound (ρ·δ ≤ 1/2), the same split as
     /// [`Waveform::integrate`], so each polynomial converges fast and is
     /// well conditioned on [0, 1].
+    ///
+    /// Returns `false`, having called `f` for no piece, when the split
+    /// needs more than [`MAX_PIECES`] pieces (see there).
     pub(crate) fn output_pieces(
         &self,
         i: usize,
@@ -66,19 +95,22 @@ impl Waveform {
         a: f64,
         b: f64,
         mut f: impl FnMut(&Piece<'_>),
-    ) {
+    ) -> bool {
         let s = &self.segments[i];
         let m = &self.modes[s.mode as usize];
         if b <= a || id.0 >= m.c.nrows() {
-            return;
+            return true;
+        }
+        let (need, spectrum) = self.pieces_needed(i, a - s.t0, b - a);
+        if !within_piece_cap(need) {
+            return false;
+        }
+        if let Some(sp) = spectrum {
+            self.stiff_pieces(i, id, a, b, &sp, f);
+            return true;
         }
         let row = m.c.row(id.0);
         let n = propagate::substeps(m.rate, b - a);
-        if n > propagate::STIFF_SUBSTEPS {
-            if let Some(sp) = propagate::Spectrum::of(&m.m) {
-                return self.stiff_pieces(i, id, a, b, &sp, f);
-            }
-        }
         let delta = (b - a) / n as f64;
         let mut z = propagate::advance(&m.m, m.rate, &self.z0(i), a - s.t0);
         let mut terms = propagate::TaylorTerms::default();
@@ -107,6 +139,7 @@ impl Waveform {
                 z = propagate::taylor(&m.m, &z, delta);
             }
         }
+        true
     }
 
     /// [`Waveform::output_pieces`] over a stiff span of segment `i`: pieces
@@ -119,6 +152,13 @@ impl Waveform {
     /// remainder bounds the best approximation, and Chebyshev points
     /// come within a small factor of it: L. N. Trefethen, *Approximation
     /// Theory and Approximation Practice*, 2013, ch. 8 and 16; from memory).
+    ///
+    /// The walk counts time from `a` (τ), not on the absolute clock: the
+    /// first pieces after an event can be far shorter than the spacing of
+    /// f64 times there (a 1e-300 F capacitor behind 60 Ω decays in
+    /// 1e-298 s at t = 5 ms, where one ulp is 9e-19 s), and an absolute
+    /// `t += δ` would never move. Such pieces all start at the same
+    /// absolute instant, which is what the record can resolve.
     fn stiff_pieces(
         &self,
         i: usize,
@@ -136,13 +176,17 @@ impl Waveform {
             .map(|j| 0.5 * (1.0 - (std::f64::consts::PI * (j as f64 + 0.5) / N as f64).cos()))
             .collect();
         let vander = DMatrix::from_fn(N, N, |j, k| nodes[j].powi(k as i32)).lu();
-        let mut z = propagate::advance(&m.m, m.rate, &self.z0(i), a - s.t0);
+        let offset = a - s.t0;
+        let width = b - a;
+        let mut z = propagate::advance(&m.m, m.rate, &self.z0(i), offset);
         // Per piece length: e^{Mδσⱼ} at the nodes, then e^{Mδ}.
         let mut cache: Vec<(u64, Vec<DMatrix<f64>>)> = vec![];
-        let mut t = a;
-        while t < b {
-            let d = sp.step_at(t - s.t0).min(b - t);
-            let last = t + d >= b;
+        let mut tau = 0.0;
+        // The caller checked the count (`pieces_needed`); the bound only
+        // guarantees the end where τ + δ rounds to τ.
+        for _ in 0..=MAX_PIECES {
+            let d = sp.step_at(offset + tau).min(width - tau);
+            let last = tau + d >= width || tau + d <= tau;
             let k = match cache.iter().position(|(bits, _)| *bits == d.to_bits()) {
                 Some(k) => k,
                 None => {
@@ -169,8 +213,8 @@ impl Waveform {
                 return;
             };
             f(&Piece {
-                t_start: t,
-                t_end: if last { b } else { t + d },
+                t_start: a + tau,
+                t_end: if last { b } else { a + (tau + d) },
                 delta: d,
                 coef: c.as_slice(),
             });
@@ -178,7 +222,22 @@ impl Waveform {
                 break;
             }
             z = &exps[N] * &z;
-            t += d;
+            tau += d;
         }
     }
+}
+
+/// Most polynomial pieces one segment's stretch may need before a
+/// measurement refuses it (`MeasureError::TooFast`): 2²⁰ ≈ 10⁶, the cap
+/// of the Taylor sub-steps over one span (`propagate::substeps`). A
+/// segment needs that many only where the output swings through about
+/// 5·10⁵ radians inside it (an oscillation far faster than the record
+/// between two events, e.g. a 1 THz source over more than 80 ns) — seconds
+/// of work; beyond, the walk would take minutes to hours.
+pub(crate) const MAX_PIECES: usize = 1 << 20;
+
+/// Whether a stretch needing `need` pieces is within [`MAX_PIECES`] (a
+/// NaN count is not).
+pub(crate) fn within_piece_cap(need: f64) -> bool {
+    need <= MAX_PIECES as f64
 }

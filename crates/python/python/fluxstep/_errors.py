@@ -72,7 +72,7 @@ class AnalysisError(FluxstepError):
 
     ``kind`` says how (``"not_converged"``, ``"unstable"``, ``"no_period"``,
     ``"incommensurate"``, ``"invalid_option"``, ``"unknown_input"``,
-    ``"undetermined"``, ``"timing"``, ``"unknown_load"``, ``"loss_model"``); for ``"not_converged"`` ``history`` lists the
+    ``"undetermined"``, ``"multipliers"``, ``"timing"``, ``"unknown_load"``, ``"loss_model"``); for ``"not_converged"`` ``history`` lists the
     Newton iterates (dicts with ``residual``, ``damping``, ``trials``,
     ``newton``).
     """

@@ -230,7 +230,18 @@ pub struct Simulator {
     /// Why `step` refused a stiff span (see `locate::check_resolvable`),
     /// reported by `check_finite` in place of the NaN it left.
     pub(super) refused: Option<SolverError>,
+    /// The last crossing located at the very instant the interval started
+    /// (τ = 0): time, pattern, fired guard bits (diodes, comparators) and
+    /// how many times in a row the same one came back (see
+    /// [`Simulator::check_progress`]).
+    stalled: (f64, ModeKey, u64, u64, u32),
 }
+
+/// Crossings at τ = 0 of the same guards in the same pattern, in a row,
+/// after which [`Simulator::check_progress`] stops the run. An ordinary
+/// instant sees one or two (a diode turns on, another's guard starts at
+/// zero); 64 leave room for a large diode network settling in steps.
+const STALL_REPEATS: u32 = 64;
 
 pub(crate) fn dot(a: impl IntoIterator<Item = f64>, b: &[f64]) -> f64 {
     a.into_iter().zip(b).map(|(x, y)| x * y).sum()
@@ -387,6 +398,17 @@ impl Simulator {
             phases: vec![transition::Phase::Idle; n_switches],
             ramp_next: f64::INFINITY,
             refused: None,
+            stalled: (
+                f64::NAN,
+                ModeKey {
+                    switches: 0,
+                    diodes: 0,
+                    ramps: 0,
+                },
+                0,
+                0,
+                0,
+            ),
         };
         sim.cmp_ticks = (0..n_cmp).map(|ci| sim.make_ticks(ci)).collect();
         sim.current_states = sim
@@ -706,6 +728,7 @@ impl Simulator {
                 if tau < h {
                     // `locate` left the state at τ in `z_next`.
                     let t_e = self.t + tau;
+                    self.check_progress(t_e, fired, cmp_fired)?;
                     self.record_located(t_e, tau, fired, cmp_fired);
                     self.t = t_e;
                     self.tkey = None;
@@ -732,6 +755,66 @@ impl Simulator {
             }
         }
         Ok(())
+    }
+
+    /// Stops a run whose event location makes no progress: the same
+    /// guards cross at the same instant in the same pattern again and
+    /// again, because the pattern resolved there is the one the crossing
+    /// left (a diode grazing zero, e.g. a rectifier without load whose
+    /// capacitor holds the source's peak). Each such crossing is handled
+    /// without time moving or an event being logged, so neither the event
+    /// limit nor the chatter window would end the loop.
+    ///
+    /// A few repeats are allowed (a crossing at τ = 0 after a pattern
+    /// change is ordinary); [`STALL_REPEATS`] in a row are a stall.
+    ///
+    /// # Errors
+    ///
+    /// [`SolverError::Unsupported`] naming the instant, the pattern and
+    /// the diodes or gates whose guards stay at zero.
+    fn check_progress(&mut self, t_e: f64, fired: u64, cmp_fired: u64) -> Result<(), SolverError> {
+        if t_e != self.t {
+            self.stalled.4 = 0;
+            return Ok(());
+        }
+        let (t, key, f, c, n) = self.stalled;
+        if t == t_e && key == self.key && f == fired && c == cmp_fired {
+            self.stalled.4 = n + 1;
+        } else {
+            self.stalled = (t_e, self.key, fired, cmp_fired, 1);
+        }
+        if self.stalled.4 < STALL_REPEATS {
+            return Ok(());
+        }
+        Err(self.stall_error(fired, cmp_fired))
+    }
+
+    #[cold]
+    #[inline(never)]
+    fn stall_error(&self, fired: u64, cmp_fired: u64) -> SolverError {
+        let mut names: Vec<String> = (0..self.cc.diodes.len().min(64))
+            .filter(|&j| fired >> j & 1 == 1)
+            .map(|j| format!("diode {}", self.cc.diodes[j].name))
+            .collect();
+        names.extend(
+            (0..self.cc.comparators.len().min(64))
+                .filter(|&c| cmp_fired >> c & 1 == 1)
+                .map(|c| format!("gate {}", self.cc.signals[self.cc.comparators[c].signal].0)),
+        );
+        SolverError::Unsupported {
+            time: self.t,
+            pattern: pattern_text(&self.cc, self.key),
+            reason: format!(
+                "event location makes no progress: the guard of {} stays at zero at this \
+                 instant (a grazing contact) and the same pattern is resolved again \
+                 {STALL_REPEATS} times",
+                if names.is_empty() {
+                    "a guard".to_string()
+                } else {
+                    names.join(", ")
+                }
+            ),
+        }
     }
 
     /// Reserves room for the record up to `t_end`, as
@@ -806,6 +889,13 @@ impl Simulator {
             return Ok(i);
         }
         let m = Arc::new(Mode::build(&self.cc, key)?);
+        if let Some(reason) = m.too_fast(&self.cc) {
+            return Err(SolverError::Unsupported {
+                time: self.t,
+                pattern: pattern_text(&self.cc, key),
+                reason,
+            });
+        }
         let i = self.modes.len() as u32;
         self.modes.push(m.clone());
         self.wave.modes.push(m);

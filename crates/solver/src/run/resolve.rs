@@ -155,11 +155,9 @@ impl Simulator {
         }
         if self.pivoting {
             if let Some(found) = self.pivot(first, flips, initial, scales)? {
+                let found = self.settle(first, flips, found, initial, scales)?;
                 #[cfg(test)]
                 self.cross_check(first, flips, initial, scales, Some(found))?;
-                if !initial && self.replay {
-                    self.certify(first, flips, found, scales)?;
-                }
                 return self.commit_found(found, initial);
             }
             #[cfg(test)]
@@ -257,26 +255,34 @@ impl Simulator {
         Ok(Err(self.rejection_error(interruption, other, cause)))
     }
 
-    /// Makes a transition that pivoting found by a path a replay cannot
-    /// retrace (several problems repaired at once: two phases commutating
-    /// at one instant) replayable all the same, if the search by Hamming
-    /// distance would have remembered it: every candidate the search
-    /// tries before `found` is rejected for a structural reason or for
-    /// cutting an inductor current. Those candidates are judged once (at
-    /// most `CERTIFY_CANDIDATES` of them); the remembered transition then
-    /// carries the search's list, so that a replay re-checks what the
-    /// search would. Nothing changes if `found` is remembered already, or
-    /// needs a jump; `z_try` holds `found`'s state again on return.
-    fn certify(
+    /// Settles what pivoting found on the search's own rule, and makes it
+    /// replayable. Where the LCP has several solutions (ideal diodes in
+    /// parallel paths at the same voltage) pivoting can end on one farther
+    /// from the first guess than the search's choice; and a transition it
+    /// found by repairing several problems at once (two phases
+    /// commutating at one instant) follows a path a replay cannot retrace.
+    /// Both are settled by walking the search's candidates in its order
+    /// (fewest changes from `first`, then value) up to `found`: the first
+    /// that holds is the search's answer, and if every candidate before
+    /// it was rejected for a structural reason or for cutting an inductor
+    /// current the transition is remembered with the search's list. At
+    /// most `SETTLE_CANDIDATES` candidates are judged (all within distance
+    /// two of the first guess up to 22 diodes); beyond, `found` stands.
+    /// Nothing is walked for a pattern within one change of the first
+    /// guess that is remembered already (pivoting's usual case). `z_try`
+    /// holds the returned pattern's state.
+    fn settle(
         &mut self,
         first: u64,
         flips: u64,
         found: Found,
+        initial: bool,
         scales: (f64, f64),
-    ) -> Result<(), SolverError> {
-        if found.cut || found.charge {
-            return Ok(());
+    ) -> Result<Found, SolverError> {
+        if found.cut {
+            return Ok(found);
         }
+        let near = (found.diodes ^ first).count_ones() < 2;
         let known = self.memo.iter().any(|t| {
             t.from == self.mode
                 && t.switches == self.key.switches
@@ -284,30 +290,37 @@ impl Simulator {
                 && t.flips == flips
                 && t.to == found.mode
         });
-        if known {
-            return Ok(());
+        if near && (known || initial) {
+            return Ok(found);
         }
-        let mut cut_rejected = Some(Vec::new());
-        let mut reached = false;
-        for idx in 0..CERTIFY_CANDIDATES {
+        let mut cut_rejected = (!initial).then(Vec::new);
+        let mut settled = None;
+        for idx in 0..SETTLE_CANDIDATES {
             let Some(c) = self.candidate(first, idx) else {
                 break;
             };
             if c == found.diodes {
-                reached = true;
+                settled = Some(found);
                 break;
             }
             let (mi, verdict) = self.judge_pattern(c, scales)?;
             note_search_rejection(&mut cut_rejected, verdict, mi);
-            if cut_rejected.is_none() || matches!(verdict, Verdict::Holds { .. }) {
+            if let Verdict::Holds { cut, charge } = verdict {
+                settled = Some(Found {
+                    diodes: c,
+                    mode: mi,
+                    cut,
+                    charge,
+                });
                 break;
             }
         }
-        if reached {
-            self.remember(&cut_rejected, Verdict::held(found), flips, found.mode);
+        let result = settled.unwrap_or(found);
+        if settled.is_some() {
+            self.remember(&cut_rejected, Verdict::held(result), flips, result.mode);
         }
-        self.judge_pattern(found.diodes, scales)?;
-        Ok(())
+        self.judge_pattern(result.diodes, scales)?;
+        Ok(result)
     }
 
     /// Judges the candidate pattern `diodes` with the present switches,
@@ -807,7 +820,7 @@ pub(super) struct Found {
 const OTHER: u32 = 1 << 31;
 
 /// As [`note_rejection`], for the search by Hamming distance (and
-/// `certify`, which follows it): a candidate rejected by a guard or a
+/// `settle`, which follows it): a candidate rejected by a guard or a
 /// current source is kept too (marked [`OTHER`]), since a replay of the
 /// search judges it again. Pivoting keeps [`note_rejection`]: which pivot
 /// follows such a rejection depends on more than the verdict.
@@ -863,10 +876,10 @@ pub(super) fn note_rejection(cut_rejected: &mut Option<Vec<u32>>, verdict: Verdi
     }
 }
 
-/// How many candidates of the search [`Simulator::certify`] judges at
-/// most to make one transition replayable (every pattern within distance
-/// two of the first guess for up to 22 diodes).
-const CERTIFY_CANDIDATES: usize = 256;
+/// How many candidates of the search [`Simulator::settle`] judges at
+/// most (every pattern within distance two of the first guess for up to
+/// 22 diodes).
+const SETTLE_CANDIDATES: usize = 256;
 
 /// The patterns within Hamming distance two of `first` among `nd` diodes,
 /// ordered by distance, then by value (the order of the exhaustive list).

@@ -5,6 +5,7 @@ mod exact;
 mod issue_13;
 mod issue_19;
 mod issue_19_cuts;
+mod issue_19_fuzz;
 mod issue_19_memory;
 mod issue_19_stiff;
 mod issue_20;

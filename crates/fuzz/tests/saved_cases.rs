@@ -1,0 +1,55 @@
+//! Cases the harness saved (issue 19), replayed through `run_case`: each
+//! one panicked or ran for minutes before its fix, and each now ends with
+//! a refusal of the file or of the run. A regression panics here or never
+//! returns; nothing is timed.
+//!
+//! - `panic-infinite-clock-period.json`: a peak-current clock of 5e-324 Hz
+//!   (period ∞) indexed the compensation ramp at a NaN instant; now the
+//!   file is refused naming `frequency`.
+//! - `panic-winding-5e-324.json`: a flyback winding of 5e-324 H passed the
+//!   Cholesky test of its inductance matrix, whose general inverse then
+//!   failed while compiling; now the winding is refused by name.
+//! - `slow-inductance-1e-300.json`, `slow-capacitance-1e-300.json`,
+//!   `slow-capacitance-2e-308.json`: dynamics near 1e300 /s, whose
+//!   measurement walked pieces shorter than one ulp of time; now refused
+//!   when the pattern is entered (faster than 1e150 /s).
+//! - `slow-terahertz-source.json`: a 1 THz sine; the run refuses it, and
+//!   the measurement of what was recorded is refused above 2²⁰ pieces.
+//! - `slow-grazing-diode.json`: the rectifier without load; the same
+//!   crossing was located at the same instant forever, now the run stops
+//!   naming the diode.
+
+use fluxstep_fuzz::{run_case, Limits};
+
+fn case(name: &str) -> String {
+    std::fs::read_to_string(format!("{}/tests/cases/{name}", env!("CARGO_MANIFEST_DIR"))).unwrap()
+}
+
+#[test]
+fn issue_19_a_clock_with_an_infinite_period_is_refused_not_a_panic() {
+    let o = run_case(
+        &case("panic-infinite-clock-period.json"),
+        &Limits::default(),
+    );
+    assert!(!o.valid, "{o:?}");
+}
+
+#[test]
+fn issue_19_a_winding_without_a_finite_inverse_is_refused_not_a_panic() {
+    let o = run_case(&case("panic-winding-5e-324.json"), &Limits::default());
+    assert!(!o.valid, "{o:?}");
+}
+
+#[test]
+fn issue_19_saved_slow_cases_end_with_a_refusal() {
+    for name in [
+        "slow-inductance-1e-300.json",
+        "slow-capacitance-1e-300.json",
+        "slow-capacitance-2e-308.json",
+        "slow-terahertz-source.json",
+        "slow-grazing-diode.json",
+    ] {
+        let o = run_case(&case(name), &Limits::default());
+        assert!(o.valid && !o.ran, "{name}: {o:?}");
+    }
+}
