@@ -989,8 +989,7 @@ impl Simulator {
             propagate::matvec(phi, self.z.as_slice(), self.z_next.as_mut_slice());
             return;
         }
-        let m = self.modes[mi].clone();
-        let stiff = propagate::substeps(m.rate, h) > propagate::STIFF_SUBSTEPS;
+        let stiff = propagate::substeps(self.modes[mi].rate, h) > propagate::STIFF_SUBSTEPS;
         if stiff {
             // Out of the hot loop: only lengths without a cached
             // exponential get here. A refusal leaves NaN, which
@@ -1001,6 +1000,19 @@ impl Simulator {
                 return;
             }
         }
+        // The modes are borrowed out of `self` meanwhile: cloning the
+        // `Arc` cost two atomic operations at every step of a circuit
+        // with transition models (four lengths a period are not cached).
+        let modes = std::mem::take(&mut self.modes);
+        self.step_uncached(&modes[mi], h, cacheable, stiff);
+        self.modes = modes;
+    }
+
+    /// The rest of `step` where no span of the schedule is cached (the
+    /// modes are borrowed out of `self`).
+    fn step_uncached(&mut self, m: &Mode, h: f64, cacheable: bool, stiff: bool) {
+        let mi = self.mode as usize;
+        let bits = h.to_bits();
         if cacheable && self.caches[mi].discs.len() < 16 {
             self.stats.exponentials += 1;
             let phi = propagate::expm(&m.m, h);
@@ -1018,7 +1030,7 @@ impl Simulator {
             // back over a fast decay).
             self.stats.stiff_spans += 1;
             self.stats.exponentials += 1;
-        } else if self.advance_near(mi, &m, h) {
+        } else if self.advance_near(mi, m, h) {
             return;
         }
         propagate::advance_into(

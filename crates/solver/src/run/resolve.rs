@@ -60,8 +60,9 @@ pub(super) enum Verdict {
 
 /// A resolved transition, remembered for replay: from mode `from` with
 /// switch bits `switches` and guard flips `flips`, the search rejected the
-/// modes in `cut_rejected` for cutting an inductor current (every other
-/// candidate before `to` for a structural reason) and accepted `to`
+/// modes in `cut_rejected` for cutting an inductor current, those in
+/// `other_rejected` for a guard or an unbalanced current source (every
+/// other candidate before `to` for a structural reason) and accepted `to`
 /// without a jump.
 pub(super) struct Transition {
     from: u32,
@@ -69,6 +70,12 @@ pub(super) struct Transition {
     ramps: u64,
     flips: u64,
     cut_rejected: Vec<u32>,
+    /// Candidates rejected by a guard or a current source: a replay judges
+    /// them again whole (`still_rejected`). A synchronous buck whose
+    /// inductor current changes sign during start-up needs this: the
+    /// freewheeling diode of the other transistor comes first in the
+    /// search and is rejected by its guard once the current is positive.
+    other_rejected: Vec<u32>,
     /// The distinct inductor-cutset rows that cut the candidates in
     /// `cut_rejected` when the transition was remembered, as (mode, row of
     /// its constraints): candidates that turn off the same diode share one.
@@ -219,7 +226,7 @@ impl Simulator {
                 let verdict =
                     self.judge(&modes, mi, allow_cut, scales, &mut interruption, &mut other);
                 self.modes = modes;
-                note_rejection(&mut cut_rejected, verdict, mi);
+                note_search_rejection(&mut cut_rejected, verdict, mi);
                 if !allow_cut {
                     self.remember(&cut_rejected, verdict, flips, mi);
                 }
@@ -297,7 +304,7 @@ impl Simulator {
                 break;
             }
             let (mi, verdict) = self.judge_pattern(c, scales)?;
-            note_rejection(&mut cut_rejected, verdict, mi);
+            note_search_rejection(&mut cut_rejected, verdict, mi);
             if let Verdict::Holds { cut, charge } = verdict {
                 settled = Some(Found {
                     diodes: c,
@@ -359,13 +366,20 @@ impl Simulator {
         if self.modes[mi as usize].resistive_short.is_some() {
             return;
         }
-        let (cut_rows, cut_by) = self.cut_rows(list);
+        let cut_list: Vec<u32> = list.iter().copied().filter(|m| m & OTHER == 0).collect();
+        let other_rejected: Vec<u32> = list
+            .iter()
+            .filter(|&m| m & OTHER != 0)
+            .map(|m| m & !OTHER)
+            .collect();
+        let (cut_rows, cut_by) = self.cut_rows(&cut_list);
         let t = Transition {
             from: self.mode,
             switches: self.key.switches,
             ramps: self.key.ramps,
             flips,
-            cut_rejected: list.clone(),
+            cut_rejected: cut_list,
+            other_rejected,
             cut_rows,
             cut_by,
             to: mi,
@@ -474,6 +488,15 @@ impl Simulator {
         };
         if !still {
             return None;
+        }
+        // Candidates rejected by a guard or a source are judged again as
+        // `judge` does (`z_try` is only scratch until `to` is projected).
+        let stop_short = self.opts.on_shoot_through == OnShootThrough::Stop;
+        for &mi in &t.other_rejected {
+            let m = &self.modes[mi as usize];
+            if !still_rejected(m, &self.z, scales, stop_short, &mut self.z_try) {
+                return None;
+            }
         }
         let to = t.to;
         let mode = &self.modes[to as usize];
@@ -792,6 +815,55 @@ pub(super) struct Found {
 /// Keeps the list of cut rejections a remembered transition re-checks:
 /// a structural rejection cannot change, a cut is re-checked on replay,
 /// and any other state-dependent rejection forbids replay.
+/// Marks a mode in a list of rejected candidates as rejected by a guard
+/// or a current source rather than by a cut (mode numbers stay far below).
+const OTHER: u32 = 1 << 31;
+
+/// As [`note_rejection`], for the search by Hamming distance (and
+/// `settle`, which follows it): a candidate rejected by a guard or a
+/// current source is kept too (marked [`OTHER`]), since a replay of the
+/// search judges it again. Pivoting keeps [`note_rejection`]: which pivot
+/// follows such a rejection depends on more than the verdict.
+pub(super) fn note_search_rejection(
+    cut_rejected: &mut Option<Vec<u32>>,
+    verdict: Verdict,
+    mi: u32,
+) {
+    match verdict {
+        Verdict::Other if mi & OTHER == 0 => {
+            if let Some(list) = cut_rejected.as_mut() {
+                list.push(mi | OTHER);
+            }
+        }
+        _ => note_rejection(cut_rejected, verdict, mi),
+    }
+}
+
+/// Whether `judge` (first pass: no inductor current may be cut) still
+/// rejects `mode` at `z`, without its diagnostics; `scratch` receives the
+/// projected state. Keep the two in step.
+fn still_rejected(
+    mode: &Mode,
+    z: &DVector<f64>,
+    scales: (f64, f64),
+    stop_on_short: bool,
+    scratch: &mut DVector<f64>,
+) -> bool {
+    if mode.problem.is_some() || (mode.resistive_short.is_some() && stop_on_short) {
+        return true;
+    }
+    if violations(mode, z.as_slice(), scales, None).0 {
+        return true;
+    }
+    let z1 = if mode.constraints.is_empty() {
+        z
+    } else {
+        propagate::matvec(&mode.p, z.as_slice(), scratch.as_mut_slice());
+        &*scratch
+    };
+    unbalanced_source(mode, z1.as_slice()).is_some() || !guards_hold(mode, z1, scales)
+}
+
 pub(super) fn note_rejection(cut_rejected: &mut Option<Vec<u32>>, verdict: Verdict, mi: u32) {
     match verdict {
         Verdict::Structural | Verdict::Holds { .. } => {}
@@ -912,13 +984,62 @@ fn guards_hold(mode: &Mode, z: &DVector<f64>, scales: (f64, f64)) -> bool {
     !at_zero || guards_hold_at_zero(mode, z, scales)
 }
 
-/// The rest of [`guards_hold`] when some guard sits at zero. Rare, so
-/// allocating here is fine, and kept out of line so the usual value pass
-/// stays small.
-#[cold]
+/// The rest of [`guards_hold`] when some guard sits at zero, kept out of
+/// line so the usual value pass stays small: `violated_guards(…,
+/// false).is_empty()`, with the guards at zero as bits and the
+/// derivatives on the stack up to 64 guards and 16 entries of z. A
+/// circuit with transition models gets here at every located clamp and
+/// every ramp start (a diode at zero current), where the allocations of
+/// the general function cost more than its arithmetic. The same values
+/// and tolerances are compared; only the bookkeeping differs.
 #[inline(never)]
 fn guards_hold_at_zero(mode: &Mode, z: &DVector<f64>, scales: (f64, f64)) -> bool {
-    violated_guards(mode, z, scales, false).is_empty()
+    let zs = z.as_slice();
+    let n = zs.len();
+    if mode.guards.len() > 64 || n > 16 {
+        return violated_guards(mode, z, scales, false).is_empty();
+    }
+    let mut undecided = 0u64;
+    for (gi, g) in mode.guards.iter().enumerate() {
+        let (v, s) = dot_and_abs(&g.row, zs);
+        let tol = ZERO_REL * s + guard_floor(&g.kind, scales);
+        if v < -tol {
+            return false;
+        }
+        if v <= tol {
+            undecided |= 1 << gi;
+        }
+    }
+    let mut buf = [[0.0f64; 16]; 2];
+    let [a, b] = &mut buf;
+    let (mut d, mut next): (&mut [f64], &mut [f64]) = (&mut a[..n], &mut b[..n]);
+    d.copy_from_slice(zs);
+    let mut rate_k = 1.0;
+    for _ in 1..4 {
+        if undecided == 0 {
+            break;
+        }
+        propagate::matvec(&mode.m, d, next);
+        std::mem::swap(&mut d, &mut next);
+        rate_k *= mode.rate;
+        let mut still = 0u64;
+        let mut left = undecided;
+        while left != 0 {
+            let gi = left.trailing_zeros() as usize;
+            left &= left - 1;
+            let g = &mode.guards[gi];
+            let (v, s) = dot_and_abs(&g.row, d);
+            let tol = ZERO_REL * s + guard_floor(&g.kind, scales) * rate_k;
+            if v < -tol {
+                return false;
+            }
+            if v <= tol {
+                still |= 1 << gi;
+            }
+        }
+        undecided = still;
+    }
+    true
 }
 
 /// The guards violated at z (indices into `mode.guards`, increasing): a
@@ -989,4 +1110,132 @@ pub(super) fn violated_guards(
     }
     violated.sort_unstable();
     violated
+}
+
+#[cfg(test)]
+mod tests {
+    use fluxstep_netlist::{Circuit, DiodeModel, Element, SwitchTransition, TransitionRates};
+
+    use super::super::lcp::{CrossCheck, CROSS};
+    use super::super::{RunResult, Simulator};
+    use super::{guards_hold_at_zero, violated_guards, DVector};
+    use crate::options::Options;
+
+    /// A synchronous buck with dead time and body diodes (24 V → 12 V,
+    /// 200 kHz; demo values), started from rest: its inductor current is
+    /// negative for a while during start-up, so the transition at the
+    /// turn-off of the high side first takes the high side's body diode,
+    /// later the low side's. With `ramps`, transition models on both
+    /// transistors.
+    fn buck(ramps: bool) -> Circuit {
+        let body = DiodeModel {
+            forward_voltage: Some(0.7),
+            on_resistance: None,
+            recovered_charge: None,
+        };
+        let mut c = Circuit::builder()
+            .voltage_source("Vin", "in", "gnd", 24.0)
+            .transistor("Q1", "in", "sw", "hb.high", 0.01, body.clone())
+            .transistor("Q2", "sw", "gnd", "hb.low", 0.01, body)
+            .inductor("L1", "sw", "out", 22e-6)
+            .capacitor("C1", "out", "gnd", 47e-6)
+            .resistor("R", "out", "gnd", 6.0)
+            .complementary_pwm("hb", 200e3, 0.5, 50e-9, 80e-9)
+            .build()
+            .expect("valid");
+        if ramps {
+            for e in &mut c.elements {
+                if let Element::Switch(s) = e {
+                    s.transition = Some(SwitchTransition {
+                        turn_off: TransitionRates {
+                            voltage_rate: 24.0 / 10e-9,
+                            current_rate: 2.0 / 5e-9,
+                        },
+                        turn_on: TransitionRates {
+                            voltage_rate: 24.0 / 12e-9,
+                            current_rate: 2.0 / 6e-9,
+                        },
+                    });
+                }
+            }
+        }
+        c
+    }
+
+    fn run(c: &Circuit, stop: f64, replay: bool) -> RunResult {
+        let mut sim = Simulator::new(c, Options::default()).expect("compiles");
+        sim.replay = replay;
+        sim.advance_to(stop).expect("runs");
+        sim.finish()
+    }
+
+    /// Contract: a transition remembered with candidates rejected by a
+    /// guard replays to the same bits as the full resolution, through
+    /// the start-up (both signs of the inductor current) and after it.
+    #[test]
+    fn replay_with_guard_rejections_gives_the_same_bits() {
+        for ramps in [false, true] {
+            let c = buck(ramps);
+            let (a, b) = (run(&c, 2e-3, true), run(&c, 2e-3, false));
+            assert!(a.events.len() > 1000);
+            assert_eq!(a.events.to_json(), b.events.to_json(), "ramps {ramps}");
+            let bits = |r: &RunResult| -> Vec<u64> {
+                r.waveform.states.iter().map(|v| v.to_bits()).collect()
+            };
+            assert_eq!(bits(&a), bits(&b), "ramps {ramps}");
+        }
+    }
+
+    /// `guards_hold_at_zero` (bits and a stack buffer) decides as
+    /// `violated_guards(…, false).is_empty()` does, on states of the buck
+    /// with transition models moved onto each guard's zero, in every mode
+    /// the run built.
+    #[test]
+    fn guards_at_zero_decide_as_the_general_function() {
+        let c = buck(true);
+        let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
+        let (mut checked, mut held) = (0, 0);
+        for k in 1..400 {
+            sim.advance_to(k as f64 * 37.3e-9).expect("runs");
+            let scales = sim.seen;
+            for mode in &sim.modes {
+                for g in &mode.guards {
+                    // z minus its component along the guard's row: the
+                    // guard is zero there to rounding.
+                    let row = DVector::from_column_slice(&g.row);
+                    let (gz, gg) = (row.dot(&sim.z), row.dot(&row));
+                    if gg == 0.0 {
+                        continue;
+                    }
+                    let z = &sim.z - row * (gz / gg);
+                    let want = violated_guards(mode, &z, scales, false).is_empty();
+                    assert_eq!(guards_hold_at_zero(mode, &z, scales), want);
+                    checked += 1;
+                    held += usize::from(want);
+                }
+            }
+        }
+        assert!(
+            checked > 1000 && held > 0 && held < checked,
+            "{checked} {held}"
+        );
+    }
+
+    /// Once the buck has settled, every instant replays a remembered
+    /// transition: no resolution reaches pivoting (the cross-check
+    /// counts each one that does). Before candidates rejected by a guard
+    /// were remembered, the high side's turn-off pivoted every period.
+    #[test]
+    fn a_settled_buck_replays_every_instant() {
+        for ramps in [false, true] {
+            let c = buck(ramps);
+            let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
+            sim.advance_to(1e-3).expect("runs");
+            CROSS.with(|f| *f.borrow_mut() = Some(CrossCheck::default()));
+            sim.advance_to(1.1e-3).expect("runs");
+            let cross = CROSS.with(|f| f.borrow_mut().take()).expect("set above");
+            let pivoted = cross.agree + cross.fallback + cross.neither + cross.differ.len();
+            assert_eq!(pivoted, 0, "ramps {ramps}: {cross:?}");
+        }
+    }
 }
