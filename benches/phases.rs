@@ -14,7 +14,7 @@
 //! The bare loop is the floor the simulator approaches: per event one
 //! n×n matrix–vector product and a constant, the state copied into a
 //! growing record. The simulator's cost per event is the marginal one:
-//! a run of 2P periods minus a run of P, so compiling the circuit and
+//! a run of P periods minus a run of P/50, so compiling the circuit and
 //! building the first modes (printed apart as the start-up) do not count.
 //! Wall times are the minimum of several runs (the machines are shared);
 //! the ratios in the same process are what counts.
@@ -137,12 +137,14 @@ fn bare(n: usize, steps: usize, reps: usize) -> f64 {
 }
 
 /// Per-event cost of a run past its start: the difference of a run of
-/// `2·periods` and one of `periods`, so the one-time work (compiling the
-/// circuit, building and certifying the first modes) is left out; with
-/// the start-up cost (ns) and the counters of the longer run.
+/// `periods` and a short one of `periods / 50`, so the one-time work
+/// (compiling the circuit, building and settling the first modes) is left
+/// out; with the start-up cost (the short run's time beyond its events,
+/// ns), the events of the difference and the counters of the long run.
 fn marginal(c: &Circuit, periods: f64, reps: usize) -> (f64, f64, usize, usize, Stats) {
-    let (e1, _, s1, _) = run(c, periods, reps);
-    let (e2, states, s2, stats) = run(c, 2.0 * periods, reps);
+    let short = (periods / 50.0).round().max(20.0);
+    let (e1, _, s1, _) = run(c, short, reps);
+    let (e2, states, s2, stats) = run(c, periods, reps);
     let per_event = (s2 - s1) * 1e9 / (e2 - e1) as f64;
     let start = s1 * 1e9 - per_event * e1 as f64;
     (per_event, start, e2 - e1, states, stats)
@@ -157,8 +159,8 @@ fn main() {
     let mut first = None;
     let mut counters = Vec::new();
     for n in [1usize, 2, 4, 8, 12] {
-        // About 100,000 events past the start at every size.
-        let periods = (100_000 / n.max(2)) as f64;
+        // About 200,000 events at every size.
+        let periods = (200_000 / n.max(2)) as f64;
         let (ns, start, events, states, stats) = marginal(&interleaved(n), periods, reps);
         let bare_ns = bare(states, events, reps) * 1e9 / events as f64;
         let base = *first.get_or_insert(ns);
@@ -177,12 +179,13 @@ fn main() {
     // discontinuous conduction a located diode turn-off besides. The
     // located event's own cost is what a DCM period costs beyond two
     // scheduled events.
-    let periods = 25_000.0;
+    let periods = 50_000.0;
     let (ns_ccm, _, ev_ccm, _, st_ccm) = marginal(&single(false), periods, reps);
     let (ns_dcm, _, ev_dcm, _, st_dcm) = marginal(&single(true), periods, reps);
     println!("counters, CCM buck: {st_ccm:?}");
     println!("counters, DCM buck: {st_dcm:?}");
-    let per_period_dcm = ns_dcm * ev_dcm as f64 / periods;
+    // The same periods in both runs; the CCM buck has two events in each.
+    let per_period_dcm = ns_dcm * ev_dcm as f64 / (ev_ccm as f64 / 2.0);
     let located = per_period_dcm - 2.0 * ns_ccm;
     println!(
         "scheduled event (CCM buck): {ns_ccm:.1} ns ({ev_ccm} events); DCM buck: {per_period_dcm:.1} ns per period ({ev_dcm} events)"
