@@ -153,6 +153,9 @@ fn marginal(c: &Circuit, periods: f64, reps: usize) -> (f64, f64, usize, usize, 
 fn main() {
     // `cargo bench` passes `--bench`; a filter argument is ignored.
     let reps = 5;
+    // A warm-up run: the first run of the process pays for faulting in
+    // the allocator's pages and showed twice the per-event cost.
+    run(&interleaved(1), 20_000.0, 1);
     println!(
         "phases states   events   ns/event   start-up µs   bare ns/event   bare/sim   per event vs 1 phase"
     );
