@@ -1114,7 +1114,7 @@ pub(super) fn violated_guards(
 
 #[cfg(test)]
 mod tests {
-    use fluxstep_netlist::{Circuit, DiodeModel, Element, SwitchTransition, TransitionRates};
+    use fluxstep_netlist::Circuit;
 
     use super::super::lcp::{CrossCheck, CROSS};
     use super::super::{RunResult, Simulator};
@@ -1128,38 +1128,7 @@ mod tests {
     /// later the low side's. With `ramps`, transition models on both
     /// transistors.
     fn buck(ramps: bool) -> Circuit {
-        let body = DiodeModel {
-            forward_voltage: Some(0.7),
-            on_resistance: None,
-            recovered_charge: None,
-        };
-        let mut c = Circuit::builder()
-            .voltage_source("Vin", "in", "gnd", 24.0)
-            .transistor("Q1", "in", "sw", "hb.high", 0.01, body.clone())
-            .transistor("Q2", "sw", "gnd", "hb.low", 0.01, body)
-            .inductor("L1", "sw", "out", 22e-6)
-            .capacitor("C1", "out", "gnd", 47e-6)
-            .resistor("R", "out", "gnd", 6.0)
-            .complementary_pwm("hb", 200e3, 0.5, 50e-9, 80e-9)
-            .build()
-            .expect("valid");
-        if ramps {
-            for e in &mut c.elements {
-                if let Element::Switch(s) = e {
-                    s.transition = Some(SwitchTransition {
-                        turn_off: TransitionRates {
-                            voltage_rate: 24.0 / 10e-9,
-                            current_rate: 2.0 / 5e-9,
-                        },
-                        turn_on: TransitionRates {
-                            voltage_rate: 24.0 / 12e-9,
-                            current_rate: 2.0 / 6e-9,
-                        },
-                    });
-                }
-            }
-        }
-        c
+        crate::test_util::sync_buck(None, ramps)
     }
 
     fn run(c: &Circuit, stop: f64, replay: bool) -> RunResult {

@@ -240,8 +240,6 @@ impl Simulator {
 
 #[cfg(test)]
 mod tests {
-    use fluxstep_netlist::{Circuit, DiodeModel, Element, SwitchTransition, TransitionRates};
-
     use super::super::Simulator;
     use crate::options::Options;
     use crate::waveform::OutputId;
@@ -252,35 +250,7 @@ mod tests {
     /// transition models on both switches goes through (demo values).
     #[test]
     fn output_now_gives_the_bits_of_value() {
-        let body = DiodeModel {
-            forward_voltage: Some(0.7),
-            on_resistance: None,
-            recovered_charge: None,
-        };
-        let mut c = Circuit::builder()
-            .voltage_source("Vin", "in", "gnd", 24.0)
-            .transistor("Q1", "in", "sw", "hb.high", 0.01, body.clone())
-            .transistor("Q2", "sw", "gnd", "hb.low", 0.01, body)
-            .inductor_with_current("L1", "sw", "out", 22e-6, 2.0)
-            .capacitor_with_voltage("C1", "out", "gnd", 47e-6, 12.0)
-            .resistor("R", "out", "gnd", 6.0)
-            .complementary_pwm("hb", 200e3, 0.5, 50e-9, 80e-9)
-            .build()
-            .expect("valid");
-        for e in &mut c.elements {
-            if let Element::Switch(s) = e {
-                s.transition = Some(SwitchTransition {
-                    turn_off: TransitionRates {
-                        voltage_rate: 24.0 / 10e-9,
-                        current_rate: 2.0 / 5e-9,
-                    },
-                    turn_on: TransitionRates {
-                        voltage_rate: 24.0 / 12e-9,
-                        current_rate: 2.0 / 6e-9,
-                    },
-                });
-            }
-        }
+        let c = crate::test_util::sync_buck(Some((2.0, 12.0)), true);
         let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
         let mut patterns = std::collections::HashSet::new();
         // Instants 3.1 ns apart over three periods (5 µs each): inside
