@@ -293,13 +293,8 @@ impl Simulator {
                 let (mi, verdict) = self.judge_pattern(c, scales)?;
                 current = false;
                 note_rejection(&mut cut_rejected, verdict, mi);
-                if let Verdict::Holds { cut, charge } = verdict {
-                    better = Some(Found {
-                        diodes: c,
-                        mode: mi,
-                        cut,
-                        charge,
-                    });
+                if let Some(f) = verdict.found(c, mi) {
+                    better = Some(f);
                     current = true;
                     break;
                 }
@@ -329,14 +324,12 @@ impl Simulator {
     ) -> Result<Step, SolverError> {
         let (mi, verdict) = self.judge_pattern(diodes, scales)?;
         note_rejection(cut_rejected, verdict, mi);
+        if let Some(found) = verdict.found(diodes, mi) {
+            return Ok(Step::Holds(found));
+        }
         Ok(match verdict {
-            Verdict::Holds { cut, charge } => Step::Holds(Found {
-                diodes,
-                mode: mi,
-                cut,
-                charge,
-            }),
-            Verdict::Structural | Verdict::Cut => Step::Singular,
+            // (A holding pattern returned above.)
+            Verdict::Holds { .. } | Verdict::Structural | Verdict::Cut => Step::Singular,
             Verdict::Other => {
                 match least_failing(&self.modes[mi as usize], &self.z_try, scales) {
                     Some(d) => Step::Toggle(d),

@@ -91,10 +91,13 @@ const NO_ROW: u16 = u16::MAX;
 
 impl Transition {
     fn same_key(&self, other: &Transition) -> bool {
-        self.from == other.from
-            && self.switches == other.switches
-            && self.ramps == other.ramps
-            && self.flips == other.flips
+        self.leaves(other.from, other.switches, other.ramps, other.flips)
+    }
+
+    /// Whether this is the transition from mode `from` with switch bits
+    /// `switches`, ramp bits `ramps` and guard flips `flips`.
+    fn leaves(&self, from: u32, switches: u64, ramps: u64, flips: u64) -> bool {
+        self.from == from && self.switches == switches && self.ramps == ramps && self.flips == flips
     }
 }
 
@@ -230,12 +233,12 @@ impl Simulator {
                 if !allow_cut {
                     self.remember(&cut_rejected, verdict, flips, mi);
                 }
-                if let Verdict::Holds { cut, charge } = verdict {
+                if let Some(found) = verdict.found(c, mi) {
                     // At t = 0 without the flux-conserving policy, a cut
                     // is taken only where a source sets the currents (the
                     // jump stores energy); one that would release the
                     // inductors' energy is an interruption, as later.
-                    if cut
+                    if found.cut
                         && initial
                         && self.opts.on_interruption != OnInterruption::ConserveFlux
                         && self.cc.stored_energy(self.z_try.as_slice())
@@ -243,12 +246,7 @@ impl Simulator {
                     {
                         continue;
                     }
-                    return Ok(Ok(Found {
-                        diodes: c,
-                        mode: mi,
-                        cut,
-                        charge,
-                    }));
+                    return Ok(Ok(found));
                 }
             }
         }
@@ -283,13 +281,11 @@ impl Simulator {
             return Ok(found);
         }
         let near = (found.diodes ^ first).count_ones() < 2;
-        let known = self.memo.iter().any(|t| {
-            t.from == self.mode
-                && t.switches == self.key.switches
-                && t.ramps == self.key.ramps
-                && t.flips == flips
-                && t.to == found.mode
-        });
+        let (mode, key) = (self.mode, self.key);
+        let known = self
+            .memo
+            .iter()
+            .any(|t| t.leaves(mode, key.switches, key.ramps, flips) && t.to == found.mode);
         if near && (known || initial) {
             return Ok(found);
         }
@@ -305,13 +301,8 @@ impl Simulator {
             }
             let (mi, verdict) = self.judge_pattern(c, scales)?;
             note_search_rejection(&mut cut_rejected, verdict, mi);
-            if let Verdict::Holds { cut, charge } = verdict {
-                settled = Some(Found {
-                    diodes: c,
-                    mode: mi,
-                    cut,
-                    charge,
-                });
+            if let Some(f) = verdict.found(c, mi) {
+                settled = Some(f);
                 break;
             }
         }
@@ -459,12 +450,11 @@ impl Simulator {
         flips: u64,
         scales: (f64, f64),
     ) -> Option<(u32, bool)> {
-        let t = self.memo.iter().find(|t| {
-            t.from == self.mode
-                && t.switches == self.key.switches
-                && t.ramps == self.key.ramps
-                && t.flips == flips
-        })?;
+        let (mode, key) = (self.mode, self.key);
+        let t = self
+            .memo
+            .iter()
+            .find(|t| t.leaves(mode, key.switches, key.ramps, flips))?;
         let z = self.z.as_slice();
         // Each distinct row once (the common case: a few rows, one per
         // diode the candidates turn off); a mode whose remembered row no
@@ -793,6 +783,20 @@ impl Simulator {
 const EXHAUSTIVE_DIODES: usize = 16;
 
 impl Verdict {
+    /// The pattern `diodes` (mode `mode`) as found, if this verdict says
+    /// it holds.
+    pub(super) fn found(self, diodes: u64, mode: u32) -> Option<Found> {
+        match self {
+            Verdict::Holds { cut, charge } => Some(Found {
+                diodes,
+                mode,
+                cut,
+                charge,
+            }),
+            _ => None,
+        }
+    }
+
     /// The verdict of a pattern found to hold.
     pub(super) fn held(found: Found) -> Verdict {
         Verdict::Holds {
@@ -812,9 +816,6 @@ pub(super) struct Found {
     pub charge: bool,
 }
 
-/// Keeps the list of cut rejections a remembered transition re-checks:
-/// a structural rejection cannot change, a cut is re-checked on replay,
-/// and any other state-dependent rejection forbids replay.
 /// Marks a mode in a list of rejected candidates as rejected by a guard
 /// or a current source rather than by a cut (mode numbers stay far below).
 const OTHER: u32 = 1 << 31;
@@ -864,6 +865,9 @@ fn still_rejected(
     unbalanced_source(mode, z1.as_slice()).is_some() || !guards_hold(mode, z1, scales)
 }
 
+/// Keeps the list of cut rejections a remembered transition re-checks:
+/// a structural rejection cannot change, a cut is re-checked on replay,
+/// and any other state-dependent rejection forbids replay.
 pub(super) fn note_rejection(cut_rejected: &mut Option<Vec<u32>>, verdict: Verdict, mi: u32) {
     match verdict {
         Verdict::Structural | Verdict::Holds { .. } => {}
