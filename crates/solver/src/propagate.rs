@@ -67,8 +67,7 @@ impl Spectrum {
     /// their sum is not the trace (to 1e-8 of Σ|λ|), or a mode grows
     /// faster than the span's slow dynamics could bound.
     pub(crate) fn of(m: &DMatrix<f64>) -> Option<Spectrum> {
-        let schur = nalgebra::linalg::Schur::try_new(balanced(m), f64::EPSILON, 10_000)?;
-        let ev = schur.complex_eigenvalues();
+        let ev = eigenvalues(m)?;
         let sum: f64 = ev.iter().map(|c| c.re).sum();
         let abs: f64 = ev.iter().map(|c| c.norm()).sum();
         if !abs.is_finite() || (sum - m.trace()).abs() > 1e-8 * abs + f64::MIN_POSITIVE {
@@ -184,11 +183,10 @@ impl Spectrum {
 /// The eigenvalues of a square matrix by the real Schur form of its
 /// balanced copy (a diagonal similarity by powers of two, exact in
 /// floating point), with a bound on the iterations: `None` if the
-/// iteration does not converge within 1,000 sweeps per row, or a value is
-/// not finite, rather than looping for ever.
+/// iteration does not converge within 10,000 steps, or a value is not
+/// finite, rather than looping for ever.
 pub fn eigenvalues(m: &DMatrix<f64>) -> Option<Vec<nalgebra::Complex<f64>>> {
-    let limit = 1000 * m.nrows().max(1);
-    let schur = nalgebra::linalg::Schur::try_new(balanced(m), f64::EPSILON, limit)?;
+    let schur = nalgebra::linalg::Schur::try_new(balanced(m), f64::EPSILON, 10_000)?;
     let ev: Vec<_> = schur.complex_eigenvalues().iter().copied().collect();
     ev.iter()
         .all(|c| c.re.is_finite() && c.im.is_finite())
