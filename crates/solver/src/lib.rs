@@ -54,6 +54,7 @@
 
 mod compile;
 pub mod control;
+mod crossing;
 pub mod dynamics;
 mod error;
 mod events;

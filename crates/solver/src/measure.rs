@@ -21,6 +21,7 @@
 
 use serde::{Deserialize, Serialize};
 
+use crate::crossing::roots;
 use crate::propagate;
 use crate::waveform::{OutputId, Waveform};
 use crate::waveform_ext::{within_piece_cap, Piece, MAX_PIECES};
@@ -729,7 +730,7 @@ fn scan_piece(piece: &Piece<'_>, ext: &mut Extremes) -> Option<f64> {
         }
         if let Some((s_prev, d_prev)) = prev {
             if (d_prev < 0.0 && dy > 0.0) || (d_prev > 0.0 && dy < 0.0) {
-                let (lo, hi) = bisect_derivative(piece.coef, s_prev, s, d_prev);
+                let (lo, hi) = roots::derivative_bracket(piece.coef, s_prev, s, d_prev);
                 for r in [lo, hi] {
                     ext.offer(time(r), propagate::poly(piece.coef, r).0);
                 }
@@ -739,30 +740,6 @@ fn scan_piece(piece: &Piece<'_>, ext: &mut Extremes) -> Option<f64> {
         prev = Some((s, dy));
     }
     None
-}
-
-/// Narrows a bracket `[lo, hi]` of a sign change of the derivative (sign of
-/// `d_lo` at `lo`) until the two ends are adjacent floats or the derivative
-/// vanishes; returns the final bracket. Bisection rather than Newton: it
-/// cannot leave the bracket, and 60 halvings of [0, 1] already reach the
-/// float spacing, so the extra evaluations cost nothing that matters.
-fn bisect_derivative(coef: &[f64], mut lo: f64, mut hi: f64, d_lo: f64) -> (f64, f64) {
-    for _ in 0..200 {
-        let mid = 0.5 * (lo + hi);
-        if mid <= lo || mid >= hi {
-            break;
-        }
-        let d = propagate::poly(coef, mid).1;
-        if d == 0.0 {
-            return (mid, mid);
-        }
-        if (d < 0.0) == (d_lo < 0.0) {
-            lo = mid;
-        } else {
-            hi = mid;
-        }
-    }
-    (lo, hi)
 }
 
 /// Settling time: how long after `t0` output `id` takes to enter the band

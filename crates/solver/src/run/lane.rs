@@ -130,18 +130,9 @@ impl Simulator {
             if suspect {
                 // The general loop's location and, for a crossing inside,
                 // its located instant.
-                if let Some((tau, fired, cmp_fired)) = self.locate(h) {
-                    if tau < h {
-                        let t_e = self.t + tau;
-                        self.record_located(t_e, tau, fired, cmp_fired);
-                        self.t = t_e;
-                        self.tkey = None;
-                        std::mem::swap(&mut self.z, &mut self.z_next);
-                        self.check_finite()?;
-                        self.stats.state_events += 1;
-                        self.cause = EventCause::Crossing;
-                        let cause = self.fire_comparators(cmp_fired, t_e)?;
-                        self.resolve(fired, cause, false)?;
+                if let Some(c) = self.locate(h) {
+                    if c.time < h {
+                        self.enter_crossing(c)?;
                         continue;
                     }
                 }
@@ -181,7 +172,7 @@ impl Simulator {
         if switched & self.ramp_switches != 0 {
             self.start_ramps(t, switched)?;
         }
-        let scales = self.scales();
+        let scales = self.update_scales();
         if self.replay {
             if let Some((to, projected)) = self.remembered_target(0, scales) {
                 let old = self.enter_remembered(to, projected);

@@ -41,6 +41,7 @@
 use super::resolve::violations;
 use super::resolve::{note_rejection, violated_guards, Found, Verdict};
 use super::Simulator;
+use crate::crossing::Scales;
 use crate::error::SolverError;
 use crate::mode::{GuardKind, Mode, ModeProblem};
 
@@ -71,7 +72,7 @@ impl Simulator {
         first: u64,
         flips: u64,
         initial: bool,
-        scales: (f64, f64),
+        scales: Scales,
     ) -> Result<Option<Found>, SolverError> {
         let mut cut_rejected: Option<Vec<u32>> = (!initial).then(Vec::new);
         // The usual case: the first guess holds. Nothing is allocated.
@@ -186,7 +187,7 @@ impl Simulator {
     fn repair(
         &mut self,
         base: u64,
-        scales: (f64, f64),
+        scales: Scales,
         path: &[u64],
     ) -> Result<Option<u64>, SolverError> {
         let (mi, _) = self.judge_pattern(base, scales)?;
@@ -248,7 +249,7 @@ impl Simulator {
         first: u64,
         found: Found,
         judged: &mut Vec<u64>,
-        scales: (f64, f64),
+        scales: Scales,
         mut cut_rejected: Option<Vec<u32>>,
         flips: u64,
     ) -> Result<Option<Found>, SolverError> {
@@ -319,7 +320,7 @@ impl Simulator {
     fn pivot_step(
         &mut self,
         diodes: u64,
-        scales: (f64, f64),
+        scales: Scales,
         cut_rejected: &mut Option<Vec<u32>>,
     ) -> Result<Step, SolverError> {
         let (mi, verdict) = self.judge_pattern(diodes, scales)?;
@@ -378,7 +379,7 @@ impl Simulator {
         first: u64,
         flips: u64,
         initial: bool,
-        scales: (f64, f64),
+        scales: Scales,
         found: Option<Found>,
     ) -> Result<(), SolverError> {
         if CROSS.with(|c| c.borrow().is_none()) {
@@ -411,7 +412,7 @@ impl Simulator {
 /// first.
 #[cold]
 #[inline(never)]
-fn least_failing(mode: &Mode, z: &nalgebra::DVector<f64>, scales: (f64, f64)) -> Option<usize> {
+fn least_failing(mode: &Mode, z: &nalgebra::DVector<f64>, scales: Scales) -> Option<usize> {
     violated_guards(mode, z, scales, true)
         .into_iter()
         .filter_map(|gi| match mode.guards[gi].kind {

@@ -27,6 +27,7 @@ use nalgebra::{DMatrix, DVector};
 use fluxstep_netlist::Circuit;
 
 use crate::compile::Compiled;
+use crate::crossing::{Crossing, Scales};
 use crate::error::SolverError;
 use crate::events::{adopt, EventCause, EventLog};
 use crate::mode::{pattern_text, Mode, ModeKey};
@@ -172,7 +173,7 @@ pub struct Simulator {
     cause: EventCause,
     stats: Stats,
     /// Largest inductor current and capacitor/source voltage seen so far.
-    seen: (f64, f64),
+    seen: Scales,
     /// The state entries that are inductor currents (for `seen`).
     current_states: Vec<usize>,
     /// Capacitor voltages (factor 1) and single-term source voltages as
@@ -231,10 +232,19 @@ pub struct Simulator {
     /// reported by `check_finite` in place of the NaN it left.
     pub(super) refused: Option<SolverError>,
     /// The last crossing located at the very instant the interval started
-    /// (τ = 0): time, pattern, fired guard bits (diodes, comparators) and
-    /// how many times in a row the same one came back (see
-    /// [`Simulator::check_progress`]).
-    stalled: (f64, ModeKey, u64, u64, u32),
+    /// (see [`Simulator::check_progress`]).
+    stalled: Stall,
+}
+
+/// A crossing located at τ = 0 and how many times in a row the same one
+/// came back.
+#[derive(Clone, Copy, Debug)]
+struct Stall {
+    time: f64,
+    pattern: ModeKey,
+    /// The crossing at `time` in `pattern` (its diode and comparator bits).
+    crossing: Crossing,
+    repeats: u32,
 }
 
 /// Crossings at τ = 0 of the same guards in the same pattern, in a row,
@@ -373,7 +383,7 @@ impl Simulator {
             n_events: 0,
             cause: EventCause::Start,
             stats: Stats::default(),
-            seen: (0.0, 0.0),
+            seen: Scales::default(),
             current_states: vec![],
             voltage_terms: vec![],
             multi_term_sources: vec![],
@@ -398,17 +408,20 @@ impl Simulator {
             phases: vec![transition::Phase::Idle; n_switches],
             ramp_next: f64::INFINITY,
             refused: None,
-            stalled: (
-                f64::NAN,
-                ModeKey {
+            stalled: Stall {
+                time: f64::NAN,
+                pattern: ModeKey {
                     switches: 0,
                     diodes: 0,
                     ramps: 0,
                 },
-                0,
-                0,
-                0,
-            ),
+                crossing: Crossing {
+                    time: 0.0,
+                    diodes: 0,
+                    comparators: 0,
+                },
+                repeats: 0,
+            },
         };
         sim.cmp_ticks = (0..n_cmp).map(|ci| sim.make_ticks(ci)).collect();
         sim.current_states = sim
@@ -724,23 +737,9 @@ impl Simulator {
             };
             let h = if h > 0.0 { h } else { t_next - self.t };
             self.step(h, key_next.is_some() && self.tkey.is_some());
-            if let Some((tau, fired, cmp_fired)) = self.locate(h) {
-                if tau < h {
-                    // `locate` left the state at τ in `z_next`.
-                    let t_e = self.t + tau;
-                    self.check_progress(t_e, fired, cmp_fired)?;
-                    self.record_located(t_e, tau, fired, cmp_fired);
-                    self.t = t_e;
-                    self.tkey = None;
-                    std::mem::swap(&mut self.z, &mut self.z_next);
-                    self.check_finite()?;
-                    self.stats.state_events += 1;
-                    self.cause = EventCause::Crossing;
-                    let cause = self.fire_comparators(cmp_fired, t_e)?;
-                    if fired != 0 && self.ramp_waits_for_clamp() {
-                        self.clamp_ramps(t_e);
-                    }
-                    self.resolve(fired, cause, false)?;
+            if let Some(c) = self.locate(h) {
+                if c.time < h {
+                    self.enter_crossing(c)?;
                     continue;
                 }
             }
@@ -755,6 +754,29 @@ impl Simulator {
             }
         }
         Ok(())
+    }
+
+    /// The located instant of crossing `c` inside the interval being
+    /// advanced (`locate` left the state there in `z_next`): logged,
+    /// entered, comparators fired, a running transition clamped, and the
+    /// new conduction pattern resolved. Both drivers (this loop and the
+    /// lane) end a located interval here.
+    fn enter_crossing(&mut self, c: Crossing) -> Result<(), SolverError> {
+        let (tau, fired, cmp_fired) = (c.time, c.diodes, c.comparators);
+        let t_e = self.t + tau;
+        self.check_progress(t_e, c)?;
+        self.record_located(t_e, tau, fired, cmp_fired);
+        self.t = t_e;
+        self.tkey = None;
+        std::mem::swap(&mut self.z, &mut self.z_next);
+        self.check_finite()?;
+        self.stats.state_events += 1;
+        self.cause = EventCause::Crossing;
+        let cause = self.fire_comparators(cmp_fired, t_e)?;
+        if fired != 0 && self.ramp_waits_for_clamp() {
+            self.clamp_ramps(t_e);
+        }
+        self.resolve(fired, cause, false)
     }
 
     /// Stops a run whose event location makes no progress: the same
@@ -772,21 +794,27 @@ impl Simulator {
     ///
     /// [`SolverError::Unsupported`] naming the instant, the pattern and
     /// the diodes or gates whose guards stay at zero.
-    fn check_progress(&mut self, t_e: f64, fired: u64, cmp_fired: u64) -> Result<(), SolverError> {
+    fn check_progress(&mut self, t_e: f64, c: Crossing) -> Result<(), SolverError> {
         if t_e != self.t {
-            self.stalled.4 = 0;
+            self.stalled.repeats = 0;
             return Ok(());
         }
-        let (t, key, f, c, n) = self.stalled;
-        if t == t_e && key == self.key && f == fired && c == cmp_fired {
-            self.stalled.4 = n + 1;
+        let same = Crossing { time: 0.0, ..c };
+        let st = &mut self.stalled;
+        if st.time == t_e && st.pattern == self.key && st.crossing == same {
+            st.repeats += 1;
         } else {
-            self.stalled = (t_e, self.key, fired, cmp_fired, 1);
+            *st = Stall {
+                time: t_e,
+                pattern: self.key,
+                crossing: same,
+                repeats: 1,
+            };
         }
-        if self.stalled.4 < STALL_REPEATS {
+        if st.repeats < STALL_REPEATS {
             return Ok(());
         }
-        Err(self.stall_error(fired, cmp_fired))
+        Err(self.stall_error(c.diodes, c.comparators))
     }
 
     #[cold]

@@ -23,10 +23,10 @@ use std::sync::Arc;
 
 use nalgebra::DVector;
 
-use super::locate::{guard_floor, ZERO_REL};
 use super::record::Who;
 use super::Simulator;
 use crate::compile::BranchKind;
+use crate::crossing::{Scales, SOURCE_BALANCE_REL};
 use crate::error::SolverError;
 use crate::events::{EventKind, JumpInfo};
 use crate::mode::{pattern_text, ConstraintKind, Mode, ModeKey, ModeProblem};
@@ -152,7 +152,7 @@ impl Simulator {
         initial: bool,
     ) -> Result<(), SolverError> {
         let first = self.key.diodes ^ flips;
-        let scales = self.scales();
+        let scales = self.update_scales();
         if !initial && self.replay && self.resolve_remembered(flips, scales)? {
             return Ok(());
         }
@@ -193,7 +193,7 @@ impl Simulator {
         flips: u64,
         cause: Option<(usize, bool)>,
         initial: bool,
-        scales: (f64, f64),
+        scales: Scales,
     ) -> Result<Result<Found, SolverError>, SolverError> {
         // What a remembered transition needs: the candidates rejected for
         // cutting an inductor current before the accepted one; `None` once
@@ -275,7 +275,7 @@ impl Simulator {
         flips: u64,
         found: Found,
         initial: bool,
-        scales: (f64, f64),
+        scales: Scales,
     ) -> Result<Found, SolverError> {
         if found.cut {
             return Ok(found);
@@ -321,7 +321,7 @@ impl Simulator {
     pub(super) fn judge_pattern(
         &mut self,
         diodes: u64,
-        scales: (f64, f64),
+        scales: Scales,
     ) -> Result<(u32, Verdict), SolverError> {
         let key = ModeKey {
             switches: self.key.switches,
@@ -389,12 +389,12 @@ impl Simulator {
     /// [`Transition`]).
     fn cut_rows(&self, list: &[u32]) -> (Vec<(u32, u32)>, Vec<u16>) {
         let z = self.z.as_slice();
-        let i_scale = self.seen.0;
+        let scales = self.seen;
         let mut rows: Vec<(u32, u32)> = vec![];
         let mut by = Vec::with_capacity(list.len());
         for &mi in list {
             let mode = &self.modes[mi as usize];
-            let Some(r) = first_cut_row(mode, z, i_scale) else {
+            let Some(r) = first_cut_row(mode, z, scales) else {
                 by.push(NO_ROW);
                 continue;
             };
@@ -425,7 +425,7 @@ impl Simulator {
     pub(super) fn resolve_remembered(
         &mut self,
         flips: u64,
-        scales: (f64, f64),
+        scales: Scales,
     ) -> Result<bool, SolverError> {
         let Some((to, projected)) = self.remembered_target(flips, scales) else {
             return Ok(false);
@@ -445,11 +445,7 @@ impl Simulator {
     /// current still cuts one (the others were rejected for structural
     /// reasons that cannot change), and the remembered pattern still holds
     /// without a jump.
-    pub(super) fn remembered_target(
-        &mut self,
-        flips: u64,
-        scales: (f64, f64),
-    ) -> Option<(u32, bool)> {
+    pub(super) fn remembered_target(&mut self, flips: u64, scales: Scales) -> Option<(u32, bool)> {
         let (mode, key) = (self.mode, self.key);
         let t = self
             .memo
@@ -463,7 +459,7 @@ impl Simulator {
             let mut cutting = 0u64;
             for (g, &(m, r)) in t.cut_rows.iter().enumerate() {
                 let row = constraint_row(&self.modes[m as usize], r as usize);
-                if cuts(row, z, scales.0) {
+                if cuts(row, z, scales) {
                     cutting |= 1 << g;
                 }
             }
@@ -547,7 +543,7 @@ impl Simulator {
         modes: &[Arc<Mode>],
         mi: u32,
         allow_cut: bool,
-        scales: (f64, f64),
+        scales: Scales,
         interruption: &mut Option<Interruption>,
         other: &mut Option<Rejection>,
     ) -> Verdict {
@@ -753,15 +749,15 @@ impl Simulator {
     /// so far in the run (never the present value alone: at a located zero
     /// crossing the only inductor current is itself ~1e-17 A).
     #[inline(always)]
-    pub(super) fn scales(&mut self) -> (f64, f64) {
+    pub(super) fn update_scales(&mut self) -> Scales {
         let z = self.z.as_slice();
-        let mut i_s: f64 = self.seen.0;
+        let mut i_s: f64 = self.seen.current;
         for &s in &self.current_states {
             i_s = i_s.max(z[s].abs());
         }
         // Capacitor voltages and single-term sources as (index, factor);
         // the maximum does not depend on the order.
-        let mut v_s: f64 = self.seen.1;
+        let mut v_s: f64 = self.seen.voltage;
         for &(k, f) in &self.voltage_terms {
             v_s = v_s.max((f * z[k]).abs());
         }
@@ -773,7 +769,10 @@ impl Simulator {
                 .sum();
             v_s = v_s.max(v.abs());
         }
-        self.seen = (i_s, v_s);
+        self.seen = Scales {
+            current: i_s,
+            voltage: v_s,
+        };
         self.seen
     }
 }
@@ -846,7 +845,7 @@ pub(super) fn note_search_rejection(
 fn still_rejected(
     mode: &Mode,
     z: &DVector<f64>,
-    scales: (f64, f64),
+    scales: Scales,
     stop_on_short: bool,
     scratch: &mut DVector<f64>,
 ) -> bool {
@@ -918,21 +917,21 @@ fn constraint_row(mode: &Mode, r: usize) -> &[f64] {
 /// Whether a cutset row carries current at z (the test of
 /// [`violations`]).
 #[inline(always)]
-fn cuts(row: &[f64], z: &[f64], i_scale: f64) -> bool {
-    propagate::dot_s(row, z).abs() > 1e-11 * i_scale
+fn cuts(row: &[f64], z: &[f64], scales: Scales) -> bool {
+    scales.cuts(propagate::dot_s(row, z))
 }
 
 /// The first inductor cutset of `mode` that carries current at z.
-fn first_cut_row(mode: &Mode, z: &[f64], i_scale: f64) -> Option<usize> {
+fn first_cut_row(mode: &Mode, z: &[f64], scales: Scales) -> Option<usize> {
     mode.constraints.iter().enumerate().position(|(r, kind)| {
-        matches!(kind, ConstraintKind::Cutset { .. }) && cuts(constraint_row(mode, r), z, i_scale)
+        matches!(kind, ConstraintKind::Cutset { .. }) && cuts(constraint_row(mode, r), z, scales)
     })
 }
 
 pub(super) fn violations(
     mode: &Mode,
     z: &[f64],
-    (i_scale, v_scale): (f64, f64),
+    scales: Scales,
     mut windings: Option<&mut Vec<usize>>,
 ) -> (bool, bool) {
     if mode.constraints.is_empty() {
@@ -943,13 +942,13 @@ pub(super) fn violations(
     let rows = mode.ht.as_slice().chunks_exact(mode.ht.nrows().max(1));
     for (row, kind) in rows.zip(&mode.constraints) {
         match kind {
-            ConstraintKind::Cutset { windings: w, .. } if cuts(row, z, i_scale) => {
+            ConstraintKind::Cutset { windings: w, .. } if cuts(row, z, scales) => {
                 cut = true;
                 if let Some(list) = windings.as_deref_mut() {
                     list.extend(w.iter().copied());
                 }
             }
-            ConstraintKind::Loop { .. } if propagate::dot_s(row, z).abs() > 1e-11 * v_scale => {
+            ConstraintKind::Loop { .. } if scales.loop_holds_voltage(propagate::dot_s(row, z)) => {
                 lp = true
             }
             _ => {}
@@ -963,7 +962,7 @@ pub(super) fn violations(
 fn unbalanced_source(mode: &Mode, z: &[f64]) -> Option<usize> {
     mode.free_checks.iter().position(|(row, _, _)| {
         let (v, s) = dot_and_abs(row, z);
-        v.abs() > 1e-9 * s + 1e-300
+        v.abs() > SOURCE_BALANCE_REL * s + 1e-300
     })
 }
 
@@ -972,14 +971,14 @@ fn unbalanced_source(mode: &Mode, z: &[f64]) -> Option<usize> {
 /// entered and held for some positive time. Derivatives are computed only
 /// for guards that sit at zero.
 #[inline(always)]
-fn guards_hold(mode: &Mode, z: &DVector<f64>, scales: (f64, f64)) -> bool {
+fn guards_hold(mode: &Mode, z: &DVector<f64>, scales: Scales) -> bool {
     // Value pass first, on slices: in the usual case every guard is clearly
     // positive and no derivative is needed.
     let zs = z.as_slice();
     let mut at_zero = false;
     for g in &mode.guards {
         let (v, s) = dot_and_abs(&g.row, zs);
-        let tol = ZERO_REL * s + guard_floor(&g.kind, scales);
+        let tol = scales.guard_zero(&g.kind, s);
         if v < -tol {
             return false;
         }
@@ -997,7 +996,7 @@ fn guards_hold(mode: &Mode, z: &DVector<f64>, scales: (f64, f64)) -> bool {
 /// the general function cost more than its arithmetic. The same values
 /// and tolerances are compared; only the bookkeeping differs.
 #[inline(never)]
-fn guards_hold_at_zero(mode: &Mode, z: &DVector<f64>, scales: (f64, f64)) -> bool {
+fn guards_hold_at_zero(mode: &Mode, z: &DVector<f64>, scales: Scales) -> bool {
     let zs = z.as_slice();
     let n = zs.len();
     if mode.guards.len() > 64 || n > 16 {
@@ -1006,7 +1005,7 @@ fn guards_hold_at_zero(mode: &Mode, z: &DVector<f64>, scales: (f64, f64)) -> boo
     let mut undecided = 0u64;
     for (gi, g) in mode.guards.iter().enumerate() {
         let (v, s) = dot_and_abs(&g.row, zs);
-        let tol = ZERO_REL * s + guard_floor(&g.kind, scales);
+        let tol = scales.guard_zero(&g.kind, s);
         if v < -tol {
             return false;
         }
@@ -1033,7 +1032,7 @@ fn guards_hold_at_zero(mode: &Mode, z: &DVector<f64>, scales: (f64, f64)) -> boo
             left &= left - 1;
             let g = &mode.guards[gi];
             let (v, s) = dot_and_abs(&g.row, d);
-            let tol = ZERO_REL * s + guard_floor(&g.kind, scales) * rate_k;
+            let tol = scales.derivative_zero(&g.kind, s, rate_k);
             if v < -tol {
                 return false;
             }
@@ -1054,7 +1053,7 @@ fn guards_hold_at_zero(mode: &Mode, z: &DVector<f64>, scales: (f64, f64)) -> boo
 pub(super) fn violated_guards(
     mode: &Mode,
     z: &DVector<f64>,
-    scales: (f64, f64),
+    scales: Scales,
     all: bool,
 ) -> Vec<usize> {
     let mut violated = vec![];
@@ -1063,7 +1062,7 @@ pub(super) fn violated_guards(
     let zs = z.as_slice();
     for (gi, g) in mode.guards.iter().enumerate() {
         let (v, s) = dot_and_abs(&g.row, zs);
-        let tol = ZERO_REL * s + guard_floor(&g.kind, scales);
+        let tol = scales.guard_zero(&g.kind, s);
         if v < -tol {
             violated.push(gi);
             if !all {
@@ -1100,7 +1099,7 @@ pub(super) fn violated_guards(
         for &gi in &undecided {
             let g = &mode.guards[gi];
             let (v, s) = dot_and_abs(&g.row, d);
-            let tol = ZERO_REL * s + guard_floor(&g.kind, scales) * rate_k;
+            let tol = scales.derivative_zero(&g.kind, s, rate_k);
             if v < -tol {
                 violated.push(gi);
                 if !all {

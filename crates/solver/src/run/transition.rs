@@ -24,6 +24,7 @@
 
 use super::schedule::coincident_until;
 use super::Simulator;
+use crate::crossing::EDGE_REL;
 use crate::error::SolverError;
 use crate::mode::ramp_bit;
 use crate::propagate::dot_s;
@@ -70,7 +71,7 @@ impl Simulator {
     #[cold]
     pub(super) fn start_ramps(&mut self, t: f64, changed: u64) -> Result<(), SolverError> {
         let mut rest = changed & self.ramp_switches;
-        let scales = self.scales();
+        let scales = self.update_scales();
         while rest != 0 {
             let i = rest.trailing_zeros() as usize;
             rest &= rest - 1;
@@ -110,7 +111,7 @@ impl Simulator {
                 // current; with none (discontinuous conduction, start-up)
                 // there is no current to commutate and the voltage falls
                 // at once.
-                if voltage > 1e-9 * scales.1 {
+                if voltage > EDGE_REL * scales.voltage {
                     if self.key.diodes != 0 {
                         let z = self.z.as_mut_slice();
                         z[info.value] = 0.0;
@@ -125,7 +126,7 @@ impl Simulator {
             } else {
                 let current = self.output_now(info.current_out);
                 let into_body = current < 0.0 && info.body_diode.is_some();
-                if current.abs() > 1e-9 * scales.0 && !into_body {
+                if current.abs() > EDGE_REL * scales.current && !into_body {
                     let voltage = self.output_now(info.voltage_out);
                     let z = self.z.as_mut_slice();
                     z[info.value] = voltage;

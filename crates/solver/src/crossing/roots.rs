@@ -1,0 +1,349 @@
+//! Root finders of event location and measurement: on a guard's
+//! polynomial in σ ∈ [0, 1] (`guard_root`, `root_in`, `stationary`), on an
+//! exact solution evaluated at will (`exact_root`, stiff spans), and on a
+//! piece's derivative (`derivative_bracket`, the extremes of `measure`).
+//! Each returns the first representable point at or past what it looks
+//! for, so that a located instant never sits before its crossing.
+
+use crate::propagate;
+
+/// Where the guard polynomial with coefficients `coef` (σ ∈ [0, 1])
+/// first goes below −`tol`: through its end value, or below zero at an
+/// interior minimum (a dip and back).
+///
+/// `hint`, if any, is where the search starts (the crossing of an earlier
+/// period, which in a settled converter lies within a few ulps).
+pub(crate) fn guard_root(coef: &[f64], tol: f64, hint: Option<f64>) -> Option<f64> {
+    // The value alone first (`poly` gives the same bits with the
+    // derivative, which only a dip needs).
+    let gb = propagate::poly_value(coef, 1.0);
+    let da = coef.get(1).copied().unwrap_or(0.0);
+    // p(0) is the first coefficient (the evaluation at 0 gives it exactly).
+    let g0 = coef.first().copied().unwrap_or(0.0);
+    if gb < -tol {
+        Some(root_in(coef, 0.0, 1.0, g0, gb, hint))
+    } else if da < 0.0 && propagate::poly(coef, 1.0).1 > 0.0 {
+        // An interior minimum: find it, then look below zero there.
+        let smin = stationary(coef);
+        let gm = propagate::poly_value(coef, smin);
+        (gm < -tol).then(|| root_in(coef, 0.0, smin, g0, gm, hint))
+    } else {
+        None
+    }
+}
+
+/// Root of the polynomial in [lo, hi] where p(lo) ≥ 0 > p(hi): Newton
+/// from the secant guess, kept inside a shrinking bracket (bisection when a
+/// step would leave it), stopped when the step falls to a few ulps; then the
+/// point is nudged, an ulp at a time (up from a point where p ≥ 0, down from
+/// one where p < 0), to a point where p < 0 whose predecessor has p ≥ 0, so
+/// the returned instant is at or just after the crossing.
+/// `fa` and `fb` are p(lo) and p(hi), which the caller has already.
+/// A `hint` strictly inside the bracket replaces the secant guess.
+pub(crate) fn root_in(c: &[f64], lo: f64, hi: f64, fa: f64, fb: f64, hint: Option<f64>) -> f64 {
+    let (mut a, mut b) = (lo, hi);
+    if fa < 0.0 {
+        return a;
+    }
+    let mut s = if fa - fb > 0.0 {
+        a + (b - a) * fa / (fa - fb)
+    } else {
+        0.5 * (a + b)
+    };
+    // From a hint: one Newton step from it (it narrows the bracket too),
+    // which from a few ulps away lands within rounding of the crossing.
+    if let Some(h) = hint.filter(|&h| h > a && h < b) {
+        let (v, dv) = propagate::poly(c, h);
+        if v < 0.0 {
+            b = h;
+        } else {
+            a = h;
+        }
+        s = if dv != 0.0 { h - v / dv } else { h };
+    }
+    if !(s > a && s < b) {
+        s = 0.5 * (a + b);
+    }
+    // Below this the sign of p is rounding noise: σ is as good as it gets.
+    let noise = 8.0 * f64::EPSILON * c.iter().map(|x| x.abs()).sum::<f64>();
+    for _ in 0..100 {
+        let (v, dv) = propagate::poly(c, s);
+        if v.abs() <= noise {
+            break;
+        }
+        if v < 0.0 {
+            b = s;
+        } else {
+            a = s;
+        }
+        if b - a <= f64::EPSILON * b.max(1e-300) {
+            return b;
+        }
+        let newton = s - v / dv;
+        if dv != 0.0 && newton > a && newton < b {
+            let step = (newton - s).abs();
+            s = newton;
+            // σ lies in [0, 1]: an absolute step of a few ulps of 1 is the end.
+            if step <= 4.0 * f64::EPSILON {
+                break;
+            }
+        } else {
+            s = 0.5 * (a + b);
+        }
+    }
+    // Converged: the first point at or after the crossing. Step up from the
+    // estimate an ulp at a time; if rounding noise hides the sign change
+    // there, bisect what is left of the bracket.
+    if propagate::poly_value(c, s) < 0.0 {
+        // Already past the crossing: step down while the point below is
+        // still negative (p(a) ≥ 0 bounds the walk).
+        b = b.min(s);
+        let mut x = b;
+        for _ in 0..16 {
+            let below = f64::from_bits(x.to_bits() - 1);
+            if x <= 0.0 || below <= a || propagate::poly_value(c, below) >= 0.0 {
+                return x;
+            }
+            x = below;
+        }
+        b = x;
+    } else {
+        a = a.max(s);
+        let mut x = a;
+        for _ in 0..16 {
+            if x >= b {
+                return b;
+            }
+            if propagate::poly_value(c, x) < 0.0 {
+                return x;
+            }
+            x = f64::from_bits(x.to_bits() + 1);
+        }
+        a = x;
+    }
+    while b - a > f64::EPSILON * b.max(1e-300) {
+        let m = 0.5 * (a + b);
+        if m <= a || m >= b {
+            break;
+        }
+        if propagate::poly_value(c, m) < 0.0 {
+            b = m;
+        } else {
+            a = m;
+        }
+    }
+    b
+}
+
+/// Where the polynomial's derivative crosses zero upward inside [0, 1]
+/// (the caller has checked p′(0) < 0 < p′(1)).
+pub(crate) fn stationary(c: &[f64]) -> f64 {
+    let dc: Vec<f64> = c
+        .iter()
+        .enumerate()
+        .skip(1)
+        .map(|(k, a)| k as f64 * a)
+        .collect();
+    let (mut a, mut b) = (0.0, 1.0);
+    for _ in 0..200 {
+        let m = 0.5 * (a + b);
+        let (v, _) = propagate::poly(&dc, m);
+        if v < 0.0 {
+            a = m;
+        } else {
+            b = m;
+        }
+        if b - a <= f64::EPSILON {
+            break;
+        }
+    }
+    0.5 * (a + b)
+}
+
+/// The first representable point past the zero of `f` in [lo, hi], where
+/// f(lo) = `fa` ≥ 0 > f(hi) = `fb` (`lo` itself if `fa` < 0): Illinois
+/// steps kept inside the bracket, bisection where they stall, until the
+/// bracket is an ulp wide.
+pub(crate) fn exact_root(f: impl Fn(f64) -> f64, lo: f64, hi: f64, fa: f64, fb: f64) -> f64 {
+    if fa < 0.0 {
+        return lo;
+    }
+    let (mut a, mut b, mut fa, mut fb) = (lo, hi, fa, fb);
+    let mut side = 0i8;
+    for i in 0..400 {
+        let m = if i % 4 == 3 || fa - fb <= 0.0 {
+            0.5 * (a + b)
+        } else {
+            let x = a + (b - a) * fa / (fa - fb);
+            if x > a && x < b {
+                x
+            } else {
+                0.5 * (a + b)
+            }
+        };
+        if m <= a || m >= b {
+            break;
+        }
+        let fm = f(m);
+        if fm < 0.0 {
+            b = m;
+            fb = fm;
+            if side == -1 {
+                fa *= 0.5;
+            }
+            side = -1;
+        } else {
+            a = m;
+            fa = fm;
+            if side == 1 {
+                fb *= 0.5;
+            }
+            side = 1;
+        }
+    }
+    b
+}
+
+/// Narrows a bracket `[lo, hi]` of a sign change of the derivative (sign of
+/// `d_lo` at `lo`) until the two ends are adjacent floats or the derivative
+/// vanishes; returns the final bracket. Bisection rather than Newton: it
+/// cannot leave the bracket, and 60 halvings of [0, 1] already reach the
+/// float spacing, so the extra evaluations cost nothing that matters.
+pub(crate) fn derivative_bracket(coef: &[f64], mut lo: f64, mut hi: f64, d_lo: f64) -> (f64, f64) {
+    for _ in 0..200 {
+        let mid = 0.5 * (lo + hi);
+        if mid <= lo || mid >= hi {
+            break;
+        }
+        let d = propagate::poly(coef, mid).1;
+        if d == 0.0 {
+            return (mid, mid);
+        }
+        if (d < 0.0) == (d_lo < 0.0) {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+    }
+    (lo, hi)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Contract of `GuardPolys::kept`: coefficients that are ±0 at the top
+    /// of a guard polynomial (the rows past its last non-zero one) change
+    /// neither where `guard_root` puts the crossing nor the polynomial's
+    /// value, to the bit: each Horner chain meets its first non-zero
+    /// coefficient as ±0·u + c = c exactly (common practice). Random
+    /// polynomials of degree 1 to 7 with a root inside, some with an
+    /// interior dip, padded with up to six signed zeros.
+    #[test]
+    fn zero_top_terms_do_not_move_the_crossing() {
+        let mut rnd = crate::test_util::uniform(0x9e37_79b9_7f4a_7c15u64);
+        let mut crossings = 0;
+        for case in 0..4000 {
+            let len = 2 + (rnd() * 7.0) as usize;
+            let r = 0.01 + 0.98 * rnd();
+            let k = 10f64.powf(6.0 * rnd() - 3.0);
+            // (r − σ)·q(σ), q > 0 on [0, 1], or for a quarter of the cases
+            // a positive value with a dip (σ − m)² − d around the middle.
+            let mut c = vec![0.0; len];
+            if case % 4 == 3 && len >= 3 {
+                let (m, d) = (0.2 + 0.6 * rnd(), 0.1 * rnd() * rnd());
+                c[0] = k * (m * m - d);
+                c[1] = -2.0 * k * m;
+                c[2] = k;
+            } else {
+                c[0] = k * r;
+                c[1] = -k;
+                for (i, ci) in c.iter_mut().enumerate().skip(2) {
+                    *ci = k * 0.1f64.powi(i as i32) * (rnd() - 0.5);
+                }
+            }
+            let pad = 1 + (rnd() * 6.0) as usize;
+            let mut long = c.clone();
+            long.extend((0..pad).map(|_| if rnd() < 0.5 { -0.0 } else { 0.0 }));
+            let tol = k * 1e-12 * rnd();
+            for hint in [None, Some(r), Some(rnd())] {
+                let a = guard_root(&c, tol, hint);
+                let b = guard_root(&long, tol, hint);
+                assert_eq!(a.map(f64::to_bits), b.map(f64::to_bits), "case {case}");
+                crossings += a.is_some() as usize;
+            }
+            for _ in 0..8 {
+                let s = rnd();
+                let (va, vb) = (
+                    propagate::poly_value(&c, s),
+                    propagate::poly_value(&long, s),
+                );
+                // Equal, up to the sign of a zero result.
+                assert!(va == vb, "case {case}: {va} vs {vb}");
+                let (da, db) = (propagate::poly(&c, s).1, propagate::poly(&long, s).1);
+                assert!(da == db, "case {case}: {da} vs {db}");
+            }
+        }
+        assert!(crossings > 6000, "only {crossings} crossings tested");
+    }
+
+    /// Contract of `root_in`: the returned point has p < 0 and the point
+    /// just below it p ≥ 0 (the first instant after the crossing), and it
+    /// lies within a few ulps of the exact root. Polynomials with a known
+    /// simple root r in (0, 1): p(σ) = (r − σ)·q(σ), q > 0 on [0, 1]
+    /// (common practice).
+    #[test]
+    fn root_is_the_first_point_past_the_crossing() {
+        let mut rnd = crate::test_util::uniform(0x1234_5678_9abc_def1u64);
+        let mut moved = 0;
+        for case in 0..2000 {
+            let r = 0.01 + 0.98 * rnd();
+            // q(σ) = 1 + a σ + b σ², positive on [0, 1] for a, b ≥ 0, times
+            // a scale; then a tail of terms too small to move the root, as a
+            // Taylor series has.
+            let (a, b, k) = (rnd(), rnd(), 10f64.powf(6.0 * rnd() - 3.0));
+            let q = [k, k * a, k * b];
+            let mut c = vec![0.0; 14];
+            for (i, &qi) in q.iter().enumerate() {
+                c[i] += r * qi;
+                c[i + 1] -= qi;
+            }
+            for (i, ci) in c.iter_mut().enumerate().skip(4) {
+                *ci += k * 1e-5f64.powi(i as i32) * (rnd() - 0.5);
+            }
+            let fb = propagate::poly(&c, 1.0).0;
+            let x = root_in(&c, 0.0, 1.0, c[0], fb, None);
+            let below = f64::from_bits(x.to_bits() - 1);
+            assert!(propagate::poly(&c, x).0 < 0.0, "case {case}: p(x) ≥ 0");
+            assert!(
+                propagate::poly(&c, below).0 >= 0.0,
+                "case {case}: not the first point past the crossing"
+            );
+            assert!((x - r).abs() <= 1e-14, "case {case}: {x} vs {r}");
+            // Started from a hint — an earlier crossing a few ulps off, or
+            // one far away — the search ends at the same point.
+            let ulps = (rnd() * 64.0) as u64;
+            for hint in [
+                f64::from_bits(x.to_bits() + ulps),
+                f64::from_bits(x.to_bits() - ulps),
+                0.9 * x + 0.1 * rnd(),
+                rnd(),
+            ] {
+                let y = root_in(&c, 0.0, 1.0, c[0], fb, Some(hint));
+                if y != x {
+                    // Only where rounding blurs the crossing: then y is a
+                    // first point past it too, as close to the root.
+                    moved += 1;
+                    let below = f64::from_bits(y.to_bits() - 1);
+                    assert!(propagate::poly(&c, y).0 < 0.0, "case {case}: p(y) ≥ 0");
+                    assert!(propagate::poly(&c, below).0 >= 0.0, "case {case}");
+                    assert!((y - r).abs() <= 1e-14, "case {case}: {y} vs {r}");
+                }
+            }
+        }
+        assert!(
+            moved <= 40,
+            "{moved} of 8000 hinted searches ended elsewhere"
+        );
+    }
+}
