@@ -591,7 +591,7 @@ pub(crate) fn matvec(m: &DMatrix<f64>, x: &[f64], y: &mut [f64]) {
 /// start as `Iterator::sum` (so the same bits as `a.iter().zip(b)` summed),
 /// unrolled for the common lengths.
 #[inline(always)]
-pub(crate) fn dot_s(a: &[f64], b: &[f64]) -> f64 {
+pub(crate) fn dot_slices(a: &[f64], b: &[f64]) -> f64 {
     match (a.len(), b.len()) {
         (4, 4) => dot_fixed::<4>(a, b),
         (5, 5) => dot_fixed::<5>(a, b),
@@ -619,17 +619,17 @@ fn dot_fixed<const N: usize>(a: &[f64], b: &[f64]) -> f64 {
 
 /// `(Σ aᵢbᵢ, Σ |aᵢbᵢ|)`, unrolled for the common lengths.
 #[inline(always)]
-pub(crate) fn dot_and_abs(a: &[f64], b: &[f64]) -> (f64, f64) {
+pub(crate) fn dot_and_magnitude(a: &[f64], b: &[f64]) -> (f64, f64) {
     match (a.len(), b.len()) {
-        (4, 4) => dot_abs_fixed::<4>(a, b),
-        (5, 5) => dot_abs_fixed::<5>(a, b),
-        (6, 6) => dot_abs_fixed::<6>(a, b),
-        (7, 7) => dot_abs_fixed::<7>(a, b),
-        (8, 8) => dot_abs_fixed::<8>(a, b),
-        (9, 9) => dot_abs_fixed::<9>(a, b),
-        (10, 10) => dot_abs_fixed::<10>(a, b),
-        (11, 11) => dot_abs_fixed::<11>(a, b),
-        (12, 12) => dot_abs_fixed::<12>(a, b),
+        (4, 4) => dot_magnitude_fixed::<4>(a, b),
+        (5, 5) => dot_magnitude_fixed::<5>(a, b),
+        (6, 6) => dot_magnitude_fixed::<6>(a, b),
+        (7, 7) => dot_magnitude_fixed::<7>(a, b),
+        (8, 8) => dot_magnitude_fixed::<8>(a, b),
+        (9, 9) => dot_magnitude_fixed::<9>(a, b),
+        (10, 10) => dot_magnitude_fixed::<10>(a, b),
+        (11, 11) => dot_magnitude_fixed::<11>(a, b),
+        (12, 12) => dot_magnitude_fixed::<12>(a, b),
         _ => {
             let mut v = 0.0;
             let mut s = 0.0;
@@ -644,7 +644,7 @@ pub(crate) fn dot_and_abs(a: &[f64], b: &[f64]) -> (f64, f64) {
 }
 
 #[inline(always)]
-fn dot_abs_fixed<const N: usize>(a: &[f64], b: &[f64]) -> (f64, f64) {
+fn dot_magnitude_fixed<const N: usize>(a: &[f64], b: &[f64]) -> (f64, f64) {
     let a: &[f64; N] = a.try_into().expect("length checked by the caller");
     let b: &[f64; N] = b.try_into().expect("length checked by the caller");
     let (mut v, mut s) = (0.0, 0.0);

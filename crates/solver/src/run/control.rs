@@ -3,7 +3,7 @@
 //! located like a diode's).
 
 use super::schedule::TimeKey;
-use super::{dot, Simulator};
+use super::{dot_iter, Simulator};
 use crate::error::SolverError;
 
 /// What a comparator tick does.
@@ -111,7 +111,7 @@ impl Simulator {
         let Some(g) = &mode.cmp_guards[ci][if turning_off { 0 } else { 1 }] else {
             return false;
         };
-        dot(g.row.iter().copied(), self.z.as_slice()) <= 0.0
+        dot_iter(g.row.iter().copied(), self.z.as_slice()) <= 0.0
     }
 
     /// Sets a comparator gate's signal and logs the switches it drives;

@@ -99,14 +99,14 @@ impl Simulator {
             // schedule, then (for another length) lengths that came back.
             // A miss returns: the general step keeps the books of misses.
             let cached = self.caches[mi]
-                .discs
+                .scheduled
                 .iter()
                 .find(|(b, _)| *b == bits)
                 .or_else(|| {
                     if from_schedule {
                         None
                     } else {
-                        self.caches[mi].again.iter().find(|(b, _)| *b == bits)
+                        self.caches[mi].repeated.iter().find(|(b, _)| *b == bits)
                     }
                 });
             let Some((_, phi)) = cached else {

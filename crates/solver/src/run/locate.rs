@@ -49,11 +49,11 @@ use crate::crossing::{at_end, same_instant, Crossing, Scales};
 use crate::error::SolverError;
 use crate::mode::{pattern_text, Guard, GuardKind, Mode};
 use crate::propagate;
-use crate::propagate::{dot_and_abs, dot_s, Spectrum, PHASE_LIMIT};
+use crate::propagate::{dot_and_magnitude, dot_slices, Spectrum, PHASE_LIMIT};
 
 /// Σ|aᵢ·bᵢ|: the magnitude of a dot product's terms.
 fn terms_magnitude(a: &[f64], b: &[f64]) -> f64 {
-    dot_and_abs(a, b).1
+    dot_and_magnitude(a, b).1
 }
 
 /// Whether guard `g` may cross zero in an interval from state `za` to
@@ -61,11 +61,11 @@ fn terms_magnitude(a: &[f64], b: &[f64]) -> f64 {
 /// start and rising at the end (a dip that may go below zero and back).
 #[inline(always)]
 pub(super) fn suspect_at_end(g: &Guard, za: &[f64], zb: &[f64], scales: Scales) -> bool {
-    let da = dot_s(&g.drow, za);
-    if da < 0.0 && dot_s(&g.drow, zb) > 0.0 {
+    let da = dot_slices(&g.drow, za);
+    if da < 0.0 && dot_slices(&g.drow, zb) > 0.0 {
         return true;
     }
-    let (gb, sb) = dot_and_abs(&g.row, zb);
+    let (gb, sb) = dot_and_magnitude(&g.row, zb);
     // The tolerance matters only for a negative end value.
     gb < 0.0 && {
         let tol = scales.guard_zero(&g.kind, sb.max(terms_magnitude(&g.row, za)));
@@ -185,7 +185,7 @@ impl Simulator {
                 coef.clear();
                 let mut scale = 0.0;
                 for w in terms.terms() {
-                    let (c, a) = dot_and_abs(&g.row, w);
+                    let (c, a) = dot_and_magnitude(&g.row, w);
                     coef.push(c);
                     scale += a;
                 }
@@ -294,7 +294,7 @@ impl Simulator {
                 zb.copy_from_slice(self.z_next.as_slice());
             } else {
                 let bits = d.to_bits();
-                let cache = &mut self.caches[mi].stiff_discs;
+                let cache = &mut self.caches[mi].stiff_steps;
                 if let Some((_, e)) = cache.iter().find(|(k, _)| *k == bits) {
                     propagate::matvec(e, &za, &mut zb);
                 } else {
@@ -351,16 +351,16 @@ fn stiff_root(
     d: f64,
     scales: Scales,
 ) -> Option<f64> {
-    let (ga, sa) = dot_and_abs(&g.row, za);
-    let (gb, sb) = dot_and_abs(&g.row, zb);
+    let (ga, sa) = dot_and_magnitude(&g.row, za);
+    let (gb, sb) = dot_and_magnitude(&g.row, zb);
     let tol = scales.guard_zero(&g.kind, sa.max(sb));
-    let value = |sigma: f64| dot_s(&g.row, &exact_at(&mode.m, za, sigma));
+    let value = |sigma: f64| dot_slices(&g.row, &exact_at(&mode.m, za, sigma));
     if gb < -tol {
         return Some(exact_root(value, 0.0, d, ga, gb));
     }
     // Derivatives within rounding of their terms count as zero.
-    let (da, dsa) = dot_and_abs(&g.drow, za);
-    let (db, dsb) = dot_and_abs(&g.drow, zb);
+    let (da, dsa) = dot_and_magnitude(&g.drow, za);
+    let (db, dsb) = dot_and_magnitude(&g.drow, zb);
     let noise = |s: f64| 64.0 * f64::EPSILON * s;
     if !(da < -noise(dsa) && db > noise(dsb)) {
         return None;
@@ -372,7 +372,7 @@ fn stiff_root(
         if m <= a || m >= b {
             break;
         }
-        if dot_s(&g.drow, &exact_at(&mode.m, za, m)) < 0.0 {
+        if dot_slices(&g.drow, &exact_at(&mode.m, za, m)) < 0.0 {
             a = m;
         } else {
             b = m;
@@ -494,7 +494,7 @@ impl Simulator {
     fn locate_cached(&mut self, mode: &Mode, h: f64) -> Option<Option<Crossing>> {
         let mi = self.mode as usize;
         let bits = h.to_bits();
-        if !self.caches[mi].discs.iter().any(|(b, _)| *b == bits) {
+        if !self.caches[mi].scheduled.iter().any(|(b, _)| *b == bits) {
             return None;
         }
         let pi = match self.caches[mi].polys.iter().position(|p| p.bits == bits) {
@@ -522,9 +522,9 @@ impl Simulator {
         for (gi, g) in mode.guards.iter().enumerate() {
             coef.clear();
             for q in gp.rows[gi].chunks_exact(nz).take(gp.kept[gi]) {
-                coef.push(dot_s(q, z));
+                coef.push(dot_slices(q, z));
             }
-            let scale = dot_s(&gp.abs[gi], za_abs.as_slice());
+            let scale = dot_slices(&gp.abs[gi], za_abs.as_slice());
             let tol = scales.guard_zero(&g.kind, scale);
             if let Some(s) = guard_root(&coef, tol, gp.hints[gi]) {
                 found = merge(found, s * h, bits_of(g), s, h);

@@ -84,7 +84,10 @@ impl SegmentView<'_> {
             self.z0,
             (t - self.t0).max(0.0),
         );
-        Some(dot(self.mode.c.row(id.0).iter().copied(), z.as_slice()))
+        Some(dot_iter(
+            self.mode.c.row(id.0).iter().copied(),
+            z.as_slice(),
+        ))
     }
 }
 
@@ -193,8 +196,8 @@ pub struct Simulator {
     /// before the search by Hamming distance (off only in the tests that
     /// use the search as an oracle).
     pivoting: bool,
-    /// Remembered transitions (see `resolve::Transition`), at most 64.
-    memo: Vec<resolve::Transition>,
+    /// Remembered transitions (see `resolve::Remembered`), at most 64.
+    memo: Vec<resolve::Remembered>,
     /// Whether remembered transitions are replayed (off only in the test
     /// that checks replay gives the same bits as the full search).
     replay: bool,
@@ -253,7 +256,7 @@ struct Stall {
 /// zero); 64 leave room for a large diode network settling in steps.
 const STALL_REPEATS: u32 = 64;
 
-pub(crate) fn dot(a: impl IntoIterator<Item = f64>, b: &[f64]) -> f64 {
+pub(crate) fn dot_iter(a: impl IntoIterator<Item = f64>, b: &[f64]) -> f64 {
     a.into_iter().zip(b).map(|(x, y)| x * y).sum()
 }
 
@@ -570,7 +573,7 @@ impl Simulator {
     /// As [`Simulator::output_value`].
     pub fn value(&self, id: OutputId) -> Result<f64, SolverError> {
         let i = self.checked_row(id)?;
-        Ok(dot(
+        Ok(dot_iter(
             self.modes[self.mode as usize].c.row(i).iter().copied(),
             self.z.as_slice(),
         ))
@@ -946,7 +949,7 @@ impl Simulator {
     pub(super) fn advance_repeated(&mut self, mi: usize, m: &DMatrix<f64>, len: f64) -> bool {
         let bits = len.to_bits();
         let cache = &mut self.caches[mi];
-        if let Some((_, phi)) = cache.again.iter().find(|(b, _)| *b == bits) {
+        if let Some((_, phi)) = cache.repeated.iter().find(|(b, _)| *b == bits) {
             self.stats.cache_hits += 1;
             propagate::matvec(phi, self.z.as_slice(), self.z_next.as_mut_slice());
             return true;
@@ -962,11 +965,11 @@ impl Simulator {
         self.stats.exponentials += 1;
         let phi = propagate::expm(m, len);
         propagate::matvec(&phi, self.z.as_slice(), self.z_next.as_mut_slice());
-        if cache.again.len() < MAX_AGAIN {
-            cache.again.push((bits, phi));
+        if cache.repeated.len() < MAX_AGAIN {
+            cache.repeated.push((bits, phi));
         } else {
-            cache.again[cache.again_next] = (bits, phi);
-            cache.again_next = (cache.again_next + 1) % MAX_AGAIN;
+            cache.repeated[cache.repeated_next] = (bits, phi);
+            cache.repeated_next = (cache.repeated_next + 1) % MAX_AGAIN;
         }
         true
     }
@@ -985,7 +988,7 @@ impl Simulator {
         }
         let cache = &self.caches[mi];
         let mut best: Option<(f64, &DMatrix<f64>)> = None;
-        for (b, phi) in cache.discs.iter().chain(&cache.again) {
+        for (b, phi) in cache.scheduled.iter().chain(&cache.repeated) {
             let d = len - f64::from_bits(*b);
             if d.abs() <= 0.25 * len && best.is_none_or(|(bd, _)| d.abs() < bd.abs()) {
                 best = Some((d, phi));
@@ -1012,7 +1015,7 @@ impl Simulator {
     fn step(&mut self, h: f64, cacheable: bool) {
         let mi = self.mode as usize;
         let bits = h.to_bits();
-        if let Some((_, phi)) = self.caches[mi].discs.iter().find(|(b, _)| *b == bits) {
+        if let Some((_, phi)) = self.caches[mi].scheduled.iter().find(|(b, _)| *b == bits) {
             self.stats.cache_hits += 1;
             propagate::matvec(phi, self.z.as_slice(), self.z_next.as_mut_slice());
             return;
@@ -1041,11 +1044,11 @@ impl Simulator {
     fn step_uncached(&mut self, m: &Mode, h: f64, cacheable: bool, stiff: bool) {
         let mi = self.mode as usize;
         let bits = h.to_bits();
-        if cacheable && self.caches[mi].discs.len() < 16 {
+        if cacheable && self.caches[mi].scheduled.len() < 16 {
             self.stats.exponentials += 1;
             let phi = propagate::expm(&m.m, h);
             propagate::matvec(&phi, self.z.as_slice(), self.z_next.as_mut_slice());
-            self.caches[mi].discs.push((bits, phi));
+            self.caches[mi].scheduled.push((bits, phi));
             return;
         }
         // Lengths that come back, whether spans of the schedule (once 16
@@ -1079,32 +1082,32 @@ type Disc = (u64, DMatrix<f64>);
 /// What is cached for one mode, by the exact bits of interval lengths.
 struct ModeCache {
     /// e^{Mh} for spans of the schedule, at most 16.
-    discs: Vec<Disc>,
+    scheduled: Vec<Disc>,
     /// The latest lengths advanced without a cached exponential (a ring).
     misses: [u64; REPEAT_RING],
     /// e^{Mh} for lengths that came back, at most [`MAX_AGAIN`], and the
     /// next one to replace once full (see `Simulator::advance_repeated`).
-    again: Vec<Disc>,
-    again_next: usize,
+    repeated: Vec<Disc>,
+    repeated_next: usize,
     /// Guard polynomials of scheduled lengths (see `locate.rs`).
     polys: Vec<locate::GuardPolys>,
     /// The mode's eigenvalues, computed at its first stiff span (`None`
     /// before; `Some(None)` where they cannot be trusted).
     spectrum: Option<Option<std::sync::Arc<propagate::Spectrum>>>,
     /// e^{Mδ} for the sub-interval lengths δ of stiff spans.
-    stiff_discs: Vec<Disc>,
+    stiff_steps: Vec<Disc>,
 }
 
 impl Default for ModeCache {
     fn default() -> Self {
         ModeCache {
-            discs: vec![],
+            scheduled: vec![],
             misses: [f64::NAN.to_bits(); REPEAT_RING],
-            again: vec![],
-            again_next: 0,
+            repeated: vec![],
+            repeated_next: 0,
             polys: vec![],
             spectrum: None,
-            stiff_discs: vec![],
+            stiff_steps: vec![],
         }
     }
 }

@@ -32,7 +32,7 @@ use crate::events::{EventKind, JumpInfo};
 use crate::mode::{pattern_text, ConstraintKind, Mode, ModeKey, ModeProblem};
 use crate::options::{OnInterruption, OnShootThrough};
 use crate::propagate;
-use crate::propagate::dot_and_abs;
+use crate::propagate::dot_and_magnitude;
 
 /// Why the best rejected candidate was rejected, kept cheap until needed.
 enum Rejection {
@@ -64,7 +64,7 @@ pub(super) enum Verdict {
 /// `other_rejected` for a guard or an unbalanced current source (every
 /// other candidate before `to` for a structural reason) and accepted `to`
 /// without a jump.
-pub(super) struct Transition {
+pub(super) struct Remembered {
     from: u32,
     switches: u64,
     ramps: u64,
@@ -89,8 +89,8 @@ pub(super) struct Transition {
 /// A `cut_by` entry without a remembered row.
 const NO_ROW: u16 = u16::MAX;
 
-impl Transition {
-    fn same_key(&self, other: &Transition) -> bool {
+impl Remembered {
+    fn same_key(&self, other: &Remembered) -> bool {
         self.leaves(other.from, other.switches, other.ramps, other.flips)
     }
 
@@ -364,7 +364,7 @@ impl Simulator {
             .map(|m| m & !OTHER)
             .collect();
         let (cut_rows, cut_by) = self.cut_rows(&cut_list);
-        let t = Transition {
+        let t = Remembered {
             from: self.mode,
             switches: self.key.switches,
             ramps: self.key.ramps,
@@ -386,7 +386,7 @@ impl Simulator {
 
     /// The distinct cutset rows that cut the modes of `list` at the
     /// present state, and each mode's row among them (see
-    /// [`Transition`]).
+    /// [`Remembered`]).
     fn cut_rows(&self, list: &[u32]) -> (Vec<(u32, u32)>, Vec<u16>) {
         let z = self.z.as_slice();
         let scales = self.seen;
@@ -918,7 +918,7 @@ fn constraint_row(mode: &Mode, r: usize) -> &[f64] {
 /// [`violations`]).
 #[inline(always)]
 fn cuts(row: &[f64], z: &[f64], scales: Scales) -> bool {
-    scales.cuts(propagate::dot_s(row, z))
+    scales.cuts(propagate::dot_slices(row, z))
 }
 
 /// The first inductor cutset of `mode` that carries current at z.
@@ -948,7 +948,9 @@ pub(super) fn violations(
                     list.extend(w.iter().copied());
                 }
             }
-            ConstraintKind::Loop { .. } if scales.loop_holds_voltage(propagate::dot_s(row, z)) => {
+            ConstraintKind::Loop { .. }
+                if scales.loop_holds_voltage(propagate::dot_slices(row, z)) =>
+            {
                 lp = true
             }
             _ => {}
@@ -961,7 +963,7 @@ pub(super) fn violations(
 /// group's gauge current is not zero at z), if any.
 fn unbalanced_source(mode: &Mode, z: &[f64]) -> Option<usize> {
     mode.free_checks.iter().position(|(row, _, _)| {
-        let (v, s) = dot_and_abs(row, z);
+        let (v, s) = dot_and_magnitude(row, z);
         v.abs() > SOURCE_BALANCE_REL * s + 1e-300
     })
 }
@@ -977,7 +979,7 @@ fn guards_hold(mode: &Mode, z: &DVector<f64>, scales: Scales) -> bool {
     let zs = z.as_slice();
     let mut at_zero = false;
     for g in &mode.guards {
-        let (v, s) = dot_and_abs(&g.row, zs);
+        let (v, s) = dot_and_magnitude(&g.row, zs);
         let tol = scales.guard_zero(&g.kind, s);
         if v < -tol {
             return false;
@@ -1004,7 +1006,7 @@ fn guards_hold_at_zero(mode: &Mode, z: &DVector<f64>, scales: Scales) -> bool {
     }
     let mut undecided = 0u64;
     for (gi, g) in mode.guards.iter().enumerate() {
-        let (v, s) = dot_and_abs(&g.row, zs);
+        let (v, s) = dot_and_magnitude(&g.row, zs);
         let tol = scales.guard_zero(&g.kind, s);
         if v < -tol {
             return false;
@@ -1031,7 +1033,7 @@ fn guards_hold_at_zero(mode: &Mode, z: &DVector<f64>, scales: Scales) -> bool {
             let gi = left.trailing_zeros() as usize;
             left &= left - 1;
             let g = &mode.guards[gi];
-            let (v, s) = dot_and_abs(&g.row, d);
+            let (v, s) = dot_and_magnitude(&g.row, d);
             let tol = scales.derivative_zero(&g.kind, s, rate_k);
             if v < -tol {
                 return false;
@@ -1061,7 +1063,7 @@ pub(super) fn violated_guards(
     let mut undecided: Vec<usize> = vec![];
     let zs = z.as_slice();
     for (gi, g) in mode.guards.iter().enumerate() {
-        let (v, s) = dot_and_abs(&g.row, zs);
+        let (v, s) = dot_and_magnitude(&g.row, zs);
         let tol = scales.guard_zero(&g.kind, s);
         if v < -tol {
             violated.push(gi);
@@ -1098,7 +1100,7 @@ pub(super) fn violated_guards(
         let mut still = Vec::with_capacity(undecided.len());
         for &gi in &undecided {
             let g = &mode.guards[gi];
-            let (v, s) = dot_and_abs(&g.row, d);
+            let (v, s) = dot_and_magnitude(&g.row, d);
             let tol = scales.derivative_zero(&g.kind, s, rate_k);
             if v < -tol {
                 violated.push(gi);

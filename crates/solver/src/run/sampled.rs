@@ -5,7 +5,7 @@
 use fluxstep_netlist::{Edge, Gate, Waveform};
 
 use super::schedule::TimeKey;
-use super::{dot, Simulator};
+use super::{dot_iter, Simulator};
 use crate::control::{Apply, Command, Commands, Controller, Sampling};
 use crate::error::SolverError;
 
@@ -138,7 +138,7 @@ impl Simulator {
             .iter()
             .map(|&o| {
                 (!mode.undetermined[o])
-                    .then(|| dot(mode.c.row(o).iter().copied(), self.z.as_slice()))
+                    .then(|| dot_iter(mode.c.row(o).iter().copied(), self.z.as_slice()))
             })
             .collect();
         let mut commands = Commands::default();

@@ -27,7 +27,7 @@ use super::Simulator;
 use crate::crossing::EDGE_REL;
 use crate::error::SolverError;
 use crate::mode::ramp_bit;
-use crate::propagate::dot_s;
+use crate::propagate::dot_slices;
 
 /// Where a switch is in its transition.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -47,7 +47,7 @@ pub(super) enum Phase {
 impl Simulator {
     /// The present value of output `k` (0 where it is undetermined): the
     /// same products summed in the same order as [`Simulator::value`]
-    /// (`dot_s` starts from the same zero as `Iterator::sum`), so the same
+    /// (`dot_slices` starts from the same zero as `Iterator::sum`), so the same
     /// bits, from the contiguous row of Cᵀ instead of a strided row of C.
     #[inline]
     fn output_now(&self, k: usize) -> f64 {
@@ -57,7 +57,7 @@ impl Simulator {
         }
         let z = self.z.as_slice();
         let n = z.len();
-        dot_s(&mode.ct.as_slice()[k * n..(k + 1) * n], z)
+        dot_slices(&mode.ct.as_slice()[k * n..(k + 1) * n], z)
     }
 
     /// Starts the transitions of the switches in `changed` (their new bits
