@@ -121,45 +121,67 @@ impl Simulator {
     /// and the diodes and comparators whose guards fired there. `z_next`
     /// must hold the state at `h` on entry; when τ < h it holds the state
     /// at τ on return.
+    #[inline(always)]
     pub(super) fn locate(&mut self, h: f64) -> Option<Crossing> {
+        let masks = if self.cc.comparators.is_empty() {
+            (0, 0)
+        } else {
+            self.comparator_masks()
+        };
+        if !self.may_cross(h, masks) {
+            return None;
+        }
         // Borrowed out of `self` for the duration (an `Arc` clone costs two
         // atomic operations per interval).
         let modes = std::mem::take(&mut self.modes);
-        let found = self.locate_in(&modes[self.mode as usize], h);
+        let found = self.locate_in(&modes[self.mode as usize], h, masks);
         self.modes = modes;
         found
     }
 
-    fn locate_in(&mut self, mode: &Mode, h: f64) -> Option<Crossing> {
-        let (off_mask, on_mask) = self.comparator_masks();
+    /// Whether an interval of length `h` may hold a crossing of the
+    /// guards active now (`masks`: see `active`): false only where the
+    /// exact end-point checks rule it out, which is the common case of an
+    /// interval with no event. Over one Taylor reach a guard may cross
+    /// only if it ends below zero or dips (`suspect_at_end`); a longer
+    /// interval is always searched.
+    #[inline(always)]
+    fn may_cross(&self, h: f64, (off_mask, on_mask): (u64, u64)) -> bool {
+        let mode = &self.modes[self.mode as usize];
         if mode.guards.is_empty() && off_mask == 0 && on_mask == 0 {
-            return None;
+            return false;
         }
+        if propagate::substeps(mode.rate, h) != 1 {
+            return true;
+        }
+        // The run's scales as of the last resolved instant: floors are
+        // 1e-13 of them, so a lag of one interval does not matter.
+        let scales = self.seen;
+        let (za, zb) = (self.z.as_slice(), self.z_next.as_slice());
+        if off_mask == 0 && on_mask == 0 {
+            // No closed-loop gate: the mode's own guards only, without
+            // the chained iterator.
+            mode.guards
+                .iter()
+                .any(|g| suspect_at_end(g, za, zb, scales))
+        } else {
+            active(mode, off_mask, on_mask).any(|g| suspect_at_end(g, za, zb, scales))
+        }
+    }
+
+    /// The search of [`Simulator::locate`] once `may_cross` holds.
+    #[inline(never)]
+    fn locate_in(
+        &mut self,
+        mode: &Mode,
+        h: f64,
+        (off_mask, on_mask): (u64, u64),
+    ) -> Option<Crossing> {
         let guards = active(mode, off_mask, on_mask);
         let n = propagate::substeps(mode.rate, h);
-        if n == 1 {
-            // Exact end-point checks first: nothing more to do in the
-            // common case of an interval with no event.
-            // The run's scales as of the last resolved instant: floors are
-            // 1e-13 of them, so a lag of one interval does not matter.
-            let scales = self.seen;
-            let (za, zb) = (self.z.as_slice(), self.z_next.as_slice());
-            let suspect = if off_mask == 0 && on_mask == 0 {
-                // No closed-loop gate: the mode's own guards only, without
-                // the chained iterator.
-                mode.guards
-                    .iter()
-                    .any(|g| suspect_at_end(g, za, zb, scales))
-            } else {
-                guards.clone().any(|g| suspect_at_end(g, za, zb, scales))
-            };
-            if !suspect {
-                return None;
-            }
-            if off_mask == 0 && on_mask == 0 && self.poly_cache {
-                if let Some(found) = self.locate_cached(mode, h) {
-                    return found;
-                }
+        if n == 1 && off_mask == 0 && on_mask == 0 && self.poly_cache {
+            if let Some(found) = self.locate_cached(mode, h) {
+                return found;
             }
         }
         if n > propagate::STIFF_SUBSTEPS {

@@ -9,7 +9,6 @@
 //! run actually stops.
 
 mod control;
-mod lane;
 mod lcp;
 mod locate;
 mod record;
@@ -201,9 +200,10 @@ pub struct Simulator {
     /// Whether remembered transitions are replayed (off only in the test
     /// that checks replay gives the same bits as the full search).
     replay: bool,
-    /// Whether the lean driver of `lane.rs` runs (off only in the test
-    /// that checks it gives the same bits as the general loop).
-    lane: bool,
+    /// Whether an instant with nothing but gate edges takes the plain
+    /// path (`Simulator::plain_instant`); off only in the test that checks
+    /// it gives the same bits as the general one.
+    plain: bool,
     /// Whether lengths that come back are cached (off only in the test
     /// that compares with advancing them by Taylor steps).
     cache_repeats: bool,
@@ -214,8 +214,12 @@ pub struct Simulator {
     /// (`advance_near`), and spans of the schedule past the first 16 by the
     /// cache of lengths that come back; off only in tests.
     near_cache: bool,
-    /// Intervals the lane advanced (for the contract test).
-    lane_steps: usize,
+    /// Only gate edges are ever scheduled: constant inputs, no
+    /// controller, no comparator, no transition model (kept by
+    /// `Simulator::new` and `add_controller`).
+    gates_only: bool,
+    /// Instants that took the plain path (for the contract test).
+    plain_instants: usize,
     /// Scratch: the candidate state of a pattern under test.
     z_try: DVector<f64>,
     scratch: propagate::Scratch,
@@ -396,11 +400,12 @@ impl Simulator {
             pivoting: true,
             memo: vec![],
             replay: true,
-            lane: true,
+            plain: true,
             cache_repeats: true,
             poly_cache: true,
             near_cache: true,
-            lane_steps: 0,
+            plain_instants: 0,
+            gates_only: false,
             z_try: DVector::zeros(nz),
             scratch: propagate::Scratch::default(),
             terms: propagate::TaylorTerms::default(),
@@ -441,6 +446,8 @@ impl Simulator {
             }
         }
         sim.const_inputs = sim.constant_inputs();
+        sim.gates_only =
+            sim.const_inputs.is_some() && sim.cc.comparators.is_empty() && sim.ramp_switches == 0;
         sim.set_inputs(0.0);
         sim.key.switches = sim.switch_bits();
         // Edges at t = 0 are already reflected in the initial signal states.
@@ -725,9 +732,6 @@ impl Simulator {
         }
         self.reserve_for(t_end);
         while self.t < t_end {
-            // The usual stretch of periodic edges first; the lane returns
-            // at the first interval it does not handle, untouched.
-            self.run_lane(t_end)?;
             let (t_next, key_next) = self.next_scheduled(t_end);
             // The interval length comes from the schedule's (cycle, phase)
             // pairs when both ends are periodic edges, so the same interval
@@ -762,8 +766,7 @@ impl Simulator {
     /// The located instant of crossing `c` inside the interval being
     /// advanced (`locate` left the state there in `z_next`): logged,
     /// entered, comparators fired, a running transition clamped, and the
-    /// new conduction pattern resolved. Both drivers (this loop and the
-    /// lane) end a located interval here.
+    /// new conduction pattern resolved.
     fn enter_crossing(&mut self, c: Crossing) -> Result<(), SolverError> {
         let (tau, fired, cmp_fired) = (c.time, c.diodes, c.comparators);
         let t_e = self.t + tau;
@@ -1177,26 +1180,30 @@ mod tests {
         assert_eq!(a.waveform.states, b.waveform.states);
     }
 
-    /// Runs a circuit file for `stop` seconds with or without the lane.
-    fn run_lane(file: &str, stop: f64, lane: bool) -> (RunResult, usize) {
-        let c = example(file);
-        let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
-        sim.lane = lane;
-        sim.advance_to(stop).expect("runs");
-        let steps = sim.lane_steps;
-        (sim.finish(), steps)
-    }
-
-    /// Contract: the lane is only a shortcut of the general loop, so every
-    /// converter gives the same bits with and without it — states of every
+    /// Contract: the plain instant is only a shortcut of the general one,
+    /// so every converter gives the same bits with and without it — states of every
     /// segment, the whole event log, and the counters.
     #[test]
-    fn lane_gives_the_same_bits_as_the_general_loop() {
-        let mut lane_steps = vec![];
-        for (file, stop) in EXAMPLES {
-            let (a, steps) = run_lane(file, stop, true);
-            let (b, _) = run_lane(file, stop, false);
-            lane_steps.push((file, steps, a.stats.scheduled_events));
+    fn plain_instants_give_the_same_bits_as_the_general_path() {
+        let mut plain_counts = vec![];
+        // The example converters, and a synchronous buck with transition
+        // models on both switches (ramp phases start and end at plain
+        // instants).
+        let ramps = crate::test_util::sync_buck(None, true);
+        let runs = EXAMPLES
+            .iter()
+            .map(|&(file, stop)| (file, example(file), stop))
+            .chain([("sync buck with transition models", ramps, 1e-3)]);
+        for (file, c, stop) in runs {
+            let run = |plain: bool| {
+                let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
+                sim.plain = plain;
+                sim.advance_to(stop).expect("runs");
+                let steps = sim.plain_instants;
+                (sim.finish(), steps)
+            };
+            let ((a, steps), (b, _)) = (run(true), run(false));
+            plain_counts.push((file, steps, a.stats.scheduled_events));
             assert!(a.events.len() > 10, "{file}: too few events to test");
             assert_eq!(
                 a.events.to_json(),
@@ -1212,30 +1219,38 @@ mod tests {
             assert_eq!(bits(&a), bits(&b), "{file}: segment states differ");
             assert_eq!(a.stats, b.stats, "{file}: counters differ");
         }
-        // The lane must have carried the open-loop fixed-frequency
+        // The plain path must have carried the open-loop fixed-frequency
         // converters for most of their edges, or the test proves nothing.
-        for (file, steps, edges) in lane_steps {
-            if ["buck.json", "boost.json", "sync_buck.json", "buck_dcm.json"].contains(&file) {
+        for (file, steps, edges) in plain_counts {
+            if [
+                "buck.json",
+                "boost.json",
+                "sync_buck.json",
+                "buck_dcm.json",
+                "sync buck with transition models",
+            ]
+            .contains(&file)
+            {
                 assert!(
                     2 * steps > edges,
-                    "{file}: the lane took only {steps} of {edges} edges"
+                    "{file}: the plain path took only {steps} of {edges} edges"
                 );
             }
         }
     }
 
     /// Contract: where the event limit or the chatter window stops a run,
-    /// the lane (which logs an instant's events together) stops it at the
+    /// the plain path (which logs an instant's events together) stops it at the
     /// same event with the same diagnostic and the same log, including
     /// limits that fall between the two events of one instant.
     #[test]
-    fn lane_stops_at_the_same_event_as_the_general_loop() {
+    fn plain_instants_stop_at_the_same_event_as_the_general_path() {
         let c = example("buck.json");
-        let stop = |opts: &Options, lane: bool| {
+        let stop = |opts: &Options, plain: bool| {
             let mut sim = Simulator::new(&c, opts.clone()).expect("compiles");
-            sim.lane = lane;
+            sim.plain = plain;
             let err = sim.advance_to(2e-3).expect_err("must stop");
-            let steps = sim.lane_steps;
+            let steps = sim.plain_instants;
             (format!("{err:?}"), sim.finish(), steps)
         };
         let mut cases: Vec<Options> = [401, 402, 777, 1000]
@@ -1253,26 +1268,28 @@ mod tests {
                 ..Options::default()
             });
         }
-        let mut lane_used = 0;
+        let mut plain_used = 0;
         for opts in &cases {
             let (ea, a, steps) = stop(opts, true);
             let (eb, b, _) = stop(opts, false);
-            lane_used += steps;
+            plain_used += steps;
             assert_eq!(ea, eb, "{opts:?}");
             assert_eq!(a.events.to_json(), b.events.to_json(), "{opts:?}");
             assert_eq!(a.waveform.segments, b.waveform.segments, "{opts:?}");
         }
-        assert!(lane_used > 100, "the lane took only {lane_used} intervals");
+        assert!(
+            plain_used > 100,
+            "the plain path took only {plain_used} instants"
+        );
     }
 
-    /// Contract: the same holds when the run is advanced in pieces (the lane
-    /// stops before each piece's end and resumes after it) and records only
-    /// a window.
+    /// Contract: the same holds when the run is advanced in pieces and
+    /// records only a window.
     #[test]
-    fn lane_gives_the_same_bits_when_stepped() {
+    fn plain_instants_give_the_same_bits_when_stepped() {
         for file in ["buck.json", "buck_dcm.json", "sync_buck.json"] {
             let c = example(file);
-            let stepped = |lane: bool| {
+            let stepped = |plain: bool| {
                 let opts = Options {
                     record: Record::Window {
                         from: 2e-4,
@@ -1281,17 +1298,20 @@ mod tests {
                     ..Options::default()
                 };
                 let mut sim = Simulator::new(&c, opts).expect("compiles");
-                sim.lane = lane;
+                sim.plain = plain;
                 for _ in 0..25 {
                     sim.advance_periods(3).expect("runs");
                 }
                 sim.advance_to(sim.time() + 1.234e-6).expect("runs");
                 sim.advance_periods(2).expect("runs");
-                let steps = sim.lane_steps;
+                let steps = sim.plain_instants;
                 (sim.finish(), steps)
             };
             let ((a, steps), (b, _)) = (stepped(true), stepped(false));
-            assert!(steps > 50, "{file}: the lane took only {steps} intervals");
+            assert!(
+                steps > 50,
+                "{file}: the plain path took only {steps} instants"
+            );
             assert!(a.events.len() > 10, "{file}: too few events to test");
             assert_eq!(a.events.to_json(), b.events.to_json(), "{file}");
             assert_eq!(a.waveform.segments, b.waveform.segments, "{file}");

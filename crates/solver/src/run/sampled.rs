@@ -60,6 +60,7 @@ impl Simulator {
             .iter()
             .map(|n| self.cc.output_index(n))
             .collect::<Result<Vec<_>, _>>()?;
+        self.gates_only = false;
         self.controllers.push(Slot {
             sampling,
             controller,

@@ -160,6 +160,10 @@ impl Simulator {
                 }
             }
         }
+        if self.gates_only {
+            // Nothing else is ever scheduled.
+            return best;
+        }
         if !self.controllers.is_empty() || !self.pending.is_empty() {
             if let Some((time, key)) = self.next_control(self.t) {
                 if time < best.0 || (time == best.0 && best.1.is_none() && key.is_some()) {
@@ -174,7 +178,13 @@ impl Simulator {
                 }
             }
         }
-        for &si in &self.pwl_sources {
+        // Constant sources have no corners.
+        let corners = if self.const_inputs.is_some() {
+            &[][..]
+        } else {
+            &self.pwl_sources[..]
+        };
+        for &si in corners {
             let w = self.cc.sources[si]
                 .waveform
                 .as_ref()
@@ -280,6 +290,9 @@ impl Simulator {
         let n_x = self.cc.n_x;
         self.before.clear();
         crate::propagate::extend_small(&mut self.before, &self.z.as_slice()[..n_x]);
+        if self.plain && self.plain_instants_allowed() {
+            return self.plain_instant(t);
+        }
         let corners = self.set_inputs(t);
         // Set bits in increasing order (none in the usual case).
         let mut rest = corners;
@@ -294,6 +307,60 @@ impl Simulator {
             self.run_controllers(t)?;
         }
         self.settle_instant(t)
+    }
+
+    /// Whether instants can have nothing but gate edges and transition
+    /// phases: constant inputs (no source corner), no controller, no
+    /// comparator.
+    #[inline(always)]
+    fn plain_instants_allowed(&self) -> bool {
+        self.const_inputs.is_some()
+            && self.controllers.is_empty()
+            && self.pending.is_empty()
+            && self.cc.comparators.is_empty()
+    }
+
+    /// [`Simulator::apply_scheduled`] at an instant with nothing but gate
+    /// edges and transition phases (constant inputs, so no source corner;
+    /// no controller, no comparator): the same steps in the same order,
+    /// with the remembered transition tried first and the full `resolve`
+    /// only if it does not apply (its own replay attempt then fails the
+    /// same way, changing nothing). The instant's events are logged
+    /// together (`push_instant`: the same records as one by one). This is
+    /// the instant of every fixed-frequency converter in open loop; a
+    /// contract test checks it gives the bits of the general path.
+    fn plain_instant(&mut self, t: f64) -> Result<(), SolverError> {
+        self.plain_instants += 1;
+        self.set_inputs(t);
+        if self.ramp_next <= coincident_until(t) {
+            self.end_ramps(t);
+        }
+        let old = self.key.switches;
+        if self.take_due_edges(t) {
+            self.key.switches = self.switch_bits();
+        }
+        let switched = old ^ self.key.switches;
+        if switched & self.ramp_switches != 0 {
+            if let Err(e) = self.start_ramps(t, switched) {
+                // The general path logs the switches before their ramps.
+                self.push_instant(t, switched, 0)?;
+                return Err(e);
+            }
+        }
+        let scales = self.update_scales();
+        if self.replay {
+            if let Some((to, projected)) = self.remembered_target(0, scales) {
+                let old = self.enter_remembered(to, projected);
+                return self.push_instant(t, switched, old ^ self.key.diodes);
+            }
+        }
+        self.push_instant(t, switched, 0)?;
+        // The cause as `log_switch_changes` gives it: the last switch.
+        let cause = (switched != 0).then(|| {
+            let i = 63 - switched.leading_zeros() as usize;
+            (i, self.key.switches >> i & 1 == 1)
+        });
+        self.resolve(0, cause, false)
     }
 
     /// Gate edges and comparator ticks due at `t`, then the conduction
