@@ -21,6 +21,8 @@
 //!   (dead time, on-time, diode conduction, …), evaluated by the analysis
 //!   crate.
 //! - [`NetlistError`] and [`Problem`]: what went wrong and where.
+//! - [`graph::UnionFind`]: the disjoint sets behind every connectivity
+//!   check, shared with the solver.
 //!
 //! Sign convention: an element's voltage is v(first terminal) − v(second)
 //! and its current flows first → second through it. Ground is `gnd` (`0`
@@ -53,6 +55,7 @@ mod circuit;
 mod element;
 mod error;
 mod gate;
+pub mod graph;
 mod limits;
 mod loss_data;
 mod resolution;

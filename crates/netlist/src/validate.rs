@@ -42,6 +42,7 @@ use crate::circuit::{is_ground, Circuit, OutputName, GROUND};
 use crate::element::*;
 use crate::error::Problem;
 use crate::gate::Gate;
+use crate::graph::UnionFind;
 use crate::loss_data::CoreModel;
 use crate::timing::TimingCheck;
 use crate::waveform::Waveform;
@@ -161,35 +162,6 @@ fn positive_definite(m: &[Vec<f64>]) -> bool {
         }
     }
     true
-}
-
-/// Union-find over node indices (path halving, union by index so that the
-/// result does not depend on hashing).
-struct Sets(Vec<usize>);
-
-impl Sets {
-    fn new(n: usize) -> Self {
-        Sets((0..n).collect())
-    }
-
-    fn find(&mut self, mut x: usize) -> usize {
-        while self.0[x] != x {
-            self.0[x] = self.0[self.0[x]];
-            x = self.0[x];
-        }
-        x
-    }
-
-    /// Joins the sets of `a` and `b`; false if they were already one.
-    fn union(&mut self, a: usize, b: usize) -> bool {
-        let (ra, rb) = (self.find(a), self.find(b));
-        if ra == rb {
-            return false;
-        }
-        let (lo, hi) = if ra < rb { (ra, rb) } else { (rb, ra) };
-        self.0[hi] = lo;
-        true
-    }
 }
 
 /// The terminal pairs an element joins electrically, as (field, how
@@ -1290,7 +1262,7 @@ impl Checker<'_> {
         };
 
         // Parts with no connection to ground.
-        let mut all = Sets::new(n);
+        let mut all = UnionFind::new(n);
         for b in &branches {
             all.union(b.a, b.b);
         }
@@ -1331,7 +1303,7 @@ impl Checker<'_> {
 
     fn voltage_source_loops(&mut self, branches: &[Branch], names: &[&str]) {
         let n = names.len();
-        let mut sets = Sets::new(n);
+        let mut sets = UnionFind::new(n);
         // The forest of accepted sources, to name the loop a source closes.
         let mut adjacent: Vec<Vec<(usize, usize)>> = vec![Vec::new(); n];
         for b in branches {
@@ -1368,12 +1340,12 @@ impl Checker<'_> {
         branches: &[Branch],
         names: &[&str],
         ground: usize,
-        all: &mut Sets,
+        all: &mut UnionFind,
     ) {
         let n = names.len();
         let circuit = self.circuit;
         let is_cs = |b: &Branch| matches!(circuit.elements[b.element], Element::CurrentSource(_));
-        let mut rest = Sets::new(n);
+        let mut rest = UnionFind::new(n);
         for b in branches.iter().filter(|b| !is_cs(b)) {
             rest.union(b.a, b.b);
         }
