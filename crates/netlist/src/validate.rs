@@ -40,9 +40,10 @@ use std::collections::{HashMap, HashSet, VecDeque};
 
 use crate::circuit::{is_ground, Circuit, OutputName, GROUND};
 use crate::element::*;
-use crate::error::Problem;
+use crate::error::{NetlistError, Problem};
 use crate::gate::Gate;
 use crate::graph::UnionFind;
+use crate::limits::DesignLimits;
 use crate::loss_data::CoreModel;
 use crate::timing::TimingCheck;
 use crate::waveform::Waveform;
@@ -77,6 +78,114 @@ pub fn problems(circuit: &Circuit) -> Vec<Problem> {
             .extend(circuit.time_resolution_problems(run.stop_time));
     }
     c.out
+}
+
+impl Circuit {
+    /// Checks every rule and returns all problems at once.
+    ///
+    /// # Errors
+    ///
+    /// [`NetlistError::Invalid`] with one [`Problem`] per broken rule.
+    pub fn validate(&self) -> Result<(), NetlistError> {
+        let problems = crate::validate::problems(self);
+        if problems.is_empty() {
+            Ok(())
+        } else {
+            Err(NetlistError::Invalid(problems))
+        }
+    }
+}
+
+impl DesignLimits {
+    /// Every problem of these limits within `circuit`, each naming its
+    /// field under `run.limits`: values must be positive and finite, the
+    /// derating factor in (0, 1], a phase margin below 180°, saturation
+    /// currents must name inductors and voltage ratings switches or
+    /// diodes, and the ripple output a node.
+    pub fn problems(&self, circuit: &Circuit) -> Vec<Problem> {
+        let mut out = Vec::new();
+        let mut push = |field: String, message: String| {
+            out.push(Problem {
+                element: None,
+                field: Some(field),
+                node: None,
+                message,
+            })
+        };
+        let positive = |v: f64| v.is_finite() && v > 0.0;
+        if let Some(node) = &self.output {
+            if !circuit.nodes().iter().any(|n| n == node) {
+                push(
+                    "run.limits.output".into(),
+                    format!("no node is named '{node}'"),
+                );
+            }
+        }
+        if let Some(v) = self.max_output_ripple.filter(|v| !positive(*v)) {
+            push(
+                "run.limits.max_output_ripple".into(),
+                format!("must be a positive voltage in volts, got {v}"),
+            );
+        }
+        if let Some(v) = self
+            .derating
+            .filter(|v| !(v.is_finite() && *v > 0.0 && *v <= 1.0))
+        {
+            push(
+                "run.limits.derating".into(),
+                format!("must lie in (0, 1], got {v}"),
+            );
+        }
+        if let Some(v) = self
+            .min_phase_margin
+            .filter(|v| !(v.is_finite() && *v > 0.0 && *v < 180.0))
+        {
+            push(
+                "run.limits.min_phase_margin".into(),
+                format!("must lie in (0, 180) degrees, got {v}"),
+            );
+        }
+        if let Some(v) = self.max_junction_temperature.filter(|v| !v.is_finite()) {
+            push(
+                "run.limits.max_junction_temperature".into(),
+                format!("must be a finite temperature in °C, got {v}"),
+            );
+        }
+        for (list, name, wants) in [
+            (
+                &self.saturation_current,
+                "saturation_current",
+                "an inductor",
+            ),
+            (&self.voltage_rating, "voltage_rating", "a switch or diode"),
+        ] {
+            for (i, p) in list.iter().enumerate() {
+                let at = |f: &str| format!("run.limits.{name}[{i}].{f}");
+                let fits = match circuit.element(&p.element) {
+                    Some(Element::Inductor(_)) => name == "saturation_current",
+                    Some(Element::Switch(_) | Element::Diode(_)) => name == "voltage_rating",
+                    Some(_) => false,
+                    None => {
+                        push(
+                            at("element"),
+                            format!("no element is named '{}'", p.element),
+                        );
+                        continue;
+                    }
+                };
+                if !fits {
+                    push(at("element"), format!("'{}' is not {wants}", p.element));
+                }
+                if !positive(p.value) {
+                    push(
+                        at("value"),
+                        format!("must be positive and finite, got {}", p.value),
+                    );
+                }
+            }
+        }
+        out
+    }
 }
 
 /// How an element is named in problems: its name, or its position when the
