@@ -17,8 +17,8 @@
 //! - `topology`: the element graph — shorted elements, dangling nodes,
 //!   loops of voltage sources, parts without ground, cuts of current
 //!   sources;
-//! - `run`: run settings, timing rules, design limits (`limits`), loads and
-//!   outputs;
+//! - `run`: run settings, timing rules (`timing`), design limits
+//!   (`limits`), loads and outputs;
 //! - `compensators`: names, measured outputs, realisable laws;
 //! - then the size of the circuit and the time resolution of its periods
 //!   (`crate::resolution`).
@@ -34,6 +34,7 @@ mod limits;
 mod names;
 mod outputs;
 mod run;
+mod timing;
 mod topology;
 mod values;
 
