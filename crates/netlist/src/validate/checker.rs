@@ -41,6 +41,7 @@ impl<'a> Checker<'a> {
 }
 
 impl Checker<'_> {
+    /// Reports `message` about `field` of `element`.
     pub(super) fn field(&mut self, element: &str, field: &str, message: String) {
         self.out.push(Problem::field(element, field, message));
     }
@@ -80,7 +81,6 @@ impl Checker<'_> {
         }
     }
 
-    /// Reports a value that is not finite and positive; true if it is.
     /// Reports a frequency that is not positive, or so small that its
     /// period 1/f is not a finite number of seconds (below about 5.6e-309
     /// Hz: a schedule of k·T would be ∞ or NaN); true if it is fine.
@@ -122,6 +122,7 @@ impl Checker<'_> {
         false
     }
 
+    /// Reports a value that is not finite and positive; true if it is.
     pub(super) fn positive(&mut self, element: &str, field: &str, v: f64) -> bool {
         if !self.finite(element, field, v) {
             return false;
@@ -149,12 +150,14 @@ impl Checker<'_> {
         true
     }
 
+    /// [`Checker::finite`] for a value that may be absent.
     pub(super) fn optional_finite(&mut self, element: &str, field: &str, v: Option<f64>) {
         if let Some(v) = v {
             self.finite(element, field, v);
         }
     }
 
+    /// [`Checker::non_negative`] for a value that may be absent.
     pub(super) fn optional_non_negative(&mut self, element: &str, field: &str, v: Option<f64>) {
         if let Some(v) = v {
             self.non_negative(element, field, v);
@@ -202,6 +205,7 @@ pub(super) fn num(v: f64) -> String {
 /// message naming all of 2,000 signals helps nobody.
 const NAMES_SHOWN: usize = 12;
 
+/// Names in quotes, separated by commas, the first [`NAMES_SHOWN`] only.
 pub(super) fn quoted(names: &[&str]) -> String {
     let mut text = names
         .iter()

@@ -10,6 +10,7 @@ use crate::element::Element;
 use crate::gate::{ComparatorSpec, Gate};
 
 impl Checker<'_> {
+    /// Gate names usable and unique, and each gate's values.
     pub(super) fn gates(&mut self) {
         let mut first: HashMap<&str, usize> = HashMap::new();
         for (i, g) in self.circuit.gates.iter().enumerate() {
@@ -39,6 +40,8 @@ impl Checker<'_> {
         }
     }
 
+    /// The timing of a scheduled gate; closed-loop gates go to
+    /// `comparator_values`.
     fn gate_values(&mut self, l: &str, g: &Gate) {
         if let Some(spec) = g.comparator() {
             self.comparator_values(l, g, &spec);
@@ -272,6 +275,7 @@ impl Checker<'_> {
         (f_ok && d_ok).then(|| (1.0 / frequency, duty))
     }
 
+    /// `start` and `stop` finite, `stop` after `start`.
     fn window(&mut self, l: &str, start: Option<f64>, stop: Option<f64>) {
         let start_ok = start.is_none_or(|s| self.finite(l, "start", s));
         let stop_ok = stop.is_none_or(|s| self.finite(l, "stop", s));
@@ -290,6 +294,7 @@ impl Checker<'_> {
         }
     }
 
+    /// Every switch names a gate signal that exists.
     pub(super) fn gate_references(&mut self) {
         let signals: Vec<String> = self
             .circuit

@@ -1,8 +1,7 @@
 //! Circuit rules: every problem is collected, none stops the search.
 //!
-//! The checks run in a fixed order (names, values, gates, gate references,
-//! topology, run settings) so the list of problems is deterministic and
-//! reads in the order of the file. Each [`Problem`] names the element (or
+//! The checks run in a fixed order (below) so the list of problems is
+//! deterministic and reads in the order of the file. Each [`Problem`] names the element (or
 //! gate) by its name — or by its position, `elements[3]`, when the name
 //! itself is unusable — the field as written in JSON, and the node where a
 //! node is involved.

@@ -8,6 +8,8 @@ use crate::element::Element;
 use crate::error::Problem;
 
 impl Checker<'_> {
+    /// Element names usable and unique; winding names of coupled
+    /// inductors usable and unique within their element.
     pub(super) fn element_names(&mut self) {
         let mut first: HashMap<&str, usize> = HashMap::new();
         for (i, e) in self.circuit.elements.iter().enumerate() {

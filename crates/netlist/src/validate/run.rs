@@ -17,6 +17,7 @@ impl Checker<'_> {
         });
     }
 
+    /// The run settings, when there are any.
     pub(super) fn run_settings(&mut self) {
         let Some(run) = &self.circuit.run else { return };
         let stop = run.stop_time;

@@ -38,6 +38,7 @@ struct RuleProblems<'c, 'a> {
 }
 
 impl RuleProblems<'_, '_> {
+    /// Reports `message` about the rule's `field`.
     fn push(&mut self, field: &str, message: String) {
         let at = format!("run.timing[{}].{field}", self.index);
         self.out.push((at, message));

@@ -36,6 +36,8 @@ use crate::error::Problem;
 use crate::graph::UnionFind;
 
 impl Checker<'_> {
+    /// The rules on the element graph, in order (see the module's
+    /// documentation).
     pub(super) fn topology(&mut self) {
         if self.circuit.elements.is_empty() {
             self.out.push(Problem {
@@ -144,6 +146,8 @@ impl Checker<'_> {
         all
     }
 
+    /// A voltage source that closes a loop of voltage sources, named with
+    /// the sources already in the loop.
     fn voltage_source_loops(&mut self, graph: &Graph) {
         let names = &graph.names;
         let n = names.len();
@@ -179,6 +183,8 @@ impl Checker<'_> {
         }
     }
 
+    /// Nodes joined to ground only through current sources; `all` holds
+    /// the connected parts of the whole graph.
     fn current_source_cuts(&mut self, graph: &Graph, ground: usize, all: &mut UnionFind) {
         let (names, branches) = (&graph.names, &graph.branches);
         let n = names.len();
@@ -294,6 +300,7 @@ struct NodeIndex<'c> {
 }
 
 impl<'c> NodeIndex<'c> {
+    /// The number of `node`, numbering it if it is new.
     fn get(&mut self, node: &'c str) -> usize {
         let node = canonical(node);
         if let Some(&i) = self.index.get(node) {

@@ -10,6 +10,7 @@ use crate::loss_data::CoreModel;
 use crate::waveform::Waveform;
 
 impl Checker<'_> {
+    /// The values of element `i`, as its kind requires.
     pub(super) fn element_values(&mut self, i: usize) {
         let label = self.labels[i].clone();
         let l = label.as_str();
@@ -136,6 +137,9 @@ impl Checker<'_> {
         self.optional_finite(l, "thermal.max_junction", t.max_junction);
     }
 
+    /// Coupled inductors: two or more windings, known and distinct
+    /// coupled pairs, each coupling as k or M, and a positive definite
+    /// inductance matrix.
     fn coupled(&mut self, l: &str, x: &CoupledInductors) {
         let mut ok = true;
         if x.windings.len() < 2 {
@@ -234,6 +238,8 @@ impl Checker<'_> {
         }
     }
 
+    /// A source waveform: finite values, increasing times within the
+    /// period, a usable frequency.
     fn waveform(&mut self, l: &str, w: &Waveform) {
         match w {
             Waveform::Constant { value } => {
