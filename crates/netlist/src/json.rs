@@ -2,6 +2,8 @@
 //! the field at fault (`elements[2].inductance`), and arrays in place of
 //! objects are refused.
 
+use serde_json::{Map, Value};
+
 use crate::circuit::Circuit;
 use crate::error::NetlistError;
 
@@ -38,7 +40,7 @@ impl Circuit {
     pub fn from_json_unchecked(text: &str) -> Result<Circuit, NetlistError> {
         // A byte-order mark (some editors write one) is not part of the JSON.
         let text = text.strip_prefix('\u{feff}').unwrap_or(text);
-        if let Ok(value) = serde_json::from_str::<serde_json::Value>(text) {
+        if let Ok(value) = serde_json::from_str::<Value>(text) {
             positional_arrays(&value)?;
         }
         let de = &mut serde_json::Deserializer::from_str(text);
@@ -110,7 +112,8 @@ fn parse_path(path: &str) -> Option<Vec<Step>> {
     Some(steps)
 }
 
-fn value_at<'v>(v: &'v mut serde_json::Value, steps: &[Step]) -> Option<&'v mut serde_json::Value> {
+/// The value at `steps` inside `v`, if there is one.
+fn value_at<'v>(v: &'v mut Value, steps: &[Step]) -> Option<&'v mut Value> {
     steps.iter().try_fold(v, |v, s| match s {
         Step::Key(k) => v.get_mut(k.as_str()),
         Step::Index(i) => v.get_mut(*i),
@@ -144,14 +147,6 @@ fn value_at<'v>(v: &'v mut serde_json::Value, steps: &[Step]) -> Option<&'v mut 
 /// Narrowing stops where no member reproduces the error. This runs only
 /// after a failure, so good input pays nothing for it.
 fn narrow_path(text: &str, path: String, message: &str) -> String {
-    use serde_json::Value;
-
-    // The error of a document as (tracked path, message).
-    let error = |doc: &Value| -> Option<(String, String)> {
-        serde_path_to_error::deserialize::<_, Circuit>(doc)
-            .err()
-            .map(|e| (e.path().to_string(), e.into_inner().to_string()))
-    };
     let (Ok(mut doc), Some(mut shown)) = (serde_json::from_str::<Value>(text), parse_path(&path))
     else {
         return path;
@@ -159,114 +154,32 @@ fn narrow_path(text: &str, path: String, message: &str) -> String {
     // The document read as a value must fail exactly as the text did (the
     // text's message adds "at line L column C"), or the search would chase
     // a different error.
-    let Some(baseline) = error(&doc).filter(|(p, m)| *p == path && message.starts_with(m.as_str()))
+    let Some(baseline) =
+        error_of(&doc).filter(|(p, m)| *p == path && message.starts_with(m.as_str()))
     else {
         return path;
     };
-    let same = |e: Option<(String, String)>| e.as_ref() == Some(&baseline);
-    let missing = baseline
-        .1
-        .strip_prefix("missing field `")
-        .and_then(|r| r.strip_suffix('`'))
-        .map(str::to_string);
-    // A copy of `doc` with the value at `nav` changed by `f`.
-    let changed = |doc: &Value, nav: &[Step], f: &dyn Fn(&mut Value)| {
-        let mut trial = doc.clone();
-        if let Some(v) = value_at(&mut trial, nav) {
-            f(v);
-        }
-        trial
-    };
-    let without = |doc: &Value, nav: &[Step], key: &str| {
-        error(&changed(doc, nav, &|v| {
-            if let Value::Object(m) = v {
-                m.remove(key);
-            }
-        }))
-    };
+    let trace = Trace::new(baseline);
     loop {
-        let here = value_at(&mut doc, &shown).cloned();
-        match here {
-            Some(Value::Array(items)) if !baseline.1.starts_with("invalid length") => {
-                // A wrong length is the list's own fault, not an item's.
-                let prefix = |len: usize| {
-                    changed(&doc, &shown, &|v| {
-                        if let Value::Array(a) = v {
-                            a.truncate(len);
-                        }
-                    })
-                };
-                if items.is_empty() || same(error(&prefix(0))) {
-                    // The emptied list fails the same way: the fault is its own.
-                    break;
-                }
-                // The shortest failing prefix: fails at `hi`, not below `lo`.
-                let (mut lo, mut hi) = (1, items.len());
-                while lo < hi {
-                    let mid = lo + (hi - lo) / 2;
-                    if same(error(&prefix(mid))) {
-                        hi = mid;
-                    } else {
-                        lo = mid + 1;
-                    }
-                }
-                doc = prefix(hi);
-                shown.push(Step::Index(hi - 1));
+        let found = match value_at(&mut doc, &shown).cloned() {
+            // A wrong length is the list's own fault, not an item's.
+            Some(Value::Array(items)) if !trace.baseline.1.starts_with("invalid length") => {
+                trace.in_list(&doc, &shown, items.len())
             }
-            Some(Value::Object(m)) => {
-                let keys: Vec<String> = m.keys().filter(|k| *k != "kind").cloned().collect();
-                if let Some(f) = &missing {
-                    // This object is the one missing `f` if supplying `f`
-                    // changes the error into anything but "unknown field".
-                    if !m.contains_key(f) {
-                        let e = error(&changed(&doc, &shown, &|v| {
-                            if let Value::Object(m) = v {
-                                m.insert(f.clone(), Value::from(0));
-                            }
-                        }));
-                        let unknown = format!("unknown field `{f}`");
-                        if !same(e.clone()) && !e.is_some_and(|(_, m)| m.starts_with(&unknown)) {
-                            break;
-                        }
-                    }
-                    // Only a list or an object can hold the missing field.
-                    let holder = keys.into_iter().find(|k| {
-                        (m[k].is_object() || m[k].is_array()) && !same(without(&doc, &shown, k))
-                    });
-                    match holder {
-                        Some(k) => shown.push(Step::Key(k)),
-                        None => break,
-                    }
-                    continue;
+            Some(Value::Object(m)) => trace.in_object(&doc, &shown, &m),
+            _ => Found::Here(None),
+        };
+        match found {
+            Found::Below(step, cut) => {
+                if let Some(cut) = cut {
+                    doc = cut;
                 }
-                let cut = |keep: Option<&str>| {
-                    changed(&doc, &shown, &|v| {
-                        if let Value::Object(m) = v {
-                            m.retain(|k, _| k == "kind" || Some(k.as_str()) == keep);
-                        }
-                    })
-                };
-                if same(error(&cut(None))) {
-                    // The emptied object fails the same way: the fault is its own.
-                    break;
-                }
-                if let Some(k) = keys.iter().find(|k| same(error(&cut(Some(k))))) {
-                    doc = cut(Some(k));
-                    shown.push(Step::Key(k.clone()));
-                    continue;
-                }
-                // Flattened members are read after the others, so cutting
-                // the object down reports a missing field first; removing
-                // the culprit instead makes the error go away (or become
-                // another one).
-                let removed = keys.into_iter().find(|k| {
-                    let e = without(&doc, &shown, k);
-                    !same(e.clone()) && e.map(|(_, m)| m) != Some(format!("missing field `{k}`"))
-                });
-                shown.extend(removed.map(Step::Key));
+                shown.push(step);
+            }
+            Found::Here(last) => {
+                shown.extend(last);
                 break;
             }
-            _ => break,
         }
     }
     shown.iter().fold(String::new(), |mut out, s| {
@@ -282,6 +195,141 @@ fn narrow_path(text: &str, path: String, message: &str) -> String {
     })
 }
 
+/// The error of a document as (tracked path, message).
+fn error_of(doc: &Value) -> Option<(String, String)> {
+    serde_path_to_error::deserialize::<_, Circuit>(doc)
+        .err()
+        .map(|e| (e.path().to_string(), e.into_inner().to_string()))
+}
+
+/// A copy of `doc` with the value at `nav` changed by `f`.
+fn changed(doc: &Value, nav: &[Step], f: &dyn Fn(&mut Value)) -> Value {
+    let mut trial = doc.clone();
+    if let Some(v) = value_at(&mut trial, nav) {
+        f(v);
+    }
+    trial
+}
+
+/// The error of `doc` without the member `key` of the object at `nav`.
+fn error_without(doc: &Value, nav: &[Step], key: &str) -> Option<(String, String)> {
+    error_of(&changed(doc, nav, &|v| {
+        if let Value::Object(m) = v {
+            m.remove(key);
+        }
+    }))
+}
+
+/// What one level of [`narrow_path`] found.
+enum Found {
+    /// The fault lies below this step; the document is cut down to the
+    /// given copy, if any, from here on.
+    Below(Step, Option<Value>),
+    /// The fault is here, or in the member given, and narrowing stops.
+    Here(Option<Step>),
+}
+
+/// The error being traced, reproduced on changed copies of the document.
+struct Trace {
+    /// The error of the whole document as (tracked path, message).
+    baseline: (String, String),
+    /// The field named by a "missing field" error.
+    missing: Option<String>,
+}
+
+impl Trace {
+    fn new(baseline: (String, String)) -> Self {
+        let missing = baseline
+            .1
+            .strip_prefix("missing field `")
+            .and_then(|r| r.strip_suffix('`'))
+            .map(str::to_string);
+        Trace { baseline, missing }
+    }
+
+    /// Whether an error is the one traced.
+    fn same(&self, e: &Option<(String, String)>) -> bool {
+        e.as_ref() == Some(&self.baseline)
+    }
+
+    /// The culprit in a list of `len` items at `shown`: the last item of
+    /// the shortest prefix that fails the same way.
+    fn in_list(&self, doc: &Value, shown: &[Step], len: usize) -> Found {
+        let prefix = |len: usize| {
+            changed(doc, shown, &|v| {
+                if let Value::Array(a) = v {
+                    a.truncate(len);
+                }
+            })
+        };
+        if len == 0 || self.same(&error_of(&prefix(0))) {
+            // The emptied list fails the same way: the fault is its own.
+            return Found::Here(None);
+        }
+        // The shortest failing prefix: fails at `hi`, not below `lo`.
+        let (mut lo, mut hi) = (1, len);
+        while lo < hi {
+            let mid = lo + (hi - lo) / 2;
+            if self.same(&error_of(&prefix(mid))) {
+                hi = mid;
+            } else {
+                lo = mid + 1;
+            }
+        }
+        Found::Below(Step::Index(hi - 1), Some(prefix(hi)))
+    }
+
+    /// The culprit among the members of the object `m` at `shown`.
+    fn in_object(&self, doc: &Value, shown: &[Step], m: &Map<String, Value>) -> Found {
+        let keys: Vec<String> = m.keys().filter(|k| *k != "kind").cloned().collect();
+        if let Some(f) = &self.missing {
+            // This object is the one missing `f` if supplying `f` changes
+            // the error into anything but "unknown field".
+            if !m.contains_key(f) {
+                let e = error_of(&changed(doc, shown, &|v| {
+                    if let Value::Object(m) = v {
+                        m.insert(f.clone(), Value::from(0));
+                    }
+                }));
+                let unknown = format!("unknown field `{f}`");
+                if !self.same(&e) && !e.is_some_and(|(_, m)| m.starts_with(&unknown)) {
+                    return Found::Here(None);
+                }
+            }
+            // Only a list or an object can hold the missing field.
+            let holder = keys.into_iter().find(|k| {
+                (m[k].is_object() || m[k].is_array()) && !self.same(&error_without(doc, shown, k))
+            });
+            return match holder {
+                Some(k) => Found::Below(Step::Key(k), None),
+                None => Found::Here(None),
+            };
+        }
+        let cut = |keep: Option<&str>| {
+            changed(doc, shown, &|v| {
+                if let Value::Object(m) = v {
+                    m.retain(|k, _| k == "kind" || Some(k.as_str()) == keep);
+                }
+            })
+        };
+        if self.same(&error_of(&cut(None))) {
+            // The emptied object fails the same way: the fault is its own.
+            return Found::Here(None);
+        }
+        if let Some(k) = keys.iter().find(|k| self.same(&error_of(&cut(Some(k))))) {
+            return Found::Below(Step::Key(k.clone()), Some(cut(Some(k))));
+        }
+        // Flattened members are read after the others, so cutting the
+        // object down reports a missing field first; removing the culprit
+        // instead makes the error go away (or become another one).
+        let removed = keys.into_iter().find(|k| {
+            let e = error_without(doc, shown, k);
+            !self.same(&e) && e.map(|(_, m)| m) != Some(format!("missing field `{k}`"))
+        });
+        Found::Here(removed.map(Step::Key))
+    }
+}
+
 /// Refuses arrays where the format has objects. serde reads a struct or a
 /// tagged enum from a sequence of its fields in order, so without this
 /// check `["inductor", "L1", ["sw", "out"], "22u"]` would pass for an
@@ -289,8 +337,7 @@ fn narrow_path(text: &str, path: String, message: &str) -> String {
 /// field is added. Apart from the matrix `a` of a state-space law, no field
 /// of the format holds an array of arrays, so an array inside an array is
 /// such a positional object; the top level and `run` must be objects.
-fn positional_arrays(value: &serde_json::Value) -> Result<(), NetlistError> {
-    use serde_json::Value;
+fn positional_arrays(value: &Value) -> Result<(), NetlistError> {
     fn walk(v: &Value, path: &mut String) -> Result<(), NetlistError> {
         match v {
             Value::Array(items) => {
