@@ -46,6 +46,16 @@ impl Checker<'_> {
         self.out.push(Problem::field(element, field, message));
     }
 
+    /// Reports a problem of the run settings at `field` (no element).
+    pub(super) fn run_problem(&mut self, field: &str, message: String) {
+        self.out.push(Problem {
+            element: None,
+            field: Some(field.into()),
+            node: None,
+            message,
+        });
+    }
+
     /// Reports every time in `times` that does not follow its predecessor
     /// (`what`: "point" or "transition"; `field` names entry i).
     pub(super) fn strictly_increasing(

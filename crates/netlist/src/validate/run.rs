@@ -7,16 +7,6 @@ use crate::circuit::OutputName;
 use crate::error::Problem;
 
 impl Checker<'_> {
-    /// Reports a problem of the run settings at `field` (no element).
-    pub(super) fn run_problem(&mut self, field: &str, message: String) {
-        self.out.push(Problem {
-            element: None,
-            field: Some(field.into()),
-            node: None,
-            message,
-        });
-    }
-
     /// The run settings, when there are any.
     pub(super) fn run_settings(&mut self) {
         let Some(run) = &self.circuit.run else { return };
