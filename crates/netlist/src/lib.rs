@@ -21,6 +21,8 @@
 //!   (dead time, on-time, diode conduction, …), evaluated by the analysis
 //!   crate.
 //! - [`NetlistError`] and [`Problem`]: what went wrong and where.
+//! - [`graph::UnionFind`]: the disjoint sets behind every connectivity
+//!   check, shared with the solver.
 //!
 //! Sign convention: an element's voltage is v(first terminal) − v(second)
 //! and its current flows first → second through it. Ground is `gnd` (`0`
@@ -49,10 +51,13 @@
 // embedding API, so each one must say what it means.
 #![deny(missing_docs)]
 
+mod builder;
 mod circuit;
 mod element;
 mod error;
 mod gate;
+pub mod graph;
+mod json;
 mod limits;
 mod loss_data;
 mod resolution;
@@ -61,9 +66,10 @@ mod validate;
 mod value;
 mod waveform;
 
+pub use builder::CircuitBuilder;
 pub use circuit::{
-    is_ground, Circuit, CircuitBuilder, Compensator, CompensatorLaw, InterruptionPolicy,
-    OutputName, RunSettings, ShootThroughPolicy, GROUND, OUTPUT_FORMS,
+    is_ground, Circuit, Compensator, CompensatorLaw, InterruptionPolicy, OutputName, RunSettings,
+    ShootThroughPolicy, GROUND, OUTPUT_FORMS,
 };
 pub use element::*;
 pub use error::{NetlistError, Problem};

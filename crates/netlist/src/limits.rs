@@ -1,14 +1,12 @@
 //! Design limits of a circuit file's run settings: the figures a design
 //! review checks a converter against (output ripple, inductor saturation,
 //! switch voltage ratings with derating, phase margin, junction
-//! temperature), validated against the circuit they belong to.
+//! temperature). The rules that check them against the circuit they
+//! belong to are with the other circuit rules (`validate`).
 
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 
-use crate::circuit::Circuit;
-use crate::element::Element;
-use crate::error::Problem;
 use crate::value::{self, SiValue};
 
 /// Limits a design must meet; every field is optional and only the limits
@@ -86,95 +84,5 @@ impl DesignLimits {
     /// The derating factor (1 by default).
     pub fn derating_factor(&self) -> f64 {
         self.derating.unwrap_or(1.0)
-    }
-
-    /// Every problem of these limits within `circuit`, each naming its
-    /// field under `run.limits`: values must be positive and finite, the
-    /// derating factor in (0, 1], a phase margin below 180°, saturation
-    /// currents must name inductors and voltage ratings switches or
-    /// diodes, and the ripple output a node.
-    pub fn problems(&self, circuit: &Circuit) -> Vec<Problem> {
-        let mut out = Vec::new();
-        let mut push = |field: String, message: String| {
-            out.push(Problem {
-                element: None,
-                field: Some(field),
-                node: None,
-                message,
-            })
-        };
-        let positive = |v: f64| v.is_finite() && v > 0.0;
-        if let Some(node) = &self.output {
-            if !circuit.nodes().iter().any(|n| n == node) {
-                push(
-                    "run.limits.output".into(),
-                    format!("no node is named '{node}'"),
-                );
-            }
-        }
-        if let Some(v) = self.max_output_ripple.filter(|v| !positive(*v)) {
-            push(
-                "run.limits.max_output_ripple".into(),
-                format!("must be a positive voltage in volts, got {v}"),
-            );
-        }
-        if let Some(v) = self
-            .derating
-            .filter(|v| !(v.is_finite() && *v > 0.0 && *v <= 1.0))
-        {
-            push(
-                "run.limits.derating".into(),
-                format!("must lie in (0, 1], got {v}"),
-            );
-        }
-        if let Some(v) = self
-            .min_phase_margin
-            .filter(|v| !(v.is_finite() && *v > 0.0 && *v < 180.0))
-        {
-            push(
-                "run.limits.min_phase_margin".into(),
-                format!("must lie in (0, 180) degrees, got {v}"),
-            );
-        }
-        if let Some(v) = self.max_junction_temperature.filter(|v| !v.is_finite()) {
-            push(
-                "run.limits.max_junction_temperature".into(),
-                format!("must be a finite temperature in °C, got {v}"),
-            );
-        }
-        for (list, name, wants) in [
-            (
-                &self.saturation_current,
-                "saturation_current",
-                "an inductor",
-            ),
-            (&self.voltage_rating, "voltage_rating", "a switch or diode"),
-        ] {
-            for (i, p) in list.iter().enumerate() {
-                let at = |f: &str| format!("run.limits.{name}[{i}].{f}");
-                let fits = match circuit.element(&p.element) {
-                    Some(Element::Inductor(_)) => name == "saturation_current",
-                    Some(Element::Switch(_) | Element::Diode(_)) => name == "voltage_rating",
-                    Some(_) => false,
-                    None => {
-                        push(
-                            at("element"),
-                            format!("no element is named '{}'", p.element),
-                        );
-                        continue;
-                    }
-                };
-                if !fits {
-                    push(at("element"), format!("'{}' is not {wants}", p.element));
-                }
-                if !positive(p.value) {
-                    push(
-                        at("value"),
-                        format!("must be positive and finite, got {}", p.value),
-                    );
-                }
-            }
-        }
-        out
     }
 }
