@@ -1,0 +1,231 @@
+//! Step 4 of a mode: the constraints of inductor cutsets and capacitor
+//! loops, the multipliers λ that keep them (a pseudo-inverse where only
+//! part of them is fixed), the jump map `P` that restores them on entry,
+//! and the reduced system: `M = D_z + D_λ·λ` and every unknown as a
+//! function of z and the free gauges.
+
+use nalgebra::DMatrix;
+
+use crate::compile::{BranchKind, Compiled};
+
+use super::network::Network;
+use super::topology::Topology;
+use super::{ConstraintKind, NoSolution};
+
+/// Rounding errors (in units of ε) within which an entry of a mode's M
+/// formed by a multiplier's cancellation counts as zero: the sums and
+/// products that form it have a few dozen terms at most in the circuits
+/// fluxstep handles, and a genuine entry that small next to the terms
+/// it cancels would be below what the run could resolve anyway.
+const CANCELLATION_ULPS: f64 = 64.0;
+
+/// The system of a pattern with its multipliers eliminated.
+pub(super) struct Reduced {
+    /// z' = M z.
+    pub m: DMatrix<f64>,
+    /// Jump map z⁺ = P z⁻ restoring the constraints.
+    pub p: DMatrix<f64>,
+    /// Constraint rows H restricted to z.
+    pub hz: DMatrix<f64>,
+    /// What each row of H is about.
+    pub constraints: Vec<ConstraintKind>,
+    /// Every unknown of the network over z and the free gauges.
+    pub rows: UnknownRows,
+}
+
+/// Every unknown of the network (node voltages, branch and gauge
+/// currents) with the multipliers eliminated.
+pub(super) struct UnknownRows {
+    /// Each unknown as a function of z.
+    pub yz: DMatrix<f64>,
+    /// Each unknown's dependence on the free gauges (free groups first,
+    /// then the null directions of the multipliers).
+    pub yf: DMatrix<f64>,
+    /// Columns of `yf`.
+    pub n_free: usize,
+}
+
+/// The multipliers as functions of z, and what they leave free.
+struct Multipliers {
+    /// λ = lam·z.
+    lam: DMatrix<f64>,
+    /// The jump map.
+    p: DMatrix<f64>,
+    /// Magnitudes that make up each entry of D_λ·λ.
+    made_of: DMatrix<f64>,
+    /// Null directions of S (columns over λ): free gauges.
+    null_dirs: DMatrix<f64>,
+}
+
+/// The reason given where a set of constraints has no usable solution.
+const UNRESOLVED: NoSolution =
+    NoSolution("a set of windings or capacitors whose constraint cannot be resolved");
+
+impl Reduced {
+    /// Eliminates the multipliers of `net` from the derivatives `d`.
+    pub(super) fn new(
+        cc: &Compiled,
+        topo: &Topology,
+        net: &Network,
+        d: &DMatrix<f64>,
+    ) -> Result<Reduced, NoSolution> {
+        let cols = net.cols;
+        let (nz, n_lam) = (cols.nz, cols.n_lam);
+        let (h, constraints) = constraint_rows(cc, topo, net);
+        let hz = h.columns(0, nz).into_owned();
+        let dz = d.columns(0, nz).into_owned();
+        let dl = d.columns(nz, n_lam).into_owned();
+        let Multipliers {
+            lam,
+            p,
+            made_of,
+            null_dirs,
+        } = if n_lam > 0 {
+            multipliers(&hz, &dz, &dl)?
+        } else {
+            Multipliers {
+                lam: DMatrix::zeros(0, nz),
+                p: DMatrix::identity(nz, nz),
+                made_of: DMatrix::zeros(nz, nz),
+                null_dirs: DMatrix::<f64>::zeros(n_lam, 0),
+            }
+        };
+        let y = &net.y;
+        let n_unk = net.unknowns.count;
+        let yz = y.columns(0, nz).into_owned() + y.columns(nz, n_lam) * &lam;
+        let n_null = null_dirs.ncols();
+        let n_free = cols.n_free + n_null;
+        let mut yf = DMatrix::<f64>::zeros(n_unk, n_free);
+        yf.columns_mut(0, n_free - n_null)
+            .copy_from(&y.columns(nz + n_lam, n_free - n_null));
+        if n_null > 0 {
+            yf.columns_mut(n_free - n_null, n_null)
+                .copy_from(&(y.columns(nz, n_lam) * &null_dirs));
+        }
+        let mut m = &dz + &dl * &lam;
+        if n_lam > 0 {
+            cancel(&mut m, &dz, &made_of);
+        }
+        Ok(Reduced {
+            m,
+            p,
+            hz,
+            constraints,
+            rows: UnknownRows { yz, yf, n_free },
+        })
+    }
+}
+
+/// The constraint rows H over the columns (Kirchhoff's current law on each
+/// cutset: its gauge current; each loop capacitor's voltage minus the
+/// loop's) and their kinds.
+fn constraint_rows(
+    cc: &Compiled,
+    topo: &Topology,
+    net: &Network,
+) -> (DMatrix<f64>, Vec<ConstraintKind>) {
+    let mut h = DMatrix::<f64>::zeros(net.cols.n_lam, net.cols.total);
+    let mut constraints = vec![];
+    for (ci, &c) in topo.cut.iter().enumerate() {
+        h.set_row(ci, &net.y.row(net.unknowns.gauge[c]));
+        constraints.push(ConstraintKind::Cutset {
+            windings: topo.floating[c].windings.clone(),
+            node: topo.rep(c),
+        });
+    }
+    for (li, lp) in topo.loops.iter().enumerate() {
+        let b = &cc.branches[lp.cap];
+        let BranchKind::Capacitor { state, .. } = b.kind else {
+            unreachable!("loops are closed by capacitors")
+        };
+        let mut row = -(net.vrow(b.a) - net.vrow(b.b));
+        row[state] += 1.0;
+        h.set_row(topo.cut.len() + li, &row.transpose());
+        let mut all = lp.others.clone();
+        all.insert(0, lp.cap);
+        constraints.push(ConstraintKind::Loop { caps: all });
+    }
+    (h, constraints)
+}
+
+/// Multipliers λ make the constraints' time derivatives vanish:
+/// S·λ = −H·D_z·z with S = H·D_λ. S may be singular when two floating
+/// groups are joined only by a winding (a transformer secondary feeding a
+/// blocked bridge): only their potential difference is fixed. The
+/// pseudo-inverse picks the determined part; the null directions of S are
+/// free gauges like those of groups reached by nothing, provided they move
+/// no state (checked).
+///
+/// If the state violates a constraint when the mode is entered, the jump
+/// `z⁺ = (I − D_λ S⁺ H) z⁻` is the impulsive multiplier that restores it.
+fn multipliers(
+    hz: &DMatrix<f64>,
+    dz: &DMatrix<f64>,
+    dl: &DMatrix<f64>,
+) -> Result<Multipliers, NoSolution> {
+    let (nz, n_lam) = (hz.ncols(), hz.nrows());
+    let mut null_dirs = DMatrix::<f64>::zeros(n_lam, 0);
+    let s = hz * dl;
+    let svd = s.clone().svd(true, true);
+    let (u, vt) = (
+        svd.u.as_ref().expect("asked for u"),
+        svd.v_t.as_ref().expect("asked for v"),
+    );
+    let smax = svd.singular_values.iter().fold(0.0f64, |a, &b| a.max(b));
+    let tol = 1e-10 * smax;
+    let mut s_pinv = DMatrix::<f64>::zeros(n_lam, n_lam);
+    let mut nulls = vec![];
+    for (k, &sv) in svd.singular_values.iter().enumerate() {
+        if sv.is_nan() {
+            nulls.clear();
+            break;
+        }
+        if sv > tol {
+            s_pinv += vt.row(k).transpose() * u.column(k).transpose() / sv;
+        } else {
+            nulls.push(vt.row(k).transpose());
+        }
+    }
+    if smax.is_nan() {
+        return Err(UNRESOLVED);
+    }
+    if !nulls.is_empty() {
+        null_dirs = DMatrix::from_columns(&nulls);
+        // A free direction must not move any state, or the mode's
+        // dynamics would be undetermined.
+        let moved = dl * &null_dirs;
+        let scale = dl.amax().max(f64::MIN_POSITIVE);
+        if moved.amax() > 1e-9 * scale {
+            return Err(UNRESOLVED);
+        }
+    }
+    let lam = -&s_pinv * (hz * dz);
+    let p = DMatrix::identity(nz, nz) - dl * &s_pinv * hz;
+    // What each entry of D_λ·λ is made of, in magnitude: the scale of the
+    // rounding left where M cancels (see `cancel`).
+    let made_of = dl.abs() * (s_pinv.abs() * (hz.abs() * dz.abs()));
+    Ok(Multipliers {
+        lam,
+        p,
+        made_of,
+        null_dirs,
+    })
+}
+
+/// The multipliers cancel the dynamics a cut or loop forbids (a cut
+/// inductor's v/L) exactly in theory, but only to rounding of the terms in
+/// f64: 1/L·ε for an inductance L. With L = 1e-300 H that residue
+/// (1e284 /s) coupled to a capacitor is a fake oscillation of 1e144 rad/s,
+/// and the run refused an ordinary dead time. An entry of `m` within a few
+/// rounding errors of the terms it was summed from (`dz` and `made_of`) is
+/// zero (the usual error bound of a sum and a product, n·ε·Σ|terms|:
+/// N. J. Higham, *Accuracy and Stability of Numerical Algorithms*, 2nd ed.,
+/// 2002, §3.1; from memory).
+fn cancel(m: &mut DMatrix<f64>, dz: &DMatrix<f64>, made_of: &DMatrix<f64>) {
+    let floor = CANCELLATION_ULPS * f64::EPSILON;
+    for (v, (a, b)) in m.iter_mut().zip(dz.iter().zip(made_of.iter())) {
+        if v.abs() <= floor * (a.abs() + b) {
+            *v = 0.0;
+        }
+    }
+}
