@@ -229,3 +229,128 @@ fn cancel(m: &mut DMatrix<f64>, dz: &DMatrix<f64>, made_of: &DMatrix<f64>) {
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use fluxstep_netlist::Circuit;
+
+    use crate::mode::testing::{buck, built, near, source_column, state};
+    use crate::mode::ConstraintKind;
+
+    /// Closing a switch from a source onto a capacitor: the loop fixes the
+    /// capacitor at the source's voltage, so the jump sets it to the
+    /// source's input whatever it held, and afterwards moves with the
+    /// input's slope alone (common practice).
+    #[test]
+    fn capacitor_loop_across_a_source_jumps_to_the_source_voltage() {
+        let c = Circuit::builder()
+            .voltage_source("Vin", "in", "gnd", 10.0)
+            .switch("S1", "in", "c", "drive")
+            .capacitor("C1", "c", "gnd", 1e-6)
+            .resistor("R", "c", "gnd", 1e3)
+            .pwm("drive", 100e3, 0.5)
+            .build()
+            .expect("valid");
+        let (cc, mode) = built(&c, 1, 0);
+        assert!(mode.problem.is_none());
+        let (v, u) = (state(&cc, "C1.voltage"), source_column(&cc, "Vin"));
+        assert!(
+            matches!(&mode.constraints[..], [ConstraintKind::Loop { caps }] if caps.len() == 1)
+        );
+        for col in 0..cc.n_z() {
+            let want = if col == u { 1.0 } else { 0.0 };
+            assert!(near(mode.p[(v, col)], want, 1.0), "P[v,{col}]");
+        }
+        let slope = u + cc.n_u;
+        for col in 0..cc.n_z() {
+            let want = if col == slope { 1.0 } else { 0.0 };
+            assert!(near(mode.m[(v, col)], want, 1.0), "M[v,{col}]");
+        }
+        // Open, the capacitor discharges into R alone: no constraint.
+        let (_, open) = built(&c, 0, 0);
+        assert!(open.constraints.is_empty());
+        assert!(near(open.m[(v, v)], -1.0 / (1e3 * 1e-6), 1e3));
+    }
+
+    /// Two capacitors (1 µF, 3 µF) joined by a closing switch share their
+    /// charge: both jump to (C1·v1 + C2·v2)/(C1 + C2) (conservation of
+    /// charge; common practice).
+    #[test]
+    fn capacitor_loop_conserves_charge() {
+        let c = Circuit::builder()
+            .capacitor_with_voltage("C1", "a", "gnd", 1e-6, 10.0)
+            .capacitor("C2", "b", "gnd", 3e-6)
+            .timed_switch("S1", "a", "b", &[(1e-6, true)])
+            .build()
+            .expect("valid");
+        let (cc, mode) = built(&c, 1, 0);
+        assert!(mode.problem.is_none());
+        let (v1, v2) = (state(&cc, "C1.voltage"), state(&cc, "C2.voltage"));
+        for row in [v1, v2] {
+            assert!(near(mode.p[(row, v1)], 0.25, 1.0), "{}", mode.p);
+            assert!(near(mode.p[(row, v2)], 0.75, 1.0), "{}", mode.p);
+        }
+        // The charge after the jump equals the charge before.
+        let z: Vec<f64> = (0..cc.n_z())
+            .map(|k| match k {
+                k if k == v1 => 10.0,
+                k if k == v2 => 2.0,
+                _ => 0.0,
+            })
+            .collect();
+        let after = &mode.p * nalgebra::DVector::from_vec(z);
+        let q = 1e-6 * after[v1] + 3e-6 * after[v2];
+        assert!(near(q, 1e-6 * 10.0 + 3e-6 * 2.0, 1e-5));
+        assert!(near(after[v1], after[v2], 10.0));
+    }
+
+    /// Two inductors (1 µH, 3 µH) in series whose middle node loses its
+    /// switch to ground form a cutset: both currents jump to
+    /// (L1·i1 + L2·i2)/(L1 + L2), which conserves the flux linkage
+    /// L1·i1 + L2·i2 (common practice).
+    #[test]
+    fn inductor_cutset_conserves_flux_linkage() {
+        let c = Circuit::builder()
+            .resistor("R", "a", "gnd", 1.0)
+            .inductor("L1", "a", "mid", 1e-6)
+            .inductor("L2", "mid", "gnd", 3e-6)
+            .switch("S1", "mid", "gnd", "drive")
+            .pwm("drive", 100e3, 0.5)
+            .build()
+            .expect("valid");
+        let (cc, mode) = built(&c, 0, 0);
+        assert!(mode.problem.is_none());
+        let (i1, i2) = (state(&cc, "L1.current"), state(&cc, "L2.current"));
+        assert!(
+            matches!(&mode.constraints[..], [ConstraintKind::Cutset { windings, .. }] if windings.len() == 2)
+        );
+        for row in [i1, i2] {
+            assert!(near(mode.p[(row, i1)], 0.25, 1.0), "{}", mode.p);
+            assert!(near(mode.p[(row, i2)], 0.75, 1.0), "{}", mode.p);
+        }
+        // Afterwards the two currents move together: (L1 + L2) di/dt = −R i.
+        for row in [i1, i2] {
+            let rate = mode.m[(row, i1)] + mode.m[(row, i2)];
+            assert!(near(rate, -1.0 / 4e-6, 1e6), "{}", mode.m);
+        }
+        // Closed, the switch leaves no cutset.
+        let (_, closed) = built(&c, 1, 0);
+        assert!(closed.constraints.is_empty());
+    }
+
+    /// The buck's idle interval (switch and diode off) cuts its lone
+    /// inductor: the jump takes its current to zero and its voltage is
+    /// zero while the capacitor discharges into the load (common practice).
+    #[test]
+    fn lone_inductor_cutset_jumps_to_zero_current() {
+        let (cc, mode) = built(&buck(), 0, 0);
+        assert!(mode.problem.is_none());
+        let (i, v) = (state(&cc, "L1.current"), state(&cc, "C1.voltage"));
+        assert_eq!(mode.p[(i, i)], 0.0);
+        assert_eq!(mode.p[(v, v)], 1.0);
+        for col in 0..cc.n_z() {
+            assert_eq!(mode.m[(i, col)], 0.0, "M[i,{col}]");
+        }
+        assert!(near(mode.m[(v, v)], -1.0 / (5.0 * 100e-6), 1e4));
+    }
+}

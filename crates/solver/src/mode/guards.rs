@@ -5,7 +5,7 @@
 
 use nalgebra::{DMatrix, DVector};
 
-use crate::compile::{CompiledComparison, Compiled, OutputDef};
+use crate::compile::{Compiled, CompiledComparison, OutputDef};
 
 use super::network::Network;
 use super::outputs::{Outputs, Solved};
@@ -148,4 +148,42 @@ pub(super) fn comparator_guards(
         cmp_guards.push([make(&cmp.turn_off, true), make(&cmp.turn_on, false)]);
     }
     cmp_guards
+}
+
+#[cfg(test)]
+mod tests {
+    use crate::mode::testing::{buck, built, near, source_column, state};
+    use crate::mode::GuardKind;
+
+    /// The buck's diode guards (common practice for an ideal diode): while
+    /// it blocks with the switch on, Vf − v_D is the source's input (Vf is
+    /// zero and its cathode sits at the source); while it freewheels, its current is the inductor's. Each
+    /// guard's derivative row is row·M.
+    #[test]
+    fn buck_diode_guards() {
+        let (cc, on) = built(&buck(), 1, 0);
+        let u = source_column(&cc, "Vin");
+        let [g] = &on.guards[..] else {
+            panic!("one guard: {:?}", on.guards)
+        };
+        assert_eq!(g.kind, GuardKind::DiodeVoltage(0));
+        for (k, &v) in g.row.iter().enumerate() {
+            assert!(near(v, if k == u { 1.0 } else { 0.0 }, 1.0), "{:?}", g.row);
+        }
+        let (cc, free) = built(&buck(), 0, 1);
+        let i = state(&cc, "L1.current");
+        let [g] = &free.guards[..] else {
+            panic!("one guard: {:?}", free.guards)
+        };
+        assert_eq!(g.kind, GuardKind::DiodeCurrent(0));
+        for (k, &v) in g.row.iter().enumerate() {
+            assert!(near(v, if k == i { 1.0 } else { 0.0 }, 1.0), "{:?}", g.row);
+        }
+        for (k, &d) in g.drow.iter().enumerate() {
+            let want: f64 = (0..cc.n_z()).map(|j| g.row[j] * free.m[(j, k)]).sum();
+            assert!(near(d, want, 1e4), "drow[{k}] = {d}, want {want}");
+        }
+        assert!(free.free_checks.is_empty());
+        assert!(free.cmp_guards.is_empty());
+    }
 }

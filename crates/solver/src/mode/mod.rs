@@ -66,7 +66,6 @@ use outputs::{Outputs, Solved};
 pub(crate) use rate::balanced_norm;
 use topology::{Conduction, Topology};
 
-
 /// A conduction pattern: bit i of `switches` is switch i on, bit j of
 /// `diodes` is diode j conducting, bits 2i and 2i + 1 of `ramps` switch i
 /// in a voltage or current ramp of its transition model.
@@ -301,5 +300,73 @@ pub(crate) fn pattern_text(cc: &Compiled, key: ModeKey) -> String {
         "no switches or diodes".into()
     } else {
         parts.join(", ")
+    }
+}
+
+/// Fixtures of the steps' unit tests.
+#[cfg(test)]
+pub(super) mod testing {
+    use fluxstep_netlist::Circuit;
+
+    use super::{Mode, ModeKey};
+    use crate::compile::Compiled;
+
+    /// The mode of `circuit` with switch bits `switches` and diode bits
+    /// `diodes` (no ramps), beside the compiled circuit.
+    pub(crate) fn built(circuit: &Circuit, switches: u64, diodes: u64) -> (Compiled, Mode) {
+        let cc = Compiled::compile(circuit).expect("compiles");
+        let key = ModeKey {
+            switches,
+            diodes,
+            ramps: 0,
+        };
+        let mode = Mode::build(&cc, key).expect("builds");
+        (cc, mode)
+    }
+
+    /// The z index of the state called `name`.
+    pub(crate) fn state(cc: &Compiled, name: &str) -> usize {
+        cc.state_names
+            .iter()
+            .position(|s| s == name)
+            .unwrap_or_else(|| panic!("no state {name}"))
+    }
+
+    /// The z index of the input that source `name` follows (a constant
+    /// source is a piecewise-linear input of its own, set at run time).
+    pub(crate) fn source_column(cc: &Compiled, name: &str) -> usize {
+        let src = cc
+            .sources
+            .iter()
+            .find(|s| s.name == name)
+            .unwrap_or_else(|| panic!("no source {name}"));
+        match src.terms[..] {
+            [(col, 1.0)] => col,
+            _ => panic!("{name} is not a plain input"),
+        }
+    }
+
+    /// An asynchronous buck (demo values): 12 V in, ideal switch S1 and
+    /// diode D1, L1 = 100 µH, C1 = 100 µF, R = 5 Ω.
+    pub(crate) const BUCK: (f64, f64, f64, f64) = (12.0, 100e-6, 100e-6, 5.0);
+
+    /// The buck of [`BUCK`].
+    pub(crate) fn buck() -> Circuit {
+        let (vin, l, c, r) = BUCK;
+        Circuit::builder()
+            .voltage_source("Vin", "in", "gnd", vin)
+            .switch("S1", "in", "sw", "drive")
+            .diode("D1", "gnd", "sw")
+            .inductor("L1", "sw", "out", l)
+            .capacitor("C1", "out", "gnd", c)
+            .resistor("R", "out", "gnd", r)
+            .pwm("drive", 100e3, 0.5)
+            .build()
+            .expect("valid")
+    }
+
+    /// Whether `a` and `b` agree to 1e-12 of `scale`.
+    pub(crate) fn near(a: f64, b: f64, scale: f64) -> bool {
+        (a - b).abs() <= 1e-12 * scale
     }
 }

@@ -448,3 +448,91 @@ fn pow2_near(x: f64) -> f64 {
         2f64.powi(e as i32)
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use nalgebra::DMatrix;
+
+    use super::{equilibration, pow2_near, singular};
+    use crate::mode::testing::{buck, built, near, source_column, state, BUCK};
+
+    /// The buck's state equations by hand (common practice: Kirchhoff's
+    /// laws on the LC filter with its load): with the switch on,
+    /// L di/dt = u − v (u: the input column the source follows); with the
+    /// diode freewheeling, L di/dt = −v; in both, C dv/dt = i − v/R. Every
+    /// other entry of the state rows is zero.
+    #[test]
+    fn buck_modes_give_the_hand_derived_state_equations() {
+        let (_, l, c, r) = BUCK;
+        for (switches, diodes, drive) in [(1, 0, 1.0), (0, 1, 0.0)] {
+            let (cc, mode) = built(&buck(), switches, diodes);
+            assert!(mode.problem.is_none());
+            let (i, v) = (state(&cc, "L1.current"), state(&cc, "C1.voltage"));
+            let u = source_column(&cc, "Vin");
+            let mut want = DMatrix::<f64>::zeros(cc.n_z(), cc.n_z());
+            want[(i, v)] = -1.0 / l;
+            want[(i, u)] = drive / l;
+            want[(v, i)] = 1.0 / c;
+            want[(v, v)] = -1.0 / (r * c);
+            for row in [i, v] {
+                for col in 0..cc.n_z() {
+                    let (got, exp) = (mode.m[(row, col)], want[(row, col)]);
+                    assert!(
+                        near(got, exp, 1.0 / l),
+                        "mode {switches}/{diodes}: M[{row},{col}] = {got}, want {exp}"
+                    );
+                }
+            }
+            // No constraint: no jump.
+            assert!(mode.constraints.is_empty());
+            assert_eq!(mode.p, DMatrix::identity(cc.n_z(), cc.n_z()));
+        }
+    }
+
+    /// The output at the switch node reads the source with the switch
+    /// closed and zero with the diode conducting (ideal parts, common
+    /// practice).
+    #[test]
+    fn buck_switch_node_output() {
+        for (switches, diodes, want) in [(1, 0, 1.0), (0, 1, 0.0)] {
+            let (cc, mode) = built(&buck(), switches, diodes);
+            let sw = cc.output_index("sw").expect("node output");
+            let u = source_column(&cc, "Vin");
+            for col in 0..cc.n_z() {
+                let exp = if col == u { want } else { 0.0 };
+                assert!(near(mode.c[(sw, col)], exp, 1.0), "C[sw,{col}]");
+            }
+            assert!(!mode.undetermined[sw]);
+            assert_eq!(mode.ct, mode.c.transpose());
+        }
+    }
+
+    /// Equilibration scales by powers of two only, and a diagonal network
+    /// of 1e-14 S beside a unit entry, singular by the raw pivot ratio, is
+    /// judged regular once equilibrated (from memory: a diagonal matrix
+    /// with non-zero entries is regular whatever its scale).
+    #[test]
+    fn equilibration_is_exact_and_removes_the_impedance_scale() {
+        assert_eq!(pow2_near(1.0), 1.0);
+        assert_eq!(pow2_near(3.0), 4.0);
+        assert_eq!(pow2_near(0.3), 0.25);
+        let g = DMatrix::from_row_slice(2, 2, &[1e-14, 0.0, 0.0, 1.0]);
+        assert!(singular(&g));
+        let (dr, dc) = equilibration(&g);
+        for f in dr.iter().chain(&dc) {
+            assert_eq!(f.log2().fract(), 0.0, "{f} is not a power of two");
+        }
+        let mut ge = g.clone();
+        for i in 0..2 {
+            for j in 0..2 {
+                ge[(i, j)] *= dr[i] * dc[j];
+            }
+        }
+        assert!(!singular(&ge));
+        assert!(singular(&DMatrix::from_row_slice(
+            2,
+            2,
+            &[1.0, 2.0, 2.0, 4.0]
+        )));
+    }
+}

@@ -43,7 +43,10 @@ impl Solved<'_> {
     /// The current of branch `bi` (an unknown of the network).
     pub(super) fn current(self, bi: usize) -> Row {
         let k = self.net.unknowns.current[bi];
-        (self.rows.yz.row(k).transpose(), self.rows.yf.row(k).transpose())
+        (
+            self.rows.yz.row(k).transpose(),
+            self.rows.yf.row(k).transpose(),
+        )
     }
 
     /// The voltage between nodes `a` and `b`.
@@ -162,13 +165,7 @@ impl Outputs {
 }
 
 /// The current of branch `bi` (a → b through it).
-fn branch_current(
-    cc: &Compiled,
-    on: Conduction,
-    s: Solved,
-    m: &DMatrix<f64>,
-    bi: usize,
-) -> Row {
+fn branch_current(cc: &Compiled, on: Conduction, s: Solved, m: &DMatrix<f64>, bi: usize) -> Row {
     let nz = s.net.cols.nz;
     let b = &cc.branches[bi];
     match &b.kind {

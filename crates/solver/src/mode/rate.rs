@@ -108,3 +108,29 @@ pub(super) fn live_rows(m: &DMatrix<f64>) -> usize {
         .find(|&i| m.row(i).iter().any(|v| *v != 0.0))
         .map_or(0, |i| i + 1)
 }
+
+#[cfg(test)]
+mod tests {
+    use nalgebra::DMatrix;
+
+    use super::{balanced_norm, live_rows};
+
+    /// An undamped LC pair (i' = −v/L, v' = i/C) in energy scaling: the
+    /// bound is its angular resonant frequency 1/√(LC) (common practice).
+    #[test]
+    fn lc_pair_rate_is_its_resonant_frequency() {
+        let (l, c) = (22e-6, 47e-6);
+        let m = DMatrix::from_row_slice(2, 2, &[0.0, -1.0 / l, 1.0 / c, 0.0]);
+        let rate = balanced_norm(&m, 2, &[l.sqrt(), c.sqrt()]);
+        let w0 = 1.0 / (l * c).sqrt();
+        assert!((rate - w0).abs() <= 1e-12 * w0, "{rate} vs {w0}");
+    }
+
+    #[test]
+    fn live_rows_stop_at_the_last_non_zero_row() {
+        let mut m = DMatrix::<f64>::zeros(4, 4);
+        assert_eq!(live_rows(&m), 0);
+        m[(1, 3)] = 2.0;
+        assert_eq!(live_rows(&m), 2);
+    }
+}

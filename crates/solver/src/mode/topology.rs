@@ -126,9 +126,7 @@ impl Conduction {
         match k {
             BranchKind::VSource { .. } => Some(0),
             BranchKind::Switch { sw } if self.ramp_v(*sw) => Some(0),
-            BranchKind::Switch { sw } if self.sw_on(*sw) && cc.switches[*sw].r_on == 0.0 => {
-                Some(1)
-            }
+            BranchKind::Switch { sw } if self.sw_on(*sw) && cc.switches[*sw].r_on == 0.0 => Some(1),
             BranchKind::Diode { d } if self.d_on(*d) && cc.diodes[*d].r_on == 0.0 => Some(1),
             BranchKind::Capacitor { .. } => Some(2),
             _ => None,
@@ -390,4 +388,85 @@ fn resistive_short(cc: &Compiled, on: Conduction) -> Option<(Vec<String>, Vec<St
         }
     }
     None
+}
+
+#[cfg(test)]
+mod tests {
+    use fluxstep_netlist::{Circuit, DiodeModel};
+
+    use super::{forest_path, Dsu};
+    use crate::mode::testing::{buck, built};
+    use crate::mode::ModeProblem;
+
+    #[test]
+    fn union_find_and_forest_paths() {
+        let mut dsu = Dsu::new(5);
+        assert!(dsu.union(3, 4));
+        assert!(dsu.union(4, 1));
+        assert!(!dsu.union(3, 1));
+        assert_eq!(dsu.find(3), 1);
+        assert_ne!(dsu.find(0), dsu.find(4));
+        // Edges (node, node, branch): 0–1 by 10, 1–2 by 11, 1–3 by 12.
+        let edges = [(0, 1, 10), (1, 2, 11), (1, 3, 12)];
+        assert_eq!(forest_path(&edges, 2, 3, 4), vec![12, 11]);
+        assert_eq!(forest_path(&edges, 0, 0, 4), Vec::<usize>::new());
+    }
+
+    /// Both buck switches closed across the source (the ideal switch and
+    /// the conducting ideal diode): a zero-resistance short, named.
+    #[test]
+    fn shoot_through_of_ideal_parts_is_a_named_short() {
+        let (_, mode) = built(&buck(), 1, 1);
+        match mode.problem {
+            Some(ModeProblem::Short { switches, shorted }) => {
+                assert_eq!(switches, vec!["S1".to_string(), "D1".to_string()]);
+                assert_eq!(shorted, vec!["Vin".to_string()]);
+            }
+            other => panic!("expected a short, got {other:?}"),
+        }
+    }
+
+    /// Two ideal switches in parallel: their current split is undetermined.
+    #[test]
+    fn parallel_ideal_switches_are_unsupported() {
+        let c = Circuit::builder()
+            .voltage_source("Vin", "in", "gnd", 5.0)
+            .resistor("R", "in", "a", 1.0)
+            .switch("S1", "a", "gnd", "drive")
+            .switch("S2", "a", "gnd", "drive")
+            .pwm("drive", 100e3, 0.5)
+            .build()
+            .expect("valid");
+        let (_, mode) = built(&c, 0b11, 0);
+        assert!(
+            matches!(&mode.problem, Some(ModeProblem::Unsupported(m)) if m.starts_with("S1, S2 conduct in parallel")),
+            "{:?}",
+            mode.problem
+        );
+        let (_, one) = built(&c, 0b01, 0);
+        assert!(one.problem.is_none());
+    }
+
+    /// A half bridge of transistors with on-resistance, both on: a
+    /// resistive short of the source, not a problem of the pattern.
+    #[test]
+    fn resistive_shoot_through_is_reported_apart() {
+        let body = DiodeModel::default();
+        let c = Circuit::builder()
+            .voltage_source("Vin", "in", "gnd", 24.0)
+            .transistor("Q1", "in", "sw", "hb.high", 0.01, body.clone())
+            .transistor("Q2", "sw", "gnd", "hb.low", 0.01, body)
+            .inductor("L1", "sw", "out", 22e-6)
+            .resistor("R", "out", "gnd", 6.0)
+            .complementary_pwm("hb", 200e3, 0.5, 50e-9, 80e-9)
+            .build()
+            .expect("valid");
+        let (_, mode) = built(&c, 0b11, 0);
+        assert!(mode.problem.is_none());
+        let (devices, shorted) = mode.resistive_short.expect("a resistive short");
+        assert_eq!(shorted, vec!["Vin".to_string()]);
+        assert_eq!(devices.len(), 2);
+        let (_, one) = built(&c, 0b01, 0);
+        assert!(one.resistive_short.is_none());
+    }
 }
