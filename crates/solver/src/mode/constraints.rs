@@ -1,4 +1,4 @@
-//! Step 4 of a mode: the constraints of inductor cutsets and capacitor
+//! Step 3 of a mode: the constraints of inductor cutsets and capacitor
 //! loops, the multipliers λ that keep them (a pseudo-inverse where only
 //! part of them is fixed), the jump map `P` that restores them on entry,
 //! and the reduced system: `M = D_z + D_λ·λ` and every unknown as a

@@ -1,4 +1,4 @@
-//! Step 6 of a mode: what must stay true while it holds — the diode guards
+//! Step 5 of a mode: what must stay true while it holds — the diode guards
 //! (a conducting diode's current, a blocking diode's voltage, pairs of
 //! blocking diodes around a free gauge), the balance of free groups fed by
 //! current sources, and the comparator guards of closed-loop gates.
@@ -106,8 +106,8 @@ pub(super) fn free_checks(topo: &Topology, net: &Network) -> Vec<(Vec<f64>, usiz
     checks
 }
 
-/// Comparator guards, per comparator: [0] while on (turn off when met),
-/// [1] while off (turn on when met); each stays positive until its
+/// Comparator guards, per comparator: `[0]` while on (turn off when met),
+/// `[1]` while off (turn on when met); each stays positive until its
 /// comparison is met. A comparator of an undetermined output makes the
 /// pattern unsupported (`problem`, unless one is named already).
 pub(super) fn comparator_guards(

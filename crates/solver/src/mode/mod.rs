@@ -177,7 +177,7 @@ pub(crate) struct Mode {
 /// Why a step found no solution for a pattern's equations: the mode is
 /// built invalid with this reason, unless the topology already named a
 /// problem.
-pub(super) struct NoSolution(pub &'static str);
+struct NoSolution(&'static str);
 
 impl Mode {
     /// Derives the mode's matrices. Structural problems (a short, parallel

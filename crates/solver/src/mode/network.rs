@@ -1,4 +1,4 @@
-//! Steps 2 and 3 of a mode: the resistive network that remains when
+//! Step 2 of a mode: the resistive network that remains when
 //! capacitors act as voltage sources and windings as current sources,
 //! stamped by modified nodal analysis and solved for every node voltage and
 //! voltage-branch current as a linear function of the columns

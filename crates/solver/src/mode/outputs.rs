@@ -1,4 +1,4 @@
-//! Step 5 of a mode: the output rows `y = C z` of every compiled output
+//! Step 4 of a mode: the output rows `y = C z` of every compiled output
 //! (with the outputs that depend on a free gauge marked undetermined), and
 //! the compensators' rows of `M`, which read their inputs from those rows.
 

@@ -1,4 +1,4 @@
-//! Step 7 of a mode: how fast its dynamics can be — the rate bound that
+//! Step 6 of a mode: how fast its dynamics can be — the rate bound that
 //! sets Taylor sub-step sizes, the rows of M that may be non-zero, and the
 //! refusal of a pattern beyond what 64-bit arithmetic can follow.
 
