@@ -1,0 +1,372 @@
+//! Mode: one conduction pattern of all switches and diodes, turned into the
+//! exact linear system `z' = M z`, the outputs `y = C z`, the diode guards
+//! and the jump map that enforces conservation of charge and flux linkage.
+//!
+//! Method (modified nodal analysis with constraint multipliers):
+//! capacitors act as voltage sources of their voltage and windings as
+//! current sources of their current; the resistive network that remains is
+//! solved for every node voltage and every voltage-branch current as a
+//! linear function of `z`. Two structures make that network singular and are
+//! handled on purpose, as in the normal-tree formulation of L. O. Chua &
+//! P.-M. Lin, *Computer-Aided Analysis of Electronic Circuits* (1975):
+//!
+//! - **Inductor cutsets.** A group of nodes with no resistive or voltage path
+//!   to ground but reached by windings (the switch node of a buck in its idle
+//!   interval, the secondary of a flyback while its diode blocks) gets a
+//!   *gauge*: a zero-ohm branch to ground whose voltage λ is a multiplier.
+//!   Kirchhoff's current law on the group (the gauge current) is a constraint
+//!   on the winding currents; λ is chosen so that the constraint's time
+//!   derivative is zero. For a lone inductor with zero current this gives
+//!   v_L = 0 (the switch node follows the output); for coupled windings it
+//!   gives the reflected voltage.
+//! - **Capacitor loops.** A capacitor that closes a loop of capacitors and
+//!   voltage sources is replaced by an injected current ψ (a multiplier);
+//!   its voltage must stay equal to the loop's, which fixes ψ.
+//!
+//! If the state violates a constraint when the mode is entered, the jump
+//! `z⁺ = (I − D_λ S⁻¹ H) z⁻` is the impulsive multiplier that restores it:
+//! charge is conserved across a capacitor loop and flux linkage across an
+//! inductor cutset. Groups of nodes reached by nothing that fixes their
+//! potential (the source side of a diode bridge with all diodes blocking)
+//! get a free gauge; outputs that depend on it read as undetermined.
+//!
+//! # Steps
+//!
+//! [`Mode::build`] runs them in this order, each in its own file, each
+//! handing the next a named result:
+//!
+//! 1. [`topology`]: which branches conduct; floating groups (inductor
+//!    cutsets, free groups), loops of capacitors and sources, shorts.
+//! 2. [`network`]: modified nodal analysis of what remains, solved for
+//!    every node voltage and voltage-branch current over `[z; λ; free]`;
+//!    the state derivatives `D` in the same columns.
+//! 3. [`constraints`]: the constraint rows, the multipliers (a
+//!    pseudo-inverse where only part of them is fixed), the jump map, and
+//!    `M` with the multipliers eliminated.
+//! 4. [`outputs`]: the rows `C` (and `Cᵀ`), undetermined outputs, the
+//!    compensators' rows of `M`.
+//! 5. [`guards`]: diode guards, free-group balances, comparator guards.
+//! 6. [`rate`]: the rate bound and the live rows of `M`.
+
+mod constraints;
+mod guards;
+mod network;
+mod outputs;
+mod rate;
+mod topology;
+
+use nalgebra::DMatrix;
+
+use crate::compile::Compiled;
+use crate::error::SolverError;
+
+use constraints::Reduced;
+use network::Network;
+use outputs::{Outputs, Solved};
+pub(crate) use rate::balanced_norm;
+use topology::{Conduction, Topology};
+
+/// A conduction pattern: bit i of `switches` is switch i on, bit j of
+/// `diodes` is diode j conducting, bits 2i and 2i + 1 of `ramps` switch i
+/// in a voltage or current ramp of its transition model.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, PartialOrd, Ord)]
+pub struct ModeKey {
+    /// Bit i set: switch i is on.
+    pub switches: u64,
+    /// Bit j set: diode j conducts.
+    pub diodes: u64,
+    /// Bit 2i set: switch i is a voltage ramp (a source of the voltage at
+    /// its transition input); bit 2i + 1: a current ramp. Either overrides
+    /// its bit in `switches`. Zero for a switch without a transition model.
+    pub ramps: u64,
+}
+
+/// The ramp bit of switch `i` in [`ModeKey::ramps`]: voltage or current.
+#[inline(always)]
+pub(crate) fn ramp_bit(i: usize, voltage: bool) -> u64 {
+    1 << (2 * i + usize::from(!voltage))
+}
+
+/// What a guard watches.
+#[derive(Clone, Debug, PartialEq)]
+#[allow(clippy::enum_variant_names)] // every guard watches a diode; the prefix is the point
+pub(crate) enum GuardKind {
+    /// A conducting diode's current must stay ≥ 0.
+    DiodeCurrent(usize),
+    /// A blocking diode's voltage must stay ≤ Vf (guard = Vf − v ≥ 0).
+    DiodeVoltage(usize),
+    /// Two blocking diodes in a loop through floating nodes: the loop
+    /// voltage must stay below their forward voltages.
+    DiodePair(usize, usize),
+    /// Comparator `ci` of a closed-loop gate; true for its turn-off guard;
+    /// then true if it compares a current (else a voltage), which sets
+    /// the unit of its zero floor.
+    Comparator(usize, bool, bool),
+}
+
+/// A linear function of `z` that must stay ≥ 0 while the mode holds.
+#[derive(Clone, Debug)]
+pub(crate) struct Guard {
+    pub kind: GuardKind,
+    pub row: Vec<f64>,
+    /// The guard's time derivative as a row: `row·M`.
+    pub drow: Vec<f64>,
+}
+
+/// What a multiplier constraint is about.
+#[derive(Clone, Debug)]
+pub(crate) enum ConstraintKind {
+    /// Kirchhoff's current law on a floating group reached by windings.
+    Cutset {
+        windings: Vec<usize>,
+        #[allow(dead_code)] // the node is named in future diagnostics
+        node: usize,
+    },
+    /// A capacitor voltage tied to a loop of capacitors and sources.
+    Loop { caps: Vec<usize> },
+}
+
+/// A problem that makes the mode impossible to enter (reported only if no
+/// other pattern is consistent).
+#[derive(Clone, Debug)]
+pub(crate) enum ModeProblem {
+    Short {
+        switches: Vec<String>,
+        shorted: Vec<String>,
+    },
+    Unsupported(String),
+}
+
+/// A compiled mode.
+#[derive(Clone, Debug)]
+pub(crate) struct Mode {
+    pub key: ModeKey,
+    pub problem: Option<ModeProblem>,
+    /// z' = M z.
+    pub m: DMatrix<f64>,
+    /// Rows of M that may be non-zero: all rows at or after `live` are zero
+    /// (the slopes of piecewise-linear inputs are constant), so products
+    /// with M skip them.
+    pub live: usize,
+    /// Outputs y = C z, one row per compiled output.
+    pub c: DMatrix<f64>,
+    /// Cᵀ: each output's row contiguous (a switch's current and voltage
+    /// are read at each of its hard edges, `run/transition.rs`).
+    pub ct: DMatrix<f64>,
+    /// Output rows that depend on a free gauge.
+    pub undetermined: Vec<bool>,
+    pub guards: Vec<Guard>,
+    /// Constraint rows H (restricted to z) as columns (Hᵀ, so that each
+    /// row is contiguous), and their kinds.
+    pub ht: DMatrix<f64>,
+    pub constraints: Vec<ConstraintKind>,
+    /// Jump map z⁺ = P z⁻ restoring the constraints.
+    pub p: DMatrix<f64>,
+    /// Gauge currents of free groups (must be zero): row, node, current sources.
+    pub free_checks: Vec<(Vec<f64>, usize, Vec<String>)>,
+    /// Rate bound (1/s) of the fastest dynamics, for sub-step sizes.
+    pub rate: f64,
+    /// A loop of closed switches and conducting diodes, some with
+    /// resistance, across a voltage source or a capacitor: (devices,
+    /// shorted element). Zero-resistance shorts are a `problem` instead.
+    pub resistive_short: Option<(Vec<String>, Vec<String>)>,
+    /// Guards of closed-loop gates, per comparator: [while on, while off].
+    pub cmp_guards: Vec<[Option<Guard>; 2]>,
+}
+
+/// Why a step found no solution for a pattern's equations: the mode is
+/// built invalid with this reason, unless the topology already named a
+/// problem.
+struct NoSolution(&'static str);
+
+impl Mode {
+    /// Derives the mode's matrices. Structural problems (a short, parallel
+    /// ideal switches) are recorded in `problem`, not returned as errors,
+    /// so that the diode pattern search can try other patterns.
+    pub(crate) fn build(cc: &Compiled, key: ModeKey) -> Result<Mode, SolverError> {
+        let on = Conduction(key);
+        // 1. Which branches conduct: floating groups, loops, shorts.
+        let mut topo = Topology::find(cc, on);
+        let mut problem = topo.problem.take();
+        let unsolvable = |problem: Option<ModeProblem>, why: NoSolution| {
+            let reason = ModeProblem::Unsupported(why.0.to_string());
+            Ok(Mode::invalid(cc, key, problem.unwrap_or(reason)))
+        };
+        // 2. The network and the state derivatives over [z; λ; free].
+        let net = match Network::solve(cc, on, &topo) {
+            Ok(net) => net,
+            Err(why) => return unsolvable(problem, why),
+        };
+        let d = net.derivatives(cc, &topo);
+        // 3. Multipliers eliminated: M, the jump map P.
+        let red = match Reduced::new(cc, &topo, &net, &d) {
+            Ok(red) => red,
+            Err(why) => return unsolvable(problem, why),
+        };
+        let Reduced {
+            mut m,
+            p,
+            hz,
+            constraints,
+            rows,
+        } = red;
+        let solved = Solved {
+            net: &net,
+            rows: &rows,
+        };
+        // 4. Outputs, then the compensators that read them.
+        let outputs = Outputs::new(cc, on, solved, &m);
+        outputs.compensator_rows(cc, &mut m, &mut problem);
+        // 5. Guards.
+        let guards = guards::diode_guards(cc, on, solved, &m);
+        let free_checks = guards::free_checks(&topo, &net);
+        let cmp_guards = guards::comparator_guards(cc, &outputs, &m, &mut problem);
+        // 6. Rate: ∞-norm of the state block after diagonal balancing.
+        let rate = balanced_norm(&m, cc.n_x, &cc.x_scale);
+        let live = rate::live_rows(&m);
+        Ok(Mode {
+            key,
+            problem,
+            m,
+            live,
+            ct: outputs.c.transpose(),
+            c: outputs.c,
+            undetermined: outputs.undetermined,
+            guards,
+            ht: hz.transpose(),
+            constraints,
+            p,
+            free_checks,
+            rate,
+            resistive_short: topo.resistive_short,
+            cmp_guards,
+        })
+    }
+
+    /// A mode that cannot be entered, for `problem`: no dynamics, every
+    /// output undetermined, the identity jump.
+    fn invalid(cc: &Compiled, key: ModeKey, problem: ModeProblem) -> Mode {
+        let nz = cc.n_z();
+        Mode {
+            key,
+            problem: Some(problem),
+            m: DMatrix::zeros(nz, nz),
+            live: 0,
+            c: DMatrix::zeros(cc.outputs.len(), nz),
+            ct: DMatrix::zeros(nz, cc.outputs.len()),
+            undetermined: vec![true; cc.outputs.len()],
+            guards: vec![],
+            ht: DMatrix::zeros(nz, 0),
+            constraints: vec![],
+            p: DMatrix::identity(nz, nz),
+            free_checks: vec![],
+            rate: 0.0,
+            resistive_short: None,
+            cmp_guards: vec![],
+        }
+    }
+}
+
+/// The pattern as text: `S1 on, D1 blocking`.
+pub(crate) fn pattern_text(cc: &Compiled, key: ModeKey) -> String {
+    let mut parts = vec![];
+    for (i, s) in cc.switches.iter().enumerate() {
+        parts.push(format!(
+            "{} {}",
+            s.name,
+            if key.ramps & ramp_bit(i, true) != 0 {
+                "in a voltage ramp"
+            } else if key.ramps & ramp_bit(i, false) != 0 {
+                "in a current ramp"
+            } else if key.switches >> i & 1 == 1 {
+                "on"
+            } else {
+                "off"
+            }
+        ));
+    }
+    for (i, d) in cc.diodes.iter().enumerate() {
+        parts.push(format!(
+            "{} {}",
+            d.name,
+            if key.diodes >> i & 1 == 1 {
+                "conducting"
+            } else {
+                "blocking"
+            }
+        ));
+    }
+    if parts.is_empty() {
+        "no switches or diodes".into()
+    } else {
+        parts.join(", ")
+    }
+}
+
+/// Fixtures of the steps' unit tests.
+#[cfg(test)]
+pub(super) mod testing {
+    use fluxstep_netlist::Circuit;
+
+    use super::{Mode, ModeKey};
+    use crate::compile::Compiled;
+
+    /// The mode of `circuit` with switch bits `switches` and diode bits
+    /// `diodes` (no ramps), beside the compiled circuit.
+    pub(crate) fn built(circuit: &Circuit, switches: u64, diodes: u64) -> (Compiled, Mode) {
+        let cc = Compiled::compile(circuit).expect("compiles");
+        let key = ModeKey {
+            switches,
+            diodes,
+            ramps: 0,
+        };
+        let mode = Mode::build(&cc, key).expect("builds");
+        (cc, mode)
+    }
+
+    /// The z index of the state called `name`.
+    pub(crate) fn state(cc: &Compiled, name: &str) -> usize {
+        cc.state_names
+            .iter()
+            .position(|s| s == name)
+            .unwrap_or_else(|| panic!("no state {name}"))
+    }
+
+    /// The z index of the input that source `name` follows (a constant
+    /// source is a piecewise-linear input of its own, set at run time).
+    pub(crate) fn source_column(cc: &Compiled, name: &str) -> usize {
+        let src = cc
+            .sources
+            .iter()
+            .find(|s| s.name == name)
+            .unwrap_or_else(|| panic!("no source {name}"));
+        match src.terms[..] {
+            [(col, 1.0)] => col,
+            _ => panic!("{name} is not a plain input"),
+        }
+    }
+
+    /// An asynchronous buck (demo values): 12 V in, ideal switch S1 and
+    /// diode D1, L1 = 100 µH, C1 = 100 µF, R = 5 Ω.
+    pub(crate) const BUCK: (f64, f64, f64, f64) = (12.0, 100e-6, 100e-6, 5.0);
+
+    /// The buck of [`BUCK`].
+    pub(crate) fn buck() -> Circuit {
+        let (vin, l, c, r) = BUCK;
+        Circuit::builder()
+            .voltage_source("Vin", "in", "gnd", vin)
+            .switch("S1", "in", "sw", "drive")
+            .diode("D1", "gnd", "sw")
+            .inductor("L1", "sw", "out", l)
+            .capacitor("C1", "out", "gnd", c)
+            .resistor("R", "out", "gnd", r)
+            .pwm("drive", 100e3, 0.5)
+            .build()
+            .expect("valid")
+    }
+
+    /// Whether `a` and `b` agree to 1e-12 of `scale`.
+    pub(crate) fn near(a: f64, b: f64, scale: f64) -> bool {
+        (a - b).abs() <= 1e-12 * scale
+    }
+}
