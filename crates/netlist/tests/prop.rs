@@ -355,7 +355,12 @@ fn circuit() -> impl Strategy<Value = Circuit> {
 }
 
 proptest! {
-    #![proptest_config(ProptestConfig::with_cases(256))]
+    #![proptest_config(ProptestConfig {
+        cases: 256,
+        // A fixed seed: the same circuits on every run.
+        rng_seed: proptest::test_runner::RngSeed::Fixed(1),
+        ..ProptestConfig::default()
+    })]
 
     #[test]
     fn generated_circuits_round_trip(c in circuit()) {

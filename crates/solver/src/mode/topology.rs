@@ -3,45 +3,11 @@
 //! branches (capacitor loops and shorts) and shoot-through through
 //! resistive devices. Integer work only: no floating-point operation.
 
+use fluxstep_netlist::graph::UnionFind;
+
 use crate::compile::{BranchKind, Compiled};
 
 use super::{ramp_bit, ModeKey, ModeProblem};
-
-/// Union-find over node numbers (with path compression; the smaller root
-/// wins, so the result does not depend on the order of unions).
-pub(super) struct Dsu(Vec<usize>);
-
-impl Dsu {
-    /// `n` singletons.
-    pub(super) fn new(n: usize) -> Self {
-        Dsu((0..n).collect())
-    }
-
-    /// The root of `i`'s set.
-    pub(super) fn find(&mut self, i: usize) -> usize {
-        let mut r = i;
-        while self.0[r] != r {
-            r = self.0[r];
-        }
-        let mut k = i;
-        while self.0[k] != r {
-            let nx = self.0[k];
-            self.0[k] = r;
-            k = nx;
-        }
-        r
-    }
-
-    /// Joins the sets of `a` and `b`; false if they were one already.
-    pub(super) fn union(&mut self, a: usize, b: usize) -> bool {
-        let (ra, rb) = (self.find(a), self.find(b));
-        if ra == rb {
-            return false;
-        }
-        self.0[ra.max(rb)] = ra.min(rb);
-        true
-    }
-}
 
 /// Path of branch indices between nodes `a` and `b` in a forest given as
 /// edges (node, node, branch).
@@ -225,7 +191,7 @@ impl Topology {
 /// sources.
 fn floating_groups(cc: &Compiled, on: Conduction) -> (Vec<usize>, Vec<FloatingGroup>) {
     let nn = cc.nodes.len();
-    let mut dsu = Dsu::new(nn);
+    let mut dsu = UnionFind::new(nn);
     for b in &cc.branches {
         if on.present_voltage(&b.kind) {
             dsu.union(b.a, b.b);
@@ -281,7 +247,7 @@ fn floating_groups(cc: &Compiled, on: Conduction) -> (Vec<usize>, Vec<FloatingGr
 /// capacitor loop; any other loop is a short or an undetermined split.
 fn zero_resistance_loops(cc: &Compiled, on: Conduction) -> Loops {
     let nn = cc.nodes.len();
-    let mut dsu = Dsu::new(nn);
+    let mut dsu = UnionFind::new(nn);
     let mut forest: Vec<(usize, usize, usize)> = vec![];
     let mut loops = vec![];
     let mut problem = None;
@@ -361,7 +327,7 @@ fn short_problem(cc: &Compiled, all: &[usize]) -> ModeProblem {
 /// discharged, not a shorted leg). (devices, shorted element).
 fn resistive_short(cc: &Compiled, on: Conduction) -> Option<(Vec<String>, Vec<String>)> {
     let nn = cc.nodes.len();
-    let mut dsu = Dsu::new(nn);
+    let mut dsu = UnionFind::new(nn);
     let mut devices: Vec<(usize, usize, usize)> = vec![];
     for (bi, b) in cc.branches.iter().enumerate() {
         let conducts = match &b.kind {
@@ -394,13 +360,13 @@ fn resistive_short(cc: &Compiled, on: Conduction) -> Option<(Vec<String>, Vec<St
 mod tests {
     use fluxstep_netlist::{Circuit, DiodeModel};
 
-    use super::{forest_path, Dsu};
+    use super::{forest_path, UnionFind};
     use crate::mode::testing::{buck, built};
     use crate::mode::ModeProblem;
 
     #[test]
     fn union_find_and_forest_paths() {
-        let mut dsu = Dsu::new(5);
+        let mut dsu = UnionFind::new(5);
         assert!(dsu.union(3, 4));
         assert!(dsu.union(4, 1));
         assert!(!dsu.union(3, 1));
