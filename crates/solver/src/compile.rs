@@ -691,7 +691,7 @@ impl Compiled {
 
     /// Index of an output by its name (`NODE`, `ELEMENT.current`, …).
     pub fn output_index(&self, name: &str) -> Result<usize, SolverError> {
-        crate::waveform::output_position(self.outputs.iter().map(|(n, _)| n.as_str()), name)
+        output_position(self.outputs.iter().map(|(n, _)| n.as_str()), name)
     }
 
     /// What a jump from `a` to `b` moved: with `flux`, the largest change
@@ -848,6 +848,38 @@ fn cascade(sections: &[Section]) -> Section {
         acc = (a, b, c, d2 * d1);
     }
     acc
+}
+
+/// Every form of output name the circuit format accepts, for error
+/// messages.
+pub(crate) const OUTPUT_FORMS: &str = "an output is a node name, ELEMENT.current or \
+    ELEMENT.voltage of a two-terminal element, ELEMENT.WINDING.current or .voltage of a \
+    coupled-inductor winding, XFMR.primary or XFMR.secondary with .current or .voltage of \
+    an ideal transformer, SWITCH.body_diode.current or .voltage, or COMPENSATOR.output";
+
+/// The position of output `name` among `names` (canonical output names).
+///
+/// # Errors
+///
+/// [`SolverError::UnknownOutput`] for a name that is malformed or names
+/// nothing in the circuit, with every accepted form listed.
+pub(crate) fn output_position<'a>(
+    names: impl IntoIterator<Item = &'a str>,
+    name: &str,
+) -> Result<usize, SolverError> {
+    let parsed =
+        fluxstep_netlist::OutputName::parse(name).map_err(|p| SolverError::UnknownOutput {
+            name: name.into(),
+            reason: format!("{}; {OUTPUT_FORMS}", p.message),
+        })?;
+    let key = parsed.to_string();
+    names
+        .into_iter()
+        .position(|n| n == key)
+        .ok_or_else(|| SolverError::UnknownOutput {
+            name: name.into(),
+            reason: format!("no node or element of that name in this circuit; {OUTPUT_FORMS}"),
+        })
 }
 
 #[cfg(test)]

@@ -6,41 +6,10 @@ use std::sync::Arc;
 
 use nalgebra::{DMatrix, DVector};
 
+use crate::compile::output_position;
 use crate::error::SolverError;
 use crate::mode::Mode;
 use crate::propagate;
-
-/// Every form of output name the circuit format accepts, for error
-/// messages.
-pub(crate) const OUTPUT_FORMS: &str = "an output is a node name, ELEMENT.current or \
-    ELEMENT.voltage of a two-terminal element, ELEMENT.WINDING.current or .voltage of a \
-    coupled-inductor winding, XFMR.primary or XFMR.secondary with .current or .voltage of \
-    an ideal transformer, SWITCH.body_diode.current or .voltage, or COMPENSATOR.output";
-
-/// The position of output `name` among `names` (canonical output names).
-///
-/// # Errors
-///
-/// [`SolverError::UnknownOutput`] for a name that is malformed or names
-/// nothing in the circuit, with every accepted form listed.
-pub(crate) fn output_position<'a>(
-    names: impl IntoIterator<Item = &'a str>,
-    name: &str,
-) -> Result<usize, SolverError> {
-    let parsed =
-        fluxstep_netlist::OutputName::parse(name).map_err(|p| SolverError::UnknownOutput {
-            name: name.into(),
-            reason: format!("{}; {OUTPUT_FORMS}", p.message),
-        })?;
-    let key = parsed.to_string();
-    names
-        .into_iter()
-        .position(|n| n == key)
-        .ok_or_else(|| SolverError::UnknownOutput {
-            name: name.into(),
-            reason: format!("no node or element of that name in this circuit; {OUTPUT_FORMS}"),
-        })
-}
 
 /// Why an output has no value at an instant.
 #[derive(Clone, Debug, PartialEq, thiserror::Error)]
