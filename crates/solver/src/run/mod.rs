@@ -8,12 +8,16 @@
 //! only built when they are kept, and diagnostics only turn into text when a
 //! run actually stops.
 
+mod access;
+mod advance;
+mod build;
 mod control;
 mod lcp;
 mod locate;
 mod record;
 mod resolve;
 mod restart;
+mod result;
 mod sampled;
 mod schedule;
 mod transition;
@@ -34,75 +38,9 @@ use crate::options::{Options, Record, CHATTER_FRACTION};
 use crate::propagate;
 use crate::waveform::{OutputId, Waveform};
 
+use advance::ModeCache;
+pub use result::{RunResult, SegmentSink, SegmentView, Stats};
 use schedule::{EdgeQueue, SignalBuffer, TimeKey};
-
-/// Counters of a run.
-#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
-pub struct Stats {
-    /// Scheduled instants processed (gate edges, source corners, stop).
-    pub scheduled_events: usize,
-    /// State events located (diode turn-on/turn-off).
-    pub state_events: usize,
-    /// Distinct modes compiled.
-    pub modes: usize,
-    /// Intervals advanced with a cached matrix exponential.
-    pub cache_hits: usize,
-    /// Matrix exponentials computed.
-    pub exponentials: usize,
-    /// Intervals advanced from the cached exponential of a nearby length
-    /// and a short Taylor remainder.
-    pub near_steps: usize,
-    /// Stiff spans: intervals that the Taylor rule would split into more
-    /// than 64 sub-steps, advanced by one exponential instead (see
-    /// `propagate.rs`). 0 for ordinary converters.
-    pub stiff_spans: usize,
-    /// Sub-intervals scanned for state events in stiff spans (their
-    /// lengths grow as fast decaying modes die out, see `locate.rs`).
-    pub stiff_substeps: usize,
-}
-
-/// A view of one finished segment, handed to a streaming sink.
-pub struct SegmentView<'a> {
-    /// Start (s).
-    pub t0: f64,
-    /// End (s).
-    pub t1: f64,
-    mode: &'a Mode,
-    z0: &'a DVector<f64>,
-}
-
-impl SegmentView<'_> {
-    /// Value of an output at `t` in [t0, t1]; `None` if undetermined.
-    pub fn value(&self, id: OutputId, t: f64) -> Option<f64> {
-        if *self.mode.undetermined.get(id.0)? {
-            return None;
-        }
-        let z = propagate::advance(
-            &self.mode.m,
-            self.mode.rate,
-            self.z0,
-            (t - self.t0).max(0.0),
-        );
-        Some(dot_iter(
-            self.mode.c.row(id.0).iter().copied(),
-            z.as_slice(),
-        ))
-    }
-}
-
-/// A streaming receiver of segments (for runs too long to keep).
-pub type SegmentSink = Box<dyn FnMut(&SegmentView<'_>)>;
-
-/// The result of a finished run.
-#[derive(Debug)]
-pub struct RunResult {
-    /// The recorded waveform.
-    pub waveform: Waveform,
-    /// The recorded events.
-    pub events: EventLog,
-    /// Counters.
-    pub stats: Stats,
-}
 
 /// A circuit being simulated: advance it to a time or by whole switching
 /// periods, and read its state in between.
@@ -159,20 +97,9 @@ pub struct Simulator {
     pending: Vec<sampled::Pending>,
     /// Indices of piecewise-linear sources (the only ones with corners).
     pwl_sources: Vec<usize>,
-    wave: Waveform,
-    log: EventLog,
-    sink: Option<SegmentSink>,
-    /// The latest events, a ring of `chatter_events + 1` (oldest at
-    /// `recent_head` once full).
-    recent: Vec<(f64, u32)>,
-    recent_head: usize,
-    /// The chatter window in seconds, resolved from
-    /// [`Options::chatter_window`] and the circuit's time scale.
-    chatter_window: f64,
-    /// Every event counted, kept or not (for the event limit).
-    n_events: usize,
-    /// The kind of the present instant, logged with its events.
-    cause: EventCause,
+    /// The recorder: waveform segments, event log, sink, chatter window
+    /// (`record.rs`).
+    rec: record::Recorder,
     stats: Stats,
     /// Largest inductor current and capacitor/source voltage seen so far.
     seen: Scales,
@@ -228,7 +155,6 @@ pub struct Simulator {
     /// guard's Taylor coefficients.
     za: DVector<f64>,
     coef: Vec<f64>,
-    before: Vec<f64>,
     /// Bit i set: switch i has a transition model (`transition.rs`).
     ramp_switches: u64,
     /// Per switch: where it is in its transition.
@@ -265,432 +191,6 @@ pub(crate) fn dot_iter(a: impl IntoIterator<Item = f64>, b: &[f64]) -> f64 {
 }
 
 impl Simulator {
-    /// Compiles the circuit and resolves its conduction pattern at t = 0.
-    ///
-    /// # Errors
-    ///
-    /// An invalid circuit, or an initial state no mode can hold (e.g. an
-    /// inductor with initial current and no path).
-    pub fn new(circuit: &Circuit, opts: Options) -> Result<Simulator, SolverError> {
-        let cc = Compiled::compile(circuit)?;
-        if cc.switches.len() > 64 || cc.diodes.len() > 64 {
-            return Err(SolverError::Unsupported {
-                time: 0.0,
-                pattern: String::new(),
-                reason: format!(
-                    "{} switches and {} diodes: at most 64 switches and 64 diodes are supported",
-                    cc.switches.len(),
-                    cc.diodes.len()
-                ),
-            });
-        }
-        let mut ramp_switches = 0u64;
-        for (i, s) in cc.switches.iter().enumerate() {
-            if s.transition.is_some() {
-                if i >= 32 {
-                    return Err(SolverError::Unsupported {
-                        time: 0.0,
-                        pattern: String::new(),
-                        reason: format!(
-                            "switch {} has a transition model but is switch number {} of the circuit: \
-                             only the first 32 switches may have one",
-                            s.name,
-                            i + 1
-                        ),
-                    });
-                }
-                ramp_switches |= 1 << i;
-            }
-        }
-        let n_switches = cc.switches.len();
-        let nz = cc.n_z();
-        let mut z = DVector::zeros(nz);
-        for (i, v) in cc.x0.iter().enumerate() {
-            z[i] = *v;
-        }
-        let signals = cc
-            .signals
-            .iter()
-            .map(|(_, s)| SignalBuffer {
-                edges: EdgeQueue::default(),
-                filled_to: 0.0,
-                chunk: s.period.map(|p| 64.0 * p).unwrap_or(f64::INFINITY),
-            })
-            .collect();
-        let signal_on = cc.signals.iter().map(|(_, s)| s.is_on(0.0)).collect();
-        let n_cmp = cc.comparators.len();
-        let signal_gate = cc
-            .signals
-            .iter()
-            .map(|(name, _)| {
-                circuit
-                    .gates
-                    .iter()
-                    .position(|g| g.signals().iter().any(|(n, _)| n == name))
-                    .expect("every signal comes from a gate")
-            })
-            .collect();
-        let pwl_sources = (0..cc.sources.len())
-            .filter(|&i| cc.sources[i].input.is_some())
-            .collect();
-        let wave = Waveform {
-            segments: vec![],
-            states: vec![],
-            n_z: nz,
-            modes: vec![],
-            output_names: cc.outputs.iter().map(|(n, _)| n.clone()).collect(),
-            n_x: cc.n_x,
-            switch_names: cc.switches.iter().map(|s| s.name.clone()).collect(),
-        };
-        // Element ids in the log: switches, then diodes, then sources
-        // (see `record::Simulator::who_id`).
-        let mut log = EventLog::new(cc.state_names.clone());
-        for name in cc
-            .switches
-            .iter()
-            .map(|s| &s.name)
-            .chain(cc.diodes.iter().map(|d| &d.name))
-            .chain(cc.sources.iter().map(|s| &s.name))
-        {
-            log.names_push(name);
-        }
-        let mut sim = Simulator {
-            cc,
-            opts,
-            mode_index: HashMap::new(),
-            mode_keys: vec![],
-            modes: vec![],
-            caches: vec![],
-            t: 0.0,
-            tkey: None,
-            z_next: z.clone(),
-            z,
-            mode: 0,
-            key: ModeKey {
-                switches: 0,
-                diodes: 0,
-                ramps: 0,
-            },
-            signals,
-            signal_on,
-            cmp_enabled_off: vec![true; n_cmp],
-            cmp_ticks: vec![],
-            signal_gate,
-            gates: circuit.gates.clone(),
-            gate_origin: vec![0.0; circuit.gates.len()],
-            controllers: vec![],
-            pending: vec![],
-            pwl_sources,
-            wave,
-            log,
-            sink: None,
-            recent: vec![],
-            recent_head: 0,
-            chatter_window: 0.0,
-            n_events: 0,
-            cause: EventCause::Start,
-            stats: Stats::default(),
-            seen: Scales::default(),
-            current_states: vec![],
-            voltage_terms: vec![],
-            multi_term_sources: vec![],
-            const_inputs: None,
-            orders: vec![],
-            far_order: None,
-            pivoting: true,
-            memo: vec![],
-            replay: true,
-            plain: true,
-            cache_repeats: true,
-            poly_cache: true,
-            near_cache: true,
-            plain_instants: 0,
-            gates_only: false,
-            z_try: DVector::zeros(nz),
-            scratch: propagate::Scratch::default(),
-            terms: propagate::TaylorTerms::default(),
-            za: DVector::zeros(nz),
-            coef: vec![],
-            before: vec![],
-            ramp_switches,
-            phases: vec![transition::Phase::Idle; n_switches],
-            ramp_next: f64::INFINITY,
-            refused: None,
-            stalled: Stall {
-                time: f64::NAN,
-                pattern: ModeKey {
-                    switches: 0,
-                    diodes: 0,
-                    ramps: 0,
-                },
-                crossing: Crossing {
-                    time: 0.0,
-                    diodes: 0,
-                    comparators: 0,
-                },
-                repeats: 0,
-            },
-        };
-        sim.cmp_ticks = (0..n_cmp).map(|ci| sim.make_ticks(ci)).collect();
-        sim.current_states = sim
-            .cc
-            .groups
-            .iter()
-            .flat_map(|g| g.states.iter().copied())
-            .collect();
-        sim.voltage_terms = sim.cc.caps.iter().map(|&(s, _)| (s, 1.0)).collect();
-        for (si, src) in sim.cc.sources.iter().enumerate() {
-            match src.terms.as_slice() {
-                &[(k, f)] => sim.voltage_terms.push((k, f)),
-                _ => sim.multi_term_sources.push(si),
-            }
-        }
-        sim.const_inputs = sim.constant_inputs();
-        sim.gates_only =
-            sim.const_inputs.is_some() && sim.cc.comparators.is_empty() && sim.ramp_switches == 0;
-        sim.set_inputs(0.0);
-        sim.key.switches = sim.switch_bits();
-        // Edges at t = 0 are already reflected in the initial signal states.
-        for i in 0..sim.signals.len() {
-            sim.refill(i, 0.0);
-            while sim.signals[i].edges.front().is_some_and(|e| e.time <= 0.0) {
-                sim.signals[i].edges.pop_front();
-            }
-        }
-        // The chatter window from the gates' periods; without periodic
-        // gates it is set from the first mode below (the first resolve
-        // logs at most one event per part, far from any chatter count).
-        let shortest = sim
-            .cc
-            .signals
-            .iter()
-            .filter_map(|(_, s)| s.period)
-            .filter(|p| p.is_finite() && *p > 0.0)
-            .fold(f64::INFINITY, f64::min);
-        sim.chatter_window = sim.opts.chatter_window;
-        let automatic = |w: f64| w.is_nan() || w <= 0.0;
-        if automatic(sim.chatter_window) && shortest.is_finite() {
-            sim.chatter_window = CHATTER_FRACTION * shortest;
-        }
-        sim.resolve(0, None, true)?;
-        if automatic(sim.chatter_window) {
-            let rate = sim.modes[sim.mode as usize].rate;
-            sim.chatter_window = if rate > 0.0 && rate.is_finite() {
-                CHATTER_FRACTION * std::f64::consts::TAU / rate
-            } else {
-                1e-12
-            };
-        }
-        // Closed-loop gates decide their state at t = 0 from the circuit.
-        if let Some(cause) = sim.start_comparators()? {
-            sim.resolve(0, Some(cause), false)?;
-        }
-        Ok(sim)
-    }
-
-    /// Takes over the storage of a finished run — its segment, state and
-    /// event buffers, emptied — so that a series of runs (a sweep, a test
-    /// suite) records into memory it already has instead of asking the
-    /// system for fresh pages. Call it before advancing: buffers that
-    /// already hold this run's records are kept and `old` is dropped.
-    ///
-    /// # Example
-    ///
-    /// ```
-    /// use fluxstep_netlist::Circuit;
-    /// use fluxstep_solver::{Options, Simulator};
-    ///
-    /// let c = Circuit::builder()
-    ///     .voltage_source("V1", "in", "gnd", 1.0)
-    ///     .resistor("R1", "in", "a", 1.0)
-    ///     .inductor("L1", "a", "gnd", 1e-3)
-    ///     .build()
-    ///     .unwrap();
-    /// let mut first = Simulator::new(&c, Options::default()).unwrap();
-    /// first.advance_to(1e-3).unwrap();
-    /// let first = first.finish();
-    /// let mut second = Simulator::new(&c, Options::default()).unwrap();
-    /// second.reuse_storage(first);
-    /// second.advance_to(1e-3).unwrap();
-    /// assert!(second.waveform().span().is_some());
-    /// ```
-    pub fn reuse_storage(&mut self, old: RunResult) {
-        let RunResult {
-            waveform, events, ..
-        } = old;
-        if self.wave.segments.is_empty() {
-            adopt(&mut self.wave.segments, waveform.segments);
-            adopt(&mut self.wave.states, waveform.states);
-        }
-        self.log.reuse_storage(events);
-    }
-
-    /// Sends every finished segment to `sink` (in addition to what
-    /// [`Options::record`] keeps), e.g. to measure a million-cycle run in
-    /// bounded memory.
-    pub fn set_sink(&mut self, sink: SegmentSink) {
-        self.sink = Some(sink);
-    }
-
-    /// Present time (s).
-    pub fn time(&self) -> f64 {
-        self.t
-    }
-
-    /// Present state: inductor currents, capacitor voltages, oscillator states.
-    pub fn state(&self) -> &[f64] {
-        &self.z.as_slice()[..self.cc.n_x]
-    }
-
-    /// Names of the state entries.
-    pub fn state_names(&self) -> &[String] {
-        &self.cc.state_names
-    }
-
-    /// Present conduction pattern as text (`S1 on, D1 blocking`).
-    pub fn pattern(&self) -> String {
-        pattern_text(&self.cc, self.key)
-    }
-
-    /// The id of an output by name, for [`Simulator::value`] and the
-    /// waveform (the same look-up as [`Waveform::output`]).
-    ///
-    /// # Errors
-    ///
-    /// [`SolverError::UnknownOutput`], listing every accepted form.
-    pub fn output(&self, name: &str) -> Result<OutputId, SolverError> {
-        self.cc.output_index(name).map(OutputId)
-    }
-
-    /// Present value of an output.
-    ///
-    /// # Errors
-    ///
-    /// [`SolverError::UnknownOutput`] for a name that is not an output,
-    /// [`SolverError::Undetermined`] where it floats now.
-    pub fn output_value(&self, name: &str) -> Result<f64, SolverError> {
-        let id = self.output(name)?;
-        self.value(id)
-    }
-
-    /// Present value of output `id`.
-    ///
-    /// # Errors
-    ///
-    /// As [`Simulator::output_value`].
-    pub fn value(&self, id: OutputId) -> Result<f64, SolverError> {
-        let i = self.checked_row(id)?;
-        Ok(dot_iter(
-            self.modes[self.mode as usize].c.row(i).iter().copied(),
-            self.z.as_slice(),
-        ))
-    }
-
-    /// Present time derivative of output `id` (di/dt of an inductor
-    /// current, dv/dt of a capacitor voltage), exact from the mode: see
-    /// [`Waveform::slope`].
-    ///
-    /// # Errors
-    ///
-    /// As [`Simulator::output_value`].
-    pub fn slope(&self, id: OutputId) -> Result<f64, SolverError> {
-        let i = self.checked_row(id)?;
-        Ok(crate::waveform::slope_of(
-            &self.modes[self.mode as usize],
-            i,
-            self.z.as_slice(),
-        ))
-    }
-
-    /// The output row of `id` if it is this circuit's and determined now.
-    fn checked_row(&self, id: OutputId) -> Result<usize, SolverError> {
-        let name = self.cc.outputs.get(id.0).map(|(n, _)| n.as_str());
-        let Some(name) = name else {
-            return Err(SolverError::UnknownOutput {
-                name: format!("#{}", id.0),
-                reason: "the id belongs to another circuit".into(),
-            });
-        };
-        if self.modes[self.mode as usize].undetermined[id.0] {
-            return Err(SolverError::Undetermined {
-                output: name.to_string(),
-                time: self.t,
-            });
-        }
-        Ok(id.0)
-    }
-
-    /// Stored energy in inductors and capacitors now (J).
-    pub fn stored_energy(&self) -> f64 {
-        self.cc.stored_energy(self.z.as_slice())
-    }
-
-    /// The switching period used by [`Simulator::advance_periods`]: the
-    /// period of the first periodic gate signal.
-    pub fn period(&self) -> Option<f64> {
-        self.cc.signals.iter().find_map(|(_, s)| s.period)
-    }
-
-    /// The instant cycle `k` of the first periodic gate signal (the one
-    /// [`Simulator::period`] gives) starts: the time of its first edge in
-    /// that cycle, in the same bits as the schedule computes that edge, so
-    /// it is a segment boundary of the record. With
-    /// [`crate::measure::measure_period`] this measures period k by its
-    /// index.
-    ///
-    /// ```
-    /// use fluxstep_netlist::Circuit;
-    /// use fluxstep_solver::measure::measure_period;
-    /// use fluxstep_solver::{Options, Simulator};
-    ///
-    /// let buck = Circuit::builder()
-    ///     .voltage_source("Vin", "in", "gnd", 12.0)
-    ///     .switch("S1", "in", "sw", "drive")
-    ///     .diode("D1", "gnd", "sw")
-    ///     .inductor("L1", "sw", "out", 100e-6)
-    ///     .capacitor("C1", "out", "gnd", 100e-6)
-    ///     .resistor("Rload", "out", "gnd", 5.0)
-    ///     .pwm("drive", 100e3, 0.5)
-    ///     .build()
-    ///     .unwrap();
-    /// let mut sim = Simulator::new(&buck, Options::default()).unwrap();
-    /// sim.advance_periods(20).unwrap();
-    /// let (a, b) = (sim.cycle_start(10).unwrap(), sim.cycle_start(11).unwrap());
-    /// let sw = sim.waveform().output("sw").unwrap();
-    /// let m = measure_period(sim.waveform(), sw, a, b).unwrap();
-    /// assert!((m.average - 6.0).abs() < 1e-12); // D·Vin
-    /// ```
-    pub fn cycle_start(&self, k: i64) -> Option<f64> {
-        self.cc.signals.iter().find_map(|(_, s)| s.cycle_start(k))
-    }
-
-    /// The recorded waveform so far.
-    pub fn waveform(&self) -> &Waveform {
-        &self.wave
-    }
-
-    /// The recorded events so far.
-    pub fn events(&self) -> &EventLog {
-        &self.log
-    }
-
-    /// Counters so far.
-    pub fn stats(&self) -> Stats {
-        let mut s = self.stats;
-        s.modes = self.modes.len();
-        s
-    }
-
-    /// Ends the run and hands over what was recorded.
-    pub fn finish(self) -> RunResult {
-        let stats = self.stats();
-        RunResult {
-            waveform: self.wave,
-            events: self.log,
-            stats,
-        }
-    }
-
     /// Advances by `n` whole periods of the first periodic gate signal.
     ///
     /// # Errors
@@ -777,7 +277,7 @@ impl Simulator {
         std::mem::swap(&mut self.z, &mut self.z_next);
         self.check_finite()?;
         self.stats.state_events += 1;
-        self.cause = EventCause::Crossing;
+        self.rec.cause = EventCause::Crossing;
         let cause = self.fire_comparators(cmp_fired, t_e)?;
         if fired != 0 && self.ramp_waits_for_clamp() {
             self.clamp_ramps(t_e);
@@ -887,9 +387,9 @@ impl Simulator {
         }
         // `reserve` does nothing where the room is there already.
         let n = expected.min(cap) as usize;
-        self.wave.segments.reserve(n);
-        self.wave.states.reserve(n * self.wave.n_z);
-        self.log.reserve(2 * n);
+        self.rec.wave.segments.reserve(n);
+        self.rec.wave.states.reserve(n * self.rec.wave.n_z);
+        self.rec.log.reserve(2 * n);
     }
 
     #[inline(always)]
@@ -932,194 +432,13 @@ impl Simulator {
         }
         let i = self.modes.len() as u32;
         self.modes.push(m.clone());
-        self.wave.modes.push(m);
+        self.rec.wave.modes.push(m);
         self.caches.push(ModeCache::default());
         self.mode_index.insert(key, i);
         self.mode_keys.push(key);
         Ok(i)
     }
-
-    /// z_next = e^{M·len} z in mode `mi` (matrix `m`) by an exponential
-    /// cached for a length that came back; false (nothing advanced) if
-    /// there is none yet. A length that is not a span of the schedule (it
-    /// starts or ends at a located event) is cached when the same bits
-    /// come back: once a converter in discontinuous conduction settles,
-    /// its located instants jitter only in their last bits, so the lengths
-    /// take a few distinct values, while a length seen once costs no
-    /// exponential. The oldest entry makes room for a new one, so the
-    /// lengths of the settling transient do not keep out those of the
-    /// steady state.
-    pub(super) fn advance_repeated(&mut self, mi: usize, m: &DMatrix<f64>, len: f64) -> bool {
-        let bits = len.to_bits();
-        let cache = &mut self.caches[mi];
-        if let Some((_, phi)) = cache.repeated.iter().find(|(b, _)| *b == bits) {
-            self.stats.cache_hits += 1;
-            propagate::matvec(phi, self.z.as_slice(), self.z_next.as_mut_slice());
-            return true;
-        }
-        if !self.cache_repeats {
-            return false;
-        }
-        if !cache.misses.contains(&bits) {
-            cache.misses.rotate_right(1);
-            cache.misses[0] = bits;
-            return false;
-        }
-        self.stats.exponentials += 1;
-        let phi = propagate::expm(m, len);
-        propagate::matvec(&phi, self.z.as_slice(), self.z_next.as_mut_slice());
-        if cache.repeated.len() < MAX_AGAIN {
-            cache.repeated.push((bits, phi));
-        } else {
-            cache.repeated[cache.repeated_next] = (bits, phi);
-            cache.repeated_next = (cache.repeated_next + 1) % MAX_AGAIN;
-        }
-        true
-    }
-
-    /// Advance over `len` in mode `mi`, into `z_next`, from a cached
-    /// exponential of a nearby length h₀ (|len − h₀| ≤ len/4, the nearest
-    /// one): e^{M·len} z = e^{M(len−h₀)} (e^{Mh₀} z), the short remainder
-    /// by Taylor terms. The lengths of a converter under a controller move
-    /// by a little every period, so their exponentials are not cached, but
-    /// the remainder needs a few terms where the whole length needs a
-    /// dozen or more. As exact as the Taylor path (to rounding; a test
-    /// compares the two to 1e-12). False if no cached length is near.
-    fn advance_near(&mut self, mi: usize, m: &Mode, len: f64) -> bool {
-        if !self.near_cache {
-            return false;
-        }
-        let cache = &self.caches[mi];
-        let mut best: Option<(f64, &DMatrix<f64>)> = None;
-        for (b, phi) in cache.scheduled.iter().chain(&cache.repeated) {
-            let d = len - f64::from_bits(*b);
-            if d.abs() <= 0.25 * len && best.is_none_or(|(bd, _)| d.abs() < bd.abs()) {
-                best = Some((d, phi));
-            }
-        }
-        let Some((delta, phi)) = best else {
-            return false;
-        };
-        self.stats.near_steps += 1;
-        propagate::matvec(phi, self.z.as_slice(), self.z_try.as_mut_slice());
-        propagate::advance_into(
-            &m.m,
-            m.live,
-            m.rate,
-            self.z_try.as_slice(),
-            delta,
-            self.z_next.as_mut_slice(),
-            &mut self.scratch,
-        );
-        true
-    }
-
-    /// Exact advance over `h` in the present mode, into `z_next`.
-    fn step(&mut self, h: f64, cacheable: bool) {
-        let mi = self.mode as usize;
-        let bits = h.to_bits();
-        if let Some((_, phi)) = self.caches[mi].scheduled.iter().find(|(b, _)| *b == bits) {
-            self.stats.cache_hits += 1;
-            propagate::matvec(phi, self.z.as_slice(), self.z_next.as_mut_slice());
-            return;
-        }
-        let stiff = propagate::substeps(self.modes[mi].rate, h) > propagate::STIFF_SUBSTEPS;
-        if stiff {
-            // Out of the hot loop: only lengths without a cached
-            // exponential get here. A refusal leaves NaN, which
-            // `check_finite` turns into the stored diagnostic.
-            if let Err(e) = self.check_resolvable(h) {
-                self.z_next.fill(f64::NAN);
-                self.refused = Some(e);
-                return;
-            }
-        }
-        // The modes are borrowed out of `self` meanwhile: cloning the
-        // `Arc` cost two atomic operations at every step of a circuit
-        // with transition models (four lengths a period are not cached).
-        let modes = std::mem::take(&mut self.modes);
-        self.step_uncached(&modes[mi], h, cacheable, stiff);
-        self.modes = modes;
-    }
-
-    /// The rest of `step` where no span of the schedule is cached (the
-    /// modes are borrowed out of `self`).
-    fn step_uncached(&mut self, m: &Mode, h: f64, cacheable: bool, stiff: bool) {
-        let mi = self.mode as usize;
-        let bits = h.to_bits();
-        if cacheable && self.caches[mi].scheduled.len() < 16 {
-            self.stats.exponentials += 1;
-            let phi = propagate::expm(&m.m, h);
-            propagate::matvec(&phi, self.z.as_slice(), self.z_next.as_mut_slice());
-            self.caches[mi].scheduled.push((bits, phi));
-            return;
-        }
-        // Lengths that come back, whether spans of the schedule (once 16
-        // of them are cached: a controller moves the edges) or not.
-        if (!cacheable || self.near_cache) && self.advance_repeated(mi, &m.m, h) {
-            return;
-        }
-        if stiff {
-            // One exponential (a near length's remainder could be a step
-            // back over a fast decay).
-            self.stats.stiff_spans += 1;
-            self.stats.exponentials += 1;
-        } else if self.advance_near(mi, m, h) {
-            return;
-        }
-        propagate::advance_into(
-            &m.m,
-            m.live,
-            m.rate,
-            self.z.as_slice(),
-            h,
-            self.z_next.as_mut_slice(),
-            &mut self.scratch,
-        );
-    }
 }
-
-/// A cached discretisation: the bits of a length h and e^{Mh}.
-type Disc = (u64, DMatrix<f64>);
-
-/// What is cached for one mode, by the exact bits of interval lengths.
-struct ModeCache {
-    /// e^{Mh} for spans of the schedule, at most 16.
-    scheduled: Vec<Disc>,
-    /// The latest lengths advanced without a cached exponential (a ring).
-    misses: [u64; REPEAT_RING],
-    /// e^{Mh} for lengths that came back, at most [`MAX_AGAIN`], and the
-    /// next one to replace once full (see `Simulator::advance_repeated`).
-    repeated: Vec<Disc>,
-    repeated_next: usize,
-    /// Guard polynomials of scheduled lengths (see `locate.rs`).
-    polys: Vec<locate::GuardPolys>,
-    /// The mode's eigenvalues, computed at its first stiff span (`None`
-    /// before; `Some(None)` where they cannot be trusted).
-    spectrum: Option<Option<std::sync::Arc<propagate::Spectrum>>>,
-    /// e^{Mδ} for the sub-interval lengths δ of stiff spans.
-    stiff_steps: Vec<Disc>,
-}
-
-impl Default for ModeCache {
-    fn default() -> Self {
-        ModeCache {
-            scheduled: vec![],
-            misses: [f64::NAN.to_bits(); REPEAT_RING],
-            repeated: vec![],
-            repeated_next: 0,
-            polys: vec![],
-            spectrum: None,
-            stiff_steps: vec![],
-        }
-    }
-}
-
-/// Lengths remembered per mode for caching on their return (see `step`).
-const REPEAT_RING: usize = 8;
-
-/// Most exponentials cached per mode for lengths that came back.
-const MAX_AGAIN: usize = 16;
 
 /// Runs a transient from the circuit's initial state to `stop_time`.
 ///

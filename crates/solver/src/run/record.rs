@@ -1,12 +1,73 @@
 //! Stage 4: recording — segments into the waveform (or a sink) and events
 //! into the log, each only when the recording window keeps it.
 
-use super::{SegmentView, Simulator};
+use super::{SegmentSink, SegmentView, Simulator};
 use crate::error::SolverError;
-use crate::events::{EventKind, JumpInfo};
+use crate::events::{EventCause, EventKind, EventLog, JumpInfo};
 use crate::options::Record;
 use crate::propagate;
-use crate::waveform::Segment;
+use crate::waveform::{Segment, Waveform};
+
+/// What the record stage owns: the waveform's segments (or the sink that
+/// takes them instead), the event log, the chatter window over the latest
+/// events, the event count, the kind of the present instant and the state
+/// before it.
+pub(super) struct Recorder {
+    pub(super) wave: Waveform,
+    pub(super) log: EventLog,
+    pub(super) sink: Option<SegmentSink>,
+    /// The latest events, a ring of `chatter_events + 1` (oldest at
+    /// `recent_head` once full).
+    pub(super) recent: Vec<(f64, u32)>,
+    pub(super) recent_head: usize,
+    /// The chatter window in seconds, resolved from
+    /// [`crate::Options::chatter_window`] and the circuit's time scale.
+    pub(super) chatter_window: f64,
+    /// Every event counted, kept or not (for the event limit).
+    pub(super) n_events: usize,
+    /// The kind of the present instant, logged with its events.
+    pub(super) cause: EventCause,
+    /// The circuit state x before the present instant (each event logs it).
+    pub(super) before: Vec<f64>,
+}
+
+impl Recorder {
+    /// An empty record of the compiled circuit: its output, switch and
+    /// state names, and its element ids in the log — switches, then
+    /// diodes, then sources (see `Simulator::who_id`).
+    pub(super) fn new(cc: &crate::compile::Compiled) -> Recorder {
+        let wave = Waveform {
+            segments: vec![],
+            states: vec![],
+            n_z: cc.n_z(),
+            modes: vec![],
+            output_names: cc.outputs.iter().map(|(n, _)| n.clone()).collect(),
+            n_x: cc.n_x,
+            switch_names: cc.switches.iter().map(|s| s.name.clone()).collect(),
+        };
+        let mut log = EventLog::new(cc.state_names.clone());
+        for name in cc
+            .switches
+            .iter()
+            .map(|s| &s.name)
+            .chain(cc.diodes.iter().map(|d| &d.name))
+            .chain(cc.sources.iter().map(|s| &s.name))
+        {
+            log.names_push(name);
+        }
+        Recorder {
+            wave,
+            log,
+            sink: None,
+            recent: vec![],
+            recent_head: 0,
+            chatter_window: 0.0,
+            n_events: 0,
+            cause: EventCause::Start,
+            before: vec![],
+        }
+    }
+}
 
 /// The element an event concerns, named only when text is needed.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -65,7 +126,7 @@ impl Simulator {
         if t1 <= t0 {
             return;
         }
-        if let Some(sink) = self.sink.as_mut() {
+        if let Some(sink) = self.rec.sink.as_mut() {
             let view = SegmentView {
                 t0,
                 t1,
@@ -90,8 +151,8 @@ impl Simulator {
     /// Appends the segment [t0, t1] that starts at the present state.
     #[inline(always)]
     fn push_segment(&mut self, t0: f64, t1: f64, len: f64, end: u32) {
-        propagate::extend_small(&mut self.wave.states, self.z.as_slice());
-        self.wave.segments.push(Segment {
+        propagate::extend_small(&mut self.rec.wave.states, self.z.as_slice());
+        self.rec.wave.segments.push(Segment {
             t0,
             t1,
             len,
@@ -114,9 +175,9 @@ impl Simulator {
         if a > t0 {
             let m = &self.modes[self.mode as usize];
             let z = propagate::advance(&m.m, m.rate, &self.z, a - t0);
-            propagate::extend_small(&mut self.wave.states, z.as_slice());
+            propagate::extend_small(&mut self.rec.wave.states, z.as_slice());
         } else {
-            propagate::extend_small(&mut self.wave.states, self.z.as_slice());
+            propagate::extend_small(&mut self.rec.wave.states, self.z.as_slice());
         }
         // Cut short by the window's end, the record ends at no event.
         let end = if b < t1 {
@@ -125,7 +186,7 @@ impl Simulator {
             end
         };
         // A clipped piece has no scheduled length of its own.
-        self.wave.segments.push(Segment {
+        self.rec.wave.segments.push(Segment {
             t0: a,
             t1: b,
             len: b - a,
@@ -135,7 +196,7 @@ impl Simulator {
     }
 
     /// Counts an event (event limit, chatter) and logs it if kept. The state
-    /// before is `self.before`; after is the present state when
+    /// before is `self.rec.before`; after is the present state when
     /// `changed_state`, else the same as before.
     #[inline]
     pub(super) fn push_event(
@@ -146,41 +207,46 @@ impl Simulator {
         jump: Option<JumpInfo>,
         changed_state: bool,
     ) -> Result<(), SolverError> {
-        self.n_events += 1;
-        if self.n_events > self.opts.max_events {
+        self.rec.n_events += 1;
+        if self.rec.n_events > self.opts.max_events {
             return Err(self.event_limit_error(time));
         }
         self.check_budget(time)?;
         // The last `chatter_events + 1` events in a ring: more than
         // `chatter_events` fall within the window exactly when the oldest
         // of them does (times never decrease).
-        let window = self.chatter_window;
+        let window = self.rec.chatter_window;
         let cap = self.opts.chatter_events + 1;
         let id = self.who_id(&who);
-        let oldest = if self.recent.len() < cap {
-            self.recent.push((time, id));
-            self.recent[0].0
+        let oldest = if self.rec.recent.len() < cap {
+            self.rec.recent.push((time, id));
+            self.rec.recent[0].0
         } else {
-            self.recent[self.recent_head] = (time, id);
-            self.recent_head += 1;
-            if self.recent_head == cap {
-                self.recent_head = 0;
+            self.rec.recent[self.rec.recent_head] = (time, id);
+            self.rec.recent_head += 1;
+            if self.rec.recent_head == cap {
+                self.rec.recent_head = 0;
             }
-            self.recent[self.recent_head].0
+            self.rec.recent[self.rec.recent_head].0
         };
-        if self.recent.len() == cap && oldest >= time - window {
+        if self.rec.recent.len() == cap && oldest >= time - window {
             return Err(self.chatter_error(time));
         }
         if self.keeps(time) {
             let after = if changed_state {
                 &self.z.as_slice()[..self.cc.n_x]
             } else {
-                &self.before[..]
+                &self.rec.before[..]
             };
-            if !self
-                .log
-                .push(time, kind, self.cause, id, jump, &self.before, after)
-            {
+            if !self.rec.log.push(
+                time,
+                kind,
+                self.rec.cause,
+                id,
+                jump,
+                &self.rec.before,
+                after,
+            ) {
                 // The log numbers its records and snapshots with 32 bits.
                 return Err(self.log_full_error(time));
             }
@@ -211,21 +277,21 @@ impl Simulator {
         }
         self.check_budget(time)?;
         let cap = self.opts.chatter_events + 1;
-        let len = self.recent.len();
+        let len = self.rec.recent.len();
         // The chatter check of the last event decides for both (times never
         // decrease), and the oldest of the ring after k more is known.
         let quiet = if len == cap {
             k < cap && {
-                let mut oldest = self.recent_head + k;
+                let mut oldest = self.rec.recent_head + k;
                 if oldest >= cap {
                     oldest -= cap;
                 }
-                self.recent[oldest].0 < time - self.chatter_window
+                self.rec.recent[oldest].0 < time - self.rec.chatter_window
             }
         } else {
             len + k < cap
         };
-        if !quiet || self.n_events + k > self.opts.max_events {
+        if !quiet || self.rec.n_events + k > self.opts.max_events {
             return self.push_instant_one_by_one(time, switched, diodes);
         }
         let first = (switched != 0).then(|| {
@@ -250,21 +316,22 @@ impl Simulator {
             let after = &self.z.as_slice()[..self.cc.n_x];
             // Refused (nothing added): one by one gives the same refusal.
             if !self
+                .rec
                 .log
-                .push_pair(time, self.cause, first, second, &self.before, after)
+                .push_pair(time, self.rec.cause, first, second, &self.rec.before, after)
             {
                 return self.push_instant_one_by_one(time, switched, diodes);
             }
         }
-        self.n_events += k;
+        self.rec.n_events += k;
         for (_, id) in first.into_iter().chain(second) {
-            if self.recent.len() < cap {
-                self.recent.push((time, id));
+            if self.rec.recent.len() < cap {
+                self.rec.recent.push((time, id));
             } else {
-                self.recent[self.recent_head] = (time, id);
-                self.recent_head += 1;
-                if self.recent_head == cap {
-                    self.recent_head = 0;
+                self.rec.recent[self.rec.recent_head] = (time, id);
+                self.rec.recent_head += 1;
+                if self.rec.recent_head == cap {
+                    self.rec.recent_head = 0;
                 }
             }
         }
@@ -309,7 +376,7 @@ impl Simulator {
     /// one segment and one instant's events.
     #[inline]
     pub(super) fn check_budget(&self, time: f64) -> Result<(), SolverError> {
-        if self.wave.memory_bytes() + self.log.memory_bytes() > self.opts.memory_budget {
+        if self.rec.wave.memory_bytes() + self.rec.log.memory_bytes() > self.opts.memory_budget {
             return Err(self.budget_error(time));
         }
         Ok(())
@@ -331,16 +398,17 @@ impl Simulator {
     #[inline(never)]
     fn chatter_error(&self, time: f64) -> SolverError {
         let mut elements: Vec<String> = self
+            .rec
             .recent
             .iter()
-            .map(|&(_, id)| self.log.name(id).to_string())
+            .map(|&(_, id)| self.rec.log.name(id).to_string())
             .collect();
         elements.sort();
         elements.dedup();
         SolverError::Chatter {
             time,
-            count: self.recent.len(),
-            window: self.chatter_window,
+            count: self.rec.recent.len(),
+            window: self.rec.chatter_window,
             elements,
         }
     }
@@ -361,7 +429,7 @@ impl Simulator {
     fn log_full_error(&self, time: f64) -> SolverError {
         SolverError::EventLimit {
             time,
-            limit: self.log.len(),
+            limit: self.rec.log.len(),
         }
     }
 }

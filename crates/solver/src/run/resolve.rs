@@ -431,8 +431,8 @@ impl Simulator {
             return Ok(false);
         };
         let n_x = self.cc.n_x;
-        self.before.clear();
-        propagate::extend_small(&mut self.before, &self.z.as_slice()[..n_x]);
+        self.rec.before.clear();
+        propagate::extend_small(&mut self.rec.before, &self.z.as_slice()[..n_x]);
         let old = self.enter_remembered(to, projected);
         self.log_diode_changes(old).map(|()| true)
     }
@@ -611,8 +611,8 @@ impl Simulator {
         initial: bool,
     ) -> Result<(), SolverError> {
         let n_x = self.cc.n_x;
-        self.before.clear();
-        self.before.extend_from_slice(&self.z.as_slice()[..n_x]);
+        self.rec.before.clear();
+        self.rec.before.extend_from_slice(&self.z.as_slice()[..n_x]);
         let jump = (cut_jump || loop_jump).then(|| JumpInfo {
             energy: self.cc.stored_energy(self.z.as_slice())
                 - self.cc.stored_energy(self.z_try.as_slice()),
@@ -640,7 +640,7 @@ impl Simulator {
             } else {
                 EventKind::ChargeJump
             };
-            let id = self.log.intern(&names.join(","));
+            let id = self.rec.log.intern(&names.join(","));
             self.push_event(self.t, kind, Who::Named(id), Some(jump), true)?;
         }
         let short = match (&self.modes[mi as usize].resistive_short, was_shorted) {
@@ -648,7 +648,7 @@ impl Simulator {
             _ => None,
         };
         if let Some(devices) = short {
-            let id = self.log.intern(&devices);
+            let id = self.rec.log.intern(&devices);
             self.push_event(self.t, EventKind::ShootThrough, Who::Named(id), None, true)?;
         }
         if !initial {

@@ -286,10 +286,10 @@ impl Simulator {
     /// the conduction pattern that follows.
     pub(super) fn apply_scheduled(&mut self, t: f64) -> Result<(), SolverError> {
         self.stats.scheduled_events += 1;
-        self.cause = EventCause::Scheduled;
+        self.rec.cause = EventCause::Scheduled;
         let n_x = self.cc.n_x;
-        self.before.clear();
-        crate::propagate::extend_small(&mut self.before, &self.z.as_slice()[..n_x]);
+        self.rec.before.clear();
+        crate::propagate::extend_small(&mut self.rec.before, &self.z.as_slice()[..n_x]);
         if self.plain && self.plain_instants_allowed() {
             return self.plain_instant(t);
         }

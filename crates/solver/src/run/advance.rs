@@ -1,0 +1,190 @@
+//! Stage 2 of an interval: the exact advance over its length, into
+//! `z_next`, from the cheapest exact source there is — an exponential
+//! cached for a span of the schedule, one cached for a length that came
+//! back, a nearby cached length and a short Taylor remainder, or Taylor
+//! sub-steps (one exponential for a stiff span).
+
+use super::*;
+
+impl Simulator {
+    /// z_next = e^{M·len} z in mode `mi` (matrix `m`) by an exponential
+    /// cached for a length that came back; false (nothing advanced) if
+    /// there is none yet. A length that is not a span of the schedule (it
+    /// starts or ends at a located event) is cached when the same bits
+    /// come back: once a converter in discontinuous conduction settles,
+    /// its located instants jitter only in their last bits, so the lengths
+    /// take a few distinct values, while a length seen once costs no
+    /// exponential. The oldest entry makes room for a new one, so the
+    /// lengths of the settling transient do not keep out those of the
+    /// steady state.
+    pub(super) fn advance_repeated(&mut self, mi: usize, m: &DMatrix<f64>, len: f64) -> bool {
+        let bits = len.to_bits();
+        let cache = &mut self.caches[mi];
+        if let Some((_, phi)) = cache.repeated.iter().find(|(b, _)| *b == bits) {
+            self.stats.cache_hits += 1;
+            propagate::matvec(phi, self.z.as_slice(), self.z_next.as_mut_slice());
+            return true;
+        }
+        if !self.cache_repeats {
+            return false;
+        }
+        if !cache.misses.contains(&bits) {
+            cache.misses.rotate_right(1);
+            cache.misses[0] = bits;
+            return false;
+        }
+        self.stats.exponentials += 1;
+        let phi = propagate::expm(m, len);
+        propagate::matvec(&phi, self.z.as_slice(), self.z_next.as_mut_slice());
+        if cache.repeated.len() < MAX_AGAIN {
+            cache.repeated.push((bits, phi));
+        } else {
+            cache.repeated[cache.repeated_next] = (bits, phi);
+            cache.repeated_next = (cache.repeated_next + 1) % MAX_AGAIN;
+        }
+        true
+    }
+
+    /// Advance over `len` in mode `mi`, into `z_next`, from a cached
+    /// exponential of a nearby length h₀ (|len − h₀| ≤ len/4, the nearest
+    /// one): e^{M·len} z = e^{M(len−h₀)} (e^{Mh₀} z), the short remainder
+    /// by Taylor terms. The lengths of a converter under a controller move
+    /// by a little every period, so their exponentials are not cached, but
+    /// the remainder needs a few terms where the whole length needs a
+    /// dozen or more. As exact as the Taylor path (to rounding; a test
+    /// compares the two to 1e-12). False if no cached length is near.
+    pub(super) fn advance_near(&mut self, mi: usize, m: &Mode, len: f64) -> bool {
+        if !self.near_cache {
+            return false;
+        }
+        let cache = &self.caches[mi];
+        let mut best: Option<(f64, &DMatrix<f64>)> = None;
+        for (b, phi) in cache.scheduled.iter().chain(&cache.repeated) {
+            let d = len - f64::from_bits(*b);
+            if d.abs() <= 0.25 * len && best.is_none_or(|(bd, _)| d.abs() < bd.abs()) {
+                best = Some((d, phi));
+            }
+        }
+        let Some((delta, phi)) = best else {
+            return false;
+        };
+        self.stats.near_steps += 1;
+        propagate::matvec(phi, self.z.as_slice(), self.z_try.as_mut_slice());
+        propagate::advance_into(
+            &m.m,
+            m.live,
+            m.rate,
+            self.z_try.as_slice(),
+            delta,
+            self.z_next.as_mut_slice(),
+            &mut self.scratch,
+        );
+        true
+    }
+
+    /// Exact advance over `h` in the present mode, into `z_next`.
+    pub(super) fn step(&mut self, h: f64, cacheable: bool) {
+        let mi = self.mode as usize;
+        let bits = h.to_bits();
+        if let Some((_, phi)) = self.caches[mi].scheduled.iter().find(|(b, _)| *b == bits) {
+            self.stats.cache_hits += 1;
+            propagate::matvec(phi, self.z.as_slice(), self.z_next.as_mut_slice());
+            return;
+        }
+        let stiff = propagate::substeps(self.modes[mi].rate, h) > propagate::STIFF_SUBSTEPS;
+        if stiff {
+            // Out of the hot loop: only lengths without a cached
+            // exponential get here. A refusal leaves NaN, which
+            // `check_finite` turns into the stored diagnostic.
+            if let Err(e) = self.check_resolvable(h) {
+                self.z_next.fill(f64::NAN);
+                self.refused = Some(e);
+                return;
+            }
+        }
+        // The modes are borrowed out of `self` meanwhile: cloning the
+        // `Arc` cost two atomic operations at every step of a circuit
+        // with transition models (four lengths a period are not cached).
+        let modes = std::mem::take(&mut self.modes);
+        self.step_uncached(&modes[mi], h, cacheable, stiff);
+        self.modes = modes;
+    }
+
+    /// The rest of `step` where no span of the schedule is cached (the
+    /// modes are borrowed out of `self`).
+    fn step_uncached(&mut self, m: &Mode, h: f64, cacheable: bool, stiff: bool) {
+        let mi = self.mode as usize;
+        let bits = h.to_bits();
+        if cacheable && self.caches[mi].scheduled.len() < 16 {
+            self.stats.exponentials += 1;
+            let phi = propagate::expm(&m.m, h);
+            propagate::matvec(&phi, self.z.as_slice(), self.z_next.as_mut_slice());
+            self.caches[mi].scheduled.push((bits, phi));
+            return;
+        }
+        // Lengths that come back, whether spans of the schedule (once 16
+        // of them are cached: a controller moves the edges) or not.
+        if (!cacheable || self.near_cache) && self.advance_repeated(mi, &m.m, h) {
+            return;
+        }
+        if stiff {
+            // One exponential (a near length's remainder could be a step
+            // back over a fast decay).
+            self.stats.stiff_spans += 1;
+            self.stats.exponentials += 1;
+        } else if self.advance_near(mi, m, h) {
+            return;
+        }
+        propagate::advance_into(
+            &m.m,
+            m.live,
+            m.rate,
+            self.z.as_slice(),
+            h,
+            self.z_next.as_mut_slice(),
+            &mut self.scratch,
+        );
+    }
+}
+
+/// A cached discretisation: the bits of a length h and e^{Mh}.
+pub(super) type Disc = (u64, DMatrix<f64>);
+
+/// What is cached for one mode, by the exact bits of interval lengths.
+pub(super) struct ModeCache {
+    /// e^{Mh} for spans of the schedule, at most 16.
+    pub(super) scheduled: Vec<Disc>,
+    /// The latest lengths advanced without a cached exponential (a ring).
+    pub(super) misses: [u64; REPEAT_RING],
+    /// e^{Mh} for lengths that came back, at most [`MAX_AGAIN`], and the
+    /// next one to replace once full (see `Simulator::advance_repeated`).
+    pub(super) repeated: Vec<Disc>,
+    pub(super) repeated_next: usize,
+    /// Guard polynomials of scheduled lengths (see `locate.rs`).
+    pub(super) polys: Vec<locate::GuardPolys>,
+    /// The mode's eigenvalues, computed at its first stiff span (`None`
+    /// before; `Some(None)` where they cannot be trusted).
+    pub(super) spectrum: Option<Option<std::sync::Arc<propagate::Spectrum>>>,
+    /// e^{Mδ} for the sub-interval lengths δ of stiff spans.
+    pub(super) stiff_steps: Vec<Disc>,
+}
+
+impl Default for ModeCache {
+    fn default() -> Self {
+        ModeCache {
+            scheduled: vec![],
+            misses: [f64::NAN.to_bits(); REPEAT_RING],
+            repeated: vec![],
+            repeated_next: 0,
+            polys: vec![],
+            spectrum: None,
+            stiff_steps: vec![],
+        }
+    }
+}
+
+/// Lengths remembered per mode for caching on their return (see `step`).
+const REPEAT_RING: usize = 8;
+
+/// Most exponentials cached per mode for lengths that came back.
+const MAX_AGAIN: usize = 16;

@@ -1,0 +1,236 @@
+//! Building a simulator: compile the circuit, set the schedule, the
+//! recorder and the scale watch up, and resolve the conduction pattern at
+//! t = 0.
+
+use fluxstep_netlist::Circuit;
+
+use super::*;
+
+impl Simulator {
+    /// Compiles the circuit and resolves its conduction pattern at t = 0.
+    ///
+    /// # Errors
+    ///
+    /// An invalid circuit, or an initial state no mode can hold (e.g. an
+    /// inductor with initial current and no path).
+    pub fn new(circuit: &Circuit, opts: Options) -> Result<Simulator, SolverError> {
+        let cc = Compiled::compile(circuit)?;
+        let ramp_switches = supported_sizes(&cc)?;
+        let mut sim = Simulator::assemble(circuit, cc, opts, ramp_switches);
+        sim.watch_scales();
+        sim.start_schedule();
+        // The chatter window from the gates' periods; without periodic
+        // gates it is set from the first mode below (the first resolve
+        // logs at most one event per part, far from any chatter count).
+        sim.rec.chatter_window = sim.opts.chatter_window;
+        let shortest = sim
+            .cc
+            .signals
+            .iter()
+            .filter_map(|(_, s)| s.period)
+            .filter(|p| p.is_finite() && *p > 0.0)
+            .fold(f64::INFINITY, f64::min);
+        if automatic(sim.rec.chatter_window) && shortest.is_finite() {
+            sim.rec.chatter_window = CHATTER_FRACTION * shortest;
+        }
+        sim.resolve(0, None, true)?;
+        if automatic(sim.rec.chatter_window) {
+            let rate = sim.modes[sim.mode as usize].rate;
+            sim.rec.chatter_window = if rate > 0.0 && rate.is_finite() {
+                CHATTER_FRACTION * std::f64::consts::TAU / rate
+            } else {
+                1e-12
+            };
+        }
+        // Closed-loop gates decide their state at t = 0 from the circuit.
+        if let Some(cause) = sim.start_comparators()? {
+            sim.resolve(0, Some(cause), false)?;
+        }
+        Ok(sim)
+    }
+
+    /// The simulator's containers at t = 0, before the first pattern.
+    fn assemble(circuit: &Circuit, cc: Compiled, opts: Options, ramp_switches: u64) -> Simulator {
+        let n_switches = cc.switches.len();
+        let nz = cc.n_z();
+        let mut z = DVector::zeros(nz);
+        for (i, v) in cc.x0.iter().enumerate() {
+            z[i] = *v;
+        }
+        let signals = cc
+            .signals
+            .iter()
+            .map(|(_, s)| SignalBuffer {
+                edges: EdgeQueue::default(),
+                filled_to: 0.0,
+                chunk: s.period.map(|p| 64.0 * p).unwrap_or(f64::INFINITY),
+            })
+            .collect();
+        let signal_on = cc.signals.iter().map(|(_, s)| s.is_on(0.0)).collect();
+        let n_cmp = cc.comparators.len();
+        let signal_gate = cc
+            .signals
+            .iter()
+            .map(|(name, _)| {
+                circuit
+                    .gates
+                    .iter()
+                    .position(|g| g.signals().iter().any(|(n, _)| n == name))
+                    .expect("every signal comes from a gate")
+            })
+            .collect();
+        let pwl_sources = (0..cc.sources.len())
+            .filter(|&i| cc.sources[i].input.is_some())
+            .collect();
+        let rec = record::Recorder::new(&cc);
+        let mut sim = Simulator {
+            cc,
+            opts,
+            mode_index: HashMap::new(),
+            mode_keys: vec![],
+            modes: vec![],
+            caches: vec![],
+            t: 0.0,
+            tkey: None,
+            z_next: z.clone(),
+            z,
+            mode: 0,
+            key: ModeKey {
+                switches: 0,
+                diodes: 0,
+                ramps: 0,
+            },
+            signals,
+            signal_on,
+            cmp_enabled_off: vec![true; n_cmp],
+            cmp_ticks: vec![],
+            signal_gate,
+            gates: circuit.gates.clone(),
+            gate_origin: vec![0.0; circuit.gates.len()],
+            controllers: vec![],
+            pending: vec![],
+            pwl_sources,
+            rec,
+            stats: Stats::default(),
+            seen: Scales::default(),
+            current_states: vec![],
+            voltage_terms: vec![],
+            multi_term_sources: vec![],
+            const_inputs: None,
+            orders: vec![],
+            far_order: None,
+            pivoting: true,
+            memo: vec![],
+            replay: true,
+            plain: true,
+            cache_repeats: true,
+            poly_cache: true,
+            near_cache: true,
+            plain_instants: 0,
+            gates_only: false,
+            z_try: DVector::zeros(nz),
+            scratch: propagate::Scratch::default(),
+            terms: propagate::TaylorTerms::default(),
+            za: DVector::zeros(nz),
+            coef: vec![],
+            ramp_switches,
+            phases: vec![transition::Phase::Idle; n_switches],
+            ramp_next: f64::INFINITY,
+            refused: None,
+            stalled: Stall {
+                time: f64::NAN,
+                pattern: ModeKey {
+                    switches: 0,
+                    diodes: 0,
+                    ramps: 0,
+                },
+                crossing: Crossing {
+                    time: 0.0,
+                    diodes: 0,
+                    comparators: 0,
+                },
+                repeats: 0,
+            },
+        };
+        sim.cmp_ticks = (0..n_cmp).map(|ci| sim.make_ticks(ci)).collect();
+        sim
+    }
+
+    /// The state entries whose largest magnitude sets the run's scales
+    /// (`update_scales`): inductor currents, capacitor voltages and
+    /// single-term source voltages, and the sources of several terms.
+    fn watch_scales(&mut self) {
+        self.current_states = self
+            .cc
+            .groups
+            .iter()
+            .flat_map(|g| g.states.iter().copied())
+            .collect();
+        self.voltage_terms = self.cc.caps.iter().map(|&(s, _)| (s, 1.0)).collect();
+        for (si, src) in self.cc.sources.iter().enumerate() {
+            match src.terms.as_slice() {
+                &[(k, f)] => self.voltage_terms.push((k, f)),
+                _ => self.multi_term_sources.push(si),
+            }
+        }
+    }
+
+    /// The inputs and switch states at t = 0 and the first edges of every
+    /// signal (those at t = 0 are already in the initial signal states).
+    fn start_schedule(&mut self) {
+        self.const_inputs = self.constant_inputs();
+        self.gates_only = self.const_inputs.is_some()
+            && self.cc.comparators.is_empty()
+            && self.ramp_switches == 0;
+        self.set_inputs(0.0);
+        self.key.switches = self.switch_bits();
+        for i in 0..self.signals.len() {
+            self.refill(i, 0.0);
+            while self.signals[i].edges.front().is_some_and(|e| e.time <= 0.0) {
+                self.signals[i].edges.pop_front();
+            }
+        }
+    }
+}
+
+/// Whether a chatter window is left to the simulator (not set, or not
+/// positive).
+fn automatic(w: f64) -> bool {
+    w.is_nan() || w <= 0.0
+}
+
+/// Refuses circuits beyond the bit sets' sizes (64 switches, 64 diodes,
+/// transition models on the first 32 switches); returns the bits of the
+/// switches with a transition model.
+fn supported_sizes(cc: &Compiled) -> Result<u64, SolverError> {
+    if cc.switches.len() > 64 || cc.diodes.len() > 64 {
+        return Err(SolverError::Unsupported {
+            time: 0.0,
+            pattern: String::new(),
+            reason: format!(
+                "{} switches and {} diodes: at most 64 switches and 64 diodes are supported",
+                cc.switches.len(),
+                cc.diodes.len()
+            ),
+        });
+    }
+    let mut ramp_switches = 0u64;
+    for (i, s) in cc.switches.iter().enumerate() {
+        if s.transition.is_some() {
+            if i >= 32 {
+                return Err(SolverError::Unsupported {
+                    time: 0.0,
+                    pattern: String::new(),
+                    reason: format!(
+                        "switch {} has a transition model but is switch number {} of the circuit: \
+                         only the first 32 switches may have one",
+                        s.name,
+                        i + 1
+                    ),
+                });
+            }
+            ramp_switches |= 1 << i;
+        }
+    }
+    Ok(ramp_switches)
+}
