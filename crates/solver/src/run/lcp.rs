@@ -38,8 +38,8 @@
 //! search by Hamming distance decides, as it does where no pattern holds
 //! without a jump.
 
-use super::resolve::violations;
-use super::resolve::{note_rejection, violated_guards, Found, Verdict};
+use super::checks::{violated_guards, violations};
+use super::resolve::{note_rejection, Found, Verdict};
 use super::Simulator;
 use crate::crossing::Scales;
 use crate::error::SolverError;

@@ -11,10 +11,12 @@
 mod access;
 mod advance;
 mod build;
+mod checks;
 mod control;
 mod lcp;
 mod locate;
 mod record;
+mod replay;
 mod resolve;
 mod restart;
 mod result;
@@ -122,8 +124,8 @@ pub struct Simulator {
     /// before the search by Hamming distance (off only in the tests that
     /// use the search as an oracle).
     pivoting: bool,
-    /// Remembered transitions (see `resolve::Remembered`), at most 64.
-    memo: Vec<resolve::Remembered>,
+    /// Remembered transitions (see `replay::Remembered`), at most 64.
+    memo: Vec<replay::Remembered>,
     /// Whether remembered transitions are replayed (off only in the test
     /// that checks replay gives the same bits as the full search).
     replay: bool,

@@ -21,18 +21,16 @@
 
 use std::sync::Arc;
 
-use nalgebra::DVector;
-
+use super::checks::{guards_hold, unbalanced_source, violations};
 use super::record::Who;
 use super::Simulator;
 use crate::compile::BranchKind;
-use crate::crossing::{Scales, SOURCE_BALANCE_REL};
+use crate::crossing::Scales;
 use crate::error::SolverError;
 use crate::events::{EventKind, JumpInfo};
 use crate::mode::{pattern_text, ConstraintKind, Mode, ModeKey, ModeProblem};
 use crate::options::{OnInterruption, OnShootThrough};
 use crate::propagate;
-use crate::propagate::dot_and_magnitude;
 
 /// Why the best rejected candidate was rejected, kept cheap until needed.
 enum Rejection {
@@ -56,49 +54,6 @@ pub(super) enum Verdict {
     Cut,
     /// Rejected by an unbalanced current source or a guard.
     Other,
-}
-
-/// A resolved transition, remembered for replay: from mode `from` with
-/// switch bits `switches` and guard flips `flips`, the search rejected the
-/// modes in `cut_rejected` for cutting an inductor current, those in
-/// `other_rejected` for a guard or an unbalanced current source (every
-/// other candidate before `to` for a structural reason) and accepted `to`
-/// without a jump.
-pub(super) struct Remembered {
-    from: u32,
-    switches: u64,
-    ramps: u64,
-    flips: u64,
-    cut_rejected: Vec<u32>,
-    /// Candidates rejected by a guard or a current source: a replay judges
-    /// them again whole (`still_rejected`). A synchronous buck whose
-    /// inductor current changes sign during start-up needs this: the
-    /// freewheeling diode of the other transistor comes first in the
-    /// search and is rejected by its guard once the current is positive.
-    other_rejected: Vec<u32>,
-    /// The distinct inductor-cutset rows that cut the candidates in
-    /// `cut_rejected` when the transition was remembered, as (mode, row of
-    /// its constraints): candidates that turn off the same diode share one.
-    cut_rows: Vec<(u32, u32)>,
-    /// Per entry of `cut_rejected`, its row in `cut_rows` (`NO_ROW`: none
-    /// found, the replay checks the whole mode).
-    cut_by: Vec<u16>,
-    to: u32,
-}
-
-/// A `cut_by` entry without a remembered row.
-const NO_ROW: u16 = u16::MAX;
-
-impl Remembered {
-    fn same_key(&self, other: &Remembered) -> bool {
-        self.leaves(other.from, other.switches, other.ramps, other.flips)
-    }
-
-    /// Whether this is the transition from mode `from` with switch bits
-    /// `switches`, ramp bits `ramps` and guard flips `flips`.
-    fn leaves(&self, from: u32, switches: u64, ramps: u64, flips: u64) -> bool {
-        self.from == from && self.switches == switches && self.ramps == ramps && self.flips == flips
-    }
 }
 
 impl Simulator {
@@ -335,190 +290,9 @@ impl Simulator {
         Ok((mi, verdict))
     }
 
-    /// Remembers a transition that held at once (no jump, no short) after
-    /// only structural rejections and the cuts in `cut_rejected`.
-    pub(super) fn remember(
-        &mut self,
-        cut_rejected: &Option<Vec<u32>>,
-        verdict: Verdict,
-        flips: u64,
-        mi: u32,
-    ) {
-        let (
-            Some(list),
-            Verdict::Holds {
-                cut: false,
-                charge: false,
-            },
-        ) = (cut_rejected, verdict)
-        else {
-            return;
-        };
-        if self.modes[mi as usize].resistive_short.is_some() {
-            return;
-        }
-        let cut_list: Vec<u32> = list.iter().copied().filter(|m| m & OTHER == 0).collect();
-        let other_rejected: Vec<u32> = list
-            .iter()
-            .filter(|&m| m & OTHER != 0)
-            .map(|m| m & !OTHER)
-            .collect();
-        let (cut_rows, cut_by) = self.cut_rows(&cut_list);
-        let t = Remembered {
-            from: self.mode,
-            switches: self.key.switches,
-            ramps: self.key.ramps,
-            flips,
-            cut_rejected: cut_list,
-            other_rejected,
-            cut_rows,
-            cut_by,
-            to: mi,
-        };
-        // The latest outcome of a transition replaces an earlier one (a
-        // converter moving between conduction modes changes it).
-        match self.memo.iter().position(|m| m.same_key(&t)) {
-            Some(i) => self.memo[i] = t,
-            None if self.memo.len() < 64 => self.memo.push(t),
-            None => {}
-        }
-    }
-
-    /// The distinct cutset rows that cut the modes of `list` at the
-    /// present state, and each mode's row among them (see
-    /// [`Remembered`]).
-    fn cut_rows(&self, list: &[u32]) -> (Vec<(u32, u32)>, Vec<u16>) {
-        let z = self.z.as_slice();
-        let scales = self.seen;
-        let mut rows: Vec<(u32, u32)> = vec![];
-        let mut by = Vec::with_capacity(list.len());
-        for &mi in list {
-            let mode = &self.modes[mi as usize];
-            let Some(r) = first_cut_row(mode, z, scales) else {
-                by.push(NO_ROW);
-                continue;
-            };
-            let row = constraint_row(mode, r);
-            let same = rows.iter().position(|&(m, q)| {
-                let other = constraint_row(&self.modes[m as usize], q as usize);
-                other.len() == row.len()
-                    && other
-                        .iter()
-                        .zip(row)
-                        .all(|(a, b)| a.to_bits() == b.to_bits())
-            });
-            let g = match same {
-                Some(g) => g,
-                None => {
-                    rows.push((mi, r as u32));
-                    rows.len() - 1
-                }
-            };
-            by.push(u16::try_from(g).unwrap_or(NO_ROW));
-        }
-        (rows, by)
-    }
-
-    /// Replays a remembered transition from the present mode with the
-    /// present switches: true if it applied (see
-    /// [`Simulator::remembered_target`]), its diode changes logged.
-    pub(super) fn resolve_remembered(
-        &mut self,
-        flips: u64,
-        scales: Scales,
-    ) -> Result<bool, SolverError> {
-        let Some((to, projected)) = self.remembered_target(flips, scales) else {
-            return Ok(false);
-        };
-        let n_x = self.cc.n_x;
-        self.rec.before.clear();
-        propagate::extend_small(&mut self.rec.before, &self.z.as_slice()[..n_x]);
-        let old = self.enter_remembered(to, projected);
-        self.log_diode_changes(old).map(|()| true)
-    }
-
-    /// The remembered transition from the present mode with the present
-    /// switches and `flips`, if it applies: its mode, and whether that
-    /// mode projects the state (the projected state is then in `z_try`).
-    /// It applies only if the exhaustive search would reach the same
-    /// pattern: every candidate it rejected for cutting an inductor
-    /// current still cuts one (the others were rejected for structural
-    /// reasons that cannot change), and the remembered pattern still holds
-    /// without a jump.
-    pub(super) fn remembered_target(&mut self, flips: u64, scales: Scales) -> Option<(u32, bool)> {
-        let (mode, key) = (self.mode, self.key);
-        let t = self
-            .memo
-            .iter()
-            .find(|t| t.leaves(mode, key.switches, key.ramps, flips))?;
-        let z = self.z.as_slice();
-        // Each distinct row once (the common case: a few rows, one per
-        // diode the candidates turn off); a mode whose remembered row no
-        // longer cuts is checked whole, as before.
-        let still = if t.cut_rows.len() <= 64 {
-            let mut cutting = 0u64;
-            for (g, &(m, r)) in t.cut_rows.iter().enumerate() {
-                let row = constraint_row(&self.modes[m as usize], r as usize);
-                if cuts(row, z, scales) {
-                    cutting |= 1 << g;
-                }
-            }
-            t.cut_rejected.iter().zip(&t.cut_by).all(|(&mi, &g)| {
-                (g != NO_ROW && cutting >> g & 1 == 1)
-                    || violations(&self.modes[mi as usize], z, scales, None).0
-            })
-        } else {
-            t.cut_rejected
-                .iter()
-                .all(|&mi| violations(&self.modes[mi as usize], z, scales, None).0)
-        };
-        if !still {
-            return None;
-        }
-        // Candidates rejected by a guard or a source are judged again as
-        // `judge` does (`z_try` is only scratch until `to` is projected).
-        let stop_short = self.opts.on_shoot_through == OnShootThrough::Stop;
-        for &mi in &t.other_rejected {
-            let m = &self.modes[mi as usize];
-            if !still_rejected(m, &self.z, scales, stop_short, &mut self.z_try) {
-                return None;
-            }
-        }
-        let to = t.to;
-        let mode = &self.modes[to as usize];
-        if violations(mode, z, scales, None) != (false, false) {
-            return None;
-        }
-        // As in `judge`: the projection removes rounding residue of the
-        // constraints, and the checks see the projected state.
-        let projected = !mode.constraints.is_empty();
-        if projected {
-            propagate::matvec(&mode.p, z, self.z_try.as_mut_slice());
-        }
-        let z1 = if projected { &self.z_try } else { &self.z };
-        if unbalanced_source(mode, z1.as_slice()).is_some() || !guards_hold(mode, z1, scales) {
-            return None;
-        }
-        Some((to, projected))
-    }
-
-    /// Enters a mode that [`Simulator::remembered_target`] found, as
-    /// `commit` does for a pattern without a jump or a short (kept lean:
-    /// this runs at every scheduled edge); returns the diode bits before.
-    /// The state before must already be in `before`.
-    pub(super) fn enter_remembered(&mut self, to: u32, projected: bool) -> u64 {
-        if projected {
-            std::mem::swap(&mut self.z, &mut self.z_try);
-        }
-        let old = self.key.diodes;
-        self.key = self.modes[to as usize].key;
-        self.mode = to;
-        old
-    }
-
     /// Logs a diode-on or diode-off event for each diode whose state
     /// differs between `old` and the present pattern.
-    fn log_diode_changes(&mut self, old: u64) -> Result<(), SolverError> {
+    pub(super) fn log_diode_changes(&mut self, old: u64) -> Result<(), SolverError> {
         let new = self.key.diodes;
         // The diodes that changed, in increasing order.
         let mut changed = old ^ new;
@@ -744,37 +518,6 @@ impl Simulator {
             },
         }
     }
-
-    /// Largest inductor current and largest capacitor or source voltage seen
-    /// so far in the run (never the present value alone: at a located zero
-    /// crossing the only inductor current is itself ~1e-17 A).
-    #[inline(always)]
-    pub(super) fn update_scales(&mut self) -> Scales {
-        let z = self.z.as_slice();
-        let mut i_s: f64 = self.seen.current;
-        for &s in &self.current_states {
-            i_s = i_s.max(z[s].abs());
-        }
-        // Capacitor voltages and single-term sources as (index, factor);
-        // the maximum does not depend on the order.
-        let mut v_s: f64 = self.seen.voltage;
-        for &(k, f) in &self.voltage_terms {
-            v_s = v_s.max((f * z[k]).abs());
-        }
-        for &si in &self.multi_term_sources {
-            let v: f64 = self.cc.sources[si]
-                .terms
-                .iter()
-                .map(|&(k, f)| f * z[k])
-                .sum();
-            v_s = v_s.max(v.abs());
-        }
-        self.seen = Scales {
-            current: i_s,
-            voltage: v_s,
-        };
-        self.seen
-    }
 }
 
 /// Above this many diodes the fallback search stops at Hamming distance
@@ -817,7 +560,7 @@ pub(super) struct Found {
 
 /// Marks a mode in a list of rejected candidates as rejected by a guard
 /// or a current source rather than by a cut (mode numbers stay far below).
-const OTHER: u32 = 1 << 31;
+pub(super) const OTHER: u32 = 1 << 31;
 
 /// As [`note_rejection`], for the search by Hamming distance (and
 /// `settle`, which follows it): a candidate rejected by a guard or a
@@ -837,31 +580,6 @@ pub(super) fn note_search_rejection(
         }
         _ => note_rejection(cut_rejected, verdict, mi),
     }
-}
-
-/// Whether `judge` (first pass: no inductor current may be cut) still
-/// rejects `mode` at `z`, without its diagnostics; `scratch` receives the
-/// projected state. Keep the two in step.
-fn still_rejected(
-    mode: &Mode,
-    z: &DVector<f64>,
-    scales: Scales,
-    stop_on_short: bool,
-    scratch: &mut DVector<f64>,
-) -> bool {
-    if mode.problem.is_some() || (mode.resistive_short.is_some() && stop_on_short) {
-        return true;
-    }
-    if violations(mode, z.as_slice(), scales, None).0 {
-        return true;
-    }
-    let z1 = if mode.constraints.is_empty() {
-        z
-    } else {
-        propagate::matvec(&mode.p, z.as_slice(), scratch.as_mut_slice());
-        &*scratch
-    };
-    unbalanced_source(mode, z1.as_slice()).is_some() || !guards_hold(mode, z1, scales)
 }
 
 /// Keeps the list of cut rejections a remembered transition re-checks:
@@ -898,233 +616,15 @@ fn near_patterns(first: u64, nd: usize) -> Vec<u64> {
     c
 }
 
-/// Whether the mode's inductor cutsets (first) or capacitor loops (second)
-/// are violated at z, i.e. entering it needs a jump; `windings` collects
-/// the windings of the violated cutsets.
-///
-/// Residuals are measured against the largest inductor current (cutsets)
-/// or capacitor/source voltage (loops) seen in the run: a located zero
-/// crossing leaves ~1e-17 of that behind, which the projection removes
-/// silently; anything above 1e-11 of it is a real jump.
-#[inline(always)]
-/// Row `r` of a mode's constraints (Hᵀ is column-major: constraint r's
-/// row is the r-th run of n_z).
-fn constraint_row(mode: &Mode, r: usize) -> &[f64] {
-    let n = mode.ht.nrows();
-    &mode.ht.as_slice()[r * n..(r + 1) * n]
-}
-
-/// Whether a cutset row carries current at z (the test of
-/// [`violations`]).
-#[inline(always)]
-fn cuts(row: &[f64], z: &[f64], scales: Scales) -> bool {
-    scales.cuts(propagate::dot_slices(row, z))
-}
-
-/// The first inductor cutset of `mode` that carries current at z.
-fn first_cut_row(mode: &Mode, z: &[f64], scales: Scales) -> Option<usize> {
-    mode.constraints.iter().enumerate().position(|(r, kind)| {
-        matches!(kind, ConstraintKind::Cutset { .. }) && cuts(constraint_row(mode, r), z, scales)
-    })
-}
-
-pub(super) fn violations(
-    mode: &Mode,
-    z: &[f64],
-    scales: Scales,
-    mut windings: Option<&mut Vec<usize>>,
-) -> (bool, bool) {
-    if mode.constraints.is_empty() {
-        return (false, false);
-    }
-    let (mut cut, mut lp) = (false, false);
-    // Hᵀ is column-major: constraint r's row is the r-th run of n_z.
-    let rows = mode.ht.as_slice().chunks_exact(mode.ht.nrows().max(1));
-    for (row, kind) in rows.zip(&mode.constraints) {
-        match kind {
-            ConstraintKind::Cutset { windings: w, .. } if cuts(row, z, scales) => {
-                cut = true;
-                if let Some(list) = windings.as_deref_mut() {
-                    list.extend(w.iter().copied());
-                }
-            }
-            ConstraintKind::Loop { .. }
-                if scales.loop_holds_voltage(propagate::dot_slices(row, z)) =>
-            {
-                lp = true
-            }
-            _ => {}
-        }
-    }
-    (cut, lp)
-}
-
-/// The first current source left without a path in the mode (its free
-/// group's gauge current is not zero at z), if any.
-fn unbalanced_source(mode: &Mode, z: &[f64]) -> Option<usize> {
-    mode.free_checks.iter().position(|(row, _, _)| {
-        let (v, s) = dot_and_magnitude(row, z);
-        v.abs() > SOURCE_BALANCE_REL * s + 1e-300
-    })
-}
-
-/// True if every guard is ≥ 0 at z and, where it is zero, its first
-/// non-zero derivative (up to the third) is positive: the mode can be
-/// entered and held for some positive time. Derivatives are computed only
-/// for guards that sit at zero.
-#[inline(always)]
-fn guards_hold(mode: &Mode, z: &DVector<f64>, scales: Scales) -> bool {
-    // Value pass first, on slices: in the usual case every guard is clearly
-    // positive and no derivative is needed.
-    let zs = z.as_slice();
-    let mut at_zero = false;
-    for g in &mode.guards {
-        let (v, s) = dot_and_magnitude(&g.row, zs);
-        let tol = scales.guard_zero(&g.kind, s);
-        if v < -tol {
-            return false;
-        }
-        at_zero |= v <= tol;
-    }
-    !at_zero || guards_hold_at_zero(mode, z, scales)
-}
-
-/// The rest of [`guards_hold`] when some guard sits at zero, kept out of
-/// line so the usual value pass stays small: `violated_guards(…,
-/// false).is_empty()`, with the guards at zero as bits and the
-/// derivatives on the stack up to 64 guards and 16 entries of z. A
-/// circuit with transition models gets here at every located clamp and
-/// every ramp start (a diode at zero current), where the allocations of
-/// the general function cost more than its arithmetic. The same values
-/// and tolerances are compared; only the bookkeeping differs.
-#[inline(never)]
-fn guards_hold_at_zero(mode: &Mode, z: &DVector<f64>, scales: Scales) -> bool {
-    let zs = z.as_slice();
-    let n = zs.len();
-    if mode.guards.len() > 64 || n > 16 {
-        return violated_guards(mode, z, scales, false).is_empty();
-    }
-    let mut undecided = 0u64;
-    for (gi, g) in mode.guards.iter().enumerate() {
-        let (v, s) = dot_and_magnitude(&g.row, zs);
-        let tol = scales.guard_zero(&g.kind, s);
-        if v < -tol {
-            return false;
-        }
-        if v <= tol {
-            undecided |= 1 << gi;
-        }
-    }
-    let mut buf = [[0.0f64; 16]; 2];
-    let [a, b] = &mut buf;
-    let (mut d, mut next): (&mut [f64], &mut [f64]) = (&mut a[..n], &mut b[..n]);
-    d.copy_from_slice(zs);
-    let mut rate_k = 1.0;
-    for _ in 1..4 {
-        if undecided == 0 {
-            break;
-        }
-        propagate::matvec(&mode.m, d, next);
-        std::mem::swap(&mut d, &mut next);
-        rate_k *= mode.rate;
-        let mut still = 0u64;
-        let mut left = undecided;
-        while left != 0 {
-            let gi = left.trailing_zeros() as usize;
-            left &= left - 1;
-            let g = &mode.guards[gi];
-            let (v, s) = dot_and_magnitude(&g.row, d);
-            let tol = scales.derivative_zero(&g.kind, s, rate_k);
-            if v < -tol {
-                return false;
-            }
-            if v <= tol {
-                still |= 1 << gi;
-            }
-        }
-        undecided = still;
-    }
-    true
-}
-
-/// The guards violated at z (indices into `mode.guards`, increasing): a
-/// guard below zero, or one at zero whose first non-zero derivative (up to
-/// the third) is negative. This is the lexicographic order of the vector
-/// (g, g′, g″, g‴): a guard that touches zero is judged by where it goes
-/// next. With `all` false it stops at the first violated guard found.
-pub(super) fn violated_guards(
-    mode: &Mode,
-    z: &DVector<f64>,
-    scales: Scales,
-    all: bool,
-) -> Vec<usize> {
-    let mut violated = vec![];
-    // Guards that sit at zero so far.
-    let mut undecided: Vec<usize> = vec![];
-    let zs = z.as_slice();
-    for (gi, g) in mode.guards.iter().enumerate() {
-        let (v, s) = dot_and_magnitude(&g.row, zs);
-        let tol = scales.guard_zero(&g.kind, s);
-        if v < -tol {
-            violated.push(gi);
-            if !all {
-                return violated;
-            }
-        } else if v <= tol {
-            undecided.push(gi);
-        }
-    }
-    if !violated.is_empty() && !all {
-        return violated;
-    }
-    // On the stack up to 16 entries of z: a circuit with transition models
-    // gets here at every located clamp, and allocating cost more than the rest.
-    let n = zs.len();
-    let (mut buf, mut heap) = ([[0.0f64; 16]; 2], vec![]);
-    let (mut d, mut next): (&mut [f64], &mut [f64]) = match &mut buf {
-        [a, b] if n <= 16 => (&mut a[..n], &mut b[..n]),
-        _ => {
-            heap.resize(2 * n, 0.0);
-            heap.split_at_mut(n)
-        }
-    };
-    d.copy_from_slice(zs);
-    let mut rate_k = 1.0;
-    for _ in 1..4 {
-        if undecided.is_empty() {
-            break;
-        }
-        propagate::matvec(&mode.m, d, next);
-        std::mem::swap(&mut d, &mut next);
-        rate_k *= mode.rate;
-        let mut still = Vec::with_capacity(undecided.len());
-        for &gi in &undecided {
-            let g = &mode.guards[gi];
-            let (v, s) = dot_and_magnitude(&g.row, d);
-            let tol = scales.derivative_zero(&g.kind, s, rate_k);
-            if v < -tol {
-                violated.push(gi);
-                if !all {
-                    return violated;
-                }
-            } else if v <= tol {
-                still.push(gi);
-            }
-        }
-        undecided = still;
-    }
-    violated.sort_unstable();
-    violated
-}
-
 #[cfg(test)]
 mod tests {
     use fluxstep_netlist::Circuit;
 
+    use super::super::checks::{guards_hold_at_zero, violated_guards};
     use super::super::lcp::{CrossCheck, CROSS};
     use super::super::{RunResult, Simulator};
-    use super::{guards_hold_at_zero, violated_guards, DVector};
     use crate::options::Options;
+    use nalgebra::DVector;
 
     /// A synchronous buck with dead time and body diodes (24 V → 12 V,
     /// 200 kHz; demo values), started from rest: its inductor current is
