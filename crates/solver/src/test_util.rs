@@ -57,3 +57,12 @@ pub(crate) fn sync_buck(start: Option<(f64, f64)>, ramps: bool) -> fluxstep_netl
     }
     c
 }
+
+/// An example circuit file of the repository (examples/circuits).
+pub(crate) fn example(file: &str) -> fluxstep_netlist::Circuit {
+    let path = format!(
+        "{}/../../examples/circuits/{file}",
+        env!("CARGO_MANIFEST_DIR")
+    );
+    fluxstep_netlist::Circuit::from_file(path).expect("example circuit is valid")
+}

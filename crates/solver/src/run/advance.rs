@@ -69,15 +69,15 @@ impl Simulator {
             return false;
         };
         self.stats.near_steps += 1;
-        propagate::matvec(phi, self.z.as_slice(), self.z_try.as_mut_slice());
+        propagate::matvec(phi, self.z.as_slice(), self.buf.z_try.as_mut_slice());
         propagate::advance_into(
             &m.m,
             m.live,
             m.rate,
-            self.z_try.as_slice(),
+            self.buf.z_try.as_slice(),
             delta,
             self.z_next.as_mut_slice(),
-            &mut self.scratch,
+            &mut self.buf.advance,
         );
         true
     }
@@ -142,7 +142,7 @@ impl Simulator {
             self.z.as_slice(),
             h,
             self.z_next.as_mut_slice(),
-            &mut self.scratch,
+            &mut self.buf.advance,
         );
     }
 }
@@ -188,3 +188,16 @@ const REPEAT_RING: usize = 8;
 
 /// Most exponentials cached per mode for lengths that came back.
 const MAX_AGAIN: usize = 16;
+
+/// Scratch space of the stages: nothing in it lives from one call to
+/// the next, it only saves allocations.
+pub(super) struct Buffers {
+    /// Scratch: the candidate state of a pattern under test.
+    pub(super) z_try: DVector<f64>,
+    pub(super) advance: crate::propagate::Scratch,
+    pub(super) terms: crate::propagate::TaylorTerms,
+    /// Scratch of event location: start state of a sub-interval and a
+    /// guard's Taylor coefficients.
+    pub(super) za: DVector<f64>,
+    pub(super) coef: Vec<f64>,
+}

@@ -100,23 +100,33 @@ impl Simulator {
                 diodes: 0,
                 ramps: 0,
             },
-            signals,
-            signal_on,
-            cmp_enabled_off: vec![true; n_cmp],
-            cmp_ticks: vec![],
-            signal_gate,
-            gates: circuit.gates.clone(),
-            gate_origin: vec![0.0; circuit.gates.len()],
-            controllers: vec![],
-            pending: vec![],
-            pwl_sources,
+            sched: schedule::Schedule {
+                signals,
+                signal_on,
+                cmp_enabled_off: vec![true; n_cmp],
+                cmp_ticks: vec![],
+                signal_gate,
+                gates: circuit.gates.clone(),
+                gate_origin: vec![0.0; circuit.gates.len()],
+                controllers: vec![],
+                pending: vec![],
+                pwl_sources,
+                const_inputs: None,
+                gates_only: false,
+            },
             rec,
+            buf: advance::Buffers {
+                z_try: DVector::zeros(nz),
+                advance: propagate::Scratch::default(),
+                terms: propagate::TaylorTerms::default(),
+                za: DVector::zeros(nz),
+                coef: vec![],
+            },
             stats: Stats::default(),
             seen: Scales::default(),
             current_states: vec![],
             voltage_terms: vec![],
             multi_term_sources: vec![],
-            const_inputs: None,
             orders: vec![],
             far_order: None,
             pivoting: true,
@@ -127,12 +137,6 @@ impl Simulator {
             poly_cache: true,
             near_cache: true,
             plain_instants: 0,
-            gates_only: false,
-            z_try: DVector::zeros(nz),
-            scratch: propagate::Scratch::default(),
-            terms: propagate::TaylorTerms::default(),
-            za: DVector::zeros(nz),
-            coef: vec![],
             ramp_switches,
             phases: vec![transition::Phase::Idle; n_switches],
             ramp_next: f64::INFINITY,
@@ -152,7 +156,7 @@ impl Simulator {
                 repeats: 0,
             },
         };
-        sim.cmp_ticks = (0..n_cmp).map(|ci| sim.make_ticks(ci)).collect();
+        sim.sched.cmp_ticks = (0..n_cmp).map(|ci| sim.make_ticks(ci)).collect();
         sim
     }
 
@@ -178,16 +182,20 @@ impl Simulator {
     /// The inputs and switch states at t = 0 and the first edges of every
     /// signal (those at t = 0 are already in the initial signal states).
     fn start_schedule(&mut self) {
-        self.const_inputs = self.constant_inputs();
-        self.gates_only = self.const_inputs.is_some()
+        self.sched.const_inputs = self.constant_inputs();
+        self.sched.gates_only = self.sched.const_inputs.is_some()
             && self.cc.comparators.is_empty()
             && self.ramp_switches == 0;
         self.set_inputs(0.0);
         self.key.switches = self.switch_bits();
-        for i in 0..self.signals.len() {
+        for i in 0..self.sched.signals.len() {
             self.refill(i, 0.0);
-            while self.signals[i].edges.front().is_some_and(|e| e.time <= 0.0) {
-                self.signals[i].edges.pop_front();
+            while self.sched.signals[i]
+                .edges
+                .front()
+                .is_some_and(|e| e.time <= 0.0)
+            {
+                self.sched.signals[i].edges.pop_front();
             }
         }
     }

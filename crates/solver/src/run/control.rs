@@ -42,7 +42,7 @@ impl Simulator {
             let Some(p) = self.cc.comparators[ci].spec.period else {
                 continue;
             };
-            for &(phase, _) in &self.cmp_ticks[ci] {
+            for &(phase, _) in &self.sched.cmp_ticks[ci] {
                 // k·T + phase, from the cycle number (never accumulated).
                 let mut k = ((t - phase) / p).floor() as i64 + 1;
                 while k as f64 * p + phase <= t {
@@ -74,7 +74,7 @@ impl Simulator {
             let Some(p) = self.cc.comparators[ci].spec.period else {
                 continue;
             };
-            for &(phase, what) in &self.cmp_ticks[ci] {
+            for &(phase, what) in &self.sched.cmp_ticks[ci] {
                 let k = ((t - phase) / p).round();
                 if k >= 0.0 && (k as i64) as f64 * p + phase == t {
                     out.push((ci, what));
@@ -93,8 +93,8 @@ impl Simulator {
     pub(super) fn comparator_masks(&self) -> (u64, u64) {
         let (mut off, mut on) = (0u64, 0u64);
         for (ci, cmp) in self.cc.comparators.iter().enumerate().take(64) {
-            if self.signal_on[cmp.signal] {
-                if cmp.turn_off.is_some() && self.cmp_enabled_off[ci] {
+            if self.sched.signal_on[cmp.signal] {
+                if cmp.turn_off.is_some() && self.sched.cmp_enabled_off[ci] {
                     off |= 1 << ci;
                 }
             } else if cmp.turn_on.is_some() {
@@ -123,10 +123,10 @@ impl Simulator {
         t: f64,
     ) -> Result<Option<(usize, bool)>, SolverError> {
         let sig = self.cc.comparators[ci].signal;
-        if self.signal_on[sig] == on {
+        if self.sched.signal_on[sig] == on {
             return Ok(None);
         }
-        self.signal_on[sig] = on;
+        self.sched.signal_on[sig] = on;
         // The switches it drives follow it: their new bits are `on`.
         self.log_switch_changes(t)
     }
@@ -140,15 +140,15 @@ impl Simulator {
         }
         for (ci, what) in self.ticks_at(t) {
             let spec = self.cc.comparators[ci].spec.clone();
-            let on = self.signal_on[self.cc.comparators[ci].signal];
+            let on = self.sched.signal_on[self.cc.comparators[ci].signal];
             let c = match what {
                 Tick::Clock => {
-                    self.cmp_enabled_off[ci] = spec.min_duty == 0.0;
+                    self.sched.cmp_enabled_off[ci] = spec.min_duty == 0.0;
                     match spec.clock_turns {
                         // A pulse whose turn-off comparison is already met
                         // (and may count) is skipped.
                         Some(true) if !on => {
-                            if self.cmp_enabled_off[ci] && self.comparison_met(ci, true) {
+                            if self.sched.cmp_enabled_off[ci] && self.comparison_met(ci, true) {
                                 None
                             } else {
                                 self.set_comparator(ci, true, t)?
@@ -159,7 +159,7 @@ impl Simulator {
                     }
                 }
                 Tick::EnableOff => {
-                    self.cmp_enabled_off[ci] = true;
+                    self.sched.cmp_enabled_off[ci] = true;
                     if on && self.comparison_met(ci, true) {
                         self.set_comparator(ci, false, t)?
                     } else {
@@ -181,7 +181,7 @@ impl Simulator {
         let mut cause = None;
         for ci in 0..self.cc.comparators.len() {
             if self.cc.comparators[ci].spec.period.is_none() {
-                self.cmp_enabled_off[ci] = true;
+                self.sched.cmp_enabled_off[ci] = true;
                 let met = self.comparison_met(ci, true);
                 if let Some(c) = self.set_comparator(ci, !met, 0.0)? {
                     cause = Some(c);
@@ -206,7 +206,7 @@ impl Simulator {
         let mut cause = None;
         for ci in 0..self.cc.comparators.len().min(64) {
             if bits >> ci & 1 == 1 {
-                let on = self.signal_on[self.cc.comparators[ci].signal];
+                let on = self.sched.signal_on[self.cc.comparators[ci].signal];
                 if let Some(c) = self.set_comparator(ci, !on, t)? {
                     cause = Some(c);
                 }

@@ -332,7 +332,7 @@ impl Simulator {
             // (A holding pattern returned above.)
             Verdict::Holds { .. } | Verdict::Structural | Verdict::Cut => Step::Singular,
             Verdict::Other => {
-                match least_failing(&self.modes[mi as usize], &self.z_try, scales) {
+                match least_failing(&self.modes[mi as usize], &self.buf.z_try, scales) {
                     Some(d) => Step::Toggle(d),
                     // An unbalanced current source: singular.
                     None => Step::Singular,
@@ -385,10 +385,10 @@ impl Simulator {
         if CROSS.with(|c| c.borrow().is_none()) {
             return Ok(());
         }
-        let kept = self.z_try.clone();
+        let kept = self.buf.z_try.clone();
         let memo_len = self.memo.len();
         let oracle = self.search(first, flips, None, initial, scales)?.ok();
-        self.z_try = kept;
+        self.buf.z_try = kept;
         self.memo.truncate(memo_len);
         let t = self.t;
         CROSS.with(|c| {
@@ -452,14 +452,7 @@ mod tests {
     use fluxstep_netlist::Circuit;
     use proptest::prelude::*;
 
-    /// An example circuit file of the repository.
-    fn example(file: &str) -> Circuit {
-        let path = format!(
-            "{}/../../examples/circuits/{file}",
-            env!("CARGO_MANIFEST_DIR")
-        );
-        Circuit::from_file(path).expect("example circuit is valid")
-    }
+    use crate::test_util::example;
 
     /// Every example circuit, with a run time that reaches its steady
     /// behaviour.

@@ -195,10 +195,10 @@ impl Simulator {
             }
         }
         let d = h / n as f64;
-        let mut za = std::mem::take(&mut self.za);
+        let mut za = std::mem::take(&mut self.buf.za);
         za.copy_from(&self.z);
-        let mut terms = std::mem::take(&mut self.terms);
-        let mut coef = std::mem::take(&mut self.coef);
+        let mut terms = std::mem::take(&mut self.buf.terms);
+        let mut coef = std::mem::take(&mut self.buf.coef);
         let mut found: Option<(f64, (u64, u64), f64)> = None;
         let scales = self.update_scales();
         for i in 0..n {
@@ -233,9 +233,9 @@ impl Simulator {
                 }
             }
         }
-        self.terms = terms;
-        self.za = za;
-        self.coef = coef;
+        self.buf.terms = terms;
+        self.buf.za = za;
+        self.buf.coef = coef;
         // A crossing at the very end belongs to the scheduled instant (and
         // `z_next` must then be the state at h again).
         found.map(|(t, b, _)| crossing(if at_end(t, h) { h } else { t }, b))
@@ -530,11 +530,11 @@ impl Simulator {
         let scales = self.update_scales();
         let z = self.z.as_slice();
         let nz = z.len();
-        let mut za_abs = std::mem::take(&mut self.za);
+        let mut za_abs = std::mem::take(&mut self.buf.za);
         for (a, &v) in za_abs.as_mut_slice().iter_mut().zip(z) {
             *a = v.abs();
         }
-        let mut coef = std::mem::take(&mut self.coef);
+        let mut coef = std::mem::take(&mut self.buf.coef);
         let gp = &self.caches[mi].polys[pi];
         let mut found: Found = None;
         // The crossings found, to start the next search from (a few are
@@ -559,8 +559,8 @@ impl Simulator {
         for &(gi, s) in &hits[..n_hits] {
             self.caches[mi].polys[pi].hints[gi] = Some(s);
         }
-        self.coef = coef;
-        self.za = za_abs;
+        self.buf.coef = coef;
+        self.buf.za = za_abs;
         let Some((t, b, sigma)) = found else {
             return Some(None);
         };
@@ -572,10 +572,10 @@ impl Simulator {
         if !self.advance_repeated(mi, &mode.m, t) {
             // The state at the crossing from the Taylor vectors, into
             // `z_next`.
-            let mut terms = std::mem::take(&mut self.terms);
+            let mut terms = std::mem::take(&mut self.buf.terms);
             propagate::taylor_terms(&mode.m, mode.live, &self.z, h, &mut terms);
             terms.state_at(sigma, self.z_next.as_mut_slice());
-            self.terms = terms;
+            self.buf.terms = terms;
         }
         Some(Some(crossing(t, b)))
     }

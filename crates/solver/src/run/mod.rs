@@ -81,24 +81,10 @@ pub struct Simulator {
     z_next: DVector<f64>,
     mode: u32,
     key: ModeKey,
-    signals: Vec<SignalBuffer>,
-    /// Present state of each gate signal.
-    signal_on: Vec<bool>,
-    /// Per comparator: whether its turn-off comparison counts yet (the
-    /// minimum on-time has passed).
-    cmp_enabled_off: Vec<bool>,
-    /// Per comparator: its ticks within a period as (phase, what).
-    cmp_ticks: Vec<Vec<(f64, control::Tick)>>,
-    /// The circuit's gates, changed at run time by controllers.
-    gates: Vec<fluxstep_netlist::Gate>,
-    /// Per gate: the origin of its cycles (moved by frequency changes).
-    gate_origin: Vec<f64>,
-    /// For each signal, the index of its gate.
-    signal_gate: Vec<usize>,
-    controllers: Vec<sampled::Slot>,
-    pending: Vec<sampled::Pending>,
-    /// Indices of piecewise-linear sources (the only ones with corners).
-    pwl_sources: Vec<usize>,
+    /// The schedule: gate signals and their upcoming edges, comparator
+    /// ticks, controllers and their pending updates, source corners
+    /// (`schedule.rs`).
+    sched: schedule::Schedule,
     /// The recorder: waveform segments, event log, sink, chatter window
     /// (`record.rs`).
     rec: record::Recorder,
@@ -111,9 +97,6 @@ pub struct Simulator {
     /// (z index, factor), and the sources of several terms (for `seen`).
     voltage_terms: Vec<(usize, f64)>,
     multi_term_sources: Vec<usize>,
-    /// When every piecewise-linear source is constant: the input entries
-    /// of z and their values, written at every scheduled instant.
-    const_inputs: Option<Vec<(usize, f64)>>,
     /// Candidate diode patterns ordered by distance from a first guess,
     /// built once per first guess.
     orders: Vec<Option<Vec<u64>>>,
@@ -143,20 +126,10 @@ pub struct Simulator {
     /// (`advance_near`), and spans of the schedule past the first 16 by the
     /// cache of lengths that come back; off only in tests.
     near_cache: bool,
-    /// Only gate edges are ever scheduled: constant inputs, no
-    /// controller, no comparator, no transition model (kept by
-    /// `Simulator::new` and `add_controller`).
-    gates_only: bool,
     /// Instants that took the plain path (for the contract test).
     plain_instants: usize,
-    /// Scratch: the candidate state of a pattern under test.
-    z_try: DVector<f64>,
-    scratch: propagate::Scratch,
-    terms: propagate::TaylorTerms,
-    /// Scratch of event location: start state of a sub-interval and a
-    /// guard's Taylor coefficients.
-    za: DVector<f64>,
-    coef: Vec<f64>,
+    /// Scratch space of the stages (no state between calls).
+    buf: advance::Buffers,
     /// Bit i set: switch i has a transition model (`transition.rs`).
     ramp_switches: u64,
     /// Per switch: where it is in its transition.
@@ -461,14 +434,7 @@ pub fn simulate(
 mod tests {
     use super::*;
 
-    /// An example circuit file of the repository.
-    fn example(file: &str) -> Circuit {
-        let path = format!(
-            "{}/../../examples/circuits/{file}",
-            env!("CARGO_MANIFEST_DIR")
-        );
-        Circuit::from_file(path).expect("example circuit is valid")
-    }
+    use crate::test_util::example;
 
     /// Runs a circuit file for `stop` seconds with or without replay of
     /// remembered transitions.

@@ -208,7 +208,7 @@ impl Simulator {
         let stop_short = self.opts.on_shoot_through == OnShootThrough::Stop;
         for &mi in &t.other_rejected {
             let m = &self.modes[mi as usize];
-            if !still_rejected(m, &self.z, scales, stop_short, &mut self.z_try) {
+            if !still_rejected(m, &self.z, scales, stop_short, &mut self.buf.z_try) {
                 return None;
             }
         }
@@ -221,9 +221,9 @@ impl Simulator {
         // constraints, and the checks see the projected state.
         let projected = !mode.constraints.is_empty();
         if projected {
-            propagate::matvec(&mode.p, z, self.z_try.as_mut_slice());
+            propagate::matvec(&mode.p, z, self.buf.z_try.as_mut_slice());
         }
-        let z1 = if projected { &self.z_try } else { &self.z };
+        let z1 = if projected { &self.buf.z_try } else { &self.z };
         if unbalanced_source(mode, z1.as_slice()).is_some() || !guards_hold(mode, z1, scales) {
             return None;
         }
@@ -236,7 +236,7 @@ impl Simulator {
     /// The state before must already be in `before`.
     pub(super) fn enter_remembered(&mut self, to: u32, projected: bool) -> u64 {
         if projected {
-            std::mem::swap(&mut self.z, &mut self.z_try);
+            std::mem::swap(&mut self.z, &mut self.buf.z_try);
         }
         let old = self.key.diodes;
         self.key = self.modes[to as usize].key;

@@ -196,7 +196,7 @@ impl Simulator {
                     if found.cut
                         && initial
                         && self.opts.on_interruption != OnInterruption::ConserveFlux
-                        && self.cc.stored_energy(self.z_try.as_slice())
+                        && self.cc.stored_energy(self.buf.z_try.as_slice())
                             < self.cc.stored_energy(self.z.as_slice())
                     {
                         continue;
@@ -356,11 +356,11 @@ impl Simulator {
         // The candidate state (after any jump) goes into a scratch
         // buffer; `commit` swaps it in.
         if mode.constraints.is_empty() {
-            self.z_try.copy_from(&self.z);
+            self.buf.z_try.copy_from(&self.z);
         } else {
-            propagate::matvec(&mode.p, self.z.as_slice(), self.z_try.as_mut_slice());
+            propagate::matvec(&mode.p, self.z.as_slice(), self.buf.z_try.as_mut_slice());
         }
-        let z1 = &self.z_try;
+        let z1 = &self.buf.z_try;
         if let Some(fi) = unbalanced_source(mode, z1.as_slice()) {
             if other.is_none() {
                 *other = Some(Rejection::CurrentSource(mi as usize, fi));
@@ -389,17 +389,17 @@ impl Simulator {
         self.rec.before.extend_from_slice(&self.z.as_slice()[..n_x]);
         let jump = (cut_jump || loop_jump).then(|| JumpInfo {
             energy: self.cc.stored_energy(self.z.as_slice())
-                - self.cc.stored_energy(self.z_try.as_slice()),
+                - self.cc.stored_energy(self.buf.z_try.as_slice()),
             moved: Some(
                 self.cc
-                    .moved(self.z.as_slice(), self.z_try.as_slice(), cut_jump),
+                    .moved(self.z.as_slice(), self.buf.z_try.as_slice(), cut_jump),
             ),
         });
         let old = self.key.diodes;
         let was_shorted = self.modes[self.mode as usize].resistive_short.is_some() && !initial;
         self.key = key;
         self.mode = mi;
-        std::mem::swap(&mut self.z, &mut self.z_try);
+        std::mem::swap(&mut self.z, &mut self.buf.z_try);
         if let Some(jump) = jump {
             let mut names: Vec<String> = vec![];
             for kind in &self.modes[mi as usize].constraints {

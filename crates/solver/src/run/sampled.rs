@@ -60,14 +60,14 @@ impl Simulator {
             .iter()
             .map(|n| self.cc.output_index(n))
             .collect::<Result<Vec<_>, _>>()?;
-        self.gates_only = false;
-        self.controllers.push(Slot {
+        self.sched.gates_only = false;
+        self.sched.controllers.push(Slot {
             sampling,
             controller,
             inputs,
         });
         // A sample due right now is taken now.
-        let i = self.controllers.len() - 1;
+        let i = self.sched.controllers.len() - 1;
         if self.sample_due(i, self.t).is_some() {
             let t = self.t;
             self.sample(i, t)?;
@@ -79,7 +79,7 @@ impl Simulator {
 
     /// The cycle number if controller `i` samples exactly at `t`.
     fn sample_due(&self, i: usize, t: f64) -> Option<i64> {
-        let s = &self.controllers[i].sampling;
+        let s = &self.sched.controllers[i].sampling;
         let k = ((t - s.offset) / s.period).round();
         (k >= 0.0 && (k as i64) as f64 * s.period + s.offset == t).then_some(k as i64)
     }
@@ -87,7 +87,7 @@ impl Simulator {
     /// The next sample or pending command strictly after `t`.
     pub(super) fn next_control(&self, t: f64) -> Option<(f64, Option<TimeKey>)> {
         let mut best: Option<(f64, Option<TimeKey>)> = None;
-        for slot in &self.controllers {
+        for slot in &self.sched.controllers {
             let s = &slot.sampling;
             let mut k = ((t - s.offset) / s.period).floor() as i64 + 1;
             while k as f64 * s.period + s.offset <= t {
@@ -108,7 +108,7 @@ impl Simulator {
                 ));
             }
         }
-        for p in &self.pending {
+        for p in &self.sched.pending {
             if p.time > t && best.is_none_or(|(b, _)| p.time < b) {
                 best = Some((p.time, p.key));
             }
@@ -117,13 +117,13 @@ impl Simulator {
     }
 
     pub(super) fn has_control_at(&self, t: f64) -> bool {
-        (0..self.controllers.len()).any(|i| self.sample_due(i, t).is_some())
-            || self.pending.iter().any(|p| p.time <= t)
+        (0..self.sched.controllers.len()).any(|i| self.sample_due(i, t).is_some())
+            || self.sched.pending.iter().any(|p| p.time <= t)
     }
 
     /// Samples the controllers due at `t` and applies commands that are due.
     pub(super) fn run_controllers(&mut self, t: f64) -> Result<(), SolverError> {
-        for i in 0..self.controllers.len() {
+        for i in 0..self.sched.controllers.len() {
             if self.sample_due(i, t).is_some() {
                 self.sample(i, t)?;
             }
@@ -134,7 +134,7 @@ impl Simulator {
     fn sample(&mut self, i: usize, t: f64) -> Result<(), SolverError> {
         let k = self.sample_due(i, t).expect("sampled only when due");
         let mode = &self.modes[self.mode as usize];
-        let values: Vec<Option<f64>> = self.controllers[i]
+        let values: Vec<Option<f64>> = self.sched.controllers[i]
             .inputs
             .iter()
             .map(|&o| {
@@ -143,13 +143,13 @@ impl Simulator {
             })
             .collect();
         let mut commands = Commands::default();
-        self.controllers[i]
+        self.sched.controllers[i]
             .controller
             .sample(t, &values, &mut commands);
         if commands.list.is_empty() {
             return Ok(());
         }
-        let s = &self.controllers[i].sampling;
+        let s = &self.sched.controllers[i].sampling;
         let (time, key) = if s.delay == 0.0 {
             (t, None)
         } else {
@@ -164,8 +164,8 @@ impl Simulator {
                 }),
             )
         };
-        let pos = self.pending.partition_point(|p| p.time <= time);
-        self.pending.insert(
+        let pos = self.sched.pending.partition_point(|p| p.time <= time);
+        self.sched.pending.insert(
             pos,
             Pending {
                 time,
@@ -178,8 +178,8 @@ impl Simulator {
     }
 
     fn apply_pending(&mut self, t: f64) -> Result<(), SolverError> {
-        while self.pending.first().is_some_and(|p| p.time <= t) {
-            let p = self.pending.remove(0);
+        while self.sched.pending.first().is_some_and(|p| p.time <= t) {
+            let p = self.sched.pending.remove(0);
             for c in p.commands {
                 self.apply_command(t, p.apply, c)?;
             }
@@ -198,7 +198,7 @@ impl Simulator {
                 }
                 let gi = self.pwm_gate(&name, t)?;
                 let t_from = self.effective_from(gi, t, apply);
-                match &mut self.gates[gi] {
+                match &mut self.sched.gates[gi] {
                     Gate::Pwm { duty: d, .. } | Gate::ComplementaryPwm { duty: d, .. } => *d = duty,
                     _ => unreachable!("pwm_gate returns pwm gates"),
                 }
@@ -213,7 +213,7 @@ impl Simulator {
                 }
                 let gi = self.pwm_gate(&name, t)?;
                 let t_from = self.effective_from(gi, t, apply);
-                match &mut self.gates[gi] {
+                match &mut self.sched.gates[gi] {
                     Gate::Pwm { delay: d, .. } | Gate::ComplementaryPwm { delay: d, .. } => {
                         *d = delay
                     }
@@ -234,8 +234,8 @@ impl Simulator {
                 // there and the delay restarts from zero, so the first
                 // edge is exactly t_from and later ones t_from + (k·T + phase).
                 let new_delay = 0.0;
-                self.gate_origin[gi] = t_from;
-                match &mut self.gates[gi] {
+                self.sched.gate_origin[gi] = t_from;
+                match &mut self.sched.gates[gi] {
                     Gate::Pwm {
                         frequency: f,
                         delay: d,
@@ -267,7 +267,7 @@ impl Simulator {
                 for cmp in &self.cc.comparators {
                     if self.cc.signals[cmp.signal].0 == name
                         && matches!(
-                            self.gates[self.signal_gate[cmp.signal]],
+                            self.sched.gates[self.sched.signal_gate[cmp.signal]],
                             Gate::PeakCurrent { .. } | Gate::ValleyCurrent { .. }
                         )
                     {
@@ -303,7 +303,10 @@ impl Simulator {
                 let Some(si) = self.cc.signals.iter().position(|(n, _)| *n == signal) else {
                     return Err(control_err(t, format!("no gate signal is named {signal}")));
                 };
-                if !matches!(self.gates[self.signal_gate[si]], Gate::Transitions { .. }) {
+                if !matches!(
+                    self.sched.gates[self.sched.signal_gate[si]],
+                    Gate::Transitions { .. }
+                ) {
                     return Err(control_err(
                         t,
                         format!("edges can only be scheduled on transitions gates, not {signal}"),
@@ -315,7 +318,7 @@ impl Simulator {
                         format!("edge of {signal} at {time:e} s lies in the past"),
                     ));
                 }
-                let b = &mut self.signals[si];
+                let b = &mut self.sched.signals[si];
                 let pos = b.edges.partition_point(|e| e.time <= time);
                 b.edges.insert(
                     pos,
@@ -333,7 +336,8 @@ impl Simulator {
     }
 
     fn pwm_gate(&self, name: &str, t: f64) -> Result<usize, SolverError> {
-        self.gates
+        self.sched
+            .gates
             .iter()
             .position(|g| {
                 g.name() == name && matches!(g, Gate::Pwm { .. } | Gate::ComplementaryPwm { .. })
@@ -349,7 +353,7 @@ impl Simulator {
     /// When a change to gate `gi` takes effect: the next start of its
     /// (present) period not before `t`, or `t` itself.
     fn effective_from(&self, gi: usize, t: f64, apply: Apply) -> f64 {
-        let (period, delay) = match &self.gates[gi] {
+        let (period, delay) = match &self.sched.gates[gi] {
             Gate::Pwm {
                 frequency, delay, ..
             }
@@ -362,7 +366,7 @@ impl Simulator {
             return t;
         }
         let d0 = delay.rem_euclid(period);
-        let o = self.gate_origin[gi];
+        let o = self.sched.gate_origin[gi];
         let mut k = ((t - o - d0) / period).ceil();
         while o + (k * period + d0) < t {
             k += 1.0;
@@ -379,8 +383,8 @@ impl Simulator {
     /// (a restarted period whose first edge rounds a hair early, or a pulse
     /// cut short at once), an edge at `t_from` is added.
     fn reschedule(&mut self, gi: usize, t_from: f64) -> Result<(), SolverError> {
-        for (name, mut shape) in self.gates[gi].signals() {
-            shape.origin = self.gate_origin[gi];
+        for (name, mut shape) in self.sched.gates[gi].signals() {
+            shape.origin = self.sched.gate_origin[gi];
             let si = self
                 .cc
                 .signals
@@ -388,12 +392,12 @@ impl Simulator {
                 .position(|(n, _)| *n == name)
                 .expect("signals of a known gate");
             let before = if t_from <= self.t {
-                self.signal_on[si]
+                self.sched.signal_on[si]
             } else {
                 self.cc.signals[si].1.was_on_before(t_from)
             };
             self.cc.signals[si].1 = shape;
-            let b = &mut self.signals[si];
+            let b = &mut self.sched.signals[si];
             b.edges.retain(|e| e.time < t_from);
             // Only two periods ahead: a controller that changes the duty
             // every period would otherwise regenerate a long chunk each time.
@@ -403,7 +407,7 @@ impl Simulator {
             b.edges.extend(shape.edges(t_from, to));
             b.filled_to = to;
             let now = self.cc.signals[si].1.is_on(t_from);
-            let b = &mut self.signals[si];
+            let b = &mut self.sched.signals[si];
             let pos = b.edges.partition_point(|e| e.time < t_from);
             let edge_at = b.edges.get(pos).is_some_and(|e| e.time == t_from);
             if now != before && !edge_at {

@@ -112,6 +112,37 @@ impl EdgeQueue {
     }
 }
 
+/// What the schedule stage owns: every gate signal's state and upcoming
+/// edges, the comparators' ticks, the controllers and their pending
+/// updates, and what is known of the sources' corners.
+pub(super) struct Schedule {
+    pub(super) signals: Vec<SignalBuffer>,
+    /// Present state of each gate signal.
+    pub(super) signal_on: Vec<bool>,
+    /// Per comparator: whether its turn-off comparison counts yet (the
+    /// minimum on-time has passed).
+    pub(super) cmp_enabled_off: Vec<bool>,
+    /// Per comparator: its ticks within a period as (phase, what).
+    pub(super) cmp_ticks: Vec<Vec<(f64, super::control::Tick)>>,
+    /// The circuit's gates, changed at run time by controllers.
+    pub(super) gates: Vec<fluxstep_netlist::Gate>,
+    /// Per gate: the origin of its cycles (moved by frequency changes).
+    pub(super) gate_origin: Vec<f64>,
+    /// For each signal, the index of its gate.
+    pub(super) signal_gate: Vec<usize>,
+    pub(super) controllers: Vec<super::sampled::Slot>,
+    pub(super) pending: Vec<super::sampled::Pending>,
+    /// Indices of piecewise-linear sources (the only ones with corners).
+    pub(super) pwl_sources: Vec<usize>,
+    /// When every piecewise-linear source is constant: the input entries
+    /// of z and their values, written at every scheduled instant.
+    pub(super) const_inputs: Option<Vec<(usize, f64)>>,
+    /// Only gate edges are ever scheduled: constant inputs, no
+    /// controller, no comparator, no transition model (kept by
+    /// `Simulator::new` and `add_controller`).
+    pub(super) gates_only: bool,
+}
+
 /// Upcoming edges of one gate signal, refilled a chunk of periods at a time.
 pub(super) struct SignalBuffer {
     pub edges: EdgeQueue,
@@ -122,7 +153,7 @@ pub(super) struct SignalBuffer {
 impl Simulator {
     pub(super) fn refill(&mut self, i: usize, upto: f64) {
         let shape = &self.cc.signals[i].1;
-        let b = &mut self.signals[i];
+        let b = &mut self.sched.signals[i];
         while b.filled_to <= upto && b.filled_to.is_finite() {
             let to = b.filled_to + b.chunk;
             b.edges.extend(shape.edges(b.filled_to, to));
@@ -134,7 +165,7 @@ impl Simulator {
     pub(super) fn switch_bits(&self) -> u64 {
         let mut sw = 0u64;
         for (i, s) in self.cc.switches.iter().enumerate() {
-            if self.signal_on[s.signal] {
+            if self.sched.signal_on[s.signal] {
                 sw |= 1 << i;
             }
         }
@@ -144,12 +175,12 @@ impl Simulator {
     /// Next scheduled instant after now (capped at `t_end`) and its key.
     pub(super) fn next_scheduled(&mut self, t_end: f64) -> (f64, Option<TimeKey>) {
         let mut best = (t_end, None);
-        for i in 0..self.signals.len() {
-            if self.signals[i].edges.is_empty() {
-                let from = self.signals[i].filled_to;
+        for i in 0..self.sched.signals.len() {
+            if self.sched.signals[i].edges.is_empty() {
+                let from = self.sched.signals[i].filled_to;
                 self.refill(i, from);
             }
-            if let Some(e) = self.signals[i].edges.front() {
+            if let Some(e) = self.sched.signals[i].edges.front() {
                 if e.time < best.0 || (e.time == best.0 && best.1.is_none()) {
                     let key = e.period.map(|period| TimeKey {
                         cycle: e.cycle,
@@ -160,11 +191,11 @@ impl Simulator {
                 }
             }
         }
-        if self.gates_only {
+        if self.sched.gates_only {
             // Nothing else is ever scheduled.
             return best;
         }
-        if !self.controllers.is_empty() || !self.pending.is_empty() {
+        if !self.sched.controllers.is_empty() || !self.sched.pending.is_empty() {
             if let Some((time, key)) = self.next_control(self.t) {
                 if time < best.0 || (time == best.0 && best.1.is_none() && key.is_some()) {
                     best = (time, key);
@@ -179,10 +210,10 @@ impl Simulator {
             }
         }
         // Constant sources have no corners.
-        let corners = if self.const_inputs.is_some() {
+        let corners = if self.sched.const_inputs.is_some() {
             &[][..]
         } else {
-            &self.pwl_sources[..]
+            &self.sched.pwl_sources[..]
         };
         for &si in corners {
             let w = self.cc.sources[si]
@@ -208,12 +239,13 @@ impl Simulator {
         let until = coincident_until(t);
         self.ramp_next <= until
             || self
+                .sched
                 .signals
                 .iter()
                 .any(|b| b.edges.front().is_some_and(|e| e.time <= until))
             || self.has_tick_at(t)
             || self.has_control_at(t)
-            || self.pwl_sources.iter().any(|&si| {
+            || self.sched.pwl_sources.iter().any(|&si| {
                 self.cc.sources[si]
                     .waveform
                     .as_ref()
@@ -231,7 +263,7 @@ impl Simulator {
     pub(super) fn set_inputs(&mut self, t: f64) -> u64 {
         let nx = self.cc.n_x;
         let nu = self.cc.n_u;
-        if let Some(list) = &self.const_inputs {
+        if let Some(list) = &self.sched.const_inputs {
             // Every source constant: the same entries every time, no corners.
             let z = self.z.as_mut_slice();
             for &(i, v) in list {
@@ -241,7 +273,7 @@ impl Simulator {
         }
         self.z[nx] = 1.0;
         let mut corners = 0u64;
-        for &si in &self.pwl_sources {
+        for &si in &self.sched.pwl_sources {
             let s = &self.cc.sources[si];
             let (Some(w), Some(k)) = (&s.waveform, s.input) else {
                 continue;
@@ -268,7 +300,7 @@ impl Simulator {
         let nx = self.cc.n_x;
         let nu = self.cc.n_u;
         let mut list = vec![(nx, 1.0)];
-        for &si in &self.pwl_sources {
+        for &si in &self.sched.pwl_sources {
             let s = &self.cc.sources[si];
             let (Some(w), Some(k)) = (&s.waveform, s.input) else {
                 continue;
@@ -303,7 +335,7 @@ impl Simulator {
                 self.push_event(t, EventKind::SourceBreakpoint, Who::Source(si), None, false)?;
             }
         }
-        if !self.controllers.is_empty() || !self.pending.is_empty() {
+        if !self.sched.controllers.is_empty() || !self.sched.pending.is_empty() {
             self.run_controllers(t)?;
         }
         self.settle_instant(t)
@@ -314,9 +346,9 @@ impl Simulator {
     /// comparator.
     #[inline(always)]
     fn plain_instants_allowed(&self) -> bool {
-        self.const_inputs.is_some()
-            && self.controllers.is_empty()
-            && self.pending.is_empty()
+        self.sched.const_inputs.is_some()
+            && self.sched.controllers.is_empty()
+            && self.sched.pending.is_empty()
             && self.cc.comparators.is_empty()
     }
 
@@ -396,13 +428,13 @@ impl Simulator {
     pub(super) fn take_due_edges(&mut self, t: f64) -> bool {
         let mut changed = false;
         let until = coincident_until(t);
-        for i in 0..self.signals.len() {
-            while let Some(e) = self.signals[i].edges.front() {
+        for i in 0..self.sched.signals.len() {
+            while let Some(e) = self.sched.signals[i].edges.front() {
                 if e.time > until {
                     break;
                 }
-                self.signal_on[i] = e.on;
-                self.signals[i].edges.pop_front();
+                self.sched.signal_on[i] = e.on;
+                self.sched.signals[i].edges.pop_front();
                 changed = true;
             }
         }
