@@ -26,6 +26,19 @@
 //! - [`measure`]: exact averages, RMS, extremes and element power.
 //! - [`SolverError`]: diagnostics that name elements, nodes and times.
 //!
+//! # Stages
+//!
+//! [`Simulator::advance_to`] is one loop whose lines are stages in files of
+//! their own: the next scheduled instant (`run/schedule.rs`) → the exact
+//! advance over the interval (`run/advance.rs`) → the earliest state event
+//! inside it (`run/locate.rs`, on the tolerances and root finders of
+//! `crossing/`) → the conduction pattern that follows (`run/resolve.rs`,
+//! `run/replay.rs`, `run/lcp.rs`, `run/checks.rs`) → the record
+//! (`run/record.rs`). Modes are built in named steps (`mode/`). The map of
+//! stages, what each container owns, where a change goes and which
+//! invariants the contract tests pin: `docs/architecture.md` in the
+//! repository.
+//!
 //! # Example
 //!
 //! ```

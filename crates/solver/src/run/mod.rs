@@ -1,7 +1,13 @@
-//! The transient run, read as stages (one file each): find the next
-//! scheduled instant (`schedule.rs`) → advance exactly and locate the
-//! earliest state event before it (`locate.rs`) → resolve the conduction
-//! pattern (`resolve.rs`) → record segments and events (`record.rs`).
+//! The transient run, read as stages (one file each), in the order of
+//! `Simulator::advance_to`: the next scheduled instant (`schedule.rs`) →
+//! the exact advance over the interval (`advance.rs`) → the earliest state
+//! event inside it (`locate.rs`) → entering that event or the scheduled
+//! instant, and the conduction pattern that follows (`resolve.rs` with
+//! `replay.rs`, `lcp.rs`, `checks.rs`; `transition.rs` for switching
+//! ramps, `control.rs` and `sampled.rs` for closed loops) → the record
+//! (`record.rs`). `build.rs` makes a simulator, `access.rs` is what a user
+//! reads of it, `result.rs` what a run returns. The state is grouped by
+//! owner (`Schedule`, `Recorder`, `Buffers`; docs/architecture.md).
 //!
 //! The loop is built not to allocate: state vectors are swapped between two
 //! buffers, matrix-vector products write into scratch space, events are
