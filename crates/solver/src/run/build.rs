@@ -130,7 +130,7 @@ impl Simulator {
             orders: vec![],
             far_order: None,
             pivoting: true,
-            memo: vec![],
+            memo: replay::Memo::default(),
             replay: true,
             plain: true,
             cache_repeats: true,

@@ -114,7 +114,7 @@ pub struct Simulator {
     /// use the search as an oracle).
     pivoting: bool,
     /// Remembered transitions (see `replay::Remembered`), at most 64.
-    memo: Vec<replay::Remembered>,
+    memo: replay::Memo,
     /// Whether remembered transitions are replayed (off only in the test
     /// that checks replay gives the same bits as the full search).
     replay: bool,

@@ -62,6 +62,78 @@ impl Remembered {
     }
 }
 
+/// The remembered transitions, at most [`MEMO_CAPACITY`], with the
+/// indices of those leaving each mode (a lookup scans a mode's handful,
+/// not the whole list). Keys are unique: the latest outcome of a
+/// transition replaces an earlier one in place.
+#[derive(Default)]
+pub(super) struct Memo {
+    entries: Vec<Remembered>,
+    /// Per mode: the indices of the entries that leave it, in the order
+    /// they were first remembered.
+    by_from: Vec<Vec<u8>>,
+}
+
+/// Most transitions remembered.
+const MEMO_CAPACITY: usize = 64;
+
+impl Memo {
+    /// The transition from mode `from` with switch bits `switches`, ramp
+    /// bits `ramps` and guard flips `flips`, if remembered.
+    #[inline]
+    pub(super) fn find(
+        &self,
+        from: u32,
+        switches: u64,
+        ramps: u64,
+        flips: u64,
+    ) -> Option<&Remembered> {
+        self.by_from
+            .get(from as usize)?
+            .iter()
+            .map(|&i| &self.entries[i as usize])
+            .find(|t| t.leaves(from, switches, ramps, flips))
+    }
+
+    /// Remembers `t`, replacing the entry of the same key (or nothing
+    /// once [`MEMO_CAPACITY`] transitions are remembered).
+    fn insert(&mut self, t: Remembered) {
+        let from = t.from as usize;
+        if let Some(i) = self.by_from.get(from).and_then(|list| {
+            list.iter()
+                .copied()
+                .find(|&i| self.entries[i as usize].same_key(&t))
+        }) {
+            self.entries[i as usize] = t;
+            return;
+        }
+        if self.entries.len() >= MEMO_CAPACITY {
+            return;
+        }
+        if self.by_from.len() <= from {
+            self.by_from.resize(from + 1, vec![]);
+        }
+        self.by_from[from].push(self.entries.len() as u8);
+        self.entries.push(t);
+    }
+
+    /// How many transitions are remembered.
+    #[cfg(test)]
+    pub(super) fn len(&self) -> usize {
+        self.entries.len()
+    }
+
+    /// Forgets every transition remembered after the first `n` (the
+    /// cross-check's oracle search must leave no trace).
+    #[cfg(test)]
+    pub(super) fn truncate(&mut self, n: usize) {
+        self.entries.truncate(n);
+        for list in &mut self.by_from {
+            list.retain(|&i| (i as usize) < n);
+        }
+    }
+}
+
 impl Simulator {
     /// Remembers a transition that held at once (no jump, no short) after
     /// only structural rejections and the cuts in `cut_rejected`.
@@ -105,11 +177,7 @@ impl Simulator {
         };
         // The latest outcome of a transition replaces an earlier one (a
         // converter moving between conduction modes changes it).
-        match self.memo.iter().position(|m| m.same_key(&t)) {
-            Some(i) => self.memo[i] = t,
-            None if self.memo.len() < 64 => self.memo.push(t),
-            None => {}
-        }
+        self.memo.insert(t);
     }
 
     /// The distinct cutset rows that cut the modes of `list` at the
@@ -175,10 +243,7 @@ impl Simulator {
     /// without a jump.
     pub(super) fn remembered_target(&mut self, flips: u64, scales: Scales) -> Option<(u32, bool)> {
         let (mode, key) = (self.mode, self.key);
-        let t = self
-            .memo
-            .iter()
-            .find(|t| t.leaves(mode, key.switches, key.ramps, flips))?;
+        let t = self.memo.find(mode, key.switches, key.ramps, flips)?;
         let z = self.z.as_slice();
         // Each distinct row once (the common case: a few rows, one per
         // diode the candidates turn off); a mode whose remembered row no

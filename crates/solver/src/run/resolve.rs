@@ -239,8 +239,8 @@ impl Simulator {
         let (mode, key) = (self.mode, self.key);
         let known = self
             .memo
-            .iter()
-            .any(|t| t.leaves(mode, key.switches, key.ramps, flips) && t.to == found.mode);
+            .find(mode, key.switches, key.ramps, flips)
+            .is_some_and(|t| t.to == found.mode);
         if near && (known || initial) {
             return Ok(found);
         }
