@@ -4,7 +4,9 @@ use nalgebra::DMatrix;
 
 /// A state-space realisation (A, B, C, D) of a compensator law, single
 /// input (the error) and single output.
-pub(super) fn realise(law: &fluxstep_netlist::CompensatorLaw) -> (DMatrix<f64>, Vec<f64>, Vec<f64>, f64) {
+pub(super) fn realise(
+    law: &fluxstep_netlist::CompensatorLaw,
+) -> (DMatrix<f64>, Vec<f64>, Vec<f64>, f64) {
     use fluxstep_netlist::CompensatorLaw;
     match law {
         // x' = e; u = ki·x + kp·e.
@@ -86,7 +88,6 @@ fn cascade(sections: &[Section]) -> Section {
     }
     acc
 }
-
 
 #[cfg(test)]
 mod tests {

@@ -329,4 +329,3 @@ pub(crate) fn output_position<'a>(
             reason: format!("no node or element of that name in this circuit; {OUTPUT_FORMS}"),
         })
 }
-
