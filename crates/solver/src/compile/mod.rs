@@ -8,6 +8,12 @@
 //! voltages); `u'` holds their slopes. Between events `z' = M z` exactly, so
 //! one matrix exponential advances everything, inputs included (this is Van
 //! Loan's augmented matrix written as a state).
+//!
+//! [`Compiled::compile`] runs the steps in order, each in a sibling file
+//! handing the next a named struct: `inputs.rs` lays out the states and
+//! inputs, `branches.rs` numbers nodes and builds each element's branches,
+//! `outputs.rs` names the outputs and builds the compensators;
+//! `compensator.rs` realises compensator laws.
 
 mod branches;
 mod compensator;

@@ -19,7 +19,7 @@ use crate::waveform_ext::within_piece_cap;
 /// # Errors
 ///
 /// [`MeasureError::UnknownElement`] when no recorded current/voltage pair
-/// belongs to `element`; otherwise as [`measure`], naming the element.
+/// belongs to `element`; otherwise as [`measure`](super::measure), naming the element.
 ///
 /// # Example
 ///
