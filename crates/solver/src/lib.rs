@@ -80,6 +80,7 @@ mod run;
 mod test_util;
 mod waveform;
 mod waveform_ext;
+mod waveform_integral;
 
 pub use dynamics::{Crossed, SegmentDynamics};
 pub use error::SolverError;

@@ -296,6 +296,46 @@ impl EventLog {
     /// assert!(c.is_equal());
     /// ```
     pub fn compare(&self, golden: &EventLog, tol: &Tolerances) -> Result<Comparison, CompareError> {
+        self.check_comparable(golden, tol)?;
+        let span = Span::of(self, golden, tol);
+        let mut names: HashMap<String, u32> = HashMap::new();
+        let new = Streams::of(self, &mut names);
+        let old = Streams::of(golden, &mut names);
+        let mut name_of = vec![String::new(); names.len()];
+        for (n, i) in names {
+            name_of[i as usize] = n;
+        }
+        let mut tally = Tally {
+            out: Comparison {
+                period: span.period,
+                allowed: span.allowed,
+                events: 0,
+                golden_events: 0,
+                matched: 0,
+                moved: 0,
+                added: 0,
+                missing: 0,
+                outside_common_span: 0,
+                largest_shift: 0.0,
+                differences: Vec::new(),
+            },
+            diffs: Vec::new(),
+        };
+        let empty: Vec<f64> = Vec::new();
+        let mut keys: Vec<Key> = new.keys.clone();
+        keys.extend(old.keys.iter().filter(|k| !new.index.contains_key(k)));
+        for key in keys {
+            let a = new.index.get(&key).map_or(&empty, |&i| &new.times[i]);
+            let g = old.index.get(&key).map_or(&empty, |&i| &old.times[i]);
+            tally.pair_stream(&span, key, a, g);
+        }
+        let mut out = tally.out;
+        out.differences = first_differences(tally.diffs, &name_of, &span);
+        Ok(out)
+    }
+
+    /// Refuses logs of different circuits and bad tolerances.
+    fn check_comparable(&self, golden: &EventLog, tol: &Tolerances) -> Result<(), CompareError> {
         if self.state_names != golden.state_names {
             return Err(CompareError::DifferentCircuits {
                 new: self.state_names.clone(),
@@ -332,6 +372,25 @@ impl EventLog {
                 return Err(CompareError::BadTolerance { what, value });
             }
         }
+        Ok(())
+    }
+}
+
+/// The period, tolerance and common span of a comparison.
+struct Span {
+    /// The switching period used (given or estimated), if any (s).
+    period: Option<f64>,
+    /// The tolerance applied to each pair (s).
+    allowed: f64,
+    /// Half a period: pairs further apart never pair (s).
+    window: f64,
+    /// The common span of the two logs (s).
+    lo: f64,
+    hi: f64,
+}
+
+impl Span {
+    fn of(new: &EventLog, golden: &EventLog, tol: &Tolerances) -> Span {
         let period = tol
             .period
             .filter(|p| *p > 0.0)
@@ -342,157 +401,170 @@ impl EventLog {
         let span = |log: &EventLog| -> Option<(f64, f64)> {
             Some((log.records.first()?.time, log.records.last()?.time))
         };
-        // The common span, widened by the pairing window so that events
-        // that moved across its ends still pair.
-        let (lo, hi) = match (span(self), span(golden)) {
+        let (lo, hi) = match (span(new), span(golden)) {
             (Some(a), Some(b)) => (a.0.max(b.0), a.1.min(b.1)),
             _ => (f64::NEG_INFINITY, f64::INFINITY),
         };
-        let inside = |t: f64| t >= lo - window && t <= hi + window;
-        // An event with no partner counts as added or missing only inside
-        // the common span itself.
-        let strictly_inside = |t: f64| t >= lo && t <= hi;
-
-        let mut names: HashMap<String, u32> = HashMap::new();
-        let new = Streams::of(self, &mut names);
-        let old = Streams::of(golden, &mut names);
-        let mut name_of = vec![String::new(); names.len()];
-        for (n, i) in names {
-            name_of[i as usize] = n;
-        }
-        let period_of = |t: f64| period.map(|p| (t / p).floor().max(0.0) as u64);
-
-        let mut out = Comparison {
+        Span {
             period,
             allowed,
-            events: 0,
-            golden_events: 0,
-            matched: 0,
-            moved: 0,
-            added: 0,
-            missing: 0,
-            outside_common_span: 0,
-            largest_shift: 0.0,
-            differences: Vec::new(),
-        };
-        // Differences as (time, stream, new time, golden time); turned
-        // into named records only for the first few.
-        let mut diffs: Vec<(f64, Key, Option<f64>, Option<f64>)> = Vec::new();
-        let empty: Vec<f64> = Vec::new();
-        let added = |out: &mut Comparison, diffs: &mut Vec<_>, x: f64, key: Key| {
-            if strictly_inside(x) {
-                out.added += 1;
-                out.events += 1;
-                diffs.push((x, key, Some(x), None));
-            } else {
-                out.outside_common_span += 1;
-            }
-        };
-        let mut keys: Vec<Key> = new.keys.clone();
-        keys.extend(old.keys.iter().filter(|k| !new.index.contains_key(k)));
-        for key in keys {
-            let a = new.index.get(&key).map_or(&empty, |&i| &new.times[i]);
-            let g = old.index.get(&key).map_or(&empty, |&i| &old.times[i]);
-            let (mut i, mut j) = (0, 0);
-            while i < a.len() || j < g.len() {
-                let (ta, tg) = (a.get(i).copied(), g.get(j).copied());
-                for t in [ta, tg].into_iter().flatten() {
-                    if !inside(t) {
-                        out.outside_common_span += 1;
-                    }
-                }
-                match (ta, tg) {
-                    (Some(x), _) if !inside(x) => {
-                        i += 1;
-                        continue;
-                    }
-                    (_, Some(y)) if !inside(y) => {
-                        j += 1;
-                        continue;
-                    }
-                    _ => {}
-                }
-                // Pair the two heads unless the next event of either
-                // stream is a closer partner: then the head is extra.
-                let closer_next = |next: Option<f64>, x: f64, y: f64| {
-                    next.is_some_and(|n| inside(n) && (n - y).abs() < (x - y).abs())
-                };
-                let pair = match (ta, tg) {
-                    (Some(x), Some(y)) => {
-                        (x - y).abs() <= window
-                            && !closer_next(a.get(i + 1).copied(), x, y)
-                            && !closer_next(g.get(j + 1).copied(), y, x)
-                    }
-                    _ => false,
-                };
-                match (ta, tg) {
-                    (Some(x), Some(y)) if pair => {
-                        let d = x - y;
-                        if d.abs() > out.largest_shift.abs() {
-                            out.largest_shift = d;
-                        }
-                        if d.abs() <= allowed {
-                            out.matched += 1;
-                        } else {
-                            out.moved += 1;
-                            diffs.push((x.min(y), key, Some(x), Some(y)));
-                        }
-                        i += 1;
-                        j += 1;
-                        out.events += 1;
-                        out.golden_events += 1;
-                    }
-                    (Some(x), Some(y)) if x < y => {
-                        added(&mut out, &mut diffs, x, key);
-                        i += 1;
-                    }
-                    (Some(x), None) => {
-                        added(&mut out, &mut diffs, x, key);
-                        i += 1;
-                    }
-                    (_, Some(y)) => {
-                        if strictly_inside(y) {
-                            out.missing += 1;
-                            out.golden_events += 1;
-                            diffs.push((y, key, None, Some(y)));
-                        } else {
-                            out.outside_common_span += 1;
-                        }
-                        j += 1;
-                    }
-                    (None, None) => unreachable!("the loop runs while one remains"),
-                }
-            }
+            window,
+            lo,
+            hi,
         }
-        // Earliest first; ties by stream so the order is deterministic.
-        let keep = Comparison::KEPT.min(diffs.len());
-        let order = |x: &(f64, Key, Option<f64>, Option<f64>),
-                     y: &(f64, Key, Option<f64>, Option<f64>)| {
-            x.0.total_cmp(&y.0).then(x.1.cmp(&y.1))
-        };
-        if keep > 0 && keep < diffs.len() {
-            diffs.select_nth_unstable_by(keep - 1, order);
-            diffs.truncate(keep);
-        }
-        diffs.sort_by(order);
-        out.differences = diffs
-            .into_iter()
-            .map(|(t, (who, kind, cause), time, golden_time)| Difference {
-                kind: match (time, golden_time) {
-                    (Some(_), Some(_)) => DifferenceKind::Moved,
-                    (Some(_), None) => DifferenceKind::Added,
-                    _ => DifferenceKind::Missing,
-                },
-                element: name_of[who as usize].clone(),
-                event: kind_of(kind),
-                cause: cause_of(cause),
-                time,
-                golden_time,
-                period: period_of(t),
-            })
-            .collect();
-        Ok(out)
     }
+
+    /// Inside the common span widened by the pairing window, so that
+    /// events that moved across its ends still pair.
+    fn inside(&self, t: f64) -> bool {
+        t >= self.lo - self.window && t <= self.hi + self.window
+    }
+
+    /// Inside the common span itself: only there does an event with no
+    /// partner count as added or missing.
+    fn strictly_inside(&self, t: f64) -> bool {
+        t >= self.lo && t <= self.hi
+    }
+
+    /// The switching period `t` falls in (0 first), when the period is known.
+    fn period_of(&self, t: f64) -> Option<u64> {
+        self.period.map(|p| (t / p).floor().max(0.0) as u64)
+    }
+}
+
+/// A difference as (time, stream, new time, golden time); turned into a
+/// named [`Difference`] only for the first few.
+type RawDifference = (f64, Key, Option<f64>, Option<f64>);
+
+/// The counts so far and the differences found.
+struct Tally {
+    out: Comparison,
+    diffs: Vec<RawDifference>,
+}
+
+impl Tally {
+    /// An event of the new log with no partner.
+    fn added(&mut self, span: &Span, x: f64, key: Key) {
+        if span.strictly_inside(x) {
+            self.out.added += 1;
+            self.out.events += 1;
+            self.diffs.push((x, key, Some(x), None));
+        } else {
+            self.out.outside_common_span += 1;
+        }
+    }
+
+    /// Pairs the times `a` (new) and `g` (golden) of one stream in time
+    /// order and counts the outcome.
+    fn pair_stream(&mut self, span: &Span, key: Key, a: &[f64], g: &[f64]) {
+        let (mut i, mut j) = (0, 0);
+        while i < a.len() || j < g.len() {
+            let (ta, tg) = (a.get(i).copied(), g.get(j).copied());
+            for t in [ta, tg].into_iter().flatten() {
+                if !span.inside(t) {
+                    self.out.outside_common_span += 1;
+                }
+            }
+            match (ta, tg) {
+                (Some(x), _) if !span.inside(x) => {
+                    i += 1;
+                    continue;
+                }
+                (_, Some(y)) if !span.inside(y) => {
+                    j += 1;
+                    continue;
+                }
+                _ => {}
+            }
+            // Pair the two heads unless the next event of either stream
+            // is a closer partner: then the head is extra.
+            let closer_next = |next: Option<f64>, x: f64, y: f64| {
+                next.is_some_and(|n| span.inside(n) && (n - y).abs() < (x - y).abs())
+            };
+            let pair = match (ta, tg) {
+                (Some(x), Some(y)) => {
+                    (x - y).abs() <= span.window
+                        && !closer_next(a.get(i + 1).copied(), x, y)
+                        && !closer_next(g.get(j + 1).copied(), y, x)
+                }
+                _ => false,
+            };
+            match (ta, tg) {
+                (Some(x), Some(y)) if pair => {
+                    self.paired(span, key, x, y);
+                    i += 1;
+                    j += 1;
+                }
+                (Some(x), Some(y)) if x < y => {
+                    self.added(span, x, key);
+                    i += 1;
+                }
+                (Some(x), None) => {
+                    self.added(span, x, key);
+                    i += 1;
+                }
+                (_, Some(y)) => {
+                    if span.strictly_inside(y) {
+                        self.out.missing += 1;
+                        self.out.golden_events += 1;
+                        self.diffs.push((y, key, None, Some(y)));
+                    } else {
+                        self.out.outside_common_span += 1;
+                    }
+                    j += 1;
+                }
+                (None, None) => unreachable!("the loop runs while one remains"),
+            }
+        }
+    }
+
+    /// A pair: matched within the tolerance, else moved.
+    fn paired(&mut self, span: &Span, key: Key, x: f64, y: f64) {
+        let d = x - y;
+        if d.abs() > self.out.largest_shift.abs() {
+            self.out.largest_shift = d;
+        }
+        if d.abs() <= span.allowed {
+            self.out.matched += 1;
+        } else {
+            self.out.moved += 1;
+            self.diffs.push((x.min(y), key, Some(x), Some(y)));
+        }
+        self.out.events += 1;
+        self.out.golden_events += 1;
+    }
+}
+
+/// The first [`Comparison::KEPT`] differences, earliest first (ties by
+/// stream so the order is deterministic), named.
+fn first_differences(
+    mut diffs: Vec<RawDifference>,
+    name_of: &[String],
+    span: &Span,
+) -> Vec<Difference> {
+    let keep = Comparison::KEPT.min(diffs.len());
+    let order = |x: &RawDifference, y: &RawDifference| x.0.total_cmp(&y.0).then(x.1.cmp(&y.1));
+    if keep > 0 && keep < diffs.len() {
+        diffs.select_nth_unstable_by(keep - 1, order);
+        diffs.truncate(keep);
+    }
+    diffs.sort_by(order);
+    diffs
+        .into_iter()
+        .map(|(t, (who, kind, cause), time, golden_time)| Difference {
+            kind: match (time, golden_time) {
+                (Some(_), Some(_)) => DifferenceKind::Moved,
+                (Some(_), None) => DifferenceKind::Added,
+                _ => DifferenceKind::Missing,
+            },
+            element: name_of[who as usize].clone(),
+            event: kind_of(kind),
+            cause: cause_of(cause),
+            time,
+            golden_time,
+            period: span.period_of(t),
+        })
+        .collect()
 }
 
 #[cfg(test)]
