@@ -5,7 +5,7 @@
 //!
 //! The transient loop (`run/locate.rs`, the replay check and the pattern
 //! search in `run/resolve.rs`, the clamp of a transition in
-//! `run/transition.rs`) and the measurements (`measure.rs`, extremes) ask
+//! `run/transition.rs`) and the measurements (`measure/extremes.rs`) ask
 //! this module; none of them writes a threshold of its own. Changing what
 //! counts as a crossing is a change here.
 
