@@ -561,7 +561,7 @@ impl Simulator {
         }
         self.buf.coef = coef;
         self.buf.za = za_abs;
-        let Some((t, b, _)) = found else {
+        let Some((t, b, sigma)) = found else {
             return Some(None);
         };
         // A crossing at the very end belongs to the scheduled instant
@@ -570,21 +570,12 @@ impl Simulator {
             return Some(Some(crossing(h, b)));
         }
         if !self.advance_repeated(mi, &mode.m, t) {
-            // The state at the crossing by Taylor terms over its own
-            // length t, into `z_next`: a crossing early in a long interval
-            // (the clamp of a switching transition, nanoseconds into a
-            // microsecond span) needs a few terms where the span's own
-            // expansion needs a dozen (to rounding, as exact as that one;
-            // the contract test compares the two paths to 1e-12).
-            propagate::advance_into(
-                &mode.m,
-                mode.live,
-                mode.rate,
-                self.z.as_slice(),
-                t,
-                self.z_next.as_mut_slice(),
-                &mut self.buf.advance,
-            );
+            // The state at the crossing from the Taylor vectors, into
+            // `z_next`.
+            let mut terms = std::mem::take(&mut self.buf.terms);
+            propagate::taylor_terms(&mode.m, mode.live, &self.z, h, &mut terms);
+            terms.state_at(sigma, self.z_next.as_mut_slice());
+            self.buf.terms = terms;
         }
         Some(Some(crossing(t, b)))
     }
