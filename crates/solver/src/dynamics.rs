@@ -126,7 +126,7 @@ fn crossing_guard<'m>(mode: &'m Mode, code: u32, z: &DVector<f64>) -> Option<(&'
             .filter(|g| match g.kind {
                 GuardKind::DiodeCurrent(k) | GuardKind::DiodeVoltage(k) => k == d,
                 GuardKind::DiodePair(a, b) => a == d || b == d,
-                GuardKind::Comparator(..) => false,
+                GuardKind::Comparator { .. } => false,
             })
             .collect()
     } else {
@@ -153,9 +153,9 @@ fn crossing_guard<'m>(mode: &'m Mode, code: u32, z: &DVector<f64>) -> Option<(&'
             let kind = match g.kind {
                 GuardKind::DiodeCurrent(k) | GuardKind::DiodeVoltage(k) => Crossed::Diode(k),
                 GuardKind::DiodePair(..) => Crossed::Diode((code - 1) as usize),
-                GuardKind::Comparator(index, turn_off, _) => {
-                    Crossed::Comparator { index, turn_off }
-                }
+                GuardKind::Comparator {
+                    index, turn_off, ..
+                } => Crossed::Comparator { index, turn_off },
             };
             (g.row.as_slice(), kind)
         })

@@ -57,10 +57,15 @@ impl Scales {
     #[inline(always)]
     pub(crate) fn floor(self, kind: &GuardKind) -> f64 {
         let s = match kind {
-            GuardKind::DiodeCurrent(_) | GuardKind::Comparator(_, _, true) => self.current,
+            GuardKind::DiodeCurrent(_)
+            | GuardKind::Comparator {
+                of_current: true, ..
+            } => self.current,
             GuardKind::DiodeVoltage(_)
             | GuardKind::DiodePair(..)
-            | GuardKind::Comparator(_, _, false) => self.voltage,
+            | GuardKind::Comparator {
+                of_current: false, ..
+            } => self.voltage,
         };
         FLOOR_REL * s + f64::MIN_POSITIVE
     }
@@ -126,11 +131,19 @@ mod tests {
         assert!(near(s.floor(&GuardKind::DiodeCurrent(0)), 2e-13));
         assert!(near(s.floor(&GuardKind::DiodeVoltage(3)), 4e-11));
         assert_eq!(
-            s.floor(&GuardKind::Comparator(0, true, true)),
+            s.floor(&GuardKind::Comparator {
+                index: 0,
+                turn_off: true,
+                of_current: true
+            }),
             s.floor(&GuardKind::DiodeCurrent(1))
         );
         assert_eq!(
-            s.floor(&GuardKind::Comparator(0, false, false)),
+            s.floor(&GuardKind::Comparator {
+                index: 0,
+                turn_off: false,
+                of_current: false
+            }),
             s.floor(&GuardKind::DiodePair(0, 1))
         );
         assert!(Scales::default().floor(&GuardKind::DiodeCurrent(0)) > 0.0);

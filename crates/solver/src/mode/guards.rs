@@ -133,7 +133,11 @@ pub(super) fn comparator_guards(
                 };
                 let drow = m.transpose() * &row;
                 Guard {
-                    kind: GuardKind::Comparator(ci, off, current),
+                    kind: GuardKind::Comparator {
+                        index: ci,
+                        turn_off: off,
+                        of_current: current,
+                    },
                     row: row.iter().copied().collect(),
                     drow: drow.iter().copied().collect(),
                 }

@@ -98,10 +98,16 @@ pub(crate) enum GuardKind {
     /// Two blocking diodes in a loop through floating nodes: the loop
     /// voltage must stay below their forward voltages.
     DiodePair(usize, usize),
-    /// Comparator `ci` of a closed-loop gate; true for its turn-off guard;
-    /// then true if it compares a current (else a voltage), which sets
-    /// the unit of its zero floor.
-    Comparator(usize, bool, bool),
+    /// A comparator of a closed-loop gate.
+    Comparator {
+        /// The comparator's number.
+        index: usize,
+        /// True for its turn-off guard, false for its turn-on guard.
+        turn_off: bool,
+        /// True if it compares a current (else a voltage), which sets
+        /// the unit of its zero floor.
+        of_current: bool,
+    },
 }
 
 /// A linear function of `z` that must stay ≥ 0 while the mode holds.

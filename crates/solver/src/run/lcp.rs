@@ -418,7 +418,7 @@ fn least_failing(mode: &Mode, z: &nalgebra::DVector<f64>, scales: Scales) -> Opt
         .filter_map(|gi| match mode.guards[gi].kind {
             GuardKind::DiodeCurrent(d) | GuardKind::DiodeVoltage(d) => Some(d),
             GuardKind::DiodePair(a, b) => Some(a.min(b)),
-            GuardKind::Comparator(..) => None,
+            GuardKind::Comparator { .. } => None,
         })
         .min()
 }

@@ -87,7 +87,7 @@ fn bits_of(g: &Guard) -> (u64, u64) {
     match g.kind {
         GuardKind::DiodeCurrent(k) | GuardKind::DiodeVoltage(k) => (1u64 << k, 0),
         GuardKind::DiodePair(a, b) => ((1u64 << a) | (1u64 << b), 0),
-        GuardKind::Comparator(c, ..) => (0, 1u64 << c),
+        GuardKind::Comparator { index, .. } => (0, 1u64 << index),
     }
 }
 
