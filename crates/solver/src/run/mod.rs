@@ -11,6 +11,7 @@
 mod control;
 mod lcp;
 mod locate;
+pub(crate) mod paths;
 mod record;
 mod resolve;
 mod restart;
