@@ -38,12 +38,15 @@
 //!   `stop_time` and `record_from` in seconds; [`record_from`,
 //!   `stop_time`] is the window the expectations measure unless they give
 //!   their own (the whole run when `record_from` is absent). The whole run
-//!   is recorded, so that the settings are compared at every instant.
+//!   is recorded, so that the settings are compared at every instant. What
+//!   the run does on an interruption or a resistive shoot-through comes
+//!   from the circuit's own `run` settings.
 //! - `measure`: `average`, `rms`, `peak_to_peak`, `min`, `max` of `output`
 //!   (by [`measure`]); `event_count` (events of `event` in [t0, t1)),
 //!   `first_event` (seconds from t0 to the first event of `event` at or
 //!   after t0) or `event_period` (the mean spacing of the events of
-//!   `event` in [t0, t1]), where `event` is `{ "kind": "diode_off",
+//!   `event` in [t0, t1]) or `event_energy` (the energy the jumps among
+//!   them dissipate in [t0, t1], J), where `event` is `{ "kind": "diode_off",
 //!   "element": "D1", "cause": "crossing" }` (element and cause may be
 //!   left out; kinds and causes as in the event log's JSON).
 //! - `window` (optional): `[t0, t1]` in seconds, inside the record;
@@ -56,9 +59,12 @@
 
 use std::path::{Path, PathBuf};
 
-use fluxstep_netlist::Circuit;
+use fluxstep_netlist::{Circuit, InterruptionPolicy, ShootThroughPolicy};
 use fluxstep_solver::measure::measure;
-use fluxstep_solver::{Crossed, EventCause, EventKind, Options, RunResult, Shortcuts, Simulator};
+use fluxstep_solver::{
+    Crossed, EventCause, EventKind, OnInterruption, OnShootThrough, Options, RunResult, Shortcuts,
+    Simulator,
+};
 use serde::Deserialize;
 
 /// One case file.
@@ -127,13 +133,14 @@ enum Measure {
     EventCount,
     FirstEvent,
     EventPeriod,
+    EventEnergy,
 }
 
 impl Measure {
     fn of_events(self) -> bool {
         matches!(
             self,
-            Measure::EventCount | Measure::FirstEvent | Measure::EventPeriod
+            Measure::EventCount | Measure::FirstEvent | Measure::EventPeriod | Measure::EventEnergy
         )
     }
 }
@@ -331,8 +338,17 @@ fn try_run(c: &Loaded, s: Shortcuts) -> Result<Ran, fluxstep_solver::SolverError
     // The whole run is recorded, so that the comparison between settings
     // covers every instant (and the states' scale is the run's, as in the
     // unit tests of `run/mod.rs`); `record_from` only sets the default
-    // window of the expectations.
-    let opts = Options::default();
+    // window of the expectations. What to do on an interruption or a
+    // resistive shoot-through comes from the circuit's run settings.
+    let mut opts = Options::default();
+    if let Some(r) = &c.circuit.run {
+        if r.on_interruption == InterruptionPolicy::ConserveFlux {
+            opts.on_interruption = OnInterruption::ConserveFlux;
+        }
+        if r.on_shoot_through == ShootThroughPolicy::Record {
+            opts.on_shoot_through = OnShootThrough::Record;
+        }
+    }
     let mut sim = Simulator::new(&c.circuit, opts)
         .unwrap_or_else(|e| panic!("{}: the circuit does not compile: {e}", c.file));
     sim.set_shortcuts(s);
@@ -357,6 +373,14 @@ fn measured(c: &Loaded, i: usize, x: &Expect, r: &RunResult) -> f64 {
             .map(|e| e.time)
             .collect();
         return match x.measure {
+            Measure::EventEnergy => r
+                .events
+                .iter()
+                .filter(|e| e.kind == ev.kind && t0 <= e.time && e.time <= t1)
+                .filter(|e| ev.element.as_deref().is_none_or(|n| n == e.element))
+                .filter(|e| ev.cause.is_none_or(|c| c == e.cause))
+                .filter_map(|e| e.energy)
+                .sum(),
             Measure::EventCount => times.iter().filter(|&&t| t0 <= t && t < t1).count() as f64,
             Measure::FirstEvent => match times.iter().find(|&&t| t >= t0) {
                 Some(t) => t - t0,
@@ -697,6 +721,11 @@ fn a_malformed_case_names_the_file_and_the_field() {
             "expect[0].window",
         ),
         ("circuits/buck.json", "circuits/no_such.json", "circuit"),
+        (
+            r#""run": {"#,
+            r#""requires": [{ "shortcut": "warp", "why": "x" }], "run": {"#,
+            "requires[0].shortcut",
+        ),
         (r#""what": "a resistor divider""#, r#""what": """#, "what"),
     ];
     for (from, to, field) in cases {
