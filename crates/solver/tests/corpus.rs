@@ -8,8 +8,8 @@
 //! expectation is asserted under each, the event log and the recorded
 //! states are compared with the all-on run (to the bit where the setting
 //! promises bits, else within `STATE_AGREEMENT` of the states' scale and
-//! 1e-12 of the run's length), and the all-on run is repeated to show the same input gives
-//! the same bits.
+//! 1e-12 of the run's length), and the all-on run is repeated to show that
+//! the same input gives the same bits.
 //!
 //! # File format
 //!
@@ -26,7 +26,7 @@
 //!       "value": 1.3636363636,
 //!       "tolerance": { "relative": 2e-3 },
 //!       "tolerance_why": "the formula takes the output voltage as constant ...",
-//!       "source": "R. W. Erickson & D. Maksimović, ... eq. 2.19"
+//!       "source": "R. W. Erickson & D. Maksimović, ..., ch. 2, ..."
 //!     }
 //!   ]
 //! }
@@ -46,11 +46,12 @@
 //!   `first_event` (seconds from t0 to the first event of `event` at or
 //!   after t0) or `event_period` (the mean spacing of the events of
 //!   `event` in [t0, t1]) or `event_energy` (the energy the jumps among
-//!   them dissipate in [t0, t1], J), where `event` is `{ "kind": "diode_off",
-//!   "element": "D1", "cause": "crossing" }` (element and cause may be
-//!   left out; kinds and causes as in the event log's JSON).
-//! - `window` (optional): `[t0, t1]` in seconds, inside the record;
-//!   default the whole record.
+//!   them dissipate in [t0, t1], J), where `event` is
+//!   `{ "kind": "diode_off", "element": "D1", "cause": "crossing" }`
+//!   (element and cause may be left out; kinds and causes as in the event
+//!   log's JSON).
+//! - `window` (optional): `[t0, t1]` in seconds, inside [0, `stop_time`];
+//!   default [`record_from`, `stop_time`].
 //! - `tolerance`: `{ "relative": r }` or `{ "absolute": a }`, never both.
 //! - `requires` (optional): `[{ "shortcut": "pivoting", "why": "..." }]`,
 //!   the shortcuts (by [`Shortcuts::NAMES`]) without which the case cannot
@@ -231,7 +232,6 @@ fn load(file: &str, text: &str) -> Result<Loaded, String> {
             return Err(format!("{file}: requires[{i}].why: empty"));
         }
     }
-    let lo = from.unwrap_or(0.0);
     for (i, x) in case.expect.iter().enumerate() {
         let at = |field: &str| format!("{file}: expect[{i}].{field}");
         for (field, text) in [
@@ -271,9 +271,9 @@ fn load(file: &str, text: &str) -> Result<Loaded, String> {
             }
         }
         if let Some([t0, t1]) = x.window {
-            if !(t0.is_finite() && t1.is_finite() && lo <= t0 && t0 < t1 && t1 <= stop) {
+            if !(t0.is_finite() && t1.is_finite() && 0.0 <= t0 && t0 < t1 && t1 <= stop) {
                 return Err(format!(
-                    "{}: [{t0}, {t1}] is not a window inside the record [{lo}, {stop}]",
+                    "{}: [{t0}, {t1}] is not a window inside the run [0, {stop}]",
                     at("window")
                 ));
             }
