@@ -20,7 +20,12 @@ use super::Simulator;
 /// pivoting looks only near its first guess, so a circuit of many diodes
 /// may find no pattern and stop with a diagnostic (the 24-diode multiplier
 /// example does); every other run succeeds either way.
+///
+/// Start from [`Shortcuts::ALL`] or [`Shortcuts::NONE`] and set fields:
+/// the struct is non-exhaustive, so a shortcut added later does not break
+/// code that names the ones it knows.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
+#[non_exhaustive]
 pub struct Shortcuts {
     /// Default on. An instant with nothing but gate edges takes the plain
     /// path, which logs its events together instead of resolving the
