@@ -6,8 +6,9 @@
 //! (plain instants, replayed transitions, principal pivoting); the three
 //! caches of exponentials and guard polynomials agree with the uncached
 //! Taylor path to within rounding, which the unit tests of `run/mod.rs`
-//! and the case corpus (`crates/solver/tests/corpus.rs`) pin at 1e-12 of
-//! the states' scale and of the run's length.
+//! pin at 1e-12 of the states' scale and of the run's length, and the case
+//! corpus (`crates/solver/tests/corpus.rs`, which compares every event's
+//! snapshot too) at 2e-12 and 1e-12.
 
 use super::Simulator;
 
@@ -19,7 +20,7 @@ use super::Simulator;
 /// without them. One limit: above 16 diodes the search that stands in for
 /// pivoting looks only near its first guess, so a circuit of many diodes
 /// may find no pattern and stop with a diagnostic (the 24-diode multiplier
-/// example does); every other run succeeds either way.
+/// example does); every other example runs either way.
 ///
 /// Start from [`Shortcuts::ALL`] or [`Shortcuts::NONE`] and set fields:
 /// the struct is non-exhaustive, so a shortcut added later does not break
