@@ -1,9 +1,7 @@
 //! `fluxstep report` as a user runs it: the two files, and exit status 1
 //! with the failure on top of the page when a design limit fails.
 
-mod common;
-
-use common::{example, fluxstep, scratch_dir};
+use crate::common::{example, fluxstep, scratch_dir};
 
 #[test]
 fn report_writes_the_page_and_its_summary() {

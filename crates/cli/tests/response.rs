@@ -1,8 +1,6 @@
 //! `fluxstep response` as a user runs it: files, summary, exit codes.
 
-mod common;
-
-use common::{example, fluxstep, scratch_dir};
+use crate::common::{example, fluxstep, scratch_dir};
 
 #[test]
 fn loop_gain_writes_margins_and_a_bode_figure() {

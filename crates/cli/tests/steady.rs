@@ -1,8 +1,6 @@
 //! `fluxstep steady` as a user runs it: files, summary, exit codes.
 
-mod common;
-
-use common::{example, fluxstep, scratch_dir};
+use crate::common::{example, fluxstep, scratch_dir};
 
 #[test]
 fn steady_writes_one_period_and_a_summary_with_units() {

@@ -22,6 +22,8 @@
 //!   [`EventLog::compare`] against a golden log with [`Tolerances`].
 //! - [`Options`]: what to record, how to treat interrupted inductors and
 //!   resistive shoot-through.
+//! - [`Shortcuts`]: the solver's shortcuts, each of which can be turned
+//!   off to prove in a test that it changes nothing.
 //! - [`control`]: sampled controllers written in Rust ([`control::Controller`]).
 //! - [`measure`]: exact averages, RMS, extremes and element power.
 //! - [`SolverError`]: diagnostics that name elements, nodes and times.
@@ -93,5 +95,6 @@ pub use options::{
     OnInterruption, OnShootThrough, Options, Record, CHATTER_FRACTION, DEFAULT_MEMORY_BUDGET,
 };
 pub use propagate::eigenvalues;
+pub use run::paths::Shortcuts;
 pub use run::{simulate, RunResult, SegmentSink, SegmentView, Simulator, Stats};
 pub use waveform::{OutputId, Segment, Side, TransitionSpan, ValueError, Waveform};

@@ -1,5 +1,10 @@
 //! Integration tests of the exact solver, one binary.
 //!
+//! - `corpus`: the checked case corpus, one circuit per file in
+//!   `tests/data` with expected quantities, tolerances and sources, run
+//!   under every setting of the solver's shortcuts.
+//! - `measure`: exact measurements against closed forms and against an
+//!   independent search on `Waveform::value`.
 //! - `physics::util`: helpers (circuits, energy balance, closed forms).
 //! - `physics::exact`: elementary circuits against closed-form solutions.
 //! - `physics::converters`: buck (continuous and discontinuous conduction),
@@ -17,4 +22,6 @@
 //!   issues (outputs a designer can trust; extreme scales and the
 //!   metamorphic scaling laws).
 
+mod corpus;
+mod measure;
 mod physics;

@@ -21,6 +21,7 @@ mod checks;
 mod control;
 mod lcp;
 mod locate;
+pub(crate) mod paths;
 mod record;
 mod replay;
 mod resolve;
