@@ -63,6 +63,7 @@ mod mode;
 mod options;
 mod propagate;
 mod run;
+mod states;
 #[cfg(test)]
 mod test_util;
 mod waveform;
@@ -80,4 +81,5 @@ pub use options::{
 };
 pub use propagate::eigenvalues;
 pub use run::{simulate, RunResult, SegmentSink, SegmentView, Simulator, Stats};
+pub use states::{state_counts, StateCounts};
 pub use waveform::{OutputId, Segment, Side, TransitionSpan, ValueError, Waveform};
