@@ -290,7 +290,7 @@ fn print_orbit(stem: &str, ss: &SteadyState, outputs: &[String], measurements: &
         };
         println!("    {n:<24} {:>12}", si(shown, unit));
     }
-    print!("{}", measurement_rows(&outputs, &measurements, "period"));
+    print!("{}", measurement_rows(outputs, measurements, "period"));
     println!(
         "  stability: {}",
         if ss.is_stable() { "stable" } else { "UNSTABLE" }

@@ -659,7 +659,7 @@ fn recorded_orbit(
     let mut last = Shooter {
         circuit,
         options,
-        base: base,
+        base,
         multiple,
         first,
         sim,

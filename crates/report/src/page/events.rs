@@ -165,7 +165,7 @@ pub(super) fn certificate(p: &Page, s: &mut Sheet, b: &mut String) -> Result<(),
     let _ = write!(
         b,
         "<p class=\"cert\">fluxstep {version}; input {}{}; {residual}.</p>",
-        esc(opts.file.as_deref().unwrap_or(&title)),
+        esc(opts.file.as_deref().unwrap_or(title)),
         match &hash {
             Some(h) => {
                 s.set("/certificate/sha256", Value::from(h.clone()));

@@ -141,7 +141,7 @@ pub(super) fn waveforms(p: &Page, b: &mut String) -> Result<(), PlotError> {
         _ => None,
     };
     let fig = review_figure(
-        &title,
+        title,
         &run.waveform,
         Some(&run.events),
         &ReviewOptions {
