@@ -186,6 +186,7 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
         Some(&ss.run.events),
         &ReviewOptions {
             outputs: outputs.clone(),
+            period: Some(ss.period),
             ..ReviewOptions::default()
         },
     )?;
