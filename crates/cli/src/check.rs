@@ -3,7 +3,8 @@
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 
-use fluxstep_netlist::{Circuit, Compensator, CompensatorLaw, Element, Gate, OutputName, Waveform};
+use anyhow::Context as _;
+use fluxstep_netlist::{Circuit, Compensator, CompensatorLaw, Gate, OutputName};
 
 use fluxstep_plot::format_si_short as si;
 
@@ -18,11 +19,12 @@ pub struct Args {
 ///
 /// # Errors
 ///
-/// As [`crate::input::read_circuit`]: unreadable file, not a JSON circuit,
-/// or a circuit that breaks rules.
+/// As [`crate::input::read_circuit`] (unreadable file, not a JSON circuit,
+/// or a circuit that breaks rules), and a circuit the solver cannot compile.
 pub fn run(args: &Args) -> anyhow::Result<()> {
     let circuit = crate::input::read_circuit(&args.file)?;
-    print!("{}", summary(&args.file, &circuit));
+    let text = summary(&args.file, &circuit).with_context(|| args.file.display().to_string())?;
+    print!("{text}");
     Ok(())
 }
 
@@ -47,60 +49,6 @@ const KINDS: [(&str, &str, &str); 9] = [
     ("switch", "switch", "switches"),
     ("diode", "diode", "diodes"),
 ];
-
-/// How many state variables the circuit has before the solver removes
-/// dependent ones: one per inductor and per coupled winding (a current),
-/// one per capacitor (a voltage), two per sine source (the oscillator that
-/// makes a sine exact).
-#[derive(Debug, Default, PartialEq)]
-pub struct States {
-    /// Inductor currents, including coupled windings.
-    pub currents: usize,
-    /// Capacitor voltages.
-    pub voltages: usize,
-    /// Sine sources (two states each).
-    pub sines: usize,
-    /// Compensator states.
-    pub compensator: usize,
-}
-
-impl States {
-    /// Counts the states of a circuit.
-    pub fn of(circuit: &Circuit) -> States {
-        let mut s = States::default();
-        for e in &circuit.elements {
-            match e {
-                Element::Inductor(_) => s.currents += 1,
-                Element::CoupledInductors(c) => s.currents += c.windings.len(),
-                Element::Capacitor(_) => s.voltages += 1,
-                Element::VoltageSource(v) if matches!(v.waveform, Waveform::Sine { .. }) => {
-                    s.sines += 1
-                }
-                Element::CurrentSource(i) if matches!(i.waveform, Waveform::Sine { .. }) => {
-                    s.sines += 1
-                }
-                _ => {}
-            }
-        }
-        for k in &circuit.compensators {
-            s.compensator += match &k.law {
-                CompensatorLaw::Pi { .. } => 1,
-                CompensatorLaw::PolesZeros {
-                    integrator,
-                    poles_hz,
-                    ..
-                } => poles_hz.len() + usize::from(*integrator),
-                CompensatorLaw::StateSpace { b, .. } => b.len(),
-            };
-        }
-        s
-    }
-
-    /// The total number of states.
-    pub fn total(&self) -> usize {
-        self.currents + self.voltages + 2 * self.sines + self.compensator
-    }
-}
 
 fn plural(n: usize, one: &str, many: &str) -> String {
     format!("{n} {}", if n == 1 { one } else { many })
@@ -239,8 +187,12 @@ fn describe_gate(g: &Gate) -> String {
     }
 }
 
-/// The summary printed by `check`.
-pub fn summary(path: &Path, circuit: &Circuit) -> String {
+/// The summary printed by `check`; the state counts come from the solver.
+///
+/// # Errors
+///
+/// A circuit the solver cannot compile ([`fluxstep_solver::state_counts`]).
+pub fn summary(path: &Path, circuit: &Circuit) -> Result<String, fluxstep_solver::SolverError> {
     let mut out = String::new();
     let nodes = circuit.nodes();
     // Writing to a String cannot fail.
@@ -287,28 +239,32 @@ pub fn summary(path: &Path, circuit: &Circuit) -> String {
         line("control:", list.join("; "));
     }
 
-    let s = States::of(circuit);
+    let s = fluxstep_solver::state_counts(circuit)?;
     let mut parts = Vec::new();
-    if s.currents > 0 {
-        parts.push(plural(s.currents, "inductor current", "inductor currents"));
-    }
-    if s.voltages > 0 {
+    if s.inductor_currents > 0 {
         parts.push(plural(
-            s.voltages,
+            s.inductor_currents,
+            "inductor current",
+            "inductor currents",
+        ));
+    }
+    if s.capacitor_voltages > 0 {
+        parts.push(plural(
+            s.capacitor_voltages,
             "capacitor voltage",
             "capacitor voltages",
         ));
     }
-    if s.sines > 0 {
+    if s.sine_sources > 0 {
         parts.push(format!(
             "{} for {}",
-            2 * s.sines,
-            plural(s.sines, "sine source", "sine sources")
+            2 * s.sine_sources,
+            plural(s.sine_sources, "sine source", "sine sources")
         ));
     }
-    if s.compensator > 0 {
+    if s.compensator_states > 0 {
         parts.push(plural(
-            s.compensator,
+            s.compensator_states,
             "compensator state",
             "compensator states",
         ));
@@ -335,7 +291,7 @@ pub fn summary(path: &Path, circuit: &Circuit) -> String {
             format!("until {}{from}{outputs}", si(run.stop_time, "s")),
         );
     }
-    format!("{}: valid circuit\n{out}", path.display())
+    Ok(format!("{}: valid circuit\n{out}", path.display()))
 }
 
 #[cfg(test)]
@@ -357,21 +313,8 @@ mod tests {
     }
 
     #[test]
-    fn states_count_inductors_capacitors_and_sines() {
-        assert_eq!(States::of(&buck()).total(), 2);
-        let c = Circuit::builder()
-            .voltage_waveform("V1", "a", "gnd", Waveform::sine(0.0, 1.0, 50.0, 0.0))
-            .resistor("R1", "a", "b", 1.0)
-            .capacitor("C1", "b", "gnd", 1e-6)
-            .build()
-            .unwrap();
-        let s = States::of(&c);
-        assert_eq!((s.currents, s.voltages, s.sines, s.total()), (0, 1, 1, 3));
-    }
-
-    #[test]
     fn buck_summary() {
-        let text = summary(Path::new("buck.json"), &buck());
+        let text = summary(Path::new("buck.json"), &buck()).unwrap();
         assert_eq!(
             text,
             "buck.json: valid circuit\n\
@@ -390,15 +333,15 @@ mod tests {
     fn issue_13_control_settings_have_units_and_compensators_names() {
         let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("../../examples/circuits");
         let c = Circuit::from_file(root.join("peak_current_buck.json")).unwrap();
-        let text = summary(Path::new("p.json"), &c);
+        let text = summary(Path::new("p.json"), &c).unwrap();
         assert!(text.contains("reference 4.3 A"), "{text}");
         assert!(text.contains("compensation slope 250 kA/s"), "{text}");
         let c = Circuit::from_file(root.join("voltage_mode_buck.json")).unwrap();
-        let text = summary(Path::new("v.json"), &c);
+        let text = summary(Path::new("v.json"), &c).unwrap();
         assert!(text.contains("control:  K (poles and zeros"), "{text}");
         assert!(text.contains("reference 3.3 V"), "{text}");
         let c = Circuit::from_file(root.join("hysteretic_buck.json")).unwrap();
-        let text = summary(Path::new("h.json"), &c);
+        let text = summary(Path::new("h.json"), &c).unwrap();
         assert!(text.contains("between 4.975 V and 5.025 V"), "{text}");
     }
 }

@@ -6,7 +6,9 @@
 use std::fmt::Write as _;
 
 use fluxstep_analysis::losses::thermal::{junction_temperature_of, ThermalStart};
-use fluxstep_analysis::losses::{breakdown, has_loss_data, loads, LossOptions};
+use fluxstep_analysis::losses::{
+    breakdown, has_loss_data, loads, LossOptions, LossReport, PartTotals,
+};
 use fluxstep_netlist::{Circuit, Element};
 use fluxstep_plot::{format_si_digits, loss_chart_svg, LossBar};
 use fluxstep_solver::{EventLog, Waveform};
@@ -78,6 +80,51 @@ pub(crate) fn section(
             };
         }
     };
+    let (mut json, failed) = balance(&report, (t0, t1), &mut text);
+    if !has_loss_data(c, &loads) {
+        return Section {
+            json,
+            text,
+            chart: None,
+            failed,
+        };
+    }
+    let (parts, efficiency) = breakdown_lines(&report, &loads, &mut json, &mut text);
+    junction_lines(
+        c,
+        waveform,
+        events,
+        (t0, t1),
+        periodic,
+        &mut json,
+        &mut text,
+    );
+    let bars: Vec<LossBar> = parts
+        .into_iter()
+        .map(|t| LossBar {
+            part: t.part,
+            by_kind: t.by_kind,
+        })
+        .collect();
+    let heading = match efficiency {
+        Some(e) => format!("{title}: losses, efficiency {:.2} %", 100.0 * e),
+        None => format!("{title}: losses"),
+    };
+    Section {
+        json,
+        text,
+        chart: Some(loss_chart_svg(Some(&heading), &bars)),
+        failed,
+    }
+}
+
+/// The energy balance line and its `losses` JSON, with the error when it
+/// fails its tolerance.
+fn balance(
+    report: &LossReport,
+    (t0, t1): (f64, f64),
+    text: &mut String,
+) -> (serde_json::Value, Option<BalanceFailed>) {
     let residual = report.balance_residual();
     let relative = report.balance_error();
     let ok = relative <= BALANCE_TOLERANCE;
@@ -95,7 +142,7 @@ pub(crate) fn section(
              values at the limits of double precision"
         ))
     });
-    let mut json = serde_json::json!({
+    let json = serde_json::json!({
         "t0": t0,
         "t1": t1,
         "balance": {
@@ -105,14 +152,18 @@ pub(crate) fn section(
             "passed": ok,
         },
     });
-    if !has_loss_data(c, &loads) {
-        return Section {
-            json,
-            text,
-            chart: None,
-            failed,
-        };
-    }
+    (json, failed)
+}
+
+/// The efficiency, the loss by mechanism and by part and the parts outside
+/// their switching-energy tables; returns the parts worth a bar of the
+/// chart and the efficiency.
+fn breakdown_lines(
+    report: &LossReport,
+    loads: &[String],
+    json: &mut serde_json::Value,
+    text: &mut String,
+) -> (Vec<PartTotals>, Option<f64>) {
     let kinds = report.by_kind();
     // Parts whose loss is rounding noise of the converter's power (ideal
     // parts) are left out of the table and the chart.
@@ -200,6 +251,19 @@ pub(crate) fn section(
             format_si_digits(o.voltage, "V", 3)
         );
     }
+    (parts, efficiency)
+}
+
+/// The junction temperature of every part with a thermal network.
+fn junction_lines(
+    c: &Circuit,
+    waveform: &Waveform,
+    events: &EventLog,
+    (t0, t1): (f64, f64),
+    periodic: bool,
+    json: &mut serde_json::Value,
+    text: &mut String,
+) {
     let start = if periodic {
         ThermalStart::Periodic
     } else {
@@ -234,22 +298,5 @@ pub(crate) fn section(
     }
     if !junctions.is_empty() {
         json["junctions"] = junctions.into();
-    }
-    let bars: Vec<LossBar> = parts
-        .into_iter()
-        .map(|t| LossBar {
-            part: t.part,
-            by_kind: t.by_kind,
-        })
-        .collect();
-    let heading = match efficiency {
-        Some(e) => format!("{title}: losses, efficiency {:.2} %", 100.0 * e),
-        None => format!("{title}: losses"),
-    };
-    Section {
-        json,
-        text,
-        chart: Some(loss_chart_svg(Some(&heading), &bars)),
-        failed,
     }
 }

@@ -10,6 +10,7 @@ use fluxstep_analysis::response::{
 };
 use fluxstep_analysis::steady::SteadyOptions;
 use fluxstep_analysis::AnalysisError;
+use fluxstep_netlist::Circuit;
 use fluxstep_plot::{bode_figure, format_si_short, write_svg, BodeMarks, BodePoint};
 
 use crate::run::{write_failed, Stopped, WriteFailed};
@@ -72,7 +73,6 @@ fn classify(e: AnalysisError) -> anyhow::Error {
 /// [`WriteFailed`] (exit 3).
 pub fn run(args: &Args) -> anyhow::Result<()> {
     let circuit = crate::input::read_circuit(&args.file)?;
-    let opts = SteadyOptions::default();
     let fs = 1.0 / fluxstep_analysis::steady::period(&circuit).map_err(classify)?;
     let from = hz(&args.from, "from")?;
     let to = match &args.to {
@@ -85,46 +85,14 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
         .file_stem()
         .map(|s| s.to_string_lossy().into_owned())
         .unwrap_or_else(|| "circuit".into());
-    let (title, points, margins, resonances, unit, describe): (
-        String,
-        Vec<Point>,
-        Option<Margins>,
-        Vec<Resonance>,
-        String,
-        String,
-    ) = match (&args.loop_point, &args.input, &args.output) {
-        (Some(p), None, None) => {
-            let point = BreakPoint::named(&circuit, p)?;
-            let lg = loop_gain(&circuit, &point, &freqs, &opts).map_err(classify)?;
-            let at = match &point {
-                BreakPoint::GateSense(g) => format!("the sense input of gate {g}"),
-                BreakPoint::CompensatorInput(k) => format!("the input of compensator {k}"),
-            };
-            (
-                format!("{stem}: loop gain broken at {at}"),
-                lg.points,
-                Some(lg.margins),
-                vec![],
-                String::new(),
-                format!("loop gain T at {at}"),
-            )
-        }
-        (None, Some(i), Some(o)) => {
-            let r = frequency_response(&circuit, &Input::parse(i), o, &freqs, &opts)
-                .map_err(classify)?;
-            (
-                format!("{stem}: {o} / {i}"),
-                r.points,
-                None,
-                r.resonances,
-                r.unit.clone(),
-                format!("{o} / {i}"),
-            )
-        }
-        _ => anyhow::bail!(
-            "give either --input and --output (a transfer function) or --loop POINT (a loop gain)"
-        ),
-    };
+    let Answer {
+        title,
+        points,
+        margins,
+        resonances,
+        unit,
+        describe,
+    } = analyse(args, &circuit, &stem, &freqs)?;
     let dir = args
         .dir
         .clone()
@@ -179,6 +147,94 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
         })
     })?;
 
+    print_answer(
+        &title,
+        &points,
+        margins.as_ref(),
+        &resonances,
+        &unit,
+        (from, to, fs),
+    );
+    println!(
+        "  written: {}/{{response.csv, response.json, bode.svg}}",
+        dir.display()
+    );
+    Ok(())
+}
+
+/// What the analysis answered, ready to write and print.
+struct Answer {
+    /// The figure's title.
+    title: String,
+    points: Vec<Point>,
+    /// The loop's margins (a loop gain only).
+    margins: Option<Margins>,
+    /// Resonance peaks (a transfer function only).
+    resonances: Vec<Resonance>,
+    /// The transfer function's unit ("" for a loop gain).
+    unit: String,
+    /// What was computed, in words.
+    describe: String,
+}
+
+/// A loop gain (`--loop`) or a transfer function (`--input`, `--output`)
+/// at the frequencies.
+fn analyse(args: &Args, circuit: &Circuit, stem: &str, freqs: &[f64]) -> anyhow::Result<Answer> {
+    let opts = SteadyOptions::default();
+    let (title, points, margins, resonances, unit, describe) =
+        match (&args.loop_point, &args.input, &args.output) {
+            (Some(p), None, None) => {
+                let point = BreakPoint::named(circuit, p)?;
+                let lg = loop_gain(circuit, &point, freqs, &opts).map_err(classify)?;
+                let at = match &point {
+                    BreakPoint::GateSense(g) => format!("the sense input of gate {g}"),
+                    BreakPoint::CompensatorInput(k) => format!("the input of compensator {k}"),
+                };
+                (
+                    format!("{stem}: loop gain broken at {at}"),
+                    lg.points,
+                    Some(lg.margins),
+                    vec![],
+                    String::new(),
+                    format!("loop gain T at {at}"),
+                )
+            }
+            (None, Some(i), Some(o)) => {
+                let r = frequency_response(circuit, &Input::parse(i), o, freqs, &opts)
+                    .map_err(classify)?;
+                (
+                    format!("{stem}: {o} / {i}"),
+                    r.points,
+                    None,
+                    r.resonances,
+                    r.unit.clone(),
+                    format!("{o} / {i}"),
+                )
+            }
+            _ => anyhow::bail!(
+            "give either --input and --output (a transfer function) or --loop POINT (a loop gain)"
+        ),
+        };
+    Ok(Answer {
+        title,
+        points,
+        margins,
+        resonances,
+        unit,
+        describe,
+    })
+}
+
+/// Prints the answer: range, first point, resonances, margins and the
+/// frequencies beyond the Nyquist frequency.
+fn print_answer(
+    title: &str,
+    points: &[Point],
+    margins: Option<&Margins>,
+    resonances: &[Resonance],
+    unit: &str,
+    (from, to, fs): (f64, f64, f64),
+) {
     println!("{title}");
     println!(
         "  {} frequencies from {} to {}; switching frequency {}",
@@ -200,7 +256,7 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
             first.phase_deg
         );
     }
-    for r in &resonances {
+    for r in resonances {
         println!(
             "  peak at {}: {:.2} dB ({:.1} dB above its surroundings)",
             format_si_short(r.frequency, "Hz"),
@@ -208,7 +264,7 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
             r.prominence_db
         );
     }
-    if let Some(m) = &margins {
+    if let Some(m) = margins {
         match (m.crossover_hz, m.phase_margin_deg) {
             (Some(fc), Some(pm)) => println!(
                 "  crossover {} ({:.3} of fs), phase margin {pm:.1}°",
@@ -231,9 +287,4 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
             format_si_short(0.5 * fs, "Hz")
         );
     }
-    println!(
-        "  written: {}/{{response.csv, response.json, bode.svg}}",
-        dir.display()
-    );
-    Ok(())
 }

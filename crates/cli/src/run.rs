@@ -303,19 +303,8 @@ fn simulate(
     Ok((sim.finish(), stopped))
 }
 
-/// Runs the file's transient and writes the four files.
-///
-/// # Errors
-///
-/// Bad input (file, flags, output names): an ordinary error (exit 2). A
-/// simulation diagnostic: [`Stopped`] (exit 1), after the files are
-/// written. A folder or file that cannot be written: [`WriteFailed`] (exit 3).
-pub fn run(args: &Args) -> anyhow::Result<()> {
-    let circuit = crate::input::read_circuit(&args.file)?;
-    let mut plan = plan(args, &circuit)?;
-    if plan.outputs.is_empty() {
-        plan.outputs = default_outputs(&circuit);
-    }
+/// The `--zoom` instants and the `--zoom-span`.
+fn zoom_args(args: &Args) -> anyhow::Result<(Vec<f64>, Option<f64>)> {
     let zoom = args
         .zoom
         .iter()
@@ -329,18 +318,29 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
     if zoom_span.is_some_and(|s| !(s > 0.0 && s.is_finite())) {
         anyhow::bail!("--zoom-span must be positive");
     }
-    let dir = args.dir.clone().unwrap_or_else(|| {
+    Ok((zoom, zoom_span))
+}
+
+/// The output folder: `--dir`, else `out/` and the file's stem.
+fn output_dir(args: &Args) -> PathBuf {
+    args.dir.clone().unwrap_or_else(|| {
         let stem = args
             .file
             .file_stem()
             .map(|s| s.to_string_lossy().into_owned())
             .unwrap_or_else(|| "run".into());
         PathBuf::from("out").join(stem)
-    });
-    create_folder(&dir)?;
+    })
+}
 
+/// Runs the plan; a fault before the recorded window leaves nothing to
+/// show, so the run is repeated recording up to the fault.
+fn simulate_to_show(
+    circuit: &Circuit,
+    plan: &Plan,
+) -> anyhow::Result<(RunResult, Option<SolverError>)> {
     let progress = std::io::stderr().is_terminal();
-    let (mut result, mut stopped) = simulate(&circuit, &plan, plan.from, progress)?;
+    let (mut result, mut stopped) = simulate(circuit, plan, plan.from, progress)?;
     if let Some(e) = &stopped {
         // A fault before the recorded window leaves nothing to show: run
         // again (the run is deterministic, so it stops at the same
@@ -348,9 +348,54 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
         let fault = e.time().unwrap_or(plan.from);
         if result.waveform.span().is_none() && fault > 0.0 {
             let from = (fault - (plan.stop - plan.from)).max(0.0);
-            (result, stopped) = simulate(&circuit, &plan, from, false)?;
+            (result, stopped) = simulate(circuit, plan, from, false)?;
         }
     }
+    Ok((result, stopped))
+}
+
+/// The summary.json of a run before losses, stop and timing are added:
+/// the exact measurements over the recorded window, with their units.
+fn summary_json(
+    args: &Args,
+    plan: &Plan,
+    result: &RunResult,
+    (a, b): (f64, f64),
+    measurements: &[Measurement],
+) -> serde_json::Value {
+    let unit = |name: &str| OutputName::parse(name).map(|o| o.unit()).unwrap_or("");
+    serde_json::json!({
+        "file": args.file.display().to_string(),
+        "stop_time": plan.stop,
+        "window": [a, b],
+        "events": result.events.len(),
+        "modes": result.stats.modes,
+        "measurements": measurements.iter().map(|m| {
+            let mut v = serde_json::to_value(m).expect("a measurement serializes");
+            v["unit"] = unit(&m.output).into();
+            v
+        }).collect::<Vec<_>>(),
+    })
+}
+
+/// Runs the file's transient and writes the four files.
+///
+/// # Errors
+///
+/// Bad input (file, flags, output names): an ordinary error (exit 2). A
+/// simulation diagnostic: [`Stopped`] (exit 1), after the files are
+/// written. A folder or file that cannot be written: [`WriteFailed`] (exit 3).
+pub fn run(args: &Args) -> anyhow::Result<()> {
+    let circuit = crate::input::read_circuit(&args.file)?;
+    let mut plan = plan(args, &circuit)?;
+    if plan.outputs.is_empty() {
+        plan.outputs = default_outputs(&circuit);
+    }
+    let (zoom, zoom_span) = zoom_args(args)?;
+    let dir = output_dir(args);
+    create_folder(&dir)?;
+
+    let (result, stopped) = simulate_to_show(&circuit, &plan)?;
     let w = &result.waveform;
     let Some((a, b)) = w.span() else {
         return match stopped {
@@ -382,19 +427,7 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
         .iter()
         .filter_map(|id| measure(w, *id, a, b).ok())
         .collect();
-    let unit = |name: &str| OutputName::parse(name).map(|o| o.unit()).unwrap_or("");
-    let mut summary = serde_json::json!({
-        "file": args.file.display().to_string(),
-        "stop_time": plan.stop,
-        "window": [a, b],
-        "events": result.events.len(),
-        "modes": result.stats.modes,
-        "measurements": measurements.iter().map(|m| {
-            let mut v = serde_json::to_value(m).expect("a measurement serializes");
-            v["unit"] = unit(&m.output).into();
-            v
-        }).collect::<Vec<_>>(),
-    });
+    let mut summary = summary_json(args, &plan, &result, (a, b), &measurements);
     // The energy balance of the window, and the losses where the circuit
     // has loss data (docs/outputs.md).
     let title0 = args

@@ -7,10 +7,13 @@
 use std::path::PathBuf;
 
 use anyhow::Context;
-use fluxstep_analysis::steady::{find, Reading, SteadyOptions};
+use fluxstep_analysis::steady::{find, Reading, SteadyOptions, SteadyState};
 use fluxstep_analysis::AnalysisError;
+use fluxstep_netlist::Circuit;
 use fluxstep_plot::{review_figure, write_svg, ReviewOptions};
+use fluxstep_solver::measure::Measurement;
 
+use crate::compare::TimingFailed;
 use crate::run::Stopped;
 use fluxstep_plot::{format_si_digits, format_si_short};
 
@@ -97,18 +100,7 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
         Err(e) => return Err(e.into()),
     };
     let w = &ss.run.waveform;
-    let mut outputs: Vec<String> = if args.outputs.is_empty() {
-        circuit
-            .run
-            .as_ref()
-            .map(|c| c.outputs.clone())
-            .unwrap_or_default()
-    } else {
-        args.outputs.clone()
-    };
-    if outputs.is_empty() {
-        outputs = crate::run::default_outputs(&circuit);
-    }
+    let outputs = output_names(args, &circuit);
     let mut ids = vec![];
     for o in &outputs {
         ids.push(w.output(o).with_context(|| {
@@ -155,32 +147,7 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
         .zip(&ss.state)
         .map(|(n, v)| (n.clone(), serde_json::json!(v)))
         .collect();
-    // The file's timing rules over the recorded orbit (two periods). Rules
-    // with a time window concern the transient (start-up, a load step) and
-    // are left to `fluxstep run`.
-    let rules: Vec<_> = circuit
-        .run
-        .as_ref()
-        .map(|r| {
-            r.timing
-                .iter()
-                .filter(|t| t.from.is_none() && t.to.is_none())
-                .cloned()
-                .collect()
-        })
-        .unwrap_or_default();
-    let timing = if rules.is_empty() {
-        None
-    } else {
-        Some(crate::compare::timing_summary(
-            &fluxstep_analysis::timing::check(
-                &rules,
-                &ss.run.events,
-                Some(&ss.run.waveform),
-                Some(ss.period),
-            )?,
-        ))
-    };
+    let timing = timing(&circuit, &ss)?;
     let mut summary = serde_json::json!({
         "file": args.file.display().to_string(),
         "period": ss.period,
@@ -219,11 +186,86 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
         Some(&ss.run.events),
         &ReviewOptions {
             outputs: outputs.clone(),
+            period: Some(ss.period),
             ..ReviewOptions::default()
         },
     )?;
     write_svg(&fig, dir.join("figure.svg"))?;
 
+    print_orbit(&stem, &ss, &outputs, &measurements);
+    print!("{}", losses.text);
+    println!(
+        "  written: {}/{{waveform.csv, events.json, summary.json, figure.svg{}}}",
+        dir.display(),
+        if losses.chart.is_some() {
+            ", losses.svg"
+        } else {
+            ""
+        }
+    );
+    // A violated timing rule or a failed energy balance exits 1 once every
+    // file is written.
+    match (violated, losses.failed) {
+        (Some(e), _) => Err(anyhow::Error::new(e)),
+        (None, Some(f)) => Err(anyhow::Error::new(f)),
+        (None, None) => Ok(()),
+    }
+}
+
+/// The outputs to write: those of the command line, else the file's, else
+/// the default ones.
+fn output_names(args: &Args, circuit: &Circuit) -> Vec<String> {
+    let mut outputs: Vec<String> = if args.outputs.is_empty() {
+        circuit
+            .run
+            .as_ref()
+            .map(|c| c.outputs.clone())
+            .unwrap_or_default()
+    } else {
+        args.outputs.clone()
+    };
+    if outputs.is_empty() {
+        outputs = crate::run::default_outputs(circuit);
+    }
+    outputs
+}
+
+/// The file's timing rules over the recorded orbit (two periods): the
+/// `timing` entry of the summary and the error of a violated rule. Rules
+/// with a time window concern the transient (start-up, a load step) and
+/// are left to `fluxstep run`.
+fn timing(
+    circuit: &Circuit,
+    ss: &SteadyState,
+) -> anyhow::Result<Option<(serde_json::Value, Option<TimingFailed>)>> {
+    let rules: Vec<_> = circuit
+        .run
+        .as_ref()
+        .map(|r| {
+            r.timing
+                .iter()
+                .filter(|t| t.from.is_none() && t.to.is_none())
+                .cloned()
+                .collect()
+        })
+        .unwrap_or_default();
+    Ok(if rules.is_empty() {
+        None
+    } else {
+        Some(crate::compare::timing_summary(
+            &fluxstep_analysis::timing::check(
+                &rules,
+                &ss.run.events,
+                Some(&ss.run.waveform),
+                Some(ss.period),
+            )?,
+        ))
+    })
+}
+
+/// Prints the orbit: period, state at period start, the measurements,
+/// stability and the Floquet multipliers.
+fn print_orbit(stem: &str, ss: &SteadyState, outputs: &[String], measurements: &[Measurement]) {
     println!(
         "{stem}: periodic steady state, period {} ({}), found in {} Newton steps, residual {:.1e}",
         format_si_short(ss.period, "s"),
@@ -249,7 +291,7 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
         };
         println!("    {n:<24} {:>12}", si(shown, unit));
     }
-    print!("{}", measurement_rows(&outputs, &measurements, "period"));
+    print!("{}", measurement_rows(outputs, measurements, "period"));
     println!(
         "  stability: {}",
         if ss.is_stable() { "stable" } else { "UNSTABLE" }
@@ -270,23 +312,6 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
             m.magnitude,
             words(m.reading)
         );
-    }
-    print!("{}", losses.text);
-    println!(
-        "  written: {}/{{waveform.csv, events.json, summary.json, figure.svg{}}}",
-        dir.display(),
-        if losses.chart.is_some() {
-            ", losses.svg"
-        } else {
-            ""
-        }
-    );
-    // A violated timing rule or a failed energy balance exits 1 once every
-    // file is written.
-    match (violated, losses.failed) {
-        (Some(e), _) => Err(anyhow::Error::new(e)),
-        (None, Some(f)) => Err(anyhow::Error::new(f)),
-        (None, None) => Ok(()),
     }
 }
 

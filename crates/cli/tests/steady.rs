@@ -113,3 +113,36 @@ fn steady_checks_the_files_timing_rules() {
         }
     }
 }
+
+/// The figure of `steady` takes the steady state's own period, so an
+/// inductor current carries the one-period ripple bracket (docs/outputs.md)
+/// with the same peak-to-peak value as summary.json's measurement (common
+/// practice: in steady state every period has the same ripple).
+#[test]
+fn steady_figure_brackets_the_ripple_of_one_period() {
+    let dir = scratch_dir("steady-buck-ripple");
+    let out = fluxstep(&[
+        "steady",
+        &example("buck.json"),
+        "--dir",
+        dir.to_str().unwrap(),
+    ]);
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let summary: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("summary.json")).unwrap()).unwrap();
+    let ripple = summary["measurements"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|m| m["output"] == "L1.current")
+        .and_then(|m| m["peak_to_peak"].as_f64())
+        .expect("L1.current is measured");
+    let label = format!("{} p-p", fluxstep_plot::format_si(ripple, "A"));
+    let svg = std::fs::read_to_string(dir.join("figure.svg")).unwrap();
+    assert!(svg.contains(&label), "no {label:?} in the figure");
+}

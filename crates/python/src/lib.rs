@@ -25,6 +25,8 @@ mod circuit;
 mod convert;
 mod errors;
 mod run;
+mod simulate;
+mod sweep;
 
 use pyo3::prelude::*;
 
@@ -35,8 +37,8 @@ fn _fluxstep(m: &Bound<'_, PyModule>) -> PyResult<()> {
     m.add_class::<circuit::PyBuilder>()?;
     m.add_function(wrap_pyfunction!(circuit::load, m)?)?;
     m.add_class::<run::PyRun>()?;
-    m.add_function(wrap_pyfunction!(run::simulate, m)?)?;
-    m.add_function(wrap_pyfunction!(run::plain_run_seconds, m)?)?;
+    m.add_function(wrap_pyfunction!(simulate::simulate, m)?)?;
+    m.add_function(wrap_pyfunction!(simulate::plain_run_seconds, m)?)?;
     m.add_class::<analysis::PySteadyOptions>()?;
     m.add_class::<analysis::PySteady>()?;
     m.add_function(wrap_pyfunction!(analysis::steady_find, m)?)?;
@@ -46,8 +48,8 @@ fn _fluxstep(m: &Bound<'_, PyModule>) -> PyResult<()> {
     m.add_function(wrap_pyfunction!(analysis::frequency_response, m)?)?;
     m.add_function(wrap_pyfunction!(analysis::loop_gain, m)?)?;
     m.add_function(wrap_pyfunction!(analysis::log_frequencies, m)?)?;
-    m.add_class::<analysis::PySweep>()?;
-    m.add_class::<analysis::PyTable>()?;
+    m.add_class::<sweep::PySweep>()?;
+    m.add_class::<sweep::PyTable>()?;
     m.add("__version__", env!("CARGO_PKG_VERSION"))?;
     Ok(())
 }

@@ -135,20 +135,7 @@ pub(crate) fn gather(c: &Circuit, opts: &ReportOptions) -> Result<Facts, ReportE
         record_periods: 2,
         ..SteadyOptions::default()
     };
-    let basis = match find(c, &steady_opts) {
-        Ok(ss) => Basis::Steady(Box::new(ss)),
-        Err(e) => {
-            let why = e.to_string();
-            let (run, stopped) = transient(c, period).map_err(|t| {
-                ReportError::Nothing(format!("no periodic steady state ({why}); {t}"))
-            })?;
-            Basis::Transient {
-                run: Box::new(run),
-                why,
-                stopped,
-            }
-        }
-    };
+    let basis = basis(c, period, &steady_opts)?;
     let (window, events) = match &basis {
         Basis::Steady(ss) => ((ss.start_time, ss.end_time()), &ss.run.events),
         Basis::Transient { run, why, .. } => (
@@ -175,6 +162,93 @@ pub(crate) fn gather(c: &Circuit, opts: &ReportOptions) -> Result<Facts, ReportE
         .filter(|o| w.output(o).is_ok())
         .collect();
     let measurements = outputs.iter().filter_map(|o| m(o)).collect();
+    let (inductors, stress, junction_parts) = parts(c, &m);
+    let ripple_node = c
+        .run
+        .as_ref()
+        .and_then(|r| r.limits.as_ref())
+        .map(|l| l.ripple_output().to_string())
+        .unwrap_or_else(|| "out".into());
+    let ripple = m(&ripple_node);
+    let zoom = zoom(events, a, b, period);
+    let loads = loads(c);
+    let loss_data = has_loss_data(c, &loads);
+    let losses = breakdown(
+        c,
+        w,
+        events,
+        a,
+        b,
+        &LossOptions {
+            loads: loads.clone(),
+        },
+    )
+    .map_err(|e| e.to_string());
+    let start = match &basis {
+        Basis::Steady(_) => ThermalStart::Periodic,
+        Basis::Transient { .. } => ThermalStart::Ambient,
+    };
+    let junctions = junction_parts
+        .iter()
+        .map(|p| {
+            junction_temperature_of(c, w, events, p, a, b, start).map_err(|e| format!("{p}: {e}"))
+        })
+        .collect();
+    let loops = loops(c, opts, period)?;
+    let (sweep, sweep_plots) = sweep(opts);
+    Ok(Facts {
+        window,
+        period,
+        outputs,
+        measurements,
+        inductors,
+        stress,
+        ripple,
+        zoom,
+        losses,
+        loss_data,
+        loads,
+        junctions,
+        loops,
+        sweep,
+        sweep_plots,
+        basis,
+    })
+}
+
+/// The basis of the page: the periodic steady state, or where there is
+/// none, the transient of the file's run settings.
+fn basis(
+    c: &Circuit,
+    period: Option<f64>,
+    steady_opts: &SteadyOptions,
+) -> Result<Basis, ReportError> {
+    Ok(match find(c, steady_opts) {
+        Ok(ss) => Basis::Steady(Box::new(ss)),
+        Err(e) => {
+            let why = e.to_string();
+            let (run, stopped) = transient(c, period).map_err(|t| {
+                ReportError::Nothing(format!("no periodic steady state ({why}); {t}"))
+            })?;
+            Basis::Transient {
+                run: Box::new(run),
+                why,
+                stopped,
+            }
+        }
+    })
+}
+
+/// A switch, diode or body diode: its name and the measurements of its
+/// current and voltage.
+type Stress = (String, Option<Measurement>, Option<Measurement>);
+
+/// The measured inductor currents, the stress on each switch, body diode
+/// and diode, and the parts with a thermal network.
+fn parts(
+    c: &Circuit,
+    m: &dyn Fn(&str) -> Option<Measurement>,
+) -> (Vec<(String, Measurement)>, Vec<Stress>, Vec<String>) {
     let mut inductors = vec![];
     let mut stress = vec![];
     let mut junction_parts = vec![];
@@ -216,13 +290,11 @@ pub(crate) fn gather(c: &Circuit, opts: &ReportOptions) -> Result<Facts, ReportE
             _ => {}
         }
     }
-    let ripple_node = c
-        .run
-        .as_ref()
-        .and_then(|r| r.limits.as_ref())
-        .map(|l| l.ripple_output().to_string())
-        .unwrap_or_else(|| "out".into());
-    let ripple = m(&ripple_node);
+    (inductors, stress, junction_parts)
+}
+
+/// The instants to zoom on in the waveform figure.
+fn zoom(events: &fluxstep_solver::EventLog, a: f64, b: f64, period: Option<f64>) -> Vec<f64> {
     // Zoom on the first turn-off of a switch and of a diode in the window:
     // the dead time or the commutation a reviewer looks at closely.
     let mut zoom: Vec<f64> = vec![];
@@ -237,29 +309,11 @@ pub(crate) fn gather(c: &Circuit, opts: &ReportOptions) -> Result<Facts, ReportE
             }
         }
     }
-    let loads = loads(c);
-    let loss_data = has_loss_data(c, &loads);
-    let losses = breakdown(
-        c,
-        w,
-        events,
-        a,
-        b,
-        &LossOptions {
-            loads: loads.clone(),
-        },
-    )
-    .map_err(|e| e.to_string());
-    let start = match &basis {
-        Basis::Steady(_) => ThermalStart::Periodic,
-        Basis::Transient { .. } => ThermalStart::Ambient,
-    };
-    let junctions = junction_parts
-        .iter()
-        .map(|p| {
-            junction_temperature_of(c, w, events, p, a, b, start).map_err(|e| format!("{p}: {e}"))
-        })
-        .collect();
+    zoom
+}
+
+/// The loop gains of the circuit.
+fn loops(c: &Circuit, opts: &ReportOptions, period: Option<f64>) -> Result<Vec<Loop>, ReportError> {
     // Loops: each compensator (broken at its input), and each closed-loop
     // gate whose sense is not a compensator's output.
     let mut points = vec![];
@@ -298,6 +352,11 @@ pub(crate) fn gather(c: &Circuit, opts: &ReportOptions) -> Result<Facts, ReportE
             loops.push(Loop { name, at, gain });
         }
     }
+    Ok(loops)
+}
+
+/// The sweep's summary and plots, when the options name a sweep file.
+fn sweep(opts: &ReportOptions) -> (Option<Result<Summary, String>>, Vec<fluxstep_plot::Figure>) {
     let mut sweep_plots = vec![];
     let sweep = opts.sweep.as_ref().map(|path| {
         let s = Sweep::from_file(path).map_err(|e| format!("{}: {e}", path.display()))?;
@@ -310,22 +369,5 @@ pub(crate) fn gather(c: &Circuit, opts: &ReportOptions) -> Result<Facts, ReportE
             .collect();
         Ok(Summary::of(&table))
     });
-    Ok(Facts {
-        window,
-        period,
-        outputs,
-        measurements,
-        inductors,
-        stress,
-        ripple,
-        zoom,
-        losses,
-        loss_data,
-        loads,
-        junctions,
-        loops,
-        sweep,
-        sweep_plots,
-        basis,
-    })
+    (sweep, sweep_plots)
 }

@@ -78,6 +78,7 @@ mod mode;
 mod options;
 mod propagate;
 mod run;
+mod states;
 #[cfg(test)]
 mod test_util;
 mod waveform;
@@ -97,4 +98,5 @@ pub use options::{
 pub use propagate::eigenvalues;
 pub use run::paths::Shortcuts;
 pub use run::{simulate, RunResult, SegmentSink, SegmentView, Simulator, Stats};
+pub use states::{state_counts, StateCounts};
 pub use waveform::{OutputId, Segment, Side, TransitionSpan, ValueError, Waveform};

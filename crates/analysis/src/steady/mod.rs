@@ -490,9 +490,43 @@ fn shoot(circuit: &Circuit, opts: &SteadyOptions) -> Result<SteadyState, Analysi
         n: first,
         free: free.clone(),
     };
+    let (x, history) = converge(&mut shooter, &free, opts, started)?;
+    let at = Boundaries {
+        base: cp.base,
+        multiple,
+        first,
+        t_start,
+        period,
+    };
+    recorded_orbit(circuit, opts, &at, x, free, history)
+}
+
+/// The period's boundaries the search and the recorded orbit share.
+struct Boundaries {
+    /// The common period of the circuit's signals.
+    base: f64,
+    /// Base periods per steady-state period.
+    multiple: u64,
+    /// The index of the first boundary of the search.
+    first: u64,
+    /// Its time.
+    t_start: f64,
+    /// The steady-state period.
+    period: f64,
+}
+
+/// Damped Newton on the period map from the shooter's present state, with
+/// bursts of plain periods where no step helps; returns the start of the
+/// periodic orbit and the history of the iterations.
+fn converge(
+    shooter: &mut Shooter<'_>,
+    free: &[usize],
+    opts: &SteadyOptions,
+    started: Instant,
+) -> Result<(Vec<f64>, Vec<Iteration>), AnalysisError> {
     let mut x = shooter.sim.state().to_vec();
     let mut p = shooter.period(&x)?;
-    let mut r = residual(&p, &free);
+    let mut r = residual(&p, free);
     let mut history = vec![Iteration {
         residual: r,
         damping: 0.0,
@@ -550,7 +584,7 @@ fn shoot(circuit: &Circuit, opts: &SteadyOptions) -> Result<SteadyState, Analysi
                 // own: a step that blows a state up (an integrator sent to
                 // 1e11) shrinks its own relative residual without being any
                 // nearer the orbit.
-                let r_try = residual(&p_try, &free).max(residual_on(&p_try, &p.scale, &free));
+                let r_try = residual(&p_try, free).max(residual_on(&p_try, &p.scale, free));
                 if r_try < r || r_try <= opts.tolerance {
                     x = x_try;
                     p = p_try;
@@ -574,7 +608,7 @@ fn shoot(circuit: &Circuit, opts: &SteadyOptions) -> Result<SteadyState, Analysi
                 trials += 1;
             }
             x = p.x_start.clone();
-            r = residual(&p, &free);
+            r = residual(&p, free);
             history.push(Iteration {
                 residual: r,
                 damping: 0.0,
@@ -590,6 +624,27 @@ fn shoot(circuit: &Circuit, opts: &SteadyOptions) -> Result<SteadyState, Analysi
             newton: is_newton,
         });
     }
+    Ok((x, history))
+}
+
+/// The recorded orbit from `x`, its monodromy matrix and Floquet
+/// multipliers; an orbit with a multiplier of 1 is one of a family and an
+/// error.
+fn recorded_orbit(
+    circuit: &Circuit,
+    opts: &SteadyOptions,
+    at: &Boundaries,
+    x: Vec<f64>,
+    free: Vec<usize>,
+    history: Vec<Iteration>,
+) -> Result<SteadyState, AnalysisError> {
+    let Boundaries {
+        base,
+        multiple,
+        first,
+        t_start,
+        period,
+    } = *at;
     // The recorded orbit: a fresh run from the first boundary, so its times
     // and bits do not depend on how many iterations it took.
     let record_end = t_start + opts.record_periods as f64 * period;
@@ -600,11 +655,11 @@ fn shoot(circuit: &Circuit, opts: &SteadyOptions) -> Result<SteadyState, Analysi
         },
         ..opts.solver.clone()
     };
-    let sim = Shooter::fresh(circuit, &options, cp.base, first)?;
+    let sim = Shooter::fresh(circuit, &options, base, first)?;
     let mut last = Shooter {
         circuit,
         options,
-        base: cp.base,
+        base,
         multiple,
         first,
         sim,
