@@ -24,7 +24,7 @@ use fluxstep_analysis::response::{
     frequency_response, log_frequencies, loop_gain, BreakPoint, Input,
 };
 use fluxstep_analysis::steady::{find, SteadyOptions, SteadyState};
-use fluxstep_netlist::{Circuit, Element, Waveform as Stimulus};
+use fluxstep_netlist::{Circuit, Element, Stimulus};
 use fluxstep_solver::{Options, Record, Simulator};
 
 fn example(name: &str) -> Circuit {

@@ -5,7 +5,7 @@
 //! Caution: real wiring spikes add to the supply voltage across a
 //! transistor; simulation does not replace measurement or qualified review.
 
-use fluxstep::netlist::{Circuit, Waveform};
+use fluxstep::netlist::{Circuit, Stimulus};
 use fluxstep::plot::{review_figure, write_svg, ReviewOptions};
 use fluxstep::solver::{simulate, Options};
 
@@ -17,7 +17,7 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
             "Iload",
             "gnd",
             "a",
-            Waveform::pwl(&[(0.0, 10.0), (100e-9, 10.0), (110e-9, 0.0)]),
+            Stimulus::pwl(&[(0.0, 10.0), (100e-9, 10.0), (110e-9, 0.0)]),
         )
         .inductor_with_current("Lwire", "a", "gnd", 10e-9, 10.0)
         .build()?;

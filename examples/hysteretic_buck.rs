@@ -19,7 +19,7 @@
 
 use std::error::Error;
 
-use fluxstep::netlist::{Circuit, Gate, Transition, Waveform as Source};
+use fluxstep::netlist::{Circuit, Gate, Stimulus as Source, Transition};
 use fluxstep::plot::{review_figure, write_svg, ReviewOptions};
 use fluxstep::solver::measure::{measure, settling_time};
 use fluxstep::solver::{simulate, EventKind, Options, RunResult};

@@ -20,7 +20,7 @@
 
 use fluxstep::analysis::losses::{breakdown, LossKind, LossOptions};
 use fluxstep::netlist::{
-    Circuit, DiodeModel, Element, Switch, SwitchTransition, TransitionRates, Waveform,
+    Circuit, DiodeModel, Element, Stimulus, Switch, SwitchTransition, TransitionRates,
 };
 use fluxstep::plot::{review_figure, write_svg, ReviewOptions};
 use fluxstep::solver::{simulate, Options};
@@ -49,7 +49,7 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
     };
     let c = Circuit::builder()
         .voltage_source("Vbus", "bus", "gnd", bus)
-        .current_source("Iload", "bus", "sw", Waveform::Constant { value: load })
+        .current_source("Iload", "bus", "sw", Stimulus::Constant { value: load })
         .diode_model(
             "D1",
             "sw",

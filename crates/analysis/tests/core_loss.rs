@@ -7,7 +7,7 @@
 
 use fluxstep_analysis::losses::core::{core_loss, igse_ki};
 use fluxstep_analysis::losses::{breakdown, LossKind, LossOptions};
-use fluxstep_netlist::{Circuit, CoreModel, Element, Waveform};
+use fluxstep_netlist::{Circuit, CoreModel, Element, Stimulus};
 use fluxstep_solver::{simulate, Options};
 
 fn core(alpha: f64, beta: f64) -> CoreModel {
@@ -35,7 +35,7 @@ fn sinusoidal_flux_gives_the_steinmetz_equation() {
                 "V1",
                 "a",
                 "gnd",
-                Waveform::Sine {
+                Stimulus::Sine {
                     offset: 0.0,
                     amplitude: v,
                     frequency: f,

@@ -299,7 +299,7 @@ mod switching {
     };
     use fluxstep_analysis::losses::{breakdown, LossKind, LossOptions};
     use fluxstep_analysis::AnalysisError;
-    use fluxstep_netlist::{Circuit, Element, Waveform};
+    use fluxstep_netlist::{Circuit, Element, Stimulus};
     use fluxstep_solver::{simulate, Options};
 
     /// A constant-current chopper: 100 V, an ideal switch, a 10 A current
@@ -309,7 +309,7 @@ mod switching {
             .voltage_source("Vin", "in", "gnd", 100.0)
             .switch("S1", "in", "sw", "g")
             .diode("D1", "gnd", "sw")
-            .current_source("Iload", "sw", "gnd", Waveform::Constant { value: 10.0 })
+            .current_source("Iload", "sw", "gnd", Stimulus::Constant { value: 10.0 })
             .pwm("g", 100e3, 0.4)
             .build()
             .unwrap()
@@ -373,7 +373,7 @@ mod switching {
         assert!((s.turn_on - 3.0 * e).abs() < 1e-12 * e, "{s:?}");
         let mut high = chopper();
         if let Element::VoltageSource(v) = &mut high.elements[0] {
-            v.waveform = Waveform::Constant { value: 200.0 };
+            v.waveform = Stimulus::Constant { value: 200.0 };
         }
         let run = simulate(&high, 40e-6, Options::default()).unwrap();
         let s = switching_loss("S1", &m, &run.waveform, &run.events, 10e-6, 40e-6).unwrap();
@@ -488,7 +488,7 @@ mod switching {
 /// A constant-current chopper (100 V bus, 10 A load, 100 kHz, clamp diode)
 /// whose switch has the finite transition model, as `transition: Some(..)`.
 fn chopper_with_transitions() -> (Circuit, (f64, f64), (f64, f64)) {
-    use fluxstep_netlist::{SwitchTransition, TransitionRates, Waveform};
+    use fluxstep_netlist::{Stimulus, SwitchTransition, TransitionRates};
     let off = (100.0 / 20e-9, 10.0 / 10e-9);
     let on = (100.0 / 25e-9, 10.0 / 15e-9);
     let mut s = match switch("S1", "sw", "gnd", "g", 0.05, None) {
@@ -507,7 +507,7 @@ fn chopper_with_transitions() -> (Circuit, (f64, f64), (f64, f64)) {
     });
     let c = Circuit::builder()
         .voltage_source("V1", "in", "gnd", 100.0)
-        .current_source("I1", "in", "sw", Waveform::Constant { value: 10.0 })
+        .current_source("I1", "in", "sw", Stimulus::Constant { value: 10.0 })
         .diode("D1", "sw", "in")
         .element(Element::Switch(s))
         .pwm("g", 100e3, 0.5)

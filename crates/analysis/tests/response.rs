@@ -11,8 +11,7 @@ use fluxstep_analysis::response::{
 use fluxstep_analysis::steady::{find, SteadyOptions, SteadyState};
 use fluxstep_analysis::AnalysisError;
 use fluxstep_netlist::{
-    Circuit, CurrentSource, Element, Gate, Resistor, Transition, VoltageSource,
-    Waveform as Stimulus,
+    Circuit, CurrentSource, Element, Gate, Resistor, Stimulus, Transition, VoltageSource,
 };
 use fluxstep_solver::{Options, Record, Simulator};
 

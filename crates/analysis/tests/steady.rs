@@ -8,7 +8,7 @@ use nalgebra::{DMatrix, DVector};
 
 use fluxstep_analysis::steady::{find, Reading, SteadyOptions, SteadyState};
 use fluxstep_analysis::AnalysisError;
-use fluxstep_netlist::{Circuit, Waveform as Stimulus};
+use fluxstep_netlist::{Circuit, Stimulus};
 use fluxstep_solver::measure::measure;
 use fluxstep_solver::{EventKind, Options, Record, Simulator};
 

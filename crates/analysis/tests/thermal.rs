@@ -166,13 +166,13 @@ fn an_element_without_a_network_is_named() {
 #[test]
 fn switching_pulses_heat_the_junction_exactly() {
     use fluxstep_analysis::losses::thermal::junction_temperature_of;
-    use fluxstep_netlist::{EnergyTable, SwitchingEnergy, Waveform};
+    use fluxstep_netlist::{EnergyTable, Stimulus, SwitchingEnergy};
     let (r, tau, t, d) = (2.0, 3e-6, 10e-6, 0.4);
     let mut c = Circuit::builder()
         .voltage_source("Vin", "in", "gnd", 100.0)
         .switch("S1", "in", "sw", "g")
         .diode("D1", "gnd", "sw")
-        .current_source("Iload", "sw", "gnd", Waveform::Constant { value: 10.0 })
+        .current_source("Iload", "sw", "gnd", Stimulus::Constant { value: 10.0 })
         .pwm("g", 1.0 / t, d)
         .build()
         .unwrap();

@@ -3,7 +3,7 @@
 //! twice gives the same bits). The scaling laws and the energy balance are
 //! checked elsewhere.
 
-use fluxstep_netlist::{Circuit, Waveform};
+use fluxstep_netlist::{Circuit, Stimulus};
 use fluxstep_solver::{Options, Record, Simulator, SolverError};
 use proptest::prelude::*;
 
@@ -46,7 +46,7 @@ fn circuit() -> impl Strategy<Value = Circuit> {
         .prop_map(|(current_source, amplitude, (f_exp, duty), parts)| {
             let mut b = Circuit::builder();
             b = if current_source {
-                b.current_source("I1", "gnd", "in", Waveform::Constant { value: amplitude })
+                b.current_source("I1", "gnd", "in", Stimulus::Constant { value: amplitude })
                     .resistor("Rs", "in", "gnd", 10.0)
             } else {
                 b.voltage_source("V1", "in", "gnd", amplitude)

@@ -5,7 +5,7 @@ use crate::circuit::{Circuit, RunSettings};
 use crate::element::*;
 use crate::error::NetlistError;
 use crate::gate::{Gate, Transition};
-use crate::waveform::Waveform;
+use crate::stimulus::Stimulus;
 
 impl Circuit {
     /// Starts a builder.
@@ -132,11 +132,11 @@ impl CircuitBuilder {
 
     /// Adds a constant voltage source, `plus` − `minus` = `volts`.
     pub fn voltage_source(self, name: &str, plus: &str, minus: &str, volts: f64) -> Self {
-        self.voltage_waveform(name, plus, minus, Waveform::constant(volts))
+        self.voltage_waveform(name, plus, minus, Stimulus::constant(volts))
     }
 
     /// Adds a voltage source following `waveform`.
-    pub fn voltage_waveform(self, name: &str, plus: &str, minus: &str, waveform: Waveform) -> Self {
+    pub fn voltage_waveform(self, name: &str, plus: &str, minus: &str, waveform: Stimulus) -> Self {
         self.element(Element::VoltageSource(VoltageSource {
             name: name.into(),
             nodes: nodes(plus, minus),
@@ -145,7 +145,7 @@ impl CircuitBuilder {
     }
 
     /// Adds a current source pushing `waveform` from `from` through itself to `to`.
-    pub fn current_source(self, name: &str, from: &str, to: &str, waveform: Waveform) -> Self {
+    pub fn current_source(self, name: &str, from: &str, to: &str, waveform: Stimulus) -> Self {
         self.element(Element::CurrentSource(CurrentSource {
             name: name.into(),
             nodes: nodes(from, to),

@@ -8,8 +8,8 @@ use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 
 use crate::loss_data::{CoreModel, SwitchingEnergy};
+use crate::stimulus::Stimulus;
 use crate::value::{self, SiValue};
-use crate::waveform::Waveform;
 
 /// One element of a circuit, tagged by `kind` in JSON.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
@@ -239,7 +239,7 @@ pub struct VoltageSource {
     /// Terminals `[plus, minus]`.
     pub nodes: [String; 2],
     /// The source voltage over time.
-    pub waveform: Waveform,
+    pub waveform: Stimulus,
 }
 
 /// An independent current source: waveform(t) flows from the first terminal
@@ -253,7 +253,7 @@ pub struct CurrentSource {
     /// Terminals `[from, to]`.
     pub nodes: [String; 2],
     /// The source current over time.
-    pub waveform: Waveform,
+    pub waveform: Stimulus,
 }
 
 /// A piecewise-linear diode model: blocks when v < Vf, conducts with

@@ -14,7 +14,7 @@
 //!   reads like a schematic.
 //! - [`Element`]: resistor, inductor, capacitor, coupled inductors, ideal
 //!   transformer, voltage and current sources, switch, diode.
-//! - [`Waveform`]: constant, piecewise-linear and sine sources.
+//! - [`Stimulus`]: constant, piecewise-linear and sine sources.
 //! - [`Gate`] and [`SignalShape`]: PWM, complementary PWM with dead time,
 //!   explicit transitions; exact edge times.
 //! - [`TimingRule`] and [`TimingCheck`]: timing rules of the run settings
@@ -61,10 +61,10 @@ mod json;
 mod limits;
 mod loss_data;
 mod resolution;
+mod stimulus;
 mod timing;
 mod validate;
 mod value;
-mod waveform;
 
 pub use builder::CircuitBuilder;
 pub use circuit::{
@@ -77,9 +77,9 @@ pub use gate::{ComparatorSpec, Comparison, Edge, Gate, SignalShape, Transition};
 pub use limits::{DesignLimits, PartLimit};
 pub use loss_data::{CoreModel, EnergyCurve, EnergyPoint, EnergyTable, SwitchingEnergy};
 pub use resolution::{MAX_DIODES, MAX_SWITCHES, MIN_DURATION_RATIO};
+pub use stimulus::{LinearPiece, Point, Stimulus};
 pub use timing::{EdgeSense, TimingCheck, TimingRule};
 pub use value::{parse_si, ValueError, PREFIXES};
-pub use waveform::{LinearPiece, Point, Waveform};
 
 /// Serde helpers for SI values, for crates that embed SI fields of their own.
 pub mod si {

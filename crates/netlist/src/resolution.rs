@@ -6,7 +6,7 @@ use crate::circuit::Circuit;
 use crate::element::Element;
 use crate::error::Problem;
 use crate::gate::Gate;
-use crate::waveform::Waveform;
+use crate::stimulus::Stimulus;
 
 /// The smallest duration, as a fraction of the run's stop time, that the
 /// checks of [`Circuit::time_resolution_problems`] accept: 2⁻⁴⁰ ≈ 9.1e-13.
@@ -140,7 +140,7 @@ impl Circuit {
                 _ => continue,
             };
             match waveform {
-                Waveform::PiecewiseLinear { points, period } => {
+                Stimulus::PiecewiseLinear { points, period } => {
                     if let Some(p) = period {
                         check(name, "waveform.period", "the period", *p);
                     }
@@ -153,7 +153,7 @@ impl Circuit {
                         );
                     }
                 }
-                Waveform::Sine { frequency, .. } => {
+                Stimulus::Sine { frequency, .. } => {
                     check(name, "waveform.frequency", "the period", 1.0 / frequency);
                 }
                 _ => {}

@@ -39,9 +39,9 @@ fn nodes() -> impl Strategy<Value = [String; 2]> {
     (node(), node()).prop_map(|(a, b)| [a, b])
 }
 
-fn waveform() -> impl Strategy<Value = Waveform> {
+fn waveform() -> impl Strategy<Value = Stimulus> {
     prop_oneof![
-        value().prop_map(Waveform::constant),
+        value().prop_map(Stimulus::constant),
         (
             vec(
                 (value(), value()).prop_map(|(time, value)| Point { time, value }),
@@ -49,8 +49,8 @@ fn waveform() -> impl Strategy<Value = Waveform> {
             ),
             option::of(value())
         )
-            .prop_map(|(points, period)| Waveform::PiecewiseLinear { points, period }),
-        (value(), value(), value(), value()).prop_map(|(o, a, f, p)| Waveform::sine(o, a, f, p)),
+            .prop_map(|(points, period)| Stimulus::PiecewiseLinear { points, period }),
+        (value(), value(), value(), value()).prop_map(|(o, a, f, p)| Stimulus::sine(o, a, f, p)),
     ]
 }
 

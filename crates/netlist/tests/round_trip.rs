@@ -49,12 +49,12 @@ pub fn every_kind() -> Circuit {
     ];
     Circuit::builder()
         .description("every element kind, for the round trip")
-        .voltage_waveform("Vin", "in", "gnd", Waveform::pwl(&points))
+        .voltage_waveform("Vin", "in", "gnd", Stimulus::pwl(&points))
         .current_source(
             "I1",
             "gnd",
             "out",
-            Waveform::sine(1.0 / 3.0, 0.5, 50.0, -std::f64::consts::FRAC_PI_2),
+            Stimulus::sine(1.0 / 3.0, 0.5, 50.0, -std::f64::consts::FRAC_PI_2),
         )
         .element(Element::CoupledInductors(CoupledInductors {
             name: "T1".into(),
@@ -142,7 +142,7 @@ fn awkward_values_keep_their_bits() {
     let Element::VoltageSource(v) = &back.elements[0] else {
         panic!("Vin first")
     };
-    let Waveform::PiecewiseLinear { points, .. } = &v.waveform else {
+    let Stimulus::PiecewiseLinear { points, .. } = &v.waveform else {
         panic!("a pwl source")
     };
     for (p, expected) in points.iter().zip(AWKWARD) {

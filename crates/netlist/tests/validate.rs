@@ -63,8 +63,8 @@ fn transformer(primary: [&str; 2], secondary: [&str; 2], n: f64) -> Element {
     })
 }
 
-fn pwl(points: &[(f64, f64)], period: Option<f64>) -> Waveform {
-    Waveform::PiecewiseLinear {
+fn pwl(points: &[(f64, f64)], period: Option<f64>) -> Stimulus {
+    Stimulus::PiecewiseLinear {
         points: points
             .iter()
             .map(|&(time, value)| Point { time, value })
@@ -164,7 +164,7 @@ fn valid_circuits_have_no_problems() {
     // current sources, which the solver handles: not a current-source cut.
     valid(
         &buck()
-            .current_source("I1", "gnd", "x", Waveform::constant(1.0))
+            .current_source("I1", "gnd", "x", Stimulus::constant(1.0))
             .inductor("L2", "x", "out", 1e-6)
             .build_unchecked(),
     );
@@ -443,8 +443,8 @@ fn loop_of_voltage_sources() {
 fn cut_of_current_sources() {
     // One node fed and drained only by current sources.
     let c = buck()
-        .current_source("I1", "gnd", "x", Waveform::constant(1.0))
-        .current_source("I2", "x", "out", Waveform::constant(1.0))
+        .current_source("I1", "gnd", "x", Stimulus::constant(1.0))
+        .current_source("I2", "x", "out", Stimulus::constant(1.0))
         .build_unchecked();
     let p = expect(
         &c,
@@ -455,7 +455,7 @@ fn cut_of_current_sources() {
     assert_eq!(p.node.as_deref(), Some("x"));
     // A set of nodes joined to the rest only through one current source.
     let c = buck()
-        .current_source("I1", "out", "a", Waveform::constant(1.0))
+        .current_source("I1", "out", "a", Stimulus::constant(1.0))
         .resistor("R2", "a", "b", 1.0)
         .capacitor("C2", "a", "b", 1e-6)
         .build_unchecked();
@@ -481,7 +481,7 @@ fn non_finite_values() {
         .build_unchecked();
     expect(&c, Some("C2"), Some("initial_voltage"), "finite");
     let c = buck()
-        .voltage_waveform("V2", "x", "gnd", Waveform::constant(f64::NAN))
+        .voltage_waveform("V2", "x", "gnd", Stimulus::constant(f64::NAN))
         .resistor("R2", "x", "gnd", 1.0)
         .build_unchecked();
     expect(&c, Some("V2"), Some("waveform.value"), "finite");
@@ -523,7 +523,7 @@ fn values_that_must_be_positive() {
         ),
         (
             buck()
-                .voltage_waveform("V2", "x", "gnd", Waveform::sine(0.0, 1.0, 0.0, 0.0))
+                .voltage_waveform("V2", "x", "gnd", Stimulus::sine(0.0, 1.0, 0.0, 0.0))
                 .resistor("R2", "x", "gnd", 1.0)
                 .build_unchecked(),
             "V2",
@@ -531,7 +531,7 @@ fn values_that_must_be_positive() {
         ),
         (
             buck()
-                .voltage_waveform("V2", "x", "gnd", Waveform::sine(0.0, 1.0, -50.0, 0.0))
+                .voltage_waveform("V2", "x", "gnd", Stimulus::sine(0.0, 1.0, -50.0, 0.0))
                 .resistor("R2", "x", "gnd", 1.0)
                 .build_unchecked(),
             "V2",
@@ -861,7 +861,7 @@ fn coupling_of_a_winding_with_itself_or_twice() {
 
 // ----- waveforms -----------------------------------------------------------
 
-fn with_source(w: Waveform) -> Circuit {
+fn with_source(w: Stimulus) -> Circuit {
     buck()
         .voltage_waveform("V2", "x", "gnd", w)
         .resistor("R2", "x", "gnd", 1.0)
@@ -1288,7 +1288,7 @@ fn issue_19_a_frequency_whose_period_is_infinite_is_refused() {
         text,
     );
     let c = buck()
-        .voltage_waveform("V2", "x", "gnd", Waveform::sine(0.0, 1.0, f, 0.0))
+        .voltage_waveform("V2", "x", "gnd", Stimulus::sine(0.0, 1.0, f, 0.0))
         .resistor("R2", "x", "gnd", 1.0)
         .build_unchecked();
     expect(&c, Some("V2"), Some("waveform.frequency"), text);

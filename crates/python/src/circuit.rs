@@ -3,7 +3,7 @@
 
 use std::path::PathBuf;
 
-use fluxstep_netlist::{Circuit, CircuitBuilder, DiodeModel, Element, Gate, Waveform};
+use fluxstep_netlist::{Circuit, CircuitBuilder, DiodeModel, Element, Gate, Stimulus};
 use pyo3::exceptions::PyTypeError;
 use pyo3::prelude::*;
 use pyo3::types::{PyDict, PyString};
@@ -177,9 +177,9 @@ fn part<T: serde::de::DeserializeOwned>(obj: &Bound<'_, PyAny>, what: &str) -> P
 
 /// A source waveform: a number is a constant value; otherwise a dict in the
 /// circuit format (``{"kind": "sine", ...}``).
-fn waveform(obj: &Bound<'_, PyAny>) -> PyResult<Waveform> {
+fn waveform(obj: &Bound<'_, PyAny>) -> PyResult<Stimulus> {
     if let Ok(v) = obj.extract::<f64>() {
-        return Ok(Waveform::constant(v));
+        return Ok(Stimulus::constant(v));
     }
     part(obj, "waveform")
 }

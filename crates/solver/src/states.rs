@@ -66,7 +66,7 @@ pub fn state_counts(circuit: &Circuit) -> Result<StateCounts, SolverError> {
 
 #[cfg(test)]
 mod tests {
-    use fluxstep_netlist::Waveform;
+    use fluxstep_netlist::Stimulus;
 
     use super::*;
 
@@ -98,7 +98,7 @@ mod tests {
         assert_eq!(s.total(), Compiled::compile(&buck).unwrap().n_x);
 
         let sine = Circuit::builder()
-            .voltage_waveform("V1", "a", "gnd", Waveform::sine(0.0, 1.0, 50.0, 0.0))
+            .voltage_waveform("V1", "a", "gnd", Stimulus::sine(0.0, 1.0, 50.0, 0.0))
             .resistor("R1", "a", "b", 1.0)
             .capacitor("C1", "b", "gnd", 1e-6)
             .build()

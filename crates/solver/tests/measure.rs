@@ -1,7 +1,7 @@
 //! Measurements on the exact solution checked against closed forms and
 //! against an independent search on `Waveform::value`.
 
-use fluxstep_netlist::{Circuit, Waveform as Source};
+use fluxstep_netlist::{Circuit, Stimulus as Source};
 use fluxstep_solver::measure::{
     element_energy, element_power, measure, measure_last_periods, MeasureError, Measurement,
 };

@@ -45,7 +45,7 @@ mod margins;
 use nalgebra::Complex;
 use serde::Serialize;
 
-use fluxstep_netlist::{Circuit, CurrentSource, Element, Gate, Waveform as Stimulus};
+use fluxstep_netlist::{Circuit, CurrentSource, Element, Gate, Stimulus};
 
 use crate::steady::{find, SteadyOptions, SteadyState};
 use crate::AnalysisError;

@@ -2,7 +2,7 @@
 //! periodic gates, clocked comparator gates and periodic sources, and the
 //! time from which everything repeats.
 
-use fluxstep_netlist::{Circuit, Element, Waveform as Stimulus};
+use fluxstep_netlist::{Circuit, Element, Stimulus};
 
 use crate::AnalysisError;
 

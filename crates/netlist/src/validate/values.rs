@@ -7,7 +7,7 @@ use std::collections::HashMap;
 use super::checker::{num, quoted, Checker};
 use crate::element::*;
 use crate::loss_data::CoreModel;
-use crate::waveform::Waveform;
+use crate::stimulus::Stimulus;
 
 impl Checker<'_> {
     /// The values of element `i`, as its kind requires.
@@ -240,12 +240,12 @@ impl Checker<'_> {
 
     /// A source waveform: finite values, increasing times within the
     /// period, a usable frequency.
-    fn waveform(&mut self, l: &str, w: &Waveform) {
+    fn waveform(&mut self, l: &str, w: &Stimulus) {
         match w {
-            Waveform::Constant { value } => {
+            Stimulus::Constant { value } => {
                 self.finite(l, "waveform.value", *value);
             }
-            Waveform::PiecewiseLinear { points, period } => {
+            Stimulus::PiecewiseLinear { points, period } => {
                 if points.is_empty() {
                     self.field(
                         l,
@@ -282,7 +282,7 @@ impl Checker<'_> {
                     }
                 }
             }
-            Waveform::Sine {
+            Stimulus::Sine {
                 offset,
                 amplitude,
                 frequency,

@@ -7,7 +7,7 @@
 
 use nalgebra::DMatrix;
 
-use fluxstep_netlist::{Circuit, ComparatorSpec, Element, SignalShape, Waveform};
+use fluxstep_netlist::{Circuit, ComparatorSpec, Element, SignalShape, Stimulus};
 
 use super::compensator::realise;
 use super::{CompiledComparison, SourceRef};
@@ -21,7 +21,7 @@ pub(super) struct StateLayout {
     /// Scale of each state for norms (√L for currents, √C for voltages, 1 else).
     pub x_scale: Vec<f64>,
     /// The circuit's independent sources, in element order (name, waveform).
-    pub sources: Vec<(String, Waveform)>,
+    pub sources: Vec<(String, Stimulus)>,
     /// z index of the first sine oscillator's states.
     pub osc_start: usize,
     /// The compensators' realisations, in circuit order.
@@ -52,7 +52,7 @@ pub(super) struct Inputs {
 impl Inputs {
     /// Adds an input `u_k` driven by `waveform` and a source entry reading
     /// it; returns the input's z index and the source entry's index.
-    fn push_input(&mut self, name: String, waveform: Waveform, internal: bool) -> (usize, usize) {
+    fn push_input(&mut self, name: String, waveform: Stimulus, internal: bool) -> (usize, usize) {
         let z = self.n_x + self.n_u;
         self.sources.push(SourceRef {
             name,
@@ -108,7 +108,7 @@ pub(super) fn states(circuit: &Circuit) -> StateLayout {
     let mut names = vec![];
     let mut x0 = vec![];
     let mut x_scale = vec![];
-    let mut sources: Vec<(String, Waveform)> = vec![];
+    let mut sources: Vec<(String, Stimulus)> = vec![];
     for e in &circuit.elements {
         match e {
             Element::Inductor(l) => {
@@ -135,7 +135,7 @@ pub(super) fn states(circuit: &Circuit) -> StateLayout {
     }
     let osc_start = names.len();
     for (name, w) in &sources {
-        if let Waveform::Sine { phase, .. } = w {
+        if let Stimulus::Sine { phase, .. } = w {
             names.push(format!("{name}.oscillator_sin"));
             names.push(format!("{name}.oscillator_cos"));
             x0.push(phase.sin());
@@ -184,7 +184,7 @@ pub(super) fn circuit_sources(layout: &StateLayout) -> Inputs {
     let mut osc_next = layout.osc_start;
     for (name, w) in &layout.sources {
         match w {
-            Waveform::Sine {
+            Stimulus::Sine {
                 offset,
                 amplitude,
                 frequency,
@@ -234,7 +234,7 @@ pub(super) fn comparator_thresholds(
                 // each clock edge), so a controller can move the reference
                 // at run time without rebuilding any mode.
                 let waveform = match (spec.period, cmp.slope != 0.0) {
-                    (Some(t), true) => Waveform::PiecewiseLinear {
+                    (Some(t), true) => Stimulus::PiecewiseLinear {
                         points: vec![
                             fluxstep_netlist::Point {
                                 time: 0.0,
@@ -247,7 +247,7 @@ pub(super) fn comparator_thresholds(
                         ],
                         period: Some(t),
                     },
-                    _ => Waveform::Constant { value: cmp.base },
+                    _ => Stimulus::Constant { value: cmp.base },
                 };
                 let (z, source) = inputs.push_input(format!("{sig_name}.{which}"), waveform, true);
                 PendingComparison {
@@ -278,7 +278,7 @@ pub(super) fn set_points(circuit: &Circuit, inputs: &mut Inputs) -> Vec<SetPoint
         .map(|k| {
             let (z, source) = inputs.push_input(
                 format!("{}.reference", k.name),
-                Waveform::Constant { value: k.reference },
+                Stimulus::Constant { value: k.reference },
                 true,
             );
             SetPoint { z, source }

@@ -22,7 +22,7 @@ mod outputs;
 
 use nalgebra::DMatrix;
 
-use fluxstep_netlist::{Circuit, SignalShape, Waveform};
+use fluxstep_netlist::{Circuit, SignalShape, Stimulus};
 
 use crate::error::SolverError;
 
@@ -33,7 +33,7 @@ pub(crate) struct SourceRef {
     /// (z index, coefficient) terms.
     pub terms: Vec<(usize, f64)>,
     /// The waveform (for breakpoints), `None` for a sine (an oscillator state).
-    pub waveform: Option<Waveform>,
+    pub waveform: Option<Stimulus>,
     /// Input index k (u_k at z[n_x + k]) for piecewise-linear sources.
     pub input: Option<usize>,
     /// A threshold ramp made by the solver for a comparator gate, not a

@@ -583,7 +583,7 @@ mod tests {
                 "Vref",
                 "n1",
                 "sref",
-                fluxstep_netlist::Waveform::sine(1.0, 9.0, 5e3, 0.0),
+                fluxstep_netlist::Stimulus::sine(1.0, 9.0, 5e3, 0.0),
             )
             .resistor("Rref", "sref", "gnd", 1.0);
         for (k, (x, y, p)) in parts.iter().enumerate() {
@@ -594,9 +594,9 @@ mod tests {
                 Part::Source(v, a, r) => {
                     let inner = if r > 0.0 { format!("s{k}") } else { y.clone() };
                     let w = if a == 0.0 {
-                        fluxstep_netlist::Waveform::constant(v)
+                        fluxstep_netlist::Stimulus::constant(v)
                     } else {
-                        fluxstep_netlist::Waveform::sine(v, a, 3e3, 0.0)
+                        fluxstep_netlist::Stimulus::sine(v, a, 3e3, 0.0)
                     };
                     let b = b.voltage_waveform(&format!("V{k}"), &x, &inner, w);
                     if r > 0.0 {

@@ -2,7 +2,7 @@
 //! (scheduled like gate edges), commands applied after their delay, gate
 //! schedules rebuilt from the instant a change takes effect.
 
-use fluxstep_netlist::{Edge, Gate, Waveform};
+use fluxstep_netlist::{Edge, Gate, Stimulus};
 
 use super::schedule::TimeKey;
 use super::{dot_iter, Simulator};
@@ -286,14 +286,14 @@ impl Simulator {
                         .as_mut()
                         .expect("internal inputs have waveforms");
                     match w {
-                        Waveform::Constant { value: v } => *v = value,
-                        Waveform::PiecewiseLinear { points, .. } => {
+                        Stimulus::Constant { value: v } => *v = value,
+                        Stimulus::PiecewiseLinear { points, .. } => {
                             let shift = value - points[0].value;
                             for p in points.iter_mut() {
                                 p.value += shift;
                             }
                         }
-                        Waveform::Sine { .. } => unreachable!("thresholds are never sines"),
+                        Stimulus::Sine { .. } => unreachable!("thresholds are never sines"),
                     }
                 }
                 self.set_inputs(t);

@@ -1,7 +1,7 @@
 //! Stage 1: the schedule — gate edges and source corners, computed as
 //! `k·T + phase` so that every period repeats the same interval lengths.
 
-use fluxstep_netlist::{Edge, Waveform};
+use fluxstep_netlist::{Edge, Stimulus};
 
 use super::record::Who;
 use super::Simulator;
@@ -220,7 +220,7 @@ impl Simulator {
                 .waveform
                 .as_ref()
                 .expect("piecewise-linear source");
-            if matches!(w, Waveform::Constant { .. }) {
+            if matches!(w, Stimulus::Constant { .. }) {
                 continue;
             }
             if let Some(p) = w.piece_at(self.t) {
@@ -278,7 +278,7 @@ impl Simulator {
             let (Some(w), Some(k)) = (&s.waveform, s.input) else {
                 continue;
             };
-            if let Waveform::Constant { value } = w {
+            if let Stimulus::Constant { value } = w {
                 self.z[nx + k] = *value;
                 self.z[nx + nu + k] = 0.0;
                 continue;
@@ -305,7 +305,7 @@ impl Simulator {
             let (Some(w), Some(k)) = (&s.waveform, s.input) else {
                 continue;
             };
-            let Waveform::Constant { value } = w else {
+            let Stimulus::Constant { value } = w else {
                 return None;
             };
             list.push((nx + k, *value));

@@ -1,7 +1,7 @@
 //! Converters against textbook relations, with the approximation each
 //! relation makes stated beside its tolerance.
 
-use fluxstep_netlist::{Circuit, Waveform};
+use fluxstep_netlist::{Circuit, Stimulus};
 use fluxstep_solver::{simulate, EventKind, Options, RunResult};
 
 use super::util::{energy_balance, rel};
@@ -223,7 +223,7 @@ fn boost_continuous_conduction() {
 fn full_bridge_rectifier_charges_to_peak() {
     let (vp, f) = (10.0, 1e3);
     let circ = Circuit::builder()
-        .voltage_waveform("Vac", "ac1", "ac2", Waveform::sine(0.0, vp, f, 0.0))
+        .voltage_waveform("Vac", "ac1", "ac2", Stimulus::sine(0.0, vp, f, 0.0))
         .diode("D1", "ac1", "pos")
         .diode("D2", "ac2", "pos")
         .diode("D3", "gnd", "ac1")

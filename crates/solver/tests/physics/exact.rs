@@ -1,6 +1,6 @@
 //! Elementary circuits against closed-form solutions.
 
-use fluxstep_netlist::{Circuit, Gate, Transition, Waveform};
+use fluxstep_netlist::{Circuit, Gate, Stimulus, Transition};
 use fluxstep_solver::{simulate, EventKind, Options};
 
 use super::util::{energy_balance, rel};
@@ -98,7 +98,7 @@ fn commutation_into_a_resistive_loop() {
 fn series_rlc_underdamped_step() {
     let (v, r, l, cap) = (10.0, 2.0, 1e-3, 10e-6);
     let c = Circuit::builder()
-        .voltage_waveform("V1", "in", "gnd", Waveform::constant(v))
+        .voltage_waveform("V1", "in", "gnd", Stimulus::constant(v))
         .resistor("R1", "in", "a", r)
         .inductor("L1", "a", "b", l)
         .capacitor("C1", "b", "gnd", cap)
@@ -137,7 +137,7 @@ fn di_dt_spike_across_wiring_inductance() {
             "I1",
             "gnd",
             "a",
-            Waveform::pwl(&[(0.0, 10.0), (100e-9, 10.0), (110e-9, 0.0)]),
+            Stimulus::pwl(&[(0.0, 10.0), (100e-9, 10.0), (110e-9, 0.0)]),
         )
         .inductor_with_current("Lw", "a", "gnd", 10e-9, 10.0)
         .build()

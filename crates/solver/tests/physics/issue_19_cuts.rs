@@ -4,7 +4,7 @@
 //! takes its voltage); an interruption reports the energy the inductor
 //! holds, ½·L·I² (common practice).
 
-use fluxstep_netlist::{Circuit, Waveform};
+use fluxstep_netlist::{Circuit, Stimulus};
 use fluxstep_solver::{simulate, EventKind, Options, SolverError};
 
 /// 1 A from a current source through 10 µH and 1 Ω, the inductor starting
@@ -13,7 +13,7 @@ use fluxstep_solver::{simulate, EventKind, Options, SolverError};
 #[test]
 fn an_inductor_in_series_with_a_current_source_takes_its_current_at_t0() {
     let c = Circuit::builder()
-        .current_source("I1", "gnd", "a", Waveform::Constant { value: 1.0 })
+        .current_source("I1", "gnd", "a", Stimulus::Constant { value: 1.0 })
         .inductor("L1", "a", "b", 10e-6)
         .resistor("R1", "b", "gnd", 1.0)
         .build()
@@ -38,7 +38,7 @@ fn an_inductor_in_series_with_a_current_source_takes_its_current_at_t0() {
 #[test]
 fn an_interrupted_source_path_reports_the_inductor_energy() {
     let c = Circuit::builder()
-        .current_source("I1", "gnd", "a", Waveform::Constant { value: 1.0 })
+        .current_source("I1", "gnd", "a", Stimulus::Constant { value: 1.0 })
         .inductor_with_current("L1", "a", "b", 10e-6, 1.0)
         .timed_switch("S1", "b", "gnd", &[(0.0, true), (5e-6, false)])
         .build()

@@ -21,7 +21,7 @@
 //!
 //! No test times anything: a regression hangs, it does not fail fast.
 
-use fluxstep_netlist::{Circuit, Element, Waveform};
+use fluxstep_netlist::{Circuit, Element, Stimulus};
 use fluxstep_solver::measure::{measure, measure_last_periods, MeasureError};
 use fluxstep_solver::{Options, Simulator, SolverError};
 
@@ -186,7 +186,7 @@ fn issue_19_a_measurement_beyond_the_piece_cap_is_refused() {
     let mut c = example("rectifier.json");
     for e in &mut c.elements {
         if let Element::VoltageSource(s) = e {
-            if let Waveform::Sine { frequency, .. } = &mut s.waveform {
+            if let Stimulus::Sine { frequency, .. } = &mut s.waveform {
                 *frequency = 1e12;
             }
         }

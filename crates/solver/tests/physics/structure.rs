@@ -475,7 +475,7 @@ fn transformer_fed_bridge_with_floating_secondary() {
             "Vac",
             "in",
             "gnd",
-            fluxstep_netlist::Waveform::sine(0.0, vp, f, 0.0),
+            fluxstep_netlist::Stimulus::sine(0.0, vp, f, 0.0),
         )
         .element(mag)
         .diode("D1", "ac1", "pos")
@@ -591,7 +591,7 @@ fn floating_nodes_after_a_charge_jump() {
             "Vac",
             "ac1",
             "ac2",
-            fluxstep_netlist::Waveform::sine(0.0, vp, f, 0.0),
+            fluxstep_netlist::Stimulus::sine(0.0, vp, f, 0.0),
         )
         .diode("D1", "ac1", "pos")
         .diode("D2", "ac2", "pos")

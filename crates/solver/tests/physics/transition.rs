@@ -7,7 +7,7 @@
 //! the switch is off.
 
 use fluxstep_netlist::{
-    Circuit, Element, Switch, SwitchTransition, TransitionRates, Waveform as Shape,
+    Circuit, Element, Stimulus as Shape, Switch, SwitchTransition, TransitionRates,
 };
 use fluxstep_solver::{simulate, EventKind, Options, SolverError};
 

@@ -23,7 +23,7 @@ pub struct Point {
 /// A source waveform, tagged by `kind` in JSON.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(tag = "kind", rename_all = "snake_case", deny_unknown_fields)]
-pub enum Waveform {
+pub enum Stimulus {
     /// A constant value.
     Constant {
         /// The value (V or A).
@@ -92,15 +92,15 @@ impl LinearPiece {
     }
 }
 
-impl Waveform {
+impl Stimulus {
     /// A constant waveform.
     pub fn constant(value: f64) -> Self {
-        Waveform::Constant { value }
+        Stimulus::Constant { value }
     }
 
     /// A non-repeating piecewise-linear waveform through `(time, value)` pairs.
     pub fn pwl(points: &[(f64, f64)]) -> Self {
-        Waveform::PiecewiseLinear {
+        Stimulus::PiecewiseLinear {
             points: points
                 .iter()
                 .map(|&(time, value)| Point { time, value })
@@ -111,7 +111,7 @@ impl Waveform {
 
     /// A sine wave: offset + amplitude·sin(2π·frequency·t + phase).
     pub fn sine(offset: f64, amplitude: f64, frequency: f64, phase: f64) -> Self {
-        Waveform::Sine {
+        Stimulus::Sine {
             offset,
             amplitude,
             frequency,
@@ -122,7 +122,7 @@ impl Waveform {
     /// The value at time `t` (right-continuous at corners).
     pub fn value_at(&self, t: f64) -> f64 {
         match self {
-            Waveform::Sine {
+            Stimulus::Sine {
                 offset,
                 amplitude,
                 frequency,
@@ -140,14 +140,14 @@ impl Waveform {
     /// corner of every repetition is found with the same rounding.
     pub fn piece_at(&self, t: f64) -> Option<LinearPiece> {
         match self {
-            Waveform::Constant { value } => Some(LinearPiece {
+            Stimulus::Constant { value } => Some(LinearPiece {
                 start: f64::NEG_INFINITY,
                 end: f64::INFINITY,
                 value: *value,
                 slope: 0.0,
             }),
-            Waveform::Sine { .. } => None,
-            Waveform::PiecewiseLinear { points, period } => {
+            Stimulus::Sine { .. } => None,
+            Stimulus::PiecewiseLinear { points, period } => {
                 if points.is_empty() {
                     return None;
                 }
@@ -239,7 +239,7 @@ mod tests {
 
     #[test]
     fn pwl_holds_and_interpolates() {
-        let w = Waveform::pwl(&[(1.0, 0.0), (2.0, 10.0), (4.0, 10.0)]);
+        let w = Stimulus::pwl(&[(1.0, 0.0), (2.0, 10.0), (4.0, 10.0)]);
         assert_eq!(w.value_at(0.0), 0.0);
         assert_eq!(w.value_at(1.5), 5.0);
         assert_eq!(w.value_at(3.0), 10.0);
@@ -253,7 +253,7 @@ mod tests {
         // 3·(1e-5) is not exactly 3e-5; the corner there must start the new
         // repetition whatever t/p rounds to.
         let p = 1e-5;
-        let w = Waveform::PiecewiseLinear {
+        let w = Stimulus::PiecewiseLinear {
             points: vec![
                 Point {
                     time: 0.0,
@@ -275,7 +275,7 @@ mod tests {
 
     #[test]
     fn repeating_pwl() {
-        let w = Waveform::PiecewiseLinear {
+        let w = Stimulus::PiecewiseLinear {
             points: vec![
                 Point {
                     time: 0.0,
