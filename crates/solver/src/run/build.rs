@@ -33,7 +33,7 @@ impl Simulator {
         if automatic(sim.rec.chatter_window) && shortest.is_finite() {
             sim.rec.chatter_window = CHATTER_FRACTION * shortest;
         }
-        sim.resolve(0, None, true)?;
+        sim.resolve(0, None, Moment::Start)?;
         if automatic(sim.rec.chatter_window) {
             let rate = sim.modes[sim.mode as usize].rate;
             sim.rec.chatter_window = if rate > 0.0 && rate.is_finite() {
@@ -44,7 +44,7 @@ impl Simulator {
         }
         // Closed-loop gates decide their state at t = 0 from the circuit.
         if let Some(cause) = sim.start_comparators()? {
-            sim.resolve(0, Some(cause), false)?;
+            sim.resolve(0, Some(cause), Moment::Run)?;
         }
         Ok(sim)
     }

@@ -39,7 +39,7 @@
 //! without a jump.
 
 use super::checks::{violated_guards, violations};
-use super::resolve::{note_rejection, Found, Verdict};
+use super::resolve::{note_rejection, Found, Moment, Verdict};
 use super::Simulator;
 use crate::crossing::Scales;
 use crate::error::SolverError;
@@ -71,10 +71,10 @@ impl Simulator {
         &mut self,
         first: u64,
         flips: u64,
-        initial: bool,
+        moment: Moment,
         scales: Scales,
     ) -> Result<Option<Found>, SolverError> {
-        let mut cut_rejected: Option<Vec<u32>> = (!initial).then(Vec::new);
+        let mut cut_rejected: Option<Vec<u32>> = (!moment.is_start()).then(Vec::new);
         // The usual case: the first guess holds. Nothing is allocated.
         let mut base = match self.pivot_step(first, scales, &mut cut_rejected)? {
             Step::Holds(found) => {
@@ -378,7 +378,7 @@ impl Simulator {
         &mut self,
         first: u64,
         flips: u64,
-        initial: bool,
+        moment: Moment,
         scales: Scales,
         found: Option<Found>,
     ) -> Result<(), SolverError> {
@@ -387,7 +387,7 @@ impl Simulator {
         }
         let kept = self.buf.z_try.clone();
         let memo_len = self.memo.len();
-        let oracle = self.search(first, flips, None, initial, scales)?.ok();
+        let oracle = self.search(first, flips, None, moment, scales)?.ok();
         self.buf.z_try = kept;
         self.memo.truncate(memo_len);
         let t = self.t;

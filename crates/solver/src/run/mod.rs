@@ -48,6 +48,7 @@ use crate::propagate;
 use crate::waveform::{OutputId, Waveform};
 
 use advance::ModeCache;
+use resolve::Moment;
 pub use result::{RunResult, SegmentSink, SegmentView, Stats};
 use schedule::{EdgeQueue, SignalBuffer, TimeKey};
 
@@ -264,7 +265,7 @@ impl Simulator {
         if fired != 0 && self.ramp_waits_for_clamp() {
             self.clamp_ramps(t_e);
         }
-        self.resolve(fired, cause, false)
+        self.resolve(fired, cause, Moment::Run)
     }
 
     /// Stops a run whose event location makes no progress: the same

@@ -56,6 +56,23 @@ pub(super) enum Verdict {
     Other,
 }
 
+/// When a conduction pattern is resolved.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub(super) enum Moment {
+    /// At t = 0, from the circuit's initial values: a jump is taken only
+    /// where a source sets it, and nothing is remembered for replay.
+    Start,
+    /// At an instant of the run (a scheduled instant or a located event).
+    Run,
+}
+
+impl Moment {
+    /// Whether this is the start of the run.
+    pub(super) fn is_start(self) -> bool {
+        self == Moment::Start
+    }
+}
+
 impl Simulator {
     fn cause_text(&self, cause: Option<(usize, bool)>) -> Option<String> {
         cause.map(|(i, on)| {
@@ -104,38 +121,38 @@ impl Simulator {
         &mut self,
         flips: u64,
         cause: Option<(usize, bool)>,
-        initial: bool,
+        moment: Moment,
     ) -> Result<(), SolverError> {
         let first = self.key.diodes ^ flips;
         let scales = self.update_scales();
-        if !initial && self.replay && self.resolve_remembered(flips, scales)? {
+        if !moment.is_start() && self.replay && self.resolve_remembered(flips, scales)? {
             return Ok(());
         }
         if self.pivoting {
-            if let Some(found) = self.pivot(first, flips, initial, scales)? {
-                let found = self.settle(first, flips, found, initial, scales)?;
+            if let Some(found) = self.pivot(first, flips, moment, scales)? {
+                let found = self.settle(first, flips, found, moment, scales)?;
                 #[cfg(test)]
-                self.cross_check(first, flips, initial, scales, Some(found))?;
-                return self.commit_found(found, initial);
+                self.cross_check(first, flips, moment, scales, Some(found))?;
+                return self.commit_found(found, moment);
             }
             #[cfg(test)]
-            self.cross_check(first, flips, initial, scales, None)?;
+            self.cross_check(first, flips, moment, scales, None)?;
         }
-        match self.search(first, flips, cause, initial, scales)? {
-            Ok(found) => self.commit_found(found, initial),
+        match self.search(first, flips, cause, moment, scales)? {
+            Ok(found) => self.commit_found(found, moment),
             Err(e) => Err(e),
         }
     }
 
     /// Enters a pattern found by `pivot` or `search` (its state is in
     /// `z_try`).
-    fn commit_found(&mut self, found: Found, initial: bool) -> Result<(), SolverError> {
+    fn commit_found(&mut self, found: Found, moment: Moment) -> Result<(), SolverError> {
         let key = ModeKey {
             switches: self.key.switches,
             diodes: found.diodes,
             ramps: self.key.ramps,
         };
-        self.commit(key, found.mode, found.cut, found.charge, initial)
+        self.commit(key, found.mode, found.cut, found.charge, moment)
     }
 
     /// The search by Hamming distance from `first`: the first candidate
@@ -147,14 +164,14 @@ impl Simulator {
         first: u64,
         flips: u64,
         cause: Option<(usize, bool)>,
-        initial: bool,
+        moment: Moment,
         scales: Scales,
     ) -> Result<Result<Found, SolverError>, SolverError> {
         // What a remembered transition needs: the candidates rejected for
         // cutting an inductor current before the accepted one; `None` once
         // any other state-dependent rejection makes the outcome unsafe to
         // replay.
-        let mut cut_rejected: Option<Vec<u32>> = (!initial).then(Vec::new);
+        let mut cut_rejected: Option<Vec<u32>> = (!moment.is_start()).then(Vec::new);
         let mut interruption: Option<Interruption> = None;
         let mut other: Option<Rejection> = None;
         // At t = 0 the given initial state may cut an inductor current (an
@@ -162,7 +179,7 @@ impl Simulator {
         // source's current, as a capacitor jumps to a source's voltage.
         // Later, only when the run allows it.
         let passes: &[bool] =
-            if initial || self.opts.on_interruption == OnInterruption::ConserveFlux {
+            if moment.is_start() || self.opts.on_interruption == OnInterruption::ConserveFlux {
                 &[false, true]
             } else {
                 &[false]
@@ -194,7 +211,7 @@ impl Simulator {
                     // jump stores energy); one that would release the
                     // inductors' energy is an interruption, as later.
                     if found.cut
-                        && initial
+                        && moment.is_start()
                         && self.opts.on_interruption != OnInterruption::ConserveFlux
                         && self.cc.stored_energy(self.buf.z_try.as_slice())
                             < self.cc.stored_energy(self.z.as_slice())
@@ -229,7 +246,7 @@ impl Simulator {
         first: u64,
         flips: u64,
         found: Found,
-        initial: bool,
+        moment: Moment,
         scales: Scales,
     ) -> Result<Found, SolverError> {
         if found.cut {
@@ -241,10 +258,10 @@ impl Simulator {
             .memo
             .find(mode, key.switches, key.ramps, flips)
             .is_some_and(|t| t.to == found.mode);
-        if near && (known || initial) {
+        if near && (known || moment.is_start()) {
             return Ok(found);
         }
-        let mut cut_rejected = (!initial).then(Vec::new);
+        let mut cut_rejected = (!moment.is_start()).then(Vec::new);
         let mut settled = None;
         for idx in 0..SETTLE_CANDIDATES {
             let Some(c) = self.candidate(first, idx) else {
@@ -382,7 +399,7 @@ impl Simulator {
         mi: u32,
         cut_jump: bool,
         loop_jump: bool,
-        initial: bool,
+        moment: Moment,
     ) -> Result<(), SolverError> {
         let n_x = self.cc.n_x;
         self.rec.before.clear();
@@ -396,7 +413,8 @@ impl Simulator {
             ),
         });
         let old = self.key.diodes;
-        let was_shorted = self.modes[self.mode as usize].resistive_short.is_some() && !initial;
+        let was_shorted =
+            self.modes[self.mode as usize].resistive_short.is_some() && !moment.is_start();
         self.key = key;
         self.mode = mi;
         std::mem::swap(&mut self.z, &mut self.buf.z_try);
@@ -425,7 +443,7 @@ impl Simulator {
             let id = self.rec.log.intern(&devices);
             self.push_event(self.t, EventKind::ShootThrough, Who::Named(id), None, true)?;
         }
-        if !initial {
+        if !moment.is_start() {
             self.log_diode_changes(old)?;
         }
         Ok(())

@@ -3,6 +3,7 @@
 
 use nalgebra::DMatrix;
 
+use super::resolve::Moment;
 use super::Simulator;
 use crate::dynamics::entry_jump;
 use crate::error::SolverError;
@@ -79,7 +80,7 @@ impl Simulator {
             });
         }
         self.z.as_mut_slice()[..n_x].copy_from_slice(x);
-        self.resolve(0, None, true)
+        self.resolve(0, None, Moment::Start)
     }
 
     /// Names of the inputs whose values are entries of the extended state

@@ -4,6 +4,7 @@
 use fluxstep_netlist::{Edge, Stimulus};
 
 use super::record::Who;
+use super::resolve::Moment;
 use super::Simulator;
 use crate::error::SolverError;
 use crate::events::{EventCause, EventKind};
@@ -392,7 +393,7 @@ impl Simulator {
             let i = 63 - switched.leading_zeros() as usize;
             (i, self.key.switches >> i & 1 == 1)
         });
-        self.resolve(0, cause, false)
+        self.resolve(0, cause, Moment::Run)
     }
 
     /// Gate edges and comparator ticks due at `t`, then the conduction
@@ -407,7 +408,7 @@ impl Simulator {
                 cause = Some(c);
             }
         }
-        self.resolve(0, cause, false)
+        self.resolve(0, cause, Moment::Run)
     }
 
     /// Takes the gate edges due at `t`, logs the switches that changed (in
