@@ -137,6 +137,8 @@ impl Simulator {
             poly_cache: true,
             near_cache: true,
             plain_instants: 0,
+            lane: true,
+            lane_steps: 0,
             ramp_switches,
             phases: vec![transition::Phase::Idle; n_switches],
             ramp_next: f64::INFINITY,

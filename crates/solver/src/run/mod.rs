@@ -5,7 +5,8 @@
 //! instant, and the conduction pattern that follows (`resolve.rs` with
 //! `replay.rs`, `lcp.rs`, `checks.rs`; `transition.rs` for switching
 //! ramps, `control.rs` and `sampled.rs` for closed loops) → the record
-//! (`record.rs`). `build.rs` makes a simulator, `access.rs` is what a user
+//! (`record.rs`); `lane.rs` runs stretches of cached periodic intervals
+//! at once with the same functions. `build.rs` makes a simulator, `access.rs` is what a user
 //! reads of it, `result.rs` what a run returns. The state is grouped by
 //! owner (`Schedule`, `Recorder`, `Buffers`; docs/architecture.md).
 //!
@@ -19,6 +20,7 @@ mod advance;
 mod build;
 mod checks;
 mod control;
+mod lane;
 mod lcp;
 mod locate;
 pub(crate) mod paths;
@@ -134,6 +136,11 @@ pub struct Simulator {
     /// (`advance_near`), and spans of the schedule past the first 16 by the
     /// cache of lengths that come back; off only in tests.
     near_cache: bool,
+    /// Whether the lane (`lane.rs`) runs; off with plain instants, in
+    /// the contract tests and through `Shortcuts`.
+    lane: bool,
+    /// Intervals the lane advanced (for the contract tests).
+    lane_steps: usize,
     /// Instants that took the plain path (for the contract test).
     plain_instants: usize,
     /// Scratch space of the stages (no state between calls).
@@ -215,6 +222,9 @@ impl Simulator {
         }
         self.reserve_for(t_end);
         while self.t < t_end {
+            // A stretch of cached periodic intervals first; the lane
+            // returns at the first interval it does not handle, untouched.
+            self.run_lane(t_end)?;
             let (t_next, key_next) = self.next_scheduled(t_end);
             // The interval length comes from the schedule's (cycle, phase)
             // pairs when both ends are periodic edges, so the same interval
@@ -493,6 +503,7 @@ mod tests {
             let run = |plain: bool| {
                 let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
                 sim.plain = plain;
+                sim.lane = plain;
                 sim.advance_to(stop).expect("runs");
                 let steps = sim.plain_instants;
                 (sim.finish(), steps)
@@ -544,6 +555,7 @@ mod tests {
         let stop = |opts: &Options, plain: bool| {
             let mut sim = Simulator::new(&c, opts.clone()).expect("compiles");
             sim.plain = plain;
+            sim.lane = plain;
             let err = sim.advance_to(2e-3).expect_err("must stop");
             let steps = sim.plain_instants;
             (format!("{err:?}"), sim.finish(), steps)
@@ -594,6 +606,7 @@ mod tests {
                 };
                 let mut sim = Simulator::new(&c, opts).expect("compiles");
                 sim.plain = plain;
+                sim.lane = plain;
                 for _ in 0..25 {
                     sim.advance_periods(3).expect("runs");
                 }

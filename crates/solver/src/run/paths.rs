@@ -166,6 +166,8 @@ impl Simulator {
     /// ```
     pub fn set_shortcuts(&mut self, s: Shortcuts) {
         self.plain = s.plain_instants;
+        // The lane is the plain instants' loop of periodic spans.
+        self.lane = s.plain_instants;
         self.replay = s.replay;
         self.cache_repeats = s.repeated_lengths;
         self.poly_cache = s.guard_polynomials;

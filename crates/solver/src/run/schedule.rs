@@ -318,11 +318,7 @@ impl Simulator {
     /// Applies everything scheduled at `t`: source corners, gate edges, then
     /// the conduction pattern that follows.
     pub(super) fn apply_scheduled(&mut self, t: f64) -> Result<(), SolverError> {
-        self.stats.scheduled_events += 1;
-        self.rec.cause = EventCause::Scheduled;
-        let n_x = self.cc.n_x;
-        self.rec.before.clear();
-        crate::propagate::extend_small(&mut self.rec.before, &self.z.as_slice()[..n_x]);
+        self.begin_instant();
         if self.plain && self.plain_instants_allowed() {
             return self.plain_instant(t);
         }
@@ -340,6 +336,17 @@ impl Simulator {
             self.run_controllers(t)?;
         }
         self.settle_instant(t)
+    }
+
+    /// The start of every scheduled instant: counted, its kind set, and
+    /// the state before it kept for the events it logs.
+    #[inline(always)]
+    pub(super) fn begin_instant(&mut self) {
+        self.stats.scheduled_events += 1;
+        self.rec.cause = EventCause::Scheduled;
+        let n_x = self.cc.n_x;
+        self.rec.before.clear();
+        crate::propagate::extend_small(&mut self.rec.before, &self.z.as_slice()[..n_x]);
     }
 
     /// Whether instants can have nothing but gate edges and transition
@@ -362,7 +369,8 @@ impl Simulator {
     /// together (`push_instant`: the same records as one by one). This is
     /// the instant of every fixed-frequency converter in open loop; a
     /// contract test checks it gives the bits of the general path.
-    fn plain_instant(&mut self, t: f64) -> Result<(), SolverError> {
+    #[inline(always)]
+    pub(super) fn plain_instant(&mut self, t: f64) -> Result<(), SolverError> {
         self.plain_instants += 1;
         self.set_inputs(t);
         if self.ramp_next <= coincident_until(t) {
