@@ -20,7 +20,7 @@ impl Simulator {
     pub(super) fn advance_repeated(&mut self, mi: usize, m: &DMatrix<f64>, len: f64) -> bool {
         let bits = len.to_bits();
         let cache = &mut self.caches[mi];
-        if let Some((_, phi)) = cache.repeated.iter().find(|(b, _)| *b == bits) {
+        if let Some(phi) = cache.find_repeated(bits) {
             self.stats.cache_hits += 1;
             propagate::matvec(phi, self.z.as_slice(), self.z_next.as_mut_slice());
             return true;
@@ -86,7 +86,7 @@ impl Simulator {
     pub(super) fn step(&mut self, h: f64, cacheable: bool) {
         let mi = self.mode as usize;
         let bits = h.to_bits();
-        if let Some((_, phi)) = self.caches[mi].scheduled.iter().find(|(b, _)| *b == bits) {
+        if let Some(phi) = self.caches[mi].find_scheduled(bits) {
             self.stats.cache_hits += 1;
             propagate::matvec(phi, self.z.as_slice(), self.z_next.as_mut_slice());
             return;
@@ -167,6 +167,27 @@ pub(super) struct ModeCache {
     pub(super) spectrum: Option<Option<std::sync::Arc<propagate::Spectrum>>>,
     /// e^{Mδ} for the sub-interval lengths δ of stiff spans.
     pub(super) stiff_steps: Vec<Disc>,
+}
+
+impl ModeCache {
+    /// The cached e^{Mh} of a span of the schedule whose length has the
+    /// bits `bits`.
+    #[inline(always)]
+    pub(super) fn find_scheduled(&self, bits: u64) -> Option<&DMatrix<f64>> {
+        self.scheduled
+            .iter()
+            .find(|(b, _)| *b == bits)
+            .map(|(_, phi)| phi)
+    }
+
+    /// The cached e^{Mh} of a length with the bits `bits` that came back.
+    #[inline(always)]
+    pub(super) fn find_repeated(&self, bits: u64) -> Option<&DMatrix<f64>> {
+        self.repeated
+            .iter()
+            .find(|(b, _)| *b == bits)
+            .map(|(_, phi)| phi)
+    }
 }
 
 impl Default for ModeCache {

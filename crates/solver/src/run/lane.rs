@@ -23,8 +23,7 @@
 //! more instructions (`once ccm all 60 reuse`), while this loop is within
 //! 3 % of the earlier lane; see docs/architecture.md.
 
-use super::locate::suspect_at_end;
-use super::schedule::TimeKey;
+use super::schedule::interval_length;
 use super::Simulator;
 use crate::error::SolverError;
 use crate::propagate;
@@ -60,100 +59,47 @@ impl Simulator {
             if self.key.ramps != 0 {
                 return Ok(());
             }
-            // The next edge: the earliest front of the signal buffers (the
-            // first signal wins a tie, as in `next_scheduled`).
-            let mut best: Option<(f64, usize)> = None;
-            for i in 0..self.sched.signals.len() {
-                if self.sched.signals[i].edges.is_empty() {
-                    let from = self.sched.signals[i].filled_to;
-                    self.refill(i, from);
-                }
-                if let Some(e) = self.sched.signals[i].edges.front() {
-                    if best.is_none_or(|(t, _)| e.time < t) {
-                        best = Some((e.time, i));
-                    }
-                }
-            }
-            let Some((_, si)) = best else {
-                return Ok(());
-            };
-            let e = *self.sched.signals[si].edges.front().expect("found above");
-            let Some(period) = e.period else {
-                return Ok(());
-            };
-            // An edge at or after the stop time belongs to the general loop.
-            if e.time >= t_end || e.time.is_nan() {
+            // The general loop's next edge (`gates_only`: nothing else is
+            // scheduled); only a periodic one before the stop time.
+            let (t_next, key_next) = self.next_gate_edge(t_end);
+            if key_next.is_none() || t_next >= t_end {
                 return Ok(());
             }
-            // The length as the general loop takes it: from the schedule's
-            // (cycle, phase) pairs between two periodic edges, else by
-            // subtraction (an interval that starts at a located event).
-            let (h, from_schedule) = match self.tkey {
-                Some(a) if period.to_bits() == a.period.to_bits() => (
-                    (e.cycle - a.cycle) as f64 * a.period + (e.phase - a.phase),
-                    true,
-                ),
-                Some(_) => return Ok(()),
-                None => (e.time - self.t, false),
-            };
-            // As the general loop: a length that is not positive is not used.
+            let h = interval_length(self.t, self.tkey, t_next, key_next);
             if h.is_nan() || h <= 0.0 {
                 return Ok(());
             }
+            // `step`'s look-ups in its order, its stiff check before the
+            // lengths that came back; a miss returns, as the general step
+            // keeps the books of misses.
             let mi = self.mode as usize;
+            let cacheable = self.tkey.is_some();
             let bits = h.to_bits();
-            // The general step's look-ups, in its order: spans of the
-            // schedule, then (for another length) lengths that came back.
-            // A miss returns: the general step keeps the books of misses.
-            let cached = self.caches[mi]
-                .scheduled
-                .iter()
-                .find(|(b, _)| *b == bits)
-                .or_else(|| {
-                    if from_schedule {
-                        None
-                    } else {
-                        self.caches[mi].repeated.iter().find(|(b, _)| *b == bits)
-                    }
-                });
-            let Some((_, phi)) = cached else {
-                return Ok(());
-            };
-            let mode = &self.modes[mi];
-            if !mode.guards.is_empty() && propagate::substeps(mode.rate, h) != 1 {
-                return Ok(());
-            }
-            propagate::matvec(phi, self.z.as_slice(), self.z_next.as_mut_slice());
-            let (za, zb) = (self.z.as_slice(), self.z_next.as_slice());
-            let scales = self.seen;
-            let suspect = mode
-                .guards
-                .iter()
-                .any(|g| suspect_at_end(g, za, zb, scales));
-            // From here on exactly what the general loop does after the
-            // same cached step.
-            self.stats.cache_hits += 1;
-            self.lane_steps += 1;
-            if suspect {
-                // The general loop's location and, for a crossing inside,
-                // its located instant.
-                if let Some(c) = self.locate(h) {
-                    if c.time < h {
-                        self.enter_crossing(c)?;
-                        continue;
+            let cache = &self.caches[mi];
+            let phi = match cache.find_scheduled(bits) {
+                Some(phi) => phi,
+                None if !cacheable
+                    && propagate::substeps(self.modes[mi].rate, h) <= propagate::STIFF_SUBSTEPS =>
+                {
+                    match cache.find_repeated(bits) {
+                        Some(phi) => phi,
+                        None => return Ok(()),
                     }
                 }
+                None => return Ok(()),
+            };
+            propagate::matvec(phi, self.z.as_slice(), self.z_next.as_mut_slice());
+            self.stats.cache_hits += 1;
+            self.lane_steps += 1;
+            // From here on the general loop's own stages.
+            if let Some(c) = self.locate(h) {
+                if c.time < h {
+                    self.enter_crossing(c)?;
+                    continue;
+                }
             }
-            self.record(e.time, h);
-            self.t = e.time;
-            self.tkey = Some(TimeKey {
-                cycle: e.cycle,
-                phase: e.phase,
-                period,
-            });
-            std::mem::swap(&mut self.z, &mut self.z_next);
-            self.check_finite()?;
-            self.lane_instant(e.time)?;
+            self.finish_interval(t_next, h, key_next)?;
+            self.lane_instant(t_next)?;
         }
     }
 

@@ -73,6 +73,19 @@ pub(super) fn suspect_at_end(g: &Guard, za: &[f64], zb: &[f64], scales: Scales) 
     }
 }
 
+/// Whether any of `guards` may cross zero from `za` to `zb`
+/// (`suspect_at_end`), written as a loop so that it stays inline in the
+/// loop of every interval.
+#[inline(always)]
+fn any_suspect(guards: &[Guard], za: &[f64], zb: &[f64], scales: Scales) -> bool {
+    for g in guards {
+        if suspect_at_end(g, za, zb, scales) {
+            return true;
+        }
+    }
+    false
+}
+
 /// The crossing at `time` of the guards with bits `(diodes, comparators)`.
 fn crossing(time: f64, (diodes, comparators): (u64, u64)) -> Crossing {
     Crossing {
@@ -161,9 +174,7 @@ impl Simulator {
         if off_mask == 0 && on_mask == 0 {
             // No closed-loop gate: the mode's own guards only, without
             // the chained iterator.
-            mode.guards
-                .iter()
-                .any(|g| suspect_at_end(g, za, zb, scales))
+            any_suspect(&mode.guards, za, zb, scales)
         } else {
             active(mode, off_mask, on_mask).any(|g| suspect_at_end(g, za, zb, scales))
         }

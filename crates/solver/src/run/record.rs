@@ -79,6 +79,16 @@ pub(super) enum Who {
     Named(u32),
 }
 
+/// The state an event leaves, for its record ([`Simulator::push_event`]).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub(super) enum After {
+    /// The present state (the event is part of an instant's jump).
+    Present,
+    /// The state as it was before the instant (a gate edge or source
+    /// corner that moves no state by itself).
+    Unchanged,
+}
+
 impl Simulator {
     /// The element's id in the log (names were interned in this order when
     /// the simulator was built).
@@ -196,8 +206,8 @@ impl Simulator {
     }
 
     /// Counts an event (event limit, chatter) and logs it if kept. The state
-    /// before is `self.rec.before`; after is the present state when
-    /// `changed_state`, else the same as before.
+    /// before is `self.rec.before`; after is the present state or the same
+    /// as before (`after`).
     #[inline]
     pub(super) fn push_event(
         &mut self,
@@ -205,7 +215,7 @@ impl Simulator {
         kind: EventKind,
         who: Who,
         jump: Option<JumpInfo>,
-        changed_state: bool,
+        after: After,
     ) -> Result<(), SolverError> {
         self.rec.n_events += 1;
         if self.rec.n_events > self.opts.max_events {
@@ -233,10 +243,9 @@ impl Simulator {
             return Err(self.chatter_error(time));
         }
         if self.keeps(time) {
-            let after = if changed_state {
-                &self.z.as_slice()[..self.cc.n_x]
-            } else {
-                &self.rec.before[..]
+            let after = match after {
+                After::Present => &self.z.as_slice()[..self.cc.n_x],
+                After::Unchanged => &self.rec.before[..],
             };
             if !self.rec.log.push(
                 time,
@@ -363,7 +372,14 @@ impl Simulator {
                     (true, true) => (EventKind::DiodeOn, Who::Diode(i)),
                     (true, false) => (EventKind::DiodeOff, Who::Diode(i)),
                 };
-                self.push_event(time, kind, who, None, diode)?;
+                // A diode's event follows the instant's jump; a switch's
+                // is logged with the state as it was.
+                let after = if diode {
+                    After::Present
+                } else {
+                    After::Unchanged
+                };
+                self.push_event(time, kind, who, None, after)?;
             }
         }
         Ok(())

@@ -22,7 +22,7 @@
 use std::sync::Arc;
 
 use super::checks::{guards_hold, unbalanced_source, violations};
-use super::record::Who;
+use super::record::{After, Who};
 use super::Simulator;
 use crate::compile::BranchKind;
 use crate::crossing::Scales;
@@ -321,7 +321,7 @@ impl Simulator {
             } else {
                 EventKind::DiodeOff
             };
-            self.push_event(self.t, kind, Who::Diode(k), None, true)?;
+            self.push_event(self.t, kind, Who::Diode(k), None, After::Present)?;
         }
         Ok(())
     }
@@ -433,7 +433,7 @@ impl Simulator {
                 EventKind::ChargeJump
             };
             let id = self.rec.log.intern(&names.join(","));
-            self.push_event(self.t, kind, Who::Named(id), Some(jump), true)?;
+            self.push_event(self.t, kind, Who::Named(id), Some(jump), After::Present)?;
         }
         let short = match (&self.modes[mi as usize].resistive_short, was_shorted) {
             (Some((devices, _)), false) => Some(devices.join(",")),
@@ -441,7 +441,13 @@ impl Simulator {
         };
         if let Some(devices) = short {
             let id = self.rec.log.intern(&devices);
-            self.push_event(self.t, EventKind::ShootThrough, Who::Named(id), None, true)?;
+            self.push_event(
+                self.t,
+                EventKind::ShootThrough,
+                Who::Named(id),
+                None,
+                After::Present,
+            )?;
         }
         if !moment.is_start() {
             self.log_diode_changes(old)?;

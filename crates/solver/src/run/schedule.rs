@@ -3,7 +3,7 @@
 
 use fluxstep_netlist::{Edge, Stimulus};
 
-use super::record::Who;
+use super::record::{After, Who};
 use super::resolve::Moment;
 use super::Simulator;
 use crate::error::SolverError;
@@ -37,6 +37,26 @@ pub(super) struct TimeKey {
     pub cycle: i64,
     pub phase: f64,
     pub period: f64,
+}
+
+/// The length of the interval from `t0` (key `k0`) to `t1` (key `k1`):
+/// from the schedule's (cycle, phase) pairs when both ends are edges of
+/// one periodic schedule, so that the same interval of every period has
+/// the same bits and hits the cache; else, or where that is not positive,
+/// by subtraction.
+#[inline(always)]
+pub(super) fn interval_length(t0: f64, k0: Option<TimeKey>, t1: f64, k1: Option<TimeKey>) -> f64 {
+    let h = match (k0, k1) {
+        (Some(a), Some(b)) if a.period.to_bits() == b.period.to_bits() => {
+            (b.cycle - a.cycle) as f64 * a.period + (b.phase - a.phase)
+        }
+        _ => t1 - t0,
+    };
+    if h > 0.0 {
+        h
+    } else {
+        t1 - t0
+    }
 }
 
 /// A queue of upcoming edges: a vector and the index of its front, so that
@@ -173,8 +193,13 @@ impl Simulator {
         sw
     }
 
-    /// Next scheduled instant after now (capped at `t_end`) and its key.
-    pub(super) fn next_scheduled(&mut self, t_end: f64) -> (f64, Option<TimeKey>) {
+    /// The earliest front of the signal buffers before `t_end` (or at it,
+    /// with a key) and its key; `(t_end, None)` if there is none. Of equal
+    /// instants, the first signal wins unless a later one has a key where
+    /// it has none. The general loop (`next_scheduled`) and the lane take
+    /// their next edge here.
+    #[inline(always)]
+    pub(super) fn next_gate_edge(&mut self, t_end: f64) -> (f64, Option<TimeKey>) {
         let mut best = (t_end, None);
         for i in 0..self.sched.signals.len() {
             if self.sched.signals[i].edges.is_empty() {
@@ -192,6 +217,12 @@ impl Simulator {
                 }
             }
         }
+        best
+    }
+
+    /// Next scheduled instant after now (capped at `t_end`) and its key.
+    pub(super) fn next_scheduled(&mut self, t_end: f64) -> (f64, Option<TimeKey>) {
+        let mut best = self.next_gate_edge(t_end);
         if self.sched.gates_only {
             // Nothing else is ever scheduled.
             return best;
@@ -329,7 +360,13 @@ impl Simulator {
             let si = rest.trailing_zeros() as usize;
             rest &= rest - 1;
             if si < self.cc.sources.len() && !self.cc.sources[si].internal {
-                self.push_event(t, EventKind::SourceBreakpoint, Who::Source(si), None, false)?;
+                self.push_event(
+                    t,
+                    EventKind::SourceBreakpoint,
+                    Who::Source(si),
+                    None,
+                    After::Unchanged,
+                )?;
             }
         }
         if !self.sched.controllers.is_empty() || !self.sched.pending.is_empty() {
@@ -471,7 +508,7 @@ impl Simulator {
             } else {
                 EventKind::SwitchOff
             };
-            self.push_event(t, kind, Who::Switch(i), None, false)?;
+            self.push_event(t, kind, Who::Switch(i), None, After::Unchanged)?;
         }
         let changed = sw ^ self.key.switches;
         self.key.switches = sw;
