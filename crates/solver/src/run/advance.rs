@@ -19,13 +19,13 @@ impl Simulator {
     /// steady state.
     pub(super) fn advance_repeated(&mut self, mi: usize, m: &DMatrix<f64>, len: f64) -> bool {
         let bits = len.to_bits();
-        let cache = &mut self.caches[mi];
+        let cache = &mut self.modes.caches[mi];
         if let Some(phi) = cache.find_repeated(bits) {
             self.stats.cache_hits += 1;
             propagate::matvec(phi, self.z.as_slice(), self.z_next.as_mut_slice());
             return true;
         }
-        if !self.cache_repeats {
+        if !self.shortcuts.repeated_lengths {
             return false;
         }
         if !cache.misses.contains(&bits) {
@@ -54,10 +54,10 @@ impl Simulator {
     /// dozen or more. As exact as the Taylor path (to rounding; a test
     /// compares the two to 1e-12). False if no cached length is near.
     pub(super) fn advance_near(&mut self, mi: usize, m: &Mode, len: f64) -> bool {
-        if !self.near_cache {
+        if !self.shortcuts.nearby_lengths {
             return false;
         }
-        let cache = &self.caches[mi];
+        let cache = &self.modes.caches[mi];
         let mut best: Option<(f64, &DMatrix<f64>)> = None;
         for (b, phi) in cache.scheduled.iter().chain(&cache.repeated) {
             let d = len - f64::from_bits(*b);
@@ -86,7 +86,7 @@ impl Simulator {
     pub(super) fn step(&mut self, h: f64, cacheable: bool) {
         let mi = self.mode as usize;
         let bits = h.to_bits();
-        if let Some(phi) = self.caches[mi].find_scheduled(bits) {
+        if let Some(phi) = self.modes.caches[mi].find_scheduled(bits) {
             self.stats.cache_hits += 1;
             propagate::matvec(phi, self.z.as_slice(), self.z_next.as_mut_slice());
             return;
@@ -105,9 +105,9 @@ impl Simulator {
         // The modes are borrowed out of `self` meanwhile: cloning the
         // `Arc` cost two atomic operations at every step of a circuit
         // with transition models (four lengths a period are not cached).
-        let modes = std::mem::take(&mut self.modes);
+        let modes = std::mem::take(&mut self.modes.list);
         self.step_uncached(&modes[mi], h, cacheable, stiff);
-        self.modes = modes;
+        self.modes.list = modes;
     }
 
     /// The rest of `step` where no span of the schedule is cached (the
@@ -115,16 +115,16 @@ impl Simulator {
     fn step_uncached(&mut self, m: &Mode, h: f64, cacheable: bool, stiff: bool) {
         let mi = self.mode as usize;
         let bits = h.to_bits();
-        if cacheable && self.caches[mi].scheduled.len() < 16 {
+        if cacheable && self.modes.caches[mi].scheduled.len() < 16 {
             self.stats.exponentials += 1;
             let phi = propagate::expm(&m.m, h);
             propagate::matvec(&phi, self.z.as_slice(), self.z_next.as_mut_slice());
-            self.caches[mi].scheduled.push((bits, phi));
+            self.modes.caches[mi].scheduled.push((bits, phi));
             return;
         }
         // Lengths that come back, whether spans of the schedule (once 16
         // of them are cached: a controller moves the edges) or not.
-        if (!cacheable || self.near_cache) && self.advance_repeated(mi, &m.m, h) {
+        if (!cacheable || self.shortcuts.nearby_lengths) && self.advance_repeated(mi, &m.m, h) {
             return;
         }
         if stiff {
@@ -146,69 +146,6 @@ impl Simulator {
         );
     }
 }
-
-/// A cached discretisation: the bits of a length h and e^{Mh}.
-pub(super) type Disc = (u64, DMatrix<f64>);
-
-/// What is cached for one mode, by the exact bits of interval lengths.
-pub(super) struct ModeCache {
-    /// e^{Mh} for spans of the schedule, at most 16.
-    pub(super) scheduled: Vec<Disc>,
-    /// The latest lengths advanced without a cached exponential (a ring).
-    pub(super) misses: [u64; REPEAT_RING],
-    /// e^{Mh} for lengths that came back, at most [`MAX_AGAIN`], and the
-    /// next one to replace once full (see `Simulator::advance_repeated`).
-    pub(super) repeated: Vec<Disc>,
-    pub(super) repeated_next: usize,
-    /// Guard polynomials of scheduled lengths (see `locate.rs`).
-    pub(super) polys: Vec<locate::GuardPolys>,
-    /// The mode's eigenvalues, computed at its first stiff span (`None`
-    /// before; `Some(None)` where they cannot be trusted).
-    pub(super) spectrum: Option<Option<std::sync::Arc<propagate::Spectrum>>>,
-    /// e^{Mδ} for the sub-interval lengths δ of stiff spans.
-    pub(super) stiff_steps: Vec<Disc>,
-}
-
-impl ModeCache {
-    /// The cached e^{Mh} of a span of the schedule whose length has the
-    /// bits `bits`.
-    #[inline(always)]
-    pub(super) fn find_scheduled(&self, bits: u64) -> Option<&DMatrix<f64>> {
-        self.scheduled
-            .iter()
-            .find(|(b, _)| *b == bits)
-            .map(|(_, phi)| phi)
-    }
-
-    /// The cached e^{Mh} of a length with the bits `bits` that came back.
-    #[inline(always)]
-    pub(super) fn find_repeated(&self, bits: u64) -> Option<&DMatrix<f64>> {
-        self.repeated
-            .iter()
-            .find(|(b, _)| *b == bits)
-            .map(|(_, phi)| phi)
-    }
-}
-
-impl Default for ModeCache {
-    fn default() -> Self {
-        ModeCache {
-            scheduled: vec![],
-            misses: [f64::NAN.to_bits(); REPEAT_RING],
-            repeated: vec![],
-            repeated_next: 0,
-            polys: vec![],
-            spectrum: None,
-            stiff_steps: vec![],
-        }
-    }
-}
-
-/// Lengths remembered per mode for caching on their return (see `step`).
-const REPEAT_RING: usize = 8;
-
-/// Most exponentials cached per mode for lengths that came back.
-const MAX_AGAIN: usize = 16;
 
 /// Scratch space of the stages: nothing in it lives from one call to
 /// the next, it only saves allocations.

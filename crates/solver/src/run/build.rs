@@ -17,7 +17,6 @@ impl Simulator {
         let cc = Compiled::compile(circuit)?;
         let ramp_switches = supported_sizes(&cc)?;
         let mut sim = Simulator::assemble(circuit, cc, opts, ramp_switches);
-        sim.watch_scales();
         sim.start_schedule();
         // The chatter window from the gates' periods; without periodic
         // gates it is set from the first mode below (the first resolve
@@ -83,13 +82,11 @@ impl Simulator {
             .filter(|&i| cc.sources[i].input.is_some())
             .collect();
         let rec = record::Recorder::new(&cc);
+        let scales = scales::ScaleWatch::new(&cc);
         let mut sim = Simulator {
             cc,
             opts,
-            mode_index: HashMap::new(),
-            mode_keys: vec![],
-            modes: vec![],
-            caches: vec![],
+            modes: modeset::ModeSet::default(),
             t: 0.0,
             tkey: None,
             z_next: z.clone(),
@@ -123,25 +120,14 @@ impl Simulator {
                 coef: vec![],
             },
             stats: Stats::default(),
-            seen: Scales::default(),
-            current_states: vec![],
-            voltage_terms: vec![],
-            multi_term_sources: vec![],
-            orders: vec![],
-            far_order: None,
-            pivoting: true,
+            scales,
+            candidates: resolve::Candidates::default(),
             memo: replay::Memo::default(),
-            replay: true,
-            plain: true,
-            cache_repeats: true,
-            poly_cache: true,
-            near_cache: true,
+            shortcuts: Shortcuts::ALL,
             plain_instants: 0,
             lane: true,
             lane_steps: 0,
-            ramp_switches,
-            phases: vec![transition::Phase::Idle; n_switches],
-            ramp_next: f64::INFINITY,
+            ramps: transition::Ramps::new(ramp_switches, n_switches),
             refused: None,
             stalled: Stall {
                 time: f64::NAN,
@@ -162,32 +148,13 @@ impl Simulator {
         sim
     }
 
-    /// The state entries whose largest magnitude sets the run's scales
-    /// (`update_scales`): inductor currents, capacitor voltages and
-    /// single-term source voltages, and the sources of several terms.
-    fn watch_scales(&mut self) {
-        self.current_states = self
-            .cc
-            .groups
-            .iter()
-            .flat_map(|g| g.states.iter().copied())
-            .collect();
-        self.voltage_terms = self.cc.caps.iter().map(|&(s, _)| (s, 1.0)).collect();
-        for (si, src) in self.cc.sources.iter().enumerate() {
-            match src.terms.as_slice() {
-                &[(k, f)] => self.voltage_terms.push((k, f)),
-                _ => self.multi_term_sources.push(si),
-            }
-        }
-    }
-
     /// The inputs and switch states at t = 0 and the first edges of every
     /// signal (those at t = 0 are already in the initial signal states).
     fn start_schedule(&mut self) {
         self.sched.const_inputs = self.constant_inputs();
         self.sched.gates_only = self.sched.const_inputs.is_some()
             && self.cc.comparators.is_empty()
-            && self.ramp_switches == 0;
+            && self.ramps.switches == 0;
         self.set_inputs(0.0);
         self.key.switches = self.switch_bits();
         for i in 0..self.sched.signals.len() {

@@ -233,33 +233,10 @@ pub(super) fn violated_guards(
 
 impl super::Simulator {
     /// Largest inductor current and largest capacitor or source voltage seen
-    /// so far in the run (never the present value alone: at a located zero
-    /// crossing the only inductor current is itself ~1e-17 A).
+    /// so far in the run, updated with the present state (see
+    /// `ScaleWatch::update`).
     #[inline(always)]
     pub(super) fn update_scales(&mut self) -> Scales {
-        let z = self.z.as_slice();
-        let mut i_s: f64 = self.seen.current;
-        for &s in &self.current_states {
-            i_s = i_s.max(z[s].abs());
-        }
-        // Capacitor voltages and single-term sources as (index, factor);
-        // the maximum does not depend on the order.
-        let mut v_s: f64 = self.seen.voltage;
-        for &(k, f) in &self.voltage_terms {
-            v_s = v_s.max((f * z[k]).abs());
-        }
-        for &si in &self.multi_term_sources {
-            let v: f64 = self.cc.sources[si]
-                .terms
-                .iter()
-                .map(|&(k, f)| f * z[k])
-                .sum();
-            v_s = v_s.max(v.abs());
-        }
-        self.seen = Scales {
-            current: i_s,
-            voltage: v_s,
-        };
-        self.seen
+        self.scales.update(self.z.as_slice(), &self.cc.sources)
     }
 }

@@ -75,7 +75,7 @@ impl Simulator {
             let mi = self.mode as usize;
             let cacheable = self.tkey.is_some();
             let bits = h.to_bits();
-            let cache = &self.caches[mi];
+            let cache = &self.modes.caches[mi];
             let phi = match cache.find_scheduled(bits) {
                 Some(phi) => phi,
                 None if !cacheable

@@ -477,8 +477,8 @@ mod tests {
     fn run(c: &Circuit, stop: f64, pivoting: bool, cross: bool) -> (RunResult, Option<CrossCheck>) {
         CROSS.with(|f| *f.borrow_mut() = cross.then(CrossCheck::default));
         let mut sim = Simulator::new(c, Options::default()).expect("compiles");
-        sim.replay = false;
-        sim.pivoting = pivoting;
+        sim.shortcuts.replay = false;
+        sim.shortcuts.pivoting = pivoting;
         sim.advance_to(stop).expect("runs");
         (sim.finish(), CROSS.with(|f| f.borrow_mut().take()))
     }
@@ -672,7 +672,7 @@ mod tests {
             // Advanced in slices of 10 µs, so a run that stops is compared
             // up to the slice where it stopped.
             if let Ok(mut sim) = Simulator::new(&c, opts) {
-                sim.replay = false;
+                sim.shortcuts.replay = false;
                 for k in 1..=40 {
                     if sim.advance_to(f64::from(k) * 1e-5).is_err() {
                         break;

@@ -146,9 +146,9 @@ impl Simulator {
         }
         // Borrowed out of `self` for the duration (an `Arc` clone costs two
         // atomic operations per interval).
-        let modes = std::mem::take(&mut self.modes);
+        let modes = std::mem::take(&mut self.modes.list);
         let found = self.locate_in(&modes[self.mode as usize], h, masks);
-        self.modes = modes;
+        self.modes.list = modes;
         found
     }
 
@@ -169,7 +169,7 @@ impl Simulator {
         }
         // The run's scales as of the last resolved instant: floors are
         // 1e-13 of them, so a lag of one interval does not matter.
-        let scales = self.seen;
+        let scales = self.scales.seen;
         let (za, zb) = (self.z.as_slice(), self.z_next.as_slice());
         if off_mask == 0 && on_mask == 0 {
             // No closed-loop gate: the mode's own guards only, without
@@ -190,7 +190,7 @@ impl Simulator {
     ) -> Option<Crossing> {
         let guards = active(mode, off_mask, on_mask);
         let n = propagate::substeps(mode.rate, h);
-        if n == 1 && off_mask == 0 && on_mask == 0 && self.poly_cache {
+        if n == 1 && off_mask == 0 && on_mask == 0 && self.shortcuts.guard_polynomials {
             if let Some(found) = self.locate_cached(mode, h) {
                 return found;
             }
@@ -257,11 +257,11 @@ impl Simulator {
     /// The present mode's spectrum, computed at its first stiff span.
     fn spectrum(&mut self) -> Option<Arc<Spectrum>> {
         let mi = self.mode as usize;
-        if self.caches[mi].spectrum.is_none() {
+        if self.modes.caches[mi].spectrum.is_none() {
             let sp = Spectrum::of(&self.modes[mi].m).map(Arc::new);
-            self.caches[mi].spectrum = Some(sp);
+            self.modes.caches[mi].spectrum = Some(sp);
         }
-        self.caches[mi].spectrum.clone().flatten()
+        self.modes.caches[mi].spectrum.clone().flatten()
     }
 
     /// Before a stiff span of length `h`: stops the run where the mode
@@ -327,7 +327,7 @@ impl Simulator {
                 zb.copy_from_slice(self.z_next.as_slice());
             } else {
                 let bits = d.to_bits();
-                let cache = &mut self.caches[mi].stiff_steps;
+                let cache = &mut self.modes.caches[mi].stiff_steps;
                 if let Some((_, e)) = cache.iter().find(|(k, _)| *k == bits) {
                     propagate::matvec(e, &za, &mut zb);
                 } else {
@@ -527,14 +527,22 @@ impl Simulator {
     fn locate_cached(&mut self, mode: &Mode, h: f64) -> Option<Option<Crossing>> {
         let mi = self.mode as usize;
         let bits = h.to_bits();
-        if !self.caches[mi].scheduled.iter().any(|(b, _)| *b == bits) {
+        if !self.modes.caches[mi]
+            .scheduled
+            .iter()
+            .any(|(b, _)| *b == bits)
+        {
             return None;
         }
-        let pi = match self.caches[mi].polys.iter().position(|p| p.bits == bits) {
+        let pi = match self.modes.caches[mi]
+            .polys
+            .iter()
+            .position(|p| p.bits == bits)
+        {
             Some(i) => i,
-            None if self.caches[mi].polys.len() < 16 => {
-                self.caches[mi].polys.push(GuardPolys::build(mode, h));
-                self.caches[mi].polys.len() - 1
+            None if self.modes.caches[mi].polys.len() < 16 => {
+                self.modes.caches[mi].polys.push(GuardPolys::build(mode, h));
+                self.modes.caches[mi].polys.len() - 1
             }
             None => return None,
         };
@@ -546,7 +554,7 @@ impl Simulator {
             *a = v.abs();
         }
         let mut coef = std::mem::take(&mut self.buf.coef);
-        let gp = &self.caches[mi].polys[pi];
+        let gp = &self.modes.caches[mi].polys[pi];
         let mut found: Found = None;
         // The crossings found, to start the next search from (a few are
         // enough: converters have a handful of guards).
@@ -568,7 +576,7 @@ impl Simulator {
             }
         }
         for &(gi, s) in &hits[..n_hits] {
-            self.caches[mi].polys[pi].hints[gi] = Some(s);
+            self.modes.caches[mi].polys[pi].hints[gi] = Some(s);
         }
         self.buf.coef = coef;
         self.buf.za = za_abs;

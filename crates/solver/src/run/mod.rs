@@ -23,6 +23,7 @@ mod control;
 mod lane;
 mod lcp;
 mod locate;
+mod modeset;
 pub(crate) mod paths;
 mod record;
 mod replay;
@@ -30,10 +31,10 @@ mod resolve;
 mod restart;
 mod result;
 mod sampled;
+mod scales;
 mod schedule;
 mod transition;
 
-use std::collections::HashMap;
 use std::sync::Arc;
 
 use nalgebra::{DMatrix, DVector};
@@ -41,7 +42,7 @@ use nalgebra::{DMatrix, DVector};
 use fluxstep_netlist::Circuit;
 
 use crate::compile::Compiled;
-use crate::crossing::{Crossing, Scales};
+use crate::crossing::Crossing;
 use crate::error::SolverError;
 use crate::events::{adopt, EventCause, EventLog};
 use crate::mode::{pattern_text, Mode, ModeKey};
@@ -49,7 +50,8 @@ use crate::options::{Options, Record, CHATTER_FRACTION};
 use crate::propagate;
 use crate::waveform::{OutputId, Waveform};
 
-use advance::ModeCache;
+use modeset::MAX_AGAIN;
+use paths::Shortcuts;
 use resolve::Moment;
 pub use result::{RunResult, SegmentSink, SegmentView, Stats};
 use schedule::{EdgeQueue, SignalBuffer, TimeKey};
@@ -75,22 +77,21 @@ use schedule::{EdgeQueue, SignalBuffer, TimeKey};
 /// assert!((i - (1.0 - (-1.0f64).exp())).abs() < 1e-12);
 /// ```
 pub struct Simulator {
+    /// The circuit as compiled (never changed by a run).
     cc: Compiled,
     opts: Options,
-    mode_index: HashMap<ModeKey, u32>,
-    /// Keys of `modes` in order; a linear scan beats hashing for the few
-    /// modes a converter visits.
-    mode_keys: Vec<ModeKey>,
-    modes: Vec<Arc<Mode>>,
-    /// What is cached per mode, by the bits of interval lengths.
-    caches: Vec<ModeCache>,
+    /// The present state, owned by the loop itself: the time and its
+    /// place in the periodic schedule, the state vector, the candidate
+    /// next state (end of the interval being advanced), and the mode's
+    /// number and conduction pattern.
     t: f64,
     tkey: Option<TimeKey>,
     z: DVector<f64>,
-    /// The candidate next state (end of the interval being advanced).
     z_next: DVector<f64>,
     mode: u32,
     key: ModeKey,
+    /// The mode set: modes met so far and their caches (`modeset.rs`).
+    modes: modeset::ModeSet,
     /// The schedule: gate signals and their upcoming edges, comparator
     /// ticks, controllers and their pending updates, source corners
     /// (`schedule.rs`).
@@ -99,43 +100,16 @@ pub struct Simulator {
     /// (`record.rs`).
     rec: record::Recorder,
     stats: Stats,
-    /// Largest inductor current and capacitor/source voltage seen so far.
-    seen: Scales,
-    /// The state entries that are inductor currents (for `seen`).
-    current_states: Vec<usize>,
-    /// Capacitor voltages (factor 1) and single-term source voltages as
-    /// (z index, factor), and the sources of several terms (for `seen`).
-    voltage_terms: Vec<(usize, f64)>,
-    multi_term_sources: Vec<usize>,
-    /// Candidate diode patterns ordered by distance from a first guess,
-    /// built once per first guess.
-    orders: Vec<Option<Vec<u64>>>,
-    /// Candidate diode patterns within distance two of a first guess,
-    /// for circuits of more than 16 diodes (built when pivoting fails).
-    far_order: Option<(u64, Vec<u64>)>,
-    /// Whether the pattern is found by principal pivoting (`lcp.rs`)
-    /// before the search by Hamming distance (off only in the tests that
-    /// use the search as an oracle).
-    pivoting: bool,
+    /// The scale watch: the largest inductor current and capacitor or
+    /// source voltage seen so far (`scales.rs`).
+    scales: scales::ScaleWatch,
+    /// Candidate diode patterns of the search by distance (`resolve.rs`).
+    candidates: resolve::Candidates,
     /// Remembered transitions (see `replay::Remembered`), at most 64.
     memo: replay::Memo,
-    /// Whether remembered transitions are replayed (off only in the test
-    /// that checks replay gives the same bits as the full search).
-    replay: bool,
-    /// Whether an instant with nothing but gate edges takes the plain
-    /// path (`Simulator::plain_instant`); off only in the test that checks
-    /// it gives the same bits as the general one.
-    plain: bool,
-    /// Whether lengths that come back are cached (off only in the test
-    /// that compares with advancing them by Taylor steps).
-    cache_repeats: bool,
-    /// Whether guard polynomials are cached per interval length (off only
-    /// in the test that compares with the Taylor expansion).
-    poly_cache: bool,
-    /// Advance lengths that are not cached from a nearby cached one
-    /// (`advance_near`), and spans of the schedule past the first 16 by the
-    /// cache of lengths that come back; off only in tests.
-    near_cache: bool,
+    /// Which shortcuts the run may take (`paths.rs`; all on but in tests
+    /// and through [`Simulator::set_shortcuts`]).
+    shortcuts: Shortcuts,
     /// Whether the lane (`lane.rs`) runs; off with plain instants, in
     /// the contract tests and through `Shortcuts`.
     lane: bool,
@@ -145,12 +119,9 @@ pub struct Simulator {
     plain_instants: usize,
     /// Scratch space of the stages (no state between calls).
     buf: advance::Buffers,
-    /// Bit i set: switch i has a transition model (`transition.rs`).
-    ramp_switches: u64,
-    /// Per switch: where it is in its transition.
-    phases: Vec<transition::Phase>,
-    /// The earliest end of a running ramp phase (∞ if none).
-    ramp_next: f64,
+    /// Switches with a transition model and where each is in its
+    /// transition (`transition.rs`).
+    ramps: transition::Ramps,
     /// Why `step` refused a stiff span (see `locate::check_resolvable`),
     /// reported by `check_finite` in place of the NaN it left.
     pub(super) refused: Option<SolverError>,
@@ -412,11 +383,7 @@ impl Simulator {
     }
 
     fn mode_id(&mut self, key: ModeKey) -> Result<u32, SolverError> {
-        if self.mode_keys.len() <= 32 {
-            if let Some(i) = self.mode_keys.iter().position(|k| *k == key) {
-                return Ok(i as u32);
-            }
-        } else if let Some(&i) = self.mode_index.get(&key) {
+        if let Some(i) = self.modes.find(key) {
             return Ok(i);
         }
         let m = Arc::new(Mode::build(&self.cc, key)?);
@@ -427,13 +394,8 @@ impl Simulator {
                 reason,
             });
         }
-        let i = self.modes.len() as u32;
-        self.modes.push(m.clone());
-        self.rec.wave.modes.push(m);
-        self.caches.push(ModeCache::default());
-        self.mode_index.insert(key, i);
-        self.mode_keys.push(key);
-        Ok(i)
+        self.rec.wave.modes.push(m.clone());
+        Ok(self.modes.insert(key, m))
     }
 }
 
@@ -463,7 +425,7 @@ mod tests {
     fn run(file: &str, stop: f64, replay: bool) -> RunResult {
         let c = example(file);
         let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
-        sim.replay = replay;
+        sim.shortcuts.replay = replay;
         sim.advance_to(stop).expect("runs");
         sim.finish()
     }
@@ -506,7 +468,7 @@ mod tests {
         for (file, c, stop) in runs {
             let run = |plain: bool| {
                 let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
-                sim.plain = plain;
+                sim.shortcuts.plain_instants = plain;
                 sim.lane = plain;
                 sim.advance_to(stop).expect("runs");
                 let steps = (sim.plain_instants, sim.lane_steps);
@@ -566,7 +528,7 @@ mod tests {
         let c = example("buck.json");
         let stop = |opts: &Options, plain: bool| {
             let mut sim = Simulator::new(&c, opts.clone()).expect("compiles");
-            sim.plain = plain;
+            sim.shortcuts.plain_instants = plain;
             sim.lane = plain;
             let err = sim.advance_to(2e-3).expect_err("must stop");
             let steps = sim.plain_instants;
@@ -617,7 +579,7 @@ mod tests {
                     ..Options::default()
                 };
                 let mut sim = Simulator::new(&c, opts).expect("compiles");
-                sim.plain = plain;
+                sim.shortcuts.plain_instants = plain;
                 sim.lane = plain;
                 for _ in 0..25 {
                     sim.advance_periods(3).expect("runs");
@@ -662,7 +624,7 @@ mod tests {
             .expect("valid");
         let run = |cache: bool| {
             let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
-            sim.cache_repeats = cache;
+            sim.shortcuts.repeated_lengths = cache;
             // Long enough for the located instant to settle to its last
             // bits (the output capacitor's time constant is 5 ms).
             sim.advance_to(60e-3).expect("runs");
@@ -714,7 +676,7 @@ mod tests {
                 .build()
                 .expect("valid");
             let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
-            sim.near_cache = near;
+            sim.shortcuts.nearby_lengths = near;
             let mut integral = 0.4;
             let pi = move |_t: f64, y: &[Option<f64>], cmd: &mut Commands| {
                 let e = 4.8 - y[0].expect("the output is determined");
@@ -752,7 +714,7 @@ mod tests {
             let c = example(file);
             let run = |near: bool| {
                 let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
-                sim.near_cache = near;
+                sim.shortcuts.nearby_lengths = near;
                 sim.advance_to(stop).expect("runs");
                 sim.finish()
             };
@@ -792,9 +754,14 @@ mod tests {
         let c = example("buck_dcm.json");
         let run = |cached: bool| {
             let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
-            sim.poly_cache = cached;
+            sim.shortcuts.guard_polynomials = cached;
             sim.advance_to(5e-3).expect("runs");
-            let used = sim.caches.iter().map(|c| c.polys.len()).sum::<usize>();
+            let used = sim
+                .modes
+                .caches
+                .iter()
+                .map(|c| c.polys.len())
+                .sum::<usize>();
             (sim.finish(), used)
         };
         let ((a, used), (b, unused)) = (run(true), run(false));

@@ -165,26 +165,14 @@ impl Simulator {
     /// assert_eq!(fast.events.to_json(), plain.events.to_json());
     /// ```
     pub fn set_shortcuts(&mut self, s: Shortcuts) {
-        self.plain = s.plain_instants;
+        self.shortcuts = s;
         // The lane is the plain instants' loop of periodic spans.
         self.lane = s.plain_instants;
-        self.replay = s.replay;
-        self.cache_repeats = s.repeated_lengths;
-        self.poly_cache = s.guard_polynomials;
-        self.near_cache = s.nearby_lengths;
-        self.pivoting = s.pivoting;
     }
 
     /// The shortcuts the run may take (see [`Simulator::set_shortcuts`]).
     pub fn shortcuts(&self) -> Shortcuts {
-        Shortcuts {
-            plain_instants: self.plain,
-            replay: self.replay,
-            repeated_lengths: self.cache_repeats,
-            guard_polynomials: self.poly_cache,
-            nearby_lengths: self.near_cache,
-            pivoting: self.pivoting,
-        }
+        self.shortcuts
     }
 }
 

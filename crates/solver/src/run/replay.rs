@@ -185,7 +185,7 @@ impl Simulator {
     /// [`Remembered`]).
     fn cut_rows(&self, list: &[u32]) -> (Vec<(u32, u32)>, Vec<u16>) {
         let z = self.z.as_slice();
-        let scales = self.seen;
+        let scales = self.scales.seen;
         let mut rows: Vec<(u32, u32)> = vec![];
         let mut by = Vec::with_capacity(list.len());
         for &mi in list {

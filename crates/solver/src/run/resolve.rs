@@ -73,6 +73,17 @@ impl Moment {
     }
 }
 
+/// Candidate diode patterns of the search by distance, built once per
+/// first guess.
+#[derive(Default)]
+pub(super) struct Candidates {
+    /// Patterns ordered by distance from each first guess.
+    pub(super) orders: Vec<Option<Vec<u64>>>,
+    /// Patterns within distance two of one first guess, for circuits of
+    /// more than 16 diodes (built when pivoting fails).
+    pub(super) far: Option<(u64, Vec<u64>)>,
+}
+
 impl Simulator {
     fn cause_text(&self, cause: Option<(usize, bool)>) -> Option<String> {
         cause.map(|(i, on)| {
@@ -96,16 +107,16 @@ impl Simulator {
         }
         let nd = self.cc.diodes.len();
         if nd > EXHAUSTIVE_DIODES {
-            if self.far_order.as_ref().map(|o| o.0) != Some(first) {
-                self.far_order = Some((first, near_patterns(first, nd)));
+            if self.candidates.far.as_ref().map(|o| o.0) != Some(first) {
+                self.candidates.far = Some((first, near_patterns(first, nd)));
             }
-            let order = &self.far_order.as_ref().expect("just set").1;
+            let order = &self.candidates.far.as_ref().expect("just set").1;
             return order.get(idx).copied();
         }
-        if self.orders.is_empty() {
-            self.orders = vec![None; 1 << nd];
+        if self.candidates.orders.is_empty() {
+            self.candidates.orders = vec![None; 1 << nd];
         }
-        self.orders[first as usize]
+        self.candidates.orders[first as usize]
             .get_or_insert_with(|| {
                 let mut c: Vec<u64> = (0..1u64 << nd).collect();
                 c.sort_by_key(|&c| ((c ^ first).count_ones(), c));
@@ -125,10 +136,10 @@ impl Simulator {
     ) -> Result<(), SolverError> {
         let first = self.key.diodes ^ flips;
         let scales = self.update_scales();
-        if !moment.is_start() && self.replay && self.resolve_remembered(flips, scales)? {
+        if !moment.is_start() && self.shortcuts.replay && self.resolve_remembered(flips, scales)? {
             return Ok(());
         }
-        if self.pivoting {
+        if self.shortcuts.pivoting {
             if let Some(found) = self.pivot(first, flips, moment, scales)? {
                 let found = self.settle(first, flips, found, moment, scales)?;
                 #[cfg(test)]
@@ -197,10 +208,10 @@ impl Simulator {
                 // The modes are borrowed out of `self` while the candidate is
                 // judged (cloning the `Arc` costs two atomic operations,
                 // which dominated this stage).
-                let modes = std::mem::take(&mut self.modes);
+                let modes = std::mem::take(&mut self.modes.list);
                 let verdict =
                     self.judge(&modes, mi, allow_cut, scales, &mut interruption, &mut other);
-                self.modes = modes;
+                self.modes.list = modes;
                 note_search_rejection(&mut cut_rejected, verdict, mi);
                 if !allow_cut {
                     self.remember(&cut_rejected, verdict, flips, mi);
@@ -301,9 +312,9 @@ impl Simulator {
             ramps: self.key.ramps,
         };
         let mi = self.mode_id(key)?;
-        let modes = std::mem::take(&mut self.modes);
+        let modes = std::mem::take(&mut self.modes.list);
         let verdict = self.judge(&modes, mi, false, scales, &mut None, &mut None);
-        self.modes = modes;
+        self.modes.list = modes;
         Ok((mi, verdict))
     }
 
@@ -467,7 +478,7 @@ impl Simulator {
             violations(
                 &self.modes[i.mode as usize],
                 self.z.as_slice(),
-                self.seen,
+                self.scales.seen,
                 Some(&mut windings),
             );
             let current = windings
@@ -662,7 +673,7 @@ mod tests {
 
     fn run(c: &Circuit, stop: f64, replay: bool) -> RunResult {
         let mut sim = Simulator::new(c, Options::default()).expect("compiles");
-        sim.replay = replay;
+        sim.shortcuts.replay = replay;
         sim.advance_to(stop).expect("runs");
         sim.finish()
     }
@@ -695,8 +706,8 @@ mod tests {
         let (mut checked, mut held) = (0, 0);
         for k in 1..400 {
             sim.advance_to(k as f64 * 37.3e-9).expect("runs");
-            let scales = sim.seen;
-            for mode in &sim.modes {
+            let scales = sim.scales.seen;
+            for mode in &sim.modes.list {
                 for g in &mode.guards {
                     // z minus its component along the guard's row: the
                     // guard is zero there to rounding.

@@ -261,15 +261,15 @@ impl Simulator {
                 }
             }
         }
-        if self.ramp_next < best.0 {
-            best = (self.ramp_next, None);
+        if self.ramps.next < best.0 {
+            best = (self.ramps.next, None);
         }
         best
     }
 
     pub(super) fn has_scheduled_at(&self, t: f64) -> bool {
         let until = coincident_until(t);
-        self.ramp_next <= until
+        self.ramps.next <= until
             || self
                 .sched
                 .signals
@@ -350,7 +350,7 @@ impl Simulator {
     /// the conduction pattern that follows.
     pub(super) fn apply_scheduled(&mut self, t: f64) -> Result<(), SolverError> {
         self.begin_instant();
-        if self.plain && self.plain_instants_allowed() {
+        if self.shortcuts.plain_instants && self.plain_instants_allowed() {
             return self.plain_instant(t);
         }
         let corners = self.set_inputs(t);
@@ -410,7 +410,7 @@ impl Simulator {
     pub(super) fn plain_instant(&mut self, t: f64) -> Result<(), SolverError> {
         self.plain_instants += 1;
         self.set_inputs(t);
-        if self.ramp_next <= coincident_until(t) {
+        if self.ramps.next <= coincident_until(t) {
             self.end_ramps(t);
         }
         let old = self.key.switches;
@@ -418,7 +418,7 @@ impl Simulator {
             self.key.switches = self.switch_bits();
         }
         let switched = old ^ self.key.switches;
-        if switched & self.ramp_switches != 0 {
+        if switched & self.ramps.switches != 0 {
             if let Err(e) = self.start_ramps(t, switched) {
                 // The general path logs the switches before their ramps.
                 self.push_instant(t, switched, 0)?;
@@ -426,7 +426,7 @@ impl Simulator {
             }
         }
         let scales = self.update_scales();
-        if self.replay {
+        if self.shortcuts.replay {
             if let Some((to, projected)) = self.remembered_target(0, scales) {
                 let old = self.enter_remembered(to, projected);
                 return self.push_instant(t, switched, old ^ self.key.diodes);
@@ -444,7 +444,7 @@ impl Simulator {
     /// Gate edges and comparator ticks due at `t`, then the conduction
     /// pattern that follows.
     pub(super) fn settle_instant(&mut self, t: f64) -> Result<(), SolverError> {
-        if self.ramp_next <= coincident_until(t) {
+        if self.ramps.next <= coincident_until(t) {
             self.end_ramps(t);
         }
         let mut cause = self.take_gate_edges(t)?;
@@ -512,7 +512,7 @@ impl Simulator {
         }
         let changed = sw ^ self.key.switches;
         self.key.switches = sw;
-        if changed & self.ramp_switches != 0 {
+        if changed & self.ramps.switches != 0 {
             self.start_ramps(t, changed)?;
         }
         Ok(cause)

@@ -29,6 +29,29 @@ use crate::error::SolverError;
 use crate::mode::ramp_bit;
 use crate::propagate::dot_slices;
 
+/// The switches with a transition model and where each is in its
+/// transition.
+pub(super) struct Ramps {
+    /// Bit i set: switch i has a transition model.
+    pub(super) switches: u64,
+    /// Per switch: where it is in its transition.
+    pub(super) phases: Vec<Phase>,
+    /// The earliest end of a running ramp phase (∞ if none).
+    pub(super) next: f64,
+}
+
+impl Ramps {
+    /// The switches of bits `switches` (of `n` switches) have a
+    /// transition model; none is in a transition.
+    pub(super) fn new(switches: u64, n: usize) -> Ramps {
+        Ramps {
+            switches,
+            phases: vec![Phase::Idle; n],
+            next: f64::INFINITY,
+        }
+    }
+}
+
 /// Where a switch is in its transition.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub(super) enum Phase {
@@ -70,7 +93,7 @@ impl Simulator {
     /// while its previous transition is still running.
     #[cold]
     pub(super) fn start_ramps(&mut self, t: f64, changed: u64) -> Result<(), SolverError> {
-        let mut rest = changed & self.ramp_switches;
+        let mut rest = changed & self.ramps.switches;
         let scales = self.update_scales();
         while rest != 0 {
             let i = rest.trailing_zeros() as usize;
@@ -80,8 +103,8 @@ impl Simulator {
                 .transition
                 .clone()
                 .expect("ramp_switches marks switches with a model");
-            if self.phases[i] != Phase::Idle {
-                let (edge, reason) = match self.phases[i] {
+            if self.ramps.phases[i] != Phase::Idle {
+                let (edge, reason) = match self.ramps.phases[i] {
                     Phase::OffVoltage => (
                         "turn-off",
                         "its voltage was still rising (no diode turned on to clamp it) when its gate turned on again",
@@ -117,10 +140,10 @@ impl Simulator {
                         z[info.value] = 0.0;
                         z[info.slope] = info.on.1;
                         self.key.ramps |= ramp_bit(i, false);
-                        self.phases[i] = Phase::OnCurrent;
+                        self.ramps.phases[i] = Phase::OnCurrent;
                     } else {
                         self.second_phase(i, false, voltage, t);
-                        self.ramp_next = self.next_ramp_end();
+                        self.ramps.next = self.next_ramp_end();
                     }
                 }
             } else {
@@ -132,7 +155,7 @@ impl Simulator {
                     z[info.value] = voltage;
                     z[info.slope] = info.off.0 * current.signum();
                     self.key.ramps |= ramp_bit(i, true);
-                    self.phases[i] = Phase::OffVoltage;
+                    self.ramps.phases[i] = Phase::OffVoltage;
                 }
             }
         }
@@ -144,8 +167,8 @@ impl Simulator {
     /// phase starts from the present current or voltage.
     #[cold]
     pub(super) fn clamp_ramps(&mut self, t: f64) {
-        for i in 0..self.phases.len() {
-            let phase = self.phases[i];
+        for i in 0..self.ramps.phases.len() {
+            let phase = self.ramps.phases[i];
             if !matches!(phase, Phase::OffVoltage | Phase::OnCurrent) {
                 continue;
             }
@@ -161,7 +184,7 @@ impl Simulator {
             };
             self.second_phase(i, off, now, t);
         }
-        self.ramp_next = self.next_ramp_end();
+        self.ramps.next = self.next_ramp_end();
     }
 
     /// Starts the second phase of switch `i` at `t` from the present value
@@ -182,7 +205,7 @@ impl Simulator {
         let end = (t + now.abs() / rate).max(f64::from_bits(t.to_bits() + 1));
         self.key.ramps &= !(ramp_bit(i, true) | ramp_bit(i, false));
         self.key.ramps |= ramp_bit(i, !off);
-        self.phases[i] = if off {
+        self.ramps.phases[i] = if off {
             Phase::OffCurrent { end }
         } else {
             Phase::OnVoltage { end }
@@ -194,8 +217,8 @@ impl Simulator {
     #[cold]
     pub(super) fn end_ramps(&mut self, t: f64) {
         let until = coincident_until(t);
-        for i in 0..self.phases.len() {
-            let end = match self.phases[i] {
+        for i in 0..self.ramps.phases.len() {
+            let end = match self.ramps.phases[i] {
                 Phase::OffCurrent { end } | Phase::OnVoltage { end } => end,
                 _ => continue,
             };
@@ -211,14 +234,15 @@ impl Simulator {
             z[value] = 0.0;
             z[slope] = 0.0;
             self.key.ramps &= !(ramp_bit(i, true) | ramp_bit(i, false));
-            self.phases[i] = Phase::Idle;
+            self.ramps.phases[i] = Phase::Idle;
         }
-        self.ramp_next = self.next_ramp_end();
+        self.ramps.next = self.next_ramp_end();
     }
 
     /// The earliest end of a running second phase (∞ if none).
     fn next_ramp_end(&self) -> f64 {
-        self.phases
+        self.ramps
+            .phases
             .iter()
             .filter_map(|p| match p {
                 Phase::OffCurrent { end } | Phase::OnVoltage { end } => Some(*end),
@@ -233,6 +257,7 @@ impl Simulator {
     pub(super) fn ramp_waits_for_clamp(&self) -> bool {
         self.key.ramps != 0
             && self
+                .ramps
                 .phases
                 .iter()
                 .any(|p| matches!(p, Phase::OffVoltage | Phase::OnCurrent))

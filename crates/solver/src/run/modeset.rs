@@ -1,0 +1,133 @@
+//! The mode set: every conduction pattern met so far, its compiled mode
+//! (numbered in the order first met) and what is cached for it. The
+//! stages read modes by number (`self.modes[mi]`); only
+//! `Simulator::mode_id` adds one.
+
+use std::collections::HashMap;
+use std::ops::Index;
+use std::sync::Arc;
+
+use nalgebra::DMatrix;
+
+use super::locate;
+use crate::mode::{Mode, ModeKey};
+use crate::propagate;
+
+/// The modes met so far and their caches, by number.
+#[derive(Default)]
+pub(super) struct ModeSet {
+    /// The modes by number. Stages that need a mode while changing the
+    /// rest of the simulator borrow this list out with `std::mem::take`
+    /// and put it back (cloning an `Arc` costs two atomic operations per
+    /// interval).
+    pub(super) list: Vec<Arc<Mode>>,
+    /// What is cached per mode, by the bits of interval lengths.
+    pub(super) caches: Vec<ModeCache>,
+    /// Keys of `list` in order; a linear scan beats hashing for the few
+    /// modes a converter visits.
+    keys: Vec<ModeKey>,
+    /// The number of each key, for sets past [`LINEAR_SCAN`] modes.
+    index: HashMap<ModeKey, u32>,
+}
+
+/// Up to this many modes a key is looked up by a linear scan.
+const LINEAR_SCAN: usize = 32;
+
+impl ModeSet {
+    /// The number of the mode of conduction pattern `key`, if met.
+    #[inline]
+    pub(super) fn find(&self, key: ModeKey) -> Option<u32> {
+        if self.keys.len() <= LINEAR_SCAN {
+            self.keys.iter().position(|k| *k == key).map(|i| i as u32)
+        } else {
+            self.index.get(&key).copied()
+        }
+    }
+
+    /// Adds the mode `m` of pattern `key` with an empty cache; its number.
+    pub(super) fn insert(&mut self, key: ModeKey, m: Arc<Mode>) -> u32 {
+        let i = self.list.len() as u32;
+        self.list.push(m);
+        self.caches.push(ModeCache::default());
+        self.index.insert(key, i);
+        self.keys.push(key);
+        i
+    }
+
+    /// How many modes have been met.
+    pub(super) fn len(&self) -> usize {
+        self.list.len()
+    }
+}
+
+impl Index<usize> for ModeSet {
+    type Output = Arc<Mode>;
+
+    #[inline(always)]
+    fn index(&self, i: usize) -> &Arc<Mode> {
+        &self.list[i]
+    }
+}
+
+/// A cached discretisation: the bits of a length h and e^{Mh}.
+pub(super) type Disc = (u64, DMatrix<f64>);
+
+/// What is cached for one mode, by the exact bits of interval lengths.
+pub(super) struct ModeCache {
+    /// e^{Mh} for spans of the schedule, at most 16.
+    pub(super) scheduled: Vec<Disc>,
+    /// The latest lengths advanced without a cached exponential (a ring).
+    pub(super) misses: [u64; REPEAT_RING],
+    /// e^{Mh} for lengths that came back, at most [`MAX_AGAIN`], and the
+    /// next one to replace once full (see `Simulator::advance_repeated`).
+    pub(super) repeated: Vec<Disc>,
+    pub(super) repeated_next: usize,
+    /// Guard polynomials of scheduled lengths (see `locate.rs`).
+    pub(super) polys: Vec<locate::GuardPolys>,
+    /// The mode's eigenvalues, computed at its first stiff span (`None`
+    /// before; `Some(None)` where they cannot be trusted).
+    pub(super) spectrum: Option<Option<std::sync::Arc<propagate::Spectrum>>>,
+    /// e^{Mδ} for the sub-interval lengths δ of stiff spans.
+    pub(super) stiff_steps: Vec<Disc>,
+}
+
+impl ModeCache {
+    /// The cached e^{Mh} of a span of the schedule whose length has the
+    /// bits `bits`.
+    #[inline(always)]
+    pub(super) fn find_scheduled(&self, bits: u64) -> Option<&DMatrix<f64>> {
+        self.scheduled
+            .iter()
+            .find(|(b, _)| *b == bits)
+            .map(|(_, phi)| phi)
+    }
+
+    /// The cached e^{Mh} of a length with the bits `bits` that came back.
+    #[inline(always)]
+    pub(super) fn find_repeated(&self, bits: u64) -> Option<&DMatrix<f64>> {
+        self.repeated
+            .iter()
+            .find(|(b, _)| *b == bits)
+            .map(|(_, phi)| phi)
+    }
+}
+
+impl Default for ModeCache {
+    fn default() -> Self {
+        ModeCache {
+            scheduled: vec![],
+            misses: [f64::NAN.to_bits(); REPEAT_RING],
+            repeated: vec![],
+            repeated_next: 0,
+            polys: vec![],
+            spectrum: None,
+            stiff_steps: vec![],
+        }
+    }
+}
+
+/// Lengths remembered per mode for caching on their return (see `step`).
+pub(super) const REPEAT_RING: usize = 8;
+
+/// Most exponentials cached per mode for lengths that came back.
+pub(super) const MAX_AGAIN: usize = 16;
