@@ -1,6 +1,6 @@
 //! Axes: value range and ticks of a panel, time ticks, decades, zoom ticks.
 
-use super::layout::{NoteShape, PanelLayout, YAxis};
+use super::parts::{NoteShape, PanelLayout, YAxis};
 use super::text::{clean, text_width};
 use super::{MARKER_STRIP, TICK_PX, ZOOM_W};
 use crate::error::PlotError;

@@ -5,7 +5,8 @@ use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, VPos};
 use plotters::style::FontTransform;
 
-use super::layout::{spread, Layout, Note, NoteShape, PanelLayout, Swatch, ZoomColumn};
+use super::layout::{spread, Layout};
+use super::parts::{Note, NoteShape, PanelLayout, Swatch, ZoomColumn};
 use super::text::{clean, px, text_style, text_width};
 use super::{
     coord, AXIS_PX, FRAME, GRID, HEADER_ROW, INK, INSTANT, MARGIN, MARKER_STRIP, NOTE_PX, PANEL_PX,

@@ -5,79 +5,16 @@ use plotters::prelude::*;
 
 use super::axes::{decade_axis, x_axis, y_axis, zoom_axis};
 use super::check::panel_name;
+use super::parts::{HeaderItem, Note, NoteShape, PanelLayout, Swatch, YAxis, ZoomColumn};
 use super::text::{clean, text_width};
 use super::{
     AXIS_PX, HEADER_ROW, INSTANT, MARGIN, MARKER_COLOURS, MIN_PLOT_H, MIN_PLOT_W, NOTE_PX,
-    PANEL_GAP, PANEL_PX, SWATCH, TICK_LEN, TICK_PX, TITLE_PX, TRACE_COLOURS, ZOOM_GAP, ZOOM_W,
+    PANEL_GAP, PANEL_PX, TICK_LEN, TICK_PX, TITLE_PX, TRACE_COLOURS, ZOOM_GAP, ZOOM_W,
 };
 use crate::error::PlotError;
 use crate::model::{Annotation, Figure, Panel};
 use crate::reduce::clip_to_window;
 use crate::scale::{format_si, nice_ticks, Ticks};
-
-pub(super) enum Swatch {
-    Line,
-    Tick,
-}
-
-pub(super) struct HeaderItem {
-    pub(super) text: String,
-    pub(super) colour: RGBColor,
-    pub(super) swatch: Swatch,
-}
-
-impl HeaderItem {
-    pub(super) fn width(&self) -> f64 {
-        SWATCH + 5.0 + text_width(&self.text, NOTE_PX)
-    }
-}
-
-pub(super) enum NoteShape {
-    Bracket { low: f64, high: f64 },
-    Level,
-}
-
-/// A label in the right-hand gutter, pointing at a value.
-pub(super) struct Note {
-    pub(super) text: String,
-    pub(super) colour: RGBColor,
-    pub(super) at: f64,
-    pub(super) shape: NoteShape,
-}
-
-pub(super) struct YAxis {
-    pub(super) low: f64,
-    pub(super) high: f64,
-    pub(super) ticks: Ticks,
-    pub(super) labels: Vec<String>,
-    pub(super) title: String,
-}
-
-pub(super) struct PanelLayout<'a> {
-    pub(super) panel: &'a Panel,
-    pub(super) instants: Vec<f64>,
-    pub(super) title: String,
-    pub(super) traces: Vec<Vec<(f64, f64)>>,
-    pub(super) colours: Vec<RGBColor>,
-    pub(super) legend: Vec<Vec<HeaderItem>>,
-    pub(super) markers: Vec<(f64, RGBColor)>,
-    pub(super) notes: Vec<Note>,
-    pub(super) top: f64,
-    pub(super) plot_top: f64,
-    pub(super) plot_bottom: f64,
-    pub(super) y: YAxis,
-}
-
-/// A narrow column showing a zoomed time window of every panel.
-pub(super) struct ZoomColumn {
-    pub(super) t0: f64,
-    pub(super) t1: f64,
-    pub(super) left: f64,
-    pub(super) right: f64,
-    pub(super) ticks: Ticks,
-    pub(super) labels: Vec<String>,
-    pub(super) title: String,
-}
 
 pub(super) struct Layout<'a> {
     pub(super) figure: &'a Figure,

@@ -19,6 +19,7 @@ mod axes;
 mod check;
 mod draw;
 mod layout;
+mod parts;
 mod text;
 
 use check::validate;

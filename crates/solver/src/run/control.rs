@@ -2,7 +2,7 @@
 //! and the switching of a gate when its comparison is met (a state event
 //! located like a diode's).
 
-use super::schedule::TimeKey;
+use super::instant::TimeKey;
 use super::{dot_iter, Simulator};
 use crate::error::SolverError;
 

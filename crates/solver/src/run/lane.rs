@@ -23,7 +23,7 @@
 //! more instructions (`once ccm all 60 reuse`), while this loop is within
 //! 3 % of the earlier lane; see docs/architecture.md.
 
-use super::schedule::interval_length;
+use super::instant::interval_length;
 use super::Simulator;
 use crate::error::SolverError;
 use crate::propagate;

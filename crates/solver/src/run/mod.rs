@@ -20,6 +20,7 @@ mod advance;
 mod build;
 mod checks;
 mod control;
+mod instant;
 mod lane;
 mod lcp;
 mod locate;
@@ -50,11 +51,12 @@ use crate::options::{Options, Record, CHATTER_FRACTION};
 use crate::propagate;
 use crate::waveform::{OutputId, Waveform};
 
+use instant::TimeKey;
 use modeset::MAX_AGAIN;
 use paths::Shortcuts;
 use resolve::Moment;
 pub use result::{RunResult, SegmentSink, SegmentView, Stats};
-use schedule::{EdgeQueue, SignalBuffer, TimeKey};
+use schedule::{EdgeQueue, SignalBuffer};
 
 /// A circuit being simulated: advance it to a time or by whole switching
 /// periods, and read its state in between.
@@ -197,7 +199,7 @@ impl Simulator {
             // returns at the first interval it does not handle, untouched.
             self.run_lane(t_end)?;
             let (t_next, key_next) = self.next_scheduled(t_end);
-            let h = schedule::interval_length(self.t, self.tkey, t_next, key_next);
+            let h = instant::interval_length(self.t, self.tkey, t_next, key_next);
             self.step(h, key_next.is_some() && self.tkey.is_some());
             if let Some(c) = self.locate(h) {
                 if c.time < h {

@@ -4,7 +4,7 @@
 
 use fluxstep_netlist::{Edge, Gate, Stimulus};
 
-use super::schedule::TimeKey;
+use super::instant::TimeKey;
 use super::{dot_iter, Simulator};
 use crate::control::{Apply, Command, Commands, Controller, Sampling};
 use crate::error::SolverError;

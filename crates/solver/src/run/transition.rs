@@ -22,7 +22,7 @@
 //! no diode conducts has no current to take over: it starts with the
 //! voltage fall.
 
-use super::schedule::coincident_until;
+use super::instant::coincident_until;
 use super::Simulator;
 use crate::crossing::EDGE_REL;
 use crate::error::SolverError;
