@@ -129,20 +129,7 @@ impl Simulator {
             lane_steps: 0,
             ramps: transition::Ramps::new(ramp_switches, n_switches),
             refused: None,
-            stalled: Stall {
-                time: f64::NAN,
-                pattern: ModeKey {
-                    switches: 0,
-                    diodes: 0,
-                    ramps: 0,
-                },
-                crossing: Crossing {
-                    time: 0.0,
-                    diodes: 0,
-                    comparators: 0,
-                },
-                repeats: 0,
-            },
+            stalled: finish::Stall::none(),
         };
         sim.sched.cmp_ticks = (0..n_cmp).map(|ci| sim.make_ticks(ci)).collect();
         sim

@@ -2,7 +2,8 @@
 //! and the switching of a gate when its comparison is met (a state event
 //! located like a diode's).
 
-use super::instant::TimeKey;
+use super::instant::{coincident_until, TimeKey};
+use super::resolve::Moment;
 use super::{dot_iter, Simulator};
 use crate::error::SolverError;
 
@@ -213,5 +214,20 @@ impl Simulator {
             }
         }
         Ok(cause)
+    }
+
+    /// Gate edges and comparator ticks due at `t`, then the conduction
+    /// pattern that follows.
+    pub(super) fn settle_instant(&mut self, t: f64) -> Result<(), SolverError> {
+        if self.ramps.next <= coincident_until(t) {
+            self.end_ramps(t);
+        }
+        let mut cause = self.take_gate_edges(t)?;
+        if !self.cc.comparators.is_empty() {
+            if let Some(c) = self.apply_ticks(t)? {
+                cause = Some(c);
+            }
+        }
+        self.resolve(0, cause, Moment::Run)
     }
 }

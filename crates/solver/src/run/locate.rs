@@ -39,17 +39,14 @@
 //! not finite, their sum is not the trace, or a fast growing mode) the
 //! rule above is kept.
 
-use std::sync::Arc;
-
 use nalgebra::{DMatrix, DVector};
 
 use super::Simulator;
 use crate::crossing::roots::{exact_root, guard_root};
 use crate::crossing::{at_end, same_instant, Crossing, Scales};
-use crate::error::SolverError;
-use crate::mode::{pattern_text, Guard, GuardKind, Mode};
+use crate::mode::{Guard, GuardKind, Mode};
 use crate::propagate;
-use crate::propagate::{dot_and_magnitude, dot_slices, Spectrum, PHASE_LIMIT};
+use crate::propagate::{dot_and_magnitude, dot_slices, Spectrum};
 
 /// Σ|aᵢ·bᵢ|: the magnitude of a dot product's terms.
 fn terms_magnitude(a: &[f64], b: &[f64]) -> f64 {
@@ -254,57 +251,6 @@ impl Simulator {
 }
 
 impl Simulator {
-    /// The present mode's spectrum, computed at its first stiff span.
-    fn spectrum(&mut self) -> Option<Arc<Spectrum>> {
-        let mi = self.mode as usize;
-        if self.modes.caches[mi].spectrum.is_none() {
-            let sp = Spectrum::of(&self.modes[mi].m).map(Arc::new);
-            self.modes.caches[mi].spectrum = Some(sp);
-        }
-        self.modes.caches[mi].spectrum.clone().flatten()
-    }
-
-    /// Before a stiff span of length `h`: stops the run where the mode
-    /// oscillates faster than f64 time and arithmetic can follow over it
-    /// (see `Spectrum::unresolved`), naming the state with the smallest
-    /// energy scale (√L or √C: the smallest inductance or capacitance
-    /// taking part), whose value makes it so.
-    ///
-    /// # Errors
-    ///
-    /// [`SolverError::Unsupported`] naming that state and the rate.
-    pub(super) fn check_resolvable(&mut self, h: f64) -> Result<(), SolverError> {
-        let Some(sp) = self.spectrum() else {
-            return Ok(());
-        };
-        let Some(w) = sp.unresolved(h, self.t + h) else {
-            return Ok(());
-        };
-        Err(self.too_fast(w, h))
-    }
-
-    #[cold]
-    #[inline(never)]
-    fn too_fast(&self, w: f64, h: f64) -> SolverError {
-        let mode = &self.modes[self.mode as usize];
-        let nx = self.cc.n_x;
-        let who = (0..nx.min(self.cc.x_scale.len()))
-            .filter(|&i| mode.m.row(i).iter().any(|v| *v != 0.0))
-            .min_by(|&a, &b| self.cc.x_scale[a].total_cmp(&self.cc.x_scale[b]))
-            .map(|i| self.cc.state_names[i].clone())
-            .unwrap_or_else(|| "a state".into());
-        SolverError::Unsupported {
-            time: self.t,
-            pattern: pattern_text(&self.cc, self.key),
-            reason: format!(
-                "the circuit oscillates at {w:.3e} rad/s in this pattern, too fast to follow \
-                 in 64-bit time and arithmetic over {h:.3e} s up to t = {:.3e} s (phase error \
-                 above {PHASE_LIMIT:e} rad); the fastest state is {who}: check its value",
-                self.t + h
-            ),
-        }
-    }
-
     /// [`Simulator::locate_in`] over a stiff span (see the module docs).
     fn locate_stiff(
         &mut self,
