@@ -389,7 +389,10 @@ impl PyRun {
 
     /// Counters: ``scheduled_events``, ``state_events`` (located),
     /// ``modes`` (conduction patterns met), ``cache_hits``,
-    /// ``exponentials``, ``near_steps``.
+    /// ``exponentials``, ``near_steps``, and per stage
+    /// ``searched_intervals`` (event location searched them),
+    /// ``replayed_transitions`` and ``resolved_patterns`` (patterns from
+    /// memory and by the full resolution).
     #[getter]
     fn stats<'py>(&self, py: Python<'py>) -> PyResult<Bound<'py, PyDict>> {
         let s = self.result.stats;
@@ -400,6 +403,9 @@ impl PyRun {
         d.set_item("cache_hits", s.cache_hits)?;
         d.set_item("exponentials", s.exponentials)?;
         d.set_item("near_steps", s.near_steps)?;
+        d.set_item("searched_intervals", s.searched_intervals)?;
+        d.set_item("replayed_transitions", s.replayed_transitions)?;
+        d.set_item("resolved_patterns", s.resolved_patterns)?;
         Ok(d)
     }
 

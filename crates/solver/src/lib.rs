@@ -97,6 +97,8 @@ pub use options::{
 };
 pub use propagate::eigenvalues;
 pub use run::paths::Shortcuts;
+#[cfg(feature = "stage-timers")]
+pub use run::StageTimes;
 pub use run::{simulate, RunResult, SegmentSink, SegmentView, Simulator, Stats};
 pub use states::{state_counts, StateCounts};
 pub use waveform::{OutputId, Segment, Side, TransitionSpan, ValueError, Waveform};

@@ -190,6 +190,13 @@ impl Simulator {
         &self.rec.log
     }
 
+    /// Wall time spent in each stage of the loop so far (the
+    /// `stage-timers` feature; see [`StageTimes`]).
+    #[cfg(feature = "stage-timers")]
+    pub fn stage_times(&self) -> StageTimes {
+        self.times
+    }
+
     /// Counters so far.
     pub fn stats(&self) -> Stats {
         let mut s = self.stats;

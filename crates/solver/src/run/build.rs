@@ -130,6 +130,8 @@ impl Simulator {
             ramps: transition::Ramps::new(ramp_switches, n_switches),
             refused: None,
             stalled: finish::Stall::none(),
+            #[cfg(feature = "stage-timers")]
+            times: StageTimes::default(),
         };
         sim.sched.cmp_ticks = (0..n_cmp).map(|ci| sim.make_ticks(ci)).collect();
         sim

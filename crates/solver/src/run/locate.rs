@@ -141,6 +141,7 @@ impl Simulator {
         if !self.may_cross(h, masks) {
             return None;
         }
+        self.stats.searched_intervals += 1;
         // Borrowed out of `self` for the duration (an `Arc` clone costs two
         // atomic operations per interval).
         let modes = std::mem::take(&mut self.modes.list);

@@ -59,6 +59,8 @@ use instant::TimeKey;
 use modeset::MAX_AGAIN;
 use paths::Shortcuts;
 use resolve::Moment;
+#[cfg(feature = "stage-timers")]
+pub use result::StageTimes;
 pub use result::{RunResult, SegmentSink, SegmentView, Stats};
 use schedule::{EdgeQueue, SignalBuffer};
 
@@ -134,6 +136,24 @@ pub struct Simulator {
     /// The last crossing located at the very instant the interval started
     /// (see [`Simulator::check_progress`]).
     stalled: finish::Stall,
+    /// Wall time per stage (the `stage-timers` feature).
+    #[cfg(feature = "stage-timers")]
+    times: StageTimes,
+}
+
+/// Runs a stage's call, adding its wall time to `$sim.times.$stage` with
+/// the `stage-timers` feature; just the call without it.
+macro_rules! timed {
+    ($sim:ident, $stage:ident, $call:expr) => {{
+        #[cfg(feature = "stage-timers")]
+        let start = std::time::Instant::now();
+        let out = $call;
+        #[cfg(feature = "stage-timers")]
+        {
+            $sim.times.$stage += start.elapsed();
+        }
+        out
+    }};
 }
 
 pub(crate) fn dot_iter(a: impl IntoIterator<Item = f64>, b: &[f64]) -> f64 {
@@ -184,19 +204,23 @@ impl Simulator {
         while self.t < t_end {
             // A stretch of cached periodic intervals first; the lane
             // returns at the first interval it does not handle, untouched.
-            self.run_lane(t_end)?;
-            let (t_next, key_next) = self.next_scheduled(t_end);
+            timed!(self, lane, self.run_lane(t_end))?;
+            let (t_next, key_next) = timed!(self, schedule, self.next_scheduled(t_end));
             let h = instant::interval_length(self.t, self.tkey, t_next, key_next);
-            self.step(h, key_next.is_some() && self.tkey.is_some());
-            if let Some(c) = self.locate(h) {
+            timed!(
+                self,
+                advance,
+                self.step(h, key_next.is_some() && self.tkey.is_some())
+            );
+            if let Some(c) = timed!(self, locate, self.locate(h)) {
                 if c.time < h {
-                    self.enter_crossing(c)?;
+                    timed!(self, finish, self.enter_crossing(c))?;
                     continue;
                 }
             }
-            self.finish_interval(t_next, h, key_next)?;
+            timed!(self, finish, self.finish_interval(t_next, h, key_next))?;
             if t_next < t_end || self.has_scheduled_at(t_next) {
-                self.apply_scheduled(t_next)?;
+                timed!(self, instants, self.apply_scheduled(t_next))?;
             }
         }
         Ok(())

@@ -300,6 +300,7 @@ impl Simulator {
     /// this runs at every scheduled edge); returns the diode bits before.
     /// The state before must already be in `before`.
     pub(super) fn enter_remembered(&mut self, to: u32, projected: bool) -> u64 {
+        self.stats.replayed_transitions += 1;
         if projected {
             std::mem::swap(&mut self.z, &mut self.buf.z_try);
         }

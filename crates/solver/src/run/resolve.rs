@@ -139,6 +139,7 @@ impl Simulator {
         if !moment.is_start() && self.shortcuts.replay && self.resolve_remembered(flips, scales)? {
             return Ok(());
         }
+        self.stats.resolved_patterns += 1;
         if self.shortcuts.pivoting {
             if let Some(found) = self.pivot(first, flips, moment, scales)? {
                 let found = self.settle(first, flips, found, moment, scales)?;

@@ -32,6 +32,39 @@ pub struct Stats {
     /// Sub-intervals scanned for state events in stiff spans (their
     /// lengths grow as fast decaying modes die out, see `locate.rs`).
     pub stiff_substeps: usize,
+    /// Intervals whose end-point checks could not rule a crossing out, so
+    /// event location searched them (`locate.rs`).
+    pub searched_intervals: usize,
+    /// Transitions between conduction patterns replayed from memory
+    /// (`replay.rs`), at located and scheduled instants alike.
+    pub replayed_transitions: usize,
+    /// Conduction patterns found by the full resolution (principal
+    /// pivoting, then the search by distance) where no remembered
+    /// transition applied (`resolve.rs`).
+    pub resolved_patterns: usize,
+}
+
+/// Wall time spent in each stage of the loop (see docs/architecture.md),
+/// kept only with the crate's `stage-timers` feature: two clock reads per
+/// stage call, for profiling; without the feature the loop has none.
+#[cfg(feature = "stage-timers")]
+#[derive(Clone, Copy, Debug, Default, PartialEq)]
+pub struct StageTimes {
+    /// Stage 1: the next scheduled instant (`next_scheduled`).
+    pub schedule: std::time::Duration,
+    /// Stage 2: the exact advance over the interval (`step`).
+    pub advance: std::time::Duration,
+    /// Stage 3: event location (`locate`).
+    pub locate: std::time::Duration,
+    /// Stages 4 and 5: ending the interval, at a located crossing with the
+    /// pattern that follows (`enter_crossing`) or at its scheduled end with
+    /// its record (`finish_interval`).
+    pub finish: std::time::Duration,
+    /// Stage 5b: the scheduled instant (`apply_scheduled`).
+    pub instants: std::time::Duration,
+    /// The lane (`run_lane`): stretches of cached periodic intervals, all
+    /// of their stages together.
+    pub lane: std::time::Duration,
 }
 
 /// A view of one finished segment, handed to a streaming sink.
@@ -75,4 +108,63 @@ pub struct RunResult {
     pub events: EventLog,
     /// Counters.
     pub stats: Stats,
+}
+
+#[cfg(test)]
+mod tests {
+    use crate::options::Options;
+    use crate::run::Simulator;
+    use crate::test_util::example;
+
+    /// Every resolution of a conduction pattern is either a replayed
+    /// transition or a full one, so a run without replay resolves in full
+    /// exactly as often as one with it replays and resolves together; and
+    /// every located event was first an interval searched.
+    #[test]
+    fn stage_counters_add_up() {
+        for file in ["buck_dcm.json", "boost.json", "flyback.json"] {
+            let c = example(file);
+            let run = |replay: bool| {
+                let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
+                sim.shortcuts.replay = replay;
+                sim.advance_to(1e-3).expect("runs");
+                sim.stats()
+            };
+            let (on, off) = (run(true), run(false));
+            assert!(on.replayed_transitions > 100, "{file}: {on:?}");
+            assert_eq!(off.replayed_transitions, 0, "{file}");
+            assert_eq!(
+                on.replayed_transitions + on.resolved_patterns,
+                off.resolved_patterns,
+                "{file}"
+            );
+            assert!(on.searched_intervals >= on.state_events, "{file}: {on:?}");
+            assert!(on.state_events > 0, "{file}: {on:?}");
+        }
+    }
+
+    /// With the `stage-timers` feature every stage of the loop has run
+    /// for some time (wired to its own counter).
+    #[cfg(feature = "stage-timers")]
+    #[test]
+    fn stage_timers_cover_every_stage() {
+        let c = example("buck_dcm.json");
+        let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
+        sim.lane = false;
+        sim.advance_to(1e-3).expect("runs");
+        let t = sim.stage_times();
+        let zero = std::time::Duration::ZERO;
+        for (name, d) in [
+            ("schedule", t.schedule),
+            ("advance", t.advance),
+            ("locate", t.locate),
+            ("finish", t.finish),
+            ("instants", t.instants),
+        ] {
+            assert!(d > zero, "{name}: {t:?}");
+        }
+        let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
+        sim.advance_to(1e-3).expect("runs");
+        assert!(sim.stage_times().lane > zero);
+    }
 }
