@@ -4,86 +4,14 @@
 //! back, a nearby cached length and a short Taylor remainder, or Taylor
 //! sub-steps (one exponential for a stiff span).
 
+use super::modeset::ModeCache;
 use super::*;
 use crate::propagate::{Spectrum, PHASE_LIMIT};
 
 impl Simulator {
-    /// z_next = e^{M·len} z in mode `mi` (matrix `m`) by an exponential
-    /// cached for a length that came back; false (nothing advanced) if
-    /// there is none yet. A length that is not a span of the schedule (it
-    /// starts or ends at a located event) is cached when the same bits
-    /// come back: once a converter in discontinuous conduction settles,
-    /// its located instants jitter only in their last bits, so the lengths
-    /// take a few distinct values, while a length seen once costs no
-    /// exponential. The oldest entry makes room for a new one, so the
-    /// lengths of the settling transient do not keep out those of the
-    /// steady state.
-    pub(super) fn advance_repeated(&mut self, mi: usize, m: &DMatrix<f64>, len: f64) -> bool {
-        let bits = len.to_bits();
-        let cache = &mut self.modes.caches[mi];
-        if let Some(phi) = cache.find_repeated(bits) {
-            self.stats.cache_hits += 1;
-            propagate::matvec(phi, self.z.as_slice(), self.z_next.as_mut_slice());
-            return true;
-        }
-        if !self.shortcuts.repeated_lengths {
-            return false;
-        }
-        if !cache.misses.contains(&bits) {
-            cache.misses.rotate_right(1);
-            cache.misses[0] = bits;
-            return false;
-        }
-        self.stats.exponentials += 1;
-        let phi = propagate::expm(m, len);
-        propagate::matvec(&phi, self.z.as_slice(), self.z_next.as_mut_slice());
-        if cache.repeated.len() < MAX_AGAIN {
-            cache.repeated.push((bits, phi));
-        } else {
-            cache.repeated[cache.repeated_next] = (bits, phi);
-            cache.repeated_next = (cache.repeated_next + 1) % MAX_AGAIN;
-        }
-        true
-    }
-
-    /// Advance over `len` in mode `mi`, into `z_next`, from a cached
-    /// exponential of a nearby length h₀ (|len − h₀| ≤ len/4, the nearest
-    /// one): e^{M·len} z = e^{M(len−h₀)} (e^{Mh₀} z), the short remainder
-    /// by Taylor terms. The lengths of a converter under a controller move
-    /// by a little every period, so their exponentials are not cached, but
-    /// the remainder needs a few terms where the whole length needs a
-    /// dozen or more. As exact as the Taylor path (to rounding; a test
-    /// compares the two to 1e-12). False if no cached length is near.
-    pub(super) fn advance_near(&mut self, mi: usize, m: &Mode, len: f64) -> bool {
-        if !self.shortcuts.nearby_lengths {
-            return false;
-        }
-        let cache = &self.modes.caches[mi];
-        let mut best: Option<(f64, &DMatrix<f64>)> = None;
-        for (b, phi) in cache.scheduled.iter().chain(&cache.repeated) {
-            let d = len - f64::from_bits(*b);
-            if d.abs() <= 0.25 * len && best.is_none_or(|(bd, _)| d.abs() < bd.abs()) {
-                best = Some((d, phi));
-            }
-        }
-        let Some((delta, phi)) = best else {
-            return false;
-        };
-        self.stats.near_steps += 1;
-        propagate::matvec(phi, self.z.as_slice(), self.buf.z_try.as_mut_slice());
-        propagate::advance_into(
-            &m.m,
-            m.live,
-            m.rate,
-            self.buf.z_try.as_slice(),
-            delta,
-            self.z_next.as_mut_slice(),
-            &mut self.buf.advance,
-        );
-        true
-    }
-
-    /// Exact advance over `h` in the present mode, into `z_next`.
+    /// Exact advance over `h` in the present mode, into `z_next`: the
+    /// stage's entry, which hands the mode's cache only the state, the
+    /// counters and the scratch space (`ModeCache::advance_uncached`).
     pub(super) fn step(&mut self, h: f64, cacheable: bool) {
         let mi = self.mode as usize;
         let bits = h.to_bits();
@@ -103,47 +31,21 @@ impl Simulator {
                 return;
             }
         }
-        // The modes are borrowed out of `self` meanwhile: cloning the
-        // `Arc` cost two atomic operations at every step of a circuit
-        // with transition models (four lengths a period are not cached).
-        let modes = std::mem::take(&mut self.modes.list);
-        self.step_uncached(&modes[mi], h, cacheable, stiff);
-        self.modes.list = modes;
-    }
-
-    /// The rest of `step` where no span of the schedule is cached (the
-    /// modes are borrowed out of `self`).
-    fn step_uncached(&mut self, m: &Mode, h: f64, cacheable: bool, stiff: bool) {
-        let mi = self.mode as usize;
-        let bits = h.to_bits();
-        if cacheable && self.modes.caches[mi].scheduled.len() < 16 {
-            self.stats.exponentials += 1;
-            let phi = propagate::expm(&m.m, h);
-            propagate::matvec(&phi, self.z.as_slice(), self.z_next.as_mut_slice());
-            self.modes.caches[mi].scheduled.push((bits, phi));
-            return;
-        }
-        // Lengths that come back, whether spans of the schedule (once 16
-        // of them are cached: a controller moves the edges) or not.
-        if (!cacheable || self.shortcuts.nearby_lengths) && self.advance_repeated(mi, &m.m, h) {
-            return;
-        }
-        if stiff {
-            // One exponential (a near length's remainder could be a step
-            // back over a fast decay).
-            self.stats.stiff_spans += 1;
-            self.stats.exponentials += 1;
-        } else if self.advance_near(mi, m, h) {
-            return;
-        }
-        propagate::advance_into(
-            &m.m,
-            m.live,
-            m.rate,
-            self.z.as_slice(),
-            h,
-            self.z_next.as_mut_slice(),
-            &mut self.buf.advance,
+        let (m, cache) = self.modes.entry(mi);
+        cache.advance_uncached(
+            m,
+            Span {
+                h,
+                cacheable,
+                stiff,
+            },
+            self.shortcuts,
+            Io {
+                z: self.z.as_slice(),
+                z_next: self.z_next.as_mut_slice(),
+                stats: &mut self.stats,
+                buf: &mut self.buf,
+            },
         );
     }
 
@@ -196,6 +98,168 @@ impl Simulator {
                 self.t + h
             ),
         }
+    }
+}
+
+/// An interval to advance: its length, whether it is a span of the
+/// schedule (both ends periodic edges: its exponential may be cached as
+/// such), and whether it is stiff (more Taylor sub-steps than
+/// [`propagate::STIFF_SUBSTEPS`]).
+#[derive(Clone, Copy)]
+pub(super) struct Span {
+    pub(super) h: f64,
+    pub(super) cacheable: bool,
+    pub(super) stiff: bool,
+}
+
+/// What stage 2 is handed besides the mode and its cache: the state at
+/// the start, where the state at the end goes, the counters and the
+/// scratch space. Nothing else of the simulator.
+pub(super) struct Io<'a> {
+    /// The state at the start of the interval.
+    pub(super) z: &'a [f64],
+    /// Where the state at its end goes.
+    pub(super) z_next: &'a mut [f64],
+    pub(super) stats: &'a mut Stats,
+    pub(super) buf: &'a mut Buffers,
+}
+
+impl ModeCache {
+    /// The rest of `step` where no span of the schedule is cached: a new
+    /// span's exponential (16 at most), a length that came back, a nearby
+    /// length and a short remainder, or Taylor sub-steps (one exponential
+    /// for a stiff span), in mode `m` whose cache this is.
+    fn advance_uncached(&mut self, m: &Mode, span: Span, shortcuts: Shortcuts, io: Io<'_>) {
+        let Span {
+            h,
+            cacheable,
+            stiff,
+        } = span;
+        if cacheable && self.scheduled.len() < 16 {
+            io.stats.exponentials += 1;
+            let phi = propagate::expm(&m.m, h);
+            propagate::matvec(&phi, io.z, io.z_next);
+            self.scheduled.push((h.to_bits(), phi));
+            return;
+        }
+        // Lengths that come back, whether spans of the schedule (once 16
+        // of them are cached: a controller moves the edges) or not.
+        if (!cacheable || shortcuts.nearby_lengths)
+            && self.advance_repeated(
+                &m.m,
+                h,
+                (io.z, &mut *io.z_next),
+                io.stats,
+                shortcuts.repeated_lengths,
+            )
+        {
+            return;
+        }
+        if stiff {
+            // One exponential (a near length's remainder could be a step
+            // back over a fast decay).
+            io.stats.stiff_spans += 1;
+            io.stats.exponentials += 1;
+        } else if shortcuts.nearby_lengths
+            && self.advance_near(m, h, io.z, io.z_next, io.stats, io.buf)
+        {
+            return;
+        }
+        propagate::advance_into(
+            &m.m,
+            m.live,
+            m.rate,
+            io.z,
+            h,
+            io.z_next,
+            &mut io.buf.advance,
+        );
+    }
+
+    /// z_next = e^{M·len} z (`m` is M, `(z, z_next)` the states) by an
+    /// exponential cached for a length that came back; false (nothing
+    /// advanced) if there is none yet. With `make`, a length that is not
+    /// a span of the schedule (it starts or ends at a located event) is
+    /// cached when the same bits come back: once a converter in
+    /// discontinuous conduction settles, its located instants jitter only
+    /// in their last bits, so the lengths take a few distinct values,
+    /// while a length seen once costs no exponential. The oldest entry
+    /// makes room for a new one, so the lengths of the settling transient
+    /// do not keep out those of the steady state.
+    pub(super) fn advance_repeated(
+        &mut self,
+        m: &DMatrix<f64>,
+        len: f64,
+        (z, z_next): (&[f64], &mut [f64]),
+        stats: &mut Stats,
+        make: bool,
+    ) -> bool {
+        let bits = len.to_bits();
+        if let Some(phi) = self.find_repeated(bits) {
+            stats.cache_hits += 1;
+            propagate::matvec(phi, z, z_next);
+            return true;
+        }
+        if !make {
+            return false;
+        }
+        if !self.misses.contains(&bits) {
+            self.misses.rotate_right(1);
+            self.misses[0] = bits;
+            return false;
+        }
+        stats.exponentials += 1;
+        let phi = propagate::expm(m, len);
+        propagate::matvec(&phi, z, z_next);
+        if self.repeated.len() < MAX_AGAIN {
+            self.repeated.push((bits, phi));
+        } else {
+            self.repeated[self.repeated_next] = (bits, phi);
+            self.repeated_next = (self.repeated_next + 1) % MAX_AGAIN;
+        }
+        true
+    }
+
+    /// Advance over `len` in mode `m`, from `z` into `z_next`, from a
+    /// cached exponential of a nearby length h₀ (|len − h₀| ≤ len/4, the
+    /// nearest one): e^{M·len} z = e^{M(len−h₀)} (e^{Mh₀} z), the short
+    /// remainder by Taylor terms. The lengths of a converter under a
+    /// controller move by a little every period, so their exponentials
+    /// are not cached, but the remainder needs a few terms where the whole
+    /// length needs a dozen or more. As exact as the Taylor path (to
+    /// rounding; a test compares the two to 1e-12). False if no cached
+    /// length is near.
+    fn advance_near(
+        &self,
+        m: &Mode,
+        len: f64,
+        z: &[f64],
+        z_next: &mut [f64],
+        stats: &mut Stats,
+        buf: &mut Buffers,
+    ) -> bool {
+        let mut best: Option<(f64, &DMatrix<f64>)> = None;
+        for (b, phi) in self.scheduled.iter().chain(&self.repeated) {
+            let d = len - f64::from_bits(*b);
+            if d.abs() <= 0.25 * len && best.is_none_or(|(bd, _)| d.abs() < bd.abs()) {
+                best = Some((d, phi));
+            }
+        }
+        let Some((delta, phi)) = best else {
+            return false;
+        };
+        stats.near_steps += 1;
+        propagate::matvec(phi, z, buf.z_try.as_mut_slice());
+        propagate::advance_into(
+            &m.m,
+            m.live,
+            m.rate,
+            buf.z_try.as_slice(),
+            delta,
+            z_next,
+            &mut buf.advance,
+        );
+        true
     }
 }
 

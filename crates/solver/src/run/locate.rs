@@ -535,7 +535,13 @@ impl Simulator {
         if at_end(t, h) {
             return Some(Some(crossing(h, b)));
         }
-        if !self.advance_repeated(mi, &mode.m, t) {
+        if !self.modes.caches[mi].advance_repeated(
+            &mode.m,
+            t,
+            (self.z.as_slice(), self.z_next.as_mut_slice()),
+            &mut self.stats,
+            self.shortcuts.repeated_lengths,
+        ) {
             // The state at the crossing from the Taylor vectors, into
             // `z_next`.
             let mut terms = std::mem::take(&mut self.buf.terms);

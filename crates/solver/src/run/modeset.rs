@@ -54,6 +54,12 @@ impl ModeSet {
         i
     }
 
+    /// Mode `i` and its cache, the one to read while writing the other.
+    #[inline(always)]
+    pub(super) fn entry(&mut self, i: usize) -> (&Mode, &mut ModeCache) {
+        (&self.list[i], &mut self.caches[i])
+    }
+
     /// How many modes have been met.
     pub(super) fn len(&self) -> usize {
         self.list.len()
