@@ -31,15 +31,20 @@
 //! # Stages
 //!
 //! [`Simulator::advance_to`] is one loop whose lines are stages in files of
-//! their own: the next scheduled instant (`run/schedule.rs`) → the exact
-//! advance over the interval (`run/advance.rs`) → the earliest state event
-//! inside it (`run/locate.rs`, on the tolerances and root finders of
-//! `crossing/`) → the conduction pattern that follows (`run/resolve.rs`,
-//! `run/replay.rs`, `run/lcp.rs`, `run/checks.rs`) → the record
-//! (`run/record.rs`). Modes are built in named steps (`mode/`). The map of
-//! stages, what each container owns, where a change goes and which
-//! invariants the contract tests pin: `docs/architecture.md` in the
-//! repository.
+//! their own: the next scheduled instant (`run/schedule.rs`) → the
+//! interval's length (`run/instant.rs`) → the exact advance over it
+//! (`run/advance.rs`) → the earliest state event inside it
+//! (`run/locate.rs`, on the tolerances and root finders of `crossing/`) →
+//! the end of the interval, at that event or at the scheduled instant
+//! (`run/finish.rs`, `run/enter.rs`), with the conduction pattern that
+//! follows (`run/resolve.rs`, `run/replay.rs`, `run/lcp.rs`,
+//! `run/checks.rs`) and the record (`run/record.rs`). The lane
+//! (`run/lane.rs`) runs stretches of cached periodic intervals with the
+//! same functions. Each stage counts its work in [`Stats`]; the
+//! `stage-timers` feature adds its wall time. Modes are built in named
+//! steps (`mode/`). The map of stages, what each container owns, where a
+//! change goes and which invariants the contract tests pin:
+//! `docs/architecture.md` in the repository.
 //!
 //! # Example
 //!

@@ -1,14 +1,18 @@
 //! The transient run, read as stages (one file each), in the order of
 //! `Simulator::advance_to`: the next scheduled instant (`schedule.rs`) →
-//! the exact advance over the interval (`advance.rs`) → the earliest state
-//! event inside it (`locate.rs`) → entering that event or the scheduled
-//! instant, and the conduction pattern that follows (`resolve.rs` with
-//! `replay.rs`, `lcp.rs`, `checks.rs`; `transition.rs` for switching
-//! ramps, `control.rs` and `sampled.rs` for closed loops) → the record
-//! (`record.rs`); `lane.rs` runs stretches of cached periodic intervals
-//! at once with the same functions. `build.rs` makes a simulator, `access.rs` is what a user
-//! reads of it, `result.rs` what a run returns. The state is grouped by
-//! owner (`Schedule`, `Recorder`, `Buffers`; docs/architecture.md).
+//! the interval's length (`instant.rs`) → the exact advance over it
+//! (`advance.rs`) → the earliest state event inside it (`locate.rs`) →
+//! the end of the interval (`finish.rs`): at that event, or at the
+//! scheduled instant and what is due there (`enter.rs`), with the
+//! conduction pattern that follows (`resolve.rs` with `replay.rs`,
+//! `lcp.rs`, `checks.rs`) and the record (`record.rs`). Below them:
+//! `gates.rs`, `inputs.rs`, `control.rs` and `sampled.rs` (closed loops),
+//! `transition.rs` (switching ramps). `lane.rs` runs stretches of cached
+//! periodic intervals at once with the same functions. `build.rs` makes a
+//! simulator, `access.rs` is what a user reads of it, `result.rs` what a
+//! run returns. The state is grouped by owner (`ModeSet`, `Schedule`,
+//! `Recorder`, `ScaleWatch`, `Memo`, `Candidates`, `Ramps`, `Buffers`;
+//! docs/architecture.md).
 //!
 //! The loop is built not to allocate: state vectors are swapped between two
 //! buffers, matrix-vector products write into scratch space, events are
