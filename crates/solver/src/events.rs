@@ -284,12 +284,7 @@ impl EventLog {
         before: &[f64],
         after: &[f64],
     ) -> bool {
-        let n = self.state_names.len();
-        if before.len() != n
-            || after.len() != n
-            || self.snapshots >= u32::MAX - 2
-            || self.records.len() >= (u32::MAX - 1) as usize
-        {
+        if !self.has_room(before, after, 1) {
             return false;
         }
         let b = self.snapshot(before);
@@ -303,14 +298,7 @@ impl EventLog {
         if let Some(j) = jump {
             self.energies.push((self.records.len() as u32, j));
         }
-        self.records.push(Compact {
-            time,
-            who,
-            before: b,
-            after: a,
-            kind,
-            cause,
-        });
+        self.push_record(time, who, kind, cause, (b, a));
         true
     }
 
@@ -329,24 +317,12 @@ impl EventLog {
         before: &[f64],
         after: &[f64],
     ) -> bool {
-        let n = self.state_names.len();
-        if before.len() != n
-            || after.len() != n
-            || self.snapshots >= u32::MAX - 4
-            || self.records.len() >= (u32::MAX - 3) as usize
-        {
+        if !self.has_room(before, after, 2) {
             return false;
         }
         let b = self.snapshot(before);
         if let Some((kind, who)) = first {
-            self.records.push(Compact {
-                time,
-                who,
-                before: b,
-                after: b,
-                kind,
-                cause,
-            });
+            self.push_record(time, who, kind, cause, (b, b));
         }
         if let Some((kind, who)) = second {
             // One by one, the state after is compared with the snapshot
@@ -358,16 +334,41 @@ impl EventLog {
                 self.snapshots += 1;
                 self.snapshots - 1
             };
-            self.records.push(Compact {
-                time,
-                who,
-                before: b,
-                after: a,
-                kind,
-                cause,
-            });
+            self.push_record(time, who, kind, cause, (b, a));
         }
         true
+    }
+
+    /// Appends one record whose states are the snapshots numbered
+    /// `(before, after)`.
+    #[inline(always)]
+    fn push_record(
+        &mut self,
+        time: f64,
+        who: u32,
+        kind: EventKind,
+        cause: EventCause,
+        (before, after): (u32, u32),
+    ) {
+        self.records.push(Compact {
+            time,
+            who,
+            before,
+            after,
+            kind,
+            cause,
+        });
+    }
+
+    /// Whether `records` more records (1 or 2) with their snapshots fit
+    /// the log's 32-bit numbering, and the states have the log's length.
+    #[inline(always)]
+    fn has_room(&self, before: &[f64], after: &[f64], records: u32) -> bool {
+        let n = self.state_names.len();
+        before.len() == n
+            && after.len() == n
+            && self.snapshots < u32::MAX - 2 * records
+            && self.records.len() < (u32::MAX - (2 * records - 1)) as usize
     }
 
     fn view(&self, i: usize, c: &Compact) -> EventRef<'_> {

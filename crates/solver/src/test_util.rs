@@ -58,6 +58,24 @@ pub(crate) fn sync_buck(start: Option<(f64, f64)>, ramps: bool) -> fluxstep_netl
     c
 }
 
+/// Every example circuit, with a run time that reaches its steady
+/// behaviour (the unit tests' shared list).
+pub(crate) const EXAMPLES: [(&str, f64); 13] = [
+    ("buck.json", 1e-3),
+    ("buck_dcm.json", 1e-3),
+    ("boost.json", 1e-3),
+    ("sync_buck.json", 1e-3),
+    ("flyback.json", 2e-3),
+    ("rectifier.json", 40e-3),
+    ("peak_current_buck.json", 1e-3),
+    ("hysteretic_buck.json", 1e-3),
+    ("voltage_mode_buck.json", 2e-3),
+    ("buck_boost.json", 1e-3),
+    ("three_phase_bridge.json", 40e-3),
+    ("interleaved_buck_12.json", 20e-6),
+    ("three_phase_inverter.json", 20e-3),
+];
+
 /// An example circuit file of the repository (examples/circuits).
 pub(crate) fn example(file: &str) -> fluxstep_netlist::Circuit {
     let path = format!(

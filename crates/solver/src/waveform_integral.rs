@@ -1,8 +1,9 @@
 //! Integrals of outputs on the exact solution: Gauss–Legendre on
 //! sub-intervals short against the fastest dynamics, exact up to rounding.
 
-use nalgebra::DMatrix;
+use nalgebra::{DMatrix, DVector};
 
+use crate::mode::Mode;
 use crate::propagate;
 use crate::waveform::{OutputId, Waveform};
 
@@ -86,7 +87,8 @@ impl Waveform {
                 return f64::NAN;
             }
             if let Some(sp) = spectrum {
-                return self.integrate_stiff(i, &sp, ids, a, width, origin, f);
+                let z = propagate::advance(&m.m, m.rate, &self.z0(i), a);
+                return Self::integrate_stiff(m, &sp, z, ids, (a, width), origin, f);
             }
         }
         let d = width / n as f64;
@@ -132,22 +134,20 @@ impl Waveform {
     /// ones dead after `propagate::DEAD`/(−Re λ) from the segment's
     /// start, the same grading as event location in `run/locate.rs`), so
     /// the Gauss–Legendre rule stays exact on each; states from matrix
-    /// exponentials, cached per sub-interval length within the call.
-    #[allow(clippy::too_many_arguments)] // integrate_piece's, plus the spectrum
+    /// exponentials, cached per sub-interval length within the call. The
+    /// piece is `width` long from the offset `a` into a segment of mode
+    /// `m`, where the state is `z`.
     fn integrate_stiff(
-        &self,
-        i: usize,
+        m: &Mode,
         sp: &propagate::Spectrum,
+        mut z: DVector<f64>,
         ids: &[OutputId],
-        a: f64,
-        width: f64,
+        (a, width): (f64, f64),
         origin: f64,
         f: impl Fn(f64, &[f64]) -> f64,
     ) -> f64 {
-        let m = &self.modes[self.segments[i].mode as usize];
         let mut vals = vec![0.0; ids.len()];
         let mut total = 0.0;
-        let mut z = propagate::advance(&m.m, m.rate, &self.z0(i), a);
         // Per sub-interval length: e^{Mδ(x+1)/2} at the 8 nodes and e^{Mδ}.
         let mut cache: Vec<(u64, Vec<DMatrix<f64>>)> = vec![];
         let mut tau = 0.0;

@@ -452,25 +452,7 @@ mod tests {
     use fluxstep_netlist::Circuit;
     use proptest::prelude::*;
 
-    use crate::test_util::example;
-
-    /// Every example circuit, with a run time that reaches its steady
-    /// behaviour.
-    const EXAMPLES: [(&str, f64); 13] = [
-        ("buck.json", 1e-3),
-        ("buck_dcm.json", 1e-3),
-        ("boost.json", 1e-3),
-        ("sync_buck.json", 1e-3),
-        ("flyback.json", 2e-3),
-        ("rectifier.json", 40e-3),
-        ("peak_current_buck.json", 1e-3),
-        ("hysteretic_buck.json", 1e-3),
-        ("voltage_mode_buck.json", 2e-3),
-        ("buck_boost.json", 1e-3),
-        ("three_phase_bridge.json", 40e-3),
-        ("interleaved_buck_12.json", 20e-6),
-        ("three_phase_inverter.json", 20e-3),
-    ];
+    use crate::test_util::{example, EXAMPLES};
 
     /// Runs `c` for `stop` s with the given switches; replay is off so
     /// that every instant is resolved in full.

@@ -329,7 +329,7 @@ pub fn simulate(
 mod tests {
     use super::*;
 
-    use crate::test_util::example;
+    use crate::test_util::{self, example};
 
     /// Runs a circuit file for `stop` seconds with or without replay of
     /// remembered transitions.
@@ -621,7 +621,7 @@ mod tests {
         );
         compare_runs(&a, &b, 100e-3, "PI buck");
         // And every example converter.
-        for (file, stop) in EXAMPLES {
+        for &(file, stop) in EXAMPLES {
             let c = example(file);
             let run = |near: bool| {
                 let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
@@ -697,28 +697,16 @@ mod tests {
         }
     }
 
-    /// Example converters of every kind the run handles, with run times
-    /// long enough to reach their steady behaviour.
-    const EXAMPLES: [(&str, f64); 10] = [
-        ("buck.json", 1e-3),
-        ("buck_dcm.json", 1e-3),
-        ("boost.json", 1e-3),
-        ("sync_buck.json", 1e-3),
-        ("flyback.json", 2e-3),
-        ("rectifier.json", 40e-3),
-        ("peak_current_buck.json", 1e-3),
-        ("hysteretic_buck.json", 1e-3),
-        // A load step under a compensated loop.
-        ("voltage_mode_buck.json", 2e-3),
-        ("buck_boost.json", 1e-3),
-    ];
+    /// The example converters that switch at a fixed frequency or under
+    /// a loop of their own (the first ten of the shared list).
+    const EXAMPLES: &[(&str, f64)] = test_util::EXAMPLES.split_at(10).0;
 
     /// Contract: replaying a remembered transition is only a shortcut, so
     /// every converter gives the same bits with and without it — states of
     /// every segment and the whole event log.
     #[test]
     fn replay_gives_the_same_bits_as_the_full_search() {
-        for (file, stop) in EXAMPLES {
+        for &(file, stop) in EXAMPLES {
             let a = run(file, stop, true);
             let b = run(file, stop, false);
             assert!(a.events.len() > 10, "{file}: too few events to test");
