@@ -2,7 +2,7 @@
 //! and the switching of a gate when its comparison is met (a state event
 //! located like a diode's).
 
-use super::instant::{coincident_until, TimeKey};
+use super::instant::{coincident_until, next_on_grid, on_grid, TimeKey};
 use super::resolve::Moment;
 use super::{dot_iter, Simulator};
 use crate::error::SolverError;
@@ -44,15 +44,7 @@ impl Simulator {
                 continue;
             };
             for &(phase, _) in &self.sched.cmp_ticks[ci] {
-                // k·T + phase, from the cycle number (never accumulated).
-                let mut k = ((t - phase) / p).floor() as i64 + 1;
-                while k as f64 * p + phase <= t {
-                    k += 1;
-                }
-                while k > 0 && (k - 1) as f64 * p + phase > t {
-                    k -= 1;
-                }
-                let time = k as f64 * p + phase;
+                let (time, k) = next_on_grid(t, p, phase);
                 if best.is_none_or(|(b, _)| time < b) {
                     best = Some((
                         time,
@@ -76,8 +68,7 @@ impl Simulator {
                 continue;
             };
             for &(phase, what) in &self.sched.cmp_ticks[ci] {
-                let k = ((t - phase) / p).round();
-                if k >= 0.0 && (k as i64) as f64 * p + phase == t {
+                if on_grid(t, p, phase).is_some() {
                     out.push((ci, what));
                 }
             }

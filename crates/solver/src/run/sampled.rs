@@ -4,7 +4,7 @@
 
 use fluxstep_netlist::{Edge, Gate, Stimulus};
 
-use super::instant::TimeKey;
+use super::instant::{next_on_grid, on_grid, TimeKey};
 use super::{dot_iter, Simulator};
 use crate::control::{Apply, Command, Commands, Controller, Sampling};
 use crate::error::SolverError;
@@ -80,8 +80,7 @@ impl Simulator {
     /// The cycle number if controller `i` samples exactly at `t`.
     fn sample_due(&self, i: usize, t: f64) -> Option<i64> {
         let s = &self.sched.controllers[i].sampling;
-        let k = ((t - s.offset) / s.period).round();
-        (k >= 0.0 && (k as i64) as f64 * s.period + s.offset == t).then_some(k as i64)
+        on_grid(t, s.period, s.offset)
     }
 
     /// The next sample or pending command strictly after `t`.
@@ -89,14 +88,7 @@ impl Simulator {
         let mut best: Option<(f64, Option<TimeKey>)> = None;
         for slot in &self.sched.controllers {
             let s = &slot.sampling;
-            let mut k = ((t - s.offset) / s.period).floor() as i64 + 1;
-            while k as f64 * s.period + s.offset <= t {
-                k += 1;
-            }
-            while k > 0 && (k - 1) as f64 * s.period + s.offset > t {
-                k -= 1;
-            }
-            let time = k as f64 * s.period + s.offset;
+            let (time, k) = next_on_grid(t, s.period, s.offset);
             if best.is_none_or(|(b, _)| time < b) {
                 best = Some((
                     time,
