@@ -4,9 +4,8 @@ use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 
 use anyhow::Context as _;
+use fluxstep_netlist::si::format_si_short as si;
 use fluxstep_netlist::{Circuit, Compensator, CompensatorLaw, Gate, OutputName};
-
-use fluxstep_plot::format_si_short as si;
 
 /// Arguments of `fluxstep check`.
 #[derive(Debug, clap::Args)]

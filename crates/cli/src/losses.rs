@@ -9,8 +9,9 @@ use fluxstep_analysis::losses::thermal::{junction_temperature_of, ThermalStart};
 use fluxstep_analysis::losses::{
     breakdown, has_loss_data, loads, LossOptions, LossReport, PartTotals,
 };
+use fluxstep_netlist::si::format_si_digits;
 use fluxstep_netlist::{Circuit, Element};
-use fluxstep_plot::{format_si_digits, loss_chart_svg, LossBar};
+use fluxstep_plot::{loss_chart_svg, LossBar};
 use fluxstep_solver::{EventLog, Waveform};
 
 /// Largest energy-balance residual a run may show, relative to the

@@ -10,8 +10,9 @@ use fluxstep_analysis::response::{
 };
 use fluxstep_analysis::steady::SteadyOptions;
 use fluxstep_analysis::AnalysisError;
+use fluxstep_netlist::si::format_si_short;
 use fluxstep_netlist::Circuit;
-use fluxstep_plot::{bode_figure, format_si_short, write_svg, BodeMarks, BodePoint};
+use fluxstep_plot::{bode_figure, write_svg, BodeMarks, BodePoint};
 
 use crate::run::{write_failed, Stopped, WriteFailed};
 use crate::steady::NotFound;

@@ -12,8 +12,9 @@ use std::io::{IsTerminal, Write as _};
 use std::path::{Path, PathBuf};
 
 use anyhow::Context;
+use fluxstep_netlist::si::{format_si_digits, format_si_short};
 use fluxstep_netlist::{Circuit, InterruptionPolicy, OutputName, ShootThroughPolicy};
-use fluxstep_plot::{format_si_digits, format_si_short, render_svg, review_figure, ReviewOptions};
+use fluxstep_plot::{render_svg, review_figure, ReviewOptions};
 use fluxstep_solver::measure::{measure, without_rounding_noise, Measurement};
 use fluxstep_solver::{
     OnInterruption, OnShootThrough, Options, Record, RunResult, Simulator, SolverError,

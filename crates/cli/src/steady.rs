@@ -9,13 +9,13 @@ use std::path::PathBuf;
 use anyhow::Context;
 use fluxstep_analysis::steady::{find, Reading, SteadyOptions, SteadyState};
 use fluxstep_analysis::AnalysisError;
+use fluxstep_netlist::si::{format_si_digits, format_si_short};
 use fluxstep_netlist::Circuit;
 use fluxstep_plot::{review_figure, write_svg, ReviewOptions};
 use fluxstep_solver::measure::Measurement;
 
 use crate::compare::TimingFailed;
 use crate::run::Stopped;
-use fluxstep_plot::{format_si_digits, format_si_short};
 
 use crate::run::{measurement_rows, write_csv, write_failed};
 
@@ -59,10 +59,6 @@ fn state_unit(name: &str) -> &'static str {
     } else {
         ""
     }
-}
-
-fn si(value: f64, unit: &str) -> String {
-    format_si_digits(value, unit, 4)
 }
 
 fn words(r: Reading) -> &'static str {
@@ -289,7 +285,7 @@ fn print_orbit(stem: &str, ss: &SteadyState, outputs: &[String], measurements: &
         } else {
             *v
         };
-        println!("    {n:<24} {:>12}", si(shown, unit));
+        println!("    {n:<24} {:>12}", format_si_digits(shown, unit, 4));
     }
     print!("{}", measurement_rows(outputs, measurements, "period"));
     println!(

@@ -23,6 +23,10 @@
 //! - [`NetlistError`] and [`Problem`]: what went wrong and where.
 //! - [`graph::UnionFind`]: the disjoint sets behind every connectivity
 //!   check, shared with the solver.
+//! - [`si`]: SI prefixes both ways — the one formatter of every number
+//!   fluxstep prints for people ([`si::format_si_digits`],
+//!   [`si::format_si_short`], [`si::format_si_instant`]) and the serde
+//!   helpers that read prefixed values.
 //!
 //! Sign convention: an element's voltage is v(first terminal) − v(second)
 //! and its current flows first → second through it. Ground is `gnd` (`0`
@@ -61,6 +65,7 @@ mod json;
 mod limits;
 mod loss_data;
 mod resolution;
+pub mod si;
 mod stimulus;
 mod timing;
 mod validate;
@@ -80,11 +85,6 @@ pub use resolution::{MAX_DIODES, MAX_SWITCHES, MIN_DURATION_RATIO};
 pub use stimulus::{LinearPiece, Point, Stimulus};
 pub use timing::{EdgeSense, TimingCheck, TimingRule};
 pub use value::{parse_si, ValueError, PREFIXES};
-
-/// Serde helpers for SI values, for crates that embed SI fields of their own.
-pub mod si {
-    pub use crate::value::{de, de_opt, ser};
-}
 
 /// The JSON Schema of the circuit format, as pretty JSON text.
 pub fn json_schema() -> String {

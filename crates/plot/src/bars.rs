@@ -3,7 +3,7 @@
 //! with the part's total at the bar's end. Plain SVG: the bars' lengths
 //! are the losses the caller computed; nothing is computed here.
 
-use crate::format_si_digits;
+use fluxstep_netlist::si::format_si_digits;
 
 /// One part's loss, by mechanism.
 #[derive(Clone, Debug, PartialEq)]

@@ -2,9 +2,10 @@
 //! logarithmic frequency axis, with the crossover, margins and the
 //! switching frequency and its half marked.
 
+use fluxstep_netlist::si::format_si_short;
+
 use crate::error::PlotError;
 use crate::model::{Annotation, Figure, Panel, Trace};
-use crate::scale::format_si_short;
 
 /// One frequency of a response.
 #[derive(Clone, Copy, Debug, PartialEq)]

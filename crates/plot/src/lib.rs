@@ -27,9 +27,10 @@
 //! - [`review_figure`]: the design-review figure of a solver run, annotated
 //!   with the solver's own measurements (ripple of one period on inductor
 //!   currents in periodic operation, averages, the instant a run stopped).
-//! - [`si_scale`], [`nice_ticks`], [`format_si`], [`format_si_digits`],
-//!   [`format_si_short`]: the number formatting of the whole project (SI
-//!   prefixes, 1-2-5 tick steps); the command line prints with them too.
+//! - [`nice_ticks`]: 1-2-5 tick steps. [`si_scale`], [`format_si`],
+//!   [`format_si_digits`], [`format_si_short`]: the number formatting of
+//!   the whole project, re-exported from [`fluxstep_netlist::si`] where it
+//!   lives.
 //! - [`loss_chart_svg`]: the loss breakdown as stacked horizontal bars,
 //!   one per part, split by mechanism ([`LossBar`]).
 //! - [`PlotError`]: every failure, naming the panel, trace or time at fault.
@@ -86,7 +87,8 @@ mod scale;
 pub use bars::{loss_chart_svg, LossBar, MECHANISMS};
 pub use bode::{bode_figure, unwrap_phase, BodeMarks, BodePoint};
 pub use error::PlotError;
+pub use fluxstep_netlist::si::{format_si, format_si_digits, format_si_short, si_scale};
 pub use model::{Annotation, Figure, Panel, Trace};
 pub use render::{render_svg, write_svg};
 pub use review::{output_trace, review_figure, ReviewOptions};
-pub use scale::{format_si, format_si_digits, format_si_short, nice_ticks, si_scale, Ticks};
+pub use scale::{nice_ticks, Ticks};

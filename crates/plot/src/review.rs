@@ -27,9 +27,9 @@ pub struct ReviewOptions {
     /// and winding currents in periodic operation, the peak-to-peak ripple
     /// of one period (numbers from [`fluxstep_solver::measure`]).
     pub ripple: bool,
-    /// Default `None`: inferred from the switch turn-on events of the log.
-    /// The switching period, used to tell periodic operation and to measure
-    /// the ripple of one period.
+    /// Default `None`: the log's [`EventLog::repeat_period`] over the
+    /// window (from its switch turn-ons). The switching period, used to
+    /// tell periodic operation and to measure the ripple of one period.
     pub period: Option<f64>,
     /// Default false. Mark gate edges and diode turn-on/turn-off on top.
     pub event_markers: bool,
@@ -131,36 +131,6 @@ pub fn output_trace(
     Ok(Trace::new(name, unit, points).with_quantity(quantity))
 }
 
-/// The switching period read from the log: the spacing of the last turn-ons
-/// of the switch that turns on most often, when the last few spacings agree
-/// to 1 % (a fixed-frequency or settled hysteretic converter).
-fn period_from_events(log: &EventLog, t0: f64, t1: f64) -> Option<f64> {
-    let mut by_switch: Vec<(&str, Vec<f64>)> = Vec::new();
-    for e in log.of_kind(EventKind::SwitchOn) {
-        if e.time < t0 || e.time > t1 {
-            continue;
-        }
-        match by_switch.iter_mut().find(|(n, _)| *n == e.element) {
-            Some((_, v)) => v.push(e.time),
-            None => by_switch.push((e.element, vec![e.time])),
-        }
-    }
-    let (_, times) = by_switch.into_iter().max_by_key(|(_, v)| v.len())?;
-    if times.len() < 3 {
-        return None;
-    }
-    let gaps: Vec<f64> = times
-        .windows(2)
-        .rev()
-        .take(4)
-        .map(|w| w[1] - w[0])
-        .collect();
-    let (lo, hi) = gaps
-        .iter()
-        .fold((f64::INFINITY, 0.0f64), |(l, h), g| (l.min(*g), h.max(*g)));
-    (lo > 0.0 && hi <= lo * 1.01).then(|| gaps.iter().sum::<f64>() / gaps.len() as f64)
-}
-
 /// The ripple of one period, when the output repeats: measured over the
 /// last period of the window, and only if the first period's peak-to-peak
 /// agrees with it to 2 % (a start-up in the window is not periodic
@@ -201,7 +171,7 @@ pub fn review_figure(
     let mut fig = Figure::new(title).with_size(opts.size.0, opts.size.1);
     let period = opts
         .period
-        .or_else(|| events.and_then(|log| period_from_events(log, t0, t1)));
+        .or_else(|| events.and_then(|log| log.repeat_period(t0, t1)));
     // Inductor and winding currents are the states named `….current`.
     let inductor_currents: Vec<&str> = events
         .map(|log| {

@@ -2,7 +2,7 @@
 //! once, into the summary JSON at a pointer and into the page as a span
 //! carrying that pointer, so the two cannot disagree.
 
-use fluxstep_plot::format_si_digits;
+use fluxstep_netlist::si::format_si_digits;
 use serde_json::{Map, Value};
 
 /// Collects the summary JSON while the page is written.

@@ -6,9 +6,11 @@
 //! long run costs no allocation per event. [`EventLog::iter`] hands out
 //! borrowed [`EventRef`] views; [`EventRef::to_event`] makes an owned
 //! [`Event`]. The JSON form lists full events and is stable (same run, same
-//! bytes). [`EventLog::compare`] sets a log against a golden one.
+//! bytes). [`EventLog::compare`] sets a log against a golden one;
+//! [`EventLog::repeat_period`] reads the period at which a run repeats.
 
 mod compare;
+mod period;
 
 pub use compare::{CompareError, Comparison, Difference, DifferenceKind, Tolerances};
 

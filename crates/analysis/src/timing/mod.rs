@@ -51,6 +51,7 @@
 
 mod eval;
 
+use fluxstep_netlist::si::{format_si_instant, format_si_short};
 use fluxstep_netlist::{TimingCheck, TimingRule};
 use fluxstep_solver::measure::measure;
 use fluxstep_solver::{Comparison, DifferenceKind, EventCause, EventKind, EventLog, Waveform};
@@ -287,10 +288,10 @@ fn band(
     if t0 < a || t1 > b {
         return Err(fail(format!(
             "the window [{}, {}] is not all recorded (the record covers [{}, {}])",
-            si(t0, "s"),
-            si(t1, "s"),
-            si(a, "s"),
-            si(b, "s")
+            format_si_instant(t0),
+            format_si_instant(t1),
+            format_si_instant(a),
+            format_si_instant(b)
         )));
     }
     let m = measure(w, id, t0, t1)?;
@@ -313,61 +314,11 @@ fn band(
     Ok(())
 }
 
-/// Formats a value with an SI prefix and up to four significant digits
-/// ("12.5 ns", "1.234 ms"). The analysis crate sits above the plot crate's
-/// formatter in the data flow, so it keeps this small one of its own.
-pub fn si(v: f64, unit: &str) -> String {
-    if !v.is_finite() {
-        return format!("{v} {unit}").trim_end().to_string();
-    }
-    if v == 0.0 {
-        return format!("0 {unit}").trim_end().to_string();
-    }
-    const PREFIX: [(i32, &str); 9] = [
-        (-15, "f"),
-        (-12, "p"),
-        (-9, "n"),
-        (-6, "µ"),
-        (-3, "m"),
-        (0, ""),
-        (3, "k"),
-        (6, "M"),
-        (9, "G"),
-    ];
-    let e = (v.abs().log10().floor() as i32).div_euclid(3) * 3;
-    let e = e.clamp(-15, 9);
-    let p = PREFIX.iter().find(|(x, _)| *x == e).map_or("", |x| x.1);
-    let scaled = v / 10f64.powi(e);
-    let digits = (3 - scaled.abs().log10().floor() as i32).clamp(0, 3) as usize;
-    let mut text = format!("{scaled:.digits$}");
-    if text.contains('.') {
-        text = text.trim_end_matches('0').trim_end_matches('.').to_string();
-    }
-    format!("{text} {p}{unit}").trim_end().to_string()
-}
-
 fn at(w: &Worst) -> String {
     match w.period {
-        Some(k) => format!("at t = {} (period {k})", si_fine(w.time)),
-        None => format!("at t = {}", si_fine(w.time)),
+        Some(k) => format!("at t = {} (period {k})", format_si_instant(w.time)),
+        None => format!("at t = {}", format_si_instant(w.time)),
     }
-}
-
-/// An instant with enough digits to find it in a long run.
-fn si_fine(t: f64) -> String {
-    if t == 0.0 {
-        return "0 s".into();
-    }
-    let e = (t.abs().log10().floor() as i32).div_euclid(3) * 3;
-    let (e, p) = match e {
-        e if e <= -9 => (-9, "n"),
-        -6 => (-6, "µ"),
-        -3 => (-3, "m"),
-        _ => (0, ""),
-    };
-    let text = format!("{:.6}", t / 10f64.powi(e));
-    let text = text.trim_end_matches('0').trim_end_matches('.');
-    format!("{text} {p}s")
 }
 
 /// The sentence of one rule's outcome.
@@ -384,23 +335,30 @@ fn sentence(rule: &TimingRule, o: &RuleOutcome) -> String {
         TimingCheck::DeadTime { .. } | TimingCheck::NoOverlap { .. } if w.value < 0.0 => format!(
             "{} turned on {} before {} turned off (both on together)",
             w.elements[1],
-            si(-w.value, "s"),
+            format_si_short(-w.value, "s"),
             w.elements[0]
         ),
         TimingCheck::DeadTime { .. } | TimingCheck::NoOverlap { .. } => format!(
             "the dead time from {} turning off to {} turning on is {}",
             w.elements[0],
             w.elements[1],
-            si(w.value, "s")
+            format_si_short(w.value, "s")
         ),
-        TimingCheck::OnTime { switch, .. } => format!("{switch} stays on for {}", si(w.value, u)),
-        TimingCheck::OffTime { switch, .. } => format!("{switch} stays off for {}", si(w.value, u)),
+        TimingCheck::OnTime { switch, .. } => {
+            format!("{switch} stays on for {}", format_si_short(w.value, u))
+        }
+        TimingCheck::OffTime { switch, .. } => {
+            format!("{switch} stays off for {}", format_si_short(w.value, u))
+        }
         TimingCheck::SwitchingPeriod { switch, .. } => {
-            format!("{switch} switches with a period of {}", si(w.value, u))
+            format!(
+                "{switch} switches with a period of {}",
+                format_si_short(w.value, u)
+            )
         }
         TimingCheck::DiodeConduction { diode, .. } => format!(
             "{diode} conducts for {} {}",
-            si(w.value, u),
+            format_si_short(w.value, u),
             if o.periods > 0 && w.period.is_some() {
                 "in one period"
             } else {
@@ -414,20 +372,22 @@ fn sentence(rule: &TimingRule, o: &RuleOutcome) -> String {
         ),
         TimingCheck::EdgeDelay { switch, .. } => format!(
             "{switch} switches {} after the crossing that causes it",
-            si(w.value, u)
+            format_si_short(w.value, u)
         ),
-        TimingCheck::Band { output, .. } => format!("{output} reaches {}", si(w.value, u)),
+        TimingCheck::Band { output, .. } => {
+            format!("{output} reaches {}", format_si_short(w.value, u))
+        }
     };
     let limit = match (&rule.check, w.upper) {
         (TimingCheck::HardTurnOn { max_count, .. }, _) => format!("{max_count} allowed"),
         (TimingCheck::NoOverlap { .. }, _) => "no overlap allowed".into(),
-        (_, true) => format!("the {} maximum", si(w.limit, u)),
-        (_, false) => format!("the {} minimum", si(w.limit, u)),
+        (_, true) => format!("the {} maximum", format_si_short(w.limit, u)),
+        (_, false) => format!("the {} minimum", format_si_short(w.limit, u)),
     };
     let margin = if u.is_empty() {
         format!("{}", w.margin.abs())
     } else {
-        si(w.margin.abs(), u)
+        format_si_short(w.margin.abs(), u)
     };
     if o.passed {
         format!(
@@ -516,17 +476,17 @@ pub fn describe_comparison(c: &Comparison) -> String {
         c.missing,
         c.events,
         c.golden_events,
-        si(c.allowed, "s")
+        format_si_short(c.allowed, "s")
     );
     let Some(d) = c.first() else {
         return format!(
             "the event log matches the golden log: largest shift {}; {counts}",
-            si(c.largest_shift, "s")
+            format_si_short(c.largest_shift, "s")
         );
     };
     let when = match d.period {
         Some(k) => format!("period {k}"),
-        None => format!("t = {}", si_fine(d.first_time())),
+        None => format!("t = {}", format_si_instant(d.first_time())),
     };
     let what = format!(
         "{} {}{}",
@@ -539,19 +499,19 @@ pub fn describe_comparison(c: &Comparison) -> String {
             let s = d.shift().unwrap_or(0.0);
             format!(
                 "{when}: {what} {} {} than in the golden log (at {} instead of {})",
-                si(s.abs(), "s"),
+                format_si_short(s.abs(), "s"),
                 if s > 0.0 { "later" } else { "earlier" },
-                si_fine(d.time.unwrap_or(f64::NAN)),
-                si_fine(d.golden_time.unwrap_or(f64::NAN))
+                format_si_instant(d.time.unwrap_or(f64::NAN)),
+                format_si_instant(d.golden_time.unwrap_or(f64::NAN))
             )
         }
         DifferenceKind::Added => format!(
             "{when}: {what} at {}, which the golden log does not have",
-            si_fine(d.time.unwrap_or(f64::NAN))
+            format_si_instant(d.time.unwrap_or(f64::NAN))
         ),
         DifferenceKind::Missing => format!(
             "{when}: the golden log has {what} at {}, which this log does not",
-            si_fine(d.golden_time.unwrap_or(f64::NAN))
+            format_si_instant(d.golden_time.unwrap_or(f64::NAN))
         ),
     };
     // A second difference at the same instant is often the consequence.
@@ -570,7 +530,7 @@ pub fn describe_comparison(c: &Comparison) -> String {
                     let s = e.shift().unwrap_or(0.0);
                     format!(
                         "{} {}",
-                        si(s.abs(), "s"),
+                        format_si_short(s.abs(), "s"),
                         if s > 0.0 { "later" } else { "earlier" }
                     )
                 }

@@ -1,13 +1,12 @@
 //! Axes: value range and ticks of a panel, time ticks, decades, zoom ticks.
 
+use fluxstep_netlist::si::{format_si_digits, format_si_short, si_scale};
+
 use super::parts::{NoteShape, PanelLayout, YAxis};
 use super::text::{clean, text_width};
 use super::{MARKER_STRIP, TICK_PX, ZOOM_W};
 use crate::error::PlotError;
-use crate::scale::{
-    exponent_labels, fixed_labels, format_si_digits, format_si_short, nice_ticks, quantity_name,
-    si_scale, Ticks,
-};
+use crate::scale::{exponent_labels, fixed_labels, nice_ticks, quantity_name, Ticks};
 
 /// Value range, ticks and labels of one panel for a plot `plot_h` pixels tall.
 pub(super) fn y_axis(p: &PanelLayout<'_>, plot_h: f64, name: &str) -> Result<YAxis, PlotError> {

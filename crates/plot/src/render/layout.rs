@@ -1,6 +1,7 @@
 //! Placing everything: panels with their legends and notes, the shared
 //! time axis, the zoom columns; the sizes that must fit are checked here.
 
+use fluxstep_netlist::si::format_si;
 use plotters::prelude::*;
 
 use super::axes::{decade_axis, x_axis, y_axis, zoom_axis};
@@ -14,7 +15,7 @@ use super::{
 use crate::error::PlotError;
 use crate::model::{Annotation, Figure, Panel};
 use crate::reduce::clip_to_window;
-use crate::scale::{format_si, nice_ticks, Ticks};
+use crate::scale::{nice_ticks, Ticks};
 
 pub(super) struct Layout<'a> {
     pub(super) figure: &'a Figure,

@@ -3,7 +3,8 @@
 
 use std::fmt::Write as _;
 
-use fluxstep_plot::{bode_figure, format_si_short, render_svg, BodeMarks, BodePoint, PlotError};
+use fluxstep_netlist::si::format_si_short;
+use fluxstep_plot::{bode_figure, render_svg, BodeMarks, BodePoint, PlotError};
 
 use super::{heading, inline_svg, Page};
 use crate::sheet::{esc, key, Sheet};

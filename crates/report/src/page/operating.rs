@@ -4,7 +4,8 @@
 
 use std::fmt::Write as _;
 
-use fluxstep_plot::{format_si_short, render_svg, review_figure, PlotError, ReviewOptions};
+use fluxstep_netlist::si::format_si_short;
+use fluxstep_plot::{render_svg, review_figure, PlotError, ReviewOptions};
 use fluxstep_solver::measure::{without_rounding_noise, Measurement};
 use serde_json::Value;
 

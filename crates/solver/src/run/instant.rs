@@ -100,12 +100,19 @@ mod tests {
                     continue;
                 }
                 let k = if phase == 0.0 { k + 1 } else { k };
-                let expect = if phase == 0.0 { k as f64 * period } else { expect };
+                let expect = if phase == 0.0 {
+                    k as f64 * period
+                } else {
+                    expect
+                };
                 assert_eq!(next.to_bits(), expect.to_bits(), "cycle {k}");
                 assert_eq!(cycle, k);
                 assert_eq!(on_grid(next, period, phase), Some(k));
                 // One unit in the last place either side is off the grid.
-                assert_eq!(on_grid(f64::from_bits(next.to_bits() + 1), period, phase), None);
+                assert_eq!(
+                    on_grid(f64::from_bits(next.to_bits() + 1), period, phase),
+                    None
+                );
                 t = next;
             }
         }
@@ -138,7 +145,10 @@ mod tests {
             phase: 0.0,
             period: 2.0 * period,
         };
-        assert_eq!(interval_length(1.0, Some(other), 1.5, Some(key(0, on))), 0.5);
+        assert_eq!(
+            interval_length(1.0, Some(other), 1.5, Some(key(0, on))),
+            0.5
+        );
         assert_eq!(interval_length(1.0, None, 1.25, Some(key(9, on))), 0.25);
         // Keys that would give a negative length: the subtraction.
         assert_eq!(
