@@ -222,3 +222,46 @@ impl Simulator {
         self.resolve(0, cause, Moment::Run)
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use crate::options::Options;
+    use crate::run::Simulator;
+    use crate::test_util::example;
+
+    use super::Tick;
+
+    /// A peak-current gate's ticks: the clock at the start of each period
+    /// and the forced turn-off at the maximum duty, on the grid k·T +
+    /// phase to the bit; the turn-off comparison is the active guard while
+    /// the switch is on (common practice: fixed-frequency peak-current
+    /// control with a duty limit).
+    #[test]
+    fn comparator_ticks_follow_the_clock() {
+        let c = example("peak_current_buck.json");
+        let sim = Simulator::new(&c, Options::default()).expect("compiles");
+        let period = 1e-5;
+        let ticks = &sim.sched.cmp_ticks[0];
+        assert_eq!(ticks.len(), 2);
+        assert!(matches!(ticks[0], (p, Tick::Clock) if p == 0.0));
+        assert!(matches!(ticks[1], (p, Tick::ForceOff) if p == 0.9 * period));
+        let mut t = 0.0;
+        for k in 0..1000i64 {
+            let (force, key) = sim.next_tick(t).expect("a tick");
+            assert_eq!(
+                force.to_bits(),
+                (k as f64 * period + 0.9 * period).to_bits()
+            );
+            assert_eq!((key.cycle, key.phase), (k, 0.9 * period));
+            let (clock, key) = sim.next_tick(force).expect("a tick");
+            assert_eq!(clock.to_bits(), ((k + 1) as f64 * period).to_bits());
+            assert_eq!((key.cycle, key.phase), (k + 1, 0.0));
+            assert!(sim.has_tick_at(force) && sim.has_tick_at(clock));
+            assert!(!sim.has_tick_at(f64::from_bits(clock.to_bits() + 1)));
+            t = clock;
+        }
+        // On at t = 0 (the clock): only the turn-off guard is active.
+        assert!(sim.sched.signal_on[sim.cc.comparators[0].signal]);
+        assert_eq!(sim.comparator_masks(), (1, 0));
+    }
+}

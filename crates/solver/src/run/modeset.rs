@@ -137,3 +137,43 @@ pub(super) const REPEAT_RING: usize = 8;
 
 /// Most exponentials cached per mode for lengths that came back.
 pub(super) const MAX_AGAIN: usize = 16;
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::compile::Compiled;
+
+    /// Modes are numbered in the order first met, and found again by
+    /// that number whether the set is small (linear scan) or large (hash
+    /// map); each has a cache of its own.
+    #[test]
+    fn modes_are_numbered_as_first_met() {
+        let c = fluxstep_netlist::Circuit::builder()
+            .voltage_source("V1", "a", "gnd", 1.0)
+            .resistor("R1", "a", "gnd", 1.0)
+            .build()
+            .expect("valid");
+        let cc = Compiled::compile(&c).expect("compiles");
+        let key = |i: u64| ModeKey {
+            switches: i,
+            diodes: i.wrapping_mul(0x9e37_79b9) >> 7,
+            ramps: 0,
+        };
+        let m = Arc::new(Mode::build(&cc, key(0)).expect("builds"));
+        let mut set = ModeSet::default();
+        for i in 0..100u64 {
+            assert_eq!(set.find(key(i)), None, "{i} not met yet");
+            assert_eq!(set.insert(key(i), m.clone()), i as u32);
+            // Every mode met so far, in both regimes of the look-up.
+            for j in [0, i / 2, i] {
+                assert_eq!(set.find(key(j)), Some(j as u32), "{j} of {i}");
+            }
+        }
+        assert_eq!(set.len(), 100);
+        assert_eq!(set.caches.len(), 100);
+        let (_, cache) = set.entry(42);
+        cache.scheduled.push((7, DMatrix::zeros(1, 1)));
+        assert!(set.caches[42].find_scheduled(7).is_some());
+        assert!(set.caches[41].find_scheduled(7).is_none());
+    }
+}

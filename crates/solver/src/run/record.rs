@@ -449,3 +449,53 @@ impl Simulator {
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use crate::options::{Options, Record};
+    use crate::run::Simulator;
+    use crate::test_util::example;
+
+    /// A window records exactly [from, to]: the first segment starts at
+    /// `from` and the last ends at `to`, to the bit, the segments join up,
+    /// and the state at `from` (cut inside an interval) is the full
+    /// record's state there (common practice: a measurement covers
+    /// exactly the window asked for).
+    #[test]
+    fn a_window_records_exactly_its_span() {
+        let c = example("buck_dcm.json");
+        let (from, to) = (2.345_678e-4, 4.1e-4);
+        let run = |record: Record| {
+            let mut sim = Simulator::new(
+                &c,
+                Options {
+                    record,
+                    ..Options::default()
+                },
+            )
+            .expect("compiles");
+            sim.advance_to(5e-4).expect("runs");
+            sim.finish()
+        };
+        let (window, all) = (run(Record::Window { from, to }), run(Record::All));
+        let segs = window.waveform.segments();
+        assert!(segs.len() > 20, "{} segments", segs.len());
+        assert_eq!(segs[0].t0.to_bits(), from.to_bits());
+        assert_eq!(segs[segs.len() - 1].t1.to_bits(), to.to_bits());
+        for pair in segs.windows(2) {
+            assert_eq!(pair[0].t1.to_bits(), pair[1].t0.to_bits());
+        }
+        let (a, b) = (
+            window.waveform.state(from).expect("recorded"),
+            all.waveform.state(from).expect("recorded"),
+        );
+        for (x, y) in a.iter().zip(&b) {
+            assert!((x - y).abs() <= 1e-12 * y.abs().max(1.0), "{x} vs {y}");
+        }
+        // Events only inside the window, and all of those.
+        let inside = |t: f64| (from..=to).contains(&t);
+        let n_all = all.events.iter().filter(|e| inside(e.time)).count();
+        assert!(window.events.iter().all(|e| inside(e.time)));
+        assert_eq!(window.events.len(), n_all);
+    }
+}

@@ -418,3 +418,59 @@ impl Simulator {
         Ok(())
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use std::cell::RefCell;
+    use std::rc::Rc;
+
+    use crate::control::{Commands, Sampling};
+    use crate::options::Options;
+    use crate::run::Simulator;
+    use crate::test_util::example;
+
+    /// A sampled controller runs at exactly k·T + offset (to the bit, from
+    /// the cycle number), at every sample and no other instant, and reads
+    /// the outputs' values at that instant (common practice: a digital
+    /// controller's sample clock).
+    #[test]
+    fn samples_fall_on_their_grid_and_read_the_state_there() {
+        let c = example("buck.json");
+        let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
+        let seen: Rc<RefCell<Vec<(f64, Option<f64>)>>> = Rc::default();
+        let log = seen.clone();
+        let (period, offset) = (3.3e-6, 1.1e-6);
+        sim.add_controller(
+            Sampling {
+                inputs: vec!["L1.current".into()],
+                period,
+                offset,
+                ..Sampling::default()
+            },
+            Box::new(move |t: f64, inputs: &[Option<f64>], _: &mut Commands| {
+                log.borrow_mut().push((t, inputs[0]));
+            }),
+        )
+        .expect("a valid controller");
+        let stop = 200e-6;
+        sim.advance_to(stop).expect("runs");
+        let run = sim.finish();
+        let seen = seen.borrow();
+        let expected = ((stop - offset) / period).floor() as usize + 1;
+        assert_eq!(seen.len(), expected);
+        let id = run.waveform.output("L1.current").expect("an output");
+        for (k, &(t, v)) in seen.iter().enumerate() {
+            assert_eq!(
+                t.to_bits(),
+                (k as f64 * period + offset).to_bits(),
+                "sample {k}"
+            );
+            let v = v.expect("the inductor current is determined");
+            let w = run.waveform.value(id, t).expect("recorded");
+            assert!(
+                (v - w).abs() <= 1e-12 * w.abs().max(1.0),
+                "sample {k}: {v} vs {w}"
+            );
+        }
+    }
+}

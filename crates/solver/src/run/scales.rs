@@ -72,3 +72,44 @@ impl ScaleWatch {
         self.seen
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The scales are the largest inductor current and the largest
+    /// capacitor or source voltage ever seen, never the present values
+    /// alone, and they never shrink (common practice: tolerances relative
+    /// to the run's own amplitudes).
+    #[test]
+    fn scales_keep_the_largest_magnitudes_seen() {
+        let c = fluxstep_netlist::Circuit::builder()
+            .voltage_source("V1", "in", "gnd", 12.0)
+            .resistor("R1", "in", "a", 1.0)
+            .inductor("L1", "a", "b", 1e-3)
+            .capacitor("C1", "b", "gnd", 1e-6)
+            .build()
+            .expect("valid");
+        let cc = Compiled::compile(&c).expect("compiles");
+        let mut w = ScaleWatch::new(&cc);
+        let i_l = cc.groups[0].states[0];
+        let v_c = cc.caps[0].0;
+        let mut z = vec![0.0; cc.n_z()];
+        z[i_l] = -3.0;
+        z[v_c] = 5.0;
+        let (k, f) = cc.sources[0].terms[0];
+        z[k] = 12.0 / f;
+        let s = w.update(&z, &cc.sources);
+        assert_eq!((s.current, s.voltage), (3.0, 12.0));
+        // Smaller now: the scales stay.
+        z[i_l] = 0.5;
+        z[k] = 0.0;
+        let s = w.update(&z, &cc.sources);
+        assert_eq!((s.current, s.voltage), (3.0, 12.0));
+        // A capacitor above the source: it sets the voltage scale.
+        z[v_c] = -20.0;
+        let s = w.update(&z, &cc.sources);
+        assert_eq!((s.current, s.voltage), (3.0, 20.0));
+        assert_eq!(w.seen, s);
+    }
+}
