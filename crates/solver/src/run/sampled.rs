@@ -437,7 +437,9 @@ mod tests {
     fn samples_fall_on_their_grid_and_read_the_state_there() {
         let c = example("buck.json");
         let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
-        let seen: Rc<RefCell<Vec<(f64, Option<f64>)>>> = Rc::default();
+        // (sample time, the inductor current read).
+        type Readings = Vec<(f64, Option<f64>)>;
+        let seen: Rc<RefCell<Readings>> = Rc::default();
         let log = seen.clone();
         let (period, offset) = (3.3e-6, 1.1e-6);
         sim.add_controller(
