@@ -147,7 +147,7 @@ impl Simulator {
         self.set_inputs(0.0);
         self.key.switches = self.switch_bits();
         for i in 0..self.sched.signals.len() {
-            self.refill(i, 0.0);
+            self.sched.refill(&self.cc.signals[i].1, i, 0.0);
             while self.sched.signals[i]
                 .edges
                 .front()

@@ -4,7 +4,9 @@
 
 use super::instant::{coincident_until, next_on_grid, on_grid, TimeKey};
 use super::resolve::Moment;
+use super::schedule::Schedule;
 use super::{dot_iter, Simulator};
+use crate::compile::CompiledComparator;
 use crate::error::SolverError;
 
 /// What a comparator tick does.
@@ -16,6 +18,59 @@ pub(super) enum Tick {
     EnableOff,
     /// The maximum on-time is reached: turn off.
     ForceOff,
+}
+
+/// The comparators' part of the schedule: their ticks on the grid
+/// k·T + phase.
+impl Schedule {
+    /// The next tick of the `comparators` strictly after `t`: its time and key.
+    pub(super) fn next_tick(
+        &self,
+        comparators: &[CompiledComparator],
+        t: f64,
+    ) -> Option<(f64, TimeKey)> {
+        let mut best: Option<(f64, TimeKey)> = None;
+        for (cmp, ticks) in comparators.iter().zip(&self.cmp_ticks) {
+            let Some(p) = cmp.spec.period else {
+                continue;
+            };
+            for &(phase, _) in ticks {
+                let (time, k) = next_on_grid(t, p, phase);
+                if best.is_none_or(|(b, _)| time < b) {
+                    best = Some((
+                        time,
+                        TimeKey {
+                            cycle: k,
+                            phase,
+                            period: p,
+                        },
+                    ));
+                }
+            }
+        }
+        best
+    }
+
+    /// Ticks due exactly at `t`, as (comparator, what).
+    fn ticks_at(&self, comparators: &[CompiledComparator], t: f64) -> Vec<(usize, Tick)> {
+        let mut out = vec![];
+        for (ci, (cmp, ticks)) in comparators.iter().zip(&self.cmp_ticks).enumerate() {
+            let Some(p) = cmp.spec.period else {
+                continue;
+            };
+            for &(phase, what) in ticks {
+                if on_grid(t, p, phase).is_some() {
+                    out.push((ci, what));
+                }
+            }
+        }
+        out
+    }
+
+    /// Whether a comparator ticks exactly at `t`.
+    pub(super) fn has_tick_at(&self, comparators: &[CompiledComparator], t: f64) -> bool {
+        !comparators.is_empty() && !self.ticks_at(comparators, t).is_empty()
+    }
 }
 
 impl Simulator {
@@ -34,50 +89,6 @@ impl Simulator {
             v.push((cmp.spec.max_duty * t, Tick::ForceOff));
         }
         v
-    }
-
-    /// The next comparator tick strictly after `t`: its time and key.
-    pub(super) fn next_tick(&self, t: f64) -> Option<(f64, TimeKey)> {
-        let mut best: Option<(f64, TimeKey)> = None;
-        for ci in 0..self.cc.comparators.len() {
-            let Some(p) = self.cc.comparators[ci].spec.period else {
-                continue;
-            };
-            for &(phase, _) in &self.sched.cmp_ticks[ci] {
-                let (time, k) = next_on_grid(t, p, phase);
-                if best.is_none_or(|(b, _)| time < b) {
-                    best = Some((
-                        time,
-                        TimeKey {
-                            cycle: k,
-                            phase,
-                            period: p,
-                        },
-                    ));
-                }
-            }
-        }
-        best
-    }
-
-    /// Ticks due exactly at `t`, as (comparator, what).
-    fn ticks_at(&self, t: f64) -> Vec<(usize, Tick)> {
-        let mut out = vec![];
-        for ci in 0..self.cc.comparators.len() {
-            let Some(p) = self.cc.comparators[ci].spec.period else {
-                continue;
-            };
-            for &(phase, what) in &self.sched.cmp_ticks[ci] {
-                if on_grid(t, p, phase).is_some() {
-                    out.push((ci, what));
-                }
-            }
-        }
-        out
-    }
-
-    pub(super) fn has_tick_at(&self, t: f64) -> bool {
-        !self.cc.comparators.is_empty() && !self.ticks_at(t).is_empty()
     }
 
     /// Bits of the comparators whose turn-off guard (bit set in the first
@@ -130,7 +141,7 @@ impl Simulator {
         if self.cc.comparators.is_empty() {
             return Ok(None);
         }
-        for (ci, what) in self.ticks_at(t) {
+        for (ci, what) in self.sched.ticks_at(&self.cc.comparators, t) {
             let spec = self.cc.comparators[ci].spec.clone();
             let on = self.sched.signal_on[self.cc.comparators[ci].signal];
             let c = match what {
@@ -247,17 +258,25 @@ mod tests {
         assert!(matches!(ticks[1], (p, Tick::ForceOff) if p == 0.9 * period));
         let mut t = 0.0;
         for k in 0..1000i64 {
-            let (force, key) = sim.next_tick(t).expect("a tick");
+            let (force, key) = sim.sched.next_tick(&sim.cc.comparators, t).expect("a tick");
             assert_eq!(
                 force.to_bits(),
                 (k as f64 * period + 0.9 * period).to_bits()
             );
             assert_eq!((key.cycle, key.phase), (k, 0.9 * period));
-            let (clock, key) = sim.next_tick(force).expect("a tick");
+            let (clock, key) = sim
+                .sched
+                .next_tick(&sim.cc.comparators, force)
+                .expect("a tick");
             assert_eq!(clock.to_bits(), ((k + 1) as f64 * period).to_bits());
             assert_eq!((key.cycle, key.phase), (k + 1, 0.0));
-            assert!(sim.has_tick_at(force) && sim.has_tick_at(clock));
-            assert!(!sim.has_tick_at(f64::from_bits(clock.to_bits() + 1)));
+            assert!(
+                sim.sched.has_tick_at(&sim.cc.comparators, force)
+                    && sim.sched.has_tick_at(&sim.cc.comparators, clock)
+            );
+            assert!(!sim
+                .sched
+                .has_tick_at(&sim.cc.comparators, f64::from_bits(clock.to_bits() + 1)));
             t = clock;
         }
         // On at t = 0 (the clock): only the turn-off guard is active.

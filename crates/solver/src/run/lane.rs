@@ -61,7 +61,7 @@ impl Simulator {
             }
             // The general loop's next edge (`gates_only`: nothing else is
             // scheduled); only a periodic one before the stop time.
-            let (t_next, key_next) = self.next_gate_edge(t_end);
+            let (t_next, key_next) = self.sched.next_gate_edge(&self.cc.signals, t_end);
             if key_next.is_none() || t_next >= t_end {
                 return Ok(());
             }

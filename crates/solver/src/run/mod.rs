@@ -209,7 +209,12 @@ impl Simulator {
             // A stretch of cached periodic intervals first; the lane
             // returns at the first interval it does not handle, untouched.
             timed!(self, lane, self.run_lane(t_end))?;
-            let (t_next, key_next) = timed!(self, schedule, self.next_scheduled(t_end));
+            let (t_next, key_next) = timed!(
+                self,
+                schedule,
+                self.sched
+                    .next_scheduled(&self.cc, (self.t, self.ramps.next), t_end)
+            );
             let h = instant::interval_length(self.t, self.tkey, t_next, key_next);
             timed!(
                 self,
@@ -223,7 +228,11 @@ impl Simulator {
                 }
             }
             timed!(self, finish, self.finish_interval(t_next, h, key_next))?;
-            if t_next < t_end || self.has_scheduled_at(t_next) {
+            if t_next < t_end
+                || self
+                    .sched
+                    .has_scheduled_at(&self.cc, t_next, self.ramps.next)
+            {
                 timed!(self, instants, self.apply_scheduled(t_next))?;
             }
         }

@@ -5,6 +5,7 @@
 use fluxstep_netlist::{Edge, Gate, Stimulus};
 
 use super::instant::{next_on_grid, on_grid, TimeKey};
+use super::schedule::Schedule;
 use super::{dot_iter, Simulator};
 use crate::control::{Apply, Command, Commands, Controller, Sampling};
 use crate::error::SolverError;
@@ -26,6 +27,47 @@ pub(super) struct Pending {
 
 fn control_err(time: f64, message: String) -> SolverError {
     SolverError::Control { time, message }
+}
+
+/// The controllers' part of the schedule: their samples on the grid
+/// k·T + offset and the commands pending.
+impl Schedule {
+    /// The cycle number if controller `i` samples exactly at `t`.
+    fn sample_due(&self, i: usize, t: f64) -> Option<i64> {
+        let s = &self.controllers[i].sampling;
+        on_grid(t, s.period, s.offset)
+    }
+
+    /// The next sample or pending command strictly after `t`.
+    pub(super) fn next_control(&self, t: f64) -> Option<(f64, Option<TimeKey>)> {
+        let mut best: Option<(f64, Option<TimeKey>)> = None;
+        for slot in &self.controllers {
+            let s = &slot.sampling;
+            let (time, k) = next_on_grid(t, s.period, s.offset);
+            if best.is_none_or(|(b, _)| time < b) {
+                best = Some((
+                    time,
+                    Some(TimeKey {
+                        cycle: k,
+                        phase: s.offset,
+                        period: s.period,
+                    }),
+                ));
+            }
+        }
+        for p in &self.pending {
+            if p.time > t && best.is_none_or(|(b, _)| p.time < b) {
+                best = Some((p.time, p.key));
+            }
+        }
+        best
+    }
+
+    /// Whether a controller samples, or a command falls due, at `t`.
+    pub(super) fn has_control_at(&self, t: f64) -> bool {
+        (0..self.controllers.len()).any(|i| self.sample_due(i, t).is_some())
+            || self.pending.iter().any(|p| p.time <= t)
+    }
 }
 
 impl Simulator {
@@ -68,7 +110,7 @@ impl Simulator {
         });
         // A sample due right now is taken now.
         let i = self.sched.controllers.len() - 1;
-        if self.sample_due(i, self.t).is_some() {
+        if self.sched.sample_due(i, self.t).is_some() {
             let t = self.t;
             self.sample(i, t)?;
             self.apply_pending(t)?;
@@ -77,46 +119,10 @@ impl Simulator {
         Ok(())
     }
 
-    /// The cycle number if controller `i` samples exactly at `t`.
-    fn sample_due(&self, i: usize, t: f64) -> Option<i64> {
-        let s = &self.sched.controllers[i].sampling;
-        on_grid(t, s.period, s.offset)
-    }
-
-    /// The next sample or pending command strictly after `t`.
-    pub(super) fn next_control(&self, t: f64) -> Option<(f64, Option<TimeKey>)> {
-        let mut best: Option<(f64, Option<TimeKey>)> = None;
-        for slot in &self.sched.controllers {
-            let s = &slot.sampling;
-            let (time, k) = next_on_grid(t, s.period, s.offset);
-            if best.is_none_or(|(b, _)| time < b) {
-                best = Some((
-                    time,
-                    Some(TimeKey {
-                        cycle: k,
-                        phase: s.offset,
-                        period: s.period,
-                    }),
-                ));
-            }
-        }
-        for p in &self.sched.pending {
-            if p.time > t && best.is_none_or(|(b, _)| p.time < b) {
-                best = Some((p.time, p.key));
-            }
-        }
-        best
-    }
-
-    pub(super) fn has_control_at(&self, t: f64) -> bool {
-        (0..self.sched.controllers.len()).any(|i| self.sample_due(i, t).is_some())
-            || self.sched.pending.iter().any(|p| p.time <= t)
-    }
-
     /// Samples the controllers due at `t` and applies commands that are due.
     pub(super) fn run_controllers(&mut self, t: f64) -> Result<(), SolverError> {
         for i in 0..self.sched.controllers.len() {
-            if self.sample_due(i, t).is_some() {
+            if self.sched.sample_due(i, t).is_some() {
                 self.sample(i, t)?;
             }
         }
@@ -124,7 +130,7 @@ impl Simulator {
     }
 
     fn sample(&mut self, i: usize, t: f64) -> Result<(), SolverError> {
-        let k = self.sample_due(i, t).expect("sampled only when due");
+        let k = self.sched.sample_due(i, t).expect("sampled only when due");
         let mode = &self.modes[self.mode as usize];
         let values: Vec<Option<f64>> = self.sched.controllers[i]
             .inputs

@@ -1,10 +1,10 @@
 //! Stage 1: the schedule — gate edges and source corners, computed as
 //! `k·T + phase` so that every period repeats the same interval lengths.
 
-use fluxstep_netlist::{Edge, Stimulus};
+use fluxstep_netlist::{Edge, SignalShape, Stimulus};
 
 use super::instant::{coincident_until, TimeKey};
-use super::Simulator;
+use crate::compile::Compiled;
 
 /// A queue of upcoming edges: a vector and the index of its front, so that
 /// looking at and taking the front is an index, not a ring's wrap-around
@@ -118,31 +118,45 @@ pub(super) struct SignalBuffer {
     pub chunk: f64,
 }
 
-impl Simulator {
-    pub(super) fn refill(&mut self, i: usize, upto: f64) {
-        let shape = &self.cc.signals[i].1;
-        let b = &mut self.sched.signals[i];
-        while b.filled_to <= upto && b.filled_to.is_finite() {
-            let to = b.filled_to + b.chunk;
-            b.edges.extend(shape.edges(b.filled_to, to));
-            b.filled_to = to;
+impl SignalBuffer {
+    /// Fills the buffer with the edges of `shape` past `upto`, a chunk of
+    /// periods at a time. Out of line: it runs once per chunk.
+    #[cold]
+    #[inline(never)]
+    fn refill(&mut self, shape: &SignalShape, upto: f64) {
+        while self.filled_to <= upto && self.filled_to.is_finite() {
+            let to = self.filled_to + self.chunk;
+            self.edges.extend(shape.edges(self.filled_to, to));
+            self.filled_to = to;
         }
+    }
+}
+
+/// Stage 1, handed only the schedule and the compiled circuit (its signal
+/// shapes, comparators and sources).
+impl Schedule {
+    /// Fills signal `i`'s buffer of edges (of `shape`) past `upto`.
+    pub(super) fn refill(&mut self, shape: &SignalShape, i: usize, upto: f64) {
+        self.signals[i].refill(shape, upto);
     }
 
     /// The earliest front of the signal buffers before `t_end` (or at it,
     /// with a key) and its key; `(t_end, None)` if there is none. Of equal
     /// instants, the first signal wins unless a later one has a key where
     /// it has none. The general loop (`next_scheduled`) and the lane take
-    /// their next edge here.
+    /// their next edge here (`shapes`: the compiled signals).
     #[inline(always)]
-    pub(super) fn next_gate_edge(&mut self, t_end: f64) -> (f64, Option<TimeKey>) {
+    pub(super) fn next_gate_edge(
+        &mut self,
+        shapes: &[(String, SignalShape)],
+        t_end: f64,
+    ) -> (f64, Option<TimeKey>) {
         let mut best = (t_end, None);
-        for i in 0..self.sched.signals.len() {
-            if self.sched.signals[i].edges.is_empty() {
-                let from = self.sched.signals[i].filled_to;
-                self.refill(i, from);
+        for (b, (_, shape)) in self.signals.iter_mut().zip(shapes) {
+            if b.edges.is_empty() {
+                b.refill(shape, b.filled_to);
             }
-            if let Some(e) = self.sched.signals[i].edges.front() {
+            if let Some(e) = b.edges.front() {
                 if e.time < best.0 || (e.time == best.0 && best.1.is_none()) {
                     let key = e.period.map(|period| TimeKey {
                         cycle: e.cycle,
@@ -156,65 +170,74 @@ impl Simulator {
         best
     }
 
-    /// Next scheduled instant after now (capped at `t_end`) and its key.
-    pub(super) fn next_scheduled(&mut self, t_end: f64) -> (f64, Option<TimeKey>) {
-        let mut best = self.next_gate_edge(t_end);
-        if self.sched.gates_only {
+    /// The next scheduled instant after `now` (capped at `t_end`) and its
+    /// key: a gate edge, controller sample or command, comparator tick,
+    /// source corner, or `ramp_next` (the end of a running ramp phase).
+    pub(super) fn next_scheduled(
+        &mut self,
+        cc: &Compiled,
+        (now, ramp_next): (f64, f64),
+        t_end: f64,
+    ) -> (f64, Option<TimeKey>) {
+        let mut best = self.next_gate_edge(&cc.signals, t_end);
+        if self.gates_only {
             // Nothing else is ever scheduled.
             return best;
         }
-        if !self.sched.controllers.is_empty() || !self.sched.pending.is_empty() {
-            if let Some((time, key)) = self.next_control(self.t) {
+        if !self.controllers.is_empty() || !self.pending.is_empty() {
+            if let Some((time, key)) = self.next_control(now) {
                 if time < best.0 || (time == best.0 && best.1.is_none() && key.is_some()) {
                     best = (time, key);
                 }
             }
         }
-        if !self.cc.comparators.is_empty() {
-            if let Some((time, key)) = self.next_tick(self.t) {
+        if !cc.comparators.is_empty() {
+            if let Some((time, key)) = self.next_tick(&cc.comparators, now) {
                 if time < best.0 || (time == best.0 && best.1.is_none()) {
                     best = (time, Some(key));
                 }
             }
         }
         // Constant sources have no corners.
-        let corners = if self.sched.const_inputs.is_some() {
+        let corners = if self.const_inputs.is_some() {
             &[][..]
         } else {
-            &self.sched.pwl_sources[..]
+            &self.pwl_sources[..]
         };
         for &si in corners {
-            let w = self.cc.sources[si]
+            let w = cc.sources[si]
                 .waveform
                 .as_ref()
                 .expect("piecewise-linear source");
             if matches!(w, Stimulus::Constant { .. }) {
                 continue;
             }
-            if let Some(p) = w.piece_at(self.t) {
-                if p.end.is_finite() && p.end > self.t && p.end < best.0 {
+            if let Some(p) = w.piece_at(now) {
+                if p.end.is_finite() && p.end > now && p.end < best.0 {
                     best = (p.end, None);
                 }
             }
         }
-        if self.ramps.next < best.0 {
-            best = (self.ramps.next, None);
+        if ramp_next < best.0 {
+            best = (ramp_next, None);
         }
         best
     }
 
-    pub(super) fn has_scheduled_at(&self, t: f64) -> bool {
+    /// Whether anything is scheduled at the instant `t` (with the edges
+    /// that coincide with it), `ramp_next` being the end of a running ramp
+    /// phase.
+    pub(super) fn has_scheduled_at(&self, cc: &Compiled, t: f64, ramp_next: f64) -> bool {
         let until = coincident_until(t);
-        self.ramps.next <= until
+        ramp_next <= until
             || self
-                .sched
                 .signals
                 .iter()
                 .any(|b| b.edges.front().is_some_and(|e| e.time <= until))
-            || self.has_tick_at(t)
+            || self.has_tick_at(&cc.comparators, t)
             || self.has_control_at(t)
-            || self.sched.pwl_sources.iter().any(|&si| {
-                self.cc.sources[si]
+            || self.pwl_sources.iter().any(|&si| {
+                cc.sources[si]
                     .waveform
                     .as_ref()
                     .and_then(|w| w.piece_at(t))
