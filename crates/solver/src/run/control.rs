@@ -4,21 +4,10 @@
 
 use super::instant::{coincident_until, next_on_grid, on_grid, TimeKey};
 use super::resolve::Moment;
-use super::schedule::Schedule;
+use super::schedule::{Schedule, Tick};
 use super::{dot_iter, Simulator};
 use crate::compile::CompiledComparator;
 use crate::error::SolverError;
-
-/// What a comparator tick does.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-pub(super) enum Tick {
-    /// The clock edge: turn on (or off, for valley control).
-    Clock,
-    /// The minimum on-time has passed: the turn-off comparison counts.
-    EnableOff,
-    /// The maximum on-time is reached: turn off.
-    ForceOff,
-}
 
 /// The comparators' part of the schedule: their ticks on the grid
 /// k·T + phase.

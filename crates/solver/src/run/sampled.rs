@@ -5,25 +5,10 @@
 use fluxstep_netlist::{Edge, Gate, Stimulus};
 
 use super::instant::{next_on_grid, on_grid, TimeKey};
-use super::schedule::Schedule;
+use super::schedule::{Pending, Schedule, Slot};
 use super::{dot_iter, Simulator};
 use crate::control::{Apply, Command, Commands, Controller, Sampling};
 use crate::error::SolverError;
-
-/// A controller and how it samples.
-pub(super) struct Slot {
-    pub sampling: Sampling,
-    pub controller: Box<dyn Controller>,
-    pub inputs: Vec<usize>,
-}
-
-/// Commands waiting for their delay to pass.
-pub(super) struct Pending {
-    pub time: f64,
-    pub key: Option<TimeKey>,
-    pub apply: Apply,
-    pub commands: Vec<Command>,
-}
 
 fn control_err(time: f64, message: String) -> SolverError {
     SolverError::Control { time, message }

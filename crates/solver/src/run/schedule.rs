@@ -5,6 +5,7 @@ use fluxstep_netlist::{Edge, SignalShape, Stimulus};
 
 use super::instant::{coincident_until, TimeKey};
 use crate::compile::Compiled;
+use crate::control::{Apply, Command, Controller, Sampling};
 
 /// A queue of upcoming edges: a vector and the index of its front, so that
 /// looking at and taking the front is an index, not a ring's wrap-around
@@ -91,15 +92,15 @@ pub(super) struct Schedule {
     /// minimum on-time has passed).
     pub(super) cmp_enabled_off: Vec<bool>,
     /// Per comparator: its ticks within a period as (phase, what).
-    pub(super) cmp_ticks: Vec<Vec<(f64, super::control::Tick)>>,
+    pub(super) cmp_ticks: Vec<Vec<(f64, Tick)>>,
     /// The circuit's gates, changed at run time by controllers.
     pub(super) gates: Vec<fluxstep_netlist::Gate>,
     /// Per gate: the origin of its cycles (moved by frequency changes).
     pub(super) gate_origin: Vec<f64>,
     /// For each signal, the index of its gate.
     pub(super) signal_gate: Vec<usize>,
-    pub(super) controllers: Vec<super::sampled::Slot>,
-    pub(super) pending: Vec<super::sampled::Pending>,
+    pub(super) controllers: Vec<Slot>,
+    pub(super) pending: Vec<Pending>,
     /// Indices of piecewise-linear sources (the only ones with corners).
     pub(super) pwl_sources: Vec<usize>,
     /// When every piecewise-linear source is constant: the input entries
@@ -109,6 +110,32 @@ pub(super) struct Schedule {
     /// controller, no comparator, no transition model (kept by
     /// `Simulator::new` and `add_controller`).
     pub(super) gates_only: bool,
+}
+
+/// What a comparator tick does.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub(super) enum Tick {
+    /// The clock edge: turn on (or off, for valley control).
+    Clock,
+    /// The minimum on-time has passed: the turn-off comparison counts.
+    EnableOff,
+    /// The maximum on-time is reached: turn off.
+    ForceOff,
+}
+
+/// A controller and how it samples.
+pub(super) struct Slot {
+    pub sampling: Sampling,
+    pub controller: Box<dyn Controller>,
+    pub inputs: Vec<usize>,
+}
+
+/// Commands waiting for their delay to pass.
+pub(super) struct Pending {
+    pub time: f64,
+    pub key: Option<TimeKey>,
+    pub apply: Apply,
+    pub commands: Vec<Command>,
 }
 
 /// Upcoming edges of one gate signal, refilled a chunk of periods at a time.
