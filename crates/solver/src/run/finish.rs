@@ -150,4 +150,28 @@ impl Simulator {
             ),
         }
     }
+
+    /// Stops the run where the state is no longer finite, naming the
+    /// state (or the stiff span's refusal that left it so).
+    #[inline(always)]
+    fn check_finite(&mut self) -> Result<(), SolverError> {
+        let z = self.z.as_slice();
+        if propagate::all_finite(z) {
+            return Ok(());
+        }
+        // A stiff span refused by `step` left NaN and its reason.
+        if let Some(e) = self.refused.take() {
+            return Err(e);
+        }
+        let z = self.z.as_slice();
+        if let Some(i) = z.iter().position(|v| !v.is_finite()) {
+            let what = if i < self.cc.n_x {
+                self.cc.state_names[i].clone()
+            } else {
+                "a source value".into()
+            };
+            return Err(SolverError::NonFinite { time: self.t, what });
+        }
+        Ok(())
+    }
 }

@@ -280,28 +280,6 @@ impl Simulator {
         self.rec.log.reserve(2 * n);
     }
 
-    #[inline(always)]
-    fn check_finite(&mut self) -> Result<(), SolverError> {
-        let z = self.z.as_slice();
-        if propagate::all_finite(z) {
-            return Ok(());
-        }
-        // A stiff span refused by `step` left NaN and its reason.
-        if let Some(e) = self.refused.take() {
-            return Err(e);
-        }
-        let z = self.z.as_slice();
-        if let Some(i) = z.iter().position(|v| !v.is_finite()) {
-            let what = if i < self.cc.n_x {
-                self.cc.state_names[i].clone()
-            } else {
-                "a source value".into()
-            };
-            return Err(SolverError::NonFinite { time: self.t, what });
-        }
-        Ok(())
-    }
-
     fn mode_id(&mut self, key: ModeKey) -> Result<u32, SolverError> {
         if let Some(i) = self.modes.find(key) {
             return Ok(i);
