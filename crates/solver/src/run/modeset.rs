@@ -95,6 +95,10 @@ pub(super) struct ModeCache {
     pub(super) spectrum: Option<Option<std::sync::Arc<propagate::Spectrum>>>,
     /// e^{Mδ} for the sub-interval lengths δ of stiff spans.
     pub(super) stiff_steps: Vec<Disc>,
+    /// e^{Mδ·2ⁱ} for δ the Taylor step of the mode's rate, i = 0, 1, …:
+    /// exact states anywhere in a stiff span (`locate::Ladder`), built
+    /// when event location first searches one.
+    pub(super) ladder: Vec<DMatrix<f64>>,
 }
 
 impl ModeCache {
@@ -128,6 +132,7 @@ impl Default for ModeCache {
             polys: vec![],
             spectrum: None,
             stiff_steps: vec![],
+            ladder: vec![],
         }
     }
 }
