@@ -30,12 +30,20 @@ pub enum SolverError {
     /// left for it: physically an unbounded voltage spike (an arc across a
     /// contact, the avalanche that destroys a transistor).
     #[error(
-        "t = {time:e} s: inductor current interrupted{}: {} carried {current:.6e} A with no path left; \
+        "t = {time:e} s: inductor current interrupted{}: {} carried {current:.6e} A with no path left{}; \
          stored energy {energy:.6e} J would be released as a voltage spike. \
          Add a freewheeling path (e.g. a diode), or allow the flux-conserving jump \
          (run setting on_interruption = \"conserve_flux\", Options::on_interruption).",
         cause.as_ref().map(|c| format!(" by {c}")).unwrap_or_default(),
-        inductors.join(", ")
+        inductors.join(", "),
+        if sources.is_empty() {
+            String::new()
+        } else {
+            format!(
+                " (current source {} also drives that path: its own energy is not counted)",
+                sources.join(", ")
+            )
+        }
     )]
     InductorInterrupted {
         /// Time of the interruption (s).
@@ -49,6 +57,9 @@ pub enum SolverError {
         /// Energy that the flux-conserving jump would dissipate, ½·L·I² for
         /// a single inductor (J).
         energy: f64,
+        /// Current sources that drive the interrupted path too, named apart
+        /// from the inductors (their energy is not in `energy`).
+        sources: Vec<String>,
     },
     /// Closed switches and conducting diodes short a voltage source or a
     /// charged capacitor (e.g. both switches of a half-bridge on at once).
@@ -223,6 +234,7 @@ mod tests {
             inductors: vec!["L1".into()],
             current: 4.7,
             energy: 1.1e-3,
+            sources: vec!["I1".into()],
         };
         let text = e.to_string();
         for (i, _) in text.match_indices(". ") {
@@ -233,6 +245,7 @@ mod tests {
             assert!(next.is_uppercase(), "{text}");
         }
         assert!(text.contains("conserve_flux"), "{text}");
+        assert!(text.contains("current source I1 also drives"), "{text}");
         assert_eq!(e.time(), Some(5e-5));
     }
 }

@@ -131,6 +131,7 @@ fn constraint_rows(
         constraints.push(ConstraintKind::Cutset {
             windings: topo.floating[c].windings.clone(),
             node: topo.rep(c),
+            sources: topo.floating[c].sources.clone(),
         });
     }
     for (li, lp) in topo.loops.iter().enumerate() {

@@ -127,6 +127,8 @@ pub(crate) enum ConstraintKind {
         windings: Vec<usize>,
         #[allow(dead_code)] // the node is named in future diagnostics
         node: usize,
+        /// Names of the current sources that also feed the cut.
+        sources: Vec<String>,
     },
     /// A capacitor voltage tied to a loop of capacitors and sources.
     Loop { caps: Vec<usize> },

@@ -695,10 +695,7 @@ mod tests {
             let a = ladder.at(&z, sigma);
             let b = exact_at(None, &mode.m, &z, sigma);
             for (x, y) in a.iter().zip(&b) {
-                assert!(
-                    (x - y).abs() <= 1e-11 * scale,
-                    "σ = {sigma:e}: {x} vs {y}"
-                );
+                assert!((x - y).abs() <= 1e-11 * scale, "σ = {sigma:e}: {x} vs {y}");
             }
         }
     }

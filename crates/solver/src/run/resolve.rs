@@ -475,13 +475,32 @@ impl Simulator {
     ) -> SolverError {
         let cause = self.cause_text(cause);
         if let Some(i) = interruption {
+            let mode = &self.modes[i.mode as usize];
             let mut windings = vec![];
             violations(
-                &self.modes[i.mode as usize],
+                mode,
                 self.z.as_slice(),
                 self.scales.seen,
                 Some(&mut windings),
             );
+            // Current sources in series with an interrupted winding: those
+            // of every cut that winding belongs to, named apart.
+            let mut sources: Vec<String> = mode
+                .constraints
+                .iter()
+                .filter_map(|k| match k {
+                    ConstraintKind::Cutset {
+                        windings: w,
+                        sources,
+                        ..
+                    } if w.iter().any(|b| windings.contains(b)) => Some(sources),
+                    _ => None,
+                })
+                .flatten()
+                .cloned()
+                .collect();
+            sources.sort();
+            sources.dedup();
             let current = windings
                 .iter()
                 .filter_map(|&b| match self.cc.branches[b].kind {
@@ -508,6 +527,7 @@ impl Simulator {
                     .iter()
                     .map(|&b| self.cc.branches[b].name.clone())
                     .collect(),
+                sources,
             };
         }
         match other {

@@ -34,7 +34,7 @@ fn an_inductor_in_series_with_a_current_source_takes_its_current_at_t0() {
 /// The same source and inductor (starting at 1 A) through a switch that
 /// opens at 5 µs: the run stops naming the inductor with its own energy
 /// ½·10 µH·(1 A)² = 5 µJ (it used to report 3.75 µJ, a projection that
-/// mixed in the source).
+/// mixed in the source), and names the current source apart.
 #[test]
 fn an_interrupted_source_path_reports_the_inductor_energy() {
     let c = Circuit::builder()
@@ -44,13 +44,24 @@ fn an_interrupted_source_path_reports_the_inductor_energy() {
         .build()
         .unwrap();
     match simulate(&c, 10e-6, Options::default()) {
-        Err(SolverError::InductorInterrupted {
-            time,
-            inductors,
-            energy,
-            current,
-            ..
-        }) => {
+        Err(e @ SolverError::InductorInterrupted { .. }) => {
+            let text = e.to_string();
+            let SolverError::InductorInterrupted {
+                time,
+                inductors,
+                energy,
+                current,
+                sources,
+                ..
+            } = e
+            else {
+                unreachable!()
+            };
+            assert_eq!(sources, vec!["I1".to_string()], "{text}");
+            assert!(
+                text.contains("current source I1 also drives that path"),
+                "{text}"
+            );
             assert_eq!(time, 5e-6);
             assert_eq!(inductors, vec!["L1".to_string()]);
             assert!((current - 1.0).abs() < 1e-12);

@@ -86,7 +86,9 @@ fn interruption_is_diagnosed_and_freewheeling_diode_takes_over() {
             inductors,
             current,
             energy,
+            sources,
         } => {
+            assert!(sources.is_empty(), "{sources:?}");
             assert_eq!(*time, 1e-4);
             assert_eq!(cause.as_deref(), Some("switch S1 opening"));
             assert_eq!(inductors, &vec!["L1".to_string()]);
