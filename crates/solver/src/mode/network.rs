@@ -4,7 +4,7 @@
 //! voltage-branch current as a linear function of the columns
 //! `[z; λ; free]`; then the state derivatives `D` in the same columns.
 
-use nalgebra::{DMatrix, DVector};
+use nalgebra::{DMatrix, DVector, Dyn, FullPivLU};
 
 use crate::compile::{BranchKind, Compiled};
 
@@ -338,21 +338,25 @@ fn solve_equilibrated(
     for (j, mut col) in ge.column_iter_mut().enumerate() {
         col *= dc[j];
     }
-    if n_unk > 0 && singular(&ge) {
+    if n_unk == 0 {
+        return Ok(DMatrix::zeros(0, ncol));
+    }
+    // One factorization of the equilibrated matrix serves the singularity
+    // test and, where it is used, the solve.
+    let lu = ge.full_piv_lu();
+    if singular_lu(&lu) {
         return Err(NoSolution("the network equations are singular"));
     }
     // The equilibrated system is solved where the raw matrix spans more
     // than 2^20 in its entries' magnitudes (there the raw LU loses about as
     // many digits as that spread); an ordinary circuit keeps the raw solve
     // and its bits.
-    Ok(if n_unk == 0 {
-        DMatrix::zeros(0, ncol)
-    } else if spread(g) > 1048576.0 {
+    Ok(if spread(g) > 1048576.0 {
         let mut r = rhs.clone();
         for (i, mut row) in r.row_iter_mut().enumerate() {
             row *= dr[i];
         }
-        let mut y = ge.full_piv_lu().solve(&r).expect("checked invertible");
+        let mut y = lu.solve(&r).expect("checked invertible");
         for (j, mut row) in y.row_iter_mut().enumerate() {
             row *= dc[j];
         }
@@ -366,11 +370,17 @@ fn solve_equilibrated(
 }
 
 /// Whether the square network matrix `g` (equilibrated, see
-/// [`equilibration`]) is numerically singular: its smallest LU pivot
-/// below 1e-13 of its largest. NaN entries count as singular.
+/// [`equilibration`]) is numerically singular (see [`singular_lu`]).
+#[cfg(test)]
 fn singular(g: &DMatrix<f64>) -> bool {
-    let u = g.clone().full_piv_lu();
-    let u = u.u();
+    singular_lu(&g.clone().full_piv_lu())
+}
+
+/// Whether the matrix factored as `lu` is numerically singular: its
+/// smallest LU pivot below 1e-13 of its largest. NaN entries count as
+/// singular.
+fn singular_lu(lu: &FullPivLU<f64, Dyn, Dyn>) -> bool {
+    let u = lu.u();
     let diag = (0..u.nrows().min(u.ncols())).map(|i| u[(i, i)].abs());
     let pmax = diag.clone().fold(0.0, f64::max);
     let pmin = diag.fold(f64::INFINITY, f64::min);
