@@ -15,6 +15,10 @@
 //!   when the pattern is entered (faster than 1e150 /s).
 //! - `slow-terahertz-source.json`: a 1 THz sine; the run refuses it, and
 //!   the measurement of what was recorded is refused above 2²⁰ pieces.
+//! - `slow-capacitance-5e-324.json`: the voltage multiplier with one
+//!   capacitor of 5e-324 F, whose 1/C is ∞: the rate bound was NaN, so
+//!   the run was neither refused nor finished; now the value is refused
+//!   by name.
 //! - `slow-grazing-diode.json`: the rectifier without load; the same
 //!   crossing was located at the same instant forever, now the run stops
 //!   naming the diode.
@@ -52,4 +56,10 @@ fn issue_19_saved_slow_cases_end_with_a_refusal() {
         let o = run_case(&case(name), &Limits::default());
         assert!(o.valid && !o.ran, "{name}: {o:?}");
     }
+}
+
+#[test]
+fn issue_19_a_capacitance_without_a_finite_reciprocal_is_refused() {
+    let o = run_case(&case("slow-capacitance-5e-324.json"), &Limits::default());
+    assert!(!o.valid, "{o:?}");
 }

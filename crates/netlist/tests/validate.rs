@@ -1817,3 +1817,35 @@ fn design_limits_name_parts_of_the_right_kind_and_positive_values() {
     at("run.limits.max_junction_temperature", "must be a finite");
     assert_eq!(problems(&c).len(), 9);
 }
+
+/// Issue 19 (a fuzz case): a capacitor of 5e-324 F in the voltage
+/// multiplier put ∞ (1/C) into the state equations, whose rate bound was
+/// then NaN, so the run was neither refused nor finished (tens of seconds
+/// for 50 µs). A resistance, inductance or capacitance without a finite
+/// reciprocal is refused by name; the smallest normal float still passes.
+#[test]
+fn issue_19_values_without_a_finite_reciprocal_are_refused() {
+    let rlc = |r: f64, l: f64, c: f64| {
+        Circuit::builder()
+            .voltage_source("V1", "in", "gnd", 1.0)
+            .resistor("R1", "in", "a", r)
+            .inductor("L1", "a", "b", l)
+            .capacitor("C1", "b", "gnd", c)
+            .build_unchecked()
+    };
+    for (c, element, field) in [
+        (rlc(5e-324, 1e-6, 1e-6), "R1", "resistance"),
+        (rlc(1.0, 5e-324, 1e-6), "L1", "inductance"),
+        (rlc(1.0, 1e-6, 5e-324), "C1", "capacitance"),
+    ] {
+        expect(
+            &c,
+            Some(element),
+            Some(field),
+            "reciprocal must be a finite number",
+        );
+    }
+    assert!(rlc(f64::MIN_POSITIVE, f64::MIN_POSITIVE, f64::MIN_POSITIVE)
+        .validate()
+        .is_ok());
+}

@@ -114,8 +114,9 @@ impl Checker<'_> {
     }
 
     /// Reports a positive value whose reciprocal is not finite (below
-    /// about 5.6e-309): the inverse inductance matrix of coupled windings
-    /// would not exist in f64. True if it is fine.
+    /// about 5.6e-309): a conductance, an inverse inductance or capacitance
+    /// (or the inverse inductance matrix of coupled windings) would not
+    /// exist in f64. True if it is fine.
     pub(super) fn invertible(&mut self, element: &str, field: &str, v: f64) -> bool {
         if (1.0 / v).is_finite() {
             return true;
