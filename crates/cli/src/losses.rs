@@ -44,6 +44,24 @@ pub(crate) struct Section {
     pub failed: Option<BalanceFailed>,
 }
 
+impl Section {
+    /// Prints the losses lines and the line naming the files written into
+    /// `dir` (the waveform, events, summary and figure, and the loss chart
+    /// when there is one): the tail of `run` and `steady` alike.
+    pub(crate) fn print_with_files(&self, dir: &std::path::Path) {
+        print!("{}", self.text);
+        println!(
+            "  written: {}/{{waveform.csv, events.json, summary.json, figure.svg{}}}",
+            dir.display(),
+            if self.chart.is_some() {
+                ", losses.svg"
+            } else {
+                ""
+            }
+        );
+    }
+}
+
 fn w(p: f64) -> String {
     format_si_digits(p, "W", 3)
 }

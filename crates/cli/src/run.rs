@@ -500,16 +500,7 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
             &measurements
         )
     );
-    print!("{}", losses.text);
-    println!(
-        "  written: {}/{{waveform.csv, events.json, summary.json, figure.svg{}}}",
-        dir.display(),
-        if losses.chart.is_some() {
-            ", losses.svg"
-        } else {
-            ""
-        }
-    );
+    losses.print_with_files(&dir);
     match (stopped, violated, losses.failed) {
         (Some(e), _, _) => Err(anyhow::Error::new(Stopped(e))),
         (None, Some(v), _) => Err(anyhow::Error::new(v)),

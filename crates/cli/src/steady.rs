@@ -189,16 +189,7 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
     write_svg(&fig, dir.join("figure.svg"))?;
 
     print_orbit(&stem, &ss, &outputs, &measurements);
-    print!("{}", losses.text);
-    println!(
-        "  written: {}/{{waveform.csv, events.json, summary.json, figure.svg{}}}",
-        dir.display(),
-        if losses.chart.is_some() {
-            ", losses.svg"
-        } else {
-            ""
-        }
-    );
+    losses.print_with_files(&dir);
     // A violated timing rule or a failed energy balance exits 1 once every
     // file is written.
     match (violated, losses.failed) {
