@@ -18,12 +18,14 @@ impl Checker<'_> {
             Element::Resistor(r) => {
                 // A value without a finite reciprocal (below about
                 // 5.6e-309) would put ∞ in the network or state equations.
-                let _ = self.positive(l, "resistance", r.resistance)
-                    && self.invertible(l, "resistance", r.resistance);
+                if self.positive(l, "resistance", r.resistance) {
+                    self.invertible(l, "resistance", r.resistance);
+                }
             }
             Element::Inductor(x) => {
-                let _ = self.positive(l, "inductance", x.inductance)
-                    && self.invertible(l, "inductance", x.inductance);
+                if self.positive(l, "inductance", x.inductance) {
+                    self.invertible(l, "inductance", x.inductance);
+                }
                 self.optional_finite(l, "initial_current", x.initial_current);
                 self.optional_non_negative(l, "winding_resistance", x.winding_resistance);
                 if let Some(c) = &x.core {
@@ -31,8 +33,9 @@ impl Checker<'_> {
                 }
             }
             Element::Capacitor(x) => {
-                let _ = self.positive(l, "capacitance", x.capacitance)
-                    && self.invertible(l, "capacitance", x.capacitance);
+                if self.positive(l, "capacitance", x.capacitance) {
+                    self.invertible(l, "capacitance", x.capacitance);
+                }
                 self.optional_finite(l, "initial_voltage", x.initial_voltage);
                 self.optional_non_negative(l, "esr", x.esr);
             }
