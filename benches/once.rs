@@ -11,8 +11,10 @@
 //! or `nothing` (what to record), then optionally how many runs (default
 //! 1; each run is timed and printed, as a criterion iteration would be),
 //! then optionally `reuse` (each run records into the storage of the run
-//! before, so that fresh pages do not dominate the time). Prints the events and the wall time per
-//! event of this one run.
+//! before, so that fresh pages do not dominate the time), and anywhere the
+//! word `nocert` (no energy certificate: `Options::energy_tolerance` set
+//! to `None`, to see what the check costs). Prints the events and the
+//! wall time per event of this one run.
 
 use std::time::Instant;
 
@@ -42,6 +44,7 @@ fn main() {
     // An optional fourth word `reuse`: each run records into the storage of
     // the one before (no fresh pages, as `record_all_reused`).
     let reuse = words.get(3) == Some(&"reuse");
+    let certify = !words.contains(&"nocert");
     let c = if pi {
         digital_pi_buck()
     } else if dcm {
@@ -54,6 +57,7 @@ fn main() {
         let start = Instant::now();
         let opts = Options {
             record,
+            energy_tolerance: certify.then_some(fluxstep_solver::DEFAULT_ENERGY_TOLERANCE),
             ..Options::default()
         };
         let run = if pi {

@@ -12,7 +12,7 @@ use fluxstep_analysis::losses::{
 use fluxstep_netlist::si::format_si_digits;
 use fluxstep_netlist::{Circuit, Element};
 use fluxstep_plot::{loss_chart_svg, LossBar};
-use fluxstep_solver::{EventLog, Waveform};
+use fluxstep_solver::{EnergyCertificate, EventLog, Waveform};
 
 /// Largest energy-balance residual a run may show, relative to the
 /// largest term of the balance (input, output plus losses, stored energy):
@@ -135,6 +135,47 @@ pub(crate) fn section(
         chart: Some(loss_chart_svg(Some(&heading), &bars)),
         failed,
     }
+}
+
+/// The run's own energy certificate (checked by the solver as the run
+/// went, over the recorded segments) as the `certificate` of summary.json.
+pub(crate) fn certificate_json(c: &EnergyCertificate) -> serde_json::Value {
+    serde_json::json!({
+        "delivered": c.delivered,
+        "dissipated": c.dissipated,
+        "jumps": c.jumps,
+        "stored_change": c.stored_change,
+        "residual": c.residual,
+        "relative": c.relative_residual(),
+        "tolerance": fluxstep_solver::DEFAULT_ENERGY_TOLERANCE,
+        "checked_time": c.checked_time,
+        "unchecked_time": c.unchecked_time,
+        "checked_segments": c.checked_segments,
+    })
+}
+
+/// The certificate's console line.
+pub(crate) fn certificate_line(c: &EnergyCertificate) -> String {
+    let j = |e: f64| format_si_digits(e, "J", 4);
+    let mut s = format!(
+        "  energy certificate: sources delivered {}, parts dissipated {}, jumps lost {}, \
+         storage gained {}; residual {:.1e} of the largest term over {} of segments",
+        j(c.delivered),
+        j(c.dissipated),
+        j(c.jumps),
+        j(c.stored_change),
+        c.relative_residual(),
+        fluxstep_netlist::si::format_si_digits(c.checked_time, "s", 4),
+    );
+    if c.unchecked_time > 0.0 {
+        let _ = write!(
+            s,
+            " ({} not checked: see docs/outputs.md)",
+            fluxstep_netlist::si::format_si_digits(c.unchecked_time, "s", 4)
+        );
+    }
+    s.push('\n');
+    s
 }
 
 /// The energy balance line and its `losses` JSON, with the error when it

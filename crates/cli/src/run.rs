@@ -371,6 +371,7 @@ fn summary_json(
         "window": [a, b],
         "events": result.events.len(),
         "modes": result.stats.modes,
+        "certificate": crate::losses::certificate_json(&result.certificate),
         "measurements": measurements.iter().map(|m| {
             let mut v = serde_json::to_value(m).expect("a measurement serializes");
             v["unit"] = unit(&m.output).into();
@@ -500,6 +501,7 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
             &measurements
         )
     );
+    print!("{}", crate::losses::certificate_line(&result.certificate));
     losses.print_with_files(&dir);
     match (stopped, violated, losses.failed) {
         (Some(e), _, _) => Err(anyhow::Error::new(Stopped(e))),
@@ -521,6 +523,7 @@ fn short(e: &SolverError) -> &'static str {
         SolverError::MemoryBudget { .. } => "memory budget",
         SolverError::NonFinite { .. } => "value not finite",
         SolverError::TransitionIncomplete { .. } => "switching transition incomplete",
+        SolverError::EnergyBalance { .. } => "energy balance failed",
         _ => "diagnostic",
     }
 }

@@ -155,6 +155,7 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
         "stable": ss.is_stable(),
         "multipliers": ss.multipliers,
         "measurements": measurements,
+        "certificate": crate::losses::certificate_json(&ss.run.certificate),
     });
     let losses = crate::losses::section(
         &circuit,
@@ -189,6 +190,7 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
     write_svg(&fig, dir.join("figure.svg"))?;
 
     print_orbit(&stem, &ss, &outputs, &measurements);
+    print!("{}", crate::losses::certificate_line(&ss.run.certificate));
     losses.print_with_files(&dir);
     // A violated timing rule or a failed energy balance exits 1 once every
     // file is written.

@@ -22,6 +22,11 @@
 //! - `slow-grazing-diode.json`: the rectifier without load; the same
 //!   crossing was located at the same instant forever, now the run stops
 //!   naming the diode.
+//! - `panic-forward-voltage-max.json`: the three-phase inverter with a body
+//!   diode's forward voltage of 1.8e308 V (`f64::MAX`); the constraint
+//!   matrix of a pattern overflowed and the singular value decomposition
+//!   panicked on a NaN; now that pattern has no multipliers and the run
+//!   ends with a diagnostic.
 
 use fluxstep_fuzz::{run_case, Limits};
 
@@ -62,4 +67,10 @@ fn issue_19_saved_slow_cases_end_with_a_refusal() {
 fn issue_19_a_capacitance_without_a_finite_reciprocal_is_refused() {
     let o = run_case(&case("slow-capacitance-5e-324.json"), &Limits::default());
     assert!(!o.valid, "{o:?}");
+}
+
+#[test]
+fn issue_19_a_forward_voltage_of_f64_max_is_not_a_panic() {
+    let o = run_case(&case("panic-forward-voltage-max.json"), &Limits::default());
+    assert!(o.valid && !o.timed_out, "{o:?}");
 }

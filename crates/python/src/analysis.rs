@@ -164,6 +164,7 @@ impl PySteady {
             waveform: ss.run.waveform.clone(),
             events: ss.run.events.clone(),
             stats: ss.run.stats,
+            certificate: ss.run.certificate,
         };
         let end = ss.run.waveform.span().map_or(ss.end_time(), |(_, b)| b);
         let run = Py::new(py, PyRun::from_result(result, end))?;

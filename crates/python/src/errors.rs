@@ -91,6 +91,7 @@ fn solver_kind(e: &SolverError) -> &'static str {
         SolverError::Chatter { .. } => "chatter",
         SolverError::EventLimit { .. } => "event_limit",
         SolverError::MemoryBudget { .. } => "memory_budget",
+        SolverError::EnergyBalance { .. } => "energy_balance",
         SolverError::NonFinite { .. } => "non_finite",
         SolverError::Control { .. } => "control",
         SolverError::InvalidState { .. } => "invalid_state",

@@ -409,6 +409,27 @@ impl PyRun {
         Ok(d)
     }
 
+    /// The run's energy certificate, kept by the solver as the run went
+    /// (docs/outputs.md): ``delivered``, ``dissipated``, ``jumps``,
+    /// ``stored_change``, ``residual`` (J), ``relative`` (the residual over
+    /// the balance's largest term), ``checked_time`` and
+    /// ``unchecked_time`` (s) and ``checked_segments``.
+    #[getter]
+    fn certificate<'py>(&self, py: Python<'py>) -> PyResult<Bound<'py, PyDict>> {
+        let c = self.result.certificate;
+        let d = PyDict::new(py);
+        d.set_item("delivered", c.delivered)?;
+        d.set_item("dissipated", c.dissipated)?;
+        d.set_item("jumps", c.jumps)?;
+        d.set_item("stored_change", c.stored_change)?;
+        d.set_item("residual", c.residual)?;
+        d.set_item("relative", c.relative_residual())?;
+        d.set_item("checked_time", c.checked_time)?;
+        d.set_item("unchecked_time", c.unchecked_time)?;
+        d.set_item("checked_segments", c.checked_segments)?;
+        Ok(d)
+    }
+
     /// The run's summary as a dict, the keys of the command line's
     /// ``summary.json``: ``stop_time``, ``window`` ([start, end] of the
     /// record, or None), ``events``, ``modes``, ``measurements`` (one dict

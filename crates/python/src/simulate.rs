@@ -192,6 +192,7 @@ fn plan(
         chatter_events: chatter_events.unwrap_or(d.chatter_events),
         chatter_window: chatter_window.unwrap_or(d.chatter_window),
         memory_budget: d.memory_budget,
+        energy_tolerance: d.energy_tolerance,
     };
     let outputs = outputs
         .or_else(|| cfg.map(|c| c.outputs.clone()).filter(|o| !o.is_empty()))

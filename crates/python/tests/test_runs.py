@@ -43,6 +43,13 @@ def test_vertices_events_and_summary(examples):
     assert s["window"] == list(run.span) and s["events"] == len(ev) and s["stopped"] is None
     assert [m["output"] for m in s["measurements"]] == run.outputs
     assert s["measurements"][0] == run.measure(run.outputs[0])
+    # The solver's energy certificate (energy conservation; common
+    # practice): the balance of the recorded window closes.
+    c = run.certificate
+    assert c["checked_segments"] > 0 and c["unchecked_time"] == 0.0
+    assert c["delivered"] > 0.0 and abs(c["relative"]) < 1e-10
+    total = c["dissipated"] + c["jumps"] + c["stored_change"]
+    assert abs(c["delivered"] - total - c["residual"]) <= 1e-15 * c["delivered"]
 
 
 def test_sweep_columns_are_ready_for_a_dataframe(examples, root):

@@ -157,6 +157,29 @@ pub enum SolverError {
         /// The budget (bytes).
         budget: usize,
     },
+    /// The run's energy balance failed its tolerance (see
+    /// [`crate::EnergyCertificate`]): the numbers of the run cannot be
+    /// trusted.
+    #[error(
+        "t = {time:e} s: the energy balance does not close: sources delivered \
+         what the parts dissipated and stored to within {residual:.3e} J, \
+         {:.1e} of the balance's largest term ({scale:.3e} J), beyond the tolerance \
+         {tolerance:e} (checked from t = {from:e} s). The run's results are not \
+         trustworthy; please report the circuit file",
+        residual.abs() / scale
+    )]
+    EnergyBalance {
+        /// Time (s): the end of the check that failed.
+        time: f64,
+        /// Start of the stretch that check took (s).
+        from: f64,
+        /// delivered − dissipated − jumps − stored change (J).
+        residual: f64,
+        /// The balance's largest term (J).
+        scale: f64,
+        /// The tolerance (relative).
+        tolerance: f64,
+    },
     /// A value became NaN or infinite.
     #[error("t = {time:e} s: {what} is not finite")]
     NonFinite {
@@ -209,6 +232,7 @@ impl SolverError {
             | SolverError::Chatter { time, .. }
             | SolverError::EventLimit { time, .. }
             | SolverError::MemoryBudget { time, .. }
+            | SolverError::EnergyBalance { time, .. }
             | SolverError::NonFinite { time, .. }
             | SolverError::Control { time, .. }
             | SolverError::Undetermined { time, .. } => Some(*time),

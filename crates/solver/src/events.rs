@@ -401,6 +401,14 @@ impl EventLog {
             .map(|(i, c)| self.view(i, c))
     }
 
+    /// The `j`-th jump of the log (in time order): its time and the energy
+    /// it dissipated.
+    pub(crate) fn jump(&self, j: usize) -> Option<(f64, f64)> {
+        self.energies
+            .get(j)
+            .map(|&(k, info)| (self.records[k as usize].time, info.energy))
+    }
+
     /// Event `i`.
     pub fn get(&self, i: usize) -> Option<EventRef<'_>> {
         self.records.get(i).map(|c| self.view(i, c))

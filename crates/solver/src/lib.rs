@@ -98,12 +98,13 @@ pub use events::{
 };
 pub use mode::ModeKey;
 pub use options::{
-    OnInterruption, OnShootThrough, Options, Record, CHATTER_FRACTION, DEFAULT_MEMORY_BUDGET,
+    OnInterruption, OnShootThrough, Options, Record, CHATTER_FRACTION, DEFAULT_ENERGY_TOLERANCE,
+    DEFAULT_MEMORY_BUDGET,
 };
 pub use propagate::eigenvalues;
 pub use run::paths::Shortcuts;
 #[cfg(feature = "stage-timers")]
 pub use run::StageTimes;
-pub use run::{simulate, RunResult, SegmentSink, SegmentView, Simulator, Stats};
+pub use run::{simulate, EnergyCertificate, RunResult, SegmentSink, SegmentView, Simulator, Stats};
 pub use states::{state_counts, StateCounts};
 pub use waveform::{OutputId, Segment, Side, TransitionSpan, ValueError, Waveform};

@@ -79,7 +79,20 @@ pub struct Options {
     /// on a machine with the memory, or record a window instead of
     /// everything ([`Record::Window`]).
     pub memory_budget: usize,
+    /// Default `Some(`[`DEFAULT_ENERGY_TOLERANCE`]`)`. The run's energy
+    /// certificate (see [`crate::EnergyCertificate`]) is brought up to date
+    /// at the end of every `advance_to`; a residual beyond this fraction of
+    /// its largest term stops the run with
+    /// [`crate::SolverError::EnergyBalance`]. `None` skips the check (and
+    /// its cost: a few quadratic forms per recorded segment, more where
+    /// lengths do not repeat).
+    pub energy_tolerance: Option<f64>,
 }
+
+/// The energy certificate's default tolerance: 1e-6 of the largest term of
+/// the balance. Exact runs of the example circuits stay below 1e-11; a
+/// residual of a millionth means the numbers cannot be trusted.
+pub const DEFAULT_ENERGY_TOLERANCE: f64 = 1e-6;
 
 /// The default of [`Options::memory_budget`]: 2 GiB, which a laptop can
 /// hold beside the rest of the process.
@@ -95,6 +108,7 @@ impl Default for Options {
             chatter_events: 200,
             chatter_window: 0.0,
             memory_budget: DEFAULT_MEMORY_BUDGET,
+            energy_tolerance: Some(DEFAULT_ENERGY_TOLERANCE),
         }
     }
 }

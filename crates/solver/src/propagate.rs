@@ -194,8 +194,15 @@ pub fn eigenvalues(m: &DMatrix<f64>) -> Option<Vec<nalgebra::Complex<f64>>> {
 }
 
 fn balanced(m: &DMatrix<f64>) -> DMatrix<f64> {
+    balancing(m).0
+}
+
+/// The balanced copy D⁻¹·M·D of `m` and the diagonal of D (powers of two,
+/// so the similarity is exact in floating point; see [`eigenvalues`]).
+pub(crate) fn balancing(m: &DMatrix<f64>) -> (DMatrix<f64>, Vec<f64>) {
     let n = m.nrows();
     let mut a = m.clone();
+    let mut d = vec![1.0; n];
     for _ in 0..100 {
         let mut changed = false;
         for i in 0..n {
@@ -215,13 +222,14 @@ fn balanced(m: &DMatrix<f64>) -> DMatrix<f64> {
                 a[(j, i)] = a[(j, i)] * f1 * f2;
                 a[(i, j)] = a[(i, j)] / f1 / f2;
             }
+            d[i] = d[i] * f1 * f2;
             changed = true;
         }
         if !changed {
             break;
         }
     }
-    a
+    (a, d)
 }
 
 /// Taylor vectors wₖ = Mᵏ z / k!·τᵏ, so that e^{Mτ} z = Σ wₖ; stops when a

@@ -179,35 +179,33 @@ impl Waveform {
         let offset = a - s.t0;
         let width = b - a;
         let mut z = propagate::advance(&m.m, m.rate, &self.z0(i), offset);
-        // Per piece length: e^{Mδσⱼ} at the nodes, then e^{Mδ}.
-        let mut cache: Vec<(u64, Vec<DMatrix<f64>>)> = vec![];
+        // Per piece length: the output's row times e^{Mδσⱼ} at the nodes
+        // (so each piece costs a dot product per node, not a product of
+        // the matrix with the state), then e^{Mδ}.
+        let mut cache: Vec<(u64, Vec<Vec<f64>>, DMatrix<f64>)> = vec![];
+        let row_m = DMatrix::from_row_slice(1, row.len(), &row);
         let mut tau = 0.0;
         // The caller checked the count (`pieces_needed`); the bound only
         // guarantees the end where τ + δ rounds to τ.
         for _ in 0..=MAX_PIECES {
             let d = sp.step_at(offset + tau).min(width - tau);
             let last = tau + d >= width || tau + d <= tau;
-            let k = match cache.iter().position(|(bits, _)| *bits == d.to_bits()) {
+            let k = match cache.iter().position(|(bits, _, _)| *bits == d.to_bits()) {
                 Some(k) => k,
                 None => {
-                    let mut e: Vec<DMatrix<f64>> = nodes
+                    let rows: Vec<Vec<f64>> = nodes
                         .iter()
-                        .map(|&x| propagate::expm(&m.m, x * d))
+                        .map(|&x| (&row_m * propagate::expm(&m.m, x * d)).as_slice().to_vec())
                         .collect();
-                    e.push(propagate::expm(&m.m, d));
-                    cache.push((d.to_bits(), e));
+                    cache.push((d.to_bits(), rows, propagate::expm(&m.m, d)));
                     cache.len() - 1
                 }
             };
-            let exps = &cache[k].1;
+            let (_, rows, step) = &cache[k];
             let y = DVector::from_iterator(
                 N,
-                exps[..N].iter().map(|e| {
-                    row.iter()
-                        .zip((e * &z).iter())
-                        .map(|(p, q)| p * q)
-                        .sum::<f64>()
-                }),
+                rows.iter()
+                    .map(|r| r.iter().zip(z.iter()).map(|(p, q)| p * q).sum::<f64>()),
             );
             let Some(c) = vander.solve(&y) else {
                 return;
@@ -221,7 +219,7 @@ impl Waveform {
             if last {
                 break;
             }
-            z = &exps[N] * &z;
+            z = step * &z;
             tau += d;
         }
     }

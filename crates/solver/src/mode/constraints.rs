@@ -167,6 +167,12 @@ fn multipliers(
     let (nz, n_lam) = (hz.ncols(), hz.nrows());
     let mut null_dirs = DMatrix::<f64>::zeros(n_lam, 0);
     let s = hz * dl;
+    // The decomposition panics on a NaN singular value: a constraint
+    // matrix that overflowed (a diode's forward voltage of 1.8e308 V next
+    // to ordinary values) has no multipliers to find.
+    if !s.iter().all(|v| v.is_finite()) {
+        return Err(UNRESOLVED);
+    }
     let svd = s.clone().svd(true, true);
     let (u, vt) = (
         svd.u.as_ref().expect("asked for u"),

@@ -204,6 +204,12 @@ impl Simulator {
         s
     }
 
+    /// The energy certificate so far: the balance over the segments
+    /// recorded up to the end of the last [`Simulator::advance_to`].
+    pub fn certificate(&self) -> EnergyCertificate {
+        self.certifier.cert
+    }
+
     /// Ends the run and hands over what was recorded.
     pub fn finish(self) -> RunResult {
         let stats = self.stats();
@@ -211,6 +217,7 @@ impl Simulator {
             waveform: self.rec.wave,
             events: self.rec.log,
             stats,
+            certificate: self.certifier.cert,
         }
     }
 }

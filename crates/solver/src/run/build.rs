@@ -83,6 +83,7 @@ impl Simulator {
             .collect();
         let rec = record::Recorder::new(&cc);
         let scales = scales::ScaleWatch::new(&cc);
+        let certifier = super::certify::Certifier::new(&cc);
         let mut sim = Simulator {
             cc,
             opts,
@@ -120,6 +121,7 @@ impl Simulator {
                 coef: vec![],
             },
             stats: Stats::default(),
+            certifier,
             scales,
             candidates: resolve::Candidates::default(),
             memo: replay::Memo::default(),

@@ -22,6 +22,7 @@
 mod access;
 mod advance;
 mod build;
+mod certify;
 mod checks;
 mod control;
 mod enter;
@@ -59,6 +60,7 @@ use crate::options::{Options, Record, CHATTER_FRACTION};
 use crate::propagate;
 use crate::waveform::{OutputId, Waveform};
 
+pub use certify::EnergyCertificate;
 use instant::TimeKey;
 use modeset::MAX_AGAIN;
 use paths::Shortcuts;
@@ -131,6 +133,9 @@ pub struct Simulator {
     plain_instants: usize,
     /// Scratch space of the stages (no state between calls).
     buf: advance::Buffers,
+    /// The energy certificate and what it keeps between checks
+    /// (`certify.rs`).
+    certifier: certify::Certifier,
     /// Switches with a transition model and where each is in its
     /// transition (`transition.rs`).
     ramps: transition::Ramps,
@@ -236,7 +241,7 @@ impl Simulator {
                 timed!(self, instants, self.apply_scheduled(t_next))?;
             }
         }
-        Ok(())
+        self.certify()
     }
 
     /// Reserves room for the record up to `t_end`, as

@@ -3,7 +3,7 @@
 
 use nalgebra::DVector;
 
-use super::dot_iter;
+use super::{dot_iter, EnergyCertificate};
 use crate::events::EventLog;
 use crate::mode::Mode;
 use crate::propagate;
@@ -108,6 +108,9 @@ pub struct RunResult {
     pub events: EventLog,
     /// Counters.
     pub stats: Stats,
+    /// The energy balance over the recorded segments (see
+    /// [`crate::Options::energy_tolerance`]).
+    pub certificate: EnergyCertificate,
 }
 
 #[cfg(test)]
