@@ -30,10 +30,13 @@
 //! shows as a residual.
 //!
 //! What is not recorded is not checked (`Record::Window` before its start,
-//! `Record::None`, segments sent to a sink), nor a segment of a circuit with
-//! more than [`MAX_DIM`] entries of z (the 24-diode multiplier), where a
-//! Gramian per new length would cost more than the run: the certificate
-//! counts that time as unchecked.
+//! `Record::None`, segments sent to a sink), nor a stiff segment (one the
+//! run advanced by a single exponential, `propagate::STIFF_SUBSTEPS`: a
+//! decay far faster than the segment, as in the 24-diode multiplier or a
+//! 1 fH inductor), nor a segment of a circuit with more than [`MAX_DIM`]
+//! entries of z: there a Gramian per new length would cost more than the
+//! run. The certificate counts that time as unchecked
+//! ([`EnergyCertificate::unchecked_time`]).
 
 use std::cmp::Ordering::{Equal, Less};
 use std::collections::HashMap;
@@ -44,13 +47,14 @@ use super::Simulator;
 use crate::compile::{BranchKind, Compiled, OutputDef};
 use crate::error::SolverError;
 use crate::mode::Mode;
+use crate::propagate;
 
 /// The quadratic forms each segment is integrated against: power
 /// delivered, power dissipated, stored energy.
 const FORMS: usize = 3;
 
 /// Largest extended state z whose segments are checked.
-pub const MAX_DIM: usize = 40;
+pub const MAX_DIM: usize = 24;
 
 /// Most cached Gramians before the cache starts afresh.
 const MAX_GRAMS: usize = 4096;
@@ -720,8 +724,12 @@ impl Simulator {
             if !continues {
                 cf.close(wave);
             }
-            let found = if n <= MAX_DIM && seg.len >= 0.0 {
-                cf.segment(seg.mode, &wave.modes[seg.mode as usize], seg.len, z0, true)
+            let mode = &wave.modes[seg.mode as usize];
+            let found = if n <= MAX_DIM
+                && seg.len >= 0.0
+                && propagate::substeps(mode.rate, seg.len) <= propagate::STIFF_SUBSTEPS
+            {
+                cf.segment(seg.mode, mode, seg.len, z0, true)
             } else {
                 None
             };
