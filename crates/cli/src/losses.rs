@@ -159,7 +159,7 @@ pub(crate) fn certificate_line(c: &EnergyCertificate) -> String {
     let j = |e: f64| format_si_digits(e, "J", 4);
     let mut s = format!(
         "  energy certificate: sources delivered {}, parts dissipated {}, jumps lost {}, \
-         storage gained {}; residual {:.1e} of the largest term over {} of segments",
+         storage gained {}; residual {:.1e} of the largest term, checked over {}",
         j(c.delivered),
         j(c.dissipated),
         j(c.jumps),

@@ -12,16 +12,20 @@
 //! mode's outputs over z, so over a segment of mode M and length h that
 //! starts in z the energy is zᵀ·G·z with the Gramian
 //! G(h) = ∫₀ʰ e^{Mᵀs}·Q·e^{Ms} ds (Q the symmetric form of the parts' v·i).
-//! G is computed by Van Loan's method (C. F. Van Loan, "Computing integrals
-//! involving the matrix exponential", IEEE Trans. Automatic Control, 1978:
-//! the exponential of [[−Mᵀ, Q], [0, M]]·δ holds e^{Mδ} and e^{−Mᵀδ}·G(δ))
-//! on a step δ = h/2ʲ with ‖M‖₁·δ ≤ ½, then doubled j times,
-//! G(2δ) = G(δ) + e^{Mᵀδ}·G(δ)·e^{Mδ}, so a stiff segment needs no
-//! exponential of a large matrix. Gramians are cached per (mode, length),
-//! like the run's exponentials: a settled converter pays a few quadratic
-//! forms per segment. The stored energy ½·iᵀ·L·i + ½·C·v² is taken from the
-//! states at the ends of the checked stretch, the state at its end from the
-//! same step and doublings, and the jump losses from the event log.
+//! Three forms per mode: power delivered by the sources, power absorbed by
+//! the other parts, and the stored energy ½·zᵀWz, whose time average is the
+//! balance's scale where the net flows are nil. G is computed by Van Loan's
+//! method (C. F. Van Loan, "Computing integrals involving the matrix
+//! exponential", IEEE Trans. Automatic Control, 1978: the exponential of
+//! [[−Mᵀ, Q], [0, M]]·δ holds e^{Mδ} and e^{−Mᵀδ}·G(δ)) on the balanced
+//! D⁻¹MD, on a step δ = h/2ʲ with ‖D⁻¹MD‖₁·δ ≤ ½, then doubled j times,
+//! G(2δ) = G(δ) + e^{Mᵀδ}·G(δ)·e^{Mδ}. Gramians are cached per (mode,
+//! length bucket), like the run's exponentials: a segment of a length that
+//! came back only adds z·zᵀ to a sum traced once per check (see
+//! [`Certifier::segment`]). The stored energy ½·iᵀ·L·i + ½·C·v² is taken at
+//! the ends of each stretch of contiguous checked segments, the state at
+//! its end from the same Gramians' e^{Mh}, and the jump losses from the
+//! event log.
 //!
 //! The check is independent of how the run advanced: the segments' start
 //! states come from the run, the energies from the Gramians of the modes'
@@ -30,7 +34,7 @@
 //! shows as a residual.
 //!
 //! What is not recorded is not checked (`Record::Window` before its start,
-//! `Record::None`, segments sent to a sink), nor a stiff segment (one the
+//! `Record::Nothing`, segments sent to a sink), nor a stiff segment (one the
 //! run advanced by a single exponential, `propagate::STIFF_SUBSTEPS`: a
 //! decay far faster than the segment, as in the 24-diode multiplier or a
 //! 1 fH inductor), nor a segment of a circuit with more than [`MAX_DIM`]
