@@ -158,6 +158,8 @@ struct Forms {
     /// Power delivered by the sources, power absorbed by the other parts,
     /// and the stored energy ½W, as quadratic forms over z.
     q: [DMatrix<f64>; FORMS],
+    /// The balanced D⁻¹MD and D's diagonal, for every Gramian of the mode.
+    balanced: (DMatrix<f64>, Vec<f64>),
     /// ‖D⁻¹MD‖₁ of the balanced M.
     norm: f64,
 }
@@ -329,12 +331,6 @@ impl Certifier {
         }
     }
 
-    /// The next segment does not continue the last one (the state was set
-    /// from outside).
-    pub(super) fn break_span(&mut self, wave: &crate::waveform::Waveform) {
-        self.close(wave);
-    }
-
     /// Adds the energies of the segments summed in the Gramians since the
     /// last flush.
     fn flush(&mut self) {
@@ -353,8 +349,10 @@ impl Certifier {
         self.stored_integral += e;
     }
 
-    /// Closes the open stretch: its stored energy gain is final.
-    fn close(&mut self, wave: &crate::waveform::Waveform) {
+    /// Closes the open stretch: its stored energy gain is final, and the
+    /// next segment starts a new one (also when the state was set from
+    /// outside).
+    pub(super) fn close(&mut self, wave: &crate::waveform::Waveform) {
         if let Some(s) = self.open.take() {
             let end = self.end_energy(wave, s.last);
             self.closed += end - s.start;
@@ -399,10 +397,12 @@ impl Certifier {
                     dissipated += outer;
                 }
             }
+            let balanced = crate::propagate::balancing(&mode.m);
             // Of the balanced M: what the series in Δ converges with.
-            let norm = norm1(&crate::propagate::balancing(&mode.m).0);
+            let norm = norm1(&balanced.0);
             Forms {
                 q: [delivered, dissipated, half_w.clone()],
+                balanced,
                 norm,
             }
         })
@@ -410,13 +410,14 @@ impl Certifier {
 
     /// Energy delivered and dissipated over a segment of `mode` (number
     /// `k`) and length `h` from `z0`, the integral of the stored energy
-    /// over it, and the stored energy at its start and at its end; `None` where the Gramians cannot be had (see
-    /// [`gramians`]). With `accumulate`, a segment of exactly the cached
+    /// over it, and the stored energy at its start and at its end; `None`
+    /// where the Gramians cannot be had (see [`gramians`]). With
+    /// `accumulate`, a segment of exactly the cached
     /// length is only added to the Gramian's sum (its energies come at the
     /// flush, and the five numbers returned are NaN).
     ///
     /// Lengths of one bucket (see [`BUCKET_BITS`]) share the Gramians of
-    /// a length h₀ met before, as long as ‖M‖₁·|h − h₀| ≤ 1/8 (else, or
+    /// a length h₀ met before, as long as ‖D⁻¹MD‖₁·|h − h₀| ≤ 1/8 (else, or
     /// after [`REANCHOR`] lengths in the series, the length gets Gramians
     /// of its own, which replace h₀'s): a located
     /// instant of a settled converter comes back within a few units in the
@@ -445,7 +446,7 @@ impl Certifier {
         };
         if fresh {
             let f = self.forms[k as usize].as_ref().expect("made above");
-            let g = gramians(&mode.m, f.q.each_ref(), h)?;
+            let g = gramians(&f.balanced, f.q.each_ref(), h)?;
             if self.grams.len() >= MAX_GRAMS {
                 self.flush();
                 self.grams.clear();
@@ -478,17 +479,22 @@ impl Certifier {
     }
 }
 
-/// G(h) and e^{Mh} for the forms `qs` (see the module notes); `None` when
+/// G(h) and e^{Mh} for the forms `qs` of a mode balanced as `(mb, dg)` (see
+/// the module notes); `None` when
 /// the segment is too long for [`MAX_DOUBLINGS`] or a number is not finite.
-fn gramians(m: &DMatrix<f64>, qs: [&DMatrix<f64>; FORMS], h: f64) -> Option<Gram> {
+fn gramians(
+    (mb, dg): &(DMatrix<f64>, Vec<f64>),
+    qs: [&DMatrix<f64>; FORMS],
+    h: f64,
+) -> Option<Gram> {
     // On the balanced D⁻¹MD (D powers of two): a circuit scaled in
     // impedance holds 1/L and 1/C entries 10²⁴ apart for the same
     // dynamics, and the exponential's scaling by the norm would lose the
     // small ones. G = D⁻¹·G̃·D⁻¹ with G̃ the Gramian of D⁻¹MD and D·Q·D,
-    // and e^{Mh} = D·e^{M̃h}·D⁻¹.
-    let (mb, dg) = crate::propagate::balancing(m);
-    let n = m.nrows();
-    let norm = norm1(&mb);
+    // and e^{Mh} = D·e^{M̃h}·D⁻¹. The balancing is the mode's
+    // (`propagate::balancing`, kept in its `Forms`).
+    let n = mb.nrows();
+    let norm = norm1(mb);
     let mut j = 0u32;
     while norm * h / 2f64.powi(j as i32) > 0.5 {
         j += 1;
@@ -508,7 +514,7 @@ fn gramians(m: &DMatrix<f64>, qs: [&DMatrix<f64>; FORMS], h: f64) -> Option<Gram
         if qs > 0.0 {
             a.view_mut((0, n), (n, n)).copy_from(&(qb * (d / qs)));
         }
-        a.view_mut((n, n), (n, n)).copy_from(&(&mb * d));
+        a.view_mut((n, n), (n, n)).copy_from(&(mb * d));
         let e = a.exp();
         let f22 = e.view((n, n), (n, n)).into_owned();
         if qs > 0.0 {
@@ -987,8 +993,8 @@ mod tests {
         let z = [0.7, -1.3, 1.0];
         let h0: f64 = 0.37;
         let h = f64::from_bits(h0.to_bits() + 5000);
-        let near = gramians(&m, [&qd, &qs, &qs], h0).expect("finite");
-        let exact = gramians(&m, [&qd, &qs, &qs], h).expect("finite");
+        let near = gramians(&crate::propagate::balancing(&m), [&qd, &qs, &qs], h0).expect("finite");
+        let exact = gramians(&crate::propagate::balancing(&m), [&qd, &qs, &qs], h).expect("finite");
         let mut sh = Shift::default();
         let [d1, s1, _] = energies(&near, &m, [&qd, &qs, &qs], (&z, h), &mut sh);
         let end1 = sh.end.clone();
@@ -1005,7 +1011,8 @@ mod tests {
         assert!((d0 - d2).abs() > 1e-13 * d2.abs(), "{d0} vs {d2}");
         // 3 % longer (‖M‖₁·Δ = 0.03): the series takes a dozen terms.
         let far = h0 * 1.03;
-        let exact = gramians(&m, [&qd, &qs, &qs], far).expect("finite");
+        let exact =
+            gramians(&crate::propagate::balancing(&m), [&qd, &qs, &qs], far).expect("finite");
         let [d1, s1, _] = energies(&near, &m, [&qd, &qs, &qs], (&z, far), &mut sh);
         let end1 = sh.end.clone();
         let [d2, s2, _] = energies(&exact, &m, [&qd, &qs, &qs], (&z, far), &mut sh);
@@ -1025,7 +1032,7 @@ mod tests {
         let q = DMatrix::from_row_slice(2, 2, &[1.0, 0.4, 0.4, 2.0]);
         let z = [0.7, -1.3];
         let h = 3.7;
-        let g = gramians(&m, [&q, &q, &q], h).expect("finite");
+        let g = gramians(&crate::propagate::balancing(&m), [&q, &q, &q], h).expect("finite");
         let n = 20_000;
         let f = |s: f64| {
             let e = (&m * s).exp();

@@ -81,7 +81,7 @@ impl Simulator {
         }
         self.z.as_mut_slice()[..n_x].copy_from_slice(x);
         // The state changed from outside: the energy balance starts afresh.
-        self.certifier.break_span(&self.rec.wave);
+        self.certifier.close(&self.rec.wave);
         self.resolve(0, None, Moment::Start)
     }
 
