@@ -16,7 +16,8 @@
 //!
 //! For counting instructions (repeatable, unlike wall time), one variant
 //! alone: `ideal` or `ramps`, then optionally the periods (default
-//! 20,000) and the runs (default 9):
+//! 20,000) and the runs (default 9), and anywhere the word `nocert` (no
+//! energy certificate, to see what the check costs):
 //!
 //! ```sh
 //! cargo bench --bench transitions --no-run
@@ -82,10 +83,12 @@ struct Best {
 }
 
 impl Best {
-    /// One more run of `c` over `periods`.
-    fn run(&mut self, c: &Circuit, periods: f64) {
+    /// One more run of `c` over `periods`, with the energy certificate or
+    /// without.
+    fn run(&mut self, c: &Circuit, periods: f64, certify: bool) {
         let opts = Options {
             record: Record::All,
+            energy_tolerance: certify.then_some(fluxstep_solver::DEFAULT_ENERGY_TOLERANCE),
             ..Options::default()
         };
         let start = Instant::now();
@@ -121,11 +124,12 @@ fn main() {
         .filter(|w| *w == "ideal" || *w == "ramps");
     let periods: f64 = words.get(1).and_then(|w| w.parse().ok()).unwrap_or(PERIODS);
     let reps: usize = words.get(2).and_then(|w| w.parse().ok()).unwrap_or(9);
+    let certify = !words.contains(&"nocert");
     if let Some(which) = one {
         let c = buck(which == "ramps");
         let mut best = Best::default();
         for _ in 0..reps {
-            best.run(&c, periods);
+            best.run(&c, periods, certify);
         }
         println!(
             "{which}: {} events in {:.3} ms, {:.3e} events/s",
@@ -141,8 +145,8 @@ fn main() {
     let (ideal, ramps) = (buck(false), buck(true));
     let (mut a, mut b) = (Best::default(), Best::default());
     for _ in 0..reps {
-        a.run(&ideal, periods);
-        b.run(&ramps, periods);
+        a.run(&ideal, periods, true);
+        b.run(&ramps, periods, true);
     }
     let (ideal_events, ideal_s, ideal_stats) = (a.events, a.seconds(), a.stats);
     let (ramp_events, ramp_s, ramp_stats) = (b.events, b.seconds(), b.stats);
