@@ -73,7 +73,7 @@ impl Network {
             total: nz + n_lam + n_free,
         };
         let (g, rhs) = stamp(cc, on, topo, &unknowns, cols);
-        let y = solve_equilibrated(&g, &rhs, cols.total)?;
+        let y = solve_equilibrated(&g, &rhs, cols.total, cc.nodes.len() - 1)?;
         Ok(Network { y, unknowns, cols })
     }
 
@@ -318,19 +318,63 @@ fn stamp(
     (g, rhs)
 }
 
-/// Solves `g·y = rhs` (`ncol` columns). Singular or not is judged on the
+/// Solves `g·y = rhs` (`ncol` columns; the first `nv` unknowns are node
+/// voltages, the others branch currents). Singular or not is judged on the
 /// equilibrated matrix: the raw one mixes conductances (1/R) with the unit
 /// entries of voltage branches, so an impedance scale far from 1 Ω (a
 /// 0.1 µΩ load, or a whole circuit with R·k, L·k, C/k) would make the
 /// pivot ratio fall below any fixed threshold although the network is
 /// regular.
+///
+/// Equilibration by largest entries alone can leave a weak tie beside a
+/// unit entry: a source whose island reaches ground only through 1 MΩ,
+/// scaled by k = 1e9, has 1e-15 S in the row and column of the source's
+/// unit entries, and no row or column factor lifts it (each already has
+/// its largest entry at 1). Where the first test finds the matrix
+/// singular, the branch-current unknowns and their equations are first
+/// put in the units of the network's own conductances (their geometric
+/// mean, a power of two), which makes the matrix the same at every
+/// impedance scale, and the test is taken again there.
 fn solve_equilibrated(
     g: &DMatrix<f64>,
     rhs: &DMatrix<f64>,
     ncol: usize,
+    nv: usize,
 ) -> Result<DMatrix<f64>, NoSolution> {
     let n_unk = g.nrows();
+    if n_unk == 0 {
+        return Ok(DMatrix::zeros(0, ncol));
+    }
     let (dr, dc) = equilibration(g);
+    // One factorization of the equilibrated matrix serves the singularity
+    // test and, where it is used, the solve.
+    let lu = scaled(g, &dr, &dc).full_piv_lu();
+    if singular_lu(&lu) {
+        let (dr, dc) = in_conductance_units(g, nv).ok_or(SINGULAR)?;
+        let lu = scaled(g, &dr, &dc).full_piv_lu();
+        if singular_lu(&lu) {
+            return Err(SINGULAR);
+        }
+        return Ok(solve_scaled(&lu, rhs, &dr, &dc));
+    }
+    // The equilibrated system is solved where the raw matrix spans more
+    // than 2^20 in its entries' magnitudes (there the raw LU loses about as
+    // many digits as that spread); an ordinary circuit keeps the raw solve
+    // and its bits.
+    Ok(if spread(g) > 1048576.0 {
+        solve_scaled(&lu, rhs, &dr, &dc)
+    } else {
+        g.clone()
+            .full_piv_lu()
+            .solve(rhs)
+            .expect("checked invertible")
+    })
+}
+
+const SINGULAR: NoSolution = NoSolution("the network equations are singular");
+
+/// diag(dr)·g·diag(dc).
+fn scaled(g: &DMatrix<f64>, dr: &[f64], dc: &[f64]) -> DMatrix<f64> {
     let mut ge = g.clone();
     for (i, mut row) in ge.row_iter_mut().enumerate() {
         row *= dr[i];
@@ -338,35 +382,55 @@ fn solve_equilibrated(
     for (j, mut col) in ge.column_iter_mut().enumerate() {
         col *= dc[j];
     }
-    if n_unk == 0 {
-        return Ok(DMatrix::zeros(0, ncol));
+    ge
+}
+
+/// y from the factors `lu` of diag(dr)·g·diag(dc): y = diag(dc)·(LU)⁻¹·
+/// diag(dr)·rhs.
+fn solve_scaled(
+    lu: &FullPivLU<f64, Dyn, Dyn>,
+    rhs: &DMatrix<f64>,
+    dr: &[f64],
+    dc: &[f64],
+) -> DMatrix<f64> {
+    let mut r = rhs.clone();
+    for (i, mut row) in r.row_iter_mut().enumerate() {
+        row *= dr[i];
     }
-    // One factorization of the equilibrated matrix serves the singularity
-    // test and, where it is used, the solve.
-    let lu = ge.full_piv_lu();
-    if singular_lu(&lu) {
-        return Err(NoSolution("the network equations are singular"));
+    let mut y = lu.solve(&r).expect("checked invertible");
+    for (j, mut row) in y.row_iter_mut().enumerate() {
+        row *= dc[j];
     }
-    // The equilibrated system is solved where the raw matrix spans more
-    // than 2^20 in its entries' magnitudes (there the raw LU loses about as
-    // many digits as that spread); an ordinary circuit keeps the raw solve
-    // and its bits.
-    Ok(if spread(g) > 1048576.0 {
-        let mut r = rhs.clone();
-        for (i, mut row) in r.row_iter_mut().enumerate() {
-            row *= dr[i];
+    y
+}
+
+/// Row and column factors that first multiply the branch-current unknowns
+/// (columns from `nv` on) and their equations (rows from `nv` on) by the
+/// geometric mean of the node block's non-zero conductances (a power of
+/// two), then equilibrate (see [`equilibration`]); `None` without a
+/// conductance.
+fn in_conductance_units(g: &DMatrix<f64>, nv: usize) -> Option<(Vec<f64>, Vec<f64>)> {
+    let n = g.nrows();
+    let (mut sum, mut count) = (0.0, 0u32);
+    for j in 0..nv.min(n) {
+        for i in 0..nv.min(n) {
+            let v = g[(i, j)].abs();
+            if v > 0.0 && v.is_finite() {
+                sum += v.log2();
+                count += 1;
+            }
         }
-        let mut y = lu.solve(&r).expect("checked invertible");
-        for (j, mut row) in y.row_iter_mut().enumerate() {
-            row *= dc[j];
-        }
-        y
-    } else {
-        g.clone()
-            .full_piv_lu()
-            .solve(rhs)
-            .expect("checked invertible")
-    })
+    }
+    if count == 0 {
+        return None;
+    }
+    let f = 2f64.powi((sum / f64::from(count)).round() as i32);
+    let pre: Vec<f64> = (0..n).map(|i| if i < nv { 1.0 } else { f }).collect();
+    let (dr, dc) = equilibration(&scaled(g, &pre, &pre));
+    Some((
+        dr.iter().zip(&pre).map(|(a, b)| a * b).collect(),
+        dc.iter().zip(&pre).map(|(a, b)| a * b).collect(),
+    ))
 }
 
 /// Whether the square network matrix `g` (equilibrated, see
@@ -514,6 +578,104 @@ mod tests {
             }
             assert!(!mode.undetermined[sw]);
             assert_eq!(mode.ct, mode.c.transpose());
+        }
+    }
+
+    /// The rectifier's network with every diode off (the source floats on
+    /// 0.5 Ω and two 1 MΩ ties to ground, the filter capacitor on 20 Ω), as
+    /// stamped at impedance ×1 and ×1e9: the largest-entry equilibration
+    /// leaves the 1e-15 S tie beside the source's unit entries and judged
+    /// the ×1e9 matrix singular, which stopped the run at t = 0 with a
+    /// false short. In the network's own conductance units both are
+    /// regular, and the solutions scale exactly as the physics says:
+    /// node voltages equal, branch currents ×1e-9 (Ohm's law; common
+    /// practice), to 1e-9, and the source node at the divider's value
+    /// (1 MΩ + 0.5 Ω)/(2 MΩ + 0.5 Ω) of the 1 V source. Both solves are
+    /// within 5e-11 of it, the rounding of the weak tie's 1e-6 pivot.
+    #[test]
+    fn a_weak_tie_beside_a_source_is_regular_at_every_impedance_scale() {
+        let network = |k: f64| {
+            let (gs, gt, gl) = (2.0 / k, 1e-6 / k, 0.05 / k);
+            DMatrix::from_row_slice(
+                6,
+                6,
+                &[
+                    gs,
+                    0.0,
+                    -gs,
+                    0.0,
+                    1.0,
+                    0.0, //
+                    0.0,
+                    gt,
+                    0.0,
+                    0.0,
+                    -1.0,
+                    0.0, //
+                    -gs,
+                    0.0,
+                    gs + gt,
+                    0.0,
+                    0.0,
+                    0.0, //
+                    0.0,
+                    0.0,
+                    0.0,
+                    gl,
+                    0.0,
+                    1.0, //
+                    1.0,
+                    -1.0,
+                    0.0,
+                    0.0,
+                    0.0,
+                    0.0, //
+                    0.0,
+                    0.0,
+                    0.0,
+                    1.0,
+                    0.0,
+                    0.0,
+                ],
+            )
+        };
+        let rhs = DMatrix::from_row_slice(
+            6,
+            2,
+            &[0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 1.0, 0.0, 0.0, 1.0],
+        );
+        let one = super::solve_equilibrated(&network(1.0), &rhs, 2, 4)
+            .ok()
+            .expect("regular");
+        let (dr, dc) = equilibration(&network(1e9));
+        let mut ge = network(1e9);
+        for i in 0..6 {
+            for j in 0..6 {
+                ge[(i, j)] *= dr[i] * dc[j];
+            }
+        }
+        assert!(singular(&ge), "the first test alone");
+        let big = super::solve_equilibrated(&network(1e9), &rhs, 2, 4)
+            .ok()
+            .expect("regular");
+        for i in 0..6 {
+            // Rows 0..4 are node voltages, 4.. branch currents.
+            let f = if i < 4 { 1.0 } else { 1e-9 };
+            for j in 0..2 {
+                let (a, b) = (one[(i, j)] * f, big[(i, j)]);
+                assert!(
+                    (a - b).abs() <= 1e-9 * a.abs().max(f),
+                    "({i}, {j}): {a} vs {b}"
+                );
+            }
+        }
+        let divider = (1e6 + 0.5) / (2e6 + 0.5);
+        for y in [&one, &big] {
+            assert!(
+                (y[(0, 0)] - divider).abs() <= 1e-10 * divider,
+                "{}",
+                y[(0, 0)]
+            );
         }
     }
 
