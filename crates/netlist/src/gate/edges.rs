@@ -52,11 +52,11 @@ impl Gate {
                 stop,
             } => {
                 let t = 1.0 / frequency;
-                let d0 = delay.rem_euclid(t);
+                let d0 = on_boundary(delay.rem_euclid(t), t);
                 let transitions = if *duty <= 0.0 || *duty >= 1.0 {
                     vec![]
                 } else {
-                    vec![(d0, true), (d0 + duty * t, false)]
+                    vec![(d0, true), (on_boundary(d0 + duty * t, t), false)]
                 };
                 vec![(
                     name.clone(),
@@ -81,10 +81,10 @@ impl Gate {
                 stop,
             } => {
                 let t = 1.0 / frequency;
-                let d0 = delay.rem_euclid(t);
-                let fall = d0 + duty * t;
-                let hi_on = d0 + dead_time_high;
-                let lo_on = fall + dead_time_low;
+                let d0 = on_boundary(delay.rem_euclid(t), t);
+                let fall = on_boundary(d0 + duty * t, t);
+                let hi_on = on_boundary(d0 + dead_time_high, t);
+                let lo_on = on_boundary(fall + dead_time_low, t);
                 let hi = if hi_on < fall {
                     vec![(hi_on, true), (fall, false)]
                 } else {
@@ -153,6 +153,23 @@ impl Gate {
             }
         }
     }
+}
+
+/// A phase within rounding (8 units in the last place of the period) of a
+/// cycle boundary (0, T or 2T) is that boundary: a delay of 9T/12 and a
+/// duty cycle of 0.25, each rounded from its decimals, put the turn-off at
+/// T ± 1 ulp, and the wrong side of the boundary turned the switch on at
+/// t = 0 for 5e-22 s in some time units and not in others. Instants equal
+/// by definition must be equal in bits; no intended pulse or gap is 1e-15
+/// of a period.
+fn on_boundary(phase: f64, t: f64) -> f64 {
+    let band = 8.0 * f64::EPSILON * t;
+    for b in [0.0, t, 2.0 * t] {
+        if (phase - b).abs() <= band {
+            return b;
+        }
+    }
+    phase
 }
 
 /// The absolute time of the transition at `phase` in cycle `k` of a
@@ -520,6 +537,37 @@ mod tests {
         // Same phase bits every cycle.
         assert_eq!(e[3].phase.to_bits(), e[1].phase.to_bits());
         assert!(s.is_on(10e-6) && !s.was_on_before(10e-6));
+    }
+
+    /// The last of twelve interleaved phases, delay 9T/12 and duty 0.25,
+    /// turns off at the cycle boundary by definition; from the rounded
+    /// decimals the sum is T ± 1 ulp, and on the wrong side of it the
+    /// gate was on at t = 0 and turned off 5e-22 s later in some time
+    /// units but not others. In every unit it is off at t = 0 and its
+    /// first edge is the turn-on at 3T/4 (common practice: an edge is the
+    /// same instant however the times are scaled).
+    #[test]
+    fn an_edge_on_the_cycle_boundary_is_on_it_in_every_time_unit() {
+        for s in [1.0, 86.28277151183008, 1e-9, 3.7e-4, 1e9] {
+            let t = 1.0 / (250e3 / s);
+            let g = Gate::Pwm {
+                name: "ph10".into(),
+                frequency: 250e3 / s,
+                duty: 0.25,
+                delay: 3e-6 * s,
+                start: None,
+                stop: None,
+            };
+            let (_, shape) = g.signals().remove(0);
+            assert_eq!(shape.transitions[1].0, t, "s = {s}");
+            assert!(!shape.is_on(0.0), "s = {s}");
+            let e = shape.edges(0.0, t);
+            assert_eq!(e.len(), 1, "s = {s}: {e:?}");
+            assert!(e[0].on, "s = {s}");
+        }
+        // A gap of a few ulps is a boundary; a real one is kept.
+        assert_eq!(super::on_boundary(1.0 + 4.0 * f64::EPSILON, 1.0), 1.0);
+        assert_eq!(super::on_boundary(1e-12, 1.0), 1e-12);
     }
 
     #[test]

@@ -32,11 +32,35 @@ const EXAMPLES: &[&str] = &[
     "buck_dcm.json",
     "flyback.json",
     "hysteretic_buck.json",
+    "interleaved_buck_12.json",
     "interrupted_inductor.json",
+    "multiplier_24.json",
     "peak_current_buck.json",
     "rectifier.json",
     "sync_buck.json",
+    "three_phase_bridge.json",
+    "three_phase_inverter.json",
     "voltage_mode_buck.json",
+];
+
+/// Examples and impedance factors at the ends of the issue's range that
+/// do not scale yet (open findings):
+/// - the Taylor series of located and uncached intervals stops on the
+///   largest entry of the whole state, currents and voltages together, so
+///   at k = 1e12 the currents (1e-12 of the voltages) keep 1e-8 of
+///   relative error in the interrupted inductor and 7e-9 in the
+///   inverter's phase voltage, and at k = 1e-12 the flyback's voltages
+///   (1e-12 of its currents) leave its secondary current 2e-9 off;
+/// - the 24-diode multiplier at k ≤ 1e-9 (its capacitors ×1e9, no
+///   inductor to set a current scale) stops mid-run with a false short
+///   (Db1, Da1 across Cb1): a diode current of −2.5e-14 A, rounding of
+///   the network's rows, is judged against a floor of zero.
+const OPEN_EXTREMES: &[(&str, f64)] = &[
+    ("flyback.json", 1e-12),
+    ("interrupted_inductor.json", 1e12),
+    ("three_phase_inverter.json", 1e12),
+    ("multiplier_24.json", 1e-12),
+    ("multiplier_24.json", 1e-9),
 ];
 
 /// Examples the random scaling test leaves out for now (open findings,
@@ -105,6 +129,8 @@ fn scaled(file: &str, sc: Scale) -> Circuit {
         mul(e, "inductance", k * s);
         mul(e, "capacitance", s / k);
         mul(e, "forward_voltage", a);
+        mul(e, "initial_current", a / k);
+        mul(e, "initial_voltage", a);
         if let Some(b) = e.get_mut("body_diode") {
             mul(b, "forward_voltage", a);
             mul(b, "on_resistance", k);
@@ -132,6 +158,7 @@ fn scaled(file: &str, sc: Scale) -> Circuit {
         .flatten()
     {
         mul(g, "frequency", 1.0 / s);
+        mul(g, "period", s);
         mul(g, "delay", s);
         mul(g, "dead_time_high", s);
         mul(g, "dead_time_low", s);
@@ -252,7 +279,28 @@ fn assert_scales(file: &str, sc: Scale) {
             rv
         };
     }
-    for (a, b) in e1.iter().zip(e2.iter()) {
+    // Events within 1e-12 of the run of each other are one instant up to
+    // rounding: two gate edges that coincide only to the decimals of the
+    // file (the twelve-phase buck's S2 on and S11 off at T/12) are taken
+    // in either order or at instants an ulp apart once the times are
+    // scaled. Within such a group the events are compared in a fixed
+    // order.
+    fn grouped(log: &fluxstep_solver::EventLog, width: f64) -> Vec<fluxstep_solver::EventRef<'_>> {
+        let mut v: Vec<_> = log.iter().collect();
+        let mut i = 0;
+        while i < v.len() {
+            let t0 = v[i].time;
+            let mut j = i + 1;
+            while j < v.len() && (v[j].time - t0).abs() <= width {
+                j += 1;
+            }
+            v[i..j].sort_by_key(|e| (format!("{:?}", e.kind), format!("{:?}", e.cause), e.element));
+            i = j;
+        }
+        v
+    }
+    let (g1, g2) = (grouped(e1, 1e-12 * stop), grouped(e2, 1e-12 * stop * sc.s));
+    for (a, b) in g1.iter().zip(g2.iter()) {
         assert_eq!(
             (a.kind, a.cause, a.element),
             (b.kind, b.cause, b.element),
@@ -284,17 +332,44 @@ fn assert_scales(file: &str, sc: Scale) {
         }
     }
     let (w1, w2) = (&one.waveform, &other.waveform);
-    for name in w1.output_names() {
-        let (i1, i2) = (w1.output(name).unwrap(), w2.output(name).unwrap());
-        // Off the switching instants (an output that steps there is
-        // taken on either side by rounding of the scaled time).
-        let pts: Vec<f64> = (0..50)
-            .map(|j| stop * (f64::from(j) + std::f64::consts::FRAC_1_PI) / 50.0)
-            .collect();
-        let v1: Vec<Option<f64>> = pts.iter().map(|&t| w1.value(i1, t).ok()).collect();
-        let r = v1.iter().flatten().fold(0.0f64, |m, v| m.max(v.abs()));
+    // Off the switching instants (an output that steps there is taken on
+    // either side by rounding of the scaled time).
+    let pts: Vec<f64> = (0..50)
+        .map(|j| stop * (f64::from(j) + std::f64::consts::FRAC_1_PI) / 50.0)
+        .collect();
+    let values: Vec<(&str, Vec<Option<f64>>)> = w1
+        .output_names()
+        .iter()
+        .map(|name| {
+            let i1 = w1.output(name).unwrap();
+            let v: Vec<Option<f64>> = pts.iter().map(|&t| w1.value(i1, t).ok()).collect();
+            (name.as_str(), v)
+        })
+        .collect();
+    // Like the states, each output is judged against the largest of its
+    // unit (a capacitor current that the phases cancel to rounding, or a
+    // conducting ideal diode's voltage, is compared with the circuit's
+    // currents or voltages, not with its own noise).
+    let own = |v: &[Option<f64>]| v.iter().flatten().fold(0.0f64, |m, x| m.max(x.abs()));
+    let of_outputs = |current: bool| {
+        values
+            .iter()
+            .filter(|(n, _)| !n.contains(".oscillator") && n.ends_with(".current") == current)
+            .map(|(_, v)| own(v))
+            .fold(0.0f64, f64::max)
+    };
+    let (oi, ov) = (ri.max(of_outputs(true)), rv.max(of_outputs(false)));
+    for (name, v1) in &values {
+        let i2 = w2.output(name).unwrap();
+        let r = if name.contains(".oscillator") {
+            own(v1)
+        } else if name.ends_with(".current") {
+            oi
+        } else {
+            ov
+        };
         let f = unit(name, sc);
-        for (&t, x) in pts.iter().zip(&v1) {
+        for (&t, x) in pts.iter().zip(v1) {
             let y = w2.value(i2, t * sc.s).ok();
             match (x, y) {
                 (Some(x), Some(y)) => assert!(
@@ -332,6 +407,22 @@ fn issue_19_extreme_scales_keep_the_event_sequence() {
     // and the run stopped with a false short (D3, D1 across C1).
     for k in [1e-12, 4e7, 1e9, 1e12] {
         assert_scales("rectifier.json", Scale { k, s: 1.0, a: 1.0 });
+    }
+}
+
+/// Every example at the ends of the issue's impedance range, k = 1e-12,
+/// 1e-9, 1e9 and 1e12 (R·k, L·k, C/k: the same time constants, currents
+/// ×1/k; common practice), keeps its event sequence and scales its
+/// states and outputs to 1e-9 of their unit's range, except the open
+/// findings of [`OPEN_EXTREMES`].
+#[test]
+fn issue_19_every_example_at_the_ends_of_the_impedance_range() {
+    for file in EXAMPLES {
+        for k in [1e-12, 1e-9, 1e9, 1e12] {
+            if !OPEN_EXTREMES.contains(&(*file, k)) {
+                assert_scales(file, Scale { k, s: 1.0, a: 1.0 });
+            }
+        }
     }
 }
 
@@ -398,7 +489,9 @@ proptest! {
         la in -6.0f64..6.0,
     ) {
         let sc = Scale { k: 10f64.powf(lk), s: 10f64.powf(ls), a: 10f64.powf(la) };
-        // Open findings, left out until understood: the clocked
+        // The twelve-phase buck's S2 on and S11 off coincide only to the
+        // decimals of the file; `assert_scales` compares such groups in a
+        // fixed order. Open findings, left out until understood: the clocked
         // comparator gates do not scale in time exactly — the voltage-mode
         // buck's turn-off instants move by 2e-9 of the run at s = 3.5e-4,
         // and the peak-current buck's event count changes at s = 6.6e-6.
