@@ -40,7 +40,9 @@ const SAME_INSTANT_REL: f64 = 1e-13;
 /// run so far: the units of every absolute floor.
 #[derive(Clone, Copy, Debug, Default, PartialEq)]
 pub(crate) struct Scales {
-    /// Largest |inductor current| seen, in A.
+    /// Largest |inductor current| seen, in A; in a circuit without
+    /// inductors, the voltage scale through its largest conductance
+    /// (`run/scales.rs`).
     pub current: f64,
     /// Largest |capacitor or source voltage| seen, in V.
     pub voltage: f64,

@@ -2,7 +2,7 @@
 //! voltage seen so far in the run, which every tolerance of event location
 //! and resolution is relative to (`crate::crossing::Scales`).
 
-use crate::compile::{Compiled, SourceRef};
+use crate::compile::{BranchKind, Compiled, SourceRef};
 use crate::crossing::Scales;
 
 /// The state entries whose largest magnitude sets the run's scales, and
@@ -17,6 +17,11 @@ pub(super) struct ScaleWatch {
     voltage_terms: Vec<(usize, f64)>,
     /// The sources of several terms.
     multi_term_sources: Vec<usize>,
+    /// In a circuit without inductors, its largest conductance (a
+    /// resistor, or a switch's or diode's on-resistance): the current
+    /// scale is then the voltage scale times it, the most the circuit's
+    /// resistances can carry. 0 where inductors set the current scale.
+    conductance: f64,
 }
 
 impl ScaleWatch {
@@ -37,11 +42,32 @@ impl ScaleWatch {
                 _ => multi_term_sources.push(si),
             }
         }
+        let conductance = if cc.groups.is_empty() {
+            let r_on = cc
+                .switches
+                .iter()
+                .map(|s| s.r_on)
+                .chain(cc.diodes.iter().map(|d| d.r_on))
+                .filter(|&r| r > 0.0)
+                .map(|r| 1.0 / r);
+            cc.branches
+                .iter()
+                .filter_map(|b| match b.kind {
+                    BranchKind::Resistor { g } => Some(g.abs()),
+                    _ => None,
+                })
+                .chain(r_on)
+                .filter(|g| g.is_finite())
+                .fold(0.0, f64::max)
+        } else {
+            0.0
+        };
         ScaleWatch {
             seen: Scales::default(),
             current_states,
             voltage_terms,
             multi_term_sources,
+            conductance,
         }
     }
 
@@ -65,6 +91,9 @@ impl ScaleWatch {
             let v: f64 = sources[si].terms.iter().map(|&(k, f)| f * z[k]).sum();
             v_s = v_s.max(v.abs());
         }
+        // Without inductors: the voltage scale through the largest
+        // conductance (0 otherwise, which leaves the inductor currents').
+        i_s = i_s.max(v_s * self.conductance);
         self.seen = Scales {
             current: i_s,
             voltage: v_s,
@@ -111,5 +140,33 @@ mod tests {
         let s = w.update(&z, &cc.sources);
         assert_eq!((s.current, s.voltage), (3.0, 20.0));
         assert_eq!(w.seen, s);
+    }
+
+    /// Without inductors the current scale is the voltage scale through
+    /// the largest conductance (Ohm's law; common practice): a diode
+    /// ladder with its capacitors ×1e9 had a current floor of zero and
+    /// judged a diode current of −2.5e-14 A, rounding beside 1e9 A, as
+    /// reverse conduction. Scaling every impedance by k scales it by 1/k.
+    #[test]
+    fn without_inductors_the_current_scale_comes_from_the_conductances() {
+        for k in [1.0, 1e-9, 1e9] {
+            let c = fluxstep_netlist::Circuit::builder()
+                .voltage_source("V1", "in", "gnd", 10.0)
+                .resistor("Rs", "in", "a", 2.0 * k)
+                .diode("D1", "a", "out")
+                .capacitor("C1", "out", "gnd", 1e-6 / k)
+                .resistor("Rload", "out", "gnd", 1e6 * k)
+                .build()
+                .expect("valid");
+            let cc = Compiled::compile(&c).expect("compiles");
+            let mut w = ScaleWatch::new(&cc);
+            let mut z = vec![0.0; cc.n_z()];
+            let (i, f) = cc.sources[0].terms[0];
+            z[i] = 10.0 / f;
+            let s = w.update(&z, &cc.sources);
+            assert_eq!(s.voltage, 10.0);
+            let want = 10.0 / (2.0 * k);
+            assert!((s.current - want).abs() <= 1e-15 * want, "k = {k}: {s:?}");
+        }
     }
 }
