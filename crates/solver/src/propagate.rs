@@ -232,9 +232,31 @@ pub(crate) fn balancing(m: &DMatrix<f64>) -> (DMatrix<f64>, Vec<f64>) {
     (a, d)
 }
 
+/// Largest |wᵢ·xᵢ| over the first `w.len()` entries of `x`: the circuit
+/// states in units of the square root of energy (`Mode::weight`).
+#[inline]
+fn weighted_size(x: &[f64], w: &[f64]) -> f64 {
+    x.iter()
+        .zip(w)
+        .fold(0.0, |a, (v, wi)| a.max((v * wi).abs()))
+}
+
+/// Whether a Taylor term that is already below 1e-18 of the state's
+/// largest entry is negligible for every circuit state too: its states
+/// weighted by their energy scales `w` below 1e-18 of the reference's.
+/// The largest entry alone mixes units: with every impedance ×1e12 the
+/// currents are 1e-12 of the voltages and kept only 1e-6 of their own
+/// digits (1e-8 in the interrupted-inductor example); weighted, √L·i and
+/// √C·v scale alike.
+#[inline]
+fn negligible_in_energy(term: &[f64], reference: &[f64], w: &[f64]) -> bool {
+    weighted_size(term, w) <= 1e-18 * weighted_size(reference, w)
+}
+
 /// Taylor vectors wₖ = Mᵏ z / k!·τᵏ, so that e^{Mτ} z = Σ wₖ; stops when a
-/// term is negligible. Returns the sum.
-pub(crate) fn taylor(m: &DMatrix<f64>, z: &DVector<f64>, tau: f64) -> DVector<f64> {
+/// term is negligible (in the largest entry and in energy units, see
+/// [`negligible_in_energy`]; `w`: `Mode::weight`). Returns the sum.
+pub(crate) fn taylor(m: &DMatrix<f64>, w: &[f64], z: &DVector<f64>, tau: f64) -> DVector<f64> {
     let mut sum = z.clone();
     let mut term = z.clone();
     let mut next = DVector::zeros(z.len());
@@ -244,7 +266,11 @@ pub(crate) fn taylor(m: &DMatrix<f64>, z: &DVector<f64>, tau: f64) -> DVector<f6
         std::mem::swap(&mut term, &mut next);
         sum += &term;
         let tn = term.amax();
-        if tn == 0.0 || (k >= 3 && tn <= sum.amax() * 1e-18) {
+        if tn == 0.0
+            || (k >= 3
+                && tn <= sum.amax() * 1e-18
+                && negligible_in_energy(term.as_slice(), sum.as_slice(), w))
+        {
             break;
         }
     }
@@ -252,7 +278,13 @@ pub(crate) fn taylor(m: &DMatrix<f64>, z: &DVector<f64>, tau: f64) -> DVector<f6
 }
 
 /// e^{Mτ} z over any τ ≥ 0, by as many Taylor sub-steps as the rate needs.
-pub(crate) fn advance(m: &DMatrix<f64>, rate: f64, z: &DVector<f64>, tau: f64) -> DVector<f64> {
+pub(crate) fn advance(
+    m: &DMatrix<f64>,
+    w: &[f64],
+    rate: f64,
+    z: &DVector<f64>,
+    tau: f64,
+) -> DVector<f64> {
     if tau == 0.0 {
         return z.clone();
     }
@@ -263,7 +295,7 @@ pub(crate) fn advance(m: &DMatrix<f64>, rate: f64, z: &DVector<f64>, tau: f64) -
     let d = tau / n as f64;
     let mut x = z.clone();
     for _ in 0..n {
-        x = taylor(m, &x, d);
+        x = taylor(m, w, &x, d);
     }
     x
 }
@@ -271,9 +303,11 @@ pub(crate) fn advance(m: &DMatrix<f64>, rate: f64, z: &DVector<f64>, tau: f64) -
 /// Taylor terms wₖ = (Mδ)ᵏ z / k! over one sub-interval of length δ (with
 /// ρ·δ ≤ [`TAYLOR_REACH`]), so that e^{Mδσ} z = Σ wₖ σᵏ for σ ∈ [0, 1].
 /// A guard r·z(σ) is then the polynomial Σ (r·wₖ) σᵏ. Only the first
-/// `live` rows of M may be non-zero (see `Mode::live`).
+/// `live` rows of M may be non-zero (see `Mode::live`); `w` weighs the
+/// states for the stopping test (see [`negligible_in_energy`]).
 pub(crate) fn taylor_terms(
     m: &DMatrix<f64>,
+    w: &[f64],
     live: usize,
     z: &DVector<f64>,
     delta: f64,
@@ -295,7 +329,14 @@ pub(crate) fn taylor_terms(
         let f = delta / k as f64;
         let tn = matvec_scaled(m, live, &done[(k - 1) * n..], y, f);
         len = k + 1;
-        if tn == 0.0 || (k >= 3 && tn <= scale * 1e-18) {
+        // In energy units against the larger of z and the first term (z
+        // may be at rest, its states all zero).
+        if tn == 0.0
+            || (k >= 3
+                && tn <= scale * 1e-18
+                && weighted_size(y, w)
+                    <= 1e-18 * weighted_size(&done[..n], w).max(weighted_size(&done[n..2 * n], w)))
+        {
             break;
         }
     }
@@ -673,11 +714,12 @@ pub(crate) struct Scratch {
 }
 
 /// e^{Mτ} z into `out`, as [`advance`] does, without allocating (only the
-/// first `live` rows of M may be non-zero). τ may be negative (a step back
-/// over a short remainder, see `Simulator::advance_near`).
+/// first `live` rows of M may be non-zero; `w`: `Mode::weight`). τ may be
+/// negative (a step back over a short remainder, see
+/// `Simulator::advance_near`).
 pub(crate) fn advance_into(
     m: &DMatrix<f64>,
-    live: usize,
+    (w, live): (&[f64], usize),
     rate: f64,
     z: &[f64],
     tau: f64,
@@ -711,7 +753,9 @@ pub(crate) fn advance_into(
                     *x += t;
                     sn = sn.max(x.abs());
                 }
-                if tn == 0.0 || (k >= 3 && tn <= sn * 1e-18) {
+                if tn == 0.0
+                    || (k >= 3 && tn <= sn * 1e-18 && negligible_in_energy(&s.term, &s.x, w))
+                {
                     break;
                 }
             }

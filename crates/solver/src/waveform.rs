@@ -106,10 +106,10 @@ impl OutputPoly {
             _ => (0, w.z0(i)),
         };
         while k < j {
-            z = propagate::taylor(&m.m, &z, d);
+            z = propagate::taylor(&m.m, &m.weight, &z, d);
             k += 1;
         }
-        propagate::taylor_terms(&m.m, m.live, &z, d, terms);
+        propagate::taylor_terms(&m.m, &m.weight, m.live, &z, d, terms);
         let row = m.c.row(id.0);
         self.coef.clear();
         self.coef.extend(
@@ -224,7 +224,7 @@ impl Waveform {
     fn state_in(&self, i: usize, t: f64) -> DVector<f64> {
         let s = &self.segments[i];
         let m = &self.modes[s.mode as usize];
-        propagate::advance(&m.m, m.rate, &self.z0(i), (t - s.t0).max(0.0))
+        propagate::advance(&m.m, &m.weight, m.rate, &self.z0(i), (t - s.t0).max(0.0))
     }
 
     fn out_in(&self, i: usize, id: OutputId, z: &DVector<f64>) -> Option<f64> {

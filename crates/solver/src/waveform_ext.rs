@@ -112,11 +112,11 @@ impl Waveform {
         let row = m.c.row(id.0);
         let n = propagate::substeps(m.rate, b - a);
         let delta = (b - a) / n as f64;
-        let mut z = propagate::advance(&m.m, m.rate, &self.z0(i), a - s.t0);
+        let mut z = propagate::advance(&m.m, &m.weight, m.rate, &self.z0(i), a - s.t0);
         let mut terms = propagate::TaylorTerms::default();
         let mut coef = Vec::new();
         for k in 0..n {
-            propagate::taylor_terms(&m.m, m.live, &z, delta, &mut terms);
+            propagate::taylor_terms(&m.m, &m.weight, m.live, &z, delta, &mut terms);
             coef.clear();
             coef.extend(
                 terms
@@ -136,7 +136,7 @@ impl Waveform {
                 coef: &coef,
             });
             if k + 1 < n {
-                z = propagate::taylor(&m.m, &z, delta);
+                z = propagate::taylor(&m.m, &m.weight, &z, delta);
             }
         }
         true
@@ -178,7 +178,7 @@ impl Waveform {
         let vander = DMatrix::from_fn(N, N, |j, k| nodes[j].powi(k as i32)).lu();
         let offset = a - s.t0;
         let width = b - a;
-        let mut z = propagate::advance(&m.m, m.rate, &self.z0(i), offset);
+        let mut z = propagate::advance(&m.m, &m.weight, m.rate, &self.z0(i), offset);
         // Per piece length: the output's row times e^{Mδσⱼ} at the nodes
         // (so each piece costs a dot product per node, not a product of
         // the matrix with the state), then e^{Mδ}.

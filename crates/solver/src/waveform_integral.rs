@@ -87,12 +87,12 @@ impl Waveform {
                 return f64::NAN;
             }
             if let Some(sp) = spectrum {
-                let z = propagate::advance(&m.m, m.rate, &self.z0(i), a);
+                let z = propagate::advance(&m.m, &m.weight, m.rate, &self.z0(i), a);
                 return Self::integrate_stiff(m, &sp, z, ids, (a, width), origin, f);
             }
         }
         let d = width / n as f64;
-        let mut z = propagate::advance(&m.m, m.rate, &self.z0(i), a);
+        let mut z = propagate::advance(&m.m, &m.weight, m.rate, &self.z0(i), a);
         // One Taylor expansion per sub-interval, e^{Mσd}z = Σ wₖσᵏ, and
         // each output as the polynomial Σ (c·wₖ)σᵏ evaluated at the eight
         // nodes: the same series as expanding anew at each node (which
@@ -101,7 +101,7 @@ impl Waveform {
         let mut terms = propagate::TaylorTerms::default();
         let mut coefs: Vec<Vec<f64>> = vec![Vec::new(); ids.len()];
         for step in 0..n {
-            propagate::taylor_terms(&m.m, m.live, &z, d, &mut terms);
+            propagate::taylor_terms(&m.m, &m.weight, m.live, &z, d, &mut terms);
             for (coef, id) in coefs.iter_mut().zip(ids) {
                 let row = m.c.row(id.0);
                 coef.clear();
@@ -122,7 +122,7 @@ impl Waveform {
             }
             total += 0.5 * d * part;
             if step + 1 < n {
-                z = propagate::taylor(&m.m, &z, d);
+                z = propagate::taylor(&m.m, &m.weight, &z, d);
             }
         }
         total

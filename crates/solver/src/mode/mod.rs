@@ -174,6 +174,12 @@ pub(crate) struct Mode {
     pub free_checks: Vec<(Vec<f64>, usize, Vec<String>)>,
     /// Rate bound (1/s) of the fastest dynamics, for sub-step sizes.
     pub rate: f64,
+    /// The energy scale of each circuit state (√L for an inductor
+    /// current, √C for a capacitor voltage, 1 otherwise), the first
+    /// entries of z: Taylor series stop only where the states' terms,
+    /// weighted by these, are negligible too (`propagate`), so currents
+    /// 1e-12 of the voltages (impedances ×1e12) keep their digits.
+    pub weight: Vec<f64>,
     /// A loop of closed switches and conducting diodes, some with
     /// resistance, across a voltage source or a capacitor: (devices,
     /// shorted element). Zero-resistance shorts are a `problem` instead.
@@ -246,6 +252,7 @@ impl Mode {
             p,
             free_checks,
             rate,
+            weight: cc.x_scale[..cc.n_x.min(cc.x_scale.len())].to_vec(),
             resistive_short: topo.resistive_short,
             cmp_guards,
         })
@@ -269,6 +276,7 @@ impl Mode {
             p: DMatrix::identity(nz, nz),
             free_checks: vec![],
             rate: 0.0,
+            weight: vec![],
             resistive_short: None,
             cmp_guards: vec![],
         }

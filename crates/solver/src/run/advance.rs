@@ -167,7 +167,7 @@ impl ModeCache {
         }
         propagate::advance_into(
             &m.m,
-            m.live,
+            (&m.weight, m.live),
             m.rate,
             io.z,
             h,
@@ -252,7 +252,7 @@ impl ModeCache {
         propagate::matvec(phi, z, buf.z_try.as_mut_slice());
         propagate::advance_into(
             &m.m,
-            m.live,
+            (&m.weight, m.live),
             m.rate,
             buf.z_try.as_slice(),
             delta,

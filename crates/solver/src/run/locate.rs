@@ -211,7 +211,7 @@ impl Simulator {
         let mut found: Option<(f64, (u64, u64), f64)> = None;
         let scales = self.update_scales();
         for i in 0..n {
-            propagate::taylor_terms(&mode.m, mode.live, &za, d, &mut terms);
+            propagate::taylor_terms(&mode.m, &mode.weight, mode.live, &za, d, &mut terms);
             for g in guards.clone() {
                 coef.clear();
                 let mut scale = 0.0;
@@ -329,6 +329,7 @@ impl Simulator {
 /// exponential is within 2.1e-12.
 struct Ladder<'a> {
     m: &'a DMatrix<f64>,
+    w: &'a [f64],
     rungs: &'a [DMatrix<f64>],
     step: f64,
 }
@@ -359,6 +360,7 @@ impl<'a> Ladder<'a> {
         }
         Some(Ladder {
             m: &mode.m,
+            w: &mode.weight,
             rungs,
             step,
         })
@@ -380,7 +382,9 @@ impl<'a> Ladder<'a> {
             bits >>= 1;
             i += 1;
         }
-        propagate::taylor(self.m, &cur, r).as_slice().to_vec()
+        propagate::taylor(self.m, self.w, &cur, r)
+            .as_slice()
+            .to_vec()
     }
 }
 
@@ -625,7 +629,7 @@ impl Simulator {
             // The state at the crossing from the Taylor vectors, into
             // `z_next`.
             let mut terms = std::mem::take(&mut self.buf.terms);
-            propagate::taylor_terms(&mode.m, mode.live, &self.z, h, &mut terms);
+            propagate::taylor_terms(&mode.m, &mode.weight, mode.live, &self.z, h, &mut terms);
             terms.state_at(sigma, self.z_next.as_mut_slice());
             self.buf.terms = terms;
         }

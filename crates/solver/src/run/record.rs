@@ -184,7 +184,7 @@ impl Simulator {
         let (a, b) = (t0.max(from), t1.min(to));
         if a > t0 {
             let m = &self.modes[self.mode as usize];
-            let z = propagate::advance(&m.m, m.rate, &self.z, a - t0);
+            let z = propagate::advance(&m.m, &m.weight, m.rate, &self.z, a - t0);
             propagate::extend_small(&mut self.rec.wave.states, z.as_slice());
         } else {
             propagate::extend_small(&mut self.rec.wave.states, self.z.as_slice());

@@ -85,6 +85,7 @@ impl SegmentView<'_> {
         }
         let z = propagate::advance(
             &self.mode.m,
+            &self.mode.weight,
             self.mode.rate,
             self.z0,
             (t - self.t0).max(0.0),
