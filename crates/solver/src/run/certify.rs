@@ -280,9 +280,14 @@ pub(super) struct Certifier {
     /// ½W: the stored energy is ½·zᵀ·W·z.
     half_w: DMatrix<f64>,
     forms: Vec<Option<Forms>>,
-    grams: HashMap<(u32, u64), Gram, Keys>,
+    grams: Vec<Gram>,
+    /// Where each (mode, length bucket) has its Gramians in `grams`.
+    index: HashMap<(u32, u64), usize, Keys>,
+    /// Per mode: the bucket and the Gramians of its last segment, so that
+    /// a length that came back skips the lookup (u64::MAX: none).
+    last: Vec<(u64, usize)>,
     /// Keys of the Gramians with segments in their `acc`.
-    dirty: Vec<(u32, u64)>,
+    dirty: Vec<usize>,
     /// The next segment to check.
     next: usize,
     /// The next jump of the event log to count.
@@ -349,7 +354,9 @@ impl Certifier {
             parts,
             half_w,
             forms: vec![],
-            grams: HashMap::default(),
+            grams: vec![],
+            index: HashMap::default(),
+            last: vec![],
             dirty: vec![],
             next: 0,
             jump: 0,
@@ -364,8 +371,8 @@ impl Certifier {
     /// Adds the energies of the segments summed in the Gramians since the
     /// last flush.
     fn flush(&mut self) {
-        for key in std::mem::take(&mut self.dirty) {
-            if let Some(g) = self.grams.get_mut(&key) {
+        for gi in std::mem::take(&mut self.dirty) {
+            if let Some(g) = self.grams.get_mut(gi) {
                 let e = g.flush();
                 self.add(e);
             }
@@ -462,11 +469,31 @@ impl Certifier {
         z0: &[f64],
         accumulate: bool,
     ) -> Option<[f64; 5]> {
-        let key = (k, h.to_bits() >> BUCKET_BITS);
+        let bucket = h.to_bits() >> BUCKET_BITS;
+        // The common case first: the bucket of this mode's last segment,
+        // and a length within rounding of its Gramians' (what the general
+        // path below would do with it, without the lookups).
+        if accumulate {
+            if let (Some(&(b, gi)), Some(Some(f))) =
+                (self.last.get(k as usize), self.forms.get(k as usize))
+            {
+                let g = &mut self.grams[gi];
+                let d = h - g.h0;
+                if b == bucket && d.abs() * f.norm <= FIRST_ORDER {
+                    g.accumulate(z0, d, false);
+                    if !g.dirty {
+                        g.dirty = true;
+                        self.dirty.push(gi);
+                    }
+                    return Some([f64::NAN; 5]);
+                }
+            }
+        }
+        let key = (k, bucket);
         let forms = self.forms(k as usize, mode);
         let norm = forms.norm;
         let reach = 0.125 / norm;
-        let fresh = match self.grams.get(&key) {
+        let fresh = match self.index.get(&key).map(|&gi| &self.grams[gi]) {
             Some(g) => {
                 let d = (h - g.h0).abs();
                 // A NaN distance is out of reach too.
@@ -483,13 +510,30 @@ impl Certifier {
             if self.grams.len() >= MAX_GRAMS {
                 self.flush();
                 self.grams.clear();
+                self.index.clear();
+                self.last.clear();
             }
-            if let Some(mut old) = self.grams.insert(key, g) {
-                let e = old.flush();
-                self.add(e);
+            match self.index.get(&key) {
+                Some(&gi) => {
+                    let mut old = std::mem::replace(&mut self.grams[gi], g);
+                    let e = old.flush();
+                    self.add(e);
+                    // Its place in `dirty`, if any, now stands for the new
+                    // Gramians, which start clean.
+                    self.dirty.retain(|&x| x != gi);
+                }
+                None => {
+                    self.index.insert(key, self.grams.len());
+                    self.grams.push(g);
+                }
             }
         }
-        let g = self.grams.get_mut(&key).expect("inserted above");
+        let gi = self.index[&key];
+        if self.last.len() <= k as usize {
+            self.last.resize(k as usize + 1, (u64::MAX, 0));
+        }
+        self.last[k as usize] = (bucket, gi);
+        let g = &mut self.grams[gi];
         let f = self.forms[k as usize].as_ref().expect("made above");
         let mut e = [f64::NAN; 5];
         let d = h - g.h0;
@@ -504,7 +548,7 @@ impl Certifier {
             g.accumulate(z0, d, second);
             if !g.dirty {
                 g.dirty = true;
-                self.dirty.push(key);
+                self.dirty.push(gi);
             }
             return Some(e);
         }
