@@ -602,9 +602,6 @@ pub(crate) fn expm(m: &DMatrix<f64>, h: f64) -> DMatrix<f64> {
         b *= 2f64.powi(-k);
         left -= k;
     }
-    if n <= SMALL_EXPM {
-        return small_expm(b.as_slice(), n, s);
-    }
     let mut term = b.clone();
     let mut f = b.clone();
     for k in 2..=20 {
@@ -617,49 +614,6 @@ pub(crate) fn expm(m: &DMatrix<f64>, h: f64) -> DMatrix<f64> {
         f += sq;
     }
     f + DMatrix::identity(n, n)
-}
-
-/// Up to this many entries of z, [`expm`] squares in a plain loop on two
-/// buffers: a general product allocates and packs its operands at every
-/// one of the hundreds of squarings of a stiff span (a 1e100 Ω resistor
-/// in series with 2 mH: 340 squarings of a 9×9 matrix per interval),
-/// which cost more than the arithmetic.
-const SMALL_EXPM: usize = 32;
-
-/// The series and squarings of [`expm`] for the scaled `b` (column-major,
-/// n×n), in the same formulas, on buffers of their own.
-fn small_expm(b: &[f64], n: usize, s: i32) -> DMatrix<f64> {
-    let mul = |x: &[f64], y: &[f64], out: &mut [f64]| {
-        out.iter_mut().for_each(|v| *v = 0.0);
-        for (col, yc) in out.chunks_exact_mut(n).zip(y.chunks_exact(n)) {
-            for (xc, &ykj) in x.chunks_exact(n).zip(yc) {
-                for (o, &xik) in col.iter_mut().zip(xc) {
-                    *o += xik * ykj;
-                }
-            }
-        }
-    };
-    let mut term = b.to_vec();
-    let mut f = b.to_vec();
-    let mut tmp = vec![0.0; n * n];
-    for k in 2..=20 {
-        mul(&term, b, &mut tmp);
-        let c = k as f64;
-        for ((t, x), fv) in term.iter_mut().zip(&tmp).zip(f.iter_mut()) {
-            *t = x / c;
-            *fv += *t;
-        }
-    }
-    for _ in 0..s {
-        mul(&f, &f, &mut tmp);
-        for (fv, sq) in f.iter_mut().zip(&tmp) {
-            *fv = 2.0 * *fv + sq;
-        }
-    }
-    for i in 0..n {
-        f[i + i * n] += 1.0;
-    }
-    DMatrix::from_vec(n, n, f)
 }
 
 /// y = M x for a dense column-major matrix, into `y`, without allocating.
