@@ -594,50 +594,17 @@ mod tests {
     /// within 5e-11 of it, the rounding of the weak tie's 1e-6 pivot.
     #[test]
     fn a_weak_tie_beside_a_source_is_regular_at_every_impedance_scale() {
+        #[rustfmt::skip]
         let network = |k: f64| {
             let (gs, gt, gl) = (2.0 / k, 1e-6 / k, 0.05 / k);
-            DMatrix::from_row_slice(
-                6,
-                6,
-                &[
-                    gs,
-                    0.0,
-                    -gs,
-                    0.0,
-                    1.0,
-                    0.0, //
-                    0.0,
-                    gt,
-                    0.0,
-                    0.0,
-                    -1.0,
-                    0.0, //
-                    -gs,
-                    0.0,
-                    gs + gt,
-                    0.0,
-                    0.0,
-                    0.0, //
-                    0.0,
-                    0.0,
-                    0.0,
-                    gl,
-                    0.0,
-                    1.0, //
-                    1.0,
-                    -1.0,
-                    0.0,
-                    0.0,
-                    0.0,
-                    0.0, //
-                    0.0,
-                    0.0,
-                    0.0,
-                    1.0,
-                    0.0,
-                    0.0,
-                ],
-            )
+            DMatrix::from_row_slice(6, 6, &[
+                gs,  0.0, -gs,     0.0, 1.0,  0.0,
+                0.0, gt,  0.0,     0.0, -1.0, 0.0,
+                -gs, 0.0, gs + gt, 0.0, 0.0,  0.0,
+                0.0, 0.0, 0.0,     gl,  0.0,  1.0,
+                1.0, -1.0, 0.0,    0.0, 0.0,  0.0,
+                0.0, 0.0, 0.0,     1.0, 0.0,  0.0,
+            ])
         };
         let rhs = DMatrix::from_row_slice(
             6,

@@ -610,11 +610,15 @@ fn gramians(
     // G̃(δ) = δ·Σₖ Tₖ/(k+1)! with T₀ = Q̃ and Tₖ₊₁ = BᵀTₖ + TₖB (the
     // derivatives of e^{Bᵀs}Q̃e^{Bs} at 0): Tₖ is symmetric, so Tₖ₊₁ is
     // X + Xᵀ with X = TₖB, one product. ‖Tₖ‖₁ ≤ (2β)ᵏ‖Q̃‖₁.
-    let mut gs: [Vec<f64>; FORMS] = std::array::from_fn(|_| vec![0.0; n * n]);
-    for (g, q) in gs.iter_mut().zip(qs) {
-        let mut t: Vec<f64> = (0..n * n)
+    // Q̃ = D·Q·D of each form, for the series and the end powers.
+    let qbs: [Vec<f64>; FORMS] = qs.map(|q| {
+        (0..n * n)
             .map(|i| q.as_slice()[i] * dg[i % n] * dg[i / n])
-            .collect();
+            .collect()
+    });
+    let mut gs: [Vec<f64>; FORMS] = std::array::from_fn(|_| vec![0.0; n * n]);
+    for (g, qb) in gs.iter_mut().zip(&qbs) {
+        let mut t = qb.clone();
         g.copy_from_slice(&t);
         let (mut bound, mut coef) = (1.0, 1.0);
         for i in 1..=TAYLOR_TERMS {
@@ -624,11 +628,7 @@ fn gramians(
             }
             coef /= (i + 1) as f64;
             k.mul(&t, &b);
-            for c in 0..n {
-                for r in 0..n {
-                    t[r + c * n] = k.out[r + c * n] + k.out[c + r * n];
-                }
-            }
+            k.symmetric_part(1.0, &mut t);
             for (gv, tv) in g.iter_mut().zip(&t) {
                 *gv += coef * tv;
             }
@@ -664,20 +664,13 @@ fn gramians(
     }
     let mut ends: [Vec<f64>; FORMS] = std::array::from_fn(|_| vec![0.0; n * n]);
     let mut bends: [Vec<f64>; FORMS] = std::array::from_fn(|_| vec![0.0; n * n]);
-    for ((e, be), q) in ends.iter_mut().zip(bends.iter_mut()).zip(qs) {
-        let qb: Vec<f64> = (0..n * n)
-            .map(|i| q.as_slice()[i] * dg[i % n] * dg[i / n])
-            .collect();
-        k.mul(&qb, &phi_b);
+    for ((e, be), qb) in ends.iter_mut().zip(bends.iter_mut()).zip(&qbs) {
+        k.mul(qb, &phi_b);
         y.copy_from_slice(&k.out);
         k.mul_tn(&phi_b, &y);
         e.copy_from_slice(&k.out);
         k.mul(e, mb.as_slice());
-        for c in 0..n {
-            for r in 0..n {
-                be[r + c * n] = 0.5 * (k.out[r + c * n] + k.out[c + r * n]);
-            }
-        }
+        k.symmetric_part(0.5, be);
     }
     // Back from the balanced coordinates.
     let unbalance = |x: &[f64]| DMatrix::from_fn(n, n, |r, c| x[r + c * n] / dg[r] / dg[c]);
@@ -734,6 +727,16 @@ impl Kernel {
                 for (o, &aik) in col.iter_mut().zip(ac) {
                     *o += aik * bkj;
                 }
+            }
+        }
+    }
+
+    /// y = c·(out + outᵀ).
+    fn symmetric_part(&self, c: f64, y: &mut [f64]) {
+        let (n, x) = (self.n, &self.out);
+        for col in 0..n {
+            for r in 0..n {
+                y[r + col * n] = c * (x[r + col * n] + x[col + r * n]);
             }
         }
     }
