@@ -18,12 +18,21 @@
 //! building the first modes (printed apart as the start-up) do not count.
 //! Wall times are the minimum of several runs (the machines are shared);
 //! the ratios in the same process are what counts.
+//!
+//! For counting instructions, one circuit alone: a number of phases,
+//! `ccm` or `dcm`, then optionally the periods (default 20,000), and
+//! anywhere the word `nocert`:
+//!
+//! ```sh
+//! cargo bench --bench phases --no-run
+//! valgrind --tool=callgrind target/release/deps/phases-* 12 2000
+//! ```
 
 use std::hint::black_box;
 use std::time::Instant;
 
 use fluxstep_netlist::{Circuit, Gate};
-use fluxstep_solver::{simulate, Options, Record, Stats};
+use fluxstep_solver::{Options, Record, RunResult, Simulator, Stats};
 
 /// Switching frequency of each phase (Hz).
 const F: f64 = 250e3;
@@ -72,25 +81,56 @@ fn single(dcm: bool) -> Circuit {
         .expect("benchmark circuit is valid")
 }
 
-/// (event instants handled, states, best seconds) of `periods`
+/// The circuit a word names: a number of phases, `ccm` or `dcm`.
+fn one(word: &str) -> Option<Circuit> {
+    match word {
+        "ccm" => Some(single(false)),
+        "dcm" => Some(single(true)),
+        _ => word
+            .parse()
+            .ok()
+            .filter(|n| (1..=64).contains(n))
+            .map(interleaved),
+    }
+}
+
+/// (event instants handled, states, best seconds, counters) of `periods`
 /// switching periods.
 fn run(c: &Circuit, periods: f64, reps: usize) -> (usize, usize, f64, Stats) {
+    run_with(c, periods, reps, true)
+}
+
+/// [`run`] with the energy certificate on or off. Each run records into
+/// the storage of the one before (`Simulator::reuse_storage`), as the bare
+/// loop below keeps its record's capacity: otherwise a run of 200,000
+/// events spent a third of its time faulting in fresh pages (39 ms for
+/// 100,000 periods of the one-phase buck, against 23 ms reusing), a cost
+/// of the allocator and the system, not of the solver, which also varied
+/// between builds with the heap's layout.
+fn run_with(c: &Circuit, periods: f64, reps: usize, certify: bool) -> (usize, usize, f64, Stats) {
     let mut best = f64::INFINITY;
     let mut events = 0;
     let mut states = 0;
     let mut stats = Stats::default();
+    let mut old: Option<RunResult> = None;
     for _ in 0..reps {
         let opts = Options {
             record: Record::All,
+            energy_tolerance: certify.then_some(fluxstep_solver::DEFAULT_ENERGY_TOLERANCE),
             ..Options::default()
         };
         let start = Instant::now();
-        let r = simulate(c, periods / F, opts).expect("the buck runs");
+        let mut sim = Simulator::new(c, opts).expect("the buck compiles");
+        if let Some(old) = old.take() {
+            sim.reuse_storage(old);
+        }
+        sim.advance_to(periods / F).expect("the buck runs");
+        let r = sim.finish();
         best = best.min(start.elapsed().as_secs_f64());
         events = r.stats.scheduled_events + r.stats.state_events;
         states = r.events.state_names().len();
         stats = r.stats;
-        black_box(&r);
+        old = Some(black_box(r));
     }
     (events, states, best, stats)
 }
@@ -115,10 +155,12 @@ fn bare(n: usize, steps: usize, reps: usize) -> f64 {
     };
     let maps = [map(0.05), map(0.07)];
     let mut best = f64::INFINITY;
+    // Kept between runs, emptied, as the simulator's storage is.
+    let mut record: Vec<f64> = Vec::new();
     for _ in 0..reps {
         let mut z = vec![0.0; n];
         let mut next = vec![0.0; n];
-        let mut record: Vec<f64> = Vec::new();
+        record.clear();
         let start = Instant::now();
         for s in 0..steps {
             let (phi, g) = &maps[s & 1];
@@ -151,7 +193,29 @@ fn marginal(c: &Circuit, periods: f64, reps: usize) -> (f64, f64, usize, usize, 
 }
 
 fn main() {
-    // `cargo bench` passes `--bench`; a filter argument is ignored.
+    // `cargo bench` passes `--bench`; only plain words select a run.
+    let args: Vec<String> = std::env::args().skip(1).collect();
+    let words: Vec<&str> = args
+        .iter()
+        .map(String::as_str)
+        .filter(|a| !a.starts_with('-'))
+        .collect();
+    if let Some(circuit) = words.first().and_then(|w| one(w)) {
+        // One circuit alone, for counting instructions: its name (`1` to
+        // `12` phases, `ccm`, `dcm`), optionally the periods, and anywhere
+        // the word `nocert`.
+        let periods = words
+            .get(1)
+            .and_then(|w| w.parse().ok())
+            .unwrap_or(20_000.0);
+        let certify = !words.contains(&"nocert");
+        let (events, states, s, stats) = run_with(&circuit, periods, 1, certify);
+        println!(
+            "{events} events, {states} states, {:.3} ms; {stats:?}",
+            s * 1e3
+        );
+        return;
+    }
     let reps = 5;
     // A warm-up run: the first run of the process pays for faulting in
     // the allocator's pages and showed twice the per-event cost.

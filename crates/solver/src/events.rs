@@ -100,6 +100,45 @@ pub struct Event {
     pub after: Vec<f64>,
 }
 
+/// The events of one instant without energy, for
+/// [`EventLog::push_instant`]: a switch event for each bit of the first
+/// mask of `switches`, of the kind its bit in the second gives (on or
+/// off now), then a diode event likewise for each bit of `diodes`, each
+/// in increasing order; diode `i` is recorded as element `base + i`.
+#[derive(Clone, Copy, Debug)]
+pub(crate) struct InstantEvents {
+    pub time: f64,
+    /// The number of events: set bits in both masks.
+    pub count: u32,
+    pub cause: EventCause,
+    pub switches: (u64, u64),
+    pub diodes: (u64, u64),
+    pub base: u32,
+}
+
+/// The set bits of `mask`, lowest first.
+#[inline(always)]
+pub(crate) fn bits(mask: u64) -> Bits {
+    Bits(mask)
+}
+
+/// The iterator of [`bits`].
+pub(crate) struct Bits(u64);
+
+impl Iterator for Bits {
+    type Item = u32;
+
+    #[inline(always)]
+    fn next(&mut self) -> Option<u32> {
+        if self.0 == 0 {
+            return None;
+        }
+        let i = self.0.trailing_zeros();
+        self.0 &= self.0 - 1;
+        Some(i)
+    }
+}
+
 /// One event, borrowed from an [`EventLog`].
 #[derive(Clone, Copy, Debug, PartialEq, Serialize)]
 pub struct EventRef<'a> {
@@ -304,31 +343,41 @@ impl EventLog {
         true
     }
 
-    /// Appends the events of one instant without energy: `first` (if
-    /// any) leaves the state `before` as it was, `second` (if any) takes
-    /// it to `after`. The same records and snapshots as pushing them one
-    /// by one with [`EventLog::push`]; `false` (and nothing added) where
-    /// the log cannot take both.
+    /// Appends the events of one instant without energy (see
+    /// [`InstantEvents`]): its switch events leave the state `before` as
+    /// it was, its diode events take it to `after`; all share one
+    /// snapshot of each. `false` (and nothing added) where the log cannot
+    /// take them all.
     #[inline(always)]
-    pub(crate) fn push_pair(
+    pub(crate) fn push_instant(
         &mut self,
-        time: f64,
-        cause: EventCause,
-        first: Option<(EventKind, u32)>,
-        second: Option<(EventKind, u32)>,
+        group: InstantEvents,
         before: &[f64],
         after: &[f64],
     ) -> bool {
-        if !self.has_room(before, after, 2) {
+        let InstantEvents {
+            time,
+            count,
+            cause,
+            switches: (switched, switch_on),
+            diodes: (diodes, diode_on),
+            base,
+        } = group;
+        if !self.has_room(before, after, count) {
             return false;
         }
         let b = self.snapshot(before);
-        if let Some((kind, who)) = first {
-            self.push_record(time, who, kind, cause, (b, b));
+        for i in bits(switched) {
+            let kind = if switch_on >> i & 1 == 1 {
+                EventKind::SwitchOn
+            } else {
+                EventKind::SwitchOff
+            };
+            self.push_record(time, i, kind, cause, (b, b));
         }
-        if let Some((kind, who)) = second {
-            // One by one, the state after is compared with the snapshot
-            // just taken, which is `before`.
+        if diodes != 0 {
+            // The state after is compared with the snapshot just taken,
+            // which is `before`.
             let a = if same_bits(before, after) {
                 b
             } else {
@@ -336,7 +385,14 @@ impl EventLog {
                 self.snapshots += 1;
                 self.snapshots - 1
             };
-            self.push_record(time, who, kind, cause, (b, a));
+            for i in bits(diodes) {
+                let kind = if diode_on >> i & 1 == 1 {
+                    EventKind::DiodeOn
+                } else {
+                    EventKind::DiodeOff
+                };
+                self.push_record(time, base + i, kind, cause, (b, a));
+            }
         }
         true
     }

@@ -36,11 +36,11 @@ pub(super) fn diode_guards(
         let b = &cc.branches[dinfo.branch];
         if on.d_on(di) {
             let (r, _) = s.current(dinfo.branch);
-            guards.push(Guard {
-                kind: GuardKind::DiodeCurrent(di),
-                row: r.iter().copied().collect(),
-                drow: vec![],
-            });
+            guards.push(Guard::new(
+                GuardKind::DiodeCurrent(di),
+                r.iter().copied().collect(),
+                m,
+            ));
         } else {
             let (a1, a2) = s.node(b.a);
             let (b1, b2) = s.node(b.b);
@@ -48,11 +48,11 @@ pub(super) fn diode_guards(
             row[one] += dinfo.vf;
             let dep = -(a2 - b2);
             if dep.iter().all(|v| v.abs() < 1e-9) {
-                guards.push(Guard {
-                    kind: GuardKind::DiodeVoltage(di),
-                    row: row.iter().copied().collect(),
-                    drow: vec![],
-                });
+                guards.push(Guard::new(
+                    GuardKind::DiodeVoltage(di),
+                    row.iter().copied().collect(),
+                    m,
+                ));
             } else {
                 free_dep.push(FreeDependent {
                     diode: di,
@@ -70,17 +70,9 @@ pub(super) fn diode_guards(
             let sum = &fi.dep + &fj.dep;
             if sum.iter().all(|v| v.abs() < 1e-9) {
                 let row: Vec<f64> = fi.row.iter().zip(&fj.row).map(|(a, b)| a + b).collect();
-                guards.push(Guard {
-                    kind: GuardKind::DiodePair(fi.diode, fj.diode),
-                    row,
-                    drow: vec![],
-                });
+                guards.push(Guard::new(GuardKind::DiodePair(fi.diode, fj.diode), row, m));
             }
         }
-    }
-    for g in &mut guards {
-        let r = DVector::from_column_slice(&g.row);
-        g.drow = (m.transpose() * r).iter().copied().collect();
     }
     guards
 }
@@ -131,16 +123,12 @@ pub(super) fn comparator_guards(
                 } else {
                     sense.transpose() - thr
                 };
-                let drow = m.transpose() * &row;
-                Guard {
-                    kind: GuardKind::Comparator {
-                        index: ci,
-                        turn_off: off,
-                        of_current: current,
-                    },
-                    row: row.iter().copied().collect(),
-                    drow: drow.iter().copied().collect(),
-                }
+                let kind = GuardKind::Comparator {
+                    index: ci,
+                    turn_off: off,
+                    of_current: current,
+                };
+                Guard::new(kind, row.iter().copied().collect(), m)
             })
         };
         if outputs.undetermined[cmp.sense] && problem.is_none() {

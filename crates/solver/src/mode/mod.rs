@@ -55,7 +55,7 @@ mod outputs;
 mod rate;
 mod topology;
 
-use nalgebra::DMatrix;
+use nalgebra::{DMatrix, DVector};
 
 use crate::compile::Compiled;
 use crate::error::SolverError;
@@ -117,6 +117,73 @@ pub(crate) struct Guard {
     pub row: Vec<f64>,
     /// The guard's time derivative as a row: `row·M`.
     pub drow: Vec<f64>,
+    /// `row`'s non-zero entries, for the products of every interval.
+    pub srow: Sparse,
+    /// `drow`'s non-zero entries.
+    pub sdrow: Sparse,
+}
+
+impl Guard {
+    /// A guard of `kind` on `row`, with its derivative `row·M` and both
+    /// rows' non-zero entries.
+    pub(crate) fn new(kind: GuardKind, row: Vec<f64>, m: &DMatrix<f64>) -> Guard {
+        let drow: Vec<f64> = (m.transpose() * DVector::from_column_slice(&row))
+            .iter()
+            .copied()
+            .collect();
+        Guard {
+            kind,
+            srow: Sparse::of(&row),
+            sdrow: Sparse::of(&drow),
+            row,
+            drow,
+        }
+    }
+}
+
+/// A row's non-zero entries in index order. A product over them is the
+/// dense row's product to the bit, except for the sign of an exact zero:
+/// a term with a zero coefficient adds a signed zero, which leaves any
+/// non-zero partial sum as it is. A guard of a many-phase converter
+/// touches two or three of its dozen states (its own inductor, the output,
+/// the constant), so this is what the guard checks of every interval cost
+/// instead of the whole state.
+#[derive(Clone, Debug, Default)]
+pub(crate) struct Sparse(Vec<(usize, f64)>);
+
+impl Sparse {
+    /// The non-zero entries of `row`.
+    pub(crate) fn of(row: &[f64]) -> Sparse {
+        Sparse(
+            row.iter()
+                .enumerate()
+                .filter(|(_, v)| **v != 0.0)
+                .map(|(k, v)| (k, *v))
+                .collect(),
+        )
+    }
+
+    /// Σ rowₖ zₖ.
+    #[inline(always)]
+    pub(crate) fn dot(&self, z: &[f64]) -> f64 {
+        let mut v = 0.0;
+        for &(k, a) in &self.0 {
+            v += a * z[k];
+        }
+        v
+    }
+
+    /// (Σ rowₖ zₖ, Σ |rowₖ zₖ|).
+    #[inline(always)]
+    pub(crate) fn dot_and_magnitude(&self, z: &[f64]) -> (f64, f64) {
+        let (mut v, mut s) = (0.0, 0.0);
+        for &(k, a) in &self.0 {
+            let p = a * z[k];
+            v += p;
+            s += p.abs();
+        }
+        (v, s)
+    }
 }
 
 /// What a multiplier constraint is about.

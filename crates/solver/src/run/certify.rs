@@ -886,23 +886,7 @@ fn outer_add(
         ($($n:literal)*) => {
             match z.len() {
                 $($n => outer_add_n::<$n>(acc, acc1, acc2, z, (d, second)),)*
-                _ => {
-                    let n = z.len();
-                    let mut k = 0;
-                    for j in 0..n {
-                        for i in 0..=j {
-                            let p = z[i] * z[j];
-                            acc[k] += p;
-                            if d != 0.0 {
-                                acc1[k] += d * p;
-                            }
-                            if second {
-                                acc2[k] += d * d * p;
-                            }
-                            k += 1;
-                        }
-                    }
-                }
+                _ => outer_add_columns(acc, acc1, acc2, z, (d, second)),
             }
         };
     }
@@ -954,6 +938,48 @@ fn outer_add_n<const N: usize>(
             acc2[k] += d2 * p;
             k += 1;
         }
+    }
+}
+
+/// [`outer_add`] for any n, column by column of the triangle: the same
+/// products and sums in the same order as the fixed sizes, each column's
+/// entries as one slice operation (which the compiler can vectorise),
+/// where an element-by-element loop cost 28 instructions a pair at 13
+/// states.
+fn outer_add_columns(
+    acc: &mut [f64],
+    acc1: &mut [f64],
+    acc2: &mut [f64],
+    z: &[f64],
+    (d, second): (f64, bool),
+) {
+    let d2 = d * d;
+    let mut k = 0;
+    for (j, &zj) in z.iter().enumerate() {
+        let zs = &z[..=j];
+        let a = &mut acc[k..k + j + 1];
+        if d == 0.0 {
+            for (a, &zi) in a.iter_mut().zip(zs) {
+                *a += zi * zj;
+            }
+        } else if !second {
+            let a1 = &mut acc1[k..k + j + 1];
+            for ((a, a1), &zi) in a.iter_mut().zip(a1.iter_mut()).zip(zs) {
+                let p = zi * zj;
+                *a += p;
+                *a1 += d * p;
+            }
+        } else {
+            let a1 = &mut acc1[k..k + j + 1];
+            let a2 = &mut acc2[k..k + j + 1];
+            for (((a, a1), a2), &zi) in a.iter_mut().zip(a1.iter_mut()).zip(a2.iter_mut()).zip(zs) {
+                let p = zi * zj;
+                *a += p;
+                *a1 += d * p;
+                *a2 += d2 * p;
+            }
+        }
+        k += j + 1;
     }
 }
 

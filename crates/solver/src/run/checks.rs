@@ -93,7 +93,7 @@ pub(super) fn guards_hold(mode: &Mode, z: &DVector<f64>, scales: Scales) -> bool
     let zs = z.as_slice();
     let mut at_zero = false;
     for g in &mode.guards {
-        let (v, s) = dot_and_magnitude(&g.row, zs);
+        let (v, s) = g.srow.dot_and_magnitude(zs);
         let tol = scales.guard_zero(&g.kind, s);
         if v < -tol {
             return false;
@@ -120,7 +120,7 @@ pub(super) fn guards_hold_at_zero(mode: &Mode, z: &DVector<f64>, scales: Scales)
     }
     let mut undecided = 0u64;
     for (gi, g) in mode.guards.iter().enumerate() {
-        let (v, s) = dot_and_magnitude(&g.row, zs);
+        let (v, s) = g.srow.dot_and_magnitude(zs);
         let tol = scales.guard_zero(&g.kind, s);
         if v < -tol {
             return false;
@@ -147,7 +147,7 @@ pub(super) fn guards_hold_at_zero(mode: &Mode, z: &DVector<f64>, scales: Scales)
             let gi = left.trailing_zeros() as usize;
             left &= left - 1;
             let g = &mode.guards[gi];
-            let (v, s) = dot_and_magnitude(&g.row, d);
+            let (v, s) = g.srow.dot_and_magnitude(d);
             let tol = scales.derivative_zero(&g.kind, s, rate_k);
             if v < -tol {
                 return false;
@@ -177,7 +177,7 @@ pub(super) fn violated_guards(
     let mut undecided: Vec<usize> = vec![];
     let zs = z.as_slice();
     for (gi, g) in mode.guards.iter().enumerate() {
-        let (v, s) = dot_and_magnitude(&g.row, zs);
+        let (v, s) = g.srow.dot_and_magnitude(zs);
         let tol = scales.guard_zero(&g.kind, s);
         if v < -tol {
             violated.push(gi);
@@ -214,7 +214,7 @@ pub(super) fn violated_guards(
         let mut still = Vec::with_capacity(undecided.len());
         for &gi in &undecided {
             let g = &mode.guards[gi];
-            let (v, s) = dot_and_magnitude(&g.row, d);
+            let (v, s) = g.srow.dot_and_magnitude(d);
             let tol = scales.derivative_zero(&g.kind, s, rate_k);
             if v < -tol {
                 violated.push(gi);

@@ -46,26 +46,21 @@ use crate::crossing::roots::{exact_root, guard_root};
 use crate::crossing::{at_end, same_instant, Crossing, Scales};
 use crate::mode::{Guard, GuardKind, Mode};
 use crate::propagate;
-use crate::propagate::{dot_and_magnitude, dot_slices, Spectrum};
-
-/// Σ|aᵢ·bᵢ|: the magnitude of a dot product's terms.
-fn terms_magnitude(a: &[f64], b: &[f64]) -> f64 {
-    dot_and_magnitude(a, b).1
-}
+use crate::propagate::{dot_slices, Spectrum};
 
 /// Whether guard `g` may cross zero in an interval from state `za` to
 /// `zb`: negative (beyond its tolerance) at the end, or falling at the
 /// start and rising at the end (a dip that may go below zero and back).
 #[inline(always)]
 pub(super) fn suspect_at_end(g: &Guard, za: &[f64], zb: &[f64], scales: Scales) -> bool {
-    let da = dot_slices(&g.drow, za);
-    if da < 0.0 && dot_slices(&g.drow, zb) > 0.0 {
+    let da = g.sdrow.dot(za);
+    if da < 0.0 && g.sdrow.dot(zb) > 0.0 {
         return true;
     }
-    let (gb, sb) = dot_and_magnitude(&g.row, zb);
+    let (gb, sb) = g.srow.dot_and_magnitude(zb);
     // The tolerance matters only for a negative end value.
     gb < 0.0 && {
-        let tol = scales.guard_zero(&g.kind, sb.max(terms_magnitude(&g.row, za)));
+        let tol = scales.guard_zero(&g.kind, sb.max(g.srow.dot_and_magnitude(za).1));
         gb < -tol
     }
 }
@@ -216,7 +211,7 @@ impl Simulator {
                 coef.clear();
                 let mut scale = 0.0;
                 for w in terms.terms() {
-                    let (c, a) = dot_and_magnitude(&g.row, w);
+                    let (c, a) = g.srow.dot_and_magnitude(w);
                     coef.push(c);
                     scale += a;
                 }
@@ -411,12 +406,12 @@ fn stiff_root(
     d: f64,
     scales: Scales,
 ) -> Option<f64> {
-    let (ga, sa) = dot_and_magnitude(&g.row, za);
-    let (gb, sb) = dot_and_magnitude(&g.row, zb);
+    let (ga, sa) = g.srow.dot_and_magnitude(za);
+    let (gb, sb) = g.srow.dot_and_magnitude(zb);
     let tol = scales.guard_zero(&g.kind, sa.max(sb));
     // Derivatives within rounding of their terms count as zero.
-    let (da, dsa) = dot_and_magnitude(&g.drow, za);
-    let (db, dsb) = dot_and_magnitude(&g.drow, zb);
+    let (da, dsa) = g.sdrow.dot_and_magnitude(za);
+    let (db, dsb) = g.sdrow.dot_and_magnitude(zb);
     let noise = |s: f64| 64.0 * f64::EPSILON * s;
     let crosses = gb < -tol;
     let dips = da < -noise(dsa) && db > noise(dsb);

@@ -3,7 +3,7 @@
 
 use super::{SegmentSink, SegmentView, Simulator};
 use crate::error::SolverError;
-use crate::events::{EventCause, EventKind, EventLog, JumpInfo};
+use crate::events::{bits, EventCause, EventKind, EventLog, InstantEvents, JumpInfo};
 use crate::options::Record;
 use crate::propagate;
 use crate::waveform::{Segment, Waveform};
@@ -267,27 +267,32 @@ impl Simulator {
     /// for each bit of `switched` (the state as it was, `before`), then a
     /// diode event for each bit of `diodes` (the state after: the present
     /// one), each in increasing order, of the kind the present pattern
-    /// gives. The same outcome as [`Simulator::push_event`] one by one in
-    /// that order, which it falls back to for more than one switch or
-    /// diode, or where a limit or the chatter window could be reached
-    /// within the instant.
+    /// gives. The same records as [`Simulator::push_event`] one by one in
+    /// that order, which it falls back to where a limit or the chatter
+    /// window could be reached within the instant. The states are shared:
+    /// one snapshot before and one after for the whole instant, where one
+    /// by one a second diode event took two more.
     pub(super) fn push_instant(
         &mut self,
         time: f64,
         switched: u64,
         diodes: u64,
     ) -> Result<(), SolverError> {
-        if switched & switched.wrapping_sub(1) != 0 || diodes & diodes.wrapping_sub(1) != 0 {
-            return self.push_instant_one_by_one(time, switched, diodes);
-        }
-        let k = (switched != 0) as usize + (diodes != 0) as usize;
+        // One switch and one diode at most is the usual instant (a
+        // population count is a dozen instructions without a native one).
+        let k = if switched & switched.wrapping_sub(1) == 0 && diodes & diodes.wrapping_sub(1) == 0
+        {
+            (switched != 0) as usize + (diodes != 0) as usize
+        } else {
+            (switched.count_ones() + diodes.count_ones()) as usize
+        };
         if k == 0 {
             return Ok(());
         }
         self.check_budget(time)?;
         let cap = self.opts.chatter_events + 1;
         let len = self.rec.recent.len();
-        // The chatter check of the last event decides for both (times never
+        // The chatter check of the last event decides for all (times never
         // decrease), and the oldest of the ring after k more is known.
         let quiet = if len == cap {
             k < cap && {
@@ -303,37 +308,25 @@ impl Simulator {
         if !quiet || self.rec.n_events + k > self.opts.max_events {
             return self.push_instant_one_by_one(time, switched, diodes);
         }
-        let first = (switched != 0).then(|| {
-            let i = switched.trailing_zeros();
-            let kind = if self.key.switches >> i & 1 == 1 {
-                EventKind::SwitchOn
-            } else {
-                EventKind::SwitchOff
-            };
-            (kind, i)
-        });
-        let second = (diodes != 0).then(|| {
-            let i = diodes.trailing_zeros();
-            let kind = if self.key.diodes >> i & 1 == 1 {
-                EventKind::DiodeOn
-            } else {
-                EventKind::DiodeOff
-            };
-            (kind, self.cc.switches.len() as u32 + i)
-        });
+        let base = self.cc.switches.len() as u32;
         if self.keeps(time) {
             let after = &self.z.as_slice()[..self.cc.n_x];
+            let group = InstantEvents {
+                time,
+                count: k as u32,
+                cause: self.rec.cause,
+                switches: (switched, self.key.switches),
+                diodes: (diodes, self.key.diodes),
+                base,
+            };
             // Refused (nothing added): one by one gives the same refusal.
-            if !self
-                .rec
-                .log
-                .push_pair(time, self.rec.cause, first, second, &self.rec.before, after)
-            {
+            if !self.rec.log.push_instant(group, &self.rec.before, after) {
                 return self.push_instant_one_by_one(time, switched, diodes);
             }
         }
         self.rec.n_events += k;
-        for (_, id) in first.into_iter().chain(second) {
+        let ids = bits(switched).chain(bits(diodes).map(|i| base + i));
+        for id in ids {
             if self.rec.recent.len() < cap {
                 self.rec.recent.push((time, id));
             } else {
