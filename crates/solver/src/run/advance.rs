@@ -209,7 +209,16 @@ impl ModeCache {
             return false;
         }
         stats.exponentials += 1;
-        let phi = propagate::expm(m, len);
+        let reach = propagate::SHIFT_REACH / propagate::norm1(m);
+        let phi = match self.nearest(len, reach) {
+            // Rounding jitter of a cached length (a discontinuous buck's
+            // located lengths past 10,000 periods take more distinct
+            // values than the cache holds): its exponential shifted, a
+            // few products of small matrices where a fresh one took
+            // fifty thousand instructions at three states.
+            Some((delta, phi0)) => propagate::expm_shifted(phi0, m, delta),
+            None => propagate::expm(m, len),
+        };
         propagate::matvec(&phi, z, z_next);
         if self.repeated.len() < MAX_AGAIN {
             self.repeated.push((bits, phi));
@@ -238,14 +247,7 @@ impl ModeCache {
         stats: &mut Stats,
         buf: &mut Buffers,
     ) -> bool {
-        let mut best: Option<(f64, &DMatrix<f64>)> = None;
-        for (b, phi) in self.scheduled.iter().chain(&self.repeated) {
-            let d = len - f64::from_bits(*b);
-            if d.abs() <= 0.25 * len && best.is_none_or(|(bd, _)| d.abs() < bd.abs()) {
-                best = Some((d, phi));
-            }
-        }
-        let Some((delta, phi)) = best else {
+        let Some((delta, phi)) = self.nearest(len, 0.25 * len) else {
             return false;
         };
         stats.near_steps += 1;
@@ -260,6 +262,22 @@ impl ModeCache {
             &mut buf.advance,
         );
         true
+    }
+}
+
+impl ModeCache {
+    /// The cached length nearest to `len` within `reach` (scheduled spans
+    /// first, then lengths that came back; the first of equals), as
+    /// (len − h₀, e^{M·h₀}).
+    fn nearest(&self, len: f64, reach: f64) -> Option<(f64, &DMatrix<f64>)> {
+        let mut best: Option<(f64, &DMatrix<f64>)> = None;
+        for (b, phi) in self.scheduled.iter().chain(&self.repeated) {
+            let d = len - f64::from_bits(*b);
+            if d.abs() <= reach && best.is_none_or(|(bd, _)| d.abs() < bd.abs()) {
+                best = Some((d, phi));
+            }
+        }
+        best
     }
 }
 
