@@ -606,7 +606,7 @@ impl Simulator {
         }
         self.buf.coef = coef;
         self.buf.za = za_abs;
-        let Some((t, b, sigma)) = found else {
+        let Some((t, b, _)) = found else {
             return Some(None);
         };
         // A crossing at the very end belongs to the scheduled instant
@@ -621,12 +621,19 @@ impl Simulator {
             &mut self.stats,
             self.shortcuts.repeated_lengths,
         ) {
-            // The state at the crossing from the Taylor vectors, into
-            // `z_next`.
-            let mut terms = std::mem::take(&mut self.buf.terms);
-            propagate::taylor_terms(&mode.m, &mode.weight, mode.live, &self.z, h, &mut terms);
-            terms.state_at(sigma, self.z_next.as_mut_slice());
-            self.buf.terms = terms;
+            // The state at the crossing by Taylor terms over the
+            // crossing's own length, into `z_next`: a clamp 10 ns into a
+            // span of 2.45 µs needs a few terms where the span's
+            // expansion evaluated at σ needed all of the span's.
+            propagate::advance_into(
+                &mode.m,
+                (&mode.weight, mode.live),
+                mode.rate,
+                self.z.as_slice(),
+                t,
+                self.z_next.as_mut_slice(),
+                &mut self.buf.advance,
+            );
         }
         Some(Some(crossing(t, b)))
     }
