@@ -183,10 +183,15 @@ fn bare(n: usize, steps: usize, reps: usize) -> f64 {
 /// (compiling the circuit, building and settling the first modes) is left
 /// out; with the start-up cost (the short run's time beyond its events,
 /// ns), the events of the difference and the counters of the long run.
-fn marginal(c: &Circuit, periods: f64, reps: usize) -> (f64, f64, usize, usize, Stats) {
+fn marginal(
+    c: &Circuit,
+    periods: f64,
+    reps: usize,
+    certify: bool,
+) -> (f64, f64, usize, usize, Stats) {
     let short = (periods / 50.0).round().max(20.0);
-    let (e1, _, s1, _) = run(c, short, reps);
-    let (e2, states, s2, stats) = run(c, periods, reps);
+    let (e1, _, s1, _) = run_with(c, short, reps, certify);
+    let (e2, states, s2, stats) = run_with(c, periods, reps, certify);
     let per_event = (s2 - s1) * 1e9 / (e2 - e1) as f64;
     let start = s1 * 1e9 - per_event * e1 as f64;
     (per_event, start, e2 - e1, states, stats)
@@ -217,6 +222,9 @@ fn main() {
         return;
     }
     let reps = 5;
+    // `nocert`: the whole table without the energy certificate, to see
+    // what the check costs.
+    let certify = !words.contains(&"nocert");
     // A warm-up run: the first run of the process pays for faulting in
     // the allocator's pages and showed twice the per-event cost.
     run(&interleaved(1), 20_000.0, 1);
@@ -228,7 +236,7 @@ fn main() {
     for n in [1usize, 2, 4, 8, 12] {
         // About 200,000 events at every size.
         let periods = (200_000 / n.max(2)) as f64;
-        let (ns, start, events, states, stats) = marginal(&interleaved(n), periods, reps);
+        let (ns, start, events, states, stats) = marginal(&interleaved(n), periods, reps, certify);
         let bare_ns = bare(states, events, reps) * 1e9 / events as f64;
         let base = *first.get_or_insert(ns);
         println!(
@@ -247,8 +255,8 @@ fn main() {
     // located event's own cost is what a DCM period costs beyond two
     // scheduled events.
     let periods = 50_000.0;
-    let (ns_ccm, _, ev_ccm, _, st_ccm) = marginal(&single(false), periods, reps);
-    let (ns_dcm, _, ev_dcm, _, st_dcm) = marginal(&single(true), periods, reps);
+    let (ns_ccm, _, ev_ccm, _, st_ccm) = marginal(&single(false), periods, reps, certify);
+    let (ns_dcm, _, ev_dcm, _, st_dcm) = marginal(&single(true), periods, reps, certify);
     println!("counters, CCM buck: {st_ccm:?}");
     println!("counters, DCM buck: {st_dcm:?}");
     // The same periods in both runs; the CCM buck has two events in each.

@@ -116,29 +116,6 @@ pub(crate) struct InstantEvents {
     pub base: u32,
 }
 
-/// The set bits of `mask`, lowest first.
-#[inline(always)]
-pub(crate) fn bits(mask: u64) -> Bits {
-    Bits(mask)
-}
-
-/// The iterator of [`bits`].
-pub(crate) struct Bits(u64);
-
-impl Iterator for Bits {
-    type Item = u32;
-
-    #[inline(always)]
-    fn next(&mut self) -> Option<u32> {
-        if self.0 == 0 {
-            return None;
-        }
-        let i = self.0.trailing_zeros();
-        self.0 &= self.0 - 1;
-        Some(i)
-    }
-}
-
 /// One event, borrowed from an [`EventLog`].
 #[derive(Clone, Copy, Debug, PartialEq, Serialize)]
 pub struct EventRef<'a> {
@@ -367,7 +344,10 @@ impl EventLog {
             return false;
         }
         let b = self.snapshot(before);
-        for i in bits(switched) {
+        let mut mask = switched;
+        while mask != 0 {
+            let i = mask.trailing_zeros();
+            mask &= mask - 1;
             let kind = if switch_on >> i & 1 == 1 {
                 EventKind::SwitchOn
             } else {
@@ -385,7 +365,10 @@ impl EventLog {
                 self.snapshots += 1;
                 self.snapshots - 1
             };
-            for i in bits(diodes) {
+            let mut mask = diodes;
+            while mask != 0 {
+                let i = mask.trailing_zeros();
+                mask &= mask - 1;
                 let kind = if diode_on >> i & 1 == 1 {
                     EventKind::DiodeOn
                 } else {

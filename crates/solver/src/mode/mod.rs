@@ -234,6 +234,9 @@ pub(crate) struct Mode {
     /// Constraint rows H (restricted to z) as columns (Hᵀ, so that each
     /// row is contiguous), and their kinds.
     pub ht: DMatrix<f64>,
+    /// Each constraint row's non-zero entries (the replay check's and
+    /// the jump checks' products at every instant).
+    pub h_rows: Vec<Sparse>,
     pub constraints: Vec<ConstraintKind>,
     /// Jump map z⁺ = P z⁻ restoring the constraints.
     pub p: DMatrix<f64>,
@@ -314,6 +317,10 @@ impl Mode {
             c: outputs.c,
             undetermined: outputs.undetermined,
             guards,
+            h_rows: hz
+                .row_iter()
+                .map(|r| Sparse::of(&r.iter().copied().collect::<Vec<_>>()))
+                .collect(),
             ht: hz.transpose(),
             constraints,
             p,
@@ -339,6 +346,7 @@ impl Mode {
             undetermined: vec![true; cc.outputs.len()],
             guards: vec![],
             ht: DMatrix::zeros(nz, 0),
+            h_rows: vec![],
             constraints: vec![],
             p: DMatrix::identity(nz, nz),
             free_checks: vec![],

@@ -963,7 +963,8 @@ fn outer_add_sparse(
     (d, second): (f64, bool),
 ) -> bool {
     let n = z.len();
-    if !(4..=SPARSE_MAX).contains(&n) {
+    // Below 8 entries the dense fixed sizes are cheaper than gathering.
+    if !(8..=SPARSE_MAX).contains(&n) {
         return false;
     }
     // The non-zero entries: their values, and the offsets of their columns

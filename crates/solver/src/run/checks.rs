@@ -8,7 +8,7 @@
 use nalgebra::DVector;
 
 use crate::crossing::{Scales, SOURCE_BALANCE_REL};
-use crate::mode::{ConstraintKind, Mode};
+use crate::mode::{ConstraintKind, Mode, Sparse};
 use crate::propagate;
 use crate::propagate::dot_and_magnitude;
 
@@ -23,14 +23,14 @@ pub(super) fn constraint_row(mode: &Mode, r: usize) -> &[f64] {
 /// Whether a cutset row carries current at z (the test of
 /// [`violations`]).
 #[inline(always)]
-pub(super) fn cuts(row: &[f64], z: &[f64], scales: Scales) -> bool {
-    scales.cuts(propagate::dot_slices(row, z))
+pub(super) fn cuts(row: &Sparse, z: &[f64], scales: Scales) -> bool {
+    scales.cuts(row.dot(z))
 }
 
 /// The first inductor cutset of `mode` that carries current at z.
 pub(super) fn first_cut_row(mode: &Mode, z: &[f64], scales: Scales) -> Option<usize> {
     mode.constraints.iter().enumerate().position(|(r, kind)| {
-        matches!(kind, ConstraintKind::Cutset { .. }) && cuts(constraint_row(mode, r), z, scales)
+        matches!(kind, ConstraintKind::Cutset { .. }) && cuts(&mode.h_rows[r], z, scales)
     })
 }
 
@@ -52,9 +52,7 @@ pub(super) fn violations(
         return (false, false);
     }
     let (mut cut, mut lp) = (false, false);
-    // Hᵀ is column-major: constraint r's row is the r-th run of n_z.
-    let rows = mode.ht.as_slice().chunks_exact(mode.ht.nrows().max(1));
-    for (row, kind) in rows.zip(&mode.constraints) {
+    for (row, kind) in mode.h_rows.iter().zip(&mode.constraints) {
         match kind {
             ConstraintKind::Cutset { windings: w, .. } if cuts(row, z, scales) => {
                 cut = true;
@@ -62,11 +60,7 @@ pub(super) fn violations(
                     list.extend(w.iter().copied());
                 }
             }
-            ConstraintKind::Loop { .. }
-                if scales.loop_holds_voltage(propagate::dot_slices(row, z)) =>
-            {
-                lp = true
-            }
+            ConstraintKind::Loop { .. } if scales.loop_holds_voltage(row.dot(z)) => lp = true,
             _ => {}
         }
     }

@@ -3,7 +3,7 @@
 
 use super::{SegmentSink, SegmentView, Simulator};
 use crate::error::SolverError;
-use crate::events::{bits, EventCause, EventKind, EventLog, InstantEvents, JumpInfo};
+use crate::events::{EventCause, EventKind, EventLog, InstantEvents, JumpInfo};
 use crate::options::Record;
 use crate::propagate;
 use crate::waveform::{Segment, Waveform};
@@ -325,19 +325,28 @@ impl Simulator {
             }
         }
         self.rec.n_events += k;
-        let ids = bits(switched).chain(bits(diodes).map(|i| base + i));
-        for id in ids {
-            if self.rec.recent.len() < cap {
-                self.rec.recent.push((time, id));
-            } else {
-                self.rec.recent[self.rec.recent_head] = (time, id);
-                self.rec.recent_head += 1;
-                if self.rec.recent_head == cap {
-                    self.rec.recent_head = 0;
-                }
+        for (mut mask, offset) in [(switched, 0), (diodes, base)] {
+            while mask != 0 {
+                let id = offset + mask.trailing_zeros();
+                mask &= mask - 1;
+                self.note_recent(time, id, cap);
             }
         }
         Ok(())
+    }
+
+    /// Puts event `id` at `time` into the ring of the last `cap` events.
+    #[inline(always)]
+    fn note_recent(&mut self, time: f64, id: u32, cap: usize) {
+        if self.rec.recent.len() < cap {
+            self.rec.recent.push((time, id));
+        } else {
+            self.rec.recent[self.rec.recent_head] = (time, id);
+            self.rec.recent_head += 1;
+            if self.rec.recent_head == cap {
+                self.rec.recent_head = 0;
+            }
+        }
     }
 
     /// [`Simulator::push_instant`] by [`Simulator::push_event`], one event

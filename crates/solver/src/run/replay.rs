@@ -251,8 +251,7 @@ impl Simulator {
         let still = if t.cut_rows.len() <= 64 {
             let mut cutting = 0u64;
             for (g, &(m, r)) in t.cut_rows.iter().enumerate() {
-                let row = constraint_row(&self.modes[m as usize], r as usize);
-                if cuts(row, z, scales) {
+                if cuts(&self.modes[m as usize].h_rows[r as usize], z, scales) {
                     cutting |= 1 << g;
                 }
             }
