@@ -476,7 +476,9 @@ fn compact<const N: usize>(data: &[f64], x: &[f64], y: &mut [f64]) {
 #[inline(never)]
 fn wide<const N: usize>(data: &[f64], x: &[f64], y: &mut [f64]) {
     let y: &mut [f64; N] = y.try_into().expect("y has as many entries as M has rows");
-    let x: &[f64; N] = x.try_into().expect("x has as many entries as M has columns");
+    let x: &[f64; N] = x
+        .try_into()
+        .expect("x has as many entries as M has columns");
     let data: &[f64] = &data[..N * N];
     let mut acc = [0.0f64; N];
     for (col, &xj) in data.chunks_exact(N).zip(x) {

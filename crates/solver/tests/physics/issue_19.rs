@@ -57,13 +57,19 @@ const EXAMPLES: &[&str] = &[
 const OPEN_EXTREMES: &[(&str, f64)] =
     &[("multiplier_24.json", 1e-12), ("multiplier_24.json", 1e-9)];
 
-/// Examples the random scaling test leaves out for now (open findings,
-/// see `issue_19_every_example_scales`).
-const OPEN: &[&str] = &[
-    "peak_current_buck.json",
-    "rectifier.json",
-    "voltage_mode_buck.json",
-];
+/// Examples the random scaling test leaves out for now (open finding):
+/// the voltage-mode buck with k = 1.3e-10 and s = 1.1e-8 together
+/// (either factor alone scales to 1e-15). Its first located turn-off
+/// lands 6.9e-13 of the run (2.7e-11 of a period) away from the
+/// unscaled run's, where every state before agrees to 5e-16; the inductor
+/// current then drifts to 1.9e-8 apart over 20 periods. Suspected: the
+/// compensator's internal states, whose units depend on its realisation,
+/// dominate the comparator guard's terms and so the noise floor at which
+/// the root polish stops. (The peak-current buck and the rectifier were
+/// open here too; both came from this test: an edge at the stop instant
+/// taken or not by rounding, and a tie of the physics broken by rounding;
+/// see `assert_scales`.)
+const OPEN: &[&str] = &["voltage_mode_buck.json"];
 
 /// Impedance, time and amplitude factors.
 #[derive(Clone, Copy, Debug)]
@@ -249,7 +255,6 @@ fn assert_scales(file: &str, sc: Scale) {
     );
     let other = run(file, sc, stop);
     let (e1, e2) = (&one.events, &other.events);
-    assert_eq!(e1.len(), e2.len(), "{file} {sc:?}: event count");
     let names = e1.state_names();
     let mut range = vec![0.0f64; names.len()];
     for e in e1.iter() {
@@ -273,12 +278,15 @@ fn assert_scales(file: &str, sc: Scale) {
             rv
         };
     }
-    // Events within 1e-12 of the run of each other are one instant up to
-    // rounding: two gate edges that coincide only to the decimals of the
-    // file (the twelve-phase buck's S2 on and S11 off at T/12) are taken
-    // in either order or at instants an ulp apart once the times are
-    // scaled. Within such a group the events are compared in a fixed
-    // order.
+    // Events closer than the tolerance on their instants (`rel` of the
+    // run) are one instant as far as this test can tell, and are compared
+    // in a fixed order: two gate edges that coincide only to the decimals
+    // of the file (the twelve-phase buck's S2 on and S11 off at T/12) are
+    // taken in either order or at instants an ulp apart once the times
+    // are scaled; and a tie of the physics is broken by rounding (the
+    // rectifier's D1 and D4 reach their forward voltage together at
+    // 0.3 ms, by the symmetry of its two equal ties to ground: one
+    // instant unscaled, D4 then D1 1.3e-13 s later at k = 4668).
     fn grouped(log: &fluxstep_solver::EventLog, width: f64) -> Vec<fluxstep_solver::EventRef<'_>> {
         let mut v: Vec<_> = log.iter().collect();
         let mut i = 0;
@@ -293,7 +301,17 @@ fn assert_scales(file: &str, sc: Scale) {
         }
         v
     }
-    let (g1, g2) = (grouped(e1, 1e-12 * stop), grouped(e2, 1e-12 * stop * sc.s));
+    // Events at the stop instant itself are left out: a gate edge there
+    // (the runs last a whole number of periods) is applied when its
+    // computed time is within four ulps of the stop time, and whether it
+    // is depends on the rounding of the two products, not on the circuit
+    // (the peak-current buck at s = 6.6e-6: its 40th switch-on, 1 ulp
+    // past the stop unscaled, falls 5 ulps past it scaled).
+    let mut g1 = grouped(e1, rel * stop);
+    g1.retain(|e| e.time < stop * (1.0 - 1e-12));
+    let mut g2 = grouped(e2, rel * stop * sc.s);
+    g2.retain(|e| e.time < stop * sc.s * (1.0 - 1e-12));
+    assert_eq!(g1.len(), g2.len(), "{file} {sc:?}: event count");
     for (a, b) in g1.iter().zip(g2.iter()) {
         assert_eq!(
             (a.kind, a.cause, a.element),
@@ -481,16 +499,10 @@ proptest! {
         let sc = Scale { k: 10f64.powf(lk), s: 10f64.powf(ls), a: 10f64.powf(la) };
         // The twelve-phase buck's S2 on and S11 off coincide only to the
         // decimals of the file; `assert_scales` compares such groups in a
-        // fixed order. Open findings, left out until understood: the clocked
-        // comparator gates do not scale in time exactly — the voltage-mode
-        // buck's turn-off instants move by 2e-9 of the run at s = 3.5e-4,
-        // and the peak-current buck's event count changes at s = 6.6e-6.
-        // The rectifier's bridge logs a different event at 0.3 ms at
-        // k = 2.2e5 with a = 6.9e3 (two diodes at one instant, suspected).
-        // Not excluded but open: the interrupted inductor at k = 2.5e5 to
-        // 9e5 with a ≈ 1.5e-6 (currents near 3e-11 A) gives L1's and
-        // Vin's currents 1.5e-9 apart, relative, beyond this test's bound
-        // (seed ex = 6, lk = 5.39, ls = 0, la = −5.81).
+        // fixed order. Not excluded but open: the interrupted inductor at
+        // k = 2.5e5 to 9e5 with a ≈ 1.5e-6 (currents near 3e-11 A) gives
+        // L1's and Vin's currents 1.5e-9 apart, relative, beyond this
+        // test's bound (seed ex = 6, lk = 5.39, ls = 0, la = −5.81).
         prop_assume!(!OPEN.contains(&EXAMPLES[ex]));
         prop_assume!(!(EXAMPLES[ex] == "multiplier_24.json" && lk < -8.0));
         assert_scales(EXAMPLES[ex], sc);
