@@ -232,25 +232,37 @@ pub(crate) fn balancing(m: &DMatrix<f64>) -> (DMatrix<f64>, Vec<f64>) {
     (a, d)
 }
 
-/// Largest |wᵢ·xᵢ| over the first `w.len()` entries of `x`: the circuit
-/// states in units of the square root of energy (`Mode::weight`).
+/// The sizes of `x`'s states (its first `w.len()` entries) in their own
+/// units: the largest |wᵢ·xᵢ| over the circuit states (wᵢ > 0: √L or √C,
+/// so in units of the square root of energy), and the largest |xᵢ| over
+/// the states that hold no energy (wᵢ = 0: oscillators, compensators).
 #[inline]
-fn weighted_size(x: &[f64], w: &[f64]) -> f64 {
-    x.iter()
-        .zip(w)
-        .fold(0.0, |a, (v, wi)| a.max((v * wi).abs()))
+fn sizes(x: &[f64], w: &[f64]) -> (f64, f64) {
+    x.iter().zip(w).fold((0.0f64, 0.0f64), |(e, o), (v, wi)| {
+        if *wi > 0.0 {
+            (e.max((v * wi).abs()), o)
+        } else {
+            (e, o.max(v.abs()))
+        }
+    })
 }
 
 /// Whether a Taylor term that is already below 1e-18 of the state's
-/// largest entry is negligible for every circuit state too: its states
-/// weighted by their energy scales `w` below 1e-18 of the reference's.
-/// The largest entry alone mixes units: with every impedance ×1e12 the
-/// currents are 1e-12 of the voltages and kept only 1e-6 of their own
-/// digits (1e-8 in the interrupted-inductor example); weighted, √L·i and
-/// √C·v scale alike.
+/// largest entry is negligible for every state too: its circuit states
+/// weighted by their energy scales `w` below 1e-18 of the reference's,
+/// and its other states below 1e-18 of the reference's others (see
+/// [`sizes`]). The largest entry alone mixes units: with every impedance
+/// ×1e12 the currents are 1e-12 of the voltages and kept only 1e-6 of
+/// their own digits (1e-8 in the interrupted-inductor example); weighted,
+/// √L·i and √C·v scale alike. A compensator's states have units of their
+/// own realisation: in one weighted group with the circuit's, its states
+/// of 5e-13 (the voltage-mode buck with impedances ×1.3e-10 and times
+/// ×1.1e-8) kept only 1e-6 of their digits against the inductor's 0.46,
+/// which moved its comparator's turn-off by 2.7e-11 of a period.
 #[inline]
 fn negligible_in_energy(term: &[f64], reference: &[f64], w: &[f64]) -> bool {
-    weighted_size(term, w) <= 1e-18 * weighted_size(reference, w)
+    let ((te, to), (re, ro)) = (sizes(term, w), sizes(reference, w));
+    te <= 1e-18 * re && to <= 1e-18 * ro
 }
 
 /// Taylor vectors wₖ = Mᵏ z / k!·τᵏ, so that e^{Mτ} z = Σ wₖ; stops when a
@@ -332,10 +344,11 @@ pub(crate) fn taylor_terms(
         // In energy units against the larger of z and the first term (z
         // may be at rest, its states all zero).
         if tn == 0.0
-            || (k >= 3
-                && tn <= scale * 1e-18
-                && weighted_size(y, w)
-                    <= 1e-18 * weighted_size(&done[..n], w).max(weighted_size(&done[n..2 * n], w)))
+            || (k >= 3 && tn <= scale * 1e-18 && {
+                let (te, to) = sizes(y, w);
+                let ((ae, ao), (be, bo)) = (sizes(&done[..n], w), sizes(&done[n..2 * n], w));
+                te <= 1e-18 * ae.max(be) && to <= 1e-18 * ao.max(bo)
+            })
         {
             break;
         }

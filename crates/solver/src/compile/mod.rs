@@ -208,6 +208,26 @@ impl Compiled {
         self.n_x + 2 * self.n_u
     }
 
+    /// Each x state's energy scale for the Taylor series' stopping test
+    /// (`Mode::weight`): √L for an inductor current, √C for a capacitor
+    /// voltage, and 0 for the states that hold no energy (oscillators and
+    /// compensators), whose units are their own and which that test
+    /// judges apart.
+    pub(crate) fn energy_weights(&self) -> Vec<f64> {
+        let mut w = self.x_scale[..self.n_x.min(self.x_scale.len())].to_vec();
+        let none = self.oscillators.iter().flat_map(|&(s, c, _)| [s, c]).chain(
+            self.compensators
+                .iter()
+                .flat_map(|k| k.states.iter().copied()),
+        );
+        for i in none {
+            if let Some(v) = w.get_mut(i) {
+                *v = 0.0;
+            }
+        }
+        w
+    }
+
     /// Compiles a circuit (validated first) into numbered nodes, branches
     /// and the extended state; each step lives in a sibling file.
     ///

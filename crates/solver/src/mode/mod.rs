@@ -326,7 +326,7 @@ impl Mode {
             p,
             free_checks,
             rate,
-            weight: cc.x_scale[..cc.n_x.min(cc.x_scale.len())].to_vec(),
+            weight: cc.energy_weights(),
             resistive_short: topo.resistive_short,
             cmp_guards,
         })
