@@ -26,12 +26,7 @@ use common::{buck_ccm, buck_dcm, digital_pi_buck, run_digital_pi, PERIODS};
 
 fn main() {
     let args: Vec<String> = std::env::args().skip(1).collect();
-    // `cargo bench` passes `--bench`; only plain words select a run.
-    let words: Vec<&str> = args
-        .iter()
-        .map(String::as_str)
-        .filter(|a| !a.starts_with('-'))
-        .collect();
+    let words = common::plain_words(&args);
     let dcm = words.first() == Some(&"dcm");
     let pi = words.first() == Some(&"pi");
     let record = if words.get(1) == Some(&"nothing") {

@@ -34,6 +34,8 @@ use std::time::Instant;
 use fluxstep_netlist::{Circuit, Gate};
 use fluxstep_solver::{Options, Record, RunResult, Simulator, Stats};
 
+mod common;
+
 /// Switching frequency of each phase (Hz).
 const F: f64 = 250e3;
 /// Duty cycle of every phase.
@@ -198,13 +200,8 @@ fn marginal(
 }
 
 fn main() {
-    // `cargo bench` passes `--bench`; only plain words select a run.
     let args: Vec<String> = std::env::args().skip(1).collect();
-    let words: Vec<&str> = args
-        .iter()
-        .map(String::as_str)
-        .filter(|a| !a.starts_with('-'))
-        .collect();
+    let words = common::plain_words(&args);
     if let Some(circuit) = words.first().and_then(|w| one(w)) {
         // One circuit alone, for counting instructions: its name (`1` to
         // `12` phases, `ccm`, `dcm`), optionally the periods, and anywhere

@@ -33,6 +33,8 @@ use std::time::Instant;
 use fluxstep_netlist::{Circuit, DiodeModel, Element, SwitchTransition, TransitionRates};
 use fluxstep_solver::{Options, Record, RunResult, Simulator, Stats};
 
+mod common;
+
 const T: f64 = 5e-6;
 const PERIODS: f64 = 20_000.0;
 
@@ -115,13 +117,8 @@ impl Best {
 }
 
 fn main() {
-    // `cargo bench` passes `--bench`; only plain words select a run.
     let args: Vec<String> = std::env::args().skip(1).collect();
-    let words: Vec<&str> = args
-        .iter()
-        .map(String::as_str)
-        .filter(|a| !a.starts_with('-'))
-        .collect();
+    let words = common::plain_words(&args);
     let one = words
         .first()
         .copied()

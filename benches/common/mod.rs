@@ -1,4 +1,5 @@
-//! The converters both benchmark programs run (`solver.rs`, `once.rs`).
+//! The converters both benchmark programs run (`solver.rs`, `once.rs`),
+//! and the command-line words of the programs that take them.
 
 // Each program uses only part of this module.
 #![allow(dead_code)]
@@ -6,6 +7,15 @@
 use fluxstep_netlist::{Circuit, Gate};
 use fluxstep_solver::control::{Apply, Commands, Sampling};
 use fluxstep_solver::{Options, Record, RunResult, Simulator};
+
+/// The plain words of a benchmark's command line (`cargo bench` passes
+/// `--bench`, and filters start with `-` too): only these select a run.
+pub fn plain_words(args: &[String]) -> Vec<&str> {
+    args.iter()
+        .map(String::as_str)
+        .filter(|a| !a.starts_with('-'))
+        .collect()
+}
 
 /// Switching periods per run.
 pub const PERIODS: u64 = 10_000;

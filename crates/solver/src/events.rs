@@ -344,17 +344,14 @@ impl EventLog {
             return false;
         }
         let b = self.snapshot(before);
-        let mut mask = switched;
-        while mask != 0 {
-            let i = mask.trailing_zeros();
-            mask &= mask - 1;
-            let kind = if switch_on >> i & 1 == 1 {
-                EventKind::SwitchOn
-            } else {
-                EventKind::SwitchOff
-            };
-            self.push_record(time, i, kind, cause, (b, b));
-        }
+        let switch_kinds = [EventKind::SwitchOff, EventKind::SwitchOn];
+        self.push_masked(
+            time,
+            cause,
+            (switched, switch_on),
+            (0, switch_kinds),
+            (b, b),
+        );
         if diodes != 0 {
             // The state after is compared with the snapshot just taken,
             // which is `before`.
@@ -365,19 +362,30 @@ impl EventLog {
                 self.snapshots += 1;
                 self.snapshots - 1
             };
-            let mut mask = diodes;
-            while mask != 0 {
-                let i = mask.trailing_zeros();
-                mask &= mask - 1;
-                let kind = if diode_on >> i & 1 == 1 {
-                    EventKind::DiodeOn
-                } else {
-                    EventKind::DiodeOff
-                };
-                self.push_record(time, base + i, kind, cause, (b, a));
-            }
+            let diode_kinds = [EventKind::DiodeOff, EventKind::DiodeOn];
+            self.push_masked(time, cause, (diodes, diode_on), (base, diode_kinds), (b, a));
         }
         true
+    }
+
+    /// A record for each bit i of `mask` (lowest first), element
+    /// `base + i`, of kind `kinds[1]` where bit i of `on` is set and
+    /// `kinds[0]` where it is not, with the snapshots `states`.
+    #[inline(always)]
+    fn push_masked(
+        &mut self,
+        time: f64,
+        cause: EventCause,
+        (mut mask, on): (u64, u64),
+        (base, kinds): (u32, [EventKind; 2]),
+        states: (u32, u32),
+    ) {
+        while mask != 0 {
+            let i = mask.trailing_zeros();
+            mask &= mask - 1;
+            let kind = if on >> i & 1 == 1 { kinds[1] } else { kinds[0] };
+            self.push_record(time, base + i, kind, cause, states);
+        }
     }
 
     /// Appends one record whose states are the snapshots numbered

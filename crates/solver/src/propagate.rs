@@ -480,9 +480,8 @@ fn compact<const N: usize>(data: &[f64], x: &[f64], y: &mut [f64]) {
 }
 
 /// [`compact`] for 13 to 20 entries (a twelve-phase converter has 17):
-/// every
-/// column, zero or not, so that the loop has no branch and its sums stay
-/// in registers. A zero entry of x adds a signed zero to each sum, which
+/// every column, zero or not, so that the loop has no branch and its sums
+/// stay in registers. A zero entry of x adds a signed zero to each sum, which
 /// changes none (a sum that starts at +0 never becomes −0), so the bits
 /// are those of [`compact`]; the branch and the column-by-column slices
 /// of the general loop cost 1,500 instructions a product at 17 entries.
@@ -659,10 +658,7 @@ pub(crate) fn norm1(m: &DMatrix<f64>) -> f64 {
 /// non-finite, never as finite garbage.
 pub(crate) fn expm(m: &DMatrix<f64>, h: f64) -> DMatrix<f64> {
     let a = m * h;
-    let norm = a
-        .column_iter()
-        .map(|c| c.iter().map(|v| v.abs()).sum::<f64>())
-        .fold(0.0, f64::max);
+    let norm = norm1(&a);
     if norm <= EXP_DIRECT {
         return a.exp();
     }

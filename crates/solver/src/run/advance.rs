@@ -263,9 +263,7 @@ impl ModeCache {
         );
         true
     }
-}
 
-impl ModeCache {
     /// The cached length nearest to `len` within `reach` (scheduled spans
     /// first, then lengths that came back; the first of equals), as
     /// (len − h₀, e^{M·h₀}).

@@ -53,6 +53,7 @@ use crate::compile::{BranchKind, Compiled, OutputDef};
 use crate::error::SolverError;
 use crate::mode::Mode;
 use crate::propagate;
+use crate::propagate::norm1;
 
 /// The quadratic forms each segment is integrated against: power
 /// delivered, power dissipated, stored energy.
@@ -752,13 +753,6 @@ impl Kernel {
     }
 }
 
-/// ‖A‖₁, the largest column sum of magnitudes.
-fn norm1(a: &DMatrix<f64>) -> f64 {
-    (0..a.ncols())
-        .map(|j| a.column(j).iter().map(|v| v.abs()).sum::<f64>())
-        .fold(0.0, f64::max)
-}
-
 /// A length h₀ + Δ with ‖M‖₁·|Δ| ≤ NEAR (M balanced) is summed with a
 /// cached length h₀ to second order in Δ: a located instant of a settled
 /// converter comes back within a few units in the last place, a length
@@ -944,6 +938,10 @@ fn outer_add_n<const N: usize>(
     }
 }
 
+/// The most entries of z for [`outer_add_sparse`], whose index arrays are
+/// on the stack (arrays of 64 cost more to clear than the sums they saved).
+const SPARSE_MAX: usize = 16;
+
 /// [`outer_add`] over the non-zero entries of z only, where at most half
 /// of its pairs are non-zero (true: done), else false and nothing done.
 /// A product with a zero entry adds a signed zero, which leaves every
@@ -951,10 +949,6 @@ fn outer_add_n<const N: usize>(
 /// so the bits are those of the whole triangle. The ramp states of
 /// switches with transition models are zero outside their transitions:
 /// the transitions bench's z has 10 entries, 4 to 6 non-zero.
-/// The most entries of z for [`outer_add_sparse`], whose index arrays are
-/// on the stack (arrays of 64 cost more to clear than the sums they saved).
-const SPARSE_MAX: usize = 16;
-
 fn outer_add_sparse(
     acc: &mut [f64],
     acc1: &mut [f64],
