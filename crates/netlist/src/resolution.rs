@@ -2,7 +2,7 @@
 //! a run: a period of 1e-300 s added to a time of 1e-3 s changes nothing,
 //! and a run that steps by it computes garbage while seeming to succeed.
 
-use crate::circuit::Circuit;
+use crate::circuit::{Circuit, CompensatorLaw};
 use crate::element::Element;
 use crate::error::Problem;
 use crate::gate::Gate;
@@ -61,7 +61,9 @@ impl Circuit {
     /// times, dead times, repeating source periods, spacing of waveform
     /// points, sine periods) too short for `f64` time to resolve over a run
     /// to `stop` s: each must be at least [`MIN_DURATION_RATIO`]·`stop`.
-    /// Each problem names the gate or element and its field. Zero
+    /// A compensator's pole time constants 1/(2π·f) (and, for a
+    /// state-space law, 1/ρ with ρ the largest row sum of |A|, a bound on
+    /// its rates) count as durations. Each problem names the gate or element and its field. Zero
     /// durations (no dead time, two points at one instant for a step) are
     /// exact and allowed. [`Circuit::validate`] applies this with the
     /// file's `run.stop_time`; callers that choose another stop time check
@@ -159,6 +161,42 @@ impl Circuit {
                 _ => {}
             }
         }
+        // A compensator's poles are time constants of its states: one
+        // shorter than time can resolve over the run follows its input
+        // within rounding, and solving it exactly costs hundreds of
+        // squarings per exponential (a pole at 1e100 Hz beside a 2 ms run).
+        for c in &self.compensators {
+            match &c.law {
+                CompensatorLaw::PolesZeros { poles_hz, .. } => {
+                    for (j, p) in poles_hz.iter().enumerate() {
+                        let tau = 1.0 / (2.0 * std::f64::consts::PI * p);
+                        check(
+                            &c.name,
+                            &format!("law.poles_hz[{j}]"),
+                            "the time constant 1/(2π·f)",
+                            tau,
+                        );
+                    }
+                }
+                CompensatorLaw::StateSpace { a, .. } => {
+                    // No rate of x' = A x exceeds the largest row sum of
+                    // |A| (a bound on every eigenvalue's modulus).
+                    let rate = a
+                        .iter()
+                        .map(|r| r.iter().map(|v| v.abs()).sum::<f64>())
+                        .fold(0.0, f64::max);
+                    if rate.is_finite() {
+                        check(
+                            &c.name,
+                            "law.a",
+                            "the shortest time constant the rows of A allow (1/max row sum of |A|)",
+                            1.0 / rate,
+                        );
+                    }
+                }
+                CompensatorLaw::Pi { .. } => {}
+            }
+        }
         out
     }
 }
@@ -222,5 +260,46 @@ mod tests {
         assert!(!fields.contains(&"frequency"), "{p:?}");
         let long = c.time_resolution_problems(1e10);
         assert!(long.iter().any(|p| p.field.as_deref() == Some("frequency")));
+    }
+
+    /// Issue 19: a compensator pole at 1e100 Hz (time constant 1.6e-101 s
+    /// beside a 2 ms run) is refused, naming the compensator and the pole;
+    /// one at 80 kHz is not. A state-space law whose rows of A allow rates
+    /// beyond the resolution is refused the same way.
+    #[test]
+    fn issue_19_compensator_time_constants_are_checked_against_the_stop_time() {
+        let text = |law: &str| {
+            format!(
+                r#"{{
+              "elements": [
+                {{"kind": "voltage_source", "name": "V1", "nodes": ["in", "gnd"],
+                 "waveform": {{"kind": "constant", "value": 12}}}},
+                {{"kind": "resistor", "name": "R1", "nodes": ["in", "out"], "resistance": 1}},
+                {{"kind": "capacitor", "name": "C1", "nodes": ["out", "gnd"], "capacitance": "1u"}}
+              ],
+              "compensators": [{{"name": "K", "input": "out", "reference": 3.3, "law": {law}}}],
+              "run": {{"stop_time": "2m"}}
+            }}"#
+            )
+        };
+        let pz = |p: f64| {
+            format!(
+                r#"{{"kind": "poles_zeros", "gain": 5000, "zeros_hz": [3500], "poles_hz": [80000, {p:e}]}}"#
+            )
+        };
+        let err = Circuit::from_json(&text(&pz(1e100)))
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("K.law.poles_hz[1]"), "{err}");
+        assert!(err.contains("too short to resolve"), "{err}");
+        assert!(!err.contains("poles_hz[0]"), "{err}");
+        Circuit::from_json(&text(&pz(1e6))).unwrap();
+        let ss =
+            |a: f64| format!(r#"{{"kind": "state_space", "a": [[{a:e}]], "b": [1], "c": [1]}}"#);
+        let err = Circuit::from_json(&text(&ss(-1e30)))
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("K.law.a"), "{err}");
+        Circuit::from_json(&text(&ss(-1e6))).unwrap();
     }
 }
