@@ -733,6 +733,24 @@ pub(crate) fn matvec(m: &DMatrix<f64>, x: &[f64], y: &mut [f64]) {
     }
 }
 
+/// y = |M|·x (entrywise absolute values of M; x ≥ 0): where x bounds the
+/// magnitudes that went into each entry of a vector v, y bounds those
+/// that went into M·v. A derivative M·z that cancels to nearly zero keeps
+/// the rounding of its terms, up to ε times this bound, not times its own
+/// size.
+pub(crate) fn abs_matvec(m: &DMatrix<f64>, x: &[f64], y: &mut [f64]) {
+    let n = m.nrows();
+    let data = m.as_slice();
+    y.fill(0.0);
+    for (j, &xj) in x.iter().enumerate() {
+        if xj != 0.0 {
+            for (yi, &mij) in y.iter_mut().zip(&data[j * n..(j + 1) * n]) {
+                *yi += mij.abs() * xj;
+            }
+        }
+    }
+}
+
 /// Σ aᵢbᵢ over two slices of equal length, in index order from the same
 /// start as `Iterator::sum` (so the same bits as `a.iter().zip(b)` summed),
 /// unrolled for the common lengths.

@@ -173,6 +173,18 @@ impl Sparse {
         v
     }
 
+    /// Σ |rowₖ|·mₖ: the magnitude of the row's terms where `m` bounds
+    /// the magnitudes that went into each entry of the vector (see
+    /// `propagate::abs_matvec`).
+    #[inline(always)]
+    pub(crate) fn abs_dot(&self, m: &[f64]) -> f64 {
+        let mut s = 0.0;
+        for &(k, a) in &self.0 {
+            s += a.abs() * m[k];
+        }
+        s
+    }
+
     /// (Σ rowₖ zₖ, Σ |rowₖ zₖ|).
     #[inline(always)]
     pub(crate) fn dot_and_magnitude(&self, z: &[f64]) -> (f64, f64) {

@@ -123,15 +123,22 @@ pub(super) fn guards_hold_at_zero(mode: &Mode, z: &DVector<f64>, scales: Scales)
             undecided |= 1 << gi;
         }
     }
-    let mut buf = [[0.0f64; 16]; 2];
-    let [a, b] = &mut buf;
+    let mut buf = [[0.0f64; 16]; 4];
+    let [a, b, c, e] = &mut buf;
     let (mut d, mut next): (&mut [f64], &mut [f64]) = (&mut a[..n], &mut b[..n]);
+    let (dm, next_m): (&mut [f64], &mut [f64]) = (&mut c[..n], &mut e[..n]);
     d.copy_from_slice(zs);
     let mut rate_k = 1.0;
     for _ in 1..4 {
         if undecided == 0 {
             break;
         }
+        // The terms of this product, |M|·|d|: a derivative that cancels
+        // inside M·d keeps their rounding.
+        for (m, v) in next_m.iter_mut().zip(d.iter()) {
+            *m = v.abs();
+        }
+        propagate::abs_matvec(&mode.m, next_m, dm);
         propagate::matvec(&mode.m, d, next);
         std::mem::swap(&mut d, &mut next);
         rate_k *= mode.rate;
@@ -141,8 +148,8 @@ pub(super) fn guards_hold_at_zero(mode: &Mode, z: &DVector<f64>, scales: Scales)
             let gi = left.trailing_zeros() as usize;
             left &= left - 1;
             let g = &mode.guards[gi];
-            let (v, s) = g.srow.dot_and_magnitude(d);
-            let tol = scales.derivative_zero(&g.kind, s, rate_k);
+            let v = g.srow.dot(d);
+            let tol = scales.derivative_zero(&g.kind, g.srow.abs_dot(dm), rate_k);
             if v < -tol {
                 return false;
             }
@@ -188,28 +195,38 @@ pub(super) fn violated_guards(
     // On the stack up to 16 entries of z: a circuit with transition models
     // gets here at every located clamp, and allocating cost more than the rest.
     let n = zs.len();
-    let (mut buf, mut heap) = ([[0.0f64; 16]; 2], vec![]);
-    let (mut d, mut next): (&mut [f64], &mut [f64]) = match &mut buf {
-        [a, b] if n <= 16 => (&mut a[..n], &mut b[..n]),
+    let (mut buf, mut heap) = ([[0.0f64; 16]; 4], vec![]);
+    let (d, next, dm, next_m): (&mut [f64], &mut [f64], &mut [f64], &mut [f64]) = match &mut buf {
+        [a, b, c, e] if n <= 16 => (&mut a[..n], &mut b[..n], &mut c[..n], &mut e[..n]),
         _ => {
-            heap.resize(2 * n, 0.0);
-            heap.split_at_mut(n)
+            heap.resize(4 * n, 0.0);
+            let (ab, ce) = heap.split_at_mut(2 * n);
+            let (a, b) = ab.split_at_mut(n);
+            let (c, e) = ce.split_at_mut(n);
+            (a, b, c, e)
         }
     };
+    let (mut d, mut next) = (d, next);
     d.copy_from_slice(zs);
     let mut rate_k = 1.0;
     for _ in 1..4 {
         if undecided.is_empty() {
             break;
         }
+        // The terms of this product, |M|·|d|: a derivative that cancels
+        // inside M·d keeps their rounding.
+        for (m, v) in next_m.iter_mut().zip(d.iter()) {
+            *m = v.abs();
+        }
+        propagate::abs_matvec(&mode.m, next_m, dm);
         propagate::matvec(&mode.m, d, next);
         std::mem::swap(&mut d, &mut next);
         rate_k *= mode.rate;
         let mut still = Vec::with_capacity(undecided.len());
         for &gi in &undecided {
             let g = &mode.guards[gi];
-            let (v, s) = g.srow.dot_and_magnitude(d);
-            let tol = scales.derivative_zero(&g.kind, s, rate_k);
+            let v = g.srow.dot(d);
+            let tol = scales.derivative_zero(&g.kind, g.srow.abs_dot(dm), rate_k);
             if v < -tol {
                 violated.push(gi);
                 if !all {

@@ -12,7 +12,13 @@
 //! distance two at most above. It is what finds flux-conserving jumps and
 //! builds the diagnostics of a rejection; trying a fixed finite list cannot
 //! cycle. Diagnostics are kept as numbers and only turned into text if no
-//! candidate holds.
+//! candidate holds. A jump is taken only where no pattern holds without
+//! one: the search walks its list once allowing no jump, then allowing a
+//! charge jump, then (where the run allows it) a flux jump; an outcome
+//! that passed over a charge jump is not replayed. (Ideal diodes at their
+//! forward voltage with zero current can be named conducting or
+//! blocking; a nearer pattern that closed a capacitor loop with a jump of
+//! negative loss once won over the jump-free one.)
 //!
 //! A fixed-frequency converter repeats the same few transitions, so each
 //! outcome is remembered and replayed after re-checking exactly the
@@ -190,13 +196,15 @@ impl Simulator {
         // inductor in series with a current source): it jumps to the
         // source's current, as a capacitor jumps to a source's voltage.
         // Later, only when the run allows it.
-        let passes: &[bool] =
+        // A jump is taken only where no pattern holds without one: a
+        // charge jump in the second pass, a flux jump in the third.
+        let passes: &[(bool, bool)] =
             if moment.is_start() || self.opts.on_interruption == OnInterruption::ConserveFlux {
-                &[false, true]
+                &[(false, false), (false, true), (true, true)]
             } else {
-                &[false]
+                &[(false, false), (false, true)]
             };
-        for &allow_cut in passes {
+        for &(allow_cut, allow_charge) in passes {
             let mut idx = 0usize;
             while let Some(c) = self.candidate(first, idx) {
                 idx += 1;
@@ -213,6 +221,12 @@ impl Simulator {
                 let verdict =
                     self.judge(&modes, mi, allow_cut, scales, &mut interruption, &mut other);
                 self.modes.list = modes;
+                if !allow_charge && matches!(verdict, Verdict::Holds { charge: true, .. }) {
+                    // Passed over for a pattern without a jump, which a
+                    // replay does not re-check.
+                    cut_rejected = None;
+                    continue;
+                }
                 note_search_rejection(&mut cut_rejected, verdict, mi);
                 if !allow_cut {
                     self.remember(&cut_rejected, verdict, flips, mi);
@@ -284,6 +298,12 @@ impl Simulator {
                 break;
             }
             let (mi, verdict) = self.judge_pattern(c, scales)?;
+            if !found.charge && matches!(verdict, Verdict::Holds { charge: true, .. }) {
+                // The search's first pass passes over a pattern that needs
+                // a charge jump where one holds without (`found`).
+                cut_rejected = None;
+                continue;
+            }
             note_search_rejection(&mut cut_rejected, verdict, mi);
             if let Some(f) = verdict.found(c, mi) {
                 settled = Some(f);
