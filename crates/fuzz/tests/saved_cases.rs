@@ -27,6 +27,19 @@
 //!   matrix of a pattern overflowed and the singular value decomposition
 //!   panicked on a NaN; now that pattern has no multipliers and the run
 //!   ends with a diagnostic.
+//!
+//! Open, kept for reproduction and not replayed here (each runs for
+//! seconds, and the fix is still to come; `fluxstep-fuzz --case-seconds
+//! 100 --replay FILE` times one):
+//! - `open-slow-boost-1-picohenry.json`: the boost without its switch and
+//!   with L1 = 1 pH: 12 V through 1 pH and the diode into 22 µF ∥ 24 Ω
+//!   (Q ≈ 1e5 at 33 MHz). Whenever the output falls to the input, the
+//!   diode current rings down to zero every 30 ns for milliseconds, and
+//!   each dip is bisected on exact states to full precision (the stiff
+//!   search's `stiff_root`): 13 s for the 40 ms run, then seconds of
+//!   measurement over oscillatory stiff pieces.
+//! - `open-slow-inverter-1e100-ohm.json`: the three-phase inverter with
+//!   Rb = 1e100 Ω: 2.7 s alone, over 4 s once in the long run.
 
 use fluxstep_fuzz::{run_case, Limits};
 
