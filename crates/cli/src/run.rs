@@ -422,7 +422,11 @@ pub fn run(args: &Args) -> anyhow::Result<()> {
         },
     )?;
     let events_path = dir.join("events.json");
-    std::fs::write(&events_path, result.events.to_json()).map_err(write_failed(&events_path))?;
+    // Streamed: the log of a run stopped by its memory budget is as large
+    // as the budget, and its text several times that.
+    std::fs::File::create(&events_path)
+        .and_then(|f| result.events.write_json(std::io::BufWriter::new(f)))
+        .map_err(write_failed(&events_path))?;
 
     // Summary: exact measurements over the recorded window.
     let measurements: Vec<Measurement> = ids

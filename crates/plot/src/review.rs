@@ -108,7 +108,7 @@ pub fn output_trace(
         .output(name)
         .map_err(|_| PlotError::UnknownOutput { name: name.into() })?;
     let span = (t1 - t0).max(f64::MIN_POSITIVE);
-    let mut points = vec![];
+    let mut points = Thinned::new(t0, span, width_px);
     for s in w.segments() {
         if s.t1 < t0 || s.t0 > t1 {
             continue;
@@ -123,12 +123,98 @@ pub fn output_trace(
             points.push(vertices[0]);
             points.push(vertices[vertices.len() - 1]);
         } else {
-            points.extend(vertices);
+            for v in vertices {
+                points.push(v);
+            }
         }
     }
+    let mut points = points.finish();
     points.dedup();
     let (unit, quantity) = unit_of(name);
     Ok(Trace::new(name, unit, points).with_quantity(quantity))
+}
+
+/// The vertices of a trace, thinned where more than [`THIN_ABOVE`] fall
+/// in one half-pixel column: such a column keeps its first, lowest,
+/// highest and last vertex in time order, which draws the same envelope.
+/// A window of millions of segments (a 100 MHz converter recorded for a
+/// second) then costs memory in proportion to the figure's width, not to
+/// the record; ordinary figures, with a few vertices per pixel, keep them
+/// all.
+struct Thinned {
+    t0: f64,
+    /// Columns per second.
+    per_s: f64,
+    column: Option<i64>,
+    pending: Vec<(f64, f64)>,
+    /// Whether the pending column was thinned already.
+    thinned: bool,
+    out: Vec<(f64, f64)>,
+}
+
+/// Vertices in one half-pixel column beyond which it is thinned.
+const THIN_ABOVE: usize = 32;
+
+impl Thinned {
+    fn new(t0: f64, span: f64, width_px: u32) -> Thinned {
+        Thinned {
+            t0,
+            per_s: 2.0 * f64::from(width_px.max(1)) / span,
+            column: None,
+            pending: vec![],
+            thinned: false,
+            out: vec![],
+        }
+    }
+
+    fn push(&mut self, p: (f64, f64)) {
+        let c = ((p.0 - self.t0) * self.per_s).floor() as i64;
+        if self.column != Some(c) {
+            self.flush();
+            self.column = Some(c);
+        }
+        self.pending.push(p);
+        if self.pending.len() > 2 * THIN_ABOVE {
+            self.reduce();
+        }
+    }
+
+    /// Keeps the first, lowest, highest and last pending vertex.
+    fn reduce(&mut self) {
+        let v = &self.pending;
+        let (mut lo, mut hi) = (0, 0);
+        for (i, p) in v.iter().enumerate() {
+            if p.1 < v[lo].1 {
+                lo = i;
+            }
+            if p.1 > v[hi].1 {
+                hi = i;
+            }
+        }
+        let mut keep = [0, lo, hi, v.len() - 1];
+        keep.sort_unstable();
+        let kept: Vec<(f64, f64)> = keep
+            .iter()
+            .enumerate()
+            .filter(|&(j, &i)| j == 0 || keep[j - 1] != i)
+            .map(|(_, &i)| v[i])
+            .collect();
+        self.pending = kept;
+        self.thinned = true;
+    }
+
+    fn flush(&mut self) {
+        if self.thinned || self.pending.len() > THIN_ABOVE {
+            self.reduce();
+        }
+        self.thinned = false;
+        self.out.append(&mut self.pending);
+    }
+
+    fn finish(mut self) -> Vec<(f64, f64)> {
+        self.flush();
+        self.out
+    }
 }
 
 /// The ripple of one period, when the output repeats: measured over the

@@ -192,3 +192,47 @@ fn issue_13_zoom_columns_and_the_stop_instant() {
     assert!(svg.contains("stopped: example"));
     assert!(svg.contains("#D01C1C"));
 }
+
+/// Issue 19: a window of thousands of periods (here 5 ms of the 200 kHz
+/// buck, 2,000 switching events, about fifty per column of a 20 px trace)
+/// keeps a trace whose size follows the figure's width, not the record,
+/// and whose envelope is the record's: its lowest and highest vertex are
+/// the measured minimum and maximum of the inductor current (common
+/// practice: min/max decimation draws the same envelope).
+#[test]
+fn issue_19_a_long_window_is_thinned_to_the_figure_width_keeping_its_envelope() {
+    let run = simulate(&buck(), 5e-3, Options::default()).unwrap();
+    let w = &run.waveform;
+    let (t0, t1) = w.span().unwrap();
+    let all = output_trace(w, "L1.current", t0, t1, 2000).unwrap();
+    let trace = output_trace(w, "L1.current", t0, t1, 20).unwrap();
+    // At most four vertices per half-pixel column, where 2,000 px keep
+    // about four per period.
+    assert!(all.points.len() > 8000, "{}", all.points.len());
+    assert!(trace.points.len() <= 4 * 2 * 21, "{}", trace.points.len());
+    assert!(trace.points.len() > 40, "{}", trace.points.len());
+    let id = w.output("L1.current").unwrap();
+    let m = measure(w, id, t0, t1).unwrap();
+    let lo = trace
+        .points
+        .iter()
+        .map(|p| p.1)
+        .fold(f64::INFINITY, f64::min);
+    let hi = trace
+        .points
+        .iter()
+        .map(|p| p.1)
+        .fold(f64::NEG_INFINITY, f64::max);
+    assert!(
+        (lo - m.min).abs() <= 1e-9 * m.max.abs(),
+        "{lo} vs {}",
+        m.min
+    );
+    assert!(
+        (hi - m.max).abs() <= 1e-9 * m.max.abs(),
+        "{hi} vs {}",
+        m.max
+    );
+    // Time order is kept.
+    assert!(trace.points.windows(2).all(|p| p[0].0 <= p[1].0));
+}

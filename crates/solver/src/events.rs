@@ -570,14 +570,31 @@ impl EventLog {
     pub fn to_json(&self) -> String {
         serde_json::to_string_pretty(self).expect("an event log always serializes") + "\n"
     }
+
+    /// Writes the same text as [`EventLog::to_json`] to `w` as it goes,
+    /// without holding it (or a list of the events) in memory: a log of
+    /// millions of events costs only the writer's buffer.
+    pub fn write_json<W: std::io::Write>(&self, mut w: W) -> std::io::Result<()> {
+        serde_json::to_writer_pretty(&mut w, self)?;
+        w.write_all(b"\n")?;
+        w.flush()
+    }
+}
+
+/// The events of a log as a JSON array, serialized one at a time.
+struct EventSeq<'a>(&'a EventLog);
+
+impl Serialize for EventSeq<'_> {
+    fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        s.collect_seq(self.0.iter())
+    }
 }
 
 impl Serialize for EventLog {
     fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
-        let events: Vec<EventRef<'_>> = self.iter().collect();
         let mut st = s.serialize_struct("EventLog", 2)?;
         st.serialize_field("state_names", &self.state_names)?;
-        st.serialize_field("events", &events)?;
+        st.serialize_field("events", &EventSeq(self))?;
         st.end()
     }
 }
