@@ -733,16 +733,16 @@ pub(crate) fn matvec(m: &DMatrix<f64>, x: &[f64], y: &mut [f64]) {
     }
 }
 
-/// y = |M|·x (entrywise absolute values of M; x ≥ 0): where x bounds the
-/// magnitudes that went into each entry of a vector v, y bounds those
-/// that went into M·v. A derivative M·z that cancels to nearly zero keeps
-/// the rounding of its terms, up to ε times this bound, not times its own
+/// y = |M|·|x| (entrywise absolute values): the sizes of the terms each
+/// entry of M·x is summed from. A product that cancels to nearly zero
+/// keeps the rounding of its terms, up to ε times this, not times its own
 /// size.
 pub(crate) fn abs_matvec(m: &DMatrix<f64>, x: &[f64], y: &mut [f64]) {
     let n = m.nrows();
     let data = m.as_slice();
     y.fill(0.0);
     for (j, &xj) in x.iter().enumerate() {
+        let xj = xj.abs();
         if xj != 0.0 {
             for (yi, &mij) in y.iter_mut().zip(&data[j * n..(j + 1) * n]) {
                 *yi += mij.abs() * xj;

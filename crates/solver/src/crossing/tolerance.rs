@@ -87,9 +87,9 @@ impl Scales {
 
     /// The band of the k-th time derivative of a guard, whose floor
     /// scales with ρᵏ (`rate_k`, ρ the mode's rate bound). `magnitude`
-    /// bounds every term that went into the derivative, |row|·|M|ᵏ·|z|,
+    /// is the size of the terms of the last product, |row|·|M|·|Mᵏ⁻¹z|,
     /// not only the row's products with Mᵏz: a derivative that cancels
-    /// inside Mᵏz keeps the rounding of the larger terms there. (A
+    /// inside M·(Mᵏ⁻¹z) keeps the rounding of the larger terms there. (A
     /// 24-diode multiplier with capacitances ×1e12 and resistances
     /// ×1e-12 gave a turned-off diode a margin slope of −2.7e-4 V/s,
     /// 6e-13 of its terms of 4e8 V/s but 5e-5 of the row's products, and

@@ -123,10 +123,10 @@ pub(super) fn guards_hold_at_zero(mode: &Mode, z: &DVector<f64>, scales: Scales)
             undecided |= 1 << gi;
         }
     }
-    let mut buf = [[0.0f64; 16]; 4];
-    let [a, b, c, e] = &mut buf;
+    let mut buf = [[0.0f64; 16]; 3];
+    let [a, b, c] = &mut buf;
     let (mut d, mut next): (&mut [f64], &mut [f64]) = (&mut a[..n], &mut b[..n]);
-    let (dm, next_m): (&mut [f64], &mut [f64]) = (&mut c[..n], &mut e[..n]);
+    let dm = &mut c[..n];
     d.copy_from_slice(zs);
     let mut rate_k = 1.0;
     for _ in 1..4 {
@@ -135,10 +135,7 @@ pub(super) fn guards_hold_at_zero(mode: &Mode, z: &DVector<f64>, scales: Scales)
         }
         // The terms of this product, |M|·|d|: a derivative that cancels
         // inside M·d keeps their rounding.
-        for (m, v) in next_m.iter_mut().zip(d.iter()) {
-            *m = v.abs();
-        }
-        propagate::abs_matvec(&mode.m, next_m, dm);
+        propagate::abs_matvec(&mode.m, d, dm);
         propagate::matvec(&mode.m, d, next);
         std::mem::swap(&mut d, &mut next);
         rate_k *= mode.rate;
@@ -195,15 +192,14 @@ pub(super) fn violated_guards(
     // On the stack up to 16 entries of z: a circuit with transition models
     // gets here at every located clamp, and allocating cost more than the rest.
     let n = zs.len();
-    let (mut buf, mut heap) = ([[0.0f64; 16]; 4], vec![]);
-    let (d, next, dm, next_m): (&mut [f64], &mut [f64], &mut [f64], &mut [f64]) = match &mut buf {
-        [a, b, c, e] if n <= 16 => (&mut a[..n], &mut b[..n], &mut c[..n], &mut e[..n]),
+    let (mut buf, mut heap) = ([[0.0f64; 16]; 3], vec![]);
+    let (d, next, dm): (&mut [f64], &mut [f64], &mut [f64]) = match &mut buf {
+        [a, b, c] if n <= 16 => (&mut a[..n], &mut b[..n], &mut c[..n]),
         _ => {
-            heap.resize(4 * n, 0.0);
-            let (ab, ce) = heap.split_at_mut(2 * n);
-            let (a, b) = ab.split_at_mut(n);
-            let (c, e) = ce.split_at_mut(n);
-            (a, b, c, e)
+            heap.resize(3 * n, 0.0);
+            let (a, bc) = heap.split_at_mut(n);
+            let (b, c) = bc.split_at_mut(n);
+            (a, b, c)
         }
     };
     let (mut d, mut next) = (d, next);
@@ -215,10 +211,7 @@ pub(super) fn violated_guards(
         }
         // The terms of this product, |M|·|d|: a derivative that cancels
         // inside M·d keeps their rounding.
-        for (m, v) in next_m.iter_mut().zip(d.iter()) {
-            *m = v.abs();
-        }
-        propagate::abs_matvec(&mode.m, next_m, dm);
+        propagate::abs_matvec(&mode.m, d, dm);
         propagate::matvec(&mode.m, d, next);
         std::mem::swap(&mut d, &mut next);
         rate_k *= mode.rate;

@@ -51,7 +51,8 @@ const EXAMPLES: &[&str] = &[
 ///   terms of 4e8 V/s that cancel inside M·z; the band compared it with
 ///   the row's products with M·z (5 V/s), rejected every pattern and
 ///   reported a false short (Db2, Da2 across Cb2). Derivatives are now
-///   judged against |row|·|M|ᵏ·|z| (`Scales::derivative_zero`);
+///   judged against the terms of their last product, |row|·|M|·|Mᵏ⁻¹z|
+///   (`Scales::derivative_zero`);
 /// - at 16.86 µs ten diodes reach their forward voltage at one instant
 ///   by symmetry; the stiff root search put them 5e-19 s apart unscaled
 ///   and 2.8e-16 s (7e-13 of the interval) scaled, so six fired together
