@@ -57,29 +57,104 @@ pub(crate) fn thin_per_column(
         while end < points.len() && column(points[end].0) == col {
             end += 1;
         }
-        let group = &points[start..end];
-        let mut lowest = 0;
-        let mut highest = 0;
-        for (i, p) in group.iter().enumerate() {
-            if p.1 < group[lowest].1 {
-                lowest = i;
-            }
-            if p.1 > group[highest].1 {
-                highest = i;
-            }
-        }
-        let mut keep = [0, lowest, highest, group.len() - 1];
-        keep.sort_unstable();
-        let mut previous = None;
-        for k in keep {
-            if previous != Some(k) {
-                out.push(group[k]);
-                previous = Some(k);
-            }
-        }
+        keep_extremes(&points[start..end], &mut out);
         start = end;
     }
     out
+}
+
+/// Appends to `out` the first, lowest, highest and last vertex of a
+/// non-empty `group`, in their order, each once.
+fn keep_extremes(group: &[(f64, f64)], out: &mut Vec<(f64, f64)>) {
+    let mut lowest = 0;
+    let mut highest = 0;
+    for (i, p) in group.iter().enumerate() {
+        if p.1 < group[lowest].1 {
+            lowest = i;
+        }
+        if p.1 > group[highest].1 {
+            highest = i;
+        }
+    }
+    let mut keep = [0, lowest, highest, group.len() - 1];
+    keep.sort_unstable();
+    let mut previous = None;
+    for k in keep {
+        if previous != Some(k) {
+            out.push(group[k]);
+            previous = Some(k);
+        }
+    }
+}
+
+/// The vertices of a trace, thinned where more than [`THIN_ABOVE`] fall
+/// in one half-pixel column: such a column keeps its first, lowest,
+/// highest and last vertex in time order, which draws the same envelope.
+/// A window of millions of segments (a 100 MHz converter recorded for a
+/// second) then costs memory in proportion to the figure's width, not to
+/// the record; ordinary figures, with a few vertices per pixel, keep them
+/// all.
+pub(crate) struct Thinned {
+    t0: f64,
+    /// Columns per second.
+    per_s: f64,
+    column: Option<i64>,
+    pending: Vec<(f64, f64)>,
+    /// Whether the pending column was thinned already.
+    thinned: bool,
+    out: Vec<(f64, f64)>,
+}
+
+/// Vertices in one half-pixel column beyond which it is thinned.
+const THIN_ABOVE: usize = 32;
+
+impl Thinned {
+    /// For a trace from `t0` over `span` seconds drawn `width_px` wide.
+    pub(crate) fn new(t0: f64, span: f64, width_px: u32) -> Thinned {
+        Thinned {
+            t0,
+            per_s: 2.0 * f64::from(width_px.max(1)) / span,
+            column: None,
+            pending: vec![],
+            thinned: false,
+            out: vec![],
+        }
+    }
+
+    /// Adds the next vertex (times must not decrease).
+    pub(crate) fn push(&mut self, p: (f64, f64)) {
+        let c = ((p.0 - self.t0) * self.per_s).floor() as i64;
+        if self.column != Some(c) {
+            self.flush();
+            self.column = Some(c);
+        }
+        self.pending.push(p);
+        if self.pending.len() > 2 * THIN_ABOVE {
+            self.reduce();
+        }
+    }
+
+    /// Keeps the first, lowest, highest and last pending vertex.
+    fn reduce(&mut self) {
+        let mut kept = Vec::with_capacity(4);
+        keep_extremes(&self.pending, &mut kept);
+        self.pending = kept;
+        self.thinned = true;
+    }
+
+    fn flush(&mut self) {
+        if self.thinned || self.pending.len() > THIN_ABOVE {
+            self.reduce();
+        }
+        self.thinned = false;
+        self.out.append(&mut self.pending);
+    }
+
+    /// The thinned vertices, in time order.
+    pub(crate) fn finish(mut self) -> Vec<(f64, f64)> {
+        self.flush();
+        self.out
+    }
 }
 
 #[cfg(test)]

@@ -14,6 +14,7 @@ use fluxstep_solver::{EventKind, EventLog, Waveform};
 
 use crate::error::PlotError;
 use crate::model::{Annotation, Figure, Panel, Trace};
+use crate::reduce::Thinned;
 
 /// What a review figure shows.
 #[derive(Clone, Debug)]
@@ -132,89 +133,6 @@ pub fn output_trace(
     points.dedup();
     let (unit, quantity) = unit_of(name);
     Ok(Trace::new(name, unit, points).with_quantity(quantity))
-}
-
-/// The vertices of a trace, thinned where more than [`THIN_ABOVE`] fall
-/// in one half-pixel column: such a column keeps its first, lowest,
-/// highest and last vertex in time order, which draws the same envelope.
-/// A window of millions of segments (a 100 MHz converter recorded for a
-/// second) then costs memory in proportion to the figure's width, not to
-/// the record; ordinary figures, with a few vertices per pixel, keep them
-/// all.
-struct Thinned {
-    t0: f64,
-    /// Columns per second.
-    per_s: f64,
-    column: Option<i64>,
-    pending: Vec<(f64, f64)>,
-    /// Whether the pending column was thinned already.
-    thinned: bool,
-    out: Vec<(f64, f64)>,
-}
-
-/// Vertices in one half-pixel column beyond which it is thinned.
-const THIN_ABOVE: usize = 32;
-
-impl Thinned {
-    fn new(t0: f64, span: f64, width_px: u32) -> Thinned {
-        Thinned {
-            t0,
-            per_s: 2.0 * f64::from(width_px.max(1)) / span,
-            column: None,
-            pending: vec![],
-            thinned: false,
-            out: vec![],
-        }
-    }
-
-    fn push(&mut self, p: (f64, f64)) {
-        let c = ((p.0 - self.t0) * self.per_s).floor() as i64;
-        if self.column != Some(c) {
-            self.flush();
-            self.column = Some(c);
-        }
-        self.pending.push(p);
-        if self.pending.len() > 2 * THIN_ABOVE {
-            self.reduce();
-        }
-    }
-
-    /// Keeps the first, lowest, highest and last pending vertex.
-    fn reduce(&mut self) {
-        let v = &self.pending;
-        let (mut lo, mut hi) = (0, 0);
-        for (i, p) in v.iter().enumerate() {
-            if p.1 < v[lo].1 {
-                lo = i;
-            }
-            if p.1 > v[hi].1 {
-                hi = i;
-            }
-        }
-        let mut keep = [0, lo, hi, v.len() - 1];
-        keep.sort_unstable();
-        let kept: Vec<(f64, f64)> = keep
-            .iter()
-            .enumerate()
-            .filter(|&(j, &i)| j == 0 || keep[j - 1] != i)
-            .map(|(_, &i)| v[i])
-            .collect();
-        self.pending = kept;
-        self.thinned = true;
-    }
-
-    fn flush(&mut self) {
-        if self.thinned || self.pending.len() > THIN_ABOVE {
-            self.reduce();
-        }
-        self.thinned = false;
-        self.out.append(&mut self.pending);
-    }
-
-    fn finish(mut self) -> Vec<(f64, f64)> {
-        self.flush();
-        self.out
-    }
 }
 
 /// The ripple of one period, when the output repeats: measured over the
