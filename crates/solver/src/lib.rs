@@ -75,6 +75,7 @@
 mod compile;
 pub mod control;
 mod crossing;
+mod envelope;
 pub mod dynamics;
 mod error;
 mod events;

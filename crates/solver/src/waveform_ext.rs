@@ -4,6 +4,7 @@
 
 use nalgebra::{DMatrix, DVector};
 
+use crate::envelope::Envelope;
 use crate::propagate;
 use crate::waveform::{OutputId, Waveform};
 
@@ -175,15 +176,35 @@ impl Waveform {
         let nodes: Vec<f64> = (0..N)
             .map(|j| 0.5 * (1.0 - (std::f64::consts::PI * (j as f64 + 0.5) / N as f64).cos()))
             .collect();
-        let vander = DMatrix::from_fn(N, N, |j, k| nodes[j].powi(k as i32)).lu();
+        let vander = Factors::of(DMatrix::from_fn(N, N, |j, k| nodes[j].powi(k as i32)));
         let offset = a - s.t0;
         let width = b - a;
         let mut z = propagate::advance(&m.m, &m.weight, m.rate, &self.z0(i), offset);
+        // Where the energy envelope keeps the output within the rounding of
+        // its terms over the whole stretch (a ringing decayed below
+        // rounding, which the eigenvalues still count alive for up to
+        // e⁻⁶⁰ of its start), the stretch is one constant piece: its value
+        // at the start, exact to that rounding.
+        if let Some(env) = Envelope::of(&m.m, &m.weight) {
+            if let Some(dev) = env.deviation(&m.m, z.as_slice(), width) {
+                if env.flat(&dev, &row) {
+                    f(&Piece {
+                        t_start: a,
+                        t_end: b,
+                        delta: width,
+                        coef: &[propagate::dot_slices(&row, z.as_slice())],
+                    });
+                    return;
+                }
+            }
+        }
         // Per piece length: the output's row times e^{Mδσⱼ} at the nodes
         // (so each piece costs a dot product per node, not a product of
         // the matrix with the state), then e^{Mδ}.
         let mut cache: Vec<(u64, Vec<Vec<f64>>, DMatrix<f64>)> = vec![];
         let row_m = DMatrix::from_row_slice(1, row.len(), &row);
+        let mut c = DVector::zeros(N);
+        let mut next = z.clone();
         let mut tau = 0.0;
         // The caller checked the count (`pieces_needed`); the bound only
         // guarantees the end where τ + δ rounds to τ.
@@ -202,14 +223,15 @@ impl Waveform {
                 }
             };
             let (_, rows, step) = &cache[k];
-            let y = DVector::from_iterator(
-                N,
-                rows.iter()
-                    .map(|r| r.iter().zip(z.iter()).map(|(p, q)| p * q).sum::<f64>()),
-            );
-            let Some(c) = vander.solve(&y) else {
+            // The coefficients by the LU factors (backward stable: the
+            // monomial Vandermonde matrix of these nodes has a condition
+            // number near 1.6e9, so its inverse would not do), in place.
+            for (yj, r) in c.iter_mut().zip(rows) {
+                *yj = propagate::dot_slices(r, z.as_slice());
+            }
+            if !vander.solve(&mut c) {
                 return;
-            };
+            }
             f(&Piece {
                 t_start: a + tau,
                 t_end: if last { b } else { a + (tau + d) },
@@ -219,9 +241,66 @@ impl Waveform {
             if last {
                 break;
             }
-            z = step * &z;
+            propagate::matvec(step, z.as_slice(), next.as_mut_slice());
+            std::mem::swap(&mut z, &mut next);
             tau += d;
         }
+    }
+}
+
+/// LU factors with row pivoting (P·V = L·U, L unit lower, both in `lu`),
+/// solved by plain loops: the same substitutions as `nalgebra::LU::solve`
+/// (column by column, in the same order, so the same bits), without its
+/// generic column operations, which took most of a measurement over a
+/// long ringing.
+struct Factors {
+    lu: DMatrix<f64>,
+    perm: Vec<usize>,
+}
+
+impl Factors {
+    fn of(m: DMatrix<f64>) -> Factors {
+        let n = m.nrows();
+        let lu = m.lu();
+        let mut perm: Vec<usize> = (0..n).collect();
+        let mut idx = DVector::from_iterator(n, (0..n).map(|i| i as f64));
+        lu.p().permute_rows(&mut idx);
+        for (p, v) in perm.iter_mut().zip(idx.iter()) {
+            *p = *v as usize;
+        }
+        let (l, u) = (lu.l(), lu.u());
+        Factors {
+            lu: DMatrix::from_fn(n, n, |i, j| if i > j { l[(i, j)] } else { u[(i, j)] }),
+            perm,
+        }
+    }
+
+    /// Solves V·x = b in place; false where U has a zero on its diagonal.
+    fn solve(&self, b: &mut DVector<f64>) -> bool {
+        let n = self.perm.len();
+        let permuted: Vec<f64> = self.perm.iter().map(|&i| b[i]).collect();
+        b.as_mut_slice().copy_from_slice(&permuted);
+        let a = self.lu.as_slice();
+        let x = b.as_mut_slice();
+        for i in 0..n {
+            let xi = x[i];
+            let col = &a[i * n..(i + 1) * n];
+            for k in i + 1..n {
+                x[k] -= col[k] * xi;
+            }
+        }
+        for i in (0..n).rev() {
+            let col = &a[i * n..(i + 1) * n];
+            if col[i] == 0.0 {
+                return false;
+            }
+            x[i] /= col[i];
+            let xi = x[i];
+            for k in 0..i {
+                x[k] -= col[k] * xi;
+            }
+        }
+        true
     }
 }
 

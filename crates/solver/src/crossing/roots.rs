@@ -206,26 +206,53 @@ pub(crate) fn exact_root(f: impl Fn(f64) -> f64, lo: f64, hi: f64, fa: f64, fb: 
 
 /// Narrows a bracket `[lo, hi]` of a sign change of the derivative (sign of
 /// `d_lo` at `lo`) until the two ends are adjacent floats or the derivative
-/// vanishes; returns the final bracket. Bisection rather than Newton: it
-/// cannot leave the bracket, and 60 halvings of [0, 1] already reach the
-/// float spacing, so the extra evaluations cost nothing that matters.
-pub(crate) fn derivative_bracket(coef: &[f64], mut lo: f64, mut hi: f64, d_lo: f64) -> (f64, f64) {
-    for _ in 0..200 {
-        let mid = 0.5 * (lo + hi);
-        if mid <= lo || mid >= hi {
+/// vanishes; returns the final bracket. Illinois steps kept inside the
+/// bracket, with a bisection every fourth step and wherever a step would
+/// leave it, so it cannot leave the bracket and needs at most four times
+/// bisection's count; near a simple stationary point it takes about ten
+/// evaluations where bisection takes sixty. Where the computed derivative
+/// changes sign once near the point (the ordinary case), the final pair
+/// of adjacent floats is the one bisection finds.
+pub(crate) fn derivative_bracket(coef: &[f64], lo: f64, hi: f64, d_lo: f64) -> (f64, f64) {
+    // f > 0 on the side of `lo`.
+    let sign = if d_lo < 0.0 { -1.0 } else { 1.0 };
+    let f = |s: f64| sign * propagate::poly(coef, s).1;
+    let (mut a, mut b) = (lo, hi);
+    let (mut fa, mut fb) = (f(lo), f(hi));
+    let mut side = 0i8;
+    for i in 0..400 {
+        let m = if i % 4 == 3 || !(fa > 0.0 && fb < 0.0) {
+            0.5 * (a + b)
+        } else {
+            let x = a + (b - a) * fa / (fa - fb);
+            if x > a && x < b {
+                x
+            } else {
+                0.5 * (a + b)
+            }
+        };
+        if m <= a || m >= b {
             break;
         }
-        let d = propagate::poly(coef, mid).1;
-        if d == 0.0 {
-            return (mid, mid);
+        let fm = f(m);
+        if fm == 0.0 {
+            return (m, m);
         }
-        if (d < 0.0) == (d_lo < 0.0) {
-            lo = mid;
+        if fm > 0.0 {
+            (a, fa) = (m, fm);
+            if side == 1 {
+                fb *= 0.5;
+            }
+            side = 1;
         } else {
-            hi = mid;
+            (b, fb) = (m, fm);
+            if side == -1 {
+                fa *= 0.5;
+            }
+            side = -1;
         }
     }
-    (lo, hi)
+    (a, b)
 }
 
 #[cfg(test)]

@@ -6,6 +6,7 @@
 
 use super::modeset::ModeCache;
 use super::*;
+use crate::envelope::Envelope;
 use crate::propagate::{Spectrum, PHASE_LIMIT};
 
 impl Simulator {
@@ -57,6 +58,17 @@ impl Simulator {
             self.modes.caches[mi].spectrum = Some(sp);
         }
         self.modes.caches[mi].spectrum.clone().flatten()
+    }
+
+    /// The energy envelope (see `crate::envelope`) of the present mode,
+    /// `mode` (passed in: `locate` holds the list of modes), cached.
+    pub(super) fn envelope(&mut self, mode: &Mode) -> Option<Arc<Envelope>> {
+        let mi = self.mode as usize;
+        if self.modes.caches[mi].envelope.is_none() {
+            let env = Envelope::of(&mode.m, &mode.weight).map(Arc::new);
+            self.modes.caches[mi].envelope = Some(env);
+        }
+        self.modes.caches[mi].envelope.clone().flatten()
     }
 
     /// Before a stiff span of length `h`: stops the run where the mode

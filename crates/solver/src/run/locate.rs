@@ -44,6 +44,7 @@ use nalgebra::{DMatrix, DVector};
 use super::Simulator;
 use crate::crossing::roots::{exact_root, guard_root};
 use crate::crossing::{at_end, same_instant, Crossing, Scales};
+use crate::envelope::Envelope;
 use crate::mode::{Guard, GuardKind, Mode};
 use crate::propagate;
 use crate::propagate::{dot_slices, Spectrum};
@@ -260,7 +261,21 @@ impl Simulator {
         let mut za = self.z.as_slice().to_vec();
         let mut zb = vec![0.0; za.len()];
         let mut s = 0.0;
+        let envelope = self.envelope(mode);
+        let mut count = 0usize;
         loop {
+            // At sub-intervals 0, 1, 2, 4, …: the rest of the span needs no
+            // search where the energy envelope keeps every guard above its
+            // zero band (a ringing that decays without reaching it).
+            if count & count.wrapping_sub(1) == 0 {
+                if let Some(env) = &envelope {
+                    if clears(env, mode, guards, &za, h - s, scales) {
+                        self.stats.envelope_skips += 1;
+                        return None;
+                    }
+                }
+            }
+            count += 1;
             let d = sp.step_at(s);
             // d is ∞ once nothing is alive (never NaN: rates are finite).
             let last = s + d >= h || d.is_nan();
@@ -308,6 +323,18 @@ impl Simulator {
             std::mem::swap(&mut za, &mut zb);
         }
     }
+}
+
+/// Whether every guard in `guards` stays above its zero band over a span
+/// of length `span` from state `z`, by the energy envelope `env`.
+fn clears(env: &Envelope, mode: &Mode, guards: &[&Guard], z: &[f64], span: f64, scales: Scales) -> bool {
+    let Some(dev) = env.deviation(&mode.m, z, span) else {
+        return false;
+    };
+    guards.iter().all(|g| {
+        let (_, magnitude) = g.srow.dot_and_magnitude(z);
+        env.floor(&dev, &g.row) >= -0.5 * scales.guard_zero(&g.kind, magnitude)
+    })
 }
 
 /// Exact states e^{Mσ}·z at any σ of a stiff sub-interval, without a
@@ -424,21 +451,61 @@ fn stiff_root(
     if crosses {
         return Some(exact_root(value, 0.0, d, ga, gb));
     }
-    // A dip: the minimum where the derivative turns upward.
+    // A dip: the minimum where the derivative turns upward, by Illinois
+    // steps on g′ kept inside the bracket (bisection every fourth step).
+    // The minimum's place is needed to about √ε of the sub-interval only:
+    // there g″·Δ²/2 ≤ ρ²d²·ε/2 of the guard's terms (ρd ≤ 1/2), below
+    // rounding of g itself. Any point already below −tol is a crossing.
     let (mut a, mut b) = (0.0, d);
-    for _ in 0..200 {
-        let m = 0.5 * (a + b);
+    let (mut fa, mut fb) = (dot_slices(&g.drow, za), dot_slices(&g.drow, zb));
+    if !(fa < 0.0 && fb > 0.0) {
+        // The scaled and plain rows disagree on a sign within rounding:
+        // no interior minimum beyond the ends.
+        return None;
+    }
+    let width = d * f64::EPSILON.sqrt();
+    let mut side = 0i8;
+    let mut smin = 0.5 * d;
+    let mut gm = f64::INFINITY;
+    for i in 0..200 {
+        let m = if i % 4 == 3 {
+            0.5 * (a + b)
+        } else {
+            let x = a + (b - a) * fa / (fa - fb);
+            if x > a && x < b {
+                x
+            } else {
+                0.5 * (a + b)
+            }
+        };
         if m <= a || m >= b {
             break;
         }
-        if dot_slices(&g.drow, &at(m)) < 0.0 {
-            a = m;
+        let z = at(m);
+        let (gz, dz) = (dot_slices(&g.row, &z), dot_slices(&g.drow, &z));
+        if gz < gm {
+            (smin, gm) = (m, gz);
+        }
+        if gm < -tol {
+            break;
+        }
+        if dz < 0.0 {
+            (a, fa) = (m, dz);
+            if side == 1 {
+                fb *= 0.5;
+            }
+            side = 1;
         } else {
-            b = m;
+            (b, fb) = (m, dz);
+            if side == -1 {
+                fa *= 0.5;
+            }
+            side = -1;
+        }
+        if b - a <= width {
+            break;
         }
     }
-    let smin = 0.5 * (a + b);
-    let gm = value(smin);
     (gm < -tol).then(|| exact_root(value, 0.0, smin, ga, gm))
 }
 

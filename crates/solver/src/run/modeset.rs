@@ -93,6 +93,9 @@ pub(super) struct ModeCache {
     /// The mode's eigenvalues, computed at its first stiff span (`None`
     /// before; `Some(None)` where they cannot be trusted).
     pub(super) spectrum: Option<Option<std::sync::Arc<propagate::Spectrum>>>,
+    /// The mode's energy envelope (`crate::envelope`), computed at its
+    /// first stiff span that is searched (`Some(None)` where none applies).
+    pub(super) envelope: Option<Option<std::sync::Arc<crate::envelope::Envelope>>>,
     /// e^{Mδ} for the sub-interval lengths δ of stiff spans.
     pub(super) stiff_steps: Vec<Disc>,
     /// e^{Mδ·2ⁱ} for δ the Taylor step of the mode's rate, i = 0, 1, …:
@@ -131,6 +134,7 @@ impl Default for ModeCache {
             repeated_next: 0,
             polys: vec![],
             spectrum: None,
+            envelope: None,
             stiff_steps: vec![],
             ladder: vec![],
         }

@@ -32,6 +32,9 @@ pub struct Stats {
     /// Sub-intervals scanned for state events in stiff spans (their
     /// lengths grow as fast decaying modes die out, see `locate.rs`).
     pub stiff_substeps: usize,
+    /// Stiff spans, or their rests, left unscanned because the energy
+    /// envelope keeps every guard above its zero band (`envelope.rs`).
+    pub envelope_skips: usize,
     /// Intervals whose end-point checks could not rule a crossing out, so
     /// event location searched them (`locate.rs`).
     pub searched_intervals: usize,
