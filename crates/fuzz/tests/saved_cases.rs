@@ -28,18 +28,18 @@
 //!   panicked on a NaN; now that pattern has no multipliers and the run
 //!   ends with a diagnostic.
 //!
-//! Open, kept for reproduction and not replayed here (each runs for
-//! seconds, and the fix is still to come; `fluxstep-fuzz --case-seconds
-//! 100 --replay FILE` times one):
-//! - `open-slow-boost-1-picohenry.json`: the boost without its switch and
+//! - `slow-boost-1-picohenry.json`: the boost without its switch and
 //!   with L1 = 1 pH: 12 V through 1 pH and the diode into 22 µF ∥ 24 Ω
-//!   (Q ≈ 1e5 at 33 MHz). Whenever the output falls to the input, the
-//!   diode current rings down to zero every 30 ns for milliseconds, and
-//!   each dip is bisected on exact states to full precision (the stiff
-//!   search's `stiff_root`): 13 s for the 40 ms run, then seconds of
-//!   measurement over oscillatory stiff pieces.
-//! - `open-slow-inverter-1e100-ohm.json`: the three-phase inverter with
-//!   Rb = 1e100 Ω: 2.7 s alone, over 4 s once in the long run.
+//!   (Q ≈ 1e5 at 34 MHz). Once the output falls to the input the diode
+//!   current rings down towards zero every 30 ns for milliseconds: each
+//!   dip was bisected on exact states (13 s), then the measurement
+//!   interpolated the decayed ringing piece by piece (seconds). Now the
+//!   energy envelope clears the spans and the flat stretch is one piece;
+//!   the run reaches its stop.
+//! - `slow-inverter-1e100-ohm.json`: the three-phase inverter with Rb =
+//!   1e100 Ω, 2.7 s (over 4 s once in the long run) in the dip search's
+//!   matrix exponentials; the dips now take Illinois steps (0.6 s), and
+//!   the run ends with its diagnostic.
 
 use fluxstep_fuzz::{run_case, Limits};
 
@@ -70,6 +70,7 @@ fn issue_19_saved_slow_cases_end_with_a_refusal() {
         "slow-capacitance-2e-308.json",
         "slow-terahertz-source.json",
         "slow-grazing-diode.json",
+        "slow-inverter-1e100-ohm.json",
     ] {
         let o = run_case(&case(name), &Limits::default());
         assert!(o.valid && !o.ran, "{name}: {o:?}");
@@ -86,4 +87,10 @@ fn issue_19_a_capacitance_without_a_finite_reciprocal_is_refused() {
 fn issue_19_a_forward_voltage_of_f64_max_is_not_a_panic() {
     let o = run_case(&case("panic-forward-voltage-max.json"), &Limits::default());
     assert!(o.valid && !o.timed_out, "{o:?}");
+}
+
+#[test]
+fn issue_19_a_picohenry_ringing_runs_to_its_stop() {
+    let o = run_case(&case("slow-boost-1-picohenry.json"), &Limits::default());
+    assert!(o.valid && o.ran, "{o:?}");
 }

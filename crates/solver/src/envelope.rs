@@ -140,7 +140,6 @@ impl Envelope {
     /// A floor under r·z(τ) for every τ in the span `dev` was made for
     /// (`row`: r over all of z).
     pub(crate) fn floor(&self, dev: &Deviation, row: &[f64]) -> f64 {
-        let n = self.n;
         let mut at = 0.0;
         let mut terms = 0.0;
         for (r, x) in row.iter().zip(&dev.zeq) {
@@ -149,9 +148,9 @@ impl Envelope {
         }
         let mut weighted = 0.0;
         let mut shift = 0.0;
-        for i in 0..n {
-            weighted += (row[i] / self.w[i]).powi(2);
-            shift += (row[i] * dev.delta[i]).abs();
+        for ((r, w), d) in row.iter().zip(&self.w).zip(&dev.delta) {
+            weighted += (r / w).powi(2);
+            shift += (r * d).abs();
         }
         // Rounding of the products above: a few ulps of their terms.
         let rounding = 4.0 * (row.len() as f64) * f64::EPSILON * terms;

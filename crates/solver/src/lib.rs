@@ -75,8 +75,8 @@
 mod compile;
 pub mod control;
 mod crossing;
-mod envelope;
 pub mod dynamics;
+mod envelope;
 mod error;
 mod events;
 pub mod measure;

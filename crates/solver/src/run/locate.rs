@@ -327,7 +327,14 @@ impl Simulator {
 
 /// Whether every guard in `guards` stays above its zero band over a span
 /// of length `span` from state `z`, by the energy envelope `env`.
-fn clears(env: &Envelope, mode: &Mode, guards: &[&Guard], z: &[f64], span: f64, scales: Scales) -> bool {
+fn clears(
+    env: &Envelope,
+    mode: &Mode,
+    guards: &[&Guard],
+    z: &[f64],
+    span: f64,
+    scales: Scales,
+) -> bool {
     let Some(dev) = env.deviation(&mode.m, z, span) else {
         return false;
     };

@@ -12,7 +12,7 @@
 
 use fluxstep_netlist::{Circuit, Element};
 use fluxstep_solver::measure::measure;
-use fluxstep_solver::{simulate, Options, Side, Simulator, SolverError};
+use fluxstep_solver::{simulate, EventKind, Options, Side, Simulator, SolverError};
 
 use super::util::rel;
 
@@ -214,4 +214,57 @@ fn issue_19_sync_buck_with_a_vanishing_inductance_finishes_or_names_it() {
         }
     }
     assert!(sim.stats().stiff_substeps <= 100_000, "{:?}", sim.stats());
+}
+
+/// A boost without its switch and with a 1 pH inductor (a case the fuzz
+/// harness found taking 13 s of run and seconds of measurement): 12 V
+/// through 1 pH and an ideal diode into 22 µF ∥ 24 Ω, from rest, for 40
+/// ms. The first half-period of the LC charges the output to about twice
+/// the input and the diode turns off; the output then decays through the
+/// load (τ = RC = 528 µs) to the input after RC·ln 2 ≈ 366 µs, where the
+/// diode turns on for good: a ringing at 1/(2π√(LC)) ≈ 34 MHz with
+/// Q = R·√(C/L) ≈ 1.1e5 (its envelope decays with 2RC ≈ 1.06 ms), whose
+/// current dips towards zero every 30 ns without going below it, around
+/// V/R = 0.5 A (resonant charging, the RC discharge and the parallel
+/// RLC's Q: common practice). Every sub-interval of the scan used to
+/// search such a dip; the energy envelope (`envelope.rs`) now clears the
+/// rest of each span at once.
+#[test]
+fn issue_19_a_picohenry_ringing_that_never_crosses_is_not_scanned_period_by_period() {
+    let c = Circuit::builder()
+        .voltage_source("Vin", "in", "gnd", 12.0)
+        .inductor("L1", "in", "sw", 1e-12)
+        .diode("D1", "sw", "out")
+        .capacitor("C1", "out", "gnd", 22e-6)
+        .resistor("Rload", "out", "gnd", 24.0)
+        .build()
+        .unwrap();
+    let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
+    sim.advance_to(40e-3).expect("runs");
+    let stats = sim.stats();
+    let run = sim.finish();
+    let kinds: Vec<_> = run.events.iter().map(|e| (e.kind, e.time)).collect();
+    // (The diode conducts from t = 0, the initial pattern, not an event.)
+    assert_eq!(kinds.len(), 2, "{kinds:?}");
+    assert_eq!(kinds[0].0, EventKind::DiodeOff);
+    assert_eq!(kinds[1].0, EventKind::DiodeOn);
+    // Off after the half-period π·√(LC) ≈ 14.73 ns (the load shifts it
+    // by about 1/Q); on again near RC·ln 2 (the output starts a little
+    // below 24 V after the lossy half-period).
+    let half = std::f64::consts::PI * (1e-12f64 * 22e-6).sqrt();
+    assert!(rel(kinds[0].1, half) < 1e-3, "{kinds:?}");
+    let rc_ln2 = 24.0 * 22e-6 * 2f64.ln();
+    assert!(rel(kinds[1].1, rc_ln2) < 1e-3, "{kinds:?}");
+    // 40 ms of a 33 MHz ringing is 1.3 million periods, about 17 million
+    // sub-intervals of the scan; the envelope clears the spans instead.
+    assert!(stats.envelope_skips >= 1, "{stats:?}");
+    assert!(stats.stiff_substeps <= 10_000, "{stats:?}");
+    // After 40 ms the ringing has died (e^{−37} of its start): 0.5 A and
+    // the output at the input (Ohm's law), to 1e-9.
+    let w = &run.waveform;
+    let i = w.output("L1.current").unwrap();
+    let m = measure(w, i, 39.9e-3, 40e-3).unwrap();
+    assert!(rel(m.min, 0.5) < 1e-9 && rel(m.max, 0.5) < 1e-9, "{m:?}");
+    let out = w.output("out").unwrap();
+    assert!(rel(w.value(out, 40e-3).unwrap(), 12.0) < 1e-9);
 }
