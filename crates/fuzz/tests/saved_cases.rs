@@ -40,6 +40,14 @@
 //!   1e100 Ω, 2.7 s (over 4 s once in the long run) in the dip search's
 //!   matrix exponentials; the dips now take Illinois steps (0.6 s), and
 //!   the run ends with its diagnostic.
+//! - `slow-dcm-buck-1e-300-hertz-gate.json`: the DCM buck with a gate of
+//!   1e-300 Hz and a stop time of f64::MAX, run in slices of 2.8e306 s:
+//!   1.65 s alone, over the limit once in the long run. The energy
+//!   envelope's growth factor over such a slice was e^∞ (a rounding
+//!   margin of 1e-12 /s on the growth rate), so every slice was scanned
+//!   and measured piece by piece while the ringing died; the growth is
+//!   now bounded only until every live component has died
+//!   (`Spectrum::settled_after`).
 
 use fluxstep_fuzz::{run_case, Limits};
 
@@ -71,6 +79,7 @@ fn issue_19_saved_slow_cases_end_with_a_refusal() {
         "slow-terahertz-source.json",
         "slow-grazing-diode.json",
         "slow-inverter-1e100-ohm.json",
+        "slow-dcm-buck-1e-300-hertz-gate.json",
     ] {
         let o = run_case(&case(name), &Limits::default());
         assert!(o.valid && !o.ran, "{name}: {o:?}");

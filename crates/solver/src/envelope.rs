@@ -95,7 +95,10 @@ impl Envelope {
         })
     }
 
-    /// The deviation of state `z` over a span of length `h`; `None` where
+    /// The deviation of state `z` over a span of length `h` (the growth
+    /// factor e^{κ⁺h/2} is taken over `h`; callers pass the span or, where
+    /// the eigenvalues say every live component dies sooner,
+    /// `propagate::Spectrum::settled_after`); `None` where
     /// the inputs are not constant over it (`m`'s rows past the circuit
     /// states give z′ ≠ 0 there) or the numbers are not finite.
     pub(crate) fn deviation(&self, m: &DMatrix<f64>, z: &[f64], h: f64) -> Option<Deviation> {

@@ -93,6 +93,27 @@ impl Spectrum {
         })
     }
 
+    /// How far into a span every eigenvalue of non-zero size has died
+    /// (−Re λ·τ ≥ [`DEAD`]): `DEAD` over the slowest decay among them; ∞
+    /// where one of them does not decay, 0 where there is none. Beyond it
+    /// the state's deviation from its equilibrium is below rounding of
+    /// what it was at the start, by the rule the scan of a stiff span
+    /// already steps by, so a bound on its growth need only cover this
+    /// long (`crate::envelope`).
+    pub(crate) fn settled_after(&self) -> f64 {
+        let slowest = self
+            .eig
+            .iter()
+            .filter(|e| e.1 > 0.0)
+            .map(|e| e.0)
+            .fold(f64::INFINITY, f64::min);
+        if slowest > 0.0 {
+            DEAD / slowest
+        } else {
+            f64::INFINITY
+        }
+    }
+
     /// max |λ| over the eigenvalues still alive τ into a span.
     pub(crate) fn alive_rate(&self, tau: f64) -> f64 {
         let k = self.eig.partition_point(|e| e.0 * tau >= DEAD);

@@ -186,7 +186,7 @@ impl Waveform {
         // e⁻⁶⁰ of its start), the stretch is one constant piece: its value
         // at the start, exact to that rounding.
         if let Some(env) = Envelope::of(&m.m, &m.weight) {
-            if let Some(dev) = env.deviation(&m.m, z.as_slice(), width) {
+            if let Some(dev) = env.deviation(&m.m, z.as_slice(), width.min(sp.settled_after())) {
                 if env.flat(&dev, &row) {
                     f(&Piece {
                         t_start: a,

@@ -34,7 +34,13 @@
 //! of its terms (64·ε·Σ|drow·z|, what dead fast components leave) counts
 //! as zero. A crossing is refined on exact states e^{Mσ}z (Illinois steps
 //! kept inside the bracket, bisection where they stall) to the first
-//! representable point past it, as `root_in` does on polynomials. Where
+//! representable point past it, as `root_in` does on polynomials; a dip's
+//! minimum is found by Illinois steps on g′ to √ε of its sub-interval.
+//! Before the scan and at its sub-intervals 1, 2, 4, …, the energy
+//! envelope (`crate::envelope`) may clear the rest of the span at once: a
+//! floor under every guard over all of it, from the stored energy of the
+//! deviation from the mode's equilibrium (a slowly decaying ringing whose
+//! dips never reach zero needs no scan of its periods). Where
 //! the eigenvalues cannot be trusted (the Schur iteration fails, a value is
 //! not finite, their sum is not the trace, or a fast growing mode) the
 //! rule above is kept.
@@ -269,7 +275,12 @@ impl Simulator {
             // zero band (a ringing that decays without reaching it).
             if count & count.wrapping_sub(1) == 0 {
                 if let Some(env) = &envelope {
-                    if clears(env, mode, guards, &za, h - s, scales) {
+                    // The deviation's growth need only be bounded until
+                    // every live component has died (a span of 1e306 s
+                    // would otherwise turn the rounding margin of the
+                    // growth rate into an infinite factor).
+                    let span = (h - s).min(sp.settled_after());
+                    if clears(env, mode, guards, &za, span, scales) {
                         self.stats.envelope_skips += 1;
                         return None;
                     }
