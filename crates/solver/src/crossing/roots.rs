@@ -160,6 +160,25 @@ pub(crate) fn stationary(c: &[f64]) -> f64 {
     0.5 * (a + b)
 }
 
+/// The next trial point of an Illinois search on the bracket [a, b] whose
+/// ends have the values `fa` and `fb`: the secant point, or the midpoint
+/// on every fourth step (`i` % 4 = 3), where the two values do not have
+/// strictly opposite signs, and where the secant point is not inside the
+/// open bracket. (The crossing search, the stationary points of
+/// measurements and the stiff dip search all step by it.)
+pub(crate) fn illinois_point(i: usize, (a, b): (f64, f64), (fa, fb): (f64, f64)) -> f64 {
+    let opposite = (fa > 0.0 && fb < 0.0) || (fa < 0.0 && fb > 0.0);
+    if i % 4 == 3 || !opposite {
+        return 0.5 * (a + b);
+    }
+    let x = a + (b - a) * fa / (fa - fb);
+    if x > a && x < b {
+        x
+    } else {
+        0.5 * (a + b)
+    }
+}
+
 /// The first representable point past the zero of `f` in [lo, hi], where
 /// f(lo) = `fa` ≥ 0 > f(hi) = `fb` (`lo` itself if `fa` < 0): Illinois
 /// steps kept inside the bracket, bisection where they stall, until the
@@ -171,16 +190,7 @@ pub(crate) fn exact_root(f: impl Fn(f64) -> f64, lo: f64, hi: f64, fa: f64, fb: 
     let (mut a, mut b, mut fa, mut fb) = (lo, hi, fa, fb);
     let mut side = 0i8;
     for i in 0..400 {
-        let m = if i % 4 == 3 || fa - fb <= 0.0 {
-            0.5 * (a + b)
-        } else {
-            let x = a + (b - a) * fa / (fa - fb);
-            if x > a && x < b {
-                x
-            } else {
-                0.5 * (a + b)
-            }
-        };
+        let m = illinois_point(i, (a, b), (fa, fb));
         if m <= a || m >= b {
             break;
         }
@@ -221,16 +231,7 @@ pub(crate) fn derivative_bracket(coef: &[f64], lo: f64, hi: f64, d_lo: f64) -> (
     let (mut fa, mut fb) = (f(lo), f(hi));
     let mut side = 0i8;
     for i in 0..400 {
-        let m = if i % 4 == 3 || !(fa > 0.0 && fb < 0.0) {
-            0.5 * (a + b)
-        } else {
-            let x = a + (b - a) * fa / (fa - fb);
-            if x > a && x < b {
-                x
-            } else {
-                0.5 * (a + b)
-            }
-        };
+        let m = illinois_point(i, (a, b), (fa, fb));
         if m <= a || m >= b {
             break;
         }

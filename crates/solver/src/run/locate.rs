@@ -48,7 +48,7 @@
 use nalgebra::{DMatrix, DVector};
 
 use super::Simulator;
-use crate::crossing::roots::{exact_root, guard_root};
+use crate::crossing::roots::{exact_root, guard_root, illinois_point};
 use crate::crossing::{at_end, same_instant, Crossing, Scales};
 use crate::envelope::Envelope;
 use crate::mode::{Guard, GuardKind, Mode};
@@ -486,16 +486,7 @@ fn stiff_root(
     let mut smin = 0.5 * d;
     let mut gm = f64::INFINITY;
     for i in 0..200 {
-        let m = if i % 4 == 3 {
-            0.5 * (a + b)
-        } else {
-            let x = a + (b - a) * fa / (fa - fb);
-            if x > a && x < b {
-                x
-            } else {
-                0.5 * (a + b)
-            }
-        };
+        let m = illinois_point(i, (a, b), (fa, fb));
         if m <= a || m >= b {
             break;
         }
