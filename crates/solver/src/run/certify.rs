@@ -1020,33 +1020,56 @@ fn outer_add_columns(
     z: &[f64],
     (d, second): (f64, bool),
 ) {
-    let d2 = d * d;
-    let mut k = 0;
-    for (j, &zj) in z.iter().enumerate() {
-        let zs = &z[..=j];
-        let a = &mut acc[k..k + j + 1];
-        if d == 0.0 {
-            for (a, &zi) in a.iter_mut().zip(zs) {
+    // The branch on Δ outside the loop over columns, and the packed
+    // triangle walked as consecutive column slices (`split_at_mut`): no
+    // bounds to check per column. Same products and sums as before.
+    let n = z.len();
+    let len = n * (n + 1) / 2;
+    if d == 0.0 {
+        let mut rest = &mut acc[..len];
+        for (j, &zj) in z.iter().enumerate() {
+            let (a, tail) = rest.split_at_mut(j + 1);
+            rest = tail;
+            for (a, &zi) in a.iter_mut().zip(&z[..=j]) {
                 *a += zi * zj;
             }
-        } else if !second {
-            let a1 = &mut acc1[k..k + j + 1];
-            for ((a, a1), &zi) in a.iter_mut().zip(a1.iter_mut()).zip(zs) {
+        }
+    } else if !second {
+        let (mut rest, mut rest1) = (&mut acc[..len], &mut acc1[..len]);
+        for (j, &zj) in z.iter().enumerate() {
+            let (a, tail) = rest.split_at_mut(j + 1);
+            rest = tail;
+            let (a1, tail1) = rest1.split_at_mut(j + 1);
+            rest1 = tail1;
+            for ((a, a1), &zi) in a.iter_mut().zip(a1.iter_mut()).zip(&z[..=j]) {
                 let p = zi * zj;
                 *a += p;
                 *a1 += d * p;
             }
-        } else {
-            let a1 = &mut acc1[k..k + j + 1];
-            let a2 = &mut acc2[k..k + j + 1];
-            for (((a, a1), a2), &zi) in a.iter_mut().zip(a1.iter_mut()).zip(a2.iter_mut()).zip(zs) {
+        }
+    } else {
+        let d2 = d * d;
+        let (mut rest, mut rest1, mut rest2) =
+            (&mut acc[..len], &mut acc1[..len], &mut acc2[..len]);
+        for (j, &zj) in z.iter().enumerate() {
+            let (a, tail) = rest.split_at_mut(j + 1);
+            rest = tail;
+            let (a1, tail1) = rest1.split_at_mut(j + 1);
+            rest1 = tail1;
+            let (a2, tail2) = rest2.split_at_mut(j + 1);
+            rest2 = tail2;
+            for (((a, a1), a2), &zi) in a
+                .iter_mut()
+                .zip(a1.iter_mut())
+                .zip(a2.iter_mut())
+                .zip(&z[..=j])
+            {
                 let p = zi * zj;
                 *a += p;
                 *a1 += d * p;
                 *a2 += d2 * p;
             }
         }
-        k += j + 1;
     }
 }
 
