@@ -236,3 +236,42 @@ fn issue_19_a_long_window_is_thinned_to_the_figure_width_keeping_its_envelope() 
     // Time order is kept.
     assert!(trace.points.windows(2).all(|p| p[0].0 <= p[1].0));
 }
+
+/// An interleaved buck of twelve equal phases at D = 3/12 cancels its
+/// ripple: the current into the output capacitor is zero (common
+/// practice: at D = k/N the phase ripples sum to a constant). What the
+/// solver leaves there is rounding noise, which the numbers show as 0 A;
+/// the figure draws the same zero, not a wiggle of 1e-14 A on an axis
+/// that can only read 0, while the inductor currents keep their ripple.
+#[test]
+fn a_trace_of_rounding_noise_is_drawn_as_the_zero_its_numbers_show() {
+    let path = concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/../../examples/circuits/interleaved_buck_12.json"
+    );
+    let c = Circuit::from_file(path).unwrap();
+    let run = simulate(&c, 40e-6, Options::default()).unwrap();
+    let w = &run.waveform;
+    let (t0, t1) = (32e-6, 40e-6);
+    let raw = output_trace(w, "Cout.current", t0, t1, 1400).unwrap();
+    let largest = raw.points.iter().map(|p| p.1.abs()).fold(0.0, f64::max);
+    // The raw vertices are noise: not all zero, but far below an ampere.
+    assert!(largest > 0.0 && largest < 1e-9, "{largest}");
+    let opts = ReviewOptions {
+        outputs: vec!["L1.current".into(), "Cout.current".into()],
+        window: Some((t0, t1)),
+        ..ReviewOptions::default()
+    };
+    let fig = review_figure("interleaved", w, Some(&run.events), &opts).unwrap();
+    let drawn = &fig.panels[1].traces[0].points;
+    assert!(!drawn.is_empty());
+    assert!(drawn.iter().all(|p| p.1 == 0.0));
+    // The inductor's ripple is drawn as it is.
+    let l1 = &fig.panels[0].traces[0].points;
+    let (lo, hi) = l1
+        .iter()
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), p| {
+            (a.min(p.1), b.max(p.1))
+        });
+    assert!(hi - lo > 1.0, "{lo} … {hi}");
+}

@@ -311,3 +311,35 @@ fn flat_and_single_instant_traces_render() {
         switch_node(1, PERIOD, DUTY),
     );
 }
+
+/// Seven current panels in the default size are about 60 px high, less
+/// than the rotated "current (A)" is long: their value axes read "A", so
+/// that the titles stay beside their own panels; one tall panel keeps the
+/// whole title (common practice: an axis title never runs past its axis).
+#[test]
+fn a_value_axis_title_longer_than_its_panel_is_shortened_to_its_unit() {
+    let mut fig = Figure::new("seven");
+    for k in 0..7 {
+        fig = fig.with_panel(Panel::new(format!("L{k}.current")).with_trace(Trace::new(
+            "current",
+            "A",
+            vec![(0.0, 8.0), (1e-6, 12.0), (4e-6, 8.0)],
+        )));
+    }
+    let labels: Vec<String> = texts(&parse(&render_svg(&fig).unwrap()))
+        .into_iter()
+        .map(|t| t.0)
+        .collect();
+    assert!(!labels.iter().any(|l| l == "current (A)"), "{labels:?}");
+    assert_eq!(labels.iter().filter(|l| *l == "A").count(), 7, "{labels:?}");
+    let one = Figure::new("one").with_panel(Panel::new("L1.current").with_trace(Trace::new(
+        "current",
+        "A",
+        vec![(0.0, 8.0), (1e-6, 12.0), (4e-6, 8.0)],
+    )));
+    let labels: Vec<String> = texts(&parse(&render_svg(&one).unwrap()))
+        .into_iter()
+        .map(|t| t.0)
+        .collect();
+    assert!(labels.iter().any(|l| l == "current (A)"), "{labels:?}");
+}

@@ -90,10 +90,13 @@ pub(super) fn y_axis(p: &PanelLayout<'_>, plot_h: f64, name: &str) -> Result<YAx
     } else {
         clean(quantity)
     };
-    let title = match (unit.is_empty(), prefix.is_empty()) {
-        (true, true) => quantity,
-        (true, false) => format!("{quantity} ({prefix})"),
-        (false, _) => format!("{quantity} ({prefix}{})", clean(unit)),
+    let (title, short) = match (unit.is_empty(), prefix.is_empty()) {
+        (true, true) => (quantity.clone(), quantity),
+        (true, false) => (format!("{quantity} ({prefix})"), prefix.to_string()),
+        (false, _) => (
+            format!("{quantity} ({prefix}{})", clean(unit)),
+            format!("{prefix}{}", clean(unit)),
+        ),
     };
     Ok(YAxis {
         low: y_low,
@@ -101,6 +104,7 @@ pub(super) fn y_axis(p: &PanelLayout<'_>, plot_h: f64, name: &str) -> Result<YAx
         ticks,
         labels,
         title,
+        short,
     })
 }
 

@@ -318,8 +318,17 @@ impl<'a> Layout<'a> {
                 tick_style.clone(),
             ))?;
         }
+        // Rotated, the title runs along the plot's height: where it is
+        // longer (seven panels in the default size), only its unit, so
+        // that it stays beside its own panel instead of running into the
+        // panel titles above and below.
+        let title = if text_width(&p.y.title, AXIS_PX) <= bottom - top {
+            p.y.title.clone()
+        } else {
+            p.y.short.clone()
+        };
         root.draw(&Text::new(
-            p.y.title.clone(),
+            title,
             (px(MARGIN + 0.6 * AXIS_PX), px(0.5 * (top + bottom))),
             text_style(AXIS_PX, false, &SOFT_INK, HPos::Center, VPos::Center)
                 .transform(FontTransform::Rotate270),

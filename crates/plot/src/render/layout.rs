@@ -119,6 +119,7 @@ impl<'a> PanelLayout<'a> {
                 ticks: nice_ticks(0.0, 1.0, 2),
                 labels: Vec::new(),
                 title: String::new(),
+                short: String::new(),
             },
         }
     }

@@ -45,6 +45,9 @@ pub(super) struct YAxis {
     pub(super) ticks: Ticks,
     pub(super) labels: Vec<String>,
     pub(super) title: String,
+    /// The title without the quantity's name (`mA`, `V`), drawn where the
+    /// whole title is longer than the plot is high.
+    pub(super) short: String,
 }
 
 pub(super) struct PanelLayout<'a> {
