@@ -194,17 +194,17 @@ pub fn review_figure(
     let shown = without_rounding_noise(&measured);
     for name in &opts.outputs {
         let mut trace = output_trace(w, name, t0, t1, opts.size.0)?;
+        // This output's numbers as shown (rounding noise as zero).
+        let key = w.output(name).ok();
+        let m = shown
+            .iter()
+            .find(|m| key.is_some() && w.output(&m.output).ok() == key);
         // A trace whose every number is rounding noise (its minimum and
         // maximum both shown as zero) is drawn as that zero: the raw
         // vertices, 1e-15 of the other currents (the capacitor of an
         // interleaved buck at D = k/N), filled the panel with a wiggle on
         // an axis that could only read 0.
-        let key = w.output(name).ok();
-        let noise = shown
-            .iter()
-            .find(|m| key.is_some() && w.output(&m.output).ok() == key)
-            .is_some_and(|m| m.min == 0.0 && m.max == 0.0);
-        if noise {
+        if m.is_some_and(|m| m.min == 0.0 && m.max == 0.0) {
             for p in &mut trace.points {
                 p.1 = 0.0;
             }
@@ -212,10 +212,6 @@ pub fn review_figure(
         let mut panel = Panel::new(name.as_str());
         let is_current = unit_of(name).0 == "A";
         if opts.ripple && is_current && !trace.points.is_empty() {
-            let key = w.output(name).ok();
-            let m = shown
-                .iter()
-                .find(|m| w.output(&m.output).ok() == key && key.is_some());
             let ripple = if inductor_currents.contains(&name.as_str()) {
                 period.and_then(|p| periodic_ripple(w, name, t0.max(a), t1.min(b), p))
             } else {

@@ -318,28 +318,23 @@ fn flat_and_single_instant_traces_render() {
 /// whole title (common practice: an axis title never runs past its axis).
 #[test]
 fn a_value_axis_title_longer_than_its_panel_is_shortened_to_its_unit() {
-    let mut fig = Figure::new("seven");
-    for k in 0..7 {
-        fig = fig.with_panel(Panel::new(format!("L{k}.current")).with_trace(Trace::new(
-            "current",
-            "A",
-            vec![(0.0, 8.0), (1e-6, 12.0), (4e-6, 8.0)],
-        )));
-    }
-    let labels: Vec<String> = texts(&parse(&render_svg(&fig).unwrap()))
-        .into_iter()
-        .map(|t| t.0)
-        .collect();
-    assert!(!labels.iter().any(|l| l == "current (A)"), "{labels:?}");
-    assert_eq!(labels.iter().filter(|l| *l == "A").count(), 7, "{labels:?}");
-    let one = Figure::new("one").with_panel(Panel::new("L1.current").with_trace(Trace::new(
-        "current",
-        "A",
-        vec![(0.0, 8.0), (1e-6, 12.0), (4e-6, 8.0)],
-    )));
-    let labels: Vec<String> = texts(&parse(&render_svg(&one).unwrap()))
-        .into_iter()
-        .map(|t| t.0)
-        .collect();
-    assert!(labels.iter().any(|l| l == "current (A)"), "{labels:?}");
+    // The texts of a figure of `n` inductor-current panels.
+    let labels = |n: usize| -> Vec<String> {
+        let fig = (0..n).fold(Figure::new("currents"), |fig, k| {
+            fig.with_panel(Panel::new(format!("L{k}.current")).with_trace(Trace::new(
+                "current",
+                "A",
+                vec![(0.0, 8.0), (1e-6, 12.0), (4e-6, 8.0)],
+            )))
+        });
+        texts(&parse(&render_svg(&fig).unwrap()))
+            .into_iter()
+            .map(|t| t.0)
+            .collect()
+    };
+    let seven = labels(7);
+    assert!(!seven.iter().any(|l| l == "current (A)"), "{seven:?}");
+    assert_eq!(seven.iter().filter(|l| *l == "A").count(), 7, "{seven:?}");
+    let one = labels(1);
+    assert!(one.iter().any(|l| l == "current (A)"), "{one:?}");
 }
