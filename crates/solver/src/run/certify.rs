@@ -1582,8 +1582,8 @@ mod tests {
                     })
                     .collect();
                 g.accumulate(&z, 0.0, false, norm);
-                for f in 0..FORMS {
-                    want[f] += quadratic(&g.g[f], &z);
+                for (w, gf) in want.iter_mut().zip(&g.g) {
+                    *w += quadratic(gf, &z);
                 }
             }
             let got = g.flush();
