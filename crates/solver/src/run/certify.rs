@@ -1619,10 +1619,10 @@ mod tests {
         g.accumulate(&z, near, false, norm);
         assert!(g.acc1.iter().all(|v| *v == 0.0), "no first-order sum");
         let got = g.flush();
-        for f in 0..FORMS {
-            let want = quadratic(&fresh.g[f], &z);
+        for (f, (got, fresh)) in got.iter().zip(&fresh.g).enumerate() {
+            let want = quadratic(fresh, &z);
             assert!(
-                (got[f] - want).abs() <= 1e-14 * want.abs().max(1e-300),
+                (got - want).abs() <= 1e-14 * want.abs().max(1e-300),
                 "form {f}"
             );
         }
