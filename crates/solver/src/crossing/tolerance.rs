@@ -64,16 +64,17 @@ impl Scales {
     /// size and look negative.
     #[inline(always)]
     pub(crate) fn floor(self, kind: &GuardKind) -> f64 {
-        let s = match kind {
-            GuardKind::DiodeCurrent(_)
-            | GuardKind::Comparator {
-                of_current: true, ..
-            } => self.current,
-            GuardKind::DiodeVoltage(_)
-            | GuardKind::DiodePair(..)
-            | GuardKind::Comparator {
-                of_current: false, ..
-            } => self.voltage,
+        self.floor_of(kind.of_current())
+    }
+
+    /// [`Scales::floor`] of a current guard (`of_current`) or a voltage
+    /// guard.
+    #[inline(always)]
+    pub(crate) fn floor_of(self, of_current: bool) -> f64 {
+        let s = if of_current {
+            self.current
+        } else {
+            self.voltage
         };
         FLOOR_REL * s + f64::MIN_POSITIVE
     }

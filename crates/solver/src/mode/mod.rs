@@ -110,6 +110,19 @@ pub(crate) enum GuardKind {
     },
 }
 
+impl GuardKind {
+    /// Whether the guard's zero floor is a current's (else a voltage's;
+    /// see `crossing::Scales::floor`).
+    #[inline(always)]
+    pub(crate) fn of_current(&self) -> bool {
+        match self {
+            GuardKind::DiodeCurrent(_) => true,
+            GuardKind::Comparator { of_current, .. } => *of_current,
+            GuardKind::DiodeVoltage(_) | GuardKind::DiodePair(..) => false,
+        }
+    }
+}
+
 /// A linear function of `z` that must stay ≥ 0 while the mode holds.
 #[derive(Clone, Debug)]
 pub(crate) struct Guard {
@@ -198,6 +211,54 @@ impl Sparse {
     }
 }
 
+/// Rows' non-zero entries packed one after another in one array, each
+/// row closed by an entry of index [`PackedRows::END`] whose number is the
+/// row's tag: the same products in the same order as each row's
+/// [`Sparse`], so the same bits, in one pass over one array instead of a
+/// vector per row. The guard checks of every instant go through all of a
+/// mode's guards; a twelve-phase converter's twelve rows, each behind its
+/// own pointer, cost more in the loads than in the products.
+#[derive(Clone, Debug, Default)]
+pub(crate) struct PackedRows(Vec<(u32, f64)>);
+
+impl PackedRows {
+    /// The index that closes a row.
+    const END: u32 = u32::MAX;
+
+    /// The rows of `rows`, in order, each with its tag.
+    pub(crate) fn of<'a>(rows: impl IntoIterator<Item = (&'a Sparse, f64)>) -> PackedRows {
+        let mut entries = vec![];
+        for (r, tag) in rows {
+            entries.extend(r.0.iter().map(|&(k, a)| (k as u32, a)));
+            entries.push((Self::END, tag));
+        }
+        PackedRows(entries)
+    }
+
+    /// Calls `f(row, Σ rowₖ zₖ, Σ |rowₖ zₖ|, tag)` for each row in
+    /// order (the sums of [`Sparse::dot_and_magnitude`]) until it
+    /// returns false; false if it did.
+    #[inline(always)]
+    pub(crate) fn all(&self, z: &[f64], mut f: impl FnMut(usize, f64, f64, f64) -> bool) -> bool {
+        let (mut v, mut s) = (0.0, 0.0);
+        let mut row = 0;
+        for &(k, c) in &self.0 {
+            if k == Self::END {
+                if !f(row, v, s, c) {
+                    return false;
+                }
+                row += 1;
+                (v, s) = (0.0, 0.0);
+                continue;
+            }
+            let p = c * z[k as usize];
+            v += p;
+            s += p.abs();
+        }
+        true
+    }
+}
+
 /// What a multiplier constraint is about.
 #[derive(Clone, Debug)]
 pub(crate) enum ConstraintKind {
@@ -243,6 +304,10 @@ pub(crate) struct Mode {
     /// Output rows that depend on a free gauge.
     pub undetermined: Vec<bool>,
     pub guards: Vec<Guard>,
+    /// The guards' value rows (`Guard::srow`) packed, each tagged 1 if
+    /// its floor is a current's (`GuardKind::of_current`), else 0: the
+    /// value pass of `run::checks::guards_hold`.
+    pub guard_rows: PackedRows,
     /// Constraint rows H (restricted to z) as columns (Hᵀ, so that each
     /// row is contiguous), and their kinds.
     pub ht: DMatrix<f64>,
@@ -328,6 +393,11 @@ impl Mode {
             ct: outputs.c.transpose(),
             c: outputs.c,
             undetermined: outputs.undetermined,
+            guard_rows: PackedRows::of(
+                guards
+                    .iter()
+                    .map(|g| (&g.srow, f64::from(u8::from(g.kind.of_current())))),
+            ),
             guards,
             h_rows: hz
                 .row_iter()
@@ -357,6 +427,7 @@ impl Mode {
             ct: DMatrix::zeros(nz, cc.outputs.len()),
             undetermined: vec![true; cc.outputs.len()],
             guards: vec![],
+            guard_rows: PackedRows::default(),
             ht: DMatrix::zeros(nz, 0),
             h_rows: vec![],
             constraints: vec![],
@@ -471,5 +542,46 @@ pub(super) mod testing {
     /// Whether `a` and `b` agree to 1e-12 of `scale`.
     pub(crate) fn near(a: f64, b: f64, scale: f64) -> bool {
         (a - b).abs() <= 1e-12 * scale
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::{PackedRows, Sparse};
+
+    /// Packed rows give each row's sums to the bit of its own `Sparse`
+    /// (the same products in the same order), with their tags, empty rows
+    /// included, and stop where the callback says so.
+    #[test]
+    fn packed_rows_give_the_bits_of_each_sparse_row() {
+        let z = [0.3, -1.7e-3, 2.5e4, 1.0, -7.25, 0.0, 1e-300];
+        let dense = [
+            vec![1.0, 0.0, 0.0, -2.0, 0.0, 0.0, 0.0],
+            vec![0.0; 7],
+            vec![0.1, 0.2, 0.3, 0.4, 0.5, 0.6, 0.7],
+            vec![0.0, 0.0, 0.0, 0.0, 0.0, 0.0, -3.0],
+        ];
+        let rows: Vec<Sparse> = dense.iter().map(|r| Sparse::of(r)).collect();
+        let packed = PackedRows::of(rows.iter().zip([1.0, 0.0, 1.0, 0.0]));
+        let mut seen = vec![];
+        assert!(packed.all(&z, |r, v, s, tag| {
+            seen.push((r, v.to_bits(), s.to_bits(), tag));
+            true
+        }));
+        let want: Vec<_> = rows
+            .iter()
+            .enumerate()
+            .map(|(r, row)| {
+                let (v, s) = row.dot_and_magnitude(&z);
+                (r, v.to_bits(), s.to_bits(), [1.0, 0.0, 1.0, 0.0][r])
+            })
+            .collect();
+        assert_eq!(seen, want);
+        let mut calls = 0;
+        assert!(!packed.all(&z, |r, _, _, _| {
+            calls += 1;
+            r < 1
+        }));
+        assert_eq!(calls, 2, "stops at the first false");
     }
 }

@@ -6,16 +6,14 @@
 //! contract test `replay_gives_the_same_bits_as_the_full_search` runs
 //! every example with and without it.
 
-use super::checks::{
-    constraint_row, cuts, first_cut_row, guards_hold, unbalanced_source, violations,
-};
+use super::checks::{constraint_row, first_cut_row, guards_hold, unbalanced_source, violations};
 use nalgebra::DVector;
 
 use super::resolve::{Verdict, OTHER};
 use super::Simulator;
 use crate::crossing::Scales;
 use crate::error::SolverError;
-use crate::mode::Mode;
+use crate::mode::{Mode, PackedRows};
 use crate::options::OnShootThrough;
 use crate::propagate;
 
@@ -41,6 +39,8 @@ pub(super) struct Remembered {
     /// `cut_rejected` when the transition was remembered, as (mode, row of
     /// its constraints): candidates that turn off the same diode share one.
     pub(super) cut_rows: Vec<(u32, u32)>,
+    /// Those rows themselves, packed (the replay's products).
+    pub(super) cut_pack: PackedRows,
     /// Per entry of `cut_rejected`, its row in `cut_rows` (`NO_ROW`: none
     /// found, the replay checks the whole mode).
     pub(super) cut_by: Vec<u16>,
@@ -164,6 +164,11 @@ impl Simulator {
             .map(|m| m & !OTHER)
             .collect();
         let (cut_rows, cut_by) = self.cut_rows(&cut_list);
+        let cut_pack = PackedRows::of(
+            cut_rows
+                .iter()
+                .map(|&(m, r)| (&self.modes[m as usize].h_rows[r as usize], 0.0)),
+        );
         let t = Remembered {
             from: self.mode,
             switches: self.key.switches,
@@ -172,6 +177,7 @@ impl Simulator {
             cut_rejected: cut_list,
             other_rejected,
             cut_rows,
+            cut_pack,
             cut_by,
             to: mi,
         };
@@ -250,11 +256,12 @@ impl Simulator {
         // longer cuts is checked whole, as before.
         let still = if t.cut_rows.len() <= 64 {
             let mut cutting = 0u64;
-            for (g, &(m, r)) in t.cut_rows.iter().enumerate() {
-                if cuts(&self.modes[m as usize].h_rows[r as usize], z, scales) {
+            t.cut_pack.all(z, |g, v, _, _| {
+                if scales.cuts(v) {
                     cutting |= 1 << g;
                 }
-            }
+                true
+            });
             t.cut_rejected.iter().zip(&t.cut_by).all(|(&mi, &g)| {
                 (g != NO_ROW && cutting >> g & 1 == 1)
                     || violations(&self.modes[mi as usize], z, scales, None).0
