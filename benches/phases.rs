@@ -245,59 +245,122 @@ fn main() {
         );
         return;
     }
-    let reps = 5;
     // `nocert`: the whole table without the energy certificate, to see
     // what the check costs.
     let certify = !words.contains(&"nocert");
     // A warm-up run: the first run of the process pays for faulting in
     // the allocator's pages and showed twice the per-event cost.
     run(&interleaved(1), 20_000.0, 1);
+    // Rounds: each measures every row once (best of three runs each), and a
+    // ratio is taken within its round, between runs seconds apart; the
+    // table gives the median over the rounds. These machines are shared:
+    // a burst of load that slows one row slows its round's baseline too,
+    // or falls in one round of nine.
+    let rounds = 9;
+    let reps = 3;
+    let sizes = [1usize, 2, 4, 8, 12];
+    let dcms = [
+        // On its periodic steady state (a regression test of a settled
+        // design), the located instants come back within a few ulps; from
+        // 0.2 % off it (8.5 V), the output settles with a time constant
+        // of thousands of periods and every located instant is a new
+        // length.
+        ("on its steady state", settled(true)),
+        ("settling from 8.5 V", single(true)),
+    ];
+    let phases: Vec<Circuit> = sizes.iter().map(|&n| interleaved(n)).collect();
+    let ccm = single(false);
+    let mut rows: Vec<Vec<Row>> = vec![vec![]; sizes.len()];
+    let mut located: Vec<Vec<(f64, f64, f64)>> = vec![vec![]; dcms.len()];
+    let mut counters = vec![];
+    for round in 0..rounds {
+        for (k, (&n, c)) in sizes.iter().zip(&phases).enumerate() {
+            // About 200,000 events at every size.
+            let periods = (200_000 / n.max(2)) as f64;
+            let (ns, start, events, states, stats) = marginal(c, periods, reps, certify);
+            let bare_ns = bare(states, events, reps) * 1e9 / events as f64;
+            rows[k].push(Row {
+                ns,
+                start,
+                events,
+                states,
+                bare_ns,
+            });
+            if round == 0 {
+                counters.push((format!("{n} phases"), stats));
+            }
+        }
+        // Two scheduled events a period in continuous conduction; in
+        // discontinuous conduction a located diode turn-off besides. The
+        // located event's own cost is what a DCM period costs beyond two
+        // scheduled events.
+        let periods = 50_000.0;
+        let (ns_ccm, _, ev_ccm, _, st_ccm) = marginal(&ccm, periods, reps, certify);
+        if round == 0 {
+            counters.push(("CCM buck".into(), st_ccm));
+        }
+        for (k, (name, dcm)) in dcms.iter().enumerate() {
+            let (ns_dcm, _, ev_dcm, _, st_dcm) = marginal(dcm, periods, reps, certify);
+            if round == 0 {
+                counters.push((format!("DCM buck {name}"), st_dcm));
+            }
+            // The same periods in both runs; the CCM buck has two events
+            // in each.
+            let per_period = ns_dcm * ev_dcm as f64 / (ev_ccm as f64 / 2.0);
+            located[k].push((ns_ccm, per_period, (per_period - 2.0 * ns_ccm) / ns_ccm));
+        }
+    }
+    for (name, stats) in counters {
+        println!("counters, {name}: {stats:?}");
+    }
+    println!("medians of {rounds} rounds (each row's ratios within its round):");
     println!(
         "phases states   events   ns/event   start-up µs   bare ns/event   bare/sim   per event vs 1 phase"
     );
-    let mut first = None;
-    let mut counters = Vec::new();
-    for n in [1usize, 2, 4, 8, 12] {
-        // About 200,000 events at every size.
-        let periods = (200_000 / n.max(2)) as f64;
-        let (ns, start, events, states, stats) = marginal(&interleaved(n), periods, reps, certify);
-        let bare_ns = bare(states, events, reps) * 1e9 / events as f64;
-        let base = *first.get_or_insert(ns);
+    for (k, n) in sizes.iter().enumerate() {
+        let r = &rows[k];
+        let med = |f: &dyn Fn(usize) -> f64| median((0..rounds).map(f).collect());
+        let ns = med(&|i| r[i].ns);
+        let start = med(&|i| r[i].start);
+        let bare_ns = med(&|i| r[i].bare_ns);
+        let share = med(&|i| r[i].bare_ns / r[i].ns);
+        let vs_one = med(&|i| r[i].ns / rows[0][i].ns);
         println!(
-            "{n:>6} {states:>6} {events:>8} {ns:>10.1} {:>13.1} {bare_ns:>15.1} {:>9.1} % {:>10.2}×",
+            "{n:>6} {:>6} {:>8} {ns:>10.1} {:>13.1} {bare_ns:>15.1} {:>9.1} % {vs_one:>10.2}×",
+            r[0].states,
+            r[0].events,
             start * 1e-3,
-            100.0 * bare_ns / ns,
-            ns / base
+            100.0 * share,
         );
-        counters.push((n, stats));
     }
-    for (n, stats) in counters {
-        println!("counters, {n} phases: {stats:?}");
-    }
-    // Two scheduled events a period in continuous conduction; in
-    // discontinuous conduction a located diode turn-off besides. The
-    // located event's own cost is what a DCM period costs beyond two
-    // scheduled events.
-    let periods = 50_000.0;
-    let (ns_ccm, _, ev_ccm, _, st_ccm) = marginal(&single(false), periods, reps, certify);
-    println!("counters, CCM buck: {st_ccm:?}");
-    println!("scheduled event (CCM buck): {ns_ccm:.1} ns ({ev_ccm} events)");
-    // On its periodic steady state (a regression test of a settled
-    // design), the located instants come back within a few ulps; from
-    // 0.2 % off it (8.5 V), the output settles with a time constant of
-    // thousands of periods and every located instant is a new length.
-    for (name, dcm) in [
-        ("on its steady state", settled(true)),
-        ("settling from 8.5 V", single(true)),
-    ] {
-        let (ns_dcm, _, ev_dcm, _, st_dcm) = marginal(&dcm, periods, reps, certify);
-        println!("counters, DCM buck {name}: {st_dcm:?}");
-        // The same periods in both runs; the CCM buck has two events in each.
-        let per_period_dcm = ns_dcm * ev_dcm as f64 / (ev_ccm as f64 / 2.0);
-        let located = per_period_dcm - 2.0 * ns_ccm;
+    for (k, (name, _)) in dcms.iter().enumerate() {
+        let l = &located[k];
+        let ns_ccm = median(l.iter().map(|x| x.0).collect());
+        let per_period = median(l.iter().map(|x| x.1).collect());
+        let ratio = median(l.iter().map(|x| x.2).collect());
         println!(
-            "DCM buck {name}: {per_period_dcm:.1} ns per period ({ev_dcm} events); located diode turn-off: {located:.1} ns = {:.2}× a scheduled event",
-            located / ns_ccm
+            "DCM buck {name}: {per_period:.1} ns per period; scheduled event (CCM buck) {ns_ccm:.1} ns; located diode turn-off = {ratio:.2}× a scheduled event"
         );
+    }
+}
+
+/// One row of the table in one round.
+#[derive(Clone)]
+struct Row {
+    ns: f64,
+    start: f64,
+    events: usize,
+    states: usize,
+    bare_ns: f64,
+}
+
+/// The median of `v` (the mean of the middle two for an even count).
+fn median(mut v: Vec<f64>) -> f64 {
+    v.sort_by(f64::total_cmp);
+    let n = v.len();
+    if n % 2 == 1 {
+        v[n / 2]
+    } else {
+        0.5 * (v[n / 2 - 1] + v[n / 2])
     }
 }

@@ -561,7 +561,27 @@ pub(super) struct GuardPolys {
     /// next search starts (the result does not depend on it where the
     /// crossing is clean; it saves about half of the evaluations).
     hints: Vec<Option<f64>>,
+    /// ‖M‖₁ of the mode (raw, not balanced), for the reach of `anchor`.
+    norm: f64,
+    /// e^{M·t₀} at an earlier crossing t₀ into this length: the state at
+    /// a crossing t within [`ANCHOR_REACH`]/‖M‖₁ of it is e^{M(t−t₀)}
+    /// applied to e^{M·t₀}·z, a product and a few Taylor terms of the
+    /// short remainder (`Shortcuts::nearby_lengths`).
+    anchor: Option<(f64, DMatrix<f64>)>,
 }
+
+/// Largest ‖M‖₁·|t − t₀| for which a crossing's state is taken from the
+/// anchor at t₀ (see [`GuardPolys`]): its remainder then needs four or
+/// five Taylor terms, where the crossing's own length needs eight or more
+/// in a converter whose crossing lies a tenth of its time constants into
+/// the interval. A converter that settles moves its crossing by about
+/// 1e-7 of this a period (the discontinuous buck of the phases bench), so
+/// one exponential serves thousands of periods.
+const ANCHOR_REACH: f64 = 1.0 / 4096.0;
+
+/// Largest ‖M‖₁·|t − t₀| for which the remainder e^{M(t−t₀)} is taken to
+/// first order: the second-order term is then below 2⁻⁵⁵ of the state.
+const FIRST_ORDER_REACH: f64 = 1.0 / (1u64 << 27) as f64;
 
 impl GuardPolys {
     fn build(mode: &Mode, h: f64) -> GuardPolys {
@@ -611,6 +631,8 @@ impl GuardPolys {
         GuardPolys {
             bits: h.to_bits(),
             hints: vec![None; rows.len()],
+            norm: propagate::norm1(&mode.m),
+            anchor: None,
             rows,
             abs,
             kept,
@@ -690,7 +712,9 @@ impl Simulator {
         if at_end(t, h) {
             return Some(Some(crossing(h, b)));
         }
-        if !self.modes.caches[mi].advance_repeated(
+        if self.shortcuts.nearby_lengths {
+            self.anchored_state(mode, pi, t);
+        } else if !self.modes.caches[mi].advance_repeated(
             &mode.m,
             t,
             (self.z.as_slice(), self.z_next.as_mut_slice()),
@@ -712,6 +736,62 @@ impl Simulator {
             );
         }
         Some(Some(crossing(t, b)))
+    }
+}
+
+impl Simulator {
+    /// The state at a crossing `t` into the cached length of
+    /// `polys[pi]`, into `z_next`: from the length's anchor (e^{M·t₀} of
+    /// an earlier crossing) and the Taylor terms of t − t₀ where t lies
+    /// within [`ANCHOR_REACH`] of it, else from a fresh exponential of t,
+    /// which becomes the anchor. Exact to rounding either way, as the
+    /// Taylor vectors of t are (the argument of `ModeCache::advance_near`;
+    /// `a_moving_turn_off_is_advanced_from_an_anchor` compares the two to
+    /// 1e-12 of the states' scale).
+    fn anchored_state(&mut self, mode: &Mode, pi: usize, t: f64) {
+        let mi = self.mode as usize;
+        let gp = &mut self.modes.caches[mi].polys[pi];
+        let z = self.z.as_slice();
+        match &gp.anchor {
+            Some((t0, phi)) if ((t - t0) * gp.norm).abs() <= ANCHOR_REACH => {
+                let d = t - t0;
+                if d == 0.0 {
+                    self.stats.cache_hits += 1;
+                    propagate::matvec(phi, z, self.z_next.as_mut_slice());
+                    return;
+                }
+                self.stats.near_steps += 1;
+                propagate::matvec(phi, z, self.buf.z_try.as_mut_slice());
+                if (d * gp.norm).abs() <= FIRST_ORDER_REACH {
+                    // e^{Md}·w = w + d·M·w to rounding: the next term is
+                    // below 2⁻⁵⁵ of w (the jitter of a settled crossing,
+                    // a few ulps of t).
+                    let w = self.buf.z_try.as_slice();
+                    let mw = self.buf.za.as_mut_slice();
+                    propagate::matvec(&mode.m, w, mw);
+                    for ((out, &wi), &mwi) in self.z_next.as_mut_slice().iter_mut().zip(w).zip(&*mw)
+                    {
+                        *out = wi + d * mwi;
+                    }
+                    return;
+                }
+                propagate::advance_into(
+                    &mode.m,
+                    (&mode.weight, mode.live),
+                    mode.rate,
+                    self.buf.z_try.as_slice(),
+                    d,
+                    self.z_next.as_mut_slice(),
+                    &mut self.buf.advance,
+                );
+            }
+            _ => {
+                self.stats.exponentials += 1;
+                let phi = propagate::expm(&mode.m, t);
+                propagate::matvec(&phi, z, self.z_next.as_mut_slice());
+                gp.anchor = Some((t, phi));
+            }
+        }
     }
 }
 

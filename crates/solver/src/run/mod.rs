@@ -625,6 +625,48 @@ mod tests {
         }
     }
 
+    /// A discontinuous buck that settles over thousands of periods moves
+    /// its diode turn-off a little every period: the state there comes
+    /// from the exponential of an earlier turn-off (the anchor of its
+    /// interval length) and a short Taylor remainder, a handful of
+    /// exponentials for the whole run, and agrees with the Taylor vectors
+    /// of each turn-off's own length to 1e-12 of the states' scale, with
+    /// the same modes and instants to 1e-12 of the run (e^{M(t₀+δ)} =
+    /// e^{Mδ}e^{Mt₀}; common practice).
+    #[test]
+    fn a_moving_turn_off_is_advanced_from_an_anchor() {
+        let c = Circuit::builder()
+            .voltage_source("Vin", "in", "gnd", 12.0)
+            .switch("S1", "in", "sw", "ph1")
+            .diode("D1", "gnd", "sw")
+            .inductor("L1", "sw", "out", 2.2e-6)
+            .capacitor_with_voltage("Cout", "out", "gnd", 470e-6, 8.5)
+            .resistor("Rload", "out", "gnd", 30.0)
+            .pwm("ph1", 250e3, 0.25)
+            .build()
+            .expect("valid");
+        let stop = 2000.0 / 250e3;
+        let run = |near: bool| {
+            let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
+            sim.shortcuts.nearby_lengths = near;
+            sim.advance_to(stop).expect("runs");
+            sim.finish()
+        };
+        let (a, b) = (run(true), run(false));
+        assert_eq!(a.stats.state_events, 2000, "one turn-off a period");
+        assert!(
+            a.stats.near_steps >= 1900,
+            "turn-offs from the anchor: {:?}",
+            a.stats
+        );
+        assert!(
+            a.stats.exponentials < 30,
+            "a handful of exponentials: {:?}",
+            a.stats
+        );
+        compare_runs(&a, &b, stop, "settling DCM buck");
+    }
+
     /// Asserts two runs of the same circuit agree: the same modes, segment
     /// ends within 1e-12 of `stop`, states within 1e-12 of their scale.
     fn compare_runs(a: &RunResult, b: &RunResult, stop: f64, what: &str) {
