@@ -45,6 +45,25 @@ pub(crate) fn root_in(c: &[f64], lo: f64, hi: f64, fa: f64, fb: f64, hint: Optio
     if fa < 0.0 {
         return a;
     }
+    // The derivative's coefficients (k+1)·cₖ₊₁ once, where `propagate::poly`
+    // forms them at every evaluation: the same products and the same
+    // Horner chains, so the same bits.
+    let mut dbuf = [0.0f64; 64];
+    let dc: &[f64] = if (2..=dbuf.len()).contains(&c.len()) {
+        for (k, d) in dbuf[..c.len() - 1].iter_mut().enumerate() {
+            *d = (k + 1) as f64 * c[k + 1];
+        }
+        &dbuf[..c.len() - 1]
+    } else {
+        &[]
+    };
+    let poly = |s: f64| -> (f64, f64) {
+        if dc.is_empty() {
+            propagate::poly(c, s)
+        } else {
+            (propagate::poly_value(c, s), propagate::poly_value(dc, s))
+        }
+    };
     let mut s = if fa - fb > 0.0 {
         a + (b - a) * fa / (fa - fb)
     } else {
@@ -53,7 +72,7 @@ pub(crate) fn root_in(c: &[f64], lo: f64, hi: f64, fa: f64, fb: f64, hint: Optio
     // From a hint: one Newton step from it (it narrows the bracket too),
     // which from a few ulps away lands within rounding of the crossing.
     if let Some(h) = hint.filter(|&h| h > a && h < b) {
-        let (v, dv) = propagate::poly(c, h);
+        let (v, dv) = poly(h);
         if v < 0.0 {
             b = h;
         } else {
@@ -67,7 +86,7 @@ pub(crate) fn root_in(c: &[f64], lo: f64, hi: f64, fa: f64, fb: f64, hint: Optio
     // Below this the sign of p is rounding noise: σ is as good as it gets.
     let noise = 8.0 * f64::EPSILON * c.iter().map(|x| x.abs()).sum::<f64>();
     for _ in 0..100 {
-        let (v, dv) = propagate::poly(c, s);
+        let (v, dv) = poly(s);
         if v.abs() <= noise {
             break;
         }

@@ -546,16 +546,16 @@ pub(super) struct GuardPolys {
     /// the guard's terms at z is its product with |z|).
     rows: Vec<Vec<f64>>,
     abs: Vec<Vec<f64>>,
-    /// Per guard: how many of its rows count, up to the last that is not
-    /// exactly zero (a guard affine in time, r·M² = 0 — a diode voltage
-    /// set by a source and a voltage ramp — has two; one that cannot move
-    /// has one). The rows past it give coefficients ±0, and dropping ±0
-    /// coefficients from the top of a polynomial changes neither its
-    /// values nor its derivative's (each Horner chain meets its first
-    /// non-zero coefficient as ±0·u + c = c exactly; at most the sign of a
-    /// zero result differs, which no comparison or guarded division in
-    /// the root search sees), so the crossing is the same to the bit at
-    /// a fraction of the products.
+    /// Per guard: how many of its rows count, up to the last with an
+    /// entry above [`TERM_FLOOR`] of the same entry of `abs`. The terms
+    /// past it add at most 2⁻⁶⁰ of the guard's scale |q|·|z| each (the
+    /// magnitude its zero band is 1e-10 of), below the rounding of the
+    /// evaluation itself: the series of the matrix is cut where its norm
+    /// falls below 1e-18, but a guard sees only the dynamics that reach
+    /// it, and the current of a discontinuous buck's diode needs a dozen
+    /// terms where the matrix, with its 1/L entries next to its 1/C ones,
+    /// needs thirty. (A guard affine in time, r·M² = 0, keeps two; one
+    /// that cannot move keeps one.)
     kept: Vec<usize>,
     /// Per guard: σ of its latest crossing over this length, where the
     /// next search starts (the result does not depend on it where the
@@ -578,6 +578,10 @@ pub(super) struct GuardPolys {
 /// 1e-7 of this a period (the discontinuous buck of the phases bench), so
 /// one exponential serves thousands of periods.
 const ANCHOR_REACH: f64 = 1.0 / 4096.0;
+
+/// The smallest part of a guard's term magnitudes a Taylor term of its
+/// polynomial may carry and still be kept (see `GuardPolys::kept`).
+const TERM_FLOOR: f64 = 1.0 / (1u64 << 60) as f64;
 
 /// Largest ‖M‖₁·|t − t₀| for which the remainder e^{M(t−t₀)} is taken to
 /// first order: the second-order term is then below 2⁻⁵⁵ of the state.
@@ -621,10 +625,11 @@ impl GuardPolys {
             .collect();
         let kept = rows
             .iter()
-            .map(|r| {
+            .zip(&abs)
+            .map(|(r, ab)| {
                 r.chunks_exact(n.max(1))
                     .take(terms)
-                    .rposition(|q| q.iter().any(|v| *v != 0.0))
+                    .rposition(|q| q.iter().zip(ab).any(|(v, a)| v.abs() > TERM_FLOOR * a))
                     .map_or(1, |k| k + 1)
             })
             .collect();
