@@ -976,12 +976,17 @@ fn outer_add_n<const N: usize>(
     let len = N * (N + 1) / 2;
     let acc = &mut acc[..len];
     if d == 0.0 {
+        // A column of a zero entry adds only signed zeros (the derivative
+        // of a constant source is one in every segment): skipped, the same
+        // sums (see `outer_add_sparse`).
         let mut k = 0;
         for j in 0..N {
-            for i in 0..=j {
-                acc[k] += z[i] * z[j];
-                k += 1;
+            if z[j] != 0.0 {
+                for i in 0..=j {
+                    acc[k + i] += z[i] * z[j];
+                }
             }
+            k += j + 1;
         }
         return;
     }
@@ -1104,6 +1109,10 @@ fn outer_add_columns(
         for (j, &zj) in z.iter().enumerate() {
             let (a, tail) = rest.split_at_mut(j + 1);
             rest = tail;
+            // A zero entry's column adds signed zeros only: skipped.
+            if zj == 0.0 {
+                continue;
+            }
             for (a, &zi) in a.iter_mut().zip(&z[..=j]) {
                 *a += zi * zj;
             }
