@@ -48,7 +48,7 @@ pub(crate) fn root_in(c: &[f64], lo: f64, hi: f64, fa: f64, fb: f64, hint: Optio
     // The derivative's coefficients (k+1)·cₖ₊₁ once, where `propagate::poly`
     // forms them at every evaluation: the same products and the same
     // Horner chains, so the same bits.
-    let mut dbuf = [0.0f64; 64];
+    let mut dbuf = [0.0f64; 32];
     let dc: &[f64] = if (2..=dbuf.len()).contains(&c.len()) {
         for (k, d) in dbuf[..c.len() - 1].iter_mut().enumerate() {
             *d = (k + 1) as f64 * c[k + 1];
@@ -85,9 +85,13 @@ pub(crate) fn root_in(c: &[f64], lo: f64, hi: f64, fa: f64, fb: f64, hint: Optio
     }
     // Below this the sign of p is rounding noise: σ is as good as it gets.
     let noise = 8.0 * f64::EPSILON * c.iter().map(|x| x.abs()).sum::<f64>();
+    // The last point evaluated and its value, which the walk below would
+    // otherwise evaluate again.
+    let mut known = None;
     for _ in 0..100 {
         let (v, dv) = poly(s);
         if v.abs() <= noise {
+            known = Some((s, v));
             break;
         }
         if v < 0.0 {
@@ -113,7 +117,11 @@ pub(crate) fn root_in(c: &[f64], lo: f64, hi: f64, fa: f64, fb: f64, hint: Optio
     // Converged: the first point at or after the crossing. Step up from the
     // estimate an ulp at a time; if rounding noise hides the sign change
     // there, bisect what is left of the bracket.
-    if propagate::poly_value(c, s) < 0.0 {
+    let vs = match known {
+        Some((x, v)) if x == s => v,
+        _ => propagate::poly_value(c, s),
+    };
+    if vs < 0.0 {
         // Already past the crossing: step down while the point below is
         // still negative (p(a) ≥ 0 bounds the walk).
         b = b.min(s);
@@ -133,7 +141,8 @@ pub(crate) fn root_in(c: &[f64], lo: f64, hi: f64, fa: f64, fb: f64, hint: Optio
             if x >= b {
                 return b;
             }
-            if propagate::poly_value(c, x) < 0.0 {
+            // p(s) ≥ 0 is known (`vs`).
+            if x != s && propagate::poly_value(c, x) < 0.0 {
                 return x;
             }
             x = f64::from_bits(x.to_bits() + 1);
