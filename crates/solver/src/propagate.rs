@@ -791,6 +791,41 @@ pub(crate) fn dot_slices(a: &[f64], b: &[f64]) -> f64 {
     }
 }
 
+/// `out[k]` = row k of `rows` (rows of `z.len()` entries, one after
+/// another) times z, for as many rows as `out` has: [`dot_slices`] of each
+/// row, the same bits, with the dispatch on the length once for all rows.
+#[inline]
+pub(crate) fn rows_dot(rows: &[f64], z: &[f64], out: &mut [f64]) {
+    #[inline(always)]
+    fn fixed<const N: usize>(rows: &[f64], z: &[f64], out: &mut [f64]) {
+        let z: &[f64; N] = z.try_into().expect("length checked by the caller");
+        for (o, q) in out.iter_mut().zip(rows.chunks_exact(N)) {
+            let q: &[f64; N] = q.try_into().expect("chunks of N");
+            let mut acc: f64 = std::iter::empty::<f64>().sum();
+            for i in 0..N {
+                acc += q[i] * z[i];
+            }
+            *o = acc;
+        }
+    }
+    match z.len() {
+        4 => fixed::<4>(rows, z, out),
+        5 => fixed::<5>(rows, z, out),
+        6 => fixed::<6>(rows, z, out),
+        7 => fixed::<7>(rows, z, out),
+        8 => fixed::<8>(rows, z, out),
+        9 => fixed::<9>(rows, z, out),
+        10 => fixed::<10>(rows, z, out),
+        11 => fixed::<11>(rows, z, out),
+        12 => fixed::<12>(rows, z, out),
+        n => {
+            for (o, q) in out.iter_mut().zip(rows.chunks_exact(n.max(1))) {
+                *o = dot_slices(q, z);
+            }
+        }
+    }
+}
+
 #[inline(always)]
 fn dot_fixed<const N: usize>(a: &[f64], b: &[f64]) -> f64 {
     let a: &[f64; N] = a.try_into().expect("length checked by the caller");

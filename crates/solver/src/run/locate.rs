@@ -677,12 +677,13 @@ impl Simulator {
         };
         let scales = self.update_scales();
         let z = self.z.as_slice();
-        let nz = z.len();
         let mut za_abs = std::mem::take(&mut self.buf.za);
         for (a, &v) in za_abs.as_mut_slice().iter_mut().zip(z) {
             *a = v.abs();
         }
-        let mut coef = std::mem::take(&mut self.buf.coef);
+        // The coefficients on the stack: a guard keeps at most 60 terms
+        // (`GuardPolys::build`).
+        let mut coef = [0.0f64; 64];
         let gp = &self.modes.caches[mi].polys[pi];
         let mut found: Found = None;
         // The crossings found, to start the next search from (a few are
@@ -690,13 +691,11 @@ impl Simulator {
         let mut hits = [(0usize, 0.0f64); 4];
         let mut n_hits = 0;
         for (gi, g) in mode.guards.iter().enumerate() {
-            coef.clear();
-            for q in gp.rows[gi].chunks_exact(nz).take(gp.kept[gi]) {
-                coef.push(dot_slices(q, z));
-            }
+            let coef = &mut coef[..gp.kept[gi]];
+            propagate::rows_dot(&gp.rows[gi], z, coef);
             let scale = dot_slices(&gp.abs[gi], za_abs.as_slice());
             let tol = scales.guard_zero(&g.kind, scale);
-            if let Some(s) = guard_root(&coef, tol, gp.hints[gi]) {
+            if let Some(s) = guard_root(coef, tol, gp.hints[gi]) {
                 found = merge(found, s * h, bits_of(g), s, h);
                 if n_hits < hits.len() {
                     hits[n_hits] = (gi, s);
@@ -707,7 +706,6 @@ impl Simulator {
         for &(gi, s) in &hits[..n_hits] {
             self.modes.caches[mi].polys[pi].hints[gi] = Some(s);
         }
-        self.buf.coef = coef;
         self.buf.za = za_abs;
         let Some((t, b, _)) = found else {
             return Some(None);
