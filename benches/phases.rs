@@ -5,7 +5,11 @@
 //! side by side with a bare loop of precomputed exact steps of the same
 //! dimension in the same process; and a buck whose diode turns off by
 //! itself (discontinuous conduction: a located event) against the same
-//! buck in continuous conduction (scheduled events only).
+//! buck in continuous conduction (scheduled events only), the
+//! discontinuous buck twice: started on its periodic steady state (found
+//! by shooting, `fluxstep_analysis::steady::find`), and 0.2 % off it,
+//! from where its output settles over thousands of periods and every
+//! located instant is a new length.
 //!
 //! ```sh
 //! cargo bench --bench phases
@@ -16,12 +20,17 @@
 //! growing record. The simulator's cost per event is the marginal one:
 //! a run of P periods minus a run of P/50, so compiling the circuit and
 //! building the first modes (printed apart as the start-up) do not count.
-//! Wall times are the minimum of several runs (the machines are shared);
-//! the ratios in the same process are what counts.
+//! The table is measured in rounds: each round runs every row once (the
+//! best of three runs each) and takes its ratios within the round, runs
+//! seconds apart; the table gives each figure's median over nine rounds.
+//! The machines are shared: a burst of load slows a row and its round's
+//! baseline together, or one round of nine. The ratios in the same
+//! process are what counts.
 //!
 //! For counting instructions, one circuit alone: a number of phases,
-//! `ccm` or `dcm`, then optionally the periods (default 20,000), and
-//! anywhere the word `nocert`:
+//! `ccm`, `dcm` (settling) or `dcms` (on its steady state), then
+//! optionally the periods (default 20,000), and anywhere the word
+//! `nocert`:
 //!
 //! ```sh
 //! cargo bench --bench phases --no-run
@@ -231,7 +240,7 @@ fn main() {
     let words = common::plain_words(&args);
     if let Some(circuit) = words.first().and_then(|w| one(w)) {
         // One circuit alone, for counting instructions: its name (`1` to
-        // `12` phases, `ccm`, `dcm`), optionally the periods, and anywhere
+        // `12` phases, `ccm`, `dcm`, `dcms`), optionally the periods, and anywhere
         // the word `nocert`.
         let periods = words
             .get(1)
