@@ -32,6 +32,22 @@ pub(crate) fn guard_root(coef: &[f64], tol: f64, hint: Option<f64>) -> Option<f6
     }
 }
 
+/// Most coefficients whose derivative [`root_in`] forms once (longer
+/// polynomials take `propagate::poly` at each evaluation).
+const DERIVATIVE_TERMS: usize = 32;
+
+/// k + 1 for k = 0, 1, …: the factors of the derivative's coefficients,
+/// exact in f64.
+const FACTORS: [f64; DERIVATIVE_TERMS] = {
+    let mut f = [0.0; DERIVATIVE_TERMS];
+    let mut k = 0;
+    while k < DERIVATIVE_TERMS {
+        f[k] = (k + 1) as f64;
+        k += 1;
+    }
+    f
+};
+
 /// Root of the polynomial in [lo, hi] where p(lo) ≥ 0 > p(hi): Newton
 /// from the secant guess, kept inside a shrinking bracket (bisection when a
 /// step would leave it), stopped when the step falls to a few ulps; then the
@@ -48,12 +64,13 @@ pub(crate) fn root_in(c: &[f64], lo: f64, hi: f64, fa: f64, fb: f64, hint: Optio
     // The derivative's coefficients (k+1)·cₖ₊₁ once, where `propagate::poly`
     // forms them at every evaluation: the same products and the same
     // Horner chains, so the same bits.
-    let mut dbuf = [0.0f64; 32];
-    let dc: &[f64] = if (2..=dbuf.len()).contains(&c.len()) {
-        for (k, d) in dbuf[..c.len() - 1].iter_mut().enumerate() {
-            *d = (k + 1) as f64 * c[k + 1];
+    let mut dbuf = [0.0f64; DERIVATIVE_TERMS];
+    let dc: &[f64] = if (2..=DERIVATIVE_TERMS).contains(&c.len()) {
+        let n1 = c.len() - 1;
+        for ((d, &ck), &k) in dbuf[..n1].iter_mut().zip(&c[1..]).zip(&FACTORS[..n1]) {
+            *d = k * ck;
         }
-        &dbuf[..c.len() - 1]
+        &dbuf[..n1]
     } else {
         &[]
     };
@@ -84,7 +101,12 @@ pub(crate) fn root_in(c: &[f64], lo: f64, hi: f64, fa: f64, fb: f64, hint: Optio
         s = 0.5 * (a + b);
     }
     // Below this the sign of p is rounding noise: σ is as good as it gets.
-    let noise = 8.0 * f64::EPSILON * c.iter().map(|x| x.abs()).sum::<f64>();
+    // Σ|cₖ| in order from −0, as `Iterator::sum` adds (the same bits).
+    let mut abs_sum = -0.0;
+    for x in c {
+        abs_sum += x.abs();
+    }
+    let noise = 8.0 * f64::EPSILON * abs_sum;
     // The last point evaluated and its value, which the walk below would
     // otherwise evaluate again.
     let mut known = None;
