@@ -236,15 +236,26 @@ impl SignalShape {
         after_start && before_stop
     }
 
-    /// [`SignalShape::edges`] for the usual chunk of a periodic signal: the
-    /// on/off window covers the whole chunk (no window edge inside it),
-    /// phases lie in [0, period) and increase, and the generated times
-    /// increase strictly (so no two transitions tie). Then every candidate
-    /// is a transition whose own value holds, and only the changes of state
-    /// are kept: the same edges as the general evaluation, without building
-    /// and filtering a list of candidates. `None` when any condition fails.
+    /// [`SignalShape::steady_edges_into`] into a vector of its own (`None`
+    /// when it does not apply), for the tests.
+    #[cfg(test)]
     fn steady_edges(&self, t0: f64, t1: f64) -> Option<Vec<Edge>> {
-        let p = self.period?;
+        let mut out = Vec::new();
+        self.steady_edges_into(t0, t1, &mut out).then_some(out)
+    }
+
+    /// [`SignalShape::edges`] for the usual chunk of a periodic signal,
+    /// appended to `out`: the on/off window covers the whole chunk (no
+    /// window edge inside it), phases lie in [0, period) and increase, and
+    /// the generated times increase strictly (so no two transitions tie).
+    /// Then every candidate is a transition whose own value holds, and only
+    /// the changes of state are kept: the same edges as the general
+    /// evaluation, without building and filtering a list of candidates.
+    /// False (and `out` as it was) when any condition fails.
+    fn steady_edges_into(&self, t0: f64, t1: f64, out: &mut Vec<Edge>) -> bool {
+        let Some(p) = self.period else {
+            return false;
+        };
         let start = self.start.unwrap_or(0.0).max(0.0);
         let window_covers = start < t0 && self.stop.is_none_or(|stop| stop >= t1);
         let phases_ok = !self.transitions.is_empty()
@@ -252,11 +263,12 @@ impl SignalShape {
             && self.transitions.windows(2).all(|w| w[0].0 < w[1].0)
             && self.transitions.last().is_some_and(|&(ph, _)| ph < p);
         if !(window_covers && phases_ok && p > 0.0 && t1 > t0) {
-            return None;
+            return false;
         }
         let k0 = ((t0 - self.origin) / p).floor() as i64 - 2;
         let k1 = ((t1 - self.origin) / p).ceil() as i64 + 1;
-        let mut out = Vec::with_capacity(((k1 - k0).max(0) as usize + 1) * self.transitions.len());
+        let start = out.len();
+        out.reserve(((k1 - k0).max(0) as usize + 1) * self.transitions.len());
         let mut state: Option<bool> = None;
         let mut last = f64::NEG_INFINITY;
         for k in k0..=k1 {
@@ -266,10 +278,11 @@ impl SignalShape {
                     continue;
                 }
                 if time >= t1 {
-                    return Some(out);
+                    return true;
                 }
                 if time <= last {
-                    return None;
+                    out.truncate(start);
+                    return false;
                 }
                 last = time;
                 let before = *state.get_or_insert_with(|| self.was_on_before(time));
@@ -285,7 +298,7 @@ impl SignalShape {
                 state = Some(on);
             }
         }
-        Some(out)
+        true
     }
 
     /// State at time `t` (a signal takes its new value at the edge instant).
@@ -300,9 +313,16 @@ impl SignalShape {
 
     /// Every edge with `t0 <= time < t1`, in time order.
     pub fn edges(&self, t0: f64, t1: f64) -> Vec<Edge> {
-        match self.steady_edges(t0, t1) {
-            Some(edges) => edges,
-            None => self.general_edges(t0, t1),
+        let mut out = Vec::new();
+        self.edges_into(t0, t1, &mut out);
+        out
+    }
+
+    /// [`SignalShape::edges`] appended to `out` (a schedule's buffer,
+    /// without a vector of its own per chunk).
+    pub fn edges_into(&self, t0: f64, t1: f64, out: &mut Vec<Edge>) {
+        if !self.steady_edges_into(t0, t1, out) {
+            out.extend(self.general_edges(t0, t1));
         }
     }
 

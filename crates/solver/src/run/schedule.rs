@@ -63,6 +63,15 @@ impl EdgeQueue {
         self.buf.extend(edges);
     }
 
+    /// Appends the edges of `shape` in [t0, t1) after the last, written
+    /// in place (`SignalShape::edges_into`).
+    pub fn extend_from_shape(&mut self, shape: &SignalShape, t0: f64, t1: f64) {
+        if 2 * self.head > self.buf.len() {
+            self.compact();
+        }
+        shape.edges_into(t0, t1, &mut self.buf);
+    }
+
     /// The number of live edges `e` with `pred(e)` true, for a `pred` that
     /// holds on a prefix (as `slice::partition_point`).
     pub fn partition_point(&self, pred: impl FnMut(&Edge) -> bool) -> usize {
@@ -153,7 +162,7 @@ impl SignalBuffer {
     fn refill(&mut self, shape: &SignalShape, upto: f64) {
         while self.filled_to <= upto && self.filled_to.is_finite() {
             let to = self.filled_to + self.chunk;
-            self.edges.extend(shape.edges(self.filled_to, to));
+            self.edges.extend_from_shape(shape, self.filled_to, to);
             self.filled_to = to;
         }
     }
