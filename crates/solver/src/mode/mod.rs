@@ -212,38 +212,38 @@ impl Sparse {
         }
     }
 
-    /// The entries (index, value) in index order.
-    pub(crate) fn entries(&self) -> impl Iterator<Item = (usize, f64)> + '_ {
-        let (inline, heap) = match self {
+    /// `f` applied to (index, value) of each entry in index order, from
+    /// `init`: the one loop every product below goes through.
+    #[inline(always)]
+    fn fold<T>(&self, init: T, mut f: impl FnMut(T, usize, f64) -> T) -> T {
+        let mut acc = init;
+        match self {
             Sparse::Inline { n, k, a } => {
-                (Some(k[..*n as usize].iter().zip(&a[..*n as usize])), None)
+                for i in 0..*n as usize {
+                    acc = f(acc, k[i] as usize, a[i]);
+                }
             }
-            Sparse::Heap(e) => (None, Some(e.iter())),
-        };
-        inline
-            .into_iter()
-            .flatten()
-            .map(|(&k, &a)| (k as usize, a))
-            .chain(heap.into_iter().flatten().copied())
+            Sparse::Heap(e) => {
+                for &(k, a) in e {
+                    acc = f(acc, k, a);
+                }
+            }
+        }
+        acc
+    }
+
+    /// The entries (index, value) in index order.
+    pub(crate) fn entries(&self) -> Vec<(usize, f64)> {
+        self.fold(vec![], |mut v, k, a| {
+            v.push((k, a));
+            v
+        })
     }
 
     /// Σ rowₖ zₖ.
     #[inline(always)]
     pub(crate) fn dot(&self, z: &[f64]) -> f64 {
-        let mut v = 0.0;
-        match self {
-            Sparse::Inline { n, k, a } => {
-                for i in 0..*n as usize {
-                    v += a[i] * z[k[i] as usize];
-                }
-            }
-            Sparse::Heap(e) => {
-                for &(k, a) in e {
-                    v += a * z[k];
-                }
-            }
-        }
-        v
+        self.fold(0.0, |v, k, a| v + a * z[k])
     }
 
     /// Σ |rowₖ|·mₖ: the magnitude of the row's terms where `m` bounds
@@ -251,34 +251,16 @@ impl Sparse {
     /// `propagate::abs_matvec`).
     #[inline(always)]
     pub(crate) fn abs_dot(&self, m: &[f64]) -> f64 {
-        let mut s = 0.0;
-        for (k, a) in self.entries() {
-            s += a.abs() * m[k];
-        }
-        s
+        self.fold(0.0, |s, k, a| s + a.abs() * m[k])
     }
 
     /// (Σ rowₖ zₖ, Σ |rowₖ zₖ|).
     #[inline(always)]
     pub(crate) fn dot_and_magnitude(&self, z: &[f64]) -> (f64, f64) {
-        let (mut v, mut s) = (0.0, 0.0);
-        match self {
-            Sparse::Inline { n, k, a } => {
-                for i in 0..*n as usize {
-                    let p = a[i] * z[k[i] as usize];
-                    v += p;
-                    s += p.abs();
-                }
-            }
-            Sparse::Heap(e) => {
-                for &(k, a) in e {
-                    let p = a * z[k];
-                    v += p;
-                    s += p.abs();
-                }
-            }
-        }
-        (v, s)
+        self.fold((0.0, 0.0), |(v, s), k, a| {
+            let p = a * z[k];
+            (v + p, s + p.abs())
+        })
     }
 }
 
@@ -300,7 +282,7 @@ impl PackedRows {
     pub(crate) fn of<'a>(rows: impl IntoIterator<Item = (&'a Sparse, f64)>) -> PackedRows {
         let mut entries = vec![];
         for (r, tag) in rows {
-            entries.extend(r.entries().map(|(k, a)| (k as u32, a)));
+            entries.extend(r.entries().into_iter().map(|(k, a)| (k as u32, a)));
             entries.push((Self::END, tag));
         }
         PackedRows(entries)
