@@ -272,7 +272,10 @@ impl Sparse {
 /// mode's guards; a twelve-phase converter's twelve rows, each behind its
 /// own pointer, cost more in the loads than in the products.
 #[derive(Clone, Debug, Default)]
-pub(crate) struct PackedRows(Vec<(u32, f64)>);
+pub(crate) struct PackedRows {
+    entries: Vec<(u32, f64)>,
+    rows: usize,
+}
 
 impl PackedRows {
     /// The index that closes a row.
@@ -281,11 +284,21 @@ impl PackedRows {
     /// The rows of `rows`, in order, each with its tag.
     pub(crate) fn of<'a>(rows: impl IntoIterator<Item = (&'a Sparse, f64)>) -> PackedRows {
         let mut entries = vec![];
+        let mut count = 0;
         for (r, tag) in rows {
             entries.extend(r.entries().into_iter().map(|(k, a)| (k as u32, a)));
             entries.push((Self::END, tag));
+            count += 1;
         }
-        PackedRows(entries)
+        PackedRows {
+            entries,
+            rows: count,
+        }
+    }
+
+    /// How many rows there are.
+    pub(crate) fn len(&self) -> usize {
+        self.rows
     }
 
     /// Calls `f(row, Σ rowₖ zₖ, Σ |rowₖ zₖ|, tag)` for each row in
@@ -295,7 +308,7 @@ impl PackedRows {
     pub(crate) fn all(&self, z: &[f64], mut f: impl FnMut(usize, f64, f64, f64) -> bool) -> bool {
         let (mut v, mut s) = (0.0, 0.0);
         let mut row = 0;
-        for &(k, c) in &self.0 {
+        for &(k, c) in &self.entries {
             if k == Self::END {
                 if !f(row, v, s, c) {
                     return false;

@@ -36,11 +36,10 @@ pub(super) struct Remembered {
     /// search and is rejected by its guard once the current is positive.
     pub(super) other_rejected: Vec<u32>,
     /// The distinct inductor-cutset rows that cut the candidates in
-    /// `cut_rejected` when the transition was remembered, as (mode, row of
-    /// its constraints): candidates that turn off the same diode share one.
-    pub(super) cut_rows: Vec<(u32, u32)>,
-    /// Those rows themselves, packed (the replay's products).
-    pub(super) cut_pack: PackedRows,
+    /// `cut_rejected` when the transition was remembered, packed (the
+    /// replay's products): candidates that turn off the same diode share
+    /// one.
+    pub(super) cut_rows: PackedRows,
     /// Per entry of `cut_rejected`, its row in `cut_rows` (`NO_ROW`: none
     /// found, the replay checks the whole mode).
     pub(super) cut_by: Vec<u16>,
@@ -163,10 +162,9 @@ impl Simulator {
             .filter(|&m| m & OTHER != 0)
             .map(|m| m & !OTHER)
             .collect();
-        let (cut_rows, cut_by) = self.cut_rows(&cut_list);
-        let cut_pack = PackedRows::of(
-            cut_rows
-                .iter()
+        let (rows, cut_by) = self.cut_rows(&cut_list);
+        let cut_rows = PackedRows::of(
+            rows.iter()
                 .map(|&(m, r)| (&self.modes[m as usize].h_rows[r as usize], 0.0)),
         );
         let t = Remembered {
@@ -177,7 +175,6 @@ impl Simulator {
             cut_rejected: cut_list,
             other_rejected,
             cut_rows,
-            cut_pack,
             cut_by,
             to: mi,
         };
@@ -187,8 +184,8 @@ impl Simulator {
     }
 
     /// The distinct cutset rows that cut the modes of `list` at the
-    /// present state, and each mode's row among them (see
-    /// [`Remembered`]).
+    /// present state, as (mode, row of its constraints), and each mode's
+    /// row among them (see [`Remembered`]).
     fn cut_rows(&self, list: &[u32]) -> (Vec<(u32, u32)>, Vec<u16>) {
         let z = self.z.as_slice();
         let scales = self.scales.seen;
@@ -256,7 +253,7 @@ impl Simulator {
         // longer cuts is checked whole, as before.
         let still = if t.cut_rows.len() <= 64 {
             let mut cutting = 0u64;
-            t.cut_pack.all(z, |g, v, _, _| {
+            t.cut_rows.all(z, |g, v, _, _| {
                 if scales.cuts(v) {
                     cutting |= 1 << g;
                 }
