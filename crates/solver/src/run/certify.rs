@@ -224,7 +224,7 @@ impl Gram {
     /// the triangle's in their last bits.
     #[inline]
     fn accumulate(&mut self, z: &[f64], d: f64, second: bool, norm: f64) {
-        let d = if d.abs() * (1.0 / self.h0 + norm) <= SAME_LENGTH {
+        let d = if d != 0.0 && d.abs() * (1.0 / self.h0 + norm) <= SAME_LENGTH {
             0.0
         } else {
             d
@@ -1553,13 +1553,8 @@ mod tests {
     /// A damped mode of `n` entries and three symmetric forms, from a
     /// fixed sequence of numbers (a test fixture, not a circuit).
     fn random_mode(n: usize, seed: u64) -> (DMatrix<f64>, [DMatrix<f64>; FORMS]) {
-        let mut x = seed;
-        let mut next = move || {
-            x = x
-                .wrapping_mul(6364136223846793005)
-                .wrapping_add(1442695040888963407);
-            (x >> 11) as f64 / (1u64 << 53) as f64 - 0.5
-        };
+        let mut rnd = crate::test_util::uniform(seed);
+        let mut next = move || rnd() - 0.5;
         let m = DMatrix::from_fn(n, n, |r, c| if r == c { -1.0 } else { 0.6 * next() });
         let mut form = || {
             let a = DMatrix::from_fn(n, n, |_, _| next());
@@ -1581,17 +1576,12 @@ mod tests {
         let balanced = crate::propagate::balancing(&m);
         let norm = norm1(&balanced.0);
         let mut g = gramians(&balanced, q.each_ref(), 0.2).expect("finite");
-        let mut seed = 11u64;
+        let mut rnd = crate::test_util::uniform(11);
         for round in 0..2 {
             let mut want = [0.0; FORMS];
             let count = 3 * BATCH + 5 + round;
             for _ in 0..count {
-                let z: Vec<f64> = (0..n)
-                    .map(|_| {
-                        seed = seed.wrapping_mul(6364136223846793005).wrapping_add(1);
-                        (seed >> 11) as f64 / (1u64 << 53) as f64 - 0.5
-                    })
-                    .collect();
+                let z: Vec<f64> = (0..n).map(|_| rnd() - 0.5).collect();
                 g.accumulate(&z, 0.0, false, norm);
                 for (w, gf) in want.iter_mut().zip(&g.g) {
                     *w += quadratic(gf, &z);
