@@ -11,6 +11,22 @@ pub(crate) fn uniform(mut seed: u64) -> impl FnMut() -> f64 {
     }
 }
 
+/// A buck at light load whose diode turns off inside every period
+/// (12 V, 250 kHz, D = 0.25, 2.2 µH, 470 µF, 30 Ω: discontinuous
+/// conduction; demo values), its output capacitor starting at `v0`.
+pub(crate) fn light_buck(v0: f64) -> fluxstep_netlist::Circuit {
+    fluxstep_netlist::Circuit::builder()
+        .voltage_source("Vin", "in", "gnd", 12.0)
+        .switch("S1", "in", "sw", "ph1")
+        .diode("D1", "gnd", "sw")
+        .inductor("L1", "sw", "out", 2.2e-6)
+        .capacitor_with_voltage("Cout", "out", "gnd", 470e-6, v0)
+        .resistor("Rload", "out", "gnd", 30.0)
+        .pwm("ph1", 250e3, 0.25)
+        .build()
+        .expect("valid")
+}
+
 /// A synchronous buck with dead times and body diodes (24 V → 12 V,
 /// 200 kHz, 22 µH, 47 µF, 6 Ω; demo values), from rest (`None`) or from
 /// (inductor current, capacitor voltage); with `ramps`, transition models

@@ -813,16 +813,7 @@ mod tests {
     #[test]
     fn a_guard_keeps_the_terms_its_own_dynamics_need() {
         use crate::mode::testing::{built, state};
-        let c = fluxstep_netlist::Circuit::builder()
-            .voltage_source("Vin", "in", "gnd", 12.0)
-            .switch("S1", "in", "sw", "ph1")
-            .diode("D1", "gnd", "sw")
-            .inductor("L1", "sw", "out", 2.2e-6)
-            .capacitor("Cout", "out", "gnd", 470e-6)
-            .resistor("Rload", "out", "gnd", 30.0)
-            .pwm("ph1", 250e3, 0.25)
-            .build()
-            .expect("valid");
+        let c = crate::test_util::light_buck(0.0);
         // Switch off, diode on: the diode carries the inductor current.
         let (cc, mode) = built(&c, 0, 1);
         let h = 3e-6;

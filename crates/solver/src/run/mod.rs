@@ -635,16 +635,7 @@ mod tests {
     /// e^{Mδ}e^{Mt₀}; common practice).
     #[test]
     fn a_moving_turn_off_is_advanced_from_an_anchor() {
-        let c = Circuit::builder()
-            .voltage_source("Vin", "in", "gnd", 12.0)
-            .switch("S1", "in", "sw", "ph1")
-            .diode("D1", "gnd", "sw")
-            .inductor("L1", "sw", "out", 2.2e-6)
-            .capacitor_with_voltage("Cout", "out", "gnd", 470e-6, 8.5)
-            .resistor("Rload", "out", "gnd", 30.0)
-            .pwm("ph1", 250e3, 0.25)
-            .build()
-            .expect("valid");
+        let c = crate::test_util::light_buck(8.5);
         let stop = 2000.0 / 250e3;
         let run = |near: bool| {
             let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
