@@ -12,7 +12,7 @@
 pub(crate) mod roots;
 mod tolerance;
 
-pub(crate) use tolerance::{at_end, same_instant, Scales, EDGE_REL, SOURCE_BALANCE_REL, ZERO_REL};
+pub(crate) use tolerance::{at_end, same_instant, Scales, EDGE_REL, SOURCE_BALANCE_REL};
 
 /// The earliest state event inside an interval: when, and whose guards
 /// fired there (others within [`same_instant`] of it fire with it).

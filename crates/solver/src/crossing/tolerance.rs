@@ -83,7 +83,14 @@ impl Scales {
     /// `magnitude` in absolute value: within ±band it counts as zero.
     #[inline(always)]
     pub(crate) fn guard_zero(self, kind: &GuardKind, magnitude: f64) -> f64 {
-        ZERO_REL * magnitude + self.floor(kind)
+        self.guard_zero_of(kind.of_current(), magnitude)
+    }
+
+    /// [`Scales::guard_zero`] of a current guard (`of_current`) or a
+    /// voltage guard.
+    #[inline(always)]
+    pub(crate) fn guard_zero_of(self, of_current: bool, magnitude: f64) -> f64 {
+        ZERO_REL * magnitude + self.floor_of(of_current)
     }
 
     /// The band of the k-th time derivative of a guard, whose floor

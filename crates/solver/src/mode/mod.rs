@@ -264,6 +264,106 @@ impl Sparse {
     }
 }
 
+/// A guard's value row and derivative row ([`Guard::srow`],
+/// [`Guard::sdrow`]) in one 64-byte cache line, with its floor's kind:
+/// what the checks of every instant read of each guard (the value pass of
+/// `run::checks::guards_hold` on entering a mode, the end-point checks of
+/// `run::locate` on every interval). The products are those of the
+/// [`Sparse`] rows, entry for entry in the same order, so the same bits.
+/// A twelve-phase buck cycles through twelve modes of twelve guards each;
+/// read from the guards themselves (dense rows beside the sparse ones, 184
+/// bytes each), their lines left the first-level cache between one visit
+/// of a mode and the next, and cost three misses a guard.
+///
+/// Rows with more than [`GuardLine::ENTRIES`] entries together (or an
+/// index beyond `u16`) do not fit: the line is marked wide and the
+/// guard's own rows serve.
+#[derive(Clone, Copy, Debug)]
+#[repr(C, align(64))]
+pub(crate) struct GuardLine {
+    /// The value row's entries, then the derivative row's.
+    a: [f64; GuardLine::ENTRIES],
+    /// Their indices in z.
+    k: [u16; GuardLine::ENTRIES],
+    /// How many entries the value row has.
+    values: u8,
+    /// How many entries there are in all; `u8::MAX` if the rows do not
+    /// fit.
+    all: u8,
+    /// Whether the guard's zero floor is a current's
+    /// ([`GuardKind::of_current`]).
+    pub of_current: bool,
+}
+
+// One line, as the layout above intends.
+const _: () = assert!(std::mem::size_of::<GuardLine>() == 64);
+
+impl GuardLine {
+    /// Entries a line holds, value and derivative rows together.
+    pub(crate) const ENTRIES: usize = 6;
+    /// `all` of a line whose rows do not fit.
+    const WIDE: u8 = u8::MAX;
+
+    /// The line of guard `g`.
+    pub(crate) fn of(g: &Guard) -> GuardLine {
+        let (value, slope) = (g.srow.entries(), g.sdrow.entries());
+        let mut line = GuardLine {
+            a: [0.0; Self::ENTRIES],
+            k: [0; Self::ENTRIES],
+            values: 0,
+            all: Self::WIDE,
+            of_current: g.kind.of_current(),
+        };
+        let n = value.len() + slope.len();
+        if n > Self::ENTRIES
+            || value
+                .iter()
+                .chain(&slope)
+                .any(|&(k, _)| k > u16::MAX as usize)
+        {
+            return line;
+        }
+        for (i, &(k, a)) in value.iter().chain(&slope).enumerate() {
+            line.k[i] = k as u16;
+            line.a[i] = a;
+        }
+        line.values = value.len() as u8;
+        line.all = n as u8;
+        line
+    }
+
+    /// (Σ rowₖ zₖ, Σ |rowₖ zₖ|) of the value row: [`Sparse::dot_and_magnitude`]
+    /// of the guard's `srow` (`guard` gives the line's guard, read only
+    /// if the line is wide).
+    #[inline(always)]
+    pub(crate) fn value<'g>(&self, z: &[f64], guard: impl FnOnce() -> &'g Guard) -> (f64, f64) {
+        if self.all == Self::WIDE {
+            return guard().srow.dot_and_magnitude(z);
+        }
+        let (mut v, mut s) = (0.0, 0.0);
+        for i in 0..self.values as usize {
+            let p = self.a[i] * z[self.k[i] as usize];
+            v += p;
+            s += p.abs();
+        }
+        (v, s)
+    }
+
+    /// Σ drowₖ zₖ, the guard's time derivative: [`Sparse::dot`] of the
+    /// guard's `sdrow` (`guard` as for [`GuardLine::value`]).
+    #[inline(always)]
+    pub(crate) fn slope<'g>(&self, z: &[f64], guard: impl FnOnce() -> &'g Guard) -> f64 {
+        if self.all == Self::WIDE {
+            return guard().sdrow.dot(z);
+        }
+        let mut v = 0.0;
+        for i in self.values as usize..self.all as usize {
+            v += self.a[i] * z[self.k[i] as usize];
+        }
+        v
+    }
+}
+
 /// Rows' non-zero entries packed one after another in one array, each
 /// row closed by an entry of index [`PackedRows::END`] whose number is the
 /// row's tag: the same products in the same order as each row's
@@ -370,10 +470,8 @@ pub(crate) struct Mode {
     /// Output rows that depend on a free gauge.
     pub undetermined: Vec<bool>,
     pub guards: Vec<Guard>,
-    /// The guards' value rows (`Guard::srow`) packed, each tagged 1 if
-    /// its floor is a current's (`GuardKind::of_current`), else 0: the
-    /// value pass of `run::checks::guards_hold`.
-    pub guard_rows: PackedRows,
+    /// Each guard's rows in one cache line, in the order of `guards`.
+    pub guard_lines: Vec<GuardLine>,
     /// Constraint rows H (restricted to z) as columns (Hᵀ, so that each
     /// row is contiguous), and their kinds.
     pub ht: DMatrix<f64>,
@@ -459,11 +557,7 @@ impl Mode {
             ct: outputs.c.transpose(),
             c: outputs.c,
             undetermined: outputs.undetermined,
-            guard_rows: PackedRows::of(
-                guards
-                    .iter()
-                    .map(|g| (&g.srow, f64::from(u8::from(g.kind.of_current())))),
-            ),
+            guard_lines: guards.iter().map(GuardLine::of).collect(),
             guards,
             h_rows: hz
                 .row_iter()
@@ -493,7 +587,7 @@ impl Mode {
             ct: DMatrix::zeros(nz, cc.outputs.len()),
             undetermined: vec![true; cc.outputs.len()],
             guards: vec![],
-            guard_rows: PackedRows::default(),
+            guard_lines: vec![],
             ht: DMatrix::zeros(nz, 0),
             h_rows: vec![],
             constraints: vec![],
@@ -613,7 +707,9 @@ pub(super) mod testing {
 
 #[cfg(test)]
 mod tests {
-    use super::{PackedRows, Sparse};
+    use nalgebra::DMatrix;
+
+    use super::{Guard, GuardKind, GuardLine, PackedRows, Sparse};
 
     /// A row of up to four entries is held in place, a longer one on the
     /// heap, and both give the products of their non-zero entries summed
@@ -679,5 +775,44 @@ mod tests {
             r < 1
         }));
         assert_eq!(calls, 2, "stops at the first false");
+    }
+
+    /// A guard's line gives the value and derivative sums of its own
+    /// sparse rows to the bit, and its floor's kind; a guard whose rows
+    /// together have more entries than a line holds is read from its own
+    /// rows.
+    #[test]
+    fn a_guard_line_gives_the_bits_of_its_guards_rows() {
+        let z = [0.3, -1.7e-3, 2.5e4, 1.0, -7.25, 0.5, 1e-300];
+        // M with a diagonal, so that drow = row·M keeps row's entries.
+        let m = DMatrix::from_fn(7, 7, |i, j| match (i, j) {
+            _ if i == j => -2.0 - i as f64,
+            (0, 6) => 3.5,
+            (2, 5) => 1e-3,
+            _ => 0.0,
+        });
+        for (row, wide) in [
+            (vec![0.0, 2.0, 0.0, 0.0, -1.5, 0.0, 0.0], false),
+            (vec![1.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0], false),
+            (vec![0.0, 0.0, 0.7, 0.0, 0.0, 0.0, 0.0], false),
+            (vec![0.1, 0.2, 0.3, 0.4, 0.0, 0.0, 0.0], true),
+            (vec![0.0; 7], false),
+        ] {
+            for kind in [GuardKind::DiodeCurrent(0), GuardKind::DiodeVoltage(1)] {
+                let g = Guard::new(kind.clone(), row.clone(), &m);
+                let line = GuardLine::of(&g);
+                let entries = g.srow.entries().len() + g.sdrow.entries().len();
+                assert_eq!(entries > GuardLine::ENTRIES, wide, "{row:?}");
+                assert_eq!(line.all == GuardLine::WIDE, wide);
+                assert_eq!(line.of_current, kind.of_current());
+                for zs in [&z[..], &[1.0; 7][..]] {
+                    let (v, s) = line.value(zs, || &g);
+                    let (wv, ws) = g.srow.dot_and_magnitude(zs);
+                    assert_eq!((v.to_bits(), s.to_bits()), (wv.to_bits(), ws.to_bits()));
+                    let d = line.slope(zs, || &g);
+                    assert_eq!(d.to_bits(), g.sdrow.dot(zs).to_bits());
+                }
+            }
+        }
     }
 }

@@ -7,7 +7,7 @@
 
 use nalgebra::DVector;
 
-use crate::crossing::{Scales, SOURCE_BALANCE_REL, ZERO_REL};
+use crate::crossing::{Scales, SOURCE_BALANCE_REL};
 use crate::mode::{ConstraintKind, Mode, Sparse};
 use crate::propagate;
 use crate::propagate::dot_and_magnitude;
@@ -84,22 +84,17 @@ pub(super) fn unbalanced_source(mode: &Mode, z: &[f64]) -> Option<usize> {
 pub(super) fn guards_hold(mode: &Mode, z: &DVector<f64>, scales: Scales) -> bool {
     // Value pass first, on slices: in the usual case every guard is clearly
     // positive and no derivative is needed.
-    // The rows packed, the two floors taken once: the same values and
-    // tolerances as `Scales::guard_zero` of each guard.
+    // The rows from the guards' lines, the two floors taken once: the same
+    // values and tolerances as `Scales::guard_zero` of each guard.
     let zs = z.as_slice();
-    let (voltage, current) = (scales.floor_of(false), scales.floor_of(true));
     let mut at_zero = false;
-    let held = mode.guard_rows.all(zs, |_, v, s, of_current| {
-        let floor = if of_current != 0.0 { current } else { voltage };
-        let tol = ZERO_REL * s + floor;
+    for (i, line) in mode.guard_lines.iter().enumerate() {
+        let (v, s) = line.value(zs, || &mode.guards[i]);
+        let tol = scales.guard_zero_of(line.of_current, s);
         at_zero |= v <= tol;
-        // Written as the negation, so that NaN goes on as before.
-        #[allow(clippy::neg_cmp_op_on_partial_ord)]
-        let fine = !(v < -tol);
-        fine
-    });
-    if !held {
-        return false;
+        if v < -tol {
+            return false;
+        }
     }
     !at_zero || guards_hold_at_zero(mode, z, scales)
 }

@@ -72,13 +72,20 @@ pub(super) fn suspect_at_end(g: &Guard, za: &[f64], zb: &[f64], scales: Scales) 
     }
 }
 
-/// Whether any of `guards` may cross zero from `za` to `zb`
+/// Whether any of `mode`'s own guards may cross zero from `za` to `zb`
 /// (`suspect_at_end`), written as a loop so that it stays inline in the
-/// loop of every interval.
+/// loop of every interval; each guard's rows read from its cache line
+/// (`Mode::guard_lines`), the same products.
 #[inline(always)]
-fn any_suspect(guards: &[Guard], za: &[f64], zb: &[f64], scales: Scales) -> bool {
-    for g in guards {
-        if suspect_at_end(g, za, zb, scales) {
+fn any_suspect(mode: &Mode, za: &[f64], zb: &[f64], scales: Scales) -> bool {
+    for (i, line) in mode.guard_lines.iter().enumerate() {
+        let g = || &mode.guards[i];
+        let da = line.slope(za, g);
+        if da < 0.0 && line.slope(zb, g) > 0.0 {
+            return true;
+        }
+        let (gb, sb) = line.value(zb, g);
+        if gb < 0.0 && gb < -scales.guard_zero_of(line.of_current, sb.max(line.value(za, g).1)) {
             return true;
         }
     }
@@ -174,7 +181,7 @@ impl Simulator {
         if off_mask == 0 && on_mask == 0 {
             // No closed-loop gate: the mode's own guards only, without
             // the chained iterator.
-            any_suspect(&mode.guards, za, zb, scales)
+            any_suspect(mode, za, zb, scales)
         } else {
             active(mode, off_mask, on_mask).any(|g| suspect_at_end(g, za, zb, scales))
         }
