@@ -65,7 +65,16 @@ impl Simulator {
                 chunk: s.period.map(|p| 64.0 * p).unwrap_or(f64::INFINITY),
             })
             .collect();
-        let signal_on = cc.signals.iter().map(|(_, s)| s.is_on(0.0)).collect();
+        let signal_on: Vec<bool> = cc.signals.iter().map(|(_, s)| s.is_on(0.0)).collect();
+        let mut signal_switches = vec![0u64; cc.signals.len()];
+        for (i, s) in cc.switches.iter().enumerate() {
+            signal_switches[s.signal] |= 1 << i;
+        }
+        let switches_on = signal_on
+            .iter()
+            .zip(&signal_switches)
+            .filter(|(on, _)| **on)
+            .fold(0, |bits, (_, s)| bits | s);
         let n_cmp = cc.comparators.len();
         let signal_gate = cc
             .signals
@@ -101,6 +110,8 @@ impl Simulator {
             sched: schedule::Schedule {
                 signals,
                 signal_on,
+                signal_switches,
+                switches_on,
                 cmp_enabled_off: vec![true; n_cmp],
                 cmp_ticks: vec![],
                 signal_gate,

@@ -118,7 +118,7 @@ impl Simulator {
         if self.sched.signal_on[sig] == on {
             return Ok(None);
         }
-        self.sched.signal_on[sig] = on;
+        self.sched.set_signal(sig, on);
         // The switches it drives follow it: their new bits are `on`.
         self.log_switch_changes(t)
     }

@@ -12,14 +12,9 @@ use crate::events::EventKind;
 
 impl Simulator {
     /// Switch bits from the present signal states.
+    #[inline(always)]
     pub(super) fn switch_bits(&self) -> u64 {
-        let mut sw = 0u64;
-        for (i, s) in self.cc.switches.iter().enumerate() {
-            if self.sched.signal_on[s.signal] {
-                sw |= 1 << i;
-            }
-        }
-        sw
+        self.sched.switches_on
     }
 
     /// Takes the gate edges due at `t`, logs the switches that changed (in
@@ -45,7 +40,8 @@ impl Simulator {
                 if e.time > until {
                     break;
                 }
-                self.sched.signal_on[i] = e.on;
+                let on = e.on;
+                self.sched.set_signal(i, on);
                 self.sched.signals[i].edges.pop_front();
                 changed = true;
             }

@@ -95,8 +95,15 @@ impl EdgeQueue {
 /// updates, and what is known of the sources' corners.
 pub(super) struct Schedule {
     pub(super) signals: Vec<SignalBuffer>,
-    /// Present state of each gate signal.
+    /// Present state of each gate signal (written by
+    /// [`Schedule::set_signal`] only).
     pub(super) signal_on: Vec<bool>,
+    /// For each signal, the bits of the switches it drives.
+    pub(super) signal_switches: Vec<u64>,
+    /// The bits of the switches whose signals are on: kept with
+    /// `signal_on`, so that an edge costs its own switches, not a pass
+    /// over all of them (a twelve-phase converter has twelve).
+    pub(super) switches_on: u64,
     /// Per comparator: whether its turn-off comparison counts yet (the
     /// minimum on-time has passed).
     pub(super) cmp_enabled_off: Vec<bool>,
@@ -171,6 +178,15 @@ impl SignalBuffer {
 /// Stage 1, handed only the schedule and the compiled circuit (its signal
 /// shapes, comparators and sources).
 impl Schedule {
+    /// Sets gate signal `i` `on`, and the bits of the switches it drives.
+    #[inline(always)]
+    pub(super) fn set_signal(&mut self, i: usize, on: bool) {
+        if self.signal_on[i] != on {
+            self.signal_on[i] = on;
+            self.switches_on ^= self.signal_switches[i];
+        }
+    }
+
     /// Fills signal `i`'s buffer of edges (of `shape`) past `upto`.
     pub(super) fn refill(&mut self, shape: &SignalShape, i: usize, upto: f64) {
         self.signals[i].refill(shape, upto);
