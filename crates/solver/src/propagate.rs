@@ -668,6 +668,32 @@ pub(crate) fn poly_value(c: &[f64], s: f64) -> f64 {
     e + s * o
 }
 
+/// [`poly_value`] at `L` points at once: each point's operations are
+/// those of `poly_value`, in the same order (the same bits), and the
+/// points' chains are interleaved, so that `L` evaluations take about the
+/// latency of one. For the root search's walk over neighbouring points,
+/// which are known before any of them is evaluated.
+#[inline]
+pub(crate) fn poly_values<const L: usize>(c: &[f64], s: [f64; L]) -> [f64; L] {
+    let u = s.map(|x| x * x);
+    let (mut e, body) = match c.len() % 2 {
+        1 => ([c[c.len() - 1]; L], &c[..c.len() - 1]),
+        _ => ([0.0; L], c),
+    };
+    let mut o = [0.0; L];
+    for p in body.rchunks_exact(2) {
+        for l in 0..L {
+            e[l] = e[l] * u[l] + p[0];
+            o[l] = o[l] * u[l] + p[1];
+        }
+    }
+    let mut v = [0.0; L];
+    for l in 0..L {
+        v[l] = e[l] + s[l] * o[l];
+    }
+    v
+}
+
 /// ‖Mh‖₁ up to which nalgebra's `exp` gets the matrix as it is (ordinary
 /// circuits stay far below and keep its bits). Above, its scaling loses
 /// the slow part of a stiff matrix (e^{−1e-6} came out as 1 beside a
@@ -1036,7 +1062,9 @@ pub(crate) fn all_finite(z: &[f64]) -> bool {
 
 #[cfg(test)]
 mod tests {
-    use super::{expm, expm_shifted, matvec, norm1, poly, poly_value, Spectrum, SHIFT_REACH};
+    use super::{
+        expm, expm_shifted, matvec, norm1, poly, poly_value, poly_values, Spectrum, SHIFT_REACH,
+    };
     use nalgebra::DMatrix;
 
     /// Every size's product (unrolled, rolled, every column, on AVX
@@ -1199,7 +1227,8 @@ mod tests {
     /// usual error bound of a polynomial evaluation, 2n·ε·Σ|cₖσᵏ| (N. J.
     /// Higham, *Accuracy and Stability of Numerical Algorithms*, 2nd ed.,
     /// 2002, §5.1; from memory), for the value and for the derivative;
-    /// and the value of `poly` has exactly the bits of `poly_value`.
+    /// and the value of `poly`, and of `poly_values` at each of its points,
+    /// has exactly the bits of `poly_value`.
     #[test]
     fn even_odd_evaluation_agrees_with_horner() {
         let mut rnd = crate::test_util::uniform(0x2545_f491_4f6c_dd1du64);
@@ -1221,6 +1250,14 @@ mod tests {
             let bound = |sum: f64| 2.0 * (n as f64 + 1.0) * f64::EPSILON * sum + 1e-300;
             let (pv, pd) = poly(&c, s);
             assert_eq!(pv.to_bits(), poly_value(&c, s).to_bits(), "case {case}");
+            // Four points at once, each with its own bits.
+            let points = [s, rnd(), 1.0 - s, 0.5 * s];
+            let each = points.map(|x| poly_value(&c, x).to_bits());
+            assert_eq!(
+                poly_values(&c, points).map(f64::to_bits),
+                each,
+                "case {case}"
+            );
             assert!((pv - v).abs() <= bound(sv), "case {case}: {pv} vs {v}");
             assert!((pd - d).abs() <= bound(sd), "case {case}: {pd} vs {d}");
         }

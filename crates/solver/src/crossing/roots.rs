@@ -14,12 +14,26 @@ use crate::propagate;
 /// `hint`, if any, is where the search starts (the crossing of an earlier
 /// period, which in a settled converter lies within a few ulps).
 pub(crate) fn guard_root(coef: &[f64], tol: f64, hint: Option<f64>) -> Option<f64> {
-    // The value alone first (`poly` gives the same bits with the
-    // derivative, which only a dip needs).
-    let gb = propagate::poly_value(coef, 1.0);
-    let da = coef.get(1).copied().unwrap_or(0.0);
     // p(0) is the first coefficient (the evaluation at 0 gives it exactly).
     let g0 = coef.first().copied().unwrap_or(0.0);
+    // The value alone first (`poly` gives the same bits with the
+    // derivative, which only a dip needs). With a hint strictly inside,
+    // the hint and the point below it are evaluated beside it: where the
+    // crossing has not moved (a settled converter's, period after
+    // period), p < 0 at the hint and p ≥ 0 just below makes the hint the
+    // answer, as `root_in` defines it, in the time of one evaluation.
+    let gb = match hint.filter(|&h| h > 0.0 && h < 1.0) {
+        Some(h) => {
+            let below = f64::from_bits(h.to_bits() - 1);
+            let [gb, at, under] = propagate::poly_values(coef, [1.0, h, below]);
+            if gb < -tol && g0 >= 0.0 && at < 0.0 && under >= 0.0 {
+                return Some(h);
+            }
+            gb
+        }
+        None => propagate::poly_value(coef, 1.0),
+    };
+    let da = coef.get(1).copied().unwrap_or(0.0);
     if gb < -tol {
         Some(root_in(coef, 0.0, 1.0, g0, gb, hint))
     } else if da < 0.0 && propagate::poly(coef, 1.0).1 > 0.0 {
@@ -31,6 +45,13 @@ pub(crate) fn guard_root(coef: &[f64], tol: f64, hint: Option<f64>) -> Option<f6
         None
     }
 }
+
+/// Most points [`root_in`] walks, an ulp at a time, from where Newton's
+/// steps stop to the first point past the crossing, before it bisects.
+const WALK_STEPS: usize = 16;
+
+/// Points of that walk evaluated together.
+const WALK_BATCH: usize = 4;
 
 /// Most coefficients whose derivative [`root_in`] forms once (longer
 /// polynomials take `propagate::poly` at each evaluation).
@@ -143,31 +164,53 @@ pub(crate) fn root_in(c: &[f64], lo: f64, hi: f64, fa: f64, fb: f64, hint: Optio
         Some((x, v)) if x == s => v,
         _ => propagate::poly_value(c, s),
     };
+    // The walk's points are known before any is evaluated: they are
+    // evaluated WALK_BATCH at a time (`poly_values`, the same bits each),
+    // and read in order, as one at a time would; points past the answer
+    // are evaluated for nothing.
     if vs < 0.0 {
         // Already past the crossing: step down while the point below is
         // still negative (p(a) ≥ 0 bounds the walk).
         b = b.min(s);
         let mut x = b;
-        for _ in 0..16 {
-            let below = f64::from_bits(x.to_bits() - 1);
-            if x <= 0.0 || below <= a || propagate::poly_value(c, below) >= 0.0 {
-                return x;
+        for _ in 0..WALK_STEPS / WALK_BATCH {
+            let mut below = [x; WALK_BATCH];
+            let mut y = x;
+            for p in &mut below {
+                // x > 0 where the point is used (checked below).
+                y = f64::from_bits(y.to_bits().saturating_sub(1));
+                *p = y;
             }
-            x = below;
+            let values = propagate::poly_values(c, below);
+            for (&below, &v) in below.iter().zip(&values) {
+                if x <= 0.0 || below <= a || v >= 0.0 {
+                    return x;
+                }
+                x = below;
+            }
         }
         b = x;
     } else {
         a = a.max(s);
         let mut x = a;
-        for _ in 0..16 {
-            if x >= b {
-                return b;
+        for _ in 0..WALK_STEPS / WALK_BATCH {
+            let mut points = [x; WALK_BATCH];
+            let mut y = x;
+            for p in &mut points {
+                *p = y;
+                y = f64::from_bits(y.to_bits() + 1);
             }
-            // p(s) ≥ 0 is known (`vs`).
-            if x != s && propagate::poly_value(c, x) < 0.0 {
-                return x;
+            let values = propagate::poly_values(c, points);
+            for (&x, &v) in points.iter().zip(&values) {
+                if x >= b {
+                    return b;
+                }
+                // p(s) ≥ 0 is known (`vs`).
+                if x != s && v < 0.0 {
+                    return x;
+                }
             }
-            x = f64::from_bits(x.to_bits() + 1);
+            x = y;
         }
         a = x;
     }
@@ -369,11 +412,13 @@ mod tests {
     /// just below it p ≥ 0 (the first instant after the crossing), and it
     /// lies within a few ulps of the exact root. Polynomials with a known
     /// simple root r in (0, 1): p(σ) = (r − σ)·q(σ), q > 0 on [0, 1]
-    /// (common practice).
+    /// (common practice). `guard_root` with a hint returns the hint where
+    /// it is such a point, else `root_in`'s answer.
     #[test]
     fn root_is_the_first_point_past_the_crossing() {
         let mut rnd = crate::test_util::uniform(0x1234_5678_9abc_def1u64);
         let mut moved = 0;
+        let mut hinted_at_root = 0;
         for case in 0..2000 {
             let r = 0.01 + 0.98 * rnd();
             // q(σ) = 1 + a σ + b σ², positive on [0, 1] for a, b ≥ 0, times
@@ -408,6 +453,14 @@ mod tests {
                 rnd(),
             ] {
                 let y = root_in(&c, 0.0, 1.0, c[0], fb, Some(hint));
+                // `guard_root` from the same hint: the hint itself where it
+                // is a first point past the crossing (a settled crossing
+                // that has not moved), else the search's answer.
+                let g = guard_root(&c, 0.0, Some(hint)).expect("p(1) < 0");
+                let at_hint = propagate::poly_value(&c, hint) < 0.0
+                    && propagate::poly_value(&c, f64::from_bits(hint.to_bits() - 1)) >= 0.0;
+                assert_eq!(g, if at_hint { hint } else { y }, "case {case}");
+                hinted_at_root += usize::from(at_hint);
                 if y != x {
                     // Only where rounding blurs the crossing: then y is a
                     // first point past it too, as close to the root.
@@ -423,5 +476,7 @@ mod tests {
             moved <= 40,
             "{moved} of 8000 hinted searches ended elsewhere"
         );
+        // Every case's first hint with 0 ulps is the answer itself.
+        assert!(hinted_at_root >= 2000 / 64, "{hinted_at_root}");
     }
 }
