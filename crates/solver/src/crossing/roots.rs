@@ -22,20 +22,21 @@ pub(crate) fn guard_root(coef: &[f64], tol: f64, hint: Option<f64>) -> Option<f6
     // crossing has not moved (a settled converter's, period after
     // period), p < 0 at the hint and p ≥ 0 just below makes the hint the
     // answer, as `root_in` defines it, in the time of one evaluation.
-    let gb = match hint.filter(|&h| h > 0.0 && h < 1.0) {
+    // Otherwise the search starts from p(hint), known.
+    let (gb, known) = match hint.filter(|&h| h > 0.0 && h < 1.0) {
         Some(h) => {
             let below = f64::from_bits(h.to_bits() - 1);
             let [gb, at, under] = propagate::poly_values(coef, [1.0, h, below]);
             if gb < -tol && g0 >= 0.0 && at < 0.0 && under >= 0.0 {
                 return Some(h);
             }
-            gb
+            (gb, Some((h, at)))
         }
-        None => propagate::poly_value(coef, 1.0),
+        None => (propagate::poly_value(coef, 1.0), None),
     };
     let da = coef.get(1).copied().unwrap_or(0.0);
     if gb < -tol {
-        Some(root_in(coef, 0.0, 1.0, g0, gb, hint))
+        Some(search(coef, (0.0, 1.0), (g0, gb), hint, known))
     } else if da < 0.0 && propagate::poly(coef, 1.0).1 > 0.0 {
         // An interior minimum: find it, then look below zero there.
         let smin = stationary(coef);
@@ -78,6 +79,19 @@ const FACTORS: [f64; DERIVATIVE_TERMS] = {
 /// `fa` and `fb` are p(lo) and p(hi), which the caller has already.
 /// A `hint` strictly inside the bracket replaces the secant guess.
 pub(crate) fn root_in(c: &[f64], lo: f64, hi: f64, fa: f64, fb: f64, hint: Option<f64>) -> f64 {
+    search(c, (lo, hi), (fa, fb), hint, None)
+}
+
+/// [`root_in`], where `known` may give a point and p there (the same
+/// bits as `propagate::poly_value`), which is not evaluated again if the
+/// hint is that point.
+fn search(
+    c: &[f64],
+    (lo, hi): (f64, f64),
+    (fa, fb): (f64, f64),
+    hint: Option<f64>,
+    known: Option<(f64, f64)>,
+) -> f64 {
     let (mut a, mut b) = (lo, hi);
     if fa < 0.0 {
         return a;
@@ -110,7 +124,10 @@ pub(crate) fn root_in(c: &[f64], lo: f64, hi: f64, fa: f64, fb: f64, hint: Optio
     // From a hint: one Newton step from it (it narrows the bracket too),
     // which from a few ulps away lands within rounding of the crossing.
     if let Some(h) = hint.filter(|&h| h > a && h < b) {
-        let (v, dv) = poly(h);
+        let (v, dv) = match known {
+            Some((x, v)) if x == h && !dc.is_empty() => (v, propagate::poly_value(dc, h)),
+            _ => poly(h),
+        };
         if v < 0.0 {
             b = h;
         } else {
