@@ -688,9 +688,14 @@ impl Simulator {
         for (a, &v) in za_abs.as_mut_slice().iter_mut().zip(z) {
             *a = v.abs();
         }
-        // The coefficients on the stack: a guard keeps at most 60 terms
-        // (`GuardPolys::build`).
-        let mut coef = [0.0f64; 64];
+        // The coefficients in the scratch buffer, long enough for any
+        // guard (at most 60 terms, `GuardPolys::build`): each search
+        // writes the ones it reads (a stack array cleared at every call
+        // cost as much as the products that fill it).
+        let mut coef = std::mem::take(&mut self.buf.coef);
+        if coef.len() < 64 {
+            coef.resize(64, 0.0);
+        }
         let gp = &self.modes.caches[mi].polys[pi];
         let mut found: Found = None;
         // The crossings found, to start the next search from (a few are
@@ -714,6 +719,7 @@ impl Simulator {
             self.modes.caches[mi].polys[pi].hints[gi] = Some(s);
         }
         self.buf.za = za_abs;
+        self.buf.coef = coef;
         let Some((t, b, _)) = found else {
             return Some(None);
         };
