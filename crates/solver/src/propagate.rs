@@ -483,40 +483,10 @@ fn scaled_fixed<const N: usize>(data: &[f64], x: &[f64], y: &mut [f64], f: f64) 
 /// each): the same operations in the same order, so the same bits, with
 /// the loop over columns kept as a loop. Fully unrolled at every call
 /// site, as the smaller sizes are, these made the hot code of such a
-/// circuit outgrow the instruction cache. With AVX, as [`wide`].
+/// circuit outgrow the instruction cache.
 #[inline(always)]
 fn compact<const N: usize>(data: &[f64], x: &[f64], y: &mut [f64]) {
-    #[cfg(target_arch = "x86_64")]
-    if std::arch::is_x86_feature_detected!("avx") {
-        // SAFETY: `compact_avx` needs AVX alone, which the processor was
-        // just found to have.
-        return unsafe { compact_avx::<N>(data, x, y) };
-    }
-    compact_plain::<N>(data, x, y)
-}
-
-/// [`compact_plain`] compiled for AVX (see [`wide_avx`]).
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx")]
-fn compact_avx<const N: usize>(data: &[f64], x: &[f64], y: &mut [f64]) {
-    compact_plain::<N>(data, x, y)
-}
-
-/// The loop of [`compact`].
-#[inline(always)]
-fn compact_plain<const N: usize>(data: &[f64], x: &[f64], y: &mut [f64]) {
-    let y: &mut [f64; N] = y.try_into().expect("y has as many entries as M has rows");
-    let mut acc = [0.0f64; N];
-    // Runtime-length slices: the compiler keeps the column loop rolled.
-    for (col, &xj) in data.chunks_exact(N).zip(x) {
-        if xj != 0.0 {
-            let col: &[f64; N] = col.try_into().expect("chunks of N");
-            for i in 0..N {
-                acc[i] += col[i] * xj;
-            }
-        }
-    }
-    *y = acc;
+    columns::<N, false>(data, x, y)
 }
 
 /// [`compact`] for 13 to 20 entries (a twelve-phase converter has 17):
@@ -525,43 +495,61 @@ fn compact_plain<const N: usize>(data: &[f64], x: &[f64], y: &mut [f64]) {
 /// changes none (a sum that starts at +0 never becomes −0), so the bits
 /// are those of [`compact`]; the branch and the column-by-column slices
 /// of the general loop cost 1,500 instructions a product at 17 entries.
-///
-/// On a processor with AVX the same loop runs four rows to an instruction
-/// instead of two ([`wide_avx`]): multiplications and additions, never
-/// fused, in the same order, so the same bits on every processor.
 #[inline(never)]
 fn wide<const N: usize>(data: &[f64], x: &[f64], y: &mut [f64]) {
-    #[cfg(target_arch = "x86_64")]
-    if std::arch::is_x86_feature_detected!("avx") {
-        // SAFETY: `wide_avx` needs AVX alone, which the processor was
-        // just found to have.
-        return unsafe { wide_avx::<N>(data, x, y) };
-    }
-    wide_plain::<N>(data, x, y)
+    columns::<N, true>(data, x, y)
 }
 
-/// [`wide_plain`] compiled for AVX (256-bit vectors, no fused
+/// y = M x column by column for an N×N matrix: every column if `EVERY`
+/// ([`wide`]), else those of the non-zero entries of x ([`compact`]).
+/// On a processor with AVX the same loop runs four rows to an instruction
+/// instead of two ([`columns_avx`]): multiplications and additions, never
+/// fused, in the same order, so the same bits on every processor.
+#[inline(always)]
+fn columns<const N: usize, const EVERY: bool>(data: &[f64], x: &[f64], y: &mut [f64]) {
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx") {
+        // SAFETY: `columns_avx` needs AVX alone, which the processor was
+        // just found to have.
+        return unsafe { columns_avx::<N, EVERY>(data, x, y) };
+    }
+    columns_plain::<N, EVERY>(data, x, y)
+}
+
+/// [`columns_plain`] compiled for AVX (256-bit vectors, no fused
 /// multiply–add, so the operations and their rounding are those of the
 /// plain build).
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "avx")]
-fn wide_avx<const N: usize>(data: &[f64], x: &[f64], y: &mut [f64]) {
-    wide_plain::<N>(data, x, y)
+fn columns_avx<const N: usize, const EVERY: bool>(data: &[f64], x: &[f64], y: &mut [f64]) {
+    columns_plain::<N, EVERY>(data, x, y)
 }
 
-/// The loop of [`wide`].
+/// The loop of [`columns`].
 #[inline(always)]
-fn wide_plain<const N: usize>(data: &[f64], x: &[f64], y: &mut [f64]) {
+fn columns_plain<const N: usize, const EVERY: bool>(data: &[f64], x: &[f64], y: &mut [f64]) {
     let y: &mut [f64; N] = y.try_into().expect("y has as many entries as M has rows");
-    let x: &[f64; N] = x
-        .try_into()
-        .expect("x has as many entries as M has columns");
-    let data: &[f64] = &data[..N * N];
     let mut acc = [0.0f64; N];
-    for (col, &xj) in data.chunks_exact(N).zip(x) {
-        let col: &[f64; N] = col.try_into().expect("chunks of N");
-        for i in 0..N {
-            acc[i] += col[i] * xj;
+    if EVERY {
+        let x: &[f64; N] = x
+            .try_into()
+            .expect("x has as many entries as M has columns");
+        let data: &[f64] = &data[..N * N];
+        for (col, &xj) in data.chunks_exact(N).zip(x) {
+            let col: &[f64; N] = col.try_into().expect("chunks of N");
+            for i in 0..N {
+                acc[i] += col[i] * xj;
+            }
+        }
+    } else {
+        // Runtime-length slices: the compiler keeps the column loop rolled.
+        for (col, &xj) in data.chunks_exact(N).zip(x) {
+            if xj != 0.0 {
+                let col: &[f64; N] = col.try_into().expect("chunks of N");
+                for i in 0..N {
+                    acc[i] += col[i] * xj;
+                }
+            }
         }
     }
     *y = acc;
