@@ -365,12 +365,12 @@ impl GuardLine {
 }
 
 /// Rows' non-zero entries packed one after another in one array, each
-/// row closed by an entry of index [`PackedRows::END`] whose number is the
-/// row's tag: the same products in the same order as each row's
-/// [`Sparse`], so the same bits, in one pass over one array instead of a
-/// vector per row. The guard checks of every instant go through all of a
-/// mode's guards; a twelve-phase converter's twelve rows, each behind its
-/// own pointer, cost more in the loads than in the products.
+/// row closed by an entry of index [`PackedRows::END`]: the same products
+/// in the same order as each row's [`Sparse::dot`], so the same bits, in
+/// one pass over one array instead of a vector per row. A replay checks
+/// the cutset rows its transition remembered at every instant; each
+/// behind its own pointer, they cost more in the loads than in the
+/// products.
 #[derive(Clone, Debug, Default)]
 pub(crate) struct PackedRows {
     entries: Vec<(u32, f64)>,
@@ -381,13 +381,13 @@ impl PackedRows {
     /// The index that closes a row.
     const END: u32 = u32::MAX;
 
-    /// The rows of `rows`, in order, each with its tag.
-    pub(crate) fn of<'a>(rows: impl IntoIterator<Item = (&'a Sparse, f64)>) -> PackedRows {
+    /// The rows of `rows`, in order.
+    pub(crate) fn of<'a>(rows: impl IntoIterator<Item = &'a Sparse>) -> PackedRows {
         let mut entries = vec![];
         let mut count = 0;
-        for (r, tag) in rows {
+        for r in rows {
             entries.extend(r.entries().into_iter().map(|(k, a)| (k as u32, a)));
-            entries.push((Self::END, tag));
+            entries.push((Self::END, 0.0));
             count += 1;
         }
         PackedRows {
@@ -401,25 +401,22 @@ impl PackedRows {
         self.rows
     }
 
-    /// Calls `f(row, Σ rowₖ zₖ, Σ |rowₖ zₖ|, tag)` for each row in
-    /// order (the sums of [`Sparse::dot_and_magnitude`]) until it
-    /// returns false; false if it did.
+    /// Calls `f(row, Σ rowₖ zₖ)` for each row in order (the sum of
+    /// [`Sparse::dot`]) until it returns false; false if it did.
     #[inline(always)]
-    pub(crate) fn all(&self, z: &[f64], mut f: impl FnMut(usize, f64, f64, f64) -> bool) -> bool {
-        let (mut v, mut s) = (0.0, 0.0);
+    pub(crate) fn all(&self, z: &[f64], mut f: impl FnMut(usize, f64) -> bool) -> bool {
+        let mut v = 0.0;
         let mut row = 0;
         for &(k, c) in &self.entries {
             if k == Self::END {
-                if !f(row, v, s, c) {
+                if !f(row, v) {
                     return false;
                 }
                 row += 1;
-                (v, s) = (0.0, 0.0);
+                v = 0.0;
                 continue;
             }
-            let p = c * z[k as usize];
-            v += p;
-            s += p.abs();
+            v += c * z[k as usize];
         }
         true
     }
@@ -741,9 +738,9 @@ mod tests {
         }
     }
 
-    /// Packed rows give each row's sums to the bit of its own `Sparse`
-    /// (the same products in the same order), with their tags, empty rows
-    /// included, and stop where the callback says so.
+    /// Packed rows give each row's sum to the bit of its own `Sparse`
+    /// (the same products in the same order), empty rows included, and
+    /// stop where the callback says so.
     #[test]
     fn packed_rows_give_the_bits_of_each_sparse_row() {
         let z = [0.3, -1.7e-3, 2.5e4, 1.0, -7.25, 0.0, 1e-300];
@@ -754,23 +751,21 @@ mod tests {
             vec![0.0, 0.0, 0.0, 0.0, 0.0, 0.0, -3.0],
         ];
         let rows: Vec<Sparse> = dense.iter().map(|r| Sparse::of(r)).collect();
-        let packed = PackedRows::of(rows.iter().zip([1.0, 0.0, 1.0, 0.0]));
+        let packed = PackedRows::of(&rows);
+        assert_eq!(packed.len(), 4);
         let mut seen = vec![];
-        assert!(packed.all(&z, |r, v, s, tag| {
-            seen.push((r, v.to_bits(), s.to_bits(), tag));
+        assert!(packed.all(&z, |r, v| {
+            seen.push((r, v.to_bits()));
             true
         }));
         let want: Vec<_> = rows
             .iter()
             .enumerate()
-            .map(|(r, row)| {
-                let (v, s) = row.dot_and_magnitude(&z);
-                (r, v.to_bits(), s.to_bits(), [1.0, 0.0, 1.0, 0.0][r])
-            })
+            .map(|(r, row)| (r, row.dot(&z).to_bits()))
             .collect();
         assert_eq!(seen, want);
         let mut calls = 0;
-        assert!(!packed.all(&z, |r, _, _, _| {
+        assert!(!packed.all(&z, |r, _| {
             calls += 1;
             r < 1
         }));

@@ -165,7 +165,7 @@ impl Simulator {
         let (rows, cut_by) = self.cut_rows(&cut_list);
         let cut_rows = PackedRows::of(
             rows.iter()
-                .map(|&(m, r)| (&self.modes[m as usize].h_rows[r as usize], 0.0)),
+                .map(|&(m, r)| &self.modes[m as usize].h_rows[r as usize]),
         );
         let t = Remembered {
             from: self.mode,
@@ -253,7 +253,7 @@ impl Simulator {
         // longer cuts is checked whole, as before.
         let still = if t.cut_rows.len() <= 64 {
             let mut cutting = 0u64;
-            t.cut_rows.all(z, |g, v, _, _| {
+            t.cut_rows.all(z, |g, v| {
                 if scales.cuts(v) {
                     cutting |= 1 << g;
                 }
