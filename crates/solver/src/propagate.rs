@@ -618,9 +618,15 @@ impl TaylorTerms {
 /// (the same bits); the derivative's coefficients (k+1)·cₖ₊₁ are evaluated
 /// the same way.
 pub(crate) fn poly(c: &[f64], s: f64) -> (f64, f64) {
-    let v = poly_value(c, s);
+    (poly_value(c, s), poly_slope(c, s))
+}
+
+/// The derivative of Σ cₖ σᵏ at σ alone, as [`poly`] gives it (the same
+/// bits).
+#[inline]
+pub(crate) fn poly_slope(c: &[f64], s: f64) -> f64 {
     let Some(d) = c.get(1..) else {
-        return (v, 0.0);
+        return 0.0;
     };
     let u = s * s;
     let mut i = d.len();
@@ -634,7 +640,7 @@ pub(crate) fn poly(c: &[f64], s: f64) -> (f64, f64) {
         e = e * u + (i + 1) as f64 * d[i];
         o = o * u + (i + 2) as f64 * d[i + 1];
     }
-    (v, e + s * o)
+    e + s * o
 }
 
 /// Evaluates Σ cₖ σᵏ as E(σ²) + σ·O(σ²), E and O the even and odd parts

@@ -564,10 +564,9 @@ pub(super) struct GuardPolys {
     /// needs thirty. (A guard affine in time, r·M² = 0, keeps two; one
     /// that cannot move keeps one.)
     kept: Vec<usize>,
-    /// Per guard: σ of its latest crossing over this length, where the
-    /// next search starts (the result does not depend on it where the
-    /// crossing is clean; it saves about half of the evaluations).
-    hints: Vec<Option<f64>>,
+    /// Per guard: its latest crossings over this length, where the next
+    /// search starts (see [`Hints`]).
+    hints: Vec<Hints>,
     /// ‖M‖₁ of the mode (raw, not balanced), for the reach of `anchor`.
     norm: f64,
     /// e^{M·t₀} at an earlier crossing t₀ into this length: the state at
@@ -575,6 +574,45 @@ pub(super) struct GuardPolys {
     /// applied to e^{M·t₀}·z, a product and a few Taylor terms of the
     /// short remainder (`Shortcuts::nearby_lengths`).
     anchor: Option<(f64, DMatrix<f64>)>,
+}
+
+/// The two latest crossings σ of one guard over one cached length,
+/// for the next search to start from where the crossing is expected: the
+/// latest moved on by the step between the two, in ulps. The result does
+/// not depend on the start where the crossing is clean; a settled
+/// converter's crossing drifts by a steady number of ulps a period (60 in
+/// the phases bench's discontinuous buck on its steady state, which its
+/// latest crossing alone never caught), with a few ulps of rounding on
+/// top, and one settling moves by a steady fraction of itself, so that
+/// the step leaves a thousandth of its error to Newton's method.
+#[derive(Clone, Copy, Debug, Default)]
+struct Hints {
+    latest: Option<f64>,
+    before: Option<f64>,
+}
+
+impl Hints {
+    fn push(&mut self, s: f64) {
+        self.before = self.latest;
+        self.latest = Some(s);
+    }
+
+    /// Where the next crossing is expected: the latest one plus the
+    /// step from the one before (both in (0, 1): the same sign, so their
+    /// bits are ordered as they are), the latest where the step leaves
+    /// (0, 1), none before a crossing.
+    fn expected(&self) -> Option<f64> {
+        let latest = self.latest?;
+        let Some(before) = self.before else {
+            return Some(latest);
+        };
+        let (l, b) = (latest.to_bits() as i64, before.to_bits() as i64);
+        let x = l
+            .checked_add(l - b)
+            .map(|x| f64::from_bits(x.max(0) as u64))
+            .filter(|&x| x > 0.0 && x < 1.0);
+        Some(x.unwrap_or(latest))
+    }
 }
 
 /// Largest ‖M‖₁·|t − t₀| for which a crossing's state is taken from the
@@ -642,7 +680,7 @@ impl GuardPolys {
             .collect();
         GuardPolys {
             bits: h.to_bits(),
-            hints: vec![None; rows.len()],
+            hints: vec![Hints::default(); rows.len()],
             norm: propagate::norm1(&mode.m),
             anchor: None,
             rows,
@@ -707,7 +745,7 @@ impl Simulator {
             propagate::rows_dot(&gp.rows[gi], z, coef);
             let scale = dot_slices(&gp.abs[gi], za_abs.as_slice());
             let tol = scales.guard_zero(&g.kind, scale);
-            if let Some(s) = guard_root(coef, tol, gp.hints[gi]) {
+            if let Some(s) = guard_root(coef, tol, gp.hints[gi].expected()) {
                 found = merge(found, s * h, bits_of(g), s, h);
                 if n_hits < hits.len() {
                     hits[n_hits] = (gi, s);
@@ -716,7 +754,7 @@ impl Simulator {
             }
         }
         for &(gi, s) in &hits[..n_hits] {
-            self.modes.caches[mi].polys[pi].hints[gi] = Some(s);
+            self.modes.caches[mi].polys[pi].hints[gi].push(s);
         }
         self.buf.za = za_abs;
         self.buf.coef = coef;
@@ -816,6 +854,31 @@ mod tests {
     use super::*;
     use crate::compile::Compiled;
     use crate::mode::ModeKey;
+
+    /// A crossing that drifts by a steady number of ulps a period is
+    /// expected where it lands; the first has no expectation, the second
+    /// the first; a step that would leave (0, 1) falls back to the latest.
+    #[test]
+    fn a_drifting_crossing_is_expected_where_it_lands() {
+        let mut h = Hints::default();
+        assert_eq!(h.expected(), None);
+        let s0 = 0.4375f64;
+        let at = |k: i64| f64::from_bits((s0.to_bits() as i64 - 60 * k) as u64);
+        h.push(at(0));
+        assert_eq!(h.expected(), Some(at(0)));
+        for k in 1..10 {
+            h.push(at(k));
+            assert_eq!(h.expected(), Some(at(k + 1)), "period {k}");
+        }
+        let mut edge = Hints::default();
+        edge.push(0.5);
+        edge.push(0.999_999_999_999);
+        assert_eq!(edge.expected(), Some(0.999_999_999_999));
+        let mut low = Hints::default();
+        low.push(0.5);
+        low.push(1e-300);
+        assert_eq!(low.expected(), Some(1e-300));
+    }
 
     /// A discontinuous buck's diode current over its 3 µs off interval
     /// keeps the terms of its own dynamics (the output filter's, ωh ≈
