@@ -56,13 +56,15 @@ struct Builder<'a> {
     /// Ramp inputs of the switches still to come.
     ramps: std::vec::IntoIter<Option<usize>>,
     n_x: usize,
-    n_u: usize,
+    /// Per input, the z index of its slope (`Compiled::slopes`).
+    slopes: &'a [Option<usize>],
 }
 
 /// Numbers the nodes and builds the branches of every element.
 ///
 /// `ramps` holds one entry per switch in circuit order (its ramp input, if
-/// it has a transition model); `n_x` and `n_u` are the final counts.
+/// it has a transition model); `n_x` is the final count of states and
+/// `slopes` the z indices of the inputs' slopes (`Compiled::slopes`).
 ///
 /// # Errors
 ///
@@ -73,7 +75,7 @@ pub(super) fn branches(
     signals: &[(String, SignalShape)],
     ramps: Vec<Option<usize>>,
     n_x: usize,
-    n_u: usize,
+    slopes: &[Option<usize>],
 ) -> Result<Network, SolverError> {
     let mut b = Builder {
         nodes: NodeNumbers {
@@ -92,7 +94,7 @@ pub(super) fn branches(
         signals,
         ramps: ramps.into_iter(),
         n_x,
-        n_u,
+        slopes,
     };
     for e in &circuit.elements {
         match e {
@@ -230,7 +232,7 @@ impl Builder<'_> {
         let transition = match (&s.transition, input) {
             (Some(t), Some(k)) => Some(TransitionInfo {
                 value: self.n_x + k,
-                slope: self.n_x + self.n_u + k,
+                slope: self.slopes[k].expect("a ramp input has a slope entry"),
                 off: (t.turn_off.voltage_rate, t.turn_off.current_rate),
                 on: (t.turn_on.voltage_rate, t.turn_on.current_rate),
                 current_out: usize::MAX,

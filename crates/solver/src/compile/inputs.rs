@@ -43,6 +43,10 @@ pub(super) struct Inputs {
     n_x: usize,
     /// Number of inputs so far (`u_0 = 1` included).
     pub n_u: usize,
+    /// Per input: whether it may ramp (a piecewise-linear waveform, a
+    /// switch's transition ramp), so that z holds its slope too. The unit
+    /// input and constant waveforms never do.
+    pub ramping: Vec<bool>,
     /// Every source entry, circuit sources first.
     pub sources: Vec<SourceRef>,
     /// Oscillators: (sin state, cos state, ω).
@@ -54,6 +58,8 @@ impl Inputs {
     /// it; returns the input's z index and the source entry's index.
     fn push_input(&mut self, name: String, waveform: Stimulus, internal: bool) -> (usize, usize) {
         let z = self.n_x + self.n_u;
+        self.ramping
+            .push(!matches!(waveform, Stimulus::Constant { .. }));
         self.sources.push(SourceRef {
             name,
             terms: vec![(z, 1.0)],
@@ -63,6 +69,24 @@ impl Inputs {
         });
         self.n_u += 1;
         (z, self.sources.len() - 1)
+    }
+}
+
+impl Inputs {
+    /// Per input, the z index of its slope: after the inputs, in input
+    /// order, for the inputs that may ramp only (`ramping`); `None` for
+    /// the others, whose slope is zero for good.
+    pub fn slopes(&self) -> Vec<Option<usize>> {
+        let mut next = self.n_x + self.n_u;
+        self.ramping
+            .iter()
+            .map(|&r| {
+                r.then(|| {
+                    next += 1;
+                    next - 1
+                })
+            })
+            .collect()
     }
 }
 
@@ -178,6 +202,7 @@ pub(super) fn circuit_sources(layout: &StateLayout) -> Inputs {
     let mut inputs = Inputs {
         n_x,
         n_u: 1, // u_0 = 1
+        ramping: vec![false],
         sources: vec![],
         oscillators: vec![],
     };
@@ -295,6 +320,7 @@ pub(super) fn ramp_inputs(circuit: &Circuit, inputs: &mut Inputs) -> Vec<Option<
             if s.transition.is_some() {
                 ramps.push(Some(inputs.n_u));
                 inputs.n_u += 1;
+                inputs.ramping.push(true);
             } else {
                 ramps.push(None);
             }

@@ -5,7 +5,9 @@
 //! currents, capacitor voltages and the two states of each sine source's
 //! oscillator; `u` holds the value of every piecewise-linear or constant
 //! source plus a constant `1` (index 0 of `u`, used for diode forward
-//! voltages); `u'` holds their slopes. Between events `z' = M z` exactly, so
+//! voltages); `u'` holds the slopes of the inputs that may ramp
+//! (piecewise-linear sources, switch transition ramps; see
+//! [`Compiled::slopes`]), a constant's being zero for good. Between events `z' = M z` exactly, so
 //! one matrix exponential advances everything, inputs included (this is Van
 //! Loan's augmented matrix written as a state).
 //!
@@ -184,6 +186,14 @@ pub(crate) struct Compiled {
     pub branches: Vec<Branch>,
     pub n_x: usize,
     pub n_u: usize,
+    /// Per input k (u_k at z[n_x + k]), the z index of its slope, after
+    /// the inputs; `None` for an input that never ramps (the unit input,
+    /// a constant source or threshold), whose slope is zero for good and
+    /// takes no entry of z: a buck from a DC source has z = [iL, vC, 1,
+    /// Vin], not six entries with two zeros in every product.
+    pub slopes: Vec<Option<usize>>,
+    /// How many of `slopes` are entries of z.
+    pub n_slopes: usize,
     pub state_names: Vec<String>,
     /// Energy weights: (state index, group) handled via groups and caps.
     pub groups: Vec<InductorGroup>,
@@ -205,7 +215,7 @@ pub(crate) struct Compiled {
 impl Compiled {
     /// Length of the extended state `[x; u; u']`.
     pub fn n_z(&self) -> usize {
-        self.n_x + 2 * self.n_u
+        self.n_x + self.n_u + self.n_slopes
     }
 
     /// Each x state's energy scale for the Taylor series' stopping test
@@ -247,9 +257,11 @@ impl Compiled {
         let set_points = inputs::set_points(circuit, &mut input);
         let ramps = inputs::ramp_inputs(circuit, &mut input);
         let n_u = input.n_u;
-        let comparators = inputs::threshold_rows(thresholds, n_x + 2 * n_u);
+        let slopes = input.slopes();
+        let n_slopes = slopes.iter().flatten().count();
+        let comparators = inputs::threshold_rows(thresholds, n_x + n_u + n_slopes);
         // Pass 2: branches.
-        let net = branches::branches(circuit, &signals, ramps, n_x, n_u)?;
+        let net = branches::branches(circuit, &signals, ramps, n_x, &slopes)?;
         // Outputs, compensators, and what reads outputs by name.
         let mut outputs = outputs::network_outputs(&net.nodes, &net.branches);
         let compensators =
@@ -259,6 +271,8 @@ impl Compiled {
             branches: net.branches,
             n_x,
             n_u,
+            slopes,
+            n_slopes,
             state_names: layout.names,
             groups: net.groups,
             caps: net.caps,

@@ -239,7 +239,7 @@ fn cancel(m: &mut DMatrix<f64>, dz: &DMatrix<f64>, made_of: &DMatrix<f64>) {
 
 #[cfg(test)]
 mod tests {
-    use fluxstep_netlist::Circuit;
+    use fluxstep_netlist::{Circuit, Point, Stimulus};
 
     use crate::mode::testing::{buck, built, near, source_column, state};
     use crate::mode::ConstraintKind;
@@ -247,7 +247,8 @@ mod tests {
     /// Closing a switch from a source onto a capacitor: the loop fixes the
     /// capacitor at the source's voltage, so the jump sets it to the
     /// source's input whatever it held, and afterwards moves with the
-    /// input's slope alone (common practice).
+    /// input's slope alone (common practice): none for a constant source,
+    /// which has no slope entry in z, the ramp's for a ramping one.
     #[test]
     fn capacitor_loop_across_a_source_jumps_to_the_source_voltage() {
         let c = Circuit::builder()
@@ -268,10 +269,41 @@ mod tests {
             let want = if col == u { 1.0 } else { 0.0 };
             assert!(near(mode.p[(v, col)], want, 1.0), "P[v,{col}]");
         }
-        let slope = u + cc.n_u;
+        // A constant source has no slope entry in z: the capacitor holds.
+        assert_eq!(cc.slopes[u - cc.n_x], None);
+        assert_eq!(cc.n_z(), cc.n_x + cc.n_u);
         for col in 0..cc.n_z() {
+            assert_eq!(mode.m[(v, col)], 0.0, "M[v,{col}]");
+        }
+        // A ramping one has: the capacitor follows its slope.
+        let ramp = Stimulus::PiecewiseLinear {
+            points: vec![
+                Point {
+                    time: 0.0,
+                    value: 10.0,
+                },
+                Point {
+                    time: 1e-3,
+                    value: 12.0,
+                },
+            ],
+            period: None,
+        };
+        let c2 = Circuit::builder()
+            .voltage_waveform("Vin", "in", "gnd", ramp)
+            .switch("S1", "in", "c", "drive")
+            .capacitor("C1", "c", "gnd", 1e-6)
+            .resistor("R", "c", "gnd", 1e3)
+            .pwm("drive", 100e3, 0.5)
+            .build()
+            .expect("valid");
+        let (cc2, ramped) = built(&c2, 1, 0);
+        let (v2, u2) = (state(&cc2, "C1.voltage"), source_column(&cc2, "Vin"));
+        let slope = cc2.slopes[u2 - cc2.n_x].expect("a ramping source has a slope entry");
+        assert_eq!(cc2.n_z(), cc2.n_x + cc2.n_u + 1);
+        for col in 0..cc2.n_z() {
             let want = if col == slope { 1.0 } else { 0.0 };
-            assert!(near(mode.m[(v, col)], want, 1.0), "M[v,{col}]");
+            assert!(near(ramped.m[(v2, col)], want, 1.0), "M[v,{col}]");
         }
         // Open, the capacitor discharges into R alone: no constraint.
         let (_, open) = built(&c, 0, 0);

@@ -126,8 +126,10 @@ impl Network {
             d[(s, co)] = w;
             d[(co, s)] = -w;
         }
-        for k in 0..cc.n_u {
-            d[(nx + k, nx + cc.n_u + k)] = 1.0;
+        for (k, slope) in cc.slopes.iter().enumerate() {
+            if let Some(s) = *slope {
+                d[(nx + k, s)] = 1.0;
+            }
         }
         d
     }

@@ -6,7 +6,8 @@ use fluxstep_netlist::Stimulus;
 use super::Simulator;
 
 impl Simulator {
-    /// Sets the input part of z (values and slopes) for time t; returns a
+    /// Sets the input part of z (values, and the slopes of the inputs
+    /// that ramp) for time t; returns a
     /// bit set of the sources that reached a corner at t.
     ///
     /// Constant inputs are written again every time on purpose: a cached
@@ -14,7 +15,6 @@ impl Simulator {
     #[inline(always)]
     pub(super) fn set_inputs(&mut self, t: f64) -> u64 {
         let nx = self.cc.n_x;
-        let nu = self.cc.n_u;
         if let Some(list) = &self.sched.const_inputs {
             // Every source constant: the same entries every time, no corners.
             let z = self.z.as_mut_slice();
@@ -31,8 +31,8 @@ impl Simulator {
                 continue;
             };
             if let Stimulus::Constant { value } = w {
+                // No slope entry: a constant's slope is zero for good.
                 self.z[nx + k] = *value;
-                self.z[nx + nu + k] = 0.0;
                 continue;
             }
             let p = w.piece_at(t).expect("piecewise-linear source has a piece");
@@ -40,17 +40,19 @@ impl Simulator {
                 corners |= 1 << si;
             }
             self.z[nx + k] = p.at(t);
-            self.z[nx + nu + k] = p.slope;
+            if let Some(s) = self.cc.slopes[k] {
+                self.z[s] = p.slope;
+            }
         }
         corners
     }
 
     /// The writes of [`Simulator::set_inputs`] when every piecewise-linear
-    /// source is constant (the entry of 1, each value and its zero slope),
+    /// source is constant (the entry of 1 and each value: a constant has
+    /// no slope entry),
     /// in the order `set_inputs` makes them; `None` otherwise.
     pub(super) fn constant_inputs(&self) -> Option<Vec<(usize, f64)>> {
         let nx = self.cc.n_x;
-        let nu = self.cc.n_u;
         let mut list = vec![(nx, 1.0)];
         for &si in &self.sched.pwl_sources {
             let s = &self.cc.sources[si];
@@ -61,7 +63,6 @@ impl Simulator {
                 return None;
             };
             list.push((nx + k, *value));
-            list.push((nx + nu + k, 0.0));
         }
         Some(list)
     }
