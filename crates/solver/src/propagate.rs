@@ -272,7 +272,7 @@ fn sizes(x: &[f64], w: &[f64]) -> (f64, f64) {
 /// is not NaN (every caller starts from 0 and takes absolute values), in
 /// one instruction where `f64::max`'s handling of a NaN `m` takes four.
 #[inline(always)]
-fn larger(m: f64, v: f64) -> f64 {
+pub(crate) fn larger(m: f64, v: f64) -> f64 {
     if v > m {
         v
     } else {

@@ -4,6 +4,7 @@
 
 use crate::compile::{BranchKind, Compiled, SourceRef};
 use crate::crossing::Scales;
+use crate::propagate::larger;
 
 /// The state entries whose largest magnitude sets the run's scales, and
 /// the scales seen so far.
@@ -74,26 +75,28 @@ impl ScaleWatch {
     /// Updates the largest magnitudes with the state `z` (the circuit's
     /// `sources`) and returns them: the largest ever seen so far in the
     /// run (never the present value alone: at a located zero crossing the
-    /// only inductor current is itself ~1e-17 A).
+    /// only inductor current is itself ~1e-17 A). A NaN entry leaves them
+    /// as they were (`propagate::larger`, as `f64::max` would: the scales
+    /// start at 0 and never hold a NaN).
     #[inline(always)]
     pub(super) fn update(&mut self, z: &[f64], sources: &[SourceRef]) -> Scales {
         let mut i_s: f64 = self.seen.current;
         for &s in &self.current_states {
-            i_s = i_s.max(z[s].abs());
+            i_s = larger(i_s, z[s].abs());
         }
         // Capacitor voltages and single-term sources as (index, factor);
         // the maximum does not depend on the order.
         let mut v_s: f64 = self.seen.voltage;
         for &(k, f) in &self.voltage_terms {
-            v_s = v_s.max((f * z[k]).abs());
+            v_s = larger(v_s, (f * z[k]).abs());
         }
         for &si in &self.multi_term_sources {
             let v: f64 = sources[si].terms.iter().map(|&(k, f)| f * z[k]).sum();
-            v_s = v_s.max(v.abs());
+            v_s = larger(v_s, v.abs());
         }
         // Without inductors: the voltage scale through the largest
         // conductance (0 otherwise, which leaves the inductor currents').
-        i_s = i_s.max(v_s * self.conductance);
+        i_s = larger(i_s, v_s * self.conductance);
         self.seen = Scales {
             current: i_s,
             voltage: v_s,
