@@ -40,7 +40,17 @@ pub(crate) fn guard_root(coef: &[f64], tol: f64, hint: Option<f64>) -> Option<f6
             let newton = h - at / propagate::poly_slope(coef, h);
             if let Some(points) = window_at(newton).filter(|_| through) {
                 let v = propagate::poly_values(coef, points);
-                let first_negative = v.iter().position(|&p| p < 0.0);
+                // The usual window changes sign once: its points at or
+                // above zero, counted without a branch, are then the
+                // first ones (where the answer falls varies from period
+                // to period, and a loop that stops there would mispredict
+                // its exit); any other window is read point by point.
+                let k = v.iter().filter(|&&p| p >= 0.0).count();
+                let first_negative = if v[..k].iter().all(|&p| p >= 0.0) {
+                    (k < WINDOW).then_some(k)
+                } else {
+                    v.iter().position(|&p| p < 0.0)
+                };
                 if let Some(i @ 1..) = first_negative {
                     return Some(points[i]);
                 }
