@@ -1022,12 +1022,8 @@ fn taylor_general(
             let f = d / k as f64;
             let tn = matvec_scaled(m, live, &s.term, &mut s.next, f);
             std::mem::swap(&mut s.term, &mut s.next);
-            let mut sn: f64 = tail_max;
-            for (x, &t) in s.x[..live].iter_mut().zip(&s.term[..live]) {
-                *x += t;
-                sn = larger(sn, x.abs());
-            }
-            if tn == 0.0 || (k >= 3 && tn <= sn * 1e-18 && negligible_in_energy(&s.term, &s.x, w)) {
+            let sn = add_term(&mut s.x[..live], &s.term[..live], tail_max);
+            if taylor_done(k, (tn, sn), &s.term, &s.x, w) {
                 break;
             }
         }
@@ -1035,12 +1031,32 @@ fn taylor_general(
     out.copy_from_slice(&s.x);
 }
 
+/// Adds a Taylor term's live entries to the state's; returns the largest
+/// magnitude of the state, `tail_max` that of its entries past them.
+#[inline(always)]
+fn add_term(x: &mut [f64], term: &[f64], tail_max: f64) -> f64 {
+    let mut sn = tail_max;
+    for (xi, &t) in x.iter_mut().zip(term) {
+        *xi += t;
+        sn = larger(sn, xi.abs());
+    }
+    sn
+}
+
+/// Whether the series stops after term `k` (largest magnitude `tn`; the
+/// state's `sn`): a zero term, or from the third on one below 1e-18 of
+/// the state and negligible in energy units too.
+#[inline(always)]
+fn taylor_done(k: usize, (tn, sn): (f64, f64), term: &[f64], x: &[f64], w: &[f64]) -> bool {
+    tn == 0.0 || (k >= 3 && tn <= sn * 1e-18 && negligible_in_energy(term, x, w))
+}
+
 /// [`advance_into`]'s Taylor sub-steps for an N-entry z (N×N `data`,
 /// column-major): `n` sub-steps of `d`, from `z` into `out`. Term for
 /// term the operations of the general loop there (`matvec_scaled`'s
-/// products, zero entries skipped, then the scaling; the sum over the
-/// live rows; the same stopping test), so the same bits, with the state
-/// and the terms in fixed arrays instead of the scratch vectors.
+/// fixed-size product and scaling, `add_term`, `taylor_done`), so the
+/// same bits, with the state and the terms in fixed arrays instead of the
+/// scratch vectors.
 #[inline(always)]
 fn taylor_fixed<const N: usize>(
     data: &[f64],
@@ -1059,29 +1075,11 @@ fn taylor_fixed<const N: usize>(
         let tail_max = amax(&x[live..]);
         for k in 1..60 {
             let f = d / k as f64;
-            let mut acc = [0.0f64; N];
-            for (j, &tj) in term.iter().enumerate() {
-                if tj != 0.0 {
-                    let col: &[f64; N] = data[j * N..(j + 1) * N]
-                        .try_into()
-                        .expect("a column of an N×N matrix has N entries");
-                    for i in 0..N {
-                        acc[i] += col[i] * tj;
-                    }
-                }
-            }
-            let mut tn: f64 = 0.0;
-            for a in acc.iter_mut() {
-                *a *= f;
-                tn = larger(tn, a.abs());
-            }
-            term = acc;
-            let mut sn: f64 = tail_max;
-            for (xi, &t) in x[..live].iter_mut().zip(&term[..live]) {
-                *xi += t;
-                sn = larger(sn, xi.abs());
-            }
-            if tn == 0.0 || (k >= 3 && tn <= sn * 1e-18 && negligible_in_energy(&term, &x, w)) {
+            let mut next = [0.0f64; N];
+            let tn = scaled_fixed::<N>(data, &term, &mut next, f);
+            term = next;
+            let sn = add_term(&mut x[..live], &term[..live], tail_max);
+            if taylor_done(k, (tn, sn), &term, &x, w) {
                 break;
             }
         }
