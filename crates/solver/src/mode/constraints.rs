@@ -251,14 +251,17 @@ mod tests {
     /// which has no slope entry in z, the ramp's for a ramping one.
     #[test]
     fn capacitor_loop_across_a_source_jumps_to_the_source_voltage() {
-        let c = Circuit::builder()
-            .voltage_source("Vin", "in", "gnd", 10.0)
-            .switch("S1", "in", "c", "drive")
-            .capacitor("C1", "c", "gnd", 1e-6)
-            .resistor("R", "c", "gnd", 1e3)
-            .pwm("drive", 100e3, 0.5)
-            .build()
-            .expect("valid");
+        let across = |source: Stimulus| {
+            Circuit::builder()
+                .voltage_waveform("Vin", "in", "gnd", source)
+                .switch("S1", "in", "c", "drive")
+                .capacitor("C1", "c", "gnd", 1e-6)
+                .resistor("R", "c", "gnd", 1e3)
+                .pwm("drive", 100e3, 0.5)
+                .build()
+                .expect("valid")
+        };
+        let c = across(Stimulus::constant(10.0));
         let (cc, mode) = built(&c, 1, 0);
         assert!(mode.problem.is_none());
         let (v, u) = (state(&cc, "C1.voltage"), source_column(&cc, "Vin"));
@@ -289,15 +292,7 @@ mod tests {
             ],
             period: None,
         };
-        let c2 = Circuit::builder()
-            .voltage_waveform("Vin", "in", "gnd", ramp)
-            .switch("S1", "in", "c", "drive")
-            .capacitor("C1", "c", "gnd", 1e-6)
-            .resistor("R", "c", "gnd", 1e3)
-            .pwm("drive", 100e3, 0.5)
-            .build()
-            .expect("valid");
-        let (cc2, ramped) = built(&c2, 1, 0);
+        let (cc2, ramped) = built(&across(ramp), 1, 0);
         let (v2, u2) = (state(&cc2, "C1.voltage"), source_column(&cc2, "Vin"));
         let slope = cc2.slopes[u2 - cc2.n_x].expect("a ramping source has a slope entry");
         assert_eq!(cc2.n_z(), cc2.n_x + cc2.n_u + 1);
