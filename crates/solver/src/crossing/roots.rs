@@ -37,8 +37,10 @@ pub(crate) fn guard_root(coef: &[f64], tol: f64, hint: Option<f64>) -> Option<f6
                 return Some(h);
             }
             let mut known = (h, at);
-            let newton = h - at / propagate::poly_slope(coef, h);
-            if let Some(points) = window_at(newton).filter(|_| through) {
+            // Only a crossing through the end is looked for here (a dip
+            // takes `stationary` below).
+            let newton = through.then(|| h - at / propagate::poly_slope(coef, h));
+            if let Some(points) = newton.and_then(window_at) {
                 let v = propagate::poly_values(coef, points);
                 // The usual window changes sign once: its points at or
                 // above zero, counted without a branch, are then the
