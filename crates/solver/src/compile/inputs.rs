@@ -70,9 +70,7 @@ impl Inputs {
         self.n_u += 1;
         (z, self.sources.len() - 1)
     }
-}
 
-impl Inputs {
     /// Per input, the z index of its slope: after the inputs, in input
     /// order, for the inputs that may ramp only (`ramping`); `None` for
     /// the others, whose slope is zero for good.

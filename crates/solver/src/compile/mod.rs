@@ -192,8 +192,6 @@ pub(crate) struct Compiled {
     /// takes no entry of z: a buck from a DC source has z = [iL, vC, 1,
     /// Vin], not six entries with two zeros in every product.
     pub slopes: Vec<Option<usize>>,
-    /// How many of `slopes` are entries of z.
-    pub n_slopes: usize,
     pub state_names: Vec<String>,
     /// Energy weights: (state index, group) handled via groups and caps.
     pub groups: Vec<InductorGroup>,
@@ -215,7 +213,7 @@ pub(crate) struct Compiled {
 impl Compiled {
     /// Length of the extended state `[x; u; u']`.
     pub fn n_z(&self) -> usize {
-        self.n_x + self.n_u + self.n_slopes
+        self.n_x + self.n_u + self.slopes.iter().flatten().count()
     }
 
     /// Each x state's energy scale for the Taylor series' stopping test
@@ -258,8 +256,8 @@ impl Compiled {
         let ramps = inputs::ramp_inputs(circuit, &mut input);
         let n_u = input.n_u;
         let slopes = input.slopes();
-        let n_slopes = slopes.iter().flatten().count();
-        let comparators = inputs::threshold_rows(thresholds, n_x + n_u + n_slopes);
+        let n_z = n_x + n_u + slopes.iter().flatten().count();
+        let comparators = inputs::threshold_rows(thresholds, n_z);
         // Pass 2: branches.
         let net = branches::branches(circuit, &signals, ramps, n_x, &slopes)?;
         // Outputs, compensators, and what reads outputs by name.
@@ -272,7 +270,6 @@ impl Compiled {
             n_x,
             n_u,
             slopes,
-            n_slopes,
             state_names: layout.names,
             groups: net.groups,
             caps: net.caps,
