@@ -27,6 +27,8 @@
 //! baseline together, or one round of nine. The ratios in the same
 //! process are what counts.
 //!
+//! The word `located` runs the last two rows alone.
+//!
 //! For counting instructions, one circuit alone: a number of phases,
 //! `ccm`, `dcm` (settling) or `dcms` (on its steady state), then
 //! optionally the periods (default 20,000), and anywhere the word
@@ -267,7 +269,13 @@ fn main() {
     // or falls in one round of nine.
     let rounds = 9;
     let reps = 3;
-    let sizes = [1usize, 2, 4, 8, 12];
+    // `located`: the located rows alone (the scheduled and discontinuous
+    // bucks), for comparing two builds of the located path quickly.
+    let sizes: &[usize] = if words.contains(&"located") {
+        &[]
+    } else {
+        &[1, 2, 4, 8, 12]
+    };
     let dcms = [
         // On its periodic steady state (a regression test of a settled
         // design), the located instants come back within a few ulps; from

@@ -958,6 +958,8 @@ pub(crate) struct Scratch {
     term: Vec<f64>,
     next: Vec<f64>,
     x: Vec<f64>,
+    /// The odd columns' sums of [`term_product`].
+    odd: Vec<f64>,
 }
 
 /// e^{Mτ} z into `out`, as [`advance`] does, without allocating (only the
@@ -1012,6 +1014,7 @@ fn taylor_general(
     s.term.resize(nz, 0.0);
     s.next.resize(nz, 0.0);
     s.x.resize(nz, 0.0);
+    s.odd.resize(nz, 0.0);
     s.x.copy_from_slice(z);
     for _ in 0..n {
         s.term.copy_from_slice(&s.x);
@@ -1020,7 +1023,10 @@ fn taylor_general(
         let tail_max = amax(&s.x[live..]);
         for k in 1..60 {
             let f = d / k as f64;
-            let tn = matvec_scaled(m, live, &s.term, &mut s.next, f);
+            // The first term's product takes every column; the later
+            // terms' entries past `live` are zero.
+            let cols = if k == 1 { nz } else { live };
+            let tn = term_product(m, (live, cols), &s.term, (&mut s.next, &mut s.odd), f);
             std::mem::swap(&mut s.term, &mut s.next);
             let sn = add_term(&mut s.x[..live], &s.term[..live], tail_max);
             if taylor_done(k, (tn, sn), &s.term, &s.x, w) {
@@ -1029,6 +1035,81 @@ fn taylor_general(
         }
     }
     out.copy_from_slice(&s.x);
+}
+
+/// A Taylor term from the one before: y = (M x)·f over the first `live`
+/// rows (the rows past them are zero in M and come out +0), from the
+/// first `cols` columns of M (the entries of x past them must be zero:
+/// their products would only add zeros). Each entry is the sum of the
+/// even columns' products plus that of the odd columns', each in column
+/// order from +0: two chains of additions where one chain in column order
+/// made the term's latency, which bounds the series, twice as long. The
+/// odd sums go to `odd` (at least `live` entries). Returns the largest
+/// |yᵢ|.
+fn term_product(
+    m: &DMatrix<f64>,
+    (live, cols): (usize, usize),
+    x: &[f64],
+    (y, odd): (&mut [f64], &mut [f64]),
+    f: f64,
+) -> f64 {
+    let n = m.nrows();
+    let data = m.as_slice();
+    let (head, tail) = y.split_at_mut(live);
+    tail.fill(0.0);
+    head.fill(0.0);
+    let odd = &mut odd[..live];
+    odd.fill(0.0);
+    for (j, &xj) in x[..cols].iter().enumerate() {
+        let col = &data[j * n..j * n + live];
+        let acc: &mut [f64] = if j % 2 == 0 { &mut *head } else { &mut *odd };
+        for (a, &c) in acc.iter_mut().zip(col) {
+            *a += c * xj;
+        }
+    }
+    let mut tn: f64 = 0.0;
+    for (yi, &o) in head.iter_mut().zip(odd.iter()) {
+        *yi = (*yi + o) * f;
+        tn = larger(tn, yi.abs());
+    }
+    tn
+}
+
+/// [`term_product`] for an N-entry z, in place: the same operations on
+/// the live rows in the same order (the same bits there; the rows past
+/// `live` are zero rows of M and come out ±0, which add nothing to a
+/// later sum that starts from +0), in fixed arrays.
+#[inline(always)]
+fn term_fixed<const N: usize>(data: &[f64], cols: usize, x: &mut [f64; N], f: f64) -> f64 {
+    let mut even = [0.0f64; N];
+    let mut odd = [0.0f64; N];
+    let col = |j: usize| -> &[f64; N] {
+        data[j * N..(j + 1) * N]
+            .try_into()
+            .expect("a column of an N×N matrix has N entries")
+    };
+    let cols = cols.min(N);
+    let mut j = 0;
+    while j + 1 < cols {
+        let (ce, co) = (col(j), col(j + 1));
+        for i in 0..N {
+            even[i] += ce[i] * x[j];
+            odd[i] += co[i] * x[j + 1];
+        }
+        j += 2;
+    }
+    if j < cols {
+        let ce = col(j);
+        for i in 0..N {
+            even[i] += ce[i] * x[j];
+        }
+    }
+    let mut tn: f64 = 0.0;
+    for i in 0..N {
+        x[i] = (even[i] + odd[i]) * f;
+        tn = larger(tn, x[i].abs());
+    }
+    tn
 }
 
 /// Adds a Taylor term's live entries to the state's; returns the largest
@@ -1053,10 +1134,9 @@ fn taylor_done(k: usize, (tn, sn): (f64, f64), term: &[f64], x: &[f64], w: &[f64
 
 /// [`advance_into`]'s Taylor sub-steps for an N-entry z (N×N `data`,
 /// column-major): `n` sub-steps of `d`, from `z` into `out`. Term for
-/// term the operations of the general loop there (`matvec_scaled`'s
-/// fixed-size product and scaling, `add_term`, `taylor_done`), so the
-/// same bits, with the state and the terms in fixed arrays instead of the
-/// scratch vectors.
+/// term the operations of the general loop there ([`term_product`] as
+/// [`term_fixed`], `add_term`, `taylor_done`), so the same bits, with the
+/// state and the terms in fixed arrays instead of the scratch vectors.
 #[inline(always)]
 fn taylor_fixed<const N: usize>(
     data: &[f64],
@@ -1075,9 +1155,8 @@ fn taylor_fixed<const N: usize>(
         let tail_max = amax(&x[live..]);
         for k in 1..60 {
             let f = d / k as f64;
-            let mut next = [0.0f64; N];
-            let tn = scaled_fixed::<N>(data, &term, &mut next, f);
-            term = next;
+            let cols = if k == 1 { N } else { live };
+            let tn = term_fixed::<N>(data, cols, &mut term, f);
             let sn = add_term(&mut x[..live], &term[..live], tail_max);
             if taylor_done(k, (tn, sn), &term, &x, w) {
                 break;
