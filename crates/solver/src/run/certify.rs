@@ -237,6 +237,18 @@ impl Gram {
             }
             return;
         }
+        // A length to the bit with a few entries: the plain sums inline
+        // (`outer_add`'s own for these sizes).
+        if d == 0.0 {
+            let acc = &mut self.acc;
+            match n {
+                3 => return outer_add_n::<3>(acc, &mut [], &mut [], z, (d, false)),
+                4 => return outer_add_n::<4>(acc, &mut [], &mut [], z, (d, false)),
+                5 => return outer_add_n::<5>(acc, &mut [], &mut [], z, (d, false)),
+                6 => return outer_add_n::<6>(acc, &mut [], &mut [], z, (d, false)),
+                _ => {}
+            }
+        }
         outer_add(
             &mut self.acc,
             &mut self.acc1,
@@ -532,6 +544,7 @@ impl Certifier {
     /// last place, a converter that is still settling moves it a little
     /// each period, and a Gramian per length would cost more than the run.
     /// The energies then come from the series of [`energies`].
+    #[inline(always)]
     fn segment(
         &mut self,
         k: u32,
@@ -540,17 +553,17 @@ impl Certifier {
         z0: &[f64],
         accumulate: bool,
     ) -> Option<[f64; 5]> {
-        let bucket = h.to_bits() >> BUCKET_BITS;
-        // The common case first: the bucket of this mode's last segment,
-        // and a length within rounding of its Gramians' (what the general
-        // path below would do with it, without the lookups).
+        // The common case first, inline in the loop over segments: the
+        // bucket of this mode's last segment, and a length within rounding
+        // of its Gramians' (what the general path would do with it,
+        // without the lookups).
         if accumulate {
             if let (Some(&(b, gi)), Some(Some(f))) =
                 (self.last.get(k as usize), self.forms.get(k as usize))
             {
                 let g = &mut self.grams[gi];
                 let d = h - g.h0;
-                if b == bucket && d.abs() * f.norm <= FIRST_ORDER {
+                if b == h.to_bits() >> BUCKET_BITS && d.abs() * f.norm <= FIRST_ORDER {
                     g.accumulate(z0, d, false, f.norm);
                     if !g.dirty {
                         g.dirty = true;
@@ -560,6 +573,20 @@ impl Certifier {
                 }
             }
         }
+        self.segment_general(k, mode, h, z0, accumulate)
+    }
+
+    /// [`Certifier::segment`] past its common case, out of line.
+    #[inline(never)]
+    fn segment_general(
+        &mut self,
+        k: u32,
+        mode: &Mode,
+        h: f64,
+        z0: &[f64],
+        accumulate: bool,
+    ) -> Option<[f64; 5]> {
+        let bucket = h.to_bits() >> BUCKET_BITS;
         let key = (k, bucket);
         let forms = self.forms(k as usize, mode);
         let norm = forms.norm;
