@@ -258,6 +258,16 @@ impl Gram {
         );
     }
 
+    /// Notes that these Gramians (number `gi`) hold sums not yet flushed:
+    /// in `dirty` once.
+    #[inline(always)]
+    fn mark_dirty(&mut self, gi: usize, dirty: &mut Vec<usize>) {
+        if !self.dirty {
+            self.dirty = true;
+            dirty.push(gi);
+        }
+    }
+
     /// Σ z₀ᵀG z₀ of the three forms from `acc` and `acc1`, which it
     /// empties.
     fn flush(&mut self) -> [f64; FORMS] {
@@ -565,10 +575,7 @@ impl Certifier {
                 let d = h - g.h0;
                 if b == h.to_bits() >> BUCKET_BITS && d.abs() * f.norm <= FIRST_ORDER {
                     g.accumulate(z0, d, false, f.norm);
-                    if !g.dirty {
-                        g.dirty = true;
-                        self.dirty.push(gi);
-                    }
+                    g.mark_dirty(gi, &mut self.dirty);
                     return Some([f64::NAN; 5]);
                 }
             }
@@ -644,10 +651,7 @@ impl Certifier {
             let second = d.abs() * f.norm > FIRST_ORDER;
             g.seconds += u32::from(second);
             g.accumulate(z0, d, second, f.norm);
-            if !g.dirty {
-                g.dirty = true;
-                self.dirty.push(gi);
-            }
+            g.mark_dirty(gi, &mut self.dirty);
             return Some(e);
         }
         g.misses += u32::from(accumulate);
