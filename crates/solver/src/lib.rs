@@ -81,6 +81,7 @@ mod error;
 mod events;
 pub mod measure;
 mod mode;
+mod near;
 mod options;
 mod propagate;
 mod run;

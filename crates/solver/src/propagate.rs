@@ -293,7 +293,7 @@ pub(crate) fn larger(m: f64, v: f64) -> f64 {
 /// ×1.1e-8) kept only 1e-6 of their digits against the inductor's 0.46,
 /// which moved its comparator's turn-off by 2.7e-11 of a period.
 #[inline]
-fn negligible_in_energy(term: &[f64], reference: &[f64], w: &[f64]) -> bool {
+pub(crate) fn negligible_in_energy(term: &[f64], reference: &[f64], w: &[f64]) -> bool {
     let ((te, to), (re, ro)) = (sizes(term, w), sizes(reference, w));
     te <= 1e-18 * re && to <= 1e-18 * ro
 }

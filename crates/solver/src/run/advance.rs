@@ -4,9 +4,10 @@
 //! back, a nearby cached length and a short Taylor remainder, or Taylor
 //! sub-steps (one exponential for a stiff span).
 
-use super::modeset::ModeCache;
+use super::modeset::{ModeCache, MAX_NEAR};
 use super::*;
 use crate::envelope::Envelope;
+use crate::near::{NearExp, NEAR_REACH};
 use crate::propagate::{Spectrum, PHASE_LIMIT};
 
 impl Simulator {
@@ -155,17 +156,38 @@ impl ModeCache {
             return;
         }
         // Lengths that come back, whether spans of the schedule (once 16
-        // of them are cached: a controller moves the edges) or not.
-        if (!cacheable || shortcuts.nearby_lengths)
-            && self.advance_repeated(
+        // of them are cached: a controller moves the edges) or not: to
+        // the bit, else nearly (a polynomial about a nearby one), else
+        // cached when they come back to the bit.
+        if !cacheable || shortcuts.nearby_lengths {
+            if let Some(phi) = self.find_repeated(h.to_bits()) {
+                io.stats.cache_hits += 1;
+                propagate::matvec(phi, io.z, io.z_next);
+                return;
+            }
+            // A length back to the bit is cached below (a settled
+            // converter's lengths jitter among a few values, each then one
+            // product); one only near another takes the polynomial.
+            let again = shortcuts.repeated_lengths && self.misses.contains(&h.to_bits());
+            if shortcuts.nearby_lengths
+                && !stiff
+                && !again
+                && self.advance_polynomial(m, h, (io.z, &mut *io.z_next), io.stats)
+            {
+                if shortcuts.repeated_lengths {
+                    self.note_miss(h.to_bits());
+                }
+                return;
+            }
+            if self.advance_repeated(
                 &m.m,
                 h,
                 (io.z, &mut *io.z_next),
                 io.stats,
                 shortcuts.repeated_lengths,
-            )
-        {
-            return;
+            ) {
+                return;
+            }
         }
         if stiff {
             // One exponential (a near length's remainder could be a step
@@ -216,20 +238,25 @@ impl ModeCache {
             return false;
         }
         if !self.misses.contains(&bits) {
-            self.misses.rotate_right(1);
-            self.misses[0] = bits;
+            self.note_miss(bits);
             return false;
         }
         stats.exponentials += 1;
-        let reach = propagate::SHIFT_REACH / propagate::norm1(m);
-        let phi = match self.nearest(len, reach) {
-            // Rounding jitter of a cached length (a discontinuous buck's
-            // located lengths past 10,000 periods take more distinct
-            // values than the cache holds): its exponential shifted, a
-            // few products of small matrices where a fresh one took
-            // fifty thousand instructions at three states.
-            Some((delta, phi0)) => propagate::expm_shifted(phi0, m, delta),
-            None => propagate::expm(m, len),
+        let phi = if let Some(near) = self.near.iter().find(|e| e.serves(len)) {
+            // Near the centre of a polynomial (a converter still
+            // settling): its terms summed as a matrix.
+            near.matrix(len - near.h0)
+        } else {
+            let reach = propagate::SHIFT_REACH / propagate::norm1(m);
+            match self.nearest(len, reach) {
+                // Rounding jitter of a cached length (a discontinuous
+                // buck's located lengths past 10,000 periods take more
+                // distinct values than the cache holds): its exponential
+                // shifted, a few products of small matrices where a fresh
+                // one took fifty thousand instructions at three states.
+                Some((delta, phi0)) => propagate::expm_shifted(phi0, m, delta),
+                None => propagate::expm(m, len),
+            }
         };
         propagate::matvec(&phi, z, z_next);
         if self.repeated.len() < MAX_AGAIN {
@@ -238,6 +265,64 @@ impl ModeCache {
             self.repeated[self.repeated_next] = (bits, phi);
             self.repeated_next = (self.repeated_next + 1) % MAX_AGAIN;
         }
+        true
+    }
+
+    /// Remembers the bits of a length advanced without an exponential of
+    /// its own, to cache one if it comes back (the oldest of
+    /// [`REPEAT_RING`](super::modeset::REPEAT_RING) is forgotten).
+    fn note_miss(&mut self, bits: u64) {
+        self.misses.rotate_right(1);
+        self.misses[0] = bits;
+    }
+
+    /// Advance over `len` in mode `m`, from `z` into `z_next`, by the
+    /// polynomial about a nearby length that serves it (see
+    /// [`NearExp`]); false (nothing advanced) where none does or it
+    /// cannot vouch for the state. Where none serves and `len` lies within
+    /// half a reach of a length advanced lately without a cached
+    /// exponential (the lengths to and from a located instant of a
+    /// converter that settles, new every period but close to one
+    /// another), a polynomial about `len` is made, one exponential, while
+    /// the ones made so far have served [`PAYBACK`] lengths each: lengths
+    /// scattered wider than the reach make a few and then stop.
+    fn advance_polynomial(
+        &mut self,
+        m: &Mode,
+        len: f64,
+        (z, z_next): (&[f64], &mut [f64]),
+        stats: &mut Stats,
+    ) -> bool {
+        if let Some(near) = self.near.iter().find(|e| e.serves(len)) {
+            if near.apply(len - near.h0, z, z_next, &m.weight) {
+                stats.near_steps += 1;
+                self.near_served += 1;
+                return true;
+            }
+            return false;
+        }
+        if self.near_made >= MAX_NEAR as u64 && self.near_served < PAYBACK * self.near_made {
+            return false;
+        }
+        let reach = NEAR_REACH / propagate::norm1(&m.m);
+        let bits = len.to_bits();
+        let close = self.misses.iter().any(|&b| {
+            let l = f64::from_bits(b);
+            b != bits && (l - len).abs() <= 0.5 * reach
+        });
+        if !close {
+            return false;
+        }
+        stats.exponentials += 1;
+        let near = NearExp::new(&m.m, len);
+        propagate::matvec(&near.phi, z, z_next);
+        if self.near.len() < MAX_NEAR {
+            self.near.push(near);
+        } else {
+            self.near[self.near_next] = near;
+            self.near_next = (self.near_next + 1) % MAX_NEAR;
+        }
+        self.near_made += 1;
         true
     }
 
@@ -277,12 +362,15 @@ impl ModeCache {
     }
 
     /// The cached length nearest to `len` within `reach` (scheduled spans
-    /// first, then lengths that came back; the first of equals), as
+    /// first, then lengths that came back, then the centres of the
+    /// polynomials about nearby lengths; the first of equals), as
     /// (len − h₀, e^{M·h₀}).
     fn nearest(&self, len: f64, reach: f64) -> Option<(f64, &DMatrix<f64>)> {
         let mut best: Option<(f64, &DMatrix<f64>)> = None;
-        for (b, phi) in self.scheduled.iter().chain(&self.repeated) {
-            let d = len - f64::from_bits(*b);
+        let cached = self.scheduled.iter().chain(&self.repeated);
+        let near = self.near.iter().map(|e| (e.h0, &e.phi));
+        for (h0, phi) in cached.map(|(b, phi)| (f64::from_bits(*b), phi)).chain(near) {
+            let d = len - h0;
             if d.abs() <= reach && best.is_none_or(|(bd, _)| d.abs() < bd.abs()) {
                 best = Some((d, phi));
             }
@@ -290,6 +378,12 @@ impl ModeCache {
         best
     }
 }
+
+/// Lengths a polynomial about a nearby length must serve, on average,
+/// before another is made (see `ModeCache::advance_polynomial`): one
+/// exponential of a few states costs about as much as a hundred short
+/// Taylor remainders.
+const PAYBACK: u64 = 64;
 
 /// Scratch space of the stages: nothing in it lives from one call to
 /// the next, it only saves allocations.

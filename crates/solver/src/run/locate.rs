@@ -52,6 +52,7 @@ use crate::crossing::roots::{exact_root, guard_root, illinois_point};
 use crate::crossing::{at_end, same_instant, Crossing, Scales};
 use crate::envelope::Envelope;
 use crate::mode::{Guard, GuardKind, Mode};
+use crate::near::NearExp;
 use crate::propagate;
 use crate::propagate::{dot_slices, Spectrum};
 
@@ -569,11 +570,12 @@ pub(super) struct GuardPolys {
     hints: Vec<Hints>,
     /// ‖M‖₁ of the mode (raw, not balanced), for the reach of `anchor`.
     norm: f64,
-    /// e^{M·t₀} at an earlier crossing t₀ into this length: the state at
-    /// a crossing t within [`ANCHOR_REACH`]/‖M‖₁ of it is e^{M(t−t₀)}
-    /// applied to e^{M·t₀}·z, a product and a few Taylor terms of the
-    /// short remainder (`Shortcuts::nearby_lengths`).
-    anchor: Option<(f64, DMatrix<f64>)>,
+    /// e^{M·t₀} at an earlier crossing t₀ into this length, with its
+    /// polynomial in t − t₀: the state at a crossing t within
+    /// [`NEAR_REACH`](crate::near::NEAR_REACH)/‖M‖₁ of it is one product
+    /// with the stacked terms and Horner's rule
+    /// (`Shortcuts::nearby_lengths`).
+    anchor: Option<NearExp>,
 }
 
 /// The two latest crossings σ of one guard over one cached length,
@@ -614,15 +616,6 @@ impl Hints {
         Some(x.unwrap_or(latest))
     }
 }
-
-/// Largest ‖M‖₁·|t − t₀| for which a crossing's state is taken from the
-/// anchor at t₀ (see [`GuardPolys`]): its remainder then needs four or
-/// five Taylor terms, where the crossing's own length needs eight or more
-/// in a converter whose crossing lies a tenth of its time constants into
-/// the interval. A converter that settles moves its crossing by about
-/// 1e-7 of this a period (the discontinuous buck of the phases bench), so
-/// one exponential serves thousands of periods.
-const ANCHOR_REACH: f64 = 1.0 / 4096.0;
 
 /// The smallest part of a guard's term magnitudes a Taylor term of its
 /// polynomial may carry and still be kept (see `GuardPolys::kept`).
@@ -796,30 +789,37 @@ impl Simulator {
 impl Simulator {
     /// The state at a crossing `t` into the cached length of
     /// `polys[pi]`, into `z_next`: from the length's anchor (e^{M·t₀} of
-    /// an earlier crossing) and the Taylor terms of t − t₀ where t lies
-    /// within [`ANCHOR_REACH`] of it, else from a fresh exponential of t,
-    /// which becomes the anchor. Exact to rounding either way, as the
-    /// Taylor vectors of t are (the argument of `ModeCache::advance_near`;
-    /// `a_moving_turn_off_is_advanced_from_an_anchor` compares the two to
+    /// an earlier crossing) where t lies within its reach (first order
+    /// within rounding of t₀, else its polynomial in t − t₀, else Taylor
+    /// terms of t − t₀), else from a fresh exponential of t, which becomes
+    /// the anchor. The reach of [`NearExp`] is where a crossing's own
+    /// length would need eight or more Taylor terms in a converter whose
+    /// crossing lies a tenth of its time constants into the interval; a
+    /// converter that settles moves its crossing by about 1e-7 of it a
+    /// period (the discontinuous buck of the phases bench), so one
+    /// exponential serves thousands of periods. Exact to rounding every
+    /// way, as the Taylor vectors of t are
+    /// (`a_moving_turn_off_is_advanced_from_an_anchor` compares them to
     /// 1e-12 of the states' scale).
     fn anchored_state(&mut self, mode: &Mode, pi: usize, t: f64) {
         let mi = self.mode as usize;
         let gp = &mut self.modes.caches[mi].polys[pi];
         let z = self.z.as_slice();
         match &gp.anchor {
-            Some((t0, phi)) if ((t - t0) * gp.norm).abs() <= ANCHOR_REACH => {
-                let d = t - t0;
+            Some(near) if near.serves(t) => {
+                let d = t - near.h0;
+                let phi = &near.phi;
                 if d == 0.0 {
                     self.stats.cache_hits += 1;
                     propagate::matvec(phi, z, self.z_next.as_mut_slice());
                     return;
                 }
                 self.stats.near_steps += 1;
-                propagate::matvec(phi, z, self.buf.z_try.as_mut_slice());
                 if (d * gp.norm).abs() <= FIRST_ORDER_REACH {
                     // e^{Md}·w = w + d·M·w to rounding: the next term is
                     // below 2⁻⁵⁵ of w (the jitter of a settled crossing,
                     // a few ulps of t).
+                    propagate::matvec(phi, z, self.buf.z_try.as_mut_slice());
                     let w = self.buf.z_try.as_slice();
                     let mw = self.buf.za.as_mut_slice();
                     propagate::matvec(&mode.m, w, mw);
@@ -829,6 +829,13 @@ impl Simulator {
                     }
                     return;
                 }
+                // A crossing still moving: the polynomial in d about the
+                // anchor, or where it cannot vouch for a state (see
+                // `NearExp::apply`) the Taylor terms of d.
+                if near.apply(d, z, self.z_next.as_mut_slice(), &mode.weight) {
+                    return;
+                }
+                propagate::matvec(phi, z, self.buf.z_try.as_mut_slice());
                 propagate::advance_into(
                     &mode.m,
                     (&mode.weight, mode.live),
@@ -841,9 +848,9 @@ impl Simulator {
             }
             _ => {
                 self.stats.exponentials += 1;
-                let phi = propagate::expm(&mode.m, t);
-                propagate::matvec(&phi, z, self.z_next.as_mut_slice());
-                gp.anchor = Some((t, phi));
+                let near = NearExp::new(&mode.m, t);
+                propagate::matvec(&near.phi, z, self.z_next.as_mut_slice());
+                gp.anchor = Some(near);
             }
         }
     }

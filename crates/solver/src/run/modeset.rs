@@ -11,6 +11,7 @@ use nalgebra::DMatrix;
 
 use super::locate;
 use crate::mode::{Mode, ModeKey};
+use crate::near::NearExp;
 use crate::propagate;
 
 /// The modes met so far and their caches, by number.
@@ -88,6 +89,15 @@ pub(super) struct ModeCache {
     /// next one to replace once full (see `Simulator::advance_repeated`).
     pub(super) repeated: Vec<Disc>,
     pub(super) repeated_next: usize,
+    /// Polynomials about lengths that keep coming back nearly (see
+    /// `ModeCache::advance_polynomial`), at most [`MAX_NEAR`], and the
+    /// next one to replace once full.
+    pub(super) near: Vec<NearExp>,
+    pub(super) near_next: usize,
+    /// Lengths the polynomials above served, and how many were made: a
+    /// new one is made only while they pay for themselves.
+    pub(super) near_served: u64,
+    pub(super) near_made: u64,
     /// Guard polynomials of scheduled lengths (see `locate.rs`).
     pub(super) polys: Vec<locate::GuardPolys>,
     /// The mode's eigenvalues, computed at its first stiff span (`None`
@@ -132,6 +142,10 @@ impl Default for ModeCache {
             misses: [f64::NAN.to_bits(); REPEAT_RING],
             repeated: vec![],
             repeated_next: 0,
+            near: vec![],
+            near_next: 0,
+            near_served: 0,
+            near_made: 0,
             polys: vec![],
             spectrum: None,
             envelope: None,
@@ -146,6 +160,9 @@ pub(super) const REPEAT_RING: usize = 8;
 
 /// Most exponentials cached per mode for lengths that came back.
 pub(super) const MAX_AGAIN: usize = 16;
+
+/// Most polynomials about nearby lengths kept per mode.
+pub(super) const MAX_NEAR: usize = 4;
 
 #[cfg(test)]
 mod tests {

@@ -1,0 +1,368 @@
+//! Exponentials of lengths near a cached one, as a polynomial in the
+//! offset: e^{M(h₀+δ)} = Σₖ δᵏ·Mᵏe^{Mh₀}/k!, with the matrices
+//! Pₖ = Mᵏe^{Mh₀}/k! made once. A converter that settles moves its located
+//! instants a little every period, so the lengths from and to them are
+//! new every period but stay close to one another; where a short Taylor
+//! series of δ costs a chain of products, one after the other, the state
+//! at h₀ + δ is here one product with the stacked Pₖ (independent of one
+//! another) and a polynomial in δ. Used by event location for the state
+//! at a moving crossing and by the exact advance for the lengths that
+//! follow it (`run/locate.rs`, `run/advance.rs`).
+
+use nalgebra::DMatrix;
+
+use crate::propagate::{self, larger};
+
+/// Terms of the series kept: δ⁰ to δ⁵.
+const TERMS: usize = 6;
+
+/// Largest ‖M‖₁·|δ| a [`NearExp`] serves: the first term left out is then
+/// below (2⁻¹²)⁶/6! ≈ 3e-25 of ‖z‖₁ and the last one kept below
+/// (2⁻¹²)⁵/5! ≈ 7e-21 of it, under the 1e-18 at which a Taylor series of
+/// the solver stops (`propagate::taylor_done`; the bound ‖Mᵏ‖ ≤ ‖M‖ᵏ,
+/// common practice). The last term kept is checked against the state in
+/// energy units as well, where a badly scaled circuit could break the
+/// bound in ‖·‖₁ ([`NearExp::apply`]).
+pub(crate) const NEAR_REACH: f64 = 1.0 / 4096.0;
+
+/// e^{M·h₀} and the polynomial in δ of e^{M(h₀+δ)} for |δ| within
+/// [`NearExp::reach`].
+#[derive(Clone, Debug)]
+pub(crate) struct NearExp {
+    /// h₀.
+    pub(crate) h0: f64,
+    /// e^{M·h₀}.
+    pub(crate) phi: DMatrix<f64>,
+    /// Largest |δ| served: [`NEAR_REACH`] / ‖M‖₁.
+    pub(crate) reach: f64,
+    /// ‖M‖₁.
+    norm: f64,
+    /// P₀ … P₅ one after the other, each n×n column-major.
+    stacked: Vec<f64>,
+    n: usize,
+}
+
+impl NearExp {
+    /// The polynomial about h₀ from e^{M·h₀} (`phi`).
+    pub(crate) fn from_phi(m: &DMatrix<f64>, h0: f64, phi: DMatrix<f64>) -> NearExp {
+        let n = m.nrows();
+        let norm = propagate::norm1(m);
+        let mut blocks = Vec::with_capacity(TERMS);
+        blocks.push(phi.clone());
+        for k in 1..TERMS {
+            let next = m * &blocks[k - 1] / k as f64;
+            blocks.push(next);
+        }
+        let mut stacked = Vec::with_capacity(TERMS * n * n);
+        for b in &blocks {
+            stacked.extend_from_slice(b.as_slice());
+        }
+        NearExp {
+            h0,
+            phi,
+            reach: if norm > 0.0 {
+                NEAR_REACH / norm
+            } else {
+                f64::INFINITY
+            },
+            norm,
+            stacked,
+            n,
+        }
+    }
+
+    /// The polynomial about h₀ from a fresh exponential.
+    pub(crate) fn new(m: &DMatrix<f64>, h0: f64) -> NearExp {
+        NearExp::from_phi(m, h0, propagate::expm(m, h0))
+    }
+
+    /// Whether h lies within reach of h₀.
+    #[inline(always)]
+    pub(crate) fn serves(&self, h: f64) -> bool {
+        (h - self.h0).abs() <= self.reach
+    }
+
+    /// e^{M(h₀+δ)}·z into `out` for |δ| within [`NearExp::reach`]: the
+    /// products Pₖz in one pass, then Horner's rule in δ, up to the first
+    /// term k whose bound (‖M‖₁·|δ|)ᵏ/k! is below 1e-18 ([`last_term`]).
+    /// False (`out` then holds the sum, which the caller replaces) where
+    /// that term is not below 1e-18 of the result, largest entry and in
+    /// energy units (`w`: `Mode::weight`), the test by which a Taylor
+    /// series of the solver stops: the caller then takes the Taylor path.
+    pub(crate) fn apply(&self, delta: f64, z: &[f64], out: &mut [f64], w: &[f64]) -> bool {
+        debug_assert!(delta.abs() <= self.reach || !delta.is_finite());
+        let k = last_term(delta.abs() * self.norm);
+        match self.n {
+            3 => apply_fixed::<3>(&self.stacked, k, delta, z, out, w),
+            4 => apply_fixed::<4>(&self.stacked, k, delta, z, out, w),
+            5 => apply_fixed::<5>(&self.stacked, k, delta, z, out, w),
+            6 => apply_fixed::<6>(&self.stacked, k, delta, z, out, w),
+            7 => apply_fixed::<7>(&self.stacked, k, delta, z, out, w),
+            8 => apply_fixed::<8>(&self.stacked, k, delta, z, out, w),
+            _ => apply_general(&self.stacked, self.n, k, delta, z, out, w),
+        }
+    }
+}
+
+/// Above these values of q = ‖M‖₁·|δ| the bound qᵏ/k! of term k is above
+/// 1e-18 (k = 1 to 4): (1e-18·k!)^{1/k}, rounded down.
+const TERM_BOUNDS: [f64; 4] = [1e-18, 1.414e-9, 1.817e-6, 6.999e-5];
+
+/// The last term kept at q = ‖M‖₁·|δ|: the first k whose bound qᵏ/k! is
+/// below 1e-18, 5 at most (q is at most [`NEAR_REACH`], where term 5 is
+/// below 1e-20). Term k bounds the ones after it by a factor q/(k+1) each
+/// (common practice for the exponential series), so they add less than
+/// it does.
+#[inline(always)]
+fn last_term(q: f64) -> usize {
+    TERM_BOUNDS
+        .iter()
+        .position(|&b| q <= b)
+        .map_or(TERMS - 1, |i| i + 1)
+}
+
+impl NearExp {
+    /// e^{M(h₀+δ)} for |δ| within [`NearExp::reach`], by Horner's rule on
+    /// the terms: a few products of small matrices where a fresh
+    /// exponential costs tens of thousands of operations. The first term
+    /// left out is below 3e-25 of ‖e^{Mh₀}‖₁ (see [`NEAR_REACH`]), under
+    /// the 5.4e-20 at which [`propagate::expm_shifted`] stops.
+    pub(crate) fn matrix(&self, delta: f64) -> DMatrix<f64> {
+        let nn = self.n * self.n;
+        let block = |t: usize| &self.stacked[t * nn..(t + 1) * nn];
+        let mut out = DMatrix::<f64>::from_column_slice(self.n, self.n, block(TERMS - 1));
+        for t in (0..TERMS - 1).rev() {
+            for (x, &p) in out.as_mut_slice().iter_mut().zip(block(t)) {
+                *x = *x * delta + p;
+            }
+        }
+        out
+    }
+}
+
+/// [`NearExp::apply`] for N entries of z, up to term `k` (1 to 5; each
+/// count its own unrolled loop).
+#[inline(always)]
+fn apply_fixed<const N: usize>(
+    stacked: &[f64],
+    k: usize,
+    delta: f64,
+    z: &[f64],
+    out: &mut [f64],
+    w: &[f64],
+) -> bool {
+    match k {
+        1 => apply_terms::<N, 1>(stacked, delta, z, out, w),
+        2 => apply_terms::<N, 2>(stacked, delta, z, out, w),
+        3 => apply_terms::<N, 3>(stacked, delta, z, out, w),
+        4 => apply_terms::<N, 4>(stacked, delta, z, out, w),
+        _ => apply_terms::<N, 5>(stacked, delta, z, out, w),
+    }
+}
+
+/// [`apply_fixed`] up to term K: x = P_K z, then x ← x·δ + Pₜz for
+/// t = K−1 down to 0 (the products are independent of one another; only
+/// the short chain of Horner's rule is not).
+#[inline(always)]
+fn apply_terms<const N: usize, const K: usize>(
+    stacked: &[f64],
+    delta: f64,
+    z: &[f64],
+    out: &mut [f64],
+    w: &[f64],
+) -> bool {
+    let z: &[f64; N] = z.try_into().expect("z has N entries");
+    let out: &mut [f64; N] = out.try_into().expect("out has N entries");
+    let product = |t: usize| -> [f64; N] {
+        let block = &stacked[t * N * N..(t + 1) * N * N];
+        let mut y = [0.0f64; N];
+        for (j, &zj) in z.iter().enumerate() {
+            let col: &[f64; N] = block[j * N..(j + 1) * N]
+                .try_into()
+                .expect("a column of an N×N block has N entries");
+            for i in 0..N {
+                y[i] += col[i] * zj;
+            }
+        }
+        y
+    };
+    let last = product(K);
+    let mut x = last;
+    let mut dk = 1.0;
+    for t in (0..K).rev() {
+        let y = product(t);
+        for i in 0..N {
+            x[i] = x[i] * delta + y[i];
+        }
+        dk *= delta;
+    }
+    *out = x;
+    let mut term = last;
+    for t in term.iter_mut() {
+        *t *= dk;
+    }
+    last_negligible(&term, out, w)
+}
+
+/// [`NearExp::apply`] for any length of z, up to term `k`.
+fn apply_general(
+    stacked: &[f64],
+    n: usize,
+    k: usize,
+    delta: f64,
+    z: &[f64],
+    out: &mut [f64],
+    w: &[f64],
+) -> bool {
+    let product = |t: usize, y: &mut [f64]| {
+        let block = &stacked[t * n * n..(t + 1) * n * n];
+        y.fill(0.0);
+        for (j, &zj) in z.iter().enumerate() {
+            for (yi, &c) in y.iter_mut().zip(&block[j * n..(j + 1) * n]) {
+                *yi += c * zj;
+            }
+        }
+    };
+    let mut last = vec![0.0; n];
+    product(k, &mut last);
+    out.copy_from_slice(&last);
+    let mut y = vec![0.0; n];
+    let mut dk = 1.0;
+    for t in (0..k).rev() {
+        product(t, &mut y);
+        for (x, &yt) in out.iter_mut().zip(&y) {
+            *x = *x * delta + yt;
+        }
+        dk *= delta;
+    }
+    for t in last.iter_mut() {
+        *t *= dk;
+    }
+    last_negligible(&last, out, w)
+}
+
+/// Whether the last term kept is negligible beside the result: below
+/// 1e-18 of its largest entry, and in energy units too (the stopping test
+/// of the solver's Taylor series, `propagate::taylor_done`).
+#[inline(always)]
+fn last_negligible(term: &[f64], x: &[f64], w: &[f64]) -> bool {
+    let tn = term.iter().fold(0.0, |a, v| larger(a, v.abs()));
+    if tn == 0.0 {
+        return true;
+    }
+    let sn = x.iter().fold(0.0, |a, v| larger(a, v.abs()));
+    tn <= sn * 1e-18 && propagate::negligible_in_energy(term, x, w)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The polynomial about h₀ gives e^{M(h₀+δ)}z as a fresh exponential
+    /// of h₀ + δ does, to 1e-14 of the state, for offsets of either sign
+    /// up to its reach (the semigroup property e^{M(a+b)} = e^{Ma}e^{Mb}
+    /// and the Taylor series of e^{Mδ}; common practice), at a size with
+    /// a fixed kernel and one without.
+    #[test]
+    fn near_lengths_match_fresh_exponentials() {
+        for n in [3usize, 11] {
+            // A damped chain: states coupled to their neighbours, the last
+            // entry a constant input.
+            let mut m = DMatrix::<f64>::zeros(n, n);
+            for i in 0..n - 1 {
+                m[(i, i)] = -2.0e3 * (i + 1) as f64;
+                if i + 1 < n - 1 {
+                    m[(i, i + 1)] = 5.0e4;
+                    m[(i + 1, i)] = -5.0e4;
+                }
+                m[(i, n - 1)] = 1.0e3;
+            }
+            let z: Vec<f64> = (0..n).map(|i| 0.5 - 0.1 * i as f64).collect();
+            let h0 = 3.1e-6;
+            let near = NearExp::new(&m, h0);
+            let w = vec![1.0; n - 1];
+            for f in [-1.0, -0.37, 1e-9, 0.5, 1.0] {
+                let d = f * near.reach;
+                let mut out = vec![0.0; n];
+                assert!(near.apply(d, &z, &mut out, &w), "n = {n}, δ = {d:e}");
+                let e = propagate::expm(&m, h0 + d);
+                let mut want = vec![0.0; n];
+                propagate::matvec(&e, &z, &mut want);
+                let scale = want.iter().fold(0.0f64, |a, v| a.max(v.abs()));
+                for (a, b) in out.iter().zip(&want) {
+                    assert!(
+                        (a - b).abs() <= 1e-14 * scale,
+                        "n = {n}, δ = {d:e}: {a} vs {b}"
+                    );
+                }
+            }
+        }
+    }
+
+    /// Each bound of the table keeps its term under 1e-18 and the one
+    /// before it above (qᵏ/k!, the bound of term k of the exponential
+    /// series; common practice), and the reach needs five terms at most.
+    #[test]
+    fn the_last_term_is_the_first_below_the_floor() {
+        let fact = [1.0, 1.0, 2.0, 6.0, 24.0, 120.0];
+        for (i, &b) in TERM_BOUNDS.iter().enumerate() {
+            let k = i + 1;
+            assert!(b.powi(k as i32) / fact[k] <= 1e-18, "term {k} at {b:e}");
+            let above = b * 1.001;
+            assert_eq!(last_term(above), k + 1, "just above the bound of {k}");
+            assert_eq!(last_term(b), k);
+            if k > 1 {
+                assert!(above.powi(k as i32 - 1) / fact[k - 1] > 1e-18);
+            }
+        }
+        assert!(NEAR_REACH.powi(5) / fact[5] <= 1e-20);
+        assert_eq!(last_term(NEAR_REACH), 5);
+        assert_eq!(last_term(0.0), 1);
+    }
+
+    /// The matrix of a nearby length equals a fresh exponential of it to
+    /// 1e-14 of its norm (the series of e^{Mδ}; common practice), and
+    /// applied to a state it gives what the polynomial gives.
+    #[test]
+    fn the_matrix_of_a_near_length_is_its_exponential() {
+        let m = DMatrix::from_row_slice(
+            3,
+            3,
+            &[-50.0, -1.0e4, 1.0e4, 1.0e5, -2.0e3, 0.0, 0.0, 0.0, 0.0],
+        );
+        let near = NearExp::new(&m, 2.7e-6);
+        for f in [-1.0, 0.3, 1e-7, 1.0] {
+            let d = f * near.reach;
+            let got = near.matrix(d);
+            let want = propagate::expm(&m, 2.7e-6 + d);
+            let scale = propagate::norm1(&want);
+            assert!((&got - &want).abs().max() <= 1e-14 * scale, "δ = {d:e}");
+            let z = [0.4, 7.5, 1.0];
+            let (mut a, mut b) = ([0.0; 3], [0.0; 3]);
+            assert!(near.apply(d, &z, &mut a, &[1e-2, 1e-2]));
+            propagate::matvec(&got, &z, &mut b);
+            for (x, y) in a.iter().zip(&b) {
+                assert!((x - y).abs() <= 1e-14 * y.abs().max(1.0), "{x} vs {y}");
+            }
+        }
+    }
+
+    /// The check in energy units refuses what the largest entry alone
+    /// would pass: a state tiny in value but weighted 1e30 times the
+    /// other (as √L·i beside √C·v when impedances are scaled far apart)
+    /// gets from the last term more than 1e-18 of its energy-weighted
+    /// size, and the caller is told to take the Taylor path.
+    #[test]
+    fn a_badly_scaled_state_is_refused() {
+        let m = DMatrix::from_row_slice(2, 2, &[0.0, 1.0e6, -1.0e6, 0.0]);
+        let near = NearExp::new(&m, 1e-15);
+        let mut out = [0.0; 2];
+        // In units of the largest entry the last term is negligible; the
+        // second state, weighted 1e30 times the first, is tiny in value
+        // but not in energy.
+        let z = [1.0, 1e-20];
+        let ok = near.apply(near.reach, &z, &mut out, &[1.0, 1e30]);
+        assert!(!ok, "{out:?}");
+        assert!(near.apply(near.reach, &z, &mut out, &[1.0, 1.0]));
+    }
+}
