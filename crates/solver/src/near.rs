@@ -104,6 +104,134 @@ impl NearExp {
     }
 }
 
+/// Largest ‖M‖₁·|δ| for which e^{Mδ}·w is taken to first order,
+/// w + δ·M·w: the second-order term is then below 2⁻⁵⁵ of w (the jitter
+/// of a settled crossing, a few ulps of its time).
+pub(crate) const FIRST_ORDER_REACH: f64 = 1.0 / (1u64 << 27) as f64;
+
+/// Lengths served beyond first order by the nearer polynomial of a
+/// [`NearAnchor`] after which the next one makes a new nearer polynomial
+/// there: a converter that settles moves its lengths by a steady fraction
+/// of their distance from where they settle each period, so a polynomial
+/// about a recent length leaves few terms or first order, and a new one
+/// (a sum of six small matrices and five products) is made at most every
+/// this many lengths.
+const RELOCATE: u32 = 32;
+
+/// How [`NearAnchor::advance`] served a length.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub(crate) enum Served {
+    /// The length of a polynomial's own exponential: one product.
+    Exact,
+    /// From a polynomial (or to first order about its centre).
+    Near,
+    /// Not served: the polynomial could not vouch for the state (see
+    /// [`NearExp::apply`]); `out` holds nothing of use.
+    Refused,
+}
+
+/// A polynomial about a length h₀ from a fresh exponential, and one
+/// nearer the lengths served lately, made from the first's (never from
+/// another made so: its error does not accumulate).
+#[derive(Clone, Debug)]
+pub(crate) struct NearAnchor {
+    /// About h₀, from a fresh exponential: its reach is the anchor's.
+    pub(crate) base: NearExp,
+    local: Option<NearExp>,
+    /// Lengths served beyond first order since `local` was made.
+    served: u32,
+}
+
+impl NearAnchor {
+    /// An anchor at `base` alone.
+    pub(crate) fn new(base: NearExp) -> NearAnchor {
+        NearAnchor {
+            base,
+            local: None,
+            served: 0,
+        }
+    }
+
+    /// Whether `h` lies within reach of the base.
+    #[inline(always)]
+    pub(crate) fn serves(&self, h: f64) -> bool {
+        self.base.serves(h)
+    }
+
+    /// The polynomial nearer `h`: the one about a recent length where it
+    /// serves `h`, else the base.
+    #[inline(always)]
+    pub(crate) fn nearer(&self, h: f64) -> &NearExp {
+        self.local
+            .as_ref()
+            .filter(|l| l.serves(h))
+            .unwrap_or(&self.base)
+    }
+
+    /// e^{M·h}·z into `out` for an `h` the base serves (M is `m`, `w`
+    /// `Mode::weight`, `scratch` two vectors of z's length): one product
+    /// at the centre of the nearer polynomial, first order within
+    /// [`FIRST_ORDER_REACH`] of it, a new nearer polynomial at h after
+    /// [`RELOCATE`] lengths beyond first order, else the nearer
+    /// polynomial (which may refuse).
+    #[inline(always)]
+    pub(crate) fn advance(
+        &mut self,
+        m: &DMatrix<f64>,
+        h: f64,
+        (z, out): (&[f64], &mut [f64]),
+        w: &[f64],
+        (wz, mw): (&mut [f64], &mut [f64]),
+    ) -> Served {
+        let near = self.nearer(h);
+        let d = h - near.h0;
+        if d == 0.0 {
+            propagate::matvec(&near.phi, z, out);
+            return Served::Exact;
+        }
+        if (d * near.norm).abs() <= FIRST_ORDER_REACH {
+            propagate::matvec(&near.phi, z, wz);
+            propagate::matvec(m, wz, mw);
+            for ((o, &wi), &mwi) in out.iter_mut().zip(&*wz).zip(&*mw) {
+                *o = wi + d * mwi;
+            }
+            return Served::Near;
+        }
+        self.advance_far(m, h, (z, out), w)
+    }
+
+    /// [`NearAnchor::advance`] beyond first order, out of line.
+    #[inline(never)]
+    fn advance_far(
+        &mut self,
+        m: &DMatrix<f64>,
+        h: f64,
+        (z, out): (&[f64], &mut [f64]),
+        w: &[f64],
+    ) -> Served {
+        let near = self.nearer(h);
+        let d = h - near.h0;
+        if self.served >= RELOCATE {
+            // The lengths have moved on: a nearer polynomial at h, from
+            // the base's (h − h₀ is exact where the two lie within a
+            // factor of two, Sterbenz's lemma, else within half an ulp of
+            // h, the rounding of h itself).
+            let local = NearExp::from_phi(m, h, self.base.matrix(h - self.base.h0));
+            propagate::matvec(&local.phi, z, out);
+            self.local = Some(local);
+            self.served = 0;
+            return Served::Near;
+        }
+        let applied = near.apply(d, z, out, w);
+        self.served += 1;
+        if applied {
+            Served::Near
+        } else {
+            Served::Refused
+        }
+    }
+}
+
 /// Above these values of q = ‖M‖₁·|δ| the bound qᵏ/k! of term k is above
 /// 1e-18 (k = 1 to 4): (1e-18·k!)^{1/k}, rounded down.
 const TERM_BOUNDS: [f64; 4] = [1e-18, 1.414e-9, 1.817e-6, 6.999e-5];
@@ -345,6 +473,51 @@ mod tests {
                 assert!((x - y).abs() <= 1e-14 * y.abs().max(1.0), "{x} vs {y}");
             }
         }
+    }
+
+    /// An anchor that follows lengths settling geometrically toward a
+    /// value (a tenth of the reach off the base, the gap halving every
+    /// 40 lengths) gives e^{Mh}z as a fresh exponential of h does, to
+    /// 1e-14 of the state, at every length (the semigroup property;
+    /// common practice); it makes nearer polynomials on the way, and
+    /// once the lengths move by less than first order from one of them,
+    /// serves them to first order from it.
+    #[test]
+    fn an_anchor_follows_settling_lengths() {
+        let m = DMatrix::from_row_slice(
+            3,
+            3,
+            &[-50.0, -1.0e4, 1.0e4, 1.0e5, -2.0e3, 0.0, 0.0, 0.0, 0.0],
+        );
+        let h0 = 2.7e-6;
+        let mut anchor = NearAnchor::new(NearExp::new(&m, h0));
+        let settle = h0 + 0.1 * anchor.base.reach;
+        let z = [0.4, 7.5, 1.0];
+        let (mut wz, mut mw) = ([0.0; 3], [0.0; 3]);
+        let mut made = 0;
+        let mut first_order = 0;
+        for k in 0..2000 {
+            let h = settle - 0.1 * anchor.base.reach * 0.5f64.powf(k as f64 / 40.0);
+            let before = anchor.local.as_ref().map(|l| l.h0);
+            let mut out = [0.0; 3];
+            let served = anchor.advance(&m, h, (&z, &mut out), &[1e-2, 1e-2], (&mut wz, &mut mw));
+            assert_ne!(served, Served::Refused, "length {k}");
+            if anchor.local.as_ref().map(|l| l.h0) != before {
+                made += 1;
+            } else if (h - anchor.nearer(h).h0).abs() * anchor.base.norm <= FIRST_ORDER_REACH {
+                first_order += 1;
+            }
+            let mut want = [0.0; 3];
+            propagate::matvec(&propagate::expm(&m, h), &z, &mut want);
+            for (x, y) in out.iter().zip(&want) {
+                assert!(
+                    (x - y).abs() <= 1e-14 * y.abs().max(1.0),
+                    "length {k}: {x} vs {y}"
+                );
+            }
+        }
+        assert!(made >= 5, "{made} nearer polynomials");
+        assert!(first_order > 1000, "{first_order} lengths to first order");
     }
 
     /// The check in energy units refuses what the largest entry alone

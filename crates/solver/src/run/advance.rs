@@ -7,7 +7,7 @@
 use super::modeset::{ModeCache, MAX_NEAR};
 use super::*;
 use crate::envelope::Envelope;
-use crate::near::{NearExp, NEAR_REACH};
+use crate::near::{NearAnchor, NearExp, Served, NEAR_REACH};
 use crate::propagate::{Spectrum, PHASE_LIMIT};
 
 impl Simulator {
@@ -172,7 +172,13 @@ impl ModeCache {
             if shortcuts.nearby_lengths
                 && !stiff
                 && !again
-                && self.advance_polynomial(m, h, (io.z, &mut *io.z_next), io.stats)
+                && self.advance_polynomial(
+                    m,
+                    h,
+                    (io.z, &mut *io.z_next),
+                    io.stats,
+                    (io.buf.z_try.as_mut_slice(), io.buf.za.as_mut_slice()),
+                )
             {
                 if shortcuts.repeated_lengths {
                     self.note_miss(h.to_bits());
@@ -245,7 +251,7 @@ impl ModeCache {
         let phi = if let Some(near) = self.near.iter().find(|e| e.serves(len)) {
             // Near the centre of a polynomial (a converter still
             // settling): its terms summed as a matrix.
-            near.matrix(len - near.h0)
+            near.base.matrix(len - near.base.h0)
         } else {
             let reach = propagate::SHIFT_REACH / propagate::norm1(m);
             match self.nearest(len, reach) {
@@ -292,14 +298,16 @@ impl ModeCache {
         len: f64,
         (z, z_next): (&[f64], &mut [f64]),
         stats: &mut Stats,
+        scratch: (&mut [f64], &mut [f64]),
     ) -> bool {
-        if let Some(near) = self.near.iter().find(|e| e.serves(len)) {
-            if near.apply(len - near.h0, z, z_next, &m.weight) {
-                stats.near_steps += 1;
-                self.near_served += 1;
-                return true;
+        if let Some(near) = self.near.iter_mut().find(|e| e.serves(len)) {
+            match near.advance(&m.m, len, (z, z_next), &m.weight, scratch) {
+                Served::Exact => stats.cache_hits += 1,
+                Served::Near => stats.near_steps += 1,
+                Served::Refused => return false,
             }
-            return false;
+            self.near_served += 1;
+            return true;
         }
         if self.near_made >= MAX_NEAR as u64 && self.near_served < PAYBACK * self.near_made {
             return false;
@@ -314,8 +322,8 @@ impl ModeCache {
             return false;
         }
         stats.exponentials += 1;
-        let near = NearExp::new(&m.m, len);
-        propagate::matvec(&near.phi, z, z_next);
+        let near = NearAnchor::new(NearExp::new(&m.m, len));
+        propagate::matvec(&near.base.phi, z, z_next);
         if self.near.len() < MAX_NEAR {
             self.near.push(near);
         } else {
@@ -368,7 +376,7 @@ impl ModeCache {
     fn nearest(&self, len: f64, reach: f64) -> Option<(f64, &DMatrix<f64>)> {
         let mut best: Option<(f64, &DMatrix<f64>)> = None;
         let cached = self.scheduled.iter().chain(&self.repeated);
-        let near = self.near.iter().map(|e| (e.h0, &e.phi));
+        let near = self.near.iter().map(|e| (e.base.h0, &e.base.phi));
         for (h0, phi) in cached.map(|(b, phi)| (f64::from_bits(*b), phi)).chain(near) {
             let d = len - h0;
             if d.abs() <= reach && best.is_none_or(|(bd, _)| d.abs() < bd.abs()) {

@@ -52,7 +52,7 @@ use crate::crossing::roots::{exact_root, guard_root, illinois_point};
 use crate::crossing::{at_end, same_instant, Crossing, Scales};
 use crate::envelope::Envelope;
 use crate::mode::{Guard, GuardKind, Mode};
-use crate::near::NearExp;
+use crate::near::{NearAnchor, NearExp, Served};
 use crate::propagate;
 use crate::propagate::{dot_slices, Spectrum};
 
@@ -568,14 +568,12 @@ pub(super) struct GuardPolys {
     /// Per guard: its latest crossings over this length, where the next
     /// search starts (see [`Hints`]).
     hints: Vec<Hints>,
-    /// ‖M‖₁ of the mode (raw, not balanced), for the reach of `anchor`.
-    norm: f64,
     /// e^{M·t₀} at an earlier crossing t₀ into this length, with its
     /// polynomial in t − t₀: the state at a crossing t within
     /// [`NEAR_REACH`](crate::near::NEAR_REACH)/‖M‖₁ of it is one product
     /// with the stacked terms and Horner's rule
     /// (`Shortcuts::nearby_lengths`).
-    anchor: Option<NearExp>,
+    anchor: Option<NearAnchor>,
 }
 
 /// The two latest crossings σ of one guard over one cached length,
@@ -620,10 +618,6 @@ impl Hints {
 /// The smallest part of a guard's term magnitudes a Taylor term of its
 /// polynomial may carry and still be kept (see `GuardPolys::kept`).
 const TERM_FLOOR: f64 = 1.0 / (1u64 << 60) as f64;
-
-/// Largest ‖M‖₁·|t − t₀| for which the remainder e^{M(t−t₀)} is taken to
-/// first order: the second-order term is then below 2⁻⁵⁵ of the state.
-const FIRST_ORDER_REACH: f64 = 1.0 / (1u64 << 27) as f64;
 
 impl GuardPolys {
     fn build(mode: &Mode, h: f64) -> GuardPolys {
@@ -674,7 +668,6 @@ impl GuardPolys {
         GuardPolys {
             bits: h.to_bits(),
             hints: vec![Hints::default(); rows.len()],
-            norm: propagate::norm1(&mode.m),
             anchor: None,
             rows,
             abs,
@@ -805,52 +798,33 @@ impl Simulator {
         let mi = self.mode as usize;
         let gp = &mut self.modes.caches[mi].polys[pi];
         let z = self.z.as_slice();
-        match &gp.anchor {
-            Some(near) if near.serves(t) => {
-                let d = t - near.h0;
-                let phi = &near.phi;
-                if d == 0.0 {
-                    self.stats.cache_hits += 1;
-                    propagate::matvec(phi, z, self.z_next.as_mut_slice());
-                    return;
-                }
+        let Some(anchor) = gp.anchor.as_mut().filter(|a| a.serves(t)) else {
+            self.stats.exponentials += 1;
+            let near = NearExp::new(&mode.m, t);
+            propagate::matvec(&near.phi, z, self.z_next.as_mut_slice());
+            gp.anchor = Some(NearAnchor::new(near));
+            return;
+        };
+        let scratch = (self.buf.z_try.as_mut_slice(), self.buf.za.as_mut_slice());
+        let out = self.z_next.as_mut_slice();
+        match anchor.advance(&mode.m, t, (z, out), &mode.weight, scratch) {
+            Served::Exact => self.stats.cache_hits += 1,
+            Served::Near => self.stats.near_steps += 1,
+            Served::Refused => {
+                // The Taylor terms of t − t₀ about the nearer polynomial's
+                // centre.
                 self.stats.near_steps += 1;
-                if (d * gp.norm).abs() <= FIRST_ORDER_REACH {
-                    // e^{Md}·w = w + d·M·w to rounding: the next term is
-                    // below 2⁻⁵⁵ of w (the jitter of a settled crossing,
-                    // a few ulps of t).
-                    propagate::matvec(phi, z, self.buf.z_try.as_mut_slice());
-                    let w = self.buf.z_try.as_slice();
-                    let mw = self.buf.za.as_mut_slice();
-                    propagate::matvec(&mode.m, w, mw);
-                    for ((out, &wi), &mwi) in self.z_next.as_mut_slice().iter_mut().zip(w).zip(&*mw)
-                    {
-                        *out = wi + d * mwi;
-                    }
-                    return;
-                }
-                // A crossing still moving: the polynomial in d about the
-                // anchor, or where it cannot vouch for a state (see
-                // `NearExp::apply`) the Taylor terms of d.
-                if near.apply(d, z, self.z_next.as_mut_slice(), &mode.weight) {
-                    return;
-                }
-                propagate::matvec(phi, z, self.buf.z_try.as_mut_slice());
+                let near = anchor.nearer(t);
+                propagate::matvec(&near.phi, z, self.buf.z_try.as_mut_slice());
                 propagate::advance_into(
                     &mode.m,
                     (&mode.weight, mode.live),
                     mode.rate,
                     self.buf.z_try.as_slice(),
-                    d,
+                    t - near.h0,
                     self.z_next.as_mut_slice(),
                     &mut self.buf.advance,
                 );
-            }
-            _ => {
-                self.stats.exponentials += 1;
-                let near = NearExp::new(&mode.m, t);
-                propagate::matvec(&near.phi, z, self.z_next.as_mut_slice());
-                gp.anchor = Some(near);
             }
         }
     }

@@ -11,7 +11,7 @@ use nalgebra::DMatrix;
 
 use super::locate;
 use crate::mode::{Mode, ModeKey};
-use crate::near::NearExp;
+use crate::near::NearAnchor;
 use crate::propagate;
 
 /// The modes met so far and their caches, by number.
@@ -92,7 +92,7 @@ pub(super) struct ModeCache {
     /// Polynomials about lengths that keep coming back nearly (see
     /// `ModeCache::advance_polynomial`), at most [`MAX_NEAR`], and the
     /// next one to replace once full.
-    pub(super) near: Vec<NearExp>,
+    pub(super) near: Vec<NearAnchor>,
     pub(super) near_next: usize,
     /// Lengths the polynomials above served, and how many were made: a
     /// new one is made only while they pay for themselves.
