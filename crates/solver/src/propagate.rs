@@ -965,7 +965,7 @@ pub(crate) struct Scratch {
 /// e^{Mτ} z into `out`, as [`advance`] does, without allocating (only the
 /// first `live` rows of M may be non-zero; `w`: `Mode::weight`). τ may be
 /// negative (a step back over a short remainder, see
-/// `Simulator::advance_near`).
+/// `ModeCache::advance_near`).
 pub(crate) fn advance_into(
     m: &DMatrix<f64>,
     (w, live): (&[f64], usize),

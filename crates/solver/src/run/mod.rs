@@ -628,7 +628,7 @@ mod tests {
     /// A discontinuous buck that settles over thousands of periods moves
     /// its diode turn-off a little every period: the state there comes
     /// from the exponential of an earlier turn-off (the anchor of its
-    /// interval length) and a short Taylor remainder, a handful of
+    /// interval length) and a polynomial in the offset, a handful of
     /// exponentials for the whole run, and agrees with the Taylor vectors
     /// of each turn-off's own length to 1e-12 of the states' scale, with
     /// the same modes and instants to 1e-12 of the run (e^{M(t₀+δ)} =
