@@ -4,10 +4,12 @@
 //! instants a little every period, so the lengths from and to them are
 //! new every period but stay close to one another; where a short Taylor
 //! series of δ costs a chain of products, one after the other, the state
-//! at h₀ + δ is here one product with the stacked Pₖ (independent of one
-//! another) and a polynomial in δ. Used by event location for the state
-//! at a moving crossing and by the exact advance for the lengths that
-//! follow it (`run/locate.rs`, `run/advance.rs`).
+//! at h₀ + δ is here the products Pₖz (independent of one another) and
+//! Horner's rule in δ. [`NearAnchor`] keeps such a polynomial from a fresh
+//! exponential and moves a second one along with lengths that settle.
+//! Used by event location for the state at a moving crossing and by the
+//! exact advance for the lengths that follow it (`run/locate.rs`,
+//! `run/advance.rs`).
 
 use nalgebra::DMatrix;
 
@@ -83,7 +85,7 @@ impl NearExp {
     }
 
     /// e^{M(h₀+δ)}·z into `out` for |δ| within [`NearExp::reach`]: the
-    /// products Pₖz in one pass, then Horner's rule in δ, up to the first
+    /// products Pₖz, then Horner's rule in δ, up to the first
     /// term k whose bound (‖M‖₁·|δ|)ᵏ/k! is below 1e-18 ([`last_term`]).
     /// False (`out` then holds the sum, which the caller replaces) where
     /// that term is not below 1e-18 of the result, largest entry and in

@@ -570,9 +570,10 @@ pub(super) struct GuardPolys {
     hints: Vec<Hints>,
     /// e^{M·t₀} at an earlier crossing t₀ into this length, with its
     /// polynomial in t − t₀: the state at a crossing t within
-    /// [`NEAR_REACH`](crate::near::NEAR_REACH)/‖M‖₁ of it is one product
-    /// with the stacked terms and Horner's rule
-    /// (`Shortcuts::nearby_lengths`).
+    /// [`NEAR_REACH`](crate::near::NEAR_REACH)/‖M‖₁ of it is a product
+    /// per term and Horner's rule, or first order about a nearer
+    /// polynomial once the crossing settles (`NearAnchor`,
+    /// `Shortcuts::nearby_lengths`).
     anchor: Option<NearAnchor>,
 }
 
