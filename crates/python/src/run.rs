@@ -389,7 +389,8 @@ impl PyRun {
 
     /// Counters: ``scheduled_events``, ``state_events`` (located),
     /// ``modes`` (conduction patterns met), ``cache_hits``,
-    /// ``exponentials``, ``near_steps``, and per stage
+    /// ``exponentials``, ``near_steps``, ``near_crossings`` (turn-offs
+    /// found on a nearby length's polynomial), and per stage
     /// ``searched_intervals`` (event location searched them),
     /// ``replayed_transitions`` and ``resolved_patterns`` (patterns from
     /// memory and by the full resolution).
@@ -403,6 +404,7 @@ impl PyRun {
         d.set_item("cache_hits", s.cache_hits)?;
         d.set_item("exponentials", s.exponentials)?;
         d.set_item("near_steps", s.near_steps)?;
+        d.set_item("near_crossings", s.near_crossings)?;
         d.set_item("searched_intervals", s.searched_intervals)?;
         d.set_item("replayed_transitions", s.replayed_transitions)?;
         d.set_item("resolved_patterns", s.resolved_patterns)?;

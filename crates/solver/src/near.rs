@@ -234,6 +234,160 @@ impl NearAnchor {
     }
 }
 
+/// The vectors wₖ = Pₖz of a polynomial about a centre h₀, k = 0…K: the
+/// state at h₀ + δ is Σₖ δᵏwₖ, and a row r of the state (a guard) has
+/// Σₖ δᵏ(r·wₖ) there, a polynomial of K + 1 terms in δ where the Taylor
+/// polynomial over a whole interval needs a dozen. From
+/// [`NearAnchor::terms_near`].
+#[derive(Clone, Copy, Debug)]
+pub(crate) struct NearTerms {
+    /// h₀.
+    pub(crate) h0: f64,
+    /// ‖M‖₁.
+    pub(crate) norm: f64,
+    /// K: the last term.
+    pub(crate) last: usize,
+}
+
+impl NearTerms {
+    /// Whether the terms serve h: ‖M‖₁·|h − h₀| within what K terms
+    /// serve (first order within [`FIRST_ORDER_REACH`], as
+    /// [`NearAnchor::advance`] takes it, else the bounds of
+    /// [`last_term`]).
+    #[inline(always)]
+    pub(crate) fn serves(&self, h: f64) -> bool {
+        terms_for((h - self.h0).abs() * self.norm) <= self.last
+    }
+
+    /// The state at h₀ + δ from the vectors `w` (K + 1 of z's length, as
+    /// [`NearAnchor::terms_near`] left them) into `out`, by Horner's rule
+    /// in δ; false where the last term is not negligible beside the state
+    /// (see [`NearExp::apply`]; first order is taken as
+    /// [`NearAnchor::advance`] takes it, unchecked), `out` then of no use.
+    /// `scratch`: z's length.
+    #[inline(always)]
+    pub(crate) fn state(
+        &self,
+        w: &[f64],
+        delta: f64,
+        (out, scratch): (&mut [f64], &mut [f64]),
+        wt: &[f64],
+    ) -> bool {
+        let n = out.len();
+        let k = self.last;
+        let term = |t: usize| &w[t * n..(t + 1) * n];
+        if k == 1 {
+            for ((o, &a), &b) in out.iter_mut().zip(term(0)).zip(term(1)) {
+                *o = a + delta * b;
+            }
+            return true;
+        }
+        out.copy_from_slice(term(k));
+        let mut dk = 1.0;
+        for t in (0..k).rev() {
+            for (o, &y) in out.iter_mut().zip(term(t)) {
+                *o = *o * delta + y;
+            }
+            dk *= delta;
+        }
+        // The last term at δ, beside the state.
+        for (l, &v) in scratch.iter_mut().zip(term(k)) {
+            *l = v * dk;
+        }
+        last_negligible(scratch, out, wt)
+    }
+}
+
+/// Terms a length at q = ‖M‖₁·|δ| from a centre needs: 1 (first order)
+/// within [`FIRST_ORDER_REACH`], else [`last_term`].
+#[inline(always)]
+fn terms_for(q: f64) -> usize {
+    if q <= FIRST_ORDER_REACH {
+        1
+    } else {
+        last_term(q)
+    }
+}
+
+impl NearAnchor {
+    /// The vectors wₖ = Pₖz (k = 0…K, one after the other into `out`) of
+    /// the polynomial nearer `h`, for lengths within `spread` of h: K is
+    /// what the farthest of them needs ([`terms_for`]). Lengths served
+    /// beyond first order count towards the next nearer polynomial as in
+    /// [`NearAnchor::advance`], which is made here at h when due. `h`
+    /// must lie within the base's reach.
+    pub(crate) fn terms_near(
+        &mut self,
+        m: &DMatrix<f64>,
+        h: f64,
+        spread: f64,
+        z: &[f64],
+        out: &mut Vec<f64>,
+    ) -> NearTerms {
+        let near = self.nearer(h);
+        let mut k = terms_for(((h - near.h0).abs() + spread) * near.norm);
+        if k > 1 {
+            if self.served >= RELOCATE {
+                // As in `advance_far`: h − h₀ is exact or within half an
+                // ulp of h.
+                let local = NearExp::from_phi(m, h, self.base.matrix(h - self.base.h0));
+                self.local = Some(local);
+                self.served = 0;
+                k = terms_for(spread * self.base.norm);
+            }
+            self.served += 1;
+        }
+        let near = self.nearer(h);
+        let n = near.n;
+        if out.len() < (k + 1) * n {
+            out.resize(TERMS * n, 0.0);
+        }
+        match n {
+            3 => products_fixed::<3>(&near.stacked, k, z, out),
+            4 => products_fixed::<4>(&near.stacked, k, z, out),
+            5 => products_fixed::<5>(&near.stacked, k, z, out),
+            6 => products_fixed::<6>(&near.stacked, k, z, out),
+            _ => {
+                for t in 0..=k {
+                    let block = &near.stacked[t * n * n..(t + 1) * n * n];
+                    let y = &mut out[t * n..(t + 1) * n];
+                    y.fill(0.0);
+                    for (j, &zj) in z.iter().enumerate() {
+                        for (yi, &c) in y.iter_mut().zip(&block[j * n..(j + 1) * n]) {
+                            *yi += c * zj;
+                        }
+                    }
+                }
+            }
+        }
+        NearTerms {
+            h0: near.h0,
+            norm: near.norm,
+            last: k,
+        }
+    }
+}
+
+/// wₜ = Pₜz for t = 0…k into `out` (N entries each), as
+/// [`apply_terms`] forms them.
+#[inline(always)]
+fn products_fixed<const N: usize>(stacked: &[f64], k: usize, z: &[f64], out: &mut [f64]) {
+    let z: &[f64; N] = z.try_into().expect("z has N entries");
+    for (t, y) in out.chunks_exact_mut(N).enumerate().take(k + 1) {
+        let block = &stacked[t * N * N..(t + 1) * N * N];
+        let mut acc = [0.0f64; N];
+        for (j, &zj) in z.iter().enumerate() {
+            let col: &[f64; N] = block[j * N..(j + 1) * N]
+                .try_into()
+                .expect("a column of an N×N block has N entries");
+            for i in 0..N {
+                acc[i] += col[i] * zj;
+            }
+        }
+        y.copy_from_slice(&acc);
+    }
+}
+
 /// Above these values of q = ‖M‖₁·|δ| the bound qᵏ/k! of term k is above
 /// 1e-18 (k = 1 to 4): (1e-18·k!)^{1/k}, rounded down.
 const TERM_BOUNDS: [f64; 4] = [1e-18, 1.414e-9, 1.817e-6, 6.999e-5];

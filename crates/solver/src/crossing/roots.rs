@@ -94,6 +94,69 @@ pub(crate) fn guard_root(coef: &[f64], tol: f64, hint: Option<f64>) -> Option<f6
     }
 }
 
+/// The crossing of a guard near t₀, as a time from the start of its
+/// interval, from its polynomial in δ = t − t₀ (`c`: the guard at t₀ + δ
+/// is Σ cₖδᵏ, a few terms, `NearTerms`): one Newton step from `start` (a
+/// δ; first order needs none), then the [`WINDOW`] representable times
+/// around where it lands, each evaluated at δ = t − t₀ (exact where t
+/// and t₀ lie within a factor of two, Sterbenz's lemma): the first below
+/// zero, with those under it at or above zero, as `guard_root`'s window
+/// gives it in σ. The crossing's instant is then a representable time
+/// where the polynomial is below zero and the one under it is not, so it
+/// never sits before its crossing. `None` where the window does not hold
+/// the change of sign or leaves (0, `h`); the caller then searches the
+/// interval's own polynomial.
+pub(crate) fn near_root(
+    c: &[f64],
+    t0: f64,
+    h: f64,
+    start: f64,
+    inv_slope: &mut f64,
+) -> Option<f64> {
+    // First order (a settled crossing): the root at once, from the
+    // reciprocal of the slope the last search formed (the slope moves by
+    // a tiny fraction a period, and the estimate only places the window:
+    // the division, on the path from the state to the instant, is taken
+    // only where the window misses); the slope's own reciprocal, for the
+    // next search, beside it.
+    if let [c0, c1] = *c {
+        let r = *inv_slope;
+        *inv_slope = 1.0 / c1;
+        if r != 0.0 {
+            if let Some(t) = window_root(c, t0, h, t0 - c0 * r) {
+                return Some(t);
+            }
+        }
+        return window_root(c, t0, h, t0 - c0 / c1);
+    }
+    let (v, d) = propagate::poly(c, start);
+    window_root(c, t0, h, t0 + (start - v / d))
+}
+
+/// [`near_root`]'s window about `t`.
+#[inline(always)]
+fn window_root(c: &[f64], t0: f64, h: f64, t: f64) -> Option<f64> {
+    if !(t > 0.0 && t < h) {
+        return None;
+    }
+    let base = t.to_bits().checked_sub(WINDOW_BELOW)?;
+    let points: [f64; WINDOW] = std::array::from_fn(|k| f64::from_bits(base + k as u64));
+    let d = points.map(|p| p - t0);
+    let v = match *c {
+        [c0, c1] => d.map(|x| c0 + x * c1),
+        _ => propagate::poly_values(c, d),
+    };
+    // The points at or above zero as bits, without a branch each: they
+    // must be the first k, 1 ≤ k < WINDOW (a run of low bits).
+    let mut above = 0u32;
+    for (i, &p) in v.iter().enumerate() {
+        above |= u32::from(p >= 0.0) << i;
+    }
+    let k = above.count_ones() as usize;
+    let found = points[k.min(WINDOW - 1)];
+    (above & (above + 1) == 0 && (1..WINDOW).contains(&k) && found < h).then_some(found)
+}
+
 /// Points `guard_root` evaluates together around a Newton estimate of
 /// the crossing: [`WINDOW_BELOW`] below it, the estimate and those above.
 /// On the phases bench's discontinuous buck (20,000 periods, settled or
@@ -441,6 +504,57 @@ pub(crate) fn derivative_bracket(coef: &[f64], lo: f64, hi: f64, d_lo: f64) -> (
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// `near_root` returns a representable time t where the polynomial in
+    /// δ = t − t₀ is below zero and at the time under t is not (the
+    /// definition of a located instant, checked by evaluation here), for
+    /// first-order and cubic polynomials with a simple root near t₀
+    /// (p(δ) = (r − δ)·q(δ), q > 0 near the root; common practice), from
+    /// a good reciprocal slope, none, or a wrong one (the window then
+    /// misses and the division places it); `None` without a crossing in
+    /// (0, h).
+    #[test]
+    fn a_near_root_is_the_first_time_past_the_crossing() {
+        let mut rnd = crate::test_util::uniform(0x5eed_0f4e_a7c0_de01);
+        let (t0, h) = (3.1e-6, 4.0e-6);
+        for case in 0..2000 {
+            // The root within 2⁻²⁰ of t₀ either side, a slope of either
+            // size, and for the cubic a curvature the reach allows.
+            let r = (rnd() - 0.5) * 2.0 * t0 / (1u64 << 20) as f64;
+            let k = -(10f64.powf(8.0 * rnd() - 2.0));
+            let (a, b) = ((rnd() - 0.5) * 1e3, (rnd() - 0.5) * 1e6);
+            let cubic = case % 2 == 1;
+            let c: Vec<f64> = if cubic {
+                // (r − δ)(−k)(1 + aδ + bδ²), expanded.
+                vec![-k * r, k * (1.0 - a * r), k * (a - b * r), k * b]
+            } else {
+                vec![-k * r, k]
+            };
+            let p = |t: f64| propagate::poly_value(&c, t - t0);
+            for (inv, what) in [(1.0 / c[1], "good"), (0.0, "none"), (2.0 / c[1], "wrong")] {
+                let mut inv_slope = inv;
+                let start = if cubic { r * (1.0 + 1e-3 * rnd()) } else { 0.0 };
+                let t = near_root(&c, t0, h, start, &mut inv_slope)
+                    .unwrap_or_else(|| panic!("case {case} ({what}): no root"));
+                let under = f64::from_bits(t.to_bits() - 1);
+                assert!(p(t) < 0.0, "case {case} ({what}): p(t) ≥ 0");
+                assert!(p(under) >= 0.0, "case {case} ({what}): not the first");
+                assert!(
+                    ((t - t0) - r).abs() <= 1e-15 * t0,
+                    "case {case} ({what}): {} vs {r}",
+                    t - t0
+                );
+                if !cubic {
+                    assert_eq!(inv_slope, 1.0 / c[1], "the slope kept for the next");
+                }
+            }
+        }
+        // No crossing: a polynomial that stays above zero, and a root
+        // past the interval's end.
+        let mut inv = 0.0;
+        assert_eq!(near_root(&[1.0, 0.0, 1.0], t0, h, 0.0, &mut inv), None);
+        assert_eq!(near_root(&[1.0, -1.0e6], t0, h, 0.0, &mut inv), None);
+    }
 
     /// Contract of `GuardPolys::kept`: coefficients that are ±0 at the top
     /// of a guard polynomial (the rows past its last non-zero one) change

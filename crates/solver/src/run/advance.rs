@@ -407,6 +407,9 @@ pub(super) struct Buffers {
     /// guard's Taylor coefficients.
     pub(super) za: DVector<f64>,
     pub(super) coef: Vec<f64>,
+    /// Scratch of event location: the terms of a nearby length's
+    /// polynomial at the start state (`near_crossing`).
+    pub(super) near: Vec<f64>,
 }
 
 #[cfg(test)]
@@ -436,6 +439,7 @@ mod tests {
             terms: propagate::TaylorTerms::default(),
             za: DVector::zeros(n),
             coef: vec![],
+            near: vec![],
         };
         let z: Vec<f64> = (0..n).map(|i| 0.3 + 0.2 * i as f64).collect();
         let mut h = 2.0e-6;

@@ -130,6 +130,7 @@ impl Simulator {
                 terms: propagate::TaylorTerms::default(),
                 za: DVector::zeros(nz),
                 coef: vec![],
+                near: vec![],
             },
             stats: Stats::default(),
             certifier,

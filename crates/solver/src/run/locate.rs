@@ -48,11 +48,11 @@
 use nalgebra::{DMatrix, DVector};
 
 use super::Simulator;
-use crate::crossing::roots::{exact_root, guard_root, illinois_point};
+use crate::crossing::roots::{exact_root, guard_root, illinois_point, near_root};
 use crate::crossing::{at_end, same_instant, Crossing, Scales};
 use crate::envelope::Envelope;
 use crate::mode::{Guard, GuardKind, Mode};
-use crate::near::{NearAnchor, NearExp, Served};
+use crate::near::{NearAnchor, NearExp, NearTerms, Served};
 use crate::propagate;
 use crate::propagate::{dot_slices, Spectrum};
 
@@ -590,12 +590,24 @@ pub(super) struct GuardPolys {
 struct Hints {
     latest: Option<f64>,
     before: Option<f64>,
+    /// The reciprocal of the guard's slope at the latest crossing found
+    /// on a nearby length's polynomial (0 before one): `near_root`.
+    inv_slope: f64,
 }
 
 impl Hints {
     fn push(&mut self, s: f64) {
         self.before = self.latest;
         self.latest = Some(s);
+    }
+
+    /// How far the expected crossing lies from the latest (0 before two
+    /// crossings).
+    fn step(&self) -> f64 {
+        match (self.expected(), self.latest) {
+            (Some(e), Some(l)) => (e - l).abs(),
+            _ => 0.0,
+        }
     }
 
     /// Where the next crossing is expected: the latest one plus the
@@ -721,19 +733,41 @@ impl Simulator {
         if coef.len() < 64 {
             coef.resize(64, 0.0);
         }
-        let gp = &self.modes.caches[mi].polys[pi];
+        let nearby = self.shortcuts.nearby_lengths;
+        let gp = &mut self.modes.caches[mi].polys[pi];
         let mut found: Found = None;
         // The crossings found, to start the next search from (a few are
         // enough: converters have a handful of guards).
         let mut hits = [(0usize, 0.0f64); 4];
         let mut n_hits = 0;
+        // The terms of the anchor's polynomial at z, once a guard needs
+        // them (`near_crossing`).
+        let mut near_w = std::mem::take(&mut self.buf.near);
+        let mut terms: Option<NearTerms> = None;
         for (gi, g) in mode.guards.iter().enumerate() {
-            let coef = &mut coef[..gp.kept[gi]];
-            propagate::rows_dot(&gp.rows[gi], z, coef);
             let scale = dot_slices(&gp.abs[gi], za_abs.as_slice());
             let tol = scales.guard_zero(&g.kind, scale);
-            if let Some(s) = guard_root(coef, tol, gp.hints[gi].expected()) {
-                found = merge(found, s * h, bits_of(g), s, h);
+            let hints = gp.hints[gi];
+            let near = match hints.expected() {
+                Some(hint) if nearby => near_crossing(
+                    mode,
+                    gi,
+                    (z, self.z_next.as_slice()),
+                    (h, hint, hints.step() * h, tol),
+                    (gp.anchor.as_mut(), &mut gp.hints[gi].inv_slope),
+                    (&mut terms, &mut near_w),
+                ),
+                _ => None,
+            };
+            let root = near
+                .inspect(|_| self.stats.near_crossings += 1)
+                .or_else(|| {
+                    let coef = &mut coef[..gp.kept[gi]];
+                    propagate::rows_dot(&gp.rows[gi], z, coef);
+                    guard_root(coef, tol, hints.expected()).map(|s| (s * h, s))
+                });
+            if let Some((t, s)) = root {
+                found = merge(found, t, bits_of(g), s, h);
                 if n_hits < hits.len() {
                     hits[n_hits] = (gi, s);
                     n_hits += 1;
@@ -741,19 +775,34 @@ impl Simulator {
             }
         }
         for &(gi, s) in &hits[..n_hits] {
-            self.modes.caches[mi].polys[pi].hints[gi].push(s);
+            gp.hints[gi].push(s);
         }
         self.buf.za = za_abs;
         self.buf.coef = coef;
         let Some((t, b, _)) = found else {
+            self.buf.near = near_w;
             return Some(None);
         };
         // A crossing at the very end belongs to the scheduled instant
         // (`z_next` still holds the state at h).
         if at_end(t, h) {
+            self.buf.near = near_w;
             return Some(Some(crossing(h, b)));
         }
-        if self.shortcuts.nearby_lengths {
+        // The state at the crossing from the terms a guard's search
+        // formed, where they serve it, else from the anchor.
+        let from_terms = terms.filter(|nt| nt.serves(t)).is_some_and(|nt| {
+            nt.state(
+                &near_w,
+                t - nt.h0,
+                (self.z_next.as_mut_slice(), self.buf.z_try.as_mut_slice()),
+                &mode.weight,
+            )
+        });
+        self.buf.near = near_w;
+        if from_terms {
+            self.stats.near_steps += 1;
+        } else if nearby {
             self.anchored_state(mode, pi, t);
         } else if !self.modes.caches[mi].advance_repeated(
             &mode.m,
@@ -778,6 +827,50 @@ impl Simulator {
         }
         Some(Some(crossing(t, b)))
     }
+}
+
+/// Guard `gi`'s crossing through the end of a cached length h, from the
+/// polynomial of the length's anchor about a centre near the expected
+/// crossing (`hint`, σ; `spread`, how far the crossing may lie from it,
+/// in time): where the guard starts at or above zero and ends below its
+/// zero band (`tol`) between the states `(z, z_end)`, its coefficients
+/// are the guard's row times the anchor's terms at z (a few products of
+/// z's length, formed once per search into `near`, for the state at the
+/// crossing too), and `near_root` finds the crossing on them. Where the
+/// interval's own polynomial needs a dozen terms and a search over
+/// (0, 1), this needs two or three and one Newton step: the same instant
+/// to the rounding of the two polynomials (both are the guard's value to
+/// a few ulps of its terms' magnitude). `None` (the caller then searches
+/// as usual) without an anchor serving the hint, where the guard does not
+/// cross through the end, or where the window misses or the terms do not
+/// serve the answer.
+fn near_crossing(
+    mode: &Mode,
+    gi: usize,
+    (z, z_end): (&[f64], &[f64]),
+    (h, hint, spread, tol): (f64, f64, f64, f64),
+    (anchor, inv_slope): (Option<&mut NearAnchor>, &mut f64),
+    (terms, near): (&mut Option<NearTerms>, &mut Vec<f64>),
+) -> Option<(f64, f64)> {
+    let (line, g) = (&mode.guard_lines[gi], &mode.guards[gi]);
+    if !(line.value(z, || g).0 >= 0.0 && line.value(z_end, || g).0 < -tol) {
+        return None;
+    }
+    let th = hint * h;
+    let anchor = anchor.filter(|a| a.serves(th))?;
+    let nt = match *terms {
+        Some(nt) => nt,
+        None => *terms.insert(anchor.terms_near(&mode.m, th, spread, z, near)),
+    };
+    let n = z.len();
+    let mut c = [0.0; 6];
+    let c = &mut c[..=nt.last];
+    for (k, ck) in c.iter_mut().enumerate() {
+        *ck = line.value(&near[k * n..(k + 1) * n], || g).0;
+    }
+    near_root(c, nt.h0, h, th - nt.h0, inv_slope)
+        .filter(|&t| nt.serves(t))
+        .map(|t| (t, t / h))
 }
 
 impl Simulator {

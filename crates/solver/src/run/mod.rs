@@ -629,8 +629,10 @@ mod tests {
     /// its diode turn-off a little every period: the state there comes
     /// from the exponential of an earlier turn-off (the anchor of its
     /// interval length) and a polynomial in the offset, a handful of
-    /// exponentials for the whole run, and agrees with the Taylor vectors
-    /// of each turn-off's own length to 1e-12 of the states' scale, with
+    /// exponentials for the whole run; the turn-off itself is found on that
+    /// polynomial too. Agrees with the interval's own guard polynomial and
+    /// the Taylor vectors of each turn-off's own length to 1e-12 of the
+    /// states' scale, with
     /// the same modes and instants to 1e-12 of the run (e^{M(t₀+δ)} =
     /// e^{Mδ}e^{Mt₀}; common practice).
     #[test]
@@ -654,6 +656,14 @@ mod tests {
             a.stats.exponentials < 30,
             "a handful of exponentials: {:?}",
             a.stats
+        );
+        // And the turn-offs are located on the anchor's polynomial (two or
+        // three terms) rather than the interval's own.
+        assert!(
+            a.stats.near_crossings >= 1900 && b.stats.near_crossings == 0,
+            "{:?} vs {:?}",
+            a.stats,
+            b.stats
         );
         compare_runs(&a, &b, stop, "settling DCM buck");
     }

@@ -25,6 +25,10 @@ pub struct Stats {
     /// Intervals advanced from the cached exponential of a nearby length
     /// and a short Taylor remainder.
     pub near_steps: usize,
+    /// Crossings located on the polynomial of a nearby length about an
+    /// earlier crossing (two or three terms) instead of the interval's own
+    /// polynomial (`locate.rs`).
+    pub near_crossings: usize,
     /// Stiff spans: intervals that the Taylor rule would split into more
     /// than 64 sub-steps, advanced by one exponential instead (see
     /// `propagate.rs`). 0 for ordinary converters.
