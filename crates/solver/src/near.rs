@@ -7,9 +7,10 @@
 //! at h₀ + δ is here the products Pₖz (independent of one another) and
 //! Horner's rule in δ. [`NearAnchor`] keeps such a polynomial from a fresh
 //! exponential and moves a second one along with lengths that settle.
-//! Used by event location for the state at a moving crossing and by the
-//! exact advance for the lengths that follow it (`run/locate.rs`,
-//! `run/advance.rs`).
+//! Used by event location for a moving crossing and the state there (a
+//! guard's row times the terms Pₖz is its own polynomial in δ,
+//! [`NearTerms`]) and by the exact advance for the lengths that follow it
+//! (`run/locate.rs`, `run/advance.rs`).
 
 use nalgebra::DMatrix;
 

@@ -12,6 +12,14 @@
 //! purpose, so a current that just reaches zero and turns back keeps its
 //! conduction state.
 //!
+//! On an interval length the schedule repeats, the guard polynomials are
+//! cached per length (`GuardPolys`), and a crossing expected near an
+//! earlier one is found on the polynomial of that earlier crossing's
+//! exponential in the offset (`near_crossing`, `near::NearTerms`): two or
+//! three terms where the interval's polynomial has a dozen, with the same
+//! definition of the located instant (the first representable time where
+//! the guard's polynomial is below zero).
+//!
 //! Stiff spans (more than `propagate::STIFF_SUBSTEPS` sub-intervals by the
 //! rule above, e.g. a 22 ps RC behind a 5 µs switching interval) are
 //! scanned by a different rule. The rule above bounds the step by the
