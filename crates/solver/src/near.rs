@@ -85,6 +85,45 @@ impl NearExp {
         (h - self.h0).abs() <= self.reach
     }
 
+    /// e^{M(h₀+δ)}·z to first order, P₀z + δ·P₁z, into `out` (`w`: two
+    /// scratch vectors of z's length).
+    #[inline(always)]
+    fn first_order(
+        &self,
+        delta: f64,
+        z: &[f64],
+        (w0, w1): (&mut [f64], &mut [f64]),
+        out: &mut [f64],
+    ) {
+        let n = self.n;
+        let nn = n * n;
+        let block = |t: usize| &self.stacked[t * nn..(t + 1) * nn];
+        match n {
+            3 => first_order_fixed::<3>(block(0), block(1), delta, z, out),
+            4 => first_order_fixed::<4>(block(0), block(1), delta, z, out),
+            5 => first_order_fixed::<5>(block(0), block(1), delta, z, out),
+            6 => first_order_fixed::<6>(block(0), block(1), delta, z, out),
+            _ => {
+                propagate::matvec(&self.phi, z, w0);
+                for (j, &zj) in z.iter().enumerate() {
+                    let col = &block(1)[j * n..(j + 1) * n];
+                    if j == 0 {
+                        for (y, &c) in w1.iter_mut().zip(col) {
+                            *y = c * zj;
+                        }
+                    } else {
+                        for (y, &c) in w1.iter_mut().zip(col) {
+                            *y += c * zj;
+                        }
+                    }
+                }
+                for ((o, &a), &b) in out.iter_mut().zip(&*w0).zip(&*w1) {
+                    *o = a + delta * b;
+                }
+            }
+        }
+    }
+
     /// e^{M(h₀+δ)}·z into `out` for |δ| within [`NearExp::reach`]: the
     /// products Pₖz, then Horner's rule in δ, up to the first
     /// term k whose bound (‖M‖₁·|δ|)ᵏ/k! is below 1e-18 ([`last_term`]).
@@ -193,11 +232,10 @@ impl NearAnchor {
             return Served::Exact;
         }
         if (d * near.norm).abs() <= FIRST_ORDER_REACH {
-            propagate::matvec(&near.phi, z, wz);
-            propagate::matvec(m, wz, mw);
-            for ((o, &wi), &mwi) in out.iter_mut().zip(&*wz).zip(&*mw) {
-                *o = wi + d * mwi;
-            }
+            // P₀z and P₁z side by side (P₁ = M·e^{Mh₀}, stacked), not
+            // M·(e^{Mh₀}z) after e^{Mh₀}z: two independent products on
+            // the path from the state to the next one instead of a chain.
+            near.first_order(d, z, (wz, mw), out);
             return Served::Near;
         }
         self.advance_far(m, h, (z, out), w)
@@ -366,6 +404,31 @@ impl NearAnchor {
             norm: near.norm,
             last: k,
         }
+    }
+}
+
+/// [`NearExp::first_order`] for N entries of z: P₀z + δ·P₁z.
+#[inline(always)]
+fn first_order_fixed<const N: usize>(
+    p0: &[f64],
+    p1: &[f64],
+    delta: f64,
+    z: &[f64],
+    out: &mut [f64],
+) {
+    let z: &[f64; N] = z.try_into().expect("z has N entries");
+    let out: &mut [f64; N] = out.try_into().expect("out has N entries");
+    let (mut a, mut b) = ([0.0f64; N], [0.0f64; N]);
+    for (j, &zj) in z.iter().enumerate() {
+        let c0: &[f64; N] = p0[j * N..(j + 1) * N].try_into().expect("N entries");
+        let c1: &[f64; N] = p1[j * N..(j + 1) * N].try_into().expect("N entries");
+        for i in 0..N {
+            a[i] += c0[i] * zj;
+            b[i] += c1[i] * zj;
+        }
+    }
+    for i in 0..N {
+        out[i] = a[i] + delta * b[i];
     }
 }
 
