@@ -609,15 +609,6 @@ impl Hints {
         self.latest = Some(s);
     }
 
-    /// How far the expected crossing lies from the latest (0 before two
-    /// crossings).
-    fn step(&self) -> f64 {
-        match (self.expected(), self.latest) {
-            (Some(e), Some(l)) => (e - l).abs(),
-            _ => 0.0,
-        }
-    }
-
     /// Where the next crossing is expected: the latest one plus the
     /// step from the one before (both in (0, 1): the same sign, so their
     /// bits are ordered as they are), the latest where the step leaves
@@ -708,24 +699,26 @@ impl Simulator {
     fn locate_cached(&mut self, mode: &Mode, h: f64) -> Option<Option<Crossing>> {
         let mi = self.mode as usize;
         let bits = h.to_bits();
-        if !self.modes.caches[mi]
-            .scheduled
-            .iter()
-            .any(|(b, _)| *b == bits)
-        {
-            return None;
-        }
-        let pi = match self.modes.caches[mi]
-            .polys
-            .iter()
-            .position(|p| p.bits == bits)
-        {
-            Some(i) => i,
-            None if self.modes.caches[mi].polys.len() < 16 => {
-                self.modes.caches[mi].polys.push(GuardPolys::build(mode, h));
-                self.modes.caches[mi].polys.len() - 1
+        let cache = &mut self.modes.caches[mi];
+        // The polynomials searched last in this mode first (polynomials are
+        // only ever added, and only for scheduled lengths).
+        let pi = match cache.polys.get(cache.last_polys) {
+            Some(p) if p.bits == bits => cache.last_polys,
+            _ => {
+                if !cache.scheduled.iter().any(|(b, _)| *b == bits) {
+                    return None;
+                }
+                let pi = match cache.polys.iter().position(|p| p.bits == bits) {
+                    Some(i) => i,
+                    None if cache.polys.len() < 16 => {
+                        cache.polys.push(GuardPolys::build(mode, h));
+                        cache.polys.len() - 1
+                    }
+                    None => return None,
+                };
+                cache.last_polys = pi;
+                pi
             }
-            None => return None,
         };
         let scales = self.update_scales();
         let z = self.z.as_slice();
@@ -756,12 +749,13 @@ impl Simulator {
             let scale = dot_slices(&gp.abs[gi], za_abs.as_slice());
             let tol = scales.guard_zero(&g.kind, scale);
             let hints = gp.hints[gi];
-            let near = match hints.expected() {
-                Some(hint) if nearby => near_crossing(
+            let expected = hints.expected();
+            let near = match (expected, hints.latest) {
+                (Some(hint), Some(latest)) if nearby => near_crossing(
                     mode,
                     gi,
                     (z, self.z_next.as_slice()),
-                    (h, hint, hints.step() * h, tol),
+                    (h, hint, (hint - latest).abs() * h, tol),
                     (gp.anchor.as_mut(), &mut gp.hints[gi].inv_slope),
                     (&mut terms, &mut near_w),
                 ),
@@ -772,7 +766,7 @@ impl Simulator {
                 .or_else(|| {
                     let coef = &mut coef[..gp.kept[gi]];
                     propagate::rows_dot(&gp.rows[gi], z, coef);
-                    guard_root(coef, tol, hints.expected()).map(|s| (s * h, s))
+                    guard_root(coef, tol, expected).map(|s| (s * h, s))
                 });
             if let Some((t, s)) = root {
                 found = merge(found, t, bits_of(g), s, h);

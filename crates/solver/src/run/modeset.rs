@@ -98,8 +98,10 @@ pub(super) struct ModeCache {
     /// new one is made only while they pay for themselves.
     pub(super) near_served: u64,
     pub(super) near_made: u64,
-    /// Guard polynomials of scheduled lengths (see `locate.rs`).
+    /// Guard polynomials of scheduled lengths (see `locate.rs`), and the
+    /// index of those searched last.
     pub(super) polys: Vec<locate::GuardPolys>,
+    pub(super) last_polys: usize,
     /// The mode's eigenvalues, computed at its first stiff span (`None`
     /// before; `Some(None)` where they cannot be trusted).
     pub(super) spectrum: Option<Option<std::sync::Arc<propagate::Spectrum>>>,
@@ -147,6 +149,7 @@ impl Default for ModeCache {
             near_served: 0,
             near_made: 0,
             polys: vec![],
+            last_polys: 0,
             spectrum: None,
             envelope: None,
             stiff_steps: vec![],
