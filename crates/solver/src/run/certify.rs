@@ -258,6 +258,13 @@ impl Gram {
         );
     }
 
+    /// [`Gram::accumulate`] to second order, out of line (the common
+    /// case inline stays small).
+    #[inline(never)]
+    fn accumulate_second(&mut self, z: &[f64], d: f64, norm: f64) {
+        self.accumulate(z, d, true, norm);
+    }
+
     /// Notes that these Gramians (number `gi`) hold sums not yet flushed:
     /// in `dirty` once.
     #[inline(always)]
@@ -564,17 +571,28 @@ impl Certifier {
         accumulate: bool,
     ) -> Option<[f64; 5]> {
         // The common case first, inline in the loop over segments: the
-        // bucket of this mode's last segment, and a length within rounding
-        // of its Gramians' (what the general path would do with it,
-        // without the lookups).
+        // bucket of this mode's last segment, and a length within
+        // [`NEAR`] of its Gramians' (what the general path would do with
+        // it, without the lookups).
         if accumulate {
             if let (Some(&(b, gi)), Some(Some(f))) =
                 (self.last.get(k as usize), self.forms.get(k as usize))
             {
                 let g = &mut self.grams[gi];
                 let d = h - g.h0;
-                if b == h.to_bits() >> BUCKET_BITS && d.abs() * f.norm <= FIRST_ORDER {
-                    g.accumulate(z0, d, false, f.norm);
+                let q = d.abs() * f.norm;
+                // To second order while the Gramians have not summed
+                // [`RESETTLE`] such segments (past that, the general path
+                // makes the length's own).
+                let second = q > FIRST_ORDER;
+                if b == h.to_bits() >> BUCKET_BITS && q <= NEAR && (!second || g.seconds < RESETTLE)
+                {
+                    if second {
+                        g.seconds += 1;
+                        g.accumulate_second(z0, d, f.norm);
+                    } else {
+                        g.accumulate(z0, d, false, f.norm);
+                    }
                     g.mark_dirty(gi, &mut self.dirty);
                     return Some([f64::NAN; 5]);
                 }
