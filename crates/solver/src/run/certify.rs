@@ -262,6 +262,21 @@ impl Gram {
     /// case inline stays small).
     #[inline(never)]
     fn accumulate_second(&mut self, z: &[f64], d: f64, norm: f64) {
+        // A few entries: the unrolled sums at once, without the test of
+        // sparsity first (the same bits: see `outer_add_sparse`). Beyond
+        // [`FIRST_ORDER`], Δ is never within [`SAME_LENGTH`] of h₀.
+        debug_assert!(d.abs() * norm > FIRST_ORDER);
+        let n = z.len();
+        if (3..=6).contains(&n) {
+            let (acc, acc1, acc2) = (&mut self.acc, &mut self.acc1, &mut self.acc2);
+            match n {
+                3 => outer_add_n::<3>(acc, acc1, acc2, z, (d, true)),
+                4 => outer_add_n::<4>(acc, acc1, acc2, z, (d, true)),
+                5 => outer_add_n::<5>(acc, acc1, acc2, z, (d, true)),
+                _ => outer_add_n::<6>(acc, acc1, acc2, z, (d, true)),
+            }
+            return;
+        }
         self.accumulate(z, d, true, norm);
     }
 
