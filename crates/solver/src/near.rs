@@ -12,7 +12,7 @@
 //! [`NearTerms`]) and by the exact advance for the lengths that follow it
 //! (`run/locate.rs`, `run/advance.rs`).
 
-use nalgebra::DMatrix;
+use nalgebra::{DMatrix, DMatrixView, DMatrixViewMut};
 
 use crate::propagate::{self, larger};
 
@@ -200,6 +200,21 @@ impl NearAnchor {
         self.base.serves(h)
     }
 
+    /// A nearer polynomial at h, from the base's (h − h₀ is exact where
+    /// the two lie within a factor of two, Sterbenz's lemma, else within
+    /// half an ulp of h, the rounding of h itself), in the place of the
+    /// one before: the same numbers as [`NearExp::from_phi`] of
+    /// [`NearExp::matrix`], without allocating.
+    #[inline(never)]
+    fn relocate(&mut self, m: &DMatrix<f64>, h: f64) {
+        let d = h - self.base.h0;
+        match &mut self.local {
+            Some(local) => local.remake(&self.base, m, h, d),
+            None => self.local = Some(NearExp::from_phi(m, h, self.base.matrix(d))),
+        }
+        self.served = 0;
+    }
+
     /// The polynomial nearer `h`: the one about a recent length where it
     /// serves `h`, else the base.
     #[inline(always)]
@@ -257,10 +272,9 @@ impl NearAnchor {
             // the base's (h − h₀ is exact where the two lie within a
             // factor of two, Sterbenz's lemma, else within half an ulp of
             // h, the rounding of h itself).
-            let local = NearExp::from_phi(m, h, self.base.matrix(h - self.base.h0));
+            self.relocate(m, h);
+            let local = self.local.as_ref().expect("made above");
             propagate::matvec(&local.phi, z, out);
-            self.local = Some(local);
-            self.served = 0;
             return Served::Near;
         }
         let applied = near.apply(d, z, out, w);
@@ -369,9 +383,7 @@ impl NearAnchor {
             if self.served >= RELOCATE {
                 // As in `advance_far`: h − h₀ is exact or within half an
                 // ulp of h.
-                let local = NearExp::from_phi(m, h, self.base.matrix(h - self.base.h0));
-                self.local = Some(local);
-                self.served = 0;
+                self.relocate(m, h);
                 k = terms_for(spread * self.base.norm);
             }
             self.served += 1;
@@ -476,15 +488,40 @@ impl NearExp {
     /// left out is below 3e-25 of ‖e^{Mh₀}‖₁ (see [`NEAR_REACH`]), under
     /// the 5.4e-20 at which [`propagate::expm_shifted`] stops.
     pub(crate) fn matrix(&self, delta: f64) -> DMatrix<f64> {
+        let mut out = DMatrix::<f64>::zeros(self.n, self.n);
+        self.matrix_into(delta, out.as_mut_slice());
+        out
+    }
+
+    /// [`NearExp::matrix`] into `out` (n×n, column-major).
+    fn matrix_into(&self, delta: f64, out: &mut [f64]) {
         let nn = self.n * self.n;
         let block = |t: usize| &self.stacked[t * nn..(t + 1) * nn];
-        let mut out = DMatrix::<f64>::from_column_slice(self.n, self.n, block(TERMS - 1));
+        out.copy_from_slice(block(TERMS - 1));
         for t in (0..TERMS - 1).rev() {
-            for (x, &p) in out.as_mut_slice().iter_mut().zip(block(t)) {
+            for (x, &p) in out.iter_mut().zip(block(t)) {
                 *x = *x * delta + p;
             }
         }
-        out
+    }
+
+    /// This polynomial made again about h from `base`'s
+    /// ([`NearAnchor::relocate`]; `d` = h − base.h₀): the same products
+    /// and quotients as [`NearExp::from_phi`], in place.
+    fn remake(&mut self, base: &NearExp, m: &DMatrix<f64>, h: f64, d: f64) {
+        let (n, nn) = (self.n, self.n * self.n);
+        base.matrix_into(d, self.phi.as_mut_slice());
+        self.h0 = h;
+        self.stacked[..nn].copy_from_slice(self.phi.as_slice());
+        for k in 1..TERMS {
+            let (done, rest) = self.stacked.split_at_mut(k * nn);
+            let prev = DMatrixView::from_slice(&done[(k - 1) * nn..], n, n);
+            let mut next = DMatrixViewMut::from_slice(&mut rest[..nn], n, n);
+            m.mul_to(&prev, &mut next);
+            for x in next.iter_mut() {
+                *x /= k as f64;
+            }
+        }
     }
 }
 
@@ -691,6 +728,42 @@ mod tests {
             propagate::matvec(&got, &z, &mut b);
             for (x, y) in a.iter().zip(&b) {
                 assert!((x - y).abs() <= 1e-14 * y.abs().max(1.0), "{x} vs {y}");
+            }
+        }
+    }
+
+    /// A nearer polynomial made again in place of the one before holds
+    /// the numbers of one made afresh from the base's matrix, to the bit,
+    /// at the sizes with a kernel of their own and one without (the same
+    /// operations in the same order; nothing to cite).
+    #[test]
+    fn a_polynomial_remade_in_place_is_the_one_made_afresh() {
+        for n in [3usize, 9] {
+            let mut m = DMatrix::<f64>::zeros(n, n);
+            for i in 0..n - 1 {
+                m[(i, i)] = -3.0e3 * (i + 1) as f64;
+                m[(i, (i + 1) % (n - 1))] += 4.0e4;
+                m[((i + 1) % (n - 1), i)] -= 4.0e4;
+                m[(i, n - 1)] = 2.0e3;
+            }
+            let mut anchor = NearAnchor::new(NearExp::new(&m, 1.9e-6));
+            let reach = anchor.base.reach;
+            for f in [0.25, -0.5, 0.75] {
+                let h = 1.9e-6 + f * reach;
+                anchor.relocate(&m, h);
+                let local = anchor.local.as_ref().expect("made");
+                let fresh = NearExp::from_phi(&m, h, anchor.base.matrix(h - anchor.base.h0));
+                assert_eq!(local.h0.to_bits(), fresh.h0.to_bits());
+                assert!(local
+                    .phi
+                    .iter()
+                    .zip(fresh.phi.iter())
+                    .all(|(a, b)| a.to_bits() == b.to_bits()));
+                assert!(local
+                    .stacked
+                    .iter()
+                    .zip(&fresh.stacked)
+                    .all(|(a, b)| a.to_bits() == b.to_bits()));
             }
         }
     }
