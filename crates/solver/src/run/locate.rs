@@ -60,7 +60,7 @@ use crate::crossing::roots::{exact_root, guard_root, illinois_point, near_root};
 use crate::crossing::{at_end, same_instant, Crossing, Scales};
 use crate::envelope::Envelope;
 use crate::mode::{Guard, GuardKind, Mode};
-use crate::near::{NearAnchor, NearExp, NearTerms, Served};
+use crate::near::{NearAnchor, NearExp, NearTerms, Served, NEAR_REACH};
 use crate::propagate;
 use crate::propagate::{dot_slices, Spectrum};
 
@@ -583,7 +583,21 @@ pub(super) struct GuardPolys {
     /// polynomial once the crossing settles (`NearAnchor`,
     /// `Shortcuts::nearby_lengths`).
     anchor: Option<NearAnchor>,
+    /// The latest crossing whose state was formed here (NaN before one),
+    /// and the crossings since the anchor was made: an anchor is made
+    /// only where crossings move slowly enough for it to serve the next,
+    /// and one replaces another only after [`ANCHOR_PAYBACK`] crossings
+    /// (`anchored_state`).
+    last_t: f64,
+    since_anchor: u32,
 }
+
+/// Crossings of a length after which a new anchor (one exponential) may
+/// replace the one before where that one no longer serves: a crossing
+/// that drifts out of reach every few periods (a converter starting up)
+/// took an exponential each time, tens of times the Taylor terms of the
+/// crossing's own length.
+const ANCHOR_PAYBACK: u32 = 32;
 
 /// The two latest crossings σ of one guard over one cached length,
 /// for the next search to start from where the crossing is expected: the
@@ -681,6 +695,8 @@ impl GuardPolys {
             bits: h.to_bits(),
             hints: vec![Hints::default(); rows.len()],
             anchor: None,
+            last_t: f64::NAN,
+            since_anchor: 0,
             rows,
             abs,
             kept,
@@ -894,8 +910,32 @@ impl Simulator {
         let mi = self.mode as usize;
         let gp = &mut self.modes.caches[mi].polys[pi];
         let z = self.z.as_slice();
+        let moved = (t - gp.last_t).abs();
+        gp.last_t = t;
+        gp.since_anchor = gp.since_anchor.saturating_add(1);
         let Some(anchor) = gp.anchor.as_mut().filter(|a| a.serves(t)) else {
+            let slow = moved * propagate::norm1(&mode.m) <= 0.5 * NEAR_REACH;
+            if !slow || (gp.anchor.is_some() && gp.since_anchor < ANCHOR_PAYBACK) {
+                // The crossing moved by more than half a reach since the
+                // one before (or this is the first), so an exponential
+                // here would not serve the next one either, or the anchor
+                // it would replace was made lately: the Taylor terms of
+                // the crossing's own length, as without the shortcut (a
+                // two-phase buck starting up made an exponential almost
+                // every period and ran 40 % slower than without it).
+                propagate::advance_into(
+                    &mode.m,
+                    (&mode.weight, mode.live),
+                    mode.rate,
+                    z,
+                    t,
+                    self.z_next.as_mut_slice(),
+                    &mut self.buf.advance,
+                );
+                return;
+            }
             self.stats.exponentials += 1;
+            gp.since_anchor = 0;
             let near = NearExp::new(&mode.m, t);
             propagate::matvec(&near.phi, z, self.z_next.as_mut_slice());
             gp.anchor = Some(NearAnchor::new(near));
