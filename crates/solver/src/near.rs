@@ -104,19 +104,8 @@ impl NearExp {
             5 => first_order_fixed::<5>(block(0), block(1), delta, z, out),
             6 => first_order_fixed::<6>(block(0), block(1), delta, z, out),
             _ => {
-                propagate::matvec(&self.phi, z, w0);
-                for (j, &zj) in z.iter().enumerate() {
-                    let col = &block(1)[j * n..(j + 1) * n];
-                    if j == 0 {
-                        for (y, &c) in w1.iter_mut().zip(col) {
-                            *y = c * zj;
-                        }
-                    } else {
-                        for (y, &c) in w1.iter_mut().zip(col) {
-                            *y += c * zj;
-                        }
-                    }
-                }
+                block_product(block(0), z, w0);
+                block_product(block(1), z, w1);
                 for ((o, &a), &b) in out.iter_mut().zip(&*w0).zip(&*w1) {
                     *o = a + delta * b;
                 }
@@ -399,15 +388,8 @@ impl NearAnchor {
             5 => products_fixed::<5>(&near.stacked, k, z, out),
             6 => products_fixed::<6>(&near.stacked, k, z, out),
             _ => {
-                for t in 0..=k {
-                    let block = &near.stacked[t * n * n..(t + 1) * n * n];
-                    let y = &mut out[t * n..(t + 1) * n];
-                    y.fill(0.0);
-                    for (j, &zj) in z.iter().enumerate() {
-                        for (yi, &c) in y.iter_mut().zip(&block[j * n..(j + 1) * n]) {
-                            *yi += c * zj;
-                        }
-                    }
+                for (t, y) in out.chunks_exact_mut(n).enumerate().take(k + 1) {
+                    block_product(&near.stacked[t * n * n..(t + 1) * n * n], z, y);
                 }
             }
         }
@@ -430,15 +412,7 @@ fn first_order_fixed<const N: usize>(
 ) {
     let z: &[f64; N] = z.try_into().expect("z has N entries");
     let out: &mut [f64; N] = out.try_into().expect("out has N entries");
-    let (mut a, mut b) = ([0.0f64; N], [0.0f64; N]);
-    for (j, &zj) in z.iter().enumerate() {
-        let c0: &[f64; N] = p0[j * N..(j + 1) * N].try_into().expect("N entries");
-        let c1: &[f64; N] = p1[j * N..(j + 1) * N].try_into().expect("N entries");
-        for i in 0..N {
-            a[i] += c0[i] * zj;
-            b[i] += c1[i] * zj;
-        }
-    }
+    let (a, b) = (block_product_fixed(p0, z), block_product_fixed(p1, z));
     for i in 0..N {
         out[i] = a[i] + delta * b[i];
     }
@@ -450,17 +424,40 @@ fn first_order_fixed<const N: usize>(
 fn products_fixed<const N: usize>(stacked: &[f64], k: usize, z: &[f64], out: &mut [f64]) {
     let z: &[f64; N] = z.try_into().expect("z has N entries");
     for (t, y) in out.chunks_exact_mut(N).enumerate().take(k + 1) {
-        let block = &stacked[t * N * N..(t + 1) * N * N];
-        let mut acc = [0.0f64; N];
-        for (j, &zj) in z.iter().enumerate() {
-            let col: &[f64; N] = block[j * N..(j + 1) * N]
-                .try_into()
-                .expect("a column of an N×N block has N entries");
-            for i in 0..N {
-                acc[i] += col[i] * zj;
-            }
+        y.copy_from_slice(&block_product_fixed(
+            &stacked[t * N * N..(t + 1) * N * N],
+            z,
+        ));
+    }
+}
+
+/// y = P·z for an N×N column-major block P, each entry summed over the
+/// columns in order from +0, unrolled: the product of every polynomial
+/// term here.
+#[inline(always)]
+fn block_product_fixed<const N: usize>(block: &[f64], z: &[f64; N]) -> [f64; N] {
+    let mut y = [0.0f64; N];
+    for (j, &zj) in z.iter().enumerate() {
+        let col: &[f64; N] = block[j * N..(j + 1) * N]
+            .try_into()
+            .expect("a column of an N×N block has N entries");
+        for i in 0..N {
+            y[i] += col[i] * zj;
         }
-        y.copy_from_slice(&acc);
+    }
+    y
+}
+
+/// [`block_product_fixed`] for any length of z (y's length), the same
+/// operations in the same order.
+#[inline(always)]
+fn block_product(block: &[f64], z: &[f64], y: &mut [f64]) {
+    let n = y.len();
+    y.fill(0.0);
+    for (j, &zj) in z.iter().enumerate() {
+        for (yi, &c) in y.iter_mut().zip(&block[j * n..(j + 1) * n]) {
+            *yi += c * zj;
+        }
     }
 }
 
@@ -558,19 +555,7 @@ fn apply_terms<const N: usize, const K: usize>(
 ) -> bool {
     let z: &[f64; N] = z.try_into().expect("z has N entries");
     let out: &mut [f64; N] = out.try_into().expect("out has N entries");
-    let product = |t: usize| -> [f64; N] {
-        let block = &stacked[t * N * N..(t + 1) * N * N];
-        let mut y = [0.0f64; N];
-        for (j, &zj) in z.iter().enumerate() {
-            let col: &[f64; N] = block[j * N..(j + 1) * N]
-                .try_into()
-                .expect("a column of an N×N block has N entries");
-            for i in 0..N {
-                y[i] += col[i] * zj;
-            }
-        }
-        y
-    };
+    let product = |t: usize| block_product_fixed(&stacked[t * N * N..(t + 1) * N * N], z);
     let last = product(K);
     let mut x = last;
     let mut dk = 1.0;
@@ -599,15 +584,8 @@ fn apply_general(
     out: &mut [f64],
     w: &[f64],
 ) -> bool {
-    let product = |t: usize, y: &mut [f64]| {
-        let block = &stacked[t * n * n..(t + 1) * n * n];
-        y.fill(0.0);
-        for (j, &zj) in z.iter().enumerate() {
-            for (yi, &c) in y.iter_mut().zip(&block[j * n..(j + 1) * n]) {
-                *yi += c * zj;
-            }
-        }
-    };
+    let product =
+        |t: usize, y: &mut [f64]| block_product(&stacked[t * n * n..(t + 1) * n * n], z, y);
     let mut last = vec![0.0; n];
     product(k, &mut last);
     out.copy_from_slice(&last);
