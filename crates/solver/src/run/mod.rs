@@ -615,13 +615,12 @@ mod tests {
         // And every example converter.
         for &(file, stop) in EXAMPLES {
             let c = example(file);
-            let run = |near: bool| {
-                let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
-                sim.shortcuts.nearby_lengths = near;
-                sim.advance_to(stop).expect("runs");
-                sim.finish()
-            };
-            compare_runs(&run(true), &run(false), stop, file);
+            compare_runs(
+                &run_nearby(&c, stop, true),
+                &run_nearby(&c, stop, false),
+                stop,
+                file,
+            );
         }
     }
 
@@ -639,13 +638,7 @@ mod tests {
     fn a_moving_turn_off_is_advanced_from_an_anchor() {
         let c = crate::test_util::light_buck(8.5);
         let stop = 2000.0 / 250e3;
-        let run = |near: bool| {
-            let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
-            sim.shortcuts.nearby_lengths = near;
-            sim.advance_to(stop).expect("runs");
-            sim.finish()
-        };
-        let (a, b) = (run(true), run(false));
+        let (a, b) = (run_nearby(&c, stop, true), run_nearby(&c, stop, false));
         assert_eq!(a.stats.state_events, 2000, "one turn-off a period");
         assert!(
             a.stats.near_steps >= 1900,
@@ -705,13 +698,7 @@ mod tests {
             .build()
             .expect("valid");
         let stop = 2000.0 / f;
-        let run = |near: bool| {
-            let mut sim = Simulator::new(&c, Options::default()).expect("compiles");
-            sim.shortcuts.nearby_lengths = near;
-            sim.advance_to(stop).expect("runs");
-            sim.finish()
-        };
-        let (a, b) = (run(true), run(false));
+        let (a, b) = (run_nearby(&c, stop, true), run_nearby(&c, stop, false));
         // Two turn-offs a period once the start-up's first periods are
         // past.
         assert!(a.stats.state_events >= 3900, "{:?}", a.stats);
@@ -729,6 +716,15 @@ mod tests {
             b.stats
         );
         compare_runs(&a, &b, stop, "two-phase DCM buck");
+    }
+
+    /// Runs `c` for `stop` seconds with the `nearby_lengths` shortcut on
+    /// or off.
+    fn run_nearby(c: &Circuit, stop: f64, near: bool) -> RunResult {
+        let mut sim = Simulator::new(c, Options::default()).expect("compiles");
+        sim.shortcuts.nearby_lengths = near;
+        sim.advance_to(stop).expect("runs");
+        sim.finish()
     }
 
     /// Asserts two runs of the same circuit agree: the same modes, segment
