@@ -502,6 +502,27 @@ pub(crate) struct Mode {
 struct NoSolution(&'static str);
 
 impl Mode {
+    /// e^{Mτ}·z into `out` by Taylor sub-steps on this mode's rate bound,
+    /// live rows and energy weights ([`crate::propagate::advance_into`]).
+    #[inline]
+    pub(crate) fn advance_into(
+        &self,
+        z: &[f64],
+        tau: f64,
+        out: &mut [f64],
+        scratch: &mut crate::propagate::Scratch,
+    ) {
+        crate::propagate::advance_into(
+            &self.m,
+            (&self.weight, self.live),
+            self.rate,
+            z,
+            tau,
+            out,
+            scratch,
+        );
+    }
+
     /// Derives the mode's matrices. Structural problems (a short, parallel
     /// ideal switches) are recorded in `problem`, not returned as errors,
     /// so that the diode pattern search can try other patterns.

@@ -205,15 +205,7 @@ impl ModeCache {
         {
             return;
         }
-        propagate::advance_into(
-            &m.m,
-            (&m.weight, m.live),
-            m.rate,
-            io.z,
-            h,
-            io.z_next,
-            &mut io.buf.advance,
-        );
+        m.advance_into(io.z, h, io.z_next, &mut io.buf.advance);
     }
 
     /// z_next = e^{M·len} z (`m` is M, `(z, z_next)` the states) by an
@@ -360,15 +352,7 @@ impl ModeCache {
         };
         stats.near_steps += 1;
         propagate::matvec(phi, z, buf.z_try.as_mut_slice());
-        propagate::advance_into(
-            &m.m,
-            (&m.weight, m.live),
-            m.rate,
-            buf.z_try.as_slice(),
-            delta,
-            z_next,
-            &mut buf.advance,
-        );
+        m.advance_into(buf.z_try.as_slice(), delta, z_next, &mut buf.advance);
         true
     }
 

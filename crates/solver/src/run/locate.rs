@@ -833,10 +833,7 @@ impl Simulator {
             // crossing's own length, into `z_next`: a clamp 10 ns into a
             // span of 2.45 µs needs a few terms where the span's
             // expansion evaluated at σ needed all of the span's.
-            propagate::advance_into(
-                &mode.m,
-                (&mode.weight, mode.live),
-                mode.rate,
+            mode.advance_into(
                 self.z.as_slice(),
                 t,
                 self.z_next.as_mut_slice(),
@@ -923,15 +920,7 @@ impl Simulator {
                 // the crossing's own length, as without the shortcut (a
                 // two-phase buck starting up made an exponential almost
                 // every period and ran 40 % slower than without it).
-                propagate::advance_into(
-                    &mode.m,
-                    (&mode.weight, mode.live),
-                    mode.rate,
-                    z,
-                    t,
-                    self.z_next.as_mut_slice(),
-                    &mut self.buf.advance,
-                );
+                mode.advance_into(z, t, self.z_next.as_mut_slice(), &mut self.buf.advance);
                 return;
             }
             self.stats.exponentials += 1;
@@ -952,10 +941,7 @@ impl Simulator {
                 self.stats.near_steps += 1;
                 let near = anchor.nearer(t);
                 propagate::matvec(&near.phi, z, self.buf.z_try.as_mut_slice());
-                propagate::advance_into(
-                    &mode.m,
-                    (&mode.weight, mode.live),
-                    mode.rate,
+                mode.advance_into(
                     self.buf.z_try.as_slice(),
                     t - near.h0,
                     self.z_next.as_mut_slice(),
