@@ -46,7 +46,7 @@
 use std::cmp::Ordering::{Equal, Less};
 use std::collections::HashMap;
 
-use nalgebra::{DMatrix, DMatrixView};
+use nalgebra::DMatrix;
 
 use super::Simulator;
 use crate::compile::{BranchKind, Compiled, OutputDef};
@@ -192,9 +192,6 @@ struct Gram {
     /// column of n per segment, at most [`BATCH`] (circuits of at least
     /// [`BATCH_FROM`] entries of z; see [`Gram::accumulate`]).
     batch: Vec<f64>,
-    /// Σ z₀·z₀ᵀ of the batches drained so far (n×n, empty until the
-    /// first): a product of matrices per batch.
-    square: DMatrix<f64>,
     /// In the list of Gramians with something in `acc`.
     dirty: bool,
     /// Segments that took the series of [`energies`] since h₀ was set.
@@ -217,11 +214,11 @@ impl Gram {
     /// sum itself, for half the work of a segment.
     ///
     /// From [`BATCH_FROM`] entries of z, segments of exactly h₀ (the
-    /// common case) are only copied into a batch, and each full batch Z
-    /// adds Z·Zᵀ in one product of matrices (`drain`): at 17 entries that
-    /// is about a tenth of the instructions of a triangle per segment.
-    /// The sums come out in another order, so the energies differ from
-    /// the triangle's in their last bits.
+    /// common case) are only copied into a batch, and each full batch is
+    /// added to the triangle column by column (`drain`): each sum stays
+    /// in registers over the batch instead of a load and a store per
+    /// segment. Every entry of `acc` receives the same products in the
+    /// same order as from a triangle per segment, so the same bits.
     #[inline]
     fn accumulate(&mut self, z: &[f64], d: f64, second: bool, norm: f64) {
         let d = if d != 0.0 && d.abs() * (1.0 / self.h0 + norm) <= SAME_LENGTH {
@@ -310,17 +307,11 @@ impl Gram {
             }
             s
         };
-        let square = &self.square;
         let out = std::array::from_fn(|f| {
-            let g = &self.g[f];
-            // The batches' sums, whole squares (empty if there were none).
-            let batched: f64 = g.iter().zip(square.iter()).map(|(a, b)| a * b).sum();
-            trace(g, &self.acc)
-                + batched
+            trace(&self.g[f], &self.acc)
                 + trace(&self.ends[f], &self.acc1)
                 + trace(&self.bends[f], &self.acc2)
         });
-        self.square.fill(0.0);
         self.acc.iter_mut().for_each(|a| *a = 0.0);
         self.acc1.iter_mut().for_each(|a| *a = 0.0);
         self.acc2.iter_mut().for_each(|a| *a = 0.0);
@@ -328,33 +319,122 @@ impl Gram {
         out
     }
 
-    /// Adds the batch's Z·Zᵀ to `square` (a product of matrices: the
-    /// columns of Z are the batch's states) and empties the batch.
+    /// Adds the batch's Σ z·zᵀ to `acc` ([`add_batch`]) and empties the
+    /// batch.
     fn drain(&mut self) {
-        let n = self.g[0].nrows();
-        let m = self.batch.len() / n.max(1);
-        if m == 0 {
+        if self.batch.is_empty() {
             return;
         }
-        if self.square.nrows() != n {
-            self.square = DMatrix::zeros(n, n);
-        }
-        let z = DMatrixView::from_slice(&self.batch, n, m);
-        // Zᵀ over the same numbers: row k of it is column k of Z.
-        let zt = DMatrixView::from_slice_with_strides(&self.batch, m, n, n, 1);
-        self.square.gemm(1.0, &z, &zt, 1.0);
+        add_batch(&mut self.acc, &self.batch, self.g[0].nrows());
         self.batch.clear();
     }
 }
 
-/// Segments per batch of [`Gram::accumulate`]: 16 ran the twelve-phase
-/// bench 2 % faster than 32 (a batch per mode and length, twelve of them
-/// in turn, stays in the first-level cache).
+/// Adds Σ z·zᵀ over the states of `batch` (one after another, `n`
+/// entries each) to the packed upper triangle `acc`, column by column:
+/// each column of the triangle is taken into registers, every state of
+/// the batch adds its products in the batch's order, and the column goes
+/// back. Each entry thus receives the same products in the same order as
+/// from [`outer_add`] state by state, so the same bits: a state whose
+/// entry j is zero adds nothing to column j (signed zeros, as
+/// [`outer_add`] skips them), and the rows below the diagonal that the
+/// vector loop also computes are dropped. On a processor with AVX the
+/// same loop runs four rows to an instruction (multiplications and
+/// additions, never fused, as in `propagate::columns`).
+fn add_batch(acc: &mut [f64], batch: &[f64], n: usize) {
+    macro_rules! fixed {
+        ($($n:literal)*) => {
+            match n {
+                $($n => return add_batch_fixed::<$n>(acc, batch),)*
+                _ => {}
+            }
+        };
+    }
+    fixed!(12 13 14 15 16 17 18 19 20);
+    let mut k = 0;
+    for j in 0..n {
+        let col = &mut acc[k..=k + j];
+        for z in batch.chunks_exact(n) {
+            let zj = z[j];
+            if zj != 0.0 {
+                for (a, &zi) in col.iter_mut().zip(&z[..=j]) {
+                    *a += zi * zj;
+                }
+            }
+        }
+        k += j + 1;
+    }
+}
+
+/// [`add_batch`] for `N` entries, on AVX where the processor has it.
+fn add_batch_fixed<const N: usize>(acc: &mut [f64], batch: &[f64]) {
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx") {
+        // SAFETY: `add_batch_avx` needs AVX alone, which the processor
+        // was just found to have.
+        return unsafe { add_batch_avx::<N>(acc, batch) };
+    }
+    add_batch_plain::<N>(acc, batch)
+}
+
+/// [`add_batch_plain`] compiled for AVX (no fused multiply–add, so the
+/// operations and their rounding are those of the plain build).
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx")]
+fn add_batch_avx<const N: usize>(acc: &mut [f64], batch: &[f64]) {
+    add_batch_plain::<N>(acc, batch)
+}
+
+/// The loop of [`add_batch`] for `N` entries (at most 20): column j of
+/// the triangle in the fewest whole vectors of four rows that hold it
+/// ([`add_batch_column`]).
+#[inline(always)]
+fn add_batch_plain<const N: usize>(acc: &mut [f64], batch: &[f64]) {
+    let mut k = 0;
+    for j in 0..N {
+        let col = &mut acc[k..=k + j];
+        match j / 4 {
+            0 => add_batch_column::<N, 4>(col, batch, j),
+            1 => add_batch_column::<N, 8>(col, batch, j),
+            2 => add_batch_column::<N, 12>(col, batch, j),
+            3 => add_batch_column::<N, 16>(col, batch, j),
+            _ => add_batch_column::<N, 20>(col, batch, j),
+        }
+        k += j + 1;
+    }
+}
+
+/// Column j of [`add_batch_plain`]: its j + 1 sums (`col`) and the rows
+/// below them up to `R` (at least j + 1) in registers over the batch;
+/// the rows below are dropped.
+#[inline(always)]
+fn add_batch_column<const N: usize, const R: usize>(col: &mut [f64], batch: &[f64], j: usize) {
+    let mut sums = [0.0f64; R];
+    for (s, &a) in sums.iter_mut().zip(col.iter()) {
+        *s = a;
+    }
+    // The rows of the states that exist (R may pass N by up to three).
+    let rows = R.min(N);
+    for z in batch.chunks_exact(N) {
+        let z: &[f64; N] = z.try_into().expect("chunks of N");
+        let zj = z[j];
+        if zj != 0.0 {
+            for i in 0..rows {
+                sums[i] += z[i] * zj;
+            }
+        }
+    }
+    for (a, &s) in col.iter_mut().zip(sums.iter()) {
+        *a = s;
+    }
+}
+
+/// Segments per batch of [`Gram::accumulate`].
 const BATCH: usize = 16;
 
 /// Fewest entries of z for which [`Gram::accumulate`] batches segments
-/// (below, a triangle per segment is a handful of products, and the
-/// product of matrices would not use its fast kernel).
+/// (below, a triangle per segment is a handful of products, kept inline
+/// in kernels of their own size).
 const BATCH_FROM: usize = 12;
 
 /// Lengths with the same sign and binary exponent (within a factor of two)
@@ -822,7 +902,6 @@ fn gramians(
         acc1: vec![0.0; n * (n + 1) / 2],
         acc2: vec![0.0; n * (n + 1) / 2],
         batch: Vec::new(),
-        square: DMatrix::zeros(0, 0),
         ends,
         bends,
         dirty: false,
@@ -1627,39 +1706,58 @@ mod tests {
         (m, [form(), form(), form()])
     }
 
-    /// Segments of 13 entries go through batches (a product of matrices
-    /// per [`BATCH`]): their flushed energies equal the sum of zᵀGz segment
-    /// by segment to 1e-13, across full batches and a partial one, and
-    /// twice in a row (the batch and its square start again from nothing).
-    /// (Σ zᵀGz = trace(G·Σ zzᵀ); common practice.)
+    /// Segments of 13 and 23 entries go through batches: the sums they
+    /// leave are those of a triangle per segment to the bit (the same
+    /// products in the same order), zero entries included, across full
+    /// batches and a partial one, and twice in a row (the sums start again
+    /// from nothing); and the flushed energies equal the sum of zᵀGz
+    /// segment by segment to 1e-13. (Σ zᵀGz = trace(G·Σ zzᵀ); common
+    /// practice.)
     #[test]
     fn batched_segments_sum_to_the_energies_of_each_segment() {
-        let n = 13;
-        assert!(n >= BATCH_FROM);
-        let (m, q) = random_mode(n, 7);
-        let balanced = crate::propagate::balancing(&m);
-        let norm = norm1(&balanced.0);
-        let mut g = gramians(&balanced, q.each_ref(), 0.2).expect("finite");
-        let mut rnd = crate::test_util::uniform(11);
-        for round in 0..2 {
-            let mut want = [0.0; FORMS];
-            let count = 3 * BATCH + 5 + round;
-            for _ in 0..count {
-                let z: Vec<f64> = (0..n).map(|_| rnd() - 0.5).collect();
-                g.accumulate(&z, 0.0, false, norm);
-                for (w, gf) in want.iter_mut().zip(&g.g) {
-                    *w += quadratic(gf, &z);
+        for n in [13, 23] {
+            assert!(n >= BATCH_FROM);
+            let (m, q) = random_mode(n, 7);
+            let balanced = crate::propagate::balancing(&m);
+            let norm = norm1(&balanced.0);
+            let mut g = gramians(&balanced, q.each_ref(), 0.2).expect("finite");
+            let mut rnd = crate::test_util::uniform(11);
+            for round in 0..2 {
+                let mut want = [0.0; FORMS];
+                let mut triangle = vec![0.0; n * (n + 1) / 2];
+                let count = 3 * BATCH + 5 + round;
+                for s in 0..count {
+                    // Every third state with a zero entry (a source's
+                    // derivative), in a column that moves.
+                    let z: Vec<f64> = (0..n)
+                        .map(|i| {
+                            if s % 3 == 0 && i == s % n {
+                                0.0
+                            } else {
+                                rnd() - 0.5
+                            }
+                        })
+                        .collect();
+                    g.accumulate(&z, 0.0, false, norm);
+                    outer_add(&mut triangle, &mut [], &mut [], &z, (0.0, false));
+                    for (w, gf) in want.iter_mut().zip(&g.g) {
+                        *w += quadratic(gf, &z);
+                    }
                 }
-            }
-            let got = g.flush();
-            let scale: f64 = (0..FORMS).map(|f| want[f].abs()).fold(0.0, f64::max);
-            for f in 0..FORMS {
-                assert!(
-                    (got[f] - want[f]).abs() <= 1e-13 * scale,
-                    "round {round}, form {f}: {} vs {}",
-                    got[f],
-                    want[f]
-                );
+                assert!(!g.batch.is_empty(), "a partial batch is left");
+                g.drain();
+                let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+                assert_eq!(bits(&g.acc), bits(&triangle), "n {n}, round {round}");
+                let got = g.flush();
+                let scale: f64 = (0..FORMS).map(|f| want[f].abs()).fold(0.0, f64::max);
+                for f in 0..FORMS {
+                    assert!(
+                        (got[f] - want[f]).abs() <= 1e-13 * scale,
+                        "n {n}, round {round}, form {f}: {} vs {}",
+                        got[f],
+                        want[f]
+                    );
+                }
             }
         }
     }
