@@ -108,7 +108,7 @@ impl Simulator {
                 ramps: 0,
             },
             sched: schedule::Schedule {
-                signals,
+                queues: schedule::Queues::new(signals),
                 signal_on,
                 signal_switches,
                 switches_on,
@@ -160,14 +160,11 @@ impl Simulator {
             && self.ramps.switches == 0;
         self.set_inputs(0.0);
         self.key.switches = self.switch_bits();
-        for i in 0..self.sched.signals.len() {
+        for i in 0..self.sched.signal_count() {
             self.sched.refill(&self.cc.signals[i].1, i, 0.0);
-            while self.sched.signals[i]
-                .edges
-                .front()
-                .is_some_and(|e| e.time <= 0.0)
-            {
-                self.sched.signals[i].edges.pop_front();
+            let b = self.sched.signal_mut(i);
+            while b.edges.front().is_some_and(|e| e.time <= 0.0) {
+                b.edges.pop_front();
             }
         }
     }

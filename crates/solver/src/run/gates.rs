@@ -35,14 +35,9 @@ impl Simulator {
     pub(super) fn take_due_edges(&mut self, t: f64) -> bool {
         let mut changed = false;
         let until = coincident_until(t);
-        for i in 0..self.sched.signals.len() {
-            while let Some(e) = self.sched.signals[i].edges.front() {
-                if e.time > until {
-                    break;
-                }
-                let on = e.on;
+        for i in 0..self.sched.signal_count() {
+            while let Some(on) = self.sched.take_due(i, until) {
                 self.sched.set_signal(i, on);
-                self.sched.signals[i].edges.pop_front();
                 changed = true;
             }
         }

@@ -795,6 +795,111 @@ mod tests {
     /// a loop of their own (the first ten of the shared list).
     const EXAMPLES: &[(&str, f64)] = test_util::EXAMPLES.split_at(10).0;
 
+    /// Contract: the gate signals' fronts kept side by side are only a
+    /// shortcut of the pass over their queues, so the same bits — states
+    /// of every segment, the event log and the counters — for every
+    /// example converter, the twelve-phase buck over 50 periods, and a
+    /// three-phase buck whose duty cycles and delays a sampled controller
+    /// changes every 4 µs (each change rewrites the queues).
+    #[test]
+    fn gate_fronts_give_the_same_bits_as_the_pass_over_the_queues() {
+        use crate::control::{Commands, Sampling};
+        use fluxstep_netlist::Gate;
+        // Three phases, 200 kHz, the duty and delays moved by a controller
+        // (demo values).
+        let three = || {
+            let mut b = Circuit::builder().voltage_source("Vin", "in", "gnd", 12.0);
+            for k in 1..=3 {
+                let sw = format!("sw{k}");
+                b = b
+                    .switch(&format!("S{k}"), "in", &sw, &format!("ph{k}"))
+                    .diode(&format!("D{k}"), "gnd", &sw)
+                    .inductor_with_current(&format!("L{k}"), &sw, "out", 4.7e-6, 1.0)
+                    .gate(Gate::Pwm {
+                        name: format!("ph{k}"),
+                        frequency: 200e3,
+                        duty: 0.3,
+                        delay: (k - 1) as f64 / 600e3,
+                        start: None,
+                        stop: None,
+                    });
+            }
+            b.capacitor_with_voltage("Cout", "out", "gnd", 47e-6, 3.0)
+                .resistor("Rload", "out", "gnd", 1.0)
+                .build()
+                .expect("valid")
+        };
+        let run = |c: &Circuit, stop: f64, fronts: bool, control: bool| {
+            let mut sim = Simulator::new(c, Options::default()).expect("compiles");
+            sim.sched.queues.keep &= fronts;
+            if control {
+                let mut n = 0u32;
+                let step = move |_t: f64, y: &[Option<f64>], cmd: &mut Commands| {
+                    n += 1;
+                    let e = 3.3 - y[0].expect("the output is determined");
+                    let d = (0.3 + 0.05 * e).clamp(0.05, 0.9);
+                    for k in 1..=3 {
+                        cmd.set_duty(&format!("ph{k}"), d);
+                    }
+                    // Every third sample, a phase's delay moves too.
+                    if n.is_multiple_of(3) {
+                        let k = 1 + n % 3 + (n / 3) % 2;
+                        cmd.set_delay(&format!("ph{k}"), 0.1e-6 * f64::from(n % 7));
+                    }
+                };
+                let sampling = Sampling {
+                    inputs: vec!["out".into()],
+                    period: 4e-6,
+                    ..Sampling::default()
+                };
+                sim.add_controller(sampling, Box::new(step)).expect("valid");
+            }
+            sim.advance_to(stop).expect("runs");
+            let used = sim.sched.queues.from_fronts;
+            (sim.finish(), used)
+        };
+        let mut cases: Vec<(String, Circuit, f64, bool)> = test_util::EXAMPLES
+            .iter()
+            .map(|&(file, stop)| (file.to_string(), example(file), stop, false))
+            .collect();
+        cases.push((
+            "interleaved_buck_12.json, 50 periods".into(),
+            example("interleaved_buck_12.json"),
+            200e-6,
+            false,
+        ));
+        cases.push(("three phases under control".into(), three(), 400e-6, true));
+        let mut fronts_used = vec![];
+        for (what, c, stop, control) in &cases {
+            let ((a, used), (b, unused)) = (
+                run(c, *stop, true, *control),
+                run(c, *stop, false, *control),
+            );
+            assert_eq!(unused, 0, "{what}");
+            fronts_used.push((what.clone(), used, a.stats.scheduled_events));
+            assert_eq!(
+                a.events.to_json(),
+                b.events.to_json(),
+                "{what}: event logs differ"
+            );
+            assert_eq!(a.waveform.segments, b.waveform.segments, "{what}");
+            let bits = |r: &RunResult| -> Vec<u64> {
+                r.waveform.states.iter().map(|v| v.to_bits()).collect()
+            };
+            assert_eq!(bits(&a), bits(&b), "{what}: segment states differ");
+            assert_eq!(a.stats, b.stats, "{what}: counters differ");
+        }
+        // The fronts must have answered most look-ups of the last two
+        // (three signals or more, many periods), or the test proves
+        // nothing.
+        for (what, used, edges) in &fronts_used[fronts_used.len() - 2..] {
+            assert!(
+                2 * *used as usize > *edges && *edges > 200,
+                "{what}: fronts used {used} times for {edges} scheduled events"
+            );
+        }
+    }
+
     /// Contract: replaying a remembered transition is only a shortcut, so
     /// every converter gives the same bits with and without it — states of
     /// every segment and the whole event log.

@@ -301,7 +301,7 @@ impl Simulator {
                         format!("edge of {signal} at {time:e} s lies in the past"),
                     ));
                 }
-                let b = &mut self.sched.signals[si];
+                let b = self.sched.signal_mut(si);
                 let pos = b.edges.partition_point(|e| e.time <= time);
                 b.edges.insert(
                     pos,
@@ -380,7 +380,7 @@ impl Simulator {
                 self.cc.signals[si].1.was_on_before(t_from)
             };
             self.cc.signals[si].1 = shape;
-            let b = &mut self.sched.signals[si];
+            let b = self.sched.signal_mut(si);
             b.edges.retain(|e| e.time < t_from);
             // Only two periods ahead: a controller that changes the duty
             // every period would otherwise regenerate a long chunk each time.
@@ -390,7 +390,7 @@ impl Simulator {
             b.edges.extend(shape.edges(t_from, to));
             b.filled_to = to;
             let now = self.cc.signals[si].1.is_on(t_from);
-            let b = &mut self.sched.signals[si];
+            let b = self.sched.signal_mut(si);
             let pos = b.edges.partition_point(|e| e.time < t_from);
             let edge_at = b.edges.get(pos).is_some_and(|e| e.time == t_from);
             if now != before && !edge_at {

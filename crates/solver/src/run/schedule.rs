@@ -94,7 +94,8 @@ impl EdgeQueue {
 /// edges, the comparators' ticks, the controllers and their pending
 /// updates, and what is known of the sources' corners.
 pub(super) struct Schedule {
-    pub(super) signals: Vec<SignalBuffer>,
+    /// Every gate signal's upcoming edges.
+    pub(super) queues: Queues,
     /// Present state of each gate signal (written by
     /// [`Schedule::set_signal`] only).
     pub(super) signal_on: Vec<bool>,
@@ -154,6 +155,127 @@ pub(super) struct Pending {
     pub commands: Vec<Command>,
 }
 
+/// Each gate signal's upcoming edges, read and changed only through
+/// [`Schedule::signal_mut`], [`Schedule::take_due`] and the look-ups of
+/// this module, which keep `fronts` true.
+pub(super) struct Queues {
+    signals: Vec<SignalBuffer>,
+    /// When `valid`: each signal's front edge time, side by side, so
+    /// that the next edge is the least of a short array rather than a
+    /// pass over every queue (a twelve-phase converter has twelve).
+    /// Cleared when a queue runs empty or is changed other than by
+    /// taking its front; the next [`Schedule::next_gate_edge`] then takes
+    /// the pass over the queues (refilling the empty ones) and writes it
+    /// again.
+    fronts: Vec<f64>,
+    valid: bool,
+    /// Whether `fronts` is kept at all: from [`FRONTS_FROM`] signals (and
+    /// off in the tests that compare the two ways).
+    pub(super) keep: bool,
+    /// Look-ups answered from `fronts` (tests only).
+    #[cfg(test)]
+    pub(super) from_fronts: u64,
+}
+
+impl Queues {
+    /// The queues of `signals`, their fronts not yet read.
+    pub(super) fn new(signals: Vec<SignalBuffer>) -> Self {
+        Queues {
+            keep: signals.len() >= FRONTS_FROM,
+            signals,
+            fronts: vec![],
+            valid: false,
+            #[cfg(test)]
+            from_fronts: 0,
+        }
+    }
+
+    /// [`Schedule::next_gate_edge`] where `fronts` is kept: from it where
+    /// it is valid, else by a pass that writes it. Out of line, so that
+    /// the loop of one or two signals stays as small as it was.
+    #[inline(never)]
+    fn next_edge_kept(
+        &mut self,
+        shapes: &[(String, SignalShape)],
+        t_end: f64,
+    ) -> (f64, Option<TimeKey>) {
+        if !self.valid {
+            return self.pass::<true>(shapes, t_end);
+        }
+        #[cfg(test)]
+        {
+            self.from_fronts += 1;
+        }
+        // The least front, then the first signal there with a key (else
+        // the first there): what the pass over the queues finds, as every
+        // queue is non-empty and its front is in `fronts`.
+        let least = self
+            .fronts
+            .iter()
+            .fold(f64::INFINITY, |m, &t| if t < m { t } else { m });
+        if least > t_end {
+            return (t_end, None);
+        }
+        let mut key = None;
+        for (b, &t) in self.signals.iter().zip(&self.fronts) {
+            if t == least {
+                let e = b.edges.front().expect("a valid front has an edge");
+                if let Some(period) = e.period {
+                    key = Some(TimeKey {
+                        cycle: e.cycle,
+                        phase: e.phase,
+                        period,
+                    });
+                    break;
+                }
+            }
+        }
+        (least, key)
+    }
+
+    /// [`Schedule::next_gate_edge`] by a pass over every queue, refilling
+    /// the empty ones; with `KEEP`, writes `fronts` (valid where every
+    /// queue then has an edge).
+    #[inline(always)]
+    fn pass<const KEEP: bool>(
+        &mut self,
+        shapes: &[(String, SignalShape)],
+        t_end: f64,
+    ) -> (f64, Option<TimeKey>) {
+        let mut best = (t_end, None);
+        if KEEP {
+            self.fronts.clear();
+        }
+        for (b, (_, shape)) in self.signals.iter_mut().zip(shapes) {
+            if b.edges.is_empty() {
+                b.refill(shape, b.filled_to);
+            }
+            if let Some(e) = b.edges.front() {
+                if KEEP {
+                    self.fronts.push(e.time);
+                }
+                if e.time < best.0 || (e.time == best.0 && best.1.is_none()) {
+                    let key = e.period.map(|period| TimeKey {
+                        cycle: e.cycle,
+                        phase: e.phase,
+                        period,
+                    });
+                    best = (e.time, key);
+                }
+            }
+        }
+        if KEEP {
+            self.valid = self.fronts.len() == self.signals.len();
+        }
+        best
+    }
+}
+
+/// Fewest gate signals for which [`Queues`] keeps their fronts side by
+/// side: with one or two, the pass over the queues costs less than
+/// keeping them.
+const FRONTS_FROM: usize = 3;
+
 /// Upcoming edges of one gate signal, refilled a chunk of periods at a time.
 pub(super) struct SignalBuffer {
     pub edges: EdgeQueue,
@@ -189,7 +311,8 @@ impl Schedule {
 
     /// Fills signal `i`'s buffer of edges (of `shape`) past `upto`.
     pub(super) fn refill(&mut self, shape: &SignalShape, i: usize, upto: f64) {
-        self.signals[i].refill(shape, upto);
+        self.queues.valid = false;
+        self.queues.signals[i].refill(shape, upto);
     }
 
     /// The earliest front of the signal buffers before `t_end` (or at it,
@@ -203,23 +326,43 @@ impl Schedule {
         shapes: &[(String, SignalShape)],
         t_end: f64,
     ) -> (f64, Option<TimeKey>) {
-        let mut best = (t_end, None);
-        for (b, (_, shape)) in self.signals.iter_mut().zip(shapes) {
-            if b.edges.is_empty() {
-                b.refill(shape, b.filled_to);
-            }
-            if let Some(e) = b.edges.front() {
-                if e.time < best.0 || (e.time == best.0 && best.1.is_none()) {
-                    let key = e.period.map(|period| TimeKey {
-                        cycle: e.cycle,
-                        phase: e.phase,
-                        period,
-                    });
-                    best = (e.time, key);
-                }
+        if self.queues.keep {
+            return self.queues.next_edge_kept(shapes, t_end);
+        }
+        self.queues.pass::<false>(shapes, t_end)
+    }
+
+    /// The number of gate signals.
+    pub(super) fn signal_count(&self) -> usize {
+        self.queues.signals.len()
+    }
+
+    /// Signal `i`'s queue, to change it in any way (`fronts` is written
+    /// again at the next look-up).
+    pub(super) fn signal_mut(&mut self, i: usize) -> &mut SignalBuffer {
+        self.queues.valid = false;
+        &mut self.queues.signals[i]
+    }
+
+    /// Takes signal `i`'s front edge if it is due by `until`: its new
+    /// state (`set_signal` is the caller's), else `None`. Keeps `fronts`.
+    #[inline(always)]
+    pub(super) fn take_due(&mut self, i: usize, until: f64) -> Option<bool> {
+        let q = &mut self.queues;
+        let b = &mut q.signals[i];
+        let e = b.edges.front()?;
+        if e.time > until {
+            return None;
+        }
+        let on = e.on;
+        b.edges.pop_front();
+        if q.valid {
+            match b.edges.front() {
+                Some(next) => q.fronts[i] = next.time,
+                None => q.valid = false,
             }
         }
-        best
+        Some(on)
     }
 
     /// The next scheduled instant after `now` (capped at `t_end`) and its
@@ -283,6 +426,7 @@ impl Schedule {
         let until = coincident_until(t);
         ramp_next <= until
             || self
+                .queues
                 .signals
                 .iter()
                 .any(|b| b.edges.front().is_some_and(|e| e.time <= until))
