@@ -798,18 +798,25 @@ mod tests {
     /// Contract: the gate signals' fronts kept side by side are only a
     /// shortcut of the pass over their queues, so the same bits — states
     /// of every segment, the event log and the counters — for every
-    /// example converter, the twelve-phase buck over 50 periods, and a
+    /// example converter, the twelve-phase buck over 50 periods, a
     /// three-phase buck whose duty cycles and delays a sampled controller
-    /// changes every 4 µs (each change rewrites the queues).
+    /// changes every 4 µs (each change rewrites the queues), and one whose
+    /// second phase starts late and third stops early (a queue that runs
+    /// empty for good).
     #[test]
     fn gate_fronts_give_the_same_bits_as_the_pass_over_the_queues() {
         use crate::control::{Commands, Sampling};
         use fluxstep_netlist::Gate;
         // Three phases, 200 kHz, the duty and delays moved by a controller
         // (demo values).
-        let three = || {
+        let three = |limits: bool| {
             let mut b = Circuit::builder().voltage_source("Vin", "in", "gnd", 12.0);
             for k in 1..=3 {
+                let (start, stop) = match (limits, k) {
+                    (true, 2) => (Some(21e-6), None),
+                    (true, 3) => (None, Some(203e-6)),
+                    _ => (None, None),
+                };
                 let sw = format!("sw{k}");
                 b = b
                     .switch(&format!("S{k}"), "in", &sw, &format!("ph{k}"))
@@ -820,8 +827,8 @@ mod tests {
                         frequency: 200e3,
                         duty: 0.3,
                         delay: (k - 1) as f64 / 600e3,
-                        start: None,
-                        stop: None,
+                        start,
+                        stop,
                     });
             }
             b.capacitor_with_voltage("Cout", "out", "gnd", 47e-6, 3.0)
@@ -868,7 +875,18 @@ mod tests {
             200e-6,
             false,
         ));
-        cases.push(("three phases under control".into(), three(), 400e-6, true));
+        cases.push((
+            "three phases, one starting late, one stopping early".into(),
+            three(true),
+            400e-6,
+            false,
+        ));
+        cases.push((
+            "three phases under control".into(),
+            three(false),
+            400e-6,
+            true,
+        ));
         let mut fronts_used = vec![];
         for (what, c, stop, control) in &cases {
             let ((a, used), (b, unused)) = (
@@ -889,10 +907,11 @@ mod tests {
             assert_eq!(bits(&a), bits(&b), "{what}: segment states differ");
             assert_eq!(a.stats, b.stats, "{what}: counters differ");
         }
-        // The fronts must have answered most look-ups of the last two
-        // (three signals or more, many periods), or the test proves
-        // nothing.
-        for (what, used, edges) in &fronts_used[fronts_used.len() - 2..] {
+        // The fronts must have answered most look-ups of the twelve phases
+        // and of the phases under control (three signals or more, many
+        // periods), or the test proves nothing.
+        let n = fronts_used.len();
+        for (what, used, edges) in [&fronts_used[n - 3], &fronts_used[n - 1]] {
             assert!(
                 2 * *used as usize > *edges && *edges > 200,
                 "{what}: fronts used {used} times for {edges} scheduled events"
