@@ -24,6 +24,7 @@
 //! 3 % of the earlier lane; see docs/architecture.md.
 
 use super::instant::interval_length;
+use super::modeset::PREFETCH_FROM;
 use super::Simulator;
 use crate::error::SolverError;
 use crate::propagate;
@@ -91,6 +92,9 @@ impl Simulator {
             propagate::matvec(phi, self.z.as_slice(), self.z_next.as_mut_slice());
             self.stats.cache_hits += 1;
             self.lane_steps += 1;
+            if self.z.len() >= PREFETCH_FROM {
+                self.modes.prefetch_successor(mi);
+            }
             // From here on the general loop's own stages.
             if let Some(c) = self.locate(h) {
                 if c.time < h {

@@ -83,6 +83,10 @@ pub(super) type Disc = (u64, DMatrix<f64>);
 pub(super) struct ModeCache {
     /// e^{Mh} for spans of the schedule, at most 16.
     pub(super) scheduled: Vec<Disc>,
+    /// The mode a remembered transition entered from this one last
+    /// ([`NO_SUCCESSOR`] before any): its data is fetched into the cache
+    /// ahead of its use (`ModeSet::prefetch_successor`).
+    pub(super) successor: u32,
     /// The latest lengths advanced without a cached exponential (a ring).
     pub(super) misses: [u64; REPEAT_RING],
     /// e^{Mh} for lengths that came back, at most [`MAX_AGAIN`], and the
@@ -141,6 +145,7 @@ impl Default for ModeCache {
     fn default() -> Self {
         ModeCache {
             scheduled: vec![],
+            successor: NO_SUCCESSOR,
             misses: [f64::NAN.to_bits(); REPEAT_RING],
             repeated: vec![],
             repeated_next: 0,
@@ -156,6 +161,61 @@ impl Default for ModeCache {
             ladder: vec![],
         }
     }
+}
+
+/// [`ModeCache::successor`] before any transition.
+pub(super) const NO_SUCCESSOR: u32 = u32::MAX;
+
+/// Fewest entries of z for which the lane fetches the next mode's data
+/// ahead ([`ModeSet::prefetch_successor`]): below, a mode's exponential
+/// and guard lines are a few cache lines and stay in the first-level
+/// cache anyway.
+pub(super) const PREFETCH_FROM: usize = 9;
+
+impl ModeSet {
+    /// Asks the processor to bring into its first-level cache what the
+    /// mode after mode `mi` will read first: its guard lines (the
+    /// replay's checks at the coming edge) and its first cached
+    /// exponential (the product of the interval after it). Only a hint:
+    /// nothing is read or changed, so results are the same bits. A
+    /// converter of many phases visits more modes a period than that
+    /// cache holds (the twelve-phase buck: 12 modes, each with a 17×17
+    /// exponential), and each edge otherwise waits for them.
+    #[inline(always)]
+    pub(super) fn prefetch_successor(&self, mi: usize) {
+        let next = self.caches[mi].successor;
+        if next == NO_SUCCESSOR {
+            return;
+        }
+        let next = next as usize;
+        let lines = &self.list[next].guard_lines;
+        prefetch_bytes(
+            lines.as_ptr().cast(),
+            std::mem::size_of_val(lines.as_slice()),
+        );
+        if let Some((_, phi)) = self.caches[next].scheduled.first() {
+            let data = phi.as_slice();
+            prefetch_bytes(data.as_ptr().cast(), std::mem::size_of_val(data));
+        }
+    }
+}
+
+/// A prefetch hint for every cache line of `len` bytes from `p`.
+#[inline(always)]
+fn prefetch_bytes(p: *const u8, len: usize) {
+    #[cfg(target_arch = "x86_64")]
+    {
+        use std::arch::x86_64::{_mm_prefetch, _MM_HINT_T0};
+        let mut off = 0;
+        while off < len {
+            // SAFETY: a prefetch is a hint that never faults and reads
+            // nothing into the program; `p + off` lies inside the slice.
+            unsafe { _mm_prefetch::<_MM_HINT_T0>(p.add(off).cast()) };
+            off += 64;
+        }
+    }
+    #[cfg(not(target_arch = "x86_64"))]
+    let _ = (p, len);
 }
 
 /// Lengths remembered per mode for caching on their return (see `step`).

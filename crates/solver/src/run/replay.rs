@@ -309,6 +309,7 @@ impl Simulator {
         }
         let old = self.key.diodes;
         self.key = self.modes[to as usize].key;
+        self.modes.caches[self.mode as usize].successor = to;
         self.mode = to;
         old
     }
