@@ -27,6 +27,56 @@ pub(crate) fn light_buck(v0: f64) -> fluxstep_netlist::Circuit {
         .expect("valid")
 }
 
+/// An interleaved buck's values (demo values): `phases` phases of
+/// frequency `f` and duty `duty`, phase k delayed by (k − 1)/(phases·f),
+/// each with its own switch, freewheeling diode and inductor `l` (from
+/// `i0` where given), from `vin` into one capacitor `c` (from `v0`) and
+/// load `r`.
+pub(crate) struct Interleaved {
+    pub phases: usize,
+    pub f: f64,
+    pub duty: f64,
+    pub vin: f64,
+    pub l: f64,
+    pub i0: Option<f64>,
+    pub c: f64,
+    pub v0: f64,
+    pub r: f64,
+}
+
+/// The interleaved buck of `p`, phase k (from 1) held off before and
+/// after the times `limits(k)` gives.
+pub(crate) fn interleaved_buck(
+    p: Interleaved,
+    limits: impl Fn(usize) -> (Option<f64>, Option<f64>),
+) -> fluxstep_netlist::Circuit {
+    use fluxstep_netlist::Gate;
+    let mut b = fluxstep_netlist::Circuit::builder().voltage_source("Vin", "in", "gnd", p.vin);
+    for k in 1..=p.phases {
+        let (sw, l) = (format!("sw{k}"), format!("L{k}"));
+        b = b
+            .switch(&format!("S{k}"), "in", &sw, &format!("ph{k}"))
+            .diode(&format!("D{k}"), "gnd", &sw);
+        b = match p.i0 {
+            Some(i0) => b.inductor_with_current(&l, &sw, "out", p.l, i0),
+            None => b.inductor(&l, &sw, "out", p.l),
+        };
+        let (start, stop) = limits(k);
+        b = b.gate(Gate::Pwm {
+            name: format!("ph{k}"),
+            frequency: p.f,
+            duty: p.duty,
+            delay: (k - 1) as f64 / (p.phases as f64 * p.f),
+            start,
+            stop,
+        });
+    }
+    b.capacitor_with_voltage("Cout", "out", "gnd", p.c, p.v0)
+        .resistor("Rload", "out", "gnd", p.r)
+        .build()
+        .expect("valid")
+}
+
 /// A synchronous buck with dead times and body diodes (24 V → 12 V,
 /// 200 kHz, 22 µH, 47 µF, 6 Ω; demo values), from rest (`None`) or from
 /// (inductor current, capacitor voltage); with `ramps`, transition models

@@ -674,29 +674,21 @@ mod tests {
     /// common practice).
     #[test]
     fn interleaved_turn_offs_are_located_near_their_anchors() {
-        use fluxstep_netlist::Gate;
         let f = 250e3;
-        let mut b = Circuit::builder().voltage_source("Vin", "in", "gnd", 12.0);
-        for k in 1..=2 {
-            let sw = format!("sw{k}");
-            b = b
-                .switch(&format!("S{k}"), "in", &sw, &format!("ph{k}"))
-                .diode(&format!("D{k}"), "gnd", &sw)
-                .inductor(&format!("L{k}"), &sw, "out", 2.2e-6)
-                .gate(Gate::Pwm {
-                    name: format!("ph{k}"),
-                    frequency: f,
-                    duty: 0.3,
-                    delay: (k - 1) as f64 * 0.5 / f,
-                    start: None,
-                    stop: None,
-                });
-        }
-        let c = b
-            .capacitor_with_voltage("Cout", "out", "gnd", 470e-6, 3.0)
-            .resistor("Rload", "out", "gnd", 30.0)
-            .build()
-            .expect("valid");
+        let c = test_util::interleaved_buck(
+            test_util::Interleaved {
+                phases: 2,
+                f,
+                duty: 0.3,
+                vin: 12.0,
+                l: 2.2e-6,
+                i0: None,
+                c: 470e-6,
+                v0: 3.0,
+                r: 30.0,
+            },
+            |_| (None, None),
+        );
         let stop = 2000.0 / f;
         let (a, b) = (run_nearby(&c, stop, true), run_nearby(&c, stop, false));
         // Two turn-offs a period once the start-up's first periods are
@@ -806,35 +798,27 @@ mod tests {
     #[test]
     fn gate_fronts_give_the_same_bits_as_the_pass_over_the_queues() {
         use crate::control::{Commands, Sampling};
-        use fluxstep_netlist::Gate;
         // Three phases, 200 kHz, the duty and delays moved by a controller
         // (demo values).
         let three = |limits: bool| {
-            let mut b = Circuit::builder().voltage_source("Vin", "in", "gnd", 12.0);
-            for k in 1..=3 {
-                let (start, stop) = match (limits, k) {
+            test_util::interleaved_buck(
+                test_util::Interleaved {
+                    phases: 3,
+                    f: 200e3,
+                    duty: 0.3,
+                    vin: 12.0,
+                    l: 4.7e-6,
+                    i0: Some(1.0),
+                    c: 47e-6,
+                    v0: 3.0,
+                    r: 1.0,
+                },
+                |k| match (limits, k) {
                     (true, 2) => (Some(21e-6), None),
                     (true, 3) => (None, Some(203e-6)),
                     _ => (None, None),
-                };
-                let sw = format!("sw{k}");
-                b = b
-                    .switch(&format!("S{k}"), "in", &sw, &format!("ph{k}"))
-                    .diode(&format!("D{k}"), "gnd", &sw)
-                    .inductor_with_current(&format!("L{k}"), &sw, "out", 4.7e-6, 1.0)
-                    .gate(Gate::Pwm {
-                        name: format!("ph{k}"),
-                        frequency: 200e3,
-                        duty: 0.3,
-                        delay: (k - 1) as f64 / 600e3,
-                        start,
-                        stop,
-                    });
-            }
-            b.capacitor_with_voltage("Cout", "out", "gnd", 47e-6, 3.0)
-                .resistor("Rload", "out", "gnd", 1.0)
-                .build()
-                .expect("valid")
+                },
+            )
         };
         let run = |c: &Circuit, stop: f64, fronts: bool, control: bool| {
             let mut sim = Simulator::new(c, Options::default()).expect("compiles");
