@@ -85,6 +85,40 @@ impl Simulator {
         self.resolve(fired, cause, Moment::Run)
     }
 
+    /// `enter_crossing` for what the lane admits (no comparator, no
+    /// running transition: nothing fires but diodes, nothing is clamped):
+    /// the same steps in the same order, with the remembered transition
+    /// tried first and its diode events logged as a plain instant's
+    /// (`push_instant`: the same records as one by one), the full
+    /// `resolve` only if it does not apply (its own replay attempt then
+    /// fails the same way, changing nothing). The located instant then
+    /// runs the scheduled instants' code, not a second copy of it: in
+    /// discontinuous conduction both ran every period.
+    pub(super) fn lane_crossing(&mut self, c: Crossing) -> Result<(), SolverError> {
+        debug_assert!(c.comparators == 0 && self.key.ramps == 0);
+        let (tau, fired) = (c.time, c.diodes);
+        let t_e = self.t + tau;
+        self.check_progress(t_e, c)?;
+        self.record_located(t_e, tau, fired, 0);
+        self.t = t_e;
+        self.tkey = None;
+        std::mem::swap(&mut self.z, &mut self.z_next);
+        self.check_finite()?;
+        self.stats.state_events += 1;
+        self.rec.cause = EventCause::Crossing;
+        let scales = self.update_scales();
+        if self.shortcuts.replay {
+            if let Some((to, projected)) = self.remembered_target(fired, scales) {
+                let n_x = self.cc.n_x;
+                self.rec.before.clear();
+                propagate::extend_small(&mut self.rec.before, &self.z.as_slice()[..n_x]);
+                let old = self.enter_remembered(to, projected);
+                return self.push_instant(t_e, 0, old ^ self.key.diodes);
+            }
+        }
+        self.resolve(fired, None, Moment::Run)
+    }
+
     /// Stops a run whose event location makes no progress: the same
     /// guards cross at the same instant in the same pattern again and
     /// again, because the pattern resolved there is the one the crossing

@@ -465,6 +465,35 @@ mod tests {
             plain_used > 100,
             "the plain path took only {plain_used} instants"
         );
+        // In discontinuous conduction the lane logs the located turn-off
+        // as a plain instant too (`lane_crossing`): limits at each of the
+        // four events of a period (switch on; switch off and diode on;
+        // diode off), so that one falls on the located instant.
+        let c = example("buck_dcm.json");
+        let mut on_crossing = 0;
+        for max_events in 401..=404 {
+            let opts = Options {
+                max_events,
+                ..Options::default()
+            };
+            let stop = |plain: bool| {
+                let mut sim = Simulator::new(&c, opts.clone()).expect("compiles");
+                sim.shortcuts.plain_instants = plain;
+                sim.lane = plain;
+                let err = sim.advance_to(2e-3).expect_err("must stop");
+                (format!("{err:?}"), sim.finish())
+            };
+            let ((ea, a), (eb, b)) = (stop(true), stop(false));
+            assert_eq!(ea, eb, "{max_events}");
+            assert_eq!(a.events.to_json(), b.events.to_json(), "{max_events}");
+            assert_eq!(a.waveform.segments, b.waveform.segments, "{max_events}");
+            let last = a.events.iter().last().expect("events before the limit");
+            on_crossing += usize::from(last.cause == EventCause::Crossing);
+        }
+        assert_eq!(
+            on_crossing, 1,
+            "one limit must fall on the located turn-off"
+        );
     }
 
     /// Contract: the same holds when the run is advanced in pieces and
