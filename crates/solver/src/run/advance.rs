@@ -33,6 +33,14 @@ impl Simulator {
                 return;
             }
         }
+        self.step_uncached(h, cacheable, stiff);
+    }
+
+    /// [`Simulator::step`] past its look-up of the schedule's spans (a
+    /// miss) and its stiff check (`stiff`, a span found resolvable): for
+    /// the lane, which has made both itself.
+    pub(super) fn step_uncached(&mut self, h: f64, cacheable: bool, stiff: bool) {
+        let mi = self.mode as usize;
         let (m, cache) = self.modes.entry(mi);
         cache.advance_uncached(
             m,

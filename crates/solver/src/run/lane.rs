@@ -91,21 +91,29 @@ impl Simulator {
             let cacheable = self.tkey.is_some();
             let bits = h.to_bits();
             let cache = &self.modes.caches[mi];
-            let substeps = propagate::substeps(self.modes[mi].rate, h);
+            // The span's reach only where no span of the schedule is
+            // cached: the usual interval does not compute it.
             let found = match cache.find_scheduled(bits) {
-                Some(phi) => Some(phi),
-                None if !cacheable && substeps <= propagate::STIFF_SUBSTEPS => {
-                    cache.find_repeated(bits)
+                Some(phi) => Ok(phi),
+                None => {
+                    let substeps = propagate::substeps(self.modes[mi].rate, h);
+                    let repeated = if !cacheable && substeps <= propagate::STIFF_SUBSTEPS {
+                        cache.find_repeated(bits)
+                    } else {
+                        None
+                    };
+                    repeated.ok_or(substeps)
                 }
-                None => None,
             };
             match found {
-                Some(phi) => {
+                Ok(phi) => {
                     propagate::matvec(phi, self.z.as_slice(), self.z_next.as_mut_slice());
                     self.stats.cache_hits += 1;
                 }
-                None if substeps == 1 => self.step(h, cacheable),
-                None => return Ok(()),
+                // `step` past the look-up above and its stiff check (one
+                // reach is not stiff).
+                Err(1) => self.step_uncached(h, cacheable, false),
+                Err(_) => return Ok(()),
             }
             self.lane_steps += 1;
             if self.z.len() >= PREFETCH_FROM {
