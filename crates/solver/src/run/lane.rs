@@ -8,8 +8,9 @@
 //! exponential, or through `step` for a length not cached), locate a
 //! guard that is suspect at the end, record the segment and apply the
 //! edge or the located instant. The lane does exactly that with the
-//! general stages' own functions (`step`, `locate`, `record`,
-//! `plain_instant`, and `lane_crossing`, the located instant in
+//! general stages' own functions (`step_uncached`, the rest of `step`
+//! past the look-ups the lane makes itself; `locate`, `record`,
+//! `plain_instant`; and `lane_crossing`, the located instant in
 //! `plain_instant`'s shape), so the same bits, but without their
 //! generality: no controller, comparator, source corner or transition
 //! model (see `lane_open`). Anything else — a longer span without a
