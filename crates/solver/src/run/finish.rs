@@ -5,6 +5,7 @@
 //! pattern), with the check that event location makes progress. The
 //! general loop and the lane end their intervals here.
 
+use super::replay::Logged;
 use super::*;
 
 /// A crossing located at τ = 0 and how many times in a row the same one
@@ -68,16 +69,8 @@ impl Simulator {
     /// entered, comparators fired, a running transition clamped, and the
     /// new conduction pattern resolved.
     pub(super) fn enter_crossing(&mut self, c: Crossing) -> Result<(), SolverError> {
-        let (tau, fired, cmp_fired) = (c.time, c.diodes, c.comparators);
-        let t_e = self.t + tau;
-        self.check_progress(t_e, c)?;
-        self.record_located(t_e, tau, fired, cmp_fired);
-        self.t = t_e;
-        self.tkey = None;
-        std::mem::swap(&mut self.z, &mut self.z_next);
-        self.check_finite()?;
-        self.stats.state_events += 1;
-        self.rec.cause = EventCause::Crossing;
+        let (fired, cmp_fired) = (c.diodes, c.comparators);
+        let t_e = self.begin_crossing(c)?;
         let cause = self.fire_comparators(cmp_fired, t_e)?;
         if fired != 0 && self.ramp_waits_for_clamp() {
             self.clamp_ramps(t_e);
@@ -96,27 +89,30 @@ impl Simulator {
     /// discontinuous conduction both ran every period.
     pub(super) fn lane_crossing(&mut self, c: Crossing) -> Result<(), SolverError> {
         debug_assert!(c.comparators == 0 && self.key.ramps == 0);
-        let (tau, fired) = (c.time, c.diodes);
-        let t_e = self.t + tau;
+        self.begin_crossing(c)?;
+        let scales = self.update_scales();
+        if self.shortcuts.replay && self.resolve_remembered(c.diodes, scales, Logged::Together)? {
+            return Ok(());
+        }
+        self.resolve(c.diodes, None, Moment::Run)
+    }
+
+    /// The start of a located instant, shared by `enter_crossing` and
+    /// `lane_crossing`: progress checked, the segment up to it recorded,
+    /// the state there (`z_next`) made the present one and checked, the
+    /// instant counted and its kind set; returns its time.
+    #[inline(always)]
+    fn begin_crossing(&mut self, c: Crossing) -> Result<f64, SolverError> {
+        let t_e = self.t + c.time;
         self.check_progress(t_e, c)?;
-        self.record_located(t_e, tau, fired, 0);
+        self.record_located(t_e, c.time, c.diodes, c.comparators);
         self.t = t_e;
         self.tkey = None;
         std::mem::swap(&mut self.z, &mut self.z_next);
         self.check_finite()?;
         self.stats.state_events += 1;
         self.rec.cause = EventCause::Crossing;
-        let scales = self.update_scales();
-        if self.shortcuts.replay {
-            if let Some((to, projected)) = self.remembered_target(fired, scales) {
-                let n_x = self.cc.n_x;
-                self.rec.before.clear();
-                propagate::extend_small(&mut self.rec.before, &self.z.as_slice()[..n_x]);
-                let old = self.enter_remembered(to, projected);
-                return self.push_instant(t_e, 0, old ^ self.key.diodes);
-            }
-        }
-        self.resolve(fired, None, Moment::Run)
+        Ok(t_e)
     }
 
     /// Stops a run whose event location makes no progress: the same

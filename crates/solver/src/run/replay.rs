@@ -133,6 +133,15 @@ impl Memo {
     }
 }
 
+/// How a replayed transition logs its diode events: one by one
+/// (`push_event`, the general path) or together as a plain instant's
+/// (`push_instant`, the lane), which gives the same records.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub(super) enum Logged {
+    OneByOne,
+    Together,
+}
+
 impl Simulator {
     /// Remembers a transition that held at once (no jump, no short) after
     /// only structural rejections and the cuts in `cut_rejected`.
@@ -220,11 +229,14 @@ impl Simulator {
 
     /// Replays a remembered transition from the present mode with the
     /// present switches: true if it applied (see
-    /// [`Simulator::remembered_target`]), its diode changes logged.
+    /// [`Simulator::remembered_target`]), its diode changes logged as
+    /// `logged` says (the same records either way).
+    #[inline(always)]
     pub(super) fn resolve_remembered(
         &mut self,
         flips: u64,
         scales: Scales,
+        logged: Logged,
     ) -> Result<bool, SolverError> {
         let Some((to, projected)) = self.remembered_target(flips, scales) else {
             return Ok(false);
@@ -233,7 +245,11 @@ impl Simulator {
         self.rec.before.clear();
         propagate::extend_small(&mut self.rec.before, &self.z.as_slice()[..n_x]);
         let old = self.enter_remembered(to, projected);
-        self.log_diode_changes(old).map(|()| true)
+        match logged {
+            Logged::OneByOne => self.log_diode_changes(old)?,
+            Logged::Together => self.push_instant(self.t, 0, old ^ self.key.diodes)?,
+        }
+        Ok(true)
     }
 
     /// The remembered transition from the present mode with the present

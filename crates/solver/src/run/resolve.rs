@@ -29,6 +29,7 @@ use std::sync::Arc;
 
 use super::checks::{guards_hold, unbalanced_source, violations};
 use super::record::{After, Who};
+use super::replay::Logged;
 use super::Simulator;
 use crate::compile::BranchKind;
 use crate::crossing::Scales;
@@ -142,7 +143,10 @@ impl Simulator {
     ) -> Result<(), SolverError> {
         let first = self.key.diodes ^ flips;
         let scales = self.update_scales();
-        if !moment.is_start() && self.shortcuts.replay && self.resolve_remembered(flips, scales)? {
+        if !moment.is_start()
+            && self.shortcuts.replay
+            && self.resolve_remembered(flips, scales, Logged::OneByOne)?
+        {
             return Ok(());
         }
         self.stats.resolved_patterns += 1;
