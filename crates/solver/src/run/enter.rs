@@ -47,6 +47,13 @@ impl Simulator {
     pub(super) fn begin_instant(&mut self) {
         self.stats.scheduled_events += 1;
         self.rec.cause = EventCause::Scheduled;
+        self.keep_before();
+    }
+
+    /// Keeps the present state (x, without the inputs) as the state
+    /// before the events about to be logged.
+    #[inline(always)]
+    pub(super) fn keep_before(&mut self) {
         let n_x = self.cc.n_x;
         self.rec.before.clear();
         crate::propagate::extend_small(&mut self.rec.before, &self.z.as_slice()[..n_x]);

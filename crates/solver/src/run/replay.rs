@@ -241,9 +241,7 @@ impl Simulator {
         let Some((to, projected)) = self.remembered_target(flips, scales) else {
             return Ok(false);
         };
-        let n_x = self.cc.n_x;
-        self.rec.before.clear();
-        propagate::extend_small(&mut self.rec.before, &self.z.as_slice()[..n_x]);
+        self.keep_before();
         let old = self.enter_remembered(to, projected);
         match logged {
             Logged::OneByOne => self.log_diode_changes(old)?,

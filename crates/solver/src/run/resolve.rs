@@ -437,9 +437,7 @@ impl Simulator {
         loop_jump: bool,
         moment: Moment,
     ) -> Result<(), SolverError> {
-        let n_x = self.cc.n_x;
-        self.rec.before.clear();
-        self.rec.before.extend_from_slice(&self.z.as_slice()[..n_x]);
+        self.keep_before();
         let jump = (cut_jump || loop_jump).then(|| JumpInfo {
             energy: self.cc.stored_energy(self.z.as_slice())
                 - self.cc.stored_energy(self.buf.z_try.as_slice()),
